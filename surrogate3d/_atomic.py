@@ -1,0 +1,57 @@
+"""Atomic file writes: write to a temporary file beside the target, then rename.
+
+An interrupted write never leaves a half-written file under the final name, and an
+existing file is replaced only once the new one is complete.
+"""
+
+import contextlib
+import os
+import tempfile
+from pathlib import Path
+
+from .errors import Surrogate3DError
+
+
+@contextlib.contextmanager
+def atomic_path(path, suffix=None):
+    """Yield a temporary path in the target's directory; rename it onto ``path`` on success.
+
+    Parameters
+    ----------
+    path : str or Path
+        Final file name.
+    suffix : str, optional
+        Suffix of the temporary file (some writers infer the format from it).
+
+    Examples
+    --------
+    >>> with atomic_path("out.txt") as tmp:          # doctest: +SKIP
+    ...     Path(tmp).write_text("done")
+    """
+    path = Path(path)
+    directory = path.parent if str(path.parent) else Path(".")
+    if not directory.is_dir():
+        raise Surrogate3DError(f"directory {str(directory)!r} does not exist")
+    if not os.access(directory, os.W_OK):
+        raise Surrogate3DError(f"directory {str(directory)!r} is not writable")
+    fd, tmp = tempfile.mkstemp(dir=directory, prefix=f".{path.name}.", suffix=suffix or path.suffix + ".tmp")
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def write_text_atomic(path, text):
+    """Write ``text`` to ``path`` atomically (UTF-8)."""
+    with atomic_path(path) as tmp:
+        Path(tmp).write_text(text, encoding="utf-8")
+
+
+def write_bytes_atomic(path, data):
+    """Write ``data`` to ``path`` atomically."""
+    with atomic_path(path) as tmp:
+        Path(tmp).write_bytes(data)

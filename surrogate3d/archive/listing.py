@@ -1,0 +1,33 @@
+"""Listing an archive directory: what each scene file is and which results it holds."""
+
+import pandas as pd
+import xarray as xr
+
+from .netcdf import ENGINE, scene_files
+from .results import completed
+
+
+def list_archive(archive_dir):
+    """One row per scene file of ``archive_dir``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns: file, regime, seed, nx, ny, nz, dx_m, bands, results (solver@zenith/azimuth
+        entries, comma separated), status ("ok" or the reason it cannot be read).
+    """
+    rows = []
+    for path in scene_files(archive_dir):
+        row = {"file": path.name}
+        try:
+            with xr.open_dataset(path, engine=ENGINE) as ds:
+                done = completed(ds[["result_complete"]].load()) if "result_complete" in ds else []
+                row.update(regime=ds.attrs.get("regime", ""), seed=ds.attrs.get("seed", ""),
+                           nx=ds.sizes.get("x"), ny=ds.sizes.get("y"), nz=ds.sizes.get("z"),
+                           dx_m=ds.attrs.get("dx_m"), bands=ds.sizes.get("band"),
+                           results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done), status="ok")
+        except (OSError, ValueError, KeyError) as exc:
+            row["status"] = f"unreadable: {exc}"
+        rows.append(row)
+    return pd.DataFrame(rows, columns=["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands",
+                                       "results", "status"])

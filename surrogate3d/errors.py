@@ -1,0 +1,24 @@
+"""Exceptions raised for bad input.
+
+Every error raised on purpose by surrogate3d derives from :class:`Surrogate3DError`, so
+that the command line can print it in one line and exit with a non-zero status.
+"""
+
+
+class Surrogate3DError(Exception):
+    """Base class of all errors surrogate3d raises for bad input or bad files."""
+
+
+class ValidationError(Surrogate3DError, ValueError):
+    """A scene, a table or a parameter breaks a documented rule.
+
+    The message names the variable, where it is wrong (index) and the offending value.
+    """
+
+
+class FormatError(Surrogate3DError):
+    """A file is unreadable, truncated, of another format version or lacks variables."""
+
+
+class ParameterError(ValidationError):
+    """A function or estimator parameter is outside its allowed range."""

@@ -1,0 +1,246 @@
+"""The scene data model: a labelled xarray Dataset describing a 3D cloudy atmosphere.
+
+A scene is a regular horizontal grid of ``nx`` x ``ny`` cells of size ``dx`` x ``dy``
+[m], periodic in both horizontal directions, with ``nz`` layers between strictly
+increasing edge heights ``z_edge`` [m] above the surface.  Optical properties are
+given per spectral band.  See ``docs/archive-format.md`` for every variable.
+
+Dimensions are named ``band``, ``z``, ``y``, ``x`` and ``z_edge`` (layer edges); arrays
+are ordered ``(band, z, y, x)`` so that a column is contiguous per layer plane.
+"""
+
+import numpy as np
+import xarray as xr
+
+from ..errors import ValidationError
+
+FORMAT_VERSION = "1.0"
+
+OPTICAL_VARIABLES = ("extinction", "single_scattering_albedo", "asymmetry_parameter")
+REQUIRED_VARIABLES = OPTICAL_VARIABLES + ("surface_albedo", "solar_weight")
+
+#: name -> (dims, units, long_name, CF standard_name or None)
+VARIABLE_SPEC = {
+    "extinction": (("band", "z", "y", "x"), "m-1", "volume extinction coefficient", None),
+    "single_scattering_albedo": (("band", "z", "y", "x"), "1", "single-scattering albedo", None),
+    "asymmetry_parameter": (("band", "z", "y", "x"), "1", "asymmetry parameter of the phase function", None),
+    "surface_albedo": (("band", "y", "x"), "1", "Lambertian surface albedo", "surface_albedo"),
+    "solar_weight": (("band",), "1", "fraction of the top-of-atmosphere solar flux in the band", None),
+    "liquid_water_content": (
+        ("z", "y", "x"), "kg m-3", "cloud liquid water content", "mass_concentration_of_cloud_liquid_water_in_air"),
+    "effective_radius": (("z", "y", "x"), "m", "cloud droplet effective radius",
+                         "effective_radius_of_cloud_liquid_water_particles"),
+    "air_temperature": (("z",), "K", "air temperature of the layer", "air_temperature"),
+    "air_pressure": (("z_edge",), "Pa", "air pressure at layer edges", "air_pressure"),
+}
+
+COORDINATE_SPEC = {
+    "x": ("m", "x of cell centre (periodic)", "projection_x_coordinate"),
+    "y": ("m", "y of cell centre (periodic)", "projection_y_coordinate"),
+    "z": ("m", "height of layer centre above the surface", "height"),
+    "z_edge": ("m", "height of layer edge above the surface", "height"),
+}
+
+
+def _as_band_array(name, value, nband, spatial_shape):
+    """Return ``value`` as float64 of shape ``(nband,) + spatial_shape`` (scalars broadcast)."""
+    arr = np.asarray(value, dtype=np.float64)
+    if arr.ndim == len(spatial_shape):
+        arr = arr[np.newaxis]
+    if arr.ndim == 0:
+        arr = np.full((nband,) + spatial_shape, float(arr))
+    elif arr.ndim == 1 and len(spatial_shape) > 0 and arr.shape[0] == nband:
+        arr = np.broadcast_to(arr.reshape((nband,) + (1,) * len(spatial_shape)), (nband,) + spatial_shape)
+    if arr.shape[0] == 1 and nband > 1:
+        arr = np.broadcast_to(arr, (nband,) + arr.shape[1:])
+    if arr.shape != (nband,) + spatial_shape:
+        raise ValidationError(
+            f"{name} has shape {arr.shape}; expected {(nband,) + spatial_shape} "
+            f"(band, {', '.join('zyx'[3 - len(spatial_shape):])})")
+    return np.ascontiguousarray(arr)
+
+
+def make_scene(extinction, single_scattering_albedo, asymmetry_parameter, z_edge, dx, dy,
+               surface_albedo=0.0, solar_weight=None, band=None, liquid_water_content=None,
+               effective_radius=None, air_temperature=None, air_pressure=None, attrs=None,
+               validate=True):
+    """Build a scene Dataset from arrays.
+
+    Parameters
+    ----------
+    extinction : array_like, shape (nband, nz, ny, nx) or (nz, ny, nx)
+        Volume extinction coefficient [m-1].
+    single_scattering_albedo : array_like or float
+        Single-scattering albedo [1], same shape as ``extinction`` or broadcastable per band.
+    asymmetry_parameter : array_like or float
+        Henyey-Greenstein asymmetry parameter [1], in (-1, 1).
+    z_edge : array_like, shape (nz + 1,)
+        Heights of the layer edges above the surface [m], strictly increasing from 0.
+    dx, dy : float
+        Horizontal cell size [m].
+    surface_albedo : float, array_like (nband,), (ny, nx) or (nband, ny, nx)
+        Lambertian surface albedo [1].
+    solar_weight : array_like (nband,), optional
+        Fractions of the solar flux in each band; default: equal weights.
+    band : sequence of str, optional
+        Band names; default ``band0``, ``band1``, ...
+    liquid_water_content : array_like (nz, ny, nx), optional
+        Cloud liquid water content [kg m-3].
+    effective_radius : array_like (nz, ny, nx), optional
+        Droplet effective radius [m].
+    air_temperature : array_like (nz,), optional
+        Layer temperature [K].
+    air_pressure : array_like (nz + 1,), optional
+        Pressure at the layer edges [Pa], decreasing with height.
+    attrs : dict, optional
+        Extra global attributes (for example ``regime`` and ``seed``).
+    validate : bool
+        Run :func:`surrogate3d.scenes.validate_scene` on the result.
+
+    Returns
+    -------
+    xarray.Dataset
+        The scene, with units and long names as attributes.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ext = np.full((1, 2, 3, 4), 0.01)
+    >>> scene = make_scene(ext, 0.999, 0.85, [0.0, 500.0, 1000.0], 100.0, 100.0)
+    >>> dict(scene.sizes)
+    {'band': 1, 'z': 2, 'y': 3, 'x': 4, 'z_edge': 3}
+    """
+    ext = np.asarray(extinction, dtype=np.float64)
+    if ext.ndim == 3:
+        ext = ext[np.newaxis]
+    if ext.ndim != 4:
+        raise ValidationError(f"extinction must have 3 or 4 dimensions (band, z, y, x); got shape {ext.shape}")
+    nband, nz, ny, nx = ext.shape
+    z_edge = np.asarray(z_edge, dtype=np.float64)
+    if z_edge.shape != (nz + 1,):
+        raise ValidationError(f"z_edge has shape {z_edge.shape}; expected ({nz + 1},) for {nz} layers")
+    if band is None:
+        band = [f"band{i}" for i in range(nband)]
+    band = [str(b) for b in band]
+    if len(band) != nband:
+        raise ValidationError(f"band has {len(band)} names for {nband} bands in extinction")
+    if solar_weight is None:
+        solar_weight = np.full(nband, 1.0 / nband)
+    solar_weight = np.asarray(solar_weight, dtype=np.float64).reshape(-1)
+
+    cell = (nz, ny, nx)
+    data = {
+        "extinction": np.ascontiguousarray(ext),
+        "single_scattering_albedo": _as_band_array("single_scattering_albedo", single_scattering_albedo, nband, cell),
+        "asymmetry_parameter": _as_band_array("asymmetry_parameter", asymmetry_parameter, nband, cell),
+        "surface_albedo": _as_band_array("surface_albedo", surface_albedo, nband, (ny, nx)),
+        "solar_weight": solar_weight,
+    }
+    optional = {"liquid_water_content": liquid_water_content, "effective_radius": effective_radius,
+                "air_temperature": air_temperature, "air_pressure": air_pressure}
+    for name, value in optional.items():
+        if value is not None:
+            data[name] = np.asarray(value, dtype=np.float64)
+
+    coords = {
+        "band": ("band", np.array(band, dtype=object)),
+        "x": ("x", (np.arange(nx) + 0.5) * float(dx)),
+        "y": ("y", (np.arange(ny) + 0.5) * float(dy)),
+        "z": ("z", 0.5 * (z_edge[1:] + z_edge[:-1])),
+        "z_edge": ("z_edge", z_edge),
+    }
+    ds = xr.Dataset(coords=coords)
+    for name, value in data.items():
+        dims = VARIABLE_SPEC[name][0]
+        if np.ndim(value) != len(dims):
+            raise ValidationError(
+                f"{name} has shape {np.shape(value)}; expected dimensions {dims}")
+        ds[name] = (dims, value)
+    ds.attrs.update({
+        "Conventions": "CF-1.10",
+        "format_version": FORMAT_VERSION,
+        "dx_m": float(dx),
+        "dy_m": float(dy),
+        "horizontal_boundaries": "periodic",
+        "source": "surrogate3d",
+    })
+    if attrs:
+        ds.attrs.update(attrs)
+    annotate(ds)
+    if validate:
+        from .validation import validate_scene
+
+        validate_scene(ds)
+    return ds
+
+
+def annotate(ds):
+    """Set units, long names and standard names on the known variables of ``ds`` in place."""
+    for name, (units, long_name, standard_name) in COORDINATE_SPEC.items():
+        if name in ds.coords:
+            ds[name].attrs.update(units=units, long_name=long_name, standard_name=standard_name)
+    if "x" in ds.coords:
+        ds["x"].attrs["axis"] = "X"
+        ds["y"].attrs["axis"] = "Y"
+    for name, (_, units, long_name, standard_name) in VARIABLE_SPEC.items():
+        if name in ds.variables:
+            ds[name].attrs.update(units=units, long_name=long_name)
+            if standard_name:
+                ds[name].attrs["standard_name"] = standard_name
+    if "band" in ds.coords:
+        ds["band"].attrs["long_name"] = "spectral band name"
+    return ds
+
+
+def grid_shape(scene):
+    """Return ``(nz, ny, nx)`` of a scene."""
+    return scene.sizes["z"], scene.sizes["y"], scene.sizes["x"]
+
+
+def layer_thickness(scene):
+    """Layer thicknesses [m] as a 1D numpy array of length ``nz``."""
+    return np.diff(scene["z_edge"].values)
+
+
+def spacing(scene):
+    """Horizontal cell size ``(dx, dy)`` [m]."""
+    return float(scene.attrs["dx_m"]), float(scene.attrs["dy_m"])
+
+
+def column_optical_depth(scene, band=None):
+    """Vertical column optical depth [1] per column.
+
+    Parameters
+    ----------
+    scene : xarray.Dataset
+        A scene.
+    band : str or int, optional
+        Band name or index; by default the solar-weighted mean over bands.
+
+    Returns
+    -------
+    xarray.DataArray, dims (y, x)
+    """
+    dz = xr.DataArray(layer_thickness(scene), dims="z")
+    tau = (scene["extinction"] * dz).sum("z")
+    if band is None:
+        tau = (tau * scene["solar_weight"]).sum("band")
+    elif isinstance(band, (int, np.integer)):
+        tau = tau.isel(band=int(band))
+    else:
+        tau = tau.sel(band=band)
+    tau.attrs.update(units="1", long_name="vertical column optical depth")
+    return tau
+
+
+def cloud_mask(scene, threshold=None):
+    """Boolean (z, y, x) mask of cloudy cells.
+
+    Cells are cloudy where the liquid water content is positive when it is given, else
+    where the extinction of the first band exceeds ``threshold`` [m-1] (default 1e-4,
+    about 100 times clear-air Rayleigh extinction in the visible; common practice).
+    """
+    if "liquid_water_content" in scene and threshold is None:
+        return scene["liquid_water_content"].values > 0.0
+    limit = 1e-4 if threshold is None else float(threshold)
+    return scene["extinction"].values[0] > limit

@@ -1,0 +1,175 @@
+"""The one validation function for scenes, used by every reader and solver entry point."""
+
+import numpy as np
+
+from ..errors import ValidationError
+from .model import REQUIRED_VARIABLES, VARIABLE_SPEC
+
+#: Tolerance on the sum of band solar weights.
+WEIGHT_SUM_TOLERANCE = 1e-6
+_MAX_REPORTED = 8
+
+
+def _where(da_dims, coords, index):
+    parts = []
+    for dim, i in zip(da_dims, index):
+        if dim == "band" and "band" in coords:
+            parts.append(f"band={coords['band'].values[i]!r}")
+        else:
+            parts.append(f"{dim}={int(i)}")
+    return "(" + ", ".join(parts) + ")"
+
+
+def _first_bad(values, bad):
+    """Index tuple of the first True in ``bad`` and the value there, or None."""
+    if not bad.any():
+        return None
+    idx = tuple(int(i) for i in np.argwhere(bad)[0])
+    return idx, values[idx] if values.ndim else values
+
+
+class _Problems:
+    def __init__(self, label, ds):
+        self.label, self.ds, self.items = label, ds, []
+
+    def add(self, text):
+        self.items.append(text)
+
+    def check(self, name, bad, rule):
+        values = np.asarray(self.ds[name].values)
+        hit = _first_bad(values, bad)
+        if hit is not None:
+            idx, value = hit
+            count = int(np.count_nonzero(bad))
+            where = _where(self.ds[name].dims, self.ds.coords, idx)
+            more = f" ({count} cells in all)" if count > 1 else ""
+            self.add(f"{name} {rule} at {where}: {float(value)!r}{more}")
+
+    def raise_if_any(self):
+        if self.items:
+            shown = self.items[:_MAX_REPORTED]
+            extra = len(self.items) - len(shown)
+            tail = f"; and {extra} more problems" if extra > 0 else ""
+            raise ValidationError(f"{self.label} is invalid: " + "; ".join(shown) + tail)
+
+
+def validate_scene(ds, label="scene"):
+    """Check a scene Dataset against the data model and raise on the first set of problems.
+
+    Checks, each reported with the variable name, the offending index and value:
+    missing variables or coordinates; dimensions and shapes that do not match the grid;
+    NaN or infinite values; negative extinction; single-scattering albedo outside
+    [0, 1]; asymmetry parameter outside (-1, 1); surface albedo outside [0, 1];
+    layer edges not strictly increasing or not starting at the surface (0 m); band
+    solar weights that are negative or do not sum to 1; non-positive horizontal
+    spacing; non-physical optional fields (negative water content, non-positive
+    radius, temperature or pressure, pressure not decreasing with height).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The scene.
+    label : str
+        How the scene is called in messages (for example its file name).
+
+    Returns
+    -------
+    xarray.Dataset
+        ``ds`` itself, so that the call can be chained.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        Naming every problem found (up to eight).
+    """
+    p = _Problems(label, ds)
+    missing = [v for v in REQUIRED_VARIABLES if v not in ds.variables]
+    missing += [c for c in ("band", "z_edge") if c not in ds.variables]
+    if missing:
+        p.add("missing variables: " + ", ".join(missing))
+        p.raise_if_any()
+    for attr in ("dx_m", "dy_m"):
+        value = ds.attrs.get(attr)
+        try:
+            ok = value is not None and np.isfinite(float(value)) and float(value) > 0
+        except (TypeError, ValueError):
+            ok = False
+        if not ok:
+            p.add(f"attribute {attr} (horizontal spacing in m) must be a positive number; got {value!r}")
+
+    expected = {"band": None, "z": None, "y": None, "x": None}
+    for dim in expected:
+        expected[dim] = ds.sizes.get(dim)
+    for name, (dims, *_rest) in VARIABLE_SPEC.items():
+        if name not in ds.variables:
+            continue
+        da = ds[name]
+        if da.dims != dims:
+            p.add(f"{name} has dimensions {da.dims}; expected {dims}")
+            continue
+        if not np.issubdtype(da.dtype, np.number):
+            p.add(f"{name} must be numeric; got dtype {da.dtype}")
+            continue
+        p.check(name, ~np.isfinite(da.values), "is not finite")
+    if any(" has dimensions " in item or " must be numeric" in item for item in p.items):
+        p.raise_if_any()
+
+    nz = ds.sizes["z"]
+    if ds.sizes.get("z_edge") != nz + 1:
+        p.add(f"z_edge has {ds.sizes.get('z_edge')} values; expected {nz + 1} for {nz} layers")
+        p.raise_if_any()
+    if min(ds.sizes["x"], ds.sizes["y"], nz) < 1:
+        p.add(f"grid must have at least one cell in x, y and z; got {dict(ds.sizes)}")
+    edges = np.asarray(ds["z_edge"].values, dtype=float)
+    if not np.all(np.isfinite(edges)):
+        p.check("z_edge", ~np.isfinite(edges), "is not finite")
+    else:
+        step = np.diff(edges)
+        if np.any(step <= 0):
+            i = int(np.argmax(step <= 0)) + 1
+            p.add(f"z_edge is not strictly increasing at z_edge={i}: {edges[i]!r} after {edges[i - 1]!r}")
+        if edges[0] != 0.0:
+            p.add(f"z_edge must start at the surface (0 m); z_edge=0 is {edges[0]!r}")
+
+    p.check("extinction", ds["extinction"].values < 0, "is negative")
+    ssa = ds["single_scattering_albedo"].values
+    p.check("single_scattering_albedo", (ssa < 0) | (ssa > 1), "is outside [0, 1]")
+    g = ds["asymmetry_parameter"].values
+    p.check("asymmetry_parameter", (g <= -1) | (g >= 1), "is outside (-1, 1)")
+    alb = ds["surface_albedo"].values
+    p.check("surface_albedo", (alb < 0) | (alb > 1), "is outside [0, 1]")
+    w = np.asarray(ds["solar_weight"].values, dtype=float)
+    p.check("solar_weight", w < 0, "is negative")
+    if abs(w.sum() - 1.0) > WEIGHT_SUM_TOLERANCE:
+        p.add(f"solar_weight sums to {w.sum()!r}; band solar weights must sum to 1")
+
+    if "liquid_water_content" in ds:
+        p.check("liquid_water_content", ds["liquid_water_content"].values < 0, "is negative")
+    if "effective_radius" in ds:
+        lwc = ds["liquid_water_content"].values if "liquid_water_content" in ds else None
+        r = ds["effective_radius"].values
+        bad = r <= 0 if lwc is None else (r <= 0) & (lwc > 0)
+        p.check("effective_radius", bad, "is not positive in a cloudy cell")
+    if "air_temperature" in ds:
+        p.check("air_temperature", ds["air_temperature"].values <= 0, "is not positive")
+    if "air_pressure" in ds:
+        pres = ds["air_pressure"].values
+        p.check("air_pressure", pres <= 0, "is not positive")
+        if np.any(np.diff(pres) >= 0):
+            i = int(np.argmax(np.diff(pres) >= 0)) + 1
+            p.add(f"air_pressure does not decrease with height at z_edge={i}: {pres[i]!r} after {pres[i - 1]!r}")
+
+    dx = float(ds.attrs["dx_m"]) if not p.items else None
+    if dx is not None:
+        for axis, attr in (("x", "dx_m"), ("y", "dy_m")):
+            if axis in ds.coords and ds.sizes[axis] > 0:
+                step = float(ds.attrs[attr])
+                centres = (np.arange(ds.sizes[axis]) + 0.5) * step
+                coord = np.asarray(ds[axis].values, dtype=float)
+                if not np.allclose(coord, centres, rtol=1e-9, atol=1e-6 * step):
+                    i = int(np.argmax(~np.isclose(coord, centres, rtol=1e-9, atol=1e-6 * step)))
+                    p.add(f"{axis} is not a regular grid of cell centres for {attr}={step}: "
+                          f"{axis}={i} is {coord[i]!r}, expected {centres[i]!r}")
+    p.raise_if_any()
+    return ds
+
