@@ -15,6 +15,7 @@ from .errors import Surrogate3DError
 COMMAND_MODULES = [
     "surrogate3d.scenes.commands",
     "surrogate3d.archive.commands",
+    "surrogate3d.solvers.commands",
 ]
 
 

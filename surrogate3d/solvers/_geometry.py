@@ -1,0 +1,242 @@
+"""Ray geometry on the periodic cell grid and the deterministic direct beam (numba kernels).
+
+The direct solar beam is attenuated along exact slant paths (Beer-Lambert law) through
+the cells, with periodic horizontal wrap.  Each top-of-domain column is sampled by
+``nsub x nsub`` parallel rays; a regular lattice of ray entry points keeps exactly
+``nsub**2`` rays landing in every surface column, so a clear sky gets a direct flux of
+exactly ``exp(-tau/mu0)``.  Energy removed from the beam in a cell is split into
+absorption, ``(1 - omega) dE``, and a scattering source, ``omega dE``, from which the
+Monte Carlo photons start; the direct beam reaching the surface is absorbed,
+``(1 - A) T``, or reflected into a Lambertian source, ``A T``.
+"""
+
+import math
+
+import numpy as np
+from numba import njit
+
+INF = math.inf
+
+
+@njit(cache=True, inline="always")
+def next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge):
+    """Distance to the next cell face along (ux, uy, uz) and the axis crossed (0 x, 1 y, 2 z)."""
+    tx = INF
+    if ux > 0.0:
+        tx = ((ix + 1) * dx - x) / ux
+    elif ux < 0.0:
+        tx = (ix * dx - x) / ux
+    ty = INF
+    if uy > 0.0:
+        ty = ((iy + 1) * dy - y) / uy
+    elif uy < 0.0:
+        ty = (iy * dy - y) / uy
+    tz = INF
+    if uz > 0.0:
+        tz = (z_edge[iz + 1] - z) / uz
+    elif uz < 0.0:
+        tz = (z_edge[iz] - z) / uz
+    if tx <= ty and tx <= tz:
+        return max(tx, 0.0), 0
+    if ty <= tz:
+        return max(ty, 0.0), 1
+    return max(tz, 0.0), 2
+
+
+@njit(cache=True, inline="always")
+def ray_entry(r, nx, nsub, dx, dy):
+    """Column indices and entry position (x, y) of direct-beam ray ``r`` at the domain top."""
+    c = r % nsub
+    a = (r // nsub) % nsub
+    col = r // (nsub * nsub)
+    ix = col % nx
+    iy = col // nx
+    return ix, iy, (ix + (c + 0.5) / nsub) * dx, (iy + (a + 0.5) / nsub) * dy
+
+
+@njit(cache=True, inline="always")
+def _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy):
+    """Move across the face on ``axis``; snap to it and wrap periodically."""
+    if axis == 0:
+        if ux > 0.0:
+            ix += 1
+            if ix == nx:
+                ix = 0
+            x = ix * dx
+        else:
+            ix -= 1
+            if ix < 0:
+                ix = nx - 1
+            x = (ix + 1) * dx
+    elif axis == 1:
+        if uy > 0.0:
+            iy += 1
+            if iy == ny:
+                iy = 0
+            y = iy * dy
+        else:
+            iy -= 1
+            if iy < 0:
+                iy = ny - 1
+            y = (iy + 1) * dy
+    else:
+        if uz > 0.0:
+            iz += 1
+        else:
+            iz -= 1
+    return x, y, ix, iy, iz
+
+
+@njit(cache=True)
+def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub):
+    """Trace the direct beam along slant paths with periodic wrap.
+
+    Parameters
+    ----------
+    ext, ssa : float64 (nband, nz, ny, nx)
+        Extinction [m-1] and single-scattering albedo.
+    alb : float64 (nband, ny, nx)
+        Surface albedo.
+    z_edge : float64 (nz + 1,)
+        Layer edges [m].
+    dx, dy : float
+        Cell size [m].
+    ux, uy, uz : float
+        Beam direction (uz < 0).
+    nsub : int
+        Rays per column and axis.
+
+    Returns
+    -------
+    absorbed : (nband, nz, ny, nx)
+        Direct-beam absorption per cell, in units of one column's incident flux.
+    surface : (nband, ny, nx)
+        Direct flux reaching the surface per column (fraction of the incident flux).
+    source : (nband, nray)
+        Scattered plus surface-reflected direct-beam energy per ray.
+    """
+    nb, nz, ny, nx = ext.shape
+    nray = nx * ny * nsub * nsub
+    wray = 1.0 / (nsub * nsub)
+    absorbed = np.zeros((nb, nz, ny, nx))
+    surface = np.zeros((nb, ny, nx))
+    source = np.zeros((nb, nray))
+    trans = np.empty(nb)
+    for r in range(nray):
+        ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
+        iz = nz - 1
+        z = z_edge[nz]
+        for b in range(nb):
+            trans[b] = wray
+        while True:
+            t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
+            for b in range(nb):
+                k = ext[b, iz, iy, ix]
+                if k > 0.0:
+                    t_out = trans[b] * math.exp(-k * t)
+                    removed = trans[b] - t_out
+                    w = ssa[b, iz, iy, ix]
+                    absorbed[b, iz, iy, ix] += (1.0 - w) * removed
+                    source[b, r] += w * removed
+                    trans[b] = t_out
+            x += t * ux
+            y += t * uy
+            z += t * uz
+            if axis == 2 and iz == 0:
+                break
+            x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
+            if axis == 2:
+                z = z_edge[iz + 1]
+        for b in range(nb):
+            surface[b, iy, ix] += trans[b]
+            source[b, r] += alb[b, iy, ix] * trans[b]
+    return absorbed, surface, source
+
+
+@njit(cache=True)
+def locate_source_3d(r, band, target, props, alb, z_edge, dx, dy, ux, uy, uz, nsub, u):
+    """Re-trace ray ``r`` and find where its scattered energy passes ``target``.
+
+    ``props`` is the packed float32 (nband, nz, ny, nx, 4) array of the transport kernel.
+    Returns ``(kind, x, y, z, ix, iy, iz)``: kind 0 is a scattering point in the
+    atmosphere (position sampled exactly from the attenuated beam inside the cell,
+    using the uniform number ``u``), kind 1 a reflection point on the surface.
+    """
+    nz, ny, nx = props.shape[1], props.shape[2], props.shape[3]
+    ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
+    iz = nz - 1
+    z = z_edge[nz]
+    trans = 1.0 / (nsub * nsub)
+    cum = 0.0
+    last_ix, last_iy, last_iz = -1, -1, -1
+    last_x = last_y = last_z = last_t = 0.0
+    while True:
+        t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
+        cellp = props[band, iz, iy, ix]
+        k = float(cellp[0])
+        if k > 0.0:
+            kt = k * t
+            t_out = trans * math.exp(-kt)
+            gain = float(cellp[1]) * (trans - t_out)
+            if gain > 0.0:
+                if cum + gain > target:
+                    if kt < 1e-9:
+                        s = u * t
+                    else:
+                        s = -math.log1p(u * math.expm1(-kt)) / k
+                    s = min(s, t)
+                    return 0, x + s * ux, y + s * uy, z + s * uz, ix, iy, iz
+                cum += gain
+                last_ix, last_iy, last_iz = ix, iy, iz
+                last_x, last_y, last_z, last_t = x, y, z, t
+            trans = t_out
+        x += t * ux
+        y += t * uy
+        z += t * uz
+        if axis == 2 and iz == 0:
+            break
+        x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
+        if axis == 2:
+            z = z_edge[iz + 1]
+    if alb[band, iy, ix] * trans > 0.0 or last_ix < 0:
+        return 1, x, y, 0.0, ix, iy, 0
+    # Round-off left the target just beyond the atmospheric sum: use the last source cell.
+    s = 0.5 * last_t
+    return 0, last_x + s * ux, last_y + s * uy, last_z + s * uz, last_ix, last_iy, last_iz
+
+
+@njit(cache=True)
+def locate_source_column(col, band, target, props, alb, z_edge, mu0, u):
+    """Independent-column version of :func:`locate_source_3d` (vertical column ``col``).
+
+    ``props`` is the packed float32 (nband, ny, nx, nz, 4) column layout.
+    Returns ``(kind, z, iz)``.
+    """
+    nx, nz = props.shape[2], props.shape[3]
+    ix = col % nx
+    iy = col // nx
+    column = props[band, iy, ix]
+    trans = 1.0
+    cum = 0.0
+    last = -1
+    for iz in range(nz - 1, -1, -1):
+        k = float(column[iz, 0])
+        if k <= 0.0:
+            continue
+        path = (z_edge[iz + 1] - z_edge[iz]) / mu0
+        kt = k * path
+        t_out = trans * math.exp(-kt)
+        gain = float(column[iz, 1]) * (trans - t_out)
+        if gain > 0.0:
+            if cum + gain > target:
+                if kt < 1e-9:
+                    s = u * path
+                else:
+                    s = -math.log1p(u * math.expm1(-kt)) / k
+                return 0, max(z_edge[iz + 1] - min(s, path) * mu0, z_edge[iz]), iz
+            cum += gain
+            last = iz
+        trans = t_out
+    if alb[band, iy, ix] * trans > 0.0 or last < 0:
+        return 1, 0.0, 0
+    return 0, 0.5 * (z_edge[last] + z_edge[last + 1]), last
