@@ -16,6 +16,7 @@ COMMAND_MODULES = [
     "surrogate3d.scenes.commands",
     "surrogate3d.archive.commands",
     "surrogate3d.solvers.commands",
+    "surrogate3d.pairs.commands",
 ]
 
 

@@ -1,0 +1,42 @@
+"""``surrogate3d pairs``: the training-pair table of an archive directory."""
+
+
+def register(sub):
+    p = sub.add_parser(
+        "pairs", help="build the training-pair table (features, 3D corrections, baselines) at host resolution",
+        description="Coarse-grain every scene and sun geometry of an archive that holds both a full_3d and an "
+                    "independent_column result to host columns, and write features, 3D-minus-independent-column "
+                    "targets and baseline predictions to one NetCDF file (docs/pairs-format.md).")
+    p.add_argument("archive_dir", help="archive directory of scene files (*.nc)")
+    p.add_argument("--out", required=True, metavar="FILE", help="pair table to write (NetCDF-4)")
+    p.add_argument("--host-resolution", type=float, nargs="+", default=[1000.0], metavar="M",
+                   help="host column size(s) in m, whole multiples of the scene cell size (default: 1000)")
+    p.add_argument("--recipe", metavar="FILE", help="feature recipe (.json or .toml); default: the built-in recipe")
+    p.add_argument("--quiet", action="store_true", help="no progress bar and no notices")
+    p.set_defaults(func=run)
+
+
+def run(args):
+    from pathlib import Path
+
+    from ..archive.netcdf import write_dataset
+    from ..errors import ParameterError
+    from .build import build_pairs
+    from .recipe import FeatureRecipe
+
+    out = Path(args.out)
+    directory = out.parent if str(out.parent) else Path(".")
+    if not directory.is_dir():
+        raise ParameterError(f"--out {args.out!r}: directory {str(directory)!r} does not exist")
+    recipe = FeatureRecipe.read(args.recipe) if args.recipe else None
+    pairs = build_pairs(args.archive_dir, args.host_resolution, recipe=recipe, quiet=args.quiet)
+    write_dataset(pairs, out)
+    if not args.quiet:
+        import json
+
+        skipped = json.loads(pairs.attrs["skipped"])
+        scenes = len(set(pairs["scene"].values.tolist()))
+        print(f"wrote {pairs.sizes['sample']} samples x {pairs.sizes['feature']} features from {scenes} scene(s) "
+              f"at host resolution(s) {', '.join(f'{r:g}' for r in args.host_resolution)} m to {out}"
+              + (f"; skipped {len(skipped)} scene/sun geometr{'y' if len(skipped) == 1 else 'ies'} "
+                 "without both full_3d and independent_column results" if skipped else ""))

@@ -1,0 +1,566 @@
+"""The feature library: what a host model can compute from its own columns and neighbours.
+
+Every feature is a named function of *host-model fields* only, returning one value per
+host column on ``(ny, nx)``.  The host grid is periodic in x and y.  This module imports
+only numpy and the standard library, because the numpy-only runtime imports it to
+compute features inside host models.  ``docs/features.md`` gives each formula, its unit
+and its sources.
+
+Host fields
+-----------
+A dict of numpy arrays on the host grid (x is the last axis, y the one before; layer 0
+is the lowest):
+
+================================================  ================  ======  =========================================
+key                                               shape             units   meaning
+================================================  ================  ======  =========================================
+``layer_cloud_fraction``                          (nz, ny, nx)      1       cloud fraction of each layer
+``layer_optical_depth``                           (nz, ny, nx)      1       broadband (solar-weighted) layer optical
+                                                                            depth, mean over the host column
+``z_edge``                                        (nz + 1,)         m       layer edge heights, from 0 at the surface
+``dx``, ``dy``                                    scalar            m       host column size
+``solar_zenith_angle``                            scalar            degree  in [0, 90)
+``solar_beam_azimuth``                            scalar            degree  direction the beam travels,
+                                                                            counterclockwise from +x
+``surface_albedo``                                (ny, nx)          1       broadband surface albedo
+``total_cloud_fraction``                          (ny, nx)          1       vertically projected cloud cover
+``column_optical_depth_mean``                     (ny, nx)          1       mean sub-grid column optical depth
+``column_optical_depth_std``                      (ny, nx)          1       its sub-grid standard deviation
+``cloud_edge_length``                             (ny, nx)          m-1     cloud-edge length per unit area
+``independent_column_<flux>``                     (ny, nx)          1       the host's own independent-column
+                                                                            fluxes, fractions of the incident
+                                                                            flux on the horizontal
+================================================  ================  ======  =========================================
+
+``<flux>`` is one of ``surface_downward_flux`` (direct + diffuse; computed from the two
+parts when absent), ``surface_downward_direct_flux``, ``surface_downward_diffuse_flux``,
+``toa_upward_flux``, ``atmosphere_absorption``.  Only the keys that the requested
+features use need to be present (:data:`FEATURES` lists them per feature).
+"""
+
+import math
+
+import numpy as np
+
+from ..errors import ValidationError
+from .slant_path import path_weights, slant_sum
+from .targets import TARGETS
+
+#: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
+INDEPENDENT_COLUMN_FLUXES = TARGETS
+
+_SCALARS = ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")
+_LAYER_KEYS = ("layer_cloud_fraction", "layer_optical_depth")
+_PLANE_KEYS = ("surface_albedo", "total_cloud_fraction", "column_optical_depth_mean", "column_optical_depth_std",
+               "cloud_edge_length")
+
+
+def _is_plane_key(key):
+    return key in _PLANE_KEYS or key.startswith("independent_column_")
+
+
+class _Fields(dict):
+    """Host fields plus a cache of derived arrays shared by the features of one call."""
+
+    def __init__(self, fields):
+        super().__init__(fields)
+        self.derived = {}
+
+
+def _memo(fields, key, compute):
+    cache = getattr(fields, "derived", None)
+    if cache is None:
+        return compute()
+    if key not in cache:
+        cache[key] = compute()
+    return cache[key]
+
+
+def _scalar(fields, key):
+    return float(fields[key])
+
+
+def _mu0(fields):
+    return math.cos(math.radians(_scalar(fields, "solar_zenith_angle")))
+
+
+# --- periodic stencils ------------------------------------------------------------------
+
+def _box_sum(a, m, axis):
+    """Periodic sum over the ``2 m + 1`` cells centred on each cell along ``axis`` (cumulative sum)."""
+    if m == 0:
+        return np.array(a, dtype=np.float64, copy=True)
+    n = a.shape[axis]
+    ext = np.take(a, np.arange(-m - 1, n + m) % n, axis=axis)
+    c = np.cumsum(ext, axis=axis, dtype=np.float64)
+    upper = np.take(c, np.arange(2 * m + 1, 2 * m + 1 + n), axis=axis)
+    lower = np.take(c, np.arange(n), axis=axis)
+    return upper - lower
+
+
+def _window_sum_1d(a, half_width, axis):
+    """Periodic sum with weight 1 within ``half_width`` cells and a fractional weight beyond."""
+    m = int(math.floor(half_width))
+    frac = half_width - m
+    out = _box_sum(a, m, axis)
+    if frac > 0.0:
+        out += frac * (np.roll(a, m + 1, axis=axis) + np.roll(a, -(m + 1), axis=axis))
+    return out
+
+
+def neighbourhood_mean(a, radius, dx, dy):
+    """Periodic area mean of ``a`` over the square reaching ``radius`` beyond the column's sides.
+
+    Parameters
+    ----------
+    a : ndarray (ny, nx)
+        A host-column field.
+    radius : float
+        Distance the window reaches beyond each side of the column [m]; the window is
+        ``(dx + 2 radius) x (dy + 2 radius)`` centred on the column, with partial
+        columns weighted by the fraction inside it.
+    dx, dy : float
+        Host column size [m].
+
+    Returns
+    -------
+    ndarray (ny, nx)
+    """
+    hx, hy = radius / dx, radius / dy
+    total = _window_sum_1d(_window_sum_1d(a, hx, axis=1), hy, axis=0)
+    return total / ((2.0 * hx + 1.0) * (2.0 * hy + 1.0))
+
+
+def _shift_bilinear(a, sx, sy):
+    """Periodic bilinear sample of ``a`` at ``(x + sx, y + sy)``; shifts in cells."""
+    ix, iy = math.floor(sx), math.floor(sy)
+    fx, fy = sx - ix, sy - iy
+    out = np.zeros_like(a, dtype=np.float64)
+    for oy, wy in ((iy, 1.0 - fy), (iy + 1, fy)):
+        for ox, wx in ((ix, 1.0 - fx), (ix + 1, fx)):
+            if wx * wy > 0.0:
+                out += wx * wy * np.roll(a, (-oy, -ox), axis=(0, 1))
+    return out
+
+
+def _distance_to(targets, dx, dy, reach):
+    """Periodic Euclidean distance [m] from each cell centre to the nearest target centre.
+
+    Exact two-pass (row, then column) distance transform limited to ``reach`` [m]:
+    distances beyond it come back as infinity.
+    """
+    ny, nx = targets.shape
+    kx = min(int(math.ceil(reach / dx)), nx // 2)
+    ky = min(int(math.ceil(reach / dy)), ny // 2)
+    row2 = np.full(targets.shape, np.inf)
+    for o in range(kx, -1, -1):
+        hit = np.roll(targets, o, axis=1) | np.roll(targets, -o, axis=1)
+        row2[hit] = (o * dx) ** 2
+    dist2 = row2.copy()
+    for o in range(1, ky + 1):
+        step = (o * dy) ** 2
+        np.minimum(dist2, np.roll(row2, o, axis=0) + step, out=dist2)
+        np.minimum(dist2, np.roll(row2, -o, axis=0) + step, out=dist2)
+    dist = np.sqrt(dist2)
+    dist[dist > reach] = np.inf
+    return dist
+
+
+# --- shared column quantities -------------------------------------------------------------
+
+def column_optical_depth(fields):
+    """Vertical column optical depth [1]: the sum of ``layer_optical_depth`` over layers."""
+    return _memo(fields, "tau", lambda: np.asarray(fields["layer_optical_depth"], dtype=np.float64).sum(axis=0))
+
+
+def _log_tau(fields):
+    return _memo(fields, "log_tau", lambda: np.log1p(column_optical_depth(fields)))
+
+
+def _cloud_extent(fields, threshold):
+    """Cloud-top and cloud-base height [m] of each column; 0 where no layer is cloudy."""
+    def compute():
+        cloudy = np.asarray(fields["layer_cloud_fraction"]) > threshold
+        z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
+        nz = cloudy.shape[0]
+        anywhere = cloudy.any(axis=0)
+        top = nz - 1 - np.argmax(cloudy[::-1], axis=0)
+        base = np.argmax(cloudy, axis=0)
+        return (np.where(anywhere, z_edge[top + 1], 0.0), np.where(anywhere, z_edge[base], 0.0))
+    return _memo(fields, ("extent", threshold), compute)
+
+
+def _independent_column(fields, flux):
+    key = f"independent_column_{flux}"
+    if key in fields:
+        return np.asarray(fields[key], dtype=np.float64)
+    if flux == "surface_downward_flux":
+        return (np.asarray(fields["independent_column_surface_downward_direct_flux"], dtype=np.float64)
+                + np.asarray(fields["independent_column_surface_downward_diffuse_flux"], dtype=np.float64))
+    raise ValidationError(f"host_fields has no {key!r}")
+
+
+# --- the features -------------------------------------------------------------------------
+
+def _grid_shape(fields):
+    for key, value in fields.items():
+        if key in _LAYER_KEYS:
+            return np.shape(value)[1:]
+        if _is_plane_key(key):
+            return np.shape(value)
+    raise ValidationError("host_fields holds no (ny, nx) field to fix the host grid size")
+
+
+def cos_solar_zenith(fields):
+    """Cosine of the solar zenith angle, ``mu0`` [1], the same for every column."""
+    return np.full(_grid_shape(fields), _mu0(fields))
+
+
+def surface_albedo(fields):
+    """Broadband surface albedo of the column [1]."""
+    return np.asarray(fields["surface_albedo"], dtype=np.float64)
+
+
+def log_column_optical_depth(fields):
+    """``ln(1 + tau)`` of the vertical column optical depth ``tau`` [1] (finite in clear sky)."""
+    return _log_tau(fields)
+
+
+def cloud_fraction(fields):
+    """Vertically projected (total) cloud fraction of the column [1]."""
+    return np.asarray(fields["total_cloud_fraction"], dtype=np.float64)
+
+
+def column_optical_depth_relative_std(fields):
+    """Sub-grid standard deviation of column optical depth over its mean [1] (0 when the mean is 0)."""
+    mean = np.asarray(fields["column_optical_depth_mean"], dtype=np.float64)
+    std = np.asarray(fields["column_optical_depth_std"], dtype=np.float64)
+    return np.divide(std, mean, out=np.zeros_like(mean), where=mean > 0.0)
+
+
+def cloud_top_height(fields, layer_cloud_fraction_threshold=0.0):
+    """Top edge height [m] of the highest layer whose cloud fraction exceeds the threshold; 0 if none."""
+    return _cloud_extent(fields, layer_cloud_fraction_threshold)[0]
+
+
+def cloud_base_height(fields, layer_cloud_fraction_threshold=0.0):
+    """Bottom edge height [m] of the lowest layer whose cloud fraction exceeds the threshold; 0 if none."""
+    return _cloud_extent(fields, layer_cloud_fraction_threshold)[1]
+
+
+def cloud_top_shadow_length(fields, layer_cloud_fraction_threshold=0.0):
+    """Horizontal length of the shadow cast by the cloud top, ``h_top tan(theta0)`` [m]."""
+    tan0 = math.tan(math.radians(_scalar(fields, "solar_zenith_angle")))
+    return cloud_top_height(fields, layer_cloud_fraction_threshold) * tan0
+
+
+def cloud_edge_length(fields):
+    """Sub-grid cloud-edge length per unit area [m-1]."""
+    return np.asarray(fields["cloud_edge_length"], dtype=np.float64)
+
+
+def _independent_column_feature(flux):
+    def feature(fields):
+        return _independent_column(fields, flux)
+    feature.__name__ = f"independent_column_{flux}"
+    feature.__doc__ = f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident flux)."
+    return feature
+
+
+def neighbour_mean_cloud_fraction(fields, radius):
+    """Mean total cloud fraction over the window reaching ``radius`` [m] beyond the column [1]."""
+    return _memo(fields, ("nm_cf", radius), lambda: neighbourhood_mean(
+        cloud_fraction(fields), radius, _scalar(fields, "dx"), _scalar(fields, "dy")))
+
+
+def neighbour_contrast_cloud_fraction(fields, radius):
+    """Column cloud fraction minus its neighbourhood mean at ``radius`` [m] [1]."""
+    return cloud_fraction(fields) - neighbour_mean_cloud_fraction(fields, radius)
+
+
+def neighbour_mean_log_optical_depth(fields, radius):
+    """Neighbourhood mean of ``ln(1 + tau)`` over the window reaching ``radius`` [m] [1]."""
+    return _memo(fields, ("nm_lt", radius), lambda: neighbourhood_mean(
+        _log_tau(fields), radius, _scalar(fields, "dx"), _scalar(fields, "dy")))
+
+
+def neighbour_contrast_log_optical_depth(fields, radius):
+    """Column ``ln(1 + tau)`` minus its neighbourhood mean at ``radius`` [m] [1]."""
+    return _log_tau(fields) - neighbour_mean_log_optical_depth(fields, radius)
+
+
+def cloud_edge_distance(fields, edge_cloud_fraction=0.5, edge_distance_cap=10000.0):
+    """Signed distance [m] to the nearest host-grid cloud edge: positive in cloud, negative in clear sky.
+
+    A host column is cloudy when its total cloud fraction is at least
+    ``edge_cloud_fraction``; the edge runs along the faces between cloudy and clear
+    columns.  The distance is ``D - min(dx, dy) / 2``, with ``D`` the periodic distance
+    between the column centre and the nearest centre of the other kind (exact for
+    distances along the grid axes), capped at ``edge_distance_cap`` [m].
+    """
+    dx, dy = _scalar(fields, "dx"), _scalar(fields, "dy")
+    half = 0.5 * min(dx, dy)
+    cloudy = cloud_fraction(fields) >= edge_cloud_fraction
+    reach = edge_distance_cap + half
+    inside = np.minimum(_distance_to(~cloudy, dx, dy, reach) - half, edge_distance_cap)
+    outside = np.minimum(_distance_to(cloudy, dx, dy, reach) - half, edge_distance_cap)
+    return np.where(cloudy, inside, -outside)
+
+
+def _log_tau_gradient(fields):
+    def compute():
+        lt = _log_tau(fields)
+        gx = (np.roll(lt, -1, axis=1) - np.roll(lt, 1, axis=1)) / (2.0 * _scalar(fields, "dx"))
+        gy = (np.roll(lt, -1, axis=0) - np.roll(lt, 1, axis=0)) / (2.0 * _scalar(fields, "dy"))
+        return gx, gy
+    return _memo(fields, "grad", compute)
+
+
+def log_optical_depth_gradient_along_beam(fields):
+    """Derivative of ``ln(1 + tau)`` in the direction the beam travels [m-1] (centred, periodic).
+
+    Positive where optical depth grows down-sun (the column faces the sunlit side of a
+    thicker neighbour), negative where it falls (the column lies behind one).
+    """
+    gx, gy = _log_tau_gradient(fields)
+    phi = math.radians(_scalar(fields, "solar_beam_azimuth"))
+    return gx * math.cos(phi) + gy * math.sin(phi)
+
+
+def log_optical_depth_gradient_across_beam(fields):
+    """Magnitude of the derivative of ``ln(1 + tau)`` across the beam direction [m-1].
+
+    Only the magnitude: the two sides across the beam are mirror images, so the sign
+    carries no radiative meaning.
+    """
+    gx, gy = _log_tau_gradient(fields)
+    phi = math.radians(_scalar(fields, "solar_beam_azimuth"))
+    return np.abs(-gx * math.sin(phi) + gy * math.cos(phi))
+
+
+def slant_optical_depth(fields):
+    """Optical depth along the straight path from the column's surface centre toward the sun [1].
+
+    The path crosses neighbouring columns (periodic); each layer contributes the
+    optical depth of the columns it crosses, weighted by the path length inside each,
+    divided by ``mu0`` (Beer-Lambert along the slant path).
+    """
+    def compute():
+        weights = path_weights(fields["z_edge"], _scalar(fields, "dx"), _scalar(fields, "dy"),
+                               _scalar(fields, "solar_zenith_angle"), _scalar(fields, "solar_beam_azimuth"))
+        return slant_sum(np.asarray(fields["layer_optical_depth"], dtype=np.float64), weights) / _mu0(fields)
+    return _memo(fields, "slant", compute)
+
+
+def slant_minus_vertical_optical_depth(fields):
+    """Slant-path optical depth toward the sun minus the column's own ``tau / mu0`` [1]."""
+    return slant_optical_depth(fields) - column_optical_depth(fields) / _mu0(fields)
+
+
+def cloud_top_height_upsun_minus_downsun(fields, cloud_side_distance=2000.0, layer_cloud_fraction_threshold=0.0):
+    """Cloud-top height ``cloud_side_distance`` [m] toward the sun minus as far away from it [m].
+
+    Bilinear, periodic sampling of :func:`cloud_top_height`.  Positive: taller cloud on
+    the sun's side (the column lies in a cloud's shade); negative: taller cloud down-sun
+    (the column faces a sunlit cloud side, or is the sunlit edge of a cloud).
+    """
+    top = cloud_top_height(fields, layer_cloud_fraction_threshold)
+    phi = math.radians(_scalar(fields, "solar_beam_azimuth"))
+    sx = -cloud_side_distance * math.cos(phi) / _scalar(fields, "dx")
+    sy = -cloud_side_distance * math.sin(phi) / _scalar(fields, "dy")
+    return _shift_bilinear(top, sx, sy) - _shift_bilinear(top, -sx, -sy)
+
+
+class Feature:
+    """A registered feature: its function, unit, the host fields and recipe parameters it uses.
+
+    Attributes
+    ----------
+    name : str
+    function : callable
+        ``function(fields, **parameters) -> ndarray (ny, nx)``.
+    units : str
+    keys : tuple of str
+        Host-field keys it reads (besides the scalars ``dx``, ``dy`` and sun angles).
+    parameters : tuple of str
+        Recipe parameters passed to it as keyword arguments.
+    per_radius : bool
+        Whether it is computed once per radius of the recipe's ``neighbour_radii``.
+    """
+
+    def __init__(self, function, units, keys, parameters=(), per_radius=False):
+        self.name = function.__name__
+        self.function, self.units, self.keys = function, units, tuple(keys)
+        self.parameters, self.per_radius = tuple(parameters), per_radius
+
+    @property
+    def description(self):
+        """First line of the function's docstring."""
+        return (self.function.__doc__ or "").strip().splitlines()[0]
+
+
+_LAYERS = ("layer_cloud_fraction", "z_edge")
+_TAU = ("layer_optical_depth",)
+_THRESHOLD = ("layer_cloud_fraction_threshold",)
+
+#: The feature registry, in the default order.
+FEATURES = {f.name: f for f in [
+    Feature(cos_solar_zenith, "1", ()),
+    Feature(surface_albedo, "1", ("surface_albedo",)),
+    Feature(log_column_optical_depth, "1", _TAU),
+    Feature(cloud_fraction, "1", ("total_cloud_fraction",)),
+    Feature(column_optical_depth_relative_std, "1", ("column_optical_depth_mean", "column_optical_depth_std")),
+    Feature(cloud_top_height, "m", _LAYERS, _THRESHOLD),
+    Feature(cloud_base_height, "m", _LAYERS, _THRESHOLD),
+    Feature(cloud_top_shadow_length, "m", _LAYERS, _THRESHOLD),
+    Feature(cloud_edge_length, "m-1", ("cloud_edge_length",)),
+    *[Feature(_independent_column_feature(flux), "1",
+              ((f"independent_column_{flux}",) if flux != "surface_downward_flux" else
+               ("independent_column_surface_downward_direct_flux", "independent_column_surface_downward_diffuse_flux")))
+      for flux in INDEPENDENT_COLUMN_FLUXES],
+    Feature(neighbour_mean_cloud_fraction, "1", ("total_cloud_fraction",), per_radius=True),
+    Feature(neighbour_contrast_cloud_fraction, "1", ("total_cloud_fraction",), per_radius=True),
+    Feature(neighbour_mean_log_optical_depth, "1", _TAU, per_radius=True),
+    Feature(neighbour_contrast_log_optical_depth, "1", _TAU, per_radius=True),
+    Feature(cloud_edge_distance, "m", ("total_cloud_fraction",), ("edge_cloud_fraction", "edge_distance_cap")),
+    Feature(log_optical_depth_gradient_along_beam, "m-1", _TAU),
+    Feature(log_optical_depth_gradient_across_beam, "m-1", _TAU),
+    Feature(slant_optical_depth, "1", _TAU + ("z_edge",)),
+    Feature(slant_minus_vertical_optical_depth, "1", _TAU + ("z_edge",)),
+    Feature(cloud_top_height_upsun_minus_downsun, "m", _LAYERS, ("cloud_side_distance",) + _THRESHOLD),
+]}
+
+
+def column_name(feature, radius=None):
+    """Name of one feature column: the feature name, suffixed with the radius for per-radius features."""
+    return feature if radius is None else f"{feature}_{float(radius):g}m"
+
+
+def validate_host_fields(fields, keys=None):
+    """Check host fields for shape, finiteness and range; raise ValidationError naming the key.
+
+    Parameters
+    ----------
+    fields : dict
+        Host fields (see the module docstring).
+    keys : iterable of str, optional
+        Keys that must be present besides the scalars; default: those present.
+
+    Returns
+    -------
+    tuple of int
+        ``(ny, nx)`` of the host grid.
+    """
+    if not isinstance(fields, dict):
+        raise ValidationError(f"host_fields must be a dict of numpy arrays; got {type(fields).__name__}")
+    keys = set(keys or ()) | set(_SCALARS)
+    missing = sorted(k for k in keys if k not in fields)
+    if missing:
+        raise ValidationError("host_fields is missing " + ", ".join(repr(k) for k in missing))
+    for key in _SCALARS:
+        value = np.asarray(fields[key], dtype=np.float64)
+        if value.ndim != 0 or not np.isfinite(value):
+            raise ValidationError(f"host_fields[{key!r}] must be a finite scalar; got {fields[key]!r}")
+    for key in ("dx", "dy"):
+        if float(fields[key]) <= 0.0:
+            raise ValidationError(f"host_fields[{key!r}] (host column size in m) must be positive; got {fields[key]!r}")
+    zenith = float(fields["solar_zenith_angle"])
+    if not 0.0 <= zenith < 90.0:
+        raise ValidationError(f"host_fields['solar_zenith_angle'] must be in [0, 90) degree; got {zenith!r}")
+    shape2d = None
+    for key in sorted(k for k in fields if _is_plane_key(k)):
+        value = np.asarray(fields[key])
+        if value.ndim != 2:
+            raise ValidationError(f"host_fields[{key!r}] must have dimensions (ny, nx); got shape {value.shape}")
+        if shape2d is None:
+            shape2d = value.shape
+        elif value.shape != shape2d:
+            raise ValidationError(f"host_fields[{key!r}] has shape {value.shape}; other fields have {shape2d}")
+    layered = [k for k in _LAYER_KEYS if k in fields]
+    if layered or "z_edge" in keys:
+        if "z_edge" not in fields:
+            raise ValidationError("host_fields is missing 'z_edge' (layer edge heights in m)")
+        z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
+        if z_edge.ndim != 1 or z_edge.size < 2 or not np.all(np.isfinite(z_edge)) or np.any(np.diff(z_edge) <= 0):
+            raise ValidationError(f"host_fields['z_edge'] must be strictly increasing layer edge heights [m]; "
+                                  f"got {z_edge!r}")
+        for key in layered:
+            value = np.asarray(fields[key])
+            expected = (z_edge.size - 1,) + (shape2d or value.shape[1:])
+            if value.shape != expected:
+                raise ValidationError(f"host_fields[{key!r}] has shape {value.shape}; expected {expected} "
+                                      f"(nz, ny, nx) for {z_edge.size - 1} layers")
+            if shape2d is None:
+                shape2d = value.shape[1:]
+    if shape2d is None or min(shape2d) < 1:
+        raise ValidationError("host_fields holds no (ny, nx) field to fix the host grid size")
+    for key in sorted(k for k in fields if _is_plane_key(k) or k in _LAYER_KEYS):
+        value = np.asarray(fields[key], dtype=np.float64)
+        bad = ~np.isfinite(value)
+        if key in ("layer_optical_depth", "column_optical_depth_mean", "column_optical_depth_std",
+                   "cloud_edge_length"):
+            bad |= value < 0
+        if key in ("layer_cloud_fraction", "total_cloud_fraction", "surface_albedo"):
+            bad |= (value < 0) | (value > 1)
+        if bad.any():
+            idx = tuple(int(i) for i in np.argwhere(bad)[0])
+            raise ValidationError(f"host_fields[{key!r}] is not finite or out of range at index {idx}: "
+                                  f"{float(value[idx])!r}")
+    return tuple(int(n) for n in shape2d)
+
+
+def compute_features(host_fields, recipe=None):
+    """Feature matrix of a host grid.
+
+    Parameters
+    ----------
+    host_fields : dict of ndarray
+        Host-model fields (see the module docstring); the grid is periodic.
+    recipe : surrogate3d.pairs.recipe.FeatureRecipe, optional
+        Ordered features and their parameters; default :func:`~surrogate3d.pairs.recipe.default_recipe`.
+
+    Returns
+    -------
+    ndarray, shape (ny * nx, n_columns)
+        One row per host column in row-major ``(iy, ix)`` order; columns as
+        ``recipe.column_names()``, units as ``recipe.column_units()``.  Stored
+        column-major (Fortran order).
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        Missing or malformed host fields.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from surrogate3d.pairs.recipe import FeatureRecipe
+    >>> fields = {"layer_optical_depth": np.ones((2, 3, 4)), "z_edge": [0.0, 500.0, 1000.0],
+    ...           "dx": 1000.0, "dy": 1000.0, "solar_zenith_angle": 60.0, "solar_beam_azimuth": 0.0}
+    >>> compute_features(fields, FeatureRecipe(["log_column_optical_depth"])).shape
+    (12, 1)
+    """
+    if recipe is None:
+        from .recipe import default_recipe
+
+        recipe = default_recipe()
+    keys = set()
+    for name in recipe.features:
+        keys.update(FEATURES[name].keys)
+    ny, nx = validate_host_fields(host_fields, keys)
+    fields = _Fields(host_fields)
+    names = recipe.column_names()
+    # Column-major storage: each feature is written as one contiguous row, and the
+    # transposed view avoids a slow strided copy of the whole matrix.
+    out = np.empty((len(names), ny * nx))
+    j = 0
+    for name in recipe.features:
+        feature = FEATURES[name]
+        kwargs = {p: recipe.parameters[p] for p in feature.parameters}
+        radii = recipe.parameters["neighbour_radii"] if feature.per_radius else [None]
+        for radius in radii:
+            args = {} if radius is None else {"radius": float(radius)}
+            value = np.asarray(feature.function(fields, **args, **kwargs), dtype=np.float64)
+            out[j] = np.broadcast_to(value, (ny, nx)).reshape(-1)
+            j += 1
+    return out.T

@@ -1,0 +1,207 @@
+"""Feature recipes: which features, in which order, with which parameters (numpy-free, stdlib only).
+
+A recipe is serializable to JSON and to plain dicts of strings, numbers and lists (so
+it can be written into TOML training recipes and into coefficient files), and carries
+a version so that a file written by a later, incompatible library is refused.
+"""
+
+import json
+import math
+from pathlib import Path
+
+from ..errors import FormatError, ParameterError
+from .features import FEATURES, column_name
+
+#: Version of the recipe layout (and of the feature definitions it refers to).
+RECIPE_VERSION = 1
+
+#: Parameters of the features and their defaults.
+DEFAULT_PARAMETERS = {
+    "neighbour_radii": [1000.0, 3000.0, 10000.0],
+    "edge_cloud_fraction": 0.5,
+    "edge_distance_cap": 10000.0,
+    "layer_cloud_fraction_threshold": 0.0,
+    "cloud_side_distance": 2000.0,
+}
+
+_PARAMETER_RULES = {
+    "neighbour_radii": "a non-empty list of distinct positive distances in m",
+    "edge_cloud_fraction": "a cloud fraction in (0, 1]",
+    "edge_distance_cap": "a positive distance in m",
+    "layer_cloud_fraction_threshold": "a cloud fraction in [0, 1)",
+    "cloud_side_distance": "a positive distance in m",
+}
+
+
+def _finite(value):
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+def _check_parameter(name, value):
+    if name == "neighbour_radii":
+        ok = (isinstance(value, (list, tuple)) and len(value) > 0 and all(_finite(r) and r > 0 for r in value)
+              and len(set(float(r) for r in value)) == len(value))
+        return [float(r) for r in value] if ok else None
+    if not _finite(value):
+        return None
+    value = float(value)
+    ok = {"edge_cloud_fraction": 0.0 < value <= 1.0,
+          "edge_distance_cap": value > 0.0,
+          "layer_cloud_fraction_threshold": 0.0 <= value < 1.0,
+          "cloud_side_distance": value > 0.0}[name]
+    return value if ok else None
+
+
+class FeatureRecipe:
+    """An ordered list of feature names plus their parameters.
+
+    Parameters
+    ----------
+    features : sequence of str
+        Feature names from :data:`surrogate3d.pairs.features.FEATURES`, in column order.
+    parameters : dict, optional
+        Overrides of :data:`DEFAULT_PARAMETERS` (radii and distances in m).
+    name : str
+        A label for the recipe.
+    version : int
+        Recipe layout version; only :data:`RECIPE_VERSION` is accepted.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        Unknown feature or parameter names (listing the known ones), duplicates, or a
+        parameter outside its allowed range.
+
+    Examples
+    --------
+    >>> r = FeatureRecipe(["cloud_fraction", "neighbour_mean_cloud_fraction"],
+    ...                   {"neighbour_radii": [2000.0]})
+    >>> r.column_names()
+    ['cloud_fraction', 'neighbour_mean_cloud_fraction_2000m']
+    >>> FeatureRecipe.from_json(r.to_json()) == r
+    True
+    """
+
+    def __init__(self, features, parameters=None, name="custom", version=RECIPE_VERSION):
+        if isinstance(features, str) or not all(isinstance(f, str) for f in features):
+            raise ParameterError(f"features must be a list of feature names; got {features!r}")
+        features = list(features)
+        unknown = [f for f in features if f not in FEATURES]
+        if unknown:
+            raise ParameterError(f"unknown feature name(s) {unknown}; known features: {', '.join(FEATURES)}")
+        duplicates = sorted({f for f in features if features.count(f) > 1})
+        if duplicates:
+            raise ParameterError(f"features lists {duplicates} more than once")
+        if version != RECIPE_VERSION:
+            raise ParameterError(f"recipe version must be {RECIPE_VERSION}; got {version!r}")
+        given = dict(parameters or {})
+        unknown = sorted(set(given) - set(DEFAULT_PARAMETERS))
+        if unknown:
+            raise ParameterError(f"unknown feature parameter(s) {unknown}; known parameters: "
+                                 f"{', '.join(DEFAULT_PARAMETERS)}")
+        merged = {}
+        for key, default in DEFAULT_PARAMETERS.items():
+            value = _check_parameter(key, given.get(key, default))
+            if value is None:
+                raise ParameterError(f"feature parameter {key} must be {_PARAMETER_RULES[key]}; "
+                                     f"got {given[key]!r}")
+            merged[key] = value
+        self.features = tuple(features)
+        self.parameters = merged
+        self.name = str(name)
+        self.version = int(version)
+
+    def __eq__(self, other):
+        return isinstance(other, FeatureRecipe) and self.to_dict() == other.to_dict()
+
+    def __repr__(self):
+        return f"FeatureRecipe(name={self.name!r}, features={len(self.features)}, columns={len(self.column_names())})"
+
+    def column_names(self):
+        """Names of the feature-matrix columns: per-radius features expand to one column per radius."""
+        names = []
+        for f in self.features:
+            radii = self.parameters["neighbour_radii"] if FEATURES[f].per_radius else [None]
+            names.extend(column_name(f, r) for r in radii)
+        return names
+
+    def column_units(self):
+        """Units of each feature-matrix column, in the order of :meth:`column_names`."""
+        units = []
+        for f in self.features:
+            count = len(self.parameters["neighbour_radii"]) if FEATURES[f].per_radius else 1
+            units.extend([FEATURES[f].units] * count)
+        return units
+
+    def to_dict(self):
+        """Plain dict (strings, numbers and lists only: JSON- and TOML-friendly)."""
+        return {"name": self.name, "version": self.version, "features": list(self.features),
+                "parameters": {k: (list(v) if isinstance(v, list) else v) for k, v in self.parameters.items()}}
+
+    @classmethod
+    def from_dict(cls, data):
+        """Recipe from :meth:`to_dict` output (for example a ``[features]`` table of a TOML file)."""
+        if not isinstance(data, dict) or "features" not in data:
+            raise ParameterError(f"a feature recipe must be a mapping with a 'features' list; got {data!r}")
+        unknown = sorted(set(data) - {"name", "version", "features", "parameters"})
+        if unknown:
+            raise ParameterError(f"unknown recipe key(s) {unknown}; known keys: name, version, features, parameters")
+        return cls(data["features"], data.get("parameters"), name=data.get("name", "custom"),
+                   version=data.get("version", RECIPE_VERSION))
+
+    def to_json(self):
+        """The recipe as a JSON string."""
+        return json.dumps(self.to_dict(), sort_keys=False)
+
+    @classmethod
+    def from_json(cls, text):
+        """Recipe from a JSON string."""
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise FormatError(f"feature recipe is not valid JSON: {exc}") from None
+        return cls.from_dict(data)
+
+    @classmethod
+    def read(cls, path):
+        """Read a recipe from a ``.json`` or ``.toml`` file.
+
+        A TOML file holds the recipe at its top level or in a ``[feature_recipe]`` table.
+
+        Raises
+        ------
+        surrogate3d.errors.FormatError
+            Missing, unreadable or malformed file.
+        """
+        path = Path(path)
+        if not path.is_file():
+            raise FormatError(f"feature recipe file {str(path)!r} does not exist")
+        text = path.read_text(encoding="utf-8")
+        if path.suffix.lower() == ".toml":
+            import tomllib
+
+            try:
+                data = tomllib.loads(text)
+            except tomllib.TOMLDecodeError as exc:
+                raise FormatError(f"feature recipe file {str(path)!r} is not valid TOML: {exc}") from None
+            return cls.from_dict(data.get("feature_recipe", data))
+        try:
+            return cls.from_json(text)
+        except FormatError as exc:
+            raise FormatError(f"feature recipe file {str(path)!r}: {exc}") from None
+
+    def write(self, path):
+        """Write the recipe as JSON (atomically)."""
+        from .._atomic import write_text_atomic
+
+        write_text_atomic(path, json.dumps(self.to_dict(), indent=2) + "\n")
+
+
+def default_recipe():
+    """The default recipe: every registered feature in registry order, default parameters.
+
+    Returns
+    -------
+    FeatureRecipe
+    """
+    return FeatureRecipe(list(FEATURES), name="default")

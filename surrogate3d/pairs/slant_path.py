@@ -1,0 +1,203 @@
+"""Straight paths toward the sun through a periodic grid of uniform columns (numpy only).
+
+A path starts at the surface in the centre of a column and rises toward the sun.  In
+the layer between heights ``z_edge[k]`` and ``z_edge[k + 1]`` it moves horizontally by
+``(z_edge[k + 1] - z_edge[k]) tan(theta0)`` against the direction the beam travels, and
+crosses a few neighbouring columns.  Because every column is horizontally uniform, the
+fraction of the layer's path spent in each neighbour depends only on the geometry, not
+on the column: the same list of ``(row offset, column offset, weight)`` serves every
+column, and a slant-path integral over the grid becomes a short sum of whole-array
+shifts.  This module is imported by the numpy-only runtime; it uses only numpy.
+"""
+
+import math
+
+import numpy as np
+
+#: Below this magnitude a direction component is taken as exactly zero (avoids
+#: spurious crossings from cos(90 deg) = 6e-17).
+_DIRECTION_EPS = 1e-12
+
+
+def _crossings(s0, s1, u, spacing):
+    """Path lengths in [s0, s1] where the coordinate ``s * u / spacing`` is a half-integer."""
+    if abs(u) < _DIRECTION_EPS or s1 <= s0:
+        return np.empty(0)
+    a0, a1 = sorted((s0 * u / spacing, s1 * u / spacing))
+    faces = np.arange(math.ceil(a0 - 0.5), math.floor(a1 - 0.5) + 1) + 0.5
+    return faces * spacing / u
+
+
+def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+    """Columns crossed in each layer by the path from a column's surface centre toward the sun.
+
+    Parameters
+    ----------
+    z_edge : array_like, shape (nz + 1,)
+        Layer edge heights above the surface [m], increasing.
+    dx, dy : float
+        Column size along x and y [m].
+    solar_zenith_angle : float
+        [degree], in [0, 90).
+    solar_beam_azimuth : float
+        Direction of travel of the direct beam [degree], counterclockwise from +x; the
+        path goes the opposite way, toward the sun.
+
+    Returns
+    -------
+    list of (ndarray, ndarray, ndarray)
+        For each layer (bottom first): row offsets ``oy``, column offsets ``ox`` (int) and
+        weights (fraction of the layer's path length inside that column, summing to 1).
+        The column at ``(iy + oy, ix + ox)`` (periodic) is crossed by the path of column
+        ``(iy, ix)``.
+
+    Notes
+    -----
+    Exact for horizontally uniform columns: the path is split at every column face it
+    crosses (Beer-Lambert along straight lines, so the slant optical depth of a layer
+    is the weighted sum of the vertical layer optical depths divided by ``cos(theta0)``).
+
+    Examples
+    --------
+    >>> oy, ox, w = path_weights([0.0, 1000.0], 1000.0, 1000.0, 45.0, 0.0)[0]
+    >>> ox.tolist(), w.round(12).tolist()
+    ([-1, 0], [0.5, 0.5])
+    """
+    z_edge = np.asarray(z_edge, dtype=np.float64)
+    tan0 = math.tan(math.radians(float(solar_zenith_angle)))
+    phi = math.radians(float(solar_beam_azimuth))
+    # Toward the sun: opposite to the direction in which the beam travels.
+    ux, uy = -math.cos(phi), -math.sin(phi)
+    out = []
+    for k in range(z_edge.size - 1):
+        s0, s1 = z_edge[k] * tan0, z_edge[k + 1] * tan0
+        if s1 - s0 <= 0.0:
+            out.append((np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.int64), np.ones(1)))
+            continue
+        cuts = np.concatenate(([s0, s1], _crossings(s0, s1, ux, dx), _crossings(s0, s1, uy, dy)))
+        cuts = np.unique(np.clip(cuts, s0, s1))
+        mids = 0.5 * (cuts[1:] + cuts[:-1])
+        lengths = np.diff(cuts)
+        keep = lengths > 0.0
+        mids, lengths = mids[keep], lengths[keep]
+        ox = np.floor(mids * (ux if abs(ux) >= _DIRECTION_EPS else 0.0) / dx + 0.5).astype(np.int64)
+        oy = np.floor(mids * (uy if abs(uy) >= _DIRECTION_EPS else 0.0) / dy + 0.5).astype(np.int64)
+        pairs, inverse = np.unique(np.stack([oy, ox], axis=1), axis=0, return_inverse=True)
+        weights = np.bincount(inverse.ravel(), weights=lengths) / (s1 - s0)
+        out.append((pairs[:, 0].copy(), pairs[:, 1].copy(), weights))
+    return out
+
+
+def top_offset(z_top, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+    """Offset ``(oy, ox)`` of the column where the path toward the sun leaves the domain top.
+
+    Parameters
+    ----------
+    z_top : float
+        Height of the domain top [m].
+    dx, dy : float
+        Column size [m].
+    solar_zenith_angle, solar_beam_azimuth : float
+        [degree], as in :func:`path_weights`.
+
+    Returns
+    -------
+    tuple of int
+    """
+    s = float(z_top) * math.tan(math.radians(float(solar_zenith_angle)))
+    phi = math.radians(float(solar_beam_azimuth))
+    ux, uy = -math.cos(phi), -math.sin(phi)
+    ux = ux if abs(ux) >= _DIRECTION_EPS else 0.0
+    uy = uy if abs(uy) >= _DIRECTION_EPS else 0.0
+    return int(math.floor(s * uy / dy + 0.5)), int(math.floor(s * ux / dx + 0.5))
+
+
+def gather_offsets(weights_per_layer):
+    """Regroup per-layer path weights by column offset.
+
+    Parameters
+    ----------
+    weights_per_layer : list
+        Output of :func:`path_weights`.
+
+    Returns
+    -------
+    dict of (int, int) -> list of (int, float)
+        ``(oy, ox)`` -> ``[(layer, weight), ...]``: one array shift per distinct offset
+        then serves all the layers that cross that column.
+    """
+    grouped = {}
+    for k, (oy, ox, w) in enumerate(weights_per_layer):
+        for a, b, c in zip(oy.tolist(), ox.tolist(), w.tolist()):
+            grouped.setdefault((a, b), []).append((k, c))
+    return grouped
+
+
+def slant_sum(layer_values, weights_per_layer):
+    """Weighted sum of layer values along each column's path toward the sun (periodic).
+
+    Parameters
+    ----------
+    layer_values : ndarray, shape (nz, ny, nx)
+        A layer quantity that adds along a path, e.g. vertical layer optical depth [1].
+    weights_per_layer : list
+        Output of :func:`path_weights` for the same ``nz`` layers.
+
+    Returns
+    -------
+    ndarray, shape (ny, nx)
+        ``sum_k sum_cells w * layer_values[k, iy + oy, ix + ox]``.
+    """
+    total = np.zeros(layer_values.shape[1:], dtype=np.float64)
+    for (oy, ox), terms in gather_offsets(weights_per_layer).items():
+        plane = np.zeros_like(total)
+        for k, w in terms:
+            plane += w * layer_values[k]
+        total += np.roll(plane, (-oy, -ox), axis=(0, 1))
+    return total
+
+
+def gather_layers(layer_values, weights_per_layer):
+    """Per-layer values along each column's path toward the sun (periodic).
+
+    Parameters
+    ----------
+    layer_values : ndarray, shape (nz, ny, nx)
+    weights_per_layer : list
+        Output of :func:`path_weights`.
+
+    Returns
+    -------
+    ndarray, shape (nz, ny, nx)
+        ``out[k, iy, ix] = sum_cells w * layer_values[k, iy + oy, ix + ox]``: the layers
+        of the tilted column that reaches the surface at ``(iy, ix)``.
+    """
+    out = np.zeros(layer_values.shape, dtype=np.float64)
+    for k, (oy, ox, w) in enumerate(weights_per_layer):
+        for a, b, c in zip(oy.tolist(), ox.tolist(), w.tolist()):
+            out[k] += c * np.roll(layer_values[k], (-a, -b), axis=(0, 1))
+    return out
+
+
+def scatter_layers(layer_values, weights_per_layer):
+    """Return per-layer values of tilted columns to the cells their paths cross (adjoint of :func:`gather_layers`).
+
+    A value of the tilted column reaching the surface at ``(iy, ix)`` in layer ``k`` is
+    shared among the cells ``(iy + oy, ix + ox)`` its path crosses in that layer, in
+    proportion to the path length in each, so sums over the domain are kept.
+
+    Parameters
+    ----------
+    layer_values : ndarray, shape (nz, ny, nx)
+    weights_per_layer : list
+        Output of :func:`path_weights`.
+
+    Returns
+    -------
+    ndarray, shape (nz, ny, nx)
+    """
+    out = np.zeros(layer_values.shape, dtype=np.float64)
+    for k, (oy, ox, w) in enumerate(weights_per_layer):
+        for a, b, c in zip(oy.tolist(), ox.tolist(), w.tolist()):
+            out[k] += c * np.roll(layer_values[k], (a, b), axis=(0, 1))
+    return out
