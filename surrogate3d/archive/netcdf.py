@@ -16,7 +16,7 @@ from ..errors import FormatError
 from ..scenes.model import FORMAT_VERSION, annotate
 from ..scenes.validation import validate_scene
 
-ENGINE = "h5netcdf"
+ENGINE = "netcdf4"
 SCENE_SUFFIX = ".nc"
 
 
