@@ -107,7 +107,7 @@ def make_scene(extinction, single_scattering_albedo, asymmetry_parameter, z_edge
     >>> import numpy as np
     >>> ext = np.full((1, 2, 3, 4), 0.01)
     >>> scene = make_scene(ext, 0.999, 0.85, [0.0, 500.0, 1000.0], 100.0, 100.0)
-    >>> dict(scene.sizes)
+    >>> {dim: scene.sizes[dim] for dim in ("band", "z", "y", "x", "z_edge")}
     {'band': 1, 'z': 2, 'y': 3, 'x': 4, 'z_edge': 3}
     """
     ext = np.asarray(extinction, dtype=np.float64)

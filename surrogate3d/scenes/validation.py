@@ -14,10 +14,15 @@ def _where(da_dims, coords, index):
     parts = []
     for dim, i in zip(da_dims, index):
         if dim == "band" and "band" in coords:
-            parts.append(f"band={coords['band'].values[i]!r}")
+            parts.append(f"band={str(coords['band'].values[i])!r}")
         else:
             parts.append(f"{dim}={int(i)}")
     return "(" + ", ".join(parts) + ")"
+
+
+def _show(value):
+    """repr of a value with numpy scalars shown as plain Python numbers (``1.5``, not ``np.float64(1.5)``)."""
+    return repr(value.item() if isinstance(value, np.generic) else value)
 
 
 def _first_bad(values, bad):
@@ -95,7 +100,7 @@ def validate_scene(ds, label="scene"):
         except (TypeError, ValueError):
             ok = False
         if not ok:
-            p.add(f"attribute {attr} (horizontal spacing in m) must be a positive number; got {value!r}")
+            p.add(f"attribute {attr} (horizontal spacing in m) must be a positive number; got {_show(value)}")
 
     expected = {"band": None, "z": None, "y": None, "x": None}
     for dim in expected:
@@ -127,9 +132,10 @@ def validate_scene(ds, label="scene"):
         step = np.diff(edges)
         if np.any(step <= 0):
             i = int(np.argmax(step <= 0)) + 1
-            p.add(f"z_edge is not strictly increasing at z_edge={i}: {edges[i]!r} after {edges[i - 1]!r}")
+            p.add(f"z_edge is not strictly increasing at z_edge={i}: "
+                  f"{_show(edges[i])} after {_show(edges[i - 1])}")
         if edges[0] != 0.0:
-            p.add(f"z_edge must start at the surface (0 m); z_edge=0 is {edges[0]!r}")
+            p.add(f"z_edge must start at the surface (0 m); z_edge=0 is {_show(edges[0])}")
 
     p.check("extinction", ds["extinction"].values < 0, "is negative")
     ssa = ds["single_scattering_albedo"].values
@@ -141,7 +147,7 @@ def validate_scene(ds, label="scene"):
     w = np.asarray(ds["solar_weight"].values, dtype=float)
     p.check("solar_weight", w < 0, "is negative")
     if abs(w.sum() - 1.0) > WEIGHT_SUM_TOLERANCE:
-        p.add(f"solar_weight sums to {w.sum()!r}; band solar weights must sum to 1")
+        p.add(f"solar_weight sums to {_show(w.sum())}; band solar weights must sum to 1")
 
     if "liquid_water_content" in ds:
         p.check("liquid_water_content", ds["liquid_water_content"].values < 0, "is negative")
@@ -157,7 +163,8 @@ def validate_scene(ds, label="scene"):
         p.check("air_pressure", pres <= 0, "is not positive")
         if np.any(np.diff(pres) >= 0):
             i = int(np.argmax(np.diff(pres) >= 0)) + 1
-            p.add(f"air_pressure does not decrease with height at z_edge={i}: {pres[i]!r} after {pres[i - 1]!r}")
+            p.add(f"air_pressure does not decrease with height at z_edge={i}: "
+                  f"{_show(pres[i])} after {_show(pres[i - 1])}")
 
     dx = float(ds.attrs["dx_m"]) if not p.items else None
     if dx is not None:
@@ -169,7 +176,7 @@ def validate_scene(ds, label="scene"):
                 if not np.allclose(coord, centres, rtol=1e-9, atol=1e-6 * step):
                     i = int(np.argmax(~np.isclose(coord, centres, rtol=1e-9, atol=1e-6 * step)))
                     p.add(f"{axis} is not a regular grid of cell centres for {attr}={step}: "
-                          f"{axis}={i} is {coord[i]!r}, expected {centres[i]!r}")
+                          f"{axis}={i} is {_show(coord[i])}, expected {_show(centres[i])}")
     p.raise_if_any()
     return ds
 

@@ -88,7 +88,7 @@ def _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy):
 
 
 @njit(cache=True)
-def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub):
+def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
     """Trace the direct beam along slant paths with periodic wrap.
 
     Parameters
@@ -105,6 +105,8 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub):
         Beam direction (uz < 0).
     nsub : int
         Rays per column and axis.
+    czi : int64 (ncz + 1,)
+        Layer-edge indices where the cumulative tables are recorded (block edges).
 
     Returns
     -------
@@ -114,13 +116,23 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub):
         Direct flux reaching the surface per column (fraction of the incident flux).
     source : (nband, nray)
         Scattered plus surface-reflected direct-beam energy per ray.
+    ray_cum, ray_trans : (nband, nray, ncz + 1)
+        Scattered energy above, and direct beam left at, each block edge ``czi[ncz - j]``
+        for ``j = 0 .. ncz`` (from the top down); they let a photon find its starting
+        block without re-tracing the whole ray.
     """
     nb, nz, ny, nx = ext.shape
+    ncz = czi.shape[0] - 1
     nray = nx * ny * nsub * nsub
     wray = 1.0 / (nsub * nsub)
     absorbed = np.zeros((nb, nz, ny, nx))
     surface = np.zeros((nb, ny, nx))
     source = np.zeros((nb, nray))
+    ray_cum = np.zeros((nb, nray, ncz + 1))
+    ray_trans = np.zeros((nb, nray, ncz + 1))
+    edge_slot = np.full(nz + 1, -1, dtype=np.int64)
+    for j in range(ncz + 1):
+        edge_slot[czi[ncz - j]] = j
     trans = np.empty(nb)
     for r in range(nray):
         ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
@@ -128,6 +140,7 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub):
         z = z_edge[nz]
         for b in range(nb):
             trans[b] = wray
+            ray_trans[b, r, 0] = wray
         while True:
             t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
             for b in range(nb):
@@ -142,67 +155,91 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub):
             x += t * ux
             y += t * uy
             z += t * uz
-            if axis == 2 and iz == 0:
-                break
+            if axis == 2:
+                j = edge_slot[iz]
+                if j >= 0:
+                    for b in range(nb):
+                        ray_cum[b, r, j] = source[b, r]
+                        ray_trans[b, r, j] = trans[b]
+                if iz == 0:
+                    break
             x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
             if axis == 2:
                 z = z_edge[iz + 1]
         for b in range(nb):
             surface[b, iy, ix] += trans[b]
             source[b, r] += alb[b, iy, ix] * trans[b]
-    return absorbed, surface, source
+    return absorbed, surface, source, ray_cum, ray_trans
 
 
 @njit(cache=True)
-def locate_source_3d(r, band, target, props, alb, z_edge, dx, dy, ux, uy, uz, nsub, u):
-    """Re-trace ray ``r`` and find where its scattered energy passes ``target``.
+def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsub, u, ssa_g, czi,
+                     ray_cum, ray_trans):
+    """Find where the scattered energy of ray ``r`` passes ``target``.
 
-    ``props`` is the packed float32 (nband, nz, ny, nx, 4) array of the transport kernel.
+    The block holding the point comes from the ray's cumulative tables; only that block
+    is re-traced.  ``kext`` is the float32 extinction (nband, nz, ny, nx) and ``ssa_g``
+    the float32 (nband, nz, ny, nx, 2) single-scattering albedo and asymmetry.
     Returns ``(kind, x, y, z, ix, iy, iz)``: kind 0 is a scattering point in the
     atmosphere (position sampled exactly from the attenuated beam inside the cell,
     using the uniform number ``u``), kind 1 a reflection point on the surface.
     """
-    nz, ny, nx = props.shape[1], props.shape[2], props.shape[3]
-    ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
-    iz = nz - 1
-    z = z_edge[nz]
-    trans = 1.0 / (nsub * nsub)
-    cum = 0.0
-    last_ix, last_iy, last_iz = -1, -1, -1
-    last_x = last_y = last_z = last_t = 0.0
-    while True:
-        t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
-        cellp = props[band, iz, iy, ix]
-        k = float(cellp[0])
-        if k > 0.0:
-            kt = k * t
-            t_out = trans * math.exp(-kt)
-            gain = float(cellp[1]) * (trans - t_out)
-            if gain > 0.0:
-                if cum + gain > target:
-                    if kt < 1e-9:
-                        s = u * t
-                    else:
-                        s = -math.log1p(u * math.expm1(-kt)) / k
-                    s = min(s, t)
-                    return 0, x + s * ux, y + s * uy, z + s * uz, ix, iy, iz
-                cum += gain
-                last_ix, last_iy, last_iz = ix, iy, iz
-                last_x, last_y, last_z, last_t = x, y, z, t
-            trans = t_out
-        x += t * ux
-        y += t * uy
-        z += t * uz
-        if axis == 2 and iz == 0:
-            break
-        x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
-        if axis == 2:
-            z = z_edge[iz + 1]
-    if alb[band, iy, ix] * trans > 0.0 or last_ix < 0:
-        return 1, x, y, 0.0, ix, iy, 0
-    # Round-off left the target just beyond the atmospheric sum: use the last source cell.
-    s = 0.5 * last_t
-    return 0, last_x + s * ux, last_y + s * uy, last_z + s * uz, last_ix, last_iy, last_iz
+    nz, ny, nx = kext.shape[1], kext.shape[2], kext.shape[3]
+    ncz = czi.shape[0] - 1
+    ex, ey, x0, y0 = ray_entry(r, nx, nsub, dx, dy)
+    lx, ly = nx * dx, ny * dy
+    row = ray_cum[band, r]
+    if target < row[ncz]:
+        j = 0
+        while j < ncz - 1 and row[j + 1] <= target:
+            j += 1
+        cz = ncz - 1 - j
+        z = z_edge[czi[cz + 1]]
+        path = (z_edge[nz] - z) / -uz
+        x = (x0 + path * ux) % lx
+        y = (y0 + path * uy) % ly
+        ix = min(int(x / dx), nx - 1)
+        iy = min(int(y / dy), ny - 1)
+        iz = czi[cz + 1] - 1
+        trans = ray_trans[band, r, j]
+        cum = row[j]
+        last_ix, last_iy, last_iz = -1, -1, -1
+        last_x = last_y = last_z = last_t = 0.0
+        while True:
+            t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
+            k = float(kext[band, iz, iy, ix])
+            if k > 0.0:
+                kt = k * t
+                t_out = trans * math.exp(-kt)
+                gain = float(ssa_g[band, iz, iy, ix, 0]) * (trans - t_out)
+                if gain > 0.0:
+                    if cum + gain > target:
+                        if kt < 1e-9:
+                            s = u * t
+                        else:
+                            s = -math.log1p(u * math.expm1(-kt)) / k
+                        s = min(s, t)
+                        return 0, x + s * ux, y + s * uy, z + s * uz, ix, iy, iz
+                    cum += gain
+                    last_ix, last_iy, last_iz = ix, iy, iz
+                    last_x, last_y, last_z, last_t = x, y, z, t
+                trans = t_out
+            x += t * ux
+            y += t * uy
+            z += t * uz
+            if axis == 2 and iz == 0:
+                break
+            x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
+            if axis == 2:
+                z = z_edge[iz + 1]
+        if last_ix >= 0:
+            # Round-off left the target just beyond the block's sum: use the last source cell.
+            s = 0.5 * last_t
+            return 0, last_x + s * ux, last_y + s * uy, last_z + s * uz, last_ix, last_iy, last_iz
+    path = z_edge[nz] / -uz
+    x = (x0 + path * ux) % lx
+    y = (y0 + path * uy) % ly
+    return 1, x, y, 0.0, min(int(x / dx), nx - 1), min(int(y / dy), ny - 1), 0
 
 
 @njit(cache=True)

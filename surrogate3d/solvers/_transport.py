@@ -87,137 +87,256 @@ def _cell_index(pos, step, lo, hi):
     return i
 
 
-@njit(cache=True)
-def transport_3d(state, b, w, x, y, z, ux, uy, uz, props, alb, z_edge, dx, dy,
-                 kmaj, cxe, cye, czi, bx, by, z_to_cz, iz0, thresh, max_events, col, cell):
-    """Trace one photon in 3D from (x, y, z) in fine layer ``iz0``; returns its scattering events.
+@njit(cache=True, inline="always")
+def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell):
+    """Absorption (by weight, or roulette at low weight) and Henyey-Greenstein scattering.
 
-    ``props`` is float32 (nband, nz, ny, nx, 4) holding extinction, single-scattering
-    albedo and asymmetry per cell (packed so that one cache line serves a collision).
+    Returns ``(alive, w, ux, uy, uz)``.
     """
-    nb, nz, ny, nx = props.shape[0], props.shape[1], props.shape[2], props.shape[3]
+    if w >= thresh:
+        a = w * (1.0 - om)
+        cell[iz, iy, ix] += a
+        col[b, ATM_ABS, iy, ix] += a
+        w -= a
+        if w <= 0.0:
+            return False, w, ux, uy, uz
+    elif uniform(state) >= om:
+        cell[iz, iy, ix] += w
+        col[b, ATM_ABS, iy, ix] += w
+        return False, w, ux, uy, uz
+    if events >= max_events:
+        cell[iz, iy, ix] += w
+        col[b, ATM_ABS, iy, ix] += w
+        return False, w, ux, uy, uz
+    mu = hg_cosine(g, uniform(state))
+    ux, uy, uz = rotate(ux, uy, uz, mu, TWO_PI * uniform(state))
+    return True, w, ux, uy, _not_flat(uz)
+
+
+@njit(cache=True, inline="always")
+def _surface(state, w, b, iy, ix, thresh, alb, col):
+    """Diffuse arrival at the Lambertian surface: tally, absorb, reflect.  Returns ``(alive, w)``."""
+    col[b, SFC_DOWN, iy, ix] += w
+    albedo = alb[b, iy, ix]
+    if w >= thresh:
+        a = w * (1.0 - albedo)
+        col[b, SFC_ABS, iy, ix] += a
+        w -= a
+        if w <= 0.0:
+            return False, w
+    elif uniform(state) >= albedo:
+        col[b, SFC_ABS, iy, ix] += w
+        return False, w
+    col[b, SFC_UP, iy, ix] += w
+    return True, w
+
+
+@njit(cache=True)
+def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy,
+                 kmaj, exact, bx, by, czi, z_to_cz, iz, thresh, max_events, col, cell):
+    """Trace one photon in 3D from (x, y, z) in fine layer ``iz``; returns its scattering events.
+
+    ``kext`` is the float32 extinction (nband, nz, ny, nx), kept apart from the float32
+    (nband, nz, ny, nx, 2) single-scattering albedo and asymmetry ``ssa_g`` that only
+    collisions need, so that tracking touches as little memory as possible.
+    The grid is covered by blocks of ``bx x by`` cells and the layers ``czi[c]`` to
+    ``czi[c+1] - 1``.  In blocks flagged ``exact`` the photon walks the cells one by one;
+    elsewhere it is tracked against the block's majorant ``kmaj`` with null collisions
+    (optically thin or nearly uniform blocks, such as clear air, are crossed in one step).
+    """
+    nz, ny, nx = kext.shape[1], kext.shape[2], kext.shape[3]
     ncz, ncy, ncx = kmaj.shape[1], kmaj.shape[2], kmaj.shape[3]
-    cx = min(int(x / dx), nx - 1) // bx
-    cy = min(int(y / dy), ny - 1) // by
-    cz = z_to_cz[iz0]
+    ix = min(int(x / dx), nx - 1)
+    iy = min(int(y / dy), ny - 1)
+    cx, cy, cz = ix // bx, iy // by, z_to_cz[iz]
     events = 0
     uz = _not_flat(uz)
     tau = -math.log(uniform_open(state))
     while True:
-        tx = math.inf
-        if ux > 0.0:
-            tx = (cxe[cx + 1] - x) / ux
-        elif ux < 0.0:
-            tx = (cxe[cx] - x) / ux
-        ty = math.inf
-        if uy > 0.0:
-            ty = (cye[cy + 1] - y) / uy
-        elif uy < 0.0:
-            ty = (cye[cy] - y) / uy
-        if uz > 0.0:
-            tz = (z_edge[czi[cz + 1]] - z) / uz
+        ix_lo, iy_lo, iz_lo = cx * bx, cy * by, czi[cz]
+        ix_hi, iy_hi, iz_hi = min(ix_lo + bx, nx) - 1, min(iy_lo + by, ny) - 1, czi[cz + 1] - 1
+        # --- walk to the block's boundary, colliding on the way; axis/direction of the exit face
+        if exact[b, cz, cy, cx]:
+            leave = False
+            while not leave:  # one straight flight per pass; distances are along the ray from (x, y, z)
+                if ux > 0.0:
+                    fx, step_x = ((ix + 1) * dx - x) / ux, dx / ux
+                elif ux < 0.0:
+                    fx, step_x = (ix * dx - x) / ux, -dx / ux
+                else:
+                    fx, step_x = math.inf, math.inf
+                if uy > 0.0:
+                    fy, step_y = ((iy + 1) * dy - y) / uy, dy / uy
+                elif uy < 0.0:
+                    fy, step_y = (iy * dy - y) / uy, -dy / uy
+                else:
+                    fy, step_y = math.inf, math.inf
+                inv_uz = 1.0 / uz
+                fz = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) * inv_uz
+                s = 0.0
+                while True:
+                    if fx <= fy and fx <= fz:
+                        face, axis = fx, 0
+                    elif fy <= fz:
+                        face, axis = fy, 1
+                    else:
+                        face, axis = fz, 2
+                    k = kext[b, iz, iy, ix]
+                    t = max(face - s, 0.0)
+                    if k * t > tau:
+                        s += tau / k
+                        x += s * ux
+                        y += s * uy
+                        z += s * uz
+                        tau = -math.log(uniform_open(state))
+                        events += 1
+                        alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
+                                                        iz, iy, ix, b, thresh, events, max_events, ux, uy, uz,
+                                                        col, cell)
+                        if not alive:
+                            return events
+                        break
+                    tau -= k * t
+                    s = face
+                    if axis == 0:
+                        fx += step_x
+                        if ux > 0.0:
+                            ix += 1
+                            leave = ix > ix_hi
+                        else:
+                            ix -= 1
+                            leave = ix < ix_lo
+                    elif axis == 1:
+                        fy += step_y
+                        if uy > 0.0:
+                            iy += 1
+                            leave = iy > iy_hi
+                        else:
+                            iy -= 1
+                            leave = iy < iy_lo
+                    else:
+                        if uz > 0.0:
+                            iz += 1
+                            leave = iz > iz_hi
+                            if not leave:
+                                fz += (z_edge[iz + 1] - z_edge[iz]) * inv_uz
+                        else:
+                            iz -= 1
+                            leave = iz < iz_lo
+                            if not leave:
+                                fz -= (z_edge[iz + 1] - z_edge[iz]) * inv_uz
+                    if leave:
+                        x += s * ux
+                        y += s * uy
+                        z += s * uz
+                        # Snap onto the face crossed, so that the next block starts exactly there.
+                        if axis == 0:
+                            x = ix * dx if ux > 0.0 else (ix + 1) * dx
+                        elif axis == 1:
+                            y = iy * dy if uy > 0.0 else (iy + 1) * dy
+                        else:
+                            z = z_edge[iz] if uz > 0.0 else z_edge[iz + 1]
+                        break
         else:
-            tz = (z_edge[czi[cz]] - z) / uz
-        if tx <= ty and tx <= tz:
-            t, axis = max(tx, 0.0), 0
-        elif ty <= tz:
-            t, axis = max(ty, 0.0), 1
-        else:
-            t, axis = max(tz, 0.0), 2
-        k = kmaj[b, cz, cy, cx]
-        if k * t > tau:
-            s = tau / k
-            x += s * ux
-            y += s * uy
-            z += s * uz
-            tau = -math.log(uniform_open(state))
-            ix = _cell_index(x, dx, cx * bx, min((cx + 1) * bx, nx) - 1)
-            iy = _cell_index(y, dy, cy * by, min((cy + 1) * by, ny) - 1)
-            iz = czi[cz]
-            while iz < czi[cz + 1] - 1 and z >= z_edge[iz + 1]:
-                iz += 1
-            cellp = props[b, iz, iy, ix]
-            kf = cellp[0]
-            if kf < k and uniform(state) * k >= kf:
-                continue  # null collision
-            events += 1
-            om = cellp[1]
-            if w >= thresh:
-                a = w * (1.0 - om)
-                cell[iz, iy, ix] += a
-                col[b, ATM_ABS, iy, ix] += a
-                w -= a
-                if w <= 0.0:
-                    return events
-            elif uniform(state) >= om:
-                cell[iz, iy, ix] += w
-                col[b, ATM_ABS, iy, ix] += w
-                return events
-            if events >= max_events:
-                cell[iz, iy, ix] += w
-                col[b, ATM_ABS, iy, ix] += w
-                return events
-            mu = hg_cosine(cellp[2], uniform(state))
-            ux, uy, uz = rotate(ux, uy, uz, mu, TWO_PI * uniform(state))
-            uz = _not_flat(uz)
-            continue
-        tau -= k * t
-        if axis == 0:
-            y += t * uy
-            z += t * uz
-            if ux > 0.0:
-                cx += 1
-                if cx == ncx:
-                    cx = 0
-                x = cxe[cx]
-            else:
-                cx -= 1
-                if cx < 0:
-                    cx = ncx - 1
-                x = cxe[cx + 1]
-        elif axis == 1:
-            x += t * ux
-            z += t * uz
-            if uy > 0.0:
-                cy += 1
-                if cy == ncy:
-                    cy = 0
-                y = cye[cy]
-            else:
-                cy -= 1
-                if cy < 0:
-                    cy = ncy - 1
-                y = cye[cy + 1]
-        else:
-            x += t * ux
-            y += t * uy
-            ix = _cell_index(x, dx, cx * bx, min((cx + 1) * bx, nx) - 1)
-            iy = _cell_index(y, dy, cy * by, min((cy + 1) * by, ny) - 1)
-            if uz > 0.0:
-                if cz == ncz - 1:
-                    col[b, TOA_UP, iy, ix] += w
-                    return events
-                cz += 1
-                z = z_edge[czi[cz]]
-            elif cz > 0:
-                cz -= 1
-                z = z_edge[czi[cz + 1]]
-            else:
-                z = z_edge[0]
-                col[b, SFC_DOWN, iy, ix] += w
-                albedo = alb[b, iy, ix]
-                if w >= thresh:
-                    a = w * (1.0 - albedo)
-                    col[b, SFC_ABS, iy, ix] += a
-                    w -= a
-                    if w <= 0.0:
+            k = kmaj[b, cz, cy, cx]
+            while True:
+                tx = math.inf
+                if ux > 0.0:
+                    tx = ((ix_hi + 1) * dx - x) / ux
+                elif ux < 0.0:
+                    tx = (ix_lo * dx - x) / ux
+                ty = math.inf
+                if uy > 0.0:
+                    ty = ((iy_hi + 1) * dy - y) / uy
+                elif uy < 0.0:
+                    ty = (iy_lo * dy - y) / uy
+                if uz > 0.0:
+                    tz = (z_edge[iz_hi + 1] - z) / uz
+                else:
+                    tz = (z_edge[iz_lo] - z) / uz
+                if tx <= ty and tx <= tz:
+                    t, axis = max(tx, 0.0), 0
+                elif ty <= tz:
+                    t, axis = max(ty, 0.0), 1
+                else:
+                    t, axis = max(tz, 0.0), 2
+                if k * t > tau:
+                    s = tau / k
+                    x += s * ux
+                    y += s * uy
+                    z += s * uz
+                    tau = -math.log(uniform_open(state))
+                    ix = _cell_index(x, dx, ix_lo, ix_hi)
+                    iy = _cell_index(y, dy, iy_lo, iy_hi)
+                    iz = iz_lo
+                    while iz < iz_hi and z >= z_edge[iz + 1]:
+                        iz += 1
+                    kf = kext[b, iz, iy, ix]
+                    if kf < k and uniform(state) * k >= kf:
+                        continue  # null collision
+                    events += 1
+                    alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
+                                                    iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell)
+                    if not alive:
                         return events
-                elif uniform(state) >= albedo:
-                    col[b, SFC_ABS, iy, ix] += w
-                    return events
-                col[b, SFC_UP, iy, ix] += w
-                ux, uy, uz = lambertian_up(state)
-                tau = -math.log(uniform_open(state))
+                    continue
+                tau -= k * t
+                x += t * ux
+                y += t * uy
+                z += t * uz
+                if axis == 0:
+                    if ux > 0.0:
+                        ix = ix_hi + 1
+                        x = ix * dx
+                    else:
+                        ix = ix_lo - 1
+                        x = ix_lo * dx
+                    iy = _cell_index(y, dy, iy_lo, iy_hi)
+                    iz = iz_lo
+                    while iz < iz_hi and z >= z_edge[iz + 1]:
+                        iz += 1
+                elif axis == 1:
+                    if uy > 0.0:
+                        iy = iy_hi + 1
+                        y = iy * dy
+                    else:
+                        iy = iy_lo - 1
+                        y = iy_lo * dy
+                    ix = _cell_index(x, dx, ix_lo, ix_hi)
+                    iz = iz_lo
+                    while iz < iz_hi and z >= z_edge[iz + 1]:
+                        iz += 1
+                else:
+                    if uz > 0.0:
+                        iz = iz_hi + 1
+                        z = z_edge[iz]
+                    else:
+                        iz = iz_lo - 1
+                        z = z_edge[iz_lo]
+                    ix = _cell_index(x, dx, ix_lo, ix_hi)
+                    iy = _cell_index(y, dy, iy_lo, iy_hi)
+                break
+        # --- the photon is on a face of its block: wrap, leave at the top, or meet the surface
+        if ix == nx:
+            ix, x = 0, 0.0
+        elif ix < 0:
+            ix, x = nx - 1, nx * dx
+        if iy == ny:
+            iy, y = 0, 0.0
+        elif iy < 0:
+            iy, y = ny - 1, ny * dy
+        if iz == nz:
+            col[b, TOA_UP, iy, ix] += w
+            return events
+        if iz < 0:
+            iz = 0
+            z = z_edge[0]
+            alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
+            if not alive:
+                return events
+            ux, uy, uz = lambertian_up(state)
+            tau = -math.log(uniform_open(state))
+        cx, cy, cz = ix // bx, iy // by, z_to_cz[iz]
 
 
 @njit(cache=True)
@@ -238,30 +357,16 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
         else:
             t = (z_edge[iz] - z) / uz
         t = max(t, 0.0)
-        k = column[iz, 0]
+        cellp = column[iz]
+        k = cellp[0]
         if k * t > tau:
             z += (tau / k) * uz
             tau = -math.log(uniform_open(state))
             events += 1
-            om = column[iz, 1]
-            if w >= thresh:
-                a = w * (1.0 - om)
-                cell[iz, iy, ix] += a
-                col[b, ATM_ABS, iy, ix] += a
-                w -= a
-                if w <= 0.0:
-                    return events
-            elif uniform(state) >= om:
-                cell[iz, iy, ix] += w
-                col[b, ATM_ABS, iy, ix] += w
+            alive, w, ux, uy, uz = _collide(state, w, cellp[1], cellp[2], iz, iy, ix, b, thresh, events,
+                                            max_events, ux, uy, uz, col, cell)
+            if not alive:
                 return events
-            if events >= max_events:
-                cell[iz, iy, ix] += w
-                col[b, ATM_ABS, iy, ix] += w
-                return events
-            mu = hg_cosine(column[iz, 2], uniform(state))
-            ux, uy, uz = rotate(ux, uy, uz, mu, TWO_PI * uniform(state))
-            uz = _not_flat(uz)
             continue
         tau -= k * t
         if uz > 0.0:
@@ -275,30 +380,22 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             z = z_edge[iz + 1]
         else:
             z = z_edge[0]
-            col[b, SFC_DOWN, iy, ix] += w
-            albedo = alb[b, iy, ix]
-            if w >= thresh:
-                a = w * (1.0 - albedo)
-                col[b, SFC_ABS, iy, ix] += a
-                w -= a
-                if w <= 0.0:
-                    return events
-            elif uniform(state) >= albedo:
-                col[b, SFC_ABS, iy, ix] += w
+            alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
+            if not alive:
                 return events
-            col[b, SFC_UP, iy, ix] += w
             ux, uy, uz = lambertian_up(state)
             tau = -math.log(uniform_open(state))
 
 
 @njit(cache=True)
-def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, props, alb, z_edge,
-               dx, dy, ux0, uy0, uz0, nsub, kmaj, cxe, cye, czi, bx, by, z_to_cz, roulette, max_events,
-               col, cell):
+def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
+               z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj, exact, czi, bx, by, z_to_cz, ray_cum, ray_trans,
+               roulette, max_events, col, cell):
     """Trace one batch of photons into the slot tallies ``col`` and ``cell``; returns events.
 
-    ``props`` has the 3D layout (nband, nz, ny, nx, 4) when ``full_3d``, else the column
-    layout (nband, ny, nx, nz, 4).
+    3D tracing uses ``kext`` and ``ssa_g`` (see :func:`transport_3d`); independent-column
+    tracing uses ``column_props``, float32 (nband, ny, nx, nz, 4) with each column's
+    extinction, single-scattering albedo and asymmetry contiguous.
     """
     nx = alb.shape[2]
     state = np.empty(4, dtype=np.uint64)
@@ -319,35 +416,35 @@ def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, props,
         target = (u - below) / band_weight[b]
         v = uniform(state)
         if full_3d:
-            kind, x, y, z, ix, iy, iz = locate_source_3d(r, b, target, props, alb, z_edge, dx, dy,
-                                                         ux0, uy0, uz0, nsub, v)
+            kind, x, y, z, ix, iy, iz = locate_source_3d(r, b, target, kext, alb, z_edge, dx, dy, ux0, uy0, uz0,
+                                                         nsub, v, ssa_g, czi, ray_cum, ray_trans)
             if kind == 0:
                 events += 1
-                mu = hg_cosine(props[b, iz, iy, ix, 2], uniform(state))
+                mu = hg_cosine(ssa_g[b, iz, iy, ix, 1], uniform(state))
                 ux, uy, uz = rotate(ux0, uy0, uz0, mu, TWO_PI * uniform(state))
             else:
                 ux, uy, uz = lambertian_up(state)
-            events += transport_3d(state, b, w, x, y, z, ux, uy, uz, props, alb, z_edge, dx, dy,
-                                   kmaj, cxe, cye, czi, bx, by, z_to_cz, iz, thresh, max_events, col, cell)
+            events += transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy,
+                                   kmaj, exact, bx, by, czi, z_to_cz, iz, thresh, max_events, col, cell)
         else:
-            kind, z, iz = locate_source_column(r, b, target, props, alb, z_edge, mu0, v)
+            kind, z, iz = locate_source_column(r, b, target, column_props, alb, z_edge, mu0, v)
             ix = r % nx
             iy = r // nx
             if kind == 0:
                 events += 1
-                mu = hg_cosine(props[b, iy, ix, iz, 2], uniform(state))
+                mu = hg_cosine(column_props[b, iy, ix, iz, 2], uniform(state))
                 ux, uy, uz = rotate(ux0, uy0, uz0, mu, TWO_PI * uniform(state))
             else:
                 ux, uy, uz = lambertian_up(state)
-            events += transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
+            events += transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, column_props, alb, z_edge,
                                        thresh, max_events, col, cell)
     return events
 
 
 @njit(cache=True, parallel=True)
 def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, nrays,
-                props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj, cxe, cye, czi, bx, by,
-                z_to_cz, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum):
+                kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj, exact, czi, bx, by,
+                z_to_cz, ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum):
     """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to the sums.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
@@ -374,9 +471,9 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
             col_slots[i, :, :, :, :] = 0.0
             cell_slots[i, :, :, :] = 0.0
             slot_events[i] = _run_batch(start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
-                                        props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj,
-                                        cxe, cye, czi, bx, by, z_to_cz, roulette, max_events,
-                                        col_slots[i], cell_slots[i])
+                                        kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
+                                        kmaj, exact, czi, bx, by, z_to_cz, ray_cum, ray_trans, roulette,
+                                        max_events, col_slots[i], cell_slots[i])
         for i in range(n):
             cs = col_slots[i].reshape(nb, ncol)
             for j in range(ncol):

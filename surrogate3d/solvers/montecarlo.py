@@ -55,8 +55,12 @@ def default_batch_size(photons):
     return int(min(50_000, max(1_000, math.ceil(photons / 32))))
 
 
-def majorant_grid(ext, block):
-    """Block-wise maximum extinction for null-collision tracking.
+def majorant_grid(ext, block, z_edge, dx, dy):
+    """Blocks of cells for the tracking: a majorant per block and a flag where cells are walked.
+
+    In an optically thin or nearly uniform block (clear air) null-collision tracking against
+    the block's largest extinction crosses the block in one step with few null collisions;
+    where a block mixes cloud and clear air the photon walks its cells one by one instead.
 
     Parameters
     ----------
@@ -64,10 +68,17 @@ def majorant_grid(ext, block):
         Extinction [m-1].
     block : (int, int, int)
         Block size in cells along x, y and z.
+    z_edge : ndarray (nz + 1,)
+        Layer edges [m].
+    dx, dy : float
+        Cell size [m].
 
     Returns
     -------
-    kmaj : (nband, ncz, ncy, ncx)
+    kmaj : float64 (nband, ncz, ncy, ncx)
+        Largest extinction in each block [m-1].
+    exact : bool (nband, ncz, ncy, ncx)
+        True where the photon walks the cells of the block.
     czi : int64 (ncz + 1,)
         Fine layer index of each block edge in z.
     z_to_cz : int64 (nz,)
@@ -78,9 +89,18 @@ def majorant_grid(ext, block):
     ncx, ncy, ncz = -(-nx // bx), -(-ny // by), -(-nz // bz)
     padded = np.zeros((nb, ncz * bz, ncy * by, ncx * bx))
     padded[:, :nz, :ny, :nx] = ext
-    kmaj = padded.reshape(nb, ncz, bz, ncy, by, ncx, bx).max(axis=(2, 4, 6))
+    blocks = padded.reshape(nb, ncz, bz, ncy, by, ncx, bx)
+    kmaj = blocks.max(axis=(2, 4, 6))
+    padded[:, nz:], padded[:, :, ny:], padded[:, :, :, nx:] = np.inf, np.inf, np.inf
+    kmin = padded.reshape(blocks.shape).min(axis=(2, 4, 6))
     czi = np.minimum(np.arange(ncz + 1) * bz, nz).astype(np.int64)
-    return np.ascontiguousarray(kmaj), czi, (np.arange(nz) // bz).astype(np.int64)
+    height = np.diff(z_edge[czi])[None, :, None, None]
+    size = np.sqrt((bx * dx) ** 2 + (by * dy) ** 2 + height**2)
+    cell = min(dx, dy, float(np.diff(z_edge).min()))
+    # Null-collision tracking costs a memory access per candidate, cell walking one per cell:
+    # track against the majorant where candidates are rarer than cells, or mostly real.
+    cheap = (kmaj * size <= 0.2) | (kmaj * cell <= 0.5) | (kmin >= 0.75 * kmaj)
+    return np.ascontiguousarray(kmaj), np.ascontiguousarray(~cheap), czi, (np.arange(nz) // bz).astype(np.int64)
 
 
 def direct_beam_column(ext, ssa, alb, z_edge, mu0):
@@ -100,17 +120,23 @@ def direct_beam_column(ext, ssa, alb, z_edge, mu0):
     return absorbed, surface, source.reshape(nb, ny * nx)
 
 
-def packed_properties(ext, ssa, asym, column_layout):
-    """Pack extinction, single-scattering albedo and asymmetry into float32 cells of 4.
+def tracking_arrays(ext, ssa, asym, independent_columns):
+    """The float32 arrays the kernels trace with.
 
-    Returns (nband, nz, ny, nx, 4) for 3D tracing, or (nband, ny, nx, nz, 4) with each
-    column's layers contiguous for independent-column tracing.
+    Returns ``(kext, ssa_g, column_props)``: for 3D tracing the extinction (nband, nz, ny,
+    nx) apart from the (…, 2) single-scattering albedo and asymmetry, so that tracking
+    touches little memory; for independent columns (nband, ny, nx, nz, 4) with each
+    column's properties contiguous.  Arrays of the other mode are empty placeholders.
     """
-    props = np.zeros(ext.shape + (4,), dtype=np.float32)
-    props[..., 0], props[..., 1], props[..., 2] = ext, ssa, asym
-    if column_layout:
-        props = props.transpose(0, 2, 3, 1, 4)
-    return np.ascontiguousarray(props)
+    nb = ext.shape[0]
+    if independent_columns:
+        props = np.zeros(ext.shape + (4,), dtype=np.float32)
+        props[..., 0], props[..., 1], props[..., 2] = ext, ssa, asym
+        column = np.ascontiguousarray(props.transpose(0, 2, 3, 1, 4))
+        return np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1, 2), np.float32), column
+    ssa_g = np.empty(ext.shape + (2,), dtype=np.float32)
+    ssa_g[..., 0], ssa_g[..., 1] = ssa, asym
+    return np.ascontiguousarray(ext, dtype=np.float32), ssa_g, np.zeros((nb, 1, 1, 1, 4), np.float32)
 
 
 def _arrays(scene):
@@ -127,7 +153,7 @@ def _arrays(scene):
 
 
 def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=1_000_000, seed=0,
-                      independent_columns=False, batch_size=None, rays_per_column=3, threads=None,
+                      independent_columns=False, batch_size=None, rays_per_column=2, threads=None,
                       per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=DEFAULT_MAJORANT_BLOCK,
                       roulette_weight=0.1, max_scattering_events=100_000, progress=None):
     """Broadband (and per-band) solar fluxes of a scene by Monte Carlo.
@@ -217,24 +243,22 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     ux, uy, uz = beam_direction(zenith, azimuth)
     mu0 = -uz
 
+    kext, ssa_g, column_props = tracking_arrays(ext, ssa, asym, independent_columns)
     if independent_columns:
         absorbed, surface, source = direct_beam_column(ext, ssa, alb, z_edge, mu0)
         nsub_used = 1
+        kmaj, exact = np.zeros((nb, 1, 1, 1)), np.zeros((nb, 1, 1, 1), dtype=bool)
+        czi, z_to_cz, bx, by = np.zeros(2, np.int64), np.zeros(nz, np.int64), 1, 1
+        ray_cum = ray_trans = np.zeros((nb, 1, 1))
     else:
-        absorbed, surface, source = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub)
+        kmaj, exact, czi, z_to_cz = majorant_grid(ext, block, z_edge, dx, dy)
+        bx, by = block[0], block[1]
+        absorbed, surface, source, ray_cum, ray_trans = _geometry.direct_beam_3d(
+            ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi)
         nsub_used = nsub
     nrays = source.shape[1]
     safe_w = np.where(weights > 0, weights, 1.0)
     cdf = np.cumsum((source * weights[:, None]).reshape(-1))
-    props = packed_properties(ext, ssa, asym, column_layout=independent_columns)
-    if independent_columns:
-        kmaj, czi, z_to_cz, bx, by = np.zeros((nb, 1, 1, 1)), np.zeros(2, np.int64), np.zeros(nz, np.int64), 1, 1
-        cxe = cye = np.zeros(2)
-    else:
-        kmaj, czi, z_to_cz = majorant_grid(ext, block)
-        bx, by = block[0], block[1]
-        cxe = np.minimum(np.arange(kmaj.shape[3] + 1) * bx, nx) * dx
-        cye = np.minimum(np.arange(kmaj.shape[2] + 1) * by, ny) * dy
 
     n_batches = max(2, -(-photons // batch_size))
     col_sum = np.zeros((nb, _transport.N_TALLIES, ny, nx))
@@ -254,8 +278,9 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                 n = min(chunk, n_batches - first)
                 events += _transport.run_batches(
                     first, n, WAVE, not independent_columns, seed, batch_size, cdf, safe_w, nrays,
-                    props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, kmaj, cxe, cye, czi, bx, by,
-                    z_to_cz, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum)
+                    kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, kmaj, exact, czi,
+                    bx, by, z_to_cz, ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq,
+                    cell_sum)
                 if progress is not None:
                     progress((first + n) * batch_size)
         finally:

@@ -96,12 +96,12 @@ def test_direct_beam_conserves_energy_and_lands_where_geometry_says():
     z_edge = np.array([0.0, 100.0, 250.0, 300.0, 600.0, 1000.0])
     theta, phi = math.radians(50), math.radians(35)
     u = (math.sin(theta) * math.cos(phi), math.sin(theta) * math.sin(phi), -math.cos(theta))
-    absorbed, surface, source = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, 100.0, 80.0, *u, 2)
+    absorbed, surface, source = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, 100.0, 80.0, *u, 2, np.array([0, ext.shape[1]]))[:3]
     # Conservation: absorbed + scattered + transmitted = incident (one unit per column), exactly.
     scattered = source.sum(axis=1) - 0.3 * surface.sum(axis=(1, 2))
     np.testing.assert_allclose(absorbed.sum(axis=(1, 2, 3)) + scattered + surface.sum(axis=(1, 2)), 24, rtol=1e-13)
     # Without extinction every column receives exactly its incident flux (a translated lattice of rays).
-    _, clear, _ = _geometry.direct_beam_3d(np.zeros_like(ext), ssa, alb, z_edge, 100.0, 80.0, *u, 3)
+    _, clear, _ = _geometry.direct_beam_3d(np.zeros_like(ext), ssa, alb, z_edge, 100.0, 80.0, *u, 3, np.array([0, ext.shape[1]]))[:3]
     np.testing.assert_allclose(clear, 1.0, rtol=1e-13)
 
 
@@ -119,7 +119,7 @@ def test_direct_beam_transmission_equals_beer_lambert_per_ray():
     z_edge = np.array([0.0, 200.0, 400.0, 700.0, 900.0])
     theta, phi = math.radians(40), math.radians(200)
     u = (math.sin(theta) * math.cos(phi), math.sin(theta) * math.sin(phi), -math.cos(theta))
-    _, surface, source = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, 100.0, 100.0, *u, 1)
+    _, surface, source = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, 100.0, 100.0, *u, 1, np.array([0, ext.shape[1]]))[:3]
     for r in range(9):
         ix, iy, x0, y0 = _geometry.ray_entry(r, 3, 1, 100.0, 100.0)
         tau = _brute_force_tau(ext, z_edge, 100.0, 100.0, x0, y0, u, n=400000)[0]
@@ -127,3 +127,34 @@ def test_direct_beam_transmission_equals_beer_lambert_per_ray():
         assert abs(source[0, r] - (1 - math.exp(-tau))) < 2e-5
         lx, ly = _brute_force_landing(x0, y0, u, z_edge[-1], 100.0, 100.0, 3, 3)
         assert surface[0, ly, lx] > 0
+
+
+def test_sampled_first_scatter_points_follow_the_direct_beam_source():
+    # The photons' starting cells must be distributed like the energy the direct beam
+    # scatters in each cell (importance sampling of the first-order source; common practice).
+    rng = np.random.default_rng(2)
+    ext = rng.uniform(0, 0.006, size=(1, 6, 3, 4))
+    ssa = rng.uniform(0.3, 1.0, size=ext.shape)
+    alb = np.full((1, 3, 4), 0.4)
+    z_edge = np.linspace(0, 1200.0, 7)
+    czi = np.array([0, 2, 4, 6])
+    theta, phi = math.radians(35), math.radians(120)
+    u = (math.sin(theta) * math.cos(phi), math.sin(theta) * math.sin(phi), -math.cos(theta))
+    removed = _geometry.direct_beam_3d(ext, np.zeros_like(ssa), alb, z_edge, 100.0, 100.0, *u, 2, czi)[0]
+    _, surface, source, cum, trans = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, 100.0, 100.0, *u, 2, czi)
+    expected = np.concatenate([(ssa * removed).ravel(), (alb * surface).ravel()])
+    kext = ext.astype(np.float32)
+    ssa_g = np.stack([ssa, np.zeros_like(ssa)], axis=-1).astype(np.float32)
+    cdf = np.cumsum(source[0])
+    counts = np.zeros(expected.size)
+    n = 40000
+    for i in range(n):
+        target = (i + 0.5) / n * cdf[-1]
+        r = int(np.searchsorted(cdf, target, side="right"))
+        below = cdf[r - 1] if r else 0.0
+        kind, x, y, z, ix, iy, iz = _geometry.locate_source_3d(
+            r, 0, target - below, kext, alb, z_edge, 100.0, 100.0, *u, 2, rng.random(), ssa_g, czi, cum, trans)
+        counts[(iz * 3 + iy) * 4 + ix if kind == 0 else ext[0].size + iy * 4 + ix] += 1
+        if kind == 0:
+            assert z_edge[iz] - 1e-9 <= z <= z_edge[iz + 1] + 1e-9
+    np.testing.assert_allclose(counts / n, expected / expected.sum(), atol=3e-3)

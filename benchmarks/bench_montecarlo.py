@@ -1,0 +1,123 @@
+"""Speed and accuracy of the 3D Monte Carlo solver on the shared benchmark scene.
+
+Reads ``../shared/bench/bench_cumulus_128.nc`` (128 x 128 x 40 cells of 100 m, one band,
+surface albedo and sun angles in its attributes), converts it to the archive format and
+prints: photons/s and scattering events/s per core, the parallel speed-up on all cores,
+peak memory against the scene's own arrays, the domain-mean reflected, direct and diffuse
+surface fluxes, and the CPU seconds needed for a 0.5 % standard error of the surface
+downward flux averaged over 800 m host columns (8 x 8 cells), estimated from the spread
+of independent runs.
+
+Usage: python benchmarks/bench_montecarlo.py [--photons N] [--runs K] [--json FILE]
+"""
+
+import argparse
+import json
+import resource
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from surrogate3d.archive import read_scene, write_scene
+from surrogate3d.scenes import make_scene
+from surrogate3d.solvers import solve_monte_carlo
+
+SHARED = Path(__file__).resolve().parents[2] / "shared" / "bench" / "bench_cumulus_128.nc"
+
+
+def convert(path):
+    """The shared scene in the archive format (its azimuth convention already matches ours)."""
+    with xr.open_dataset(path) as ds:
+        ds = ds.load()
+    scene = make_scene(ds["extinction"].values[None], ds["single_scattering_albedo"].values[None],
+                       ds["asymmetry_parameter"].values[None], ds["z_edges"].values, ds.attrs["dx_m"],
+                       ds.attrs["dy_m"], surface_albedo=ds.attrs["surface_albedo"], band=["broadband"],
+                       attrs={"regime": "shared_benchmark_cumulus", "seed": 7})
+    return scene, float(ds.attrs["solar_zenith_angle_deg"]), float(ds.attrs["solar_azimuth_deg"])
+
+
+def timed(scene, zenith, azimuth, photons, seed, threads):
+    t_cpu, t_wall = time.process_time(), time.perf_counter()
+    out = solve_monte_carlo(scene, zenith, azimuth, photons=photons, seed=seed, threads=threads)
+    return out, time.process_time() - t_cpu, time.perf_counter() - t_wall
+
+
+def host_means(field, factor=8):
+    ny, nx = field.shape
+    return field.reshape(ny // factor, factor, nx // factor, factor).mean(axis=(1, 3))
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--scene", default=str(SHARED))
+    parser.add_argument("--photons", type=int, default=1_000_000)
+    parser.add_argument("--runs", type=int, default=6, help="independent runs for the noise estimate")
+    parser.add_argument("--json", metavar="FILE")
+    args = parser.parse_args(argv)
+
+    scene, zenith, azimuth = convert(args.scene)
+    with tempfile.TemporaryDirectory() as tmp:
+        write_scene(scene, Path(tmp) / "bench_cumulus_128.nc")
+        scene = read_scene(Path(tmp) / "bench_cumulus_128.nc")
+    scene_bytes = sum(scene[v].values.nbytes for v in ("extinction", "single_scattering_albedo",
+                                                         "asymmetry_parameter"))
+    solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1)  # compile / load cache
+    rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+
+    one, cpu1, wall1 = timed(scene, zenith, azimuth, args.photons, 1, threads=1)
+    import numba
+
+    cores = numba.config.NUMBA_NUM_THREADS
+    many, cpu_n, wall_n = timed(scene, zenith, azimuth, args.photons, 1, threads=cores)
+    assert np.array_equal(one.toa_upward_flux.values, many.toa_upward_flux.values)
+    photons = int(one.photons)
+    events = int(one.scattering_events)
+    rss_after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+
+    down = []
+    run_cpu = []
+    for k in range(args.runs):
+        out, cpu, _ = timed(scene, zenith, azimuth, args.photons, 100 + k, threads=1)
+        down.append(host_means(out.surface_downward_direct_flux.values + out.surface_downward_diffuse_flux.values))
+        run_cpu.append(cpu)
+    down = np.array(down)
+    rel_se = down.std(axis=0, ddof=1) / down.mean(axis=0)
+    rel_se_median = float(np.median(rel_se))
+    cpu_for_half_percent = float(np.mean(run_cpu) * (rel_se_median / 0.005) ** 2)
+
+    figures = {
+        "scene": Path(args.scene).name,
+        "solar_zenith_angle": zenith,
+        "solar_beam_azimuth": azimuth,
+        "photons": photons,
+        "photons_per_second_per_core": photons / wall1,
+        "photons_per_cpu_second": photons / cpu1,
+        "scattering_events_per_photon": events / photons,
+        "scattering_events_per_second_per_core": events / wall1,
+        "cores": cores,
+        "parallel_speedup": wall1 / wall_n,
+        "peak_memory_over_scene_arrays": (rss_after - rss_before + scene_bytes) / scene_bytes
+        if rss_after > rss_before else 1.0,
+        "peak_rss_mb": rss_after / 2**20,
+        "scene_arrays_mb": scene_bytes / 2**20,
+        "domain_mean_toa_upward_flux": float(one.toa_upward_flux.mean()),
+        "domain_mean_surface_direct_flux": float(one.surface_downward_direct_flux.mean()),
+        "domain_mean_surface_diffuse_flux": float(one.surface_downward_diffuse_flux.mean()),
+        "domain_mean_atmosphere_absorption": float(one.atmosphere_absorption.mean()),
+        "median_relative_se_800m_surface_downward": rel_se_median,
+        "cpu_seconds_for_0.5pct_se_800m_surface_downward": cpu_for_half_percent,
+    }
+    width = max(map(len, figures))
+    for key, value in figures.items():
+        print(f"{key:<{width}}  {value:.4g}" if isinstance(value, float) else f"{key:<{width}}  {value}")
+    if args.json:
+        Path(args.json).write_text(json.dumps(figures, indent=2))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,154 @@
+"""``surrogate3d scenes`` (generate scene files) and ``surrogate3d show`` (picture of a scene)."""
+
+import math
+import sys
+from pathlib import Path
+
+from ..errors import ParameterError, Surrogate3DError
+
+#: Main-layer overrides: attribute, option, allowed range (low, high, low end open).
+_OVERRIDES = (("cloud_fraction", "--cloud-fraction", (0.0, 1.0, False)),
+              ("mean_optical_depth", "--optical-depth", (0.0, 10000.0, True)),
+              ("cloud_top_variability", "--cloud-top-variability", (0.0, 5.0, False)))
+_GRID_OPTIONS = (("nx", "--nx", int), ("ny", "--ny", int), ("nz", "--nz", int), ("dx", "--dx", float),
+                 ("top", "--top", float))
+
+
+def register(sub):
+    from .regimes import REGIMES
+
+    p = sub.add_parser(
+        "scenes", help="generate synthetic 3D cloud scenes of named regimes",
+        description="Generate scene files DIR/<regime>_<seed>.nc for seeds S, S+1, ... of each regime. "
+                    "Command-line options override the configuration file. Regimes: " + ", ".join(REGIMES) + ".")
+    p.add_argument("--out", metavar="DIR", help="output directory (created if missing)")
+    p.add_argument("--regime", metavar="NAME", action="append",
+                   help="regime to generate (repeatable), or 'all' for every regime")
+    p.add_argument("--count", metavar="N", help="scenes per regime (default 1)")
+    p.add_argument("--seed", metavar="S", help="first seed (default 0)")
+    p.add_argument("--nx", metavar="N", help="columns in x (default 64)")
+    p.add_argument("--ny", metavar="N", help="columns in y (default 64)")
+    p.add_argument("--nz", metavar="N", help="layers (default 40)")
+    p.add_argument("--dx", metavar="M", help="horizontal cell size in m (default 100)")
+    p.add_argument("--top", metavar="M", help="domain top in m (default: the regime's, 4000 or 12000)")
+    p.add_argument("--cloud-fraction", metavar="F",
+                   help="cloud fraction of the main cloud layer, in [0, 1] (not applied to 'clear' under 'all')")
+    p.add_argument("--optical-depth", metavar="TAU", dest="mean_optical_depth",
+                   help="mean optical depth of the main layer's cloudy columns")
+    p.add_argument("--cloud-top-variability", metavar="V",
+                   help="coefficient of variation of the main layer's cloud thickness, in [0, 5]")
+    p.add_argument("--config", metavar="FILE", help="scene-set configuration (TOML, see docs/scene-generator.md)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar and no per-file lines")
+    p.set_defaults(func=run_scenes)
+
+    p = sub.add_parser("show", help="draw a scene file: column optical depth map and a vertical cross-section")
+    p.add_argument("file", metavar="FILE", help="scene file (*.nc)")
+    p.add_argument("--out", metavar="PNG", required=True, help="output picture (PNG)")
+    p.add_argument("--row", metavar="R", help="y index of the cross-section (default: the cloudiest row)")
+    p.add_argument("--band", metavar="NAME", help="band to draw (default: the first band)")
+    p.set_defaults(func=run_show)
+
+
+def _number(text, option, kind):
+    """Convert an option's text to int or float, raising ParameterError naming the option."""
+    if text is None:
+        return None
+    try:
+        return kind(text)
+    except (TypeError, ValueError):
+        what = "an integer" if kind is int else "a number"
+        raise ParameterError(f"{option} must be {what}; got {text!r}") from None
+
+
+def _scene_set(args):
+    """The scene-set configuration: the config file (if any) overridden by the options."""
+    from .config import SceneSetConfig, load_config
+    from .regimes import REGIMES
+
+    cfg = load_config(args.config) if args.config else SceneSetConfig()
+    if args.out:
+        cfg.out = args.out
+    if not cfg.out:
+        raise ParameterError("--out is required (or set out in the configuration file)")
+    for key, option, kind in _GRID_OPTIONS:
+        value = _number(getattr(args, key), option, kind)
+        if value is not None:
+            cfg.grid[key] = value
+    if args.nz is not None or args.top is not None:
+        # Explicit layer edges of the configuration give way to --nz/--top.
+        cfg.grid.pop("z_edge", None)
+    count = _number(args.count, "--count", int)
+    seed = _number(args.seed, "--seed", int)
+    if count is not None and count < 1:
+        raise ParameterError(f"--count must be at least 1; got {count}")
+    if seed is not None and seed < 0:
+        raise ParameterError(f"--seed must be >= 0; got {seed}")
+    if args.regime:
+        for name in args.regime:
+            if name != "all" and name not in REGIMES:
+                raise ParameterError(f"--regime must be one of {', '.join(REGIMES)} or 'all'; got {name!r}")
+        cfg.regimes = [{"name": name} for name in dict.fromkeys(args.regime)]
+        if "all" in args.regime:
+            cfg.regimes = [{"name": "all"}]
+    if not cfg.regimes:
+        raise ParameterError("no regime given: use --regime NAME (or 'all'), or a configuration with "
+                             "[[regime]] tables")
+    overrides = {}
+    for key, option, (low, high, low_open) in _OVERRIDES:
+        value = _number(getattr(args, key), option, float)
+        if value is None:
+            continue
+        if not (math.isfinite(value) and (value > low if low_open else value >= low) and value <= high):
+            raise ParameterError(f"{option} must be in {'(' if low_open else '['}{low:g}, {high:g}]; got {value!r}")
+        overrides[key] = value
+    for table in cfg.regimes:
+        table.update(overrides)
+        if count is not None:
+            table["count"] = count
+        if seed is not None:
+            table["seed"] = seed
+    return cfg
+
+
+def run_scenes(args):
+    from tqdm import tqdm
+
+    from ..archive import write_scene
+    from .generator import generate_scene
+
+    cfg = _scene_set(args)
+    entries = cfg.entries()
+    options = cfg.generator_options()
+    out = Path(cfg.out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise Surrogate3DError(f"cannot create output directory {str(out)!r}: {exc.strerror or exc}") from None
+    jobs = [(entry.regime, seed) for entry in entries for seed in entry.seeds]
+    written = []
+    with tqdm(total=len(jobs), desc="scenes", unit="scene", file=sys.stderr,
+              disable=True if args.quiet else None) as bar:
+        for regime, seed in jobs:
+            scene = generate_scene(regime, seed, **options)
+            path = out / f"{regime.name}_{seed:05d}.nc"
+            write_scene(scene, path, validate=False)
+            written.append(path)
+            if not args.quiet:
+                tqdm.write(f"wrote {path}  (cloud fraction {scene.attrs['total_cloud_fraction']:.3f})",
+                           file=sys.stdout)
+            bar.update(1)
+    print(f"wrote {len(written)} scene file{'s' if len(written) != 1 else ''} to {out}")
+
+
+def run_show(args):
+    from ..archive import read_scene
+    from .plotting import plot_scene
+
+    scene = read_scene(args.file)
+    row = _number(args.row, "--row", int)
+    target = Path(args.out)
+    if target.suffix.lower() != ".png":
+        raise ParameterError(f"--out must name a .png file; got {args.out!r}")
+    target.parent.mkdir(parents=True, exist_ok=True)
+    plot_scene(scene, target, row=row, band=args.band)
+    print(f"wrote {target}")
