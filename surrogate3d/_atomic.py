@@ -36,6 +36,10 @@ def atomic_path(path, suffix=None):
         raise Surrogate3DError(f"directory {str(directory)!r} is not writable")
     fd, tmp = tempfile.mkstemp(dir=directory, prefix=f".{path.name}.", suffix=suffix or path.suffix + ".tmp")
     os.close(fd)
+    # mkstemp creates the file readable by its owner only; give it the usual permissions.
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
     try:
         yield Path(tmp)
         os.replace(tmp, path)

@@ -17,7 +17,7 @@ class ValidationError(Surrogate3DError, ValueError):
 
 
 class FormatError(Surrogate3DError):
-    """A file is unreadable, truncated, of another format version or lacks variables."""
+    """A file is missing, unreadable, truncated, of another format version, or lacks a stored result."""
 
 
 class ParameterError(ValidationError):

@@ -8,6 +8,9 @@ import pytest
 from surrogate3d.errors import ParameterError, ValidationError
 from surrogate3d.scenes import make_scene
 from surrogate3d.solvers.montecarlo import solve_monte_carlo
+from surrogate3d.solvers.two_stream import delta_eddington
+
+from reference_solutions import doubling, h_function
 
 
 def layer_scene(tau, ssa=1.0, g=0.85, albedo=0.0, n=4, nz=4, depth=1000.0, top=None, bands=1):
@@ -82,27 +85,37 @@ def test_thin_layer_single_scattering_limit(g):
     assert abs(r - expected) < 4 * se + 0.02 * expected
 
 
-def _chandrasekhar_h(omega, mu, n=200, iterations=500):
-    """H-function for isotropic scattering by iterating 1/H(mu) = sqrt(1 - w) + (w / 2) int mu' H(mu') / (mu + mu') dmu'
-    (Chandrasekhar 1960, Radiative Transfer, eq. V.38), Gauss-Legendre on (0, 1)."""
-    x, wq = np.polynomial.legendre.leggauss(n)
-    x, wq = 0.5 * (x + 1), 0.5 * wq
-    h = np.ones(n)
-    for _ in range(iterations):
-        h = 1.0 / (math.sqrt(1 - omega) + 0.5 * omega * ((wq * x * h)[None, :] / (x[:, None] + x[None, :])).sum(axis=1))
-    return 1.0 / (math.sqrt(1 - omega) + 0.5 * omega * np.sum(wq * x * h / (mu + x)))
-
-
 def test_semi_infinite_isotropic_albedo_matches_chandrasekhar():
     omega, mu0 = 0.9, 0.5
     out = solve_monte_carlo(layer_scene(60.0, ssa=omega, g=0.0), 60.0, photons=60000, seed=5,
                             independent_columns=True)
     # Plane albedo of a semi-infinite isotropically scattering atmosphere:
     # r(mu0) = 1 - H(mu0) sqrt(1 - omega)  (Chandrasekhar 1960, eq. IV.120 / V.49).
-    expected = 1 - _chandrasekhar_h(omega, mu0) * math.sqrt(1 - omega)
+    expected = 1 - h_function(omega, mu0)[0] * math.sqrt(1 - omega)
     r = domain(out, "toa_upward_flux")
     se = float(out.toa_upward_flux_standard_error.mean()) / 4
     assert abs(r - expected) < 4 * se + 2e-3, (r, expected)
+
+
+@pytest.mark.parametrize("tau, ssa, g, mu0", [(1.0, 1.0, 0.0, 0.5), (8.0, 1.0, 0.85, 0.866),
+                                             (4.0, 0.9, 0.75, 0.6), (2.0, 0.99, 0.85, 1.0)])
+def test_plane_parallel_layer_matches_doubling_and_delta_eddington(tau, ssa, g, mu0):
+    out = solve_monte_carlo(layer_scene(tau, ssa=ssa, g=g), math.degrees(math.acos(mu0)), photons=80000,
+                            seed=13, independent_columns=True)
+    r = domain(out, "toa_upward_flux")
+    t = domain(out, "surface_downward_direct_flux") + domain(out, "surface_downward_diffuse_flux")
+    se = float(out.toa_upward_flux_standard_error.mean()) / 4
+    # Exact plane-parallel albedo and transmittance by the doubling method (van de Hulst 1980;
+    # Hansen 1971), over a black surface: Monte Carlo agrees within its noise plus the
+    # doubling quadrature error.
+    r_exact, t_exact = doubling(tau, ssa, g, mu0)
+    assert abs(r - r_exact) < 4 * se + 3e-3
+    assert abs(t - t_exact) < 4 * se + 3e-3
+    # Delta-Eddington fluxes are within a few hundredths of exact ones for layers that are not
+    # optically thin (Joseph, Wiscombe and Weinman 1976; King and Harshvardhan 1986; from memory).
+    de = delta_eddington(np.array([tau]), np.array([ssa]), np.array([g]), mu0, 0.0)
+    assert abs(r - float(de["toa_upward_flux"])) < 0.04
+    assert abs(t - float(de["surface_downward_direct_flux"] + de["surface_downward_diffuse_flux"])) < 0.04
 
 
 def test_homogeneous_scene_3d_equals_independent_column():
@@ -195,3 +208,38 @@ def test_bad_input_is_refused():
     bad["single_scattering_albedo"][0, 0, 0, 0] = 1.5
     with pytest.raises(ValidationError, match="single_scattering_albedo"):
         solve_monte_carlo(bad, 30.0, photons=10)
+
+
+def test_broken_cumulus_3d_effect_changes_sign_with_solar_zenith():
+    from surrogate3d.scenes import generate_scene
+
+    scene = generate_scene("scattered_cumulus", 1, nx=32, ny=32)
+
+    def delta_reflectance(zenith):
+        full = solve_monte_carlo(scene, zenith, photons=60000, seed=1)
+        ica = solve_monte_carlo(scene, zenith, photons=60000, seed=2, independent_columns=True)
+        se = np.sqrt((full.toa_upward_flux_standard_error.values ** 2).sum()
+                     + (ica.toa_upward_flux_standard_error.values ** 2).sum()) / full.toa_upward_flux.size
+        return float(full.toa_upward_flux.mean() - ica.toa_upward_flux.mean()), float(se)
+
+    # Broken cumulus reflect less in 3D than in the independent column approximation for a
+    # high sun (light leaks out of cloud sides) and more for a low sun (sunlit cloud sides),
+    # Barker et al. 2015 (J. Atmos. Sci. 72, 4073-4086); Hogan et al. 2016 (J. Geophys. Res. 121, 8583-8599).
+    high, se_high = delta_reflectance(0.0)
+    low, se_low = delta_reflectance(75.0)
+    assert high < -3 * se_high
+    assert low > 3 * se_low
+
+
+def test_independent_column_shadow_under_cloud_and_3d_shadow_displaced():
+    scene, centre = block_cloud_scene(n=24, base=600.0, depth=200.0)
+    full = solve_monte_carlo(scene, 60.0, 0.0, photons=2000, seed=12)
+    ica = solve_monte_carlo(scene, 60.0, 0.0, photons=2000, seed=12, independent_columns=True)
+    x = scene.x.values
+    lo = int(np.argmin(ica.surface_downward_direct_flux.values.mean(axis=0)))
+    shifted = int(np.argmin(full.surface_downward_direct_flux.values.mean(axis=0)))
+    # Independent-column shadow directly below the cloud; 3D shadow displaced downsun by about
+    # (H + D/2) tan(theta0) = 700 m * tan(60 deg) = 1.2 km (geometry, common practice).
+    assert abs(x[lo] - centre) <= 200.0
+    shift = (x[shifted] - x[lo]) % (x.size * 100.0)  # periodic domain
+    assert abs(shift - 700.0 * math.tan(math.radians(60.0))) <= 200.0
