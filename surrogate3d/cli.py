@@ -17,6 +17,8 @@ COMMAND_MODULES = [
     "surrogate3d.archive.commands",
     "surrogate3d.solvers.commands",
     "surrogate3d.pairs.commands",
+    "surrogate3d.learn.commands",
+    "surrogate3d.evaluation.commands",
 ]
 
 

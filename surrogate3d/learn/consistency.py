@@ -1,0 +1,216 @@
+"""Making predicted corrections physically consistent before they are applied.
+
+A learned correction predicts each target separately, so on its own it may give a
+total surface flux different from direct + diffuse, negative fluxes, or a domain whose
+energy budget no longer closes.  :func:`apply_correction` adds the correction to the
+independent-column fluxes and repairs these in a fixed, documented order.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import ValidationError
+from .pairs_table import TARGETS
+
+_TOTAL, _DIRECT, _DIFFUSE = "surface_downward_flux", "surface_downward_direct_flux", "surface_downward_diffuse_flux"
+_TOA, _ABSORPTION = "toa_upward_flux", "atmosphere_absorption"
+
+
+@dataclass
+class CorrectedFluxes:
+    """Result of :func:`apply_correction`.
+
+    Attributes
+    ----------
+    flux : ndarray (n_sample, n_target)
+        Corrected fluxes [1, fraction of the incident flux].
+    correction : ndarray (n_sample, n_target)
+        The correction actually applied (``flux`` minus the independent-column flux).
+    clipped : dict of str -> int
+        Per target, how many samples had a negative corrected flux set to zero.
+    rescaled_domains : int
+        Domains whose absorption adjustment was made proportional to the absorption (a
+        uniform shift would have made it negative somewhere).
+    unbalanced_domains : int
+        Domains whose energy budget could not be closed without negative absorption.
+    balance_shift : ndarray (n_domain,)
+        Domain-mean change of the absorption correction made to close the budget [1].
+    """
+
+    flux: np.ndarray
+    correction: np.ndarray
+    clipped: dict = field(default_factory=dict)
+    rescaled_domains: int = 0
+    unbalanced_domains: int = 0
+    balance_shift: np.ndarray = field(default_factory=lambda: np.zeros(0))
+
+    @property
+    def clipped_fraction(self):
+        """Fraction of all (sample, target) values that were clipped."""
+        return sum(self.clipped.values()) / max(self.flux.size, 1)
+
+
+def _domain_mean(values, inverse, n_domain):
+    """Mean of ``values`` (n, ...) over the samples of each domain, broadcast back to samples."""
+    counts = np.bincount(inverse, minlength=n_domain).astype(np.float64)
+    flat = values.reshape(values.shape[0], -1)
+    sums = np.stack([np.bincount(inverse, weights=flat[:, k], minlength=n_domain) for k in range(flat.shape[1])],
+                    axis=1)
+    return (sums / counts[:, None])[inverse].reshape(values.shape)
+
+
+def energy_residual(correction, surface_albedo, targets=TARGETS):
+    """Per-sample change of the column energy budget caused by a correction.
+
+    ``delta(toa_upward) + delta(atmosphere_absorption) + (1 - surface_albedo) delta(surface_downward)``,
+    which equals minus the net horizontal export of the 3D solution for the true
+    correction (the independent column exports nothing).
+
+    Parameters
+    ----------
+    correction : ndarray (n_sample, n_target)
+        Corrections [1].
+    surface_albedo : ndarray (n_sample,)
+        Broadband surface albedo [1].
+    targets : sequence of str
+        Target order of the columns.
+
+    Returns
+    -------
+    ndarray (n_sample,) [1]
+    """
+    col = _columns(targets, (_TOTAL, _TOA, _ABSORPTION), "energy balance")
+    albedo = np.asarray(surface_albedo, dtype=np.float64)
+    return correction[:, col[_TOA]] + correction[:, col[_ABSORPTION]] + (1.0 - albedo) * correction[:, col[_TOTAL]]
+
+
+def _columns(targets, needed, purpose):
+    targets = list(targets)
+    missing = [t for t in needed if t not in targets]
+    if missing:
+        raise ValidationError(f"{purpose} needs targets {missing}; the correction has {targets}")
+    return {t: targets.index(t) for t in needed}
+
+
+def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonnegative=True, energy_balance=True,
+                     remove_domain_mean=False, targets=TARGETS):
+    """Add a predicted correction to independent-column fluxes and make the result consistent.
+
+    Steps, in this order:
+
+    1. ``remove_domain_mean``: subtract from each correction its mean over the domain
+       (``group``), so that the correction only redistributes flux horizontally.
+    2. Surface components: the total downward flux is recomputed as corrected direct +
+       corrected diffuse (when all three are targets), so the three always agree.
+    3. ``clip_nonnegative``: corrected direct, diffuse, TOA upward and absorbed fluxes
+       below zero are set to zero (counted per target in ``clipped``); the total follows
+       from step 2 (or is clipped itself when the components are not targets).
+    4. ``energy_balance``: in every domain the mean of ``delta(toa_upward) +
+       delta(atmosphere_absorption) + (1 - surface_albedo) delta(surface_downward)`` is
+       brought to zero by shifting the domain mean of the absorption correction.  Both the
+       3D and the independent-column solutions conserve energy over a periodic domain
+       (the 3D horizontal export averages to zero), so the true corrections satisfy this
+       exactly.  The absorption is the term adjusted because the surface and
+       top-of-atmosphere fluxes are what the host's surface scheme and radiation budget
+       use directly, and a uniform shift of the absorption leaves the predicted
+       horizontal pattern of every correction unchanged.  Where the shift would make an
+       absorption negative, the reduction is made proportional to the corrected
+       absorption instead (same domain mean, never negative; counted in
+       ``rescaled_domains``); if even that cannot close the budget the absorption is set
+       to zero and the domain is counted in ``unbalanced_domains``.
+
+    Parameters
+    ----------
+    ica_flux : array_like (n_sample, n_target)
+        Independent-column fluxes [1, fraction of the incident flux on the horizontal].
+    correction : array_like (n_sample, n_target)
+        Predicted 3D-minus-independent-column corrections [1].
+    surface_albedo : array_like (n_sample,)
+        Broadband surface albedo of each host column [1], in [0, 1].
+    group : array_like (n_sample,)
+        Label of the periodic domain of each sample (one scene at one sun geometry and
+        host resolution); see :func:`surrogate3d.learn.pairs_table.domain_groups`.
+    clip_nonnegative, energy_balance, remove_domain_mean : bool
+        Steps 3, 4 and 1 above.
+    targets : sequence of str, default all five in the documented order
+        Target of each column.
+
+    Returns
+    -------
+    CorrectedFluxes
+
+    References
+    ----------
+    Conservation over a periodic domain: the horizontal divergence of the net flux
+    integrates to zero over the domain (Gauss divergence theorem); see e.g. Marshak and
+    Davis (eds.), 2005: 3D Radiative Transfer in Cloudy Atmospheres, Springer, ch. 1.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ica = np.array([[0.6, 0.5, 0.1, 0.2, 0.15]])
+    >>> out = apply_correction(ica, np.array([[0.0, -0.6, 0.02, 0.0, 0.0]]), [0.1], [0])
+    >>> out.clipped["surface_downward_direct_flux"], round(float(out.flux[0, 0]), 3)
+    (1, 0.12)
+    """
+    targets = list(targets)
+    ica = np.asarray(ica_flux, dtype=np.float64)
+    corr = np.array(correction, dtype=np.float64)
+    if ica.ndim != 2 or ica.shape[1] != len(targets):
+        raise ValidationError(f"ica_flux must have shape (n_sample, {len(targets)}); got {ica.shape}")
+    if corr.shape != ica.shape:
+        raise ValidationError(f"correction has shape {corr.shape}; ica_flux has {ica.shape}")
+    albedo = np.asarray(surface_albedo, dtype=np.float64).reshape(-1)
+    labels = np.asarray(group).reshape(-1)
+    if albedo.shape[0] != ica.shape[0] or labels.shape[0] != ica.shape[0]:
+        raise ValidationError(f"surface_albedo and group must have {ica.shape[0]} samples; got "
+                              f"{albedo.shape[0]} and {labels.shape[0]}")
+    if np.any((albedo < 0) | (albedo > 1)):
+        i = int(np.flatnonzero((albedo < 0) | (albedo > 1))[0])
+        raise ValidationError(f"surface_albedo must be in [0, 1]; got {albedo[i]!r} at sample {i}")
+    if energy_balance:
+        _columns(targets, (_TOTAL, _TOA, _ABSORPTION), "energy balance")
+    _, inverse = np.unique(labels, return_inverse=True)
+    inverse = inverse.ravel()
+    n_domain = int(inverse.max()) + 1 if inverse.size else 0
+
+    if remove_domain_mean and inverse.size:
+        corr -= _domain_mean(corr, inverse, n_domain)
+    components = all(t in targets for t in (_TOTAL, _DIRECT, _DIFFUSE))
+    clipped = {}
+    if clip_nonnegative:
+        for k, name in enumerate(targets):
+            if name == _TOTAL and components:
+                continue
+            negative = ica[:, k] + corr[:, k] < 0
+            clipped[name] = int(np.count_nonzero(negative))
+            corr[negative, k] = -ica[negative, k]
+    if components:
+        c = {t: targets.index(t) for t in (_TOTAL, _DIRECT, _DIFFUSE)}
+        corrected_total = ica[:, c[_DIRECT]] + corr[:, c[_DIRECT]] + ica[:, c[_DIFFUSE]] + corr[:, c[_DIFFUSE]]
+        corr[:, c[_TOTAL]] = corrected_total - ica[:, c[_TOTAL]]
+        if clip_nonnegative:
+            clipped[_TOTAL] = 0
+
+    shift = np.zeros(n_domain)
+    rescaled = unbalanced = 0
+    if energy_balance and inverse.size:
+        a = targets.index(_ABSORPTION)
+        residual = _domain_mean(energy_residual(corr, albedo, targets), inverse, n_domain)
+        shift = np.bincount(inverse, weights=residual, minlength=n_domain) / np.bincount(inverse, minlength=n_domain)
+        absorbed = ica[:, a] + corr[:, a]
+        shifted = absorbed - residual
+        if clip_nonnegative:
+            for d in np.unique(inverse[shifted < 0]):
+                members = inverse == d
+                mean_absorbed = absorbed[members].mean()
+                if shift[d] < mean_absorbed:
+                    shifted[members] = absorbed[members] * (1.0 - shift[d] / mean_absorbed)
+                    rescaled += 1
+                else:
+                    shifted[members] = 0.0
+                    unbalanced += 1
+        corr[:, a] = shifted - ica[:, a]
+    return CorrectedFluxes(flux=ica + corr, correction=corr, clipped=clipped, rescaled_domains=rescaled,
+                           unbalanced_domains=unbalanced, balance_shift=shift)

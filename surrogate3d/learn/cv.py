@@ -1,0 +1,215 @@
+"""Scene-grouped data splits and the hyperparameter search.
+
+Samples of one scene are strongly correlated (neighbouring columns, the same clouds
+under several suns and host resolutions), so every split here keeps whole scenes
+together: a scene never has samples on both sides.  Splitting by sample instead would
+let a model be scored on near-copies of its training data and overstate its skill
+(Roberts et al. 2017).
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+from sklearn.base import clone
+from sklearn.model_selection import GroupKFold
+from tqdm import tqdm
+
+from ..errors import ValidationError
+from .pairs_table import scene_table
+
+
+@dataclass(frozen=True)
+class SceneSplit:
+    """Which scenes train the models and which are kept for evaluation.
+
+    Attributes
+    ----------
+    training_scenes, held_out_scenes : list of str
+        Disjoint; held-out scenes are whole scenes of unseen seeds, chosen per regime.
+    held_out_regime : str or None
+        Regime of the regime-transfer test.
+    transfer_training_scenes : list of str
+        Training scenes outside ``held_out_regime`` (empty without one).
+    transfer_test_scenes : list of str
+        Every scene of ``held_out_regime`` (empty without one).
+    """
+
+    training_scenes: list
+    held_out_scenes: list
+    held_out_regime: str | None = None
+    transfer_training_scenes: tuple = ()
+    transfer_test_scenes: tuple = ()
+
+    def as_dict(self):
+        return {"training_scenes": list(self.training_scenes), "held_out_scenes": list(self.held_out_scenes),
+                "held_out_regime": self.held_out_regime,
+                "transfer_training_scenes": list(self.transfer_training_scenes),
+                "transfer_test_scenes": list(self.transfer_test_scenes)}
+
+
+def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
+    """Hold out whole scenes by seed, separately in every regime.
+
+    In each regime ``round(held_out_fraction * n_seeds)`` seeds are drawn (at least one
+    when the fraction is positive, at most ``n_seeds - 1`` so the regime keeps a
+    training scene) and every scene of those seeds is held out.
+
+    Parameters
+    ----------
+    pairs : xarray.Dataset
+        A pairs table (needs ``scene``, ``regime``, ``seed``).
+    held_out_fraction : float
+        In [0, 1).
+    seed : int
+        Seed of the draw; regimes are visited in sorted order, so the split is reproducible.
+    held_out_regime : str, optional
+        Also list the scenes for the regime-transfer test.
+
+    Returns
+    -------
+    SceneSplit
+    """
+    if not 0.0 <= held_out_fraction < 1.0:
+        raise ValidationError(f"held_out_fraction must be in [0, 1); got {held_out_fraction!r}")
+    table = scene_table(pairs)
+    rng = np.random.default_rng(seed)
+    held = set()
+    for regime in sorted({r for r, _ in table.values()}):
+        seeds = sorted({s for r, s in table.values() if r == regime})
+        n_hold = int(round(held_out_fraction * len(seeds)))
+        if held_out_fraction > 0:
+            n_hold = max(n_hold, 1)
+        n_hold = min(n_hold, len(seeds) - 1)
+        chosen = set(int(s) for s in rng.choice(seeds, size=n_hold, replace=False)) if n_hold > 0 else set()
+        held |= {scene for scene, (r, s) in table.items() if r == regime and s in chosen}
+    training = [scene for scene in table if scene not in held]
+    if not training:
+        raise ValidationError("no training scenes left after holding out scenes")
+    transfer_training, transfer_test = (), ()
+    if held_out_regime is not None:
+        transfer_training = tuple(s for s in training if table[s][0] != held_out_regime)
+        transfer_test = tuple(s for s in table if table[s][0] == held_out_regime)
+        if not transfer_training or not transfer_test:
+            raise ValidationError(f"held_out_regime {held_out_regime!r} leaves {len(transfer_training)} training "
+                                  f"and {len(transfer_test)} test scenes for the regime-transfer test")
+    return SceneSplit(training_scenes=training, held_out_scenes=sorted(held), held_out_regime=held_out_regime,
+                      transfer_training_scenes=transfer_training, transfer_test_scenes=transfer_test)
+
+
+def scene_folds(scenes, n_folds):
+    """Scene-grouped cross-validation folds.
+
+    Parameters
+    ----------
+    scenes : array_like (n_sample,)
+        Scene label of every sample.
+    n_folds : int
+        Requested folds; fewer when there are fewer scenes (at least 2 scenes needed).
+
+    Returns
+    -------
+    list of (ndarray, ndarray)
+        Training and test sample indices of each fold; no scene is on both sides.
+
+    References
+    ----------
+    Hastie, T., R. Tibshirani and J. Friedman, 2009: The Elements of Statistical Learning,
+    2nd ed., Springer, section 7.10 (K-fold cross-validation).
+
+    Roberts, D. R. et al., 2017: Cross-validation strategies for data with temporal,
+    spatial, hierarchical, or phylogenetic structure. Ecography, 40, 913-929 (blocking by group).
+    """
+    scenes = np.asarray(scenes).astype(str)
+    n_scenes = np.unique(scenes).size
+    if n_scenes < 2:
+        raise ValidationError(f"cross-validation needs at least 2 training scenes; got {n_scenes}")
+    folds = GroupKFold(n_splits=min(int(n_folds), n_scenes))
+    return [(train, test) for train, test in folds.split(np.zeros(scenes.size), groups=scenes)]
+
+
+def correction_skill(predicted, true):
+    """Skill of a correction per target: ``1 - RMSE(predicted - true) / RMSE(0 - true)``.
+
+    1 is perfect; 0 is no better than no correction (the independent column).
+
+    Parameters
+    ----------
+    predicted, true : ndarray (n_sample, n_target)
+
+    Returns
+    -------
+    ndarray (n_target,)
+    """
+    error = np.sqrt(np.mean((predicted - true) ** 2, axis=0))
+    reference = np.sqrt(np.mean(true**2, axis=0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(reference > 0, 1.0 - error / reference, np.nan)
+
+
+@dataclass(frozen=True)
+class SearchResult:
+    """Outcome of :func:`grid_search`.
+
+    Attributes
+    ----------
+    best_params : dict
+    best_score : float
+        Mean over folds of the target-averaged skill.
+    folds : int
+        Folds actually used.
+    scores : list of dict
+        One entry per candidate: ``params``, ``mean_skill``, ``std_skill`` (over folds) and
+        ``fold_skill`` (list, one per fold).
+    """
+
+    best_params: dict
+    best_score: float
+    folds: int
+    scores: list
+
+    def as_dict(self):
+        return {"best_params": self.best_params, "best_score": self.best_score, "folds": self.folds,
+                "scores": self.scores}
+
+
+def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search"):
+    """Pick hyperparameters by scene-grouped K-fold cross-validation.
+
+    Every candidate is fitted on each fold's training scenes and scored on its test
+    scenes by the skill of :func:`correction_skill`, averaged over targets; the best mean
+    over folds wins (the first candidate on ties).
+
+    Parameters
+    ----------
+    estimator : estimator
+        Template; cloned for every fit.
+    candidates : list of dict
+        Parameter combinations.
+    X : ndarray (n_sample, n_feature)
+    Y : ndarray (n_sample, n_target)
+    scenes : ndarray (n_sample,)
+        Scene of each sample (the CV groups).
+    n_folds : int
+    quiet : bool
+        Hide the progress bar.
+
+    Returns
+    -------
+    SearchResult
+    """
+    folds = scene_folds(scenes, n_folds)
+    scores = []
+    with tqdm(total=len(candidates) * len(folds), desc=label, unit="fit", disable=True if quiet else None,
+              leave=False) as bar:
+        for params in candidates:
+            fold_skill = []
+            for train, test in folds:
+                model = clone(estimator).set_params(**params).fit(X[train], Y[train])
+                fold_skill.append(float(np.nanmean(correction_skill(model.predict(X[test]).reshape(Y[test].shape),
+                                                                    Y[test]))))
+                bar.update()
+            scores.append({"params": params, "mean_skill": float(np.mean(fold_skill)),
+                           "std_skill": float(np.std(fold_skill)), "fold_skill": fold_skill})
+    best = max(range(len(scores)), key=lambda i: (scores[i]["mean_skill"], -i))
+    return SearchResult(best_params=dict(scores[best]["params"]), best_score=scores[best]["mean_skill"],
+                        folds=len(folds), scores=scores)

@@ -1,0 +1,438 @@
+"""Estimators of the 3D correction: standardized ridge regression and gradient-boosted trees.
+
+Both are scikit-learn estimators (``fit``/``predict``, ``get_params``/``set_params``,
+``clone``) for several targets at once: ``Y`` has shape ``(n_sample, n_target)``, one
+column per correction target (3D minus independent-column flux, as a fraction of the
+incident flux).  Fitted from a training-pair table with :meth:`fit_pairs`, they remember
+the feature and target names and predict straight from another table with
+:meth:`predict_pairs`, like the baselines.
+
+The fitted attributes are the contract with the coefficient exporter; they are
+documented in each class and in ``docs/methods/models-and-metrics.md``.
+"""
+
+import math
+import numbers
+
+import numpy as np
+from sklearn.base import BaseEstimator, RegressorMixin
+from sklearn.ensemble import HistGradientBoostingRegressor
+from sklearn.utils import check_array
+from sklearn.utils.validation import check_is_fitted
+
+from ..errors import ParameterError, ValidationError
+from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
+
+#: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
+_SINGULAR_CUTOFF = 1e-12
+
+
+def _check_real(name, value, low, high, *, low_open=False, high_open=False, integer=False):
+    """Raise ParameterError unless ``value`` is a (whole) number within the interval."""
+    kind = "an integer" if integer else "a finite number"
+    ok_type = (isinstance(value, numbers.Integral) if integer else isinstance(value, numbers.Real))
+    if isinstance(value, bool) or not ok_type or (not integer and not math.isfinite(value)):
+        ok = False
+    else:
+        ok = (value > low if low_open else value >= low) and (value < high if high_open else value <= high)
+    if not ok:
+        interval = (("(" if low_open else "[") + f"{_number(low)}, {_number(high)}"
+                    + (")" if high_open or math.isinf(high) else "]"))
+        raise ParameterError(f"{name} must be {kind} in {interval}; got {value!r}")
+
+
+def _number(value):
+    if math.isinf(value):
+        return "inf"
+    return str(int(value)) if float(value).is_integer() else f"{value:g}"
+
+
+def _check_bool(name, value):
+    if not isinstance(value, (bool, np.bool_)):
+        raise ParameterError(f"{name} must be true or false; got {value!r}")
+
+
+def _as_matrix(name, values, min_samples=1, ensure_2d=True):
+    """A float64 array checked by scikit-learn's rules (dense, real, 2-D, enough samples).
+
+    Non-finite values are located first, so the message names the sample and column.
+    """
+    raw = np.asarray(values)  # sparse matrices become 0-d object arrays, left to check_array
+    if raw.dtype.kind in "fiu" and raw.ndim in (1, 2):
+        bad = ~np.isfinite(raw)
+        if bad.any():
+            i, *j = np.argwhere(bad)[0]
+            where = f"sample {i}" + (f", column {j[0]}" if j else "")
+            raise ValidationError(f"{name} contains NaN or inf at {where}: {float(raw[(i, *j)])!r} "
+                                  f"({int(bad.sum())} values in all)")
+    try:
+        return check_array(values, dtype=np.float64, ensure_2d=ensure_2d, ensure_min_samples=min_samples,
+                           input_name=name)
+    except ValueError as exc:  # wrong types (sparse, objects) keep scikit-learn's TypeError
+        raise ValidationError(str(exc)) from None
+
+
+def _check_fit_input(estimator, X, Y):
+    if Y is None:
+        raise ValidationError(f"{type(estimator).__name__} requires y to be passed, but the target y is None")
+    X = _as_matrix("X", X, min_samples=2)
+    Y = _as_matrix("Y", Y, ensure_2d=False)
+    if Y.ndim not in (1, 2) or Y.shape[0] != X.shape[0]:
+        raise ValidationError(f"Y has shape {Y.shape}; expected ({X.shape[0]},) or ({X.shape[0]}, n_target) "
+                              "to match X")
+    one_column = Y.ndim == 1
+    return X, (Y[:, None] if one_column else Y), one_column
+
+
+class _PairsTableMixin:
+    """Fit from and predict on training-pair tables, remembering feature and target names."""
+
+    def fit_pairs(self, pairs, features=None, targets=None):
+        """Fit on a training-pair table.
+
+        Parameters
+        ----------
+        pairs : xarray.Dataset
+            A training-pair table (``docs/pairs-format.md``).
+        features : sequence of str, optional
+            Feature names to use, in this order; default all features of the table.
+        targets : sequence of str, optional
+            Targets to learn, in this order; default all five in the documented order.
+
+        Returns
+        -------
+        self
+        """
+        features = list(feature_names(pairs) if features is None else features)
+        targets = list(TARGETS if targets is None else targets)
+        self.fit(feature_matrix(pairs, features, needed_by="the training recipe"), target_matrix(pairs, targets))
+        self.feature_names_ = features
+        self.target_names_ = targets
+        return self
+
+    def predict_pairs(self, pairs):
+        """Predicted corrections (n_sample, n_target) for every sample of a pairs table.
+
+        Raises
+        ------
+        surrogate3d.errors.ValidationError
+            The table lacks features the model needs (they are named), or the model was
+            fitted from plain arrays.
+        """
+        check_is_fitted(self)
+        if getattr(self, "feature_names_", None) is None:
+            raise ValidationError(f"{type(self).__name__} was fitted from arrays without feature names; "
+                                  "fit it with fit_pairs to predict from a pairs table")
+        X = feature_matrix(pairs, self.feature_names_, needed_by=f"this {type(self).__name__}")
+        Y = self.predict(X)
+        return Y[:, None] if Y.ndim == 1 else Y
+
+    def _forget_names(self):
+        self.feature_names_ = None
+        self.target_names_ = None
+
+    def _check_predict_input(self, X):
+        check_is_fitted(self)
+        X = _as_matrix("X", X)
+        if X.shape[1] != self.n_features_in_:
+            raise ValidationError(f"X has {X.shape[1]} features, but {type(self).__name__} is expecting "
+                                  f"{self.n_features_in_} features as input")
+        return X
+
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        tags.target_tags.multi_output = True
+        return tags
+
+
+class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
+    """Ridge regression on standardized features, optionally with pairwise products.
+
+    The prediction is simple enough to be reproduced in any language::
+
+        z[k]   = (x[k] - feature_mean_[k]) / feature_scale_[k]          k = 0 .. n_feature-1
+        t      = [z[0], ..., z[n_feature-1]] + [z[i] * z[j] for (i, j) in interaction_pairs_]
+        y[m]   = intercept_[m] + sum_l coef_[m, l] * t[l]               m = 0 .. n_target-1
+
+    ``feature_scale_`` is the population standard deviation (ddof = 0) of the training
+    features, replaced by 1 for a constant feature (whose standardized value is then 0).
+    The product terms are products of standardized features, not standardized again.
+    The coefficients minimise ``||Y - intercept - T coef^T||^2 + alpha ||coef||^2``, with an
+    unpenalised intercept, solved in closed form through the singular value decomposition
+    of the centred term matrix (Hoerl and Kennard 1970; Hastie et al. 2009, eq. 3.44-3.47).
+
+    Parameters
+    ----------
+    alpha : float, default 1.0
+        Ridge penalty, >= 0, in units of the (standardized) terms; 0 gives least squares
+        (minimum-norm solution when terms are collinear).
+    interactions : bool, default False
+        Add the products ``z[i] * z[j]`` (i < j) of all pairs of standardized features.
+
+    Attributes
+    ----------
+    feature_mean_, feature_scale_ : ndarray (n_feature,)
+        Standardization of the features (units of each feature).
+    interaction_pairs_ : list of (int, int)
+        Feature index pairs (i < j) of the product terms, in term order; empty without
+        interactions.
+    coef_ : ndarray (n_target, n_term)
+        Coefficients of the terms ``t``; ``n_term = n_feature + len(interaction_pairs_)``.
+    intercept_ : ndarray (n_target,)
+    term_names_ : list of str
+        ``name`` for linear terms and ``name_i*name_j`` for products (``x0``, ``x1`` ... when
+        fitted from arrays).
+    n_features_in_ : int
+    feature_names_, target_names_ : list of str or None
+        Set by :meth:`fit_pairs`; None after a plain :meth:`fit`.
+
+    References
+    ----------
+    Hoerl, A. E. and R. W. Kennard, 1970: Ridge regression: biased estimation for
+    nonorthogonal problems. Technometrics, 12, 55-67.
+
+    Hastie, T., R. Tibshirani and J. Friedman, 2009: The Elements of Statistical Learning,
+    2nd ed., Springer, section 3.4.1.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> X = np.random.default_rng(0).normal(size=(50, 2))
+    >>> Y = np.column_stack([1 + 2 * X[:, 0], X[:, 0] * X[:, 1]])
+    >>> model = RidgeCorrection(alpha=1e-9, interactions=True).fit(X, Y)
+    >>> model.predict(X).shape
+    (50, 2)
+    """
+
+    def __init__(self, alpha=1.0, interactions=False):
+        self.alpha = alpha
+        self.interactions = interactions
+
+    def _check_parameters(self):
+        _check_real("alpha", self.alpha, 0.0, math.inf)
+        _check_bool("interactions", self.interactions)
+
+    def fit(self, X, Y):
+        """Fit the coefficients in closed form.
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+            Features, in their own units.
+        Y : array_like (n_sample, n_target) or (n_sample,)
+            Corrections [1].
+
+        Returns
+        -------
+        self
+        """
+        self._check_parameters()
+        X, Y, one_column = _check_fit_input(self, X, Y)
+        n_feature = X.shape[1]
+        mean = X.mean(axis=0)
+        scale = X.std(axis=0)
+        scale[scale == 0.0] = 1.0
+        pairs = [(i, j) for i in range(n_feature) for j in range(i + 1, n_feature)] if self.interactions else []
+        self.feature_mean_, self.feature_scale_, self.interaction_pairs_ = mean, scale, pairs
+        T = self._terms(X)
+        term_mean, target_mean = T.mean(axis=0), Y.mean(axis=0)
+        U, s, Vt = np.linalg.svd(T - term_mean, full_matrices=False)
+        if self.alpha > 0:
+            shrink = s / (s * s + self.alpha)
+        else:
+            kept = s > _SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
+            shrink = np.where(kept, 1.0 / np.where(kept, s, 1.0), 0.0)
+        coef = (Vt.T @ (shrink[:, None] * (U.T @ (Y - target_mean)))).T
+        self.coef_ = np.ascontiguousarray(coef)
+        self.intercept_ = target_mean - coef @ term_mean
+        self.n_features_in_ = n_feature
+        self._one_column = one_column
+        names = [f"x{k}" for k in range(n_feature)]
+        self.term_names_ = names + [f"{names[i]}*{names[j]}" for i, j in pairs]
+        self._forget_names()
+        return self
+
+    def fit_pairs(self, pairs, features=None, targets=None):
+        super().fit_pairs(pairs, features, targets)
+        names = self.feature_names_
+        self.term_names_ = list(names) + [f"{names[i]}*{names[j]}" for i, j in self.interaction_pairs_]
+        return self
+
+    fit_pairs.__doc__ = _PairsTableMixin.fit_pairs.__doc__
+
+    def _terms(self, X):
+        Z = (X - self.feature_mean_) / self.feature_scale_
+        if not self.interaction_pairs_:
+            return Z
+        products = [Z[:, i] * Z[:, j] for i, j in self.interaction_pairs_]
+        return np.column_stack([Z] + products)
+
+    def predict(self, X):
+        """Predicted corrections, ``intercept_ + terms(X) @ coef_.T``.
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+
+        Returns
+        -------
+        ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
+        """
+        X = self._check_predict_input(X)
+        Y = self.intercept_ + self._terms(X) @ self.coef_.T
+        return Y[:, 0] if self._one_column else Y
+
+
+class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
+    """Gradient-boosted regression trees, one histogram-based ensemble per target.
+
+    Each target gets its own :class:`sklearn.ensemble.HistGradientBoostingRegressor`
+    (squared error, no early stopping, fixed ``random_state``), fitted on the raw
+    (unstandardized) features, so that the same data and parameters give the same trees.
+
+    Parameters
+    ----------
+    max_iter : int, default 300
+        Boosting iterations (trees per target), >= 1.
+    learning_rate : float, default 0.1
+        Shrinkage of each tree, in (0, 1].
+    max_leaf_nodes : int, default 31
+        Leaves per tree, >= 2.
+    min_samples_leaf : int, default 20
+        Minimum training samples per leaf, >= 1.
+    l2_regularization : float, default 0.0
+        L2 penalty on leaf values, >= 0.
+    random_state : int, default 0
+        Seed, >= 0 (only matters if the ensemble subsamples for binning, above 200 000
+        samples).
+
+    Attributes
+    ----------
+    estimators_ : list of HistGradientBoostingRegressor
+        One per target, in target order.  The prediction of target ``m`` for a feature
+        vector ``x`` is ``estimators_[m]._baseline_prediction[0, 0]`` plus, for every tree
+        ``estimators_[m]._predictors[k][0]``, the ``value`` of the leaf reached from node 0
+        by going to ``left`` when ``x[feature_idx] <= num_threshold`` (or, for NaN,
+        when ``missing_go_to_left``) and to ``right`` otherwise, until ``is_leaf``; the
+        learning rate is already folded into the leaf values.
+    n_iter_ : list of int
+        Boosting iterations of each target's ensemble (``max_iter``: no early stopping).
+    n_features_in_ : int
+    feature_names_, target_names_ : list of str or None
+        Set by :meth:`fit_pairs`; None after a plain :meth:`fit`.
+
+    References
+    ----------
+    Friedman, J. H., 2001: Greedy function approximation: a gradient boosting machine.
+    Annals of Statistics, 29, 1189-1232.
+
+    Ke, G. et al., 2017: LightGBM: a highly efficient gradient boosting decision tree.
+    Advances in Neural Information Processing Systems 30 (histogram-based splits).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> X = np.random.default_rng(0).uniform(size=(200, 1))
+    >>> model = BoostedCorrection(max_iter=20).fit(X, (X[:, 0] > 0.5).astype(float))
+    >>> float(model.predict([[0.9]])[0]) > 0.5
+    True
+    """
+
+    def __init__(self, max_iter=300, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=20,
+                 l2_regularization=0.0, random_state=0):
+        self.max_iter = max_iter
+        self.learning_rate = learning_rate
+        self.max_leaf_nodes = max_leaf_nodes
+        self.min_samples_leaf = min_samples_leaf
+        self.l2_regularization = l2_regularization
+        self.random_state = random_state
+
+    def _check_parameters(self):
+        _check_real("max_iter", self.max_iter, 1, math.inf, integer=True)
+        _check_real("learning_rate", self.learning_rate, 0.0, 1.0, low_open=True)
+        _check_real("max_leaf_nodes", self.max_leaf_nodes, 2, math.inf, integer=True)
+        _check_real("min_samples_leaf", self.min_samples_leaf, 1, math.inf, integer=True)
+        _check_real("l2_regularization", self.l2_regularization, 0.0, math.inf)
+        _check_real("random_state", self.random_state, 0, 2**32 - 1, integer=True)
+
+    def fit(self, X, Y):
+        """Fit one ensemble per target column.
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+        Y : array_like (n_sample, n_target) or (n_sample,)
+            Corrections [1].
+
+        Returns
+        -------
+        self
+        """
+        self._check_parameters()
+        X, Y, one_column = _check_fit_input(self, X, Y)
+        self.estimators_ = [
+            HistGradientBoostingRegressor(
+                loss="squared_error", max_iter=int(self.max_iter), learning_rate=float(self.learning_rate),
+                max_leaf_nodes=int(self.max_leaf_nodes), min_samples_leaf=int(self.min_samples_leaf),
+                l2_regularization=float(self.l2_regularization), early_stopping=False,
+                random_state=int(self.random_state)).fit(X, Y[:, m])
+            for m in range(Y.shape[1])]
+        self.n_iter_ = [int(estimator.n_iter_) for estimator in self.estimators_]
+        self.n_features_in_ = X.shape[1]
+        self._one_column = one_column
+        self._forget_names()
+        return self
+
+    def predict(self, X):
+        """Predicted corrections.
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+
+        Returns
+        -------
+        ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
+        """
+        X = self._check_predict_input(X)
+        Y = np.column_stack([estimator.predict(X) for estimator in self.estimators_])
+        return Y[:, 0] if self._one_column else Y
+
+
+#: Model kinds a training recipe may name -> estimator class.
+MODEL_KINDS = {"ridge": RidgeCorrection, "boosted": BoostedCorrection}
+
+
+def make_estimator(kind, params=None):
+    """A new, unfitted estimator of a model kind with parameters checked.
+
+    Parameters
+    ----------
+    kind : str
+        A key of :data:`MODEL_KINDS`.
+    params : dict, optional
+        Constructor parameters.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        Unknown kind or parameter, or a value out of range (named in the message).
+    """
+    if kind not in MODEL_KINDS:
+        raise ParameterError(f"model kind must be one of {sorted(MODEL_KINDS)}; got {kind!r}")
+    cls = MODEL_KINDS[kind]
+    allowed = sorted(cls().get_params())
+    unknown = sorted(set(params or {}) - set(allowed))
+    if unknown:
+        raise ParameterError(f"{kind} model has no parameters {unknown}; allowed: {allowed}")
+    estimator = cls(**(params or {}))
+    estimator._check_parameters()
+    return estimator
+
+
+def model_kind(estimator):
+    """The recipe name (key of :data:`MODEL_KINDS`) of an estimator's class."""
+    for kind, cls in MODEL_KINDS.items():
+        if type(estimator) is cls:
+            return kind
+    raise ValidationError(f"{type(estimator).__name__} is not a surrogate3d correction model")

@@ -1,0 +1,215 @@
+"""Training recipes: TOML files naming targets, features, the scene split, CV and models.
+
+A recipe (see ``training/default.toml``) has these keys; every one is checked before
+any training starts, and a wrong one is named in the error with the allowed values::
+
+    name = "default"                       # optional, free text
+    description = "..."                    # optional
+    targets = ["surface_downward_flux", ...]  # default: all five, in the documented order
+    features = "all"                       # or a list of feature names of the pairs table
+
+    [split]
+    held_out_scene_fraction = 0.25         # in [0, 1): share of seeds held out per regime
+    held_out_regime = "stratocumulus"      # optional: also train models without it
+    seed = 1                               # which seeds are held out
+
+    [cross_validation]
+    folds = 3                              # >= 2, scene-grouped folds for the search
+
+    [models.NAME]                          # NAME: letters, digits, _ and -
+    kind = "ridge" | "boosted"
+    PARAMETER = value | [values]           # a list is a grid dimension
+"""
+
+import itertools
+import re
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..errors import FormatError, ParameterError, ValidationError
+from .model_directory import TRANSFER_DIR
+from .models import MODEL_KINDS, make_estimator
+from .pairs_table import TARGETS, check_has_features, feature_names
+
+_TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models"}
+_SPLIT_KEYS = {"held_out_scene_fraction", "held_out_regime", "seed"}
+_CV_KEYS = {"folds"}
+_MODEL_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*$")
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    """One model of a recipe: its name, kind and hyperparameter grid.
+
+    Attributes
+    ----------
+    name : str
+        Directory name of the trained model.
+    kind : str
+        Key of :data:`surrogate3d.learn.models.MODEL_KINDS`.
+    grid : dict of str -> list
+        Every parameter with its candidate values (one value for a fixed parameter).
+    """
+
+    name: str
+    kind: str
+    grid: dict
+
+    def candidates(self):
+        """Every parameter combination of the grid, as dicts, in a fixed order."""
+        keys = sorted(self.grid)
+        return [dict(zip(keys, values)) for values in itertools.product(*(self.grid[k] for k in keys))]
+
+
+@dataclass(frozen=True)
+class TrainingRecipe:
+    """A parsed, checked training recipe (see the module docstring for the keys)."""
+
+    name: str
+    description: str
+    targets: tuple
+    features: tuple | None
+    held_out_scene_fraction: float
+    held_out_regime: str | None
+    split_seed: int
+    folds: int
+    models: tuple
+    text: str
+    source: str
+
+    def feature_list(self, pairs):
+        """The recipe's features, or all features of ``pairs`` when the recipe says "all"."""
+        return list(self.features) if self.features is not None else feature_names(pairs)
+
+
+def read_recipe(path):
+    """Read and check a training recipe file.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    TrainingRecipe
+
+    Raises
+    ------
+    surrogate3d.errors.FormatError
+        The file is missing or not TOML.
+    surrogate3d.errors.ParameterError
+        A key or value is wrong (named in the message).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise FormatError(f"training recipe {str(path)!r} does not exist")
+    return parse_recipe(path.read_text(encoding="utf-8"), source=str(path))
+
+
+def _fail(source, where, text):
+    raise ParameterError(f"training recipe {source!r}: {where} {text}")
+
+
+def _check_keys(source, where, table, allowed):
+    if not isinstance(table, dict):
+        _fail(source, where, f"must be a table; got {table!r}")
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        _fail(source, where, f"has unknown keys {unknown}; allowed: {sorted(allowed)}")
+
+
+def parse_recipe(text, source="<recipe>"):
+    """Parse and check recipe text (TOML); see :func:`read_recipe`."""
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise FormatError(f"training recipe {source!r} is not valid TOML: {exc}") from None
+    _check_keys(source, "the top level", raw, _TOP_KEYS)
+    targets = raw.get("targets", list(TARGETS))
+    if not isinstance(targets, list) or not targets or any(t not in TARGETS for t in targets) \
+            or len(set(targets)) != len(targets):
+        _fail(source, "targets", f"must be a non-empty list of distinct names from {list(TARGETS)}; got {targets!r}")
+    features = raw.get("features", "all")
+    if features == "all":
+        features = None
+    elif not isinstance(features, list) or not features or not all(isinstance(f, str) for f in features) \
+            or len(set(features)) != len(features):
+        _fail(source, "features", f'must be "all" or a non-empty list of distinct feature names; got {features!r}')
+    split = raw.get("split", {})
+    _check_keys(source, "[split]", split, _SPLIT_KEYS)
+    fraction = split.get("held_out_scene_fraction", 0.25)
+    if isinstance(fraction, bool) or not isinstance(fraction, (int, float)) or not 0.0 <= fraction < 1.0:
+        _fail(source, "split.held_out_scene_fraction", f"must be a number in [0, 1); got {fraction!r}")
+    regime = split.get("held_out_regime")
+    if regime is not None and (not isinstance(regime, str) or not regime):
+        _fail(source, "split.held_out_regime", f"must be a regime name; got {regime!r}")
+    split_seed = split.get("seed", 0)
+    if isinstance(split_seed, bool) or not isinstance(split_seed, int) or split_seed < 0:
+        _fail(source, "split.seed", f"must be an integer >= 0; got {split_seed!r}")
+    cv = raw.get("cross_validation", {})
+    _check_keys(source, "[cross_validation]", cv, _CV_KEYS)
+    folds = cv.get("folds", 3)
+    if isinstance(folds, bool) or not isinstance(folds, int) or folds < 2:
+        _fail(source, "cross_validation.folds", f"must be an integer >= 2; got {folds!r}")
+    models = raw.get("models")
+    if not isinstance(models, dict) or not models:
+        _fail(source, "[models]", "must define at least one model table, e.g. [models.ridge] with kind = \"ridge\"")
+    specs = tuple(_model_spec(source, name, table) for name, table in models.items())
+    for label in ("name", "description"):
+        if not isinstance(raw.get(label, ""), str):
+            _fail(source, label, f"must be a string; got {raw[label]!r}")
+    return TrainingRecipe(name=raw.get("name", Path(source).stem), description=raw.get("description", ""),
+                          targets=tuple(targets), features=None if features is None else tuple(features),
+                          held_out_scene_fraction=float(fraction), held_out_regime=regime,
+                          split_seed=split_seed, folds=folds, models=specs, text=text, source=source)
+
+
+def _model_spec(source, name, table):
+    where = f"[models.{name}]"
+    if not _MODEL_NAME.match(name):
+        _fail(source, where, "name must start with a letter or digit and hold only letters, digits, _ and -")
+    if name == TRANSFER_DIR:
+        _fail(source, where, f"name {TRANSFER_DIR!r} is reserved for the regime-transfer models")
+    if not isinstance(table, dict):
+        _fail(source, where, f"must be a table; got {table!r}")
+    kind = table.get("kind")
+    if kind not in MODEL_KINDS:
+        _fail(source, f"{where} kind", f"must be one of {sorted(MODEL_KINDS)}; got {kind!r}")
+    grid = {}
+    for key, value in table.items():
+        if key == "kind":
+            continue
+        values = value if isinstance(value, list) else [value]
+        if not values:
+            _fail(source, f"{where} {key}", "is an empty list; give at least one value")
+        grid[key] = values
+    spec = ModelSpec(name=name, kind=kind, grid=grid)
+    for params in spec.candidates():
+        try:
+            make_estimator(kind, params)
+        except ParameterError as exc:
+            _fail(source, where, str(exc))
+    return spec
+
+
+def check_recipe_against_pairs(recipe, pairs):
+    """Check that a pairs table has the recipe's features, targets and held-out regime.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        Naming the missing features or targets, or the unknown regime.
+    """
+    check_has_features(pairs, recipe.feature_list(pairs), needed_by=f"training recipe {recipe.source!r}")
+    missing = [t for t in recipe.targets if t not in [str(v) for v in pairs["target"].values]]
+    if missing:
+        raise ValidationError(f"pairs table lacks targets {missing} named by training recipe {recipe.source!r}")
+    if recipe.held_out_regime is not None:
+        regimes = sorted({str(r) for r in pairs["regime"].values})
+        if recipe.held_out_regime not in regimes:
+            raise ValidationError(f"training recipe {recipe.source!r}: split.held_out_regime "
+                                  f"{recipe.held_out_regime!r} is not a regime of the pairs table; it has {regimes}")
+        if len(regimes) < 2:
+            raise ValidationError(f"training recipe {recipe.source!r}: split.held_out_regime needs at least two "
+                                  f"regimes in the pairs table; it has {regimes}")

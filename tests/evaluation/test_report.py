@@ -1,0 +1,92 @@
+"""The evaluation on held-out scenes and the report files."""
+
+import base64
+import re
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from surrogate3d.errors import ValidationError
+from surrogate3d.evaluation import figures
+from surrogate3d.evaluation.report import HELD_OUT, evaluate
+from surrogate3d.learn.pairs_table import scene_labels
+
+PNG = b"\x89PNG\r\n\x1a\n"
+
+
+def test_only_held_out_scenes_are_scored(evaluation):
+    split = evaluation.record["split"]
+    held = evaluation.sets[0]
+    assert held.label == HELD_OUT
+    assert set(scene_labels(held.pairs)) == set(split["held_out_scenes"])
+    assert set(scene_labels(held.pairs)).isdisjoint(split["training_scenes"])
+    transfer = evaluation.sets[1]
+    assert set(np.asarray(transfer.pairs["regime"].values).astype(str)) == {"dense"}
+    assert set(transfer.predictions) == {"no correction", "tilted independent column", "non-local independent pixel",
+                                         "ridge (trained without dense)", "boosted (trained without dense)"}
+
+
+def test_models_beat_no_correction_and_stay_below_the_noise_floor(evaluation):
+    t = evaluation.table
+    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["units"] == "1")
+             & (t["target"] == "surface_downward_flux")].set_index("predictor")
+    assert rows.loc["boosted", "skill"] > 0.6
+    assert rows.loc["boosted", "skill"] <= rows.loc["boosted", "noise_floor_skill"] + 0.02
+    assert rows.loc["no correction", "skill"] == 0.0
+
+
+def test_consistency_step_is_applied(evaluation, model_dir, pairs_file):
+    outcome = evaluation.sets[0].outcomes["boosted"]
+    assert outcome is not None and outcome.flux.min() >= 0.0
+    assert set(evaluation.sets[0].raw) == {"ridge", "boosted"}
+    raw = evaluate(model_dir, pairs_file, consistency=False, learning_curve_points=0, importance_repeats=0,
+                   quiet=True)
+    assert raw.sets[0].outcomes["boosted"] is None and not raw.sets[0].raw
+    np.testing.assert_array_equal(raw.sets[0].predictions["boosted"], evaluation.sets[0].raw["boosted"])
+
+
+def test_report_files(report_dir):
+    names = {p.name for p in report_dir.iterdir()}
+    assert {"report.html", "metrics.csv", "metrics.md", "breakdown_regime.csv", "breakdown_solar_zenith.md",
+            "breakdown_cloud_fraction.csv", "breakdown_host_resolution.md", "importance.csv", "learning_curve.csv",
+            "consistency.csv", "consistency_skill.csv", "summary.json", "figures"} <= names
+    metrics = pd.read_csv(report_dir / "metrics.csv")
+    assert set(metrics["units"]) == {"1", "W m-2"}
+    assert set(metrics["predictor"]) >= {"no correction", "tilted independent column", "non-local independent pixel",
+                                         "ridge", "boosted"}
+    assert (report_dir / "metrics.md").read_text().startswith("# Skill on held-out data")
+    curve = pd.read_csv(report_dir / "learning_curve.csv")
+    assert curve["n_training_scenes"].nunique() == 2
+
+
+def test_html_is_self_contained(report_dir):
+    page = (report_dir / "report.html").read_text()
+    sources = re.findall(r'src="([^"]*)"', page)
+    assert len(sources) >= 9 and all(s.startswith("data:image/png;base64,") for s in sources)
+    assert base64.b64decode(sources[0].split(",", 1)[1]).startswith(PNG)
+    assert "<link" not in page and "http" not in page.split("<footer>")[0].replace("http-equiv", "")
+    for section in ("Maps of sample held-out scenes", "Feature importance", "Learning curve", "Regime transfer"):
+        assert section in page
+    assert all(p.read_bytes().startswith(PNG) for p in (report_dir / "figures").glob("*.png"))
+
+
+def test_host_map_reconstruction(synthetic_pairs):
+    pairs = synthetic_pairs
+    one = (pairs["scene"].values == pairs["scene"].values[0]) & (pairs["host_resolution"].values == 1000.0) \
+        & (pairs["solar_zenith_angle"].values == 20.0)
+    sub = pairs.isel(sample=np.flatnonzero(one)[::-1])
+    values = sub["host_ix"].values * 10 + sub["host_iy"].values
+    grid = figures.host_map(sub, values)
+    iy, ix = np.mgrid[0:8, 0:8]
+    np.testing.assert_array_equal(grid, ix * 10 + iy)
+
+
+def test_missing_held_out_scene_is_named(model_dir, synthetic_pairs, tmp_path, evaluation):
+    from surrogate3d.archive import write_dataset
+
+    held = evaluation.record["split"]["held_out_scenes"][0]
+    keep = np.flatnonzero(np.asarray(synthetic_pairs["scene"].values).astype(str) != held)
+    path = write_dataset(synthetic_pairs.isel(sample=keep), tmp_path / "partial.nc")
+    with pytest.raises(ValidationError, match=held):
+        evaluate(model_dir, path, learning_curve_points=0, importance_repeats=0, quiet=True)

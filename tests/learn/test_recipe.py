@@ -1,0 +1,66 @@
+"""Training recipes: the shipped default parses; every bad key or value is named."""
+
+from pathlib import Path
+
+import pytest
+
+from surrogate3d.errors import FormatError, ParameterError, ValidationError
+from surrogate3d.learn.recipe import check_recipe_against_pairs, parse_recipe, read_recipe
+
+DEFAULT = Path(__file__).resolve().parents[2] / "training" / "default.toml"
+
+
+def test_default_recipe_parses():
+    recipe = read_recipe(DEFAULT)
+    assert {m.kind for m in recipe.models} == {"ridge", "boosted"}
+    assert len(recipe.targets) == 5 and recipe.features is None
+    ridge = next(m for m in recipe.models if m.kind == "ridge")
+    assert ridge.grid["interactions"] == [True] and len(ridge.candidates()) == 4
+    assert 0 < recipe.held_out_scene_fraction < 1 and recipe.folds >= 2
+
+
+def test_small_recipe_grid(small_recipe):
+    recipe = parse_recipe(small_recipe)
+    ridge = recipe.models[0]
+    assert ridge.candidates() == [{"alpha": 0.01, "interactions": True}, {"alpha": 100.0, "interactions": True}]
+
+
+@pytest.mark.parametrize("edit, words", [
+    (("[split]", "[split]\nheld_out_fraction = 0.3"), ["[split]", "held_out_fraction"]),
+    (('kind = "ridge"', 'kind = "forest"'), ["kind", "'forest'"]),
+    (("max_iter = 40", "max_iter = 40\ndepth = 3"), ["depth", "allowed"]),
+    (("max_iter = 40", "max_iter = 40\nlearning_rate = [0.1, 2.0]"), ["learning_rate", "(0, 1]", "2.0"]),
+    (("alpha = [0.01, 100.0]", "alpha = [-1.0]"), ["alpha", "-1.0"]),
+    (("alpha = [0.01, 100.0]", "alpha = []"), ["alpha", "empty"]),
+    (("held_out_scene_fraction = 0.25", "held_out_scene_fraction = 1.0"), ["held_out_scene_fraction", "[0, 1)"]),
+    (("folds = 2", "folds = 1"), ["folds", ">= 2"]),
+    (('features = "all"', 'features = "some"'), ["features"]),
+    (("[models.ridge]", "[models.transfer]"), ["transfer", "reserved"]),
+    (('name = "small"', 'name = "small"\ntargets = ["surface_upward_flux"]'), ["targets", "surface_upward_flux"]),
+])
+def test_bad_recipes_are_named(small_recipe, edit, words):
+    text = small_recipe.replace(*edit)
+    assert text != small_recipe
+    with pytest.raises(ParameterError) as info:
+        parse_recipe(text, source="bad.toml")
+    for word in ["bad.toml"] + words:
+        assert word in str(info.value)
+
+
+def test_unreadable_recipes(tmp_path):
+    with pytest.raises(FormatError, match="not valid TOML"):
+        parse_recipe("models = [", source="x.toml")
+    with pytest.raises(FormatError, match="does not exist"):
+        read_recipe(tmp_path / "missing.toml")
+    with pytest.raises(ParameterError, match=r"\[models\]"):
+        parse_recipe('name = "no models"')
+
+
+def test_recipe_against_pairs(synthetic_pairs, small_recipe):
+    recipe = parse_recipe(small_recipe.replace('features = "all"', 'features = ["cloud_fraction", "liquid_path"]'))
+    with pytest.raises(ValidationError, match=r"lacks features \['liquid_path'\]"):
+        check_recipe_against_pairs(recipe, synthetic_pairs)
+    recipe = parse_recipe(small_recipe.replace('held_out_regime = "dense"', 'held_out_regime = "cirrus"'))
+    with pytest.raises(ValidationError, match="'cirrus' is not a regime"):
+        check_recipe_against_pairs(recipe, synthetic_pairs)
+    check_recipe_against_pairs(parse_recipe(small_recipe), synthetic_pairs)
