@@ -6,6 +6,7 @@ file only assembles them and turns errors into one-line messages with a non-zero
 
 import argparse
 import importlib
+import os
 import sys
 
 from . import __version__
@@ -19,6 +20,8 @@ COMMAND_MODULES = [
     "surrogate3d.pairs.commands",
     "surrogate3d.learn.commands",
     "surrogate3d.evaluation.commands",
+    "surrogate3d.export.commands",
+    "surrogate3d.demo",
 ]
 
 
@@ -49,6 +52,10 @@ def main(argv=None):
     except KeyboardInterrupt:
         print(f"surrogate3d {args.command}: interrupted; finished work is kept", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader of our output went away (for example `| head`): not an error of ours.
+        sys.stdout = open(os.devnull, "w")
+        return 0
     return 0
 
 

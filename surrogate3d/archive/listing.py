@@ -4,6 +4,7 @@ import pandas as pd
 import xarray as xr
 
 from .netcdf import ENGINE, scene_files
+from .pending import pending_keys
 from .results import completed
 
 
@@ -14,7 +15,9 @@ def list_archive(archive_dir):
     -------
     pandas.DataFrame
         Columns: file, regime, seed, nx, ny, nz, dx_m, bands, results (solver@zenith/azimuth
-        entries, comma separated), status ("ok" or the reason it cannot be read).
+        entries, comma separated), pending (results of an interrupted run not yet merged:
+        run ``surrogate3d simulate`` again to merge them), status ("ok" or the reason it
+        cannot be read).
     """
     rows = []
     for path in scene_files(archive_dir):
@@ -25,9 +28,10 @@ def list_archive(archive_dir):
                 row.update(regime=ds.attrs.get("regime", ""), seed=ds.attrs.get("seed", ""),
                            nx=ds.sizes.get("x"), ny=ds.sizes.get("y"), nz=ds.sizes.get("z"),
                            dx_m=ds.attrs.get("dx_m"), bands=ds.sizes.get("band"),
-                           results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done), status="ok")
+                           results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done),
+                           pending=len(pending_keys(path)), status="ok")
         except (OSError, ValueError, KeyError) as exc:
             row["status"] = f"unreadable: {exc}"
         rows.append(row)
     return pd.DataFrame(rows, columns=["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands",
-                                       "results", "status"])
+                                       "results", "pending", "status"])

@@ -13,6 +13,7 @@ import xarray as xr
 
 from .._atomic import atomic_path
 from ..errors import FormatError
+from .results import strip_results
 from ..scenes.model import FORMAT_VERSION, annotate
 from ..scenes.validation import validate_scene
 
@@ -21,9 +22,11 @@ SCENE_SUFFIX = ".nc"
 
 
 def _encoding(ds):
+    # Scene fields (clear air, smooth clouds) compress well; Monte Carlo results are noise
+    # that does not, and compressing them would only slow every rewrite.
     enc = {}
     for name, var in ds.variables.items():
-        if np.issubdtype(var.dtype, np.floating) and var.ndim >= 2:
+        if np.issubdtype(var.dtype, np.floating) and var.ndim >= 2 and "solver" not in var.dims:
             enc[name] = {"zlib": True, "complevel": 1, "shuffle": True}
     return enc
 
@@ -36,14 +39,21 @@ def write_dataset(ds, path):
     return path
 
 
-def open_dataset(path, what="file"):
-    """Read a whole NetCDF file into memory and close it; unreadable files raise FormatError."""
+def _scene_only(ds):
+    return strip_results(ds)
+
+
+def open_dataset(path, what="file", keep=None):
+    """Read a whole NetCDF file into memory and close it; unreadable files raise FormatError.
+
+    ``keep``, if given, maps the lazily opened Dataset to the part to load.
+    """
     path = Path(path)
     if not path.is_file():
         raise FormatError(f"{what} {str(path)!r} does not exist")
     try:
         with xr.open_dataset(path, engine=ENGINE) as ds:
-            return ds.load()
+            return (keep(ds) if keep else ds).load()
     except (OSError, ValueError, KeyError, RuntimeError) as exc:
         raise FormatError(f"cannot read {what} {str(path)!r}: not a NetCDF-4 file or truncated ({exc})") from None
 
@@ -80,7 +90,7 @@ def write_scene(scene, path, validate=True):
     return write_dataset(scene, path)
 
 
-def read_scene(path, validate=True):
+def read_scene(path, validate=True, results=True):
     """Read a scene file fully into memory.
 
     Parameters
@@ -88,6 +98,8 @@ def read_scene(path, validate=True):
     path : str or Path
     validate : bool
         Run the scene validator (default).
+    results : bool
+        Also read the stored results (default); without them reading is faster.
 
     Returns
     -------
@@ -100,7 +112,7 @@ def read_scene(path, validate=True):
     surrogate3d.errors.ValidationError
         The scene breaks the data model.
     """
-    ds = open_dataset(path, what="scene file")
+    ds = open_dataset(path, what="scene file", keep=None if results else _scene_only)
     check_format_version(ds, path)
     # NetCDF stores band names as variable-length strings; keep them as Python str.
     if "band" in ds.coords:

@@ -189,33 +189,44 @@ def _runs(scene):
     return [select_result(scene, s, z, a) for s, z, a in completed(scene)]
 
 
-def insert_result(scene, result):
-    """Return a copy of ``scene`` that also holds ``result`` (replacing one at the same slot).
+def run_key(result):
+    """``(solver, solar_zenith_angle, solar_beam_azimuth)`` of a run result."""
+    return (str(result.attrs["solver"]), float(result.attrs["solar_zenith_angle"]),
+            float(result.attrs["solar_beam_azimuth"]) % 360.0)
+
+
+def _same_slot(a, b):
+    return a[0] == b[0] and abs(a[1] - b[1]) < SUN_TOLERANCE_DEG and abs(a[2] - b[2]) < SUN_TOLERANCE_DEG
+
+
+def insert_results(scene, results):
+    """Return a copy of ``scene`` that also holds ``results`` (replacing any at the same slots).
 
     Parameters
     ----------
     scene : xarray.Dataset
         A scene, with or without stored results.
-    result : xarray.Dataset
-        A run result from :func:`make_run_result` computed for this scene.
+    results : sequence of xarray.Dataset
+        Run results from :func:`make_run_result` computed for this scene.
 
     Returns
     -------
     xarray.Dataset
     """
-    ny, nx = scene.sizes["y"], scene.sizes["x"]
-    if result.sizes.get("y") != ny or result.sizes.get("x") != nx or result.sizes.get("z") != scene.sizes["z"]:
-        raise ValidationError(f"result grid {dict(result.sizes)} does not match the scene grid "
-                              f"(z={scene.sizes['z']}, y={ny}, x={nx})")
-    key = (result.attrs["solver"], float(result.attrs["solar_zenith_angle"]),
-           float(result.attrs["solar_beam_azimuth"]) % 360.0)
-    runs = {(r.attrs["solver"], r.attrs["solar_zenith_angle"], r.attrs["solar_beam_azimuth"]): r
-            for r in _runs(scene)}
-    runs = {k: v for k, v in runs.items()
-            if not (k[0] == key[0] and abs(k[1] - key[1]) < SUN_TOLERANCE_DEG
-                    and abs(k[2] - key[2]) < SUN_TOLERANCE_DEG)}
-    runs[key] = result
-    return _stack(strip_results(scene), list(runs.values()))
+    ny, nx, nz = scene.sizes["y"], scene.sizes["x"], scene.sizes["z"]
+    runs = _runs(scene)
+    for result in results:
+        if result.sizes.get("y") != ny or result.sizes.get("x") != nx or result.sizes.get("z") != nz:
+            raise ValidationError(f"result grid {dict(result.sizes)} does not match the scene grid "
+                                  f"(z={nz}, y={ny}, x={nx})")
+        key = run_key(result)
+        runs = [r for r in runs if not _same_slot(run_key(r), key)] + [result]
+    return _stack(strip_results(scene), runs)
+
+
+def insert_result(scene, result):
+    """Return a copy of ``scene`` that also holds ``result`` (see :func:`insert_results`)."""
+    return insert_results(scene, [result])
 
 
 def _stack(scene, runs):

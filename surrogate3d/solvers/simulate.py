@@ -1,9 +1,10 @@
 """Build a benchmark archive: run every scene x sun geometry x solver kind, resumably.
 
 Work is split into tasks (one scene, one sun geometry, one solver kind).  Workers only
-compute; the calling process writes every finished result into its scene file at once
-(atomically), so a run that is killed loses at most the tasks in flight and the next run
-continues where it stopped.  Each task's seed is derived from the run seed and the task's
+compute; the calling process stores every finished result at once (atomically) beside
+its scene file and merges a scene's results into the scene file when its last task is
+done (:mod:`surrogate3d.archive.pending`), so a run that is killed loses at most the
+tasks in flight and the next run continues where it stopped.  Each task's seed is derived from the run seed and the task's
 identity, never from the order of execution, so 1 or N workers give the same numbers.
 """
 
@@ -14,8 +15,9 @@ from pathlib import Path
 
 from tqdm.auto import tqdm
 
-from ..archive.netcdf import read_scene, scene_files, write_scene
-from ..archive.results import SOLVERS, has_result, insert_result
+from ..archive.netcdf import read_scene, scene_files
+from ..archive.pending import merge_pending, write_pending
+from ..archive.results import SOLVERS, has_result
 from ..errors import ParameterError, Surrogate3DError
 from .montecarlo import SOLAR_CONSTANT, _check_int, solve_monte_carlo
 from .sun import check_sun
@@ -53,7 +55,7 @@ def task_seed(seed, path, zenith, azimuth):
 
 def run_task(task, options):
     """Compute one task; returns the run result (an xarray Dataset).  Runs in workers."""
-    scene = read_scene(task.path)
+    scene = read_scene(task.path, results=False)
     if task.solver == "two_stream":
         from .two_stream import solve_scene
 
@@ -64,11 +66,6 @@ def run_task(task, options):
         independent_columns=task.solver == "independent_column", batch_size=options.batch_size,
         rays_per_column=options.rays_per_column, threads=options.threads, per_band=options.per_band,
         solar_constant=options.solar_constant, **options.extra)
-
-
-def _store(task, result):
-    scene = read_scene(task.path)
-    write_scene(insert_result(scene, result), task.path)
 
 
 def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
@@ -96,6 +93,7 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
     suns = [check_sun(z, a) for z in zeniths for a in azimuths]
     todo, done = [], 0
     for path in files:
+        merge_pending(path)  # results an interrupted run left behind
         scene = read_scene(path)  # every scene is validated before any work starts
         for zenith, azimuth in suns:
             tseed = task_seed(seed, path, zenith, azimuth)
@@ -180,10 +178,16 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
     else:
         results = _local_results(todo, options, n_jobs)
     bar = tqdm(total=len(todo), desc="simulate", unit="run", disable=quiet or not todo)
+    remaining = {}
+    for task in todo:
+        remaining[task.path] = remaining.get(task.path, 0) + 1
     computed = 0
     try:
         for task, result in results:
-            _store(task, result)
+            write_pending(task.path, result)
+            remaining[task.path] -= 1
+            if remaining[task.path] == 0:
+                merge_pending(task.path)
             computed += 1
             bar.set_postfix_str(f"{Path(task.path).stem} {task.solver} {task.solar_zenith_angle:g} deg")
             bar.update()

@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.archive import completed, read_scene, select_result, write_scene
+from surrogate3d.archive.pending import pending_keys
 from surrogate3d.cli import main
 from surrogate3d.errors import ParameterError, Surrogate3DError
 from surrogate3d.scenes import make_scene
@@ -60,11 +61,13 @@ def test_killed_run_continues_where_it_stopped(archive, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         simulate_archive(archive, [30.0], [0.0, 90.0], photons=2000, seed=4, quiet=True)
     kept = sum(len(completed(s)) for s in _stored(archive).values())
+    kept += sum(len(pending_keys(p)) for p in archive.glob("*.nc"))
     assert kept == 3
     monkeypatch.setattr(simulate_module, "run_task", real)
     summary = simulate_archive(archive, [30.0], [0.0, 90.0], photons=2000, seed=4, quiet=True)
     assert summary["computed"] == 12 - 3 and summary["skipped"] == 3
-    assert not list(archive.glob(".*tmp*"))  # no temporary file left behind
+    assert sum(len(completed(s)) for s in _stored(archive).values()) == 12
+    assert not list(archive.glob(".*"))  # no temporary or pending file left behind
 
 
 def _fluxes(archive_dir):

@@ -1,0 +1,57 @@
+"""Results waiting to be merged into their scene file.
+
+Rewriting a whole scene file for every finished run would make a long archive build
+spend its time on I/O.  A finished run is instead written at once, atomically, as a small
+file in the hidden directory ``.<scene>.pending/`` beside its scene file; the pending
+results of a scene are merged into the scene file in one rewrite (and then removed) when
+its last run finishes, or by the next run after an interruption.  Nothing finished is
+ever lost, and readers of the archive only ever see complete scene files.
+"""
+
+import shutil
+from pathlib import Path
+
+from .netcdf import open_dataset, read_scene, write_dataset, write_scene
+from .results import insert_results, run_key
+
+
+def pending_dir(scene_path):
+    """The directory holding a scene's pending results."""
+    scene_path = Path(scene_path)
+    return scene_path.parent / f".{scene_path.stem}.pending"
+
+
+def write_pending(scene_path, result):
+    """Store one finished run result beside its scene file (atomically)."""
+    solver, zenith, azimuth = run_key(result)
+    directory = pending_dir(scene_path)
+    directory.mkdir(exist_ok=True)
+    return write_dataset(result, directory / f"{solver}_{zenith:.6f}_{azimuth:.6f}.nc")
+
+
+def pending_files(scene_path):
+    """Sorted pending result files of a scene (complete files only: temporaries start with '.')."""
+    directory = pending_dir(scene_path)
+    if not directory.is_dir():
+        return []
+    return sorted(p for p in directory.glob("*.nc") if not p.name.startswith("."))
+
+
+def pending_keys(scene_path):
+    """``(solver, zenith, azimuth)`` of every pending result of a scene."""
+    keys = []
+    for path in pending_files(scene_path):
+        solver, zenith, azimuth = path.stem.rsplit("_", 2)
+        keys.append((solver, float(zenith), float(azimuth)))
+    return keys
+
+
+def merge_pending(scene_path):
+    """Merge a scene's pending results into its file in one atomic rewrite; returns how many."""
+    files = pending_files(scene_path)
+    if files:
+        results = [open_dataset(p, what="pending result") for p in files]
+        scene = read_scene(scene_path)
+        write_scene(insert_results(scene, results), scene_path, validate=False)
+    shutil.rmtree(pending_dir(scene_path), ignore_errors=True)
+    return len(files)

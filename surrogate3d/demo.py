@@ -1,0 +1,303 @@
+"""The embedded default run: synthetic scenes -> benchmarks -> pairs -> models -> report -> export.
+
+Every stage writes into one output directory and is skipped on a second run when its
+output is already there and up to date, so an interrupted demo continues where it stopped.
+The settings live in ``surrogate3d/data/demo*.toml``.
+"""
+
+import json
+import os
+import sys
+import time
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+
+from ._atomic import write_text_atomic
+from .errors import Surrogate3DError
+
+STAGES = ("scenes", "simulate", "pairs", "train", "evaluate", "export")
+
+
+@dataclass
+class DemoPaths:
+    """Where the demo writes each stage's output."""
+
+    root: Path
+
+    @property
+    def archive(self):
+        return self.root / "archive"
+
+    @property
+    def pairs(self):
+        return self.root / "pairs.nc"
+
+    @property
+    def models(self):
+        return self.root / "models"
+
+    @property
+    def report(self):
+        return self.root / "report"
+
+    @property
+    def export(self):
+        return self.root / "export"
+
+    @property
+    def recipe(self):
+        return self.root / "recipe.toml"
+
+    @property
+    def summary(self):
+        return self.root / "summary.md"
+
+
+def _data(name):
+    return resources.files("surrogate3d").joinpath("data", name).read_text(encoding="utf-8")
+
+
+def demo_settings(quick=False):
+    """The demo's settings: scene set, simulate, pairs and evaluate options, recipe text."""
+    from .scenes.config import parse_config
+
+    settings = tomllib.loads(_data("demo.toml"))
+    scenes = tomllib.loads(_data("demo-scenes.toml"))
+    recipe = _data("demo-recipe.toml")
+    if quick:
+        q = settings["quick"]
+        scenes["grid"] = dict(q["grid"])
+        scenes["count"] = q["count"]
+        scenes["regime"] = [{"name": name} for name in q["regimes"]]
+        settings["simulate"].update(zeniths=q["zeniths"], photons=q["photons"])
+        settings["pairs"]["host_resolutions"] = q["host_resolutions"]
+        settings["evaluate"].update({k: q[k] for k in ("learning_curve_points", "importance_repeats", "map_scenes")})
+    settings["scenes"] = parse_config(scenes, source="demo-scenes.toml")
+    settings["recipe"] = recipe
+    return settings
+
+
+class _Stages:
+    """Prints one line per stage with its duration; tells whether a stage was reused."""
+
+    def __init__(self, quiet):
+        self.quiet = quiet
+        self.started = time.perf_counter()
+
+    def begin(self, number, name, text):
+        self.t0 = time.perf_counter()
+        if not self.quiet:
+            print(f"[{number}/{len(STAGES)}] {name}: {text}", file=sys.stderr, flush=True)
+
+    def end(self, text):
+        if not self.quiet:
+            print(f"      {text} ({time.perf_counter() - self.t0:.0f} s)", file=sys.stderr, flush=True)
+
+
+def _make_scenes(cfg, archive, quiet):
+    from tqdm.auto import tqdm
+
+    from .archive import write_scene
+    from .scenes.generator import generate_scene
+
+    archive.mkdir(parents=True, exist_ok=True)
+    options = cfg.generator_options()
+    jobs = [(entry.regime, seed) for entry in cfg.entries() for seed in entry.seeds]
+    made = 0
+    for regime, seed in tqdm(jobs, desc="scenes", unit="scene", disable=quiet or None):
+        path = archive / f"{regime.name}_{seed:05d}.nc"
+        if path.is_file():
+            continue
+        write_scene(generate_scene(regime, seed, **options), path, validate=False)
+        made += 1
+    return made, len(jobs)
+
+
+def _warm_up_compiled_kernels():
+    # Compile (or load from cache) the Monte Carlo kernels once in this process, so that
+    # parallel workers starting together find them in the cache instead of each compiling.
+    import numpy as np
+
+    from .scenes import make_scene
+    from .solvers import solve_monte_carlo
+
+    scene = make_scene(np.full((1, 2, 2, 2), 1e-3), 0.9, 0.8, [0.0, 500.0, 1000.0], 100.0, 100.0)
+    solve_monte_carlo(scene, 30.0, photons=200, threads=1)
+    solve_monte_carlo(scene, 30.0, photons=200, threads=1, independent_columns=True)
+
+
+def _pairs_up_to_date(paths):
+    from .archive import open_dataset
+    from .pairs.build import archive_fingerprint
+
+    if not paths.pairs.is_file():
+        return False
+    try:
+        attrs = open_dataset(paths.pairs).attrs
+    except Surrogate3DError:
+        return False
+    return attrs.get("archive_fingerprint") == archive_fingerprint(paths.archive)
+
+
+def _training_up_to_date(paths):
+    from .learn.model_directory import file_sha256
+
+    record = paths.models / "training.json"
+    if not record.is_file():
+        return False
+    try:
+        provenance = json.loads(record.read_text())["provenance"]
+    except (OSError, ValueError, KeyError):
+        return False
+    return provenance.get("pairs_sha256") == file_sha256(paths.pairs) and provenance.get("recipe_text") == \
+        paths.recipe.read_text()
+
+
+def _newer(target, source):
+    return target.exists() and target.stat().st_mtime >= source.stat().st_mtime
+
+
+def run_demo(out, quick=False, jobs=None, quiet=False):
+    """Run the whole pipeline on the embedded default and write a summary.
+
+    Parameters
+    ----------
+    out : str or Path
+        Output directory (created); holds ``archive/``, ``pairs.nc``, ``models/``,
+        ``report/``, ``export/`` and ``summary.md``.
+    quick : bool
+        A tiny version of the same pipeline (a minute or two; for tests and a first look).
+    jobs : int, optional
+        Worker processes for the benchmarks (default: all cores).
+    quiet : bool
+        No progress output.
+
+    Returns
+    -------
+    dict
+        The summary: skill of every model and baseline on held-out scenes and the paths.
+    """
+    from .evaluation.report import evaluate, write_report
+    from .export.exporter import export_training_run
+    from .learn.train import train_models
+    from .pairs.build import build_pairs
+    from .solvers.simulate import simulate_archive
+
+    paths = DemoPaths(Path(out))
+    paths.root.mkdir(parents=True, exist_ok=True)
+    settings = demo_settings(quick)
+    jobs = jobs or os.cpu_count() or 1
+    stages = _Stages(quiet)
+
+    stages.begin(1, "scenes", f"synthetic cloud scenes in {paths.archive}")
+    made, total = _make_scenes(settings["scenes"], paths.archive, quiet)
+    stages.end(f"{made} generated, {total - made} reused")
+
+    sim = settings["simulate"]
+    stages.begin(2, "simulate", f"3D, independent-column and two-stream runs at solar zenith {sim['zeniths']} deg, "
+                                f"{sim['photons']} photons each, {jobs} workers")
+    _warm_up_compiled_kernels()
+    done = simulate_archive(paths.archive, sim["zeniths"], sim["azimuths"], photons=sim["photons"], seed=sim["seed"],
+                            n_jobs=jobs, quiet=quiet)
+    stages.end(f"{done['computed']} runs computed, {done['skipped']} reused")
+
+    resolutions = settings["pairs"]["host_resolutions"]
+    stages.begin(3, "pairs", f"training pairs at host resolution {', '.join(f'{r:g}' for r in resolutions)} m")
+    if _pairs_up_to_date(paths):
+        stages.end(f"reused {paths.pairs}")
+    else:
+        from .archive import write_dataset
+
+        write_dataset(build_pairs(paths.archive, resolutions, quiet=quiet), paths.pairs)
+        stages.end(f"wrote {paths.pairs}")
+
+    stages.begin(4, "train", "ridge and gradient-boosted corrections, scene-grouped cross-validation")
+    if not (paths.recipe.is_file() and paths.recipe.read_text() == settings["recipe"]):
+        write_text_atomic(paths.recipe, settings["recipe"])
+    if _training_up_to_date(paths):
+        stages.end(f"reused {paths.models}")
+    else:
+        train_models(paths.pairs, paths.recipe, paths.models, quiet=quiet)
+        stages.end(f"wrote {paths.models}")
+
+    ev = settings["evaluate"]
+    stages.begin(5, "evaluate", "skill on held-out scenes and on the held-out regime")
+    page = paths.report / "report.html"
+    if _newer(page, paths.models / "training.json"):
+        stages.end(f"reused {paths.report}")
+    else:
+        evaluation = evaluate(paths.models, paths.pairs, learning_curve_points=ev["learning_curve_points"],
+                              importance_repeats=ev["importance_repeats"], quiet=quiet)
+        page = write_report(evaluation, paths.report, map_scenes=ev["map_scenes"])
+        stages.end(f"wrote {page}")
+
+    stages.begin(6, "export", "coefficient files and the Fortran module")
+    marker = paths.export / "README.txt"
+    if _newer(marker, page):
+        stages.end(f"reused {paths.export}")
+    else:
+        export_training_run(paths.models, paths.export, report_dir=paths.report, fortran=True, pairs_path=paths.pairs)
+        write_text_atomic(marker, f"Exported from {paths.models} with the skill table of {paths.report}.\n")
+        stages.end(f"wrote {paths.export}")
+
+    summary = summarize(paths, Path(page))
+    write_text_atomic(paths.summary, summary["markdown"])
+    if not quiet:
+        print(summary["markdown"])
+        print(f"demo finished in {time.perf_counter() - stages.started:.0f} s", file=sys.stderr)
+    return summary
+
+
+def summarize(paths, page):
+    """The summary table (held-out skill of every model and baseline) and the output paths."""
+    import pandas as pd
+
+    table = pd.read_csv(paths.report / "metrics.csv")
+    held = table[(table["breakdown"] == "all") & (table["units"] == "W m-2")]
+    sets = list(dict.fromkeys(held["evaluation_set"]))
+    lines = ["# surrogate3d demo summary", ""]
+    for name in sets:
+        part = held[held["evaluation_set"] == name]
+        lines += [f"## {name}", "", "skill = 1 - RMSE(corrected) / RMSE(independent column); RMSE in W m-2", ""]
+        targets = list(dict.fromkeys(part["target"]))
+        lines.append("| predictor | " + " | ".join(targets) + " |")
+        lines.append("|---|" + "---|" * len(targets))
+        for predictor in dict.fromkeys(part["predictor"]):
+            rows = part[part["predictor"] == predictor].set_index("target")
+            cells = [f"{rows.loc[t, 'skill']:.2f} ({rows.loc[t, 'rmse']:.1f})" if t in rows.index else "-"
+                     for t in targets]
+            lines.append(f"| {predictor} | " + " | ".join(cells) + " |")
+        lines.append("")
+    lines += ["## outputs", "",
+              f"- archive (scenes and benchmark results): `{paths.archive}`",
+              f"- training pairs: `{paths.pairs}`",
+              f"- trained models: `{paths.models}`",
+              f"- report: `{page}`",
+              f"- coefficient files and Fortran module: `{paths.export}`",
+              ""]
+    return {"markdown": "\n".join(lines), "table": held}
+
+
+def register(sub):
+    p = sub.add_parser(
+        "demo", help="the whole job on the embedded default: scenes, benchmarks, training, report, export",
+        description="Generates synthetic scenes of our own regimes, runs the 3D, independent-column and "
+                    "two-stream benchmarks, builds training pairs at 1 km host columns, trains ridge and "
+                    "gradient-boosted corrections, evaluates them on held-out scenes against the published "
+                    "baselines, writes the HTML report and exports the coefficients and a Fortran module. "
+                    "A second run reuses finished work.")
+    p.add_argument("--out", required=True, metavar="DIR", help="output directory")
+    p.add_argument("--quick", action="store_true", help="a tiny version of the same pipeline (about a minute)")
+    p.add_argument("--jobs", type=int, metavar="N", help="worker processes for the benchmarks (default: all cores)")
+    p.add_argument("--quiet", action="store_true", help="no progress output")
+    p.set_defaults(func=_run_command)
+
+
+def _run_command(args):
+    from .errors import ParameterError
+
+    if args.jobs is not None and args.jobs < 1:
+        raise ParameterError(f"--jobs must be >= 1; got {args.jobs}")
+    run_demo(args.out, quick=args.quick, jobs=args.jobs, quiet=args.quiet)

@@ -1,0 +1,16 @@
+"""Exporting trained corrections for host models: coefficient files and a Fortran module.
+
+:func:`export_training_run` (``surrogate3d export``) writes, per model, a NetCDF
+coefficient file and its JSON twin (read by the numpy-only :mod:`surrogate3d.runtime`)
+and optionally a Fortran 2008 module with a driver program.  ``docs/export-format.md``
+documents the files; ``docs/host-model-guide.md`` shows how a host model uses them.
+"""
+
+from .coefficients import build_document, read_coefficients, write_coefficients
+from .exporter import export_model, export_training_run, sample_features
+from .flatten import flatten, ridge_arrays, tree_arrays
+from .fortran import fortran_name, fortran_sources, write_fortran
+
+__all__ = ["build_document", "export_model", "export_training_run", "flatten", "fortran_name", "fortran_sources",
+           "read_coefficients", "ridge_arrays", "sample_features", "tree_arrays", "write_coefficients",
+           "write_fortran"]

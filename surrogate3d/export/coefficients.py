@@ -1,0 +1,281 @@
+"""Coefficient files: one trained model as a NetCDF file and its JSON twin.
+
+Both files hold the same *document* (:mod:`surrogate3d.runtime.document`): format
+version, model kind and hyperparameters, the ordered features with units and their
+recipe, the targets, the model arrays, the training provenance and, when a report
+directory is given, the model's rows of the held-out skill table.  The JSON twin is
+what the numpy-only runtime reads; the NetCDF file is for archives and for tools that
+read NetCDF.  ``docs/export-format.md`` documents every field.
+"""
+
+import csv
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from .. import __version__
+from .._atomic import write_text_atomic
+from ..archive import open_dataset, write_dataset
+from ..errors import FormatError, ParameterError, ValidationError
+from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
+from ..pairs.recipe import FeatureRecipe
+from ..runtime.document import (ARRAYS, FORMAT_NAME, FORMAT_VERSION, check_document, document_from_json,
+                                document_to_json)
+from .flatten import flatten
+
+#: Suffixes of the two files of one model.
+NETCDF_SUFFIX = ".coefficients.nc"
+JSON_SUFFIX = ".coefficients.json"
+
+#: Definition of the targets, stored with their names.
+TARGET_DEFINITION = ("3D minus independent-column flux, host-column mean, as a fraction of the incident flux on "
+                     "the horizontal (S0 cos(theta0))")
+
+#: Provenance keys copied from the model card.
+_CARD_PROVENANCE = ("archive_fingerprint", "pairs_file", "pairs_sha256", "recipe_file", "recipe_text",
+                    "package_version", "scikit_learn_version", "numpy_version", "training_scenes",
+                    "held_out_scenes", "excluded_regime")
+
+#: Columns of metrics.csv that are the same on every row of the whole-set table.
+_CONSTANT_COLUMNS = ("breakdown", "group", "group_order", "group_value")
+
+_SKILL_KEYS = ("evaluation_set", "predictor", "target", "units")
+
+#: Arrays of at least this many bytes are compressed in the NetCDF file.
+_COMPRESS_FROM = 4096
+
+
+def build_document(trained, report_dir=None):
+    """The coefficient document of a trained model.
+
+    Parameters
+    ----------
+    trained : surrogate3d.learn.TrainedModel
+        From :func:`surrogate3d.learn.load_model` or :func:`~surrogate3d.learn.load_training_run`.
+    report_dir : str or Path, optional
+        Report directory written by ``surrogate3d evaluate``; the model's rows of its
+        ``metrics.csv`` become the skill table.
+
+    Returns
+    -------
+    dict
+        A checked document (arrays as numpy arrays).
+
+    Raises
+    ------
+    surrogate3d.errors.FormatError
+        The model card's feature recipe is not a valid recipe or does not make the
+        model's features; ``metrics.csv`` is missing or malformed.
+    surrogate3d.errors.ValidationError
+        The estimator cannot be exported, or the report has no rows of this model.
+    """
+    card = trained.card
+    kind, arrays = flatten(trained.estimator)
+    if kind != trained.kind:
+        raise ValidationError(f"model {trained.name!r}: model.json says kind {trained.kind!r}; the estimator is {kind}")
+    try:
+        recipe = FeatureRecipe.from_dict(card["feature_recipe"])
+    except (ParameterError, FormatError, TypeError, ValueError) as exc:
+        raise FormatError(f"model {trained.name!r}: the feature recipe in model.json is not a valid feature "
+                          f"recipe: {exc}") from None
+    units = dict(zip(recipe.column_names(), recipe.column_units()))
+    names = list(card["feature_names"])
+    missing = [n for n in names if n not in units]
+    if missing:
+        raise FormatError(f"model {trained.name!r}: features {missing} are not columns of its feature recipe, which "
+                          f"makes {list(units)}")
+    provenance = {key: card["provenance"].get(key) for key in _CARD_PROVENANCE}
+    estimator_path = Path(trained.path) / ESTIMATOR_FILE
+    provenance.update(model_format_version=card["format_version"],
+                      estimator_sha256=file_sha256(estimator_path) if estimator_path.is_file() else None,
+                      exported_with=f"surrogate3d {__version__}")
+    cv = card.get("cross_validation", {})
+    document = {
+        "format": FORMAT_NAME,
+        "format_version": FORMAT_VERSION,
+        "model": {"name": trained.name, "kind": kind, "hyperparameters": card["hyperparameters"],
+                  "cross_validation": {k: cv.get(k) for k in ("grouping", "folds", "best_params", "best_score")}},
+        "features": {"names": names, "units": [units[n] for n in names],
+                     "normalization": "standardize" if kind == "ridge" else "none"},
+        "feature_recipe": recipe.to_dict(),
+        "targets": {"names": list(card["targets"]), "units": "1", "definition": TARGET_DEFINITION},
+        kind: arrays,
+        "provenance": provenance,
+        "skill": None if report_dir is None else skill_table(report_dir, trained.name),
+    }
+    check_document(document, f"model {trained.name!r}")
+    return document
+
+
+def _cell(text):
+    """A metrics.csv cell: a float (None for an empty or NaN cell) or the text itself."""
+    try:
+        value = float(text)
+    except ValueError:
+        return text if text != "" else None
+    return value if math.isfinite(value) else None
+
+
+def skill_table(report_dir, model_name):
+    """The rows of a report's ``metrics.csv`` that score ``model_name``.
+
+    Parameters
+    ----------
+    report_dir : str or Path
+        Written by ``surrogate3d evaluate``.
+    model_name : str
+        Predictor name; its regime-transfer rows (``"<name> (trained without ...)"``)
+        are kept too.
+
+    Returns
+    -------
+    dict
+        ``source`` (file name), ``sha256``, ``columns`` and ``rows`` (lists of floats,
+        strings or None for empty cells).
+    """
+    path = Path(report_dir) / "metrics.csv"
+    if not path.is_file():
+        raise FormatError(f"report directory {str(report_dir)!r} has no metrics.csv; is it written by "
+                          "'surrogate3d evaluate'?")
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            table = list(csv.reader(handle))
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise FormatError(f"cannot read {str(path)!r}: {exc}") from None
+    if not table or any(key not in table[0] for key in _SKILL_KEYS):
+        raise FormatError(f"{str(path)!r} lacks the columns {list(_SKILL_KEYS)} of a skill table")
+    header = table[0]
+    if any(len(row) != len(header) for row in table[1:]):
+        raise FormatError(f"{str(path)!r} has rows of another length than its header")
+    keep = [i for i, column in enumerate(header) if column not in _CONSTANT_COLUMNS]
+    predictor = header.index("predictor")
+    rows = [row for row in table[1:]
+            if row[predictor] == model_name or row[predictor].startswith(f"{model_name} (trained without ")]
+    if not rows:
+        found = sorted({row[predictor] for row in table[1:]})
+        raise ValidationError(f"{str(path)!r} has no rows of model {model_name!r}; its predictors are {found}")
+    text = {header.index(k) for k in _SKILL_KEYS}
+    return {"source": str(path), "sha256": file_sha256(path), "columns": [header[i] for i in keep],
+            "rows": [[row[i] if i in text else _cell(row[i]) for i in keep] for row in rows]}
+
+
+def document_to_dataset(document):
+    """The NetCDF form (an xarray Dataset) of a document.
+
+    Feature and target names are the coordinates ``feature`` and ``target``; every
+    model array is a compressed variable ``<kind>_<name>``; the other fields are JSON
+    text in global attributes of the same names (each HDF5 variable costs about a
+    kilobyte of headers, so small tables stay attributes).
+    """
+    kind = document["model"]["kind"]
+    ds = xr.Dataset(coords={"feature": list(document["features"]["names"]), "target": list(document["targets"]["names"])})
+    for name, (dims, _) in ARRAYS[kind].items():
+        variable = f"{kind}_{name}"
+        ds[variable] = (dims, np.asarray(document[kind][name]))
+        # A compressed (chunked) HDF5 variable costs ~2 KB more headers than a plain one.
+        compress = ds[variable].nbytes >= _COMPRESS_FROM
+        ds[variable].encoding = {"zlib": True, "complevel": 9, "shuffle": True} if compress else {}
+        ds[variable].encoding["_FillValue"] = None
+    ds.attrs = {"format": document["format"], "format_version": document["format_version"],
+                "model_name": document["model"]["name"], "model_kind": kind}
+    ds.attrs["features"] = json.dumps({k: v for k, v in document["features"].items() if k != "names"})
+    ds.attrs["targets"] = json.dumps({k: v for k, v in document["targets"].items() if k != "names"})
+    for key in ("model", "feature_recipe", "provenance", "skill"):
+        ds.attrs[key] = json.dumps(document[key], allow_nan=False)
+    return ds
+
+
+def dataset_to_document(ds, source):
+    """The document held by a coefficient NetCDF Dataset; checked (FormatError naming the field)."""
+    attrs = ds.attrs
+    if attrs.get("format") != FORMAT_NAME:
+        raise FormatError(f"{source!r} is not a surrogate3d coefficient file: attribute format is "
+                          f"{attrs.get('format')!r}; expected {FORMAT_NAME!r}")
+    content = {"format": attrs["format"], "format_version": attrs.get("format_version")}
+    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill"):
+        if key not in attrs:
+            raise FormatError(f"coefficient file {source!r} lacks attribute {key!r}")
+        try:
+            content[key] = json.loads(attrs[key])
+        except (TypeError, ValueError) as exc:
+            raise FormatError(f"coefficient file {source!r}: attribute {key!r} is not valid JSON ({exc})") from None
+    for coord in ("feature", "target"):
+        if coord not in ds.coords:
+            raise FormatError(f"coefficient file {source!r} lacks the coordinate {coord!r}")
+    if not isinstance(content["features"], dict) or not isinstance(content["targets"], dict):
+        raise FormatError(f"coefficient file {source!r}: attributes features and targets must be JSON objects")
+    content["features"] = {"names": [str(v) for v in ds["feature"].values], **content["features"]}
+    content["targets"] = {"names": [str(v) for v in ds["target"].values], **content["targets"]}
+    kind = content["model"].get("kind") if isinstance(content["model"], dict) else None
+    if kind not in ARRAYS:
+        raise FormatError(f"coefficient file {source!r}: model kind {kind!r} is not one of {sorted(ARRAYS)}")
+    missing = [f"{kind}_{name}" for name in ARRAYS[kind] if f"{kind}_{name}" not in ds]
+    if missing:
+        raise FormatError(f"coefficient file {source!r} lacks variables {missing}")
+    content[kind] = {name: np.asarray(ds[f"{kind}_{name}"].values) for name in ARRAYS[kind]}
+    check_document(content, source)
+    return content
+
+
+def coefficient_json_text(document):
+    """The JSON twin's text: compact separators, arrays encoded, standard JSON (no NaN)."""
+    return json.dumps(document_to_json(document), separators=(",", ":"), allow_nan=False) + "\n"
+
+
+def write_coefficients(document, out_dir, stem=None):
+    """Write a document as ``<stem>.coefficients.nc`` and ``<stem>.coefficients.json`` (atomically).
+
+    Parameters
+    ----------
+    document : dict
+        From :func:`build_document`.
+    out_dir : str or Path
+        Created if missing.
+    stem : str, optional
+        File name stem; default the model name.
+
+    Returns
+    -------
+    (Path, Path)
+        The NetCDF and the JSON file.
+    """
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    stem = stem or document["model"]["name"]
+    netcdf = write_dataset(document_to_dataset(document), out_dir / f"{stem}{NETCDF_SUFFIX}")
+    twin = out_dir / f"{stem}{JSON_SUFFIX}"
+    write_text_atomic(twin, coefficient_json_text(document))
+    return netcdf, twin
+
+
+def read_coefficients(path):
+    """Read a coefficient file, NetCDF or JSON twin, into a checked document.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    dict
+
+    Raises
+    ------
+    surrogate3d.errors.FormatError
+        Unreadable file, other format version, missing or inconsistent fields.
+    """
+    path = Path(path)
+    if path.suffix.lower() == ".nc":
+        return dataset_to_document(open_dataset(path, what="coefficient file"), str(path))
+    if not path.is_file():
+        raise FormatError(f"coefficient file {str(path)!r} does not exist")
+    try:
+        content = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise FormatError(f"coefficient file {str(path)!r} is not valid JSON ({exc})") from None
+    document = document_from_json(content, str(path))
+    check_document(document, str(path))
+    return document

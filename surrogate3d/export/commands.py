@@ -1,0 +1,42 @@
+"""``surrogate3d export``: coefficient files (and a Fortran module) of trained models."""
+
+
+def register(sub):
+    p = sub.add_parser("export", help="write coefficient files (NetCDF and JSON) and optionally a Fortran module",
+                       description="Write each trained model of MODEL_DIR as a NetCDF coefficient file and its JSON "
+                                   "twin (read by the numpy-only surrogate3d.runtime); with --fortran also a "
+                                   "Fortran 2008 module, an example driver and sample features in DIR/fortran/.")
+    p.add_argument("model_dir", metavar="MODEL_DIR", help="model directory written by 'surrogate3d train'")
+    p.add_argument("--out", required=True, metavar="DIR", help="directory to write the files to")
+    p.add_argument("--model", metavar="NAME", help="export only this model (default: every model of the run)")
+    p.add_argument("--fortran", action="store_true", help="also write the Fortran module, driver and data files")
+    p.add_argument("--report", metavar="REPORT_DIR",
+                   help="report directory of 'surrogate3d evaluate': store the model's held-out skill rows")
+    p.add_argument("--pairs", metavar="PAIRS",
+                   help="pairs table for the Fortran sample features (default: the training file in model.json)")
+    p.add_argument("--sample-columns", type=int, default=64, metavar="N",
+                   help="columns in the Fortran sample features file (default 64)")
+    p.add_argument("--quiet", action="store_true", help="print nothing on success")
+    p.set_defaults(func=run)
+
+
+def run(args):
+    import os
+
+    from ..errors import ParameterError
+    from .exporter import export_training_run
+
+    if args.sample_columns < 1:
+        raise ParameterError(f"--sample-columns must be >= 1; got {args.sample_columns}")
+    exported = export_training_run(args.model_dir, args.out, model=args.model, report_dir=args.report,
+                                   fortran=args.fortran, pairs_path=args.pairs, n_sample_columns=args.sample_columns)
+    if args.quiet:
+        return
+    for name, paths in exported.items():
+        sizes = ", ".join(f"{p.name} ({os.path.getsize(p) / 1024:.1f} KiB)" for key, p in paths.items()
+                          if key in ("netcdf", "json"))
+        print(f"{name}: {sizes}")
+        if "module" in paths:
+            print(f"  fortran: {paths['module'].name}, {paths['driver'].name}, {paths['coefficients'].name}, "
+                  f"{paths['sample_features'].name}")
+    print(f"wrote {args.out}")

@@ -1,0 +1,119 @@
+"""Exporting trained models: coefficient files and, optionally, the Fortran module.
+
+:func:`export_model` writes one model's NetCDF coefficient file and JSON twin (and, with
+``fortran=True``, the Fortran module, driver and data files in ``fortran/``);
+:func:`export_training_run` does it for the models of a model directory.
+"""
+
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import FormatError, ValidationError
+from ..learn.model_directory import load_training_run
+from ..learn.pairs_table import feature_matrix, read_pairs_table, select_scenes
+from ..runtime.model import CorrectionModel
+from .coefficients import build_document, write_coefficients
+from .fortran import write_fortran
+
+#: Subdirectory of the export directory that holds the Fortran files.
+FORTRAN_DIR = "fortran"
+
+
+def sample_features(trained, pairs_path=None, n_columns=64):
+    """Feature vectors of ``n_columns`` training columns, evenly spread over the training samples.
+
+    Parameters
+    ----------
+    trained : surrogate3d.learn.TrainedModel
+    pairs_path : str or Path, optional
+        Pairs table; default the training file named in the model card.
+    n_columns : int
+        At least 1.
+
+    Returns
+    -------
+    ndarray (n, n_feature)
+        ``n = min(n_columns, number of training samples)``.
+    """
+    if isinstance(n_columns, bool) or not isinstance(n_columns, (int, np.integer)) or n_columns < 1:
+        raise ValidationError(f"n_columns (sample columns) must be an integer >= 1; got {n_columns!r}")
+    path = Path(pairs_path or trained.card["provenance"].get("pairs_file") or "")
+    if not path.is_file():
+        raise FormatError(f"the training pairs file {str(path)!r} of model {trained.name!r} does not exist; "
+                          "name the pairs table to take the sample features from (--pairs)")
+    pairs = read_pairs_table(path)
+    scenes = trained.card["provenance"].get("training_scenes") or []
+    training = select_scenes(pairs, scenes)
+    if training.sizes["sample"] == 0:
+        raise ValidationError(f"pairs file {str(path)!r} holds none of the training scenes of model {trained.name!r}")
+    X = feature_matrix(training, trained.card["feature_names"], needed_by=f"model {trained.name!r}")
+    rows = np.unique(np.linspace(0, X.shape[0] - 1, min(n_columns, X.shape[0])).round().astype(int))
+    return X[rows]
+
+
+def export_model(trained, out_dir, report_dir=None, fortran=False, pairs_path=None, n_sample_columns=64):
+    """Write the coefficient files of one trained model (and the Fortran files).
+
+    Parameters
+    ----------
+    trained : surrogate3d.learn.TrainedModel
+    out_dir : str or Path
+        Created if missing.
+    report_dir : str or Path, optional
+        ``surrogate3d evaluate`` report whose ``metrics.csv`` rows of this model go
+        into the file.
+    fortran : bool
+        Also write the Fortran module, driver, data file and sample files into
+        ``out_dir/fortran/``.
+    pairs_path : str or Path, optional
+        Pairs table for the sample features (default: the training file).
+    n_sample_columns : int
+        Columns in the sample features file.
+
+    Returns
+    -------
+    dict of str -> Path
+        ``netcdf``, ``json`` and, with Fortran, ``module``, ``driver``,
+        ``coefficients``, ``sample_features``, ``sample_corrections``.
+    """
+    document = build_document(trained, report_dir)
+    netcdf, twin = write_coefficients(document, out_dir)
+    paths = {"netcdf": netcdf, "json": twin}
+    if fortran:
+        features = sample_features(trained, pairs_path, n_sample_columns)
+        corrections = CorrectionModel.from_document(document, str(twin)).predict(features)
+        paths.update(write_fortran(document, Path(out_dir) / FORTRAN_DIR, features, corrections))
+    return paths
+
+
+def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran=False, pairs_path=None,
+                        n_sample_columns=64):
+    """Export the models of a model directory written by ``surrogate3d train``.
+
+    Parameters
+    ----------
+    model_dir : str or Path
+    out_dir : str or Path
+    model : str, optional
+        Export only this model; default every model of the run (not the
+        regime-transfer models).
+    report_dir, fortran, pairs_path, n_sample_columns
+        As for :func:`export_model`.
+
+    Returns
+    -------
+    dict of str -> dict
+        Model name -> the paths :func:`export_model` returns.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        ``model`` is not a model of the run (the known ones are named).
+    """
+    run = load_training_run(model_dir)
+    if model is not None and model not in run.models:
+        raise ValidationError(f"model directory {str(model_dir)!r} has no model {model!r}; it has {sorted(run.models)}")
+    names = [model] if model is not None else list(run.models)
+    return {name: export_model(run.models[name], out_dir, report_dir, fortran, pairs_path, n_sample_columns)
+            for name in names}

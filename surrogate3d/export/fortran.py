@@ -1,0 +1,663 @@
+"""A Fortran 2008 module, a driver program and data files for one exported model.
+
+For a model named ``NAME`` (made a Fortran name: lower case, ``_`` for other
+characters), :func:`write_fortran` writes into a directory:
+
+``NAME_correction.f90``
+    Module ``NAME_correction``: the model's feature and target names as parameters, a
+    derived type ``NAME_coefficients``, ``NAME_read_coefficients`` (reads and checks the
+    data file), and the pure procedures ``NAME_correct_column`` (one column's features
+    to its corrections) and ``NAME_correct_columns`` (many columns).  Standard Fortran
+    2008, no dependencies but the intrinsic modules ``iso_fortran_env`` and
+    ``ieee_arithmetic``.
+``NAME_correction_driver.f90``
+    Example program: reads sample features from a text file, prints the corrections
+    (or, given a repeat count, the columns per second).
+``NAME.coefficients.txt``
+    The coefficients as plain text (every number in shortest round-trip decimal form,
+    so the doubles read back exactly).
+``NAME_sample_features.txt``, ``NAME_sample_corrections.txt``
+    Feature vectors of training columns and the corrections the Python runtime gives
+    for them, to check a build against.
+
+The coefficients are read from the text file rather than embedded as parameter
+arrays: an ensemble of 1500 trees has ~10^5 nodes, which as array constructors makes a
+multi-megabyte source that compilers are slow to build (gfortran also caps
+constructors at 65535 elements by default); read once at start-up, the arrays are
+just as fast, and a retrained model of the same features needs no recompilation.
+``docs/host-model-guide.md`` shows how to call the module.
+"""
+
+import re
+from pathlib import Path
+
+import numpy as np
+
+from .._atomic import write_text_atomic
+from ..errors import ValidationError
+from ..runtime.document import FORMAT_NAME, FORMAT_VERSION
+
+#: Numbers per line in the data files.
+_PER_LINE = 6
+
+#: Fortran statements stay below the 132-character line limit of free form.
+_LINE_LIMIT = 132
+
+
+def fortran_name(model_name):
+    """A Fortran name from a model name: lower case, other characters as ``_``, starting with a letter."""
+    name = re.sub(r"[^a-z0-9_]", "_", model_name.lower())
+    if not name[:1].isalpha():
+        name = "m_" + name
+    return name[:40]
+
+
+def _number(value):
+    value = float(value)
+    if np.isinf(value):
+        return "Infinity" if value > 0 else "-Infinity"
+    return repr(value)
+
+
+def _lines(values, integer=False):
+    flat = np.asarray(values).ravel()
+    text = [str(int(v)) for v in flat] if integer else [_number(v) for v in flat]
+    return [" ".join(text[i:i + _PER_LINE]) for i in range(0, len(text), _PER_LINE)]
+
+
+def data_file_text(document):
+    """Text of the Fortran data file (``NAME.coefficients.txt``) of a document."""
+    kind = document["model"]["kind"]
+    arrays = document[kind]
+    features, targets = document["features"]["names"], document["targets"]["names"]
+    lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"kind {kind}", f"model {document['model']['name']}",
+             f"n_features {len(features)}", f"n_targets {len(targets)}"]
+    if kind == "ridge":
+        lines.append(f"n_pairs {arrays['interaction_pairs'].shape[0]}")
+        order = ("feature_mean", "feature_scale", "interaction_pairs", "coef", "intercept")
+    else:
+        lines += [f"n_trees {arrays['tree_target'].size}", f"n_nodes {arrays['feature'].size}",
+                  f"n_leaves {arrays['leaf_value'].size}", f"n_thresholds {arrays['threshold_values'].size}"]
+        order = ("baseline", "tree_target", "tree_offset", "feature", "threshold_index", "left", "right",
+                 "missing_go_left", "leaf_value", "threshold_values")
+    lines += ["features", *features, "targets", *targets]
+    for name in order:
+        lines.append(name)
+        lines += _lines(arrays[name], integer=arrays[name].dtype.kind == "i")
+    return "\n".join(lines) + "\n"
+
+
+def _names_parameter(name, count_name, values):
+    width = max(len(v) for v in values)
+    rows = [f'       "{v}"' for v in values]
+    body = ", &\n".join(rows)
+    return (f"  character(len={width}), parameter, public :: {name}({count_name}) = [character(len={width}) :: &\n"
+            f"{body}]")
+
+
+_COMMON_READERS = """\
+  subroutine next_line(unit, line, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(out) :: line
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    integer :: ios
+    if (status /= 0) return
+    read (unit, '(a)', iostat=ios) line
+    if (ios /= 0) then
+      status = 1
+      message = 'coefficient file ends early or cannot be read'
+    end if
+  end subroutine next_line
+
+  subroutine expect_line(unit, expected, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(in) :: expected
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    character(len=line_length) :: line
+    call next_line(unit, line, status, message)
+    if (status /= 0) return
+    if (trim(adjustl(line)) /= expected) then
+      status = 1
+      message = 'coefficient file: expected "' // expected // '", found "' // trim(line) // '"'
+    end if
+  end subroutine expect_line
+
+  subroutine expect_count(unit, key, expected, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(in) :: key
+    integer, intent(in) :: expected
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    integer :: value
+    call read_count(unit, key, value, status, message)
+    if (status /= 0) return
+    if (value /= expected) then
+      status = 1
+      write (message, '(a, a, i0, a, i0)') key, ' is ', value, ' in the coefficient file; this module expects ', expected
+    end if
+  end subroutine expect_count
+
+  subroutine read_count(unit, key, value, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(in) :: key
+    integer, intent(out) :: value
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    character(len=line_length) :: line
+    integer :: ios
+    value = 0
+    call next_line(unit, line, status, message)
+    if (status /= 0) return
+    line = adjustl(line)
+    if (line(1:len(key) + 1) /= key // ' ') then
+      status = 1
+      message = 'coefficient file: expected "' // key // ' N", found "' // trim(line) // '"'
+      return
+    end if
+    read (line(len(key) + 1:), *, iostat=ios) value
+    if (ios /= 0 .or. value < 0) then
+      status = 1
+      message = 'coefficient file: bad count in "' // trim(line) // '"'
+    end if
+  end subroutine read_count
+
+  subroutine expect_names(unit, section, names, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(in) :: section
+    character(len=*), intent(in) :: names(:)
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    character(len=line_length) :: line
+    integer :: i
+    call expect_line(unit, section, status, message)
+    do i = 1, size(names)
+      call next_line(unit, line, status, message)
+      if (status /= 0) return
+      if (trim(adjustl(line)) /= trim(names(i))) then
+        status = 1
+        write (message, '(a, a, i0, a, a, a, a, a)') section, ' entry ', i, ' is "', trim(line), &
+            '" in the coefficient file; this module was generated for "', trim(names(i)), '"'
+        return
+      end if
+    end do
+  end subroutine expect_names
+
+  subroutine read_reals(unit, section, values, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(in) :: section
+    real(real64), intent(out) :: values(:)
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    integer :: ios
+    values = 0.0_real64
+    call expect_line(unit, section, status, message)
+    ! An empty array has no lines (a read with an empty list would still skip one).
+    if (status /= 0 .or. size(values) == 0) return
+    read (unit, *, iostat=ios) values
+    if (ios /= 0) then
+      status = 1
+      message = 'coefficient file: cannot read the values of ' // section
+    end if
+  end subroutine read_reals
+
+  subroutine read_integers(unit, section, values, status, message)
+    integer, intent(in) :: unit
+    character(len=*), intent(in) :: section
+    integer(int32), intent(out) :: values(:)
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    integer :: ios
+    values = 0
+    call expect_line(unit, section, status, message)
+    ! An empty array has no lines (a read with an empty list would still skip one).
+    if (status /= 0 .or. size(values) == 0) return
+    read (unit, *, iostat=ios) values
+    if (ios /= 0) then
+      status = 1
+      message = 'coefficient file: cannot read the values of ' // section
+    end if
+  end subroutine read_integers
+
+  subroutine open_coefficients(path, kind, unit, status, message)
+    character(len=*), intent(in) :: path, kind
+    integer, intent(out) :: unit
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    character(len=line_length) :: line
+    integer :: ios, dot
+    ! -1 is never a NEWUNIT= value: it marks a file that could not be opened.
+    unit = -1
+    open (newunit=unit, file=path, status='old', action='read', iostat=ios)
+    if (ios /= 0) then
+      unit = -1
+      status = 1
+      message = 'cannot open coefficient file ' // path
+      return
+    end if
+    call next_line(unit, line, status, message)
+    if (status /= 0) return
+    line = adjustl(line)
+    dot = index(line, '.')
+    if (line(1:len(format_name) + 1) /= format_name // ' ' .or. dot == 0) then
+      status = 1
+      message = path // ' is not a surrogate3d coefficient file'
+    else if (line(len(format_name) + 2:dot - 1) /= format_major) then
+      status = 1
+      message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // &
+          '; this module reads major version ' // format_major
+    end if
+    call expect_line(unit, 'kind ' // kind, status, message)
+    call next_line(unit, line, status, message)   ! the model name, for people reading the file
+  end subroutine open_coefficients
+"""
+
+
+def _module_header(prefix, document):
+    features, targets = document["features"]["names"], document["targets"]["names"]
+    kind = document["model"]["kind"]
+    return f"""\
+! Generated by surrogate3d export: the {kind} 3D correction "{document['model']['name']}".
+! Corrections are 3D minus independent-column fluxes as fractions of the incident flux on
+! the horizontal, for the targets in {prefix}_target_names; features are in the order and
+! units of {prefix}_feature_names (see the coefficient file and docs/host-model-guide.md).
+module {prefix}_correction
+  use, intrinsic :: iso_fortran_env, only: real64, int32
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  implicit none
+  private
+
+  integer, parameter, public :: {prefix}_n_features = {len(features)}
+  integer, parameter, public :: {prefix}_n_targets = {len(targets)}
+{_names_parameter(f"{prefix}_feature_names", f"{prefix}_n_features", features)}
+{_names_parameter(f"{prefix}_target_names", f"{prefix}_n_targets", targets)}
+
+  character(len=*), parameter :: format_name = '{FORMAT_NAME}'
+  character(len=*), parameter :: format_major = '{FORMAT_VERSION.split('.')[0]}'
+  integer, parameter :: line_length = 1024
+"""
+
+
+def _ridge_module(prefix, document):
+    return _module_header(prefix, document) + f"""
+  !> Standardization, interaction pairs (1-based feature indices) and coefficients.
+  type, public :: {prefix}_coefficients
+    integer :: n_pairs = 0
+    real(real64), allocatable :: feature_mean(:), feature_scale(:)
+    integer(int32), allocatable :: pairs(:, :)          ! (2, n_pairs)
+    real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
+    real(real64), allocatable :: intercept(:)
+  end type {prefix}_coefficients
+
+  public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns
+
+contains
+
+  !> Corrections of one column: intercept + coef . [z, z_i z_j] with z = (x - mean) / scale.
+  pure subroutine {prefix}_correct_column(model, features, corrections)
+    type({prefix}_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features({prefix}_n_features)
+    real(real64), intent(out) :: corrections({prefix}_n_targets)
+    real(real64) :: z({prefix}_n_features)
+    integer :: k, p
+    z = (features - model%feature_mean) / model%feature_scale
+    ! All targets advance together: independent sums, so additions overlap in the CPU.
+    corrections = model%intercept
+    do k = 1, {prefix}_n_features
+      corrections = corrections + model%coef(:, k) * z(k)
+    end do
+    do p = 1, model%n_pairs
+      corrections = corrections + model%coef(:, {prefix}_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
+    end do
+  end subroutine {prefix}_correct_column
+
+  !> Corrections of many columns: features(:, i) -> corrections(:, i).
+  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections)
+    type({prefix}_coefficients), intent(in) :: model
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: features({prefix}_n_features, n_columns)
+    real(real64), intent(out) :: corrections({prefix}_n_targets, n_columns)
+    integer :: i
+    do i = 1, n_columns
+      call {prefix}_correct_column(model, features(:, i), corrections(:, i))
+    end do
+  end subroutine {prefix}_correct_columns
+
+  !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
+  subroutine {prefix}_read_coefficients(path, model, status, message)
+    character(len=*), intent(in) :: path
+    type({prefix}_coefficients), intent(out) :: model
+    integer, intent(out) :: status
+    character(len=*), intent(out) :: message
+    real(real64), allocatable :: coef_list(:)
+    integer(int32), allocatable :: pair_list(:)
+    integer :: unit, p, n_terms
+    status = 0
+    message = ''
+    n_terms = 0
+    call open_coefficients(path, 'ridge', unit, status, message)
+    call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
+    call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
+    call read_count(unit, 'n_pairs', model%n_pairs, status, message)
+    if (status == 0) then
+      allocate (model%feature_mean({prefix}_n_features), model%feature_scale({prefix}_n_features))
+      allocate (pair_list(2 * model%n_pairs), model%intercept({prefix}_n_targets))
+      n_terms = {prefix}_n_features + model%n_pairs
+      allocate (coef_list(n_terms * {prefix}_n_targets))
+    end if
+    call expect_names(unit, 'features', {prefix}_feature_names, status, message)
+    call expect_names(unit, 'targets', {prefix}_target_names, status, message)
+    if (status == 0) call read_reals(unit, 'feature_mean', model%feature_mean, status, message)
+    if (status == 0) call read_reals(unit, 'feature_scale', model%feature_scale, status, message)
+    if (status == 0) call read_integers(unit, 'interaction_pairs', pair_list, status, message)
+    if (status == 0) call read_reals(unit, 'coef', coef_list, status, message)
+    if (status == 0) call read_reals(unit, 'intercept', model%intercept, status, message)
+    if (status == 0) then
+      ! The file lists the pairs (i, j) and the coefficients target by target, row by row.
+      model%pairs = reshape(pair_list, [2, model%n_pairs]) + 1
+      model%coef = transpose(reshape(coef_list, [n_terms, {prefix}_n_targets]))
+      do p = 1, model%n_pairs
+        if (model%pairs(1, p) < 1 .or. model%pairs(1, p) >= model%pairs(2, p) .or. &
+            model%pairs(2, p) > {prefix}_n_features) then
+          status = 1
+          write (message, '(a, i0, a)') 'coefficient file: interaction pair ', p, ' is out of range'
+          exit
+        end if
+      end do
+      if (any(.not. (model%feature_scale > 0.0_real64))) then
+        status = 1
+        message = 'coefficient file: feature_scale must be positive'
+      end if
+    end if
+    if (unit /= -1) close (unit)
+  end subroutine {prefix}_read_coefficients
+
+{_COMMON_READERS}
+end module {prefix}_correction
+"""
+
+
+def _boosted_module(prefix, document):
+    return _module_header(prefix, document) + f"""
+  !> Trees with global, 1-based node indices; feature 0 marks a leaf.
+  type, public :: {prefix}_coefficients
+    integer :: n_trees = 0, n_nodes = 0
+    real(real64), allocatable :: baseline(:)            ! (n_targets)
+    integer(int32), allocatable :: tree_target(:)       ! (n_trees), 1-based target
+    integer(int32), allocatable :: tree_root(:)         ! (n_trees)
+    integer(int32), allocatable :: feature(:), left(:), right(:)
+    logical, allocatable :: missing_go_left(:)
+    real(real64), allocatable :: threshold(:), value(:)
+  end type {prefix}_coefficients
+
+  public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns
+
+contains
+
+  !> Corrections of one column: baseline plus, tree by tree, the value of the leaf reached by
+  !> going left where x(feature) <= threshold (NaN: where missing_go_left) and right elsewhere.
+  pure subroutine {prefix}_correct_column(model, features, corrections)
+    type({prefix}_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features({prefix}_n_features)
+    real(real64), intent(out) :: corrections({prefix}_n_targets)
+    integer :: t, node, m
+    real(real64) :: x
+    logical :: go_left
+    corrections = model%baseline
+    do t = 1, model%n_trees
+      node = model%tree_root(t)
+      do while (model%feature(node) > 0)
+        x = features(model%feature(node))
+        ! NaN compares false, so it goes left only where missing_go_left says so.
+        go_left = x <= model%threshold(node) .or. (model%missing_go_left(node) .and. ieee_is_nan(x))
+        node = merge(model%left(node), model%right(node), go_left)
+      end do
+      m = model%tree_target(t)
+      corrections(m) = corrections(m) + model%value(node)
+    end do
+  end subroutine {prefix}_correct_column
+
+  !> Corrections of many columns: features(:, i) -> corrections(:, i).
+  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections)
+    type({prefix}_coefficients), intent(in) :: model
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: features({prefix}_n_features, n_columns)
+    real(real64), intent(out) :: corrections({prefix}_n_targets, n_columns)
+    integer :: i
+    do i = 1, n_columns
+      call {prefix}_correct_column(model, features(:, i), corrections(:, i))
+    end do
+  end subroutine {prefix}_correct_columns
+
+  !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
+  subroutine {prefix}_read_coefficients(path, model, status, message)
+    character(len=*), intent(in) :: path
+    type({prefix}_coefficients), intent(out) :: model
+    integer, intent(out) :: status
+    character(len=*), intent(out) :: message
+    integer(int32), allocatable :: offset(:), threshold_index(:), missing(:)
+    real(real64), allocatable :: threshold_values(:), leaf_value(:)
+    integer :: unit, n_leaves, n_thresholds, t, node, first, last, leaf
+    status = 0
+    message = ''
+    n_leaves = 0
+    n_thresholds = 0
+    call open_coefficients(path, 'boosted', unit, status, message)
+    call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
+    call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
+    call read_count(unit, 'n_trees', model%n_trees, status, message)
+    call read_count(unit, 'n_nodes', model%n_nodes, status, message)
+    call read_count(unit, 'n_leaves', n_leaves, status, message)
+    call read_count(unit, 'n_thresholds', n_thresholds, status, message)
+    if (status == 0) then
+      allocate (model%baseline({prefix}_n_targets), model%tree_target(model%n_trees), offset(model%n_trees + 1))
+      allocate (model%feature(model%n_nodes), threshold_index(model%n_nodes), model%left(model%n_nodes))
+      allocate (model%right(model%n_nodes), missing(model%n_nodes), model%value(model%n_nodes))
+      allocate (threshold_values(n_thresholds), leaf_value(n_leaves))
+    end if
+    call expect_names(unit, 'features', {prefix}_feature_names, status, message)
+    call expect_names(unit, 'targets', {prefix}_target_names, status, message)
+    if (status == 0) call read_reals(unit, 'baseline', model%baseline, status, message)
+    if (status == 0) call read_integers(unit, 'tree_target', model%tree_target, status, message)
+    if (status == 0) call read_integers(unit, 'tree_offset', offset, status, message)
+    if (status == 0) call read_integers(unit, 'feature', model%feature, status, message)
+    if (status == 0) call read_integers(unit, 'threshold_index', threshold_index, status, message)
+    if (status == 0) call read_integers(unit, 'left', model%left, status, message)
+    if (status == 0) call read_integers(unit, 'right', model%right, status, message)
+    if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
+    if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
+    if (status == 0) call read_reals(unit, 'threshold_values', threshold_values, status, message)
+    if (unit /= -1) close (unit)
+    if (status /= 0) return
+    if (offset(1) /= 0 .or. offset(model%n_trees + 1) /= model%n_nodes) then
+      status = 1
+      message = 'coefficient file: tree_offset does not span the nodes'
+      return
+    end if
+    allocate (model%tree_root(model%n_trees), model%threshold(model%n_nodes), model%missing_go_left(model%n_nodes))
+    model%threshold = 0.0_real64
+    model%value = 0.0_real64
+    model%missing_go_left = missing == 1
+    leaf = 0
+    do t = 1, model%n_trees
+      first = offset(t) + 1
+      last = offset(t + 1)
+      model%tree_root(t) = first
+      model%tree_target(t) = model%tree_target(t) + 1
+      if (last < first .or. model%tree_target(t) < 1 .or. model%tree_target(t) > {prefix}_n_targets) then
+        status = 1
+        write (message, '(a, i0, a)') 'coefficient file: tree ', t, ' is empty or has a bad target'
+        return
+      end if
+      do node = first, last
+        if (model%feature(node) < 0) then
+          ! The leaf values are listed in node order.
+          leaf = leaf + 1
+          if (leaf > n_leaves) exit
+          model%feature(node) = 0
+          model%value(node) = leaf_value(leaf)
+          cycle
+        end if
+        ! Children come after their parent in the same tree, so every path ends at a leaf.
+        model%left(node) = model%left(node) + first
+        model%right(node) = model%right(node) + first
+        if (model%feature(node) >= {prefix}_n_features .or. threshold_index(node) < 0 .or. &
+            threshold_index(node) >= n_thresholds .or. model%left(node) <= node .or. &
+            model%right(node) <= node .or. model%left(node) > last .or. model%right(node) > last) then
+          status = 1
+          write (message, '(a, i0, a)') 'coefficient file: node ', node, ' has an index out of range'
+          return
+        end if
+        model%feature(node) = model%feature(node) + 1
+        model%threshold(node) = threshold_values(threshold_index(node) + 1)
+      end do
+    end do
+    if (leaf /= n_leaves) then
+      status = 1
+      message = 'coefficient file: n_leaves differs from the number of leaves the nodes mark'
+    end if
+  end subroutine {prefix}_read_coefficients
+
+{_COMMON_READERS}
+end module {prefix}_correction
+"""
+
+
+def _driver(prefix):
+    return f"""\
+! Example driver generated by surrogate3d export: reads sample features, prints corrections.
+!   {prefix}_correction_driver COEFFICIENTS.txt FEATURES.txt          one line of corrections per column
+!   {prefix}_correction_driver COEFFICIENTS.txt FEATURES.txt REPEATS  columns per second over REPEATS passes
+! FEATURES.txt: a line "n_columns n_features", then one line of features per column.
+program {prefix}_correction_driver
+  use, intrinsic :: iso_fortran_env, only: real64, int64, output_unit, error_unit
+  use {prefix}_correction
+  implicit none
+  type({prefix}_coefficients) :: model
+  character(len=4096) :: coefficient_path, features_path, argument
+  character(len=1024) :: message
+  real(real64), allocatable :: features(:, :), corrections(:, :)
+  real(real64) :: seconds, checksum
+  integer(int64) :: start, finish, rate
+  integer :: status, unit, ios, n_columns, n_features, repeats, i
+
+  if (command_argument_count() < 2) then
+    write (error_unit, '(a)') 'usage: {prefix}_correction_driver COEFFICIENTS.txt FEATURES.txt [REPEATS]'
+    error stop 2
+  end if
+  call get_command_argument(1, coefficient_path)
+  call get_command_argument(2, features_path)
+  repeats = 0
+  if (command_argument_count() >= 3) then
+    call get_command_argument(3, argument)
+    read (argument, *, iostat=ios) repeats
+    if (ios /= 0 .or. repeats < 1) then
+      write (error_unit, '(a)') 'REPEATS must be a positive integer; got ' // trim(argument)
+      error stop 2
+    end if
+  end if
+
+  call {prefix}_read_coefficients(trim(coefficient_path), model, status, message)
+  if (status /= 0) then
+    write (error_unit, '(a)') trim(message)
+    error stop 1
+  end if
+
+  open (newunit=unit, file=trim(features_path), status='old', action='read', iostat=ios)
+  if (ios /= 0) then
+    write (error_unit, '(a)') 'cannot open features file ' // trim(features_path)
+    error stop 1
+  end if
+  read (unit, *, iostat=ios) n_columns, n_features
+  if (ios /= 0 .or. n_features /= {prefix}_n_features .or. n_columns < 1) then
+    write (error_unit, '(a, i0, a)') 'features file must start with "n_columns ', {prefix}_n_features, '"'
+    error stop 1
+  end if
+  allocate (features(n_features, n_columns), corrections({prefix}_n_targets, n_columns))
+  read (unit, *, iostat=ios) features
+  close (unit)
+  if (ios /= 0) then
+    write (error_unit, '(a)') 'cannot read the feature values of ' // trim(features_path)
+    error stop 1
+  end if
+
+  if (repeats == 0) then
+    call {prefix}_correct_columns(model, n_columns, features, corrections)
+    do i = 1, n_columns
+      write (output_unit, '(*(es25.17e3, :, 1x))') corrections(:, i)
+    end do
+  else
+    checksum = 0.0_real64
+    call system_clock(start, rate)
+    do i = 1, repeats
+      call {prefix}_correct_columns(model, n_columns, features, corrections)
+      checksum = checksum + corrections(1, 1 + mod(i, n_columns))
+    end do
+    call system_clock(finish)
+    seconds = real(finish - start, real64) / real(rate, real64)
+    write (output_unit, '(a, es12.5)') 'columns_per_second ', real(n_columns, real64) * repeats / max(seconds, 1e-9_real64)
+    write (output_unit, '(a, es12.5)') 'checksum ', checksum
+  end if
+end program {prefix}_correction_driver
+"""
+
+
+def features_file_text(features):
+    """Text of a sample-features file: ``n_columns n_features``, then one line per column."""
+    features = np.asarray(features, dtype=np.float64)
+    return "\n".join([f"{features.shape[0]} {features.shape[1]}"] +
+                     [" ".join(_number(v) for v in row) for row in features]) + "\n"
+
+
+def corrections_file_text(corrections):
+    """Text of the expected corrections: one line per column, shortest round-trip decimals."""
+    return "\n".join(" ".join(_number(v) for v in row) for row in np.asarray(corrections)) + "\n"
+
+
+def fortran_sources(document):
+    """``{file name: text}`` of the module and the driver of a document."""
+    prefix = fortran_name(document["model"]["name"])
+    build = _ridge_module if document["model"]["kind"] == "ridge" else _boosted_module
+    sources = {f"{prefix}_correction.f90": build(prefix, document),
+               f"{prefix}_correction_driver.f90": _driver(prefix)}
+    for name, text in sources.items():
+        long = [i + 1 for i, line in enumerate(text.splitlines()) if len(line) > _LINE_LIMIT]
+        if long:
+            raise ValidationError(f"generated {name} has lines longer than {_LINE_LIMIT} characters at {long[:5]}; "
+                                  "shorten the feature or target names")
+    return sources
+
+
+def write_fortran(document, out_dir, sample_features, sample_corrections):
+    """Write the Fortran module, the driver and the data files of a document (each atomically).
+
+    Parameters
+    ----------
+    document : dict
+        A checked coefficient document.
+    out_dir : str or Path
+        Created if missing.
+    sample_features : ndarray (n_column, n_feature)
+        Feature vectors to ship as ``NAME_sample_features.txt``.
+    sample_corrections : ndarray (n_column, n_target)
+        Their corrections from the Python runtime (``NAME_sample_corrections.txt``).
+
+    Returns
+    -------
+    dict of str -> Path
+        ``module``, ``driver``, ``coefficients``, ``sample_features``, ``sample_corrections``.
+    """
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    prefix = fortran_name(document["model"]["name"])
+    (module, module_text), (driver, driver_text) = fortran_sources(document).items()
+    files = {"module": (module, module_text), "driver": (driver, driver_text),
+             "coefficients": (f"{prefix}.coefficients.txt", data_file_text(document)),
+             "sample_features": (f"{prefix}_sample_features.txt", features_file_text(sample_features)),
+             "sample_corrections": (f"{prefix}_sample_corrections.txt", corrections_file_text(sample_corrections))}
+    paths = {}
+    for key, (name, text) in files.items():
+        write_text_atomic(out_dir / name, text)
+        paths[key] = out_dir / name
+    return paths

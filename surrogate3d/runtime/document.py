@@ -1,0 +1,369 @@
+"""The coefficient document: what a coefficient file holds, its JSON encoding and its checks.
+
+A coefficient file holds one trained correction model.  In memory it is a *document*:
+a dict of plain JSON values whose numeric arrays are numpy arrays.  The JSON twin
+stores every array as an object ``{"dtype", "shape", "data" | "packed"}``; the NetCDF
+file (written by :mod:`surrogate3d.export.coefficients`) stores the same arrays as
+variables.  ``docs/export-format.md`` documents every field.
+
+This module imports only numpy and the standard library: it is part of the runtime
+that host models import.
+"""
+
+import base64
+import binascii
+import math
+import zlib
+
+import numpy as np
+
+from ..errors import FormatError
+
+#: The ``format`` field every coefficient file carries.
+FORMAT_NAME = "surrogate3d-correction-coefficients"
+
+#: Version of the coefficient layout.  Readers accept files of the same major version.
+FORMAT_VERSION = "1.0"
+
+#: Model kinds a coefficient file may hold.
+KINDS = ("ridge", "boosted")
+
+#: Arrays of each model section: name -> (dimension names, dtype kind).  ``"f"`` is
+#: float64; ``"i"`` a signed integer type (int8, int16 or int32, the smallest that
+#: holds the values).
+ARRAYS = {
+    "ridge": {
+        "feature_mean": (("feature",), "f"),
+        "feature_scale": (("feature",), "f"),
+        "interaction_pairs": (("pair", "pair_member"), "i"),
+        "coef": (("target", "term"), "f"),
+        "intercept": (("target",), "f"),
+    },
+    "boosted": {
+        "baseline": (("target",), "f"),
+        "tree_target": (("tree",), "i"),
+        "tree_offset": (("tree_edge",), "i"),
+        "feature": (("node",), "i"),
+        "threshold_index": (("node",), "i"),
+        "left": (("node",), "i"),
+        "right": (("node",), "i"),
+        "missing_go_left": (("node",), "i"),
+        "leaf_value": (("leaf",), "f"),
+        "threshold_values": (("threshold",), "f"),
+    },
+}
+
+#: Top-level keys of a document and the JSON type each must have.
+TOP_LEVEL = {"format": str, "format_version": str, "model": dict, "features": dict, "feature_recipe": dict,
+             "targets": dict, "provenance": dict, "skill": (dict, type(None))}
+
+#: Arrays with at most this many finite values are written as plain JSON lists.
+PLAIN_LIMIT = 64
+
+_DTYPES = {"float64": np.float64, "int8": np.int8, "int16": np.int16, "int32": np.int32}
+
+
+def smallest_int_dtype(values):
+    """The smallest of int8, int16, int32 that holds every value of an integer array."""
+    values = np.asarray(values)
+    low, high = (int(values.min()), int(values.max())) if values.size else (0, 0)
+    for dtype in (np.int8, np.int16, np.int32):
+        info = np.iinfo(dtype)
+        if info.min <= low and high <= info.max:
+            return dtype
+    raise FormatError(f"integer values from {low} to {high} do not fit in int32")
+
+
+def _shuffle(raw, itemsize):
+    """Byte-transpose: all first bytes of the items, then all second bytes, ... (compresses better)."""
+    return np.frombuffer(raw, dtype=np.uint8).reshape(-1, itemsize).T.tobytes()
+
+
+def _unshuffle(raw, itemsize):
+    return np.frombuffer(raw, dtype=np.uint8).reshape(itemsize, -1).T.tobytes()
+
+
+def encode_array(array):
+    """JSON object of a numpy array (see ``docs/export-format.md``, "Arrays in the JSON twin").
+
+    Small all-finite arrays become plain lists (``data``); others are ``packed``: the
+    little-endian bytes, byte-shuffled, zlib-compressed and base64-encoded.
+
+    Parameters
+    ----------
+    array : ndarray
+        float64, int8, int16 or int32.
+
+    Returns
+    -------
+    dict
+    """
+    array = np.ascontiguousarray(array)
+    if array.dtype.name not in _DTYPES:
+        raise FormatError(f"cannot encode arrays of dtype {array.dtype.name}; allowed: {sorted(_DTYPES)}")
+    entry = {"dtype": array.dtype.name, "shape": [int(n) for n in array.shape]}
+    if array.size <= PLAIN_LIMIT and np.all(np.isfinite(array)):
+        entry["data"] = array.ravel().tolist()
+    else:
+        raw = array.astype(array.dtype.newbyteorder("<"), copy=False).tobytes()
+        packed = zlib.compress(_shuffle(raw, array.dtype.itemsize), 9)
+        entry["packed"] = base64.b64encode(packed).decode("ascii")
+    return entry
+
+
+def decode_array(entry, name):
+    """Numpy array from its JSON object; raise FormatError naming the field if malformed.
+
+    Parameters
+    ----------
+    entry : dict
+        As written by :func:`encode_array`.
+    name : str
+        Field name for messages, e.g. ``"boosted.leaf_value"``.
+
+    Returns
+    -------
+    ndarray
+    """
+    if not isinstance(entry, dict) or "dtype" not in entry or "shape" not in entry:
+        raise FormatError(f"field {name} must be an array object with dtype, shape and data or packed; "
+                          f"got {_short(entry)}")
+    dtype = _DTYPES.get(entry["dtype"])
+    if dtype is None:
+        raise FormatError(f"field {name} has dtype {entry['dtype']!r}; allowed: {sorted(_DTYPES)}")
+    shape = entry["shape"]
+    if not isinstance(shape, list) or not all(isinstance(n, int) and not isinstance(n, bool) and n >= 0
+                                              for n in shape):
+        raise FormatError(f"field {name} has shape {shape!r}; expected a list of non-negative integers")
+    size = math.prod(shape)
+    if ("data" in entry) == ("packed" in entry):
+        raise FormatError(f"field {name} must hold exactly one of 'data' and 'packed'")
+    if "data" in entry:
+        data = entry["data"]
+        if not isinstance(data, list) or len(data) != size:
+            count = len(data) if isinstance(data, list) else type(data).__name__
+            raise FormatError(f"field {name} has {count} values in 'data'; its shape {shape} needs {size}")
+        integer = np.issubdtype(dtype, np.integer)
+        ok = all(isinstance(v, int) if integer else isinstance(v, (int, float)) for v in data)
+        if not ok or any(isinstance(v, bool) for v in data):
+            kind = "integers" if integer else "numbers"
+            raise FormatError(f"field {name} 'data' must hold only {kind} (dtype {entry['dtype']})")
+        wide = np.asarray(data, dtype=np.float64 if not integer else np.int64)
+        if integer and wide.size and (wide.min() < np.iinfo(dtype).min or wide.max() > np.iinfo(dtype).max):
+            raise FormatError(f"field {name} holds values outside the range of {entry['dtype']}")
+        return wide.astype(dtype).reshape(shape)
+    try:
+        raw = zlib.decompress(base64.b64decode(entry["packed"], validate=True))
+    except (binascii.Error, zlib.error, TypeError, ValueError) as exc:
+        raise FormatError(f"field {name}: 'packed' is not base64 of zlib data ({exc})") from None
+    itemsize = np.dtype(dtype).itemsize
+    if len(raw) != size * itemsize:
+        raise FormatError(f"field {name} unpacks to {len(raw)} bytes; its shape {shape} and dtype "
+                          f"{entry['dtype']} need {size * itemsize}")
+    little = np.dtype(dtype).newbyteorder("<")
+    return np.frombuffer(_unshuffle(raw, itemsize), dtype=little).astype(dtype).reshape(shape)
+
+
+def _short(value, limit=80):
+    text = repr(value)
+    return text if len(text) <= limit else text[:limit] + "..."
+
+
+def document_to_json(document):
+    """Plain-JSON form of a document: arrays of the model section encoded by :func:`encode_array`."""
+    out = dict(document)
+    kind = document["model"]["kind"]
+    out[kind] = {name: encode_array(np.asarray(value)) for name, value in document[kind].items()}
+    return out
+
+
+def document_from_json(content, source):
+    """Document from parsed JSON content: checks the layout and decodes the arrays.
+
+    Parameters
+    ----------
+    content : object
+        ``json.loads`` of a coefficient file.
+    source : str
+        File name for messages.
+
+    Returns
+    -------
+    dict
+        A document whose arrays are numpy arrays; not yet checked for consistency
+        (see :func:`check_document`).
+    """
+    if not isinstance(content, dict):
+        raise FormatError(f"coefficient file {source!r} must hold a JSON object; got {type(content).__name__}")
+    check_header(content, source)
+    kind = content["model"]["kind"]
+    section = content.get(kind)
+    if not isinstance(section, dict):
+        raise FormatError(f"coefficient file {source!r} lacks the {kind!r} section of its model kind")
+    out = dict(content)
+    out[kind] = {name: decode_array(section[name], f"{kind}.{name}") if name in section else None
+                 for name in ARRAYS[kind]}
+    missing = [f"{kind}.{name}" for name, value in out[kind].items() if value is None]
+    if missing:
+        raise FormatError(f"coefficient file {source!r} lacks fields {missing}")
+    return out
+
+
+def check_header(content, source):
+    """Check format name, version, top-level keys and the model kind of a document."""
+    found = content.get("format")
+    if found != FORMAT_NAME:
+        raise FormatError(f"{source!r} is not a surrogate3d coefficient file: field format is {_short(found)}; "
+                          f"expected {FORMAT_NAME!r}")
+    version = content.get("format_version")
+    if not isinstance(version, str) or version.split(".")[0] != FORMAT_VERSION.split(".")[0]:
+        raise FormatError(f"coefficient file {source!r} has format_version {_short(version)}; this version "
+                          f"reads {FORMAT_VERSION} (same major version)")
+    for key, kind in TOP_LEVEL.items():
+        if key not in content:
+            raise FormatError(f"coefficient file {source!r} lacks field {key!r}")
+        if not isinstance(content[key], kind):
+            raise FormatError(f"coefficient file {source!r}: field {key!r} has type {type(content[key]).__name__}")
+    model = content["model"]
+    for key in ("name", "kind"):
+        if not isinstance(model.get(key), str):
+            raise FormatError(f"coefficient file {source!r}: field model.{key} must be a string; "
+                              f"got {_short(model.get(key))}")
+    if model["kind"] not in KINDS:
+        raise FormatError(f"coefficient file {source!r}: model.kind is {model['kind']!r}; known kinds: {list(KINDS)}")
+
+
+def _names(content, section, key, source):
+    values = content[section].get(key)
+    if not isinstance(values, list) or not values or not all(isinstance(v, str) and v for v in values):
+        raise FormatError(f"coefficient file {source!r}: field {section}.{key} must be a non-empty list of "
+                          f"strings; got {_short(values)}")
+    if len(set(values)) != len(values):
+        raise FormatError(f"coefficient file {source!r}: field {section}.{key} repeats names: {values}")
+    return values
+
+
+def check_document(document, source):
+    """Check that the fields of a document agree with each other; raise FormatError if not.
+
+    Checks the array dimensions against each other and against the feature and
+    target lists, and the model-specific rules (``docs/export-format.md``, "Checks on
+    load").  Does not check the feature recipe (:mod:`surrogate3d.runtime.model` does).
+
+    Parameters
+    ----------
+    document : dict
+        From :func:`document_from_json` or the NetCDF reader.
+    source : str
+        File name for messages.
+    """
+    check_header(document, source)
+    feature_names = _names(document, "features", "names", source)
+    units = document["features"].get("units")
+    if not isinstance(units, list) or len(units) != len(feature_names) or not all(isinstance(u, str) for u in units):
+        raise FormatError(f"coefficient file {source!r}: features.units must list one unit string per feature "
+                          f"({len(feature_names)}); got {_short(units)}")
+    target_names = _names(document, "targets", "names", source)
+    kind = document["model"]["kind"]
+    arrays = document[kind]
+    sizes = {"feature": (len(feature_names), "features.names"), "target": (len(target_names), "targets.names"),
+             "pair_member": (2, "the pair layout")}
+    for name, (dims, dtype_kind) in ARRAYS[kind].items():
+        array = arrays[name]
+        label = f"{kind}.{name}"
+        if not isinstance(array, np.ndarray):
+            raise FormatError(f"coefficient file {source!r}: field {label} is not an array")
+        if array.ndim != len(dims):
+            raise FormatError(f"coefficient file {source!r}: field {label} has {array.ndim} dimensions; "
+                              f"expected {len(dims)} {dims}")
+        if (dtype_kind == "f") != (array.dtype == np.float64) or array.dtype.kind not in "fi":
+            expected = "float64" if dtype_kind == "f" else "a signed integer type"
+            raise FormatError(f"coefficient file {source!r}: field {label} has dtype {array.dtype}; expected {expected}")
+        for dim, n in zip(dims, array.shape):
+            known, where = sizes.setdefault(dim, (n, label))
+            if n != known:
+                raise FormatError(f"coefficient file {source!r}: field {label} has length {n} along {dim}; "
+                                  f"{where} has {known}")
+    if kind == "ridge":
+        _check_ridge(arrays, sizes, source)
+    else:
+        _check_trees(arrays, sizes, source)
+
+
+def _fail_at(source, label, index, value, rule):
+    raise FormatError(f"coefficient file {source!r}: field {label} {rule} at index {index}: {value!r}")
+
+
+def _check_finite(arrays, kind, names, source):
+    for name in names:
+        bad = np.flatnonzero(~np.isfinite(arrays[name].ravel()))
+        if bad.size:
+            _fail_at(source, f"{kind}.{name}", int(bad[0]), float(arrays[name].ravel()[bad[0]]), "is not finite")
+
+
+def _check_ridge(arrays, sizes, source):
+    _check_finite(arrays, "ridge", ("feature_mean", "feature_scale", "coef", "intercept"), source)
+    bad = np.flatnonzero(arrays["feature_scale"] <= 0.0)
+    if bad.size:
+        _fail_at(source, "ridge.feature_scale", int(bad[0]), float(arrays["feature_scale"][bad[0]]), "is not positive")
+    n_feature, n_pair = sizes["feature"][0], arrays["interaction_pairs"].shape[0]
+    n_term = sizes["term"][0]
+    if n_term != n_feature + n_pair:
+        raise FormatError(f"coefficient file {source!r}: ridge.coef has {n_term} terms; {n_feature} features and "
+                          f"{n_pair} interaction pairs make {n_feature + n_pair}")
+    pairs = arrays["interaction_pairs"]
+    bad = np.flatnonzero((pairs[:, 0] < 0) | (pairs[:, 0] >= pairs[:, 1]) | (pairs[:, 1] >= n_feature))
+    if bad.size:
+        _fail_at(source, "ridge.interaction_pairs", int(bad[0]), pairs[bad[0]].tolist(),
+                 f"must be feature indices i < j < {n_feature}")
+    if len({tuple(p) for p in pairs.tolist()}) != n_pair:
+        raise FormatError(f"coefficient file {source!r}: ridge.interaction_pairs lists a pair twice")
+
+
+def _check_trees(arrays, sizes, source):
+    label = "boosted"
+    n_feature, n_target = sizes["feature"][0], sizes["target"][0]
+    n_tree, n_node = arrays["tree_target"].size, arrays["feature"].size
+    offset = arrays["tree_offset"].astype(np.int64)
+    if n_tree < 1:
+        raise FormatError(f"coefficient file {source!r}: {label}.tree_target lists no tree")
+    if offset[0] != 0 or offset[-1] != n_node or np.any(np.diff(offset) < 1):
+        raise FormatError(f"coefficient file {source!r}: {label}.tree_offset must rise strictly from 0 to the "
+                          f"node count {n_node}; got {_short(offset.tolist())}")
+    target = arrays["tree_target"]
+    bad = np.flatnonzero((target < 0) | (target >= n_target))
+    if bad.size:
+        _fail_at(source, f"{label}.tree_target", int(bad[0]), int(target[bad[0]]), f"is not a target index < {n_target}")
+    _check_finite(arrays, label, ("baseline", "leaf_value"), source)
+    thresholds = arrays["threshold_values"]
+    if np.any(np.isnan(thresholds)) or np.any(np.diff(thresholds) <= 0):
+        raise FormatError(f"coefficient file {source!r}: {label}.threshold_values must be strictly increasing "
+                          "and not NaN")
+    feature, index = arrays["feature"].astype(np.int64), arrays["threshold_index"].astype(np.int64)
+    left, right = arrays["left"].astype(np.int64), arrays["right"].astype(np.int64)
+    missing = arrays["missing_go_left"]
+    leaf = feature == -1
+    if arrays["leaf_value"].size != np.count_nonzero(leaf):
+        raise FormatError(f"coefficient file {source!r}: {label}.leaf_value has {arrays['leaf_value'].size} values; "
+                          f"{label}.feature marks {np.count_nonzero(leaf)} leaves")
+    rules = [("feature", feature, (feature < -1) | (feature >= n_feature),
+              f"is not -1 (leaf) or a feature index < {n_feature}"),
+             ("threshold_index", index, np.where(leaf, index != -1, (index < 0) | (index >= thresholds.size)),
+              f"must be -1 at a leaf and an index < {thresholds.size} elsewhere"),
+             ("missing_go_left", missing, (missing != 0) & (missing != 1), "must be 0 or 1")]
+    tree_of_node = np.repeat(np.arange(n_tree), np.diff(offset))
+    local = np.arange(n_node) - offset[tree_of_node]
+    size = np.diff(offset)[tree_of_node]
+    for name, child in (("left", left), ("right", right)):
+        # Children come after their parent within the tree, so every path ends at a leaf.
+        rules.append((name, child, np.where(leaf, child != -1, (child <= local) | (child >= size)),
+                      "must be -1 at a leaf and a later node of the same tree elsewhere"))
+    for name, values, bad, rule in rules:
+        where = np.flatnonzero(bad)
+        if where.size:
+            _fail_at(source, f"{label}.{name}", int(where[0]), int(values[where[0]]), rule)
+    children = np.concatenate([(left + offset[tree_of_node])[~leaf], (right + offset[tree_of_node])[~leaf]])
+    expected = np.setdiff1d(np.arange(n_node), offset[:-1])
+    if children.size != expected.size or not np.array_equal(np.sort(children), expected):
+        raise FormatError(f"coefficient file {source!r}: {label}.left and {label}.right do not form trees "
+                          "(every node but a root must be the child of exactly one node)")

@@ -1,0 +1,225 @@
+"""Loading a coefficient file and predicting the 3D correction (numpy only).
+
+:func:`load_coefficients` reads the JSON twin of a coefficient file and checks it;
+:class:`CorrectionModel` predicts from a feature matrix or straight from host-model
+fields, computing the features with the recipe stored in the file through
+:mod:`surrogate3d.pairs.features`.
+"""
+
+import json
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import FormatError, ParameterError, ValidationError
+from ..pairs.features import FEATURES, column_name, compute_features
+from ..pairs.recipe import FeatureRecipe
+from ..pairs.targets import TARGETS
+from .document import check_document, document_from_json
+from .ridge import RidgeModel
+from .trees import TreeEnsemble
+
+
+class CorrectionModel:
+    """A trained 3D correction loaded from a coefficient file.
+
+    Build it with :func:`load_coefficients` (or :meth:`from_document`).
+
+    Attributes
+    ----------
+    name : str
+        Model name given at training.
+    kind : str
+        ``"ridge"`` or ``"boosted"``.
+    feature_names, feature_units : list of str
+        The model's input columns, in order, and their units.
+    target_names : list of str
+        The predicted corrections, in order: 3D minus independent-column flux as a
+        fraction of the incident flux on the horizontal [1].
+    recipe : surrogate3d.pairs.recipe.FeatureRecipe
+        The feature recipe of the training pairs (names, parameters).
+    document : dict
+        Everything the file holds (provenance, skill table, hyperparameters ...).
+
+    Examples
+    --------
+    >>> model = load_coefficients("models/boosted.coefficients.json")   # doctest: +SKIP
+    >>> model.predict(features).shape                                  # doctest: +SKIP
+    (n_column, 5)
+    """
+
+    def __init__(self, document, source="<document>"):
+        check_document(document, source)
+        self.document = document
+        self.source = source
+        self.name = document["model"]["name"]
+        self.kind = document["model"]["kind"]
+        self.feature_names = list(document["features"]["names"])
+        self.feature_units = list(document["features"]["units"])
+        self.target_names = list(document["targets"]["names"])
+        unknown = [t for t in self.target_names if t not in TARGETS]
+        if unknown:
+            raise FormatError(f"coefficient file {source!r}: targets.names has unknown targets {unknown}; "
+                              f"known: {list(TARGETS)}")
+        self.recipe = _recipe(document, self.feature_names, self.feature_units, source)
+        producer = _column_producers(self.recipe)
+        self._needed = [f for f in self.recipe.features if any(producer[c] == f for c in self.feature_names)]
+        arrays = document[self.kind]
+        if self.kind == "ridge":
+            self._evaluator = RidgeModel(**arrays)
+        else:
+            self._evaluator = TreeEnsemble(len(self.feature_names), **arrays)
+
+    @classmethod
+    def from_document(cls, document, source="<document>"):
+        """Model from a coefficient document (arrays as numpy arrays); checks it first."""
+        return cls(document, source)
+
+    def __repr__(self):
+        return (f"CorrectionModel(name={self.name!r}, kind={self.kind!r}, features={len(self.feature_names)}, "
+                f"targets={len(self.target_names)})")
+
+    @property
+    def n_features(self):
+        return len(self.feature_names)
+
+    @property
+    def n_targets(self):
+        return len(self.target_names)
+
+    def predict(self, features):
+        """Predicted corrections of many columns.
+
+        Parameters
+        ----------
+        features : array_like (n_column, n_feature)
+            Feature values in the order and units of :attr:`feature_names` /
+            :attr:`feature_units`; finite.
+
+        Returns
+        -------
+        ndarray (n_column, n_target)
+            Corrections [1] (fractions of the incident flux on the horizontal), columns
+            in the order of :attr:`target_names`.
+
+        Raises
+        ------
+        surrogate3d.errors.ValidationError
+            Wrong shape, or a value that is not finite (sample and feature named).
+        """
+        X = np.asarray(features, dtype=np.float64)
+        if X.ndim != 2 or X.shape[1] != self.n_features:
+            raise ValidationError(f"features must have shape (n_column, {self.n_features}) for model "
+                                  f"{self.name!r}; got {X.shape}")
+        bad = ~np.isfinite(X)
+        if bad.any():
+            i, j = np.argwhere(bad)[0]
+            raise ValidationError(f"features is not finite at column {i}, feature {self.feature_names[j]!r}: "
+                                  f"{X[i, j]!r}")
+        return self._evaluator.predict(X)
+
+    def host_features(self, host_fields):
+        """The model's feature matrix computed from host-model fields with the stored recipe.
+
+        Parameters
+        ----------
+        host_fields : dict of ndarray
+            Host fields on a periodic ``(ny, nx)`` grid (see
+            :mod:`surrogate3d.pairs.features`); only those the model's features use are
+            needed.
+
+        Returns
+        -------
+        ndarray (ny * nx, n_feature)
+            Rows in row-major ``(iy, ix)`` order.
+
+        Raises
+        ------
+        surrogate3d.errors.ValidationError
+            Missing or malformed host fields.
+        """
+        recipe = FeatureRecipe(self._needed, self.recipe.parameters, name=self.recipe.name)
+        columns = recipe.column_names()
+        matrix = compute_features(host_fields, recipe)
+        return matrix[:, [columns.index(name) for name in self.feature_names]]
+
+    def predict_host(self, host_fields):
+        """Predicted corrections of every column of a host grid.
+
+        Parameters
+        ----------
+        host_fields : dict of ndarray
+            See :meth:`host_features`.
+
+        Returns
+        -------
+        ndarray (ny * nx, n_target)
+            Corrections [1], rows in row-major ``(iy, ix)`` order, columns as
+            :attr:`target_names`.
+        """
+        return self.predict(self.host_features(host_fields))
+
+
+def _column_producers(recipe):
+    """Feature-matrix column name -> the recipe feature that computes it."""
+    producer = {}
+    for f in recipe.features:
+        for radius in (recipe.parameters["neighbour_radii"] if FEATURES[f].per_radius else [None]):
+            producer[column_name(f, radius)] = f
+    return producer
+
+
+def _recipe(document, names, units, source):
+    try:
+        recipe = FeatureRecipe.from_dict(document["feature_recipe"])
+    except (ParameterError, FormatError, TypeError, ValueError) as exc:
+        raise FormatError(f"coefficient file {source!r}: feature_recipe is not a valid feature recipe: {exc}") from None
+    columns = dict(zip(recipe.column_names(), recipe.column_units()))
+    missing = [n for n in names if n not in columns]
+    if missing:
+        raise FormatError(f"coefficient file {source!r}: features {missing} are not columns of the stored feature "
+                          f"recipe, which makes {list(columns)}")
+    wrong = [(n, u, columns[n]) for n, u in zip(names, units) if columns[n] != u]
+    if wrong:
+        name, unit, expected = wrong[0]
+        raise FormatError(f"coefficient file {source!r}: feature {name!r} has units {unit!r}; the feature recipe "
+                          f"gives {expected!r}")
+    return recipe
+
+
+def load_coefficients(path):
+    """Read and check the JSON twin of a coefficient file.
+
+    Parameters
+    ----------
+    path : str or Path
+        ``*.coefficients.json`` written by ``surrogate3d export``.
+
+    Returns
+    -------
+    CorrectionModel
+
+    Raises
+    ------
+    surrogate3d.errors.FormatError
+        The file is missing, not JSON, of another format version, lacks a field, has a
+        corrupted or inconsistent array, or lists features that its recipe does not
+        make; the message names the file and the field.
+
+    Examples
+    --------
+    >>> from surrogate3d.runtime import load_coefficients
+    >>> model = load_coefficients("export/boosted.coefficients.json")     # doctest: +SKIP
+    >>> corrections = model.predict_host(host_fields)                     # doctest: +SKIP
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise FormatError(f"coefficient file {str(path)!r} does not exist")
+    if path.suffix.lower() == ".nc":
+        raise FormatError(f"{str(path)!r} is the NetCDF file; the runtime reads its JSON twin "
+                          f"{path.name[:-3] + '.json'!r} (or use surrogate3d.export.read_coefficients)")
+    try:
+        content = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise FormatError(f"coefficient file {str(path)!r} is not valid JSON ({exc})") from None
+    return CorrectionModel(document_from_json(content, str(path)), str(path))

@@ -1,0 +1,49 @@
+"""`surrogate3d demo --quick`: the whole pipeline end to end, and a second run reusing it."""
+
+import json
+
+import pytest
+
+from surrogate3d.cli import main
+
+
+@pytest.fixture(scope="module")
+def demo_dir(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo")
+    assert main(["demo", "--out", str(out), "--quick", "--quiet"]) == 0
+    return out
+
+
+def test_every_stage_writes_its_output(demo_dir):
+    assert len(list((demo_dir / "archive").glob("*.nc"))) == 6
+    assert (demo_dir / "pairs.nc").is_file()
+    training = json.loads((demo_dir / "models" / "training.json").read_text())
+    assert set(training["models"]) == {"ridge", "boosted"}
+    assert training["split"]["held_out_scenes"]
+    page = (demo_dir / "report" / "report.html").read_text()
+    assert "data:image/png;base64," in page
+    exported = list((demo_dir / "export").rglob("*"))
+    assert any(p.suffix == ".json" for p in exported) and any(p.suffix == ".f90" for p in exported)
+
+
+def test_summary_compares_models_with_every_baseline(demo_dir):
+    summary = (demo_dir / "summary.md").read_text()
+    for name in ("no correction", "tilted independent column", "non-local independent pixel", "ridge", "boosted",
+                 "held-out scenes", "held-out regime"):
+        assert name in summary
+
+
+def test_second_run_reuses_finished_work(demo_dir, capsys):
+    before = {p: p.stat().st_mtime_ns for p in demo_dir.rglob("*") if p.is_file() and p.name != "summary.md"}
+    assert main(["demo", "--out", str(demo_dir), "--quick"]) == 0
+    err = capsys.readouterr().err
+    assert "0 generated" in err and "0 runs computed" in err
+    for stage in ("pairs", "models", "report", "export"):
+        assert f"reused {demo_dir / stage}" in err or f"reused {demo_dir / (stage + '.nc')}" in err
+    after = {p: p.stat().st_mtime_ns for p in before}
+    assert after == before
+
+
+def test_bad_jobs_option_is_one_line_error(tmp_path, capsys):
+    assert main(["demo", "--out", str(tmp_path), "--jobs", "0", "--quick"]) == 1
+    assert capsys.readouterr().err.strip().count("\n") == 0
