@@ -29,9 +29,15 @@ METRICS = ("n", "rmse", "mae", "bias", "r2", "skill", "rmse_no_correction", "noi
            "noise_corrected_rmse", "noise_corrected_skill")
 
 
+#: A reference RMSE below this (normalized units or W m-2) means there is nothing to
+#: correct (for example the direct beam under an overhead sun, where 3D equals the
+#: independent column exactly); skill is then undefined.
+NOTHING_TO_CORRECT = 1e-6
+
+
 def _ratio(numerator, denominator):
     with np.errstate(divide="ignore", invalid="ignore"):
-        return float(numerator / denominator) if denominator > 0 else float("nan")
+        return float(numerator / denominator) if denominator > NOTHING_TO_CORRECT else float("nan")
 
 
 def error_metrics(predicted, true, standard_error=None, scale=None):

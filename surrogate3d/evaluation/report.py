@@ -212,8 +212,8 @@ def _map_domains(eval_set, targets, model, n_scenes):
         here &= azimuth == azimuth[here][0]
         idx = np.flatnonzero(here)
         sub = pairs.isel(sample=idx)
-        title = (f"scene {scene} (regime {table[scene][0]}): solar zenith angle {lowest:g} deg, beam travelling "
-                 f"toward {azimuth[idx[0]]:g} deg (counterclockwise from +x), host columns {finest / 1000:g} km")
+        title = (f"{scene}: sun zenith {lowest:g} deg, beam toward {azimuth[idx[0]]:g} deg "
+                 f"(ccw from +x), {finest / 1000:g} km host columns")
         domains.append({
             "title": title, "resolution": float(finest),
             "ica": figures.host_map(sub, ica[idx] * flux[idx]),

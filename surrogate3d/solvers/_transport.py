@@ -33,7 +33,7 @@ N_TALLIES = 5
 TWO_PI = 2.0 * math.pi
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def hg_cosine(g, xi):
     """Scattering-angle cosine sampled from the Henyey-Greenstein phase function."""
     if abs(g) < 1e-6:
@@ -43,7 +43,7 @@ def hg_cosine(g, xi):
     return min(1.0, max(-1.0, mu))
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def rotate(ux, uy, uz, mu, phi):
     """Direction at polar cosine ``mu`` and azimuth ``phi`` about (ux, uy, uz)."""
     sint = math.sqrt(max(0.0, 1.0 - mu * mu))
@@ -60,7 +60,7 @@ def rotate(ux, uy, uz, mu, phi):
     return nx * norm, ny * norm, nz * norm
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def lambertian_up(state):
     """Upward direction from a Lambertian (cosine-weighted) distribution."""
     mu = math.sqrt(uniform(state))
@@ -69,7 +69,7 @@ def lambertian_up(state):
     return s * math.cos(phi), s * math.sin(phi), max(mu, 1e-12)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _not_flat(uz):
     # A photon exactly parallel to the layers would never cross a face.
     if uz == 0.0:
@@ -77,7 +77,7 @@ def _not_flat(uz):
     return uz
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _cell_index(pos, step, lo, hi):
     i = int(pos / step)
     if i < lo:
@@ -87,7 +87,7 @@ def _cell_index(pos, step, lo, hi):
     return i
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell):
     """Absorption (by weight, or roulette at low weight) and Henyey-Greenstein scattering.
 
@@ -113,7 +113,7 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
     return True, w, ux, uy, _not_flat(uz)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _surface(state, w, b, iy, ix, thresh, alb, col):
     """Diffuse arrival at the Lambertian surface: tally, absorb, reflect.  Returns ``(alive, w)``."""
     col[b, SFC_DOWN, iy, ix] += w
@@ -131,7 +131,7 @@ def _surface(state, w, b, iy, ix, thresh, alb, col):
     return True, w
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy,
                  kmaj, exact, bx, by, czi, z_to_cz, iz, thresh, max_events, col, cell):
     """Trace one photon in 3D from (x, y, z) in fine layer ``iz``; returns its scattering events.
@@ -339,7 +339,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
         cx, cy, cz = ix // bx, iy // by, z_to_cz[iz]
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
                      thresh, max_events, col, cell):
     """Trace one photon confined to column (ix, iy) as if it extended to infinity horizontally.
@@ -387,7 +387,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             tau = -math.log(uniform_open(state))
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
                z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj, exact, czi, bx, by, z_to_cz, ray_cum, ray_trans,
                roulette, max_events, col, cell):
