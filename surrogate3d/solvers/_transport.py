@@ -3,15 +3,17 @@
 Photons start where the deterministic direct beam scatters (or is reflected by the
 surface) and are traced until they leave the top of the domain or are absorbed:
 
-* free paths are sampled exactly by null-collision (delta) tracking against a majorant
-  that is constant in blocks of cells, so clear-air cells are crossed a block at a time
-  (Woodcock et al. 1965; Villefranque et al. 2019); in independent-column mode the
-  photon stays in its column and walks its layers one by one (no null collisions);
+* free paths are sampled exactly: the photon walks the cells one by one, but crosses a
+  cube of clear air around its cell in one step, tracked against the largest clear-air
+  extinction with null collisions (delta tracking; Woodcock et al. 1965, the majorant idea
+  of Villefranque et al. 2019); in independent-column mode the photon stays in its column
+  and walks its layers one by one;
 * Henyey-Greenstein scattering (Henyey and Greenstein 1941), Lambertian surface;
 * absorption by weight, ``w (1 - omega)`` per collision and ``w (1 - A)`` per surface
-  hit, while the weight is above a threshold; below it an unbiased Russian roulette
-  keeps the photon with probability ``omega`` (or ``A``) at unchanged weight and
-  otherwise books its whole weight as absorbed where it stopped.  The expected tallies
+  hit, while the weight is above a threshold; below it (and in nearly conservative
+  cells, omega > 0.9999) an unbiased Russian roulette keeps the photon with probability
+  ``omega`` (or ``A``) at unchanged weight and otherwise books its whole weight as
+  absorbed where it stopped.  The expected tallies
   equal those of absorption by weight, and every photon's weight ends up in exactly one
   of: reflected at the top, absorbed in a cell, absorbed at the surface.  Energy
   therefore closes exactly in every run.
@@ -29,6 +31,10 @@ from ._geometry import locate_source_3d, locate_source_column
 from ._rng import seed_stream, uniform, uniform_open
 
 TOA_UP, SFC_DOWN, SFC_UP, ATM_ABS, SFC_ABS = 0, 1, 2, 3, 4
+#: Above this single-scattering albedo the roulette books absorption: a weighted deposit of
+#: less than 1e-4 of the weight at every collision would cost a memory write each for a
+#: negligible variance gain.  Both estimators are unbiased.
+WEIGHTED_ABSORPTION_MAX_ALBEDO = 0.9999
 N_TALLIES = 5
 TWO_PI = 2.0 * math.pi
 
@@ -89,11 +95,11 @@ def _cell_index(pos, step, lo, hi):
 
 @njit(cache=True, inline="always", error_model="numpy")
 def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell):
-    """Absorption (by weight, or roulette at low weight) and Henyey-Greenstein scattering.
+    """Absorption (by weight, or roulette) and Henyey-Greenstein scattering.
 
     Returns ``(alive, w, ux, uy, uz)``.
     """
-    if w >= thresh:
+    if w >= thresh and om <= WEIGHTED_ABSORPTION_MAX_ALBEDO:
         a = w * (1.0 - om)
         cell[iz, iy, ix] += a
         col[b, ATM_ABS, iy, ix] += a
@@ -131,212 +137,219 @@ def _surface(state, w, b, iy, ix, thresh, alb, col):
     return True, w
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def _wrap(pos, length):
+    # A loop, not %, which is slow and rarely needed: flights seldom cross the domain.
+    while pos >= length:
+        pos -= length
+    while pos < 0.0:
+        pos += length
+    return pos
+
+
 @njit(cache=True, error_model="numpy")
-def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy,
-                 kmaj, exact, bx, by, czi, z_to_cz, iz, thresh, max_events, col, cell):
-    """Trace one photon in 3D from (x, y, z) in fine layer ``iz``; returns its scattering events.
+def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, skip, kclear, iz,
+                 thresh, max_events, col, cell):
+    """Trace one photon in 3D from (x, y, z) in layer ``iz``; returns its scattering events.
 
     ``kext`` is the float32 extinction (nband, nz, ny, nx), kept apart from the float32
     (nband, nz, ny, nx, 2) single-scattering albedo and asymmetry ``ssa_g`` that only
     collisions need, so that tracking touches as little memory as possible.
-    The grid is covered by blocks of ``bx x by`` cells and the layers ``czi[c]`` to
-    ``czi[c+1] - 1``.  In blocks flagged ``exact`` the photon walks the cells one by one;
-    elsewhere it is tracked against the block's majorant ``kmaj`` with null collisions
-    (optically thin or nearly uniform blocks, such as clear air, are crossed in one step).
+
+    The photon walks the cells one by one, except where ``skip`` (uint8, nband, nz, ny, nx)
+    says that every cell within ``skip`` cells of the current one (a cube in index space)
+    is clear air with extinction at most ``kclear[b]``: it then crosses that cube in one
+    step, tracked against ``kclear[b]`` with null collisions, which is exact.
     """
     nz, ny, nx = kext.shape[1], kext.shape[2], kext.shape[3]
-    ncz, ncy, ncx = kmaj.shape[1], kmaj.shape[2], kmaj.shape[3]
+    lx, ly = nx * dx, ny * dy
     ix = min(int(x / dx), nx - 1)
     iy = min(int(y / dy), ny - 1)
-    cx, cy, cz = ix // bx, iy // by, z_to_cz[iz]
     events = 0
     uz = _not_flat(uz)
     tau = -math.log(uniform_open(state))
+    kc = kclear[b]
     while True:
-        ix_lo, iy_lo, iz_lo = cx * bx, cy * by, czi[cz]
-        ix_hi, iy_hi, iz_hi = min(ix_lo + bx, nx) - 1, min(iy_lo + by, ny) - 1, czi[cz + 1] - 1
-        # --- walk to the block's boundary, colliding on the way; axis/direction of the exit face
-        if exact[b, cz, cy, cx]:
-            leave = False
-            while not leave:  # one straight flight per pass; distances are along the ray from (x, y, z)
-                if ux > 0.0:
-                    fx, step_x = ((ix + 1) * dx - x) / ux, dx / ux
-                elif ux < 0.0:
-                    fx, step_x = (ix * dx - x) / ux, -dx / ux
-                else:
-                    fx, step_x = math.inf, math.inf
-                if uy > 0.0:
-                    fy, step_y = ((iy + 1) * dy - y) / uy, dy / uy
-                elif uy < 0.0:
-                    fy, step_y = (iy * dy - y) / uy, -dy / uy
-                else:
-                    fy, step_y = math.inf, math.inf
-                inv_uz = 1.0 / uz
-                fz = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) * inv_uz
-                s = 0.0
-                while True:
-                    if fx <= fy and fx <= fz:
-                        face, axis = fx, 0
-                    elif fy <= fz:
-                        face, axis = fy, 1
-                    else:
-                        face, axis = fz, 2
-                    k = kext[b, iz, iy, ix]
-                    t = max(face - s, 0.0)
-                    if k * t > tau:
-                        s += tau / k
-                        x += s * ux
-                        y += s * uy
-                        z += s * uz
-                        tau = -math.log(uniform_open(state))
-                        events += 1
-                        alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
-                                                        iz, iy, ix, b, thresh, events, max_events, ux, uy, uz,
-                                                        col, cell)
-                        if not alive:
-                            return events
-                        break
-                    tau -= k * t
-                    s = face
-                    if axis == 0:
-                        fx += step_x
-                        if ux > 0.0:
-                            ix += 1
-                            leave = ix > ix_hi
-                        else:
-                            ix -= 1
-                            leave = ix < ix_lo
-                    elif axis == 1:
-                        fy += step_y
-                        if uy > 0.0:
-                            iy += 1
-                            leave = iy > iy_hi
-                        else:
-                            iy -= 1
-                            leave = iy < iy_lo
-                    else:
-                        if uz > 0.0:
-                            iz += 1
-                            leave = iz > iz_hi
-                            if not leave:
-                                fz += (z_edge[iz + 1] - z_edge[iz]) * inv_uz
-                        else:
-                            iz -= 1
-                            leave = iz < iz_lo
-                            if not leave:
-                                fz -= (z_edge[iz + 1] - z_edge[iz]) * inv_uz
-                    if leave:
-                        x += s * ux
-                        y += s * uy
-                        z += s * uz
-                        # Snap onto the face crossed, so that the next block starts exactly there.
-                        if axis == 0:
-                            x = ix * dx if ux > 0.0 else (ix + 1) * dx
-                        elif axis == 1:
-                            y = iy * dy if uy > 0.0 else (iy + 1) * dy
-                        else:
-                            z = z_edge[iz] if uz > 0.0 else z_edge[iz + 1]
-                        break
-        else:
-            k = kmaj[b, cz, cy, cx]
-            while True:
-                tx = math.inf
-                if ux > 0.0:
-                    tx = ((ix_hi + 1) * dx - x) / ux
-                elif ux < 0.0:
-                    tx = (ix_lo * dx - x) / ux
-                ty = math.inf
-                if uy > 0.0:
-                    ty = ((iy_hi + 1) * dy - y) / uy
-                elif uy < 0.0:
-                    ty = (iy_lo * dy - y) / uy
+        r = skip[b, iz, iy, ix]
+        if r > 0:
+            # --- one step across the clear cube around the current cell
+            tx = math.inf
+            if ux > 0.0:
+                tx = ((ix + r + 1) * dx - x) / ux
+            elif ux < 0.0:
+                tx = ((ix - r) * dx - x) / ux
+            ty = math.inf
+            if uy > 0.0:
+                ty = ((iy + r + 1) * dy - y) / uy
+            elif uy < 0.0:
+                ty = ((iy - r) * dy - y) / uy
+            z_lo, z_hi = max(iz - r, 0), min(iz + r, nz - 1)
+            if uz > 0.0:
+                tz = (z_edge[z_hi + 1] - z) / uz
+            else:
+                tz = (z_edge[z_lo] - z) / uz
+            t = max(min(tx, ty, tz), 0.0)
+            if kc * t > tau:
+                s = tau / kc
+                x = _wrap(x + s * ux, lx)
+                y = _wrap(y + s * uy, ly)
+                z += s * uz
+                tau = -math.log(uniform_open(state))
+                ix = min(int(x / dx), nx - 1)
+                iy = min(int(y / dy), ny - 1)
+                while iz < z_hi and z >= z_edge[iz + 1]:
+                    iz += 1
+                while iz > z_lo and z < z_edge[iz]:
+                    iz -= 1
+                kf = kext[b, iz, iy, ix]
+                if kf < kc and uniform(state) * kc >= kf:
+                    continue  # null collision
+                events += 1
+                alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
+                                                iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell)
+                if not alive:
+                    return events
+                continue
+            tau -= kc * t
+            nx_ = x + t * ux
+            ny_ = y + t * uy
+            z += t * uz
+            if tx <= ty and tx <= tz:
+                ix = ix + r + 1 if ux > 0.0 else ix - r - 1
+                x = ix * dx if ux > 0.0 else (ix + 1) * dx
+                y = ny_
+                iy = min(max(int(math.floor(y / dy)), iy - r), iy + r)
+                iz = _layer_in(z, z_edge, z_lo, z_hi)
+            elif ty <= tz:
+                iy = iy + r + 1 if uy > 0.0 else iy - r - 1
+                y = iy * dy if uy > 0.0 else (iy + 1) * dy
+                x = nx_
+                ix = min(max(int(math.floor(x / dx)), ix - r), ix + r)
+                iz = _layer_in(z, z_edge, z_lo, z_hi)
+            else:
+                x, y = nx_, ny_
+                ix = min(max(int(math.floor(x / dx)), ix - r), ix + r)
+                iy = min(max(int(math.floor(y / dy)), iy - r), iy + r)
                 if uz > 0.0:
-                    tz = (z_edge[iz_hi + 1] - z) / uz
+                    iz = z_hi + 1
+                    z = z_edge[iz]
                 else:
-                    tz = (z_edge[iz_lo] - z) / uz
-                if tx <= ty and tx <= tz:
-                    t, axis = max(tx, 0.0), 0
-                elif ty <= tz:
-                    t, axis = max(ty, 0.0), 1
+                    iz = z_lo - 1
+                    z = z_edge[z_lo]
+            # back into the periodic domain
+            if ix >= nx:
+                ix -= nx
+                x -= lx
+            elif ix < 0:
+                ix += nx
+                x += lx
+            if iy >= ny:
+                iy -= ny
+                y -= ly
+            elif iy < 0:
+                iy += ny
+                y += ly
+            if iz == nz:
+                col[b, TOA_UP, iy, ix] += w
+                return events
+            if iz < 0:
+                iz = 0
+                alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
+                if not alive:
+                    return events
+                ux, uy, uz = lambertian_up(state)
+                tau = -math.log(uniform_open(state))
+            continue
+        # --- walk cells one by one until a collision, a clear cube or a domain boundary
+        if ux > 0.0:
+            fx, step_x = ((ix + 1) * dx - x) / ux, dx / ux
+        elif ux < 0.0:
+            fx, step_x = (ix * dx - x) / ux, -dx / ux
+        else:
+            fx, step_x = math.inf, math.inf
+        if uy > 0.0:
+            fy, step_y = ((iy + 1) * dy - y) / uy, dy / uy
+        elif uy < 0.0:
+            fy, step_y = (iy * dy - y) / uy, -dy / uy
+        else:
+            fy, step_y = math.inf, math.inf
+        inv_uz = 1.0 / uz
+        fz = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) * inv_uz
+        s = 0.0
+        while True:
+            if fx <= fy and fx <= fz:
+                face, axis = fx, 0
+            elif fy <= fz:
+                face, axis = fy, 1
+            else:
+                face, axis = fz, 2
+            k = kext[b, iz, iy, ix]
+            t = max(face - s, 0.0)
+            if k * t > tau:
+                s += tau / k
+                x = _wrap(x + s * ux, lx)
+                y = _wrap(y + s * uy, ly)
+                z += s * uz
+                tau = -math.log(uniform_open(state))
+                events += 1
+                alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
+                                                iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell)
+                if not alive:
+                    return events
+                break
+            tau -= k * t
+            s = face
+            if axis == 0:
+                fx += step_x
+                if ux > 0.0:
+                    ix = ix + 1 if ix < nx - 1 else 0
                 else:
-                    t, axis = max(tz, 0.0), 2
-                if k * t > tau:
-                    s = tau / k
-                    x += s * ux
-                    y += s * uy
-                    z += s * uz
-                    tau = -math.log(uniform_open(state))
-                    ix = _cell_index(x, dx, ix_lo, ix_hi)
-                    iy = _cell_index(y, dy, iy_lo, iy_hi)
-                    iz = iz_lo
-                    while iz < iz_hi and z >= z_edge[iz + 1]:
-                        iz += 1
-                    kf = kext[b, iz, iy, ix]
-                    if kf < k and uniform(state) * k >= kf:
-                        continue  # null collision
-                    events += 1
-                    alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
-                                                    iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell)
+                    ix = ix - 1 if ix > 0 else nx - 1
+            elif axis == 1:
+                fy += step_y
+                if uy > 0.0:
+                    iy = iy + 1 if iy < ny - 1 else 0
+                else:
+                    iy = iy - 1 if iy > 0 else ny - 1
+            elif uz > 0.0:
+                if iz == nz - 1:
+                    col[b, TOA_UP, iy, ix] += w
+                    return events
+                iz += 1
+                fz += (z_edge[iz + 1] - z_edge[iz]) * inv_uz
+            else:
+                if iz == 0:
+                    x = _wrap(x + s * ux, lx)
+                    y = _wrap(y + s * uy, ly)
+                    z = z_edge[0]
+                    alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
                     if not alive:
                         return events
-                    continue
-                tau -= k * t
-                x += t * ux
-                y += t * uy
-                z += t * uz
+                    ux, uy, uz = lambertian_up(state)
+                    tau = -math.log(uniform_open(state))
+                    break
+                iz -= 1
+                fz -= (z_edge[iz + 1] - z_edge[iz]) * inv_uz
+            if skip[b, iz, iy, ix] > 0:
+                # Entering clear air: move to the face just crossed, then take cube steps.
+                x = _wrap(x + s * ux, lx)
+                y = _wrap(y + s * uy, ly)
+                z += s * uz
                 if axis == 0:
-                    if ux > 0.0:
-                        ix = ix_hi + 1
-                        x = ix * dx
-                    else:
-                        ix = ix_lo - 1
-                        x = ix_lo * dx
-                    iy = _cell_index(y, dy, iy_lo, iy_hi)
-                    iz = iz_lo
-                    while iz < iz_hi and z >= z_edge[iz + 1]:
-                        iz += 1
+                    x = ix * dx if ux > 0.0 else (ix + 1) * dx
                 elif axis == 1:
-                    if uy > 0.0:
-                        iy = iy_hi + 1
-                        y = iy * dy
-                    else:
-                        iy = iy_lo - 1
-                        y = iy_lo * dy
-                    ix = _cell_index(x, dx, ix_lo, ix_hi)
-                    iz = iz_lo
-                    while iz < iz_hi and z >= z_edge[iz + 1]:
-                        iz += 1
+                    y = iy * dy if uy > 0.0 else (iy + 1) * dy
                 else:
-                    if uz > 0.0:
-                        iz = iz_hi + 1
-                        z = z_edge[iz]
-                    else:
-                        iz = iz_lo - 1
-                        z = z_edge[iz_lo]
-                    ix = _cell_index(x, dx, ix_lo, ix_hi)
-                    iy = _cell_index(y, dy, iy_lo, iy_hi)
+                    z = z_edge[iz] if uz > 0.0 else z_edge[iz + 1]
                 break
-        # --- the photon is on a face of its block: wrap, leave at the top, or meet the surface
-        if ix == nx:
-            ix, x = 0, 0.0
-        elif ix < 0:
-            ix, x = nx - 1, nx * dx
-        if iy == ny:
-            iy, y = 0, 0.0
-        elif iy < 0:
-            iy, y = ny - 1, ny * dy
-        if iz == nz:
-            col[b, TOA_UP, iy, ix] += w
-            return events
-        if iz < 0:
-            iz = 0
-            z = z_edge[0]
-            alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
-            if not alive:
-                return events
-            ux, uy, uz = lambertian_up(state)
-            tau = -math.log(uniform_open(state))
-        cx, cy, cz = ix // bx, iy // by, z_to_cz[iz]
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _layer_in(z, z_edge, lo, hi):
+    iz = lo
+    while iz < hi and z >= z_edge[iz + 1]:
+        iz += 1
+    return iz
 
 
 @njit(cache=True, error_model="numpy")
@@ -389,7 +402,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
 
 @njit(cache=True, error_model="numpy")
 def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
-               z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj, exact, czi, bx, by, z_to_cz, ray_cum, ray_trans,
+               z_edge, dx, dy, ux0, uy0, uz0, nsub, skip, kclear, czi, ray_cum, ray_trans,
                roulette, max_events, col, cell):
     """Trace one batch of photons into the slot tallies ``col`` and ``cell``; returns events.
 
@@ -425,7 +438,7 @@ def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, 
             else:
                 ux, uy, uz = lambertian_up(state)
             events += transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy,
-                                   kmaj, exact, bx, by, czi, z_to_cz, iz, thresh, max_events, col, cell)
+                                   skip, kclear, iz, thresh, max_events, col, cell)
         else:
             kind, z, iz = locate_source_column(r, b, target, column_props, alb, z_edge, mu0, v)
             ix = r % nx
@@ -443,8 +456,8 @@ def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, 
 
 @njit(cache=True, parallel=True)
 def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, nrays,
-                kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, kmaj, exact, czi, bx, by,
-                z_to_cz, ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum):
+                kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, skip, kclear, czi,
+                ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum):
     """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to the sums.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
@@ -472,7 +485,7 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
             cell_slots[i, :, :, :] = 0.0
             slot_events[i] = _run_batch(start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
                                         kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
-                                        kmaj, exact, czi, bx, by, z_to_cz, ray_cum, ray_trans, roulette,
+                                        skip, kclear, czi, ray_cum, ray_trans, roulette,
                                         max_events, col_slots[i], cell_slots[i])
         for i in range(n):
             cs = col_slots[i].reshape(nb, ncol)

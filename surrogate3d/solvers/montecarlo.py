@@ -22,7 +22,9 @@ from .sun import beam_direction, check_sun
 SOLAR_CONSTANT = 1361.0
 #: Batches per parallel wave; fixed so results do not depend on the thread count.
 WAVE = 8
-DEFAULT_MAJORANT_BLOCK = (8, 8, 4)
+#: Largest clear-air cube radius (cells) and layers per block of the per-ray source tables.
+DEFAULT_CLEAR_CUBE = 8
+RAY_TABLE_LAYERS = 4
 
 
 def _check_int(name, value, low, high=None):
@@ -55,52 +57,56 @@ def default_batch_size(photons):
     return int(min(50_000, max(1_000, math.ceil(photons / 32))))
 
 
-def majorant_grid(ext, block, z_edge, dx, dy):
-    """Blocks of cells for the tracking: a majorant per block and a flag where cells are walked.
+#: Optical thickness across a cell below which a cell counts as clear air for cube steps.
+CLEAR_CELL_OPTICAL_THICKNESS = 0.01
 
-    In an optically thin or nearly uniform block (clear air) null-collision tracking against
-    the block's largest extinction crosses the block in one step with few null collisions;
-    where a block mixes cloud and clear air the photon walks its cells one by one instead.
+
+def clear_air_cubes(ext, z_edge, dx, dy, max_radius):
+    """Radius of the clear-air cube around every cell, for one-step crossings.
+
+    A cell is clear where its optical thickness across its smallest size is at most
+    :data:`CLEAR_CELL_OPTICAL_THICKNESS`.  ``skip[b, k, j, i] = r`` says that every cell
+    within ``r`` cells of (k, j, i) in each index direction (periodic in x and y, cut at
+    the bottom and top) is clear, so the photon can cross that cube in one step tracked
+    against the largest clear-air extinction ``kclear[b]``.
 
     Parameters
     ----------
     ext : ndarray (nband, nz, ny, nx)
         Extinction [m-1].
-    block : (int, int, int)
-        Block size in cells along x, y and z.
     z_edge : ndarray (nz + 1,)
         Layer edges [m].
     dx, dy : float
         Cell size [m].
+    max_radius : int
+        Largest cube radius (cells), at least 0; capped so that a cube fits in the domain.
 
     Returns
     -------
-    kmaj : float64 (nband, ncz, ncy, ncx)
-        Largest extinction in each block [m-1].
-    exact : bool (nband, ncz, ncy, ncx)
-        True where the photon walks the cells of the block.
-    czi : int64 (ncz + 1,)
-        Fine layer index of each block edge in z.
-    z_to_cz : int64 (nz,)
-        Block index of every layer.
+    skip : uint8 (nband, nz, ny, nx)
+    kclear : float64 (nband,)
+        Largest extinction of the clear cells [m-1].
     """
-    bx, by, bz = block
     nb, nz, ny, nx = ext.shape
-    ncx, ncy, ncz = -(-nx // bx), -(-ny // by), -(-nz // bz)
-    padded = np.zeros((nb, ncz * bz, ncy * by, ncx * bx))
-    padded[:, :nz, :ny, :nx] = ext
-    blocks = padded.reshape(nb, ncz, bz, ncy, by, ncx, bx)
-    kmaj = blocks.max(axis=(2, 4, 6))
-    padded[:, nz:], padded[:, :, ny:], padded[:, :, :, nx:] = np.inf, np.inf, np.inf
-    kmin = padded.reshape(blocks.shape).min(axis=(2, 4, 6))
-    czi = np.minimum(np.arange(ncz + 1) * bz, nz).astype(np.int64)
-    height = np.diff(z_edge[czi])[None, :, None, None]
-    size = np.sqrt((bx * dx) ** 2 + (by * dy) ** 2 + height**2)
-    cell = min(dx, dy, float(np.diff(z_edge).min()))
-    # Null-collision tracking costs a memory access per candidate, cell walking one per cell:
-    # track against the majorant where candidates are rarer than cells, or mostly real.
-    cheap = (kmaj * size <= 0.2) | (kmaj * cell <= 0.5) | (kmin >= 0.75 * kmaj)
-    return np.ascontiguousarray(kmaj), np.ascontiguousarray(~cheap), czi, (np.arange(nz) // bz).astype(np.int64)
+    size = np.minimum(np.minimum(dx, dy), np.diff(z_edge))[None, :, None, None]
+    clear = ext * size <= CLEAR_CELL_OPTICAL_THICKNESS
+    kclear = np.array([ext[b][clear[b]].max() if clear[b].any() else 0.0 for b in range(nb)])
+    radius = int(min(max_radius, (min(nx, ny) - 1) // 2, 255))
+    skip = np.zeros(ext.shape, dtype=np.uint8)
+    grown = ~clear
+    for r in range(1, radius + 1):
+        near = grown | np.roll(grown, 1, axis=3) | np.roll(grown, -1, axis=3)
+        near = near | np.roll(near, 1, axis=2) | np.roll(near, -1, axis=2)
+        up, down = np.zeros_like(near), np.zeros_like(near)
+        up[:, 1:], down[:, :-1] = near[:, :-1], near[:, 1:]
+        grown = near | up | down
+        skip[~grown] = r
+    return skip, kclear
+
+
+def _ray_table_edges(nz, layers):
+    """Layer-edge indices every ``layers`` layers (where the per-ray source tables are kept)."""
+    return np.minimum(np.arange(-(-nz // layers) + 1) * layers, nz).astype(np.int64)
 
 
 def direct_beam_column(ext, ssa, alb, z_edge, mu0):
@@ -154,7 +160,7 @@ def _arrays(scene):
 
 def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=1_000_000, seed=0,
                       independent_columns=False, batch_size=None, rays_per_column=2, threads=None,
-                      per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=DEFAULT_MAJORANT_BLOCK,
+                      per_band=False, solar_constant=SOLAR_CONSTANT, clear_cube=DEFAULT_CLEAR_CUBE,
                       roulette_weight=0.1, max_scattering_events=100_000, progress=None):
     """Broadband (and per-band) solar fluxes of a scene by Monte Carlo.
 
@@ -185,8 +191,9 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         Also return the column fluxes of every band (fractions of the band's incident flux).
     solar_constant : float
         [W m-2], used for W m-2 conversions and heating rates (default 1361, Kopp and Lean 2011).
-    majorant_block : (int, int, int)
-        Cells per majorant block along x, y, z for null-collision tracking (3D mode).
+    clear_cube : int
+        Largest radius (cells) of the clear-air cubes a photon crosses in one step (3D
+        mode), >= 0; 0 walks every cell.  Only the cost depends on it.
     roulette_weight : float
         Photon weight, relative to the starting weight, below which Russian roulette replaces
         absorption by weight; in (0, 1].
@@ -230,9 +237,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     roulette = _check_float("roulette_weight", roulette_weight, 0.0, 1.0, low_open=True)
     max_events = _check_int("max_scattering_events", max_scattering_events, 1)
     solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
-    block = tuple(_check_int("majorant_block", b, 1) for b in majorant_block)
-    if len(block) != 3:
-        raise ParameterError(f"majorant_block must have three sizes (x, y, z); got {majorant_block!r}")
+    clear_cube = _check_int("clear_cube", clear_cube, 0, 255)
 
     started = time.perf_counter()
     ext, ssa, asym, alb = _arrays(scene)
@@ -247,12 +252,12 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     if independent_columns:
         absorbed, surface, source = direct_beam_column(ext, ssa, alb, z_edge, mu0)
         nsub_used = 1
-        kmaj, exact = np.zeros((nb, 1, 1, 1)), np.zeros((nb, 1, 1, 1), dtype=bool)
-        czi, z_to_cz, bx, by = np.zeros(2, np.int64), np.zeros(nz, np.int64), 1, 1
+        skip, kclear = np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb)
+        czi = np.zeros(2, np.int64)
         ray_cum = ray_trans = np.zeros((nb, 1, 1))
     else:
-        kmaj, exact, czi, z_to_cz = majorant_grid(ext, block, z_edge, dx, dy)
-        bx, by = block[0], block[1]
+        skip, kclear = clear_air_cubes(ext.astype(np.float32), z_edge, dx, dy, clear_cube)
+        czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
         absorbed, surface, source, ray_cum, ray_trans = _geometry.direct_beam_3d(
             ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi)
         nsub_used = nsub
@@ -278,9 +283,8 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                 n = min(chunk, n_batches - first)
                 events += _transport.run_batches(
                     first, n, WAVE, not independent_columns, seed, batch_size, cdf, safe_w, nrays,
-                    kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, kmaj, exact, czi,
-                    bx, by, z_to_cz, ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq,
-                    cell_sum)
+                    kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, skip, kclear, czi,
+                    ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum)
                 if progress is not None:
                     progress((first + n) * batch_size)
         finally:

@@ -158,3 +158,27 @@ def test_sampled_first_scatter_points_follow_the_direct_beam_source():
         if kind == 0:
             assert z_edge[iz] - 1e-9 <= z <= z_edge[iz + 1] + 1e-9
     np.testing.assert_allclose(counts / n, expected / expected.sum(), atol=3e-3)
+
+
+def test_clear_air_cubes_match_brute_force():
+    from surrogate3d.solvers.montecarlo import clear_air_cubes
+
+    rng = np.random.default_rng(4)
+    ext = np.where(rng.random((1, 6, 9, 11)) < 0.04, 0.02, 1e-5)
+    z_edge = np.linspace(0.0, 600.0, 7)
+    skip, kclear = clear_air_cubes(ext, z_edge, 100.0, 100.0, 4)
+    assert kclear[0] == 1e-5
+    clear = ext[0] * 100.0 <= 0.01
+    nz, ny, nx = clear.shape
+    for iz in range(nz):
+        for iy in range(ny):
+            for ix in range(nx):
+                best = 0
+                for r in range(1, 5):  # the cube of radius r, periodic in x and y, cut in z
+                    zs = range(max(iz - r, 0), min(iz + r, nz - 1) + 1)
+                    if all(clear[k, (iy + j) % ny, (ix + i) % nx] for k in zs for j in range(-r, r + 1)
+                           for i in range(-r, r + 1)):
+                        best = r
+                    else:
+                        break
+                assert skip[0, iz, iy, ix] == best, (iz, iy, ix)
