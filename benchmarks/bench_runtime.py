@@ -11,10 +11,11 @@ Measures, on one core:
 
 The models are those of a model directory (``--model-dir``, e.g. written by
 ``surrogate3d train PAIRS --recipe training/default.toml``) or, by default, stand-ins
-trained here with the largest settings of ``training/default.toml`` (ridge with
-interactions; boosting with 300 iterations of 31 and of 15 leaves) on a table of the
-default recipe's features computed from random host fields.  ``--json FILE`` also
-writes the figures.
+trained here with the first candidate of each model of ``training/default.toml`` (the
+model sizes are fixed there) on a table of the default recipe's features computed from
+random host fields.  File sizes are in kB (1000 bytes).  The load average is printed and
+stored with the figures: timings taken on a busy machine are slower.  ``--json FILE``
+also writes the figures.
 
     .venv/bin/python benchmarks/bench_runtime.py [--model-dir DIR] [--columns N] [--json FILE]
 """
@@ -38,18 +39,19 @@ import xarray as xr  # noqa: E402
 from surrogate3d._atomic import write_text_atomic  # noqa: E402
 from surrogate3d.export import build_document, write_coefficients  # noqa: E402
 from surrogate3d.export.fortran import features_file_text, write_fortran  # noqa: E402
-from surrogate3d.learn import TARGETS, TrainedModel, load_training_run, make_estimator  # noqa: E402
+from surrogate3d.learn import TARGETS, TrainedModel, load_training_run, make_estimator, read_recipe  # noqa: E402
 from surrogate3d.pairs.features import compute_features  # noqa: E402
 from surrogate3d.pairs.recipe import default_recipe  # noqa: E402
 from surrogate3d.runtime import CorrectionModel  # noqa: E402
 from surrogate3d.solvers.two_stream import delta_eddington  # noqa: E402
 
-#: Stand-in models: name -> (kind, parameters), the largest grid points of training/default.toml.
-STAND_INS = {"ridge": ("ridge", {"alpha": 100.0, "interactions": True}),
-             "boosted_31_leaves": ("boosted", {"max_iter": 300, "learning_rate": 0.1, "max_leaf_nodes": 31,
-                                               "min_samples_leaf": 20}),
-             "boosted_15_leaves": ("boosted", {"max_iter": 300, "learning_rate": 0.1, "max_leaf_nodes": 15,
-                                               "min_samples_leaf": 20})}
+#: The recipe whose models the stand-ins copy.
+DEFAULT_RECIPE = Path(__file__).resolve().parents[1] / "training" / "default.toml"
+
+
+def stand_in_specs():
+    """Stand-in models: name -> (kind, parameters), the first candidate of each model of the default recipe."""
+    return {spec.name: (spec.kind, spec.candidates()[0]) for spec in read_recipe(DEFAULT_RECIPE).models}
 
 
 def _smooth(rng, shape, length):
@@ -101,11 +103,12 @@ def stand_in_models(quiet=False):
     pairs, recipe = stand_in_pairs()
     X = pairs["features"].values
     models = {}
-    for name, (kind, params) in STAND_INS.items():
+    names = [str(f) for f in pairs["feature"].values]
+    for name, (kind, params) in stand_in_specs().items():
         start = time.perf_counter()
         estimator = make_estimator(kind, params)
-        estimator.fit(X, pairs["target_value"].values)
-        estimator.feature_names_, estimator.target_names_ = list(pairs["feature"].values), list(TARGETS)
+        estimator.fit(X, pairs["target_value"].values, feature_names=names)
+        estimator.target_names_ = list(TARGETS)
         card = {"format_version": "1.0", "name": name, "kind": kind, "hyperparameters": estimator.get_params(),
                 "targets": list(TARGETS), "feature_names": list(pairs["feature"].values),
                 "feature_recipe": recipe.to_dict(), "cross_validation": {},
@@ -165,7 +168,10 @@ def main():
     else:
         models, X = stand_in_models()
     rng = np.random.default_rng(1)
-    figures = {"source": args.model_dir or "stand-ins of training/default.toml", "models": {}}
+    figures = {"source": args.model_dir or "stand-ins of training/default.toml", "models": {},
+               "load_average_before": os.getloadavg()}
+    print(f"load average (1, 5, 15 min) before: {', '.join(f'{v:.2f}' for v in figures['load_average_before'])} "
+          f"on {os.cpu_count()} cores")
     work = Path(tempfile.mkdtemp(prefix="bench_runtime_"))
     try:
         for name, trained in models.items():
@@ -175,7 +181,8 @@ def main():
             n = 1_000_000 if trained.kind == "ridge" else args.columns
             probe = X[rng.integers(0, X.shape[0], n)]
             rate, _ = best_rate(lambda: runtime.predict(probe), n)
-            sklearn_rate, _ = best_rate(lambda: trained.estimator.predict(probe), n, repeat=1)
+            few = probe[:100_000]
+            sklearn_rate, _ = best_rate(lambda: trained.estimator.predict(few), few.shape[0], repeat=1)
             entry = {"kind": trained.kind, "netcdf_bytes": netcdf.stat().st_size, "json_bytes": twin.stat().st_size,
                      "numpy_columns_per_second": rate, "sklearn_columns_per_second": sklearn_rate,
                      "fortran_columns_per_second": fortran_rate(document, X[:1000], work / f"fortran_{name}")}
@@ -189,8 +196,9 @@ def main():
             side = args.host_side
             fields = host_fields(rng, side, side)
             ncol = side * side
-            feature_rate, feature_time = best_rate(lambda: runtime.host_features(fields), ncol)
-            host_rate, host_time = best_rate(lambda: runtime.predict_host(fields), ncol)
+            # Tens of milliseconds each: the best of several runs smooths out other work on the machine.
+            feature_rate, feature_time = best_rate(lambda: runtime.host_features(fields), ncol, repeat=7)
+            host_rate, host_time = best_rate(lambda: runtime.predict_host(fields), ncol, repeat=7)
             tau = np.moveaxis(fields["layer_optical_depth"], 0, -1).reshape(ncol, -1)
             cloudy = np.moveaxis(fields["layer_cloud_fraction"], 0, -1).reshape(ncol, -1) > 0
             ssa, g = np.where(cloudy, 0.999, 1.0), np.where(cloudy, 0.85, 0.0)
@@ -206,7 +214,7 @@ def main():
             extra = (f"{entry['terms']} terms" if trained.kind == "ridge"
                      else f"{entry['trees']} trees, {entry['nodes']} nodes, depth <= {entry['max_depth']}")
             print(f"{name} ({extra}):")
-            print(f"  files: NetCDF {entry['netcdf_bytes'] / 1024:.1f} KiB, JSON {entry['json_bytes'] / 1024:.1f} KiB")
+            print(f"  files: NetCDF {entry['netcdf_bytes'] / 1000:.1f} kB, JSON {entry['json_bytes'] / 1000:.1f} kB")
             print(f"  numpy runtime {rate:,.0f} columns/s (scikit-learn {sklearn_rate:,.0f}); Fortran "
                   + (f"{fortran:,.0f} columns/s" if fortran else "not measured (no gfortran)"))
             print(f"  host features + prediction on {ncol} columns x 40 layers: {host_rate:,.0f} columns/s = "
@@ -214,6 +222,8 @@ def main():
                   f"(features alone {100 * entry['features_fraction_of_one_band_solve']:.0f} %)")
     finally:
         shutil.rmtree(work, ignore_errors=True)
+    figures["load_average_after"] = os.getloadavg()
+    print(f"load average after: {', '.join(f'{v:.2f}' for v in figures['load_average_after'])}")
     if args.json:
         write_text_atomic(args.json, json.dumps(figures, indent=2) + "\n")
 

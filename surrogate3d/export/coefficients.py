@@ -5,7 +5,9 @@ version, model kind and hyperparameters, the ordered features with units and the
 recipe, the targets, the model arrays, the training provenance and, when a report
 directory is given, the model's rows of the held-out skill table.  The JSON twin is
 what the numpy-only runtime reads; the NetCDF file is for archives and for tools that
-read NetCDF.  ``docs/export-format.md`` documents every field.
+read NetCDF.  The NetCDF file is classic NetCDF (64-bit offset): HDF5, under NetCDF-4,
+spends one to four kilobytes of headers on every variable and dimension, more than the
+arrays of a small model hold.  ``docs/export-format.md`` documents every field.
 """
 
 import csv
@@ -17,8 +19,9 @@ import numpy as np
 import xarray as xr
 
 from .. import __version__
-from .._atomic import write_text_atomic
-from ..archive import open_dataset, write_dataset
+from .._atomic import atomic_path, write_text_atomic
+from ..archive import open_dataset
+from ..archive.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.recipe import FeatureRecipe
@@ -39,13 +42,17 @@ _CARD_PROVENANCE = ("archive_fingerprint", "pairs_file", "pairs_sha256", "recipe
                     "package_version", "scikit_learn_version", "numpy_version", "training_scenes",
                     "held_out_scenes", "excluded_regime")
 
+#: Significant digits of the numbers of the skill table (metrics.csv, named with its
+#: SHA-256, holds them in full).
+_SKILL_DIGITS = 6
+
 #: Columns of metrics.csv that are the same on every row of the whole-set table.
 _CONSTANT_COLUMNS = ("breakdown", "group", "group_order", "group_value")
 
 _SKILL_KEYS = ("evaluation_set", "predictor", "target", "units")
 
-#: Arrays of at least this many bytes are compressed in the NetCDF file.
-_COMPRESS_FROM = 4096
+#: Flavour of the NetCDF file (classic format with 64-bit offsets).
+NETCDF_FORMAT = "NETCDF3_64BIT"
 
 
 def build_document(trained, report_dir=None):
@@ -93,11 +100,15 @@ def build_document(trained, report_dir=None):
                       estimator_sha256=file_sha256(estimator_path) if estimator_path.is_file() else None,
                       exported_with=f"surrogate3d {__version__}")
     cv = card.get("cross_validation", {})
+    # The chosen values of the searched parameters; fixed ones are in the hyperparameters.
+    grid = cv.get("grid") or {}
+    chosen = {k: v for k, v in (cv.get("best_params") or {}).items() if len(grid.get(k, [None, None])) > 1}
     document = {
         "format": FORMAT_NAME,
         "format_version": FORMAT_VERSION,
         "model": {"name": trained.name, "kind": kind, "hyperparameters": card["hyperparameters"],
-                  "cross_validation": {k: cv.get(k) for k in ("grouping", "folds", "best_params", "best_score")}},
+                  "cross_validation": {**{k: cv.get(k) for k in ("grouping", "folds")}, "best_params": chosen,
+                                       "best_score": cv.get("best_score")}},
         "features": {"names": names, "units": [units[n] for n in names],
                      "normalization": "standardize" if kind == "ridge" else "none"},
         "feature_recipe": recipe.to_dict(),
@@ -111,12 +122,12 @@ def build_document(trained, report_dir=None):
 
 
 def _cell(text):
-    """A metrics.csv cell: a float (None for an empty or NaN cell) or the text itself."""
+    """A metrics.csv cell: a float to 6 significant digits (None for an empty or NaN cell) or the text."""
     try:
         value = float(text)
     except ValueError:
         return text if text != "" else None
-    return value if math.isfinite(value) else None
+    return float(f"{value:.{_SKILL_DIGITS}g}") if math.isfinite(value) else None
 
 
 def skill_table(report_dir, model_name):
@@ -133,8 +144,8 @@ def skill_table(report_dir, model_name):
     Returns
     -------
     dict
-        ``source`` (file name), ``sha256``, ``columns`` and ``rows`` (lists of floats,
-        strings or None for empty cells).
+        ``source`` (file name), ``sha256``, ``columns`` and ``rows`` (lists of floats to
+        6 significant digits, strings, or None for empty cells).
     """
     path = Path(report_dir) / "metrics.csv"
     if not path.is_file():
@@ -166,19 +177,15 @@ def document_to_dataset(document):
     """The NetCDF form (an xarray Dataset) of a document.
 
     Feature and target names are the coordinates ``feature`` and ``target``; every
-    model array is a compressed variable ``<kind>_<name>``; the other fields are JSON
-    text in global attributes of the same names (each HDF5 variable costs about a
-    kilobyte of headers, so small tables stay attributes).
+    model array is a variable ``<kind>_<name>``; the other fields are JSON text in global
+    attributes of the same names.
     """
     kind = document["model"]["kind"]
     ds = xr.Dataset(coords={"feature": list(document["features"]["names"]), "target": list(document["targets"]["names"])})
     for name, (dims, _) in ARRAYS[kind].items():
         variable = f"{kind}_{name}"
         ds[variable] = (dims, np.asarray(document[kind][name]))
-        # A compressed (chunked) HDF5 variable costs ~2 KB more headers than a plain one.
-        compress = ds[variable].nbytes >= _COMPRESS_FROM
-        ds[variable].encoding = {"zlib": True, "complevel": 9, "shuffle": True} if compress else {}
-        ds[variable].encoding["_FillValue"] = None
+        ds[variable].encoding = {"_FillValue": None}
     ds.attrs = {"format": document["format"], "format_version": document["format_version"],
                 "model_name": document["model"]["name"], "model_kind": kind}
     ds.attrs["features"] = json.dumps({k: v for k, v in document["features"].items() if k != "names"})
@@ -245,7 +252,9 @@ def write_coefficients(document, out_dir, stem=None):
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     stem = stem or document["model"]["name"]
-    netcdf = write_dataset(document_to_dataset(document), out_dir / f"{stem}{NETCDF_SUFFIX}")
+    netcdf = out_dir / f"{stem}{NETCDF_SUFFIX}"
+    with atomic_path(netcdf, suffix=".tmp.nc") as tmp:
+        document_to_dataset(document).to_netcdf(tmp, engine=ENGINE, format=NETCDF_FORMAT)
     twin = out_dir / f"{stem}{JSON_SUFFIX}"
     write_text_atomic(twin, coefficient_json_text(document))
     return netcdf, twin

@@ -172,7 +172,7 @@ class SearchResult:
                 "scores": self.scores}
 
 
-def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search"):
+def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search", feature_names=None):
     """Pick hyperparameters by scene-grouped K-fold cross-validation.
 
     Every candidate is fitted on each fold's training scenes and scored on its test
@@ -192,6 +192,11 @@ def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label
     n_folds : int
     quiet : bool
         Hide the progress bar.
+    label : str
+        Progress-bar label.
+    feature_names : list of str, optional
+        Names of the columns of ``X``, passed to every ``fit`` (models that name
+        features in their parameters need them).
 
     Returns
     -------
@@ -204,7 +209,7 @@ def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label
         for params in candidates:
             fold_skill = []
             for train, test in folds:
-                model = clone(estimator).set_params(**params).fit(X[train], Y[train])
+                model = clone(estimator).set_params(**params).fit(X[train], Y[train], feature_names=feature_names)
                 fold_skill.append(float(np.nanmean(correction_skill(model.predict(X[test]).reshape(Y[test].shape),
                                                                     Y[test]))))
                 bar.update()

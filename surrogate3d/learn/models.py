@@ -72,6 +72,16 @@ def _as_matrix(name, values, min_samples=1, ensure_2d=True):
         raise ValidationError(str(exc)) from None
 
 
+def _check_feature_names(names, n_feature):
+    """The feature names passed to ``fit`` as a list; ValidationError unless one distinct string per column."""
+    if isinstance(names, str) or not all(isinstance(n, str) for n in names):
+        raise ValidationError(f"feature_names must be a list of strings, one per column of X; got {names!r}")
+    names = list(names)
+    if len(names) != n_feature or len(set(names)) != len(names):
+        raise ValidationError(f"feature_names must name each of the {n_feature} columns of X once; got {names!r}")
+    return names
+
+
 def _check_fit_input(estimator, X, Y):
     if Y is None:
         raise ValidationError(f"{type(estimator).__name__} requires y to be passed, but the target y is None")
@@ -105,8 +115,8 @@ class _PairsTableMixin:
         """
         features = list(feature_names(pairs) if features is None else features)
         targets = list(TARGETS if targets is None else targets)
-        self.fit(feature_matrix(pairs, features, needed_by="the training recipe"), target_matrix(pairs, targets))
-        self.feature_names_ = features
+        self.fit(feature_matrix(pairs, features, needed_by="the training recipe"), target_matrix(pairs, targets),
+                 feature_names=features)
         self.target_names_ = targets
         return self
 
@@ -127,8 +137,11 @@ class _PairsTableMixin:
         Y = self.predict(X)
         return Y[:, None] if Y.ndim == 1 else Y
 
-    def _forget_names(self):
-        self.feature_names_ = None
+    def _set_names(self, feature_names, n_feature):
+        """Remember the feature names given to ``fit`` (checked), forget the target names."""
+        if feature_names is not None:
+            feature_names = _check_feature_names(feature_names, n_feature)
+        self.feature_names_ = feature_names
         self.target_names_ = None
 
     def _check_predict_input(self, X):
@@ -167,15 +180,22 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         Ridge penalty, >= 0, in units of the (standardized) terms; 0 gives least squares
         (minimum-norm solution when terms are collinear).
     interactions : bool, default False
-        Add the products ``z[i] * z[j]`` (i < j) of all pairs of standardized features.
+        Add the products ``z[i] * z[j]`` (i < j) of pairs of standardized features: of
+        all pairs, or of the pairs among ``interaction_features``.
+    interaction_features : list of str or int, optional
+        With ``interactions``, form products only among these features (at least two,
+        distinct): names of the features passed to :meth:`fit` as ``feature_names`` (or
+        to :meth:`fit_pairs`), or column indices of ``X``.  ``k`` features give
+        ``k (k - 1) / 2`` product terms instead of ``n (n - 1) / 2``, which keeps the
+        coefficient file small.  Ignored without ``interactions``.
 
     Attributes
     ----------
     feature_mean_, feature_scale_ : ndarray (n_feature,)
         Standardization of the features (units of each feature).
     interaction_pairs_ : list of (int, int)
-        Feature index pairs (i < j) of the product terms, in term order; empty without
-        interactions.
+        Feature index pairs (i < j) of the product terms, in term order (lexicographic);
+        empty without interactions.
     coef_ : ndarray (n_target, n_term)
         Coefficients of the terms ``t``; ``n_term = n_feature + len(interaction_pairs_)``.
     intercept_ : ndarray (n_target,)
@@ -183,7 +203,9 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         ``name`` for linear terms and ``name_i*name_j`` for products (``x0``, ``x1`` ... when
         fitted from arrays).
     n_features_in_ : int
-    feature_names_, target_names_ : list of str or None
+    feature_names_ : list of str or None
+        The ``feature_names`` given to :meth:`fit` (set by :meth:`fit_pairs`).
+    target_names_ : list of str or None
         Set by :meth:`fit_pairs`; None after a plain :meth:`fit`.
 
     References
@@ -204,15 +226,48 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     (50, 2)
     """
 
-    def __init__(self, alpha=1.0, interactions=False):
+    def __init__(self, alpha=1.0, interactions=False, interaction_features=None):
         self.alpha = alpha
         self.interactions = interactions
+        self.interaction_features = interaction_features
 
     def _check_parameters(self):
         _check_real("alpha", self.alpha, 0.0, math.inf)
         _check_bool("interactions", self.interactions)
+        chosen = self.interaction_features
+        if chosen is None:
+            return
+        entries = list(chosen) if isinstance(chosen, (list, tuple)) else None
+        ok = entries is not None and len(entries) >= 2 and (
+            all(isinstance(e, str) and e for e in entries)
+            or all(isinstance(e, numbers.Integral) and not isinstance(e, bool) and e >= 0 for e in entries))
+        if not ok or len(set(entries)) != len(entries):
+            raise ParameterError("interaction_features must be a list of at least two distinct feature names "
+                                 f"(or of distinct column indices >= 0); got {chosen!r}")
 
-    def fit(self, X, Y):
+    def _pairs(self, n_feature, feature_names):
+        """Index pairs (i < j) of the product terms, from ``interactions`` and ``interaction_features``."""
+        if not self.interactions:
+            return []
+        chosen = range(n_feature)
+        if self.interaction_features is not None:
+            entries = list(self.interaction_features)
+            if isinstance(entries[0], str):
+                if feature_names is None:
+                    raise ValidationError(f"interaction_features names features {entries}, but fit got no "
+                                          "feature_names; pass feature_names or give column indices")
+                missing = [e for e in entries if e not in feature_names]
+                if missing:
+                    raise ValidationError(f"interaction_features names {missing}, which are not among the "
+                                          f"features {feature_names}")
+                entries = [feature_names.index(e) for e in entries]
+            elif max(entries) >= n_feature:
+                raise ValidationError(f"interaction_features holds column index {max(entries)}; X has "
+                                      f"{n_feature} columns")
+            chosen = sorted(int(e) for e in entries)
+        return [(i, j) for a, i in enumerate(chosen) for j in chosen[a + 1:]]
+
+    def fit(self, X, Y, feature_names=None):
         """Fit the coefficients in closed form.
 
         Parameters
@@ -221,6 +276,9 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
             Features, in their own units.
         Y : array_like (n_sample, n_target) or (n_sample,)
             Corrections [1].
+        feature_names : list of str, optional
+            Name of each column of ``X``; needed when ``interaction_features`` lists
+            names.  Kept as ``feature_names_``.
 
         Returns
         -------
@@ -229,10 +287,11 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self._check_parameters()
         X, Y, one_column = _check_fit_input(self, X, Y)
         n_feature = X.shape[1]
+        self._set_names(feature_names, n_feature)
+        pairs = self._pairs(n_feature, self.feature_names_)
         mean = X.mean(axis=0)
         scale = X.std(axis=0)
         scale[scale == 0.0] = 1.0
-        pairs = [(i, j) for i in range(n_feature) for j in range(i + 1, n_feature)] if self.interactions else []
         self.feature_mean_, self.feature_scale_, self.interaction_pairs_ = mean, scale, pairs
         T = self._terms(X)
         term_mean, target_mean = T.mean(axis=0), Y.mean(axis=0)
@@ -247,18 +306,9 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.intercept_ = target_mean - coef @ term_mean
         self.n_features_in_ = n_feature
         self._one_column = one_column
-        names = [f"x{k}" for k in range(n_feature)]
-        self.term_names_ = names + [f"{names[i]}*{names[j]}" for i, j in pairs]
-        self._forget_names()
+        names = self.feature_names_ or [f"x{k}" for k in range(n_feature)]
+        self.term_names_ = list(names) + [f"{names[i]}*{names[j]}" for i, j in pairs]
         return self
-
-    def fit_pairs(self, pairs, features=None, targets=None):
-        super().fit_pairs(pairs, features, targets)
-        names = self.feature_names_
-        self.term_names_ = list(names) + [f"{names[i]}*{names[j]}" for i, j in self.interaction_pairs_]
-        return self
-
-    fit_pairs.__doc__ = _PairsTableMixin.fit_pairs.__doc__
 
     def _terms(self, X):
         Z = (X - self.feature_mean_) / self.feature_scale_
@@ -318,7 +368,9 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     n_iter_ : list of int
         Boosting iterations of each target's ensemble (``max_iter``: no early stopping).
     n_features_in_ : int
-    feature_names_, target_names_ : list of str or None
+    feature_names_ : list of str or None
+        The ``feature_names`` given to :meth:`fit` (set by :meth:`fit_pairs`).
+    target_names_ : list of str or None
         Set by :meth:`fit_pairs`; None after a plain :meth:`fit`.
 
     References
@@ -355,7 +407,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         _check_real("l2_regularization", self.l2_regularization, 0.0, math.inf)
         _check_real("random_state", self.random_state, 0, 2**32 - 1, integer=True)
 
-    def fit(self, X, Y):
+    def fit(self, X, Y, feature_names=None):
         """Fit one ensemble per target column.
 
         Parameters
@@ -363,6 +415,8 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         X : array_like (n_sample, n_feature)
         Y : array_like (n_sample, n_target) or (n_sample,)
             Corrections [1].
+        feature_names : list of str, optional
+            Name of each column of ``X``, kept as ``feature_names_``.
 
         Returns
         -------
@@ -370,6 +424,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         """
         self._check_parameters()
         X, Y, one_column = _check_fit_input(self, X, Y)
+        self._set_names(feature_names, X.shape[1])
         self.estimators_ = [
             HistGradientBoostingRegressor(
                 loss="squared_error", max_iter=int(self.max_iter), learning_rate=float(self.learning_rate),
@@ -380,7 +435,6 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.n_iter_ = [int(estimator.n_iter_) for estimator in self.estimators_]
         self.n_features_in_ = X.shape[1]
         self._one_column = one_column
-        self._forget_names()
         return self
 
     def predict(self, X):

@@ -19,6 +19,7 @@ any training starts, and a wrong one is named in the error with the allowed valu
     [models.NAME]                          # NAME: letters, digits, _ and -
     kind = "ridge" | "boosted"
     PARAMETER = value | [values]           # a list is a grid dimension
+    interaction_features = ["a", "b", ...] # list-valued parameter: one value; a list of lists is a grid
 """
 
 import itertools
@@ -36,6 +37,9 @@ _TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_valid
 _SPLIT_KEYS = {"held_out_scene_fraction", "held_out_regime", "seed"}
 _CV_KEYS = {"folds"}
 _MODEL_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*$")
+
+#: Model parameters whose value is itself a list: a list of lists is their grid dimension.
+_LIST_PARAMETERS = {"interaction_features"}
 
 
 @dataclass(frozen=True)
@@ -180,7 +184,11 @@ def _model_spec(source, name, table):
     for key, value in table.items():
         if key == "kind":
             continue
-        values = value if isinstance(value, list) else [value]
+        if key in _LIST_PARAMETERS:
+            values = value if isinstance(value, list) and value and all(isinstance(v, list) for v in value) \
+                else [value]
+        else:
+            values = value if isinstance(value, list) else [value]
         if not values:
             _fail(source, f"{where} {key}", "is an empty list; give at least one value")
         grid[key] = values
@@ -201,7 +209,15 @@ def check_recipe_against_pairs(recipe, pairs):
     surrogate3d.errors.ValidationError
         Naming the missing features or targets, or the unknown regime.
     """
-    check_has_features(pairs, recipe.feature_list(pairs), needed_by=f"training recipe {recipe.source!r}")
+    features = recipe.feature_list(pairs)
+    check_has_features(pairs, features, needed_by=f"training recipe {recipe.source!r}")
+    for spec in recipe.models:
+        for chosen in spec.grid.get("interaction_features", []):
+            names = [c for c in (chosen or []) if isinstance(c, str)]
+            missing = [c for c in names if c not in features]
+            if missing:
+                raise ValidationError(f"training recipe {recipe.source!r}: [models.{spec.name}] interaction_features "
+                                      f"names {missing}, which are not among the recipe's features")
     missing = [t for t in recipe.targets if t not in [str(v) for v in pairs["target"].values]]
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing} named by training recipe {recipe.source!r}")

@@ -55,6 +55,16 @@ _PLANE_KEYS = ("surface_albedo", "total_cloud_fraction", "column_optical_depth_m
                "cloud_edge_length")
 
 
+#: Allowed range of the host fields that have one (others need only be finite).
+_ALLOWED_RANGE = {**{key: (0.0, np.inf) for key in ("layer_optical_depth", "column_optical_depth_mean",
+                                                    "column_optical_depth_std", "cloud_edge_length")},
+                  **{key: (0.0, 1.0) for key in ("layer_cloud_fraction", "total_cloud_fraction", "surface_albedo")}}
+
+
+#: Cells per block of rows in the stencils that work block by block (fits in cache).
+_BLOCK_CELLS = 1 << 14
+
+
 def _is_plane_key(key):
     return key in _PLANE_KEYS or key.startswith("independent_column_")
 
@@ -91,11 +101,39 @@ def _box_sum(a, m, axis):
     if m == 0:
         return np.array(a, dtype=np.float64, copy=True)
     n = a.shape[axis]
-    ext = np.take(a, np.arange(-m - 1, n + m) % n, axis=axis)
+    # The array extended periodically by m + 1 cells before and m after (slices while the
+    # window fits in the domain, an index list when it wraps more than once).
+    if m + 1 <= n:
+        ext = np.concatenate([_along(a, axis, slice(n - m - 1, n)), a, _along(a, axis, slice(0, m))], axis=axis)
+    else:
+        ext = np.take(a, np.arange(-m - 1, n + m) % n, axis=axis)
     c = np.cumsum(ext, axis=axis, dtype=np.float64)
-    upper = np.take(c, np.arange(2 * m + 1, 2 * m + 1 + n), axis=axis)
-    lower = np.take(c, np.arange(n), axis=axis)
-    return upper - lower
+    return _along(c, axis, slice(2 * m + 1, 2 * m + 1 + n)) - _along(c, axis, slice(0, n))
+
+
+def _along(a, axis, index):
+    """``a[..., index, ...]`` with ``index`` on ``axis``."""
+    key = [slice(None)] * a.ndim
+    key[axis] = index
+    return a[tuple(key)]
+
+
+def _periodic_shift(a, oy, ox, out=None, add=False):
+    """``np.roll(a, (oy, ox), axis=(0, 1))`` of a 2-D array (written into, or added to, ``out``).
+
+    Four block copies instead of roll's intermediate arrays; the values are the same.
+    """
+    ny, nx = a.shape
+    oy, ox = oy % ny, ox % nx
+    if out is None:
+        out = np.empty_like(a)
+    for (ty, sy) in ((slice(oy, ny), slice(0, ny - oy)), (slice(0, oy), slice(ny - oy, ny))):
+        for (tx, sx) in ((slice(ox, nx), slice(0, nx - ox)), (slice(0, ox), slice(nx - ox, nx))):
+            if add:
+                out[ty, tx] += a[sy, sx]
+            else:
+                out[ty, tx] = a[sy, sx]
+    return out
 
 
 def _window_sum_1d(a, half_width, axis):
@@ -136,10 +174,13 @@ def _shift_bilinear(a, sx, sy):
     ix, iy = math.floor(sx), math.floor(sy)
     fx, fy = sx - ix, sy - iy
     out = np.zeros_like(a, dtype=np.float64)
+    shifted = np.empty_like(out)
     for oy, wy in ((iy, 1.0 - fy), (iy + 1, fy)):
         for ox, wx in ((ix, 1.0 - fx), (ix + 1, fx)):
             if wx * wy > 0.0:
-                out += wx * wy * np.roll(a, (-oy, -ox), axis=(0, 1))
+                _periodic_shift(a, -oy, -ox, out=shifted)
+                shifted *= wx * wy
+                out += shifted
     return out
 
 
@@ -152,15 +193,25 @@ def _distance_to(targets, dx, dy, reach):
     ny, nx = targets.shape
     kx = min(int(math.ceil(reach / dx)), nx // 2)
     ky = min(int(math.ceil(reach / dy)), ny // 2)
+    # Shifts by up to kx (ky) cells are slices of the periodically padded array.
+    padded = np.concatenate([targets[:, nx - kx:], targets, targets[:, :kx]], axis=1)
     row2 = np.full(targets.shape, np.inf)
+    hit = np.empty(targets.shape, dtype=bool)
     for o in range(kx, -1, -1):
-        hit = np.roll(targets, o, axis=1) | np.roll(targets, -o, axis=1)
-        row2[hit] = (o * dx) ** 2
+        np.logical_or(padded[:, kx - o:kx - o + nx], padded[:, kx + o:kx + o + nx], out=hit)
+        np.copyto(row2, (o * dx) ** 2, where=hit)
     dist2 = row2.copy()
-    for o in range(1, ky + 1):
-        step = (o * dy) ** 2
-        np.minimum(dist2, np.roll(row2, o, axis=0) + step, out=dist2)
-        np.minimum(dist2, np.roll(row2, -o, axis=0) + step, out=dist2)
+    padded = np.concatenate([row2[ny - ky:], row2, row2[:ky]], axis=0)
+    # Column pass one block of rows at a time, so the rows it reads stay in the cache.
+    rows = max(1, _BLOCK_CELLS // nx)
+    for start in range(0, ny, rows):
+        out = dist2[start:start + rows]
+        shifted = np.empty_like(out)
+        for o in range(1, ky + 1):
+            step = (o * dy) ** 2
+            for first in (start + ky - o, start + ky + o):
+                np.add(padded[first:first + out.shape[0]], step, out=shifted)
+                np.minimum(out, shifted, out=out)
     dist = np.sqrt(dist2)
     dist[dist > reach] = np.inf
     return dist
@@ -183,10 +234,16 @@ def _cloud_extent(fields, threshold):
         cloudy = np.asarray(fields["layer_cloud_fraction"]) > threshold
         z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
         nz = cloudy.shape[0]
-        anywhere = cloudy.any(axis=0)
-        top = nz - 1 - np.argmax(cloudy[::-1], axis=0)
-        base = np.argmax(cloudy, axis=0)
-        return (np.where(anywhere, z_edge[top + 1], 0.0), np.where(anywhere, z_edge[base], 0.0))
+        # Number the layers 1 .. nz upward (for the top) and downward (for the base) and
+        # take the largest number among the cloudy layers; 0 means no cloudy layer.  Two
+        # small-integer products and maxima over the layer axis (whole planes at a time).
+        dtype = np.uint8 if nz < 255 else np.uint16
+        upward = np.arange(1, nz + 1, dtype=dtype)[:, None, None]
+        top = np.max(cloudy * upward, axis=0)
+        below_base = np.max(cloudy * upward[::-1], axis=0)
+        top_height = np.concatenate([[0.0], z_edge[1:]])             # by layer number from the bottom
+        base_height = np.concatenate([[0.0], z_edge[:-1][::-1]])     # by layer number from the top
+        return top_height[top], base_height[below_base]
     return _memo(fields, ("extent", threshold), compute)
 
 
@@ -310,8 +367,8 @@ def cloud_edge_distance(fields, edge_cloud_fraction=0.5, edge_distance_cap=10000
 def _log_tau_gradient(fields):
     def compute():
         lt = _log_tau(fields)
-        gx = (np.roll(lt, -1, axis=1) - np.roll(lt, 1, axis=1)) / (2.0 * _scalar(fields, "dx"))
-        gy = (np.roll(lt, -1, axis=0) - np.roll(lt, 1, axis=0)) / (2.0 * _scalar(fields, "dy"))
+        gx = (_periodic_shift(lt, 0, -1) - _periodic_shift(lt, 0, 1)) / (2.0 * _scalar(fields, "dx"))
+        gy = (_periodic_shift(lt, -1, 0) - _periodic_shift(lt, 1, 0)) / (2.0 * _scalar(fields, "dy"))
         return gx, gy
     return _memo(fields, "grad", compute)
 
@@ -496,17 +553,27 @@ def validate_host_fields(fields, keys=None):
         raise ValidationError("host_fields holds no (ny, nx) field to fix the host grid size")
     for key in sorted(k for k in fields if _is_plane_key(k) or k in _LAYER_KEYS):
         value = np.asarray(fields[key], dtype=np.float64)
-        bad = ~np.isfinite(value)
-        if key in ("layer_optical_depth", "column_optical_depth_mean", "column_optical_depth_std",
-                   "cloud_edge_length"):
-            bad |= value < 0
-        if key in ("layer_cloud_fraction", "total_cloud_fraction", "surface_albedo"):
-            bad |= (value < 0) | (value > 1)
+        low, high = _ALLOWED_RANGE.get(key, (-np.inf, np.inf))
+        # Two reductions settle the common case: the minimum and maximum are NaN if any
+        # value is, and within [low, high] (finite) only if every value is.
+        lowest, highest = _min_max(value) if value.size else (low, high)
+        if np.isfinite(lowest) and np.isfinite(highest) and lowest >= low and highest <= high:
+            continue
+        bad = ~np.isfinite(value) | (value < low) | (value > high)
         if bad.any():
             idx = tuple(int(i) for i in np.argwhere(bad)[0])
             raise ValidationError(f"host_fields[{key!r}] is not finite or out of range at index {idx}: "
                                   f"{float(value[idx])!r}")
     return tuple(int(n) for n in shape2d)
+
+
+def _min_max(value):
+    """Minimum and maximum (NaN if any value is NaN), reading each cache-sized chunk once."""
+    flat = value.reshape(-1)
+    chunk = 8 * _BLOCK_CELLS
+    parts = [(part.min(), part.max()) for part in (flat[i:i + chunk] for i in range(0, flat.size, chunk))]
+    lows, highs = zip(*parts)
+    return np.min(lows), np.max(highs)
 
 
 def compute_features(host_fields, recipe=None):
@@ -560,7 +627,6 @@ def compute_features(host_fields, recipe=None):
         radii = recipe.parameters["neighbour_radii"] if feature.per_radius else [None]
         for radius in radii:
             args = {} if radius is None else {"radius": float(radius)}
-            value = np.asarray(feature.function(fields, **args, **kwargs), dtype=np.float64)
-            out[j] = np.broadcast_to(value, (ny, nx)).reshape(-1)
+            out[j].reshape(ny, nx)[...] = feature.function(fields, **args, **kwargs)
             j += 1
     return out.T

@@ -14,18 +14,39 @@ import math
 
 import numpy as np
 
+#: Cells per block of rows in :func:`slant_sum` (a few float64 planes of this size fit in cache).
+_BLOCK_CELLS = 1 << 14
+
 #: Below this magnitude a direction component is taken as exactly zero (avoids
 #: spurious crossings from cos(90 deg) = 6e-17).
 _DIRECTION_EPS = 1e-12
 
 
 def _crossings(s0, s1, u, spacing):
-    """Path lengths in [s0, s1] where the coordinate ``s * u / spacing`` is a half-integer."""
-    if abs(u) < _DIRECTION_EPS or s1 <= s0:
-        return np.empty(0)
-    a0, a1 = sorted((s0 * u / spacing, s1 * u / spacing))
-    faces = np.arange(math.ceil(a0 - 0.5), math.floor(a1 - 0.5) + 1) + 0.5
-    return faces * spacing / u
+    """Path lengths where the coordinate ``s * u / spacing`` is a half-integer, layer by layer.
+
+    Parameters
+    ----------
+    s0, s1 : ndarray (n_layer,)
+        Path lengths [m] where each layer's part of the path starts and ends.
+    u : float
+        Direction cosine along the axis.
+    spacing : float
+        Column size along the axis [m].
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        Layer index and path length [m] of every crossing with ``s0 <= s <= s1``.
+    """
+    if abs(u) < _DIRECTION_EPS:
+        return np.empty(0, dtype=np.int64), np.empty(0)
+    a, b = s0 * u / spacing, s1 * u / spacing
+    first = np.ceil(np.minimum(a, b) - 0.5).astype(np.int64)
+    count = np.maximum(np.floor(np.maximum(a, b) - 0.5).astype(np.int64) - first + 1, 0)
+    layer = np.repeat(np.arange(s0.size), count)
+    faces = np.repeat(first, count) + (np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)) + 0.5
+    return layer, faces * spacing / u
 
 
 def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
@@ -68,23 +89,47 @@ def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
     phi = math.radians(float(solar_beam_azimuth))
     # Toward the sun: opposite to the direction in which the beam travels.
     ux, uy = -math.cos(phi), -math.sin(phi)
+    s = z_edge * tan0
+    s0, s1 = s[:-1], s[1:]
+    n_layer = s0.size
+    slanted = s1 - s0 > 0.0
+    # Every layer is cut where the path enters and leaves it and where it crosses a face;
+    # all layers are handled at once, each cut tagged with its layer.
+    inside = np.flatnonzero(slanted)
+    layer_x, cut_x = _crossings(s0[inside], s1[inside], ux, dx)
+    layer_y, cut_y = _crossings(s0[inside], s1[inside], uy, dy)
+    layer = np.concatenate([inside, inside, inside[layer_x], inside[layer_y]])
+    cuts = np.concatenate([s0[inside], s1[inside], cut_x, cut_y])
+    cuts = np.minimum(np.maximum(cuts, s0[layer]), s1[layer])
+    order = np.lexsort((cuts, layer))
+    layer, cuts = layer[order], cuts[order]
+    distinct = np.ones(layer.size, dtype=bool)
+    distinct[1:] = (layer[1:] != layer[:-1]) | (cuts[1:] != cuts[:-1])
+    layer, cuts = layer[distinct], cuts[distinct]
+    # Segments between consecutive cuts of the same layer, and the column each lies in.
+    same = layer[1:] == layer[:-1]
+    layer, start, end = layer[1:][same], cuts[:-1][same], cuts[1:][same]
+    mids, lengths = 0.5 * (end + start), end - start
+    keep = lengths > 0.0
+    layer, mids, lengths = layer[keep], mids[keep], lengths[keep]
+    ox = np.floor(mids * (ux if abs(ux) >= _DIRECTION_EPS else 0.0) / dx + 0.5).astype(np.int64)
+    oy = np.floor(mids * (uy if abs(uy) >= _DIRECTION_EPS else 0.0) / dy + 0.5).astype(np.int64)
+    # Path length per (layer, column), columns in (oy, ox) order, summed in path order.
+    order = np.lexsort((ox, oy, layer))
+    new = np.ones(order.size, dtype=bool)
+    new[1:] = (np.diff(layer[order]) != 0) | (np.diff(oy[order]) != 0) | (np.diff(ox[order]) != 0)
+    group = np.empty(order.size, dtype=np.int64)
+    group[order] = np.cumsum(new) - 1
+    heads = order[new]
+    weights = np.bincount(group, weights=lengths) / (s1 - s0)[layer[heads]]
+    bounds = np.searchsorted(layer[heads], np.arange(n_layer + 1))
     out = []
-    for k in range(z_edge.size - 1):
-        s0, s1 = z_edge[k] * tan0, z_edge[k + 1] * tan0
-        if s1 - s0 <= 0.0:
+    for k in range(n_layer):
+        if not slanted[k]:
             out.append((np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.int64), np.ones(1)))
             continue
-        cuts = np.concatenate(([s0, s1], _crossings(s0, s1, ux, dx), _crossings(s0, s1, uy, dy)))
-        cuts = np.unique(np.clip(cuts, s0, s1))
-        mids = 0.5 * (cuts[1:] + cuts[:-1])
-        lengths = np.diff(cuts)
-        keep = lengths > 0.0
-        mids, lengths = mids[keep], lengths[keep]
-        ox = np.floor(mids * (ux if abs(ux) >= _DIRECTION_EPS else 0.0) / dx + 0.5).astype(np.int64)
-        oy = np.floor(mids * (uy if abs(uy) >= _DIRECTION_EPS else 0.0) / dy + 0.5).astype(np.int64)
-        pairs, inverse = np.unique(np.stack([oy, ox], axis=1), axis=0, return_inverse=True)
-        weights = np.bincount(inverse.ravel(), weights=lengths) / (s1 - s0)
-        out.append((pairs[:, 0].copy(), pairs[:, 1].copy(), weights))
+        rows = slice(bounds[k], bounds[k + 1])
+        out.append((oy[heads[rows]], ox[heads[rows]], weights[rows]))
     return out
 
 
@@ -148,12 +193,29 @@ def slant_sum(layer_values, weights_per_layer):
     ndarray, shape (ny, nx)
         ``sum_k sum_cells w * layer_values[k, iy + oy, ix + ox]``.
     """
-    total = np.zeros(layer_values.shape[1:], dtype=np.float64)
-    for (oy, ox), terms in gather_offsets(weights_per_layer).items():
-        plane = np.zeros_like(total)
-        for k, w in terms:
-            plane += w * layer_values[k]
-        total += np.roll(plane, (-oy, -ox), axis=(0, 1))
+    ny, nx = layer_values.shape[1:]
+    total = np.zeros((ny, nx), dtype=np.float64)
+    groups = list(gather_offsets(weights_per_layer).items())
+    # total += np.roll(plane, (-oy, -ox), axis=(0, 1)) for each offset, done one block of
+    # output rows at a time so that the planes stay in the cache; every cell still adds the
+    # same terms in the same order.
+    rows = max(1, _BLOCK_CELLS // nx)
+    for start in range(0, ny, rows):
+        out = total[start:start + rows]
+        plane, term = np.empty_like(out), np.empty_like(out)
+        for (oy, ox), terms in groups:
+            first = (start + oy) % ny
+            if first + out.shape[0] <= ny:
+                source = slice(first, first + out.shape[0])
+            else:
+                source = (np.arange(out.shape[0]) + first) % ny
+            plane[...] = 0.0
+            for k, w in terms:
+                np.multiply(layer_values[k][source], w, out=term)
+                plane += term
+            sx = -ox % nx
+            out[:, sx:] += plane[:, :nx - sx]
+            out[:, :sx] += plane[:, nx - sx:]
     return total
 
 

@@ -141,6 +141,8 @@ class CorrectionModel:
         recipe = FeatureRecipe(self._needed, self.recipe.parameters, name=self.recipe.name)
         columns = recipe.column_names()
         matrix = compute_features(host_fields, recipe)
+        if columns == self.feature_names:
+            return matrix
         return matrix[:, [columns.index(name) for name in self.feature_names]]
 
     def predict_host(self, host_fields):

@@ -5,7 +5,8 @@ With ``z = (x - feature_mean) / feature_scale``, the prediction of target ``m`` 
     y[m] = intercept[m] + sum_k coef[m, k] z[k] + sum_p coef[m, n_feature + p] z[i_p] z[j_p]
 
 over the interaction pairs ``(i_p, j_p)``.  The product terms are evaluated as a
-quadratic form, ``y[m] = intercept[m] + z . (c[m] + Q[m] z)`` with ``c[m]`` the linear
+quadratic form over the features that appear in a pair, ``s``:
+``y[m] = intercept[m] + z . c[m] + z_s . (Q[m] z_s)`` with ``c[m]`` the linear
 coefficients and ``Q[m]`` the strictly upper-triangular matrix of the pair
 coefficients, so one matrix product serves all targets and no product column is ever
 formed; only the order of the additions differs from the term-by-term sum.
@@ -46,11 +47,12 @@ class RidgeModel:
         self.linear = np.ascontiguousarray(coef[:, :n_feature].T)           # (n_feature, n_target)
         self.has_pairs = pairs.shape[0] > 0
         if self.has_pairs:
-            # quadratic[j, m * n_feature + i] = coefficient of z_i z_j for target m
-            quadratic = np.zeros((n_feature, n_target, n_feature))
-            quadratic[pairs[:, 1], :, pairs[:, 0]] = coef[:, n_feature:].T
-            self.quadratic = quadratic.reshape(n_feature, n_target * n_feature)
-            self.linear_rows = np.ascontiguousarray(coef[:, :n_feature])     # (n_target, n_feature)
+            self.paired = np.unique(pairs)                                   # the features s
+            k = np.searchsorted(self.paired, pairs)
+            # quadratic[b, m * n_paired + a] = coefficient of z_s[a] z_s[b] for target m
+            quadratic = np.zeros((self.paired.size, n_target, self.paired.size))
+            quadratic[k[:, 1], :, k[:, 0]] = coef[:, n_feature:].T
+            self.quadratic = quadratic.reshape(self.paired.size, n_target * self.paired.size)
 
     def predict(self, X):
         """Predictions (n, n_target) for finite features X (n, n_feature)."""
@@ -62,9 +64,9 @@ class RidgeModel:
 
     def _predict_block(self, X):
         Z = (X - self.feature_mean) / self.feature_scale
+        linear = Z @ self.linear
         if not self.has_pairs:
-            return self.intercept + Z @ self.linear
-        n, n_feature = Z.shape
-        inner = (Z @ self.quadratic).reshape(n, -1, n_feature)
-        inner += self.linear_rows
-        return self.intercept + np.einsum("nk,nmk->nm", Z, inner)
+            return self.intercept + linear
+        paired = Z if self.paired.size == Z.shape[1] else Z[:, self.paired]
+        inner = (paired @ self.quadratic).reshape(Z.shape[0], -1, self.paired.size)
+        return self.intercept + linear + np.einsum("nk,nmk->nm", paired, inner)

@@ -14,7 +14,7 @@ import pytest
 from surrogate3d.archive import open_dataset, write_dataset
 from surrogate3d.errors import FormatError, ValidationError
 from surrogate3d.export import build_document, read_coefficients
-from surrogate3d.export.coefficients import coefficient_json_text, skill_table
+from surrogate3d.export.coefficients import coefficient_json_text, skill_table, write_coefficients
 from surrogate3d.learn import load_model
 
 
@@ -57,9 +57,10 @@ def test_document_content(built, run):
 
 
 def test_sizes_within_limits(built):
-    limits = {"ridge": 20 * 1024, "boosted": 250 * 1024}
+    limits = {"ridge": 20_000, "boosted": 250_000}
     for name, limit in limits.items():
-        assert (built["export_dir"] / f"{name}.coefficients.json").stat().st_size <= limit
+        for suffix in ("json", "nc"):
+            assert (built["export_dir"] / f"{name}.coefficients.{suffix}").stat().st_size <= limit, (name, suffix)
     # The tree twin stores ~8 bytes or less per node value and threshold (packed, compressed).
     document = read_coefficients(built["export_dir"] / "boosted.coefficients.json")
     n_node = document["boosted"]["feature"].size
@@ -119,3 +120,16 @@ def test_no_report_means_no_skill_table(built):
     assert document["skill"] is None
     assert json.loads(coefficient_json_text(document))["skill"] is None
     assert math.isfinite(document["ridge"]["coef"].sum())
+
+
+def test_netcdf_is_classic_and_holds_empty_arrays(built, tmp_path):
+    # Classic NetCDF with 64-bit offsets starts with the bytes "CDF" and version 2 (the
+    # NetCDF classic format specification, Unidata, common practice).
+    assert (built["export_dir"] / "ridge.coefficients.nc").read_bytes()[:4] == b"CDF\x02"
+    document = read_coefficients(built["export_dir"] / "ridge.coefficients.json")
+    n_feature = len(document["features"]["names"])
+    document["ridge"]["interaction_pairs"] = document["ridge"]["interaction_pairs"][:0]
+    document["ridge"]["coef"] = np.ascontiguousarray(document["ridge"]["coef"][:, :n_feature])
+    netcdf, twin = write_coefficients(document, tmp_path, stem="linear")
+    _assert_same_document(read_coefficients(netcdf), read_coefficients(twin))
+    assert read_coefficients(netcdf)["ridge"]["interaction_pairs"].shape == (0, 2)

@@ -60,6 +60,8 @@ folds = 2
 [models.ridge]
 kind = "ridge"
 interactions = true
+interaction_features = ["cos_solar_zenith", "cloud_fraction", "log_column_optical_depth",
+                        "neighbour_contrast_cloud_fraction_1000m"]
 alpha = 1.0
 
 [models.boosted]

@@ -61,6 +61,31 @@ def test_interactions_recover_a_product_term():
     assert product.predict(X).ndim == 1
 
 
+def test_interaction_features_limit_the_products():
+    # Products only among the listed features: x0 x2 is recovered exactly, the x0 x1 and
+    # x1 x2 terms are absent (algebra, as in the test above).
+    X = RNG.uniform(0.0, 2.0, size=(300, 3))
+    y = X[:, 0] * X[:, 2] + X[:, 1]
+    names = ["a", "b", "c"]
+    model = RidgeCorrection(alpha=0.0, interactions=True, interaction_features=["c", "a"])
+    model.fit(X, y, feature_names=names)
+    assert model.interaction_pairs_ == [(0, 2)] and model.term_names_ == ["a", "b", "c", "a*c"]
+    assert model.feature_names_ == names
+    np.testing.assert_allclose(model.predict(X), y, atol=1e-10)
+    by_index = RidgeCorrection(alpha=0.0, interactions=True, interaction_features=[2, 0]).fit(X, y)
+    np.testing.assert_array_equal(by_index.coef_, model.coef_)
+    ignored = RidgeCorrection(alpha=0.0, interaction_features=["a", "c"]).fit(X, y, feature_names=names)
+    assert ignored.interaction_pairs_ == []
+    with pytest.raises(ValidationError, match=r"interaction_features names \['d'\]"):
+        RidgeCorrection(interactions=True, interaction_features=["a", "d"]).fit(X, y, feature_names=names)
+    with pytest.raises(ValidationError, match="no feature_names"):
+        RidgeCorrection(interactions=True, interaction_features=["a", "c"]).fit(X, y)
+    with pytest.raises(ValidationError, match="column index 3"):
+        RidgeCorrection(interactions=True, interaction_features=[0, 3]).fit(X, y)
+    with pytest.raises(ValidationError, match="feature_names must name each of the 3 columns"):
+        RidgeCorrection().fit(X, y, feature_names=["a", "b"])
+
+
 def test_constant_feature_is_harmless():
     X = np.column_stack([RNG.normal(size=60), np.full(60, 7.0)])
     model = RidgeCorrection(alpha=0.0).fit(X, 3.0 * X[:, 0])
@@ -107,7 +132,7 @@ def test_boosted_is_reproducible():
 
 def test_scikit_learn_protocol():
     model = RidgeCorrection(alpha=2.0, interactions=True)
-    assert clone(model).get_params() == {"alpha": 2.0, "interactions": True}
+    assert clone(model).get_params() == {"alpha": 2.0, "interactions": True, "interaction_features": None}
     assert model.set_params(alpha=0.5).alpha == 0.5
     with pytest.raises(NotFittedError):
         model.predict(np.zeros((2, 2)))
@@ -123,6 +148,11 @@ def test_scikit_learn_protocol():
 @pytest.mark.parametrize("kind, params, words", [
     ("ridge", {"alpha": -1.0}, ["alpha", "[0, inf)", "-1.0"]),
     ("ridge", {"interactions": "yes"}, ["interactions", "'yes'"]),
+    ("ridge", {"interaction_features": ["cloud_fraction"]}, ["interaction_features", "at least two"]),
+    ("ridge", {"interaction_features": "cloud_fraction"}, ["interaction_features", "'cloud_fraction'"]),
+    ("ridge", {"interaction_features": ["a", "a"]}, ["interaction_features", "distinct"]),
+    ("ridge", {"interaction_features": ["a", 1]}, ["interaction_features"]),
+    ("ridge", {"interaction_features": [0, -1]}, ["interaction_features", ">= 0"]),
     ("boosted", {"learning_rate": 0.0}, ["learning_rate", "(0, 1]"]),
     ("boosted", {"learning_rate": 1.5}, ["learning_rate", "1.5"]),
     ("boosted", {"max_iter": 0}, ["max_iter", "[1, inf)"]),

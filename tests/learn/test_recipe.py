@@ -64,3 +64,21 @@ def test_recipe_against_pairs(synthetic_pairs, small_recipe):
     with pytest.raises(ValidationError, match="'cirrus' is not a regime"):
         check_recipe_against_pairs(recipe, synthetic_pairs)
     check_recipe_against_pairs(parse_recipe(small_recipe), synthetic_pairs)
+
+
+def test_interaction_features_is_one_value_or_a_grid_of_lists(synthetic_pairs, small_recipe):
+    one = small_recipe.replace("interactions = true", 'interactions = true\ninteraction_features = '
+                                                      '["cloud_fraction", "surface_albedo"]')
+    ridge = parse_recipe(one).models[0]
+    assert [c["interaction_features"] for c in ridge.candidates()] == [["cloud_fraction", "surface_albedo"]] * 2
+    check_recipe_against_pairs(parse_recipe(one), synthetic_pairs)
+    grid = small_recipe.replace("interactions = true", 'interactions = true\ninteraction_features = '
+                                                       '[["cloud_fraction", "surface_albedo"], '
+                                                       '["cloud_fraction", "cos_solar_zenith"]]')
+    assert len(parse_recipe(grid).models[0].candidates()) == 4
+    with pytest.raises(ParameterError, match="interaction_features"):
+        parse_recipe(small_recipe.replace("interactions = true", 'interactions = true\n'
+                                                                 'interaction_features = ["cloud_fraction"]'))
+    unknown = parse_recipe(one.replace('"surface_albedo"]', '"liquid_path"]'))
+    with pytest.raises(ValidationError, match=r"interaction_features names \['liquid_path'\]"):
+        check_recipe_against_pairs(unknown, synthetic_pairs)

@@ -208,3 +208,106 @@ def test_feature_modules_import_only_numpy_and_the_standard_library():
             "print(heavy)\nsys.exit(1 if heavy else 0)")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stdout + done.stderr
+
+
+# --- the fast helpers against plain definitions ------------------------------------------
+
+@pytest.mark.parametrize("shape", [(5, 7), (1, 4), (6, 1)])
+def test_periodic_shift_and_box_sum_are_roll_and_direct_sums(shape):
+    # Definitions: a periodic shift is np.roll; a box sum adds the 2 m + 1 rolled copies
+    # (windows wider than the domain wrap more than once).
+    a = np.random.default_rng(1).normal(size=shape)
+    for oy, ox in [(0, 0), (2, -3), (-7, 9), (13, 1)]:
+        np.testing.assert_array_equal(F._periodic_shift(a, oy, ox), np.roll(a, (oy, ox), axis=(0, 1)))
+        out = np.ones(shape)
+        F._periodic_shift(a, oy, ox, out=out, add=True)
+        np.testing.assert_array_equal(out, 1.0 + np.roll(a, (oy, ox), axis=(0, 1)))
+    for axis in (0, 1):
+        for m in (1, 2, 4, 9):
+            direct = sum(np.roll(a, k, axis=axis) for k in range(-m, m + 1))
+            np.testing.assert_allclose(F._box_sum(a, m, axis), direct, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("block_cells", [12, 50, 1 << 14])
+def test_distance_transform_matches_brute_force(monkeypatch, block_cells):
+    # Definition: the periodic Euclidean distance between cell centres, nearest target,
+    # infinity beyond the reach (in blocks of one, four or all rows).
+    monkeypatch.setattr(F, "_BLOCK_CELLS", block_cells)
+    rng = np.random.default_rng(4)
+    ny, nx, dx, dy = 9, 12, 1000.0, 700.0
+    targets = rng.random((ny, nx)) < 0.15
+    iy, ix = np.nonzero(targets)
+    for reach in (1500.0, 4000.0, 1e5):
+        got = F._distance_to(targets, dx, dy, reach)
+        for y in range(ny):
+            for x in range(nx):
+                ddy = np.minimum(np.abs(iy - y), ny - np.abs(iy - y)) * dy
+                ddx = np.minimum(np.abs(ix - x), nx - np.abs(ix - x)) * dx
+                d = np.sqrt(ddx ** 2 + ddy ** 2).min()
+                assert got[y, x] == (d if d <= reach else np.inf)
+
+
+def test_cloud_extent_of_every_layer_pattern():
+    # Top and base by definition: the highest and lowest layer whose cloud fraction exceeds
+    # the threshold, every one of the 2**4 patterns of four layers.
+    patterns = np.array([[(p >> k) & 1 for k in range(4)] for p in range(16)], dtype=float).T[:, None, :]
+    fields = {"layer_cloud_fraction": 0.5 * patterns, "z_edge": np.array([0.0, 100.0, 300.0, 600.0, 1000.0]),
+              "dx": 1000.0, "dy": 1000.0, "solar_zenith_angle": 0.0, "solar_beam_azimuth": 0.0}
+    top, base = F.cloud_top_height(fields, 0.2)[0], F.cloud_base_height(fields, 0.2)[0]
+    for p in range(16):
+        layers = [k for k in range(4) if (p >> k) & 1]
+        assert top[p] == (fields["z_edge"][max(layers) + 1] if layers else 0.0)
+        assert base[p] == (fields["z_edge"][min(layers)] if layers else 0.0)
+
+
+def _path_weights_by_layer(z_edge, dx, dy, zenith, azimuth):
+    """Reference: each layer's straight path split at the faces it crosses, one layer at a time (geometry)."""
+    tan0 = math.tan(math.radians(zenith))
+    ux, uy = -math.cos(math.radians(azimuth)), -math.sin(math.radians(azimuth))
+    out = []
+    for s0, s1 in zip(np.asarray(z_edge[:-1]) * tan0, np.asarray(z_edge[1:]) * tan0):
+        cuts = {s0, s1}
+        for u, h in ((ux, dx), (uy, dy)):
+            if abs(u) > 1e-12:
+                a, b = sorted((s0 * u / h, s1 * u / h))
+                cuts |= {(n + 0.5) * h / u for n in range(math.ceil(a - 0.5), math.floor(b - 0.5) + 1)}
+        cuts = sorted(min(max(c, s0), s1) for c in cuts)
+        share = {}
+        for c0, c1 in zip(cuts[:-1], cuts[1:]):
+            if c1 > c0:
+                mid = 0.5 * (c0 + c1)
+                cell = (math.floor(mid * (uy if abs(uy) > 1e-12 else 0.0) / dy + 0.5),
+                        math.floor(mid * (ux if abs(ux) > 1e-12 else 0.0) / dx + 0.5))
+                share[cell] = share.get(cell, 0.0) + (c1 - c0) / (s1 - s0)
+        out.append(share if s1 > s0 else {(0, 0): 1.0})
+    return out
+
+
+@pytest.mark.parametrize("zenith, azimuth, dy", [(45.0, 0.0, 1000.0), (60.0, 30.0, 700.0), (80.0, 225.0, 1300.0),
+                                                 (0.0, 90.0, 1000.0), (30.0, 90.0, 1000.0)])
+def test_path_weights_match_a_layer_by_layer_reference(zenith, azimuth, dy):
+    z_edge = np.array([0.0, 150.0, 400.0, 1000.0, 1800.0, 3000.0, 6000.0])
+    got = path_weights(z_edge, 1000.0, dy, zenith, azimuth)
+    for (oy, ox, w), expected in zip(got, _path_weights_by_layer(z_edge, 1000.0, dy, zenith, azimuth)):
+        assert list(zip(oy.tolist(), ox.tolist())) == sorted(expected)     # (oy, ox) in ascending order
+        np.testing.assert_allclose(w, [expected[c] for c in sorted(expected)], rtol=1e-12)
+        assert math.isclose(w.sum(), 1.0, rel_tol=1e-12)
+
+
+@pytest.mark.parametrize("block_cells", [7, 40, 1 << 14])
+def test_slant_sum_in_row_blocks_is_the_sum_of_rolled_planes(monkeypatch, block_cells):
+    # Definition: the slant sum adds, for every column offset, the weighted layers rolled
+    # into place; blocks of rows (some wrapping around the grid) change nothing.
+    from surrogate3d.pairs import slant_path
+
+    monkeypatch.setattr(slant_path, "_BLOCK_CELLS", block_cells)
+    rng = np.random.default_rng(7)
+    layers = rng.random((5, 9, 6))
+    weights = path_weights(np.linspace(0.0, 4000.0, 6), 1000.0, 800.0, 60.0, 120.0)
+    expected = np.zeros((9, 6))
+    for (oy, ox), terms in slant_path.gather_offsets(weights).items():
+        plane = np.zeros((9, 6))
+        for k, w in terms:
+            plane += w * layers[k]
+        expected += np.roll(plane, (-oy, -ox), axis=(0, 1))
+    np.testing.assert_array_equal(slant_path.slant_sum(layers, weights), expected)

@@ -7,6 +7,7 @@ the node's missing-value direction (scikit-learn's convention, common practice).
 """
 
 import numpy as np
+import pytest
 
 from surrogate3d.runtime.trees import TreeEnsemble
 
@@ -72,3 +73,59 @@ def test_sum_follows_tree_order():
     trees = [(0, [_leaf(v)]) for v in values]
     got = _ensemble(1, [0.0], trees).predict(np.zeros((1, 1)))[0, 0]
     assert got == ((0.0 + 1e16) + 1.0) - 1e16
+
+
+def _random_tree(rng, n_leaves, n_feature, cuts):
+    """Nodes (feature, threshold, left, right, missing_left, value) of a random tree, numbered breadth-first."""
+    # Grow by splitting a random leaf until n_leaves; then number the nodes level by level,
+    # so children are not next to their parent (unlike scikit-learn's depth-first order).
+    children = {0: None}
+    leaves = [0]
+    next_id = 1
+    while len(leaves) < n_leaves:
+        split = leaves.pop(rng.integers(len(leaves)))
+        children[split] = (next_id, next_id + 1)
+        children[next_id] = children[next_id + 1] = None
+        leaves += [next_id, next_id + 1]
+        next_id += 2
+    order, level = [], [0]
+    while level:
+        order += level
+        level = [c for n in level if children[n] for c in children[n]]
+    number = {n: i for i, n in enumerate(order)}
+    nodes = []
+    for n in order:
+        if children[n] is None:
+            nodes.append(_leaf(float(rng.normal())))
+        else:
+            left, right = children[n]
+            nodes.append((int(rng.integers(n_feature)), float(rng.choice(cuts)), number[left], number[right],
+                          int(rng.integers(2)), 0.0))
+    return nodes
+
+
+def _walk(nodes, x):
+    """Reference: follow one tree from its root (Breiman et al. 1984; NaN follows missing_left)."""
+    i = 0
+    while nodes[i][0] >= 0:
+        f, t, left, right, missing_left, _ = nodes[i]
+        go_left = bool(missing_left) if np.isnan(x[f]) else x[f] <= t
+        i = left if go_left else right
+    return nodes[i][5]
+
+
+@pytest.mark.parametrize("n_leaves", [5, 12, 31, 64, 150])
+def test_random_trees_match_a_plain_walk(n_leaves):
+    # Leaf words of 8, 16, 32 and 64 bits, and trees that span several 64-bit words.
+    rng = np.random.default_rng(n_leaves)
+    cuts = np.linspace(-1.0, 1.0, 9)
+    trees = [(m, _random_tree(rng, int(rng.integers(2, n_leaves + 1)) if k else n_leaves, 3, cuts))
+             for k in range(6) for m in (0, 1)]
+    trees.append((1, [_leaf(0.5)]))
+    model = _ensemble(3, [0.1, -0.2], trees)
+    X = rng.choice(np.concatenate([cuts, [np.nan, -2.0, 2.0]]), size=(300, 3))
+    X[:100] += rng.normal(scale=0.05, size=(100, 3))
+    expected = np.zeros((X.shape[0], 2)) + [0.1, -0.2]
+    for m, nodes in trees:
+        expected[:, m] += [_walk(nodes, x) for x in X]
+    np.testing.assert_array_equal(model.predict(X), expected)
