@@ -10,7 +10,7 @@ import numpy as np
 
 from ..errors import ValidationError
 from ..learn.consistency import apply_correction
-from ..learn.pairs_table import BASELINES, domain_groups, target_matrix
+from ..learn.pairs_table import BASELINES, domain_groups, feature_matrix, target_matrix
 
 NO_CORRECTION = "no correction"
 _BALANCE_TARGETS = ("surface_downward_flux", "toa_upward_flux", "atmosphere_absorption")
@@ -44,7 +44,8 @@ def model_correction(estimator, pairs, targets, consistency=True):
         Must all be targets of the model.
     consistency : bool
         Apply :func:`~surrogate3d.learn.consistency.apply_correction` (non-negative
-        fluxes; energy balance when total, TOA and absorption are all targets).
+        fluxes; energy balance when total, TOA and absorption are all targets), keeping
+        the samples of the model's clear-sky gate at zero.
 
     Returns
     -------
@@ -63,5 +64,5 @@ def model_correction(estimator, pairs, targets, consistency=True):
     outcome = apply_correction(
         target_matrix(pairs, targets, "independent_column_flux"), correction, pairs["surface_albedo"].values,
         domain_groups(pairs), clip_nonnegative=True, energy_balance=all(t in targets for t in _BALANCE_TARGETS),
-        targets=targets)
+        targets=targets, clear_sky=estimator.clear_sky_mask(feature_matrix(pairs, estimator.feature_names_)))
     return outcome.correction, outcome

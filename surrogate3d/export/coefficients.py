@@ -25,9 +25,9 @@ from ..archive.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.recipe import FeatureRecipe
-from ..runtime.document import (ARRAYS, FORMAT_NAME, FORMAT_VERSION, check_document, document_from_json,
-                                document_to_json)
-from .flatten import flatten
+from ..runtime.document import (ARRAYS, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, check_document,
+                                document_from_json, document_to_json)
+from .flatten import clear_sky_gate, flatten
 
 #: Suffixes of the two files of one model.
 NETCDF_SUFFIX = ".coefficients.nc"
@@ -114,6 +114,7 @@ def build_document(trained, report_dir=None):
         "feature_recipe": recipe.to_dict(),
         "targets": {"names": list(card["targets"]), "units": "1", "definition": TARGET_DEFINITION},
         kind: arrays,
+        GATE_FIELD: clear_sky_gate(trained.estimator),
         "provenance": provenance,
         "skill": None if report_dir is None else skill_table(report_dir, trained.name),
     }
@@ -177,8 +178,8 @@ def document_to_dataset(document):
     """The NetCDF form (an xarray Dataset) of a document.
 
     Feature and target names are the coordinates ``feature`` and ``target``; every
-    model array is a variable ``<kind>_<name>``; the other fields are JSON text in global
-    attributes of the same names.
+    model array is a variable ``<kind>_<name>``; the other fields (the clear-sky gate
+    included) are JSON text in global attributes of the same names.
     """
     kind = document["model"]["kind"]
     ds = xr.Dataset(coords={"feature": list(document["features"]["names"]), "target": list(document["targets"]["names"])})
@@ -190,8 +191,9 @@ def document_to_dataset(document):
                 "model_name": document["model"]["name"], "model_kind": kind}
     ds.attrs["features"] = json.dumps({k: v for k, v in document["features"].items() if k != "names"})
     ds.attrs["targets"] = json.dumps({k: v for k, v in document["targets"].items() if k != "names"})
-    for key in ("model", "feature_recipe", "provenance", "skill"):
-        ds.attrs[key] = json.dumps(document[key], allow_nan=False)
+    for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD):
+        if key in document:
+            ds.attrs[key] = json.dumps(document[key], allow_nan=False)
     return ds
 
 
@@ -202,8 +204,10 @@ def dataset_to_document(ds, source):
         raise FormatError(f"{source!r} is not a surrogate3d coefficient file: attribute format is "
                           f"{attrs.get('format')!r}; expected {FORMAT_NAME!r}")
     content = {"format": attrs["format"], "format_version": attrs.get("format_version")}
-    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill"):
+    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD):
         if key not in attrs:
+            if key == GATE_FIELD:   # optional: files of format 1.0 have no gate
+                continue
             raise FormatError(f"coefficient file {source!r} lacks attribute {key!r}")
         try:
             content[key] = json.loads(attrs[key])

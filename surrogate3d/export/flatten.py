@@ -119,6 +119,21 @@ def tree_arrays(estimator):
     }
 
 
+def clear_sky_gate(estimator):
+    """The ``clear_sky_gate`` field of a coefficient file from a fitted estimator.
+
+    Returns
+    -------
+    dict
+        ``feature_indices`` (list of int, into the model's features; empty without a
+        gate) and ``tolerance`` (float): the estimator predicts 0 where every listed
+        feature has ``|x| <= tolerance``.
+    """
+    indices = getattr(estimator, "clear_sky_indices_", [])   # none on estimators pickled before the gate
+    return {"feature_indices": [int(k) for k in indices],
+            "tolerance": float(getattr(estimator, "clear_sky_tolerance_", 0.0))}
+
+
 def flatten(estimator):
     """``(kind, arrays)`` of a fitted RidgeCorrection or BoostedCorrection."""
     if isinstance(estimator, RidgeCorrection):

@@ -7,15 +7,16 @@ characters), :func:`write_fortran` writes into a directory:
     Module ``NAME_correction``: the model's feature and target names as parameters, a
     derived type ``NAME_coefficients``, ``NAME_read_coefficients`` (reads and checks the
     data file), and the pure procedures ``NAME_correct_column`` (one column's features
-    to its corrections) and ``NAME_correct_columns`` (many columns).  Standard Fortran
-    2008, no dependencies but the intrinsic modules ``iso_fortran_env`` and
-    ``ieee_arithmetic``.
+    to its corrections) and ``NAME_correct_columns`` (many columns), which apply the
+    model's clear-sky gate (zero correction where every gate feature is within the
+    tolerance of 0).  Standard Fortran 2008, no dependencies but the intrinsic modules
+    ``iso_fortran_env`` and ``ieee_arithmetic``.
 ``NAME_correction_driver.f90``
     Example program: reads sample features from a text file, prints the corrections
     (or, given a repeat count, the columns per second).
 ``NAME.coefficients.txt``
-    The coefficients as plain text (every number in shortest round-trip decimal form,
-    so the doubles read back exactly).
+    The coefficients and the clear-sky gate as plain text (every number in shortest
+    round-trip decimal form, so the doubles read back exactly).
 ``NAME_sample_features.txt``, ``NAME_sample_corrections.txt``
     Feature vectors of training columns and the corrections the Python runtime gives
     for them, to check a build against.
@@ -35,7 +36,7 @@ import numpy as np
 
 from .._atomic import write_text_atomic
 from ..errors import ValidationError
-from ..runtime.document import FORMAT_NAME, FORMAT_VERSION
+from ..runtime.document import FORMAT_NAME, FORMAT_VERSION, clear_sky_gate
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -70,8 +71,9 @@ def data_file_text(document):
     kind = document["model"]["kind"]
     arrays = document[kind]
     features, targets = document["features"]["names"], document["targets"]["names"]
+    gate, tolerance = clear_sky_gate(document)
     lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"kind {kind}", f"model {document['model']['name']}",
-             f"n_features {len(features)}", f"n_targets {len(targets)}"]
+             f"n_features {len(features)}", f"n_targets {len(targets)}", f"n_clear_sky_features {len(gate)}"]
     if kind == "ridge":
         lines.append(f"n_pairs {arrays['interaction_pairs'].shape[0]}")
         order = ("feature_mean", "feature_scale", "interaction_pairs", "coef", "intercept")
@@ -84,6 +86,7 @@ def data_file_text(document):
     for name in order:
         lines.append(name)
         lines += _lines(arrays[name], integer=arrays[name].dtype.kind == "i")
+    lines += ["clear_sky_features", *_lines(gate, integer=True), "clear_sky_tolerance", _number(tolerance)]
     return "\n".join(lines) + "\n"
 
 
@@ -254,6 +257,44 @@ _COMMON_READERS = """\
 """
 
 
+#: Components of the coefficient type that hold the clear-sky gate.
+_GATE_COMPONENTS = """\
+    integer :: n_clear_sky = 0                             ! clear-sky gate: no gate when 0
+    integer(int32), allocatable :: clear_sky_features(:)   ! (n_clear_sky), 1-based feature indices
+    real(real64) :: clear_sky_tolerance = 0.0_real64"""
+
+#: Start of the pure column procedures: zero correction where the clear-sky gate holds.
+_GATE_TEST = """\
+    ! All gate features (near) zero: a clear column far from cloud, which has no 3D correction.
+    ! The loop stops at the first feature that is not zero (NaN compares false: not zero).
+    do g = 1, model%n_clear_sky
+      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
+    end do
+    if (model%n_clear_sky > 0 .and. g > model%n_clear_sky) then
+      corrections = 0.0_real64
+      return
+    end if"""
+
+
+def _gate_reader(prefix):
+    """Statements of the coefficient readers that read and check the clear-sky gate (after the model arrays)."""
+    return f"""\
+    if (status == 0) call read_integers(unit, 'clear_sky_features', model%clear_sky_features, status, message)
+    if (status == 0) call read_reals(unit, 'clear_sky_tolerance', tolerance, status, message)
+    if (status == 0) then
+      if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= {prefix}_n_features)) then
+        status = 1
+        message = 'coefficient file: a clear_sky_features index is out of range'
+      else if (.not. (tolerance(1) >= 0.0_real64)) then
+        status = 1
+        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+      else
+        model%clear_sky_features = model%clear_sky_features + 1
+        model%clear_sky_tolerance = tolerance(1)
+      end if
+    end if"""
+
+
 def _module_header(prefix, document):
     features, targets = document["features"]["names"], document["targets"]["names"]
     kind = document["model"]["kind"]
@@ -288,19 +329,22 @@ def _ridge_module(prefix, document):
     integer(int32), allocatable :: pairs(:, :)          ! (2, n_pairs)
     real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
     real(real64), allocatable :: intercept(:)
+{_GATE_COMPONENTS}
   end type {prefix}_coefficients
 
   public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns
 
 contains
 
-  !> Corrections of one column: intercept + coef . [z, z_i z_j] with z = (x - mean) / scale.
+  !> Corrections of one column: intercept + coef . [z, z_i z_j] with z = (x - mean) / scale,
+  !> and 0 where the clear-sky gate holds.
   pure subroutine {prefix}_correct_column(model, features, corrections)
     type({prefix}_coefficients), intent(in) :: model
     real(real64), intent(in) :: features({prefix}_n_features)
     real(real64), intent(out) :: corrections({prefix}_n_targets)
     real(real64) :: z({prefix}_n_features)
-    integer :: k, p
+    integer :: k, p, g
+{_GATE_TEST}
     z = (features - model%feature_mean) / model%feature_scale
     ! All targets advance together: independent sums, so additions overlap in the CPU.
     corrections = model%intercept
@@ -332,6 +376,7 @@ contains
     character(len=*), intent(out) :: message
     real(real64), allocatable :: coef_list(:)
     integer(int32), allocatable :: pair_list(:)
+    real(real64) :: tolerance(1)
     integer :: unit, p, n_terms
     status = 0
     message = ''
@@ -339,8 +384,10 @@ contains
     call open_coefficients(path, 'ridge', unit, status, message)
     call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
+    call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
     call read_count(unit, 'n_pairs', model%n_pairs, status, message)
     if (status == 0) then
+      allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%feature_mean({prefix}_n_features), model%feature_scale({prefix}_n_features))
       allocate (pair_list(2 * model%n_pairs), model%intercept({prefix}_n_targets))
       n_terms = {prefix}_n_features + model%n_pairs
@@ -353,6 +400,7 @@ contains
     if (status == 0) call read_integers(unit, 'interaction_pairs', pair_list, status, message)
     if (status == 0) call read_reals(unit, 'coef', coef_list, status, message)
     if (status == 0) call read_reals(unit, 'intercept', model%intercept, status, message)
+{_gate_reader(prefix)}
     if (status == 0) then
       ! The file lists the pairs (i, j) and the coefficients target by target, row by row.
       model%pairs = reshape(pair_list, [2, model%n_pairs]) + 1
@@ -389,6 +437,7 @@ def _boosted_module(prefix, document):
     integer(int32), allocatable :: feature(:), left(:), right(:)
     logical, allocatable :: missing_go_left(:)
     real(real64), allocatable :: threshold(:), value(:)
+{_GATE_COMPONENTS}
   end type {prefix}_coefficients
 
   public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns
@@ -396,14 +445,16 @@ def _boosted_module(prefix, document):
 contains
 
   !> Corrections of one column: baseline plus, tree by tree, the value of the leaf reached by
-  !> going left where x(feature) <= threshold (NaN: where missing_go_left) and right elsewhere.
+  !> going left where x(feature) <= threshold (NaN: where missing_go_left) and right elsewhere;
+  !> 0 where the clear-sky gate holds.
   pure subroutine {prefix}_correct_column(model, features, corrections)
     type({prefix}_coefficients), intent(in) :: model
     real(real64), intent(in) :: features({prefix}_n_features)
     real(real64), intent(out) :: corrections({prefix}_n_targets)
-    integer :: t, node, m
+    integer :: t, node, m, g
     real(real64) :: x
     logical :: go_left
+{_GATE_TEST}
     corrections = model%baseline
     do t = 1, model%n_trees
       node = model%tree_root(t)
@@ -438,6 +489,7 @@ contains
     character(len=*), intent(out) :: message
     integer(int32), allocatable :: offset(:), threshold_index(:), missing(:)
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
+    real(real64) :: tolerance(1)
     integer :: unit, n_leaves, n_thresholds, t, node, first, last, leaf
     status = 0
     message = ''
@@ -446,11 +498,13 @@ contains
     call open_coefficients(path, 'boosted', unit, status, message)
     call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
+    call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
     call read_count(unit, 'n_trees', model%n_trees, status, message)
     call read_count(unit, 'n_nodes', model%n_nodes, status, message)
     call read_count(unit, 'n_leaves', n_leaves, status, message)
     call read_count(unit, 'n_thresholds', n_thresholds, status, message)
     if (status == 0) then
+      allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%baseline({prefix}_n_targets), model%tree_target(model%n_trees), offset(model%n_trees + 1))
       allocate (model%feature(model%n_nodes), threshold_index(model%n_nodes), model%left(model%n_nodes))
       allocate (model%right(model%n_nodes), missing(model%n_nodes), model%value(model%n_nodes))
@@ -468,6 +522,7 @@ contains
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
     if (status == 0) call read_reals(unit, 'threshold_values', threshold_values, status, message)
+{_gate_reader(prefix)}
     if (unit /= -1) close (unit)
     if (status /= 0) return
     if (offset(1) /= 0 .or. offset(model%n_trees + 1) /= model%n_nodes) then

@@ -94,13 +94,14 @@ def _columns(targets, needed, purpose):
 
 
 def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonnegative=True, energy_balance=True,
-                     remove_domain_mean=False, targets=TARGETS):
+                     remove_domain_mean=False, targets=TARGETS, clear_sky=None):
     """Add a predicted correction to independent-column fluxes and make the result consistent.
 
     Steps, in this order:
 
     1. ``remove_domain_mean``: subtract from each correction its mean over the domain
-       (``group``), so that the correction only redistributes flux horizontally.
+       (``group``), so that the correction only redistributes flux horizontally (with
+       ``clear_sky``, from the other samples only, which then carry the whole mean).
     2. Surface components: the total downward flux is recomputed as corrected direct +
        corrected diffuse (when all three are targets), so the three always agree.
     3. ``clip_nonnegative``: corrected direct, diffuse, TOA upward and absorbed fluxes
@@ -120,6 +121,12 @@ def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonneg
        ``rescaled_domains``); if even that cannot close the budget the absorption is set
        to zero and the domain is counted in ``unbalanced_domains``.
 
+    Samples marked in ``clear_sky`` (the model's clear-sky gate: clear columns far from
+    cloud, whose correction is exactly zero) keep a zero correction through every
+    step: the domain-mean shifts of steps 1 and 4 fall on the other samples of the
+    domain.  A clear column far from cloud has no 3D effect; the horizontal export that
+    closes the domain budget comes from the cloudy part.
+
     Parameters
     ----------
     ica_flux : array_like (n_sample, n_target)
@@ -135,6 +142,9 @@ def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonneg
         Steps 3, 4 and 1 above.
     targets : sequence of str, default all five in the documented order
         Target of each column.
+    clear_sky : array_like of bool (n_sample,), optional
+        Samples whose correction must stay zero (``estimator.clear_sky_mask(X)``);
+        their ``correction`` must be 0.  Default none.
 
     Returns
     -------
@@ -169,14 +179,24 @@ def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonneg
     if np.any((albedo < 0) | (albedo > 1)):
         i = int(np.flatnonzero((albedo < 0) | (albedo > 1))[0])
         raise ValidationError(f"surface_albedo must be in [0, 1]; got {albedo[i]!r} at sample {i}")
+    free = np.ones(ica.shape[0], dtype=bool) if clear_sky is None else ~np.asarray(clear_sky, dtype=bool).reshape(-1)
+    if free.shape[0] != ica.shape[0]:
+        raise ValidationError(f"clear_sky must have {ica.shape[0]} samples; got {free.shape[0]}")
+    if np.any(corr[~free] != 0.0):
+        i = int(np.flatnonzero(np.any(corr != 0.0, axis=1) & ~free)[0])
+        raise ValidationError(f"correction must be 0 at the clear_sky samples; sample {i} has {corr[i].tolist()}")
     if energy_balance:
         _columns(targets, (_TOTAL, _TOA, _ABSORPTION), "energy balance")
     _, inverse = np.unique(labels, return_inverse=True)
     inverse = inverse.ravel()
     n_domain = int(inverse.max()) + 1 if inverse.size else 0
 
+    n_free = np.bincount(inverse, weights=free, minlength=n_domain)
+    # Samples per free sample of each domain: a domain-mean shift s is a shift of s * per_free
+    # on each free sample (0 where none is free: such a domain's correction is all zero).
+    per_free = np.divide(np.bincount(inverse, minlength=n_domain), n_free, out=np.zeros(n_domain), where=n_free > 0)
     if remove_domain_mean and inverse.size:
-        corr -= _domain_mean(corr, inverse, n_domain)
+        corr -= _domain_mean(corr, inverse, n_domain) * (per_free[inverse] * free)[:, None]
     components = all(t in targets for t in (_TOTAL, _DIRECT, _DIFFUSE))
     clipped = {}
     if clip_nonnegative:
@@ -189,7 +209,8 @@ def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonneg
     if components:
         c = {t: targets.index(t) for t in (_TOTAL, _DIRECT, _DIFFUSE)}
         corrected_total = ica[:, c[_DIRECT]] + corr[:, c[_DIRECT]] + ica[:, c[_DIFFUSE]] + corr[:, c[_DIFFUSE]]
-        corr[:, c[_TOTAL]] = corrected_total - ica[:, c[_TOTAL]]
+        # Clear-sky samples keep 0 even where the fluxes' last bits make direct + diffuse != total.
+        corr[:, c[_TOTAL]] = np.where(free, corrected_total - ica[:, c[_TOTAL]], 0.0)
         if clip_nonnegative:
             clipped[_TOTAL] = 0
 
@@ -199,14 +220,15 @@ def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonneg
         a = targets.index(_ABSORPTION)
         residual = _domain_mean(energy_residual(corr, albedo, targets), inverse, n_domain)
         shift = np.bincount(inverse, weights=residual, minlength=n_domain) / np.bincount(inverse, minlength=n_domain)
+        free_shift = shift * per_free                   # the cut on each free sample
         absorbed = ica[:, a] + corr[:, a]
-        shifted = absorbed - residual
+        shifted = np.where(free, absorbed - free_shift[inverse], absorbed)
         if clip_nonnegative:
-            for d in np.unique(inverse[shifted < 0]):
-                members = inverse == d
+            for d in np.unique(inverse[(shifted < 0) & free]):
+                members = (inverse == d) & free
                 mean_absorbed = absorbed[members].mean()
-                if shift[d] < mean_absorbed:
-                    shifted[members] = absorbed[members] * (1.0 - shift[d] / mean_absorbed)
+                if free_shift[d] < mean_absorbed:
+                    shifted[members] = absorbed[members] * (1.0 - free_shift[d] / mean_absorbed)
                     rescaled += 1
                 else:
                     shifted[members] = 0.0

@@ -7,6 +7,10 @@ incident flux).  Fitted from a training-pair table with :meth:`fit_pairs`, they 
 the feature and target names and predict straight from another table with
 :meth:`predict_pairs`, like the baselines.
 
+Both take an optional clear-sky gate (``clear_sky_features``): samples whose listed
+features are all zero, clear columns far from cloud, get exactly zero correction and
+are left out of the fit.
+
 The fitted attributes are the contract with the coefficient exporter; they are
 documented in each class and in ``docs/methods/models-and-metrics.md``.
 """
@@ -25,6 +29,13 @@ from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
 
 #: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
 _SINGULAR_CUTOFF = 1e-12
+
+#: Largest magnitude of a clear-sky gate feature that still counts as zero.  The gate
+#: features of the recipes (cloud fraction, neighbourhood cloud fraction, slant minus
+#: vertical optical depth) are exactly 0 in clear sky up to round-off, about 1e-16 of
+#: the clear-sky optical depth; 1e-9 is far above that and far below any cloud that
+#: matters radiatively.
+CLEAR_SKY_TOLERANCE = 1e-9
 
 
 def _check_real(name, value, low, high, *, low_open=False, high_open=False, integer=False):
@@ -82,6 +93,36 @@ def _check_feature_names(names, n_feature):
     return names
 
 
+def _check_feature_list(name, chosen, min_count):
+    """ParameterError unless ``chosen`` is None or a list of distinct feature names or of distinct indices >= 0."""
+    if chosen is None:
+        return
+    entries = list(chosen) if isinstance(chosen, (list, tuple)) else None
+    ok = entries is not None and len(entries) >= min_count and (
+        all(isinstance(e, str) and e for e in entries)
+        or all(isinstance(e, numbers.Integral) and not isinstance(e, bool) and e >= 0 for e in entries))
+    if not ok or len(set(entries)) != len(entries):
+        count = "at least two distinct" if min_count == 2 else "distinct"
+        raise ParameterError(f"{name} must be a list of {count} feature names (or of distinct column indices "
+                             f">= 0); got {chosen!r}")
+
+
+def _feature_indices(name, entries, feature_names, n_feature):
+    """Column indices, in the given order, of a checked list of feature names or indices."""
+    entries = list(entries)
+    if entries and isinstance(entries[0], str):
+        if feature_names is None:
+            raise ValidationError(f"{name} names features {entries}, but fit got no feature_names; pass "
+                                  "feature_names or give column indices")
+        missing = [e for e in entries if e not in feature_names]
+        if missing:
+            raise ValidationError(f"{name} names {missing}, which are not among the features {feature_names}")
+        return [feature_names.index(e) for e in entries]
+    if entries and max(entries) >= n_feature:
+        raise ValidationError(f"{name} holds column index {max(entries)}; X has {n_feature} columns")
+    return [int(e) for e in entries]
+
+
 def _check_fit_input(estimator, X, Y):
     if Y is None:
         raise ValidationError(f"{type(estimator).__name__} requires y to be passed, but the target y is None")
@@ -137,6 +178,40 @@ class _PairsTableMixin:
         Y = self.predict(X)
         return Y[:, None] if Y.ndim == 1 else Y
 
+    def clear_sky_mask(self, X):
+        """Which samples the clear-sky gate selects: every gate feature within the tolerance of 0.
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+
+        Returns
+        -------
+        ndarray of bool (n_sample,)
+            True where the model predicts exactly zero correction (all False without a gate).
+        """
+        return self._gated(self._check_predict_input(X))
+
+    def _gated(self, X):
+        # Estimators pickled before the gate existed have no gate attributes: no gate.
+        indices = getattr(self, "clear_sky_indices_", [])
+        gated = np.full(X.shape[0], bool(indices))
+        for k in indices:
+            gated &= np.abs(X[:, k]) <= self.clear_sky_tolerance_
+        return gated
+
+    def _fit_clear_sky_gate(self, X, Y):
+        """Resolve the gate features and return the training samples the gate leaves (at least two)."""
+        self.clear_sky_indices_ = _feature_indices("clear_sky_features", self.clear_sky_features or [],
+                                                   self.feature_names_, X.shape[1])
+        self.clear_sky_tolerance_ = CLEAR_SKY_TOLERANCE
+        keep = ~self._gated(X)
+        if np.count_nonzero(keep) < 2:
+            raise ValidationError(f"clear_sky_features {list(self.clear_sky_features)} gate "
+                                  f"{X.shape[0] - np.count_nonzero(keep)} of the {X.shape[0]} samples; at least 2 "
+                                  "ungated samples are needed to fit")
+        return X[keep], Y[keep]
+
     def _set_names(self, feature_names, n_feature):
         """Remember the feature names given to ``fit`` (checked), forget the target names."""
         if feature_names is not None:
@@ -188,6 +263,13 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         to :meth:`fit_pairs`), or column indices of ``X``.  ``k`` features give
         ``k (k - 1) / 2`` product terms instead of ``n (n - 1) / 2``, which keeps the
         coefficient file small.  Ignored without ``interactions``.
+    clear_sky_features : list of str or int, optional
+        The clear-sky gate: names (as for ``interaction_features``) or column indices
+        of features that are all zero only for a clear column far from cloud.  Where
+        every one of them is within :data:`CLEAR_SKY_TOLERANCE` of zero, :meth:`predict`
+        returns exactly 0 for every target, and :meth:`fit` leaves such samples out
+        (their true correction is 0 up to benchmark noise, so they would only bend the
+        fit).  None or empty: no gate.
 
     Attributes
     ----------
@@ -202,6 +284,10 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     term_names_ : list of str
         ``name`` for linear terms and ``name_i*name_j`` for products (``x0``, ``x1`` ... when
         fitted from arrays).
+    clear_sky_indices_ : list of int
+        Column indices of the gate features (empty without a gate).
+    clear_sky_tolerance_ : float
+        Largest ``|x|`` of a gate feature counted as zero (:data:`CLEAR_SKY_TOLERANCE`).
     n_features_in_ : int
     feature_names_ : list of str or None
         The ``feature_names`` given to :meth:`fit` (set by :meth:`fit_pairs`).
@@ -226,24 +312,17 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     (50, 2)
     """
 
-    def __init__(self, alpha=1.0, interactions=False, interaction_features=None):
+    def __init__(self, alpha=1.0, interactions=False, interaction_features=None, clear_sky_features=None):
         self.alpha = alpha
         self.interactions = interactions
         self.interaction_features = interaction_features
+        self.clear_sky_features = clear_sky_features
 
     def _check_parameters(self):
         _check_real("alpha", self.alpha, 0.0, math.inf)
         _check_bool("interactions", self.interactions)
-        chosen = self.interaction_features
-        if chosen is None:
-            return
-        entries = list(chosen) if isinstance(chosen, (list, tuple)) else None
-        ok = entries is not None and len(entries) >= 2 and (
-            all(isinstance(e, str) and e for e in entries)
-            or all(isinstance(e, numbers.Integral) and not isinstance(e, bool) and e >= 0 for e in entries))
-        if not ok or len(set(entries)) != len(entries):
-            raise ParameterError("interaction_features must be a list of at least two distinct feature names "
-                                 f"(or of distinct column indices >= 0); got {chosen!r}")
+        _check_feature_list("interaction_features", self.interaction_features, 2)
+        _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
 
     def _pairs(self, n_feature, feature_names):
         """Index pairs (i < j) of the product terms, from ``interactions`` and ``interaction_features``."""
@@ -251,20 +330,8 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
             return []
         chosen = range(n_feature)
         if self.interaction_features is not None:
-            entries = list(self.interaction_features)
-            if isinstance(entries[0], str):
-                if feature_names is None:
-                    raise ValidationError(f"interaction_features names features {entries}, but fit got no "
-                                          "feature_names; pass feature_names or give column indices")
-                missing = [e for e in entries if e not in feature_names]
-                if missing:
-                    raise ValidationError(f"interaction_features names {missing}, which are not among the "
-                                          f"features {feature_names}")
-                entries = [feature_names.index(e) for e in entries]
-            elif max(entries) >= n_feature:
-                raise ValidationError(f"interaction_features holds column index {max(entries)}; X has "
-                                      f"{n_feature} columns")
-            chosen = sorted(int(e) for e in entries)
+            chosen = sorted(_feature_indices("interaction_features", self.interaction_features, feature_names,
+                                             n_feature))
         return [(i, j) for a, i in enumerate(chosen) for j in chosen[a + 1:]]
 
     def fit(self, X, Y, feature_names=None):
@@ -277,8 +344,8 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         Y : array_like (n_sample, n_target) or (n_sample,)
             Corrections [1].
         feature_names : list of str, optional
-            Name of each column of ``X``; needed when ``interaction_features`` lists
-            names.  Kept as ``feature_names_``.
+            Name of each column of ``X``; needed when ``interaction_features`` or
+            ``clear_sky_features`` list names.  Kept as ``feature_names_``.
 
         Returns
         -------
@@ -289,6 +356,7 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         n_feature = X.shape[1]
         self._set_names(feature_names, n_feature)
         pairs = self._pairs(n_feature, self.feature_names_)
+        X, Y = self._fit_clear_sky_gate(X, Y)
         mean = X.mean(axis=0)
         scale = X.std(axis=0)
         scale[scale == 0.0] = 1.0
@@ -318,7 +386,7 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         return np.column_stack([Z] + products)
 
     def predict(self, X):
-        """Predicted corrections, ``intercept_ + terms(X) @ coef_.T``.
+        """Predicted corrections, ``intercept_ + terms(X) @ coef_.T``, and 0 where the clear-sky gate holds.
 
         Parameters
         ----------
@@ -330,6 +398,7 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         """
         X = self._check_predict_input(X)
         Y = self.intercept_ + self._terms(X) @ self.coef_.T
+        Y[self._gated(X)] = 0.0
         return Y[:, 0] if self._one_column else Y
 
 
@@ -355,6 +424,10 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     random_state : int, default 0
         Seed, >= 0 (only matters if the ensemble subsamples for binning, above 200 000
         samples).
+    clear_sky_features : list of str or int, optional
+        The clear-sky gate, as for :class:`RidgeCorrection`: where every listed feature
+        is within :data:`CLEAR_SKY_TOLERANCE` of zero, :meth:`predict` returns exactly 0
+        and :meth:`fit` leaves the sample out.  None or empty: no gate.
 
     Attributes
     ----------
@@ -367,6 +440,10 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         learning rate is already folded into the leaf values.
     n_iter_ : list of int
         Boosting iterations of each target's ensemble (``max_iter``: no early stopping).
+    clear_sky_indices_ : list of int
+        Column indices of the gate features (empty without a gate).
+    clear_sky_tolerance_ : float
+        Largest ``|x|`` of a gate feature counted as zero (:data:`CLEAR_SKY_TOLERANCE`).
     n_features_in_ : int
     feature_names_ : list of str or None
         The ``feature_names`` given to :meth:`fit` (set by :meth:`fit_pairs`).
@@ -391,13 +468,14 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     """
 
     def __init__(self, max_iter=300, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=20,
-                 l2_regularization=0.0, random_state=0):
+                 l2_regularization=0.0, random_state=0, clear_sky_features=None):
         self.max_iter = max_iter
         self.learning_rate = learning_rate
         self.max_leaf_nodes = max_leaf_nodes
         self.min_samples_leaf = min_samples_leaf
         self.l2_regularization = l2_regularization
         self.random_state = random_state
+        self.clear_sky_features = clear_sky_features
 
     def _check_parameters(self):
         _check_real("max_iter", self.max_iter, 1, math.inf, integer=True)
@@ -406,6 +484,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         _check_real("min_samples_leaf", self.min_samples_leaf, 1, math.inf, integer=True)
         _check_real("l2_regularization", self.l2_regularization, 0.0, math.inf)
         _check_real("random_state", self.random_state, 0, 2**32 - 1, integer=True)
+        _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
 
     def fit(self, X, Y, feature_names=None):
         """Fit one ensemble per target column.
@@ -416,7 +495,8 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         Y : array_like (n_sample, n_target) or (n_sample,)
             Corrections [1].
         feature_names : list of str, optional
-            Name of each column of ``X``, kept as ``feature_names_``.
+            Name of each column of ``X``, kept as ``feature_names_``; needed when
+            ``clear_sky_features`` lists names.
 
         Returns
         -------
@@ -424,7 +504,9 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         """
         self._check_parameters()
         X, Y, one_column = _check_fit_input(self, X, Y)
-        self._set_names(feature_names, X.shape[1])
+        n_feature = X.shape[1]
+        self._set_names(feature_names, n_feature)
+        X, Y = self._fit_clear_sky_gate(X, Y)
         self.estimators_ = [
             HistGradientBoostingRegressor(
                 loss="squared_error", max_iter=int(self.max_iter), learning_rate=float(self.learning_rate),
@@ -433,12 +515,12 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
                 random_state=int(self.random_state)).fit(X, Y[:, m])
             for m in range(Y.shape[1])]
         self.n_iter_ = [int(estimator.n_iter_) for estimator in self.estimators_]
-        self.n_features_in_ = X.shape[1]
+        self.n_features_in_ = n_feature
         self._one_column = one_column
         return self
 
     def predict(self, X):
-        """Predicted corrections.
+        """Predicted corrections, 0 where the clear-sky gate holds.
 
         Parameters
         ----------
@@ -450,6 +532,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         """
         X = self._check_predict_input(X)
         Y = np.column_stack([estimator.predict(X) for estimator in self.estimators_])
+        Y[self._gated(X)] = 0.0
         return Y[:, 0] if self._one_column else Y
 
 

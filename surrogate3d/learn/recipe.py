@@ -20,6 +20,7 @@ any training starts, and a wrong one is named in the error with the allowed valu
     kind = "ridge" | "boosted"
     PARAMETER = value | [values]           # a list is a grid dimension
     interaction_features = ["a", "b", ...] # list-valued parameter: one value; a list of lists is a grid
+    clear_sky_features = ["a", ...]        # list-valued too: the clear-sky gate (models.py)
 """
 
 import itertools
@@ -39,7 +40,7 @@ _CV_KEYS = {"folds"}
 _MODEL_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*$")
 
 #: Model parameters whose value is itself a list: a list of lists is their grid dimension.
-_LIST_PARAMETERS = {"interaction_features"}
+_LIST_PARAMETERS = {"interaction_features", "clear_sky_features"}
 
 
 @dataclass(frozen=True)
@@ -212,12 +213,13 @@ def check_recipe_against_pairs(recipe, pairs):
     features = recipe.feature_list(pairs)
     check_has_features(pairs, features, needed_by=f"training recipe {recipe.source!r}")
     for spec in recipe.models:
-        for chosen in spec.grid.get("interaction_features", []):
-            names = [c for c in (chosen or []) if isinstance(c, str)]
-            missing = [c for c in names if c not in features]
-            if missing:
-                raise ValidationError(f"training recipe {recipe.source!r}: [models.{spec.name}] interaction_features "
-                                      f"names {missing}, which are not among the recipe's features")
+        for parameter in sorted(_LIST_PARAMETERS):
+            for chosen in spec.grid.get(parameter, []):
+                names = [c for c in (chosen or []) if isinstance(c, str)]
+                missing = [c for c in names if c not in features]
+                if missing:
+                    raise ValidationError(f"training recipe {recipe.source!r}: [models.{spec.name}] {parameter} "
+                                          f"names {missing}, which are not among the recipe's features")
     missing = [t for t in recipe.targets if t not in [str(v) for v in pairs["target"].values]]
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing} named by training recipe {recipe.source!r}")

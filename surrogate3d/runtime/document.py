@@ -23,7 +23,8 @@ from ..errors import FormatError
 FORMAT_NAME = "surrogate3d-correction-coefficients"
 
 #: Version of the coefficient layout.  Readers accept files of the same major version.
-FORMAT_VERSION = "1.0"
+#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate).
+FORMAT_VERSION = "1.1"
 
 #: Model kinds a coefficient file may hold.
 KINDS = ("ridge", "boosted")
@@ -56,6 +57,9 @@ ARRAYS = {
 #: Top-level keys of a document and the JSON type each must have.
 TOP_LEVEL = {"format": str, "format_version": str, "model": dict, "features": dict, "feature_recipe": dict,
              "targets": dict, "provenance": dict, "skill": (dict, type(None))}
+
+#: Optional top-level field: the clear-sky gate (absent in files of format 1.0: no gate).
+GATE_FIELD = "clear_sky_gate"
 
 #: Arrays with at most this many finite values are written as plain JSON lists.
 PLAIN_LIMIT = 64
@@ -247,8 +251,9 @@ def check_document(document, source):
     """Check that the fields of a document agree with each other; raise FormatError if not.
 
     Checks the array dimensions against each other and against the feature and
-    target lists, and the model-specific rules (``docs/export-format.md``, "Checks on
-    load").  Does not check the feature recipe (:mod:`surrogate3d.runtime.model` does).
+    target lists, the model-specific rules and the clear-sky gate's feature indices
+    (``docs/export-format.md``, "Checks on load").  Does not check the feature recipe
+    (:mod:`surrogate3d.runtime.model` does).
 
     Parameters
     ----------
@@ -288,6 +293,49 @@ def check_document(document, source):
         _check_ridge(arrays, sizes, source)
     else:
         _check_trees(arrays, sizes, source)
+    _check_gate(document, len(feature_names), source)
+
+
+def clear_sky_gate(document):
+    """The clear-sky gate of a checked document: ``(feature indices, tolerance)``.
+
+    A sample whose features at these indices all have ``|x| <= tolerance`` gets exactly
+    zero correction.  A document without the field (format 1.0) has no gate: ``([], 0.0)``.
+
+    Parameters
+    ----------
+    document : dict
+
+    Returns
+    -------
+    (list of int, float)
+    """
+    gate = document.get(GATE_FIELD) or {"feature_indices": [], "tolerance": 0.0}
+    return [int(k) for k in gate["feature_indices"]], float(gate["tolerance"])
+
+
+def _check_gate(document, n_feature, source):
+    if GATE_FIELD not in document:
+        return
+    gate = document[GATE_FIELD]
+    if not isinstance(gate, dict) or set(gate) != {"feature_indices", "tolerance"}:
+        raise FormatError(f"coefficient file {source!r}: field {GATE_FIELD} must be an object with exactly "
+                          f"feature_indices and tolerance; got {_short(gate)}")
+    indices = gate["feature_indices"]
+    if not isinstance(indices, list) or not all(isinstance(k, int) and not isinstance(k, bool) for k in indices):
+        raise FormatError(f"coefficient file {source!r}: field {GATE_FIELD}.feature_indices must be a list of "
+                          f"integers; got {_short(indices)}")
+    for i, k in enumerate(indices):
+        if not 0 <= k < n_feature:
+            _fail_at(source, f"{GATE_FIELD}.feature_indices", i, k, f"is not a feature index < {n_feature}")
+    if len(set(indices)) != len(indices):
+        raise FormatError(f"coefficient file {source!r}: field {GATE_FIELD}.feature_indices repeats an index: "
+                          f"{indices}")
+    tolerance = gate["tolerance"]
+    if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float)) or not math.isfinite(tolerance) \
+            or tolerance < 0:
+        raise FormatError(f"coefficient file {source!r}: field {GATE_FIELD}.tolerance must be a finite number "
+                          f">= 0; got {_short(tolerance)}")
 
 
 def _fail_at(source, label, index, value, rule):

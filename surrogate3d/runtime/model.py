@@ -15,7 +15,7 @@ from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
 from ..pairs.targets import TARGETS
-from .document import check_document, document_from_json
+from .document import check_document, clear_sky_gate, document_from_json
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
 
@@ -38,6 +38,10 @@ class CorrectionModel:
         fraction of the incident flux on the horizontal [1].
     recipe : surrogate3d.pairs.recipe.FeatureRecipe
         The feature recipe of the training pairs (names, parameters).
+    clear_sky_features : list of str
+        The clear-sky gate: where every one of these features has
+        ``|x| <= clear_sky_tolerance``, the correction is exactly 0 (empty: no gate).
+    clear_sky_tolerance : float
     document : dict
         Everything the file holds (provenance, skill table, hyperparameters ...).
 
@@ -64,6 +68,8 @@ class CorrectionModel:
         self.recipe = _recipe(document, self.feature_names, self.feature_units, source)
         producer = _column_producers(self.recipe)
         self._needed = [f for f in self.recipe.features if any(producer[c] == f for c in self.feature_names)]
+        self._gate, self.clear_sky_tolerance = clear_sky_gate(document)
+        self.clear_sky_features = [self.feature_names[k] for k in self._gate]
         arrays = document[self.kind]
         if self.kind == "ridge":
             self._evaluator = RidgeModel(**arrays)
@@ -100,13 +106,48 @@ class CorrectionModel:
         -------
         ndarray (n_column, n_target)
             Corrections [1] (fractions of the incident flux on the horizontal), columns
-            in the order of :attr:`target_names`.
+            in the order of :attr:`target_names`; exactly 0 in the columns the
+            clear-sky gate selects (:meth:`clear_sky_mask`).
 
         Raises
         ------
         surrogate3d.errors.ValidationError
             Wrong shape, or a value that is not finite (sample and feature named).
         """
+        X = self._checked(features)
+        corrections = self._evaluator.predict(X)
+        corrections[self._gated_rows(X)] = 0.0
+        return corrections
+
+    def clear_sky_mask(self, features):
+        """Which columns the clear-sky gate selects (they get exactly zero correction).
+
+        Parameters
+        ----------
+        features : array_like (n_column, n_feature)
+            As for :meth:`predict`.
+
+        Returns
+        -------
+        ndarray of bool (n_column,)
+            All False for a model without a gate.
+        """
+        X = self._checked(features)
+        gated = np.zeros(X.shape[0], dtype=bool)
+        gated[self._gated_rows(X)] = True
+        return gated
+
+    def _gated_rows(self, X):
+        """Indices of the rows the gate selects: each further gate feature is tested only where
+        the earlier ones are zero (few rows), which keeps the gate a few percent of a ridge prediction."""
+        if not self._gate:
+            return np.zeros(0, dtype=np.intp)
+        rows = np.flatnonzero(np.abs(X[:, self._gate[0]]) <= self.clear_sky_tolerance)
+        for k in self._gate[1:]:
+            rows = rows[np.abs(X[rows, k]) <= self.clear_sky_tolerance]
+        return rows
+
+    def _checked(self, features):
         X = np.asarray(features, dtype=np.float64)
         if X.ndim != 2 or X.shape[1] != self.n_features:
             raise ValidationError(f"features must have shape (n_column, {self.n_features}) for model "
@@ -116,7 +157,7 @@ class CorrectionModel:
             i, j = np.argwhere(bad)[0]
             raise ValidationError(f"features is not finite at column {i}, feature {self.feature_names[j]!r}: "
                                   f"{X[i, j]!r}")
-        return self._evaluator.predict(X)
+        return X
 
     def host_features(self, host_fields):
         """The model's feature matrix computed from host-model fields with the stored recipe.

@@ -41,11 +41,14 @@ def test_netcdf_and_json_hold_the_same_document(built, name):
     assert coefficient_json_text(fresh) == (built["export_dir"] / f"{name}.coefficients.json").read_text()
 
 
-def test_document_content(built, run):
+def test_document_content(built, run, helpers):
     document = read_coefficients(built["export_dir"] / "boosted.coefficients.json")
     card = run.models["boosted"].card
     assert document["model"]["hyperparameters"] == card["hyperparameters"]
     assert document["features"]["names"] == card["feature_names"]
+    gate = document["clear_sky_gate"]
+    assert [document["features"]["names"][k] for k in gate["feature_indices"]] == helpers.GATE
+    assert gate["tolerance"] == run.models["boosted"].estimator.clear_sky_tolerance_ == 1e-9
     assert document["feature_recipe"]["parameters"]["neighbour_radii"] == [1000.0]
     provenance = document["provenance"]
     for key in ("archive_fingerprint", "pairs_sha256", "recipe_text", "package_version", "training_scenes"):
@@ -133,3 +136,13 @@ def test_netcdf_is_classic_and_holds_empty_arrays(built, tmp_path):
     netcdf, twin = write_coefficients(document, tmp_path, stem="linear")
     _assert_same_document(read_coefficients(netcdf), read_coefficients(twin))
     assert read_coefficients(netcdf)["ridge"]["interaction_pairs"].shape == (0, 2)
+
+
+def test_files_without_a_gate_round_trip(built, tmp_path):
+    # Files of format 1.0 carry no clear_sky_gate: both forms read back without one.
+    document = read_coefficients(built["export_dir"] / "boosted.coefficients.json")
+    del document["clear_sky_gate"]
+    netcdf, twin = write_coefficients(document, tmp_path, stem="ungated")
+    for path in (netcdf, twin):
+        assert "clear_sky_gate" not in read_coefficients(path)
+    assert "clear_sky_gate" not in open_dataset(netcdf, what="coefficient file").attrs

@@ -15,6 +15,7 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.export.fortran import features_file_text, fortran_name, fortran_sources
 from surrogate3d.export import read_coefficients
+from surrogate3d.runtime import FORMAT_VERSION
 
 GFORTRAN = shutil.which("gfortran")
 needs_gfortran = pytest.mark.skipif(GFORTRAN is None, reason="gfortran is not installed (make test installs "
@@ -64,6 +65,26 @@ def test_fortran_matches_python(built, run, drivers, name):
 
 
 @needs_gfortran
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_fortran_applies_the_clear_sky_gate(built, run, helpers, drivers, tmp_path, name):
+    # No cloud in or next to the column: no 3D effect (common practice), so the module
+    # returns exactly 0 there and the model's own prediction elsewhere, like Python.
+    fortran = built["export_dir"] / "fortran"
+    features = np.loadtxt(fortran / f"{name}_sample_features.txt", skiprows=1)
+    estimator = run.models[name].estimator
+    columns = [estimator.feature_names_.index(f) for f in helpers.GATE]
+    features[::3, columns] = 0.0                          # every third column clear far from cloud
+    features[1::6, columns[0]] = 2 * estimator.clear_sky_tolerance_   # just outside the gate
+    (tmp_path / "gated.txt").write_text(features_file_text(features))
+    got = _run(drivers[name], fortran / f"{name}.coefficients.txt", tmp_path / "gated.txt")
+    expected = estimator.predict(features)
+    gated = estimator.clear_sky_mask(features)
+    assert gated[::3].all() and not gated[1::6].any()
+    assert np.all(got[gated] == 0.0) and np.all(np.any(got[~gated] != 0.0, axis=1))
+    assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
+
+
+@needs_gfortran
 def test_fortran_routes_missing_values(built, run, drivers, tmp_path):
     # NaN follows each node's missing-value direction, as in scikit-learn.
     fortran = built["export_dir"] / "fortran"
@@ -72,7 +93,10 @@ def test_fortran_routes_missing_values(built, run, drivers, tmp_path):
     features[rng.uniform(size=features.shape) < 0.3] = np.nan
     (tmp_path / "nan.txt").write_text(features_file_text(features))
     got = _run(drivers["boosted"], fortran / "boosted.coefficients.txt", tmp_path / "nan.txt")
-    expected = np.column_stack([r.predict(features) for r in run.models["boosted"].estimator.estimators_])
+    estimator = run.models["boosted"].estimator
+    expected = np.column_stack([r.predict(features) for r in estimator.estimators_])
+    # A missing gate feature is not zero: only columns whose gate features are all present and 0 are gated.
+    expected[np.all(np.abs(features[:, estimator.clear_sky_indices_]) <= estimator.clear_sky_tolerance_, axis=1)] = 0
     np.testing.assert_array_equal(got, expected)
 
 
@@ -90,12 +114,19 @@ def test_fortran_reports_bad_data_files(built, drivers, tmp_path):
     result = subprocess.run([str(drivers["boosted"]), str(tmp_path / "renamed.txt"), str(features)],
                             capture_output=True, text=True)
     assert result.returncode != 0 and 'features entry 1 is "slant_optical_depth"' in result.stderr
-    text = (fortran / "boosted.coefficients.txt").read_text().replace("surrogate3d-correction-coefficients 1.0",
-                                                                       "surrogate3d-correction-coefficients 2.0")
+    text = (fortran / "boosted.coefficients.txt").read_text().replace(
+        f"surrogate3d-correction-coefficients {FORMAT_VERSION}", "surrogate3d-correction-coefficients 2.0")
     (tmp_path / "v2.txt").write_text(text)
     result = subprocess.run([str(drivers["boosted"]), str(tmp_path / "v2.txt"), str(features)],
                             capture_output=True, text=True)
     assert result.returncode != 0 and "this module reads major version 1" in result.stderr
+    text = (fortran / "boosted.coefficients.txt").read_text().splitlines()
+    n_features = int(next(line for line in text if line.startswith("n_features ")).split()[1])
+    text[text.index("clear_sky_features") + 1] = f"0 {n_features}"       # one past the last feature
+    (tmp_path / "gate.txt").write_text("\n".join(text) + "\n")
+    result = subprocess.run([str(drivers["boosted"]), str(tmp_path / "gate.txt"), str(features)],
+                            capture_output=True, text=True)
+    assert result.returncode != 0 and "clear_sky_features index is out of range" in result.stderr
 
 
 @needs_gfortran

@@ -63,13 +63,18 @@ interactions = true
 interaction_features = ["cos_solar_zenith", "cloud_fraction", "log_column_optical_depth",
                         "neighbour_contrast_cloud_fraction_1000m"]
 alpha = 1.0
+clear_sky_features = ["cloud_fraction", "neighbour_mean_cloud_fraction_1000m"]
 
 [models.boosted]
 kind = "boosted"
 max_iter = 25
 max_leaf_nodes = 9
 min_samples_leaf = 5
+clear_sky_features = ["cloud_fraction", "neighbour_mean_cloud_fraction_1000m"]
 """
+
+#: The clear-sky gate of both test models: no cloud in the column nor in its 3 x 3 neighbourhood.
+GATE = ["cloud_fraction", "neighbour_mean_cloud_fraction_1000m"]
 
 METRICS_HEADER = ("evaluation_set,breakdown,group,group_order,group_value,predictor,target,units,n,rmse,mae,bias,"
                   "r2,skill,rmse_no_correction,noise_rmse,noise_floor_skill,noise_corrected_rmse,"

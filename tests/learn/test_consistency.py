@@ -6,7 +6,7 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.learn.consistency import apply_correction, energy_residual
 from surrogate3d.learn.models import BoostedCorrection, RidgeCorrection
-from surrogate3d.learn.pairs_table import TARGETS, domain_groups, target_matrix
+from surrogate3d.learn.pairs_table import TARGETS, domain_groups, feature_matrix, target_matrix
 
 RNG = np.random.default_rng(7)
 
@@ -89,29 +89,52 @@ def test_bad_input_is_named():
         apply_correction(np.ones((1, 2)), np.zeros((1, 2)), [0.1], [0], targets=TARGETS[:2])
 
 
-RIDGE_MISSES_CLEAR_SKY = pytest.mark.xfail(strict=True, reason=(
-    "known limitation: a global quadratic ridge fit cannot vanish on the few clear columns far from cloud "
-    "(about 3 % of the synthetic samples); it predicts about a quarter of the typical diffuse and TOA "
-    "correction there"))
+#: Synthetic features that are all zero only for a clear column whose 3 x 3 neighbourhood and
+#: up-sun neighbour are clear: the nearest cloud is at least two host columns away.
+CLEAR_SKY_GATE = ["cloud_fraction", "upsun_cloud_fraction", "neighbour_cloud_fraction"]
 
 
-@pytest.mark.parametrize("model", [pytest.param(RidgeCorrection(alpha=1.0, interactions=True),
-                                                marks=RIDGE_MISSES_CLEAR_SKY, id="ridge"),
-                                   pytest.param(BoostedCorrection(max_iter=60, min_samples_leaf=10), id="boosted")])
-def test_clear_columns_far_from_cloud_get_almost_no_correction(synthetic_pairs, model):
-    # Far from any cloud, 3D and independent-column fluxes agree (no shadow or cloud-side
-    # light reaches the column; common practice), and the synthetic relation is 0 there.
+@pytest.mark.parametrize("model", [RidgeCorrection(alpha=1.0, interactions=True, clear_sky_features=CLEAR_SKY_GATE),
+                                   BoostedCorrection(max_iter=60, min_samples_leaf=10,
+                                                     clear_sky_features=CLEAR_SKY_GATE)],
+                         ids=["ridge", "boosted"])
+def test_clear_columns_far_from_cloud_get_no_correction(synthetic_pairs, model):
+    # Physical rule: far from any cloud, 3D and independent-column fluxes agree, as no
+    # shadow or cloud-side light reaches the column (common practice: no cloud nearby, no
+    # 3D effect); the synthetic relation is 0 there up to exp(-2 km / 500 m).  The gate
+    # makes the correction exactly 0 there, also after the consistency step, whose
+    # energy-balance shift then falls on the cloudy columns of the domain.
     model.fit_pairs(synthetic_pairs)
-    names = list(synthetic_pairs["feature"].values)
-    X = synthetic_pairs["features"].values
-    far = (X[:, names.index("cloud_fraction")] == 0) & (X[:, names.index("upsun_cloud_fraction")] == 0) \
-        & (X[:, names.index("cloud_edge_distance")] >= 2000.0)
-    assert far.sum() > 50
-    clear = synthetic_pairs.isel(sample=np.flatnonzero(far))
-    assert np.abs(target_matrix(clear, TARGETS, "noise_free_target")).max() < 1.5e-3
-    out = apply_correction(target_matrix(clear, TARGETS, "independent_column_flux"), model.predict_pairs(clear),
-                           clear["surface_albedo"].values, domain_groups(clear), energy_balance=False)
-    typical = np.sqrt(np.mean(target_matrix(synthetic_pairs, TARGETS) ** 2, axis=0))
-    surface_and_toa = [TARGETS.index(t) for t in TARGETS[:4]]
-    rms = np.sqrt(np.mean(out.correction[:, surface_and_toa] ** 2, axis=0))
-    assert np.all(rms < 0.1 * typical[surface_and_toa])
+    X = feature_matrix(synthetic_pairs, model.feature_names_)
+    far = model.clear_sky_mask(X)
+    assert far.sum() > 30
+    truth = target_matrix(synthetic_pairs, TARGETS, "noise_free_target")
+    assert np.abs(truth[far]).max() < 1.5e-3
+    ica, albedo, groups = (target_matrix(synthetic_pairs, TARGETS, "independent_column_flux"),
+                           synthetic_pairs["surface_albedo"].values, domain_groups(synthetic_pairs))
+    predicted = model.predict_pairs(synthetic_pairs)
+    assert np.all(predicted[far] == 0.0)
+    out = apply_correction(ica, predicted, albedo, groups, clear_sky=far)
+    assert np.all(out.correction[far] == 0.0)
+    assert np.abs(_domain_means(energy_residual(out.correction, albedo), groups)).max() < 1e-15
+    # Elsewhere the gate changes nothing: the cloudy columns keep their skill.
+    typical = np.sqrt(np.mean(truth[~far] ** 2, axis=0))
+    rms = np.sqrt(np.mean((predicted[~far] - truth[~far]) ** 2, axis=0))
+    assert np.all(rms[:4] < 0.5 * typical[:4])
+
+
+def test_clear_sky_samples_keep_zero_through_every_step(synthetic_pairs):
+    ica, correction, albedo, groups = _inputs(synthetic_pairs, scale=0.05)
+    clear = RNG.uniform(size=groups.size) < 0.2
+    correction[clear] = 0.0
+    out = apply_correction(ica, correction + 0.01 * ~clear[:, None], albedo, groups, remove_domain_mean=True,
+                           clear_sky=clear)
+    assert np.all(out.correction[clear] == 0.0)
+    assert np.abs(_domain_means(energy_residual(out.correction, albedo), groups)).max() < 1e-15
+    unmarked = apply_correction(ica, correction, albedo, groups)
+    marked = apply_correction(ica, correction, albedo, groups, clear_sky=np.zeros(groups.size, dtype=bool))
+    np.testing.assert_array_equal(marked.correction, unmarked.correction)
+    with pytest.raises(ValidationError, match="correction must be 0 at the clear_sky samples"):
+        apply_correction(ica, correction + 0.01, albedo, groups, clear_sky=clear)
+    with pytest.raises(ValidationError, match="clear_sky must have"):
+        apply_correction(ica, correction, albedo, groups, clear_sky=clear[:-1])

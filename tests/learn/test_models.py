@@ -132,7 +132,8 @@ def test_boosted_is_reproducible():
 
 def test_scikit_learn_protocol():
     model = RidgeCorrection(alpha=2.0, interactions=True)
-    assert clone(model).get_params() == {"alpha": 2.0, "interactions": True, "interaction_features": None}
+    assert clone(model).get_params() == {"alpha": 2.0, "interactions": True, "interaction_features": None,
+                                         "clear_sky_features": None}
     assert model.set_params(alpha=0.5).alpha == 0.5
     with pytest.raises(NotFittedError):
         model.predict(np.zeros((2, 2)))
@@ -162,6 +163,10 @@ def test_scikit_learn_protocol():
     ("boosted", {"l2_regularization": -0.1}, ["l2_regularization"]),
     ("boosted", {"random_state": -3}, ["random_state"]),
     ("boosted", {"depth": 3}, ["depth", "allowed"]),
+    ("boosted", {"clear_sky_features": "cloud_fraction"}, ["clear_sky_features", "'cloud_fraction'"]),
+    ("ridge", {"clear_sky_features": ["a", "a"]}, ["clear_sky_features", "distinct"]),
+    ("ridge", {"clear_sky_features": ["a", 0]}, ["clear_sky_features"]),
+    ("boosted", {"clear_sky_features": [-2]}, ["clear_sky_features", ">= 0"]),
     ("forest", {}, ["kind", "'forest'"]),
 ])
 def test_bad_parameters_are_named(kind, params, words):
@@ -183,8 +188,10 @@ def test_fit_checks_parameters_and_arrays():
 
 
 @pytest.mark.filterwarnings("ignore::sklearn.exceptions.SkipTestWarning")
-@pytest.mark.parametrize("estimator", [RidgeCorrection(interactions=True), BoostedCorrection(max_iter=5)],
-                         ids=["ridge", "boosted"])
+@pytest.mark.parametrize("estimator", [RidgeCorrection(interactions=True), BoostedCorrection(max_iter=5),
+                                       RidgeCorrection(clear_sky_features=[0]),
+                                       BoostedCorrection(max_iter=5, clear_sky_features=[0])],
+                         ids=["ridge", "boosted", "gated-ridge", "gated-boosted"])
 def test_scikit_learn_estimator_checks(estimator):
     # scikit-learn's own API conformance checks (common practice for new estimators).
     from sklearn.utils.estimator_checks import check_estimator
@@ -207,3 +214,62 @@ def test_pairs_interface(synthetic_pairs):
     subset = BoostedCorrection(max_iter=10).fit_pairs(synthetic_pairs, features=["cloud_fraction"],
                                                       targets=["toa_upward_flux"])
     assert subset.predict_pairs(fewer).shape == (fewer.sizes["sample"], 1)
+
+
+def _gated_data(n=400):
+    # Columns 0 and 1 are "cloud amounts": a quarter of the samples have both exactly 0.
+    X = RNG.uniform(size=(n, 3))
+    X[: n // 4, :2] = 0.0
+    X[n // 4: n // 4 + 10, 0] = 0.0          # one gate feature zero is not enough
+    Y = np.column_stack([X[:, 0] + X[:, 1] * X[:, 2], 0.5 - X[:, 2]])
+    return X, Y, np.arange(n) < n // 4
+
+
+@pytest.mark.parametrize("model", [RidgeCorrection(alpha=0.1, interactions=True), BoostedCorrection(max_iter=30)],
+                         ids=["ridge", "boosted"])
+def test_clear_sky_gate_zeroes_gated_samples_only(model):
+    # No cloud in or near a column, no 3D effect (common practice): the gate predicts exactly 0
+    # there; elsewhere the gated model is the model fitted on the ungated samples alone.
+    X, Y, clear = _gated_data()
+    gated = clone(model).set_params(clear_sky_features=[0, 1]).fit(X, Y)
+    assert gated.clear_sky_indices_ == [0, 1] and gated.clear_sky_tolerance_ == 1e-9
+    np.testing.assert_array_equal(gated.clear_sky_mask(X), clear)
+    predicted = gated.predict(X)
+    assert np.all(predicted[clear] == 0.0) and np.all(predicted[~clear] != 0.0)
+    alone = clone(model).fit(X[~clear], Y[~clear])
+    np.testing.assert_array_equal(predicted[~clear], alone.predict(X[~clear]))
+    # |x| within the tolerance is zero; beyond it is not.
+    edge = X[:2].copy()
+    edge[0, 0], edge[1, 0] = -1e-9, 2e-9
+    assert gated.clear_sky_mask(edge).tolist() == [True, False]
+
+
+def test_fit_ignores_gated_samples():
+    # The targets of gated samples (noise around 0 in the benchmarks) cannot bend the fit.
+    X, Y, clear = _gated_data()
+    Y_other = Y.copy()
+    Y_other[clear] = RNG.normal(scale=10.0, size=Y[clear].shape)
+    for model in (RidgeCorrection(alpha=1.0, interactions=True, clear_sky_features=[1, 0]),
+                  BoostedCorrection(max_iter=20, clear_sky_features=[0, 1])):
+        a, b = clone(model).fit(X, Y), clone(model).fit(X, Y_other)
+        np.testing.assert_array_equal(a.predict(X), b.predict(X))
+    ridge = RidgeCorrection(clear_sky_features=[0, 1]).fit(X, Y)
+    np.testing.assert_array_equal(ridge.feature_mean_, X[~clear].mean(axis=0))
+
+
+def test_clear_sky_gate_by_name_and_errors(synthetic_pairs):
+    names = ["cloud_fraction", "upsun_cloud_fraction", "neighbour_cloud_fraction"]
+    model = BoostedCorrection(max_iter=5, clear_sky_features=names).fit_pairs(synthetic_pairs)
+    features = [str(f) for f in synthetic_pairs["feature"].values]
+    assert model.clear_sky_indices_ == [features.index(n) for n in names]
+    X, Y, _ = _gated_data(40)
+    with pytest.raises(ValidationError, match=r"clear_sky_features names \['liquid_path'\]"):
+        RidgeCorrection(clear_sky_features=["liquid_path"]).fit(X, Y, feature_names=["a", "b", "c"])
+    with pytest.raises(ValidationError, match="clear_sky_features names features .* no feature_names"):
+        RidgeCorrection(clear_sky_features=["a"]).fit(X, Y)
+    with pytest.raises(ValidationError, match="clear_sky_features holds column index 3; X has 3 columns"):
+        BoostedCorrection(clear_sky_features=[3]).fit(X, Y)
+    with pytest.raises(ValidationError, match="gate 40 of the 40 samples"):
+        RidgeCorrection(clear_sky_features=[0]).fit(np.zeros((40, 3)), Y)
+    ungated = RidgeCorrection(clear_sky_features=[]).fit(X, Y)
+    assert ungated.clear_sky_indices_ == [] and not ungated.clear_sky_mask(np.zeros((2, 3))).any()

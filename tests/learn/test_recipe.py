@@ -82,3 +82,28 @@ def test_interaction_features_is_one_value_or_a_grid_of_lists(synthetic_pairs, s
     unknown = parse_recipe(one.replace('"surface_albedo"]', '"liquid_path"]'))
     with pytest.raises(ValidationError, match=r"interaction_features names \['liquid_path'\]"):
         check_recipe_against_pairs(unknown, synthetic_pairs)
+
+
+def test_clear_sky_features_are_checked_against_the_pairs(synthetic_pairs, small_recipe):
+    gate = 'clear_sky_features = ["cloud_fraction", "neighbour_cloud_fraction"]'
+    text = small_recipe.replace("max_iter = 40", f"max_iter = 40\n{gate}").replace("interactions = true",
+                                                                                  f"interactions = true\n{gate}")
+    recipe = parse_recipe(text)
+    for spec in recipe.models:
+        assert {tuple(c["clear_sky_features"]) for c in spec.candidates()} == {("cloud_fraction",
+                                                                                "neighbour_cloud_fraction")}
+    check_recipe_against_pairs(recipe, synthetic_pairs)
+    unknown = parse_recipe(text.replace('"neighbour_cloud_fraction"]', '"cloud_cover_10km"]', 1))
+    with pytest.raises(ValidationError, match=r"\[models.ridge\] clear_sky_features names \['cloud_cover_10km'\]"):
+        check_recipe_against_pairs(unknown, synthetic_pairs)
+    with pytest.raises(ParameterError, match="clear_sky_features"):
+        parse_recipe(small_recipe.replace("max_iter = 40", 'max_iter = 40\nclear_sky_features = "cloud_fraction"'))
+
+
+def test_default_recipes_gate_both_models():
+    # The shipped recipes gate both models on the same features (docs/methods/models-and-metrics.md).
+    demo = Path(__file__).resolve().parents[2] / "surrogate3d" / "data" / "demo-recipe.toml"
+    for path in (DEFAULT, demo):
+        gates = [spec.grid["clear_sky_features"] for spec in read_recipe(path).models]
+        assert gates == [[["cloud_fraction", "neighbour_mean_cloud_fraction_10000m",
+                           "slant_minus_vertical_optical_depth"]]] * 2, path

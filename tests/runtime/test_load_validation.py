@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.errors import FormatError
-from surrogate3d.runtime import load_coefficients
+from surrogate3d.runtime import FORMAT_VERSION, load_coefficients
 from surrogate3d.runtime.document import PLAIN_LIMIT, decode_array, encode_array
 
 
@@ -46,7 +46,7 @@ def test_unchanged_files_load(tmp_path, contents):
 
 
 @pytest.mark.parametrize("change, message", [
-    (lambda c: c.update(format_version="2.0"), "format_version '2.0'; this version reads 1.0"),
+    (lambda c: c.update(format_version="2.0"), f"format_version '2.0'; this version reads {FORMAT_VERSION}"),
     (lambda c: c.update(format="something-else"), "not a surrogate3d coefficient file"),
     (lambda c: c.pop("provenance"), "lacks field 'provenance'"),
     (lambda c: c["model"].update(kind="forest"), "model.kind is 'forest'"),
@@ -130,6 +130,34 @@ def test_tree_structure_errors(tmp_path, contents):
     thresholds = _array(boosted, "boosted", "threshold_values")[::-1]
     with pytest.raises(FormatError, match="threshold_values must be strictly increasing"):
         _load(tmp_path, _with_array(boosted, "boosted", "threshold_values", thresholds))
+
+
+@pytest.mark.parametrize("gate, message", [
+    ({"feature_indices": [0, 99], "tolerance": 1e-9},
+     r"clear_sky_gate.feature_indices is not a feature index < \d+ at index 1: 99"),
+    ({"feature_indices": [-1], "tolerance": 1e-9}, "clear_sky_gate.feature_indices is not a feature index"),
+    ({"feature_indices": [1, 1], "tolerance": 1e-9}, "repeats an index"),
+    ({"feature_indices": [0.5], "tolerance": 1e-9}, "must be a list of integers"),
+    ({"feature_indices": [0], "tolerance": -1.0}, "clear_sky_gate.tolerance must be a finite number >= 0"),
+    ({"feature_indices": [0]}, "exactly feature_indices and tolerance"),
+    ([0, 1], "must be an object"),
+], ids=["index-too-large", "negative-index", "repeated", "not-integer", "tolerance", "no-tolerance", "not-object"])
+def test_clear_sky_gate_errors(tmp_path, contents, gate, message):
+    for content in contents.values():
+        changed = copy.deepcopy(content)
+        changed["clear_sky_gate"] = gate
+        with pytest.raises(FormatError, match=message):
+            _load(tmp_path, changed)
+
+
+def test_files_without_a_gate_load_without_one(tmp_path, contents):
+    # Files of format 1.0 have no clear_sky_gate field: same major version, so they load, ungated.
+    for content in contents.values():
+        older = copy.deepcopy(content)
+        del older["clear_sky_gate"]
+        older["format_version"] = "1.0"
+        model = _load(tmp_path, older)
+        assert model.clear_sky_features == [] and not model.clear_sky_mask(np.zeros((2, model.n_features))).any()
 
 
 def test_unreadable_files(tmp_path):

@@ -14,7 +14,7 @@ import pytest
 
 from surrogate3d.errors import ValidationError
 from surrogate3d.pairs.features import compute_features
-from surrogate3d.runtime import CorrectionModel, load_coefficients
+from surrogate3d.runtime import FORMAT_VERSION, CorrectionModel, load_coefficients
 
 HEAVY = ("sklearn", "xarray", "scipy", "numba", "joblib", "pandas", "h5py", "h5netcdf", "matplotlib", "dask")
 
@@ -57,6 +57,30 @@ def test_reproduces_trained_estimator(built, run, held_out_features, name):
 
 
 @pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_clear_sky_gate_is_applied(built, run, helpers, held_out_features, name):
+    # No cloud in or next to the column: no 3D effect, so exactly zero correction
+    # (common practice); the runtime applies the gate stored in the file as the estimator does.
+    model = load_coefficients(_json(built, name))
+    estimator = run.models[name].estimator
+    assert model.clear_sky_features == helpers.GATE
+    gated = model.clear_sky_mask(held_out_features)
+    columns = [model.feature_names.index(f) for f in helpers.GATE]
+    np.testing.assert_array_equal(gated, np.all(held_out_features[:, columns] == 0.0, axis=1))
+    np.testing.assert_array_equal(gated, estimator.clear_sky_mask(held_out_features))
+    assert 0 < gated.sum() < gated.size
+    got = model.predict(held_out_features)
+    assert np.all(got[gated] == 0.0) and np.all(np.any(got[~gated] != 0.0, axis=1))
+    # Ungated columns are the model's own prediction: the gate changes nothing else.
+    np.testing.assert_allclose(got[~gated], model._evaluator.predict(held_out_features[~gated]), rtol=0, atol=0)
+    # A gate feature just above the tolerance opens the gate.
+    nudged = held_out_features[gated][:3].copy()
+    nudged[:, columns[0]] = 2 * model.clear_sky_tolerance
+    assert not model.clear_sky_mask(nudged).any()
+    np.testing.assert_allclose(model.predict(nudged), estimator.predict(nudged), rtol=0,
+                               atol=1e-9 * np.abs(estimator.predict(held_out_features)).max())
+
+
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
 def test_predict_host_matches_feature_library(built, run, make_host_fields, name):
     model = load_coefficients(_json(built, name))
     fields = make_host_fields(seed=7)
@@ -93,5 +117,5 @@ def test_metadata_is_carried(built):
     assert isinstance(CorrectionModel.from_document(model.document), CorrectionModel)
     text = _json(built, "ridge").read_text()
     content = json.loads(text)
-    assert content["format_version"] == "1.0"
+    assert content["format_version"] == FORMAT_VERSION
     assert text == json.dumps(content, separators=(",", ":")) + "\n"          # compact separators

@@ -1,0 +1,22 @@
+"""Learned corrections as the report scores them: the clear-sky gate survives the consistency step."""
+
+import numpy as np
+
+from surrogate3d.evaluation.predictions import model_correction
+from surrogate3d.learn.consistency import energy_residual
+from surrogate3d.learn.models import RidgeCorrection
+from surrogate3d.learn.pairs_table import TARGETS, domain_groups, feature_matrix
+
+
+def test_gated_columns_stay_zero_after_the_consistency_step(synthetic_pairs):
+    # No cloud in or next to the column, no 3D effect (common practice): the energy balance
+    # of the domain (divergence theorem) is closed on the cloudy columns instead.
+    gate = ["cloud_fraction", "upsun_cloud_fraction", "neighbour_cloud_fraction"]
+    model = RidgeCorrection(interactions=True, clear_sky_features=gate).fit_pairs(synthetic_pairs)
+    clear = model.clear_sky_mask(feature_matrix(synthetic_pairs, model.feature_names_))
+    assert clear.any()
+    correction, outcome = model_correction(model, synthetic_pairs, TARGETS)
+    assert np.all(correction[clear] == 0.0) and outcome is not None
+    groups = domain_groups(synthetic_pairs)
+    residual = energy_residual(correction, synthetic_pairs["surface_albedo"].values)
+    assert np.abs(np.bincount(groups, weights=residual) / np.bincount(groups)).max() < 1e-15
