@@ -123,6 +123,16 @@ def read_scene(path, validate=True, results=True):
     return ds
 
 
+def read_result_flags(path):
+    """Only the stored-result flags of a scene file (``result_complete`` with its coordinates).
+
+    Enough for :func:`surrogate3d.archive.results.completed` and ``has_result`` without reading
+    the result fields; an empty Dataset when the file holds no results.
+    """
+    return open_dataset(path, what="scene file",
+                        keep=lambda ds: ds[["result_complete"]] if "result_complete" in ds else xr.Dataset())
+
+
 def scene_files(archive_dir):
     """Sorted scene files of an archive directory."""
     archive_dir = Path(archive_dir)

@@ -276,6 +276,22 @@ _GATE_TEST = """\
     end if"""
 
 
+def _batched_procedure(prefix):
+    """The many-columns procedure, the same for every model kind."""
+    return f"""\
+  !> Corrections of many columns: features(:, i) -> corrections(:, i).
+  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections)
+    type({prefix}_coefficients), intent(in) :: model
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: features({prefix}_n_features, n_columns)
+    real(real64), intent(out) :: corrections({prefix}_n_targets, n_columns)
+    integer :: i
+    do i = 1, n_columns
+      call {prefix}_correct_column(model, features(:, i), corrections(:, i))
+    end do
+  end subroutine {prefix}_correct_columns"""
+
+
 def _gate_reader(prefix):
     """Statements of the coefficient readers that read and check the clear-sky gate (after the model arrays)."""
     return f"""\
@@ -356,17 +372,7 @@ contains
     end do
   end subroutine {prefix}_correct_column
 
-  !> Corrections of many columns: features(:, i) -> corrections(:, i).
-  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections)
-    type({prefix}_coefficients), intent(in) :: model
-    integer, intent(in) :: n_columns
-    real(real64), intent(in) :: features({prefix}_n_features, n_columns)
-    real(real64), intent(out) :: corrections({prefix}_n_targets, n_columns)
-    integer :: i
-    do i = 1, n_columns
-      call {prefix}_correct_column(model, features(:, i), corrections(:, i))
-    end do
-  end subroutine {prefix}_correct_columns
+{_batched_procedure(prefix)}
 
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine {prefix}_read_coefficients(path, model, status, message)
@@ -469,17 +475,7 @@ contains
     end do
   end subroutine {prefix}_correct_column
 
-  !> Corrections of many columns: features(:, i) -> corrections(:, i).
-  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections)
-    type({prefix}_coefficients), intent(in) :: model
-    integer, intent(in) :: n_columns
-    real(real64), intent(in) :: features({prefix}_n_features, n_columns)
-    real(real64), intent(out) :: corrections({prefix}_n_targets, n_columns)
-    integer :: i
-    do i = 1, n_columns
-      call {prefix}_correct_column(model, features(:, i), corrections(:, i))
-    end do
-  end subroutine {prefix}_correct_columns
+{_batched_procedure(prefix)}
 
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine {prefix}_read_coefficients(path, model, status, message)

@@ -15,7 +15,7 @@ from pathlib import Path
 
 from tqdm.auto import tqdm
 
-from ..archive.netcdf import read_scene, scene_files
+from ..archive.netcdf import read_result_flags, read_scene, scene_files
 from ..archive.pending import merge_pending, write_pending
 from ..archive.results import SOLVERS, has_result
 from ..errors import ParameterError, Surrogate3DError
@@ -94,11 +94,12 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
     todo, done = [], 0
     for path in files:
         merge_pending(path)  # results an interrupted run left behind
-        scene = read_scene(path)  # every scene is validated before any work starts
+        read_scene(path, results=False)  # every scene is validated before any work starts
+        stored = read_result_flags(path)
         for zenith, azimuth in suns:
             tseed = task_seed(seed, path, zenith, azimuth)
             for solver in solvers:
-                if not overwrite and has_result(scene, solver, zenith, azimuth):
+                if not overwrite and has_result(stored, solver, zenith, azimuth):
                     done += 1
                     continue
                 todo.append(Task(str(path), solver, zenith, azimuth, tseed))
