@@ -6,9 +6,10 @@ prints: photons/s and scattering events/s per core, the parallel speed-up on all
 peak memory against the scene's own arrays, the domain-mean reflected, direct and diffuse
 surface fluxes, and the CPU seconds needed for a 0.5 % standard error of the surface
 downward flux averaged over 800 m host columns (8 x 8 cells), estimated from the spread
-of independent runs.
+of independent runs.  It also times the same scene refined to 50 m cells (every cell cut
+in 2 x 2 x 2), where the majorant blocks should keep the cost per photon nearly the same.
 
-Usage: python benchmarks/bench_montecarlo.py [--photons N] [--runs K] [--json FILE]
+Usage: python benchmarks/bench_montecarlo.py [--photons N] [--runs K] [--majorant-block B] [--json FILE]
 """
 
 import argparse
@@ -24,6 +25,7 @@ import xarray as xr
 
 from surrogate3d.archive import read_scene, write_scene
 from surrogate3d.scenes import make_scene
+from surrogate3d.scenes.model import spacing
 from surrogate3d.solvers import solve_monte_carlo
 
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "bench" / "bench_cumulus_128.nc"
@@ -40,9 +42,21 @@ def convert(path):
     return scene, float(ds.attrs["solar_zenith_angle_deg"]), float(ds.attrs["solar_azimuth_deg"])
 
 
-def timed(scene, zenith, azimuth, photons, seed, threads):
+def refined(scene):
+    """The scene with every cell cut into 2 x 2 x 2 (same optics, half the spacing)."""
+    def cut(name):
+        return np.repeat(np.repeat(np.repeat(scene[name].values, 2, axis=1), 2, axis=2), 2, axis=3)
+
+    z = scene["z_edge"].values
+    z2 = np.sort(np.concatenate([z, 0.5 * (z[1:] + z[:-1])]))
+    dx, dy = spacing(scene)
+    return make_scene(cut("extinction"), cut("single_scattering_albedo"), cut("asymmetry_parameter"), z2,
+                      dx / 2, dy / 2, surface_albedo=float(scene["surface_albedo"].values.mean()), band=["broadband"])
+
+
+def timed(scene, zenith, azimuth, photons, seed, threads, **options):
     t_cpu, t_wall = time.process_time(), time.perf_counter()
-    out = solve_monte_carlo(scene, zenith, azimuth, photons=photons, seed=seed, threads=threads)
+    out = solve_monte_carlo(scene, zenith, azimuth, photons=photons, seed=seed, threads=threads, **options)
     return out, time.process_time() - t_cpu, time.perf_counter() - t_wall
 
 
@@ -56,6 +70,7 @@ def main(argv=None):
     parser.add_argument("--scene", default=str(SHARED))
     parser.add_argument("--photons", type=int, default=1_000_000)
     parser.add_argument("--runs", type=int, default=6, help="independent runs for the noise estimate")
+    parser.add_argument("--majorant-block", type=int, default=None, help="cells per majorant block side")
     parser.add_argument("--json", metavar="FILE")
     args = parser.parse_args(argv)
 
@@ -65,14 +80,15 @@ def main(argv=None):
         scene = read_scene(Path(tmp) / "bench_cumulus_128.nc")
     scene_bytes = sum(scene[v].values.nbytes for v in ("extinction", "single_scattering_albedo",
                                                          "asymmetry_parameter"))
-    solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1)  # compile / load cache
+    opts = {} if args.majorant_block is None else {"majorant_block": args.majorant_block}
+    solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1, **opts)  # compile / load cache
     rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
-    one, cpu1, wall1 = timed(scene, zenith, azimuth, args.photons, 1, threads=1)
+    one, cpu1, wall1 = timed(scene, zenith, azimuth, args.photons, 1, 1, **opts)
     import numba
 
     cores = numba.config.NUMBA_NUM_THREADS
-    many, cpu_n, wall_n = timed(scene, zenith, azimuth, args.photons, 1, threads=cores)
+    many, cpu_n, wall_n = timed(scene, zenith, azimuth, args.photons, 1, cores, **opts)
     assert np.array_equal(one.toa_upward_flux.values, many.toa_upward_flux.values)
     photons = int(one.photons)
     events = int(one.scattering_events)
@@ -81,13 +97,17 @@ def main(argv=None):
     down = []
     run_cpu = []
     for k in range(args.runs):
-        out, cpu, _ = timed(scene, zenith, azimuth, args.photons, 100 + k, threads=1)
+        out, cpu, _ = timed(scene, zenith, azimuth, args.photons, 100 + k, 1, **opts)
         down.append(host_means(out.surface_downward_direct_flux.values + out.surface_downward_diffuse_flux.values))
         run_cpu.append(cpu)
     down = np.array(down)
     rel_se = down.std(axis=0, ddof=1) / down.mean(axis=0)
     rel_se_median = float(np.median(rel_se))
     cpu_for_half_percent = float(np.mean(run_cpu) * (rel_se_median / 0.005) ** 2)
+
+    fine = refined(scene)
+    _, _, wall_fine = timed(fine, zenith, azimuth, args.photons, 1, 1, **opts)
+    del fine
 
     figures = {
         "scene": Path(args.scene).name,
@@ -98,6 +118,7 @@ def main(argv=None):
         "photons_per_cpu_second": photons / cpu1,
         "scattering_events_per_photon": events / photons,
         "scattering_events_per_second_per_core": events / wall1,
+        "photons_per_second_per_core_refined_50m": photons / wall_fine,
         "cores": cores,
         "parallel_speedup": wall1 / wall_n,
         "peak_memory_over_scene_arrays": (rss_after - rss_before + scene_bytes) / scene_bytes

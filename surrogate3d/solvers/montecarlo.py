@@ -22,7 +22,9 @@ from .sun import beam_direction, check_sun
 SOLAR_CONSTANT = 1361.0
 #: Batches per parallel wave; fixed so results do not depend on the thread count.
 WAVE = 8
-#: Largest clear-air cube radius (cells) and layers per block of the per-ray source tables.
+#: Cells per side of the majorant blocks, largest clear-air cube radius (blocks), and
+#: layers per block of the per-ray source tables.
+DEFAULT_MAJORANT_BLOCK = 1
 DEFAULT_CLEAR_CUBE = 8
 RAY_TABLE_LAYERS = 4
 
@@ -61,47 +63,96 @@ def default_batch_size(photons):
 CLEAR_CELL_OPTICAL_THICKNESS = 0.01
 
 
-def clear_air_cubes(ext, z_edge, dx, dy, max_radius):
-    """Radius of the clear-air cube around every cell, for one-step crossings.
+def cube_radius(clear, max_radius):
+    """Radius of the all-clear cube around every cell of a boolean grid.
 
-    A cell is clear where its optical thickness across its smallest size is at most
-    :data:`CLEAR_CELL_OPTICAL_THICKNESS`.  ``skip[b, k, j, i] = r`` says that every cell
-    within ``r`` cells of (k, j, i) in each index direction (periodic in x and y, cut at
-    the bottom and top) is clear, so the photon can cross that cube in one step tracked
-    against the largest clear-air extinction ``kclear[b]``.
+    ``radius[b, k, j, i] = r`` says that every cell within ``r`` cells of (k, j, i) in each
+    index direction (periodic in the last two axes, cut at the first axis' ends) is clear.
 
     Parameters
     ----------
-    ext : ndarray (nband, nz, ny, nx)
-        Extinction [m-1].
-    z_edge : ndarray (nz + 1,)
-        Layer edges [m].
-    dx, dy : float
-        Cell size [m].
+    clear : bool ndarray (nband, nz, ny, nx)
     max_radius : int
-        Largest cube radius (cells), at least 0; capped so that a cube fits in the domain.
+        Largest radius, at least 0; capped so that a cube fits in the grid.
 
     Returns
     -------
-    skip : uint8 (nband, nz, ny, nx)
-    kclear : float64 (nband,)
-        Largest extinction of the clear cells [m-1].
+    uint8 ndarray like ``clear``
     """
-    nb, nz, ny, nx = ext.shape
-    size = np.minimum(np.minimum(dx, dy), np.diff(z_edge))[None, :, None, None]
-    clear = ext * size <= CLEAR_CELL_OPTICAL_THICKNESS
-    kclear = np.array([ext[b][clear[b]].max() if clear[b].any() else 0.0 for b in range(nb)])
-    radius = int(min(max_radius, (min(nx, ny) - 1) // 2, 255))
-    skip = np.zeros(ext.shape, dtype=np.uint8)
+    ny, nx = clear.shape[2], clear.shape[3]
+    radius = np.zeros(clear.shape, dtype=np.uint8)
     grown = ~clear
-    for r in range(1, radius + 1):
+    for r in range(1, int(min(max_radius, (min(nx, ny) - 1) // 2, 255)) + 1):
         near = grown | np.roll(grown, 1, axis=3) | np.roll(grown, -1, axis=3)
         near = near | np.roll(near, 1, axis=2) | np.roll(near, -1, axis=2)
         up, down = np.zeros_like(near), np.zeros_like(near)
         up[:, 1:], down[:, :-1] = near[:, :-1], near[:, 1:]
         grown = near | up | down
-        skip[~grown] = r
-    return skip, kclear
+        radius[~grown] = r
+    return radius
+
+
+def _largest_divisor(n, at_most):
+    return max(d for d in range(1, max(1, at_most) + 1) if n % d == 0)
+
+
+def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
+    """The grid of majorant blocks the 3D photons are tracked on.
+
+    Blocks are ``bx x by`` columns (the largest divisors of nx and ny not above
+    ``block``) by ``block`` layers (the top block may be thinner).  A cell is clear air
+    where its optical thickness across its smallest size is at most
+    :data:`CLEAR_CELL_OPTICAL_THICKNESS`, and a block is clear where all its cells are.
+
+    Parameters
+    ----------
+    kext : float32 ndarray (nband, nz, ny, nx)
+        Extinction [m-1].
+    z_edge : ndarray (nz + 1,)
+        Layer edges [m].
+    dx, dy : float
+        Cell size [m].
+    block : int
+        Cells per block side, >= 1.
+    max_radius : int
+        Largest radius (blocks) of the clear cubes crossed in one step, >= 0.
+
+    Returns
+    -------
+    kmaj : float32 (nband, nbz, nby, nbx)
+        Largest extinction in every block [m-1].
+    bskip : uint8 (nband, nbz, nby, nbx)
+        Radius of the cube of clear blocks around every block (:func:`cube_radius`).
+    kclear : float64 (nband,)
+        Largest extinction of the clear cells [m-1].
+    bx, by : int
+        Columns per block along x and y.
+    bedge : int64 (nbz + 1,)
+        Layer index of every block's bottom edge, then ``nz``.
+    clear_below, clear_above : int64 (nband,)
+        Block rows below ``clear_below`` and from ``clear_above`` up are clear in every
+        column (the clear slabs under the lowest and over the highest cloud).
+    """
+    nb, nz, ny, nx = kext.shape
+    bx, by = _largest_divisor(nx, block), _largest_divisor(ny, block)
+    bedge = np.minimum(np.arange(-(-nz // block) + 1) * block, nz).astype(np.int64)
+    nbz = bedge.size - 1
+    size = np.minimum(np.minimum(dx, dy), np.diff(z_edge))[None, :, None, None]
+    clear = kext * size <= CLEAR_CELL_OPTICAL_THICKNESS
+    kclear = np.array([kext[b][clear[b]].max() if clear[b].any() else 0.0 for b in range(nb)], dtype=np.float64)
+    pad = ((0, 0), (0, nbz * block - nz), (0, 0), (0, 0))
+    shape = (nb, nbz, block, ny // by, by, nx // bx, bx)
+    kmaj = np.pad(kext, pad).reshape(shape).max(axis=(2, 4, 6)).astype(np.float32)
+    bclear = np.pad(clear, pad, constant_values=True).reshape(shape).all(axis=(2, 4, 6))
+    row_clear = bclear.all(axis=(2, 3))
+    clear_below = np.array([np.argmin(np.append(rows, False)) for rows in row_clear], dtype=np.int64)
+    clear_above = np.array([nbz - np.argmin(np.append(rows[::-1], False)) for rows in row_clear], dtype=np.int64)
+    return kmaj, cube_radius(bclear, max_radius), kclear, bx, by, bedge, clear_below, clear_above
+
+
+def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge):
+    """:func:`majorant_blocks` packed in the order the 3D kernel unpacks it."""
+    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, bskip, kclear, clear_below, clear_above)
 
 
 def _ray_table_edges(nz, layers):
@@ -160,7 +211,8 @@ def _arrays(scene):
 
 def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=1_000_000, seed=0,
                       independent_columns=False, batch_size=None, rays_per_column=2, threads=None,
-                      per_band=False, solar_constant=SOLAR_CONSTANT, clear_cube=DEFAULT_CLEAR_CUBE,
+                      per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=DEFAULT_MAJORANT_BLOCK,
+                      clear_cube=DEFAULT_CLEAR_CUBE,
                       roulette_weight=0.1, max_scattering_events=100_000, progress=None):
     """Broadband (and per-band) solar fluxes of a scene by Monte Carlo.
 
@@ -191,9 +243,12 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         Also return the column fluxes of every band (fractions of the band's incident flux).
     solar_constant : float
         [W m-2], used for W m-2 conversions and heating rates (default 1361, Kopp and Lean 2011).
+    majorant_block : int
+        Cells per side of the majorant blocks of delta tracking (3D mode), in [1, 64];
+        1 tracks against every cell's own extinction.  Only the cost depends on it.
     clear_cube : int
-        Largest radius (cells) of the clear-air cubes a photon crosses in one step (3D
-        mode), >= 0; 0 walks every cell.  Only the cost depends on it.
+        Largest radius (blocks) of the cubes of clear-air blocks a photon crosses in one
+        step (3D mode), in [0, 255]; 0 crosses every block.  Only the cost depends on it.
     roulette_weight : float
         Photon weight, relative to the starting weight, below which Russian roulette replaces
         absorption by weight; in (0, 1].
@@ -237,6 +292,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     roulette = _check_float("roulette_weight", roulette_weight, 0.0, 1.0, low_open=True)
     max_events = _check_int("max_scattering_events", max_scattering_events, 1)
     solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
+    block = _check_int("majorant_block", majorant_block, 1, 64)
     clear_cube = _check_int("clear_cube", clear_cube, 0, 255)
 
     started = time.perf_counter()
@@ -252,11 +308,12 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     if independent_columns:
         absorbed, surface, source = direct_beam_column(ext, ssa, alb, z_edge, mu0)
         nsub_used = 1
-        skip, kclear = np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb)
+        grid = _majorant_grid(np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb),
+                              1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge)
         czi = np.zeros(2, np.int64)
         ray_cum = ray_trans = np.zeros((nb, 1, 1))
     else:
-        skip, kclear = clear_air_cubes(ext.astype(np.float32), z_edge, dx, dy, clear_cube)
+        grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge)
         czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
         absorbed, surface, source, ray_cum, ray_trans = _geometry.direct_beam_3d(
             ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi)
@@ -283,7 +340,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                 n = min(chunk, n_batches - first)
                 events += _transport.run_batches(
                     first, n, WAVE, not independent_columns, seed, batch_size, cdf, safe_w, nrays,
-                    kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, skip, kclear, czi,
+                    kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, grid, czi,
                     ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum)
                 if progress is not None:
                     progress((first + n) * batch_size)

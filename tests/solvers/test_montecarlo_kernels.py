@@ -69,9 +69,24 @@ def test_rotation_keeps_unit_length_and_angle():
         u = rng.normal(size=3)
         u /= np.linalg.norm(u)
         mu, phi = rng.uniform(-1, 1), rng.uniform(0, 2 * np.pi)
-        v = np.array(_transport.rotate(u[0], u[1], u[2], mu, phi))
+        v = np.array(_transport.rotate(u[0], u[1], u[2], mu, math.cos(phi), math.sin(phi)))
         assert abs(np.linalg.norm(v) - 1) < 1e-12
         assert abs(v @ u - mu) < 1e-9  # the scattering angle is kept (geometry)
+
+
+def test_random_azimuth_is_uniform_on_the_circle():
+    # von Neumann (1951): (a^2 - b^2, 2ab) / (a^2 + b^2) for (a, b) uniform in the unit disk is
+    # (cos, sin) of a uniform angle.  Check unit length, E[cos] = E[sin] = 0, E[cos^2] = 1/2
+    # and a flat histogram of the angle.
+    state = _rng.new_state()
+    _rng.seed_stream(state, 9, 0)
+    cs = np.array([_transport.random_azimuth(state) for _ in range(40000)])
+    np.testing.assert_allclose(np.hypot(cs[:, 0], cs[:, 1]), 1.0, atol=1e-12)
+    se = math.sqrt(0.5 / cs.shape[0])
+    assert abs(cs[:, 0].mean()) < 5 * se and abs(cs[:, 1].mean()) < 5 * se
+    assert abs((cs[:, 0] ** 2).mean() - 0.5) < 0.01
+    hist, _ = np.histogram(np.arctan2(cs[:, 1], cs[:, 0]), bins=16, range=(-math.pi, math.pi))
+    np.testing.assert_allclose(hist, cs.shape[0] / 16, rtol=0.08)
 
 
 def _brute_force_tau(ext, z_edge, dx, dy, x0, y0, u, n=200000):
@@ -160,25 +175,73 @@ def test_sampled_first_scatter_points_follow_the_direct_beam_source():
     np.testing.assert_allclose(counts / n, expected / expected.sum(), atol=3e-3)
 
 
-def test_clear_air_cubes_match_brute_force():
-    from surrogate3d.solvers.montecarlo import clear_air_cubes
+def test_cube_radius_matches_brute_force():
+    from surrogate3d.solvers.montecarlo import cube_radius
 
     rng = np.random.default_rng(4)
-    ext = np.where(rng.random((1, 6, 9, 11)) < 0.04, 0.02, 1e-5)
-    z_edge = np.linspace(0.0, 600.0, 7)
-    skip, kclear = clear_air_cubes(ext, z_edge, 100.0, 100.0, 4)
-    assert kclear[0] == 1e-5
-    clear = ext[0] * 100.0 <= 0.01
-    nz, ny, nx = clear.shape
+    clear = rng.random((1, 6, 9, 11)) >= 0.04
+    radius = cube_radius(clear, 4)
+    nz, ny, nx = clear.shape[1:]
     for iz in range(nz):
         for iy in range(ny):
             for ix in range(nx):
                 best = 0
                 for r in range(1, 5):  # the cube of radius r, periodic in x and y, cut in z
                     zs = range(max(iz - r, 0), min(iz + r, nz - 1) + 1)
-                    if all(clear[k, (iy + j) % ny, (ix + i) % nx] for k in zs for j in range(-r, r + 1)
+                    if all(clear[0, k, (iy + j) % ny, (ix + i) % nx] for k in zs for j in range(-r, r + 1)
                            for i in range(-r, r + 1)):
                         best = r
                     else:
                         break
-                assert skip[0, iz, iy, ix] == best, (iz, iy, ix)
+                assert radius[0, iz, iy, ix] == best, (iz, iy, ix)
+
+
+def test_majorant_blocks_bound_every_cell_and_find_the_clear_slabs():
+    from surrogate3d.solvers.montecarlo import majorant_blocks
+
+    rng = np.random.default_rng(8)
+    ext = np.full((2, 10, 6, 9), 1e-5, np.float32)
+    ext[:, 3:7] = np.where(rng.random((2, 4, 6, 9)) < 0.2, rng.uniform(0.005, 0.03, (2, 4, 6, 9)), 1e-5)
+    ext[1, 8, 2, 2] = 0.02
+    z_edge = np.linspace(0.0, 1000.0, 11)
+    kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, 4, 2)
+    assert (bx, by) == (3, 3) and list(bedge) == [0, 4, 8, 10]
+    for b in range(2):
+        for kz in range(3):
+            for j in range(2):
+                for i in range(3):
+                    cells = ext[b, bedge[kz]:bedge[kz + 1], j * 3:(j + 1) * 3, i * 3:(i + 1) * 3]
+                    assert kmaj[b, kz, j, i] == cells.max()  # a majorant, and the tightest one
+    np.testing.assert_array_equal(kclear, [np.float32(1e-5)] * 2)
+    # Band 0: clouds in layers 3-6 only, i.e. block rows 0 and 1; band 1 also in row 2.
+    assert list(below) == [0, 0] and list(above) == [2, 3]
+
+
+def test_delta_tracking_free_paths_follow_beer_lambert():
+    # Photons launched straight up through a column of layers, absorbed at their first real
+    # collision, must be absorbed in layer k with probability exp(-tau_above_k) (1 - exp(-tau_k))
+    # and escape with exp(-tau) (Beer-Lambert law), whatever the majorant blocks (Woodcock et al. 1965).
+    from surrogate3d.solvers.montecarlo import majorant_blocks
+
+    ext = np.zeros((1, 6, 4, 4), np.float32)
+    ext[0, :, :, :] = np.array([0.002, 0.0001, 0.004, 0.001, 0.003, 0.0])[:, None, None]
+    ext[0, :, 1, 2] *= 0.3  # heterogeneous blocks, so null collisions happen
+    z_edge = np.array([0.0, 100.0, 300.0, 400.0, 700.0, 800.0, 1000.0])
+    ssa_g = np.zeros(ext.shape + (2,), np.float32)  # black cells: the first real collision absorbs
+    alb = np.zeros((1, 4, 4))
+    dz = np.diff(z_edge)
+    tau = ext[0, :, 0, 0].astype(float) * dz
+    expected = np.append(np.exp(-np.concatenate([[0.0], np.cumsum(tau)[:-1]])) * -np.expm1(-tau), np.exp(-tau.sum()))
+    for block, cube in [(1, 0), (2, 1), (4, 2)]:
+        kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, block, cube)
+        grid = (bx, by, bedge, z_edge[bedge], kmaj, bskip, kclear, below, above)
+        col, cell = np.zeros((1, 5, 4, 4)), np.zeros((6, 4, 4))
+        state = _rng.new_state()
+        _rng.seed_stream(state, 3, block)
+        n = 20000
+        for _ in range(n):
+            _transport.transport_3d(state, 0, 1.0 / n, 50.0, 50.0, 0.0, 0.0, 0.0, 1.0, ext, ssa_g, alb, z_edge,
+                                    100.0, 100.0, grid, 0, 0, 0, 0.0, 10, col, cell)
+        got = np.append(cell[:, 0, 0], col[0, _transport.TOA_UP, 0, 0])
+        np.testing.assert_allclose(got, expected, atol=4 * math.sqrt(0.25 / n))
+        assert abs(got.sum() - 1.0) < 1e-12
