@@ -195,6 +195,27 @@ def _block_in(z, zb, lo, hi):
     return ib
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events, max_events, ux, uy, uz, col, cell):
+    """A tentative collision of delta tracking in cell (iz, iy, ix): null with probability
+    ``1 - k / k_major``, else real (absorption and scattering by :func:`_collide`).
+
+    Returns ``(real, alive, w, ux, uy, uz)``.
+    """
+    kf = kext[b, iz, iy, ix]
+    if kf < k_major and uniform(state) * k_major >= kf:
+        return False, True, w, ux, uy, uz
+    alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1], iz, iy, ix, b,
+                                    thresh, events + 1, max_events, ux, uy, uz, col, cell)
+    return True, alive, w, ux, uy, uz
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _fine_cell(x, ib, b_cells, inv_d):
+    # The cell under x, kept inside block ib against round-off.
+    return _clamp(int(x * inv_d), ib * b_cells, ib * b_cells + b_cells - 1)
+
+
 @njit(cache=True, error_model="numpy")
 def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid, ix, iy, iz,
                  thresh, max_events, col, cell):
@@ -248,20 +269,17 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
             y = _wrap_far(y + s * uy, ly)
             ibx = min(int(x * inv_bdx), nbx - 1)
             iby = min(int(y * inv_bdy), nby - 1)
-            ix = _clamp(int(x * inv_dx), ibx * bx, ibx * bx + bx - 1)
-            iy = _clamp(int(y * inv_dy), iby * by, iby * by + by - 1)
+            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
             if s < t:
                 ibz = _block_in(z, zb, z_lo, z_hi)
                 iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-                kf = kext[b, iz, iy, ix]
-                if kf < kc and uniform(state) * kc >= kf:
-                    continue  # null collision
-                events += 1
-                alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
-                                                iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell)
-                if not alive:
-                    return events
-                iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
+                real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
+                                                        max_events, ux, uy, uz, col, cell)
+                if real:
+                    events += 1
+                    if not alive:
+                        return events
+                    iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
                 continue
             if uz > 0.0:
                 if z_hi == nbz - 1:
@@ -311,18 +329,15 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                 ibx = min(int(x * inv_bdx), nbx - 1)
                 iby = min(int(y * inv_bdy), nby - 1)
                 ibz = _block_in(z, zb, z_lo, z_hi)
-            ix = _clamp(int(x * inv_dx), ibx * bx, ibx * bx + bx - 1)
-            iy = _clamp(int(y * inv_dy), iby * by, iby * by + by - 1)
+            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
             iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-            kf = kext[b, iz, iy, ix]
-            if kf < k_major and uniform(state) * k_major >= kf:
-                continue  # null collision
-            events += 1
-            alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1],
-                                            iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell)
-            if not alive:
-                return events
-            iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
+            real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events,
+                                                    max_events, ux, uy, uz, col, cell)
+            if real:
+                events += 1
+                if not alive:
+                    return events
+                iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
             continue
         # --- across a face of the block (or cube) into the next one
         tau -= k_major * t
@@ -373,8 +388,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
             iby += nby
             y += ly
         if ibz == nbz or ibz < 0:
-            ix = _clamp(int(x * inv_dx), ibx * bx, ibx * bx + bx - 1)
-            iy = _clamp(int(y * inv_dy), iby * by, iby * by + by - 1)
+            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
             if ibz == nbz:
                 col[b, TOA_UP, iy, ix] += w
                 return events
