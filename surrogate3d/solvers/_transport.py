@@ -99,16 +99,6 @@ def _not_flat(uz):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _cell_index(pos, step, lo, hi):
-    i = int(pos / step)
-    if i < lo:
-        return lo
-    if i > hi:
-        return hi
-    return i
-
-
-@njit(cache=True, inline="always", error_model="numpy")
 def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell):
     """Absorption (by weight, or roulette) and Henyey-Greenstein scattering.
 
@@ -193,6 +183,33 @@ def _block_in(z, zb, lo, hi):
     while ib < hi and z >= zb[ib + 1]:
         ib += 1
     return ib
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _leave_cube(u, ib, r, size):
+    """Block index and face coordinate after leaving the cube of radius ``r`` around
+    block ``ib`` along an axis of direction cosine ``u`` (block size ``size``)."""
+    if u > 0.0:
+        ib += r + 1
+        return ib, ib * size
+    ib -= r + 1
+    return ib, (ib + 1) * size
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _block_near(pos, inv_size, ib, r):
+    # The block under pos, kept inside the cube of radius r around ib against round-off.
+    return _clamp(int(math.floor(pos * inv_size)), ib - r, ib + r)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _periodic(ib, pos, n, length):
+    # Back into the periodic domain: a cube is at most half the domain, so one shift does.
+    if ib >= n:
+        return ib - n, pos - length
+    if ib < 0:
+        return ib + n, pos + length
+    return ib, pos
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -345,48 +362,27 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
         y += t * uy
         z += t * uz
         if tx <= ty and tx <= tz:
-            if ux > 0.0:
-                ibx += r + 1
-                x = ibx * bdx
-            else:
-                ibx -= r + 1
-                x = (ibx + 1) * bdx
+            ibx, x = _leave_cube(ux, ibx, r, bdx)
             if r > 0:
-                iby = _clamp(int(math.floor(y * inv_bdy)), iby - r, iby + r)
+                iby = _block_near(y, inv_bdy, iby, r)
                 ibz = _block_in(z, zb, z_lo, z_hi)
         elif ty <= tz:
-            if uy > 0.0:
-                iby += r + 1
-                y = iby * bdy
-            else:
-                iby -= r + 1
-                y = (iby + 1) * bdy
+            iby, y = _leave_cube(uy, iby, r, bdy)
             if r > 0:
-                ibx = _clamp(int(math.floor(x * inv_bdx)), ibx - r, ibx + r)
+                ibx = _block_near(x, inv_bdx, ibx, r)
                 ibz = _block_in(z, zb, z_lo, z_hi)
         else:
             if r > 0:
-                ibx = _clamp(int(math.floor(x * inv_bdx)), ibx - r, ibx + r)
-                iby = _clamp(int(math.floor(y * inv_bdy)), iby - r, iby + r)
+                ibx = _block_near(x, inv_bdx, ibx, r)
+                iby = _block_near(y, inv_bdy, iby, r)
             if uz > 0.0:
                 ibz = z_hi + 1
                 z = zb[ibz]
             else:
                 ibz = z_lo - 1
                 z = zb[z_lo]
-        # back into the periodic domain
-        if ibx >= nbx:
-            ibx -= nbx
-            x -= lx
-        elif ibx < 0:
-            ibx += nbx
-            x += lx
-        if iby >= nby:
-            iby -= nby
-            y -= ly
-        elif iby < 0:
-            iby += nby
-            y += ly
+        ibx, x = _periodic(ibx, x, nbx, lx)
+        iby, y = _periodic(iby, y, nby, ly)
         if ibz == nbz or ibz < 0:
             ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
             if ibz == nbz:
