@@ -24,7 +24,7 @@ Column tallies, per band: 0 upward at the top, 1 diffuse downward at the surface
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import get_thread_id, njit, prange
 
 from ._geometry import locate_source_3d, locate_source_column
 from ._rng import seed_stream, uniform, uniform_open
@@ -77,8 +77,9 @@ def rotate(ux, uy, uz, mu, cp, sp):
     nx = f * (ux * uz * cp - uy * sp) + ux * mu
     ny = f * (uy * uz * cp + ux * sp) + uy * mu
     nz = -sint * cp * den + uz * mu
-    norm = 1.0 / math.sqrt(nx * nx + ny * ny + nz * nz)
-    return nx * norm, ny * norm, nz * norm
+    # No renormalisation: rounding changes |u| by a random walk of ~1e-16 per event,
+    # and a square root and a division here would lengthen every collision.
+    return nx, ny, nz
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -99,24 +100,31 @@ def _not_flat(uz):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell):
+def _deposit(cell, scale, iz, iy, ix, a):
+    # Fixed point: integer sums do not depend on the order of the deposits, so every thread
+    # can keep one tally array and the total is the same for any number of threads.
+    cell[iz, iy, ix] += np.int64(a * scale + 0.5)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell, scale):
     """Absorption (by weight, or roulette) and Henyey-Greenstein scattering.
 
     Returns ``(alive, w, ux, uy, uz)``.
     """
     if w >= thresh and om <= WEIGHTED_ABSORPTION_MAX_ALBEDO:
         a = w * (1.0 - om)
-        cell[iz, iy, ix] += a
+        _deposit(cell, scale, iz, iy, ix, a)
         col[b, ATM_ABS, iy, ix] += a
         w -= a
         if w <= 0.0:
             return False, w, ux, uy, uz
     elif uniform(state) >= om:
-        cell[iz, iy, ix] += w
+        _deposit(cell, scale, iz, iy, ix, w)
         col[b, ATM_ABS, iy, ix] += w
         return False, w, ux, uy, uz
     if events >= max_events:
-        cell[iz, iy, ix] += w
+        _deposit(cell, scale, iz, iy, ix, w)
         col[b, ATM_ABS, iy, ix] += w
         return False, w, ux, uy, uz
     mu = hg_cosine(g, uniform(state))
@@ -213,7 +221,7 @@ def _periodic(ib, pos, n, length):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events, max_events, ux, uy, uz, col, cell):
+def _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events, max_events, ux, uy, uz, col, cell, scale):
     """A tentative collision of delta tracking in cell (iz, iy, ix): null with probability
     ``1 - k / k_major``, else real (absorption and scattering by :func:`_collide`).
 
@@ -223,7 +231,7 @@ def _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events, ma
     if kf < k_major and uniform(state) * k_major >= kf:
         return False, True, w, ux, uy, uz
     alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1], iz, iy, ix, b,
-                                    thresh, events + 1, max_events, ux, uy, uz, col, cell)
+                                    thresh, events + 1, max_events, ux, uy, uz, col, cell, scale)
     return True, alive, w, ux, uy, uz
 
 
@@ -233,9 +241,46 @@ def _fine_cell(x, ib, b_cells, inv_d):
     return _clamp(int(x * inv_d), ib * b_cells, ib * b_cells + b_cells - 1)
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def _boundary(state, w, b, iy, ix, up, thresh, alb, col):
+    """A photon reaching the top (tallied, gone) or the surface (:func:`_surface`, and a
+    Lambertian direction if reflected).  Returns ``(alive, w, ux, uy, uz)``."""
+    if up:
+        col[b, TOA_UP, iy, ix] += w
+        return False, w, 0.0, 0.0, 1.0
+    alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
+    if not alive:
+        return False, w, 0.0, 0.0, 1.0
+    ux, uy, uz = lambertian_up(state)
+    return True, w, ux, uy, uz
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _cross(u, ib, size, n, length):
+    """Block index and face coordinate after crossing a face of block ``ib`` (periodic)."""
+    if u > 0.0:
+        ib += 1
+        if ib == n:
+            return 0, 0.0
+        return ib, ib * size
+    if ib == 0:
+        return n - 1, length
+    return ib - 1, ib * size
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _face_distance(u, iu, ib, r, size, pos):
+    # Distance along the flight to the face of the cube of radius r around block ib.
+    if u > 0.0:
+        return ((ib + r + 1) * size - pos) * iu
+    if u < 0.0:
+        return ((ib - r) * size - pos) * iu
+    return math.inf
+
+
 @njit(cache=True, error_model="numpy")
 def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid, ix, iy, iz,
-                 thresh, max_events, col, cell):
+                 thresh, max_events, col, cell, scale):
     """Trace one photon in 3D from (x, y, z) in cell (iz, iy, ix); returns its scattering events.
 
     ``grid`` is the majorant grid ``(bx, by, bedge, zb, kmaj, bskip, kclear, clear_below,
@@ -243,22 +288,25 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
     majorant blocks of ``bx x by`` columns and the layers ``bedge[k] .. bedge[k + 1] - 1``
     (block top heights ``zb``): inside block (k, j, i) tentative collisions come at rate
     ``kmaj[b, k, j, i]``, the largest extinction in the block, and are real with
-    probability ``kext / kmaj``, which is exact (Villefranque et al. 2019).  Where
-    ``bskip[b, k, j, i] = r > 0`` every block within ``r`` blocks is clear air, and the
-    photon crosses that cube of blocks in one step at rate ``kclear[b]``.  Block rows below
-    ``clear_below[b]`` and from ``clear_above[b]`` up are clear air in every column: the
-    photon crosses such a slab in one step, whatever its horizontal travel.
+    probability ``kext / kmaj``, which is exact (Villefranque et al. 2019).  With blocks
+    of one cell every tentative collision is real, and the walk is a plain cell-by-cell
+    traversal.  Where ``bskip[b, k, j, i] = r > 0`` every block within ``r`` blocks is
+    clear air, and the photon crosses that cube of blocks in one step at rate
+    ``kclear[b]``.  Block rows below ``clear_below[b]`` and from ``clear_above[b]`` up are
+    clear air in every column: the photon crosses such a slab in one step, whatever its
+    horizontal travel.
 
     ``kext`` is the float32 extinction (nband, nz, ny, nx), kept apart from the float32
     (nband, nz, ny, nx, 2) single-scattering albedo and asymmetry ``ssa_g`` that only real
     collisions need, so that tracking touches as little memory as possible.
     """
     bx, by, bedge, zb, kmaj, bskip, kclear, clear_below, clear_above = grid
-    nz, ny, nx = kext.shape[1], kext.shape[2], kext.shape[3]
+    nz = kext.shape[1]
     nbz, nby, nbx = kmaj.shape[1], kmaj.shape[2], kmaj.shape[3]
+    cell_walk = bx == 1 and by == 1 and nbz == nz
     bdx, bdy = bx * dx, by * dy
     inv_dx, inv_dy, inv_bdx, inv_bdy = 1.0 / dx, 1.0 / dy, 1.0 / bdx, 1.0 / bdy
-    lx, ly = nx * dx, ny * dy
+    lx, ly = nbx * bdx, nby * bdy
     ibx, iby = ix // bx, iy // by
     ibz = 0
     while bedge[ibz + 1] <= iz:
@@ -270,10 +318,63 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
     kc = kclear[b]
     slab_lo, slab_hi = clear_below[b], clear_above[b]
     while True:
-        if ibz < slab_lo or ibz >= slab_hi:
+        in_slab = ibz < slab_lo or ibz >= slab_hi
+        r = 0 if in_slab else bskip[b, ibz, iby, ibx]
+        if r == 0 and not in_slab:
+            # --- one block, the common step: kept lean
+            k_major = kmaj[b, ibz, iby, ibx]
+            tx = _face_distance(ux, iux, ibx, 0, bdx, x)
+            ty = _face_distance(uy, iuy, iby, 0, bdy, y)
+            tz = ((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z) * iuz
+            t = max(min(tx, ty, tz), 0.0)
+            if k_major * t > tau:
+                s = tau / k_major
+                x += s * ux
+                y += s * uy
+                z += s * uz
+                tau = -math.log(uniform_open(state))
+                if cell_walk:
+                    real = True
+                    alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, ibz, iby, ibx, 0], ssa_g[b, ibz, iby, ibx, 1],
+                                                    ibz, iby, ibx, b, thresh, events + 1, max_events, ux, uy, uz,
+                                                    col, cell, scale)
+                else:
+                    ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
+                    iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
+                    real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh,
+                                                            events, max_events, ux, uy, uz, col, cell, scale)
+                if real:
+                    events += 1
+                    if not alive:
+                        return events
+                    iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
+                continue
+            tau -= k_major * t
+            if tx <= ty and tx <= tz:
+                y += t * uy
+                z += t * uz
+                ibx, x = _cross(ux, ibx, bdx, nbx, lx)
+                continue
+            if ty <= tz:
+                x += t * ux
+                z += t * uz
+                iby, y = _cross(uy, iby, bdy, nby, ly)
+                continue
+            x += t * ux
+            y += t * uy
+            if uz > 0.0:
+                ibz += 1
+                z = zb[ibz]
+            else:
+                z = zb[ibz]
+                ibz -= 1
+            if 0 <= ibz < nbz:
+                continue
+        elif in_slab:
             # --- one step across a clear slab (above the highest or below the lowest cloud)
             z_lo, z_hi = (0, slab_lo - 1) if ibz < slab_lo else (slab_hi, nbz - 1)
-            t = max(((zb[z_hi + 1] if uz > 0.0 else zb[z_lo]) - z) * iuz, 0.0)
+            z_face = zb[z_hi + 1] if uz > 0.0 else zb[z_lo]
+            t = max((z_face - z) * iuz, 0.0)
             if kc * t > tau:
                 s = tau / kc
                 z += s * uz
@@ -281,120 +382,87 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
             else:
                 tau -= kc * t
                 s = t
-                z = zb[z_hi + 1] if uz > 0.0 else zb[z_lo]
+                z = z_face
             x = _wrap_far(x + s * ux, lx)
             y = _wrap_far(y + s * uy, ly)
             ibx = min(int(x * inv_bdx), nbx - 1)
             iby = min(int(y * inv_bdy), nby - 1)
-            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
             if s < t:
                 ibz = _block_in(z, zb, z_lo, z_hi)
+                ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
                 iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
                 real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
-                                                        max_events, ux, uy, uz, col, cell)
+                                                        max_events, ux, uy, uz, col, cell, scale)
                 if real:
                     events += 1
                     if not alive:
                         return events
                     iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
                 continue
-            if uz > 0.0:
-                if z_hi == nbz - 1:
-                    col[b, TOA_UP, iy, ix] += w
-                    return events
-                ibz = z_hi + 1
-            elif z_lo > 0:
-                ibz = z_lo - 1
-            else:
-                ibz = 0
-                alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
-                if not alive:
-                    return events
-                ux, uy, uz = lambertian_up(state)
-                iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
-                tau = -math.log(uniform_open(state))
-            continue
-        r = bskip[b, ibz, iby, ibx]
-        k_major = kc if r > 0 else kmaj[b, ibz, iby, ibx]
-        z_lo = ibz - r if ibz > r else 0
-        z_hi = ibz + r if ibz + r < nbz else nbz - 1
-        tx = math.inf
-        if ux > 0.0:
-            tx = ((ibx + r + 1) * bdx - x) * iux
-        elif ux < 0.0:
-            tx = ((ibx - r) * bdx - x) * iux
-        ty = math.inf
-        if uy > 0.0:
-            ty = ((iby + r + 1) * bdy - y) * iuy
-        elif uy < 0.0:
-            ty = ((iby - r) * bdy - y) * iuy
-        if uz > 0.0:
-            tz = (zb[z_hi + 1] - z) * iuz
+            ibz = z_hi + 1 if uz > 0.0 else z_lo - 1
+            if 0 <= ibz < nbz:
+                continue
         else:
-            tz = (zb[z_lo] - z) * iuz
-        t = max(min(tx, ty, tz), 0.0)
-        if k_major * t > tau:
-            # --- a tentative collision inside the block (or clear cube)
-            s = tau / k_major
-            x += s * ux
-            y += s * uy
-            z += s * uz
-            tau = -math.log(uniform_open(state))
-            if r > 0:
-                x = _wrap(x, lx)
-                y = _wrap(y, ly)
+            # --- one step across the cube of clear blocks of radius r > 0
+            z_lo = ibz - r if ibz > r else 0
+            z_hi = ibz + r if ibz + r < nbz else nbz - 1
+            tx = _face_distance(ux, iux, ibx, r, bdx, x)
+            ty = _face_distance(uy, iuy, iby, r, bdy, y)
+            tz = ((zb[z_hi + 1] if uz > 0.0 else zb[z_lo]) - z) * iuz
+            t = max(min(tx, ty, tz), 0.0)
+            if kc * t > tau:
+                s = tau / kc
+                x = _wrap(x + s * ux, lx)
+                y = _wrap(y + s * uy, ly)
+                z += s * uz
+                tau = -math.log(uniform_open(state))
                 ibx = min(int(x * inv_bdx), nbx - 1)
                 iby = min(int(y * inv_bdy), nby - 1)
                 ibz = _block_in(z, zb, z_lo, z_hi)
-            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-            iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-            real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events,
-                                                    max_events, ux, uy, uz, col, cell)
-            if real:
-                events += 1
-                if not alive:
-                    return events
-                iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
-            continue
-        # --- across a face of the block (or cube) into the next one
-        tau -= k_major * t
-        x += t * ux
-        y += t * uy
-        z += t * uz
-        if tx <= ty and tx <= tz:
-            ibx, x = _leave_cube(ux, ibx, r, bdx)
-            if r > 0:
+                ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
+                iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
+                real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
+                                                        max_events, ux, uy, uz, col, cell, scale)
+                if real:
+                    events += 1
+                    if not alive:
+                        return events
+                    iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
+                continue
+            tau -= kc * t
+            x += t * ux
+            y += t * uy
+            z += t * uz
+            if tx <= ty and tx <= tz:
+                ibx, x = _leave_cube(ux, ibx, r, bdx)
                 iby = _block_near(y, inv_bdy, iby, r)
                 ibz = _block_in(z, zb, z_lo, z_hi)
-        elif ty <= tz:
-            iby, y = _leave_cube(uy, iby, r, bdy)
-            if r > 0:
+            elif ty <= tz:
+                iby, y = _leave_cube(uy, iby, r, bdy)
                 ibx = _block_near(x, inv_bdx, ibx, r)
                 ibz = _block_in(z, zb, z_lo, z_hi)
-        else:
-            if r > 0:
-                ibx = _block_near(x, inv_bdx, ibx, r)
-                iby = _block_near(y, inv_bdy, iby, r)
-            if uz > 0.0:
-                ibz = z_hi + 1
-                z = zb[ibz]
             else:
-                ibz = z_lo - 1
-                z = zb[z_lo]
-        ibx, x = _periodic(ibx, x, nbx, lx)
-        iby, y = _periodic(iby, y, nby, ly)
-        if ibz == nbz or ibz < 0:
-            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-            if ibz == nbz:
-                col[b, TOA_UP, iy, ix] += w
-                return events
-            ibz = 0
-            alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
-            if not alive:
-                return events
-            ux, uy, uz = lambertian_up(state)
-            iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
-            tau = -math.log(uniform_open(state))
+                ibx = _block_near(x, inv_bdx, ibx, r)
+                iby = _block_near(y, inv_bdy, iby, r)
+                if uz > 0.0:
+                    ibz = z_hi + 1
+                    z = zb[ibz]
+                else:
+                    ibz = z_lo - 1
+                    z = zb[z_lo]
+            ibx, x = _periodic(ibx, x, nbx, lx)
+            iby, y = _periodic(iby, y, nby, ly)
+            if 0 <= ibz < nbz:
+                continue
+        # --- out through the top, or onto the surface
+        ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
+        alive, w, ux, uy, uz = _boundary(state, w, b, iy, ix, ibz == nbz, thresh, alb, col)
+        if not alive:
+            return events
+        ibz = 0
+        z = zb[0]
+        iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
+        tau = -math.log(uniform_open(state))
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -407,7 +475,7 @@ def _layer_in(z, z_edge, lo, hi):
 
 @njit(cache=True, error_model="numpy")
 def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
-                     thresh, max_events, col, cell):
+                     thresh, max_events, col, cell, scale):
     """Trace one photon confined to column (ix, iy) as if it extended to infinity horizontally.
 
     ``props`` is float32 (nband, ny, nx, nz, 4): a column's layers are contiguous.
@@ -430,7 +498,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             tau = -math.log(uniform_open(state))
             events += 1
             alive, w, ux, uy, uz = _collide(state, w, cellp[1], cellp[2], iz, iy, ix, b, thresh, events,
-                                            max_events, ux, uy, uz, col, cell)
+                                            max_events, ux, uy, uz, col, cell, scale)
             if not alive:
                 return events
             continue
@@ -455,8 +523,9 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
 
 @njit(cache=True, error_model="numpy")
 def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
-               z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans, roulette, max_events, col, cell):
-    """Trace one batch of photons into the slot tallies ``col`` and ``cell``; returns events.
+               z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans, roulette, max_events, col, cell, scale):
+    """Trace one batch of photons into the slot tallies ``col`` and the fixed-point cell tallies
+    ``cell`` (units of ``1 / scale``); returns events.
 
     3D tracing uses ``kext`` and ``ssa_g`` (see :func:`transport_3d`); independent-column
     tracing uses ``column_props``, float32 (nband, ny, nx, nz, 4) with each column's
@@ -497,7 +566,7 @@ def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, 
             else:
                 ux, uy, uz = lambertian_up(state)
             events += transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid,
-                                   ix, iy, iz, thresh, max_events, col, cell)
+                                   ix, iy, iz, thresh, max_events, col, cell, scale)
         else:
             kind, z, iz = locate_source_column(r, b, target, column_props, alb, z_edge, mu0, v)
             ix = r % nx
@@ -510,34 +579,33 @@ def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, 
             else:
                 ux, uy, uz = lambertian_up(state)
             events += transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, column_props, alb, z_edge,
-                                       thresh, max_events, col, cell)
+                                       thresh, max_events, col, cell, scale)
     return events
 
 
 @njit(cache=True, parallel=True)
 def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, nrays,
                 kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans,
-                roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum):
+                roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_fixed, scale):
     """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to the sums.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
     added in batch order, so the sums do not depend on the number of threads.
-    ``col_sum`` (nband, 5, ny, nx) and ``cell_sum`` (nz, ny, nx) receive the batch tallies,
-    ``col_sumsq`` (5, ny, nx) the squares of the band-summed batch tallies and
-    ``band_sumsq`` (nband, 5, ny, nx) the squares per band.  Returns the scattering events.
+    ``col_sum`` (nband, 5, ny, nx) receives the batch tallies, ``col_sumsq`` (5, ny, nx)
+    the squares of the band-summed batch tallies and ``band_sumsq`` (nband, 5, ny, nx)
+    the squares per band.  Cell absorption needs no batch-to-batch variance: every thread
+    adds it to its own int64 array ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units
+    of ``1 / scale``; integer sums make the total independent of which thread ran which
+    batch.  Returns the scattering events.
     """
     nb, ny, nx = alb.shape
-    nz = cell_sum.shape[0]
     col_slots = np.zeros((wave, nb, N_TALLIES, ny, nx))
-    cell_slots = np.zeros((wave, nz, ny, nx))
     slot_events = np.zeros(wave, dtype=np.int64)
     ncol = N_TALLIES * ny * nx
-    ncell = nz * ny * nx
     total_events = 0
     csum = col_sum.reshape(nb, ncol)
     csq = col_sumsq.reshape(ncol)
     bsq = band_sumsq.reshape(nb, ncol)
-    esum = cell_sum.reshape(ncell)
     for start in range(first_batch, first_batch + n_batches, wave):
         n = min(wave, first_batch + n_batches - start)
         for i in prange(n):
@@ -545,7 +613,7 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
             slot_events[i] = _run_batch(start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
                                         kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
                                         grid, czi, ray_cum, ray_trans, roulette,
-                                        max_events, col_slots[i], cell_slots[i])
+                                        max_events, col_slots[i], cell_fixed[get_thread_id()], scale)
         for i in range(n):
             cs = col_slots[i].reshape(nb, ncol)
             for j in range(ncol):
@@ -557,10 +625,4 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
                     acc += v
                 csq[j] += acc * acc
             total_events += slot_events[i]
-    # Cell absorption needs no batch-to-batch variance: each slot keeps adding its batches
-    # (slot i always gets the same batches), and the slots are summed once, in order.
-    for i in range(wave):
-        es = cell_slots[i].reshape(ncell)
-        for j in range(ncell):
-            esum[j] += es[j]
     return total_events

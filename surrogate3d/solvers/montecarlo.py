@@ -142,7 +142,10 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
     kclear = np.array([kext[b][clear[b]].max() if clear[b].any() else 0.0 for b in range(nb)], dtype=np.float64)
     pad = ((0, 0), (0, nbz * block - nz), (0, 0), (0, 0))
     shape = (nb, nbz, block, ny // by, by, nx // bx, bx)
-    kmaj = np.pad(kext, pad).reshape(shape).max(axis=(2, 4, 6)).astype(np.float32)
+    if block == 1:
+        kmaj = kext  # the same array: a cell walk then reads one extinction per step
+    else:
+        kmaj = np.pad(kext, pad).reshape(shape).max(axis=(2, 4, 6)).astype(np.float32)
     bclear = np.pad(clear, pad, constant_values=True).reshape(shape).all(axis=(2, 4, 6))
     row_clear = bclear.all(axis=(2, 3))
     clear_below = np.array([np.argmin(np.append(rows, False)) for rows in row_clear], dtype=np.int64)
@@ -331,6 +334,10 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     if cdf.size and cdf[-1] > 0.0:
         import numba
 
+        # Fixed-point cell tallies: the run's whole photon weight maps to 2**61 units, far
+        # inside int64 and fine enough (2**-61) that rounding never shows.
+        scale = 2.0**61 / (n_batches * cdf[-1])
+        cell_fixed = np.zeros((numba.config.NUMBA_NUM_THREADS, nz, ny, nx), dtype=np.int64)
         old_threads = numba.get_num_threads()
         if threads is not None:
             numba.set_num_threads(_check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS))
@@ -341,11 +348,12 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                 events += _transport.run_batches(
                     first, n, WAVE, not independent_columns, seed, batch_size, cdf, safe_w, nrays,
                     kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, grid, czi,
-                    ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_sum)
+                    ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_fixed, scale)
                 if progress is not None:
                     progress((first + n) * batch_size)
         finally:
             numba.set_num_threads(old_threads)
+        cell_sum = cell_fixed.sum(axis=0) / scale
 
     mc_mean = col_sum / n_batches
     var = np.maximum(col_sumsq - col_sum.sum(axis=0) ** 2 / n_batches, 0.0) / (n_batches - 1)
