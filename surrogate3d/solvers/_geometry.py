@@ -13,7 +13,8 @@ Monte Carlo photons start; the direct beam reaching the surface is absorbed,
 import math
 
 import numpy as np
-from numba import njit
+import numba
+from numba import get_thread_id, njit, prange
 
 INF = math.inf
 
@@ -87,8 +88,13 @@ def _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy):
     return x, y, ix, iy, iz
 
 
-@njit(cache=True)
 def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
+    """Trace the direct beam along slant paths with periodic wrap (see :func:`_direct_rays`)."""
+    return _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, numba.get_num_threads())
+
+
+@njit(cache=True, parallel=True)
+def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads):
     """Trace the direct beam along slant paths with periodic wrap.
 
     Parameters
@@ -107,6 +113,8 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
         Rays per column and axis.
     czi : int64 (ncz + 1,)
         Layer-edge indices where the cumulative tables are recorded (block edges).
+    nthreads : int
+        Numba threads in use (one fixed-point absorption array each).
 
     Returns
     -------
@@ -125,21 +133,29 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
     ncz = czi.shape[0] - 1
     nray = nx * ny * nsub * nsub
     wray = 1.0 / (nsub * nsub)
-    absorbed = np.zeros((nb, nz, ny, nx))
-    surface = np.zeros((nb, ny, nx))
     source = np.zeros((nb, nray))
     ray_cum = np.zeros((nb, nray, ncz + 1))
     ray_trans = np.zeros((nb, nray, ncz + 1))
+    ray_surface = np.zeros((nb, nray))
+    ray_column = np.zeros(nray, dtype=np.int64)
     edge_slot = np.full(nz + 1, -1, dtype=np.int64)
     for j in range(ncz + 1):
         edge_slot[czi[ncz - j]] = j
-    trans = np.empty(nb)
-    for r in range(nray):
+    # Rays run in parallel.  Cells take absorption from many rays, so each thread sums into
+    # its own fixed-point array (the whole beam maps to 2**61 units): integer sums give the
+    # same total for any number of threads.
+    scale = 2.0**61 / (nx * ny)
+    absorbed_fixed = np.zeros((nthreads, nb, nz, ny, nx), dtype=np.int64)
+    trans_of_thread = np.empty((nthreads, nb + 16))  # padded: threads never share a cache line
+    for r in prange(nray):
+        thread = get_thread_id()
+        mine = absorbed_fixed[thread]
+        trans = trans_of_thread[thread, :nb]
+        trans[:] = wray
         ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
         iz = nz - 1
         z = z_edge[nz]
         for b in range(nb):
-            trans[b] = wray
             ray_trans[b, r, 0] = wray
         while True:
             t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
@@ -149,7 +165,7 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
                     t_out = trans[b] * math.exp(-k * t)
                     removed = trans[b] - t_out
                     w = ssa[b, iz, iy, ix]
-                    absorbed[b, iz, iy, ix] += (1.0 - w) * removed
+                    mine[b, iz, iy, ix] += np.int64((1.0 - w) * removed * scale + 0.5)
                     source[b, r] += w * removed
                     trans[b] = t_out
             x += t * ux
@@ -166,9 +182,19 @@ def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
             x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
             if axis == 2:
                 z = z_edge[iz + 1]
+        ray_column[r] = iy * nx + ix
         for b in range(nb):
-            surface[b, iy, ix] += trans[b]
+            ray_surface[b, r] = trans[b]
             source[b, r] += alb[b, iy, ix] * trans[b]
+    surface = np.zeros((nb, ny, nx))
+    for r in range(nray):
+        iy, ix = ray_column[r] // nx, ray_column[r] % nx
+        for b in range(nb):
+            surface[b, iy, ix] += ray_surface[b, r]
+    total = absorbed_fixed[0].copy()
+    for i in range(1, absorbed_fixed.shape[0]):
+        total += absorbed_fixed[i]
+    absorbed = total / scale
     return absorbed, surface, source, ray_cum, ray_trans
 
 

@@ -532,7 +532,9 @@ def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, 
     extinction, single-scattering albedo and asymmetry contiguous.
     """
     nx = alb.shape[2]
-    state = np.empty(4, dtype=np.uint64)
+    # 128 bytes for a 32-byte state: the stream, written at every draw, then never shares
+    # a cache line with another thread's.
+    state = np.empty(16, dtype=np.uint64)
     seed_stream(state, seed, batch)
     total = cdf[-1]
     w = total / batch_size

@@ -5,9 +5,11 @@ Monte Carlo photons carry only the scattered light.  Both modes share the physic
 the noise model, so "3D minus independent column" isolates the 3D effect.
 """
 
+import contextlib
 import math
 import time
 
+import numba
 import numpy as np
 
 from .. import __version__
@@ -52,6 +54,18 @@ def _check_float(name, value, low, high, low_open=False, high_open=False):
         hb = ")" if high_open else "]"
         raise ParameterError(f"{name} must be in {lb}{low}, {high}{hb}; got {value!r}")
     return v
+
+
+@contextlib.contextmanager
+def _numba_threads(threads):
+    """Run the kernels on ``threads`` numba threads (None: numba's setting), then restore it."""
+    old = numba.get_num_threads()
+    if threads is not None:
+        numba.set_num_threads(threads)
+    try:
+        yield
+    finally:
+        numba.set_num_threads(old)
 
 
 def default_batch_size(photons):
@@ -297,6 +311,8 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
     block = _check_int("majorant_block", majorant_block, 1, 64)
     clear_cube = _check_int("clear_cube", clear_cube, 0, 255)
+    if threads is not None:
+        threads = _check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS)
 
     started = time.perf_counter()
     ext, ssa, asym, alb = _arrays(scene)
@@ -307,41 +323,36 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     ux, uy, uz = beam_direction(zenith, azimuth)
     mu0 = -uz
 
-    kext, ssa_g, column_props = tracking_arrays(ext, ssa, asym, independent_columns)
-    if independent_columns:
-        absorbed, surface, source = direct_beam_column(ext, ssa, alb, z_edge, mu0)
-        nsub_used = 1
-        grid = _majorant_grid(np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb),
-                              1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge)
-        czi = np.zeros(2, np.int64)
-        ray_cum = ray_trans = np.zeros((nb, 1, 1))
-    else:
-        grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge)
-        czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
-        absorbed, surface, source, ray_cum, ray_trans = _geometry.direct_beam_3d(
-            ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi)
-        nsub_used = nsub
-    nrays = source.shape[1]
-    safe_w = np.where(weights > 0, weights, 1.0)
-    cdf = np.cumsum((source * weights[:, None]).reshape(-1))
+    with _numba_threads(threads):
+        kext, ssa_g, column_props = tracking_arrays(ext, ssa, asym, independent_columns)
+        if independent_columns:
+            absorbed, surface, source = direct_beam_column(ext, ssa, alb, z_edge, mu0)
+            nsub_used = 1
+            grid = _majorant_grid(np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb),
+                                  1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge)
+            czi = np.zeros(2, np.int64)
+            ray_cum = ray_trans = np.zeros((nb, 1, 1))
+        else:
+            grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge)
+            czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
+            absorbed, surface, source, ray_cum, ray_trans = _geometry.direct_beam_3d(
+                ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi)
+            nsub_used = nsub
+        nrays = source.shape[1]
+        safe_w = np.where(weights > 0, weights, 1.0)
+        cdf = np.cumsum((source * weights[:, None]).reshape(-1))
 
-    n_batches = max(2, -(-photons // batch_size))
-    col_sum = np.zeros((nb, _transport.N_TALLIES, ny, nx))
-    col_sumsq = np.zeros((_transport.N_TALLIES, ny, nx))
-    band_sumsq = np.zeros_like(col_sum)
-    cell_sum = np.zeros((nz, ny, nx))
-    events = 0
-    if cdf.size and cdf[-1] > 0.0:
-        import numba
-
-        # Fixed-point cell tallies: the run's whole photon weight maps to 2**61 units, far
-        # inside int64 and fine enough (2**-61) that rounding never shows.
-        scale = 2.0**61 / (n_batches * cdf[-1])
-        cell_fixed = np.zeros((numba.config.NUMBA_NUM_THREADS, nz, ny, nx), dtype=np.int64)
-        old_threads = numba.get_num_threads()
-        if threads is not None:
-            numba.set_num_threads(_check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS))
-        try:
+        n_batches = max(2, -(-photons // batch_size))
+        col_sum = np.zeros((nb, _transport.N_TALLIES, ny, nx))
+        col_sumsq = np.zeros((_transport.N_TALLIES, ny, nx))
+        band_sumsq = np.zeros_like(col_sum)
+        cell_sum = np.zeros((nz, ny, nx))
+        events = 0
+        if cdf.size and cdf[-1] > 0.0:
+            # Fixed-point cell tallies: the run's whole photon weight maps to 2**61 units, far
+            # inside int64 and fine enough (2**-61) that rounding never shows.
+            scale = 2.0**61 / (n_batches * cdf[-1])
+            cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
             chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
             for first in range(0, n_batches, chunk):
                 n = min(chunk, n_batches - first)
@@ -351,9 +362,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                     ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_fixed, scale)
                 if progress is not None:
                     progress((first + n) * batch_size)
-        finally:
-            numba.set_num_threads(old_threads)
-        cell_sum = cell_fixed.sum(axis=0) / scale
+            cell_sum = cell_fixed.sum(axis=0) / scale
 
     mc_mean = col_sum / n_batches
     var = np.maximum(col_sumsq - col_sum.sum(axis=0) ** 2 / n_batches, 0.0) / (n_batches - 1)
