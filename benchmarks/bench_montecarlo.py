@@ -74,8 +74,11 @@ def _arithmetic(n, m):
     return out
 
 
-def arithmetic_speedup(cores, n=20_000_000):
-    """What the machine's cores deliver: speed-up of a compute-bound loop (best of three)."""
+def arithmetic_reference(cores, n=20_000_000):
+    """What the machine delivers now: the nanoseconds per step of a compute-bound loop on one
+    core, and its speed-up on all cores (best of three).  The speed of these virtual
+    machines drifts by tens of percent, so solver figures from different runs are best
+    compared through this reference."""
     import numba
 
     _arithmetic(10, 8)
@@ -87,7 +90,7 @@ def arithmetic_speedup(cores, n=20_000_000):
             _arithmetic(n, 8)
             best[t] = min(best.get(t, math.inf), time.perf_counter() - t0)
     numba.set_num_threads(cores)
-    return best[1] / best[cores]
+    return best[1] / (8 * n) * 1e9, best[1] / best[cores]
 
 
 def host_means(field, factor=8):
@@ -117,6 +120,7 @@ def main(argv=None):
     import numba
 
     cores = numba.config.NUMBA_NUM_THREADS
+    arithmetic = arithmetic_reference(cores)
     # Best of three, alternating 1 and all cores: these virtual machines' speed drifts.
     wall1 = cpu1 = wall_n = math.inf
     for _ in range(3):
@@ -157,7 +161,8 @@ def main(argv=None):
         "photons_per_second_per_core_refined_50m": photons / wall_fine,
         "cores": cores,
         "parallel_speedup": wall1 / wall_n,
-        "parallel_speedup_of_pure_arithmetic": arithmetic_speedup(cores),
+        "parallel_speedup_of_pure_arithmetic": arithmetic[1],
+        "arithmetic_reference_ns_per_step": arithmetic[0],
         "peak_memory_over_scene_arrays": (rss_after - rss_before + scene_bytes) / scene_bytes
         if rss_after > rss_before else 1.0,
         "peak_rss_mb": rss_after / 2**20,
