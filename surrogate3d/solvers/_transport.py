@@ -317,8 +317,10 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
     tau = -math.log(uniform_open(state))
     kc = kclear[b]
     slab_lo, slab_hi = clear_below[b], clear_above[b]
+    z_lo = z_hi = 0  # the clear-air layer range of the current slab or cube step
     while True:
         in_slab = ibz < slab_lo or ibz >= slab_hi
+        clear_hit = False
         r = 0 if in_slab else bskip[b, ibz, iby, ibx]
         if r == 0 and not in_slab:
             # --- one block, the common step: kept lean
@@ -387,21 +389,11 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
             y = _wrap_far(y + s * uy, ly)
             ibx = min(int(x * inv_bdx), nbx - 1)
             iby = min(int(y * inv_bdy), nby - 1)
-            if s < t:
-                ibz = _block_in(z, zb, z_lo, z_hi)
-                ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-                iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-                real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
-                                                        max_events, ux, uy, uz, col, cell, scale)
-                if real:
-                    events += 1
-                    if not alive:
-                        return events
-                    iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
-                continue
-            ibz = z_hi + 1 if uz > 0.0 else z_lo - 1
-            if 0 <= ibz < nbz:
-                continue
+            clear_hit = s < t
+            if not clear_hit:
+                ibz = z_hi + 1 if uz > 0.0 else z_lo - 1
+                if 0 <= ibz < nbz:
+                    continue
         else:
             # --- one step across the cube of clear blocks of radius r > 0
             z_lo = ibz - r if ibz > r else 0
@@ -418,42 +410,46 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                 tau = -math.log(uniform_open(state))
                 ibx = min(int(x * inv_bdx), nbx - 1)
                 iby = min(int(y * inv_bdy), nby - 1)
-                ibz = _block_in(z, zb, z_lo, z_hi)
-                ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-                iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-                real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
-                                                        max_events, ux, uy, uz, col, cell, scale)
-                if real:
-                    events += 1
-                    if not alive:
-                        return events
-                    iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
-                continue
-            tau -= kc * t
-            x += t * ux
-            y += t * uy
-            z += t * uz
-            if tx <= ty and tx <= tz:
-                ibx, x = _leave_cube(ux, ibx, r, bdx)
-                iby = _block_near(y, inv_bdy, iby, r)
-                ibz = _block_in(z, zb, z_lo, z_hi)
-            elif ty <= tz:
-                iby, y = _leave_cube(uy, iby, r, bdy)
-                ibx = _block_near(x, inv_bdx, ibx, r)
-                ibz = _block_in(z, zb, z_lo, z_hi)
+                clear_hit = True
             else:
-                ibx = _block_near(x, inv_bdx, ibx, r)
-                iby = _block_near(y, inv_bdy, iby, r)
-                if uz > 0.0:
-                    ibz = z_hi + 1
-                    z = zb[ibz]
+                tau -= kc * t
+                x += t * ux
+                y += t * uy
+                z += t * uz
+                if tx <= ty and tx <= tz:
+                    ibx, x = _leave_cube(ux, ibx, r, bdx)
+                    iby = _block_near(y, inv_bdy, iby, r)
+                    ibz = _block_in(z, zb, z_lo, z_hi)
+                elif ty <= tz:
+                    iby, y = _leave_cube(uy, iby, r, bdy)
+                    ibx = _block_near(x, inv_bdx, ibx, r)
+                    ibz = _block_in(z, zb, z_lo, z_hi)
                 else:
-                    ibz = z_lo - 1
-                    z = zb[z_lo]
-            ibx, x = _periodic(ibx, x, nbx, lx)
-            iby, y = _periodic(iby, y, nby, ly)
-            if 0 <= ibz < nbz:
-                continue
+                    ibx = _block_near(x, inv_bdx, ibx, r)
+                    iby = _block_near(y, inv_bdy, iby, r)
+                    if uz > 0.0:
+                        ibz = z_hi + 1
+                        z = zb[ibz]
+                    else:
+                        ibz = z_lo - 1
+                        z = zb[z_lo]
+                ibx, x = _periodic(ibx, x, nbx, lx)
+                iby, y = _periodic(iby, y, nby, ly)
+                if 0 <= ibz < nbz:
+                    continue
+        if clear_hit:
+            # --- a tentative collision in clear air (slab or cube), at rate kc
+            ibz = _block_in(z, zb, z_lo, z_hi)
+            ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
+            iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
+            real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
+                                                    max_events, ux, uy, uz, col, cell, scale)
+            if real:
+                events += 1
+                if not alive:
+                    return events
+                iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
+            continue
         # --- out through the top, or onto the surface
         ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
         alive, w, ux, uy, uz = _boundary(state, w, b, iy, ix, ibz == nbz, thresh, alb, col)
