@@ -186,11 +186,12 @@ def _clamp(i, lo, hi):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _block_in(z, zb, lo, hi):
-    ib = lo
-    while ib < hi and z >= zb[ib + 1]:
-        ib += 1
-    return ib
+def _interval_in(z, edges, lo, hi):
+    # The interval (layer, or block row) of the rising ``edges`` holding z, from lo to hi.
+    i = lo
+    while i < hi and z >= edges[i + 1]:
+        i += 1
+    return i
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -342,7 +343,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                                                     col, cell, scale)
                 else:
                     ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-                    iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
+                    iz = _interval_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
                     real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh,
                                                             events, max_events, ux, uy, uz, col, cell, scale)
                 if real:
@@ -419,11 +420,11 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                 if tx <= ty and tx <= tz:
                     ibx, x = _leave_cube(ux, ibx, r, bdx)
                     iby = _block_near(y, inv_bdy, iby, r)
-                    ibz = _block_in(z, zb, z_lo, z_hi)
+                    ibz = _interval_in(z, zb, z_lo, z_hi)
                 elif ty <= tz:
                     iby, y = _leave_cube(uy, iby, r, bdy)
                     ibx = _block_near(x, inv_bdx, ibx, r)
-                    ibz = _block_in(z, zb, z_lo, z_hi)
+                    ibz = _interval_in(z, zb, z_lo, z_hi)
                 else:
                     ibx = _block_near(x, inv_bdx, ibx, r)
                     iby = _block_near(y, inv_bdy, iby, r)
@@ -439,9 +440,9 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                     continue
         if clear_hit:
             # --- a tentative collision in clear air (slab or cube), at rate kc
-            ibz = _block_in(z, zb, z_lo, z_hi)
+            ibz = _interval_in(z, zb, z_lo, z_hi)
             ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-            iz = _layer_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
+            iz = _interval_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
             real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
                                                     max_events, ux, uy, uz, col, cell, scale)
             if real:
@@ -459,14 +460,6 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
         z = zb[0]
         iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
         tau = -math.log(uniform_open(state))
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def _layer_in(z, z_edge, lo, hi):
-    iz = lo
-    while iz < hi and z >= z_edge[iz + 1]:
-        iz += 1
-    return iz
 
 
 @njit(cache=True, error_model="numpy")
