@@ -134,7 +134,7 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
     Returns
     -------
     kmaj : float32 (nband, nbz, nby, nbx)
-        Largest extinction in every block [m-1].
+        Largest extinction in every block [m-1]; ``kext`` itself for blocks of one cell.
     bskip : uint8 (nband, nbz, nby, nbx)
         Radius of the cube of clear blocks around every block (:func:`cube_radius`).
     kclear : float64 (nband,)
