@@ -336,6 +336,8 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                 y += s * uy
                 z += s * uz
                 tau = -math.log(uniform_open(state))
+                # Handled here, not in the shared clear-air tail below: routing the hot
+                # collision through that tail measured about 6 % slower.
                 if cell_walk:
                     real = True
                     alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, ibz, iby, ibx, 0], ssa_g[b, ibz, iby, ibx, 1],
