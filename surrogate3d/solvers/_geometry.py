@@ -16,6 +16,8 @@ import numpy as np
 import numba
 from numba import get_thread_id, njit, prange
 
+from ._kernel import KERNEL
+
 INF = math.inf
 
 
@@ -198,7 +200,7 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
     return absorbed, surface, source, ray_cum, ray_trans
 
 
-@njit(cache=True)
+@njit(**KERNEL)
 def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsub, u, ssa_g, czi,
                      ray_cum, ray_trans):
     """Find where the scattered energy of ray ``r`` passes ``target``.
@@ -268,7 +270,7 @@ def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsu
     return 1, x, y, 0.0, min(int(x / dx), nx - 1), min(int(y / dy), ny - 1), 0
 
 
-@njit(cache=True)
+@njit(**KERNEL)
 def locate_source_column(col, band, target, props, alb, z_edge, mu0, u):
     """Independent-column version of :func:`locate_source_3d` (vertical column ``col``).
 

@@ -27,6 +27,7 @@ import numpy as np
 from numba import get_thread_id, njit, prange
 
 from ._geometry import locate_source_3d, locate_source_column
+from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 
 TOA_UP, SFC_DOWN, SFC_UP, ATM_ABS, SFC_ABS = 0, 1, 2, 3, 4
@@ -279,7 +280,7 @@ def _face_distance(u, iu, ib, r, size, pos):
     return math.inf
 
 
-@njit(cache=True, error_model="numpy")
+@njit(**KERNEL)
 def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid, ix, iy, iz,
                  thresh, max_events, col, cell, scale):
     """Trace one photon in 3D from (x, y, z) in cell (iz, iy, ix); returns its scattering events.
@@ -464,7 +465,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
         tau = -math.log(uniform_open(state))
 
 
-@njit(cache=True, error_model="numpy")
+@njit(**KERNEL)
 def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
                      thresh, max_events, col, cell, scale):
     """Trace one photon confined to column (ix, iy) as if it extended to infinity horizontally.
@@ -512,20 +513,18 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             tau = -math.log(uniform_open(state))
 
 
-@njit(cache=True, error_model="numpy")
-def _run_batch(batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
+@njit(**KERNEL)
+def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
                z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans, roulette, max_events, col, cell, scale):
     """Trace one batch of photons into the slot tallies ``col`` and the fixed-point cell tallies
-    ``cell`` (units of ``1 / scale``); returns events.
+    ``cell`` (units of ``1 / scale``), drawing from the random stream ``state`` (uint64,
+    seeded here for the batch); returns events.
 
     3D tracing uses ``kext`` and ``ssa_g`` (see :func:`transport_3d`); independent-column
     tracing uses ``column_props``, float32 (nband, ny, nx, nz, 4) with each column's
     extinction, single-scattering albedo and asymmetry contiguous.
     """
     nx = alb.shape[2]
-    # 128 bytes for a 32-byte state: the stream, written at every draw, then never shares
-    # a cache line with another thread's.
-    state = np.empty(16, dtype=np.uint64)
     seed_stream(state, seed, batch)
     total = cdf[-1]
     w = total / batch_size
@@ -594,6 +593,9 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
     nb, ny, nx = alb.shape
     col_slots = np.zeros((wave, nb, N_TALLIES, ny, nx))
     slot_events = np.zeros(wave, dtype=np.int64)
+    # 128 bytes for each 32-byte stream state: a state, written at every draw, then never
+    # shares a cache line with another thread's.
+    states = np.zeros((wave, 16), dtype=np.uint64)
     ncol = N_TALLIES * ny * nx
     total_events = 0
     csum = col_sum.reshape(nb, ncol)
@@ -603,7 +605,7 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
         n = min(wave, first_batch + n_batches - start)
         for i in prange(n):
             col_slots[i, :, :, :, :] = 0.0
-            slot_events[i] = _run_batch(start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
+            slot_events[i] = _run_batch(states[i], start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
                                         kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
                                         grid, czi, ray_cum, ray_trans, roulette,
                                         max_events, col_slots[i], cell_fixed[get_thread_id()], scale)
