@@ -43,6 +43,16 @@ from surrogate3d.solvers.sun import beam_direction  # noqa: E402
 ROULETTE_WEIGHT = 0.1
 
 
+@njit(cache=True, inline="always")
+def _axis_walk(u, i, d, x):
+    """Cell step, distance between faces and distance to the next face along one axis."""
+    if u > 0.0:
+        return 1, d / u, ((i + 1) * d - x) / u
+    if u < 0.0:
+        return -1, -d / u, (i * d - x) / u
+    return 0, math.inf, math.inf
+
+
 @njit(**KERNEL)
 def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, down, up):
     """Trace ``n`` photons of weight 1/n; add surface arrivals to ``down`` and top exits to
@@ -63,20 +73,10 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
         ix, iy, iz = min(int(x / dx), nx - 1), min(int(y / dy), ny - 1), nz - 1
         alive = True
         while alive:
-            # new direction (or start): set up DDA from (x, y, z) in cell (ix, iy, iz)
+            # A new direction (or the start): set up the walk from (x, y, z) in cell (ix, iy, iz).
             tau = -math.log(uniform_open(state))
-            if ux > 0.0:
-                sx = 1; ddx = dx / ux; tmx = ((ix + 1) * dx - x) / ux
-            elif ux < 0.0:
-                sx = -1; ddx = -dx / ux; tmx = (ix * dx - x) / ux
-            else:
-                sx = 0; ddx = math.inf; tmx = math.inf
-            if uy > 0.0:
-                sy = 1; ddy = dy / uy; tmy = ((iy + 1) * dy - y) / uy
-            elif uy < 0.0:
-                sy = -1; ddy = -dy / uy; tmy = (iy * dy - y) / uy
-            else:
-                sy = 0; ddy = math.inf; tmy = math.inf
+            sx, ddx, tmx = _axis_walk(ux, ix, dx, x)
+            sy, ddy, tmy = _axis_walk(uy, iy, dy, y)
             iuz = 1.0 / uz
             tmz = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) * iuz
             t = 0.0
