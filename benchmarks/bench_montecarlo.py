@@ -93,17 +93,19 @@ def arithmetic_reference(cores, n=20_000_000):
     return best[1] / (8 * n) * 1e9, best[1] / best[cores]
 
 
-def median_variance_ratio(df):
-    """Median of a sample variance over the true variance, ``chi2.median(df) / df``.
+def cpu_for_relative_se(cpu, rel_se, df, target=0.005):
+    """CPU seconds for a relative standard error ``target`` in a typical host column.
 
-    With a handful of runs the median over host columns of the sample variance
-    underestimates the typical variance (0.79 of it for 4 runs), because a sample variance
-    follows ``sigma**2 chi2(df) / df`` for normal data (Helmert 1876, from memory),
-    whose median lies below its mean.
+    ``rel_se`` holds per-column relative standard errors from ``df`` degrees of freedom,
+    reached with ``cpu`` seconds; the cost scales with the variance.  With a handful of
+    runs the median over columns of a sample variance underestimates the typical variance
+    (0.79 of it for 4 runs), because a sample variance follows ``sigma**2 chi2(df) / df``
+    for normal data (Helmert 1876, from memory), whose median lies below its mean; the
+    median is therefore divided by ``chi2.median(df) / df``.
     """
     from scipy.stats import chi2
 
-    return float(chi2.median(df) / df)
+    return float(np.median(cpu * (np.asarray(rel_se) / target) ** 2) / (chi2.median(df) / df))
 
 
 def host_means(field, factor=8):
@@ -155,8 +157,8 @@ def main(argv=None):
         run_cpu.append(cpu)
     down = np.array(down)
     rel_se = down.std(axis=0, ddof=1) / down.mean(axis=0)
-    rel_se_median = float(np.median(rel_se) / math.sqrt(median_variance_ratio(args.runs - 1)))
-    cpu_for_half_percent = float(np.mean(run_cpu) * (rel_se_median / 0.005) ** 2)
+    cpu_for_half_percent = cpu_for_relative_se(np.mean(run_cpu), rel_se, args.runs - 1)
+    rel_se_median = 0.005 * math.sqrt(cpu_for_half_percent / np.mean(run_cpu))
 
     fine = refined(scene)
     _, _, wall_fine = timed(fine, zenith, azimuth, args.photons, 1, 1, **opts)

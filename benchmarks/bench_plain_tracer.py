@@ -8,12 +8,11 @@ thread): photons enter the top at uniform random positions along the solar beam,
 the grid cell by cell with periodic horizontal wrap (Amanatides and Woo 1987), have
 exact exponential free paths, Henyey-Greenstein scattering (Henyey and Greenstein 1941),
 absorption by weight with Russian roulette below a tenth of the starting weight, and a
-Lambertian surface, with single-precision optical properties as in ours.  It prints, for both tracers, photons per second per core and the
-CPU seconds needed for a 0.5 % standard error of the surface downward (direct + diffuse)
-flux averaged over 800 m host columns (8 x 8 cells): the median over host columns of
-``cpu * (se / mean)**2 / 0.005**2``, with the standard error from batch-to-batch (plain
-tracer) or run-to-run (ours) spread, divided by the median of a sample variance over the
-true one (``median_variance_ratio``).  It also prints ours as incident-photon equivalents
+Lambertian surface, with single-precision optical properties as in ours.  It prints, for
+both tracers, photons per second per core and the CPU seconds needed for a 0.5 % standard
+error of the surface downward (direct + diffuse) flux averaged over 800 m host columns
+(8 x 8 cells), with the standard error from batch-to-batch (plain tracer) or run-to-run
+(ours) spread (``cpu_for_relative_se``).  It also prints ours as incident-photon equivalents
 (traced photons over the scattered fraction of the incident light, which is what a plain
 tracer's photons carry on average).
 
@@ -31,7 +30,7 @@ import numpy as np
 from numba import njit
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_montecarlo import SHARED, convert, host_means, median_variance_ratio  # noqa: E402
+from bench_montecarlo import SHARED, convert, host_means, cpu_for_relative_se  # noqa: E402
 
 from surrogate3d.scenes.model import spacing  # noqa: E402
 from surrogate3d.solvers import solve_monte_carlo  # noqa: E402
@@ -51,6 +50,13 @@ def _axis_walk(u, i, d, x):
     if u < 0.0:
         return -1, -d / u, (i * d - x) / u
     return 0, math.inf, math.inf
+
+
+@njit(cache=True, inline="always")
+def _moved(x, y, z, t, ux, uy, uz, lx, ly):
+    """The point a distance ``t`` along the direction, wrapped into the domain."""
+    x, y = x + t * ux, y + t * uy
+    return x - math.floor(x / lx) * lx, y - math.floor(y / ly) * ly, z + t * uz
 
 
 @njit(**KERNEL)
@@ -85,10 +91,7 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
                 k = kext[iz, iy, ix]
                 d = k * (tn - t)
                 if d > tau:
-                    t += tau / k
-                    x += t * ux; y += t * uy; z += t * uz
-                    x -= math.floor(x / lx) * lx
-                    y -= math.floor(y / ly) * ly
+                    x, y, z = _moved(x, y, z, t + tau / k, ux, uy, uz, lx, ly)
                     events += 1
                     w *= ssa[iz, iy, ix]
                     if w < ROULETTE_WEIGHT * w0:
@@ -107,13 +110,17 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
                 crossings += 1
                 if tn == tmx:
                     ix += sx
-                    if ix == nx: ix = 0
-                    elif ix < 0: ix = nx - 1
+                    if ix == nx:
+                        ix = 0
+                    elif ix < 0:
+                        ix = nx - 1
                     tmx += ddx
                 elif tn == tmy:
                     iy += sy
-                    if iy == ny: iy = 0
-                    elif iy < 0: iy = ny - 1
+                    if iy == ny:
+                        iy = 0
+                    elif iy < 0:
+                        iy = ny - 1
                     tmy += ddy
                 elif uz > 0.0:
                     iz += 1
@@ -132,11 +139,9 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
                                 alive = False
                                 break
                             w *= 2.0
-                        x += t * ux; y += t * uy
-                        x -= math.floor(x / lx) * lx
-                        y -= math.floor(y / ly) * ly
-                        ix = min(int(x / dx), nx - 1); iy = min(int(y / dy), ny - 1)
-                        z = z_edge[0]; iz = 0
+                        x, y, _ = _moved(x, y, z, t, ux, uy, uz, lx, ly)
+                        ix, iy, iz = min(int(x / dx), nx - 1), min(int(y / dy), ny - 1), 0
+                        z = z_edge[0]
                         ux, uy, uz = lambertian_up(state)
                         break
                     tmz -= (z_edge[iz + 1] - z_edge[iz]) * iuz
@@ -183,7 +188,7 @@ def main(argv=None):
     down, up, photons, events, crossings, cpu = plain_tracer(scene, zenith, azimuth, args.photons)
     host = np.array([host_means(d) for d in down])
     rel_se = host.std(axis=0, ddof=1) / math.sqrt(len(host)) / host.mean(axis=0)
-    plain_cpu_half = float(np.median(cpu * (rel_se / 0.005) ** 2)) / median_variance_ratio(len(host) - 1)
+    plain_cpu_half = cpu_for_relative_se(cpu, rel_se, len(host) - 1)
 
     solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1)
     ours, ours_cpu, direct = [], [], []
@@ -195,7 +200,7 @@ def main(argv=None):
         direct.append(out)
     ours = np.array(ours)
     ours_rel = ours.std(axis=0, ddof=1) / ours.mean(axis=0)
-    ours_cpu_half = float(np.median(np.mean(ours_cpu) * (ours_rel / 0.005) ** 2)) / median_variance_ratio(args.runs - 1)
+    ours_cpu_half = cpu_for_relative_se(np.mean(ours_cpu), ours_rel, args.runs - 1)
     out = direct[0]
     alb = scene["surface_albedo"].values[0]
     # The scattered fraction: incident light not absorbed unscattered at the surface nor in
