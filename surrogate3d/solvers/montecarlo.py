@@ -96,7 +96,7 @@ def cube_radius(clear, max_radius):
     ny, nx = clear.shape[2], clear.shape[3]
     radius = np.zeros(clear.shape, dtype=np.uint8)
     grown = ~clear
-    for r in range(1, int(min(max_radius, (min(nx, ny) - 1) // 2, 255)) + 1):
+    for r in range(1, int(min(max_radius, (min(nx, ny) - 1) // 2, 254)) + 1):
         near = grown | np.roll(grown, 1, axis=3) | np.roll(grown, -1, axis=3)
         near = near | np.roll(near, 1, axis=2) | np.roll(near, -1, axis=2)
         up, down = np.zeros_like(near), np.zeros_like(near)
@@ -168,8 +168,17 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
 
 
 def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge):
-    """:func:`majorant_blocks` packed in the order the 3D kernel unpacks it."""
-    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, bskip, kclear, clear_below, clear_above)
+    """:func:`majorant_blocks` packed in the order the 3D kernel unpacks it.
+
+    The kernel reads first a uint8 block code: 0 for a block tracked at its majorant, 1 for
+    a block tracked at the clear-air rate ``kclear`` (no majorant read), ``r + 1`` for the
+    centre of a clear cube of radius ``r``.  The codes take a quarter of the memory of the
+    majorants and stay in the cache, which spares the walk a majorant read wherever it
+    crosses clear air.
+    """
+    clear_rate = kmaj <= kclear[:, None, None, None]
+    code = np.where(clear_rate, bskip.astype(np.int64) + 1, 0).astype(np.uint8)
+    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, code, kclear, clear_below, clear_above)
 
 
 def _ray_table_edges(nz, layers):
@@ -197,9 +206,11 @@ def direct_beam_column(ext, ssa, alb, z_edge, mu0):
 def tracking_arrays(ext, ssa, asym, independent_columns):
     """The float32 arrays the kernels trace with.
 
-    Returns ``(kext, ssa_g, column_props)``: for 3D tracing the extinction (nband, nz, ny,
-    nx) apart from the (…, 2) single-scattering albedo and asymmetry, so that tracking
-    touches little memory; for independent columns (nband, ny, nx, nz, 4) with each
+    Returns ``(kext, ssa_g, column_props)``.  For 3D tracing each cell's extinction,
+    single-scattering albedo and asymmetry sit side by side in one (nband, nz, ny, nx, 4)
+    array, of which ``kext`` (nband, nz, ny, nx) and ``ssa_g`` (..., 2) are views: a
+    collision finds its cell's albedo and asymmetry in the cache line the walk has just
+    read.  For independent columns ``column_props`` is (nband, ny, nx, nz, 4) with each
     column's properties contiguous.  Arrays of the other mode are empty placeholders.
     """
     nb = ext.shape[0]
@@ -208,9 +219,9 @@ def tracking_arrays(ext, ssa, asym, independent_columns):
         props[..., 0], props[..., 1], props[..., 2] = ext, ssa, asym
         column = np.ascontiguousarray(props.transpose(0, 2, 3, 1, 4))
         return np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1, 2), np.float32), column
-    ssa_g = np.empty(ext.shape + (2,), dtype=np.float32)
-    ssa_g[..., 0], ssa_g[..., 1] = ssa, asym
-    return np.ascontiguousarray(ext, dtype=np.float32), ssa_g, np.zeros((nb, 1, 1, 1, 4), np.float32)
+    optics = np.zeros(ext.shape + (4,), dtype=np.float32)
+    optics[..., 0], optics[..., 1], optics[..., 2] = ext, ssa, asym
+    return optics[..., 0], optics[..., 1:3], np.zeros((nb, 1, 1, 1, 4), np.float32)
 
 
 def _arrays(scene):
@@ -265,7 +276,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         1 tracks against every cell's own extinction.  Only the cost depends on it.
     clear_cube : int
         Largest radius (blocks) of the cubes of clear-air blocks a photon crosses in one
-        step (3D mode), in [0, 255]; 0 crosses every block.  Only the cost depends on it.
+        step (3D mode), in [0, 254]; 0 crosses every block.  Only the cost depends on it.
     roulette_weight : float
         Photon weight, relative to the starting weight, below which Russian roulette replaces
         absorption by weight; in (0, 1].  The default 0.3 stops tracing photons of small
@@ -312,7 +323,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     max_events = _check_int("max_scattering_events", max_scattering_events, 1)
     solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
     block = _check_int("majorant_block", majorant_block, 1, 64)
-    clear_cube = _check_int("clear_cube", clear_cube, 0, 255)
+    clear_cube = _check_int("clear_cube", clear_cube, 0, 254)
     if threads is not None:
         threads = _check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS)
 

@@ -221,7 +221,7 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
     # Photons launched straight up through a column of layers, absorbed at their first real
     # collision, must be absorbed in layer k with probability exp(-tau_above_k) (1 - exp(-tau_k))
     # and escape with exp(-tau) (Beer-Lambert law), whatever the majorant blocks (Woodcock et al. 1965).
-    from surrogate3d.solvers.montecarlo import majorant_blocks
+    from surrogate3d.solvers.montecarlo import _majorant_grid, majorant_blocks
 
     ext = np.zeros((1, 6, 4, 4), np.float32)
     ext[0, :, :, :] = np.array([0.002, 0.0001, 0.004, 0.001, 0.003, 0.0])[:, None, None]
@@ -234,7 +234,7 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
     expected = np.append(np.exp(-np.concatenate([[0.0], np.cumsum(tau)[:-1]])) * -np.expm1(-tau), np.exp(-tau.sum()))
     for block, cube in [(1, 0), (2, 1), (4, 2)]:
         kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, block, cube)
-        grid = (bx, by, bedge, z_edge[bedge], kmaj, bskip, kclear, below, above)
+        grid = _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, below, above, z_edge)
         col, cell, scale = np.zeros((1, 5, 4, 4)), np.zeros((6, 4, 4), np.int64), 2.0**61
         state = _rng.new_state()
         _rng.seed_stream(state, 3, block)
