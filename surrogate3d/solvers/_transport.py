@@ -18,7 +18,8 @@ surface) and are traced until they leave the top of the domain or are absorbed:
   therefore closes exactly in every run.
 
 Column tallies, per band: 0 upward at the top, 1 diffuse downward at the surface,
-2 upward at the surface, 3 absorbed in the atmospheric column, 4 absorbed at the surface.
+2 upward at the surface, 3 absorbed in the atmospheric column, 4 absorbed at the surface;
+stored last, (nband, ny, nx, 5), so that a surface hit updates one cache line.
 """
 
 import math
@@ -116,17 +117,17 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
     if w >= thresh and om <= WEIGHTED_ABSORPTION_MAX_ALBEDO:
         a = w * (1.0 - om)
         _deposit(cell, scale, iz, iy, ix, a)
-        col[b, ATM_ABS, iy, ix] += a
+        col[b, iy, ix, ATM_ABS] += a
         w -= a
         if w <= 0.0:
             return False, w, ux, uy, uz
     elif uniform(state) >= om:
         _deposit(cell, scale, iz, iy, ix, w)
-        col[b, ATM_ABS, iy, ix] += w
+        col[b, iy, ix, ATM_ABS] += w
         return False, w, ux, uy, uz
     if events >= max_events:
         _deposit(cell, scale, iz, iy, ix, w)
-        col[b, ATM_ABS, iy, ix] += w
+        col[b, iy, ix, ATM_ABS] += w
         return False, w, ux, uy, uz
     mu = hg_cosine(g, uniform(state))
     cp, sp = random_azimuth(state)
@@ -137,18 +138,18 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
 @njit(cache=True, inline="always", error_model="numpy")
 def _surface(state, w, b, iy, ix, thresh, alb, col):
     """Diffuse arrival at the Lambertian surface: tally, absorb, reflect.  Returns ``(alive, w)``."""
-    col[b, SFC_DOWN, iy, ix] += w
+    col[b, iy, ix, SFC_DOWN] += w
     albedo = alb[b, iy, ix]
     if w >= thresh:
         a = w * (1.0 - albedo)
-        col[b, SFC_ABS, iy, ix] += a
+        col[b, iy, ix, SFC_ABS] += a
         w -= a
         if w <= 0.0:
             return False, w
     elif uniform(state) >= albedo:
-        col[b, SFC_ABS, iy, ix] += w
+        col[b, iy, ix, SFC_ABS] += w
         return False, w
-    col[b, SFC_UP, iy, ix] += w
+    col[b, iy, ix, SFC_UP] += w
     return True, w
 
 
@@ -248,7 +249,7 @@ def _boundary(state, w, b, iy, ix, up, thresh, alb, col):
     """A photon reaching the top (tallied, gone) or the surface (:func:`_surface`, and a
     Lambertian direction if reflected).  Returns ``(alive, w, ux, uy, uz)``."""
     if up:
-        col[b, TOA_UP, iy, ix] += w
+        col[b, iy, ix, TOA_UP] += w
         return False, w, 0.0, 0.0, 1.0
     alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
     if not alive:
@@ -536,7 +537,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
         tau -= k * t
         if uz > 0.0:
             if iz == nz - 1:
-                col[b, TOA_UP, iy, ix] += w
+                col[b, iy, ix, TOA_UP] += w
                 return events
             iz += 1
             z = z_edge[iz]
@@ -622,15 +623,15 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
     added in batch order, so the sums do not depend on the number of threads.
-    ``col_sum`` (nband, 5, ny, nx) receives the batch tallies, ``col_sumsq`` (5, ny, nx)
-    the squares of the band-summed batch tallies and ``band_sumsq`` (nband, 5, ny, nx)
+    ``col_sum`` (nband, ny, nx, 5) receives the batch tallies, ``col_sumsq`` (ny, nx, 5)
+    the squares of the band-summed batch tallies and ``band_sumsq`` (nband, ny, nx, 5)
     the squares per band.  Cell absorption needs no batch-to-batch variance: every thread
     adds it to its own int64 array ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units
     of ``1 / scale``; integer sums make the total independent of which thread ran which
     batch.  Returns the scattering events.
     """
     nb, ny, nx = alb.shape
-    col_slots = np.zeros((wave, nb, N_TALLIES, ny, nx))
+    col_slots = np.zeros((wave, nb, ny, nx, N_TALLIES))
     slot_events = np.zeros(wave, dtype=np.int64)
     # 128 bytes for each 32-byte stream state: a state, written at every draw, then never
     # shares a cache line with another thread's.

@@ -356,8 +356,8 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         cdf = np.cumsum((source * weights[:, None]).reshape(-1))
 
         n_batches = max(2, -(-photons // batch_size))
-        col_sum = np.zeros((nb, _transport.N_TALLIES, ny, nx))
-        col_sumsq = np.zeros((_transport.N_TALLIES, ny, nx))
+        col_sum = np.zeros((nb, ny, nx, _transport.N_TALLIES))
+        col_sumsq = np.zeros((ny, nx, _transport.N_TALLIES))
         band_sumsq = np.zeros_like(col_sum)
         cell_sum = np.zeros((nz, ny, nx))
         events = 0
@@ -377,6 +377,9 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                     progress((first + n) * batch_size)
             cell_sum = cell_fixed.sum(axis=0) / scale
 
+    # The kernels keep a column's tallies side by side, (..., ny, nx, 5); tally first from here.
+    col_sum, band_sumsq = np.moveaxis(col_sum, -1, 1), np.moveaxis(band_sumsq, -1, 1)
+    col_sumsq = np.moveaxis(col_sumsq, -1, 0)
     mc_mean = col_sum / n_batches
     var = np.maximum(col_sumsq - col_sum.sum(axis=0) ** 2 / n_batches, 0.0) / (n_batches - 1)
     mc_se = np.sqrt(var / n_batches)

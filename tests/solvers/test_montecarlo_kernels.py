@@ -235,13 +235,13 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
     for block, cube in [(1, 0), (2, 1), (4, 2)]:
         kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, block, cube)
         grid = _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, below, above, z_edge)
-        col, cell, scale = np.zeros((1, 5, 4, 4)), np.zeros((6, 4, 4), np.int64), 2.0**61
+        col, cell, scale = np.zeros((1, 4, 4, 5)), np.zeros((6, 4, 4), np.int64), 2.0**61
         state = _rng.new_state()
         _rng.seed_stream(state, 3, block)
         n = 20000
         for _ in range(n):
             _transport.transport_3d(state, 0, 1.0 / n, 50.0, 50.0, 0.0, 0.0, 0.0, 1.0, ext, ssa_g, alb, z_edge,
                                     100.0, 100.0, grid, 0, 0, 0, 0.0, 10, col, cell, scale)
-        got = np.append(cell[:, 0, 0] / scale, col[0, _transport.TOA_UP, 0, 0])
+        got = np.append(cell[:, 0, 0] / scale, col[0, 0, 0, _transport.TOA_UP])
         np.testing.assert_allclose(got, expected, atol=4 * math.sqrt(0.25 / n))
         assert abs(got.sum() - 1.0) < 1e-12
