@@ -14,7 +14,10 @@ error of the surface downward (direct + diffuse) flux averaged over 800 m host c
 (8 x 8 cells), with the standard error from batch-to-batch (plain tracer) or run-to-run
 (ours) spread (``cpu_for_relative_se``).  It also prints ours as incident-photon equivalents
 (traced photons over the scattered fraction of the incident light, which is what a plain
-tracer's photons carry on average).
+tracer's photons carry on average).  The two tracers take turns (a quarter of the plain
+tracer's photons, then one of our runs), because the speed of these machines drifts by
+tens of percent within minutes; the geometric mean of the paired speed ratios is the
+figure to compare.
 
 Usage: python benchmarks/bench_plain_tracer.py [--photons N] [--ours-photons N] [--runs K] [--json FILE]
 """
@@ -148,8 +151,9 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
     return events, crossings
 
 
-def plain_tracer(scene, zenith, azimuth, photons, batches=32, seed=1):
-    """Per-batch surface downward and top upward fluxes per column, and the counts."""
+def plain_tracer(scene, zenith, azimuth, photons, batches=32, seed=1, first_batch=0):
+    """Per-batch surface downward and top upward fluxes per column, and the counts
+    (batches ``first_batch`` to ``first_batch + batches - 1`` of the seed's streams)."""
     kext = np.ascontiguousarray(scene["extinction"].values[0], dtype=np.float32)
     ssa = np.ascontiguousarray(scene["single_scattering_albedo"].values[0], dtype=np.float32)
     asym = np.ascontiguousarray(scene["asymmetry_parameter"].values[0], dtype=np.float32)
@@ -162,12 +166,12 @@ def plain_tracer(scene, zenith, azimuth, photons, batches=32, seed=1):
     down = np.zeros((batches, ny, nx))
     up = np.zeros((batches, ny, nx))
     state = np.zeros(16, np.uint64)
-    seed_stream(state, seed, batches)  # the warm-up call below uses its own stream
+    seed_stream(state, seed + 1_000_003, 0)  # the warm-up call below uses its own stream
     _trace_batch(state, 10, kext, ssa, asym, alb, z_edge, dx, dy, ux, uy, uz, down[0] * 0, up[0] * 0)
     events = crossings = 0
     cpu = time.process_time()
     for b in range(batches):
-        seed_stream(state, seed, b)
+        seed_stream(state, seed, first_batch + b)
         e, c = _trace_batch(state, per_batch, kext, ssa, asym, alb, z_edge, dx, dy, ux, uy, uz, down[b], up[b])
         events, crossings = events + e, crossings + c
     cpu = time.process_time() - cpu
@@ -185,19 +189,30 @@ def main(argv=None):
     args = parser.parse_args(argv)
     scene, zenith, azimuth = convert(args.scene)
 
-    down, up, photons, events, crossings, cpu = plain_tracer(scene, zenith, azimuth, args.photons)
-    host = np.array([host_means(d) for d in down])
-    rel_se = host.std(axis=0, ddof=1) / math.sqrt(len(host)) / host.mean(axis=0)
-    plain_cpu_half = cpu_for_relative_se(cpu, rel_se, len(host) - 1)
-
+    # The two tracers take turns, a quarter of the plain tracer's photons then one of our
+    # runs, so that both see the same drifts of the machine's speed; each pair gives a
+    # ratio of speeds.
     solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1)
-    ours, ours_cpu, direct = [], [], []
+    per_turn = 8
+    down, up, ours, ours_cpu, direct, ratios = [], [], [], [], [], []
+    photons = events = crossings = 0
+    cpu = 0.0
     for k in range(args.runs):
+        d, u, n, e, c, t = plain_tracer(scene, zenith, azimuth, args.photons // args.runs, batches=per_turn,
+                                        first_batch=k * per_turn)
+        down.append(d)
+        up.append(u)
+        photons, events, crossings, cpu = photons + n, events + e, crossings + c, cpu + t
         t0 = time.process_time()
         out = solve_monte_carlo(scene, zenith, azimuth, photons=args.ours_photons, seed=200 + k, threads=1)
         ours_cpu.append(time.process_time() - t0)
         ours.append(host_means(out.surface_downward_direct_flux.values + out.surface_downward_diffuse_flux.values))
         direct.append(out)
+        ratios.append((int(out.photons) / ours_cpu[-1]) / (n / t))
+    down, up = np.concatenate(down), np.concatenate(up)
+    host = np.array([host_means(d) for d in down])
+    rel_se = host.std(axis=0, ddof=1) / math.sqrt(len(host)) / host.mean(axis=0)
+    plain_cpu_half = cpu_for_relative_se(cpu, rel_se, len(host) - 1)
     ours = np.array(ours)
     ours_rel = ours.std(axis=0, ddof=1) / ours.mean(axis=0)
     ours_cpu_half = cpu_for_relative_se(np.mean(ours_cpu), ours_rel, args.runs - 1)
@@ -206,7 +221,8 @@ def main(argv=None):
     # The scattered fraction: incident light not absorbed unscattered at the surface nor in
     # the atmosphere (direct-beam absorption in the atmosphere is below 1e-3 here).
     scattered = 1.0 - float(((1.0 - alb) * out.surface_downward_direct_flux.values).mean())
-    ours_pps = int(out.photons) / min(ours_cpu)
+    ours_pps = int(out.photons) * args.runs / sum(ours_cpu)
+    paired = math.exp(np.mean(np.log(ratios)))
 
     figures = {
         "plain_photons_per_second_per_core": photons / cpu,
@@ -222,6 +238,8 @@ def main(argv=None):
         "ours_domain_mean_surface_downward_flux": float(ours.mean()),
         "ours_domain_mean_toa_upward_flux": float(np.mean([float(o.toa_upward_flux.mean()) for o in direct])),
         "ours_cpu_seconds_for_0.5pct_se_800m_surface_downward": ours_cpu_half,
+        "ours_over_plain_photons_per_second_paired": paired,
+        "ours_over_plain_incident_photon_equivalents_paired": paired / scattered,
         "cpu_to_0.5pct_se_plain_over_ours": plain_cpu_half / ours_cpu_half,
     }
     width = max(map(len, figures))
