@@ -62,6 +62,15 @@ def _moved(x, y, z, t, ux, uy, uz, lx, ly):
     return x - math.floor(x / lx) * lx, y - math.floor(y / ly) * ly, z + t * uz
 
 
+@njit(cache=True, inline="always")
+def _periodic_step(i, step, n):
+    """Cell index one step on along an axis, wrapped periodically."""
+    i += step
+    if i == n:
+        return 0
+    return n - 1 if i < 0 else i
+
+
 @njit(**KERNEL)
 def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, down, up):
     """Trace ``n`` photons of weight 1/n; add surface arrivals to ``down`` and top exits to
@@ -112,18 +121,10 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
                 t = tn
                 crossings += 1
                 if tn == tmx:
-                    ix += sx
-                    if ix == nx:
-                        ix = 0
-                    elif ix < 0:
-                        ix = nx - 1
+                    ix = _periodic_step(ix, sx, nx)
                     tmx += ddx
                 elif tn == tmy:
-                    iy += sy
-                    if iy == ny:
-                        iy = 0
-                    elif iy < 0:
-                        iy = ny - 1
+                    iy = _periodic_step(iy, sy, ny)
                     tmy += ddy
                 elif uz > 0.0:
                     iz += 1

@@ -270,6 +270,18 @@ def _walk_axis(u, iu, ib, size, pos):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def _next_block(ib, step, n, origin, length):
+    """The next block along an axis (periodic), and the walk's origin shifted with a wrap so
+    that positions computed from it stay inside the domain."""
+    ib += step
+    if ib == n:
+        return 0, origin - length
+    if ib < 0:
+        return n - 1, origin + length
+    return ib, origin
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def _face(u, ib, size):
     # The face through which a walk along direction cosine u has just entered block ib.
     return ib * size if u > 0.0 else (ib + 1) * size
@@ -351,23 +363,11 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                 tau -= d
                 t = tn
                 if tmx <= tmy and tmx <= tmz:
-                    ibx += sx
-                    if ibx == nbx:
-                        ibx = 0
-                        x0 -= lx
-                    elif ibx < 0:
-                        ibx = nbx - 1
-                        x0 += lx
+                    ibx, x0 = _next_block(ibx, sx, nbx, x0, lx)
                     tmx += dtx
                     axis = 0  # the face the run stopped on, if it stops: 0 x, 1 y, 2 z
                 elif tmy <= tmz:
-                    iby += sy
-                    if iby == nby:
-                        iby = 0
-                        y0 -= ly
-                    elif iby < 0:
-                        iby = nby - 1
-                        y0 += ly
+                    iby, y0 = _next_block(iby, sy, nby, y0, ly)
                     tmy += dty
                     axis = 1
                 else:
