@@ -245,3 +245,39 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
         got = np.append(cell[:, 0, 0] / scale, col[0, 0, 0, _transport.TOA_UP])
         np.testing.assert_allclose(got, expected, atol=4 * math.sqrt(0.25 / n))
         assert abs(got.sum() - 1.0) < 1e-12
+
+
+@pytest.mark.parametrize("block, cube", [(1, 0), (1, 1), (2, 1)])
+def test_oblique_free_paths_follow_beer_lambert_along_the_wrapped_slant_path(block, cube):
+    # Photons leaving the surface obliquely through a heterogeneous periodic grid, absorbed at
+    # their first real collision, escape at the top with probability exp(-tau) along their
+    # slant path, wrapped around the domain twice (Beer-Lambert law; Woodcock et al.
+    # 1965 for the null collisions).  The walk crosses cloud, clear cells next to cloud and
+    # clear cubes; tau comes from fine midpoint sampling of the same path in plain Python.
+    from surrogate3d.solvers.montecarlo import _majorant_grid, majorant_blocks, tracking_arrays
+
+    rng = np.random.default_rng(21)
+    ext = np.full((1, 6, 8, 8), 2e-6)
+    ext[0, 3:] = np.where(rng.random((3, 8, 8)) < 0.4, rng.uniform(0.0005, 0.003, (3, 8, 8)), 2e-6)
+    ext[0, 1, 2, 5] = 0.002
+    z_edge = np.array([0.0, 150.0, 300.0, 400.0, 600.0, 800.0, 1000.0])
+    kext, ssa_g, _ = tracking_arrays(ext, np.zeros_like(ext), np.zeros_like(ext), False)
+    grid = _majorant_grid(*majorant_blocks(kext, z_edge, 100.0, 100.0, block, cube), z_edge)
+    alb = np.zeros((1, 8, 8))
+    u = np.array([0.8, 0.3, 0.0])
+    u[2] = math.sqrt(1.0 - u[0] ** 2 - u[1] ** 2)
+    x0, y0 = 130.0, 470.0
+    path = z_edge[-1] / u[2]
+    top = (x0 + path * u[0], y0 + path * u[1])
+    tau = _brute_force_tau(ext.astype(np.float32).astype(float), z_edge, 100.0, 100.0, *top, -u)[0]
+    col, cell, scale = np.zeros((1, 8, 8, 5)), np.zeros((6, 8, 8), np.int64), 2.0**61
+    state = _rng.new_state()
+    _rng.seed_stream(state, 5, block + 10 * cube)
+    n = 20000
+    for _ in range(n):
+        _transport.transport_3d(state, 0, 1.0 / n, x0, y0, 0.0, *u, kext, ssa_g, alb, z_edge, 100.0, 100.0, grid,
+                                1, 4, 0, 0.0, 10, col, cell, scale)
+    escaped = col[0, :, :, _transport.TOA_UP].sum()
+    p = math.exp(-tau)
+    assert abs(escaped - p) < 4 * math.sqrt(p * (1 - p) / n), (escaped, p)
+    assert abs(escaped + cell.sum() / scale - 1.0) < 1e-12
