@@ -37,6 +37,7 @@ from bench_montecarlo import SHARED, convert, host_means, cpu_for_relative_se  #
 
 from surrogate3d.scenes.model import spacing  # noqa: E402
 from surrogate3d.solvers import solve_monte_carlo  # noqa: E402
+from surrogate3d.solvers._geometry import periodic_step  # noqa: E402
 from surrogate3d.solvers._kernel import KERNEL  # noqa: E402
 from surrogate3d.solvers._rng import seed_stream, uniform, uniform_open  # noqa: E402
 from surrogate3d.solvers._transport import hg_cosine, lambertian_up, random_azimuth, rotate  # noqa: E402
@@ -60,15 +61,6 @@ def _moved(x, y, z, t, ux, uy, uz, lx, ly):
     """The point a distance ``t`` along the direction, wrapped into the domain."""
     x, y = x + t * ux, y + t * uy
     return x - math.floor(x / lx) * lx, y - math.floor(y / ly) * ly, z + t * uz
-
-
-@njit(cache=True, inline="always")
-def _periodic_step(i, step, n):
-    """Cell index one step on along an axis, wrapped periodically."""
-    i += step
-    if i == n:
-        return 0
-    return n - 1 if i < 0 else i
 
 
 @njit(**KERNEL)
@@ -121,10 +113,10 @@ def _trace_batch(state, n, kext, ssa, asym, alb, z_edge, dx, dy, ux0, uy0, uz0, 
                 t = tn
                 crossings += 1
                 if tn == tmx:
-                    ix = _periodic_step(ix, sx, nx)
+                    ix = periodic_step(ix, sx, nx)
                     tmx += ddx
                 elif tn == tmy:
-                    iy = _periodic_step(iy, sy, ny)
+                    iy = periodic_step(iy, sy, ny)
                     tmy += ddy
                 elif uz > 0.0:
                     iz += 1

@@ -22,28 +22,53 @@ INF = math.inf
 
 
 @njit(cache=True, inline="always")
-def next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge):
-    """Distance to the next cell face along (ux, uy, uz) and the axis crossed (0 x, 1 y, 2 z)."""
-    tx = INF
-    if ux > 0.0:
-        tx = ((ix + 1) * dx - x) / ux
-    elif ux < 0.0:
-        tx = (ix * dx - x) / ux
-    ty = INF
-    if uy > 0.0:
-        ty = ((iy + 1) * dy - y) / uy
-    elif uy < 0.0:
-        ty = (iy * dy - y) / uy
-    tz = INF
-    if uz > 0.0:
-        tz = (z_edge[iz + 1] - z) / uz
-    elif uz < 0.0:
-        tz = (z_edge[iz] - z) / uz
-    if tx <= ty and tx <= tz:
-        return max(tx, 0.0), 0
-    if ty <= tz:
-        return max(ty, 0.0), 1
-    return max(tz, 0.0), 2
+def periodic_step(i, step, n):
+    """Cell index one step on along an axis, wrapped periodically."""
+    i += step
+    if i == n:
+        return 0
+    return n - 1 if i < 0 else i
+
+
+@njit(cache=True, inline="always")
+def _axis_start(u, i, d, pos):
+    # Step, distance between faces and distance to the first face along one axis.
+    if u > 0.0:
+        return 1, d / u, max(((i + 1) * d - pos) / u, 0.0)
+    if u < 0.0:
+        return -1, -d / u, max((i * d - pos) / u, 0.0)
+    return 0, INF, INF
+
+
+@njit(cache=True, inline="always")
+def descent_start(x, y, z, ix, iy, iz, ux, uy, uz, dx, dy, z_edge):
+    """Set up a walk down a ray (``uz < 0``) from (x, y, z) in cell (iz, iy, ix).
+
+    The walk is incremental (Amanatides and Woo 1987): the distances along the ray to the
+    next x and y faces grow by one cell's crossing length per crossing, so no crossing
+    divides.  Returns ``(sx, dtx, tmx, sy, dty, tmy, tmz)``: cell steps, distances between
+    faces and distances to the next face for x and y, and the distance to the cell's bottom.
+    """
+    sx, dtx, tmx = _axis_start(ux, ix, dx, x)
+    sy, dty, tmy = _axis_start(uy, iy, dy, y)
+    return sx, dtx, tmx, sy, dty, tmy, max((z_edge[iz] - z) / uz, 0.0)
+
+
+@njit(cache=True, inline="always")
+def descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny, z0, uz, z_edge):
+    """Cross the nearest face of a walk set up by :func:`descent_start` from height ``z0``,
+    with periodic wrap; at a bottom face ``iz`` drops (to -1 at the surface).
+
+    Returns ``(ix, iy, iz, tmx, tmy, tmz, axis)``, axis 0 x, 1 y, 2 z.
+    """
+    if tmx <= tmy and tmx <= tmz:
+        return periodic_step(ix, sx, nx), iy, iz, tmx + dtx, tmy, tmz, 0
+    if tmy <= tmz:
+        return ix, periodic_step(iy, sy, ny), iz, tmx, tmy + dty, tmz, 1
+    iz -= 1
+    if iz >= 0:
+        tmz = (z_edge[iz] - z0) / uz
+    return ix, iy, iz, tmx, tmy, tmz, 2
 
 
 @njit(cache=True, inline="always")
@@ -55,39 +80,6 @@ def ray_entry(r, nx, nsub, dx, dy):
     ix = col % nx
     iy = col // nx
     return ix, iy, (ix + (c + 0.5) / nsub) * dx, (iy + (a + 0.5) / nsub) * dy
-
-
-@njit(cache=True, inline="always")
-def _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy):
-    """Move across the face on ``axis``; snap to it and wrap periodically."""
-    if axis == 0:
-        if ux > 0.0:
-            ix += 1
-            if ix == nx:
-                ix = 0
-            x = ix * dx
-        else:
-            ix -= 1
-            if ix < 0:
-                ix = nx - 1
-            x = (ix + 1) * dx
-    elif axis == 1:
-        if uy > 0.0:
-            iy += 1
-            if iy == ny:
-                iy = 0
-            y = iy * dy
-        else:
-            iy -= 1
-            if iy < 0:
-                iy = ny - 1
-            y = (iy + 1) * dy
-    else:
-        if uz > 0.0:
-            iz += 1
-        else:
-            iz -= 1
-    return x, y, ix, iy, iz
 
 
 def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
@@ -156,34 +148,33 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
         trans[:] = wray
         ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
         iz = nz - 1
-        z = z_edge[nz]
+        z0 = z_edge[nz]
         for b in range(nb):
             ray_trans[b, r, 0] = wray
+        sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x, y, z0, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
+        t = 0.0
         while True:
-            t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
+            tn = min(tmx, tmy, tmz)
             for b in range(nb):
                 k = ext[b, iz, iy, ix]
                 if k > 0.0:
-                    t_out = trans[b] * math.exp(-k * t)
+                    t_out = trans[b] * math.exp(-k * (tn - t))
                     removed = trans[b] - t_out
                     w = ssa[b, iz, iy, ix]
                     mine[b, iz, iy, ix] += np.int64((1.0 - w) * removed * scale + 0.5)
                     source[b, r] += w * removed
                     trans[b] = t_out
-            x += t * ux
-            y += t * uy
-            z += t * uz
+            t = tn
+            ix, iy, iz, tmx, tmy, tmz, axis = descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny,
+                                                            z0, uz, z_edge)
             if axis == 2:
-                j = edge_slot[iz]
+                j = edge_slot[iz + 1]
                 if j >= 0:
                     for b in range(nb):
                         ray_cum[b, r, j] = source[b, r]
                         ray_trans[b, r, j] = trans[b]
-                if iz == 0:
+                if iz < 0:
                     break
-            x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
-            if axis == 2:
-                z = z_edge[iz + 1]
         ray_column[r] = iy * nx + ix
         for b in range(nb):
             ray_surface[b, r] = trans[b]
@@ -198,6 +189,22 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
         total += absorbed_fixed[i]
     absorbed = total / scale
     return absorbed, surface, source, ray_cum, ray_trans
+
+
+@njit(cache=True, inline="always")
+def _near_cell(pos, i, d, length):
+    # The periodic image of pos nearest to cell i, held inside the cell against round-off.
+    lo = i * d
+    pos -= length * math.floor((pos - lo - 0.5 * d) / length + 0.5)
+    return min(max(pos, lo), lo + d)
+
+
+@njit(cache=True, inline="always")
+def _point_in_cell(x, y, z, t, ux, uy, uz, ix, iy, iz, dx, dy, lx, ly, z_edge):
+    """The point a distance ``t`` down the ray from (x, y, z), which the walk found in cell
+    (iz, iy, ix): wrapped into the domain and kept in that cell against round-off."""
+    return (_near_cell(x + t * ux, ix, dx, lx), _near_cell(y + t * uy, iy, dy, ly),
+            min(max(z + t * uz, z_edge[iz]), z_edge[iz + 1]))
 
 
 @njit(**KERNEL)
@@ -231,39 +238,41 @@ def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsu
         iz = czi[cz + 1] - 1
         trans = ray_trans[band, r, j]
         cum = row[j]
+        sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x, y, z, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
+        t = 0.0
         last_ix, last_iy, last_iz = -1, -1, -1
-        last_x = last_y = last_z = last_t = 0.0
+        last_t = 0.0
         while True:
-            t, axis = next_crossing(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge)
+            tn = min(tmx, tmy, tmz)
+            seg = tn - t
             k = float(kext[band, iz, iy, ix])
             if k > 0.0:
-                kt = k * t
+                kt = k * seg
                 t_out = trans * math.exp(-kt)
                 gain = float(ssa_g[band, iz, iy, ix, 0]) * (trans - t_out)
                 if gain > 0.0:
                     if cum + gain > target:
                         if kt < 1e-9:
-                            s = u * t
+                            s = u * seg
                         else:
                             s = -math.log1p(u * math.expm1(-kt)) / k
-                        s = min(s, t)
-                        return 0, x + s * ux, y + s * uy, z + s * uz, ix, iy, iz
+                        px, py, pz = _point_in_cell(x, y, z, t + min(s, seg), ux, uy, uz, ix, iy, iz, dx, dy, lx, ly,
+                                                    z_edge)
+                        return 0, px, py, pz, ix, iy, iz
                     cum += gain
                     last_ix, last_iy, last_iz = ix, iy, iz
-                    last_x, last_y, last_z, last_t = x, y, z, t
+                    last_t = t + 0.5 * seg
                 trans = t_out
-            x += t * ux
-            y += t * uy
-            z += t * uz
-            if axis == 2 and iz == 0:
+            t = tn
+            ix, iy, iz, tmx, tmy, tmz, _ = descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny, z, uz,
+                                                         z_edge)
+            if iz < 0:
                 break
-            x, y, ix, iy, iz = _advance(axis, x, y, ix, iy, iz, ux, uy, uz, nx, ny, dx, dy)
-            if axis == 2:
-                z = z_edge[iz + 1]
         if last_ix >= 0:
             # Round-off left the target just beyond the block's sum: use the last source cell.
-            s = 0.5 * last_t
-            return 0, last_x + s * ux, last_y + s * uy, last_z + s * uz, last_ix, last_iy, last_iz
+            px, py, pz = _point_in_cell(x, y, z, last_t, ux, uy, uz, last_ix, last_iy, last_iz, dx, dy, lx, ly,
+                                        z_edge)
+            return 0, px, py, pz, last_ix, last_iy, last_iz
     path = z_edge[nz] / -uz
     x = (x0 + path * ux) % lx
     y = (y0 + path * uy) % ly
