@@ -553,6 +553,20 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             tau = -math.log(uniform_open(state))
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def _next_above(cdf, k, last, u):
+    """The first index after ``k`` (``cdf[k] <= u``) where the rising ``cdf`` exceeds ``u``,
+    at most ``last``.  Galloping from ``k``: consecutive stratified photons draw nearby
+    sources, so this touches a few neighbouring entries where a search of the whole rest
+    of the table would jump across it."""
+    lo, step = k, 1
+    while lo + step <= last and cdf[lo + step] <= u:
+        lo += step
+        step *= 2
+    hi = min(lo + step, last + 1)
+    return min(lo + 1 + np.searchsorted(cdf[lo + 1:hi], u, side="right"), last)
+
+
 @njit(**KERNEL)
 def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
                z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans, roulette, max_events, col, cell, scale):
@@ -579,9 +593,7 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays,
         # start in neighbouring rays, whose cells are then already in the cache.
         u = (i + uniform(state)) / batch_size * total
         if k < last and cdf[k] <= u:
-            k += np.searchsorted(cdf[k:], u, side="right")
-            if k > last:
-                k = last
+            k = _next_above(cdf, k, last, u)
         below = cdf[k - 1] if k > 0 else 0.0
         b = k // nrays
         r = k - b * nrays

@@ -281,3 +281,18 @@ def test_oblique_free_paths_follow_beer_lambert_along_the_wrapped_slant_path(blo
     p = math.exp(-tau)
     assert abs(escaped - p) < 4 * math.sqrt(p * (1 - p) / n), (escaped, p)
     assert abs(escaped + cell.sum() / scale - 1.0) < 1e-12
+
+
+def test_galloping_source_search_matches_a_binary_search():
+    # The first index where a cumulative table exceeds u, found by galloping from the previous
+    # photon's index, must equal numpy's binary search of the whole table (clamped to the end).
+    rng = np.random.default_rng(4)
+    cdf = np.cumsum(np.where(rng.random(500) < 0.3, 0.0, rng.random(500)))  # flat runs: empty rays
+    last = cdf.size - 1
+    for _ in range(2000):
+        k = int(rng.integers(0, last))
+        u = cdf[k] + rng.random() * (cdf[-1] - cdf[k]) * rng.choice([1e-3, 0.1, 1.0])
+        if cdf[k] > u:
+            continue
+        expected = min(int(np.searchsorted(cdf, u, side="right")), last)
+        assert _transport._next_above(cdf, k, last, u) == expected
