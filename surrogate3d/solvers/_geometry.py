@@ -31,12 +31,14 @@ def periodic_step(i, step, n):
 
 
 @njit(cache=True, inline="always")
-def _axis_start(u, i, d, pos):
-    # Step, distance between faces and distance to the first face along one axis.
+def axis_start(u, iu, i, d, pos):
+    """Step, distance between faces and distance to the first face along one axis of an
+    incremental walk from ``pos`` in cell ``i`` of size ``d`` (direction cosine ``u``,
+    its inverse ``iu``)."""
     if u > 0.0:
-        return 1, d / u, max(((i + 1) * d - pos) / u, 0.0)
+        return 1, d * iu, max(((i + 1) * d - pos) * iu, 0.0)
     if u < 0.0:
-        return -1, -d / u, max((i * d - pos) / u, 0.0)
+        return -1, -d * iu, max((i * d - pos) * iu, 0.0)
     return 0, INF, INF
 
 
@@ -49,8 +51,8 @@ def descent_start(x, y, z, ix, iy, iz, ux, uy, uz, dx, dy, z_edge):
     divides.  Returns ``(sx, dtx, tmx, sy, dty, tmy, tmz)``: cell steps, distances between
     faces and distances to the next face for x and y, and the distance to the cell's bottom.
     """
-    sx, dtx, tmx = _axis_start(ux, ix, dx, x)
-    sy, dty, tmy = _axis_start(uy, iy, dy, y)
+    sx, dtx, tmx = axis_start(ux, 1.0 / ux if ux != 0.0 else 0.0, ix, dx, x)
+    sy, dty, tmy = axis_start(uy, 1.0 / uy if uy != 0.0 else 0.0, iy, dy, y)
     return sx, dtx, tmx, sy, dty, tmy, max((z_edge[iz] - z) / uz, 0.0)
 
 

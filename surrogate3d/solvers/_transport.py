@@ -27,7 +27,7 @@ import math
 import numpy as np
 from numba import get_thread_id, njit, prange
 
-from ._geometry import locate_source_3d, locate_source_column
+from ._geometry import axis_start, locate_source_3d, locate_source_column
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 
@@ -259,17 +259,6 @@ def _boundary(state, w, b, iy, ix, up, thresh, alb, col):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _walk_axis(u, iu, ib, size, pos):
-    """Step, distance between faces and distance to the first face along one axis of an
-    incremental block walk from ``pos`` in block ``ib`` (direction cosine ``u``, inverse ``iu``)."""
-    if u > 0.0:
-        return 1, size * iu, max(((ib + 1) * size - pos) * iu, 0.0)
-    if u < 0.0:
-        return -1, -size * iu, max((ib * size - pos) * iu, 0.0)
-    return 0, math.inf, math.inf
-
-
-@njit(cache=True, inline="always", error_model="numpy")
 def _next_block(ib, step, n, origin, length):
     """The next block along an axis (periodic), and the walk's origin shifted with a wrap so
     that positions computed from it stay inside the domain."""
@@ -347,8 +336,8 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
             # each crossing adds one block's length to one axis' face distance, and the
             # position is only brought up to date where the run ends.
             k_major = kmaj[b, ibz, iby, ibx] if code == 0 else kc
-            sx, dtx, tmx = _walk_axis(ux, iux, ibx, bdx, x)
-            sy, dty, tmy = _walk_axis(uy, iuy, iby, bdy, y)
+            sx, dtx, tmx = axis_start(ux, iux, ibx, bdx, x)
+            sy, dty, tmy = axis_start(uy, iuy, iby, bdy, y)
             tmz = max(((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z) * iuz, 0.0)
             sz = 1 if uz > 0.0 else -1
             x0, y0, z0 = x, y, z
