@@ -18,8 +18,12 @@ surface) and are traced until they leave the top of the domain or are absorbed:
   therefore closes exactly in every run.
 
 Column tallies, per band: 0 upward at the top, 1 diffuse downward at the surface,
-2 upward at the surface, 3 absorbed in the atmospheric column, 4 absorbed at the surface;
-stored last, (nband, ny, nx, 5), so that a surface hit updates one cache line.
+2 absorbed in the atmospheric column, 3 absorbed at the surface; stored last,
+(nband, ny, nx, 4): a column's 32-byte record never straddles two cache lines, so a
+surface hit updates one.  The upward flux at the surface is what reaches it minus what
+it absorbs, hit by hit, and is formed per batch when the batches are summed
+(:func:`run_batches`, tally 2 of the sums, which are (..., 5) in the order
+:data:`SUM_NAMES`).
 """
 
 import math
@@ -31,12 +35,15 @@ from ._geometry import axis_start, locate_source_3d, locate_source_column
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 
-TOA_UP, SFC_DOWN, SFC_UP, ATM_ABS, SFC_ABS = 0, 1, 2, 3, 4
+TOA_UP, SFC_DOWN, ATM_ABS, SFC_ABS = 0, 1, 2, 3
 #: Above this single-scattering albedo the roulette books absorption: a weighted deposit of
 #: less than 1e-3 of the weight at every collision would cost a memory write each for a
 #: small variance gain.  Both estimators are unbiased.
 WEIGHTED_ABSORPTION_MAX_ALBEDO = 0.999
-N_TALLIES = 5
+N_TALLIES = 4
+#: The column sums of :func:`run_batches`, in order.
+SUM_NAMES = ("toa_upward", "surface_downward_diffuse", "surface_upward", "atmosphere_absorbed",
+             "surface_absorbed")
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -149,7 +156,6 @@ def _surface(state, w, b, iy, ix, thresh, alb, col):
     elif uniform(state) >= albedo:
         col[b, iy, ix, SFC_ABS] += w
         return False, w
-    col[b, iy, ix, SFC_UP] += w
     return True, w
 
 
@@ -609,6 +615,21 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays,
     return events
 
 
+@njit(cache=True, inline="always")
+def _add_batch(csum, bsq, b, m, v0, v1, v2, v3, v4):
+    # One batch's five column sums (in the order SUM_NAMES) and their squares, band b.
+    csum[b, m] += v0
+    csum[b, m + 1] += v1
+    csum[b, m + 2] += v2
+    csum[b, m + 3] += v3
+    csum[b, m + 4] += v4
+    bsq[b, m] += v0 * v0
+    bsq[b, m + 1] += v1 * v1
+    bsq[b, m + 2] += v2 * v2
+    bsq[b, m + 3] += v3 * v3
+    bsq[b, m + 4] += v4 * v4
+
+
 @njit(cache=True, parallel=True)
 def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, nrays,
                 kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans,
@@ -617,12 +638,13 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
     added in batch order, so the sums do not depend on the number of threads.
-    ``col_sum`` (nband, ny, nx, 5) receives the batch tallies, ``col_sumsq`` (ny, nx, 5)
-    the squares of the band-summed batch tallies and ``band_sumsq`` (nband, ny, nx, 5)
-    the squares per band.  Cell absorption needs no batch-to-batch variance: every thread
-    adds it to its own int64 array ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units
-    of ``1 / scale``; integer sums make the total independent of which thread ran which
-    batch.  Returns the scattering events.
+    ``col_sum`` (nband, ny, nx, 5) receives the batch tallies (in the order
+    :data:`SUM_NAMES`), ``col_sumsq`` (ny, nx, 5) the squares of the band-summed batch
+    tallies and ``band_sumsq`` (nband, ny, nx, 5) the squares per band.  Cell absorption
+    needs no batch-to-batch variance: every thread adds it to its own int64 array
+    ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units of ``1 / scale``; integer sums
+    make the total independent of which thread ran which batch.  Returns the scattering
+    events.
     """
     nb, ny, nx = alb.shape
     col_slots = np.zeros((wave, nb, ny, nx, N_TALLIES))
@@ -630,11 +652,12 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
     # 128 bytes for each 32-byte stream state: a state, written at every draw, then never
     # shares a cache line with another thread's.
     states = np.zeros((wave, 16), dtype=np.uint64)
-    ncol = N_TALLIES * ny * nx
+    ncol = ny * nx
+    nsum = len(SUM_NAMES)
     total_events = 0
-    csum = col_sum.reshape(nb, ncol)
-    csq = col_sumsq.reshape(ncol)
-    bsq = band_sumsq.reshape(nb, ncol)
+    csum = col_sum.reshape(nb, ncol * nsum)
+    csq = col_sumsq.reshape(ncol * nsum)
+    bsq = band_sumsq.reshape(nb, ncol * nsum)
     for start in range(first_batch, first_batch + n_batches, wave):
         n = min(wave, first_batch + n_batches - start)
         for i in prange(n):
@@ -644,14 +667,20 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
                                         grid, czi, ray_cum, ray_trans, roulette,
                                         max_events, col_slots[i], cell_fixed[get_thread_id()], scale)
         for i in range(n):
-            cs = col_slots[i].reshape(nb, ncol)
+            cs = col_slots[i].reshape(nb, ncol * N_TALLIES)
             for j in range(ncol):
-                acc = 0.0
+                k = j * N_TALLIES
+                s0 = s1 = s2 = s3 = s4 = 0.0
                 for b in range(nb):
-                    v = cs[b, j]
-                    csum[b, j] += v
-                    bsq[b, j] += v * v
-                    acc += v
-                csq[j] += acc * acc
+                    v0, v1, v3, v4 = cs[b, k + TOA_UP], cs[b, k + SFC_DOWN], cs[b, k + ATM_ABS], cs[b, k + SFC_ABS]
+                    v2 = v1 - v4
+                    _add_batch(csum, bsq, b, j * nsum, v0, v1, v2, v3, v4)
+                    s0, s1, s2, s3, s4 = s0 + v0, s1 + v1, s2 + v2, s3 + v3, s4 + v4
+                m = j * nsum
+                csq[m] += s0 * s0
+                csq[m + 1] += s1 * s1
+                csq[m + 2] += s2 * s2
+                csq[m + 3] += s3 * s3
+                csq[m + 4] += s4 * s4
             total_events += slot_events[i]
     return total_events

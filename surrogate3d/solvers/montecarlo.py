@@ -356,8 +356,8 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         cdf = np.cumsum((source * weights[:, None]).reshape(-1))
 
         n_batches = max(2, -(-photons // batch_size))
-        col_sum = np.zeros((nb, ny, nx, _transport.N_TALLIES))
-        col_sumsq = np.zeros((ny, nx, _transport.N_TALLIES))
+        col_sum = np.zeros((nb, ny, nx, len(_transport.SUM_NAMES)))
+        col_sumsq = np.zeros((ny, nx, len(_transport.SUM_NAMES)))
         band_sumsq = np.zeros_like(col_sum)
         cell_sum = np.zeros((nz, ny, nx))
         events = 0
@@ -377,7 +377,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                     progress((first + n) * batch_size)
             cell_sum = cell_fixed.sum(axis=0) / scale
 
-    # The kernels keep a column's tallies side by side, (..., ny, nx, 5); tally first from here.
+    # The batch sums keep a column's tallies side by side, (..., ny, nx, 5); tally first from here.
     col_sum, band_sumsq = np.moveaxis(col_sum, -1, 1), np.moveaxis(band_sumsq, -1, 1)
     col_sumsq = np.moveaxis(col_sumsq, -1, 0)
     mc_mean = col_sum / n_batches

@@ -235,7 +235,7 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
     for block, cube in [(1, 0), (2, 1), (4, 2)]:
         kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, block, cube)
         grid = _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, below, above, z_edge)
-        col, cell, scale = np.zeros((1, 4, 4, 5)), np.zeros((6, 4, 4), np.int64), 2.0**61
+        col, cell, scale = np.zeros((1, 4, 4, _transport.N_TALLIES)), np.zeros((6, 4, 4), np.int64), 2.0**61
         state = _rng.new_state()
         _rng.seed_stream(state, 3, block)
         n = 20000
@@ -270,7 +270,7 @@ def test_oblique_free_paths_follow_beer_lambert_along_the_wrapped_slant_path(blo
     path = z_edge[-1] / u[2]
     top = (x0 + path * u[0], y0 + path * u[1])
     tau = _brute_force_tau(ext.astype(np.float32).astype(float), z_edge, 100.0, 100.0, *top, -u)[0]
-    col, cell, scale = np.zeros((1, 8, 8, 5)), np.zeros((6, 8, 8), np.int64), 2.0**61
+    col, cell, scale = np.zeros((1, 8, 8, _transport.N_TALLIES)), np.zeros((6, 8, 8), np.int64), 2.0**61
     state = _rng.new_state()
     _rng.seed_stream(state, 5, block + 10 * cube)
     n = 20000
