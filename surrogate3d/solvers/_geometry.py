@@ -84,6 +84,17 @@ def ray_entry(r, nx, nsub, dx, dy):
     return ix, iy, (ix + (c + 0.5) / nsub) * dx, (iy + (a + 0.5) / nsub) * dy
 
 
+@njit(cache=True, inline="always")
+def _apply_pending(trans, pending, source, b, r):
+    # Attenuate band b of the beam by the optical depth of the conservative cells crossed
+    # since the last update; all it removed is scattered (the source of ray r).
+    if pending[b] > 0.0:
+        t_out = trans[b] * math.exp(-pending[b])
+        source[b, r] += trans[b] - t_out
+        trans[b] = t_out
+        pending[b] = 0.0
+
+
 def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
     """Trace the direct beam along slant paths with periodic wrap (see :func:`_direct_rays`)."""
     return _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, numba.get_num_threads())
@@ -142,12 +153,16 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
     # same total for any number of threads.
     scale = 2.0**61 / (nx * ny)
     absorbed_fixed = np.zeros((nthreads, nb, nz, ny, nx), dtype=np.int64)
-    trans_of_thread = np.empty((nthreads, nb + 16))  # padded: threads never share a cache line
+    # Per thread: the beam left, and the optical depth of conservative cells not yet applied
+    # to it; padded, so that threads never share a cache line.
+    trans_of_thread = np.empty((nthreads, 2 * nb + 16))
     for r in prange(nray):
         thread = get_thread_id()
         mine = absorbed_fixed[thread]
         trans = trans_of_thread[thread, :nb]
+        pending = trans_of_thread[thread, nb:2 * nb]
         trans[:] = wray
+        pending[:] = 0.0
         ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
         iz = nz - 1
         z0 = z_edge[nz]
@@ -160,9 +175,15 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
             for b in range(nb):
                 k = ext[b, iz, iy, ix]
                 if k > 0.0:
+                    w = ssa[b, iz, iy, ix]
+                    if w == 1.0:
+                        # A conservative cell absorbs nothing and scatters all it removes, so
+                        # its source only telescopes: one exponential for a run of such cells.
+                        pending[b] += k * (tn - t)
+                        continue
+                    _apply_pending(trans, pending, source, b, r)
                     t_out = trans[b] * math.exp(-k * (tn - t))
                     removed = trans[b] - t_out
-                    w = ssa[b, iz, iy, ix]
                     mine[b, iz, iy, ix] += np.int64((1.0 - w) * removed * scale + 0.5)
                     source[b, r] += w * removed
                     trans[b] = t_out
@@ -173,12 +194,14 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
                 j = edge_slot[iz + 1]
                 if j >= 0:
                     for b in range(nb):
+                        _apply_pending(trans, pending, source, b, r)
                         ray_cum[b, r, j] = source[b, r]
                         ray_trans[b, r, j] = trans[b]
                 if iz < 0:
                     break
         ray_column[r] = iy * nx + ix
         for b in range(nb):
+            _apply_pending(trans, pending, source, b, r)
             ray_surface[b, r] = trans[b]
             source[b, r] += alb[b, iy, ix] * trans[b]
     surface = np.zeros((nb, ny, nx))
