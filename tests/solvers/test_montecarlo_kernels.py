@@ -120,6 +120,29 @@ def test_direct_beam_conserves_energy_and_lands_where_geometry_says():
     np.testing.assert_allclose(clear, 1.0, rtol=1e-13)
 
 
+def test_direct_beam_mixing_conservative_and_absorbing_layers_follows_beer_lambert_layer_by_layer():
+    # Overhead sun through layers alternating between conservative and absorbing cells:
+    # the beam entering layer i is exp(-sum of the optical depths above) (Beer-Lambert law);
+    # layer i removes T_i (1 - exp(-tau_i)), absorbs (1 - omega_i) of it and scatters the
+    # rest, also where conservative layers are applied in one run.
+    ext = np.broadcast_to(np.array([0.004, 0.001, 0.0, 0.003, 0.002, 0.0005])[None, :, None, None],
+                          (1, 6, 2, 3)).copy()
+    ssa = np.broadcast_to(np.array([1.0, 0.6, 1.0, 1.0, 0.9, 1.0])[None, :, None, None], ext.shape).copy()
+    alb = np.full((1, 2, 3), 0.25)
+    z_edge = np.array([0.0, 100.0, 300.0, 450.0, 500.0, 800.0, 1000.0])
+    czi = np.array([0, 3, 6])
+    tau = ext[0, :, 0, 0] * np.diff(z_edge)
+    above = np.concatenate([np.cumsum(tau[::-1])[::-1][1:], [0.0]])
+    removed = np.exp(-above) * -np.expm1(-tau)
+    absorbed, surface, source = _geometry.direct_beam_3d(ext, ssa, alb, z_edge, 100.0, 100.0, 0.0, 0.0, -1.0, 2,
+                                                         czi)[:3]
+    t_surface = math.exp(-tau.sum())
+    np.testing.assert_allclose(surface, t_surface, rtol=1e-13)
+    np.testing.assert_allclose(absorbed[0, :, 1, 2], (1 - ssa[0, :, 0, 0]) * removed, rtol=1e-12, atol=1e-16)
+    per_ray = ((ssa[0, :, 0, 0] * removed).sum() + 0.25 * t_surface) / 4
+    np.testing.assert_allclose(source[0], per_ray, rtol=1e-12)
+
+
 def _brute_force_landing(x0, y0, u, top, dx, dy, nx, ny):
     s = top / -u[2]
     return int(((x0 + s * u[0]) % (nx * dx)) // dx), int(((y0 + s * u[1]) % (ny * dy)) // dy)
