@@ -4,7 +4,8 @@ Reads ``../shared/bench/bench_cumulus_128.nc`` (128 x 128 x 40 cells of 100 m, o
 surface albedo and sun angles in its attributes), converts it to the archive format and
 prints: photons/s and scattering events/s per core (best of three runs), the parallel
 speed-up on all cores next to that of a pure arithmetic loop (what the cores deliver),
-peak memory against the scene's own arrays, the domain-mean reflected, direct and diffuse
+peak memory of a run (the scene's arrays plus the growth of the
+resident set while the solver runs) against the scene's own arrays, the domain-mean reflected, direct and diffuse
 surface fluxes, and the CPU seconds needed for a 0.5 % standard error of the surface
 downward flux averaged over 800 m host columns (8 x 8 cells), estimated from the spread
 of independent runs.  It also times the same scene refined to 50 m cells (every cell cut
@@ -14,12 +15,15 @@ Usage: python benchmarks/bench_montecarlo.py [--photons N] [--runs K] [--majoran
 """
 
 import argparse
+import gc
 import json
 import math
-import resource
+import os
+import subprocess
 import sys
 import tempfile
 import time
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -55,6 +59,40 @@ def refined(scene):
     dx, dy = spacing(scene)
     return make_scene(cut("extinction"), cut("single_scattering_albedo"), cut("asymmetry_parameter"), z2,
                       dx / 2, dy / 2, surface_albedo=float(scene["surface_albedo"].values.mean()), band=["broadband"])
+
+
+def _current_rss():
+    with open("/proc/self/statm") as f:
+        return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
+
+
+# Runs in its own process, since the compiled kernels hold the interpreter lock: prints the
+# largest resident set of process PID, sampled every millisecond until its stdin closes.
+_WATCHER = """
+import os, select, sys
+pid, page, peak = sys.argv[1], os.sysconf("SC_PAGE_SIZE"), 0
+while not select.select([sys.stdin], [], [], 0.001)[0]:
+    with open(f"/proc/{pid}/statm") as f:
+        peak = max(peak, int(f.read().split()[1]) * page)
+print(peak)
+"""
+
+
+@contextmanager
+def peak_rss_growth():
+    """Yields a dict whose ``"bytes"`` is, on exit, the peak growth of the resident set over
+    its size on entry.  (The peak resident set of the whole process would mostly show the
+    compilers and libraries loaded before.)"""
+    gc.collect()
+    base = _current_rss()
+    found = {"bytes": 0}
+    watcher = subprocess.Popen([sys.executable, "-c", _WATCHER, str(os.getpid())], stdin=subprocess.PIPE,
+                               stdout=subprocess.PIPE, text=True)
+    try:
+        yield found
+    finally:
+        out, _ = watcher.communicate("")
+        found["bytes"] = max(0, int(out) - base)
 
 
 def timed(scene, zenith, azimuth, photons, seed, threads, **options):
@@ -130,7 +168,6 @@ def main(argv=None):
                                                          "asymmetry_parameter"))
     opts = {} if args.majorant_block is None else {"majorant_block": args.majorant_block}
     solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1, **opts)  # compile / load cache
-    rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
     import numba
 
@@ -141,17 +178,17 @@ def main(argv=None):
     # three paired ratios.
     wall1 = cpu1 = wall_n = math.inf
     speedups = []
-    for _ in range(3):
-        one, cpu, wall = timed(scene, zenith, azimuth, args.photons, 1, 1, **opts)
-        wall1, cpu1 = min(wall1, wall), min(cpu1, cpu)
-        many, _, wall_many = timed(scene, zenith, azimuth, args.photons, 1, cores, **opts)
-        wall_n = min(wall_n, wall_many)
-        speedups.append(wall / wall_many)
+    with peak_rss_growth() as growth:
+        for _ in range(3):
+            one, cpu, wall = timed(scene, zenith, azimuth, args.photons, 1, 1, **opts)
+            wall1, cpu1 = min(wall1, wall), min(cpu1, cpu)
+            many, _, wall_many = timed(scene, zenith, azimuth, args.photons, 1, cores, **opts)
+            wall_n = min(wall_n, wall_many)
+            speedups.append(wall / wall_many)
     assert np.array_equal(one.toa_upward_flux.values, many.toa_upward_flux.values)
     assert np.array_equal(one.absorption.values, many.absorption.values)
     photons = int(one.photons)
     events = int(one.scattering_events)
-    rss_after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
     down = []
     run_cpu = []
@@ -183,9 +220,8 @@ def main(argv=None):
         "parallel_speedup_paired": math.exp(np.mean(np.log(speedups))),
         "parallel_speedup_of_pure_arithmetic": arithmetic[1],
         "arithmetic_reference_ns_per_step": arithmetic[0],
-        "peak_memory_over_scene_arrays": (rss_after - rss_before + scene_bytes) / scene_bytes
-        if rss_after > rss_before else 1.0,
-        "peak_rss_mb": rss_after / 2**20,
+        "peak_memory_over_scene_arrays": (growth["bytes"] + scene_bytes) / scene_bytes,
+        "solver_memory_growth_mb": growth["bytes"] / 2**20,
         "scene_arrays_mb": scene_bytes / 2**20,
         "domain_mean_toa_upward_flux": float(one.toa_upward_flux.mean()),
         "domain_mean_surface_direct_flux": float(one.surface_downward_direct_flux.mean()),
