@@ -140,11 +140,13 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
     ncz = czi.shape[0] - 1
     nray = nx * ny * nsub * nsub
     wray = 1.0 / (nsub * nsub)
-    source = np.zeros((nb, nray))
-    ray_cum = np.zeros((nb, nray, ncz + 1))
-    ray_trans = np.zeros((nb, nray, ncz + 1))
-    ray_surface = np.zeros((nb, nray))
-    ray_column = np.zeros(nray, dtype=np.int64)
+    # Every ray fills its own entries (it crosses every layer edge below the top once), so
+    # the tables are first touched, and paged in, by the threads in parallel.
+    source = np.empty((nb, nray))
+    ray_cum = np.empty((nb, nray, ncz + 1))
+    ray_trans = np.empty((nb, nray, ncz + 1))
+    ray_surface = np.empty((nb, nray))
+    ray_column = np.empty(nray, dtype=np.int64)
     edge_slot = np.full(nz + 1, -1, dtype=np.int64)
     for j in range(ncz + 1):
         edge_slot[czi[ncz - j]] = j
@@ -152,7 +154,12 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
     # its own fixed-point array (the whole beam maps to 2**61 units): integer sums give the
     # same total for any number of threads.
     scale = 2.0**61 / (nx * ny)
-    absorbed_fixed = np.zeros((nthreads, nb, nz, ny, nx), dtype=np.int64)
+    absorbed_fixed = np.empty((nthreads, nb, nz, ny, nx), dtype=np.int64)
+    ncell = nb * nz * ny * nx
+    fixed = absorbed_fixed.reshape(nthreads, ncell)
+    for c in prange(ncell):
+        for i in range(nthreads):
+            fixed[i, c] = 0
     # Per thread: the beam left, and the optical depth of conservative cells not yet applied
     # to it; padded, so that threads never share a cache line.
     trans_of_thread = np.empty((nthreads, 2 * nb + 16))
@@ -167,6 +174,8 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
         iz = nz - 1
         z0 = z_edge[nz]
         for b in range(nb):
+            source[b, r] = 0.0
+            ray_cum[b, r, 0] = 0.0
             ray_trans[b, r, 0] = wray
         sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x, y, z0, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
         t = 0.0
@@ -209,10 +218,13 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
         iy, ix = ray_column[r] // nx, ray_column[r] % nx
         for b in range(nb):
             surface[b, iy, ix] += ray_surface[b, r]
-    total = absorbed_fixed[0].copy()
-    for i in range(1, absorbed_fixed.shape[0]):
-        total += absorbed_fixed[i]
-    absorbed = total / scale
+    absorbed = np.empty((nb, nz, ny, nx))
+    flat = absorbed.reshape(ncell)
+    for c in prange(ncell):
+        total = fixed[0, c]
+        for i in range(1, nthreads):
+            total += fixed[i, c]
+        flat[c] = total / scale
     return absorbed, surface, source, ray_cum, ray_trans
 
 

@@ -647,7 +647,7 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
     events.
     """
     nb, ny, nx = alb.shape
-    col_slots = np.zeros((wave, nb, ny, nx, N_TALLIES))
+    col_slots = np.empty((wave, nb, ny, nx, N_TALLIES))  # every batch zeroes its slot
     slot_events = np.zeros(wave, dtype=np.int64)
     # 128 bytes for each 32-byte stream state: a state, written at every draw, then never
     # shares a cache line with another thread's.
