@@ -95,6 +95,28 @@ def peak_rss_growth():
         found["bytes"] = max(0, int(out) - base)
 
 
+def memory_growth(args):
+    """Peak growth of the resident set [bytes] during one run on all cores, its result
+    included, measured in a fresh process.  The C allocator keeps memory freed by earlier
+    runs for later ones unless its threshold for returning large blocks to the system is
+    fixed, so the child runs with ``MALLOC_MMAP_THRESHOLD_`` set; its warm-up run (which
+    loads the compiled kernels) then leaves nothing behind that the measured run reuses."""
+    child = [sys.executable, __file__, "--memory-child", "--scene", args.scene, "--photons", str(args.photons)]
+    if args.majorant_block is not None:
+        child += ["--majorant-block", str(args.majorant_block)]
+    env = dict(os.environ, MALLOC_MMAP_THRESHOLD_=str(128 * 1024))
+    return int(subprocess.run(child, env=env, check=True, capture_output=True, text=True).stdout.split()[-1])
+
+
+def _memory_child(scene, zenith, azimuth, photons, opts):
+    import numba
+
+    solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, **opts)
+    with peak_rss_growth() as growth:
+        timed(scene, zenith, azimuth, photons, 2, numba.config.NUMBA_NUM_THREADS, **opts)
+    print(growth["bytes"])
+
+
 def timed(scene, zenith, azimuth, photons, seed, threads, **options):
     t_cpu, t_wall = time.process_time(), time.perf_counter()
     out = solve_monte_carlo(scene, zenith, azimuth, photons=photons, seed=seed, threads=threads, **options)
@@ -158,6 +180,7 @@ def main(argv=None):
     parser.add_argument("--runs", type=int, default=6, help="independent runs for the noise estimate")
     parser.add_argument("--majorant-block", type=int, default=None, help="cells per majorant block side")
     parser.add_argument("--json", metavar="FILE")
+    parser.add_argument("--memory-child", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
 
     scene, zenith, azimuth = convert(args.scene)
@@ -167,6 +190,8 @@ def main(argv=None):
     scene_bytes = sum(scene[v].values.nbytes for v in ("extinction", "single_scattering_albedo",
                                                          "asymmetry_parameter"))
     opts = {} if args.majorant_block is None else {"majorant_block": args.majorant_block}
+    if args.memory_child:
+        return _memory_child(scene, zenith, azimuth, args.photons, opts)
     solve_monte_carlo(scene, zenith, azimuth, photons=2000, seed=0, threads=1, **opts)  # compile / load cache
 
     import numba
@@ -184,9 +209,7 @@ def main(argv=None):
         many, _, wall_many = timed(scene, zenith, azimuth, args.photons, 1, cores, **opts)
         wall_n = min(wall_n, wall_many)
         speedups.append(wall / wall_many)
-    # The memory of one run on all cores, its result included, over what is already held.
-    with peak_rss_growth() as growth:
-        timed(scene, zenith, azimuth, args.photons, 2, cores, **opts)
+    growth = memory_growth(args)
     assert np.array_equal(one.toa_upward_flux.values, many.toa_upward_flux.values)
     assert np.array_equal(one.absorption.values, many.absorption.values)
     photons = int(one.photons)
@@ -222,8 +245,8 @@ def main(argv=None):
         "parallel_speedup_paired": math.exp(np.mean(np.log(speedups))),
         "parallel_speedup_of_pure_arithmetic": arithmetic[1],
         "arithmetic_reference_ns_per_step": arithmetic[0],
-        "peak_memory_over_scene_arrays": (growth["bytes"] + scene_bytes) / scene_bytes,
-        "solver_memory_growth_mb": growth["bytes"] / 2**20,
+        "peak_memory_over_scene_arrays": (growth + scene_bytes) / scene_bytes,
+        "solver_memory_growth_mb": growth / 2**20,
         "scene_arrays_mb": scene_bytes / 2**20,
         "domain_mean_toa_upward_flux": float(one.toa_upward_flux.mean()),
         "domain_mean_surface_direct_flux": float(one.surface_downward_direct_flux.mean()),
