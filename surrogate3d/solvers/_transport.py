@@ -292,6 +292,12 @@ def _face_distance(u, iu, ib, r, size, pos):
     return math.inf
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def _code(bcode, b, k, j, i):
+    # The four-bit code of block (k, j, i): two per byte, the even block in the low half.
+    return (bcode[b, k, j, i >> 1] >> ((i & 1) << 2)) & 15
+
+
 @njit(**KERNEL)
 def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid, ix, iy, iz,
                  thresh, max_events, col, cell, scale):
@@ -317,7 +323,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
     """
     bx, by, bedge, zb, kmaj, bcode, kclear, clear_below, clear_above = grid
     nz = kext.shape[1]
-    nbz, nby, nbx = bcode.shape[1], bcode.shape[2], bcode.shape[3]
+    nbz, nby, nbx = kmaj.shape[1], kmaj.shape[2], kmaj.shape[3]
     cell_walk = bx == 1 and by == 1 and nbz == nz
     bdx, bdy = bx * dx, by * dy
     inv_dx, inv_dy, inv_bdx, inv_bdy = 1.0 / dx, 1.0 / dy, 1.0 / bdx, 1.0 / bdy
@@ -336,7 +342,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
     while True:
         in_slab = ibz < slab_lo or ibz >= slab_hi
         clear_hit = False
-        code = 2 if in_slab else bcode[b, ibz, iby, ibx]
+        code = 2 if in_slab else _code(bcode, b, ibz, iby, ibx)
         if code < 2:
             # --- a run of single-block steps, walked incrementally (Amanatides and Woo 1987):
             # each crossing adds one block's length to one axis' face distance, and the
@@ -371,7 +377,7 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                     if ibz < slab_lo or ibz >= slab_hi:
                         break  # into a clear slab, or out of the domain
                     tmz = ((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z0) * iuz
-                code = bcode[b, ibz, iby, ibx]
+                code = _code(bcode, b, ibz, iby, ibx)
                 if code == 0:
                     k_major = kmaj[b, ibz, iby, ibx]
                 elif code == 1:

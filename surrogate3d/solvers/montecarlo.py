@@ -28,6 +28,8 @@ WAVE = 8
 #: layers per block of the per-ray source tables.
 DEFAULT_MAJORANT_BLOCK = 1
 DEFAULT_CLEAR_CUBE = 8
+#: Largest clear-cube radius: a block code (radius + 1) takes four bits.
+MAX_CLEAR_CUBE = 14
 RAY_TABLE_LAYERS = 4
 
 
@@ -170,15 +172,21 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
 def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge):
     """:func:`majorant_blocks` packed in the order the 3D kernel unpacks it.
 
-    The kernel reads first a uint8 block code: 0 for a block tracked at its majorant, 1 for
-    a block tracked at the clear-air rate ``kclear`` (no majorant read), ``r + 1`` for the
-    centre of a clear cube of radius ``r``.  The codes take a quarter of the memory of the
-    majorants and stay in the cache, which spares the walk a majorant read wherever it
-    crosses clear air.
+    The kernel reads first a four-bit block code: 0 for a block tracked at its majorant, 1
+    for a block tracked at the clear-air rate ``kclear`` (no majorant read), ``r + 1`` for
+    the centre of a clear cube of radius ``r`` (at most :data:`MAX_CLEAR_CUBE`).  Two codes
+    share a byte (blocks ``2i`` in the low half, ``2i + 1`` in the high half of byte ``i``
+    along x), so the codes take an eighth of the memory of the majorants and stay in the
+    cache, which spares the walk a majorant read wherever it crosses clear air.
     """
     clear_rate = kmaj <= kclear[:, None, None, None]
-    code = np.where(clear_rate, bskip.astype(np.int64) + 1, 0).astype(np.uint8)
-    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, code, kclear, clear_below, clear_above)
+    code = np.where(clear_rate, np.minimum(bskip.astype(np.int64), MAX_CLEAR_CUBE) + 1, 0).astype(np.uint8)
+    # Two codes per byte, the even block in the low half: half the cache the codes take.
+    if code.shape[3] % 2:
+        code = np.concatenate([code, np.zeros(code.shape[:3] + (1,), np.uint8)], axis=3)
+    packed = np.ascontiguousarray(code[..., 0::2] | (code[..., 1::2] << 4))
+    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, packed, kclear, clear_below,
+            clear_above)
 
 
 def _ray_table_edges(nz, layers):
@@ -279,7 +287,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         1 tracks against every cell's own extinction.  Only the cost depends on it.
     clear_cube : int
         Largest radius (blocks) of the cubes of clear-air blocks a photon crosses in one
-        step (3D mode), in [0, 254]; 0 crosses every block.  Only the cost depends on it.
+        step (3D mode), in [0, 14]; 0 crosses every block.  Only the cost depends on it.
     roulette_weight : float
         Photon weight, relative to the starting weight, below which Russian roulette replaces
         absorption by weight; in (0, 1].  The default 0.3 stops tracing photons of small
@@ -326,7 +334,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     max_events = _check_int("max_scattering_events", max_scattering_events, 1)
     solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
     block = _check_int("majorant_block", majorant_block, 1, 64)
-    clear_cube = _check_int("clear_cube", clear_cube, 0, 254)
+    clear_cube = _check_int("clear_cube", clear_cube, 0, MAX_CLEAR_CUBE)
     if threads is not None:
         threads = _check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS)
 

@@ -219,6 +219,23 @@ def test_cube_radius_matches_brute_force():
                 assert radius[0, iz, iy, ix] == best, (iz, iy, ix)
 
 
+@pytest.mark.parametrize("nx", [9, 10])
+def test_block_codes_read_back_as_packed(nx):
+    # Two four-bit codes per byte (odd widths padded): every block reads back 0 where it is
+    # tracked at its majorant, else its clear-cube radius (capped) + 1 (plain-Python reference).
+    from surrogate3d.solvers.montecarlo import MAX_CLEAR_CUBE, _majorant_grid, majorant_blocks
+
+    rng = np.random.default_rng(9)
+    ext = np.where(rng.random((2, 5, 7, nx)) < 0.1, 0.02, 1e-6).astype(np.float32)
+    z_edge = np.linspace(0.0, 500.0, 6)
+    kmaj, bskip, kclear, *rest = majorant_blocks(ext, z_edge, 100.0, 100.0, 1, 3)
+    bskip[0, 0, 0, 0] = 40  # beyond four bits: read back as the largest radius
+    packed = _majorant_grid(kmaj, bskip, kclear, *rest, z_edge)[5]
+    for b, k, j, i in np.ndindex(ext.shape):
+        expected = 0 if kmaj[b, k, j, i] > kclear[b] else min(int(bskip[b, k, j, i]), MAX_CLEAR_CUBE) + 1
+        assert _transport._code(packed, b, k, j, i) == expected, (b, k, j, i)
+
+
 def test_majorant_blocks_bound_every_cell_and_find_the_clear_slabs():
     from surrogate3d.solvers.montecarlo import majorant_blocks
 
