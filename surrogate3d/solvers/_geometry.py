@@ -320,7 +320,7 @@ def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsu
 def locate_source_column(col, band, target, props, alb, z_edge, mu0, u):
     """Independent-column version of :func:`locate_source_3d` (vertical column ``col``).
 
-    ``props`` is the packed float32 (nband, ny, nx, nz, 4) column layout.
+    ``props`` is the packed float32 (nband, ny, nx, nz, 3) column layout.
     Returns ``(kind, z, iz)``.
     """
     nx, nz = props.shape[2], props.shape[3]

@@ -504,7 +504,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
                      thresh, max_events, col, cell, scale):
     """Trace one photon confined to column (ix, iy) as if it extended to infinity horizontally.
 
-    ``props`` is float32 (nband, ny, nx, nz, 4): a column's layers are contiguous.
+    ``props`` is float32 (nband, ny, nx, nz, 3): a column's layers are contiguous.
     """
     nz = props.shape[3]
     column = props[b, iy, ix]
@@ -569,7 +569,7 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays,
     seeded here for the batch); returns events.
 
     3D tracing uses ``kext`` and ``ssa_g`` (see :func:`transport_3d`); independent-column
-    tracing uses ``column_props``, float32 (nband, ny, nx, nz, 4) with each column's
+    tracing uses ``column_props``, float32 (nband, ny, nx, nz, 3) with each column's
     extinction, single-scattering albedo and asymmetry contiguous.
     """
     nx = alb.shape[2]

@@ -215,21 +215,22 @@ def tracking_arrays(ext, ssa, asym, independent_columns):
     """The float32 arrays the kernels trace with.
 
     Returns ``(kext, ssa_g, column_props)``.  For 3D tracing each cell's extinction,
-    single-scattering albedo and asymmetry sit side by side in one (nband, nz, ny, nx, 4)
+    single-scattering albedo and asymmetry sit side by side in one (nband, nz, ny, nx, 3)
     array, of which ``kext`` (nband, nz, ny, nx) and ``ssa_g`` (..., 2) are views: a
     collision finds its cell's albedo and asymmetry in the cache line the walk has just
-    read.  For independent columns ``column_props`` is (nband, ny, nx, nz, 4) with each
+    read (12-byte records, unpadded: the walk's speed follows the bytes it keeps in the
+    cache more than the few records that straddle two lines).  For independent columns ``column_props`` is (nband, ny, nx, nz, 3) with each
     column's properties contiguous.  Arrays of the other mode are empty placeholders.
     """
     nb = ext.shape[0]
     if independent_columns:
-        props = np.zeros(ext.shape + (4,), dtype=np.float32)
+        props = np.zeros(ext.shape + (3,), dtype=np.float32)
         props[..., 0], props[..., 1], props[..., 2] = ext, ssa, asym
         column = np.ascontiguousarray(props.transpose(0, 2, 3, 1, 4))
         return np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1, 2), np.float32), column
-    optics = np.zeros(ext.shape + (4,), dtype=np.float32)
+    optics = np.zeros(ext.shape + (3,), dtype=np.float32)
     optics[..., 0], optics[..., 1], optics[..., 2] = ext, ssa, asym
-    return optics[..., 0], optics[..., 1:3], np.zeros((nb, 1, 1, 1, 4), np.float32)
+    return optics[..., 0], optics[..., 1:3], np.zeros((nb, 1, 1, 1, 3), np.float32)
 
 
 def _arrays(scene):
