@@ -17,12 +17,13 @@ surface) and are traced until they leave the top of the domain or are absorbed:
   of: reflected at the top, absorbed in a cell, absorbed at the surface.  Energy
   therefore closes exactly in every run.
 
-Column tallies, per band: 0 upward at the top, 1 diffuse downward at the surface,
-2 absorbed in the atmospheric column, 3 absorbed at the surface; stored last,
-(nband, ny, nx, 4): a column's 32-byte record never straddles two cache lines, so a
-surface hit updates one.  The upward flux at the surface is what reaches it minus what
-it absorbs, hit by hit, and is formed per batch when the batches are summed
-(:func:`run_batches`, tally 2 of the sums, which are (..., 5) in the order
+Column tallies of a batch, per band, in a flat (nband, 4 ny nx) slot (:func:`slot_index`):
+a plane of the upward flux at the top (column ``j`` at ``j``), a plane of the absorption
+in the atmospheric column, then the surface's pairs (diffuse flux reaching it, flux it
+absorbs) side by side.  A photon leaving at the top touches one line of a plane of 8 bytes
+per column, a surface hit one line of the 16-byte pairs.  The upward flux at the surface
+is what reaches it minus what it absorbs, hit by hit, and is formed per batch when the
+batches are summed (:func:`run_batches`, whose sums are (..., 5) in the order
 :data:`SUM_NAMES`).
 """
 
@@ -35,7 +36,7 @@ from ._geometry import axis_start, locate_source_3d, locate_source_column
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 
-TOA_UP, SFC_DOWN, ATM_ABS, SFC_ABS = 0, 1, 2, 3
+TOA_UP, ATM_ABS, SFC_DOWN, SFC_ABS = 0, 1, 2, 3
 #: Above this single-scattering albedo the roulette books absorption: a weighted deposit of
 #: less than 1e-3 of the weight at every collision would cost a memory write each for a
 #: small variance gain.  Both estimators are unbiased.
@@ -44,6 +45,21 @@ N_TALLIES = 4
 #: The column sums of :func:`run_batches`, in order.
 SUM_NAMES = ("toa_upward", "surface_downward_diffuse", "surface_upward", "atmosphere_absorbed",
              "surface_absorbed")
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def slot_index(tally, j, ncol):
+    """Index of ``tally`` of column ``j`` (``iy * nx + ix``, of ``ncol``) in a batch slot."""
+    if tally == TOA_UP:
+        return j
+    if tally == ATM_ABS:
+        return ncol + j
+    return 2 * ncol + 2 * j + (tally - SFC_DOWN)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _add(col, b, tally, iy, ix, nx, ncol, v):
+    col[b, slot_index(tally, iy * nx + ix, ncol)] += v
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -121,20 +137,22 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
 
     Returns ``(alive, w, ux, uy, uz)``.
     """
+    nx = cell.shape[2]
+    ncol = cell.shape[1] * nx
     if w >= thresh and om <= WEIGHTED_ABSORPTION_MAX_ALBEDO:
         a = w * (1.0 - om)
         _deposit(cell, scale, iz, iy, ix, a)
-        col[b, iy, ix, ATM_ABS] += a
+        _add(col, b, ATM_ABS, iy, ix, nx, ncol, a)
         w -= a
         if w <= 0.0:
             return False, w, ux, uy, uz
     elif uniform(state) >= om:
         _deposit(cell, scale, iz, iy, ix, w)
-        col[b, iy, ix, ATM_ABS] += w
+        _add(col, b, ATM_ABS, iy, ix, nx, ncol, w)
         return False, w, ux, uy, uz
     if events >= max_events:
         _deposit(cell, scale, iz, iy, ix, w)
-        col[b, iy, ix, ATM_ABS] += w
+        _add(col, b, ATM_ABS, iy, ix, nx, ncol, w)
         return False, w, ux, uy, uz
     mu = hg_cosine(g, uniform(state))
     cp, sp = random_azimuth(state)
@@ -145,16 +163,18 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
 @njit(cache=True, inline="always", error_model="numpy")
 def _surface(state, w, b, iy, ix, thresh, alb, col):
     """Diffuse arrival at the Lambertian surface: tally, absorb, reflect.  Returns ``(alive, w)``."""
-    col[b, iy, ix, SFC_DOWN] += w
+    nx = alb.shape[2]
+    ncol = alb.shape[1] * nx
+    _add(col, b, SFC_DOWN, iy, ix, nx, ncol, w)
     albedo = alb[b, iy, ix]
     if w >= thresh:
         a = w * (1.0 - albedo)
-        col[b, iy, ix, SFC_ABS] += a
+        _add(col, b, SFC_ABS, iy, ix, nx, ncol, a)
         w -= a
         if w <= 0.0:
             return False, w
     elif uniform(state) >= albedo:
-        col[b, iy, ix, SFC_ABS] += w
+        _add(col, b, SFC_ABS, iy, ix, nx, ncol, w)
         return False, w
     return True, w
 
@@ -255,7 +275,7 @@ def _boundary(state, w, b, iy, ix, up, thresh, alb, col):
     """A photon reaching the top (tallied, gone) or the surface (:func:`_surface`, and a
     Lambertian direction if reflected).  Returns ``(alive, w, ux, uy, uz)``."""
     if up:
-        col[b, iy, ix, TOA_UP] += w
+        _add(col, b, TOA_UP, iy, ix, alb.shape[2], alb.shape[1] * alb.shape[2], w)
         return False, w, 0.0, 0.0, 1.0
     alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
     if not alive:
@@ -531,7 +551,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
         tau -= k * t
         if uz > 0.0:
             if iz == nz - 1:
-                col[b, iy, ix, TOA_UP] += w
+                _add(col, b, TOA_UP, iy, ix, alb.shape[2], alb.shape[1] * alb.shape[2], w)
                 return events
             iz += 1
             z = z_edge[iz]
@@ -653,12 +673,12 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
     events.
     """
     nb, ny, nx = alb.shape
-    col_slots = np.empty((wave, nb, ny, nx, N_TALLIES))  # every batch zeroes its slot
+    ncol = ny * nx
+    col_slots = np.empty((wave, nb, N_TALLIES * ncol))  # every batch zeroes its slot
     slot_events = np.zeros(wave, dtype=np.int64)
     # 128 bytes for each 32-byte stream state: a state, written at every draw, then never
     # shares a cache line with another thread's.
     states = np.zeros((wave, 16), dtype=np.uint64)
-    ncol = ny * nx
     nsum = len(SUM_NAMES)
     total_events = 0
     csum = col_sum.reshape(nb, ncol * nsum)
@@ -667,18 +687,18 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
     for start in range(first_batch, first_batch + n_batches, wave):
         n = min(wave, first_batch + n_batches - start)
         for i in prange(n):
-            col_slots[i, :, :, :, :] = 0.0
+            col_slots[i, :, :] = 0.0
             slot_events[i] = _run_batch(states[i], start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
                                         kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
                                         grid, czi, ray_cum, ray_trans, roulette,
                                         max_events, col_slots[i], cell_fixed[get_thread_id()], scale)
         for i in range(n):
-            cs = col_slots[i].reshape(nb, ncol * N_TALLIES)
+            cs = col_slots[i]
             for j in range(ncol):
-                k = j * N_TALLIES
                 s0 = s1 = s2 = s3 = s4 = 0.0
                 for b in range(nb):
-                    v0, v1, v3, v4 = cs[b, k + TOA_UP], cs[b, k + SFC_DOWN], cs[b, k + ATM_ABS], cs[b, k + SFC_ABS]
+                    v0, v1 = cs[b, slot_index(TOA_UP, j, ncol)], cs[b, slot_index(SFC_DOWN, j, ncol)]
+                    v3, v4 = cs[b, slot_index(ATM_ABS, j, ncol)], cs[b, slot_index(SFC_ABS, j, ncol)]
                     v2 = v1 - v4
                     _add_batch(csum, bsq, b, j * nsum, v0, v1, v2, v3, v4)
                     s0, s1, s2, s3, s4 = s0 + v0, s1 + v1, s2 + v2, s3 + v3, s4 + v4

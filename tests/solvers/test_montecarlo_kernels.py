@@ -219,6 +219,18 @@ def test_cube_radius_matches_brute_force():
                 assert radius[0, iz, iy, ix] == best, (iz, iy, ix)
 
 
+def test_slot_index_gives_every_tally_of_every_column_its_own_place():
+    # A batch slot holds each of the four tallies of each column exactly once, and a
+    # column's two surface tallies side by side (one cache line per surface hit; common practice).
+    ncol = 12
+    t = _transport
+    places = [t.slot_index(k, j, ncol) for k in (t.TOA_UP, t.ATM_ABS, t.SFC_DOWN, t.SFC_ABS) for j in range(ncol)]
+    assert sorted(places) == list(range(4 * ncol))
+    for j in range(ncol):
+        down = t.slot_index(t.SFC_DOWN, j, ncol)
+        assert t.slot_index(t.SFC_ABS, j, ncol) == down + 1 and down % 2 == 0
+
+
 @pytest.mark.parametrize("nx", [9, 10])
 def test_block_codes_read_back_as_packed(nx):
     # Two four-bit codes per byte (odd widths padded): every block reads back 0 where it is
@@ -275,14 +287,14 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
     for block, cube in [(1, 0), (2, 1), (4, 2)]:
         kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, block, cube)
         grid = _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, below, above, z_edge)
-        col, cell, scale = np.zeros((1, 4, 4, _transport.N_TALLIES)), np.zeros((6, 4, 4), np.int64), 2.0**61
+        col, cell, scale = np.zeros((1, 16 * _transport.N_TALLIES)), np.zeros((6, 4, 4), np.int64), 2.0**61
         state = _rng.new_state()
         _rng.seed_stream(state, 3, block)
         n = 20000
         for _ in range(n):
             _transport.transport_3d(state, 0, 1.0 / n, 50.0, 50.0, 0.0, 0.0, 0.0, 1.0, ext, ssa_g, alb, z_edge,
                                     100.0, 100.0, grid, 0, 0, 0, 0.0, 10, col, cell, scale)
-        got = np.append(cell[:, 0, 0] / scale, col[0, 0, 0, _transport.TOA_UP])
+        got = np.append(cell[:, 0, 0] / scale, col[0, _transport.slot_index(_transport.TOA_UP, 0, 16)])
         np.testing.assert_allclose(got, expected, atol=4 * math.sqrt(0.25 / n))
         assert abs(got.sum() - 1.0) < 1e-12
 
@@ -310,14 +322,14 @@ def test_oblique_free_paths_follow_beer_lambert_along_the_wrapped_slant_path(blo
     path = z_edge[-1] / u[2]
     top = (x0 + path * u[0], y0 + path * u[1])
     tau = _brute_force_tau(ext.astype(np.float32).astype(float), z_edge, 100.0, 100.0, *top, -u)[0]
-    col, cell, scale = np.zeros((1, 8, 8, _transport.N_TALLIES)), np.zeros((6, 8, 8), np.int64), 2.0**61
+    col, cell, scale = np.zeros((1, 64 * _transport.N_TALLIES)), np.zeros((6, 8, 8), np.int64), 2.0**61
     state = _rng.new_state()
     _rng.seed_stream(state, 5, block + 10 * cube)
     n = 20000
     for _ in range(n):
         _transport.transport_3d(state, 0, 1.0 / n, x0, y0, 0.0, *u, kext, ssa_g, alb, z_edge, 100.0, 100.0, grid,
                                 1, 4, 0, 0.0, 10, col, cell, scale)
-    escaped = col[0, :, :, _transport.TOA_UP].sum()
+    escaped = sum(col[0, _transport.slot_index(_transport.TOA_UP, j, 64)] for j in range(64))
     p = math.exp(-tau)
     assert abs(escaped - p) < 4 * math.sqrt(p * (1 - p) / n), (escaped, p)
     assert abs(escaped + cell.sum() / scale - 1.0) < 1e-12
