@@ -58,8 +58,10 @@ def slot_index(tally, j, ncol):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _add(col, b, tally, iy, ix, nx, ncol, v):
-    col[b, slot_index(tally, iy * nx + ix, ncol)] += v
+def _add(col, b, tally, iy, ix, columns, v):
+    # Add v to a tally of column (iy, ix); ``columns`` is any array ending in (ny, nx).
+    ny, nx = columns.shape[-2], columns.shape[-1]
+    col[b, slot_index(tally, iy * nx + ix, ny * nx)] += v
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -137,22 +139,20 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
 
     Returns ``(alive, w, ux, uy, uz)``.
     """
-    nx = cell.shape[2]
-    ncol = cell.shape[1] * nx
     if w >= thresh and om <= WEIGHTED_ABSORPTION_MAX_ALBEDO:
         a = w * (1.0 - om)
         _deposit(cell, scale, iz, iy, ix, a)
-        _add(col, b, ATM_ABS, iy, ix, nx, ncol, a)
+        _add(col, b, ATM_ABS, iy, ix, cell, a)
         w -= a
         if w <= 0.0:
             return False, w, ux, uy, uz
     elif uniform(state) >= om:
         _deposit(cell, scale, iz, iy, ix, w)
-        _add(col, b, ATM_ABS, iy, ix, nx, ncol, w)
+        _add(col, b, ATM_ABS, iy, ix, cell, w)
         return False, w, ux, uy, uz
     if events >= max_events:
         _deposit(cell, scale, iz, iy, ix, w)
-        _add(col, b, ATM_ABS, iy, ix, nx, ncol, w)
+        _add(col, b, ATM_ABS, iy, ix, cell, w)
         return False, w, ux, uy, uz
     mu = hg_cosine(g, uniform(state))
     cp, sp = random_azimuth(state)
@@ -163,18 +163,16 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
 @njit(cache=True, inline="always", error_model="numpy")
 def _surface(state, w, b, iy, ix, thresh, alb, col):
     """Diffuse arrival at the Lambertian surface: tally, absorb, reflect.  Returns ``(alive, w)``."""
-    nx = alb.shape[2]
-    ncol = alb.shape[1] * nx
-    _add(col, b, SFC_DOWN, iy, ix, nx, ncol, w)
+    _add(col, b, SFC_DOWN, iy, ix, alb, w)
     albedo = alb[b, iy, ix]
     if w >= thresh:
         a = w * (1.0 - albedo)
-        _add(col, b, SFC_ABS, iy, ix, nx, ncol, a)
+        _add(col, b, SFC_ABS, iy, ix, alb, a)
         w -= a
         if w <= 0.0:
             return False, w
     elif uniform(state) >= albedo:
-        _add(col, b, SFC_ABS, iy, ix, nx, ncol, w)
+        _add(col, b, SFC_ABS, iy, ix, alb, w)
         return False, w
     return True, w
 
@@ -275,7 +273,7 @@ def _boundary(state, w, b, iy, ix, up, thresh, alb, col):
     """A photon reaching the top (tallied, gone) or the surface (:func:`_surface`, and a
     Lambertian direction if reflected).  Returns ``(alive, w, ux, uy, uz)``."""
     if up:
-        _add(col, b, TOA_UP, iy, ix, alb.shape[2], alb.shape[1] * alb.shape[2], w)
+        _add(col, b, TOA_UP, iy, ix, alb, w)
         return False, w, 0.0, 0.0, 1.0
     alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
     if not alive:
@@ -551,7 +549,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
         tau -= k * t
         if uz > 0.0:
             if iz == nz - 1:
-                _add(col, b, TOA_UP, iy, ix, alb.shape[2], alb.shape[1] * alb.shape[2], w)
+                _add(col, b, TOA_UP, iy, ix, alb, w)
                 return events
             iz += 1
             z = z_edge[iz]
