@@ -4,9 +4,9 @@ Reads ``../shared/bench/bench_cumulus_128.nc`` (128 x 128 x 40 cells of 100 m, o
 surface albedo and sun angles in its attributes), converts it to the archive format and
 prints: photons/s and scattering events/s per core (best of three runs), the parallel
 speed-up on all cores next to that of a pure arithmetic loop (what the cores deliver),
-peak memory of a run (the scene's arrays plus the growth of the
-resident set while the solver runs) against the scene's own arrays, the domain-mean reflected, direct and diffuse
-surface fluxes, and the CPU seconds needed for a 0.5 % standard error of the surface
+peak memory of a run (the scene's arrays plus the growth of the resident set while the
+solver runs) against the scene's own arrays, the domain-mean reflected, direct and
+diffuse surface fluxes, and the CPU seconds needed for a 0.5 % standard error of the surface
 downward flux averaged over 800 m host columns (8 x 8 cells), estimated from the spread
 of independent runs.  It also times the same scene refined to 50 m cells (every cell cut
 in 2 x 2 x 2), where the majorant blocks should keep the cost per photon nearly the same.
