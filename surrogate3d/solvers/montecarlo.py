@@ -220,7 +220,8 @@ def tracking_arrays(ext, ssa, asym, independent_columns):
     collision finds its cell's albedo and asymmetry in the cache line the walk has just
     read (12-byte records, unpadded: the walk's speed follows the bytes it keeps in the
     cache more than the few records that straddle two lines).  For independent columns
-    ``column_props`` is (nband, ny, nx, nz, 3) with each column's properties contiguous.  Arrays of the other mode are empty placeholders.
+    ``column_props`` is (nband, ny, nx, nz, 3) with each column's properties contiguous.
+    Arrays of the other mode are empty placeholders.
     """
     nb = ext.shape[0]
     if independent_columns:
