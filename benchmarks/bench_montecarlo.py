@@ -212,8 +212,8 @@ def main(argv=None):
     growth = memory_growth(args)
     assert np.array_equal(one.toa_upward_flux.values, many.toa_upward_flux.values)
     assert np.array_equal(one.absorption.values, many.absorption.values)
-    photons = int(one.photons)
-    events = int(one.scattering_events)
+    photons = int(one.run_photons)
+    events = int(one.run_scattering_events)
 
     down = []
     run_cpu = []

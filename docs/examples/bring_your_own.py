@@ -72,8 +72,9 @@ def to_run_result(output, zenith, sun_azimuth, solver):
     absorption = np.transpose(output["absorption"], (2, 1, 0)) / watts
     return make_run_result(fluxes, errors, absorption, solver=solver, solar_zenith_angle=zenith,
                            solar_beam_azimuth=beam_azimuth_from_sun_position(sun_azimuth),
-                           metadata={"photons": 40000, "seed": 3, "scattering_events": 0, "wall_time": 0.0,
-                                     "solar_constant": S0, "package_version": "your-code 1.0"})
+                           metadata={"run_photons": 40000, "run_seed": 3, "run_scattering_events": 0,
+                                     "run_wall_time": 0.0, "run_solar_constant": S0,
+                                     "run_package_version": "your-code 1.0"})
 
 
 def main(out_dir):

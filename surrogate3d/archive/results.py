@@ -25,19 +25,24 @@ COLUMN_FLUXES = {
     "surface_upward_flux": "upward shortwave flux at the surface (reflected)",
     "atmosphere_absorption": "shortwave flux absorbed in the atmospheric column",
 }
+#: Column fluxes a run result may carry besides :data:`COLUMN_FLUXES`.
+OPTIONAL_COLUMN_FLUXES = {
+    "surface_absorption": "shortwave flux absorbed by the surface",
+}
 CELL_FIELDS = {
     "absorption": ("1", "shortwave flux absorbed in the cell per unit column area, as a fraction of the "
                         "incident flux on the horizontal"),
     "heating_rate": ("K day-1", "shortwave heating rate"),
 }
-#: Scalar metadata of each run: name -> (dtype, units, long_name)
+#: Scalar metadata of each run, under the same names in a run result and a scene file:
+#: name -> (dtype, units, long_name)
 RUN_METADATA = {
-    "photons": (np.int64, "1", "number of photons traced (0 for the two-stream solver)"),
-    "seed": (np.int64, "1", "random seed of the run"),
-    "scattering_events": (np.int64, "1", "number of scattering events traced"),
-    "wall_time": (np.float64, "s", "wall-clock time of the run"),
-    "solar_constant": (np.float64, "W m-2", "solar constant used for the W m-2 fields"),
-    "package_version": (object, "", "surrogate3d version that computed the result"),
+    "run_photons": (np.int64, "1", "number of photons traced (0 for the two-stream solver)"),
+    "run_seed": (np.int64, "1", "random seed of the run"),
+    "run_scattering_events": (np.int64, "1", "number of scattering events traced"),
+    "run_wall_time": (np.float64, "s", "wall-clock time of the run"),
+    "run_solar_constant": (np.float64, "W m-2", "solar constant used for the W m-2 fields"),
+    "run_package_version": (object, "", "surrogate3d version that computed the result"),
 }
 STACK_DIMS = ("solver", "sun")
 SUN_TOLERANCE_DEG = 1e-6
@@ -48,19 +53,26 @@ def stderr_name(flux):
     return f"{flux}_standard_error"
 
 
+def domain_stderr_name(flux):
+    """Name of the standard error of a column flux's domain mean (a scalar per run)."""
+    return f"{flux}_domain_mean_standard_error"
+
+
 def per_band_name(flux):
     """Name of the per-band variable of a column flux."""
     return f"{flux}_per_band"
 
 
 def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith_angle,
-                    solar_beam_azimuth, metadata, per_band=None, heating_rate=None, band=None):
+                    solar_beam_azimuth, metadata, per_band=None, heating_rate=None, band=None,
+                    domain_standard_errors=None):
     """Assemble a run-result Dataset.
 
     Parameters
     ----------
     fluxes, standard_errors : dict of str -> ndarray (ny, nx)
-        Column fluxes (keys of :data:`COLUMN_FLUXES`) and their standard errors [1].
+        Column fluxes (every key of :data:`COLUMN_FLUXES`, optionally those of
+        :data:`OPTIONAL_COLUMN_FLUXES`) and their standard errors [1].
     absorption : ndarray (nz, ny, nx)
         Absorbed fraction per cell [1].
     solver : str
@@ -76,6 +88,9 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
         [K day-1].
     band : sequence of str, optional
         Band names for ``per_band``.
+    domain_standard_errors : dict of str -> float, optional
+        Standard error of the domain mean of each column flux [1] (the standard error of
+        a mean of correlated columns is not the columns' errors combined).
 
     Returns
     -------
@@ -84,11 +99,16 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
     if solver not in SOLVERS:
         raise ValidationError(f"solver must be one of {SOLVERS}; got {solver!r}")
     ds = xr.Dataset()
-    for name, long_name in COLUMN_FLUXES.items():
+    present = {**COLUMN_FLUXES, **{k: v for k, v in OPTIONAL_COLUMN_FLUXES.items() if k in fluxes}}
+    for name, long_name in present.items():
         ds[name] = (("y", "x"), np.asarray(fluxes[name], dtype=np.float64),
                     {"units": "1", "long_name": long_name + " / incident flux"})
         ds[stderr_name(name)] = (("y", "x"), np.asarray(standard_errors[name], dtype=np.float64),
                                  {"units": "1", "long_name": "Monte Carlo standard error of " + name})
+        if domain_standard_errors and name in domain_standard_errors:
+            ds[domain_stderr_name(name)] = ((), float(domain_standard_errors[name]),
+                                            {"units": "1", "long_name": "Monte Carlo standard error of the domain "
+                                             "mean of " + name})
     ds["absorption"] = (("z", "y", "x"), np.asarray(absorption, dtype=np.float64),
                         {"units": CELL_FIELDS["absorption"][0], "long_name": CELL_FIELDS["absorption"][1]})
     if heating_rate is not None:
@@ -97,7 +117,7 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
     if per_band:
         for name, value in per_band.items():
             ds[per_band_name(name)] = (("band", "y", "x"), np.asarray(value, dtype=np.float64),
-                                       {"units": "1", "long_name": COLUMN_FLUXES[name] + " in the band / "
+                                       {"units": "1", "long_name": present[name] + " in the band / "
                                         "incident flux in the band"})
         if band is not None:
             ds = ds.assign_coords(band=list(band))
@@ -111,8 +131,9 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
 
 
 def _result_variables(scene):
-    names = set(COLUMN_FLUXES) | {stderr_name(f) for f in COLUMN_FLUXES} | set(CELL_FIELDS)
-    names |= {per_band_name(f) for f in COLUMN_FLUXES} | {f"run_{k}" for k in RUN_METADATA}
+    fluxes = set(COLUMN_FLUXES) | set(OPTIONAL_COLUMN_FLUXES)
+    names = fluxes | {stderr_name(f) for f in fluxes} | {domain_stderr_name(f) for f in fluxes} | set(CELL_FIELDS)
+    names |= {per_band_name(f) for f in fluxes} | set(RUN_METADATA)
     names |= {"result_complete", "incident_flux"}
     return [n for n in scene.data_vars if n in names]
 
@@ -174,7 +195,7 @@ def select_result(scene, solver, zenith, azimuth):
     for name in sub.data_vars:
         if name in ("result_complete", "incident_flux"):
             continue
-        key = name[4:] if name.startswith("run_") else name
+        key = name
         value = sub[name]
         if value.dims and np.all(np.isnan(value.values)) and (name in CELL_FIELDS or name.endswith("_per_band")):
             continue
@@ -259,13 +280,12 @@ def _stack(scene, runs):
         i = solvers.index(r.attrs["solver"])
         j = suns.index((float(r.attrs["solar_zenith_angle"]), float(r.attrs["solar_beam_azimuth"])))
         flags[i, j] = 1
-        incident[i, j] = float(r["solar_constant"]) * np.cos(np.radians(r.attrs["solar_zenith_angle"]))
+        incident[i, j] = float(r["run_solar_constant"]) * np.cos(np.radians(r.attrs["solar_zenith_angle"]))
         for name in r.data_vars:
             value = r[name].values
             arrays[name][i, j] = str(value.item()) if value.dtype == object else value
     for name, template in names.items():
-        target = f"run_{name}" if name in RUN_METADATA else name
-        out[target] = (STACK_DIMS + template.dims, arrays[name], dict(template.attrs))
+        out[name] = (STACK_DIMS + template.dims, arrays[name], dict(template.attrs))
     out["result_complete"] = (STACK_DIMS, flags, {"long_name": "1 where the (solver, sun) result is stored"})
     out["incident_flux"] = (STACK_DIMS, incident, {"units": "W m-2", "long_name": "incident solar flux on the "
                                                    "horizontal at the top of the domain, S0 cos(theta0)"})
@@ -275,6 +295,6 @@ def _stack(scene, runs):
 def in_watts(result, name):
     """A flux of a run result in W m-2 (fraction times ``S0 cos(theta0)``)."""
     mu0 = np.cos(np.radians(result.attrs["solar_zenith_angle"]))
-    out = result[name] * float(result["solar_constant"]) * mu0
+    out = result[name] * float(result["run_solar_constant"]) * mu0
     out.attrs.update(units="W m-2", long_name=result[name].attrs.get("long_name", name).replace(" / incident flux", ""))
     return out

@@ -173,7 +173,7 @@ def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_basel
     }
     for var, corrections in fine_baselines.items():
         block[var] = stack(lambda t: block_mean(corrections[t], fy, fx))
-    incident = float(full["solar_constant"]) * math.cos(math.radians(zenith))
+    incident = float(full["run_solar_constant"]) * math.cos(math.radians(zenith))
     block.update({
         "scene": np.full(n, name, dtype=object),
         "regime": np.full(n, str(scene.attrs.get("regime", "")), dtype=object),

@@ -14,7 +14,7 @@ import xarray as xr
 
 from ..errors import ValidationError
 
-FORMAT_VERSION = "1.0"
+FORMAT_VERSION = "1.1"
 
 OPTICAL_VARIABLES = ("extinction", "single_scattering_albedo", "asymmetry_parameter")
 REQUIRED_VARIABLES = OPTICAL_VARIABLES + ("surface_albedo", "solar_weight")

@@ -1,22 +1,24 @@
-"""Ray geometry on the periodic cell grid and the deterministic direct beam (numba kernels).
+"""Ray geometry on the periodic cell grid and the direct beam (numba kernels).
 
 The direct solar beam is attenuated along exact slant paths (Beer-Lambert law) through
-the cells, with periodic horizontal wrap.  Each top-of-domain column is sampled by
-``nsub x nsub`` parallel rays; a regular lattice of ray entry points keeps exactly
-``nsub**2`` rays landing in every surface column, so a clear sky gets a direct flux of
-exactly ``exp(-tau/mu0)``.  Energy removed from the beam in a cell is split into
-absorption, ``(1 - omega) dE``, and a scattering source, ``omega dE``, from which the
-Monte Carlo photons start; the direct beam reaching the surface is absorbed,
-``(1 - A) T``, or reflected into a Lambertian source, ``A T``.
+the cells, with periodic horizontal wrap.  Every batch of photons traces its own direct
+beam: ``nsub x nsub`` parallel rays land in every surface column, one at a uniformly
+random point of each of the column's ``nsub x nsub`` equal strata (stratified random
+sampling).  Every batch's direct flux is then an unbiased estimate for every column,
+whatever the cloud edges do inside it, a column under a horizontally uniform sky still
+receives exactly ``exp(-tau/mu0)``, and the errors of different columns are independent.  Energy removed from the beam in a cell is split into absorption,
+``(1 - omega) dE``, and a scattering source, ``omega dE``, from which the batch's Monte
+Carlo photons start; the direct beam reaching the surface is absorbed, ``(1 - A) T``, or
+reflected into a Lambertian source, ``A T``.
 """
 
 import math
 
 import numpy as np
-import numba
-from numba import get_thread_id, njit, prange
+from numba import njit
 
 from ._kernel import KERNEL
+from ._rng import uniform
 
 INF = math.inf
 
@@ -74,14 +76,28 @@ def descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny, z0, uz, z
 
 
 @njit(cache=True, inline="always")
-def ray_entry(r, nx, nsub, dx, dy):
-    """Column indices and entry position (x, y) of direct-beam ray ``r`` at the domain top."""
+def wrap_into(pos, length):
+    """``pos`` moved by whole periods into [0, length)."""
+    pos -= length * math.floor(pos / length)
+    return pos if pos < length else 0.0
+
+
+@njit(cache=True, inline="always")
+def ray_entry(r, nx, ny, nsub, dx, dy, offset, reach):
+    """Top-of-domain entry point (x, y) [m] of direct-beam ray ``r``.
+
+    Ray ``r`` lands in column ``r // nsub**2`` (``iy * nx + ix``), in its stratum
+    ``((r // nsub) % nsub, r % nsub)`` along (y, x), at ``offset`` (x, y), in [0, 1) of
+    the stratum's sides.  ``reach`` (x, y) is the horizontal distance [m] the beam travels
+    from the top of the domain to the surface; the entry point lies that far upsun,
+    wrapped into the periodic domain.
+    """
     c = r % nsub
     a = (r // nsub) % nsub
     col = r // (nsub * nsub)
-    ix = col % nx
-    iy = col // nx
-    return ix, iy, (ix + (c + 0.5) / nsub) * dx, (iy + (a + 0.5) / nsub) * dy
+    x = (col % nx + (c + offset[0]) / nsub) * dx - reach[0]
+    y = (col // nx + (a + offset[1]) / nsub) * dy - reach[1]
+    return wrap_into(x, nx * dx), wrap_into(y, ny * dy)
 
 
 @njit(cache=True, inline="always")
@@ -95,21 +111,21 @@ def _apply_pending(trans, pending, source, b, r):
         pending[b] = 0.0
 
 
-def direct_beam_3d(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi):
-    """Trace the direct beam along slant paths with periodic wrap (see :func:`_direct_rays`)."""
-    return _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, numba.get_num_threads())
-
-
-@njit(cache=True, parallel=True)
-def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads):
-    """Trace the direct beam along slant paths with periodic wrap.
+@njit(**KERNEL)
+def direct_beam_batch(state, kext, ssa_g, alb, weights, z_edge, dx, dy, ux, uy, uz, nsub, reach, edge_slot,
+                      ray_xy, source, ray_cum, ray_trans, direct, cell, scale, work):
+    """Trace one batch's direct beam along slant paths with periodic wrap.
 
     Parameters
     ----------
-    ext, ssa : float64 (nband, nz, ny, nx)
-        Extinction [m-1] and single-scattering albedo.
+    kext : float32 (nband, nz, ny, nx)
+        Extinction [m-1].
+    ssa_g : float32 (nband, nz, ny, nx, 2)
+        Single-scattering albedo and asymmetry parameter.
     alb : float64 (nband, ny, nx)
         Surface albedo.
+    weights : float64 (nband,)
+        Solar weight of every band.
     z_edge : float64 (nz + 1,)
         Layer edges [m].
     dx, dy : float
@@ -118,62 +134,42 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
         Beam direction (uz < 0).
     nsub : int
         Rays per column and axis.
-    czi : int64 (ncz + 1,)
-        Layer-edge indices where the cumulative tables are recorded (block edges).
-    nthreads : int
-        Numba threads in use (one fixed-point absorption array each).
-
-    Returns
-    -------
-    absorbed : (nband, nz, ny, nx)
-        Direct-beam absorption per cell, in units of one column's incident flux.
-    surface : (nband, ny, nx)
-        Direct flux reaching the surface per column (fraction of the incident flux).
-    source : (nband, nray)
-        Scattered plus surface-reflected direct-beam energy per ray.
-    ray_cum, ray_trans : (nband, nray, ncz + 1)
-        Scattered energy above, and direct beam left at, each block edge ``czi[ncz - j]``
-        for ``j = 0 .. ncz`` (from the top down); they let a photon find its starting
-        block without re-tracing the whole ray.
+    reach : tuple
+        Horizontal travel (x, y) of the beam from the top to the surface [m].
+    edge_slot : int64 (nz + 1,)
+        Slot ``j`` of the cumulative tables at layer edge ``k`` (-1 where none is kept).
+    ray_xy : float64 (nray, 2), out
+        Entry point of every ray at the top of the domain [m]: each ray lands at a point
+        drawn uniformly from its stratum with two uniforms of ``state``.
+    source : float64 (nband, nray), out
+        Scattered plus surface-reflected direct-beam energy of every ray, in units of
+        one column's incident flux in the band.
+    ray_cum, ray_trans : float64 (nband, nray, ncz + 1), out
+        Scattered energy above, and direct beam left at, the kept layer edges from the
+        top down; they let a photon find its starting block without re-tracing the ray.
+    direct : float64 (3, nband, ny, nx), out (added to)
+        Solar-weighted direct flux reaching the surface, direct flux absorbed in the
+        atmospheric column and direct flux absorbed by the surface, per column.
+    cell : int64 (nz, ny, nx), added to
+        Solar-weighted absorbed direct flux per cell, in fixed point (units of ``1 / scale``).
+    scale : float
+        Fixed-point units per unit of flux.
+    work : float64 (>= 2 nband,)
+        Scratch: the beam left and the optical depth of conservative cells not yet applied.
     """
-    nb, nz, ny, nx = ext.shape
-    ncz = czi.shape[0] - 1
+    nb, nz, ny, nx = kext.shape
     nray = nx * ny * nsub * nsub
     wray = 1.0 / (nsub * nsub)
-    # Every ray fills its own entries (it crosses every layer edge below the top once), so
-    # the tables are first touched, and paged in, by the threads in parallel.
-    source = np.empty((nb, nray))
-    ray_cum = np.empty((nb, nray, ncz + 1))
-    ray_trans = np.empty((nb, nray, ncz + 1))
-    ray_surface = np.empty((nb, nray))
-    ray_column = np.empty(nray, dtype=np.int64)
-    edge_slot = np.full(nz + 1, -1, dtype=np.int64)
-    for j in range(ncz + 1):
-        edge_slot[czi[ncz - j]] = j
-    # Rays run in parallel.  Cells take absorption from many rays, so each thread sums into
-    # its own fixed-point array (the whole beam maps to 2**61 units): integer sums give the
-    # same total for any number of threads.
-    scale = 2.0**61 / (nx * ny)
-    absorbed_fixed = np.empty((nthreads, nb, nz, ny, nx), dtype=np.int64)
-    ncell = nb * nz * ny * nx
-    fixed = absorbed_fixed.reshape(nthreads, ncell)
-    for c in prange(ncell):
-        for i in range(nthreads):
-            fixed[i, c] = 0
-    # Per thread: the beam left, and the optical depth of conservative cells not yet applied
-    # to it; padded, so that threads never share a cache line.
-    trans_of_thread = np.empty((nthreads, 2 * nb + 16))
-    for r in prange(nray):
-        thread = get_thread_id()
-        mine = absorbed_fixed[thread]
-        trans = trans_of_thread[thread, :nb]
-        pending = trans_of_thread[thread, nb:2 * nb]
-        trans[:] = wray
-        pending[:] = 0.0
-        ix, iy, x, y = ray_entry(r, nx, nsub, dx, dy)
+    trans, pending = work[:nb], work[nb:2 * nb]
+    for r in range(nray):
+        x, y = ray_entry(r, nx, ny, nsub, dx, dy, (uniform(state), uniform(state)), reach)
+        ray_xy[r, 0], ray_xy[r, 1] = x, y
+        ix, iy = min(int(x / dx), nx - 1), min(int(y / dy), ny - 1)
         iz = nz - 1
         z0 = z_edge[nz]
         for b in range(nb):
+            trans[b] = wray
+            pending[b] = 0.0
             source[b, r] = 0.0
             ray_cum[b, r, 0] = 0.0
             ray_trans[b, r, 0] = wray
@@ -182,9 +178,9 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
         while True:
             tn = min(tmx, tmy, tmz)
             for b in range(nb):
-                k = ext[b, iz, iy, ix]
+                k = float(kext[b, iz, iy, ix])
                 if k > 0.0:
-                    w = ssa[b, iz, iy, ix]
+                    w = float(ssa_g[b, iz, iy, ix, 0])
                     if w == 1.0:
                         # A conservative cell absorbs nothing and scatters all it removes, so
                         # its source only telescopes: one exponential for a run of such cells.
@@ -193,7 +189,9 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
                     _apply_pending(trans, pending, source, b, r)
                     t_out = trans[b] * math.exp(-k * (tn - t))
                     removed = trans[b] - t_out
-                    mine[b, iz, iy, ix] += np.int64((1.0 - w) * removed * scale + 0.5)
+                    a = weights[b] * (1.0 - w) * removed
+                    cell[iz, iy, ix] += np.int64(a * scale + 0.5)
+                    direct[1, b, iy, ix] += a
                     source[b, r] += w * removed
                     trans[b] = t_out
             t = tn
@@ -208,24 +206,13 @@ def _direct_rays(ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi, nthreads)
                         ray_trans[b, r, j] = trans[b]
                 if iz < 0:
                     break
-        ray_column[r] = iy * nx + ix
+        # The walk ends in the column the ray was aimed at, up to round-off.
         for b in range(nb):
             _apply_pending(trans, pending, source, b, r)
-            ray_surface[b, r] = trans[b]
-            source[b, r] += alb[b, iy, ix] * trans[b]
-    surface = np.zeros((nb, ny, nx))
-    for r in range(nray):
-        iy, ix = ray_column[r] // nx, ray_column[r] % nx
-        for b in range(nb):
-            surface[b, iy, ix] += ray_surface[b, r]
-    absorbed = np.empty((nb, nz, ny, nx))
-    flat = absorbed.reshape(ncell)
-    for c in prange(ncell):
-        total = fixed[0, c]
-        for i in range(1, nthreads):
-            total += fixed[i, c]
-        flat[c] = total / scale
-    return absorbed, surface, source, ray_cum, ray_trans
+            albedo = alb[b, iy, ix]
+            source[b, r] += albedo * trans[b]
+            direct[0, b, iy, ix] += weights[b] * trans[b]
+            direct[2, b, iy, ix] += weights[b] * (1.0 - albedo) * trans[b]
 
 
 @njit(cache=True, inline="always")
@@ -245,12 +232,12 @@ def _point_in_cell(x, y, z, t, ux, uy, uz, ix, iy, iz, dx, dy, lx, ly, z_edge):
 
 
 @njit(**KERNEL)
-def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsub, u, ssa_g, czi,
+def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, ray_xy, u, ssa_g, czi,
                      ray_cum, ray_trans):
     """Find where the scattered energy of ray ``r`` passes ``target``.
 
     The block holding the point comes from the ray's cumulative tables; only that block
-    is re-traced.  ``kext`` is the float32 extinction (nband, nz, ny, nx) and ``ssa_g``
+    is re-traced (the ray entering the top at ``ray_xy[r]``).  ``kext`` is the float32 extinction (nband, nz, ny, nx) and ``ssa_g``
     the float32 (nband, nz, ny, nx, 2) single-scattering albedo and asymmetry.
     Returns ``(kind, x, y, z, ix, iy, iz)``: kind 0 is a scattering point in the
     atmosphere (position sampled exactly from the attenuated beam inside the cell,
@@ -258,7 +245,7 @@ def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsu
     """
     nz, ny, nx = kext.shape[1], kext.shape[2], kext.shape[3]
     ncz = czi.shape[0] - 1
-    ex, ey, x0, y0 = ray_entry(r, nx, nsub, dx, dy)
+    x0, y0 = ray_xy[r, 0], ray_xy[r, 1]
     lx, ly = nx * dx, ny * dy
     row = ray_cum[band, r]
     if target < row[ncz]:
@@ -268,8 +255,8 @@ def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsu
         cz = ncz - 1 - j
         z = z_edge[czi[cz + 1]]
         path = (z_edge[nz] - z) / -uz
-        x = (x0 + path * ux) % lx
-        y = (y0 + path * uy) % ly
+        x = wrap_into(x0 + path * ux, lx)
+        y = wrap_into(y0 + path * uy, ly)
         ix = min(int(x / dx), nx - 1)
         iy = min(int(y / dy), ny - 1)
         iz = czi[cz + 1] - 1
@@ -310,10 +297,10 @@ def locate_source_3d(r, band, target, kext, alb, z_edge, dx, dy, ux, uy, uz, nsu
             px, py, pz = _point_in_cell(x, y, z, last_t, ux, uy, uz, last_ix, last_iy, last_iz, dx, dy, lx, ly,
                                         z_edge)
             return 0, px, py, pz, last_ix, last_iy, last_iz
-    path = z_edge[nz] / -uz
-    x = (x0 + path * ux) % lx
-    y = (y0 + path * uy) % ly
-    return 1, x, y, 0.0, min(int(x / dx), nx - 1), min(int(y / dy), ny - 1), 0
+    path = (z_edge[nz] - z_edge[0]) / -uz
+    x = wrap_into(x0 + path * ux, lx)
+    y = wrap_into(y0 + path * uy, ly)
+    return 1, x, y, z_edge[0], min(int(x / dx), nx - 1), min(int(y / dy), ny - 1), 0
 
 
 @njit(**KERNEL)

@@ -9,22 +9,26 @@ surface) and are traced until they leave the top of the domain or are absorbed:
   in independent-column mode the photon stays in its column and walks its layers one by one;
 * Henyey-Greenstein scattering (Henyey and Greenstein 1941), Lambertian surface;
 * absorption by weight, ``w (1 - omega)`` per collision and ``w (1 - A)`` per surface
-  hit, while the weight is above a threshold; below it (and in nearly conservative
-  cells, omega > 0.999) an unbiased Russian roulette keeps the photon with probability
-  ``omega`` (or ``A``) at unchanged weight and otherwise books its whole weight as
-  absorbed where it stopped.  The expected tallies
-  equal those of absorption by weight, and every photon's weight ends up in exactly one
-  of: reflected at the top, absorbed in a cell, absorbed at the surface.  Energy
-  therefore closes exactly in every run.
+  hit, while the weight is at least a threshold; below it the expected absorption
+  ``w (1 - omega)`` (or ``w (1 - A)``) is still tallied, and an unbiased Russian roulette
+  then keeps the photon with probability ``omega`` (or ``A``) at unchanged weight.  Every
+  collision in an absorbing cell thus adds to that cell's absorption, so even a nearly
+  conservative cloud gets a tally (and a standard error) in every column it absorbs in;
+  energy closes in expectation, not in every run.
 
-Column tallies of a batch, per band, in a flat (nband, 4 ny nx) slot (:func:`slot_index`):
-a plane of the upward flux at the top (column ``j`` at ``j``), a plane of the absorption
-in the atmospheric column, then the surface's pairs (diffuse flux reaching it, flux it
-absorbs) side by side.  A photon leaving at the top touches one line of a plane of 8 bytes
-per column, a surface hit one line of the 16-byte pairs.  The upward flux at the surface
-is what reaches it minus what it absorbs, hit by hit, and is formed per batch when the
-batches are summed (:func:`run_batches`, whose sums are (..., 5) in the order
-:data:`SUM_NAMES`).
+Column tallies of a batch, per band, in a flat (nband, 5 ny nx) slot (:func:`slot_index`):
+planes of the upward flux at the top (column ``j`` at ``j``), of the absorption in the
+atmospheric column and of the direct flux reaching the surface, then the surface's pairs
+(diffuse flux reaching it, flux it absorbs) side by side.  A photon leaving at the top
+touches one line of a plane of 8 bytes per column, a surface hit one line of the 16-byte
+pairs.  The upward flux at the surface is what reaches it minus what it absorbs, and is
+formed per batch when the batches are summed (:func:`run_batches`, whose sums are
+(..., 6) in the order :data:`SUM_NAMES`).
+
+Every batch is a complete, independent estimate: in 3D it traces its own direct beam on a
+randomly shifted lattice (:func:`surrogate3d.solvers._geometry.direct_beam_batch`) and
+its photons start from that beam's scattering source.  The spread between batches then
+measures the noise of every tally, the direct beam's included.
 """
 
 import math
@@ -32,29 +36,28 @@ import math
 import numpy as np
 from numba import get_thread_id, njit, prange
 
-from ._geometry import axis_start, locate_source_3d, locate_source_column
+from ._geometry import axis_start, direct_beam_batch, locate_source_3d, locate_source_column
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 
-TOA_UP, ATM_ABS, SFC_DOWN, SFC_ABS = 0, 1, 2, 3
-#: Above this single-scattering albedo the roulette books absorption: a weighted deposit of
-#: less than 1e-3 of the weight at every collision would cost a memory write each for a
-#: small variance gain.  Both estimators are unbiased.
-WEIGHTED_ABSORPTION_MAX_ALBEDO = 0.999
-N_TALLIES = 4
+TOA_UP, ATM_ABS, SFC_DIR, SFC_DOWN, SFC_ABS = 0, 1, 2, 3, 4
+#: Smallest absorption tallied at a collision, relative to the photon's weight.  A smaller
+#: expected absorption ``a`` is tallied as this quantum ``q`` with probability ``a / q``:
+#: unbiased, and in nearly conservative cloud it writes to the tallies at one collision in
+#: a hundred (every write is a cache miss in the cell tallies) instead of every collision.
+ABSORPTION_QUANTUM = 0.01
+N_TALLIES = 5
 #: The column sums of :func:`run_batches`, in order.
-SUM_NAMES = ("toa_upward", "surface_downward_diffuse", "surface_upward", "atmosphere_absorbed",
-             "surface_absorbed")
+SUM_NAMES = ("toa_upward", "surface_downward_direct", "surface_downward_diffuse", "surface_upward",
+             "atmosphere_absorbed", "surface_absorbed")
 
 
 @njit(cache=True, inline="always", error_model="numpy")
 def slot_index(tally, j, ncol):
     """Index of ``tally`` of column ``j`` (``iy * nx + ix``, of ``ncol``) in a batch slot."""
-    if tally == TOA_UP:
-        return j
-    if tally == ATM_ABS:
-        return ncol + j
-    return 2 * ncol + 2 * j + (tally - SFC_DOWN)
+    if tally < SFC_DOWN:
+        return tally * ncol + j
+    return 3 * ncol + 2 * j + (tally - SFC_DOWN)
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -134,25 +137,32 @@ def _deposit(cell, scale, iz, iy, ix, a):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def _absorb_in_cell(cell, scale, col, b, iz, iy, ix, a):
+    _deposit(cell, scale, iz, iy, ix, a)
+    _add(col, b, ATM_ABS, iy, ix, cell, a)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell, scale):
-    """Absorption (by weight, or roulette) and Henyey-Greenstein scattering.
+    """Absorption (by weight, or expected value and roulette) and Henyey-Greenstein scattering.
 
     Returns ``(alive, w, ux, uy, uz)``.
     """
-    if w >= thresh and om <= WEIGHTED_ABSORPTION_MAX_ALBEDO:
+    if om < 1.0:
         a = w * (1.0 - om)
-        _deposit(cell, scale, iz, iy, ix, a)
-        _add(col, b, ATM_ABS, iy, ix, cell, a)
-        w -= a
-        if w <= 0.0:
+        q = ABSORPTION_QUANTUM * w
+        if a >= q:
+            _absorb_in_cell(cell, scale, col, b, iz, iy, ix, a)
+        elif uniform(state) * q < a:
+            _absorb_in_cell(cell, scale, col, b, iz, iy, ix, q)
+        if w >= thresh:
+            w -= a
+            if w <= 0.0:
+                return False, w, ux, uy, uz
+        elif uniform(state) >= om:
             return False, w, ux, uy, uz
-    elif uniform(state) >= om:
-        _deposit(cell, scale, iz, iy, ix, w)
-        _add(col, b, ATM_ABS, iy, ix, cell, w)
-        return False, w, ux, uy, uz
     if events >= max_events:
-        _deposit(cell, scale, iz, iy, ix, w)
-        _add(col, b, ATM_ABS, iy, ix, cell, w)
+        _absorb_in_cell(cell, scale, col, b, iz, iy, ix, w)
         return False, w, ux, uy, uz
     mu = hg_cosine(g, uniform(state))
     cp, sp = random_azimuth(state)
@@ -165,16 +175,12 @@ def _surface(state, w, b, iy, ix, thresh, alb, col):
     """Diffuse arrival at the Lambertian surface: tally, absorb, reflect.  Returns ``(alive, w)``."""
     _add(col, b, SFC_DOWN, iy, ix, alb, w)
     albedo = alb[b, iy, ix]
+    a = w * (1.0 - albedo)
+    _add(col, b, SFC_ABS, iy, ix, alb, a)
     if w >= thresh:
-        a = w * (1.0 - albedo)
-        _add(col, b, SFC_ABS, iy, ix, alb, a)
         w -= a
-        if w <= 0.0:
-            return False, w
-    elif uniform(state) >= albedo:
-        _add(col, b, SFC_ABS, iy, ix, alb, w)
-        return False, w
-    return True, w
+        return w > 0.0, w
+    return uniform(state) < albedo, w
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -579,20 +585,66 @@ def _next_above(cdf, k, last, u):
     return min(lo + 1 + np.searchsorted(cdf[lo + 1:hi], u, side="right"), last)
 
 
+@njit(cache=True, inline="always")
+def _add_deviation(sums, sumsq, pivot, first, m, v):
+    # Sums of a batch value's deviation from the first batch's, and of its square: the
+    # variance from them does not lose the digits that sums of raw squares would.
+    if first:
+        pivot[m] = v
+    d = v - pivot[m]
+    sums[m] += d
+    sumsq[m] += d * d
+
+
+@njit(cache=True, inline="always")
+def _cumulate(source, weights, cdf):
+    # The cumulative table of the solar-weighted source over (band, ray); returns its total.
+    nb, nray = source.shape
+    total = 0.0
+    for b in range(nb):
+        for r in range(nray):
+            total += source[b, r] * weights[b]
+            cdf[b * nray + r] = total
+    return total
+
+
 @njit(**KERNEL)
-def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays, kext, ssa_g, column_props, alb,
-               z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans, roulette, max_events, col, cell, scale):
-    """Trace one batch of photons into the slot tallies ``col`` and the fixed-point cell tallies
-    ``cell`` (units of ``1 / scale``), drawing from the random stream ``state`` (uint64,
-    seeded here for the batch); returns events.
+def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, ssa_g, column_props, alb,
+               z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, edge_slot, grid, czi, column_direct, ray_xy, source,
+               ray_cum, ray_trans, work, roulette, max_events, col, cell, scale):
+    """Trace one batch into the slot tallies ``col`` and the fixed-point cell tallies ``cell``
+    (units of ``1 / scale``), drawing from the random stream ``state`` (uint64, seeded here
+    for the batch); returns events.
+
+    In 3D the batch first traces its own direct beam (:func:`direct_beam_batch`), with
+    ray positions drawn from its stream, into ``ray_xy``, ``source``, ``ray_cum``,
+    ``ray_trans`` and the cumulative table ``cdf``; ``reach`` is the beam's horizontal
+    travel (x, y) [m] from the top to the surface.  Independent columns share the exact
+    direct beam of every column: ``cdf`` holds its source.  ``column_direct`` (3, nband,
+    ny, nx) holds the direct beam's surface, column-absorbed and surface-absorbed flux
+    (zeroed scratch in 3D, filled here), which the batch adds to its tallies.
 
     3D tracing uses ``kext`` and ``ssa_g`` (see :func:`transport_3d`); independent-column
     tracing uses ``column_props``, float32 (nband, ny, nx, nz, 3) with each column's
     extinction, single-scattering albedo and asymmetry contiguous.
     """
-    nx = alb.shape[2]
+    nb, ny, nx = alb.shape
+    ncol = ny * nx
     seed_stream(state, seed, batch)
-    total = cdf[-1]
+    if full_3d:
+        direct_beam_batch(state, kext, ssa_g, alb, band_weight, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach,
+                          edge_slot, ray_xy, source, ray_cum, ray_trans, column_direct, cell, scale, work)
+        total = _cumulate(source, band_weight, cdf)
+    else:
+        total = cdf[-1]
+    nrays = cdf.shape[0] // nb
+    for b in range(nb):
+        for j in range(ncol):
+            col[b, slot_index(SFC_DIR, j, ncol)] += column_direct[0, b, j // nx, j % nx]
+            col[b, slot_index(ATM_ABS, j, ncol)] += column_direct[1, b, j // nx, j % nx]
+            col[b, slot_index(SFC_ABS, j, ncol)] += column_direct[2, b, j // nx, j % nx]
+    if not total > 0.0:
+        return 0
     w = total / batch_size
     thresh = roulette * w
     mu0 = -uz0
@@ -613,7 +665,7 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays,
         v = uniform(state)
         if full_3d:
             kind, x, y, z, ix, iy, iz = locate_source_3d(r, b, target, kext, alb, z_edge, dx, dy, ux0, uy0, uz0,
-                                                         nsub, v, ssa_g, czi, ray_cum, ray_trans)
+                                                         ray_xy, v, ssa_g, czi, ray_cum, ray_trans)
             if kind == 0:
                 events += 1
                 mu = hg_cosine(ssa_g[b, iz, iy, ix, 1], uniform(state))
@@ -639,72 +691,90 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, nrays,
     return events
 
 
-@njit(cache=True, inline="always")
-def _add_batch(csum, bsq, b, m, v0, v1, v2, v3, v4):
-    # One batch's five column sums (in the order SUM_NAMES) and their squares, band b.
-    csum[b, m] += v0
-    csum[b, m + 1] += v1
-    csum[b, m + 2] += v2
-    csum[b, m + 3] += v3
-    csum[b, m + 4] += v4
-    bsq[b, m] += v0 * v0
-    bsq[b, m + 1] += v1 * v1
-    bsq[b, m + 2] += v2 * v2
-    bsq[b, m + 3] += v3 * v3
-    bsq[b, m + 4] += v4 * v4
-
-
 @njit(cache=True, parallel=True)
-def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, nrays,
-                kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, grid, czi, ray_cum, ray_trans,
-                roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_fixed, scale):
+def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, kext, ssa_g,
+                column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, edge_slot, grid, czi, column_direct,
+                roulette, max_events, col_sum, spread, cell_fixed, scale):
     """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to the sums.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
     added in batch order, so the sums do not depend on the number of threads.
-    ``col_sum`` (nband, ny, nx, 5) receives the batch tallies (in the order
-    :data:`SUM_NAMES`), ``col_sumsq`` (ny, nx, 5) the squares of the band-summed batch
-    tallies and ``band_sumsq`` (nband, ny, nx, 5) the squares per band.  Cell absorption
-    needs no batch-to-batch variance: every thread adds it to its own int64 array
-    ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units of ``1 / scale``; integer sums
-    make the total independent of which thread ran which batch.  Returns the scattering
-    events.
+    ``col_sum`` (nband, ny, nx, 6) receives the batch tallies (in the order
+    :data:`SUM_NAMES`).  ``spread`` (3, ncol + 1, 6) receives, for the band-summed batch
+    tallies of every column and (last row) their domain means, the sums of their
+    deviations from batch 0's values, of the squared deviations, and batch 0's values.
+    Cell absorption needs no batch-to-batch variance: every thread adds it to its own int64
+    array ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units of ``1 / scale``; integer
+    sums make the total independent of which thread ran which batch.  In 3D ``cdf`` is
+    unused (every batch builds its own table); for independent columns it is the shared
+    (nband * ncol,) table.  Returns the scattering events.
     """
     nb, ny, nx = alb.shape
     ncol = ny * nx
+    nthreads = cell_fixed.shape[0]
     col_slots = np.empty((wave, nb, N_TALLIES * ncol))  # every batch zeroes its slot
     slot_events = np.zeros(wave, dtype=np.int64)
     # 128 bytes for each 32-byte stream state: a state, written at every draw, then never
     # shares a cache line with another thread's.
     states = np.zeros((wave, 16), dtype=np.uint64)
+    # Per thread, the scratch of the batch it runs: its direct beam's per-ray tables.
+    nray = ncol * nsub * nsub if full_3d else 1
+    ncz = czi.shape[0] - 1
+    sources = np.empty((nthreads, nb, nray))
+    cums = np.empty((nthreads, nb, nray, ncz + 1))
+    transs = np.empty((nthreads, nb, nray, ncz + 1))
+    cdfs = np.empty((nthreads, nb * nray))
+    xys = np.empty((nthreads, nray, 2))
+    directs = np.empty((nthreads, 3, nb, ny, nx))
+    works = np.empty((nthreads, 2 * nb + 16))
     nsum = len(SUM_NAMES)
     total_events = 0
     csum = col_sum.reshape(nb, ncol * nsum)
-    csq = col_sumsq.reshape(ncol * nsum)
-    bsq = band_sumsq.reshape(nb, ncol * nsum)
+    dev, devsq, pivot = spread[0].reshape(-1), spread[1].reshape(-1), spread[2].reshape(-1)
+    values = np.zeros(nsum)
+    domain = np.zeros(nsum)
     for start in range(first_batch, first_batch + n_batches, wave):
         n = min(wave, first_batch + n_batches - start)
         for i in prange(n):
+            thread = get_thread_id()
             col_slots[i, :, :] = 0.0
-            slot_events[i] = _run_batch(states[i], start + i, full_3d, seed, batch_size, cdf, band_weight, nrays,
+            table = cdfs[thread] if full_3d else cdf
+            direct = directs[thread] if full_3d else column_direct
+            if full_3d:
+                direct[:] = 0.0
+            slot_events[i] = _run_batch(states[i], start + i, full_3d, seed, batch_size, table, band_weight,
                                         kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
-                                        grid, czi, ray_cum, ray_trans, roulette,
-                                        max_events, col_slots[i], cell_fixed[get_thread_id()], scale)
+                                        reach, edge_slot, grid, czi, direct, xys[thread], sources[thread],
+                                        cums[thread], transs[thread], works[thread], roulette, max_events,
+                                        col_slots[i], cell_fixed[thread], scale)
         for i in range(n):
             cs = col_slots[i]
+            first = start + i == 0
+            domain[:] = 0.0
             for j in range(ncol):
-                s0 = s1 = s2 = s3 = s4 = 0.0
+                values[:] = 0.0
                 for b in range(nb):
-                    v0, v1 = cs[b, slot_index(TOA_UP, j, ncol)], cs[b, slot_index(SFC_DOWN, j, ncol)]
-                    v3, v4 = cs[b, slot_index(ATM_ABS, j, ncol)], cs[b, slot_index(SFC_ABS, j, ncol)]
-                    v2 = v1 - v4
-                    _add_batch(csum, bsq, b, j * nsum, v0, v1, v2, v3, v4)
-                    s0, s1, s2, s3, s4 = s0 + v0, s1 + v1, s2 + v2, s3 + v3, s4 + v4
-                m = j * nsum
-                csq[m] += s0 * s0
-                csq[m + 1] += s1 * s1
-                csq[m + 2] += s2 * s2
-                csq[m + 3] += s3 * s3
-                csq[m + 4] += s4 * s4
+                    v0, v1 = cs[b, slot_index(TOA_UP, j, ncol)], cs[b, slot_index(SFC_DIR, j, ncol)]
+                    v2, v5 = cs[b, slot_index(SFC_DOWN, j, ncol)], cs[b, slot_index(SFC_ABS, j, ncol)]
+                    v4 = cs[b, slot_index(ATM_ABS, j, ncol)]
+                    v3 = v1 + v2 - v5
+                    m = j * nsum
+                    csum[b, m] += v0
+                    csum[b, m + 1] += v1
+                    csum[b, m + 2] += v2
+                    csum[b, m + 3] += v3
+                    csum[b, m + 4] += v4
+                    csum[b, m + 5] += v5
+                    values[0] += v0
+                    values[1] += v1
+                    values[2] += v2
+                    values[3] += v3
+                    values[4] += v4
+                    values[5] += v5
+                for q in range(nsum):
+                    _add_deviation(dev, devsq, pivot, first, j * nsum + q, values[q])
+                    domain[q] += values[q]
+            for q in range(nsum):
+                _add_deviation(dev, devsq, pivot, first, ncol * nsum + q, domain[q] / ncol)
             total_events += slot_events[i]
     return total_events

@@ -19,7 +19,8 @@ def register(sub):
     p.add_argument("--jobs", type=int, default=1, help="local worker processes (default: 1)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask distributed scheduler at ADDRESS")
     p.add_argument("--batch-size", type=int, help="photons per batch (default: automatic)")
-    p.add_argument("--rays-per-column", type=int, default=2, help="direct-beam rays per column and axis (default: 2)")
+    p.add_argument("--rays-per-column", type=int, default=1,
+                   help="direct-beam rays per column and axis in every photon batch (default: 1)")
     p.add_argument("--threads", type=int, help="compiled threads per run (default: all cores)")
     p.add_argument("--per-band", action="store_true", help="also store per-band column fluxes")
     p.add_argument("--solar-constant", type=float, default=1361.0, help="W m-2 (default: 1361, Kopp and Lean 2011)")

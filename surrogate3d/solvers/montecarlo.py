@@ -75,6 +75,16 @@ def default_batch_size(photons):
     return int(min(50_000, max(1_000, math.ceil(photons / 32))))
 
 
+#: Result field -> the column sum of :data:`_transport.SUM_NAMES` it is the batch mean of.
+_RESULT_TALLIES = {
+    "toa_upward_flux": "toa_upward",
+    "surface_downward_direct_flux": "surface_downward_direct",
+    "surface_downward_diffuse_flux": "surface_downward_diffuse",
+    "surface_upward_flux": "surface_upward",
+    "atmosphere_absorption": "atmosphere_absorbed",
+    "surface_absorption": "surface_absorbed",
+}
+
 #: Optical thickness across a cell below which a cell counts as clear air for cube steps.
 CLEAR_CELL_OPTICAL_THICKNESS = 0.01
 
@@ -251,7 +261,7 @@ def _arrays(scene):
 
 
 def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=1_000_000, seed=0,
-                      independent_columns=False, batch_size=None, rays_per_column=2, threads=None,
+                      independent_columns=False, batch_size=None, rays_per_column=1, threads=None,
                       per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=DEFAULT_MAJORANT_BLOCK,
                       clear_cube=DEFAULT_CLEAR_CUBE,
                       roulette_weight=0.3, max_scattering_events=100_000, progress=None):
@@ -277,7 +287,10 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         every batch in proportion to their solar weight times scattered fraction, so the
         batch size does not depend on the number of bands.
     rays_per_column : int
-        Direct-beam rays per column and horizontal axis (3D mode), in [1, 16].
+        Direct-beam rays per column and horizontal axis that every batch traces (3D mode),
+        in [1, 16]: each lands at a uniformly random point of its stratum of the column.
+        A ray costs about a third of a photon; one per column and batch keeps the direct
+        beam's noise below the photons' in host-column means (``docs/methods/monte-carlo.md``).
     threads : int, optional
         Numba threads (default: numba's setting).
     per_band : bool
@@ -291,8 +304,9 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         Largest radius (blocks) of the cubes of clear-air blocks a photon crosses in one
         step (3D mode), in [0, 14]; 0 crosses every block.  Only the cost depends on it.
     roulette_weight : float
-        Photon weight, relative to the starting weight, below which Russian roulette replaces
-        absorption by weight; in (0, 1].  The default 0.3 stops tracing photons of small
+        Photon weight, relative to the starting weight, below which a photon's survival of
+        a collision or a surface hit is decided by Russian roulette instead of reducing its
+        weight (its expected absorption is tallied either way); in (0, 1].  The default 0.3 stops tracing photons of small
         weight after a reflection by a dark surface: on the shared benchmark scene it needs
         about 10 % less CPU time than 0.1 for the same noise in the surface fluxes.
     max_scattering_events : int
@@ -305,9 +319,11 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     -------
     xarray.Dataset
         A run result (:func:`surrogate3d.archive.make_run_result`): column fluxes as
-        fractions of the incident flux on the horizontal with standard errors from
-        batch-to-batch variance (zero for the deterministic direct beam), absorption per
-        cell, heating rate when the scene has ``air_pressure``.
+        fractions of the incident flux on the horizontal (the five of
+        :data:`surrogate3d.archive.COLUMN_FLUXES` and ``surface_absorption``), their
+        standard errors per column and of their domain means, from the spread between
+        batches (every batch an independent estimate of everything, the direct beam
+        included), absorption per cell, heating rate when the scene has ``air_pressure``.
 
     References
     ----------
@@ -348,99 +364,86 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     nb, nz, ny, nx = ext.shape
     ux, uy, uz = beam_direction(zenith, azimuth)
     mu0 = -uz
+    n_batches = max(2, -(-photons // batch_size))
+    nsum = len(_transport.SUM_NAMES)
 
     with _numba_threads(threads):
         kext, ssa_g, column_props = tracking_arrays(ext, ssa, asym, independent_columns)
         del asym
         if independent_columns:
             absorbed, surface, source = direct_beam_column(ext, ssa, alb, z_edge, mu0)
-            nsub_used = 1
+            w3 = weights[:, None, None]
+            column_direct = np.ascontiguousarray(np.stack([w3 * surface, w3 * absorbed.sum(axis=1),
+                                                           w3 * (1.0 - alb) * surface]))
+            cdf = np.cumsum((source * weights[:, None]).reshape(-1))
             grid = _majorant_grid(np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb),
                                   1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge)
             czi = np.zeros(2, np.int64)
-            ray_cum = ray_trans = np.zeros((nb, 1, 1))
+            nsub, reach = 1, (0.0, 0.0)
+            # Run-level scale: the whole photon weight of all batches maps to 2**61 units.
+            energy = cdf[-1] if cdf.size and cdf[-1] > 0.0 else 1.0
         else:
+            absorbed = None
+            column_direct = np.zeros((3, nb, ny, nx))
+            cdf = np.zeros(1)
             grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge)
             czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
-            absorbed, surface, source, ray_cum, ray_trans = _geometry.direct_beam_3d(
-                ext, ssa, alb, z_edge, dx, dy, ux, uy, uz, nsub, czi)
-            nsub_used = nsub
-        del ext, ssa  # the photons trace the single-precision copies
-        nrays = source.shape[1]
-        safe_w = np.where(weights > 0, weights, 1.0)
-        cdf = np.cumsum((source * weights[:, None]).reshape(-1))
+            path = (z_edge[-1] - z_edge[0]) / mu0
+            reach = (path * ux, path * uy)
+            # A batch's whole beam, direct and scattered, is at most one column's flux per column.
+            energy = float(nx * ny)
+        del ext, ssa  # traced from the single-precision copies
+        edge_slot = np.full(nz + 1, -1, dtype=np.int64)
+        edge_slot[czi[::-1]] = np.arange(czi.size)
 
-        n_batches = max(2, -(-photons // batch_size))
-        col_sum = np.zeros((nb, ny, nx, len(_transport.SUM_NAMES)))
-        col_sumsq = np.zeros((ny, nx, len(_transport.SUM_NAMES)))
-        band_sumsq = np.zeros_like(col_sum)
-        cell_sum = np.zeros((nz, ny, nx))
+        col_sum = np.zeros((nb, ny, nx, nsum))
+        spread = np.zeros((3, ny * nx + 1, nsum))
+        # Fixed-point cell tallies: the run's whole energy maps to at most 2**61 units, far
+        # inside int64 and fine enough (2**-61) that rounding never shows.
+        scale = 2.0**61 / (n_batches * energy)
+        cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
+        chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
         events = 0
-        if cdf.size and cdf[-1] > 0.0:
-            # Fixed-point cell tallies: the run's whole photon weight maps to 2**61 units, far
-            # inside int64 and fine enough (2**-61) that rounding never shows.
-            scale = 2.0**61 / (n_batches * cdf[-1])
-            cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
-            chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
-            for first in range(0, n_batches, chunk):
-                n = min(chunk, n_batches - first)
-                events += _transport.run_batches(
-                    first, n, WAVE, not independent_columns, seed, batch_size, cdf, safe_w, nrays,
-                    kext, ssa_g, column_props, alb, z_edge, dx, dy, ux, uy, uz, nsub_used, grid, czi,
-                    ray_cum, ray_trans, roulette, max_events, col_sum, col_sumsq, band_sumsq, cell_fixed, scale)
-                if progress is not None:
-                    progress((first + n) * batch_size)
-            cell_sum = cell_fixed.sum(axis=0) / scale
+        for first in range(0, n_batches, chunk):
+            n = min(chunk, n_batches - first)
+            events += _transport.run_batches(
+                first, n, WAVE, not independent_columns, seed, batch_size, cdf, weights, kext, ssa_g, column_props,
+                alb, z_edge, dx, dy, ux, uy, uz, nsub, reach, edge_slot, grid, czi, column_direct, roulette,
+                max_events, col_sum, spread, cell_fixed, scale)
+            if progress is not None:
+                progress((first + n) * batch_size)
+        cell = cell_fixed.sum(axis=0) / (scale * n_batches)
+        if absorbed is not None:
+            cell += (weights[:, None, None, None] * absorbed).sum(axis=0)
 
-    # The batch sums keep a column's tallies side by side, (..., ny, nx, 5); tally first from here.
-    col_sum, band_sumsq = np.moveaxis(col_sum, -1, 1), np.moveaxis(band_sumsq, -1, 1)
-    col_sumsq = np.moveaxis(col_sumsq, -1, 0)
-    mc_mean = col_sum / n_batches
-    var = np.maximum(col_sumsq - col_sum.sum(axis=0) ** 2 / n_batches, 0.0) / (n_batches - 1)
-    mc_se = np.sqrt(var / n_batches)
-    # Deterministic direct-beam parts, broadband = solar-weighted sum over bands.
-    w4 = weights[:, None, None]
-    det_abs_col = absorbed.sum(axis=1)
-    fluxes = {
-        "toa_upward_flux": mc_mean[:, 0].sum(axis=0),
-        "surface_downward_direct_flux": (w4 * surface).sum(axis=0),
-        "surface_downward_diffuse_flux": mc_mean[:, 1].sum(axis=0),
-        "surface_upward_flux": (w4 * alb * surface).sum(axis=0) + mc_mean[:, 2].sum(axis=0),
-        "atmosphere_absorption": (w4 * det_abs_col).sum(axis=0) + mc_mean[:, 3].sum(axis=0),
-    }
-    errors = {
-        "toa_upward_flux": mc_se[0],
-        "surface_downward_direct_flux": np.zeros((ny, nx)),
-        "surface_downward_diffuse_flux": mc_se[1],
-        "surface_upward_flux": mc_se[2],
-        "atmosphere_absorption": mc_se[3],
-    }
-    cell = (weights[:, None, None, None] * absorbed).sum(axis=0) + cell_sum / n_batches
+    # The batch sums keep a column's tallies side by side, (..., ny, nx, 6); tally first from here.
+    mean = np.moveaxis(col_sum, -1, 1) / n_batches
+    dev, devsq = spread[0], spread[1]
+    var = np.maximum(devsq - dev**2 / n_batches, 0.0) / (n_batches - 1)
+    se_all = np.sqrt(var / n_batches)
+    se = np.moveaxis(se_all[:-1].reshape(ny, nx, nsum), -1, 0)
+    domain_se = se_all[-1]
+    order = {name: q for q, name in enumerate(_transport.SUM_NAMES)}
+    fields = {flux: order[tally] for flux, tally in _RESULT_TALLIES.items()}
+    fluxes = {flux: mean[:, q].sum(axis=0) for flux, q in fields.items()}
+    errors = {flux: se[q] for flux, q in fields.items()}
     band_fluxes = None
     if per_band:
-        inv = 1.0 / safe_w[:, None, None]
-        band_fluxes = {
-            "toa_upward_flux": mc_mean[:, 0] * inv,
-            "surface_downward_direct_flux": surface.copy(),
-            "surface_downward_diffuse_flux": mc_mean[:, 1] * inv,
-            "surface_upward_flux": alb * surface + mc_mean[:, 2] * inv,
-            "atmosphere_absorption": det_abs_col + mc_mean[:, 3] * inv,
-        }
+        inv = 1.0 / np.where(weights > 0, weights, 1.0)[:, None, None]
+        band_fluxes = {flux: mean[:, q] * inv for flux, q in fields.items()}
     heating = None
     if "air_pressure" in scene:
         from .heating import heating_rate
 
         heating = heating_rate(cell, solar_constant * mu0, scene["air_pressure"].values)
-    surface_absorbed = (w4 * (1.0 - alb) * surface).sum(axis=0) + mc_mean[:, 4].sum(axis=0)
     result = make_run_result(
         fluxes, errors, cell, solver="independent_column" if independent_columns else "full_3d",
         solar_zenith_angle=zenith, solar_beam_azimuth=azimuth,
-        metadata={"photons": n_batches * batch_size, "seed": seed, "scattering_events": events,
-                  "wall_time": time.perf_counter() - started, "solar_constant": solar_constant,
-                  "package_version": __version__},
-        per_band=band_fluxes, heating_rate=heating, band=list(scene["band"].values))
-    result.attrs["surface_absorption_domain_mean"] = float(surface_absorbed.mean())
+        metadata={"run_photons": n_batches * batch_size, "run_seed": seed, "run_scattering_events": events,
+                  "run_wall_time": time.perf_counter() - started, "run_solar_constant": solar_constant,
+                  "run_package_version": __version__},
+        per_band=band_fluxes, heating_rate=heating, band=list(scene["band"].values),
+        domain_standard_errors={flux: domain_se[q] for flux, q in fields.items()})
     result.attrs["batches"] = n_batches
-    result.attrs["rays_per_column"] = nsub_used
+    result.attrs["rays_per_column"] = nsub
     return result
-

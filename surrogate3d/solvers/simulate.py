@@ -40,7 +40,7 @@ class RunOptions:
 
     photons: int = 200_000
     batch_size: int = None
-    rays_per_column: int = 2
+    rays_per_column: int = 1
     per_band: bool = False
     solar_constant: float = SOLAR_CONSTANT
     threads: int = None

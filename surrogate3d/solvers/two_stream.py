@@ -423,9 +423,9 @@ def solve_scene(scene, solar_zenith_angle, solar_beam_azimuth=0.0, solar_constan
     if "air_pressure" in scene:
         heating = heating_rate(absorption, s0 * mu0, scene["air_pressure"].values)
     zeros = np.zeros(absorption.shape[1:])
-    metadata = {"photons": 0, "seed": 0, "scattering_events": 0,
-                "wall_time": time.perf_counter() - started, "solar_constant": s0,
-                "package_version": __version__}
+    metadata = {"run_photons": 0, "run_seed": 0, "run_scattering_events": 0,
+                "run_wall_time": time.perf_counter() - started, "run_solar_constant": s0,
+                "run_package_version": __version__}
     return make_run_result(fluxes, {name: zeros for name in COLUMN_FLUXES}, absorption,
                            solver="two_stream", solar_zenith_angle=zenith, solar_beam_azimuth=azimuth,
                            metadata=metadata, per_band=band_fluxes if per_band else None,

@@ -22,9 +22,9 @@ def _result(scene, solver, zenith, azimuth, rng, per_band=False, heating=False):
     return make_run_result(
         {k: rng.random((ny, nx)) for k in COLUMN_FLUXES}, {k: rng.random((ny, nx)) * 1e-3 for k in COLUMN_FLUXES},
         rng.random((nz, ny, nx)) * 0.01, solver=solver, solar_zenith_angle=zenith, solar_beam_azimuth=azimuth,
-        metadata={"photons": int(rng.integers(0, 10 ** 6)), "seed": int(rng.integers(0, 100)),
-                  "scattering_events": 7, "wall_time": float(rng.random()), "solar_constant": 1361.0,
-                  "package_version": "0.1.0"},
+        metadata={"run_photons": int(rng.integers(0, 10 ** 6)), "run_seed": int(rng.integers(0, 100)),
+                  "run_scattering_events": 7, "run_wall_time": float(rng.random()), "run_solar_constant": 1361.0,
+                  "run_package_version": "0.1.0"},
         per_band={k: rng.random((len(bands), ny, nx)) for k in COLUMN_FLUXES} if per_band else None,
         heating_rate=rng.random((nz, ny, nx)) if heating else None, band=bands if per_band else None)
 

@@ -10,8 +10,8 @@ from surrogate3d.archive import insert_result, make_run_result, write_scene
 from surrogate3d.archive.results import COLUMN_FLUXES
 from surrogate3d.scenes import make_scene
 
-METADATA = {"photons": 1000, "seed": 1, "scattering_events": 10, "wall_time": 0.1, "solar_constant": 1361.0,
-            "package_version": "test"}
+METADATA = {"run_photons": 1000, "run_seed": 1, "run_scattering_events": 10, "run_wall_time": 0.1, "run_solar_constant": 1361.0,
+            "run_package_version": "test"}
 
 
 def block_cloud_scene(nx=8, ny=8, nz=4, dx=100.0, regime="test", seed=3, cloud=(slice(1, 3), slice(2, 4), slice(2, 5))):

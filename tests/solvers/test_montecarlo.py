@@ -27,21 +27,25 @@ def domain(result, name):
 
 
 def closure(result):
-    return (domain(result, "toa_upward_flux") + domain(result, "atmosphere_absorption")
-            + result.attrs["surface_absorption_domain_mean"] - 1.0)
+    """Domain-mean R + A_atm + A_sfc - 1 and its standard error (the three errors added in
+    quadrature: an upper bound, since they are anticorrelated)."""
+    names = ("toa_upward_flux", "atmosphere_absorption", "surface_absorption")
+    se = math.sqrt(sum(float(result[n + "_domain_mean_standard_error"]) ** 2 for n in names))
+    return sum(domain(result, n) for n in names) - 1.0, se
 
 
 @pytest.mark.parametrize("independent", [False, True])
 def test_direct_transmittance_is_beer_lambert(independent):
     scene = layer_scene(2.0, ssa=0.9)
     out = solve_monte_carlo(scene, 60.0, 30.0, photons=2000, seed=1, independent_columns=independent)
-    # Beer-Lambert law: T_direct = exp(-tau / mu0), to round-off (no noise: computed deterministically).
+    # Beer-Lambert law: T_direct = exp(-tau / mu0), to round-off: wherever a ray lands, it
+    # crosses the same optical depth, so the direct beam has no noise.
     np.testing.assert_allclose(out.surface_downward_direct_flux.values, math.exp(-2.0 / 0.5), rtol=1e-6)
-    assert np.all(out.surface_downward_direct_flux_standard_error.values == 0)
+    assert np.all(out.surface_downward_direct_flux_standard_error.values < 1e-15)
 
 
 @pytest.mark.parametrize("independent", [False, True])
-def test_energy_closes_exactly(independent):
+def test_energy_closes_within_the_noise(independent):
     rng = np.random.default_rng(0)
     ext = rng.uniform(0, 0.004, size=(2, 5, 6, 6))
     ssa = rng.uniform(0.6, 1.0, size=ext.shape)
@@ -49,8 +53,13 @@ def test_energy_closes_exactly(independent):
     scene = make_scene(ext, ssa, 0.7, np.linspace(0, 2000, 6), 150.0, 100.0, surface_albedo=alb,
                        solar_weight=[0.4, 0.6])
     out = solve_monte_carlo(scene, 40.0, 110.0, photons=20000, seed=3, independent_columns=independent)
-    # Conservation of energy (exact for every run by construction): R + A_atm + A_sfc = 1.
-    assert abs(closure(out)) < 1e-10
+    # Conservation of energy: R + A_atm + A_sfc = 1 (in expectation: absorption below the
+    # roulette weight is tallied at its expected value), and the surface absorbs what
+    # reaches it minus what it reflects.
+    residual, se = closure(out)
+    assert abs(residual) < 4 * se
+    arriving = out.surface_downward_direct_flux + out.surface_downward_diffuse_flux
+    np.testing.assert_allclose(out.surface_absorption, arriving - out.surface_upward_flux, atol=1e-12)
 
 
 def test_conservative_layer_reflects_or_transmits_everything():
@@ -176,7 +185,7 @@ def test_same_seed_same_numbers_for_any_thread_count():
     one = solve_monte_carlo(scene, 30.0, photons=kw["photons"], seed=9, batch_size=1000, threads=1)
     two = solve_monte_carlo(scene, 30.0, threads=min(2, numba.config.NUMBA_NUM_THREADS), **kw)
     for name in one.data_vars:
-        if name != "wall_time":
+        if name != "run_wall_time":
             np.testing.assert_array_equal(one[name].values, two[name].values, err_msg=name)
     other = solve_monte_carlo(scene, 30.0, photons=16000, seed=10, batch_size=1000)
     assert not np.array_equal(one.toa_upward_flux.values, other.toa_upward_flux.values)

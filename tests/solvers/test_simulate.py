@@ -40,9 +40,9 @@ def test_runs_every_scene_sun_and_solver(archive):
     for scene in _stored(archive).values():
         assert len(completed(scene)) == 6
         result = select_result(scene, "full_3d", 60.0, 0.0)
-        assert int(result.photons) >= 2000 and int(result.seed) > 0
-        assert float(result.wall_time) > 0 and str(result.package_version.values)
-        assert int(select_result(scene, "two_stream", 0.0, 0.0).photons) == 0
+        assert int(result.run_photons) >= 2000 and int(result.run_seed) > 0
+        assert float(result.run_wall_time) > 0 and str(result.run_package_version.values)
+        assert int(select_result(scene, "two_stream", 0.0, 0.0).run_photons) == 0
     again = simulate_archive(archive, [0.0, 60.0], [0.0], photons=2000, seed=3, quiet=True)
     assert again["computed"] == 0 and again["skipped"] == 12
 

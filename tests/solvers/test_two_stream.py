@@ -373,7 +373,7 @@ def test_solve_scene_equals_column_solutions_weighted_by_band():
         np.testing.assert_allclose(result["absorption"].values[:, y, x], absorption, rtol=1e-12, atol=1e-16)
     assert result.attrs["solver"] == "two_stream"
     assert result.attrs["solar_beam_azimuth"] == 30.0
-    assert float(result["photons"]) == 0 and float(result["solar_constant"]) == 1361.0
+    assert float(result["run_photons"]) == 0 and float(result["run_solar_constant"]) == 1361.0
     assert np.all(result["toa_upward_flux_standard_error"].values == 0.0)
     assert result["absorption"].dims == ("z", "y", "x")
 
