@@ -13,6 +13,7 @@ from pathlib import Path
 
 from ..errors import FormatError, ParameterError
 from .regimes import REGIMES, CloudLayer, get_regime
+from .structures import structure_from_dict
 
 TOP_KEYS = {"out", "seed", "count", "grid", "optics", "regime"}
 GRID_KEYS = {"nx", "ny", "nz", "dx", "top", "z_edge"}
@@ -106,6 +107,10 @@ def _apply(regime, table, where, skip_cloud_overrides):
         if j >= len(layers):
             raise ParameterError(f"{where}: layers[{j}] does not exist; regime {regime.name!r} has "
                                  f"{len(layers)} layers")
+        if "structure" in changes:
+            changes = dict(changes)
+            changes["structure"] = structure_from_dict(changes["structure"], layers[j].structure,
+                                                       f"{where} layers[{j}] structure")
         layers[j] = replace(layers[j], **changes)
         layers[j].validate(f"{where} layers[{j}]")
     regime = replace(regime, layers=tuple(layers))
@@ -189,6 +194,9 @@ def parse_config(data, source="configuration"):
             raise ParameterError(f"{where} layers must be an array of tables; got {layers!r}")
         for j, layer in enumerate(layers):
             _check_keys(layer, LAYER_KEYS, f"{where} layers[{j}]")
+            if "structure" in layer and not isinstance(layer["structure"], dict):
+                raise ParameterError(f"{where} layers[{j}] structure must be a table (kind and parameters); "
+                                     f"got {layer['structure']!r}")
     cfg.regimes = [dict(t) for t in tables]
     return cfg
 

@@ -2,16 +2,19 @@
 
 For each cloud layer of a regime (:mod:`surrogate3d.scenes.regimes`):
 
-1. a Fourier-filtered Gaussian field with an ``E(k) ~ k**(-5/3)`` spectrum is
-   thresholded at the quantile that gives exactly the layer's cloud fraction;
+1. a Fourier-filtered Gaussian field with an ``E(k) ~ k**(-5/3)`` spectrum, or the
+   field of the layer's structure (clusters, streets, cells, a cascade:
+   :mod:`surrogate3d.scenes.structures`), is thresholded at the quantile that gives
+   exactly the layer's cloud fraction;
 2. cloud thickness is the layer thickness times an edge taper (thin at cloud edges)
    and a lognormal multiplier from a second field (cloud-top variability); the base
    height varies with a third field;
 3. the liquid water content grows linearly with height above the local cloud base,
    as in an adiabatic cloud, and the effective radius follows from the water content
    and a droplet number (Martin et al. 1994) or is fixed;
-4. the water content is scaled so that the mean cloud optical depth of the layer's
-   cloudy columns equals its target.
+4. the water content (times the structure's water multiplier, if any) is scaled so
+   that the mean cloud optical depth of the layer's cloudy columns equals its target;
+5. a tilted layer is shifted level by level in proportion to the height above its base.
 
 Layers are merged, the standard atmosphere gives temperature and pressure, and
 :mod:`surrogate3d.scenes.optics` gives the per-band extinction, single-scattering
@@ -164,20 +167,44 @@ def _effective_radius(layer, lwc):
     return np.maximum(np.cbrt(coeff * lwc), MIN_EFFECTIVE_RADIUS)
 
 
+def _tilt(lwc, r_eff, z_edge, layer, dx, direction):
+    """Shift each level of a layer's water by ``tilt * (z - base_height)`` toward ``direction``.
+
+    Whole-cell periodic shifts (rounded), so the water of every level is only moved:
+    the domain-mean optical depth is unchanged.
+    """
+    z = 0.5 * (z_edge[1:] + z_edge[:-1])
+    reach = layer.tilt * (z - layer.base_height)
+    angle = np.radians(direction)
+    shift_x = np.rint(reach * np.cos(angle) / dx).astype(int)
+    shift_y = np.rint(reach * np.sin(angle) / dx).astype(int)
+    for k in np.flatnonzero(lwc.any(axis=(1, 2))):
+        lwc[k] = np.roll(lwc[k], (shift_y[k], shift_x[k]), axis=(0, 1))
+        r_eff[k] = np.roll(r_eff[k], (shift_y[k], shift_x[k]), axis=(0, 1))
+    return lwc, r_eff
+
+
 def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     """Liquid water content and effective radius of one cloud layer, shape (nz, ny, nx).
 
-    Returns ``(lwc, r_eff, cloudy_columns, adiabatic_fraction, base)``; ``r_eff`` is 0
-    where ``lwc`` is 0 and ``base`` is NaN in columns without cloud.  ``upper_base``
-    (NaN where the layer above has no cloud) caps cloud tops below that layer's base.
+    Returns ``(lwc, r_eff, cloudy_columns, adiabatic_fraction, base, drawn)``; ``r_eff``
+    is 0 where ``lwc`` is 0, ``base`` is NaN in columns without cloud and ``drawn`` holds
+    the values the structure and tilt drew from the seed.  ``upper_base`` (NaN where the
+    layer above has no cloud) caps cloud tops below that layer's base.  With a tilt,
+    ``cloudy_columns`` are the columns the tilted cloud touches.
     """
     ny, nx = shape
     nz = z_edge.size - 1
     top_domain = float(z_edge[-1])
-    mask_field = gaussian_random_field(shape, dx, dx, rng_of(0), outer_scale=layer.outer_scale)
+    water_multiplier, drawn = None, {}
+    if layer.structure is None:
+        mask_field = gaussian_random_field(shape, dx, dx, rng_of(0), outer_scale=layer.outer_scale)
+    else:
+        pattern = layer.structure.realise(shape, dx, rng_of(0))
+        mask_field, water_multiplier, drawn = pattern.field, pattern.water_multiplier, dict(pattern.drawn)
     mask, threshold = quantile_mask(mask_field, layer.cloud_fraction)
     if not mask.any():
-        return np.zeros((nz, ny, nx)), np.zeros((nz, ny, nx)), mask, 0.0, np.full(shape, np.nan)
+        return np.zeros((nz, ny, nx)), np.zeros((nz, ny, nx)), mask, 0.0, np.full(shape, np.nan), drawn
     taper = np.ones(shape)
     if layer.edge_taper > 0 and np.isfinite(threshold):
         taper = np.sqrt(np.clip((mask_field - threshold) / layer.edge_taper, 0.0, 1.0))
@@ -207,6 +234,8 @@ def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     # cell-mean of a water content growing linearly from the base.
     height = np.maximum(0.5 * (lower + upper) - base[jj, ii], 0.25 * _MIN_THICKNESS)
     adiabatic = ADIABATIC_LWC_LAPSE_RATE * height
+    if water_multiplier is not None:
+        adiabatic = adiabatic * water_multiplier[jj, ii]
     dz = z_edge[kk + 1] - z_edge[kk]
     column = jj * nx + ii
     columns = np.flatnonzero(mask.ravel())
@@ -227,7 +256,12 @@ def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     r_eff = np.zeros((nz, ny, nx))
     lwc[kk, jj, ii] = adiabatic * scale
     r_eff[kk, jj, ii] = _effective_radius(layer, adiabatic * scale)
-    return lwc, r_eff, mask, float(scale), np.where(mask, base, np.nan)
+    if layer.tilt > 0:
+        direction = layer.tilt_direction if layer.tilt_direction is not None else float(rng_of(3).uniform(0.0, 360.0))
+        drawn["tilt_direction"] = float(direction)
+        lwc, r_eff = _tilt(lwc, r_eff, z_edge, layer, dx, direction)
+        mask = lwc.any(axis=0)
+    return lwc, r_eff, mask, float(scale), np.where(mask, base, np.nan), drawn
 
 
 def _regime_key(name):
@@ -286,7 +320,8 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         ``air_pressure``, and attributes ``regime``, ``seed``, ``title``,
         ``cloud_fraction``, ``mean_optical_depth``, ``cloud_top_variability`` (of the
         main layer), ``total_cloud_fraction`` (projected, all layers) and
-        ``generator_parameters`` (JSON of every parameter).
+        ``generator_parameters`` (JSON of every parameter and of the values drawn from
+        the seed).
 
     Raises
     ------
@@ -336,11 +371,12 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     order = sorted(range(len(reg.layers)), key=lambda i: reg.layers[i].base_height)
     key = _regime_key(reg.name)
     bases = {}
+    draws = {}
     for rank in reversed(range(len(order))):
         i = order[rank]
         layer = reg.layers[i]
         upper = bases.get(order[rank + 1]) if rank + 1 < len(order) else None
-        layer_lwc, layer_r, mask, fraction, bases[i] = _layer_water(
+        layer_lwc, layer_r, mask, fraction, bases[i], draws[i] = _layer_water(
             layer, edges, shape, dx, lambda stream, i=i: random_generator(seed, key, i, stream), upper)
         lwc += layer_lwc
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -374,6 +410,7 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         "bands": band_names, "surface_albedo": albedo.tolist(), "surface_pressure": surface_pressure,
         "gas_absorption": gas_used, "adiabatic_lwc_lapse_rate": ADIABATIC_LWC_LAPSE_RATE,
         "adiabatic_fraction": [f for _, f in sorted(fractions)],
+        "drawn": [draws[i] for i in sorted(draws)],
     }
     attrs = {
         "regime": reg.name,

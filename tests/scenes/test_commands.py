@@ -9,6 +9,7 @@ from surrogate3d import cli
 from surrogate3d.archive import read_scene
 from surrogate3d.scenes import commands
 from surrogate3d.scenes.model import cloud_mask
+from surrogate3d.scenes.regimes import REGIMES
 
 TINY = ["--nx", "8", "--ny", "6", "--nz", "5", "--quiet"]
 
@@ -76,7 +77,7 @@ def test_config_file_with_command_line_override(tmp_path):
 
 def test_all_regimes(tmp_path):
     assert run(["scenes", "--out", str(tmp_path), "--regime", "all", "--cloud-fraction", "0.3", *TINY]) == 0
-    assert len(list(tmp_path.glob("*.nc"))) == 6
+    assert len(list(tmp_path.glob("*.nc"))) == len(REGIMES)
 
 
 def test_show_draws_a_scene_file(tmp_path, capsys):

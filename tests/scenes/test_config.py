@@ -30,6 +30,16 @@ def test_all_with_overrides_leaves_clear_alone():
     assert all(e.regime.layers[0].cloud_fraction == 0.4 for e in entries if e.regime.layers)
 
 
+def test_layer_tables_change_a_structure_or_replace_it():
+    cfg = parse_config({"regime": [
+        {"name": "cloud_streets", "layers": [{"structure": {"roll_wavelength": 2500.0, "direction": 45.0}}]},
+        {"name": "overcast", "layers": [{"structure": {"kind": "cascade", "variability": 0.3}, "tilt": 0.2}]}]})
+    streets, deck = (e.regime.layers[0] for e in cfg.entries())
+    assert (streets.structure.roll_wavelength, streets.structure.direction) == (2500.0, 45.0)
+    assert streets.structure.street_length == REGIMES["cloud_streets"].layers[0].structure.street_length
+    assert (deck.structure.kind, deck.structure.variability, deck.tilt) == ("cascade", 0.3, 0.2)
+
+
 @pytest.mark.parametrize("data, message", [
     ({"grids": {}}, "unknown key 'grids'"),
     ({"grid": {"nxx": 3}}, "[grid] has unknown key 'nxx'"),
@@ -39,6 +49,7 @@ def test_all_with_overrides_leaves_clear_alone():
     ({"regime": [{"name": "cirrus"}]}, "name must be one of"),
     ({"regime": [{"name": "overcast", "layers": [{"thick": 3}]}]}, "layers[0] has unknown key 'thick'"),
     ({"regime": {"name": "overcast"}}, "array of tables"),
+    ({"regime": [{"name": "overcast", "layers": [{"structure": "cells"}]}]}, "structure must be a table"),
 ])
 def test_bad_keys_and_values_are_named(data, message):
     with pytest.raises(ParameterError) as err:
@@ -52,6 +63,10 @@ def test_bad_keys_and_values_are_named(data, message):
     ([{"name": "overcast", "layers": [{"thickness": -3.0}]}], "thickness must be in (0, 30000]"),
     ([{"name": "clear", "mean_optical_depth": 3.0}], "has no cloud layer"),
     ([{"name": "overcast", "cloud_fraction": 2.0}], "cloud_fraction must be in [0, 1]"),
+    ([{"name": "overcast", "layers": [{"structure": {"cell_diameter": 3.0}}]}], "structure needs a kind"),
+    ([{"name": "open_cells", "layers": [{"structure": {"cell_diameter": -3.0}}]}],
+     "layers[0] structure: cell_diameter must be in (0, "),
+    ([{"name": "cloud_streets", "layers": [{"structure": {"spacing": 3.0}}]}], "unknown parameter 'spacing'"),
 ])
 def test_bad_regime_tables_are_refused_when_expanded(tables, message):
     with pytest.raises(ParameterError, match=message.replace("[", r"\[").replace("(", r"\(")):

@@ -5,7 +5,7 @@ import importlib
 
 import pytest
 
-MODULES = ["atmosphere", "optics", "random_fields", "regimes", "generator", "model", "config", "plotting"]
+MODULES = ["atmosphere", "optics", "random_fields", "regimes", "structures", "generator", "model", "config", "plotting"]
 
 
 @pytest.mark.parametrize("name", MODULES)
