@@ -18,7 +18,9 @@ For each cloud layer of a regime (:mod:`surrogate3d.scenes.regimes`):
 
 Layers are merged, the standard atmosphere gives temperature and pressure, and
 :mod:`surrogate3d.scenes.optics` gives the per-band extinction, single-scattering
-albedo and asymmetry parameter of cloud, Rayleigh scattering and an optional gas.
+albedo and asymmetry parameter of cloud, Rayleigh scattering and an optional gas (or a
+named optics set, :mod:`surrogate3d.scenes.optics_sets`).  The surface albedo is
+uniform or a pattern of two surfaces (:mod:`surrogate3d.scenes.surface`).
 """
 
 import json
@@ -31,8 +33,10 @@ from ..errors import ParameterError
 from . import optics
 from .atmosphere import MAX_HEIGHT, SEA_LEVEL_PRESSURE, standard_profile
 from .model import make_scene
+from .optics_sets import get_optics_set
 from .random_fields import gaussian_random_field, quantile_mask, random_generator
 from .regimes import get_regime
+from .surface import albedo_map, surface_pattern_from_dict
 
 #: Adiabatic rate of increase of liquid water content with height [kg m-3 m-1]: about
 #: 2 g m-3 per km for cloud bases near 10 degC and 900 hPa (common practice; it
@@ -49,7 +53,12 @@ DEFAULT_GAS_SCALE_HEIGHT = 2000.0
 #: Smallest effective radius of cloud droplets [m] (GCM cloud optics bound their
 #: radius at a few micrometres; common practice).
 MIN_EFFECTIVE_RADIUS = 2.5e-6
+#: Default bands when neither ``bands`` nor ``optics_set`` is given.
+DEFAULT_BANDS = ("visible", "near_infrared")
 _MIN_THICKNESS = 1.0
+#: Key of the random stream of the surface pattern (layer streams are keyed by layer
+#: index and stream number, so this cannot collide with them).
+_SURFACE_STREAM = 2 ** 32
 
 
 def _int_param(name, value, low, high):
@@ -271,9 +280,9 @@ def _regime_key(name):
 
 def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"], nz=None, dx=DEFAULT_GRID["dx"],
                    top=None, z_edge=None, cloud_fraction=None, mean_optical_depth=None,
-                   cloud_top_variability=None, bands=("visible", "near_infrared"),
-                   surface_albedo=DEFAULT_SURFACE_ALBEDO, surface_pressure=SEA_LEVEL_PRESSURE,
-                   gas_absorption=None, validate=True):
+                   cloud_top_variability=None, bands=None, surface_albedo=DEFAULT_SURFACE_ALBEDO,
+                   surface_pressure=SEA_LEVEL_PRESSURE, gas_absorption=None, optics_set=None,
+                   surface_pattern=None, validate=True):
     """Generate a synthetic 3D cloud scene of a regime.
 
     Parameters
@@ -299,16 +308,26 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         Overrides the main layer's mean cloudy-column optical depth [1], > 0.
     cloud_top_variability : float, optional
         Overrides the main layer's thickness coefficient of variation [1], in [0, 5].
-    bands : sequence of str
-        Bands of :data:`surrogate3d.scenes.optics.BANDS`, not overlapping.
+    bands : sequence of str, optional
+        Bands of :data:`surrogate3d.scenes.optics.BANDS`, not overlapping (default
+        ``visible`` and ``near_infrared``).
     surface_albedo : float, sequence or dict
         Lambertian surface albedo [1] in [0, 1]: one value, one per band, or a mapping
-        band -> value (default 0.06).
+        band -> value (default 0.06).  With ``surface_pattern``, the first surface.
     surface_pressure : float
         Surface pressure [Pa] (default 101325).
     gas_absorption : dict, optional
         Band -> column absorption optical depth [1] within the domain, or band ->
         ``{"column_optical_depth": tau, "scale_height": H [m]}`` (H default 2000 m).
+    optics_set : str, optional
+        A name of :data:`surrogate3d.scenes.optics_sets.OPTICS_SETS`, which sets
+        ``bands`` and ``gas_absorption`` (then neither may be given); stored in the
+        scene attribute ``optics_set``.
+    surface_pattern : SurfacePattern or dict, optional
+        How a second surface shares the domain with the first
+        (:class:`surrogate3d.scenes.surface.SurfacePattern`: ``kind`` uniform, patches
+        or coastline, ``contrast_albedo``, ``scale`` [m], ``fraction`` [1]); drawn from
+        the seed.  Default: ``surface_albedo`` everywhere.
     validate : bool
         Run the scene validator on the result.
 
@@ -319,9 +338,9 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         ``effective_radius`` (0 where there is no water), ``air_temperature`` and
         ``air_pressure``, and attributes ``regime``, ``seed``, ``title``,
         ``cloud_fraction``, ``mean_optical_depth``, ``cloud_top_variability`` (of the
-        main layer), ``total_cloud_fraction`` (projected, all layers) and
-        ``generator_parameters`` (JSON of every parameter and of the values drawn from
-        the seed).
+        main layer), ``total_cloud_fraction`` (projected, all layers),
+        ``optics_set`` (when one is given) and ``generator_parameters`` (JSON of every
+        parameter and of the values drawn from the seed).
 
     Raises
     ------
@@ -353,9 +372,19 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         top = reg.top
     edges = vertical_grid(nz, top, z_edge)
     surface_pressure = _float_param("surface_pressure", surface_pressure, 10000.0, 120000.0)
-    band_list = optics.get_bands(bands)
+    if optics_set is not None:
+        if bands is not None or gas_absorption is not None:
+            raise ParameterError(f"optics_set={optics_set!r} sets bands and gas_absorption; give either "
+                                 "optics_set or bands/gas_absorption, not both")
+        chosen = get_optics_set(optics_set).generator_options()
+        bands, gas_absorption = chosen["bands"], chosen["gas_absorption"]
+    band_list = optics.get_bands(DEFAULT_BANDS if bands is None else bands)
     band_names = [b.name for b in band_list]
     albedo = _per_band("surface_albedo", surface_albedo, band_names, 0.0, 1.0)
+    pattern = None
+    if surface_pattern is not None:
+        pattern = surface_pattern_from_dict(surface_pattern)
+        contrast = _per_band("surface_pattern contrast_albedo", pattern.contrast_albedo, band_names, 0.0, 1.0)
     gas_tau, gas_used = _gas_profiles(gas_absorption, band_names, edges)
     for i, layer in enumerate(reg.layers):
         if layer.cloud_fraction > 0 and layer.base_height >= edges[-1]:
@@ -404,13 +433,21 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         gas = (gas_tau[b] / dz)[:, None, None]
         ext[b], ssa[b], asym[b] = optics.mix_optics(cloud_ext, omega_c, g_c, rayleigh, gas)
 
+    surface = albedo
+    surface_record = None
+    if pattern is not None:
+        surface, drawn_surface = albedo_map(albedo, contrast, pattern, shape, dx,
+                                            random_generator(seed, key, _SURFACE_STREAM))
+        surface_record = {"kind": pattern.kind, "contrast_albedo": contrast.tolist(), "scale": pattern.scale,
+                          "fraction": pattern.fraction, **drawn_surface}
+
     main = reg.layers[0] if reg.layers else None
     parameters = {
         "regime": reg.as_dict(), "seed": seed, "nx": nx, "ny": ny, "dx": dx, "z_edge": edges.tolist(),
         "bands": band_names, "surface_albedo": albedo.tolist(), "surface_pressure": surface_pressure,
         "gas_absorption": gas_used, "adiabatic_lwc_lapse_rate": ADIABATIC_LWC_LAPSE_RATE,
         "adiabatic_fraction": [f for _, f in sorted(fractions)],
-        "drawn": [draws[i] for i in sorted(draws)],
+        "drawn": [draws[i] for i in sorted(draws)], "optics_set": optics_set, "surface_pattern": surface_record,
     }
     attrs = {
         "regime": reg.name,
@@ -423,7 +460,9 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         "generator": "surrogate3d.scenes.generate_scene",
         "generator_parameters": json.dumps(parameters, sort_keys=True),
     }
-    return make_scene(ext, ssa, asym, edges, dx, dx, surface_albedo=albedo,
+    if optics_set is not None:
+        attrs["optics_set"] = optics_set
+    return make_scene(ext, ssa, asym, edges, dx, dx, surface_albedo=surface,
                       solar_weight=optics.solar_weights(band_names), band=band_names,
                       liquid_water_content=lwc, effective_radius=r_eff, air_temperature=temperature,
                       air_pressure=pressure, attrs=attrs, validate=validate)
