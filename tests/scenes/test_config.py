@@ -19,7 +19,21 @@ def test_sample_config_lists_every_regime_and_a_labelled_variant():
     assert entries["clear"].seeds == (0,)
     tall = entries["towering_cumulus"].regime.layers[0]
     assert (tall.thickness, tall.mean_optical_depth, tall.cloud_top_variability) == (1200.0, 25.0, 0.7)
-    assert cfg.generator_options()["nx"] == 64
+    streets = entries["cloud_streets_along_x"].regime.layers[0].structure
+    assert (streets.direction, streets.roll_wavelength) == (0.0, 2000.0)
+    assert cfg.scene_options("overcast", 1)["nx"] == 64
+
+
+def test_large_config_spans_every_family_on_wide_domains_with_drawn_surfaces_and_optics():
+    cfg = load_config(SAMPLE.with_name("scenes-large.toml"))
+    entries = cfg.entries()
+    assert set(REGIMES) <= {e.regime.name for e in entries}
+    options = [cfg.scene_options(e.regime.name, seed) for e in entries for seed in e.seeds]
+    # Domains wider than the 10 km neighbour windows of the features.
+    assert all(o["nx"] * o["dx"] >= 20000.0 and o["ny"] * o["dx"] >= 20000.0 for o in options)
+    assert {o["optics_set"] for o in options} == {"two_band_moist", "two_band_dry", "visible_only"}
+    visible = [o["surface_albedo"]["visible"] for o in options]
+    assert min(visible) < 0.06 and max(visible) > 0.7
 
 
 def test_all_with_overrides_leaves_clear_alone():
