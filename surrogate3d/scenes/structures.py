@@ -394,30 +394,75 @@ class CellularField:
     def realise(self, shape, dx, rng):
         """The cell field on a periodic grid (see :meth:`ClusteredField.realise`); ``drawn`` holds ``cells``."""
         ny, nx = shape
-        width, height = nx * dx, ny * dx
         centres = self.centres(shape, dx, rng)
-        x = ((np.arange(nx) + 0.5) * dx)[None, :]
-        y = ((np.arange(ny) + 0.5) * dx)[:, None]
-        nearest = np.full(shape, np.inf)
-        second = np.full(shape, np.inf)
-        v1 = np.zeros((2,) + shape)
-        v2 = np.zeros((2,) + shape)
-        for cx, cy in centres:
-            # Displacement from the centre's nearest periodic image to each column.
-            ux = (x - cx + 0.5 * width) % width - 0.5 * width + np.zeros(shape)
-            uy = (y - cy + 0.5 * height) % height - 0.5 * height + np.zeros(shape)
-            d2 = ux * ux + uy * uy
-            first = d2 < nearest
-            runner_up = ~first & (d2 < second)
-            second = np.where(first, nearest, np.where(runner_up, d2, second))
-            v2 = np.where(first, v1, np.where(runner_up, (ux, uy), v2))
-            nearest = np.where(first, d2, nearest)
-            v1 = np.where(first, (ux, uy), v1)
+        nearest, second, v1, v2 = _nearest_two_centres(centres, shape, dx, 2.0 * self.cell_diameter)
         separation = np.hypot(*(v1 - v2))
-        wall_distance = (second - nearest) / (2.0 * np.maximum(separation, 1e-9 * dx))
+        wall_distance = ((second - nearest) / (2.0 * np.maximum(separation, 1e-9 * dx))).reshape(shape)
         values = wall_distance if self.cell_type == "closed" else -wall_distance
         values = _rough(values, self.roughness, shape, dx, rng, outer_scale=0.25 * self.cell_diameter)
         return StructureFields(values, drawn={"cells": int(len(centres))})
+
+
+def _wrap(offset, length):
+    """Offsets [m] on a periodic axis of ``length``, mapped to ``[-length/2, length/2)``."""
+    return (offset + 0.5 * length) % length - 0.5 * length
+
+
+def _fold_centre(state, index, ux, uy):
+    """Fold one centre, at displacement ``(ux, uy)`` from points ``index``, into their nearest two."""
+    nearest, second, v1, v2 = state
+    d2 = ux * ux + uy * uy
+    n, s, a, b = nearest[index], second[index], v1[:, index], v2[:, index]
+    first = d2 < n
+    runner_up = ~first & (d2 < s)
+    second[index] = np.where(first, n, np.where(runner_up, d2, s))
+    v2[:, index] = np.where(first, a, np.where(runner_up, (ux, uy), b))
+    nearest[index] = np.where(first, d2, n)
+    v1[:, index] = np.where(first, (ux, uy), a)
+
+
+def _nearest_two_centres(centres, shape, dx, reach):
+    """Squared distances to, and displacements from, the nearest two centres of every column.
+
+    Each centre is folded only into the columns within ``reach`` [m] of it in x and y (a
+    window, on domains wider than it), which keeps the cost proportional to the domain
+    area; columns whose second-nearest centre in the windows lies farther than the
+    windows are sure to reach are folded with every centre.  Distances use each centre's
+    nearest periodic image.
+
+    Returns
+    -------
+    nearest, second : numpy.ndarray, shape (ny * nx,)
+        Squared distances [m2] to the nearest and second-nearest centre.
+    v1, v2 : numpy.ndarray, shape (2, ny * nx)
+        Displacements (x, y) [m] from those centres to the columns.
+    """
+    ny, nx = shape
+    width, height = nx * dx, ny * dx
+    px, py = (np.arange(nx) + 0.5) * dx, (np.arange(ny) + 0.5) * dx
+    cells = int(math.ceil(reach / dx))
+    state = (np.full(ny * nx, np.inf), np.full(ny * nx, np.inf), np.zeros((2, ny * nx)), np.zeros((2, ny * nx)))
+
+    def window(c, n):
+        if 2 * cells + 1 >= n:
+            return np.arange(n)
+        return np.arange(int(c // dx) - cells, int(c // dx) + cells + 1) % n
+
+    for cx, cy in centres:
+        ii, jj = window(cx, nx), window(cy, ny)
+        index = (jj[:, None] * nx + ii[None, :]).ravel()
+        ux = np.broadcast_to(_wrap(px[ii] - cx, width)[None, :], (jj.size, ii.size)).ravel()
+        uy = np.broadcast_to(_wrap(py[jj] - cy, height)[:, None], (jj.size, ii.size)).ravel()
+        _fold_centre(state, index, ux, uy)
+    if 2 * cells + 1 < max(nx, ny):
+        unsure = np.flatnonzero(state[1] > ((cells - 1) * dx) ** 2)
+        if unsure.size:
+            state[0][unsure] = np.inf
+            state[1][unsure] = np.inf
+            jj, ii = np.divmod(unsure, nx)
+            for cx, cy in centres:
+                _fold_centre(state, unsure, _wrap(px[ii] - cx, width), _wrap(py[jj] - cy, height))
+    return state
 
 
 @dataclass(frozen=True)

@@ -258,6 +258,23 @@ def test_cells_are_open_or_closed():
             assert 0 <= _periodic_labels(cells)[1] - _drawn(scene)["cells"] <= 1, (name, seed)
 
 
+def test_cell_walls_from_windows_equal_those_from_every_centre():
+    # The nearest two centres of a column, found within windows around each centre (with the
+    # fallback for columns the windows may miss), equal those of a plain search over all centres.
+    from surrogate3d.scenes.structures import _nearest_two_centres
+
+    shape, dx = (150, 120), 100.0
+    ny, nx = shape
+    x, y = (np.arange(nx) + 0.5) * dx, (np.arange(ny) + 0.5) * dx
+    for regularity in (0.0, 0.6):
+        centres = CellularField(cell_diameter=1000.0, regularity=regularity).centres(shape, dx, random_generator(1))
+        nearest, second, _, _ = _nearest_two_centres(centres, shape, dx, 1500.0)
+        ux = (x[None, None, :] - centres[:, 0, None, None] + 0.5 * nx * dx) % (nx * dx) - 0.5 * nx * dx
+        uy = (y[None, :, None] - centres[:, 1, None, None] + 0.5 * ny * dx) % (ny * dx) - 0.5 * ny * dx
+        plain = np.sort((ux * ux + uy * uy).reshape(len(centres), -1), axis=0)
+        assert np.array_equal(nearest, plain[0]) and np.array_equal(second, plain[1])
+
+
 @pytest.mark.parametrize("make, message", [
     (lambda: ClusteredField(cluster_spacing=0.0), "cluster_spacing must be in (0, 1e+06]; got 0.0"),
     (lambda: ClusteredField(clouds_per_cluster=0.5), "clouds_per_cluster must be in [1, 1000]; got 0.5"),
