@@ -112,7 +112,8 @@ class SceneSetConfig:
             optics["bands"] = tuple(optics["bands"])
         if optics.get("optics_set") is not None:
             used = set(get_optics_set(optics["optics_set"]).bands)
-            optics["surface_albedo"] = _only_bands(optics.get("surface_albedo", 0.06), used)
+            if "surface_albedo" in optics:
+                optics["surface_albedo"] = _only_bands(optics["surface_albedo"], used)
             if isinstance(optics.get("surface_pattern"), dict) and "contrast_albedo" in optics["surface_pattern"]:
                 pattern = dict(optics["surface_pattern"])
                 pattern["contrast_albedo"] = _only_bands(pattern["contrast_albedo"], used)
