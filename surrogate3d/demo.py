@@ -103,14 +103,13 @@ def _make_scenes(cfg, archive, quiet):
     from .scenes.generator import generate_scene
 
     archive.mkdir(parents=True, exist_ok=True)
-    options = cfg.generator_options()
     jobs = [(entry.regime, seed) for entry in cfg.entries() for seed in entry.seeds]
     made = 0
     for regime, seed in tqdm(jobs, desc="scenes", unit="scene", disable=quiet or None):
         path = archive / f"{regime.name}_{seed:05d}.nc"
         if path.is_file():
             continue
-        write_scene(generate_scene(regime, seed, **options), path, validate=False)
+        write_scene(generate_scene(regime, seed, **cfg.scene_options(regime.name, seed)), path, validate=False)
         made += 1
     return made, len(jobs)
 

@@ -118,7 +118,6 @@ def run_scenes(args):
 
     cfg = _scene_set(args)
     entries = cfg.entries()
-    options = cfg.generator_options()
     out = Path(cfg.out)
     try:
         out.mkdir(parents=True, exist_ok=True)
@@ -129,7 +128,7 @@ def run_scenes(args):
     with tqdm(total=len(jobs), desc="scenes", unit="scene", file=sys.stderr,
               disable=True if args.quiet else None) as bar:
         for regime, seed in jobs:
-            scene = generate_scene(regime, seed, **options)
+            scene = generate_scene(regime, seed, **cfg.scene_options(regime.name, seed))
             path = out / f"{regime.name}_{seed:05d}.nc"
             write_scene(scene, path, validate=False)
             written.append(path)

@@ -4,7 +4,9 @@ A configuration lists regimes with optional overrides, the seeds to use, the gri
 the optics; ``surrogate3d scenes --config FILE`` reads it and the command-line options
 override it.  Every key is documented in ``docs/scene-generator.md``; a sample is
 ``training/scenes-demo.toml``.  Unknown keys are errors, so that a misspelt key is not
-silently ignored.
+silently ignored.  Optics values may be drawn per scene from a range or a list
+(:mod:`surrogate3d.scenes.draws`); :meth:`SceneSetConfig.scene_options` gives the
+options of one scene.
 """
 
 import tomllib
@@ -12,11 +14,17 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 from ..errors import FormatError, ParameterError
+from .draws import check_draws, contains_draw, draw_stream, is_draw, resolve
+from .optics import BANDS
+from .optics_sets import OPTICS_SETS, get_optics_set
 from .regimes import REGIMES, CloudLayer, get_regime
+from .structures import structure_from_dict
+from .surface import SURFACE_PATTERNS, SurfacePattern
 
 TOP_KEYS = {"out", "seed", "count", "grid", "optics", "regime"}
 GRID_KEYS = {"nx", "ny", "nz", "dx", "top", "z_edge"}
-OPTICS_KEYS = {"bands", "surface_albedo", "surface_pressure", "gas_absorption"}
+OPTICS_KEYS = {"bands", "surface_albedo", "surface_pressure", "gas_absorption", "optics_set", "surface_pattern"}
+SURFACE_PATTERN_KEYS = {f.name for f in fields(SurfacePattern)}
 REGIME_KEYS = {"name", "label", "count", "seed", "cloud_fraction", "mean_optical_depth",
                "cloud_top_variability", "layers"}
 LAYER_KEYS = {f.name for f in fields(CloudLayer)}
@@ -69,8 +77,48 @@ class SceneSetConfig:
     source: str = "command line"
 
     def generator_options(self):
-        """Keyword arguments for :func:`surrogate3d.scenes.generate_scene` (grid and optics)."""
-        return {**self.grid, **self.optics}
+        """Keyword arguments for :func:`surrogate3d.scenes.generate_scene` (grid and optics).
+
+        Raises
+        ------
+        surrogate3d.errors.ParameterError
+            When the optics hold per-scene draws: use :meth:`scene_options`.
+        """
+        if contains_draw(self.optics):
+            raise ParameterError(f"{self.source}: [optics] draws values per scene; use scene_options(regime, seed)")
+        return self.scene_options(None, None)
+
+    def scene_options(self, regime_name, seed):
+        """Keyword arguments for :func:`surrogate3d.scenes.generate_scene` for one scene.
+
+        Draws in the optics are made with the scene's seed (:mod:`surrogate3d.scenes.draws`).
+        With an ``optics_set``, entries of per-band albedo tables for bands the set does
+        not use are dropped, so that one table serves every set.
+
+        Parameters
+        ----------
+        regime_name : str or None
+            The regime's name (after any label); ``None`` only without draws.
+        seed : int or None
+            The scene's seed; ``None`` only without draws.
+
+        Returns
+        -------
+        dict
+        """
+        optics = {key: resolve(value, draw_stream(seed, regime_name, key)) if contains_draw(value) else value
+                  for key, value in self.optics.items()}
+        if "bands" in optics:
+            optics["bands"] = tuple(optics["bands"])
+        if optics.get("optics_set") is not None:
+            used = set(get_optics_set(optics["optics_set"]).bands)
+            if "surface_albedo" in optics:
+                optics["surface_albedo"] = _only_bands(optics["surface_albedo"], used)
+            if isinstance(optics.get("surface_pattern"), dict) and "contrast_albedo" in optics["surface_pattern"]:
+                pattern = dict(optics["surface_pattern"])
+                pattern["contrast_albedo"] = _only_bands(pattern["contrast_albedo"], used)
+                optics["surface_pattern"] = pattern
+        return {**self.grid, **optics}
 
     def entries(self):
         """The regimes to generate, with overrides applied and seeds expanded.
@@ -99,6 +147,13 @@ class SceneSetConfig:
         return out
 
 
+def _only_bands(value, bands):
+    """A per-band table restricted to ``bands``; any other value unchanged."""
+    if isinstance(value, dict) and value and set(value) <= set(BANDS):
+        return {band: v for band, v in value.items() if band in bands}
+    return value
+
+
 def _apply(regime, table, where, skip_cloud_overrides):
     """The regime with a table's layer overrides, main-layer overrides and label applied."""
     layers = list(regime.layers)
@@ -106,6 +161,10 @@ def _apply(regime, table, where, skip_cloud_overrides):
         if j >= len(layers):
             raise ParameterError(f"{where}: layers[{j}] does not exist; regime {regime.name!r} has "
                                  f"{len(layers)} layers")
+        if "structure" in changes:
+            changes = dict(changes)
+            changes["structure"] = structure_from_dict(changes["structure"], layers[j].structure,
+                                                       f"{where} layers[{j}] structure")
         layers[j] = replace(layers[j], **changes)
         layers[j].validate(f"{where} layers[{j}]")
     regime = replace(regime, layers=tuple(layers))
@@ -133,6 +192,55 @@ def _check_int(value, where, low, high):
     if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
         raise ParameterError(f"{where} must be an integer in [{low}, {high}]; got {value!r}")
     return value
+
+
+def _check_albedo(value, where):
+    """Albedo values (possibly drawn, possibly per band) in [0, 1], band tables naming known bands."""
+    check_draws(value, where, 0.0, 1.0)
+    if is_draw(value):
+        kind, arg = next(iter(value.items()))
+        for i, option in enumerate(arg if kind == "choice" else []):
+            _check_albedo(option, f"{where} choice[{i}]")
+    elif isinstance(value, dict):
+        unknown = sorted(set(value) - set(BANDS))
+        if unknown:
+            raise ParameterError(f"{where} names band {unknown[0]!r}; bands are {', '.join(BANDS)}")
+
+
+def _choices(value):
+    """The values a (possibly drawn) setting can take."""
+    if is_draw(value) and "choice" in value:
+        return [c for option in value["choice"] for c in _choices(option)]
+    return [value]
+
+
+def _check_optics(optics, where):
+    """Check the [optics] table up front: draws, ranges, optics-set names, surface pattern keys."""
+    for key, value in optics.items():
+        if key not in ("surface_albedo", "surface_pressure", "surface_pattern"):
+            check_draws(value, f"{where} {key}")
+    if "surface_albedo" in optics:
+        _check_albedo(optics["surface_albedo"], f"{where} surface_albedo")
+    if "surface_pressure" in optics:
+        check_draws(optics["surface_pressure"], f"{where} surface_pressure", 10000.0, 120000.0)
+    if "optics_set" in optics:
+        for name in _choices(optics["optics_set"]):
+            if name not in OPTICS_SETS:
+                raise ParameterError(f"{where} optics_set must be one of {', '.join(OPTICS_SETS)}; got {name!r}")
+        both = sorted({"bands", "gas_absorption"} & set(optics))
+        if both:
+            raise ParameterError(f"{where}: optics_set sets bands and gas_absorption; remove {both[0]}")
+    if "surface_pattern" in optics:
+        pattern = optics["surface_pattern"]
+        _check_keys(pattern, SURFACE_PATTERN_KEYS, f"{where} surface_pattern")
+        for kind in _choices(pattern.get("kind", "uniform")):
+            if kind not in SURFACE_PATTERNS:
+                raise ParameterError(f"{where} surface_pattern kind must be one of {', '.join(SURFACE_PATTERNS)}; "
+                                     f"got {kind!r}")
+        if "contrast_albedo" in pattern:
+            _check_albedo(pattern["contrast_albedo"], f"{where} surface_pattern contrast_albedo")
+        check_draws(pattern.get("scale", 1.0), f"{where} surface_pattern scale", 1e-9, 1e7)
+        check_draws(pattern.get("fraction", 0.5), f"{where} surface_pattern fraction", 0.0, 1.0)
 
 
 def parse_config(data, source="configuration"):
@@ -167,8 +275,9 @@ def parse_config(data, source="configuration"):
     cfg.grid = dict(grid)
     optics = data.get("optics", {})
     _check_keys(optics, OPTICS_KEYS, f"{source}: [optics]")
+    _check_optics(optics, f"{source}: [optics]")
     cfg.optics = dict(optics)
-    if "bands" in cfg.optics:
+    if "bands" in cfg.optics and not contains_draw(cfg.optics["bands"]):
         cfg.optics["bands"] = tuple(cfg.optics["bands"])
     tables = data.get("regime", [])
     if not isinstance(tables, list):
@@ -189,6 +298,9 @@ def parse_config(data, source="configuration"):
             raise ParameterError(f"{where} layers must be an array of tables; got {layers!r}")
         for j, layer in enumerate(layers):
             _check_keys(layer, LAYER_KEYS, f"{where} layers[{j}]")
+            if "structure" in layer and not isinstance(layer["structure"], dict):
+                raise ParameterError(f"{where} layers[{j}] structure must be a table (kind and parameters); "
+                                     f"got {layer['structure']!r}")
     cfg.regimes = [dict(t) for t in tables]
     return cfg
 

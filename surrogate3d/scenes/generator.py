@@ -2,20 +2,25 @@
 
 For each cloud layer of a regime (:mod:`surrogate3d.scenes.regimes`):
 
-1. a Fourier-filtered Gaussian field with an ``E(k) ~ k**(-5/3)`` spectrum is
-   thresholded at the quantile that gives exactly the layer's cloud fraction;
+1. a Fourier-filtered Gaussian field with an ``E(k) ~ k**(-5/3)`` spectrum, or the
+   field of the layer's structure (clusters, streets, cells, a cascade:
+   :mod:`surrogate3d.scenes.structures`), is thresholded at the quantile that gives
+   exactly the layer's cloud fraction;
 2. cloud thickness is the layer thickness times an edge taper (thin at cloud edges)
    and a lognormal multiplier from a second field (cloud-top variability); the base
    height varies with a third field;
 3. the liquid water content grows linearly with height above the local cloud base,
    as in an adiabatic cloud, and the effective radius follows from the water content
    and a droplet number (Martin et al. 1994) or is fixed;
-4. the water content is scaled so that the mean cloud optical depth of the layer's
-   cloudy columns equals its target.
+4. the water content (times the structure's water multiplier, if any) is scaled so
+   that the mean cloud optical depth of the layer's cloudy columns equals its target;
+5. a tilted layer is shifted level by level in proportion to the height above its base.
 
 Layers are merged, the standard atmosphere gives temperature and pressure, and
 :mod:`surrogate3d.scenes.optics` gives the per-band extinction, single-scattering
-albedo and asymmetry parameter of cloud, Rayleigh scattering and an optional gas.
+albedo and asymmetry parameter of cloud, Rayleigh scattering and an optional gas (or a
+named optics set, :mod:`surrogate3d.scenes.optics_sets`).  The surface albedo is
+uniform or a pattern of two surfaces (:mod:`surrogate3d.scenes.surface`).
 """
 
 import json
@@ -28,8 +33,10 @@ from ..errors import ParameterError
 from . import optics
 from .atmosphere import MAX_HEIGHT, SEA_LEVEL_PRESSURE, standard_profile
 from .model import make_scene
+from .optics_sets import get_optics_set
 from .random_fields import gaussian_random_field, quantile_mask, random_generator
 from .regimes import get_regime
+from .surface import albedo_map, surface_pattern_from_dict
 
 #: Adiabatic rate of increase of liquid water content with height [kg m-3 m-1]: about
 #: 2 g m-3 per km for cloud bases near 10 degC and 900 hPa (common practice; it
@@ -46,7 +53,12 @@ DEFAULT_GAS_SCALE_HEIGHT = 2000.0
 #: Smallest effective radius of cloud droplets [m] (GCM cloud optics bound their
 #: radius at a few micrometres; common practice).
 MIN_EFFECTIVE_RADIUS = 2.5e-6
+#: Default bands when neither ``bands`` nor ``optics_set`` is given.
+DEFAULT_BANDS = ("visible", "near_infrared")
 _MIN_THICKNESS = 1.0
+#: Key of the random stream of the surface pattern (layer streams are keyed by layer
+#: index and stream number, so this cannot collide with them).
+_SURFACE_STREAM = 2 ** 32
 
 
 def _int_param(name, value, low, high):
@@ -164,20 +176,44 @@ def _effective_radius(layer, lwc):
     return np.maximum(np.cbrt(coeff * lwc), MIN_EFFECTIVE_RADIUS)
 
 
+def _tilt(lwc, r_eff, z_edge, layer, dx, direction):
+    """Shift each level of a layer's water by ``tilt * (z - base_height)`` toward ``direction``.
+
+    Whole-cell periodic shifts (rounded), so the water of every level is only moved:
+    the domain-mean optical depth is unchanged.
+    """
+    z = 0.5 * (z_edge[1:] + z_edge[:-1])
+    reach = layer.tilt * (z - layer.base_height)
+    angle = np.radians(direction)
+    shift_x = np.rint(reach * np.cos(angle) / dx).astype(int)
+    shift_y = np.rint(reach * np.sin(angle) / dx).astype(int)
+    for k in np.flatnonzero(lwc.any(axis=(1, 2))):
+        lwc[k] = np.roll(lwc[k], (shift_y[k], shift_x[k]), axis=(0, 1))
+        r_eff[k] = np.roll(r_eff[k], (shift_y[k], shift_x[k]), axis=(0, 1))
+    return lwc, r_eff
+
+
 def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     """Liquid water content and effective radius of one cloud layer, shape (nz, ny, nx).
 
-    Returns ``(lwc, r_eff, cloudy_columns, adiabatic_fraction, base)``; ``r_eff`` is 0
-    where ``lwc`` is 0 and ``base`` is NaN in columns without cloud.  ``upper_base``
-    (NaN where the layer above has no cloud) caps cloud tops below that layer's base.
+    Returns ``(lwc, r_eff, cloudy_columns, adiabatic_fraction, base, drawn)``; ``r_eff``
+    is 0 where ``lwc`` is 0, ``base`` is NaN in columns without cloud and ``drawn`` holds
+    the values the structure and tilt drew from the seed.  ``upper_base`` (NaN where the
+    layer above has no cloud) caps cloud tops below that layer's base.  With a tilt,
+    ``cloudy_columns`` are the columns the tilted cloud touches.
     """
     ny, nx = shape
     nz = z_edge.size - 1
     top_domain = float(z_edge[-1])
-    mask_field = gaussian_random_field(shape, dx, dx, rng_of(0), outer_scale=layer.outer_scale)
+    water_multiplier, drawn = None, {}
+    if layer.structure is None:
+        mask_field = gaussian_random_field(shape, dx, dx, rng_of(0), outer_scale=layer.outer_scale)
+    else:
+        pattern = layer.structure.realise(shape, dx, rng_of(0))
+        mask_field, water_multiplier, drawn = pattern.field, pattern.water_multiplier, dict(pattern.drawn)
     mask, threshold = quantile_mask(mask_field, layer.cloud_fraction)
     if not mask.any():
-        return np.zeros((nz, ny, nx)), np.zeros((nz, ny, nx)), mask, 0.0, np.full(shape, np.nan)
+        return np.zeros((nz, ny, nx)), np.zeros((nz, ny, nx)), mask, 0.0, np.full(shape, np.nan), drawn
     taper = np.ones(shape)
     if layer.edge_taper > 0 and np.isfinite(threshold):
         taper = np.sqrt(np.clip((mask_field - threshold) / layer.edge_taper, 0.0, 1.0))
@@ -207,6 +243,8 @@ def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     # cell-mean of a water content growing linearly from the base.
     height = np.maximum(0.5 * (lower + upper) - base[jj, ii], 0.25 * _MIN_THICKNESS)
     adiabatic = ADIABATIC_LWC_LAPSE_RATE * height
+    if water_multiplier is not None:
+        adiabatic = adiabatic * water_multiplier[jj, ii]
     dz = z_edge[kk + 1] - z_edge[kk]
     column = jj * nx + ii
     columns = np.flatnonzero(mask.ravel())
@@ -227,7 +265,12 @@ def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     r_eff = np.zeros((nz, ny, nx))
     lwc[kk, jj, ii] = adiabatic * scale
     r_eff[kk, jj, ii] = _effective_radius(layer, adiabatic * scale)
-    return lwc, r_eff, mask, float(scale), np.where(mask, base, np.nan)
+    if layer.tilt > 0:
+        direction = layer.tilt_direction if layer.tilt_direction is not None else float(rng_of(3).uniform(0.0, 360.0))
+        drawn["tilt_direction"] = float(direction)
+        lwc, r_eff = _tilt(lwc, r_eff, z_edge, layer, dx, direction)
+        mask = lwc.any(axis=0)
+    return lwc, r_eff, mask, float(scale), np.where(mask, base, np.nan), drawn
 
 
 def _regime_key(name):
@@ -237,9 +280,9 @@ def _regime_key(name):
 
 def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"], nz=None, dx=DEFAULT_GRID["dx"],
                    top=None, z_edge=None, cloud_fraction=None, mean_optical_depth=None,
-                   cloud_top_variability=None, bands=("visible", "near_infrared"),
-                   surface_albedo=DEFAULT_SURFACE_ALBEDO, surface_pressure=SEA_LEVEL_PRESSURE,
-                   gas_absorption=None, validate=True):
+                   cloud_top_variability=None, bands=None, surface_albedo=DEFAULT_SURFACE_ALBEDO,
+                   surface_pressure=SEA_LEVEL_PRESSURE, gas_absorption=None, optics_set=None,
+                   surface_pattern=None, validate=True):
     """Generate a synthetic 3D cloud scene of a regime.
 
     Parameters
@@ -265,16 +308,26 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         Overrides the main layer's mean cloudy-column optical depth [1], > 0.
     cloud_top_variability : float, optional
         Overrides the main layer's thickness coefficient of variation [1], in [0, 5].
-    bands : sequence of str
-        Bands of :data:`surrogate3d.scenes.optics.BANDS`, not overlapping.
+    bands : sequence of str, optional
+        Bands of :data:`surrogate3d.scenes.optics.BANDS`, not overlapping (default
+        ``visible`` and ``near_infrared``).
     surface_albedo : float, sequence or dict
         Lambertian surface albedo [1] in [0, 1]: one value, one per band, or a mapping
-        band -> value (default 0.06).
+        band -> value (default 0.06).  With ``surface_pattern``, the first surface.
     surface_pressure : float
         Surface pressure [Pa] (default 101325).
     gas_absorption : dict, optional
         Band -> column absorption optical depth [1] within the domain, or band ->
         ``{"column_optical_depth": tau, "scale_height": H [m]}`` (H default 2000 m).
+    optics_set : str, optional
+        A name of :data:`surrogate3d.scenes.optics_sets.OPTICS_SETS`, which sets
+        ``bands`` and ``gas_absorption`` (then neither may be given); stored in the
+        scene attribute ``optics_set``.
+    surface_pattern : SurfacePattern or dict, optional
+        How a second surface shares the domain with the first
+        (:class:`surrogate3d.scenes.surface.SurfacePattern`: ``kind`` uniform, patches
+        or coastline, ``contrast_albedo``, ``scale`` [m], ``fraction`` [1]); drawn from
+        the seed.  Default: ``surface_albedo`` everywhere.
     validate : bool
         Run the scene validator on the result.
 
@@ -285,8 +338,9 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         ``effective_radius`` (0 where there is no water), ``air_temperature`` and
         ``air_pressure``, and attributes ``regime``, ``seed``, ``title``,
         ``cloud_fraction``, ``mean_optical_depth``, ``cloud_top_variability`` (of the
-        main layer), ``total_cloud_fraction`` (projected, all layers) and
-        ``generator_parameters`` (JSON of every parameter).
+        main layer), ``total_cloud_fraction`` (projected, all layers),
+        ``optics_set`` (when one is given) and ``generator_parameters`` (JSON of every
+        parameter and of the values drawn from the seed).
 
     Raises
     ------
@@ -318,9 +372,19 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         top = reg.top
     edges = vertical_grid(nz, top, z_edge)
     surface_pressure = _float_param("surface_pressure", surface_pressure, 10000.0, 120000.0)
-    band_list = optics.get_bands(bands)
+    if optics_set is not None:
+        if bands is not None or gas_absorption is not None:
+            raise ParameterError(f"optics_set={optics_set!r} sets bands and gas_absorption; give either "
+                                 "optics_set or bands/gas_absorption, not both")
+        chosen = get_optics_set(optics_set).generator_options()
+        bands, gas_absorption = chosen["bands"], chosen["gas_absorption"]
+    band_list = optics.get_bands(DEFAULT_BANDS if bands is None else bands)
     band_names = [b.name for b in band_list]
     albedo = _per_band("surface_albedo", surface_albedo, band_names, 0.0, 1.0)
+    pattern = None
+    if surface_pattern is not None:
+        pattern = surface_pattern_from_dict(surface_pattern)
+        contrast = _per_band("surface_pattern contrast_albedo", pattern.contrast_albedo, band_names, 0.0, 1.0)
     gas_tau, gas_used = _gas_profiles(gas_absorption, band_names, edges)
     for i, layer in enumerate(reg.layers):
         if layer.cloud_fraction > 0 and layer.base_height >= edges[-1]:
@@ -336,11 +400,12 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     order = sorted(range(len(reg.layers)), key=lambda i: reg.layers[i].base_height)
     key = _regime_key(reg.name)
     bases = {}
+    draws = {}
     for rank in reversed(range(len(order))):
         i = order[rank]
         layer = reg.layers[i]
         upper = bases.get(order[rank + 1]) if rank + 1 < len(order) else None
-        layer_lwc, layer_r, mask, fraction, bases[i] = _layer_water(
+        layer_lwc, layer_r, mask, fraction, bases[i], draws[i] = _layer_water(
             layer, edges, shape, dx, lambda stream, i=i: random_generator(seed, key, i, stream), upper)
         lwc += layer_lwc
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -368,12 +433,21 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         gas = (gas_tau[b] / dz)[:, None, None]
         ext[b], ssa[b], asym[b] = optics.mix_optics(cloud_ext, omega_c, g_c, rayleigh, gas)
 
+    surface = albedo
+    surface_record = None
+    if pattern is not None:
+        surface, drawn_surface = albedo_map(albedo, contrast, pattern, shape, dx,
+                                            random_generator(seed, key, _SURFACE_STREAM))
+        surface_record = {"kind": pattern.kind, "contrast_albedo": contrast.tolist(), "scale": pattern.scale,
+                          "fraction": pattern.fraction, **drawn_surface}
+
     main = reg.layers[0] if reg.layers else None
     parameters = {
         "regime": reg.as_dict(), "seed": seed, "nx": nx, "ny": ny, "dx": dx, "z_edge": edges.tolist(),
         "bands": band_names, "surface_albedo": albedo.tolist(), "surface_pressure": surface_pressure,
         "gas_absorption": gas_used, "adiabatic_lwc_lapse_rate": ADIABATIC_LWC_LAPSE_RATE,
         "adiabatic_fraction": [f for _, f in sorted(fractions)],
+        "drawn": [draws[i] for i in sorted(draws)], "optics_set": optics_set, "surface_pattern": surface_record,
     }
     attrs = {
         "regime": reg.name,
@@ -386,7 +460,9 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         "generator": "surrogate3d.scenes.generate_scene",
         "generator_parameters": json.dumps(parameters, sort_keys=True),
     }
-    return make_scene(ext, ssa, asym, edges, dx, dx, surface_albedo=albedo,
+    if optics_set is not None:
+        attrs["optics_set"] = optics_set
+    return make_scene(ext, ssa, asym, edges, dx, dx, surface_albedo=surface,
                       solar_weight=optics.solar_weights(band_names), band=band_names,
                       liquid_water_content=lwc, effective_radius=r_eff, air_temperature=temperature,
                       air_pressure=pressure, attrs=attrs, validate=validate)

@@ -175,3 +175,92 @@ def quantile_mask(field, fraction):
     mask[order[:n]] = True
     threshold = 0.5 * (flat[mask].min() + flat[~mask].max())
     return mask.reshape(f.shape), float(threshold)
+
+
+def _block_weights(n, blocks):
+    """Split factors of the cascade along one axis of ``n`` cells at a level of ``blocks`` blocks.
+
+    Block ``i`` spans cells ``[i n // blocks, (i + 1) n // blocks)`` and splits into two
+    children at ``(2 i + 1) n // (2 blocks)``.  Returns, per cell, the block index, whether
+    the cell lies in the left child, and the factors ``2 L_right / L`` (for the left child)
+    or ``2 L_left / L`` (for the right child) that keep the block's sum when the left child
+    is multiplied by ``1 + s f 2 L_right / L`` and the right by ``1 - s f 2 L_left / L``.
+    """
+    cells = np.arange(n)
+    edges = (np.arange(2 * blocks + 1) * n) // (2 * blocks)
+    child = np.searchsorted(edges, cells, side="right") - 1
+    block = child // 2
+    left = child % 2 == 0
+    length = (edges[2 * block + 2] - edges[2 * block]).astype(np.float64)
+    other = np.where(left, edges[2 * block + 2] - edges[2 * block + 1], edges[2 * block + 1] - edges[2 * block])
+    return block, left, 2.0 * other / length
+
+
+def bounded_cascade(shape, rng, variability=0.5, hurst=1.0 / 3.0):
+    """A 2D bounded multiplicative cascade: a positive field of mean 1, intermittent at small scales.
+
+    Starting from a uniform field, every block is split in x into two halves that are
+    multiplied by ``1 + s f_n`` and ``1 - s f_n`` (``s = +-1`` at random), then each half is
+    split in y the same way with its own sign, level ``n = 0, 1, ...`` until the blocks are
+    single cells, with ``f_n = variability * 2**(-n * hurst)``.  Each split keeps the sum
+    of its block, so every block of every level keeps its mean (Cahalan et al. 1994);
+    blocks of odd length split into children of lengths ``L // 2`` and ``L - L // 2``,
+    with factors ``1 + s f 2 L_r / L`` and ``1 - s f 2 L_l / L`` that keep the sum too.
+    On a square grid of ``2**m`` cells both children of every split are equally long, so
+    the mean square over the grid is exactly ``prod_n (1 + f_n**2)**2``.  The wavenumber
+    spectrum of a 1D bounded cascade falls as ``k**-(1 + 2 hurst)`` (Marshak et al. 1994,
+    from memory), 5/3 for ``hurst = 1/3``; rows of these 2D fields show about 1.5 over
+    wavenumbers 4-128 of a 512-cell grid at ``variability`` 0.2-0.5 (our measurement).
+
+    Parameters
+    ----------
+    shape : tuple of int
+        ``(ny, nx)``.
+    rng : numpy.random.Generator
+        Source of the signs.
+    variability : float
+        ``f_0`` [1], in [0, 1): the fluctuation of the first (largest-scale) split.
+    hurst : float
+        ``H`` [1], in (0, 1]: how fast the fluctuations shrink with scale.
+
+    Returns
+    -------
+    numpy.ndarray, shape (ny, nx)
+        Positive field whose mean over the grid is 1 (to round-off).
+
+    References
+    ----------
+    Cahalan, R. F., W. Ridgway, W. J. Wiscombe, T. L. Bell and J. B. Snider (1994), The
+    albedo of fractal stratocumulus clouds, J. Atmos. Sci. 51, 2434-2455.
+    Marshak, A., A. Davis, R. Cahalan and W. Wiscombe (1994), Bounded cascade models as
+    nonstationary multifractals, Phys. Rev. E 49, 55-69.
+
+    Examples
+    --------
+    >>> w = bounded_cascade((16, 16), random_generator(0))
+    >>> round(float(w.mean()), 12), bool(w.min() > 0)
+    (1.0, True)
+    """
+    ny, nx = (int(n) for n in shape)
+    if ny < 1 or nx < 1:
+        raise ParameterError(f"shape must be two positive sizes; got {shape!r}")
+    if not (np.isfinite(variability) and 0.0 <= variability < 1.0):
+        raise ParameterError(f"variability must be in [0, 1); got {variability!r}")
+    if not (np.isfinite(hurst) and 0.0 < hurst <= 1.0):
+        raise ParameterError(f"hurst must be in (0, 1]; got {hurst!r}")
+    field = np.ones((ny, nx))
+    levels = int(np.ceil(np.log2(max(ny, nx)))) if max(ny, nx) > 1 else 0
+    for n in range(levels):
+        f = variability * 2.0 ** (-n * hurst)
+        blocks = 2 ** n
+        bx, left_x, share_x = _block_weights(nx, blocks)
+        by, left_y, share_y = _block_weights(ny, blocks)
+        sign_x = rng.choice((-1.0, 1.0), size=(blocks, blocks))[by[:, None], bx[None, :]]
+        field *= np.where(left_x[None, :], 1.0 + sign_x * f * share_x[None, :],
+                          1.0 - sign_x * f * share_x[None, :])
+        # The y split of each x child has its own sign: the cascade is not separable.
+        child_x = 2 * bx + ~left_x
+        sign_y = rng.choice((-1.0, 1.0), size=(blocks, 2 * blocks))[by[:, None], child_x[None, :]]
+        field *= np.where(left_y[:, None], 1.0 + sign_y * f * share_y[:, None],
+                          1.0 - sign_y * f * share_y[:, None])
+    return field

@@ -3,28 +3,19 @@
 A regime is one or more cloud layers (:class:`CloudLayer`) plus a default domain
 height.  The named regimes in :data:`REGIMES` are our own scenarios, chosen to span
 the situations where 3D radiative effects differ (isolated cumuli, broken
-stratocumulus, deep towers, a thin layer shading cumuli) and two edge cases
-(``overcast``, ``clear``).  Any parameter can be changed with
+stratocumulus, deep towers, a thin layer shading cumuli), two edge cases
+(``overcast``, ``clear``), and families whose clouds are arranged differently from
+the isotropic power-law field (:mod:`surrogate3d.scenes.structures`): clustered
+cumuli, cloud streets, cumuli tilted by wind shear, a deck with cascade-intermittent
+water, and open and closed cells.  Any parameter can be changed with
 :meth:`Regime.with_overrides` or by building new dataclasses.
 """
 
-import math
 from dataclasses import asdict, dataclass, replace
 
 from ..errors import ParameterError
-
-
-def _check(label, name, value, low, high, low_open=False, high_open=False):
-    """Raise ParameterError unless ``low <(=) value <(=) high``."""
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{label}{name} must be a number; got {value!r}") from None
-    ok = math.isfinite(v) and (v > low if low_open else v >= low) and (v < high if high_open else v <= high)
-    if not ok:
-        lo, hi = ("(" if low_open else "["), (")" if high_open else "]")
-        raise ParameterError(f"{label}{name} must be in {lo}{low:g}, {high:g}{hi}; got {value!r}")
-    return v
+from ._ranges import check_number as _check
+from .structures import STRUCTURES, CascadeField, CellularField, ClusteredField, StreetField
 
 
 @dataclass(frozen=True)
@@ -62,6 +53,20 @@ class CloudLayer:
         continental (Martin et al. 1994).
     effective_radius : float or None
         A fixed effective radius [m]; when given, ``droplet_number`` is not used.
+    structure : structure or None
+        How clouds are arranged horizontally: one of the classes of
+        :mod:`surrogate3d.scenes.structures`, or ``None`` for the isotropic power-law
+        field with ``outer_scale``.
+    tilt : float
+        Horizontal displacement of the cloud per unit height above ``base_height``
+        [m m-1], in [0, 5]: the tangent of the tilt from the vertical.  A cloud whose
+        updraft rises at ``w`` through a wind that changes by ``dU`` over the cloud depth
+        leans by about ``dU / w`` (kinematics of a rising parcel; common practice).
+        ``cloud_fraction`` and ``mean_optical_depth`` then describe the untilted cloud:
+        its footprint at the base and its optical depth along the tilted axis.
+    tilt_direction : float or None
+        Direction of the displacement with height [deg], counterclockwise from +x, in
+        [0, 360); ``None`` draws it from the seed.
     """
 
     cloud_fraction: float
@@ -75,6 +80,9 @@ class CloudLayer:
     droplet_number: float = 100e6
     droplet_spectrum_k: float = 0.80
     effective_radius: float | None = None
+    structure: ClusteredField | StreetField | CellularField | CascadeField | None = None
+    tilt: float = 0.0
+    tilt_direction: float | None = None
 
     def validate(self, label="cloud layer"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
@@ -92,6 +100,14 @@ class CloudLayer:
         _check(p, "droplet_spectrum_k", self.droplet_spectrum_k, 0.0, 1.0, low_open=True)
         if self.effective_radius is not None:
             _check(p, "effective_radius", self.effective_radius, 1e-7, 1e-4)
+        if self.structure is not None:
+            if type(self.structure) not in STRUCTURES.values():
+                names = ", ".join(c.__name__ for c in STRUCTURES.values())
+                raise ParameterError(f"{p}structure must be one of {names} or None; got {self.structure!r}")
+            self.structure.validate(f"{p}structure")
+        _check(p, "tilt", self.tilt, 0.0, 5.0)
+        if self.tilt_direction is not None:
+            _check(p, "tilt_direction", self.tilt_direction, 0.0, 360.0, high_open=True)
         return self
 
 
@@ -163,7 +179,9 @@ class Regime:
 
 
 #: The named regimes.  Optical depths span thin (the upper layer of
-#: ``cumulus_under_thin_layer``, tau about 2) to thick (``deep_convection``, 80).
+#: ``cumulus_under_thin_layer``, tau about 2) to thick (``deep_convection``, 80).  The
+#: last six arrange their clouds with the structures of
+#: :mod:`surrogate3d.scenes.structures` or tilt them.
 REGIMES = {
     "scattered_cumulus": Regime(
         "scattered_cumulus", "fair-weather cumuli over 25 % of the sky",
@@ -199,6 +217,42 @@ REGIMES = {
                     droplet_number=100e6, droplet_spectrum_k=0.80),),
         top=4000.0),
     "clear": Regime("clear", "no cloud (edge case: Rayleigh scattering and gas absorption only)", (), top=4000.0),
+    "clustered_cumulus": Regime(
+        "clustered_cumulus", "cumuli gathered in clusters with clear gaps between them",
+        (CloudLayer(cloud_fraction=0.12, base_height=700.0, thickness=800.0, mean_optical_depth=15.0,
+                    cloud_top_variability=0.4, base_variability=30.0, outer_scale=1500.0, edge_taper=0.8,
+                    droplet_number=150e6, droplet_spectrum_k=0.80, structure=ClusteredField()),),
+        top=4000.0),
+    "cloud_streets": Regime(
+        "cloud_streets", "cumuli aligned in streets along boundary-layer rolls",
+        (CloudLayer(cloud_fraction=0.30, base_height=800.0, thickness=500.0, mean_optical_depth=10.0,
+                    cloud_top_variability=0.3, base_variability=20.0, outer_scale=1500.0, edge_taper=0.6,
+                    droplet_number=150e6, droplet_spectrum_k=0.80, structure=StreetField()),),
+        top=4000.0),
+    "sheared_cumulus": Regime(
+        "sheared_cumulus", "cumulus congestus leaning downshear",
+        (CloudLayer(cloud_fraction=0.15, base_height=800.0, thickness=1500.0, mean_optical_depth=20.0,
+                    cloud_top_variability=0.35, base_variability=30.0, outer_scale=1500.0, edge_taper=0.8,
+                    droplet_number=150e6, droplet_spectrum_k=0.80, tilt=0.6),),
+        top=4000.0),
+    "intermittent_stratocumulus": Regime(
+        "intermittent_stratocumulus", "a stratocumulus deck whose water follows a bounded cascade",
+        (CloudLayer(cloud_fraction=0.90, base_height=600.0, thickness=350.0, mean_optical_depth=12.0,
+                    cloud_top_variability=0.15, base_variability=20.0, outer_scale=3000.0, edge_taper=0.3,
+                    droplet_number=100e6, droplet_spectrum_k=0.80, structure=CascadeField()),),
+        top=4000.0),
+    "open_cells": Regime(
+        "open_cells", "open mesoscale cells: cloudy walls around clear cells",
+        (CloudLayer(cloud_fraction=0.40, base_height=800.0, thickness=600.0, mean_optical_depth=12.0,
+                    cloud_top_variability=0.3, base_variability=20.0, outer_scale=2000.0, edge_taper=0.6,
+                    droplet_number=50e6, droplet_spectrum_k=0.80, structure=CellularField("open")),),
+        top=4000.0),
+    "closed_cells": Regime(
+        "closed_cells", "closed mesoscale cells: cloudy cells parted by clear walls",
+        (CloudLayer(cloud_fraction=0.85, base_height=600.0, thickness=400.0, mean_optical_depth=15.0,
+                    cloud_top_variability=0.2, base_variability=20.0, outer_scale=3000.0, edge_taper=0.5,
+                    droplet_number=150e6, droplet_spectrum_k=0.80, structure=CellularField("closed")),),
+        top=4000.0),
 }
 
 

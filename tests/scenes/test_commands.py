@@ -9,6 +9,7 @@ from surrogate3d import cli
 from surrogate3d.archive import read_scene
 from surrogate3d.scenes import commands
 from surrogate3d.scenes.model import cloud_mask
+from surrogate3d.scenes.regimes import REGIMES
 
 TINY = ["--nx", "8", "--ny", "6", "--nz", "5", "--quiet"]
 
@@ -76,7 +77,7 @@ def test_config_file_with_command_line_override(tmp_path):
 
 def test_all_regimes(tmp_path):
     assert run(["scenes", "--out", str(tmp_path), "--regime", "all", "--cloud-fraction", "0.3", *TINY]) == 0
-    assert len(list(tmp_path.glob("*.nc"))) == 6
+    assert len(list(tmp_path.glob("*.nc"))) == len(REGIMES)
 
 
 def test_show_draws_a_scene_file(tmp_path, capsys):
@@ -139,3 +140,21 @@ def test_same_command_twice_gives_identical_files(tmp_path):
     a = read_scene(tmp_path / "a" / "broken_stratocumulus_00003.nc")
     b = read_scene(tmp_path / "b" / "broken_stratocumulus_00003.nc")
     assert a.identical(b) and np.any(a["liquid_water_content"].values > 0)
+
+
+def test_config_draws_reach_the_scene_files_and_repeat(tmp_path):
+    config = tmp_path / "world.toml"
+    config.write_text('count = 3\n[optics]\noptics_set = { choice = ["two_band_moist", "visible_only"] }\n'
+                      'surface_albedo = { uniform = [0.03, 0.8] }\n'
+                      '[optics.surface_pattern]\nkind = "coastline"\ncontrast_albedo = 0.7\n'
+                      '[[regime]]\nname = "cloud_streets"\n')
+    for out in ("a", "b"):
+        assert run(["scenes", "--config", str(config), "--out", str(tmp_path / out), *TINY]) == 0
+    albedos = set()
+    for seed in range(3):
+        a = read_scene(tmp_path / "a" / f"cloud_streets_{seed:05d}.nc")
+        b = read_scene(tmp_path / "b" / f"cloud_streets_{seed:05d}.nc")
+        assert np.array_equal(a["surface_albedo"].values, b["surface_albedo"].values)
+        assert a.attrs["optics_set"] in ("two_band_moist", "visible_only")
+        albedos.add(float(a["surface_albedo"].values.min()))
+    assert len(albedos) == 3

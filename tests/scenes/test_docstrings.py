@@ -5,7 +5,8 @@ import importlib
 
 import pytest
 
-MODULES = ["atmosphere", "optics", "random_fields", "regimes", "generator", "model", "config", "plotting"]
+MODULES = ["atmosphere", "optics", "optics_sets", "random_fields", "regimes", "structures", "surface", "draws",
+           "generator", "model", "config", "plotting"]
 
 
 @pytest.mark.parametrize("name", MODULES)
