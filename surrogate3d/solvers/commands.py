@@ -13,6 +13,9 @@ def register(sub):
                    help="solar zenith angles in degrees, 0 <= zenith < 90 (default: 30)")
     p.add_argument("--azimuth", type=float, nargs="+", default=[0.0], metavar="DEG",
                    help="directions of travel of the direct beam in degrees, counterclockwise from +x (default: 0)")
+    p.add_argument("--random-azimuth", action="store_true",
+                   help="instead of --azimuth, one beam azimuth per scene and zenith, drawn from the run seed "
+                        "and the scene's file name")
     p.add_argument("--photons", type=int, default=200_000, help="photons per Monte Carlo run (default: 200000)")
     p.add_argument("--seed", type=int, default=0, help="run seed (default: 0)")
     p.add_argument("--solvers", nargs="+", choices=SOLVERS, default=list(SOLVERS), help="solver kinds to run")
@@ -33,7 +36,7 @@ def run(args):
     from .simulate import simulate_archive
 
     summary = simulate_archive(
-        args.archive_dir, args.zenith, args.azimuth, solvers=args.solvers, photons=args.photons, seed=args.seed,
+        args.archive_dir, args.zenith, "random" if args.random_azimuth else args.azimuth, solvers=args.solvers, photons=args.photons, seed=args.seed,
         n_jobs=args.jobs, scheduler=args.scheduler, overwrite=args.overwrite, quiet=args.quiet,
         batch_size=args.batch_size, rays_per_column=args.rays_per_column, threads=args.threads,
         per_band=args.per_band, solar_constant=args.solar_constant)

@@ -53,6 +53,15 @@ def task_seed(seed, path, zenith, azimuth):
     return int.from_bytes(hashlib.sha256(text.encode()).digest()[:7], "little")
 
 
+def drawn_azimuth(seed, path, zenith):
+    """A beam azimuth [degree, 0-360, 3 decimals] drawn from the run seed, the scene file's
+    name and the zenith angle: each scene and zenith gets its own direction, the same in
+    every run, on any number of workers."""
+    text = f"{seed}|{Path(path).name}|{zenith:.6f}|azimuth"
+    fraction = int.from_bytes(hashlib.sha256(text.encode()).digest()[:7], "little") / 2.0**56
+    return round(360.0 * fraction, 3) % 360.0
+
+
 def run_task(task, options):
     """Compute one task; returns the run result (an xarray Dataset).  Runs in workers."""
     scene = read_scene(task.path, results=False)
@@ -88,15 +97,20 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
     unknown = [s for s in solvers if s not in SOLVERS]
     if unknown or not solvers:
         raise ParameterError(f"solvers must be a non-empty selection of {', '.join(SOLVERS)}; got {list(solvers)}")
+    drawn = isinstance(azimuths, str)
+    if drawn and azimuths != "random":
+        raise ParameterError(f"azimuths must be a sequence of angles or 'random'; got {azimuths!r}")
     if not zeniths or not azimuths:
         raise ParameterError("at least one solar zenith angle and one beam azimuth are needed")
-    suns = [check_sun(z, a) for z in zeniths for a in azimuths]
+    suns = [check_sun(z, 0.0 if drawn else a) for z in zeniths for a in ([0.0] if drawn else azimuths)]
     todo, done = [], 0
     for path in files:
         merge_pending(path)  # results an interrupted run left behind
         read_scene(path, results=False)  # every scene is validated before any work starts
         stored = read_result_flags(path)
         for zenith, azimuth in suns:
+            if drawn:
+                azimuth = drawn_azimuth(seed, path, zenith)
             tseed = task_seed(seed, path, zenith, azimuth)
             for solver in solvers:
                 if not overwrite and has_result(stored, solver, zenith, azimuth):
@@ -144,6 +158,8 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
         Directory of scene files; each result is written into its scene file.
     zeniths, azimuths : sequence of float
         Solar zenith angles [degree, 0-90) and beam azimuths [degree]; every combination runs.
+        ``azimuths="random"`` gives every scene and zenith one beam azimuth of its own
+        (:func:`drawn_azimuth`), so that a scene set meets the sun from all sides.
     solvers : sequence of str
         Solver kinds among ``full_3d``, ``independent_column``, ``two_stream``.
     photons : int

@@ -1,6 +1,7 @@
 """The archive builder: every scene x sun x solver, resumable, the same numbers for any number of workers."""
 
 import os
+from pathlib import Path
 import subprocess
 import sys
 
@@ -11,7 +12,7 @@ from surrogate3d.archive import completed, read_scene, select_result, write_scen
 from surrogate3d.archive.pending import pending_keys
 from surrogate3d.cli import main
 from surrogate3d.errors import ParameterError, Surrogate3DError
-from surrogate3d.scenes import make_scene
+from surrogate3d.scenes import generate_scene, make_scene
 from surrogate3d.solvers import simulate as simulate_module
 from surrogate3d.solvers.simulate import simulate_archive
 
@@ -154,3 +155,21 @@ def test_console_script_exit_status(archive):
                           capture_output=True, text=True)
     assert proc.returncode == 1
     assert proc.stderr.count("\n") == 1 and "does not exist" in proc.stderr
+
+
+def test_random_azimuths_are_drawn_per_scene_and_zenith_and_stable(tmp_path):
+    from surrogate3d.solvers.simulate import drawn_azimuth, plan_tasks
+
+    scenes = [generate_scene("scattered_cumulus", s, nx=6, ny=6, nz=4) for s in (1, 2)]
+    for k, scene in enumerate(scenes):
+        write_scene(scene, tmp_path / f"s{k}.nc")
+    todo, _ = plan_tasks(tmp_path, [20.0, 50.0], "random", ["full_3d"], seed=4)
+    azimuths = {(Path(t.path).name, t.solar_zenith_angle): t.solar_beam_azimuth for t in todo}
+    # One azimuth per scene and zenith, all different, in [0, 360), the same when planned again.
+    assert len(azimuths) == 4 and len(set(azimuths.values())) == 4
+    assert all(0.0 <= a < 360.0 for a in azimuths.values())
+    again, _ = plan_tasks(tmp_path, [20.0, 50.0], "random", ["full_3d"], seed=4)
+    assert [t.solar_beam_azimuth for t in again] == [t.solar_beam_azimuth for t in todo]
+    assert drawn_azimuth(4, "s0.nc", 20.0) == azimuths[("s0.nc", 20.0)]
+    with pytest.raises(ParameterError, match="azimuths"):
+        plan_tasks(tmp_path, [20.0], "sideways", ["full_3d"], seed=4)
