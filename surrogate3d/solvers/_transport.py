@@ -1,6 +1,6 @@
 """Photon transport kernels for the solar Monte Carlo solver (numba).
 
-Photons start where the deterministic direct beam scatters (or is reflected by the
+Photons start where their batch's direct beam scatters (or is reflected by the
 surface) and are traced until they leave the top of the domain or are absorbed:
 
 * free paths are sampled exactly: in 3D by delta tracking over a grid of majorant blocks,
@@ -25,9 +25,9 @@ pairs.  The upward flux at the surface is what reaches it minus what it absorbs,
 formed per batch when the batches are summed (:func:`run_batches`, whose sums are
 (..., 6) in the order :data:`SUM_NAMES`).
 
-Every batch is a complete, independent estimate: in 3D it traces its own direct beam on a
-randomly shifted lattice (:func:`surrogate3d.solvers._geometry.direct_beam_batch`) and
-its photons start from that beam's scattering source.  The spread between batches then
+Every batch is a complete, independent estimate: in 3D it traces its own direct beam with
+stratified random rays (:func:`surrogate3d.solvers._geometry.direct_beam_batch`) and its
+photons start from that beam's scattering source.  The spread between batches then
 measures the noise of every tally, the direct beam's included.
 """
 

@@ -247,10 +247,9 @@ def tracking_arrays(ext, ssa, asym, independent_columns):
 def _arrays(scene):
     """Optical properties rounded to single precision, the precision the kernels trace with.
 
-    Using the rounded values for the deterministic direct beam too keeps it consistent with
-    the photons (a relative change of at most 6e-8).  Extinction and single-scattering
-    albedo come back in double precision for the direct beam, the asymmetry (only traced
-    with) in single precision.
+    The direct beam uses the same rounded values as the photons (a relative change of at
+    most 6e-8).  Extinction and single-scattering albedo come back in double precision
+    (for the exact independent-column direct beam), the asymmetry in single precision.
     """
     def c(name):
         return np.ascontiguousarray(scene[name].values.astype(np.float32), dtype=np.float64)
