@@ -37,6 +37,7 @@ import numpy as np
 from .._atomic import write_text_atomic
 from ..errors import ValidationError
 from ..runtime.document import FORMAT_NAME, FORMAT_VERSION, clear_sky_gate
+from ..runtime.ridge import NEAR_CONSTANT
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -337,7 +338,9 @@ module {prefix}_correction
 
 
 def _ridge_module(prefix, document):
-    return _module_header(prefix, document) + f"""
+    return _module_header(prefix, document) + f"""\
+  real(real64), parameter :: near_constant_fraction = {_number(NEAR_CONSTANT)}_real64
+
   !> Standardization, interaction pairs (1-based feature indices) and coefficients.
   type, public :: {prefix}_coefficients
     integer :: n_pairs = 0
@@ -345,6 +348,7 @@ def _ridge_module(prefix, document):
     integer(int32), allocatable :: pairs(:, :)          ! (2, n_pairs)
     real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
     real(real64), allocatable :: intercept(:)
+    integer(int32), allocatable :: near_constant(:)     ! features constant up to round-off (see the reader)
 {_GATE_COMPONENTS}
   end type {prefix}_coefficients
 
@@ -362,6 +366,11 @@ contains
     integer :: k, p, g
 {_GATE_TEST}
     z = (features - model%feature_mean) / model%feature_scale
+    ! Only values training saw for a feature that was constant in it: a file's round-off scale
+    ! must not turn another value into a term of order 1e13.
+    do k = 1, size(model%near_constant)
+      z(model%near_constant(k)) = max(-1.0_real64, min(1.0_real64, z(model%near_constant(k))))
+    end do
     ! All targets advance together: independent sums, so additions overlap in the CPU.
     corrections = model%intercept
     do k = 1, {prefix}_n_features
@@ -395,6 +404,7 @@ contains
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%feature_mean({prefix}_n_features), model%feature_scale({prefix}_n_features))
+      allocate (model%near_constant(0))
       allocate (pair_list(2 * model%n_pairs), model%intercept({prefix}_n_targets))
       n_terms = {prefix}_n_features + model%n_pairs
       allocate (coef_list(n_terms * {prefix}_n_targets))
@@ -423,6 +433,10 @@ contains
         status = 1
         message = 'coefficient file: feature_scale must be positive'
       end if
+      ! A scale at most near_constant_fraction of the mean's magnitude is the round-off spread of a
+      ! feature constant in training (written before format 1.2): its standardized value is clipped.
+      model%near_constant = pack([(p, p = 1, {prefix}_n_features)], &
+          model%feature_scale <= near_constant_fraction * abs(model%feature_mean))
     end if
     if (unit /= -1) close (unit)
   end subroutine {prefix}_read_coefficients

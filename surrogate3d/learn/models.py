@@ -25,6 +25,7 @@ from sklearn.utils import check_array
 from sklearn.utils.validation import check_is_fitted
 
 from ..errors import ParameterError, ValidationError
+from ..runtime.ridge import near_constant
 from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
 
 #: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
@@ -243,7 +244,10 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         y[m]   = intercept_[m] + sum_l coef_[m, l] * t[l]               m = 0 .. n_target-1
 
     ``feature_scale_`` is the population standard deviation (ddof = 0) of the training
-    features, replaced by 1 for a constant feature (whose standardized value is then 0).
+    features, replaced by 1 for a feature constant up to round-off (a standard deviation
+    at most :data:`~surrogate3d.runtime.ridge.NEAR_CONSTANT` times the magnitude of its
+    mean), whose standardized value is then 0 up to round-off in training and its
+    departure from the training mean elsewhere.
     The product terms are products of standardized features, not standardized again.
     The coefficients minimise ``||Y - intercept - T coef^T||^2 + alpha ||coef||^2``, with an
     unpenalised intercept, solved in closed form through the singular value decomposition
@@ -359,7 +363,9 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         X, Y = self._fit_clear_sky_gate(X, Y)
         mean = X.mean(axis=0)
         scale = X.std(axis=0)
-        scale[scale == 0.0] = 1.0
+        # Standardizing the round-off spread of a constant feature would turn any other
+        # value of it into a term of order 1e13.
+        scale[near_constant(mean, scale)] = 1.0
         self.feature_mean_, self.feature_scale_, self.interaction_pairs_ = mean, scale, pairs
         T = self._terms(X)
         term_mean, target_mean = T.mean(axis=0), Y.mean(axis=0)

@@ -23,8 +23,10 @@ from ..errors import FormatError
 FORMAT_NAME = "surrogate3d-correction-coefficients"
 
 #: Version of the coefficient layout.  Readers accept files of the same major version.
-#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate).
-FORMAT_VERSION = "1.1"
+#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate); 1.2 stores
+#: scale 1 for a ridge feature constant up to round-off (readers clip the standardized value
+#: of such a feature in older files, :mod:`surrogate3d.runtime.ridge`).
+FORMAT_VERSION = "1.2"
 
 #: Model kinds a coefficient file may hold.
 KINDS = ("ridge", "boosted")

@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 
 from surrogate3d.errors import ValidationError
-from surrogate3d.export.fortran import features_file_text, fortran_name, fortran_sources
+from surrogate3d.export.fortran import data_file_text, features_file_text, fortran_name, fortran_sources
 from surrogate3d.export import read_coefficients
-from surrogate3d.runtime import FORMAT_VERSION
+from surrogate3d.runtime import FORMAT_VERSION, CorrectionModel
 
 GFORTRAN = shutil.which("gfortran")
 needs_gfortran = pytest.mark.skipif(GFORTRAN is None, reason="gfortran is not installed (make test installs "
@@ -81,6 +81,28 @@ def test_fortran_applies_the_clear_sky_gate(built, run, helpers, drivers, tmp_pa
     gated = estimator.clear_sky_mask(features)
     assert gated[::3].all() and not gated[1::6].any()
     assert np.all(got[gated] == 0.0) and np.all(np.any(got[~gated] != 0.0, axis=1))
+    assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
+
+
+@needs_gfortran
+def test_fortran_clips_a_round_off_scale_like_python(built, helpers, drivers, tmp_path):
+    # A file written before format 1.2 may hold the round-off spread of a feature that was
+    # constant in training as its scale; both runtimes clip its standardized value to
+    # [-1, 1] (docs/export-format.md), so another value of the feature cannot blow up.
+    fortran = built["export_dir"] / "fortran"
+    document = read_coefficients(built["export_dir"] / "ridge.coefficients.json")
+    names = document["features"]["names"]
+    k = next(i for i, name in enumerate(names) if name not in helpers.GATE)
+    document["ridge"]["feature_mean"][k] = 0.059999999999986266
+    document["ridge"]["feature_scale"][k] = 1.3704315460216776e-14
+    (tmp_path / "old.txt").write_text(data_file_text(document))
+    features = np.loadtxt(fortran / "ridge_sample_features.txt", skiprows=1)
+    features[::2, k] = 0.06
+    features[1::2, k] = 0.3
+    (tmp_path / "features.txt").write_text(features_file_text(features))
+    got = _run(drivers["ridge"], tmp_path / "old.txt", tmp_path / "features.txt")
+    expected = CorrectionModel.from_document(document).predict(features)
+    assert np.abs(expected).max() < 10.0
     assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
 
 
