@@ -158,7 +158,7 @@ def skill_vs_zenith(table, targets, predictors, title):
     Parameters
     ----------
     table : pandas.DataFrame
-        Rows of breakdown ``"solar_zenith"`` in normalized units (metric table layout).
+        Rows of breakdown ``"solar_zenith"`` in the headline units (metric table layout).
     targets, predictors : sequence of str
     title : str
     """
@@ -184,7 +184,8 @@ def skill_vs_zenith(table, targets, predictors, title):
         handles, labels = axes[0].get_legend_handles_labels()
         legend_ax = axes[len(targets)]
         legend_ax.axis("off")
-        legend_ax.legend(handles, labels, loc="center", title="skill = 1 - RMSE / RMSE(no correction)")
+        legend_ax.legend(handles, labels, loc="center",
+                         title=f"skill = 1 - RMSE / RMSE(no correction), errors in {WM2}")
         for ax in axes[len(targets) + 1:]:
             ax.axis("off")
         fig.suptitle(title)
@@ -291,7 +292,7 @@ def skill_bars(table, targets, predictors, title):
     Parameters
     ----------
     table : pandas.DataFrame
-        Rows of breakdown ``"all"`` in normalized units.
+        Rows of breakdown ``"all"`` in the headline units.
     targets, predictors : sequence of str
     title : str
     """

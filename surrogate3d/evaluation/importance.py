@@ -14,12 +14,12 @@ from ..learn.cv import correction_skill
 from ..learn.pairs_table import feature_matrix, scene_labels, target_matrix
 
 
-def _scene_skill(predicted, true, members):
-    return np.array([np.nanmean(correction_skill(predicted[idx], true[idx])) for idx in members])
+def _scene_skill(predicted, true, flux, members):
+    return np.array([np.nanmean(correction_skill(predicted[idx], true[idx], flux[idx])) for idx in members])
 
 
 def permutation_importance(estimator, pairs, targets, n_repeats=3, seed=0):
-    """Drop in target-averaged skill when each feature is permuted within each scene.
+    """Drop in target-averaged skill (of the W m-2 errors) when each feature is permuted within each scene.
 
     Parameters
     ----------
@@ -50,10 +50,11 @@ def permutation_importance(estimator, pairs, targets, n_repeats=3, seed=0):
     names = list(estimator.feature_names_)
     X = feature_matrix(pairs, names)
     true = target_matrix(pairs, targets)
+    flux = np.asarray(pairs["incident_flux"].values, dtype=np.float64)
     order = [list(estimator.target_names_).index(t) for t in targets]
     scenes = scene_labels(pairs)
     members = [np.flatnonzero(scenes == s) for s in np.unique(scenes)]
-    base = _scene_skill(estimator.predict(X)[:, order], true, members)
+    base = _scene_skill(estimator.predict(X)[:, order], true, flux, members)
     rng = np.random.default_rng(seed)
     rows = []
     for j, name in enumerate(names):
@@ -62,7 +63,7 @@ def permutation_importance(estimator, pairs, targets, n_repeats=3, seed=0):
             shuffled = X.copy()
             for idx in members:
                 shuffled[idx, j] = X[rng.permutation(idx), j]
-            drop += base - _scene_skill(estimator.predict(shuffled)[:, order], true, members)
+            drop += base - _scene_skill(estimator.predict(shuffled)[:, order], true, flux, members)
         drop /= n_repeats
         se = float(np.std(drop, ddof=1) / np.sqrt(drop.size)) if drop.size > 1 else float("nan")
         rows.append({"feature": name, "importance": float(np.mean(drop)), "importance_se": se,

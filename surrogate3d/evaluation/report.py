@@ -27,7 +27,7 @@ from .breakdown import BREAKDOWNS, metric_table
 from .html_page import render_page
 from .importance import permutation_importance
 from .learning_curve import learning_curve
-from .metrics import error_metrics
+from .metrics import HEADLINE_UNITS, error_metrics
 from .predictions import NO_CORRECTION, model_correction, reference_predictions
 from .tables import breakdown_pivot, headline_table, to_html, to_markdown
 
@@ -175,7 +175,8 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
 
 def _best_model(evaluation, eval_set):
     rows = evaluation.table[(evaluation.table["evaluation_set"] == eval_set.label)
-                            & (evaluation.table["breakdown"] == "all") & (evaluation.table["units"] == "1")
+                            & (evaluation.table["breakdown"] == "all")
+                            & (evaluation.table["units"] == HEADLINE_UNITS)
                             & (evaluation.table["predictor"].isin(eval_set.models))]
     target = _SURFACE if _SURFACE in evaluation.targets else evaluation.targets[0]
     rows = rows[rows["target"] == target]
@@ -231,14 +232,15 @@ def _figure_set(evaluation, map_scenes):
         stem = "held_out" if k == 0 else "regime_transfer"
         predictors = list(eval_set.predictions)
         overall = evaluation.table[(evaluation.table["evaluation_set"] == eval_set.label)
-                                   & (evaluation.table["breakdown"] == "all") & (evaluation.table["units"] == "1")]
+                                   & (evaluation.table["breakdown"] == "all")
+                                   & (evaluation.table["units"] == HEADLINE_UNITS)]
         out.append((f"{stem}_skill", f"Skill of every predictor on the {eval_set.label}, per target; dotted: the "
                     "noise floor, the skill a perfect model would reach given the Monte Carlo noise of the targets.",
                     figures.to_png(figures.skill_bars(overall, targets, predictors,
                                                       f"Skill on the {eval_set.label}"))))
         by_zenith = evaluation.table[(evaluation.table["evaluation_set"] == eval_set.label)
                                      & (evaluation.table["breakdown"] == "solar_zenith")
-                                     & (evaluation.table["units"] == "1")]
+                                     & (evaluation.table["units"] == HEADLINE_UNITS)]
         out.append((f"{stem}_skill_vs_zenith", f"Skill against solar zenith angle (bin centres) on the "
                     f"{eval_set.label}.", figures.to_png(figures.skill_vs_zenith(
                         by_zenith, targets, predictors, f"Skill against solar zenith angle, {eval_set.label}"))))
@@ -279,12 +281,13 @@ def _consistency_effect(evaluation):
     rows = []
     for eval_set in evaluation.sets:
         true = target_matrix(eval_set.pairs, evaluation.targets)
+        flux = eval_set.pairs["incident_flux"].values
         for name, raw in eval_set.raw.items():
             for m, target in enumerate(evaluation.targets):
                 rows.append({"evaluation set": eval_set.label, "model": name, "target": target,
-                             "skill as predicted": error_metrics(raw[:, m], true[:, m])["skill"],
+                             "skill as predicted": error_metrics(raw[:, m], true[:, m], scale=flux)["skill"],
                              "skill after consistency": error_metrics(eval_set.predictions[name][:, m],
-                                                                      true[:, m])["skill"]})
+                                                                      true[:, m], scale=flux)["skill"]})
     return pd.DataFrame(rows)
 
 
@@ -312,14 +315,17 @@ the incident flux) gives the corrected flux ICA + <i>p</i>, whose error against 
 <li>RMSE = sqrt(mean(<i>e</i>&sup2;)), MAE = mean(|<i>e</i>|), bias = mean(<i>e</i>),
 R2 = 1 &minus; &Sigma;<i>e</i>&sup2; / &Sigma;(<i>t</i> &minus; mean <i>t</i>)&sup2;.</li>
 <li>skill = 1 &minus; RMSE / RMSE(no correction), with RMSE(no correction) = sqrt(mean(<i>t</i>&sup2;)):
-1 is perfect, 0 is no better than the independent column, below 0 is worse.</li>
+1 is perfect, 0 is no better than the independent column, below 0 is worse. <b>Every skill in this report is
+the skill of the errors in W m-2</b> (the headline skill, also quoted by summary.md, the model card and the
+README), except the column "skill of fractions" (errors in fractions of the incident flux, every sun weighted
+alike) and the rows of units "1" in metrics.csv.</li>
 <li>noise floor = 1 &minus; sqrt(mean(<i>s</i>&sup2;)) / RMSE(no correction): the skill of a perfect model scored
 against noisy benchmarks.</li>
 <li>noise-corrected RMSE = sqrt(max(mean(<i>e</i>&sup2;) &minus; mean(<i>s</i>&sup2;), 0)): the RMSE against the
 noise-free 3D flux, for errors independent of the benchmark noise (held-out scenes); the noise-corrected skill
 uses it with sqrt(max(mean(<i>t</i>&sup2;) &minus; mean(<i>s</i>&sup2;), 0)) as reference.</li>
-<li>W m-2 values multiply <i>e</i>, <i>t</i> and <i>s</i> sample by sample by the incident flux S0 cos(&theta;0);
-"skill" columns use normalized units unless marked "in W m-2".</li>
+<li>W m-2 values multiply <i>e</i>, <i>t</i> and <i>s</i> sample by sample by the incident flux
+S0 cos(&theta;0).</li>
 </ul>
 <p>Details and references: docs/methods/models-and-metrics.md.</p>
 """
@@ -367,7 +373,7 @@ def write_report(evaluation, out_dir, map_scenes=2):
         write_text_atomic(out_dir / f"breakdown_{breakdown}.csv", rows.to_csv(index=False))
         md = [f"# Skill by {breakdown.replace('_', ' ')}\n"]
         for eval_set in evaluation.sets:
-            md += [f"\n## {eval_set.label}: skill [1]\n\n",
+            md += [f"\n## {eval_set.label}: skill (errors in W m-2)\n\n",
                    to_markdown(breakdown_pivot(table, eval_set.label, breakdown)),
                    f"\n## {eval_set.label}: RMSE [W m-2]\n\n",
                    to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse", "W m-2"))]
@@ -397,7 +403,8 @@ def write_report(evaluation, out_dir, map_scenes=2):
         "evaluation_sets": {s.label: int(s.pairs.sizes["sample"]) for s in evaluation.sets},
         "skill": {s.label: {f"{r.predictor} | {r.target}": r.skill for r in
                             table[(table["evaluation_set"] == s.label) & (table["breakdown"] == "all")
-                                  & (table["units"] == "1")].itertuples()} for s in evaluation.sets},
+                                  & (table["units"] == HEADLINE_UNITS)].itertuples()} for s in evaluation.sets},
+        "skill_units": HEADLINE_UNITS,
         "notes": evaluation.notes,
     }
     write_text_atomic(out_dir / "summary.json", json.dumps(summary, indent=2) + "\n")

@@ -127,7 +127,7 @@ def scene_folds(scenes, n_folds):
     return [(train, test) for train, test in folds.split(np.zeros(scenes.size), groups=scenes)]
 
 
-def correction_skill(predicted, true):
+def correction_skill(predicted, true, scale=None):
     """Skill of a correction per target: ``1 - RMSE(predicted - true) / RMSE(0 - true)``.
 
     1 is perfect; 0 is no better than no correction (the independent column).
@@ -135,11 +135,20 @@ def correction_skill(predicted, true):
     Parameters
     ----------
     predicted, true : ndarray (n_sample, n_target)
+        Corrections [1, fractions of the incident flux].
+    scale : ndarray (n_sample,), optional
+        Factor applied to each sample's errors and truth before the RMSEs, the incident
+        flux S0 cos(theta0) [W m-2] for the skill of the W m-2 errors (the skill every
+        report quotes, :data:`surrogate3d.evaluation.metrics.HEADLINE_UNITS`); none: the
+        skill of the fractions.
 
     Returns
     -------
     ndarray (n_target,)
     """
+    if scale is not None:
+        factor = np.asarray(scale, dtype=np.float64).reshape(-1, 1)
+        predicted, true = predicted * factor, true * factor
     error = np.sqrt(np.mean((predicted - true) ** 2, axis=0))
     reference = np.sqrt(np.mean(true**2, axis=0))
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -154,7 +163,8 @@ class SearchResult:
     ----------
     best_params : dict
     best_score : float
-        Mean over folds of the target-averaged skill.
+        Mean over folds of the target-averaged skill (of the W m-2 errors when the search
+        had the incident flux).
     folds : int
         Folds actually used.
     scores : list of dict
@@ -172,12 +182,14 @@ class SearchResult:
                 "scores": self.scores}
 
 
-def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search", feature_names=None):
+def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search", feature_names=None,
+                incident_flux=None):
     """Pick hyperparameters by scene-grouped K-fold cross-validation.
 
     Every candidate is fitted on each fold's training scenes and scored on its test
     scenes by the skill of :func:`correction_skill`, averaged over targets; the best mean
-    over folds wins (the first candidate on ties).
+    over folds wins (the first candidate on ties).  With ``incident_flux`` the skill is
+    that of the W m-2 errors, the skill every report quotes.
 
     Parameters
     ----------
@@ -197,6 +209,8 @@ def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label
     feature_names : list of str, optional
         Names of the columns of ``X``, passed to every ``fit`` (models that name
         features in their parameters need them).
+    incident_flux : ndarray (n_sample,), optional
+        S0 cos(theta0) of every sample [W m-2]; none: the skill of the fractions.
 
     Returns
     -------
@@ -210,8 +224,9 @@ def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label
             fold_skill = []
             for train, test in folds:
                 model = clone(estimator).set_params(**params).fit(X[train], Y[train], feature_names=feature_names)
+                scale = None if incident_flux is None else incident_flux[test]
                 fold_skill.append(float(np.nanmean(correction_skill(model.predict(X[test]).reshape(Y[test].shape),
-                                                                    Y[test]))))
+                                                                    Y[test], scale))))
                 bar.update()
             scores.append({"params": params, "mean_skill": float(np.mean(fold_skill)),
                            "std_skill": float(np.std(fold_skill)), "fold_skill": fold_skill})

@@ -1,6 +1,7 @@
 """The evaluation on held-out scenes and the report files."""
 
 import base64
+import json
 import re
 
 import numpy as np
@@ -10,6 +11,7 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.evaluation import figures
 from surrogate3d.evaluation.report import HELD_OUT, evaluate
+from surrogate3d.evaluation.tables import headline_table
 from surrogate3d.learn.pairs_table import scene_labels
 
 PNG = b"\x89PNG\r\n\x1a\n"
@@ -29,11 +31,32 @@ def test_only_held_out_scenes_are_scored(evaluation):
 
 def test_models_beat_no_correction_and_stay_below_the_noise_floor(evaluation):
     t = evaluation.table
-    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["units"] == "1")
+    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["units"] == "W m-2")
              & (t["target"] == "surface_downward_flux")].set_index("predictor")
     assert rows.loc["boosted", "skill"] > 0.6
     assert rows.loc["boosted", "skill"] <= rows.loc["boosted", "noise_floor_skill"] + 0.02
     assert rows.loc["no correction", "skill"] == 0.0
+
+
+def test_one_headline_skill(evaluation, report_dir):
+    # The report quotes one skill, that of the W m-2 errors (S0 cos(theta0) times the
+    # fractions, sample by sample): the headline table, the figures' rows and summary.json.
+    t = evaluation.table
+    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["target"] == "surface_downward_flux")
+             & (t["predictor"] == "boosted")].set_index("units")
+    held = evaluation.sets[0]
+    m = evaluation.targets.index("surface_downward_flux")
+    flux = held.pairs["incident_flux"].values
+    true = held.pairs["target_value"].sel(target="surface_downward_flux").values
+    error = (held.predictions["boosted"][:, m] - true) * flux
+    expected = 1.0 - np.sqrt(np.mean(error**2)) / np.sqrt(np.mean((true * flux) ** 2))
+    assert rows.loc["W m-2", "skill"] == pytest.approx(expected, rel=1e-12)
+    assert abs(rows.loc["1", "skill"] - expected) > 1e-6        # the fractions weight every sun alike
+    headline = headline_table(t, HELD_OUT).set_index(["target", "predictor"])
+    assert headline.loc[("surface_downward_flux", "boosted"), "skill"] == pytest.approx(expected, rel=1e-12)
+    summary = json.loads((report_dir / "summary.json").read_text())
+    assert summary["skill_units"] == "W m-2"
+    assert summary["skill"][HELD_OUT]["boosted | surface_downward_flux"] == pytest.approx(expected, rel=1e-12)
 
 
 def test_consistency_step_is_applied(evaluation, model_dir, pairs_file):
