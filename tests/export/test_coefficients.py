@@ -22,10 +22,14 @@ def _assert_same_document(a, b):
     assert a.keys() == b.keys()
     kind = a["model"]["kind"]
     for key in a:
-        if key == kind:
-            for name, array in a[kind].items():
-                assert array.dtype == b[kind][name].dtype, name
-                np.testing.assert_array_equal(array, b[kind][name])
+        if key in (kind, "training_envelope"):
+            assert a[key].keys() == b[key].keys()
+            for name, array in a[key].items():
+                if isinstance(array, np.ndarray):
+                    assert array.dtype == b[key][name].dtype, name
+                    np.testing.assert_array_equal(array, b[key][name])
+                else:
+                    assert type(array) is type(b[key][name]) and array == b[key][name], name
         else:
             assert a[key] == b[key], key
 

@@ -15,7 +15,7 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.export.fortran import data_file_text, features_file_text, fortran_name, fortran_sources
 from surrogate3d.export import read_coefficients
-from surrogate3d.runtime import FORMAT_VERSION, CorrectionModel
+from surrogate3d.runtime import FORMAT_VERSION, CorrectionModel, load_coefficients
 
 GFORTRAN = shutil.which("gfortran")
 needs_gfortran = pytest.mark.skipif(GFORTRAN is None, reason="gfortran is not installed (make test installs "
@@ -45,6 +45,17 @@ def _run(driver, coefficients, features):
     result = subprocess.run([str(driver), str(coefficients), str(features)], capture_output=True, text=True)
     assert result.returncode == 0, result.stderr
     return np.array([[float(v) for v in line.split()] for line in result.stdout.splitlines()])
+
+
+def _run_envelope(driver, coefficients, features):
+    """The driver's envelope mode: flag (bool) and distance per column, and the count."""
+    result = subprocess.run([str(driver), str(coefficients), str(features), "envelope"], capture_output=True,
+                            text=True)
+    assert result.returncode == 0, result.stderr
+    *rows, last = result.stdout.splitlines()
+    assert last.startswith("n_outside ")
+    values = np.array([[float(v) for v in row.split()] for row in rows])
+    return values[:, 0] == 1, values[:, 1], int(last.split()[1])
 
 
 @needs_gfortran
@@ -101,9 +112,36 @@ def test_fortran_clips_a_round_off_scale_like_python(built, helpers, drivers, tm
     features[1::2, k] = 0.3
     (tmp_path / "features.txt").write_text(features_file_text(features))
     got = _run(drivers["ridge"], tmp_path / "old.txt", tmp_path / "features.txt")
-    expected = CorrectionModel.from_document(document).predict(features)
+    expected = CorrectionModel.from_document(document).predict(features, check_envelope=False)
     assert np.abs(expected).max() < 10.0
     assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
+
+
+@needs_gfortran
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_fortran_flags_the_columns_python_flags(built, helpers, drivers, tmp_path, name):
+    # The training envelope (ranges and Mahalanobis distance, docs/export-format.md) gives
+    # the same flag and distance in Fortran as in the numpy runtime, and a NaN is outside.
+    fortran = built["export_dir"] / "fortran"
+    model = load_coefficients(built["export_dir"] / f"{name}.coefficients.json")
+    features = np.loadtxt(fortran / f"{name}_sample_features.txt", skiprows=1)
+    rng = np.random.default_rng(4)
+    features[::4] *= rng.uniform(0.5, 1.5, features[::4].shape)          # some leave the envelope
+    features[1::8, 0] = model.envelope.feature_max[0] + 1.0               # one range exceeded
+    gate = [model.feature_names.index(f) for f in helpers.GATE]
+    features[2::8][:, gate] = 0.0                                          # gated: never flagged
+    (tmp_path / "features.txt").write_text(features_file_text(features))
+    outside, distance, count = _run_envelope(drivers[name], fortran / f"{name}.coefficients.txt",
+                                             tmp_path / "features.txt")
+    check = model.envelope_check(features)
+    assert 0 < check.n_outside < features.shape[0] and not check.outside[2::8].any()
+    np.testing.assert_array_equal(outside, check.outside)
+    np.testing.assert_allclose(distance, check.distance, rtol=1e-10)
+    assert count == check.n_outside
+    if name == "boosted":
+        features[0, 3] = np.nan
+        (tmp_path / "nan.txt").write_text(features_file_text(features[:1]))
+        assert _run_envelope(drivers[name], fortran / f"{name}.coefficients.txt", tmp_path / "nan.txt")[0][0]
 
 
 @needs_gfortran
