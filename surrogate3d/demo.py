@@ -223,7 +223,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
         stages.end(f"wrote {paths.models}")
 
     ev = settings["evaluate"]
-    stages.begin(5, "evaluate", "skill on held-out scenes and on the held-out regime")
+    stages.begin(5, "evaluate", "skill on held-out scenes and on every family left out of training")
     page = paths.report / "report.html"
     if _newer(page, paths.models / "training.json"):
         stages.end(f"reused {paths.report}")

@@ -14,6 +14,7 @@ from ..learn.models import make_estimator
 from ..learn.pairs_table import scene_table, select_scenes, target_matrix
 from .metrics import error_metrics
 from .predictions import model_correction
+from .scored_model import ScoredModel
 
 
 def scene_order(pairs, scenes, seed=0):
@@ -76,7 +77,8 @@ def learning_curve(kind, params, pairs, training_scenes, evaluation, features, t
                      disable=True if quiet else None, leave=False):
         subset = select_scenes(pairs, order[:size])
         model = make_estimator(kind, params).fit_pairs(subset, features, targets)
-        correction, _ = model_correction(model, evaluation, targets, consistency)
+        correction, _ = model_correction(ScoredModel.from_estimator(kind, kind, model), evaluation, targets,
+                                         consistency)
         skills = [error_metrics(correction[:, m], true[:, m], scale=flux)["skill"] for m in range(len(targets))]
         for target, skill in zip(list(targets) + ["mean"], skills + [float(np.nanmean(skills))]):
             rows.append({"n_training_scenes": size, "n_training_samples": int(subset.sizes["sample"]),

@@ -23,6 +23,7 @@ from .._atomic import atomic_path, write_text_atomic
 from ..archive import open_dataset
 from ..archive.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
+from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.recipe import FeatureRecipe
 from ..runtime import envelope as _envelope
@@ -136,15 +137,16 @@ def _cell(text):
 
 
 def skill_table(report_dir, model_name):
-    """The rows of a report's ``metrics.csv`` that score ``model_name``.
+    """The rows of a report's ``metrics.csv`` that score ``model_name``, in the headline units (W m-2).
 
     Parameters
     ----------
     report_dir : str or Path
         Written by ``surrogate3d evaluate``.
     model_name : str
-        Predictor name; its regime-transfer rows (``"<name> (trained without ...)"``)
-        are kept too.
+        Predictor name; its rows trained without the scored family
+        (``"<name> (trained without ...)"``: the left-out families, or the held-out regime
+        of older reports) are kept too.
 
     Returns
     -------
@@ -168,8 +170,10 @@ def skill_table(report_dir, model_name):
         raise FormatError(f"{str(path)!r} has rows of another length than its header")
     keep = [i for i, column in enumerate(header) if column not in _CONSTANT_COLUMNS]
     predictor = header.index("predictor")
-    rows = [row for row in table[1:]
-            if row[predictor] == model_name or row[predictor].startswith(f"{model_name} (trained without ")]
+    # One skill everywhere (the W m-2 errors); the fractions' rows stay in metrics.csv.
+    units = header.index("units")
+    rows = [row for row in table[1:] if row[units] == HEADLINE_UNITS
+            and (row[predictor] == model_name or row[predictor].startswith(f"{model_name} (trained without "))]
     if not rows:
         found = sorted({row[predictor] for row in table[1:]})
         raise ValidationError(f"{str(path)!r} has no rows of model {model_name!r}; its predictors are {found}")

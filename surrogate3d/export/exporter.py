@@ -96,8 +96,7 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
     model_dir : str or Path
     out_dir : str or Path
     model : str, optional
-        Export only this model; default every model of the run (not the
-        regime-transfer models).
+        Export only this model; default every model of the run.
     report_dir, fortran, pairs_path, n_sample_columns
         As for :func:`export_model`.
 

@@ -26,28 +26,70 @@ class SceneSplit:
     ----------
     training_scenes, held_out_scenes : list of str
         Disjoint; held-out scenes are whole scenes of unseen seeds, chosen per regime.
-    held_out_regime : str or None
-        Regime of the regime-transfer test.
-    transfer_training_scenes : list of str
-        Training scenes outside ``held_out_regime`` (empty without one).
-    transfer_test_scenes : list of str
-        Every scene of ``held_out_regime`` (empty without one).
     """
 
     training_scenes: list
     held_out_scenes: list
-    held_out_regime: str | None = None
-    transfer_training_scenes: tuple = ()
-    transfer_test_scenes: tuple = ()
 
     def as_dict(self):
-        return {"training_scenes": list(self.training_scenes), "held_out_scenes": list(self.held_out_scenes),
-                "held_out_regime": self.held_out_regime,
-                "transfer_training_scenes": list(self.transfer_training_scenes),
-                "transfer_test_scenes": list(self.transfer_test_scenes)}
+        return {"training_scenes": list(self.training_scenes), "held_out_scenes": list(self.held_out_scenes)}
 
 
-def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
+@dataclass(frozen=True)
+class FamilySplit:
+    """The scenes of one leave-one-family-out fit.
+
+    Attributes
+    ----------
+    family : str
+        The regime left out.
+    training_scenes : list of str
+        The run's training scenes outside ``family``.
+    test_scenes : list of str
+        Every scene of ``family`` (training and held-out scenes alike).
+    """
+
+    family: str
+    training_scenes: list
+    test_scenes: list
+
+
+def family_splits(pairs, training_scenes, families):
+    """Leave-one-family-out splits: for each family, training outside it, testing on all of it.
+
+    Parameters
+    ----------
+    pairs : xarray.Dataset
+        A pairs table holding the training scenes and every scene of the families.
+    training_scenes : sequence of str
+        Scenes the models of the run were trained on.
+    families : sequence of str
+        Regimes to leave out in turn.
+
+    Returns
+    -------
+    list of FamilySplit
+        In the order of ``families``.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        A family that is not a regime of ``pairs``, or that leaves no training scene.
+    """
+    table = scene_table(pairs)
+    regimes = sorted({r for r, _ in table.values()})
+    out = []
+    for family in families:
+        if family not in regimes:
+            raise ValidationError(f"left-out family {family!r} is not a regime of the pairs table; it has {regimes}")
+        training = [s for s in training_scenes if table[s][0] != family]
+        if not training:
+            raise ValidationError(f"leaving out family {family!r} leaves no training scene")
+        out.append(FamilySplit(family, training, [s for s in table if table[s][0] == family]))
+    return out
+
+
+def split_scenes(pairs, held_out_fraction, seed=0):
     """Hold out whole scenes by seed, separately in every regime.
 
     In each regime ``round(held_out_fraction * n_seeds)`` seeds are drawn (at least one
@@ -62,8 +104,6 @@ def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
         In [0, 1).
     seed : int
         Seed of the draw; regimes are visited in sorted order, so the split is reproducible.
-    held_out_regime : str, optional
-        Also list the scenes for the regime-transfer test.
 
     Returns
     -------
@@ -85,15 +125,7 @@ def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
     training = [scene for scene in table if scene not in held]
     if not training:
         raise ValidationError("no training scenes left after holding out scenes")
-    transfer_training, transfer_test = (), ()
-    if held_out_regime is not None:
-        transfer_training = tuple(s for s in training if table[s][0] != held_out_regime)
-        transfer_test = tuple(s for s in table if table[s][0] == held_out_regime)
-        if not transfer_training or not transfer_test:
-            raise ValidationError(f"held_out_regime {held_out_regime!r} leaves {len(transfer_training)} training "
-                                  f"and {len(transfer_test)} test scenes for the regime-transfer test")
-    return SceneSplit(training_scenes=training, held_out_scenes=sorted(held), held_out_regime=held_out_regime,
-                      transfer_training_scenes=transfer_training, transfer_test_scenes=transfer_test)
+    return SceneSplit(training_scenes=training, held_out_scenes=sorted(held))
 
 
 def scene_folds(scenes, n_folds):

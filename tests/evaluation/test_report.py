@@ -10,7 +10,7 @@ import pytest
 
 from surrogate3d.errors import ValidationError
 from surrogate3d.evaluation import figures
-from surrogate3d.evaluation.report import HELD_OUT, evaluate
+from surrogate3d.evaluation.report import HELD_OUT, LEFT_OUT, evaluate
 from surrogate3d.evaluation.tables import headline_table
 from surrogate3d.learn.pairs_table import scene_labels
 
@@ -23,10 +23,12 @@ def test_only_held_out_scenes_are_scored(evaluation):
     assert held.label == HELD_OUT
     assert set(scene_labels(held.pairs)) == set(split["held_out_scenes"])
     assert set(scene_labels(held.pairs)).isdisjoint(split["training_scenes"])
-    transfer = evaluation.sets[1]
-    assert set(np.asarray(transfer.pairs["regime"].values).astype(str)) == {"dense"}
-    assert set(transfer.predictions) == {"no correction", "tilted independent column", "non-local independent pixel",
-                                         "ridge (trained without dense)", "boosted (trained without dense)"}
+    left_out = evaluation.sets[1]
+    assert left_out.label == LEFT_OUT
+    # Every sample of every family, each corrected by the models trained without its family.
+    assert set(scene_labels(left_out.pairs)) == set(split["training_scenes"]) | set(split["held_out_scenes"])
+    assert set(left_out.predictions) == {"no correction", "tilted independent column", "non-local independent pixel",
+                                         "ridge (trained without the family)", "boosted (trained without the family)"}
 
 
 def test_models_beat_no_correction_and_stay_below_the_noise_floor(evaluation):
@@ -73,7 +75,13 @@ def test_report_files(report_dir):
     names = {p.name for p in report_dir.iterdir()}
     assert {"report.html", "metrics.csv", "metrics.md", "breakdown_regime.csv", "breakdown_solar_zenith.md",
             "breakdown_cloud_fraction.csv", "breakdown_host_resolution.md", "importance.csv", "learning_curve.csv",
-            "consistency.csv", "consistency_skill.csv", "summary.json", "figures"} <= names
+            "consistency.csv", "consistency_skill.csv", "summary.json", "figures", "envelope.csv",
+            "left_out_family_fits.csv", "breakdown_regime_solar_zenith.csv"} <= names
+    summary = json.loads((report_dir / "summary.json").read_text())
+    shares = summary["share_outside_envelope"]
+    assert set(shares) == {HELD_OUT, LEFT_OUT}
+    assert all(0.0 <= share <= 1.0 for by_model in shares.values() for share in by_model.values())
+    assert summary["left_out_families"]["fits"] == 4
     metrics = pd.read_csv(report_dir / "metrics.csv")
     assert set(metrics["units"]) == {"1", "W m-2"}
     assert set(metrics["predictor"]) >= {"no correction", "tilted independent column", "non-local independent pixel",
@@ -89,7 +97,8 @@ def test_html_is_self_contained(report_dir):
     assert len(sources) >= 9 and all(s.startswith("data:image/png;base64,") for s in sources)
     assert base64.b64decode(sources[0].split(",", 1)[1]).startswith(PNG)
     assert "<link" not in page and "http" not in page.split("<footer>")[0].replace("http-equiv", "")
-    for section in ("Maps of sample held-out scenes", "Feature importance", "Learning curve", "Regime transfer"):
+    for section in ("Maps of sample scenes", "Feature importance", "Learning curve", "Leave-one-family-out",
+                    "Training envelope"):
         assert section in page
     assert all(p.read_bytes().startswith(PNG) for p in (report_dir / "figures").glob("*.png"))
 

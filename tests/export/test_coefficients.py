@@ -80,6 +80,7 @@ def test_skill_table_rows(tmp_path, helpers):
     table = skill_table(report, "ridge")
     predictors = {row[table["columns"].index("predictor")] for row in table["rows"]}
     assert predictors == {"ridge", "ridge (trained without dense)"}
+    assert {row[table["columns"].index("units")] for row in table["rows"]} == {"W m-2"}   # the headline skill
     group_value = helpers.METRICS_HEADER.split(",").index("group_value")
     assert group_value >= 0 and "group_value" not in table["columns"]
     with pytest.raises(ValidationError, match=r"no rows of model 'forest'; its predictors are \['boosted'"):
