@@ -21,6 +21,10 @@ def register(sub):
     p.add_argument("--quiet", action="store_true", help="no progress bars or summary")
     p.set_defaults(func=run)
 
+    from .score_command import register as register_score
+
+    register_score(sub)
+
 
 def run(args):
     from ..errors import ParameterError
