@@ -38,7 +38,8 @@ def _check_scenes(pairs, scenes, what):
 
 def _families(split, pairs, notes):
     """The families to leave out: the run's list (every regime for runs that have none), those in ``pairs``."""
-    regimes = sorted(set(scene_table(pairs)[s][0] for s in scene_table(pairs)))
+    present = scene_table(pairs)
+    regimes = sorted({regime for regime, _ in present.values()})
     families = split.get("left_out_families")
     if families is None:
         families = regimes if len(regimes) > 1 else []
@@ -46,7 +47,6 @@ def _families(split, pairs, notes):
     if absent:
         notes.append(f"The left-out families {absent} have no scenes in the pairs file and are not evaluated.")
     families = [f for f in families if f in regimes]
-    present = scene_table(pairs)
     if families and not all(s in present for s in split["training_scenes"]):
         notes.append("The leave-one-family-out evaluation is left out: the pairs file lacks some training scenes.")
         return []

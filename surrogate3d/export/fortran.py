@@ -9,14 +9,17 @@ characters), :func:`write_fortran` writes into a directory:
     data file), and the pure procedures ``NAME_correct_column`` (one column's features
     to its corrections) and ``NAME_correct_columns`` (many columns), which apply the
     model's clear-sky gate (zero correction where every gate feature is within the
-    tolerance of 0).  Standard Fortran 2008, no dependencies but the intrinsic modules
-    ``iso_fortran_env`` and ``ieee_arithmetic``.
+    tolerance of 0), and ``NAME_check_column``, which flags a column outside the training
+    envelope (``NAME_correct_columns`` flags and counts them on request).  Standard
+    Fortran 2008, no dependencies but the intrinsic modules ``iso_fortran_env`` and
+    ``ieee_arithmetic``.
 ``NAME_correction_driver.f90``
     Example program: reads sample features from a text file, prints the corrections
-    (or, given a repeat count, the columns per second).
+    (or, given ``envelope``, each column's envelope flag and distance; given a repeat
+    count, the columns per second).
 ``NAME.coefficients.txt``
-    The coefficients and the clear-sky gate as plain text (every number in shortest
-    round-trip decimal form, so the doubles read back exactly).
+    The coefficients, the clear-sky gate and the training envelope as plain text (every
+    number in shortest round-trip decimal form, so the doubles read back exactly).
 ``NAME_sample_features.txt``, ``NAME_sample_corrections.txt``
     Feature vectors of training columns and the corrections the Python runtime gives
     for them, to check a build against.
