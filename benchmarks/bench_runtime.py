@@ -3,7 +3,8 @@
 Measures, on one core:
 
 * the size of the NetCDF coefficient file and of its JSON twin for each model;
-* prediction speed of the numpy runtime (columns/s), next to scikit-learn's own;
+* prediction speed of the numpy runtime (columns/s), next to scikit-learn's own, with the
+  training-envelope test that ``predict`` runs by default and without it;
 * prediction speed of the generated Fortran module (the driver's timing mode, compiled
   with ``gfortran -O2``), if gfortran is installed;
 * the cost of computing the features from host fields plus predicting, as a fraction of
@@ -27,6 +28,7 @@ import shutil
 import subprocess
 import tempfile
 import time
+import warnings
 from pathlib import Path
 
 # One core, as the figures are quoted per core; set before numpy loads its BLAS.
@@ -43,6 +45,7 @@ from surrogate3d.learn import TARGETS, TrainedModel, load_training_run, make_est
 from surrogate3d.pairs.features import compute_features  # noqa: E402
 from surrogate3d.pairs.recipe import default_recipe  # noqa: E402
 from surrogate3d.runtime import CorrectionModel  # noqa: E402
+from surrogate3d.runtime.envelope import EnvelopeWarning  # noqa: E402
 from surrogate3d.solvers.two_stream import delta_eddington  # noqa: E402
 
 #: The recipe whose models the stand-ins copy.
@@ -173,6 +176,8 @@ def main():
     print(f"load average (1, 5, 15 min) before: {', '.join(f'{v:.2f}' for v in figures['load_average_before'])} "
           f"on {os.cpu_count()} cores")
     work = Path(tempfile.mkdtemp(prefix="bench_runtime_"))
+    # Random probes leave the envelope: the warnings would only clutter the figures.
+    warnings.simplefilter("ignore", EnvelopeWarning)
     try:
         for name, trained in models.items():
             document = build_document(trained)
@@ -181,10 +186,13 @@ def main():
             n = 1_000_000 if trained.kind == "ridge" else args.columns
             probe = X[rng.integers(0, X.shape[0], n)]
             rate, _ = best_rate(lambda: runtime.predict(probe), n)
+            unchecked_rate, _ = best_rate(lambda: runtime.predict(probe, check_envelope=False), n)
+            envelope_rate, _ = best_rate(lambda: runtime.envelope_check(probe), n)
             few = probe[:100_000]
             sklearn_rate, _ = best_rate(lambda: trained.estimator.predict(few), few.shape[0], repeat=1)
             entry = {"kind": trained.kind, "netcdf_bytes": netcdf.stat().st_size, "json_bytes": twin.stat().st_size,
-                     "numpy_columns_per_second": rate, "sklearn_columns_per_second": sklearn_rate,
+                     "numpy_columns_per_second": rate, "numpy_unchecked_columns_per_second": unchecked_rate,
+                     "envelope_check_columns_per_second": envelope_rate, "sklearn_columns_per_second": sklearn_rate,
                      "fortran_columns_per_second": fortran_rate(document, X[:1000], work / f"fortran_{name}")}
             if trained.kind == "ridge":
                 entry["terms"] = int(document["ridge"]["coef"].size)
@@ -215,7 +223,8 @@ def main():
                      else f"{entry['trees']} trees, {entry['nodes']} nodes, depth <= {entry['max_depth']}")
             print(f"{name} ({extra}):")
             print(f"  files: NetCDF {entry['netcdf_bytes'] / 1000:.1f} kB, JSON {entry['json_bytes'] / 1000:.1f} kB")
-            print(f"  numpy runtime {rate:,.0f} columns/s (scikit-learn {sklearn_rate:,.0f}); Fortran "
+            print(f"  numpy runtime {rate:,.0f} columns/s with the envelope test, {unchecked_rate:,.0f} without "
+                  f"(the test alone {envelope_rate:,.0f}; scikit-learn {sklearn_rate:,.0f}); Fortran "
                   + (f"{fortran:,.0f} columns/s" if fortran else "not measured (no gfortran)"))
             print(f"  host features + prediction on {ncol} columns x 40 layers: {host_rate:,.0f} columns/s = "
                   f"{100 * entry['cost_fraction_of_one_band_solve']:.0f} % of one delta-Eddington band solve "

@@ -222,7 +222,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
         stages.end(f"wrote {paths.models}")
 
     ev = settings["evaluate"]
-    stages.begin(5, "evaluate", "skill on held-out scenes and on the held-out regime")
+    stages.begin(5, "evaluate", "skill on held-out scenes and on every family left out of training")
     page = paths.report / "report.html"
     if _newer(page, paths.models / "training.json"):
         stages.end(f"reused {paths.report}")
@@ -253,13 +253,16 @@ def summarize(paths, page):
     """The summary table (held-out skill of every model and baseline) and the output paths."""
     import pandas as pd
 
+    from .evaluation.metrics import HEADLINE_UNITS
+
     table = pd.read_csv(paths.report / "metrics.csv")
-    held = table[(table["breakdown"] == "all") & (table["units"] == "W m-2")]
+    held = table[(table["breakdown"] == "all") & (table["units"] == HEADLINE_UNITS)]
     sets = list(dict.fromkeys(held["evaluation_set"]))
     lines = ["# surrogate3d demo summary", ""]
     for name in sets:
         part = held[held["evaluation_set"] == name]
-        lines += [f"## {name}", "", "skill = 1 - RMSE(corrected) / RMSE(independent column); RMSE in W m-2", ""]
+        lines += [f"## {name}", "", "skill = 1 - RMSE(corrected) / RMSE(independent column) of the errors in W m-2 "
+                  "(the headline skill of the report, the model card and the README); RMSE in W m-2 in brackets", ""]
         targets = list(dict.fromkeys(part["target"]))
         lines.append("| predictor | " + " | ".join(targets) + " |")
         lines.append("|---|" + "---|" * len(targets))

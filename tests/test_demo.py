@@ -29,7 +29,7 @@ def test_every_stage_writes_its_output(demo_dir):
 def test_summary_compares_models_with_every_baseline(demo_dir):
     summary = (demo_dir / "summary.md").read_text()
     for name in ("no correction", "tilted independent column", "non-local independent pixel", "ridge", "boosted",
-                 "held-out scenes", "held-out regime"):
+                 "held-out scenes", "left-out families"):
         assert name in summary
 
 

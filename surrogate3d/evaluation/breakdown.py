@@ -1,7 +1,7 @@
 """Metric tables: every predictor on the same samples, overall and broken down.
 
-Breakdowns: regime, solar zenith angle bin, host-column cloud fraction bin and host
-resolution.  Each row of a table is one (evaluation set, breakdown, group, predictor,
+Breakdowns: regime, solar zenith angle bin, host-column cloud fraction bin, host
+resolution, and regime and solar zenith bin together (for the left-out families).  Each row of a table is one (evaluation set, breakdown, group, predictor,
 target, units) with the metrics of :func:`surrogate3d.evaluation.metrics.error_metrics`.
 """
 
@@ -18,12 +18,14 @@ SOLAR_ZENITH_BINS = (0.0, 30.0, 45.0, 60.0, 75.0, 90.0)
 CLOUD_FRACTION_BINS = (0.0, 0.01, 0.25, 0.5, 0.75, 0.99, 1.0)
 #: Breakdowns of a metric table, in report order ("all" is the whole evaluation set).
 BREAKDOWNS = ("all", "regime", "solar_zenith", "cloud_fraction", "host_resolution")
+#: Breakdowns of the left-out families: each family, each sun, each family under each sun.
+FAMILY_BREAKDOWNS = ("all", "regime", "solar_zenith", "regime_solar_zenith")
 #: Units of the metric rows: normalized (fraction of the incident flux) and W m-2.
 UNITS = ("1", "W m-2")
 
 #: The variable each numeric breakdown bins (its group mean is the ``group_value`` column).
 BINNED_VARIABLES = {"solar_zenith": "solar_zenith_angle", "cloud_fraction": "cloud_fraction",
-                    "host_resolution": "host_resolution"}
+                    "host_resolution": "host_resolution", "regime_solar_zenith": "solar_zenith_angle"}
 
 TABLE_COLUMNS = ("evaluation_set", "breakdown", "group", "group_order", "group_value", "predictor", "target",
                  "units") + METRICS
@@ -44,7 +46,7 @@ def group_labels(pairs, breakdown):
     ----------
     pairs : xarray.Dataset
     breakdown : str
-        One of :data:`BREAKDOWNS`.
+        One of :data:`BREAKDOWNS` or ``"regime_solar_zenith"``.
 
     Returns
     -------
@@ -60,12 +62,17 @@ def group_labels(pairs, breakdown):
         return labels, np.unique(labels, return_inverse=True)[1].ravel()
     if breakdown == "solar_zenith":
         return _binned(pairs["solar_zenith_angle"].values, SOLAR_ZENITH_BINS, " deg")
+    if breakdown == "regime_solar_zenith":
+        regimes, regime_order = group_labels(pairs, "regime")
+        zeniths, zenith_order = group_labels(pairs, "solar_zenith")
+        labels = np.asarray([f"{r}, {z}" for r, z in zip(regimes, zeniths)], dtype=object)
+        return labels, regime_order * len(SOLAR_ZENITH_BINS) + zenith_order
     if breakdown == "cloud_fraction":
         return _binned(pairs["cloud_fraction"].values, CLOUD_FRACTION_BINS, "")
     if breakdown == "host_resolution":
         res = np.asarray(pairs["host_resolution"].values, dtype=np.float64)
         return np.asarray([f"{r / 1000.0:g} km" for r in res], dtype=object), np.unique(res, return_inverse=True)[1]
-    raise ParameterError(f"breakdown must be one of {BREAKDOWNS}; got {breakdown!r}")
+    raise ParameterError(f"breakdown must be one of {BREAKDOWNS + FAMILY_BREAKDOWNS[-1:]}; got {breakdown!r}")
 
 
 def metric_table(pairs, predictions, targets, evaluation_set, breakdowns=BREAKDOWNS):

@@ -3,9 +3,10 @@
 
 def register(sub):
     p = sub.add_parser("evaluate", help="score trained corrections on held-out scenes and write the skill report",
-                       description="Score every model of MODEL_DIR on the scenes its training held out (and on the "
-                                   "held-out regime), against no correction and the published baselines, and write "
-                                   "an HTML report with CSV and Markdown tables.")
+                       description="Score every model of MODEL_DIR on the scenes its training held out and, "
+                                   "trained without each family (regime) in turn, on that family, against no "
+                                   "correction and the published baselines, and write an HTML report with CSV and "
+                                   "Markdown tables.")
     p.add_argument("model_dir", metavar="MODEL_DIR", help="model directory written by 'surrogate3d train'")
     p.add_argument("pairs", metavar="PAIRS", help="training-pair table holding the held-out scenes")
     p.add_argument("--out", required=True, metavar="REPORT_DIR", help="report directory to write")
@@ -19,6 +20,10 @@ def register(sub):
     p.add_argument("--seed", type=int, default=0, help="seed of permutations and learning-curve order (default 0)")
     p.add_argument("--quiet", action="store_true", help="no progress bars or summary")
     p.set_defaults(func=run)
+
+    from .score_command import register as register_score
+
+    register_score(sub)
 
 
 def run(args):

@@ -158,7 +158,7 @@ def skill_vs_zenith(table, targets, predictors, title):
     Parameters
     ----------
     table : pandas.DataFrame
-        Rows of breakdown ``"solar_zenith"`` in normalized units (metric table layout).
+        Rows of breakdown ``"solar_zenith"`` in the headline units (metric table layout).
     targets, predictors : sequence of str
     title : str
     """
@@ -184,7 +184,8 @@ def skill_vs_zenith(table, targets, predictors, title):
         handles, labels = axes[0].get_legend_handles_labels()
         legend_ax = axes[len(targets)]
         legend_ax.axis("off")
-        legend_ax.legend(handles, labels, loc="center", title="skill = 1 - RMSE / RMSE(no correction)")
+        legend_ax.legend(handles, labels, loc="center",
+                         title=f"skill = 1 - RMSE / RMSE(no correction), errors in {WM2}")
         for ax in axes[len(targets) + 1:]:
             ax.axis("off")
         fig.suptitle(title)
@@ -285,13 +286,51 @@ def learning_curve_plot(curve, model_name, full_skill=None):
         return fig
 
 
+def group_skill_bars(table, groups, predictors, title, xlabel):
+    """Skill of every predictor in each group (e.g. each left-out family) for one target, with the noise floor.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        Rows of one breakdown and one target in the headline units, ``group`` naming the group.
+    groups, predictors : sequence of str
+    title, xlabel : str
+    """
+    colours = predictor_colours(predictors)
+    width = 0.8 / len(predictors)
+    with matplotlib.rc_context(STYLE):
+        fig = _figure(max(6.0, 1.4 * len(groups) + 3.0), 3.9)
+        ax = fig.subplots()
+        x = np.arange(len(groups))
+        low = max(min(float(np.nanmin(table["skill"])) if table["skill"].notna().any() else 0.0, -0.1), -1.5) - 0.05
+        for k, name in enumerate(predictors):
+            part = table[table["predictor"] == name].set_index("group").reindex(groups)
+            centres = x - 0.4 + (k + 0.5) * width
+            ax.bar(centres, part["skill"], width=width * 0.95, color=colours[name], label=name)
+            for centre, value in zip(centres, part["skill"]):
+                if value < low:             # a bar cut by the axis: its value at the foot
+                    ax.text(centre, low, f"{value:.1f}", rotation=90, ha="center", va="bottom", fontsize=7)
+        floor = table[table["predictor"] == predictors[0]].set_index("group").reindex(groups)
+        for xi, value in zip(x, floor["noise_floor_skill"]):
+            ax.plot([xi - 0.42, xi + 0.42], [value, value], color="black", ls=":", lw=1.2)
+        ax.plot([], [], color="black", ls=":", lw=1.2, label="noise floor (perfect model)")
+        ax.axhline(0.0, color="#555555", lw=0.8)
+        ax.set_xticks(x, [g.replace("_", " ") for g in groups], rotation=15)
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel("skill [1]")
+        ax.set_ylim(low, 1.05)
+        ax.set_title(title)
+        ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0))
+        return fig
+
+
 def skill_bars(table, targets, predictors, title):
     """Overall skill of every predictor per target, with the noise floor marked.
 
     Parameters
     ----------
     table : pandas.DataFrame
-        Rows of breakdown ``"all"`` in normalized units.
+        Rows of breakdown ``"all"`` in the headline units.
     targets, predictors : sequence of str
     title : str
     """

@@ -11,20 +11,21 @@ import numpy as np
 import pandas as pd
 
 from ..learn.cv import correction_skill
-from ..learn.pairs_table import feature_matrix, scene_labels, target_matrix
+from ..learn.pairs_table import scene_labels, target_matrix
 
 
-def _scene_skill(predicted, true, members):
-    return np.array([np.nanmean(correction_skill(predicted[idx], true[idx])) for idx in members])
+def _scene_skill(predicted, true, flux, members):
+    return np.array([np.nanmean(correction_skill(predicted[idx], true[idx], flux[idx])) for idx in members])
 
 
-def permutation_importance(estimator, pairs, targets, n_repeats=3, seed=0):
-    """Drop in target-averaged skill when each feature is permuted within each scene.
+def permutation_importance(model, pairs, targets, n_repeats=3, seed=0):
+    """Drop in target-averaged skill (of the W m-2 errors) when each feature is permuted within each scene.
 
     Parameters
     ----------
-    estimator : RidgeCorrection or BoostedCorrection
-        Fitted with ``fit_pairs``; predictions are scored as predicted (no consistency step).
+    model : surrogate3d.evaluation.scored_model.ScoredModel
+        An estimator or an exported file; predictions are scored as predicted (no
+        consistency step).
     pairs : xarray.Dataset
         Held-out samples.
     targets : sequence of str
@@ -47,13 +48,14 @@ def permutation_importance(estimator, pairs, targets, n_repeats=3, seed=0):
     useful: learning a variable's importance by studying an entire class of prediction
     models simultaneously. Journal of Machine Learning Research, 20(177), 1-81.
     """
-    names = list(estimator.feature_names_)
-    X = feature_matrix(pairs, names)
+    names = list(model.feature_names)
+    X = model.features(pairs)
     true = target_matrix(pairs, targets)
-    order = [list(estimator.target_names_).index(t) for t in targets]
+    flux = np.asarray(pairs["incident_flux"].values, dtype=np.float64)
+    order = [model.target_names.index(t) for t in targets]
     scenes = scene_labels(pairs)
     members = [np.flatnonzero(scenes == s) for s in np.unique(scenes)]
-    base = _scene_skill(estimator.predict(X)[:, order], true, members)
+    base = _scene_skill(model.predict(X)[:, order], true, flux, members)
     rng = np.random.default_rng(seed)
     rows = []
     for j, name in enumerate(names):
@@ -62,7 +64,7 @@ def permutation_importance(estimator, pairs, targets, n_repeats=3, seed=0):
             shuffled = X.copy()
             for idx in members:
                 shuffled[idx, j] = X[rng.permutation(idx), j]
-            drop += base - _scene_skill(estimator.predict(shuffled)[:, order], true, members)
+            drop += base - _scene_skill(model.predict(shuffled)[:, order], true, flux, members)
         drop /= n_repeats
         se = float(np.std(drop, ddof=1) / np.sqrt(drop.size)) if drop.size > 1 else float("nan")
         rows.append({"feature": name, "importance": float(np.mean(drop)), "importance_se": se,

@@ -14,6 +14,7 @@ from ..learn.models import make_estimator
 from ..learn.pairs_table import scene_table, select_scenes, target_matrix
 from .metrics import error_metrics
 from .predictions import model_correction
+from .scored_model import ScoredModel
 
 
 def scene_order(pairs, scenes, seed=0):
@@ -66,17 +67,19 @@ def learning_curve(kind, params, pairs, training_scenes, evaluation, features, t
     -------
     pandas.DataFrame
         Columns n_training_scenes, n_training_samples, target (``"mean"`` for the target
-        average), skill.
+        average), skill (of the W m-2 errors).
     """
     order = scene_order(pairs, training_scenes, seed)
     true = target_matrix(evaluation, targets)
+    flux = evaluation["incident_flux"].values
     rows = []
     for size in tqdm(subset_sizes(len(order), points), desc="learning curve", unit="fit",
                      disable=True if quiet else None, leave=False):
         subset = select_scenes(pairs, order[:size])
         model = make_estimator(kind, params).fit_pairs(subset, features, targets)
-        correction, _ = model_correction(model, evaluation, targets, consistency)
-        skills = [error_metrics(correction[:, m], true[:, m])["skill"] for m in range(len(targets))]
+        correction, _ = model_correction(ScoredModel.from_estimator(kind, kind, model), evaluation, targets,
+                                         consistency)
+        skills = [error_metrics(correction[:, m], true[:, m], scale=flux)["skill"] for m in range(len(targets))]
         for target, skill in zip(list(targets) + ["mean"], skills + [float(np.nanmean(skills))]):
             rows.append({"n_training_scenes": size, "n_training_samples": int(subset.sizes["sample"]),
                          "target": target, "skill": skill})

@@ -29,6 +29,14 @@ METRICS = ("n", "rmse", "mae", "bias", "r2", "skill", "rmse_no_correction", "noi
            "noise_corrected_rmse", "noise_corrected_skill")
 
 
+#: Units of the headline skill: the skill of the errors in W m-2, each sample's error
+#: weighted by its incident flux S0 cos(theta0), so that a column under a high sun, whose
+#: flux errors matter most to the host's energy budget, counts for what it is in W m-2.
+#: The report, ``summary.md``, the model card and the README all quote this skill; the
+#: metric tables also hold the skill of the errors in fractions of the incident flux
+#: (units ``"1"``), which weights every sun alike.
+HEADLINE_UNITS = "W m-2"
+
 #: A reference RMSE below this (normalized units or W m-2) means there is nothing to
 #: correct (for example the direct beam under an overhead sun, where 3D equals the
 #: independent column exactly); skill is then undefined.

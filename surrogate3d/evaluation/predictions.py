@@ -10,7 +10,7 @@ import numpy as np
 
 from ..errors import ValidationError
 from ..learn.consistency import apply_correction
-from ..learn.pairs_table import BASELINES, domain_groups, feature_matrix, target_matrix
+from ..learn.pairs_table import BASELINES, domain_groups, target_matrix
 
 NO_CORRECTION = "no correction"
 _BALANCE_TARGETS = ("surface_downward_flux", "toa_upward_flux", "atmosphere_absorption")
@@ -30,13 +30,61 @@ def reference_predictions(pairs, targets):
     return out
 
 
-def model_correction(estimator, pairs, targets, consistency=True):
+def raw_correction(model, pairs, targets):
+    """A learned model's correction as predicted, and its clear-sky gate, on every sample.
+
+    Parameters
+    ----------
+    model : surrogate3d.evaluation.scored_model.ScoredModel
+    pairs : xarray.Dataset
+    targets : sequence of str
+        Must all be targets of the model.
+
+    Returns
+    -------
+    correction : ndarray (n_sample, n_target) [1]
+        Columns in ``targets`` order.
+    gated : ndarray of bool (n_sample,)
+        Samples the clear-sky gate sets to zero.
+    X : ndarray (n_sample, n_feature)
+        The model's features.
+    """
+    missing = [t for t in targets if t not in model.target_names]
+    if missing:
+        raise ValidationError(f"model {model.name!r} predicts {model.target_names}; it lacks targets {missing}")
+    X = model.features(pairs)
+    raw = model.predict(X)
+    return raw[:, [model.target_names.index(t) for t in targets]], model.clear_sky_mask(X), X
+
+
+def consistent_correction(pairs, targets, correction, clear_sky):
+    """The consistency step of a host model applied to a correction (non-negative fluxes, energy balance).
+
+    Parameters
+    ----------
+    pairs : xarray.Dataset
+        Whole domains (all host columns of a scene at one sun geometry and resolution).
+    targets : sequence of str
+    correction : ndarray (n_sample, n_target) [1]
+    clear_sky : ndarray of bool (n_sample,)
+        Gated samples: they keep a zero correction.
+
+    Returns
+    -------
+    surrogate3d.learn.consistency.CorrectedFluxes
+    """
+    return apply_correction(
+        target_matrix(pairs, targets, "independent_column_flux"), correction, pairs["surface_albedo"].values,
+        domain_groups(pairs), clip_nonnegative=True, energy_balance=all(t in targets for t in _BALANCE_TARGETS),
+        targets=targets, clear_sky=clear_sky)
+
+
+def model_correction(model, pairs, targets, consistency=True):
     """A learned model's correction of every sample, columns in ``targets`` order.
 
     Parameters
     ----------
-    estimator : RidgeCorrection or BoostedCorrection
-        Fitted with :meth:`fit_pairs`.
+    model : surrogate3d.evaluation.scored_model.ScoredModel
     pairs : xarray.Dataset
         Evaluation samples; whole domains (all host columns of a scene at one sun
         geometry and resolution) for the energy balance to be meaningful.
@@ -53,16 +101,8 @@ def model_correction(estimator, pairs, targets, consistency=True):
     outcome : CorrectedFluxes or None
         Clipping and balance counts (None without ``consistency``).
     """
-    model_targets = list(estimator.target_names_)
-    missing = [t for t in targets if t not in model_targets]
-    if missing:
-        raise ValidationError(f"model predicts {model_targets}; it lacks targets {missing}")
-    raw = estimator.predict_pairs(pairs)
-    correction = raw[:, [model_targets.index(t) for t in targets]]
+    correction, gated, _ = raw_correction(model, pairs, targets)
     if not consistency:
         return correction, None
-    outcome = apply_correction(
-        target_matrix(pairs, targets, "independent_column_flux"), correction, pairs["surface_albedo"].values,
-        domain_groups(pairs), clip_nonnegative=True, energy_balance=all(t in targets for t in _BALANCE_TARGETS),
-        targets=targets, clear_sky=estimator.clear_sky_mask(feature_matrix(pairs, estimator.feature_names_)))
+    outcome = consistent_correction(pairs, targets, correction, gated)
     return outcome.correction, outcome

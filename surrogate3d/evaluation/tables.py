@@ -6,19 +6,23 @@ import numbers
 
 import pandas as pd
 
-#: Columns of the headline table: (units of the metric rows, metric) -> column title.
+from .metrics import HEADLINE_UNITS
+
+#: Columns of the headline table: (units of the metric rows, metric) -> column title.  The
+#: skills, R2 and errors are of the W m-2 errors (the headline skill); "skill of fractions"
+#: and "RMSE [1]" are of the errors in fractions of the incident flux.
 HEADLINE = {
-    ("W m-2", "n"): "n",
-    ("1", "skill"): "skill",
-    ("1", "noise_floor_skill"): "noise floor",
-    ("1", "noise_corrected_skill"): "noise-corrected skill",
-    ("W m-2", "rmse"): "RMSE [W m-2]",
-    ("W m-2", "mae"): "MAE [W m-2]",
-    ("W m-2", "bias"): "bias [W m-2]",
-    ("W m-2", "noise_corrected_rmse"): "noise-corrected RMSE [W m-2]",
-    ("W m-2", "skill"): "skill in W m-2",
+    (HEADLINE_UNITS, "n"): "n",
+    (HEADLINE_UNITS, "skill"): "skill",
+    (HEADLINE_UNITS, "noise_floor_skill"): "noise floor",
+    (HEADLINE_UNITS, "noise_corrected_skill"): "noise-corrected skill",
+    (HEADLINE_UNITS, "rmse"): "RMSE [W m-2]",
+    (HEADLINE_UNITS, "mae"): "MAE [W m-2]",
+    (HEADLINE_UNITS, "bias"): "bias [W m-2]",
+    (HEADLINE_UNITS, "noise_corrected_rmse"): "noise-corrected RMSE [W m-2]",
+    (HEADLINE_UNITS, "r2"): "R2",
+    ("1", "skill"): "skill of fractions",
     ("1", "rmse"): "RMSE [1]",
-    ("1", "r2"): "R2",
 }
 
 
@@ -42,7 +46,7 @@ def headline_table(table, evaluation_set, breakdown="all", group="all"):
     return pd.DataFrame(out)
 
 
-def breakdown_pivot(table, evaluation_set, breakdown, metric="skill", units="1"):
+def breakdown_pivot(table, evaluation_set, breakdown, metric="skill", units=HEADLINE_UNITS):
     """Rows (target, group), columns predictor (plus n), values ``metric``."""
     rows = table[(table["evaluation_set"] == evaluation_set) & (table["breakdown"] == breakdown)
                  & (table["units"] == units)]

@@ -23,11 +23,13 @@ from .._atomic import atomic_path, write_text_atomic
 from ..archive import open_dataset
 from ..archive.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
+from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.recipe import FeatureRecipe
-from ..runtime.document import (ARRAYS, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, check_document,
+from ..runtime import envelope as _envelope
+from ..runtime.document import (ARRAYS, ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, check_document,
                                 document_from_json, document_to_json)
-from .flatten import clear_sky_gate, flatten
+from .flatten import clear_sky_gate, flatten, training_envelope
 
 #: Suffixes of the two files of one model.
 NETCDF_SUFFIX = ".coefficients.nc"
@@ -118,6 +120,9 @@ def build_document(trained, report_dir=None):
         "provenance": provenance,
         "skill": None if report_dir is None else skill_table(report_dir, trained.name),
     }
+    envelope = training_envelope(trained.estimator)
+    if envelope is not None:
+        document[ENVELOPE_FIELD] = envelope
     check_document(document, f"model {trained.name!r}")
     return document
 
@@ -132,15 +137,16 @@ def _cell(text):
 
 
 def skill_table(report_dir, model_name):
-    """The rows of a report's ``metrics.csv`` that score ``model_name``.
+    """The rows of a report's ``metrics.csv`` that score ``model_name``, in the headline units (W m-2).
 
     Parameters
     ----------
     report_dir : str or Path
         Written by ``surrogate3d evaluate``.
     model_name : str
-        Predictor name; its regime-transfer rows (``"<name> (trained without ...)"``)
-        are kept too.
+        Predictor name; its rows trained without the scored family
+        (``"<name> (trained without ...)"``: the left-out families, or the held-out regime
+        of older reports) are kept too.
 
     Returns
     -------
@@ -164,8 +170,10 @@ def skill_table(report_dir, model_name):
         raise FormatError(f"{str(path)!r} has rows of another length than its header")
     keep = [i for i, column in enumerate(header) if column not in _CONSTANT_COLUMNS]
     predictor = header.index("predictor")
-    rows = [row for row in table[1:]
-            if row[predictor] == model_name or row[predictor].startswith(f"{model_name} (trained without ")]
+    # One skill everywhere (the W m-2 errors); the fractions' rows stay in metrics.csv.
+    units = header.index("units")
+    rows = [row for row in table[1:] if row[units] == HEADLINE_UNITS
+            and (row[predictor] == model_name or row[predictor].startswith(f"{model_name} (trained without "))]
     if not rows:
         found = sorted({row[predictor] for row in table[1:]})
         raise ValidationError(f"{str(path)!r} has no rows of model {model_name!r}; its predictors are {found}")
@@ -178,8 +186,9 @@ def document_to_dataset(document):
     """The NetCDF form (an xarray Dataset) of a document.
 
     Feature and target names are the coordinates ``feature`` and ``target``; every
-    model array is a variable ``<kind>_<name>``; the other fields (the clear-sky gate
-    included) are JSON text in global attributes of the same names.
+    model array is a variable ``<kind>_<name>``, every array of the training envelope a
+    variable ``envelope_<name>``; the other fields (the clear-sky gate and the envelope's
+    numbers included) are JSON text in global attributes of the same names.
     """
     kind = document["model"]["kind"]
     ds = xr.Dataset(coords={"feature": list(document["features"]["names"]), "target": list(document["targets"]["names"])})
@@ -194,6 +203,12 @@ def document_to_dataset(document):
     for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD):
         if key in document:
             ds.attrs[key] = json.dumps(document[key], allow_nan=False)
+    if ENVELOPE_FIELD in document:
+        field = document[ENVELOPE_FIELD]
+        for name, dims in _envelope.ARRAYS.items():
+            ds[f"envelope_{name}"] = (dims, np.asarray(field[name]))
+            ds[f"envelope_{name}"].encoding = {"_FillValue": None}
+        ds.attrs[ENVELOPE_FIELD] = json.dumps({name: field[name] for name in _envelope.SCALARS}, allow_nan=False)
     return ds
 
 
@@ -204,9 +219,9 @@ def dataset_to_document(ds, source):
         raise FormatError(f"{source!r} is not a surrogate3d coefficient file: attribute format is "
                           f"{attrs.get('format')!r}; expected {FORMAT_NAME!r}")
     content = {"format": attrs["format"], "format_version": attrs.get("format_version")}
-    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD):
+    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD, ENVELOPE_FIELD):
         if key not in attrs:
-            if key == GATE_FIELD:   # optional: files of format 1.0 have no gate
+            if key in (GATE_FIELD, ENVELOPE_FIELD):   # optional: older files have neither
                 continue
             raise FormatError(f"coefficient file {source!r} lacks attribute {key!r}")
         try:
@@ -227,6 +242,13 @@ def dataset_to_document(ds, source):
     if missing:
         raise FormatError(f"coefficient file {source!r} lacks variables {missing}")
     content[kind] = {name: np.asarray(ds[f"{kind}_{name}"].values) for name in ARRAYS[kind]}
+    if ENVELOPE_FIELD in content:
+        missing = [f"envelope_{name}" for name in _envelope.ARRAYS if f"envelope_{name}" not in ds]
+        if missing or not isinstance(content[ENVELOPE_FIELD], dict):
+            raise FormatError(f"coefficient file {source!r}: attribute {ENVELOPE_FIELD} needs a JSON object and "
+                              f"the variables envelope_*; lacks {missing}")
+        content[ENVELOPE_FIELD].update({name: np.asarray(ds[f"envelope_{name}"].values)
+                                        for name in _envelope.ARRAYS})
     check_document(content, source)
     return content
 

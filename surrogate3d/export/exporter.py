@@ -82,7 +82,7 @@ def export_model(trained, out_dir, report_dir=None, fortran=False, pairs_path=No
     paths = {"netcdf": netcdf, "json": twin}
     if fortran:
         features = sample_features(trained, pairs_path, n_sample_columns)
-        corrections = CorrectionModel.from_document(document, str(twin)).predict(features)
+        corrections = CorrectionModel.from_document(document, str(twin)).predict(features, check_envelope=False)
         paths.update(write_fortran(document, Path(out_dir) / FORTRAN_DIR, features, corrections))
     return paths
 
@@ -96,8 +96,7 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
     model_dir : str or Path
     out_dir : str or Path
     model : str, optional
-        Export only this model; default every model of the run (not the
-        regime-transfer models).
+        Export only this model; default every model of the run.
     report_dir, fortran, pairs_path, n_sample_columns
         As for :func:`export_model`.
 

@@ -134,6 +134,19 @@ def clear_sky_gate(estimator):
             "tolerance": float(getattr(estimator, "clear_sky_tolerance_", 0.0))}
 
 
+def training_envelope(estimator):
+    """The ``training_envelope`` field of a coefficient file from a fitted estimator.
+
+    Returns
+    -------
+    dict or None
+        :meth:`surrogate3d.runtime.envelope.TrainingEnvelope.to_dict` of the estimator's
+        ``envelope_``; None for an estimator fitted before envelopes existed.
+    """
+    envelope = getattr(estimator, "envelope_", None)
+    return None if envelope is None else envelope.to_dict()
+
+
 def flatten(estimator):
     """``(kind, arrays)`` of a fitted RidgeCorrection or BoostedCorrection."""
     if isinstance(estimator, RidgeCorrection):

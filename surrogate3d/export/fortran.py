@@ -9,14 +9,17 @@ characters), :func:`write_fortran` writes into a directory:
     data file), and the pure procedures ``NAME_correct_column`` (one column's features
     to its corrections) and ``NAME_correct_columns`` (many columns), which apply the
     model's clear-sky gate (zero correction where every gate feature is within the
-    tolerance of 0).  Standard Fortran 2008, no dependencies but the intrinsic modules
-    ``iso_fortran_env`` and ``ieee_arithmetic``.
+    tolerance of 0), and ``NAME_check_column``, which flags a column outside the training
+    envelope (``NAME_correct_columns`` flags and counts them on request).  Standard
+    Fortran 2008, no dependencies but the intrinsic modules ``iso_fortran_env`` and
+    ``ieee_arithmetic``.
 ``NAME_correction_driver.f90``
     Example program: reads sample features from a text file, prints the corrections
-    (or, given a repeat count, the columns per second).
+    (or, given ``envelope``, each column's envelope flag and distance; given a repeat
+    count, the columns per second).
 ``NAME.coefficients.txt``
-    The coefficients and the clear-sky gate as plain text (every number in shortest
-    round-trip decimal form, so the doubles read back exactly).
+    The coefficients, the clear-sky gate and the training envelope as plain text (every
+    number in shortest round-trip decimal form, so the doubles read back exactly).
 ``NAME_sample_features.txt``, ``NAME_sample_corrections.txt``
     Feature vectors of training columns and the corrections the Python runtime gives
     for them, to check a build against.
@@ -36,7 +39,8 @@ import numpy as np
 
 from .._atomic import write_text_atomic
 from ..errors import ValidationError
-from ..runtime.document import FORMAT_NAME, FORMAT_VERSION, clear_sky_gate
+from ..runtime.document import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate
+from ..runtime.ridge import NEAR_CONSTANT
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -72,8 +76,11 @@ def data_file_text(document):
     arrays = document[kind]
     features, targets = document["features"]["names"], document["targets"]["names"]
     gate, tolerance = clear_sky_gate(document)
+    envelope = document.get(ENVELOPE_FIELD)
+    n_components = 0 if envelope is None else envelope["components"].shape[0]
     lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"kind {kind}", f"model {document['model']['name']}",
-             f"n_features {len(features)}", f"n_targets {len(targets)}", f"n_clear_sky_features {len(gate)}"]
+             f"n_features {len(features)}", f"n_targets {len(targets)}", f"n_clear_sky_features {len(gate)}",
+             f"n_envelope_components {n_components}"]
     if kind == "ridge":
         lines.append(f"n_pairs {arrays['interaction_pairs'].shape[0]}")
         order = ("feature_mean", "feature_scale", "interaction_pairs", "coef", "intercept")
@@ -87,6 +94,10 @@ def data_file_text(document):
         lines.append(name)
         lines += _lines(arrays[name], integer=arrays[name].dtype.kind == "i")
     lines += ["clear_sky_features", *_lines(gate, integer=True), "clear_sky_tolerance", _number(tolerance)]
+    if envelope is not None:
+        for name in _ENVELOPE_SECTIONS:
+            lines.append(f"envelope_{name}")
+            lines += _lines(envelope[name])
     return "\n".join(lines) + "\n"
 
 
@@ -257,39 +268,94 @@ _COMMON_READERS = """\
 """
 
 
-#: Components of the coefficient type that hold the clear-sky gate.
+#: Sections of the training envelope in the data file, in order (after the clear-sky gate).
+_ENVELOPE_SECTIONS = ("feature_min", "feature_max", "center", "scale", "components", "component_variance",
+                      "residual_variance", "distance_threshold")
+
+#: Components of the coefficient type that hold the clear-sky gate and the training envelope.
 _GATE_COMPONENTS = """\
     integer :: n_clear_sky = 0                             ! clear-sky gate: no gate when 0
     integer(int32), allocatable :: clear_sky_features(:)   ! (n_clear_sky), 1-based feature indices
-    real(real64) :: clear_sky_tolerance = 0.0_real64"""
+    real(real64) :: clear_sky_tolerance = 0.0_real64
+    integer :: n_envelope = 0                              ! training envelope: none when 0
+    real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
+    real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
+    real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
+    real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64"""
 
 #: Start of the pure column procedures: zero correction where the clear-sky gate holds.
 _GATE_TEST = """\
-    ! All gate features (near) zero: a clear column far from cloud, which has no 3D correction.
-    ! The loop stops at the first feature that is not zero (NaN compares false: not zero).
-    do g = 1, model%n_clear_sky
-      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
-    end do
-    if (model%n_clear_sky > 0 .and. g > model%n_clear_sky) then
+    if (clear_sky(model, features)) then
       corrections = 0.0_real64
       return
     end if"""
 
 
 def _batched_procedure(prefix):
-    """The many-columns procedure, the same for every model kind."""
+    """The many-columns procedure, the envelope test and the gate test, the same for every model kind."""
     return f"""\
-  !> Corrections of many columns: features(:, i) -> corrections(:, i).
-  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections)
+  !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
+  !> also which columns lie outside the training envelope and how many (see {prefix}_check_column).
+  pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections, outside, n_outside)
     type({prefix}_coefficients), intent(in) :: model
     integer, intent(in) :: n_columns
     real(real64), intent(in) :: features({prefix}_n_features, n_columns)
     real(real64), intent(out) :: corrections({prefix}_n_targets, n_columns)
+    logical, intent(out), optional :: outside(n_columns)
+    integer, intent(out), optional :: n_outside
+    logical :: flag
+    real(real64) :: distance
     integer :: i
+    if (present(n_outside)) n_outside = 0
     do i = 1, n_columns
       call {prefix}_correct_column(model, features(:, i), corrections(:, i))
+      if (present(outside) .or. present(n_outside)) then
+        call {prefix}_check_column(model, features(:, i), flag, distance)
+        if (present(outside)) outside(i) = flag
+        if (present(n_outside) .and. flag) n_outside = n_outside + 1
+      end if
     end do
-  end subroutine {prefix}_correct_columns"""
+  end subroutine {prefix}_correct_columns
+
+  !> Whether one column lies outside the training envelope (a feature outside its training range, or a
+  !> Mahalanobis distance from the training columns above the stored threshold; never where the clear-sky
+  !> gate holds; a NaN feature is outside), and that distance. Without an envelope in the data file
+  !> (n_envelope_components 0) nothing is outside and the distance is 0.
+  pure subroutine {prefix}_check_column(model, features, outside, distance)
+    type({prefix}_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features({prefix}_n_features)
+    logical, intent(out) :: outside
+    real(real64), intent(out) :: distance
+    real(real64) :: z({prefix}_n_features), residual({prefix}_n_features), projection
+    integer :: j
+    outside = .false.
+    distance = 0.0_real64
+    if (model%n_envelope == 0) return
+    z = (features - model%envelope_center) / model%envelope_scale
+    residual = z
+    do j = 1, model%n_envelope
+      projection = dot_product(model%envelope_components(:, j), z)
+      residual = residual - projection * model%envelope_components(:, j)
+      distance = distance + projection * projection / model%envelope_variance(j)
+    end do
+    distance = sqrt(distance + sum(residual * residual) / model%envelope_residual_variance)
+    if (clear_sky(model, features)) return
+    ! Written as "not inside" so that NaN, which compares false, is outside.
+    outside = .not. (all(features >= model%envelope_min .and. features <= model%envelope_max) .and. &
+                     distance <= model%envelope_threshold)
+  end subroutine {prefix}_check_column
+
+  !> All clear-sky gate features (near) zero: a clear column far from cloud, which has no 3D correction.
+  !> The loop stops at the first feature that is not zero (NaN compares false: not zero).
+  pure logical function clear_sky(model, features)
+    type({prefix}_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features({prefix}_n_features)
+    integer :: g
+    do g = 1, model%n_clear_sky
+      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
+    end do
+    clear_sky = model%n_clear_sky > 0 .and. g > model%n_clear_sky
+  end function clear_sky"""
 
 
 def _gate_reader(prefix):
@@ -307,6 +373,32 @@ def _gate_reader(prefix):
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
+      end if
+    end if
+    if (status == 0 .and. model%n_envelope > 0) then
+      allocate (model%envelope_min({prefix}_n_features), model%envelope_max({prefix}_n_features))
+      allocate (model%envelope_center({prefix}_n_features), model%envelope_scale({prefix}_n_features))
+      allocate (envelope_list({prefix}_n_features * model%n_envelope), model%envelope_variance(model%n_envelope))
+      call read_reals(unit, 'envelope_feature_min', model%envelope_min, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_feature_max', model%envelope_max, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_center', model%envelope_center, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_scale', model%envelope_scale, status, message)
+      ! The file lists the components one after the other: one column each here.
+      if (status == 0) call read_reals(unit, 'envelope_components', envelope_list, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_component_variance', model%envelope_variance, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_residual_variance', tolerance, status, message)
+      model%envelope_residual_variance = tolerance(1)
+      if (status == 0) call read_reals(unit, 'envelope_distance_threshold', tolerance, status, message)
+      model%envelope_threshold = tolerance(1)
+      if (status == 0) then
+        model%envelope_components = reshape(envelope_list, [{prefix}_n_features, model%n_envelope])
+        if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
+            .or. .not. (model%envelope_residual_variance > 0.0_real64) .or. &
+            .not. (model%envelope_threshold >= 0.0_real64) .or. any(model%envelope_max < model%envelope_min)) then
+          status = 1
+          message = 'coefficient file: the training envelope has a non-positive scale or variance, a negative '// &
+              'threshold or a maximum below its minimum'
+        end if
       end if
     end if"""
 
@@ -337,7 +429,9 @@ module {prefix}_correction
 
 
 def _ridge_module(prefix, document):
-    return _module_header(prefix, document) + f"""
+    return _module_header(prefix, document) + f"""\
+  real(real64), parameter :: near_constant_fraction = {_number(NEAR_CONSTANT)}_real64
+
   !> Standardization, interaction pairs (1-based feature indices) and coefficients.
   type, public :: {prefix}_coefficients
     integer :: n_pairs = 0
@@ -345,10 +439,11 @@ def _ridge_module(prefix, document):
     integer(int32), allocatable :: pairs(:, :)          ! (2, n_pairs)
     real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
     real(real64), allocatable :: intercept(:)
+    integer(int32), allocatable :: near_constant(:)     ! features constant up to round-off (see the reader)
 {_GATE_COMPONENTS}
   end type {prefix}_coefficients
 
-  public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns
+  public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns, {prefix}_check_column
 
 contains
 
@@ -359,9 +454,14 @@ contains
     real(real64), intent(in) :: features({prefix}_n_features)
     real(real64), intent(out) :: corrections({prefix}_n_targets)
     real(real64) :: z({prefix}_n_features)
-    integer :: k, p, g
+    integer :: k, p
 {_GATE_TEST}
     z = (features - model%feature_mean) / model%feature_scale
+    ! Only values training saw for a feature that was constant in it: a file's round-off scale
+    ! must not turn another value into a term of order 1e13.
+    do k = 1, size(model%near_constant)
+      z(model%near_constant(k)) = max(-1.0_real64, min(1.0_real64, z(model%near_constant(k))))
+    end do
     ! All targets advance together: independent sums, so additions overlap in the CPU.
     corrections = model%intercept
     do k = 1, {prefix}_n_features
@@ -383,6 +483,7 @@ contains
     real(real64), allocatable :: coef_list(:)
     integer(int32), allocatable :: pair_list(:)
     real(real64) :: tolerance(1)
+    real(real64), allocatable :: envelope_list(:)
     integer :: unit, p, n_terms
     status = 0
     message = ''
@@ -391,10 +492,12 @@ contains
     call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
+    call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
     call read_count(unit, 'n_pairs', model%n_pairs, status, message)
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%feature_mean({prefix}_n_features), model%feature_scale({prefix}_n_features))
+      allocate (model%near_constant(0))
       allocate (pair_list(2 * model%n_pairs), model%intercept({prefix}_n_targets))
       n_terms = {prefix}_n_features + model%n_pairs
       allocate (coef_list(n_terms * {prefix}_n_targets))
@@ -423,6 +526,10 @@ contains
         status = 1
         message = 'coefficient file: feature_scale must be positive'
       end if
+      ! A scale at most near_constant_fraction of the mean's magnitude is the round-off spread of a
+      ! feature constant in training (written before format 1.2): its standardized value is clipped.
+      model%near_constant = pack([(p, p = 1, {prefix}_n_features)], &
+          model%feature_scale <= near_constant_fraction * abs(model%feature_mean))
     end if
     if (unit /= -1) close (unit)
   end subroutine {prefix}_read_coefficients
@@ -446,7 +553,7 @@ def _boosted_module(prefix, document):
 {_GATE_COMPONENTS}
   end type {prefix}_coefficients
 
-  public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns
+  public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns, {prefix}_check_column
 
 contains
 
@@ -457,7 +564,7 @@ contains
     type({prefix}_coefficients), intent(in) :: model
     real(real64), intent(in) :: features({prefix}_n_features)
     real(real64), intent(out) :: corrections({prefix}_n_targets)
-    integer :: t, node, m, g
+    integer :: t, node, m
     real(real64) :: x
     logical :: go_left
 {_GATE_TEST}
@@ -486,6 +593,7 @@ contains
     integer(int32), allocatable :: offset(:), threshold_index(:), missing(:)
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
     real(real64) :: tolerance(1)
+    real(real64), allocatable :: envelope_list(:)
     integer :: unit, n_leaves, n_thresholds, t, node, first, last, leaf
     status = 0
     message = ''
@@ -495,6 +603,7 @@ contains
     call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
+    call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
     call read_count(unit, 'n_trees', model%n_trees, status, message)
     call read_count(unit, 'n_nodes', model%n_nodes, status, message)
     call read_count(unit, 'n_leaves', n_leaves, status, message)
@@ -579,6 +688,9 @@ def _driver(prefix):
     return f"""\
 ! Example driver generated by surrogate3d export: reads sample features, prints corrections.
 !   {prefix}_correction_driver COEFFICIENTS.txt FEATURES.txt          one line of corrections per column
+!   {prefix}_correction_driver COEFFICIENTS.txt FEATURES.txt envelope per column: 1 if outside the training
+!                                                                    envelope (else 0) and the distance;
+!                                                                    then "n_outside N"
 !   {prefix}_correction_driver COEFFICIENTS.txt FEATURES.txt REPEATS  columns per second over REPEATS passes
 ! FEATURES.txt: a line "n_columns n_features", then one line of features per column.
 program {prefix}_correction_driver
@@ -589,7 +701,8 @@ program {prefix}_correction_driver
   character(len=4096) :: coefficient_path, features_path, argument
   character(len=1024) :: message
   real(real64), allocatable :: features(:, :), corrections(:, :)
-  real(real64) :: seconds, checksum
+  real(real64) :: seconds, checksum, distance
+  logical :: envelope_mode, outside
   integer(int64) :: start, finish, rate
   integer :: status, unit, ios, n_columns, n_features, repeats, i
 
@@ -600,8 +713,12 @@ program {prefix}_correction_driver
   call get_command_argument(1, coefficient_path)
   call get_command_argument(2, features_path)
   repeats = 0
+  envelope_mode = .false.
   if (command_argument_count() >= 3) then
     call get_command_argument(3, argument)
+    envelope_mode = trim(argument) == 'envelope'
+  end if
+  if (command_argument_count() >= 3 .and. .not. envelope_mode) then
     read (argument, *, iostat=ios) repeats
     if (ios /= 0 .or. repeats < 1) then
       write (error_unit, '(a)') 'REPEATS must be a positive integer; got ' // trim(argument)
@@ -633,7 +750,14 @@ program {prefix}_correction_driver
     error stop 1
   end if
 
-  if (repeats == 0) then
+  if (envelope_mode) then
+    call {prefix}_correct_columns(model, n_columns, features, corrections, n_outside=repeats)
+    do i = 1, n_columns
+      call {prefix}_check_column(model, features(:, i), outside, distance)
+      write (output_unit, '(i0, 1x, es25.17e3)') merge(1, 0, outside), distance
+    end do
+    write (output_unit, '(a, i0)') 'n_outside ', repeats
+  else if (repeats == 0) then
     call {prefix}_correct_columns(model, n_columns, features, corrections)
     do i = 1, n_columns
       write (output_unit, '(*(es25.17e3, :, 1x))') corrections(:, i)

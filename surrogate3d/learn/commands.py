@@ -24,7 +24,6 @@ def run(args):
     for name, cv in record["cross_validation"].items():
         print(f"  {name}: cross-validated skill {cv['best_score']:.3f} ({cv['folds']} scene-grouped folds), "
               f"parameters {cv['best_params']}")
-    if record["transfer_models"]:
-        print(f"  regime transfer: the same models trained without {split['held_out_regime']!r} in "
-              f"{args.out}/transfer/")
+    if split["left_out_families"]:
+        print(f"  'surrogate3d evaluate' leaves out in turn: {', '.join(split['left_out_families'])}")
     print(f"wrote {args.out}")

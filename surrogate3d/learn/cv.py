@@ -26,28 +26,70 @@ class SceneSplit:
     ----------
     training_scenes, held_out_scenes : list of str
         Disjoint; held-out scenes are whole scenes of unseen seeds, chosen per regime.
-    held_out_regime : str or None
-        Regime of the regime-transfer test.
-    transfer_training_scenes : list of str
-        Training scenes outside ``held_out_regime`` (empty without one).
-    transfer_test_scenes : list of str
-        Every scene of ``held_out_regime`` (empty without one).
     """
 
     training_scenes: list
     held_out_scenes: list
-    held_out_regime: str | None = None
-    transfer_training_scenes: tuple = ()
-    transfer_test_scenes: tuple = ()
 
     def as_dict(self):
-        return {"training_scenes": list(self.training_scenes), "held_out_scenes": list(self.held_out_scenes),
-                "held_out_regime": self.held_out_regime,
-                "transfer_training_scenes": list(self.transfer_training_scenes),
-                "transfer_test_scenes": list(self.transfer_test_scenes)}
+        return {"training_scenes": list(self.training_scenes), "held_out_scenes": list(self.held_out_scenes)}
 
 
-def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
+@dataclass(frozen=True)
+class FamilySplit:
+    """The scenes of one leave-one-family-out fit.
+
+    Attributes
+    ----------
+    family : str
+        The regime left out.
+    training_scenes : list of str
+        The run's training scenes outside ``family``.
+    test_scenes : list of str
+        Every scene of ``family`` (training and held-out scenes alike).
+    """
+
+    family: str
+    training_scenes: list
+    test_scenes: list
+
+
+def family_splits(pairs, training_scenes, families):
+    """Leave-one-family-out splits: for each family, training outside it, testing on all of it.
+
+    Parameters
+    ----------
+    pairs : xarray.Dataset
+        A pairs table holding the training scenes and every scene of the families.
+    training_scenes : sequence of str
+        Scenes the models of the run were trained on.
+    families : sequence of str
+        Regimes to leave out in turn.
+
+    Returns
+    -------
+    list of FamilySplit
+        In the order of ``families``.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        A family that is not a regime of ``pairs``, or that leaves no training scene.
+    """
+    table = scene_table(pairs)
+    regimes = sorted({r for r, _ in table.values()})
+    out = []
+    for family in families:
+        if family not in regimes:
+            raise ValidationError(f"left-out family {family!r} is not a regime of the pairs table; it has {regimes}")
+        training = [s for s in training_scenes if table[s][0] != family]
+        if not training:
+            raise ValidationError(f"leaving out family {family!r} leaves no training scene")
+        out.append(FamilySplit(family, training, [s for s in table if table[s][0] == family]))
+    return out
+
+
+def split_scenes(pairs, held_out_fraction, seed=0):
     """Hold out whole scenes by seed, separately in every regime.
 
     In each regime ``round(held_out_fraction * n_seeds)`` seeds are drawn (at least one
@@ -62,8 +104,6 @@ def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
         In [0, 1).
     seed : int
         Seed of the draw; regimes are visited in sorted order, so the split is reproducible.
-    held_out_regime : str, optional
-        Also list the scenes for the regime-transfer test.
 
     Returns
     -------
@@ -85,15 +125,7 @@ def split_scenes(pairs, held_out_fraction, seed=0, held_out_regime=None):
     training = [scene for scene in table if scene not in held]
     if not training:
         raise ValidationError("no training scenes left after holding out scenes")
-    transfer_training, transfer_test = (), ()
-    if held_out_regime is not None:
-        transfer_training = tuple(s for s in training if table[s][0] != held_out_regime)
-        transfer_test = tuple(s for s in table if table[s][0] == held_out_regime)
-        if not transfer_training or not transfer_test:
-            raise ValidationError(f"held_out_regime {held_out_regime!r} leaves {len(transfer_training)} training "
-                                  f"and {len(transfer_test)} test scenes for the regime-transfer test")
-    return SceneSplit(training_scenes=training, held_out_scenes=sorted(held), held_out_regime=held_out_regime,
-                      transfer_training_scenes=transfer_training, transfer_test_scenes=transfer_test)
+    return SceneSplit(training_scenes=training, held_out_scenes=sorted(held))
 
 
 def scene_folds(scenes, n_folds):
@@ -127,7 +159,7 @@ def scene_folds(scenes, n_folds):
     return [(train, test) for train, test in folds.split(np.zeros(scenes.size), groups=scenes)]
 
 
-def correction_skill(predicted, true):
+def correction_skill(predicted, true, scale=None):
     """Skill of a correction per target: ``1 - RMSE(predicted - true) / RMSE(0 - true)``.
 
     1 is perfect; 0 is no better than no correction (the independent column).
@@ -135,11 +167,20 @@ def correction_skill(predicted, true):
     Parameters
     ----------
     predicted, true : ndarray (n_sample, n_target)
+        Corrections [1, fractions of the incident flux].
+    scale : ndarray (n_sample,), optional
+        Factor applied to each sample's errors and truth before the RMSEs, the incident
+        flux S0 cos(theta0) [W m-2] for the skill of the W m-2 errors (the skill every
+        report quotes, :data:`surrogate3d.evaluation.metrics.HEADLINE_UNITS`); none: the
+        skill of the fractions.
 
     Returns
     -------
     ndarray (n_target,)
     """
+    if scale is not None:
+        factor = np.asarray(scale, dtype=np.float64).reshape(-1, 1)
+        predicted, true = predicted * factor, true * factor
     error = np.sqrt(np.mean((predicted - true) ** 2, axis=0))
     reference = np.sqrt(np.mean(true**2, axis=0))
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -154,7 +195,8 @@ class SearchResult:
     ----------
     best_params : dict
     best_score : float
-        Mean over folds of the target-averaged skill.
+        Mean over folds of the target-averaged skill (of the W m-2 errors when the search
+        had the incident flux).
     folds : int
         Folds actually used.
     scores : list of dict
@@ -172,12 +214,14 @@ class SearchResult:
                 "scores": self.scores}
 
 
-def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search", feature_names=None):
+def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label="search", feature_names=None,
+                incident_flux=None):
     """Pick hyperparameters by scene-grouped K-fold cross-validation.
 
     Every candidate is fitted on each fold's training scenes and scored on its test
     scenes by the skill of :func:`correction_skill`, averaged over targets; the best mean
-    over folds wins (the first candidate on ties).
+    over folds wins (the first candidate on ties).  With ``incident_flux`` the skill is
+    that of the W m-2 errors, the skill every report quotes.
 
     Parameters
     ----------
@@ -197,6 +241,8 @@ def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label
     feature_names : list of str, optional
         Names of the columns of ``X``, passed to every ``fit`` (models that name
         features in their parameters need them).
+    incident_flux : ndarray (n_sample,), optional
+        S0 cos(theta0) of every sample [W m-2]; none: the skill of the fractions.
 
     Returns
     -------
@@ -210,8 +256,9 @@ def grid_search(estimator, candidates, X, Y, scenes, n_folds, quiet=False, label
             fold_skill = []
             for train, test in folds:
                 model = clone(estimator).set_params(**params).fit(X[train], Y[train], feature_names=feature_names)
+                scale = None if incident_flux is None else incident_flux[test]
                 fold_skill.append(float(np.nanmean(correction_skill(model.predict(X[test]).reshape(Y[test].shape),
-                                                                    Y[test]))))
+                                                                    Y[test], scale))))
                 bar.update()
             scores.append({"params": params, "mean_skill": float(np.mean(fold_skill)),
                            "std_skill": float(np.std(fold_skill)), "fold_skill": fold_skill})

@@ -6,7 +6,6 @@ Layout (``docs/methods/models-and-metrics.md``)::
       training.json                 split, recipe, provenance; written last
       <model>/model.json            model card: kind, hyperparameters, targets, features, CV scores
       <model>/estimator.joblib      the fitted estimator
-      transfer/<model>/...          the same, trained without the held-out regime (if any)
 
 ``estimator.joblib`` is a pickle: load model directories only from sources you trust.
 """
@@ -27,11 +26,10 @@ MODEL_FORMAT_VERSION = "1.0"
 MODEL_CARD = "model.json"
 ESTIMATOR_FILE = "estimator.joblib"
 TRAINING_FILE = "training.json"
-TRANSFER_DIR = "transfer"
 
 _CARD_KEYS = ("format_version", "name", "kind", "hyperparameters", "targets", "feature_names", "feature_recipe",
               "cross_validation", "provenance")
-_TRAINING_KEYS = ("format_version", "models", "transfer_models", "split", "provenance")
+_TRAINING_KEYS = ("format_version", "models", "split", "provenance")
 
 
 @dataclass
@@ -66,14 +64,11 @@ class TrainingRun:
     record : dict
         The content of ``training.json``.
     models : dict of str -> TrainedModel
-    transfer_models : dict of str -> TrainedModel
-        Trained without ``record["split"]["held_out_regime"]``; empty without one.
     path : Path
     """
 
     record: dict
     models: dict
-    transfer_models: dict
     path: Path
 
 
@@ -212,6 +207,7 @@ def load_training_run(model_dir):
     missing = [k for k in _TRAINING_KEYS if k not in record]
     if missing:
         raise FormatError(f"training record {str(record_path)!r} lacks keys {missing}")
+    # Directories written before leave-one-family-out evaluation also hold regime-transfer
+    # models (transfer/); evaluate refits them, with the same result, so they are not read.
     models = {name: load_model(model_dir / name) for name in record["models"]}
-    transfer = {name: load_model(model_dir / TRANSFER_DIR / name) for name in record["transfer_models"]}
-    return TrainingRun(record=record, models=models, transfer_models=transfer, path=model_dir)
+    return TrainingRun(record=record, models=models, path=model_dir)

@@ -9,7 +9,9 @@ the feature and target names and predict straight from another table with
 
 Both take an optional clear-sky gate (``clear_sky_features``): samples whose listed
 features are all zero, clear columns far from cloud, get exactly zero correction and
-are left out of the fit.
+are left out of the fit.  Both keep the training envelope of the samples they were
+fitted on (:mod:`surrogate3d.runtime.envelope`), which flags samples a prediction
+would extrapolate to.
 
 The fitted attributes are the contract with the coefficient exporter; they are
 documented in each class and in ``docs/methods/models-and-metrics.md``.
@@ -25,6 +27,8 @@ from sklearn.utils import check_array
 from sklearn.utils.validation import check_is_fitted
 
 from ..errors import ParameterError, ValidationError
+from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
+from ..runtime.ridge import near_constant
 from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
 
 #: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
@@ -192,6 +196,25 @@ class _PairsTableMixin:
         """
         return self._gated(self._check_predict_input(X))
 
+    def envelope_check(self, X):
+        """Which samples lie outside the training envelope (ranges or distance; never gated ones).
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+
+        Returns
+        -------
+        surrogate3d.runtime.envelope.EnvelopeCheck
+            Not ``available`` for an estimator fitted before the envelope existed.
+        """
+        X = self._check_predict_input(X)
+        envelope = getattr(self, "envelope_", None)   # none on estimators pickled before the envelope
+        if envelope is None:
+            return EnvelopeCheck.unavailable(X.shape[0], f"this {type(self).__name__} was fitted before training "
+                                                         "envelopes existed: no column is checked")
+        return envelope.check(X, self._gated(X))
+
     def _gated(self, X):
         # Estimators pickled before the gate existed have no gate attributes: no gate.
         indices = getattr(self, "clear_sky_indices_", [])
@@ -243,7 +266,10 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         y[m]   = intercept_[m] + sum_l coef_[m, l] * t[l]               m = 0 .. n_target-1
 
     ``feature_scale_`` is the population standard deviation (ddof = 0) of the training
-    features, replaced by 1 for a constant feature (whose standardized value is then 0).
+    features, replaced by 1 for a feature constant up to round-off (a standard deviation
+    at most :data:`~surrogate3d.runtime.ridge.NEAR_CONSTANT` times the magnitude of its
+    mean), whose standardized value is then 0 up to round-off in training and its
+    departure from the training mean elsewhere.
     The product terms are products of standardized features, not standardized again.
     The coefficients minimise ``||Y - intercept - T coef^T||^2 + alpha ||coef||^2``, with an
     unpenalised intercept, solved in closed form through the singular value decomposition
@@ -288,6 +314,9 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         Column indices of the gate features (empty without a gate).
     clear_sky_tolerance_ : float
         Largest ``|x|`` of a gate feature counted as zero (:data:`CLEAR_SKY_TOLERANCE`).
+    envelope_ : surrogate3d.runtime.envelope.TrainingEnvelope
+        Ranges and distance threshold of the (ungated) training samples;
+        :meth:`envelope_check` flags samples outside it.
     n_features_in_ : int
     feature_names_ : list of str or None
         The ``feature_names`` given to :meth:`fit` (set by :meth:`fit_pairs`).
@@ -357,9 +386,12 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self._set_names(feature_names, n_feature)
         pairs = self._pairs(n_feature, self.feature_names_)
         X, Y = self._fit_clear_sky_gate(X, Y)
+        self.envelope_ = TrainingEnvelope.fit(X)
         mean = X.mean(axis=0)
         scale = X.std(axis=0)
-        scale[scale == 0.0] = 1.0
+        # Standardizing the round-off spread of a constant feature would turn any other
+        # value of it into a term of order 1e13.
+        scale[near_constant(mean, scale)] = 1.0
         self.feature_mean_, self.feature_scale_, self.interaction_pairs_ = mean, scale, pairs
         T = self._terms(X)
         term_mean, target_mean = T.mean(axis=0), Y.mean(axis=0)
@@ -444,6 +476,9 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         Column indices of the gate features (empty without a gate).
     clear_sky_tolerance_ : float
         Largest ``|x|`` of a gate feature counted as zero (:data:`CLEAR_SKY_TOLERANCE`).
+    envelope_ : surrogate3d.runtime.envelope.TrainingEnvelope
+        Ranges and distance threshold of the (ungated) training samples;
+        :meth:`envelope_check` flags samples outside it.
     n_features_in_ : int
     feature_names_ : list of str or None
         The ``feature_names`` given to :meth:`fit` (set by :meth:`fit_pairs`).
@@ -507,6 +542,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         n_feature = X.shape[1]
         self._set_names(feature_names, n_feature)
         X, Y = self._fit_clear_sky_gate(X, Y)
+        self.envelope_ = TrainingEnvelope.fit(X)
         self.estimators_ = [
             HistGradientBoostingRegressor(
                 loss="squared_error", max_iter=int(self.max_iter), learning_rate=float(self.learning_rate),

@@ -10,8 +10,12 @@ any training starts, and a wrong one is named in the error with the allowed valu
 
     [split]
     held_out_scene_fraction = 0.25         # in [0, 1): share of seeds held out per regime
-    held_out_regime = "stratocumulus"      # optional: also train models without it
+    left_out_families = "all"              # or a list of regimes, or []: the families (regimes)
+                                           # that `evaluate` leaves out of training in turn
     seed = 1                               # which seeds are held out
+
+``held_out_regime = "NAME"``, the spelling of earlier recipes, still reads as
+``left_out_families = ["NAME"]``.
 
     [cross_validation]
     folds = 3                              # >= 2, scene-grouped folds for the search
@@ -30,12 +34,11 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..errors import FormatError, ParameterError, ValidationError
-from .model_directory import TRANSFER_DIR
 from .models import MODEL_KINDS, make_estimator
 from .pairs_table import TARGETS, check_has_features, feature_names
 
 _TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models"}
-_SPLIT_KEYS = {"held_out_scene_fraction", "held_out_regime", "seed"}
+_SPLIT_KEYS = {"held_out_scene_fraction", "left_out_families", "held_out_regime", "seed"}
 _CV_KEYS = {"folds"}
 _MODEL_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*$")
 
@@ -76,7 +79,7 @@ class TrainingRecipe:
     targets: tuple
     features: tuple | None
     held_out_scene_fraction: float
-    held_out_regime: str | None
+    left_out_families: tuple | None
     split_seed: int
     folds: int
     models: tuple
@@ -86,6 +89,17 @@ class TrainingRecipe:
     def feature_list(self, pairs):
         """The recipe's features, or all features of ``pairs`` when the recipe says "all"."""
         return list(self.features) if self.features is not None else feature_names(pairs)
+
+    def family_list(self, pairs):
+        """The families (regimes) to leave out in turn: the recipe's list, or every regime of ``pairs``.
+
+        "all" with a single regime in the table gives an empty list: nothing to train on
+        without it.
+        """
+        if self.left_out_families is not None:
+            return list(self.left_out_families)
+        regimes = sorted({str(r) for r in pairs["regime"].values})
+        return regimes if len(regimes) > 1 else []
 
 
 def read_recipe(path):
@@ -146,9 +160,7 @@ def parse_recipe(text, source="<recipe>"):
     fraction = split.get("held_out_scene_fraction", 0.25)
     if isinstance(fraction, bool) or not isinstance(fraction, (int, float)) or not 0.0 <= fraction < 1.0:
         _fail(source, "split.held_out_scene_fraction", f"must be a number in [0, 1); got {fraction!r}")
-    regime = split.get("held_out_regime")
-    if regime is not None and (not isinstance(regime, str) or not regime):
-        _fail(source, "split.held_out_regime", f"must be a regime name; got {regime!r}")
+    families = _families(source, split)
     split_seed = split.get("seed", 0)
     if isinstance(split_seed, bool) or not isinstance(split_seed, int) or split_seed < 0:
         _fail(source, "split.seed", f"must be an integer >= 0; got {split_seed!r}")
@@ -166,16 +178,34 @@ def parse_recipe(text, source="<recipe>"):
             _fail(source, label, f"must be a string; got {raw[label]!r}")
     return TrainingRecipe(name=raw.get("name", Path(source).stem), description=raw.get("description", ""),
                           targets=tuple(targets), features=None if features is None else tuple(features),
-                          held_out_scene_fraction=float(fraction), held_out_regime=regime,
+                          held_out_scene_fraction=float(fraction), left_out_families=families,
                           split_seed=split_seed, folds=folds, models=specs, text=text, source=source)
+
+
+def _families(source, split):
+    """``split.left_out_families`` (or the older ``held_out_regime``): a tuple of names, or None for all."""
+    if "held_out_regime" in split:
+        if "left_out_families" in split:
+            _fail(source, "[split]", "has both held_out_regime (the older spelling) and left_out_families; keep "
+                                     "left_out_families")
+        regime = split["held_out_regime"]
+        if not isinstance(regime, str) or not regime:
+            _fail(source, "split.held_out_regime", f"must be a regime name; got {regime!r}")
+        return (regime,)
+    families = split.get("left_out_families", "all")
+    if families == "all":
+        return None
+    if not isinstance(families, list) or not all(isinstance(f, str) and f for f in families) \
+            or len(set(families)) != len(families):
+        _fail(source, "split.left_out_families", f'must be "all" or a list of distinct regime names ([] for none); '
+                                                 f"got {families!r}")
+    return tuple(families)
 
 
 def _model_spec(source, name, table):
     where = f"[models.{name}]"
     if not _MODEL_NAME.match(name):
         _fail(source, where, "name must start with a letter or digit and hold only letters, digits, _ and -")
-    if name == TRANSFER_DIR:
-        _fail(source, where, f"name {TRANSFER_DIR!r} is reserved for the regime-transfer models")
     if not isinstance(table, dict):
         _fail(source, where, f"must be a table; got {table!r}")
     kind = table.get("kind")
@@ -203,7 +233,7 @@ def _model_spec(source, name, table):
 
 
 def check_recipe_against_pairs(recipe, pairs):
-    """Check that a pairs table has the recipe's features, targets and held-out regime.
+    """Check that a pairs table has the recipe's features, targets and left-out families.
 
     Raises
     ------
@@ -223,11 +253,12 @@ def check_recipe_against_pairs(recipe, pairs):
     missing = [t for t in recipe.targets if t not in [str(v) for v in pairs["target"].values]]
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing} named by training recipe {recipe.source!r}")
-    if recipe.held_out_regime is not None:
+    if recipe.left_out_families:
         regimes = sorted({str(r) for r in pairs["regime"].values})
-        if recipe.held_out_regime not in regimes:
-            raise ValidationError(f"training recipe {recipe.source!r}: split.held_out_regime "
-                                  f"{recipe.held_out_regime!r} is not a regime of the pairs table; it has {regimes}")
+        unknown = [f for f in recipe.left_out_families if f not in regimes]
+        if unknown:
+            raise ValidationError(f"training recipe {recipe.source!r}: split.left_out_families names "
+                                  f"{unknown[0]!r}, which is not a regime of the pairs table; it has {regimes}")
         if len(regimes) < 2:
-            raise ValidationError(f"training recipe {recipe.source!r}: split.held_out_regime needs at least two "
+            raise ValidationError(f"training recipe {recipe.source!r}: split.left_out_families needs at least two "
                                   f"regimes in the pairs table; it has {regimes}")

@@ -2,9 +2,9 @@
 
 For each model of the recipe: a scene-grouped K-fold search over its hyperparameter
 grid on the training scenes, then a refit of the best candidate on all training scenes.
-With a held-out regime, each model is refitted once more (same hyperparameters) on the
-training scenes outside that regime, for the regime-transfer test.  The output is a
-model directory (see :mod:`surrogate3d.learn.model_directory`).
+The record names the families (regimes) that ``surrogate3d evaluate`` leaves out of
+training in turn (:mod:`surrogate3d.evaluation.family_transfer`).  The output is a model
+directory (see :mod:`surrogate3d.learn.model_directory`).
 """
 
 from pathlib import Path
@@ -15,8 +15,7 @@ from tqdm import tqdm
 
 from .. import __version__
 from .cv import grid_search, split_scenes
-from .model_directory import (MODEL_FORMAT_VERSION, TRANSFER_DIR, file_sha256, write_model,
-                              write_training_record)
+from .model_directory import MODEL_FORMAT_VERSION, file_sha256, write_model, write_training_record
 from .models import make_estimator
 from .pairs_table import feature_matrix, feature_recipe, read_pairs_table, scene_labels, select_scenes, target_matrix
 from .recipe import check_recipe_against_pairs, read_recipe
@@ -56,7 +55,7 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
     pairs = read_pairs_table(pairs_path)
     check_recipe_against_pairs(recipe, pairs)
     features, targets = recipe.feature_list(pairs), list(recipe.targets)
-    split = split_scenes(pairs, recipe.held_out_scene_fraction, recipe.split_seed, recipe.held_out_regime)
+    split = split_scenes(pairs, recipe.held_out_scene_fraction, recipe.split_seed)
     provenance = {
         "pairs_file": str(pairs_path.resolve()),
         "pairs_sha256": file_sha256(pairs_path),
@@ -73,11 +72,11 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
     training = select_scenes(pairs, split.training_scenes)
     X, Y = feature_matrix(training, features, "the training recipe"), target_matrix(training, targets)
     scenes = scene_labels(training)
-    transfer = select_scenes(pairs, split.transfer_training_scenes) if split.held_out_regime else None
     searches = {}
     for spec in tqdm(recipe.models, desc="train", unit="model", disable=True if quiet else None):
         search = grid_search(make_estimator(spec.kind), spec.candidates(), X, Y, scenes, recipe.folds, quiet=quiet,
-                             label=f"search {spec.name}", feature_names=features)
+                             label=f"search {spec.name}", feature_names=features,
+                             incident_flux=np.asarray(training["incident_flux"].values, dtype=np.float64))
         searches[spec.name] = search
         estimator = make_estimator(spec.kind, search.best_params).fit_pairs(training, features, targets)
         card = dict(format_version=MODEL_FORMAT_VERSION, name=spec.name, kind=spec.kind,
@@ -86,24 +85,16 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
                     provenance={**provenance, "training_scenes": list(split.training_scenes),
                                 "held_out_scenes": list(split.held_out_scenes), "excluded_regime": None})
         write_model(out_dir / spec.name, estimator, card)
-        if transfer is not None:
-            estimator = make_estimator(spec.kind, search.best_params).fit_pairs(transfer, features, targets)
-            card = dict(card, cross_validation={"grouping": "scene", "grid": spec.grid, **search.as_dict(),
-                                                "note": "hyperparameters chosen on all training scenes"},
-                        provenance={**provenance, "training_scenes": list(split.transfer_training_scenes),
-                                    "held_out_scenes": list(split.transfer_test_scenes),
-                                    "excluded_regime": split.held_out_regime})
-            write_model(out_dir / TRANSFER_DIR / spec.name, estimator, card)
 
     record = {
         "format_version": MODEL_FORMAT_VERSION,
         "recipe_name": recipe.name,
         "models": [spec.name for spec in recipe.models],
-        "transfer_models": [spec.name for spec in recipe.models] if transfer is not None else [],
         "kinds": {spec.name: spec.kind for spec in recipe.models},
         "targets": targets,
         "feature_names": features,
-        "split": {**split.as_dict(), "held_out_scene_fraction": recipe.held_out_scene_fraction,
+        "split": {**split.as_dict(), "left_out_families": recipe.family_list(pairs),
+                  "held_out_scene_fraction": recipe.held_out_scene_fraction,
                   "seed": recipe.split_seed, "n_training_samples": int(training.sizes["sample"])},
         "cross_validation": {name: {"best_params": s.best_params, "best_score": s.best_score, "folds": s.folds}
                              for name, s in searches.items()},

@@ -125,6 +125,13 @@ class FeatureRecipe:
             names.extend(column_name(f, r) for r in radii)
         return names
 
+    def column_features(self):
+        """The feature that makes each feature-matrix column, in the order of :meth:`column_names`."""
+        out = []
+        for f in self.features:
+            out.extend([f] * (len(self.parameters["neighbour_radii"]) if FEATURES[f].per_radius else 1))
+        return out
+
     def column_units(self):
         """Units of each feature-matrix column, in the order of :meth:`column_names`."""
         units = []

@@ -9,6 +9,7 @@ xarray or numba.
 >>> model = load_coefficients("export/ridge.coefficients.json")    # doctest: +SKIP
 >>> corrections = model.predict(features)         # (n_column, n_feature) -> (n_column, n_target)
 >>> corrections = model.predict_host(host_fields)  # features computed from host fields first
+>>> model.envelope_check(features).outside         # columns unlike the training data (flagged, not refused)
 
 ``docs/host-model-guide.md`` shows both, and the Fortran module; ``docs/export-format.md``
 documents the file.

@@ -18,13 +18,17 @@ import zlib
 import numpy as np
 
 from ..errors import FormatError
+from . import envelope as _envelope
 
 #: The ``format`` field every coefficient file carries.
 FORMAT_NAME = "surrogate3d-correction-coefficients"
 
 #: Version of the coefficient layout.  Readers accept files of the same major version.
-#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate).
-FORMAT_VERSION = "1.1"
+#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate); 1.2 added the
+#: optional ``training_envelope`` (an older file has none: no column is flagged) and stores
+#: scale 1 for a ridge feature constant up to round-off (readers clip the standardized value
+#: of such a feature in older files, :mod:`surrogate3d.runtime.ridge`).
+FORMAT_VERSION = "1.2"
 
 #: Model kinds a coefficient file may hold.
 KINDS = ("ridge", "boosted")
@@ -61,6 +65,9 @@ TOP_LEVEL = {"format": str, "format_version": str, "model": dict, "features": di
 #: Optional top-level field: the clear-sky gate (absent in files of format 1.0: no gate).
 GATE_FIELD = "clear_sky_gate"
 
+#: Optional top-level field: the training envelope (absent before format 1.2: nothing flagged).
+ENVELOPE_FIELD = "training_envelope"
+
 #: Arrays with at most this many finite values are written as plain JSON lists.
 PLAIN_LIMIT = 64
 
@@ -87,7 +94,7 @@ def _unshuffle(raw, itemsize):
     return np.frombuffer(raw, dtype=np.uint8).reshape(itemsize, -1).T.tobytes()
 
 
-def encode_array(array):
+def encode_array(array, plain_limit=PLAIN_LIMIT):
     """JSON object of a numpy array (see ``docs/export-format.md``, "Arrays in the JSON twin").
 
     Small all-finite arrays become plain lists (``data``); others are ``packed``: the
@@ -97,6 +104,8 @@ def encode_array(array):
     ----------
     array : ndarray
         float64, int8, int16 or int32.
+    plain_limit : int
+        Largest array written as a plain list (0: always packed).
 
     Returns
     -------
@@ -106,7 +115,7 @@ def encode_array(array):
     if array.dtype.name not in _DTYPES:
         raise FormatError(f"cannot encode arrays of dtype {array.dtype.name}; allowed: {sorted(_DTYPES)}")
     entry = {"dtype": array.dtype.name, "shape": [int(n) for n in array.shape]}
-    if array.size <= PLAIN_LIMIT and np.all(np.isfinite(array)):
+    if array.size <= plain_limit and np.all(np.isfinite(array)):
         entry["data"] = array.ravel().tolist()
     else:
         raw = array.astype(array.dtype.newbyteorder("<"), copy=False).tobytes()
@@ -178,6 +187,10 @@ def document_to_json(document):
     out = dict(document)
     kind = document["model"]["kind"]
     out[kind] = {name: encode_array(np.asarray(value)) for name, value in document[kind].items()}
+    if document.get(ENVELOPE_FIELD) is not None:
+        # Always packed: the envelope's single-precision values pack to half their decimal length.
+        out[ENVELOPE_FIELD] = {name: encode_array(np.asarray(value), plain_limit=0) if name in _envelope.ARRAYS
+                               else value for name, value in document[ENVELOPE_FIELD].items()}
     return out
 
 
@@ -210,6 +223,10 @@ def document_from_json(content, source):
     missing = [f"{kind}.{name}" for name, value in out[kind].items() if value is None]
     if missing:
         raise FormatError(f"coefficient file {source!r} lacks fields {missing}")
+    field = content.get(ENVELOPE_FIELD)
+    if isinstance(field, dict):
+        out[ENVELOPE_FIELD] = {name: decode_array(value, f"{ENVELOPE_FIELD}.{name}") if name in _envelope.ARRAYS
+                               else value for name, value in field.items()}
     return out
 
 
@@ -251,7 +268,8 @@ def check_document(document, source):
     """Check that the fields of a document agree with each other; raise FormatError if not.
 
     Checks the array dimensions against each other and against the feature and
-    target lists, the model-specific rules and the clear-sky gate's feature indices
+    target lists, the model-specific rules, the clear-sky gate's feature indices and the
+    training envelope
     (``docs/export-format.md``, "Checks on load").  Does not check the feature recipe
     (:mod:`surrogate3d.runtime.model` does).
 
@@ -294,6 +312,19 @@ def check_document(document, source):
     else:
         _check_trees(arrays, sizes, source)
     _check_gate(document, len(feature_names), source)
+    if ENVELOPE_FIELD in document:
+        _envelope.check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
+
+
+def training_envelope(document):
+    """The training envelope of a checked document, or None for a file without one (before format 1.2).
+
+    Returns
+    -------
+    surrogate3d.runtime.envelope.TrainingEnvelope or None
+    """
+    field = document.get(ENVELOPE_FIELD)
+    return None if field is None else _envelope.TrainingEnvelope.from_dict(field)
 
 
 def clear_sky_gate(document):

@@ -7,6 +7,7 @@ fields, computing the features with the recipe stored in the file through
 """
 
 import json
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -15,7 +16,8 @@ from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
 from ..pairs.targets import TARGETS
-from .document import check_document, clear_sky_gate, document_from_json
+from .document import check_document, clear_sky_gate, document_from_json, training_envelope
+from .envelope import EnvelopeCheck, EnvelopeWarning
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
 
@@ -42,6 +44,9 @@ class CorrectionModel:
         The clear-sky gate: where every one of these features has
         ``|x| <= clear_sky_tolerance``, the correction is exactly 0 (empty: no gate).
     clear_sky_tolerance : float
+    envelope : surrogate3d.runtime.envelope.TrainingEnvelope or None
+        Ranges and distance threshold of the training columns; None for a file written
+        before format 1.2 (then no column is flagged).
     document : dict
         Everything the file holds (provenance, skill table, hyperparameters ...).
 
@@ -70,6 +75,7 @@ class CorrectionModel:
         self._needed = [f for f in self.recipe.features if any(producer[c] == f for c in self.feature_names)]
         self._gate, self.clear_sky_tolerance = clear_sky_gate(document)
         self.clear_sky_features = [self.feature_names[k] for k in self._gate]
+        self.envelope = training_envelope(document)
         arrays = document[self.kind]
         if self.kind == "ridge":
             self._evaluator = RidgeModel(**arrays)
@@ -93,7 +99,7 @@ class CorrectionModel:
     def n_targets(self):
         return len(self.target_names)
 
-    def predict(self, features):
+    def predict(self, features, check_envelope=True):
         """Predicted corrections of many columns.
 
         Parameters
@@ -101,6 +107,10 @@ class CorrectionModel:
         features : array_like (n_column, n_feature)
             Feature values in the order and units of :attr:`feature_names` /
             :attr:`feature_units`; finite.
+        check_envelope : bool
+            Warn (:class:`~surrogate3d.runtime.envelope.EnvelopeWarning`, with the count)
+            when columns lie outside the training envelope; :meth:`envelope_check` says
+            which.  False skips the test (a host that calls :meth:`envelope_check` itself).
 
         Returns
         -------
@@ -116,8 +126,46 @@ class CorrectionModel:
         """
         X = self._checked(features)
         corrections = self._evaluator.predict(X)
-        corrections[self._gated_rows(X)] = 0.0
+        gated = self._gated_rows(X)
+        corrections[gated] = 0.0
+        if check_envelope and self.envelope is not None:
+            check = self._envelope_check(X, gated)
+            if check.n_outside:
+                warnings.warn(EnvelopeWarning(
+                    f"{check.n_outside} of {X.shape[0]} columns lie outside the training envelope of model "
+                    f"{self.name!r}: their corrections extrapolate (see envelope_check)"), stacklevel=2)
         return corrections
+
+    def envelope_check(self, features):
+        """Which columns lie outside the training envelope: a flag per column and their count.
+
+        A column is outside when a feature leaves its training range or its Mahalanobis
+        distance from the training columns exceeds the stored threshold
+        (:mod:`surrogate3d.runtime.envelope`); a column the clear-sky gate selects never is.
+
+        Parameters
+        ----------
+        features : array_like (n_column, n_feature)
+            As for :meth:`predict`.
+
+        Returns
+        -------
+        surrogate3d.runtime.envelope.EnvelopeCheck
+            ``outside`` (the flag), ``n_outside``, ``outside_range``, ``beyond_distance``,
+            ``distance``, ``first_feature_outside``; for a file without an envelope
+            ``available`` is False, nothing is flagged and ``note`` says why.
+        """
+        X = self._checked(features)
+        return self._envelope_check(X, self._gated_rows(X))
+
+    def _envelope_check(self, X, gated_rows):
+        if self.envelope is None:
+            return EnvelopeCheck.unavailable(X.shape[0], f"coefficient file {self.source!r} (format "
+                                                         f"{self.document['format_version']}) has no training "
+                                                         "envelope: no column is checked")
+        gated = np.zeros(X.shape[0], dtype=bool)
+        gated[gated_rows] = True
+        return self.envelope.check(X, gated)
 
     def clear_sky_mask(self, features):
         """Which columns the clear-sky gate selects (they get exactly zero correction).
@@ -186,13 +234,15 @@ class CorrectionModel:
             return matrix
         return matrix[:, [columns.index(name) for name in self.feature_names]]
 
-    def predict_host(self, host_fields):
+    def predict_host(self, host_fields, check_envelope=True):
         """Predicted corrections of every column of a host grid.
 
         Parameters
         ----------
         host_fields : dict of ndarray
             See :meth:`host_features`.
+        check_envelope : bool
+            As for :meth:`predict`.
 
         Returns
         -------
@@ -200,7 +250,7 @@ class CorrectionModel:
             Corrections [1], rows in row-major ``(iy, ix)`` order, columns as
             :attr:`target_names`.
         """
-        return self.predict(self.host_features(host_fields))
+        return self.predict(self.host_features(host_fields), check_envelope)
 
 
 def _column_producers(recipe):

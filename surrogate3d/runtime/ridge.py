@@ -10,12 +10,47 @@ quadratic form over the features that appear in a pair, ``s``:
 coefficients and ``Q[m]`` the strictly upper-triangular matrix of the pair
 coefficients, so one matrix product serves all targets and no product column is ever
 formed; only the order of the additions differs from the term-by-term sum.
+
+A feature constant up to round-off in training (:func:`near_constant`) is stored with
+scale 1 since format 1.2.  Files written earlier may hold the round-off spread itself as
+its scale (the ridge shipped with surrogate3d 0.1.0: ``surface_albedo``, 1.4e-14), which
+would turn any other value of the feature into a standardized value of order 1e13; for
+such a feature the standardized value is clipped to [-1, 1], the only values its
+training samples had, so its terms stay what they were in training.
 """
 
 import numpy as np
 
 #: Columns per block: the (block, n_target * n_feature) product then stays in cache.
 _BLOCK_ROWS = 1024
+
+#: A feature whose training standard deviation is at most this fraction of the magnitude
+#: of its mean is constant up to round-off.  The round-off of a mean over 10^4 to 10^5
+#: float64 values summed in order is below 1e-11 of it; any variation that matters
+#: physically is far above 1e-9 of the value.
+NEAR_CONSTANT = 1e-9
+
+
+def near_constant(mean, scale):
+    """Which features are constant up to round-off: ``scale <= NEAR_CONSTANT * |mean|``.
+
+    Parameters
+    ----------
+    mean, scale : array_like (n_feature,)
+        Mean and standard deviation of each feature over the training samples, in its units.
+
+    Returns
+    -------
+    ndarray of bool (n_feature,)
+        True for a feature without variation beyond round-off (an exactly constant
+        feature, scale 0, included).
+
+    Examples
+    --------
+    >>> near_constant([0.06, 0.0, 5.0], [1.4e-14, 0.0, 0.1]).tolist()
+    [True, True, False]
+    """
+    return np.asarray(scale, dtype=np.float64) <= NEAR_CONSTANT * np.abs(np.asarray(mean, dtype=np.float64))
 
 
 class RidgeModel:
@@ -41,6 +76,7 @@ class RidgeModel:
         self.feature_mean = np.asarray(feature_mean, dtype=np.float64)
         self.feature_scale = np.asarray(feature_scale, dtype=np.float64)
         self.intercept = np.asarray(intercept, dtype=np.float64)
+        self.near_constant = np.flatnonzero(near_constant(self.feature_mean, self.feature_scale))
         coef = np.asarray(coef, dtype=np.float64)
         pairs = np.asarray(interaction_pairs, dtype=np.int64).reshape(-1, 2)
         n_feature, n_target = self.feature_mean.size, self.intercept.size
@@ -64,6 +100,8 @@ class RidgeModel:
 
     def _predict_block(self, X):
         Z = (X - self.feature_mean) / self.feature_scale
+        if self.near_constant.size:
+            Z[:, self.near_constant] = np.clip(Z[:, self.near_constant], -1.0, 1.0)
         linear = Z @ self.linear
         if not self.has_pairs:
             return self.intercept + linear

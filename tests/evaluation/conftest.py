@@ -12,7 +12,6 @@ from surrogate3d.learn.train import train_models
 RECIPE = """
 [split]
 held_out_scene_fraction = 0.25
-held_out_regime = "dense"
 seed = 2
 
 [cross_validation]

@@ -41,7 +41,7 @@ def test_other_format_version(main, model_dir, pairs_file, tmp_path, capsys):
 def test_missing_model_files(main, model_dir, pairs_file, tmp_path, capsys):
     copy = tmp_path / "models"
     shutil.copytree(model_dir, copy)
-    (copy / "transfer" / "ridge" / "model.json").unlink()
+    (copy / "ridge" / "model.json").unlink()
     assert main(["evaluate", str(copy), str(pairs_file), "--out", str(tmp_path / "r"), "--quiet"]) == 1
     line = _error_line(capsys)
     assert "model.json" in line and "does not exist" in line

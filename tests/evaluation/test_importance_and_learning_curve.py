@@ -4,6 +4,7 @@ import numpy as np
 
 from surrogate3d.evaluation.importance import permutation_importance
 from surrogate3d.evaluation.learning_curve import learning_curve, scene_order, subset_sizes
+from surrogate3d.evaluation.scored_model import ScoredModel
 from surrogate3d.learn.models import RidgeCorrection
 from surrogate3d.learn.pairs_table import scene_table
 
@@ -15,7 +16,8 @@ def test_importance_finds_the_feature_the_model_uses(synthetic_pairs):
     cf = pairs["features"].sel(feature="cloud_fraction").values
     pairs["target_value"].loc[{"target": "toa_upward_flux"}] = 0.1 * cf
     model = RidgeCorrection(alpha=1e-6).fit_pairs(pairs, targets=["toa_upward_flux"])
-    table = permutation_importance(model, pairs, ["toa_upward_flux"], n_repeats=2, seed=1).set_index("feature")
+    table = permutation_importance(ScoredModel.from_estimator("ridge", "ridge", model), pairs, ["toa_upward_flux"],
+                                   n_repeats=2, seed=1).set_index("feature")
     assert table.loc["cloud_fraction", "importance"] > 0.5
     others = table.drop(index="cloud_fraction")["importance"]
     assert np.all(np.abs(others) < 1e-3)

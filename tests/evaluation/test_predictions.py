@@ -3,6 +3,7 @@
 import numpy as np
 
 from surrogate3d.evaluation.predictions import model_correction
+from surrogate3d.evaluation.scored_model import ScoredModel
 from surrogate3d.learn.consistency import energy_residual
 from surrogate3d.learn.models import RidgeCorrection
 from surrogate3d.learn.pairs_table import TARGETS, domain_groups, feature_matrix
@@ -15,7 +16,7 @@ def test_gated_columns_stay_zero_after_the_consistency_step(synthetic_pairs):
     model = RidgeCorrection(interactions=True, clear_sky_features=gate).fit_pairs(synthetic_pairs)
     clear = model.clear_sky_mask(feature_matrix(synthetic_pairs, model.feature_names_))
     assert clear.any()
-    correction, outcome = model_correction(model, synthetic_pairs, TARGETS)
+    correction, outcome = model_correction(ScoredModel.from_estimator("ridge", "ridge", model), synthetic_pairs, TARGETS)
     assert np.all(correction[clear] == 0.0) and outcome is not None
     groups = domain_groups(synthetic_pairs)
     residual = energy_residual(correction, synthetic_pairs["surface_albedo"].values)

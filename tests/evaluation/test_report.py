@@ -1,6 +1,7 @@
 """The evaluation on held-out scenes and the report files."""
 
 import base64
+import json
 import re
 
 import numpy as np
@@ -9,7 +10,8 @@ import pytest
 
 from surrogate3d.errors import ValidationError
 from surrogate3d.evaluation import figures
-from surrogate3d.evaluation.report import HELD_OUT, evaluate
+from surrogate3d.evaluation.report import HELD_OUT, LEFT_OUT, evaluate
+from surrogate3d.evaluation.tables import headline_table
 from surrogate3d.learn.pairs_table import scene_labels
 
 PNG = b"\x89PNG\r\n\x1a\n"
@@ -21,19 +23,42 @@ def test_only_held_out_scenes_are_scored(evaluation):
     assert held.label == HELD_OUT
     assert set(scene_labels(held.pairs)) == set(split["held_out_scenes"])
     assert set(scene_labels(held.pairs)).isdisjoint(split["training_scenes"])
-    transfer = evaluation.sets[1]
-    assert set(np.asarray(transfer.pairs["regime"].values).astype(str)) == {"dense"}
-    assert set(transfer.predictions) == {"no correction", "tilted independent column", "non-local independent pixel",
-                                         "ridge (trained without dense)", "boosted (trained without dense)"}
+    left_out = evaluation.sets[1]
+    assert left_out.label == LEFT_OUT
+    # Every sample of every family, each corrected by the models trained without its family.
+    assert set(scene_labels(left_out.pairs)) == set(split["training_scenes"]) | set(split["held_out_scenes"])
+    assert set(left_out.predictions) == {"no correction", "tilted independent column", "non-local independent pixel",
+                                         "ridge (trained without the family)", "boosted (trained without the family)"}
 
 
 def test_models_beat_no_correction_and_stay_below_the_noise_floor(evaluation):
     t = evaluation.table
-    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["units"] == "1")
+    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["units"] == "W m-2")
              & (t["target"] == "surface_downward_flux")].set_index("predictor")
     assert rows.loc["boosted", "skill"] > 0.6
     assert rows.loc["boosted", "skill"] <= rows.loc["boosted", "noise_floor_skill"] + 0.02
     assert rows.loc["no correction", "skill"] == 0.0
+
+
+def test_one_headline_skill(evaluation, report_dir):
+    # The report quotes one skill, that of the W m-2 errors (S0 cos(theta0) times the
+    # fractions, sample by sample): the headline table, the figures' rows and summary.json.
+    t = evaluation.table
+    rows = t[(t["evaluation_set"] == HELD_OUT) & (t["breakdown"] == "all") & (t["target"] == "surface_downward_flux")
+             & (t["predictor"] == "boosted")].set_index("units")
+    held = evaluation.sets[0]
+    m = evaluation.targets.index("surface_downward_flux")
+    flux = held.pairs["incident_flux"].values
+    true = held.pairs["target_value"].sel(target="surface_downward_flux").values
+    error = (held.predictions["boosted"][:, m] - true) * flux
+    expected = 1.0 - np.sqrt(np.mean(error**2)) / np.sqrt(np.mean((true * flux) ** 2))
+    assert rows.loc["W m-2", "skill"] == pytest.approx(expected, rel=1e-12)
+    assert abs(rows.loc["1", "skill"] - expected) > 1e-6        # the fractions weight every sun alike
+    headline = headline_table(t, HELD_OUT).set_index(["target", "predictor"])
+    assert headline.loc[("surface_downward_flux", "boosted"), "skill"] == pytest.approx(expected, rel=1e-12)
+    summary = json.loads((report_dir / "summary.json").read_text())
+    assert summary["skill_units"] == "W m-2"
+    assert summary["skill"][HELD_OUT]["boosted | surface_downward_flux"] == pytest.approx(expected, rel=1e-12)
 
 
 def test_consistency_step_is_applied(evaluation, model_dir, pairs_file):
@@ -50,7 +75,13 @@ def test_report_files(report_dir):
     names = {p.name for p in report_dir.iterdir()}
     assert {"report.html", "metrics.csv", "metrics.md", "breakdown_regime.csv", "breakdown_solar_zenith.md",
             "breakdown_cloud_fraction.csv", "breakdown_host_resolution.md", "importance.csv", "learning_curve.csv",
-            "consistency.csv", "consistency_skill.csv", "summary.json", "figures"} <= names
+            "consistency.csv", "consistency_skill.csv", "summary.json", "figures", "envelope.csv",
+            "left_out_family_fits.csv", "breakdown_regime_solar_zenith.csv"} <= names
+    summary = json.loads((report_dir / "summary.json").read_text())
+    shares = summary["share_outside_envelope"]
+    assert set(shares) == {HELD_OUT, LEFT_OUT}
+    assert all(0.0 <= share <= 1.0 for by_model in shares.values() for share in by_model.values())
+    assert summary["left_out_families"]["fits"] == 4
     metrics = pd.read_csv(report_dir / "metrics.csv")
     assert set(metrics["units"]) == {"1", "W m-2"}
     assert set(metrics["predictor"]) >= {"no correction", "tilted independent column", "non-local independent pixel",
@@ -66,7 +97,8 @@ def test_html_is_self_contained(report_dir):
     assert len(sources) >= 9 and all(s.startswith("data:image/png;base64,") for s in sources)
     assert base64.b64decode(sources[0].split(",", 1)[1]).startswith(PNG)
     assert "<link" not in page and "http" not in page.split("<footer>")[0].replace("http-equiv", "")
-    for section in ("Maps of sample held-out scenes", "Feature importance", "Learning curve", "Regime transfer"):
+    for section in ("Maps of sample scenes", "Feature importance", "Learning curve", "Leave-one-family-out",
+                    "Training envelope"):
         assert section in page
     assert all(p.read_bytes().startswith(PNG) for p in (report_dir / "figures").glob("*.png"))
 

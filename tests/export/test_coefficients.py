@@ -22,10 +22,14 @@ def _assert_same_document(a, b):
     assert a.keys() == b.keys()
     kind = a["model"]["kind"]
     for key in a:
-        if key == kind:
-            for name, array in a[kind].items():
-                assert array.dtype == b[kind][name].dtype, name
-                np.testing.assert_array_equal(array, b[kind][name])
+        if key in (kind, "training_envelope"):
+            assert a[key].keys() == b[key].keys()
+            for name, array in a[key].items():
+                if isinstance(array, np.ndarray):
+                    assert array.dtype == b[key][name].dtype, name
+                    np.testing.assert_array_equal(array, b[key][name])
+                else:
+                    assert type(array) is type(b[key][name]) and array == b[key][name], name
         else:
             assert a[key] == b[key], key
 
@@ -76,6 +80,7 @@ def test_skill_table_rows(tmp_path, helpers):
     table = skill_table(report, "ridge")
     predictors = {row[table["columns"].index("predictor")] for row in table["rows"]}
     assert predictors == {"ridge", "ridge (trained without dense)"}
+    assert {row[table["columns"].index("units")] for row in table["rows"]} == {"W m-2"}   # the headline skill
     group_value = helpers.METRICS_HEADER.split(",").index("group_value")
     assert group_value >= 0 and "group_value" not in table["columns"]
     with pytest.raises(ValidationError, match=r"no rows of model 'forest'; its predictors are \['boosted'"):

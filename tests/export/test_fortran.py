@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 
 from surrogate3d.errors import ValidationError
-from surrogate3d.export.fortran import features_file_text, fortran_name, fortran_sources
+from surrogate3d.export.fortran import data_file_text, features_file_text, fortran_name, fortran_sources
 from surrogate3d.export import read_coefficients
-from surrogate3d.runtime import FORMAT_VERSION
+from surrogate3d.runtime import FORMAT_VERSION, CorrectionModel, load_coefficients
 
 GFORTRAN = shutil.which("gfortran")
 needs_gfortran = pytest.mark.skipif(GFORTRAN is None, reason="gfortran is not installed (make test installs "
@@ -45,6 +45,17 @@ def _run(driver, coefficients, features):
     result = subprocess.run([str(driver), str(coefficients), str(features)], capture_output=True, text=True)
     assert result.returncode == 0, result.stderr
     return np.array([[float(v) for v in line.split()] for line in result.stdout.splitlines()])
+
+
+def _run_envelope(driver, coefficients, features):
+    """The driver's envelope mode: flag (bool) and distance per column, and the count."""
+    result = subprocess.run([str(driver), str(coefficients), str(features), "envelope"], capture_output=True,
+                            text=True)
+    assert result.returncode == 0, result.stderr
+    *rows, last = result.stdout.splitlines()
+    assert last.startswith("n_outside ")
+    values = np.array([[float(v) for v in row.split()] for row in rows])
+    return values[:, 0] == 1, values[:, 1], int(last.split()[1])
 
 
 @needs_gfortran
@@ -82,6 +93,55 @@ def test_fortran_applies_the_clear_sky_gate(built, run, helpers, drivers, tmp_pa
     assert gated[::3].all() and not gated[1::6].any()
     assert np.all(got[gated] == 0.0) and np.all(np.any(got[~gated] != 0.0, axis=1))
     assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
+
+
+@needs_gfortran
+def test_fortran_clips_a_round_off_scale_like_python(built, helpers, drivers, tmp_path):
+    # A file written before format 1.2 may hold the round-off spread of a feature that was
+    # constant in training as its scale; both runtimes clip its standardized value to
+    # [-1, 1] (docs/export-format.md), so another value of the feature cannot blow up.
+    fortran = built["export_dir"] / "fortran"
+    document = read_coefficients(built["export_dir"] / "ridge.coefficients.json")
+    names = document["features"]["names"]
+    k = next(i for i, name in enumerate(names) if name not in helpers.GATE)
+    document["ridge"]["feature_mean"][k] = 0.059999999999986266
+    document["ridge"]["feature_scale"][k] = 1.3704315460216776e-14
+    (tmp_path / "old.txt").write_text(data_file_text(document))
+    features = np.loadtxt(fortran / "ridge_sample_features.txt", skiprows=1)
+    features[::2, k] = 0.06
+    features[1::2, k] = 0.3
+    (tmp_path / "features.txt").write_text(features_file_text(features))
+    got = _run(drivers["ridge"], tmp_path / "old.txt", tmp_path / "features.txt")
+    expected = CorrectionModel.from_document(document).predict(features, check_envelope=False)
+    assert np.abs(expected).max() < 10.0
+    assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
+
+
+@needs_gfortran
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_fortran_flags_the_columns_python_flags(built, helpers, drivers, tmp_path, name):
+    # The training envelope (ranges and Mahalanobis distance, docs/export-format.md) gives
+    # the same flag and distance in Fortran as in the numpy runtime, and a NaN is outside.
+    fortran = built["export_dir"] / "fortran"
+    model = load_coefficients(built["export_dir"] / f"{name}.coefficients.json")
+    features = np.loadtxt(fortran / f"{name}_sample_features.txt", skiprows=1)
+    rng = np.random.default_rng(4)
+    features[::4] *= rng.uniform(0.5, 1.5, features[::4].shape)          # some leave the envelope
+    features[1::8, 0] = model.envelope.feature_max[0] + 1.0               # one range exceeded
+    gate = [model.feature_names.index(f) for f in helpers.GATE]
+    features[2::8][:, gate] = 0.0                                          # gated: never flagged
+    (tmp_path / "features.txt").write_text(features_file_text(features))
+    outside, distance, count = _run_envelope(drivers[name], fortran / f"{name}.coefficients.txt",
+                                             tmp_path / "features.txt")
+    check = model.envelope_check(features)
+    assert 0 < check.n_outside < features.shape[0] and not check.outside[2::8].any()
+    np.testing.assert_array_equal(outside, check.outside)
+    np.testing.assert_allclose(distance, check.distance, rtol=1e-10)
+    assert count == check.n_outside
+    if name == "boosted":
+        features[0, 3] = np.nan
+        (tmp_path / "nan.txt").write_text(features_file_text(features[:1]))
+        assert _run_envelope(drivers[name], fortran / f"{name}.coefficients.txt", tmp_path / "nan.txt")[0][0]
 
 
 @needs_gfortran

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.errors import ValidationError
-from surrogate3d.learn.cv import correction_skill, grid_search, scene_folds, split_scenes
+from surrogate3d.learn.cv import correction_skill, family_splits, grid_search, scene_folds, split_scenes
 from surrogate3d.learn.models import RidgeCorrection
 from surrogate3d.learn.pairs_table import scene_labels, scene_table
 
@@ -22,12 +22,21 @@ def test_held_out_scenes_never_leak(synthetic_pairs):
     assert split_scenes(synthetic_pairs, 0.0).held_out_scenes == []
 
 
-def test_held_out_regime_is_absent_from_transfer_training(synthetic_pairs):
-    split = split_scenes(synthetic_pairs, 0.25, seed=1, held_out_regime="dense")
+def test_left_out_family_is_absent_from_its_training(synthetic_pairs):
+    split = split_scenes(synthetic_pairs, 0.25, seed=1)
     table = scene_table(synthetic_pairs)
-    assert split.transfer_training_scenes and all(table[s][0] == "sparse" for s in split.transfer_training_scenes)
-    assert sorted(split.transfer_test_scenes) == sorted(s for s in table if table[s][0] == "dense")
-    assert set(split.transfer_training_scenes) <= set(split.training_scenes)
+    splits = family_splits(synthetic_pairs, split.training_scenes, ["dense", "sparse"])
+    assert [s.family for s in splits] == ["dense", "sparse"]
+    for family in splits:
+        assert family.training_scenes and all(table[s][0] != family.family for s in family.training_scenes)
+        assert set(family.training_scenes) <= set(split.training_scenes)
+        # Every scene of the family is tested, training and held-out scenes alike.
+        assert sorted(family.test_scenes) == sorted(s for s in table if table[s][0] == family.family)
+    with pytest.raises(ValidationError, match="'cirrus' is not a regime"):
+        family_splits(synthetic_pairs, split.training_scenes, ["cirrus"])
+    only_dense = [s for s in split.training_scenes if table[s][0] == "dense"]
+    with pytest.raises(ValidationError, match="leaves no training scene"):
+        family_splits(synthetic_pairs, only_dense, ["dense"])
 
 
 def test_cv_folds_keep_scenes_together(synthetic_pairs):

@@ -93,6 +93,23 @@ def test_constant_feature_is_harmless():
     np.testing.assert_allclose(model.predict(X), 3.0 * X[:, 0], atol=1e-10)
 
 
+@pytest.mark.parametrize("spread", [0.0, 1e-17, 1e-15, 1e-12])
+@pytest.mark.parametrize("interactions", [False, True])
+def test_near_constant_feature_is_treated_as_constant(spread, interactions):
+    # A feature that does not vary in training beyond round-off carries no information
+    # (common practice): it gets scale 1, so another value of it, here a surface albedo of
+    # 0.3 where training saw only 0.06, moves the prediction by its tiny coefficient only.
+    # Standardized by its round-off spread instead, 0.3 became a term of order 1e13.
+    n = 5000
+    X = np.column_stack([RNG.normal(size=n), 0.06 + spread * RNG.normal(size=n), RNG.uniform(size=n)])
+    Y = np.column_stack([X[:, 0] + X[:, 2] ** 2, -0.5 * X[:, 0]])
+    model = RidgeCorrection(alpha=1.0, interactions=interactions).fit(X, Y)
+    assert model.feature_scale_[1] == 1.0 and model.feature_scale_[0] != 1.0
+    elsewhere = X.copy()
+    elsewhere[:, 1] = 0.3
+    np.testing.assert_allclose(model.predict(elsewhere), model.predict(X), rtol=0, atol=1e-9)
+
+
 def test_boosted_fits_a_step():
     X = RNG.uniform(size=(1000, 2))
     Y = np.column_stack([np.where(X[:, 0] > 0.3, 1.0, -1.0), X[:, 1]])

@@ -35,7 +35,9 @@ def test_small_recipe_grid(small_recipe):
     (("held_out_scene_fraction = 0.25", "held_out_scene_fraction = 1.0"), ["held_out_scene_fraction", "[0, 1)"]),
     (("folds = 2", "folds = 1"), ["folds", ">= 2"]),
     (('features = "all"', 'features = "some"'), ["features"]),
-    (("[models.ridge]", "[models.transfer]"), ["transfer", "reserved"]),
+    (('held_out_regime = "dense"', 'left_out_families = "some"'), ["left_out_families", "'some'"]),
+    (('held_out_regime = "dense"', 'held_out_regime = "dense"\nleft_out_families = []'),
+     ["held_out_regime", "left_out_families"]),
     (('name = "small"', 'name = "small"\ntargets = ["surface_upward_flux"]'), ["targets", "surface_upward_flux"]),
 ])
 def test_bad_recipes_are_named(small_recipe, edit, words):
@@ -60,10 +62,20 @@ def test_recipe_against_pairs(synthetic_pairs, small_recipe):
     recipe = parse_recipe(small_recipe.replace('features = "all"', 'features = ["cloud_fraction", "liquid_path"]'))
     with pytest.raises(ValidationError, match=r"lacks features \['liquid_path'\]"):
         check_recipe_against_pairs(recipe, synthetic_pairs)
-    recipe = parse_recipe(small_recipe.replace('held_out_regime = "dense"', 'held_out_regime = "cirrus"'))
-    with pytest.raises(ValidationError, match="'cirrus' is not a regime"):
+    recipe = parse_recipe(small_recipe.replace('held_out_regime = "dense"', 'left_out_families = ["dense", "cirrus"]'))
+    with pytest.raises(ValidationError, match="left_out_families names 'cirrus', which is not a regime"):
         check_recipe_against_pairs(recipe, synthetic_pairs)
     check_recipe_against_pairs(parse_recipe(small_recipe), synthetic_pairs)
+
+
+@pytest.mark.parametrize("line, families", [
+    ("", ["dense", "sparse"]), ('left_out_families = "all"', ["dense", "sparse"]),
+    ('left_out_families = ["sparse"]', ["sparse"]), ("left_out_families = []", []),
+    ('held_out_regime = "dense"', ["dense"]),        # the spelling of earlier recipes
+])
+def test_left_out_families(synthetic_pairs, small_recipe, line, families):
+    recipe = parse_recipe(small_recipe.replace('held_out_regime = "dense"', line))
+    assert recipe.family_list(synthetic_pairs) == families
 
 
 def test_interaction_features_is_one_value_or_a_grid_of_lists(synthetic_pairs, small_recipe):

@@ -25,10 +25,9 @@ def trained(tmp_path_factory, pairs_file, small_recipe):
 
 def test_model_directory_layout(trained, pairs_file):
     out, record = trained
-    assert sorted(p.name for p in out.iterdir()) == ["boosted", "ridge", "training.json", "transfer"]
+    assert sorted(p.name for p in out.iterdir()) == ["boosted", "ridge", "training.json"]
     for name in ("ridge", "boosted"):
-        for base in (out, out / "transfer"):
-            assert sorted(p.name for p in (base / name).iterdir()) == ["estimator.joblib", "model.json"]
+        assert sorted(p.name for p in (out / name).iterdir()) == ["estimator.joblib", "model.json"]
     card = json.loads((out / "ridge" / "model.json").read_text())
     assert card["format_version"] == "1.0" and card["kind"] == "ridge"
     assert card["hyperparameters"]["interactions"] is True and card["hyperparameters"]["alpha"] in (0.01, 100.0)
@@ -39,14 +38,13 @@ def test_model_directory_layout(trained, pairs_file):
     assert not list(out.rglob(".*.tmp"))
 
 
-def test_split_and_transfer_models(trained, pairs_file):
+def test_split_and_left_out_families(trained, pairs_file):
     out, record = trained
     split = record["split"]
     assert set(split["training_scenes"]).isdisjoint(split["held_out_scenes"])
     table = scene_table(read_pairs_table(pairs_file))
-    transfer = load_model(out / "transfer" / "boosted")
-    assert transfer.card["provenance"]["excluded_regime"] == "dense"
-    assert all(table[s][0] != "dense" for s in transfer.card["provenance"]["training_scenes"])
+    assert set(split["training_scenes"]) | set(split["held_out_scenes"]) == set(table)
+    assert split["left_out_families"] == ["dense"]          # the recipe's held_out_regime
 
 
 def test_reloaded_models_predict_like_fresh_ones(trained, pairs_file):

@@ -63,3 +63,11 @@ def test_bad_recipes_and_files(tmp_path):
     (tmp_path / "bad.json").write_text("{not json")
     with pytest.raises(FormatError, match="not valid JSON"):
         FeatureRecipe.read(tmp_path / "bad.json")
+
+
+def test_column_features_name_the_feature_of_each_column():
+    recipe = FeatureRecipe(["cloud_fraction", "neighbour_mean_cloud_fraction"], {"neighbour_radii": [1000.0, 3000.0]})
+    assert list(zip(recipe.column_names(), recipe.column_features())) == [
+        ("cloud_fraction", "cloud_fraction"),
+        ("neighbour_mean_cloud_fraction_1000m", "neighbour_mean_cloud_fraction"),
+        ("neighbour_mean_cloud_fraction_3000m", "neighbour_mean_cloud_fraction")]

@@ -42,3 +42,25 @@ def test_exported_model_has_the_pairs_of_its_interaction_features(built, run):
     expected = [(i, j) for a, i in enumerate(index) for j in index[a + 1:]]
     assert model.document["ridge"]["interaction_pairs"].tolist() == [list(p) for p in expected]
     assert model.document["model"]["hyperparameters"]["interaction_features"] == chosen
+
+
+def test_round_off_scale_of_an_older_file_is_harmless():
+    # Files written before format 1.2 may store the round-off spread of a feature that was
+    # constant in training as its scale (the ridge shipped with 0.1.0: 0.06 +- 1.4e-14 for
+    # the surface albedo).  Its standardized value is clipped to [-1, 1], the values its
+    # training samples had: the training value predicts as written, any other value moves
+    # the prediction by at most |coef| of that term.
+    rng = np.random.default_rng(3)
+    mean = np.array([0.5, 0.059999999999986266, -1.0])
+    scale = np.array([0.2, 1.3704315460216776e-14, 2.0])
+    pairs = np.array([[0, 1], [1, 2]])
+    coef = rng.normal(size=(2, 5)) * [1.0, 1e-14, 1.0, 1e-14, 1e-14]
+    intercept = rng.normal(size=2)
+    model = RidgeModel(mean, scale, pairs, coef, intercept)
+    X = np.column_stack([rng.normal(0.5, 0.2, 100), np.full(100, 0.06), rng.normal(-1.0, 2.0, 100)])
+    expected = _term_by_term(X, mean, scale, pairs, coef, intercept)
+    np.testing.assert_allclose(model.predict(X), expected, rtol=1e-12, atol=1e-15)
+    elsewhere = X.copy()
+    elsewhere[:, 1] = 0.3
+    assert np.abs(_term_by_term(elsewhere, mean, scale, pairs, coef, intercept)).max() > 1e-3   # unclipped: blown up
+    np.testing.assert_allclose(model.predict(elsewhere), expected, rtol=0, atol=1e-12)
