@@ -74,11 +74,13 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
     scenes = scene_labels(training)
     searches = {}
     for spec in tqdm(recipe.models, desc="train", unit="model", disable=True if quiet else None):
-        search = grid_search(make_estimator(spec.kind), spec.candidates(), X, Y, scenes, recipe.folds, quiet=quiet,
+        search = grid_search(make_estimator(spec.kind, recipe.model_parameters()), spec.candidates(), X, Y, scenes,
+                             recipe.folds, quiet=quiet,
                              label=f"search {spec.name}", feature_names=features,
                              incident_flux=np.asarray(training["incident_flux"].values, dtype=np.float64))
         searches[spec.name] = search
-        estimator = make_estimator(spec.kind, search.best_params).fit_pairs(training, features, targets)
+        estimator = make_estimator(spec.kind, recipe.model_parameters(search.best_params)).fit_pairs(
+            training, features, targets)
         card = dict(format_version=MODEL_FORMAT_VERSION, name=spec.name, kind=spec.kind,
                     hyperparameters=estimator.get_params(), **shared,
                     cross_validation={"grouping": "scene", "grid": spec.grid, **search.as_dict()},
