@@ -19,6 +19,8 @@ any training starts, and a wrong one is named in the error with the allowed valu
 
     [cross_validation]
     folds = 3                              # >= 2, scene-grouped folds for the search
+    grouping = "scene"                     # or "family": every fold leaves out whole regimes, so
+                                           # the search prefers what holds on families unseen
 
     [target_transforms.TARGET]             # optional, per target: learn a residual (transforms.py)
     scale_feature = "independent_column_atmosphere_absorption"
@@ -46,7 +48,9 @@ from .transforms import check_transform, transform_features
 _TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models",
              "target_transforms"}
 _SPLIT_KEYS = {"held_out_scene_fraction", "left_out_families", "held_out_regime", "seed"}
-_CV_KEYS = {"folds"}
+_CV_KEYS = {"folds", "grouping"}
+#: What the folds of the hyperparameter search keep together.
+GROUPINGS = ("scene", "family")
 _MODEL_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*$")
 
 #: Model parameters whose value is itself a list: a list of lists is their grid dimension.
@@ -93,6 +97,7 @@ class TrainingRecipe:
     text: str
     source: str
     target_transforms: tuple = None
+    grouping: str = "scene"
 
     def model_parameters(self, params=None):
         """Constructor parameters of a model: ``params`` plus the recipe's target transforms."""
@@ -184,6 +189,9 @@ def parse_recipe(text, source="<recipe>"):
     folds = cv.get("folds", 3)
     if isinstance(folds, bool) or not isinstance(folds, int) or folds < 2:
         _fail(source, "cross_validation.folds", f"must be an integer >= 2; got {folds!r}")
+    grouping = cv.get("grouping", "scene")
+    if grouping not in GROUPINGS:
+        _fail(source, "cross_validation.grouping", f"must be one of {list(GROUPINGS)}; got {grouping!r}")
     models = raw.get("models")
     if not isinstance(models, dict) or not models:
         _fail(source, "[models]", "must define at least one model table, e.g. [models.ridge] with kind = \"ridge\"")
@@ -195,7 +203,8 @@ def parse_recipe(text, source="<recipe>"):
                           targets=tuple(targets), features=None if features is None else tuple(features),
                           held_out_scene_fraction=float(fraction), left_out_families=families,
                           split_seed=split_seed, folds=folds, models=specs, text=text, source=source,
-                          target_transforms=_transforms(source, raw.get("target_transforms"), targets))
+                          target_transforms=_transforms(source, raw.get("target_transforms"), targets),
+                          grouping=grouping)
 
 
 def _transforms(source, table, targets):
