@@ -29,6 +29,7 @@ from pathlib import Path
 
 from surrogate3d._atomic import write_text_atomic
 from surrogate3d.archive import completed, write_scene
+from surrogate3d.archive.leftovers import find_leftovers
 from surrogate3d.archive.locking import LOCK_FILE
 from surrogate3d.archive.netcdf import read_result_flags, scene_files
 from surrogate3d.archive.pending import pending_keys
@@ -56,6 +57,7 @@ def finished(archive):
 
 
 def stray(archive):
+    """Hidden entries but the lock file: none once every result is merged and nothing half-written is left."""
     return sorted(p.name for p in Path(archive).glob(".*") if p.name != LOCK_FILE)
 
 
@@ -112,7 +114,7 @@ def kill_trials(template, work, n, photons, rng):
             if alive(p):
                 os.kill(p, signal.SIGKILL)
         print(f"  kill {trial + 1:2d}: {how:13s} after {len(finished(archive)):2d}/{total} results, "
-              f"exit {run.returncode}, {len(stray(archive))} temporary entries", flush=True)
+              f"exit {run.returncode}, {len(find_leftovers(archive))} temporary entries left", flush=True)
     lost += len(seen - finished(archive))
     seen = finished(archive)
     run = simulate(archive, photons)
