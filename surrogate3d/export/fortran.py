@@ -402,9 +402,9 @@ def _gate_reader(prefix):
       if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= {prefix}_n_features)) then
         status = 1
         message = 'coefficient file: a clear_sky_features index is out of range'
-      else if (.not. (tolerance(1) >= 0.0_real64)) then
+      else if (.not. (ieee_is_finite(tolerance(1)) .and. tolerance(1) >= 0.0_real64)) then
         status = 1
-        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+        message = 'coefficient file: clear_sky_tolerance must be a finite number >= 0'
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
@@ -473,7 +473,7 @@ def _module_header(prefix, document):
 ! units of {prefix}_feature_names (see the coefficient file and docs/host-model-guide.md).
 module {prefix}_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   implicit none
   private
 
@@ -571,6 +571,14 @@ contains
     if (status == 0) call read_integers(unit, 'interaction_pairs', pair_list, status, message)
     if (status == 0) call read_reals(unit, 'coef', coef_list, status, message)
     if (status == 0) call read_reals(unit, 'intercept', model%intercept, status, message)
+    if (status == 0) then
+      ! NaN or infinite coefficients would turn every correction into NaN.
+      if (.not. (all(ieee_is_finite(model%feature_mean)) .and. all(ieee_is_finite(model%feature_scale)) .and. &
+          all(ieee_is_finite(coef_list)) .and. all(ieee_is_finite(model%intercept)))) then
+        status = 1
+        message = 'coefficient file: feature_mean, feature_scale, coef and intercept must be finite numbers'
+      end if
+    end if
 {_gate_reader(prefix)}
     if (status == 0) then
       ! The file lists the pairs (i, j) and the coefficients target by target, row by row.
@@ -691,6 +699,16 @@ contains
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
     if (status == 0) call read_reals(unit, 'threshold_values', threshold_values, status, message)
+    if (status == 0) then
+      ! NaN or infinite leaves or baselines would turn corrections into NaN; a NaN threshold sends every value right.
+      if (.not. (all(ieee_is_finite(model%baseline)) .and. all(ieee_is_finite(leaf_value)))) then
+        status = 1
+        message = 'coefficient file: baseline and leaf_value must be finite numbers'
+      else if (any(ieee_is_nan(threshold_values))) then
+        status = 1
+        message = 'coefficient file: threshold_values must not be NaN'
+      end if
+    end if
 {_gate_reader(prefix)}
     if (unit /= -1) close (unit)
     if (status /= 0) return

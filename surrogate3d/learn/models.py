@@ -177,9 +177,9 @@ class _PairsTableMixin:
         """
         check_is_fitted(self)
         if getattr(self, "feature_names_", None) is None:
-            raise ValidationError(f"{type(self).__name__} was fitted from arrays without feature names; "
+            raise ValidationError(f"the {model_kind(self)} model was fitted from arrays without feature names; "
                                   "fit it with fit_pairs to predict from a pairs table")
-        X = feature_matrix(pairs, self.feature_names_, needed_by=f"this {type(self).__name__}")
+        X = feature_matrix(pairs, self.feature_names_, needed_by=f"the {model_kind(self)} model")
         Y = self.predict(X)
         return Y[:, None] if Y.ndim == 1 else Y
 
