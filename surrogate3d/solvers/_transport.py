@@ -610,7 +610,8 @@ def _cumulate(source, weights, cdf):
 
 @njit(**KERNEL)
 def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, ssa_g, column_props, alb,
-               z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, edge_slot, grid, czi, column_direct, ray_xy, source,
+               z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, slabs, edge_slot, kept, grid, czi, column_direct, ray_xy,
+               source,
                ray_cum, ray_trans, work, roulette, max_events, col, cell, scale):
     """Trace one batch into the slot tallies ``col`` and the fixed-point cell tallies ``cell``
     (units of ``1 / scale``), drawing from the random stream ``state`` (uint64, seeded here
@@ -619,7 +620,8 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, 
     In 3D the batch first traces its own direct beam (:func:`direct_beam_batch`), with
     ray positions drawn from its stream, into ``ray_xy``, ``source``, ``ray_cum``,
     ``ray_trans`` and the cumulative table ``cdf``; ``reach`` is the beam's horizontal
-    travel (x, y) [m] from the top to the surface.  Independent columns share the exact
+    travel (x, y) [m] from the top to the surface and ``slabs`` the uniform layers it crosses
+    without walking them (:func:`surrogate3d.solvers._geometry.uniform_slabs`).  Independent columns share the exact
     direct beam of every column: ``cdf`` holds its source.  ``column_direct`` (3, nband,
     ny, nx) holds the direct beam's surface, column-absorbed and surface-absorbed flux
     (zeroed scratch in 3D, filled here), which the batch adds to its tallies.
@@ -632,8 +634,8 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, 
     ncol = ny * nx
     seed_stream(state, seed, batch)
     if full_3d:
-        direct_beam_batch(state, kext, ssa_g, alb, band_weight, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach,
-                          edge_slot, ray_xy, source, ray_cum, ray_trans, column_direct, cell, scale, work)
+        direct_beam_batch(state, kext, ssa_g, alb, band_weight, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, slabs,
+                          edge_slot, kept, ray_xy, source, ray_cum, ray_trans, column_direct, cell, scale, work)
         total = _cumulate(source, band_weight, cdf)
     else:
         total = cdf[-1]
@@ -693,8 +695,8 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, 
 
 @njit(cache=True, parallel=True)
 def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, kext, ssa_g,
-                column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, edge_slot, grid, czi, column_direct,
-                roulette, max_events, col_sum, spread, cell_fixed, scale):
+                column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, slabs, edge_slot, kept, grid, czi,
+                column_direct, roulette, max_events, col_sum, spread, cell_fixed, scale):
     """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to the sums.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
@@ -744,7 +746,7 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
                 direct[:] = 0.0
             slot_events[i] = _run_batch(states[i], start + i, full_3d, seed, batch_size, table, band_weight,
                                         kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
-                                        reach, edge_slot, grid, czi, direct, xys[thread], sources[thread],
+                                        reach, slabs, edge_slot, kept, grid, czi, direct, xys[thread], sources[thread],
                                         cums[thread], transs[thread], works[thread], roulette, max_events,
                                         col_slots[i], cell_fixed[thread], scale)
         for i in range(n):
