@@ -10,7 +10,7 @@ import math
 from pathlib import Path
 
 from ..errors import FormatError, ParameterError
-from .features import FEATURES, column_name
+from .features import DEFAULT_FEATURES, FEATURES, column_name
 
 #: Version of the recipe layout (and of the feature definitions it refers to).
 RECIPE_VERSION = 1
@@ -205,10 +205,13 @@ class FeatureRecipe:
 
 
 def default_recipe():
-    """The default recipe: every registered feature in registry order, default parameters.
+    """The default recipe: every registered feature but the physical priors, in registry order, default parameters.
+
+    The priors (``direct_beam_prior`` and its two corrections) are opt-in: list them in
+    a recipe (``docs/features.md``).
 
     Returns
     -------
     FeatureRecipe
     """
-    return FeatureRecipe(list(FEATURES), name="default")
+    return FeatureRecipe(list(DEFAULT_FEATURES), name="default")
