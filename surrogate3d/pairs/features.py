@@ -719,10 +719,12 @@ def cloud_edge_length(fields):
 
 
 def _independent_column_feature(flux):
-    def feature(fields):
+    def feature(fields, host_fluxes="monte_carlo"):
         return _independent_column(fields, flux)
     feature.__name__ = f"independent_column_{flux}"
-    feature.__doc__ = f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident flux)."
+    feature.__doc__ = (f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident flux).\n\n"
+                       "    ``host_fluxes`` (a recipe parameter) names the kind of fluxes the host passes (the\n"
+                       "    column solver they come from); it does not change the computation.\n")
     return feature
 
 
@@ -844,8 +846,12 @@ def direct_beam_prior(fields):
     return _direct_prior(fields, slanted=True)
 
 
-def direct_beam_prior_minus_independent_column(fields):
-    """Direct-beam prior minus the host's independent-column direct flux [1]: a prior direct correction."""
+def direct_beam_prior_minus_independent_column(fields, host_fluxes="monte_carlo"):
+    """Direct-beam prior minus the host's independent-column direct flux [1]: a prior direct correction.
+
+    ``host_fluxes`` (a recipe parameter) names the kind of independent-column fluxes the
+    host passes; it does not change the computation.
+    """
     return direct_beam_prior(fields) - _independent_column(fields, "surface_downward_direct_flux")
 
 
@@ -889,6 +895,7 @@ class Feature:
 _LAYERS = ("layer_cloud_fraction", "z_edge")
 _TAU = ("layer_optical_depth",)
 _THRESHOLD = ("layer_cloud_fraction_threshold",)
+_HOST_FLUXES = ("host_fluxes",)
 _PRIOR = ("layer_cloud_fraction", "layer_optical_depth", "layer_clear_sky_optical_depth", "z_edge",
           "total_cloud_fraction", "column_optical_depth_std", "cloud_edge_length")
 _ICA_DIRECT = ("independent_column_surface_downward_direct_flux",)
@@ -906,7 +913,8 @@ FEATURES = {f.name: f for f in [
     Feature(cloud_edge_length, "m-1", ("cloud_edge_length",)),
     *[Feature(_independent_column_feature(flux), "1",
               ((f"independent_column_{flux}",) if flux != "surface_downward_flux" else
-               ("independent_column_surface_downward_direct_flux", "independent_column_surface_downward_diffuse_flux")))
+               ("independent_column_surface_downward_direct_flux", "independent_column_surface_downward_diffuse_flux")),
+              _HOST_FLUXES)
       for flux in INDEPENDENT_COLUMN_FLUXES],
     Feature(neighbour_mean_cloud_fraction, "1", ("total_cloud_fraction",), per_radius=True),
     Feature(neighbour_contrast_cloud_fraction, "1", ("total_cloud_fraction",), per_radius=True),
@@ -920,7 +928,7 @@ FEATURES = {f.name: f for f in [
     Feature(cloud_top_height_upsun_minus_downsun, "m", _LAYERS, ("cloud_side_distance",) + _THRESHOLD),
     # Physical priors (not in the default recipe: docs/features.md).
     Feature(direct_beam_prior, "1", _PRIOR),
-    Feature(direct_beam_prior_minus_independent_column, "1", _PRIOR + _ICA_DIRECT),
+    Feature(direct_beam_prior_minus_independent_column, "1", _PRIOR + _ICA_DIRECT, _HOST_FLUXES),
     Feature(direct_beam_prior_slant_minus_vertical, "1", _PRIOR),
 ]}
 

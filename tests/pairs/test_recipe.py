@@ -16,6 +16,7 @@ def test_default_recipe_lists_every_feature_but_the_priors_and_expands_radii():
     radii = recipe.parameters["neighbour_radii"]
     assert "neighbour_mean_cloud_fraction_%gm" % radii[0] in recipe.column_names()
     assert len(recipe.column_names()) == len(FEATURES) - len(priors) + 4 * (len(radii) - 1) == 32
+    assert recipe.parameters["host_fluxes"] == "monte_carlo"
 
 
 def test_json_dict_and_file_round_trips(tmp_path):
