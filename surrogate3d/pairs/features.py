@@ -312,16 +312,71 @@ def _overlap_ratio(lower, upper):
     return np.divide(numerator, denominator, out=np.zeros_like(numerator), where=denominator > 0.0)
 
 
+def _scan_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
+    """Walk down the layers of every column and yield each block of adjacent cloudy layers as it ends.
+
+    Yields ``(k, index, cover, depth, thickness)``: the lowest layer ``k`` of the
+    blocks, the flat column indices of the columns whose block ends there, and each
+    block's cover, cloud optical depth and mean cloud thickness (see
+    :func:`cloud_blocks`).  The generator's return value is ``loose`` (flat), the cloud
+    optical depth of layers with zero cloud fraction.  Work on whole planes is limited
+    to a few comparisons per layer; the running sums touch only cloudy columns.
+    """
+    c = np.clip(np.asarray(layer_cloud_fraction, dtype=np.float64), 0.0, 1.0)
+    nz = c.shape[0]
+    c = c.reshape(nz, -1)
+    x = np.asarray(layer_cloud_optical_depth, dtype=np.float64).reshape(nz, -1)
+    dz = np.zeros(nz) if layer_thickness is None else np.asarray(layer_thickness, dtype=np.float64)
+    n = c.shape[1]
+    run_clear, run_depth, run_volume = np.ones(n), np.zeros(n), np.zeros(n)
+    loose = np.zeros(n)
+    cloudy_above = np.zeros(n, dtype=bool)
+    for k in range(nz - 1, -1, -1):
+        ck, xk = c[k], x[k]
+        cloudy = ck > 0.0
+        clear = ~cloudy
+        loose[clear] += xk[clear]
+        # A cloudy layer below a cloudy one continues its block; else it starts one.
+        cont = np.flatnonzero(cloudy & cloudy_above)
+        start = np.flatnonzero(cloudy & ~cloudy_above)
+        run_clear[start] = 1.0 - ck[start]
+        run_depth[start] = xk[start]
+        run_volume[start] = ck[start] * dz[k]
+        if cont.size:
+            run_clear[cont] *= _overlap_ratio(ck[cont], c[k + 1][cont])
+            run_depth[cont] += xk[cont]
+            run_volume[cont] += ck[cont] * dz[k]
+        ends = np.flatnonzero(cloudy & (c[k - 1] <= 0.0)) if k > 0 else np.flatnonzero(cloudy)
+        if ends.size:
+            cover = 1.0 - run_clear[ends]
+            thickness = np.divide(run_volume[ends], cover, out=np.zeros_like(cover), where=cover > 0.0)
+            yield k, ends, cover, run_depth[ends].copy(), thickness
+        cloudy_above = cloudy
+    return loose
+
+
+def _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
+    """All blocks of :func:`_scan_blocks` as a list, and ``loose``."""
+    scan = _scan_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
+    blocks = []
+    while True:
+        try:
+            blocks.append(next(scan))
+        except StopIteration as stop:
+            return blocks, stop.value
+
+
 def cloud_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
     """Blocks of adjacent cloudy layers: the cover, cloud optical depth and thickness of each.
 
     A block is a run of adjacent layers with positive cloud fraction.  Its cover is one
     minus its clear line-of-sight fraction under maximum-random overlap
     (:func:`maximum_random_clear_fraction` of its layers; maximum overlap where the
-    fractions grow toward the block's widest layer); its cloud optical depth and
-    thickness are the sums over its layers.  Blocks are separated by clear layers and
-    overlap at random, so the clear fraction of the whole stack is the product of
-    ``1 - cover`` over the blocks (Geleyn and Hollingsworth 1979).
+    fractions grow toward the block's widest layer); its cloud optical depth is the sum
+    over its layers and its mean cloud thickness ``sum_k c_k dz_k / cover`` (cloud volume
+    over cover).  Blocks are separated by clear layers and overlap at random, so the
+    clear fraction of the whole stack is the product of ``1 - cover`` over the blocks
+    (Geleyn and Hollingsworth 1979).
 
     Parameters
     ----------
@@ -339,7 +394,7 @@ def cloud_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thicknes
     depth : ndarray, shape (nz, ...)
         Each block's cloud optical depth [1] at the same index, 0 elsewhere.
     thickness : ndarray, shape (nz, ...)
-        Each block's thickness [m] at the same index, 0 elsewhere.
+        Each block's mean cloud thickness [m] at the same index, 0 elsewhere.
     loose : ndarray, shape (...)
         Cloud optical depth [1] of layers with zero cloud fraction (spread over every
         line of sight).
@@ -350,31 +405,12 @@ def cloud_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thicknes
     computation of the interaction between scattering and line absorption of radiation.
     Contrib. Atmos. Phys., 52, 1-16.
     """
-    c = np.clip(np.asarray(layer_cloud_fraction, dtype=np.float64), 0.0, 1.0)
-    x = np.asarray(layer_cloud_optical_depth, dtype=np.float64)
-    nz = c.shape[0]
-    dz = np.zeros(nz) if layer_thickness is None else np.asarray(layer_thickness, dtype=np.float64)
-    cover, depth, thickness = np.zeros_like(c), np.zeros_like(c), np.zeros_like(c)
-    loose = np.zeros(c.shape[1:])
-    run_clear, run_depth, run_thickness = np.ones(c.shape[1:]), np.zeros(c.shape[1:]), np.zeros(c.shape[1:])
-    for k in range(nz - 1, -1, -1):
-        cloudy = c[k] > 0.0
-        if k + 1 < nz:
-            # A cloudy layer below a cloudy one continues its block; else it starts one.
-            continues = cloudy & (c[k + 1] > 0.0)
-            run_clear = np.where(continues, run_clear * _overlap_ratio(c[k], c[k + 1]), 1.0 - c[k])
-            run_depth = np.where(continues, run_depth + x[k], x[k])
-            run_thickness = np.where(continues, run_thickness + c[k] * dz[k], c[k] * dz[k])
-        else:
-            run_clear, run_depth, run_thickness = 1.0 - c[k], x[k], c[k] * dz[k]
-        ends = cloudy & (c[k - 1] <= 0.0) if k > 0 else cloudy
-        cover[k] = np.where(ends, 1.0 - run_clear, 0.0)
-        depth[k] = np.where(ends, run_depth, 0.0)
-        block_cover = 1.0 - run_clear
-        thickness[k] = np.where(ends, np.divide(run_thickness, block_cover, out=np.zeros_like(block_cover),
-                                                where=block_cover > 0.0), 0.0)
-        loose = loose + np.where(cloudy, 0.0, x[k])
-    return cover, depth, thickness, loose
+    shape = np.shape(layer_cloud_fraction)
+    blocks, loose = _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
+    cover, depth, thickness = (np.zeros((shape[0], int(np.prod(shape[1:], dtype=np.int64)))) for _ in range(3))
+    for k, index, c, x, h in blocks:
+        cover[k, index], depth[k, index], thickness[k, index] = c, x, h
+    return cover.reshape(shape), depth.reshape(shape), thickness.reshape(shape), loose.reshape(shape[1:])
 
 
 def cloud_width_per_area(total_cloud_fraction, cloud_edge_length):
@@ -545,6 +581,33 @@ def in_cloud_relative_variance(column_std, block_cover, block_depth):
     return np.maximum(v, 0.0)
 
 
+def _relative_variance_of_blocks(column_std, blocks, n):
+    """:func:`in_cloud_relative_variance` from a list of blocks of :func:`_scan_blocks` (flat, ``n`` columns)."""
+    between, within = np.zeros(n), np.zeros(n)
+    for _, index, cover, depth, _ in blocks:
+        squared = depth * depth / cover
+        np.add.at(within, index, squared)
+        np.add.at(between, index, squared * (1.0 - cover))
+    s2 = np.asarray(column_std, dtype=np.float64).reshape(-1) ** 2
+    v = np.divide(s2 - between, within, out=np.zeros(n), where=within > 0.0)
+    return np.maximum(v, 0.0)
+
+
+def _transmittance_of_blocks(blocks, loose, clear_sky_optical_depth, relative_variance, mu0, width_per_area):
+    """The formula of :func:`direct_transmittance_prior` from blocks of :func:`_scan_blocks` (flat)."""
+    mu0 = float(mu0)
+    tan0 = math.sqrt(max(1.0 - mu0 * mu0, 0.0)) / mu0
+    v = np.asarray(relative_variance, dtype=np.float64).reshape(-1)
+    rho = np.broadcast_to(np.asarray(width_per_area, dtype=np.float64), np.shape(clear_sky_optical_depth)).reshape(-1)
+    clear = np.asarray(clear_sky_optical_depth, dtype=np.float64).reshape(-1)
+    product = np.exp(-(clear + loose) / mu0)
+    for _, index, cover, depth, thickness in blocks:
+        seen = slanted_cover(cover, thickness, tan0, rho[index])
+        mean = np.divide(depth, seen, out=np.zeros_like(depth), where=seen > 0.0)
+        product[index] *= 1.0 - seen + seen * gamma_mean_transmittance(mean, v[index], mu0)
+    return product
+
+
 def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, clear_sky_optical_depth,
                                cloud_relative_variance, mu0, layer_thickness=None, width_per_area=0.0):
     """Mean direct transmittance of a path through partly cloudy layers [1] (the formula of the direct-beam prior).
@@ -599,14 +662,12 @@ def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, 
     >>> round(float(direct_transmittance_prior([[0.4]], [[0.4 * 2.0]], [0.0], [0.0], 1.0)[0]), 12)  # 0.6 + 0.4 e^-2
     0.654134113295
     """
-    cover, depth, thickness, loose = cloud_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
-    mu0 = float(mu0)
-    tan0 = math.sqrt(max(1.0 - mu0 * mu0, 0.0)) / mu0
-    cover = np.where(cover > 0.0, slanted_cover(cover, thickness, tan0, width_per_area), 0.0)
-    mean = np.divide(depth, cover, out=np.zeros_like(depth), where=cover > 0.0)
-    blocks = 1.0 - cover + cover * gamma_mean_transmittance(mean, cloud_relative_variance, mu0)
-    clear = np.asarray(clear_sky_optical_depth, dtype=np.float64)
-    return np.exp(-(clear + loose) / mu0) * np.prod(blocks, axis=0)
+    shape = np.shape(clear_sky_optical_depth)
+    n = int(np.prod(shape, dtype=np.int64))
+    blocks, loose = _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
+    v = np.broadcast_to(np.asarray(cloud_relative_variance, dtype=np.float64), shape)
+    return _transmittance_of_blocks(blocks, loose.reshape(n), clear_sky_optical_depth, v, mu0,
+                                    width_per_area).reshape(shape)
 
 
 def _clear_sky_layers(fields):
@@ -615,16 +676,20 @@ def _clear_sky_layers(fields):
 
 def _cloud_layers(fields):
     """Layer optical depth beyond the clear-sky one (the cloud's share), >= 0 [1]."""
-    return _memo(fields, "cloud_tau", lambda: np.maximum(
-        np.asarray(fields["layer_optical_depth"], dtype=np.float64) - _clear_sky_layers(fields), 0.0))
-
-
-def _column_relative_variance(fields):
-    """In-cloud relative variance of each host column's own (vertical) cloud."""
     def compute():
-        cover, depth, _, _ = cloud_blocks(fields["layer_cloud_fraction"], _cloud_layers(fields))
-        return in_cloud_relative_variance(fields["column_optical_depth_std"], cover, depth)
-    return _memo(fields, "incloud_v", compute)
+        out = np.subtract(np.asarray(fields["layer_optical_depth"], dtype=np.float64), _clear_sky_layers(fields))
+        return np.maximum(out, 0.0, out=out)
+    return _memo(fields, "cloud_tau", compute)
+
+
+def _vertical_blocks(fields):
+    """Blocks of each host column's own layers (flat), ``loose`` and the in-cloud relative variance."""
+    def compute():
+        fraction = fields["layer_cloud_fraction"]
+        blocks, loose = _blocks_list(fraction, _cloud_layers(fields))
+        n = loose.size
+        return blocks, loose, _relative_variance_of_blocks(fields["column_optical_depth_std"], blocks, n)
+    return _memo(fields, "vertical_blocks", compute)
 
 
 def _area_weights(fields):
@@ -643,15 +708,16 @@ def _direct_prior(fields, slanted):
     def compute():
         mu0 = _mu0(fields)
         cloud, clear = _cloud_layers(fields), _clear_sky_layers(fields)
-        fraction = np.asarray(fields["layer_cloud_fraction"], dtype=np.float64)
-        v = _column_relative_variance(fields)
+        shape = cloud.shape[1:]
+        blocks, loose, v = _vertical_blocks(fields)
         if not slanted:
-            return direct_transmittance_prior(fraction, cloud, clear.sum(axis=0), v, mu0)
+            return _transmittance_of_blocks(blocks, loose, clear.sum(axis=0), v, mu0, 0.0).reshape(shape)
+        fraction = np.asarray(fields["layer_cloud_fraction"], dtype=np.float64)
         weights = _area_weights(fields)
         path_cloud, path_fraction = gather_layers(cloud, weights), gather_layers(fraction, weights)
         # Column properties of the crossed columns, weighted by the cloud optical depth
         # (relative variance) or the cloud fraction (cloud width per area) met in each.
-        v_path = _path_mean(v, cloud, weights, path_cloud.sum(axis=0))
+        v_path = _path_mean(v.reshape(shape), cloud, weights, path_cloud.sum(axis=0))
         rho = cloud_width_per_area(fields["total_cloud_fraction"], fields["cloud_edge_length"])
         rho_path = _path_mean(rho, fraction, weights, path_fraction.sum(axis=0))
         return direct_transmittance_prior(path_fraction, path_cloud, slant_sum(clear, weights), v_path, mu0,

@@ -88,6 +88,11 @@ def test_maximum_random_overlap_by_hand():
     c = np.where(rng.random((7, 50)) < 0.4, 0.0, rng.random((7, 50)))
     cover, _, _, _ = F.cloud_blocks(c, c)
     np.testing.assert_allclose(np.prod(1.0 - cover, axis=0), F.maximum_random_clear_fraction(c), rtol=1e-12)
+    # The features' block scan gives the same in-cloud relative variance as the plain functions.
+    fields = random_prior_fields()
+    cover, depth, _, _ = F.cloud_blocks(fields["layer_cloud_fraction"], F._cloud_layers(F._Fields(fields)))
+    plain = F.in_cloud_relative_variance(fields["column_optical_depth_std"], cover, depth)
+    np.testing.assert_allclose(F._vertical_blocks(F._Fields(fields))[2].reshape(plain.shape), plain, rtol=1e-12)
 
 
 @pytest.mark.parametrize("mean, v, mu0", [(5.0, 0.5, 0.8), (20.0, 2.0, 0.3), (0.7, 0.05, 1.0), (12.0, 1e-9, 0.5)])
