@@ -613,7 +613,7 @@ def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, 
     """Mean direct transmittance of a path through partly cloudy layers [1] (the formula of the direct-beam prior).
 
     The path's layers form blocks of adjacent cloudy layers (:func:`cloud_blocks`),
-    overlapped at random, each of cloud optical depth ``X_j``, thickness ``H_j`` and
+    overlapped at random, each of cloud optical depth ``X_j``, mean cloud thickness ``H_j`` and
     cover ``C_j`` (maximum-random overlap within it), seen by the slanted beam as
     ``C'_j = 1 - (1 - C_j)^(1 + rho H_j tan(theta0))`` (:func:`slanted_cover`).  A share
     ``1 - C'_j`` of the lines of sight misses the block, the others cross ``X_j / C'_j``
@@ -788,7 +788,8 @@ def _independent_column_feature(flux):
     def feature(fields, host_fluxes="monte_carlo"):
         return _independent_column(fields, flux)
     feature.__name__ = f"independent_column_{flux}"
-    feature.__doc__ = (f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident flux).\n\n"
+    feature.__doc__ = (f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident "
+                       "flux).\n\n"
                        "    ``host_fluxes`` (a recipe parameter) names the kind of fluxes the host passes (the\n"
                        "    column solver they come from); it does not change the computation.\n")
     return feature

@@ -109,7 +109,8 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
         clear_asy, cloudy_asy, _ = _sub_column_optics(scattering * asymmetry[b], clear, projected, fy, fx)
         band_albedo = block_mean(albedo[b], fy, fx)
         band = {}
-        for share, t, s, a in ((1.0 - cover, clear_tau, clear_sca, clear_asy), (cover, cloudy_tau, cloudy_sca, cloudy_asy)):
+        for share, t, s, a in ((1.0 - cover, clear_tau, clear_sca, clear_asy),
+                               (cover, cloudy_tau, cloudy_sca, cloudy_asy)):
             omega = np.clip(np.divide(s, t, out=np.ones_like(t), where=t > 0.0), 0.0, 1.0)
             g = np.clip(np.divide(a, s, out=np.zeros_like(s), where=s > 0.0), -0.999999, 0.999999)
             # Layers last for the solver: (Ny, Nx, nz).

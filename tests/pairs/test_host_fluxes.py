@@ -173,8 +173,8 @@ def test_a_model_of_one_kind_of_host_fluxes_is_refused_on_the_other(archive_2s):
     # What `surrogate3d score` checks before scoring (docs/methods/models-and-metrics.md).
     mc = build_pairs(archive_2s, 400.0, quiet=True)
     host = build_pairs(archive_2s, 400.0, quiet=True, host_fluxes="two_stream_host")
-    model = types.SimpleNamespace(name="boosted", feature_names=["cloud_fraction", "independent_column_toa_upward_flux"],
-                                  target_names=["toa_upward_flux"])
+    model = types.SimpleNamespace(name="boosted", target_names=["toa_upward_flux"],
+                                  feature_names=["cloud_fraction", "independent_column_toa_upward_flux"])
     recipe = json.loads(mc.attrs["feature_recipe"])
     check_pairs_match(model, recipe, mc)
     with pytest.raises(ValidationError, match="'independent_column_toa_upward_flux'.*host_fluxes = 'monte_carlo' in "

@@ -11,7 +11,8 @@ from surrogate3d.pairs.recipe import RECIPE_VERSION, FeatureRecipe, default_reci
 
 def test_default_recipe_lists_every_feature_but_the_priors_and_expands_radii():
     recipe = default_recipe()
-    priors = ("direct_beam_prior", "direct_beam_prior_minus_independent_column", "direct_beam_prior_slant_minus_vertical")
+    priors = ("direct_beam_prior", "direct_beam_prior_minus_independent_column",
+              "direct_beam_prior_slant_minus_vertical")
     assert recipe.features == tuple(f for f in FEATURES if f not in priors)
     radii = recipe.parameters["neighbour_radii"]
     assert "neighbour_mean_cloud_fraction_%gm" % radii[0] in recipe.column_names()
