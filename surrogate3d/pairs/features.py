@@ -795,6 +795,26 @@ def _independent_column_feature(flux):
     return feature
 
 
+#: Fluxes whose neighbourhood excess is a feature: what horizontal transport could bring.
+NEIGHBOUR_EXCESS_FLUXES = ("surface_downward_direct_flux", "surface_downward_diffuse_flux", "toa_upward_flux")
+
+
+def _neighbour_excess_feature(flux):
+    def feature(fields, radius, host_fluxes="monte_carlo"):
+        own = _independent_column(fields, flux)
+        mean = _memo(fields, ("nm_ica", flux, radius), lambda: neighbourhood_mean(
+            own, radius, _scalar(fields, "dx"), _scalar(fields, "dy")))
+        return mean - own
+    feature.__name__ = f"neighbour_excess_independent_column_{flux}"
+    feature.__doc__ = (f"Neighbourhood mean of the host's independent-column {flux.replace('_', ' ')} over the window "
+                       "reaching ``radius`` [m] beyond the column, minus the column's own [1].\n\n"
+                       "    Light scattered in one column leaves through others: in 3D a column's diffuse and\n"
+                       "    reflected fluxes lean toward their neighbourhood's (the smoothing of the non-local\n"
+                       "    independent pixel approximation; Marshak et al. 1995), and its direct flux toward\n"
+                       "    that of the columns its slant path crosses.  The excess says how far and which way.\n")
+    return feature
+
+
 def neighbour_mean_cloud_fraction(fields, radius):
     """Mean total cloud fraction over the window reaching ``radius`` [m] beyond the column [1]."""
     return _memo(fields, ("nm_cf", radius), lambda: neighbourhood_mean(
@@ -993,14 +1013,17 @@ FEATURES = {f.name: f for f in [
     Feature(slant_optical_depth, "1", _TAU + ("z_edge",)),
     Feature(slant_minus_vertical_optical_depth, "1", _TAU + ("z_edge",)),
     Feature(cloud_top_height_upsun_minus_downsun, "m", _LAYERS, ("cloud_side_distance",) + _THRESHOLD),
+    *[Feature(_neighbour_excess_feature(flux), "1", (f"independent_column_{flux}",), _HOST_FLUXES, per_radius=True)
+      for flux in NEIGHBOUR_EXCESS_FLUXES],
     # Physical priors (not in the default recipe: docs/features.md).
     Feature(direct_beam_prior, "1", _PRIOR),
     Feature(direct_beam_prior_minus_independent_column, "1", _PRIOR + _ICA_DIRECT, _HOST_FLUXES),
     Feature(direct_beam_prior_slant_minus_vertical, "1", _PRIOR),
 ]}
 
-#: Features of the default recipe: the registry up to the physical priors.
-DEFAULT_FEATURES = tuple(list(FEATURES)[:list(FEATURES).index("direct_beam_prior")])
+#: Features of the default recipe: the registry up to the neighbourhood excesses and physical priors.
+DEFAULT_FEATURES = tuple(list(FEATURES)[:list(FEATURES).index(
+    f"neighbour_excess_independent_column_{NEIGHBOUR_EXCESS_FLUXES[0]}")])
 
 
 def column_name(feature, radius=None):
