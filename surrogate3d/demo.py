@@ -62,6 +62,7 @@ def _data(name):
 
 def demo_settings(quick=False):
     """The demo's settings: scene set, simulate, pairs and evaluate options, recipe text."""
+    from .pairs.recipe import FeatureRecipe
     from .scenes.config import parse_config
 
     settings = tomllib.loads(_data("demo.toml"))
@@ -76,6 +77,7 @@ def demo_settings(quick=False):
         settings["pairs"]["host_resolutions"] = q["host_resolutions"]
         settings["evaluate"].update({k: q[k] for k in ("learning_curve_points", "importance_repeats", "map_scenes")})
     settings["scenes"] = parse_config(scenes, source="demo-scenes.toml")
+    settings["feature_recipe"] = FeatureRecipe.from_dict(tomllib.loads(_data("demo-features.toml")))
     settings["recipe"] = recipe
     return settings
 
@@ -128,7 +130,7 @@ def _warm_up_compiled_kernels():
     solve_monte_carlo(scene, 30.0, photons=200, threads=1, independent_columns=True)
 
 
-def _pairs_up_to_date(paths):
+def _pairs_up_to_date(paths, feature_recipe):
     from .archive import open_dataset
     from .pairs.build import archive_fingerprint
 
@@ -138,7 +140,8 @@ def _pairs_up_to_date(paths):
         attrs = open_dataset(paths.pairs).attrs
     except Surrogate3DError:
         return False
-    return attrs.get("archive_fingerprint") == archive_fingerprint(paths.archive)
+    return (attrs.get("archive_fingerprint") == archive_fingerprint(paths.archive)
+            and attrs.get("feature_recipe") == feature_recipe.to_json())
 
 
 def _training_up_to_date(paths):
@@ -205,12 +208,12 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
 
     resolutions = settings["pairs"]["host_resolutions"]
     stages.begin(3, "pairs", f"training pairs at host resolution {', '.join(f'{r:g}' for r in resolutions)} m")
-    if _pairs_up_to_date(paths):
+    if _pairs_up_to_date(paths, settings["feature_recipe"]):
         stages.end(f"reused {paths.pairs}")
     else:
         from .archive import write_dataset
 
-        write_dataset(build_pairs(paths.archive, resolutions, quiet=quiet), paths.pairs)
+        write_dataset(build_pairs(paths.archive, resolutions, recipe=settings["feature_recipe"], quiet=quiet), paths.pairs)
         stages.end(f"wrote {paths.pairs}")
 
     stages.begin(4, "train", "ridge and gradient-boosted corrections, scene-grouped cross-validation")
