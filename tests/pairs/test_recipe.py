@@ -12,7 +12,8 @@ from surrogate3d.pairs.recipe import RECIPE_VERSION, FeatureRecipe, default_reci
 def test_default_recipe_lists_every_feature_but_the_opt_in_ones_and_expands_radii():
     recipe = default_recipe()
     priors = ("direct_beam_prior", "direct_beam_prior_minus_independent_column",
-              "direct_beam_prior_slant_minus_vertical") + tuple(
+              "direct_beam_prior_slant_minus_vertical", "direct_beam_interception_tilted",
+              "direct_beam_interception_tilted_minus_vertical", "direct_beam_interception_relative_change") + tuple(
         f"neighbour_excess_independent_column_{flux}" for flux in NEIGHBOUR_EXCESS_FLUXES)
     assert recipe.features == tuple(f for f in FEATURES if f not in priors)
     radii = recipe.parameters["neighbour_radii"]
