@@ -173,7 +173,7 @@ def _consistency_table(evaluation):
             row.update({"clipped fraction": outcome.clipped_fraction,
                         "mean abs. balance shift [1]": float(np.mean(np.abs(outcome.balance_shift)))
                         if outcome.balance_shift.size else 0.0,
-                        "rescaled domains": outcome.rescaled_domains, "unbalanced domains": outcome.unbalanced_domains})
+                        "unbalanced domains": outcome.unbalanced_domains})
             rows.append(row)
     return pd.DataFrame(rows)
 

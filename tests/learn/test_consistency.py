@@ -40,14 +40,17 @@ def test_energy_balance_holds_to_round_off(synthetic_pairs):
     means = _domain_means(energy_residual(out.correction, albedo), groups)
     assert np.abs(means).max() < 1e-15
     assert out.unbalanced_domains == 0
-    # Only the absorption's domain mean moved (unless rescaled): its pattern is kept.
-    k = TARGETS.index("atmosphere_absorption")
-    if out.rescaled_domains == 0:
-        shift = correction[:, k] - out.correction[:, k]
-        clipped = ica[:, k] + correction[:, k] < 0
+    # The direct beam is kept; the scattered-light sinks are scaled by one factor per
+    # domain, so their patterns keep their shape.
+    before = apply_correction(ica, correction, albedo, groups, energy_balance=False).flux
+    direct = TARGETS.index("surface_downward_direct_flux")
+    np.testing.assert_array_equal(out.flux[:, direct], before[:, direct])
+    for name in ("toa_upward_flux", "atmosphere_absorption", "surface_downward_diffuse_flux"):
+        k = TARGETS.index(name)
         for g in np.unique(groups):
-            member = (groups == g) & ~clipped
-            assert np.ptp(shift[member]) < 1e-14
+            member = (groups == g) & (before[:, k] > 0)
+            ratio = out.flux[member, k] / before[member, k]
+            assert np.ptp(ratio) < 1e-12, name
 
 
 def test_components_add_up_and_fluxes_are_non_negative(synthetic_pairs):
@@ -61,15 +64,27 @@ def test_components_add_up_and_fluxes_are_non_negative(synthetic_pairs):
     assert out.clipped_fraction > 0
 
 
-def test_balance_never_makes_absorption_negative():
-    # One domain whose budget needs a large absorption cut: a uniform shift would go
-    # below zero, so the cut becomes proportional to the absorption (same domain mean).
+def test_balance_keeps_fluxes_non_negative_and_gives_no_absorption_to_a_clear_atmosphere():
+    # A budget that needs a large cut: scaling the sinks never makes one negative.
     ica = np.array([[0.6, 0.4, 0.2, 0.2, 0.01], [0.6, 0.4, 0.2, 0.2, 0.30]])
     correction = np.array([[0.02, 0.01, 0.01, 0.05, 0.0], [0.02, 0.01, 0.01, 0.05, 0.0]])
     out = apply_correction(ica, correction, [0.1, 0.1], [0, 0])
-    assert out.rescaled_domains == 1
-    assert out.flux[:, 4].min() >= 0.0
+    assert out.flux.min() >= 0.0 and out.unbalanced_domains == 0
     assert abs(energy_residual(out.correction, [0.1, 0.1]).mean()) < 1e-15
+    # An atmosphere that absorbs nothing (a conservative atmosphere, single-scattering
+    # albedo 1: its absorption is exactly zero in 3D as in the independent column) keeps
+    # absorbing nothing whatever the other corrections' budget residual.
+    ica = np.array([[0.7, 0.5, 0.2, 0.27, 0.0], [0.5, 0.3, 0.2, 0.45, 0.0]])
+    correction = np.array([[-0.1, -0.12, 0.02, 0.03, 0.0], [0.05, 0.03, 0.02, -0.02, 0.0]])
+    out = apply_correction(ica, correction, [0.1, 0.1], [0, 0])
+    np.testing.assert_array_equal(out.flux[:, 4], 0.0)
+    assert abs(energy_residual(out.correction, [0.1, 0.1]).mean()) < 1e-15
+
+
+def test_a_budget_the_direct_beam_alone_exceeds_is_counted_unbalanced():
+    ica = np.array([[0.7, 0.5, 0.2, 0.25, 0.05]])
+    out = apply_correction(ica, np.array([[0.0, 0.6, 0.0, 0.0, 0.0]]), [0.0], [0])
+    assert out.unbalanced_domains == 1 and out.flux.min() >= 0.0
 
 
 def test_remove_domain_mean(synthetic_pairs):

@@ -114,8 +114,9 @@ def test_clear_sky_features_are_checked_against_the_pairs(synthetic_pairs, small
 
 def test_default_recipes_gate_both_models():
     # The shipped recipes gate both models on the same features (docs/methods/models-and-metrics.md).
+    # Each with the largest neighbour radius of the feature recipe it is made for.
     demo = Path(__file__).resolve().parents[2] / "surrogate3d" / "data" / "demo-recipe.toml"
-    for path in (DEFAULT, demo):
+    for path, radius in ((DEFAULT, 5000), (demo, 4000)):
         gates = [spec.grid["clear_sky_features"] for spec in read_recipe(path).models]
-        assert gates == [[["cloud_fraction", "neighbour_mean_cloud_fraction_10000m",
+        assert gates == [[["cloud_fraction", f"neighbour_mean_cloud_fraction_{radius}m",
                            "slant_minus_vertical_optical_depth"]]] * 2, path
