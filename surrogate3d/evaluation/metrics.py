@@ -9,6 +9,8 @@ the corrected flux ``ica + p``, whose error against the 3D benchmark is ``p - t`
   correction itself);
 * ``skill = 1 - RMSE / RMSE_ica`` with ``RMSE_ica = sqrt(mean(t^2))``, the RMSE of no
   correction: 1 is perfect, 0 no better than the independent column, < 0 worse;
+  undefined (NaN, "-" in the tables) where the benchmarks do not resolve a 3D effect,
+  ``mean(t^2) <= 2 mean(s^2)`` (:data:`UNRESOLVED`);
 * noise floor: even a perfect model (``p`` = noise-free truth) scores
   ``RMSE = sqrt(mean(s^2))`` against noisy targets, so the best reachable skill is
   ``noise_floor_skill = 1 - sqrt(mean(s^2)) / RMSE_ica``;
@@ -41,6 +43,13 @@ HEADLINE_UNITS = "W m-2"
 #: correct (for example the direct beam under an overhead sun, where 3D equals the
 #: independent column exactly); skill is then undefined.
 NOTHING_TO_CORRECT = 1e-6
+
+#: Skills are undefined where the benchmarks do not resolve a 3D effect: where
+#: ``mean(t^2) <= UNRESOLVED * mean(s^2)``, the effect's noise-free RMS being no larger
+#: than the benchmark noise (an atmosphere that hardly absorbs, clear sky).  There a
+#: correction's tiny errors would give skills of any size and sign (common practice:
+#: a signal-to-noise ratio of at least 1 before a relative score means anything).
+UNRESOLVED = 2.0
 
 
 def _ratio(numerator, denominator):
@@ -94,16 +103,20 @@ def error_metrics(predicted, true, standard_error=None, scale=None):
     rmse, rmse_ica, noise_rmse = np.sqrt(mse), np.sqrt(mst), np.sqrt(noise)
     spread = float(np.sum((t - t.mean()) ** 2))
     corrected_rmse = np.sqrt(max(mse - noise, 0.0))
+    # Denominators of the skills; 0 (skill undefined) where no 3D effect is resolved.
+    resolved = not (noise > 0.0 and mst <= UNRESOLVED * noise)
+    reference = rmse_ica if resolved else 0.0
+    reference_noise_free = np.sqrt(max(mst - noise, 0.0)) if resolved else 0.0
     return {
         "n": int(n),
         "rmse": float(rmse),
         "mae": float(np.mean(np.abs(e))),
         "bias": float(np.mean(e)),
         "r2": 1.0 - _ratio(float(np.sum(e**2)), spread),
-        "skill": 1.0 - _ratio(rmse, rmse_ica),
+        "skill": 1.0 - _ratio(rmse, reference),
         "rmse_no_correction": float(rmse_ica),
         "noise_rmse": float(noise_rmse),
-        "noise_floor_skill": 1.0 - _ratio(noise_rmse, rmse_ica),
+        "noise_floor_skill": 1.0 - _ratio(noise_rmse, reference),
         "noise_corrected_rmse": float(corrected_rmse),
-        "noise_corrected_skill": 1.0 - _ratio(corrected_rmse, np.sqrt(max(mst - noise, 0.0))),
+        "noise_corrected_skill": 1.0 - _ratio(corrected_rmse, reference_noise_free),
     }

@@ -43,9 +43,24 @@ def test_perfect_predictor_on_noisy_targets_reaches_the_noise_floor():
     assert half["noise_corrected_skill"] == pytest.approx(0.5, abs=0.01)
 
 
+def test_skill_is_undefined_where_the_benchmarks_resolve_no_3d_effect():
+    # Targets that are benchmark noise only (an atmosphere that hardly absorbs): a
+    # relative score needs a signal at least as large as the noise (common practice), so
+    # every skill is undefined while the errors in W m-2 are still reported.
+    se = np.full(1000, 0.01)
+    noise_only = se * RNG.normal(size=1000)
+    m = error_metrics(0.03 + 0.0 * noise_only, noise_only, se)
+    assert np.isnan(m["skill"]) and np.isnan(m["noise_floor_skill"]) and np.isnan(m["noise_corrected_skill"])
+    assert m["rmse"] == pytest.approx(np.sqrt(np.mean((0.03 - noise_only) ** 2)))
+    assert m["rmse_no_correction"] == pytest.approx(np.sqrt(np.mean(noise_only**2)))
+    # A resolved effect (RMS 5 times the noise) is scored as usual.
+    effect = 0.05 * RNG.normal(size=1000) + noise_only
+    assert error_metrics(np.zeros(1000), effect, se)["skill"] == 0.0
+
+
 def test_watt_metrics_are_normalized_times_incident_flux():
     predicted, true, se = RNG.normal(size=(3, 300))
-    se = np.abs(se)
+    se = 0.3 * np.abs(se)
     flux = 1361.0 * np.cos(np.radians(40.0))
     a, b = error_metrics(predicted, true, se), error_metrics(predicted, true, se, scale=flux)
     for key in ("rmse", "mae", "bias", "rmse_no_correction", "noise_rmse", "noise_corrected_rmse"):
