@@ -119,9 +119,16 @@ class TiltedIndependentColumn(Baseline):
 
     Examples
     --------
-    >>> corr = TiltedIndependentColumn().corrections(scene, 60.0, 0.0)   # doctest: +SKIP
-    >>> sorted(corr)                                                      # doctest: +SKIP
-    ['atmosphere_absorption', 'surface_downward_diffuse_flux', ...]
+    >>> import numpy as np
+    >>> from surrogate3d.scenes import make_scene
+    >>> extinction = np.zeros((1, 4, 4, 4))
+    >>> extinction[0, 1:3, 1, 1] = 0.02          # one cloudy cell column, 500 m deep
+    >>> scene = make_scene(extinction, 1.0, 0.85, [0, 250, 500, 750, 1000], 100, 100)
+    >>> corr = TiltedIndependentColumn().corrections(scene, 60.0, 0.0)
+    >>> sorted(corr)
+    ['atmosphere_absorption', 'surface_downward_diffuse_flux', 'surface_downward_direct_flux', ...]
+    >>> corr["surface_downward_direct_flux"][1].round(2)   # the shadow falls beside the cloud
+    array([-0.99,  0.01, -1.  , -0.99])
     """
 
     name = "tilted_independent_column"

@@ -224,9 +224,25 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False):
 
     Examples
     --------
-    >>> pairs = build_pairs("archive", [1000.0, 2000.0], quiet=True)   # doctest: +SKIP
-    >>> pairs.sizes["target"]                                          # doctest: +SKIP
-    5
+    An archive of one scene (a block of cloud) with both results at one sun, paired at
+    400 m host columns:
+
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from surrogate3d.archive import insert_result, write_scene
+    >>> from surrogate3d.scenes import make_scene
+    >>> from surrogate3d.solvers import solve_monte_carlo
+    >>> extinction = np.zeros((1, 4, 8, 8))
+    >>> extinction[0, 1:3, 2:5, 2:5] = 0.02
+    >>> scene = make_scene(extinction, 1.0, 0.85, [0, 250, 500, 750, 1000], 100, 100)
+    >>> for independent_columns in (False, True):
+    ...     run = solve_monte_carlo(scene, 30.0, photons=4000, independent_columns=independent_columns)
+    ...     scene = insert_result(scene, run)
+    >>> archive = Path(tempfile.mkdtemp())
+    >>> _ = write_scene(scene, archive / "block.nc")
+    >>> pairs = build_pairs(archive, [400.0], quiet=True)
+    >>> pairs.sizes["sample"], pairs.sizes["target"]
+    (4, 5)
     """
     resolutions = _check_resolutions(host_resolutions)
     recipe = _check_recipe(recipe)

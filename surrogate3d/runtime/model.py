@@ -52,9 +52,9 @@ class CorrectionModel:
 
     Examples
     --------
-    >>> model = load_coefficients("models/boosted.coefficients.json")   # doctest: +SKIP
-    >>> model.predict(features).shape                                  # doctest: +SKIP
-    (n_column, 5)
+    >>> model = load_coefficients("models/default/boosted.coefficients.json")
+    >>> model.kind, model.n_features, model.target_names[0]
+    ('boosted', 32, 'surface_downward_flux')
     """
 
     def __init__(self, document, source="<document>"):
@@ -302,8 +302,8 @@ def load_coefficients(path):
     Examples
     --------
     >>> from surrogate3d.runtime import load_coefficients
-    >>> model = load_coefficients("export/boosted.coefficients.json")     # doctest: +SKIP
-    >>> corrections = model.predict_host(host_fields)                     # doctest: +SKIP
+    >>> load_coefficients("models/default/boosted.coefficients.json")
+    CorrectionModel(name='boosted', kind='boosted', features=32, targets=5)
     """
     path = Path(path)
     if not path.is_file():
