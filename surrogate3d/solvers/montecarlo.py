@@ -18,6 +18,7 @@ from ..errors import ParameterError
 from ..scenes.model import spacing
 from ..scenes.validation import validate_scene
 from . import _geometry, _transport
+from ._records import Beam, Grid, Optics, Run, RunSums
 from .sun import beam_direction, check_sun
 
 #: Solar constant [W m-2] (Kopp and Lean 2011, Geophys. Res. Lett. 38, L01706).
@@ -179,8 +180,8 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
     return kmaj, cube_radius(bclear, max_radius), kclear, bx, by, bedge, clear_below, clear_above
 
 
-def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge):
-    """:func:`majorant_blocks` packed in the order the 3D kernel unpacks it.
+def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge, dx, dy):
+    """The :class:`~surrogate3d.solvers._records.Grid` of the cells and the blocks of :func:`majorant_blocks`.
 
     The kernel reads first a four-bit block code: 0 for a block tracked at its majorant, 1
     for a block tracked at the clear-air rate ``kclear`` (no majorant read), ``r + 1`` for
@@ -195,8 +196,8 @@ def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above,
     if code.shape[3] % 2:
         code = np.concatenate([code, np.zeros(code.shape[:3] + (1,), np.uint8)], axis=3)
     packed = np.ascontiguousarray(code[..., 0::2] | (code[..., 1::2] << 4))
-    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, packed, kclear, clear_below,
-            clear_above)
+    return Grid(z_edge, float(dx), float(dy), int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj,
+                packed, kclear, clear_below, clear_above)
 
 
 def _ray_table_edges(nz, layers):
@@ -379,7 +380,8 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                                                            w3 * (1.0 - alb) * surface]))
             cdf = np.cumsum((source * weights[:, None]).reshape(-1))
             grid = _majorant_grid(np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb),
-                                  1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge)
+                                  1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge,
+                                  dx, dy)
             czi = np.zeros(2, np.int64)
             nsub, reach = 1, (0.0, 0.0)
             # Run-level scale: the whole photon weight of all batches maps to 2**61 units.
@@ -388,7 +390,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             absorbed = None
             column_direct = np.zeros((3, nb, ny, nx))
             cdf = np.zeros(1)
-            grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge)
+            grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge, dx, dy)
             czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
             path = (z_edge[-1] - z_edge[0]) / mu0
             reach = (path * ux, path * uy)
@@ -404,14 +406,15 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         # inside int64 and fine enough (2**-61) that rounding never shows.
         scale = 2.0**61 / (n_batches * energy)
         cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
+        optics = Optics(kext, ssa_g, column_props, alb, weights)
+        beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, czi, cdf, column_direct)
+        run = Run(not independent_columns, seed, batch_size, roulette, max_events)
+        sums = RunSums(col_sum, spread, cell_fixed, scale)
         chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
         events = 0
         for first in range(0, n_batches, chunk):
             n = min(chunk, n_batches - first)
-            events += _transport.run_batches(
-                first, n, WAVE, not independent_columns, seed, batch_size, cdf, weights, kext, ssa_g, column_props,
-                alb, z_edge, dx, dy, ux, uy, uz, nsub, reach, edge_slot, grid, czi, column_direct, roulette,
-                max_events, col_sum, spread, cell_fixed, scale)
+            events += _transport.run_batches(first, n, WAVE, run, optics, grid, beam, sums)
             if progress is not None:
                 progress((first + n) * batch_size)
         cell = cell_fixed.sum(axis=0) / (scale * n_batches)
