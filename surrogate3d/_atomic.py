@@ -1,7 +1,8 @@
 """Atomic file writes: write to a temporary file beside the target, then rename.
 
 An interrupted write never leaves a half-written file under the final name, and an
-existing file is replaced only once the new one is complete.
+existing file is replaced only once the new one is complete.  OS and NetCDF errors
+become one-line :class:`~surrogate3d.errors.OutputError` messages.
 """
 
 import contextlib
@@ -9,7 +10,8 @@ import os
 import tempfile
 from pathlib import Path
 
-from .errors import Surrogate3DError
+from ._outputs import output_errors
+from .errors import OutputError
 
 
 @contextlib.contextmanager
@@ -34,19 +36,25 @@ def atomic_path(path, suffix=None):
     """
     path = Path(path)
     directory = path.parent if str(path.parent) else Path(".")
+    if path.is_dir():
+        raise OutputError(f"cannot write {str(path)!r}: it is a directory")
     if not directory.is_dir():
-        raise Surrogate3DError(f"directory {str(directory)!r} does not exist")
+        what = "is a file, not a directory" if directory.exists() else "does not exist"
+        raise OutputError(f"cannot write {str(path)!r}: directory {str(directory)!r} {what}")
     if not os.access(directory, os.W_OK):
-        raise Surrogate3DError(f"directory {str(directory)!r} is not writable")
-    fd, tmp = tempfile.mkstemp(dir=directory, prefix=f".{path.name}.", suffix=suffix or path.suffix + ".tmp")
-    os.close(fd)
-    # mkstemp creates the file readable by its owner only; give it the usual permissions.
-    umask = os.umask(0)
-    os.umask(umask)
-    os.chmod(tmp, 0o666 & ~umask)
+        raise OutputError(f"cannot write {str(path)!r}: directory {str(directory)!r} is not writable")
+    with output_errors(path):
+        fd, tmp = tempfile.mkstemp(dir=directory, prefix=f".{path.name}.", suffix=suffix or path.suffix + ".tmp")
+        os.close(fd)
+        # mkstemp creates the file readable by its owner only; give it the usual permissions.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
     try:
-        yield Path(tmp)
-        os.replace(tmp, path)
+        # Errors are described while the temporary file still takes its space (a full disk shows).
+        with output_errors(path):
+            yield Path(tmp)
+            os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)

@@ -15,6 +15,7 @@ from importlib import resources
 from pathlib import Path
 
 from ._atomic import write_text_atomic
+from ._outputs import staged_directory
 from .errors import Surrogate3DError
 
 STAGES = ("scenes", "simulate", "pairs", "train", "evaluate", "export")
@@ -218,7 +219,8 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     if _training_up_to_date(paths):
         stages.end(f"reused {paths.models}")
     else:
-        train_models(paths.pairs, paths.recipe, paths.models, quiet=quiet)
+        with staged_directory(paths.models, replace=True, marker="training.json") as staging:
+            train_models(paths.pairs, paths.recipe, staging, quiet=quiet)
         stages.end(f"wrote {paths.models}")
 
     ev = settings["evaluate"]
@@ -229,7 +231,8 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     else:
         evaluation = evaluate(paths.models, paths.pairs, learning_curve_points=ev["learning_curve_points"],
                               importance_repeats=ev["importance_repeats"], quiet=quiet)
-        page = write_report(evaluation, paths.report, map_scenes=ev["map_scenes"])
+        with staged_directory(paths.report, marker="report.html") as staging:
+            page = paths.report / write_report(evaluation, staging, map_scenes=ev["map_scenes"]).relative_to(staging)
         stages.end(f"wrote {page}")
 
     stages.begin(6, "export", "coefficient files and the Fortran module")
@@ -237,8 +240,10 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     if _newer(marker, page):
         stages.end(f"reused {paths.export}")
     else:
-        export_training_run(paths.models, paths.export, report_dir=paths.report, fortran=True, pairs_path=paths.pairs)
-        write_text_atomic(marker, f"Exported from {paths.models} with the skill table of {paths.report}.\n")
+        with staged_directory(paths.export, marker=marker.name) as staging:
+            export_training_run(paths.models, staging, report_dir=paths.report, fortran=True, pairs_path=paths.pairs)
+            write_text_atomic(staging / marker.name,
+                              f"Exported from {paths.models} with the skill table of {paths.report}.\n")
         stages.end(f"wrote {paths.export}")
 
     summary = summarize(paths, Path(page))

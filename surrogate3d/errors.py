@@ -22,3 +22,10 @@ class FormatError(Surrogate3DError):
 
 class ParameterError(ValidationError):
     """A function or estimator parameter is outside its allowed range."""
+
+
+class OutputError(Surrogate3DError, OSError):
+    """An output cannot be written: its location is wrong, in use, full, read-only or not permitted.
+
+    The message names the path and says what to do about it.
+    """

@@ -1,38 +1,73 @@
-"""Listing an archive directory: what each scene file is and which results it holds."""
+"""Listing an archive directory: what each scene file is, which results it holds, and what is wrong."""
+
+import contextlib
 
 import pandas as pd
-import xarray as xr
 
-from ..errors import FormatError
-from .netcdf import ENGINE, read_result_flags, scene_files
+from ..errors import FormatError, Surrogate3DError
+from .leftovers import find_leftovers, orphaned_pending_dirs
+from .locking import archive_in_use
+from .netcdf import read_result_flags, read_scene, scene_files
 from .pending import pending_keys
 from .results import completed
 
+COLUMNS = ["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands", "results", "pending", "status"]
+
 
 def list_archive(archive_dir):
-    """One row per scene file of ``archive_dir``.
+    """One row per scene file of ``archive_dir``, each file checked as ``simulate`` checks it.
 
     Returns
     -------
     pandas.DataFrame
         Columns: file, regime, seed, nx, ny, nz, dx_m, bands, results (solver@zenith/azimuth
         entries, comma separated), pending (results of an interrupted run not yet merged:
-        run ``surrogate3d simulate`` again to merge them), status ("ok" or the reason it
-        cannot be read).
+        run ``surrogate3d simulate`` again to merge them), status ("ok", or "unreadable: ..."
+        or "invalid: ..." with the first problem).
     """
     rows = []
     for path in scene_files(archive_dir):
         row = {"file": path.name}
         try:
+            scene = read_scene(path, results=False, validate=False)
+            row.update(regime=scene.attrs.get("regime", ""), seed=scene.attrs.get("seed", ""),
+                       nx=scene.sizes.get("x"), ny=scene.sizes.get("y"), nz=scene.sizes.get("z"),
+                       dx_m=scene.attrs.get("dx_m"), bands=scene.sizes.get("band"))
             done = completed(read_result_flags(path))
-            with xr.open_dataset(path, engine=ENGINE) as ds:
-                row.update(regime=ds.attrs.get("regime", ""), seed=ds.attrs.get("seed", ""),
-                           nx=ds.sizes.get("x"), ny=ds.sizes.get("y"), nz=ds.sizes.get("z"),
-                           dx_m=ds.attrs.get("dx_m"), bands=ds.sizes.get("band"),
-                           results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done),
-                           pending=len(pending_keys(path)), status="ok")
-        except (OSError, ValueError, KeyError, FormatError) as exc:
+            row.update(results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done), pending=len(pending_keys(path)))
+        except (FormatError, OSError, ValueError, KeyError) as exc:
             row["status"] = f"unreadable: {exc}"
+            rows.append(row)
+            continue
+        try:
+            read_scene(path, results=False)  # the validation simulate and pairs apply
+            row["status"] = "ok"
+        except Surrogate3DError as exc:
+            row["status"] = f"invalid: {exc}"
         rows.append(row)
-    return pd.DataFrame(rows, columns=["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands",
-                                       "results", "pending", "status"])
+    table = pd.DataFrame(rows, columns=COLUMNS)
+    for column in ("seed", "nx", "ny", "nz", "bands", "pending"):
+        with contextlib.suppress(TypeError, ValueError):  # a foreign archive may name its seeds
+            table[column] = table[column].astype("Int64")  # whole numbers, also beside unreadable files
+    return table
+
+
+def archive_notes(archive_dir):
+    """Lines about the archive directory itself: leftovers of killed runs, orphaned results, a run in progress."""
+    notes = []
+    in_use = archive_in_use(archive_dir)
+    leftovers = find_leftovers(archive_dir)
+    if leftovers and in_use:
+        notes.append(f"{len(leftovers)} temporary entr{'y' if len(leftovers) == 1 else 'ies'} of the run now using "
+                     "the archive")
+    elif leftovers:
+        names = ", ".join(str(p.relative_to(archive_dir)) for p in leftovers[:3])
+        more = f" and {len(leftovers) - 3} more" if len(leftovers) > 3 else ""
+        notes.append(f"{len(leftovers)} temporary entr{'y' if len(leftovers) == 1 else 'ies'} left by killed runs "
+                     f"({names}{more}); the next 'surrogate3d simulate' removes them")
+    elif in_use:
+        notes.append("a run (simulate or scenes) is using the archive now")
+    for directory in orphaned_pending_dirs(archive_dir):
+        notes.append(f"{directory.name} holds results of a scene file that is not in the archive; restore the "
+                     "scene file to merge them, or remove the directory")
+    return notes

@@ -5,10 +5,12 @@ spend its time on I/O.  A finished run is instead written at once, atomically, a
 file in the hidden directory ``.<scene>.pending/`` beside its scene file; the pending
 results of a scene are merged into the scene file in one rewrite (and then removed) when
 its last run finishes, or by the next run after an interruption.  Nothing finished is
-ever lost, and readers of the archive only ever see complete scene files.
+ever lost, and readers of the archive only ever see complete scene files.  Runs that
+share an archive hold the scene's lock (:mod:`surrogate3d.archive.locking`) while they
+write or merge its pending results.
 """
 
-import shutil
+import contextlib
 from pathlib import Path
 
 from .netcdf import open_dataset, read_scene, write_dataset, write_scene
@@ -26,7 +28,12 @@ def write_pending(scene_path, result):
     solver, zenith, azimuth = run_key(result)
     directory = pending_dir(scene_path)
     directory.mkdir(exist_ok=True)
-    return write_dataset(result, directory / f"{solver}_{zenith:.6f}_{azimuth:.6f}.nc")
+    try:
+        return write_dataset(result, directory / f"{solver}_{zenith:.6f}_{azimuth:.6f}.nc")
+    except BaseException:
+        with contextlib.suppress(OSError):  # not empty: it holds earlier results
+            directory.rmdir()
+        raise
 
 
 def pending_files(scene_path):
@@ -47,11 +54,17 @@ def pending_keys(scene_path):
 
 
 def merge_pending(scene_path):
-    """Merge a scene's pending results into its file in one atomic rewrite; returns how many."""
+    """Merge a scene's pending results into its file in one atomic rewrite; returns how many.
+
+    Only the merged files are removed afterwards, and the pending directory once empty.
+    """
     files = pending_files(scene_path)
     if files:
         results = [open_dataset(p, what="pending result") for p in files]
         scene = read_scene(scene_path)
         write_scene(insert_results(scene, results), scene_path, validate=False)
-    shutil.rmtree(pending_dir(scene_path), ignore_errors=True)
+        for path in files:
+            path.unlink(missing_ok=True)
+    with contextlib.suppress(OSError):  # missing, or holding files of another run
+        pending_dir(scene_path).rmdir()
     return len(files)

@@ -19,7 +19,7 @@ def register(sub):
     p.add_argument("--map-scenes", type=int, default=2, metavar="N", help="held-out scenes shown as maps (default 2)")
     p.add_argument("--seed", type=int, default=0, help="seed of permutations and learning-curve order (default 0)")
     p.add_argument("--quiet", action="store_true", help="no progress bars or summary")
-    p.set_defaults(func=run)
+    p.set_defaults(func=run, interrupted="nothing was written")
 
     from .score_command import register as register_score
 
@@ -27,16 +27,19 @@ def register(sub):
 
 
 def run(args):
+    from .._outputs import check_output_directory, staged_directory
     from ..errors import ParameterError
     from .report import HELD_OUT, evaluate, write_report
 
     for name in ("learning_curve_points", "importance_repeats", "map_scenes", "seed"):
         if getattr(args, name) < 0:
             raise ParameterError(f"--{name.replace('_', '-')} must be >= 0; got {getattr(args, name)}")
+    out = check_output_directory(args.out, "--out")
     evaluation = evaluate(args.model_dir, args.pairs, consistency=not args.no_consistency,
                           learning_curve_points=args.learning_curve_points,
                           importance_repeats=args.importance_repeats, seed=args.seed, quiet=args.quiet)
-    page = write_report(evaluation, args.out, map_scenes=args.map_scenes)
+    with staged_directory(out, marker="report.html") as staging:
+        page = out / write_report(evaluation, staging, map_scenes=args.map_scenes).relative_to(staging)
     if args.quiet:
         return
     table = evaluation.table

@@ -27,9 +27,9 @@ from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.recipe import FeatureRecipe
 from ..runtime import envelope as _envelope
-from ..runtime.document import (ARRAYS, ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, check_document,
-                                document_from_json, document_to_json)
-from .flatten import clear_sky_gate, flatten, training_envelope
+from ..runtime.document import (ARRAYS, ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, TRANSFORM_FIELD,
+                                check_document, document_from_json, document_to_json)
+from .flatten import clear_sky_gate, flatten, target_transforms, training_envelope
 
 #: Suffixes of the two files of one model.
 NETCDF_SUFFIX = ".coefficients.nc"
@@ -123,6 +123,9 @@ def build_document(trained, report_dir=None):
     envelope = training_envelope(trained.estimator)
     if envelope is not None:
         document[ENVELOPE_FIELD] = envelope
+    transforms = target_transforms(trained.estimator)
+    if transforms is not None:
+        document[TRANSFORM_FIELD] = transforms
     check_document(document, f"model {trained.name!r}")
     return document
 
@@ -200,7 +203,7 @@ def document_to_dataset(document):
                 "model_name": document["model"]["name"], "model_kind": kind}
     ds.attrs["features"] = json.dumps({k: v for k, v in document["features"].items() if k != "names"})
     ds.attrs["targets"] = json.dumps({k: v for k, v in document["targets"].items() if k != "names"})
-    for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD):
+    for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD, TRANSFORM_FIELD):
         if key in document:
             ds.attrs[key] = json.dumps(document[key], allow_nan=False)
     if ENVELOPE_FIELD in document:
@@ -219,9 +222,10 @@ def dataset_to_document(ds, source):
         raise FormatError(f"{source!r} is not a surrogate3d coefficient file: attribute format is "
                           f"{attrs.get('format')!r}; expected {FORMAT_NAME!r}")
     content = {"format": attrs["format"], "format_version": attrs.get("format_version")}
-    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD, ENVELOPE_FIELD):
+    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD, ENVELOPE_FIELD,
+                TRANSFORM_FIELD):
         if key not in attrs:
-            if key in (GATE_FIELD, ENVELOPE_FIELD):   # optional: older files have neither
+            if key in (GATE_FIELD, ENVELOPE_FIELD, TRANSFORM_FIELD):   # optional: older files lack them
                 continue
             raise FormatError(f"coefficient file {source!r} lacks attribute {key!r}")
         try:

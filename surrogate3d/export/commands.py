@@ -17,19 +17,25 @@ def register(sub):
     p.add_argument("--sample-columns", type=int, default=64, metavar="N",
                    help="columns in the Fortran sample features file (default 64)")
     p.add_argument("--quiet", action="store_true", help="print nothing on success")
-    p.set_defaults(func=run)
+    p.set_defaults(func=run, interrupted="nothing was written")
 
 
 def run(args):
     import os
 
+    from .._outputs import check_output_directory, staged_directory
     from ..errors import ParameterError
     from .exporter import export_training_run
 
     if args.sample_columns < 1:
         raise ParameterError(f"--sample-columns must be >= 1; got {args.sample_columns}")
-    exported = export_training_run(args.model_dir, args.out, model=args.model, report_dir=args.report,
-                                   fortran=args.fortran, pairs_path=args.pairs, n_sample_columns=args.sample_columns)
+    out = check_output_directory(args.out, "--out")
+    with staged_directory(out) as staging:
+        exported = export_training_run(args.model_dir, staging, model=args.model, report_dir=args.report,
+                                       fortran=args.fortran, pairs_path=args.pairs,
+                                       n_sample_columns=args.sample_columns)
+    exported = {name: {key: out / path.relative_to(staging) for key, path in paths.items()}
+                for name, paths in exported.items()}
     if args.quiet:
         return
     for name, paths in exported.items():

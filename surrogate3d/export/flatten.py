@@ -134,6 +134,28 @@ def clear_sky_gate(estimator):
             "tolerance": float(getattr(estimator, "clear_sky_tolerance_", 0.0))}
 
 
+def target_transforms(estimator):
+    """The ``target_transforms`` field of a coefficient file from a fitted estimator.
+
+    Returns
+    -------
+    list or None
+        Per target, None or ``scale_feature`` (index, -1 for none), ``scale_floor``,
+        ``offset_features`` (indices) and ``offset_coefficients``; None when no target
+        has a transform (the field is then left out).
+    """
+    resolved = getattr(estimator, "target_transform_", None)  # none on estimators fitted before transforms
+    if resolved is None:
+        return None
+    scale_index, scale_floor, offset_index, offset_coef = resolved
+    field = [None if scale_index[m] < 0 and not offset_index[m].size else
+             {"scale_feature": int(scale_index[m]), "scale_floor": float(scale_floor[m]),
+              "offset_features": [int(k) for k in offset_index[m]],
+              "offset_coefficients": [float(c) for c in offset_coef[m]]}
+             for m in range(scale_index.size)]
+    return field if any(spec is not None for spec in field) else None
+
+
 def training_envelope(estimator):
     """The ``training_envelope`` field of a coefficient file from a fitted estimator.
 

@@ -39,7 +39,7 @@ import numpy as np
 
 from .._atomic import write_text_atomic
 from ..errors import FormatError, ValidationError
-from ..runtime.document import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate
+from ..runtime.document import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate, target_transforms
 from ..runtime.ridge import NEAR_CONSTANT
 
 #: Numbers per line in the data files.
@@ -78,9 +78,13 @@ def data_file_text(document):
     gate, tolerance = clear_sky_gate(document)
     envelope = document.get(ENVELOPE_FIELD)
     n_components = 0 if envelope is None else envelope["components"].shape[0]
+    transforms = [spec or {"scale_feature": -1, "scale_floor": 0.0, "offset_features": [], "offset_coefficients": []}
+                  for spec in target_transforms(document)]
+    offsets = [(m, k, c) for m, spec in enumerate(transforms)
+               for k, c in zip(spec["offset_features"], spec["offset_coefficients"])]
     lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"kind {kind}", f"model {document['model']['name']}",
              f"n_features {len(features)}", f"n_targets {len(targets)}", f"n_clear_sky_features {len(gate)}",
-             f"n_envelope_components {n_components}"]
+             f"n_envelope_components {n_components}", f"n_offset_terms {len(offsets)}"]
     if kind == "ridge":
         lines.append(f"n_pairs {arrays['interaction_pairs'].shape[0]}")
         order = ("feature_mean", "feature_scale", "interaction_pairs", "coef", "intercept")
@@ -98,6 +102,11 @@ def data_file_text(document):
         for name in _ENVELOPE_SECTIONS:
             lines.append(f"envelope_{name}")
             lines += _lines(envelope[name])
+    lines += ["target_scale_feature", *_lines([t["scale_feature"] for t in transforms], integer=True),
+              "target_scale_floor", *_lines([t["scale_floor"] for t in transforms]),
+              "offset_target", *_lines([o[0] for o in offsets], integer=True),
+              "offset_feature", *_lines([o[1] for o in offsets], integer=True),
+              "offset_coefficient", *_lines([o[2] for o in offsets])]
     return "\n".join(lines) + "\n"
 
 
@@ -281,7 +290,12 @@ _GATE_COMPONENTS = """\
     real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
-    real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64"""
+    real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
+    integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
+    real(real64), allocatable :: target_scale_floor(:)       ! (n_targets)
+    integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
+    integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
+    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)"""
 
 #: Start of the pure column procedures: zero correction where the clear-sky gate holds.
 _GATE_TEST = """\
@@ -345,6 +359,27 @@ def _batched_procedure(prefix):
                      distance <= model%envelope_threshold)
   end subroutine {prefix}_check_column
 
+  !> The model's outputs made corrections: each scaled by its scale feature (at least the floor),
+  !> then the prior terms added (coefficient times feature) -- target transforms of the coefficient file.
+  pure subroutine apply_transforms(model, features, corrections)
+    type({prefix}_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features({prefix}_n_features)
+    real(real64), intent(inout) :: corrections({prefix}_n_targets)
+    integer :: m, o
+    real(real64) :: x
+    do m = 1, {prefix}_n_targets
+      if (model%target_scale_feature(m) > 0) then
+        ! A missing (NaN) scale feature makes the correction NaN, as in numpy's maximum.
+        x = features(model%target_scale_feature(m))
+        corrections(m) = corrections(m) * merge(x, max(x, model%target_scale_floor(m)), ieee_is_nan(x))
+      end if
+    end do
+    do o = 1, model%n_offsets
+      corrections(model%offset_target(o)) = corrections(model%offset_target(o)) + &
+          model%offset_coefficient(o) * features(model%offset_feature(o))
+    end do
+  end subroutine apply_transforms
+
   !> All clear-sky gate features (near) zero: a clear column far from cloud, which has no 3D correction.
   !> The loop stops at the first feature that is not zero (NaN compares false: not zero).
   pure logical function clear_sky(model, features)
@@ -367,9 +402,9 @@ def _gate_reader(prefix):
       if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= {prefix}_n_features)) then
         status = 1
         message = 'coefficient file: a clear_sky_features index is out of range'
-      else if (.not. (tolerance(1) >= 0.0_real64)) then
+      else if (.not. (ieee_is_finite(tolerance(1)) .and. tolerance(1) >= 0.0_real64)) then
         status = 1
-        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+        message = 'coefficient file: clear_sky_tolerance must be a finite number >= 0'
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
@@ -400,6 +435,31 @@ def _gate_reader(prefix):
               'threshold or a maximum below its minimum'
         end if
       end if
+    end if
+    if (status == 0) then
+      allocate (model%target_scale_feature({prefix}_n_targets), model%target_scale_floor({prefix}_n_targets))
+      allocate (model%offset_target(model%n_offsets), model%offset_feature(model%n_offsets))
+      allocate (model%offset_coefficient(model%n_offsets))
+      call read_integers(unit, 'target_scale_feature', model%target_scale_feature, status, message)
+      if (status == 0) call read_reals(unit, 'target_scale_floor', model%target_scale_floor, status, message)
+      if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
+      if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
+      if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      if (status == 0) then
+        if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= {prefix}_n_features) .or. &
+            any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
+            any(model%offset_target < 0 .or. model%offset_target >= {prefix}_n_targets) .or. &
+            any(model%offset_feature < 0 .or. model%offset_feature >= {prefix}_n_features) .or. &
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+          status = 1
+          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
+              'coefficient that is not finite'
+        else
+          model%target_scale_feature = model%target_scale_feature + 1
+          model%offset_target = model%offset_target + 1
+          model%offset_feature = model%offset_feature + 1
+        end if
+      end if
     end if"""
 
 
@@ -413,7 +473,7 @@ def _module_header(prefix, document):
 ! units of {prefix}_feature_names (see the coefficient file and docs/host-model-guide.md).
 module {prefix}_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   implicit none
   private
 
@@ -470,6 +530,7 @@ contains
     do p = 1, model%n_pairs
       corrections = corrections + model%coef(:, {prefix}_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
     end do
+    call apply_transforms(model, features, corrections)
   end subroutine {prefix}_correct_column
 
 {_batched_procedure(prefix)}
@@ -493,6 +554,7 @@ contains
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
     call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
+    call read_count(unit, 'n_offset_terms', model%n_offsets, status, message)
     call read_count(unit, 'n_pairs', model%n_pairs, status, message)
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
@@ -509,6 +571,14 @@ contains
     if (status == 0) call read_integers(unit, 'interaction_pairs', pair_list, status, message)
     if (status == 0) call read_reals(unit, 'coef', coef_list, status, message)
     if (status == 0) call read_reals(unit, 'intercept', model%intercept, status, message)
+    if (status == 0) then
+      ! NaN or infinite coefficients would turn every correction into NaN.
+      if (.not. (all(ieee_is_finite(model%feature_mean)) .and. all(ieee_is_finite(model%feature_scale)) .and. &
+          all(ieee_is_finite(coef_list)) .and. all(ieee_is_finite(model%intercept)))) then
+        status = 1
+        message = 'coefficient file: feature_mean, feature_scale, coef and intercept must be finite numbers'
+      end if
+    end if
 {_gate_reader(prefix)}
     if (status == 0) then
       ! The file lists the pairs (i, j) and the coefficients target by target, row by row.
@@ -580,6 +650,7 @@ contains
       m = model%tree_target(t)
       corrections(m) = corrections(m) + model%value(node)
     end do
+    call apply_transforms(model, features, corrections)
   end subroutine {prefix}_correct_column
 
 {_batched_procedure(prefix)}
@@ -604,6 +675,7 @@ contains
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
     call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
+    call read_count(unit, 'n_offset_terms', model%n_offsets, status, message)
     call read_count(unit, 'n_trees', model%n_trees, status, message)
     call read_count(unit, 'n_nodes', model%n_nodes, status, message)
     call read_count(unit, 'n_leaves', n_leaves, status, message)
@@ -627,6 +699,16 @@ contains
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
     if (status == 0) call read_reals(unit, 'threshold_values', threshold_values, status, message)
+    if (status == 0) then
+      ! NaN or infinite leaves or baselines would turn corrections into NaN; a NaN threshold sends every value right.
+      if (.not. (all(ieee_is_finite(model%baseline)) .and. all(ieee_is_finite(leaf_value)))) then
+        status = 1
+        message = 'coefficient file: baseline and leaf_value must be finite numbers'
+      else if (any(ieee_is_nan(threshold_values))) then
+        status = 1
+        message = 'coefficient file: threshold_values must not be NaN'
+      end if
+    end if
 {_gate_reader(prefix)}
     if (unit /= -1) close (unit)
     if (status /= 0) return

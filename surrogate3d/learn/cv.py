@@ -154,7 +154,7 @@ def scene_folds(scenes, n_folds):
     scenes = np.asarray(scenes).astype(str)
     n_scenes = np.unique(scenes).size
     if n_scenes < 2:
-        raise ValidationError(f"cross-validation needs at least 2 training scenes; got {n_scenes}")
+        raise ValidationError(f"cross-validation needs at least 2 groups (training scenes, or families); got {n_scenes}")
     folds = GroupKFold(n_splits=min(int(n_folds), n_scenes))
     return [(train, test) for train, test in folds.split(np.zeros(scenes.size), groups=scenes)]
 

@@ -30,6 +30,7 @@ from ..errors import ParameterError, ValidationError
 from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
 from ..runtime.ridge import near_constant
 from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
+from .transforms import apply_transforms, check_scales, check_transforms, offsets_and_scales, resolve_transforms
 
 #: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
 _SINGULAR_CUTOFF = 1e-12
@@ -176,9 +177,9 @@ class _PairsTableMixin:
         """
         check_is_fitted(self)
         if getattr(self, "feature_names_", None) is None:
-            raise ValidationError(f"{type(self).__name__} was fitted from arrays without feature names; "
+            raise ValidationError(f"the {model_kind(self)} model was fitted from arrays without feature names; "
                                   "fit it with fit_pairs to predict from a pairs table")
-        X = feature_matrix(pairs, self.feature_names_, needed_by=f"this {type(self).__name__}")
+        X = feature_matrix(pairs, self.feature_names_, needed_by=f"the {model_kind(self)} model")
         Y = self.predict(X)
         return Y[:, None] if Y.ndim == 1 else Y
 
@@ -234,6 +235,25 @@ class _PairsTableMixin:
                                   f"{X.shape[0] - np.count_nonzero(keep)} of the {X.shape[0]} samples; at least 2 "
                                   "ungated samples are needed to fit")
         return X[keep], Y[keep]
+
+    def _fit_transforms(self, X, Y):
+        """Resolve ``target_transforms`` and return ``(residual targets, sample weights)``.
+
+        The weights (``scale**2`` per target) make the fit of a scaled residual minimise
+        the squared error of the correction itself (:mod:`surrogate3d.learn.transforms`).
+        """
+        self.target_transform_ = resolve_transforms(self.target_transforms, Y.shape[1], self.feature_names_)
+        check_scales(self.target_transform_, X)
+        offset, scale = offsets_and_scales(self.target_transform_, X)
+        return (Y - offset) / scale, scale * scale
+
+    def _transformed(self, X, F):
+        """Corrections from learned residuals ``F``: ``offset + scale * F``, 0 where the gate holds."""
+        resolved = getattr(self, "target_transform_", None)  # none on estimators pickled before transforms
+        if resolved is not None:
+            apply_transforms(resolved, X, F)
+        F[self._gated(X)] = 0.0
+        return F[:, 0] if self._one_column else F
 
     def _set_names(self, feature_names, n_feature):
         """Remember the feature names given to ``fit`` (checked), forget the target names."""
@@ -296,6 +316,12 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         returns exactly 0 for every target, and :meth:`fit` leaves such samples out
         (their true correction is 0 up to benchmark noise, so they would only bend the
         fit).  None or empty: no gate.
+    target_transforms : list of dict or None, optional
+        One entry per target (None: none): learn a residual ``f`` with correction
+        ``offset + scale * f`` (:mod:`surrogate3d.learn.transforms`), from the keys
+        ``scale_feature``, ``scale_floor`` and ``offset_features`` (feature names as for
+        ``interaction_features``).  A scaled target is fitted with sample weights
+        ``scale**2``.
 
     Attributes
     ----------
@@ -341,17 +367,20 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     (50, 2)
     """
 
-    def __init__(self, alpha=1.0, interactions=False, interaction_features=None, clear_sky_features=None):
+    def __init__(self, alpha=1.0, interactions=False, interaction_features=None, clear_sky_features=None,
+                 target_transforms=None):
         self.alpha = alpha
         self.interactions = interactions
         self.interaction_features = interaction_features
         self.clear_sky_features = clear_sky_features
+        self.target_transforms = target_transforms
 
     def _check_parameters(self):
         _check_real("alpha", self.alpha, 0.0, math.inf)
         _check_bool("interactions", self.interactions)
         _check_feature_list("interaction_features", self.interaction_features, 2)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
+        check_transforms(self.target_transforms)
 
     def _pairs(self, n_feature, feature_names):
         """Index pairs (i < j) of the product terms, from ``interactions`` and ``interaction_features``."""
@@ -394,16 +423,16 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         scale[near_constant(mean, scale)] = 1.0
         self.feature_mean_, self.feature_scale_, self.interaction_pairs_ = mean, scale, pairs
         T = self._terms(X)
-        term_mean, target_mean = T.mean(axis=0), Y.mean(axis=0)
-        U, s, Vt = np.linalg.svd(T - term_mean, full_matrices=False)
-        if self.alpha > 0:
-            shrink = s / (s * s + self.alpha)
-        else:
-            kept = s > _SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
-            shrink = np.where(kept, 1.0 / np.where(kept, s, 1.0), 0.0)
-        coef = (Vt.T @ (shrink[:, None] * (U.T @ (Y - target_mean)))).T
+        Y, weights = self._fit_transforms(X, Y)
+        coef, intercept = np.empty((Y.shape[1], T.shape[1])), np.empty(Y.shape[1])
+        plain = self.target_transform_[0] < 0
+        if plain.any():
+            coef[plain], intercept[plain] = _ridge_solve(T, Y[:, plain], self.alpha)
+        for m in np.flatnonzero(~plain):
+            c, b = _ridge_solve(T, Y[:, m:m + 1], self.alpha, weights[:, m])
+            coef[m], intercept[m] = c[0], b[0]
         self.coef_ = np.ascontiguousarray(coef)
-        self.intercept_ = target_mean - coef @ term_mean
+        self.intercept_ = intercept
         self.n_features_in_ = n_feature
         self._one_column = one_column
         names = self.feature_names_ or [f"x{k}" for k in range(n_feature)]
@@ -429,9 +458,25 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
         """
         X = self._check_predict_input(X)
-        Y = self.intercept_ + self._terms(X) @ self.coef_.T
-        Y[self._gated(X)] = 0.0
-        return Y[:, 0] if self._one_column else Y
+        return self._transformed(X, self.intercept_ + self._terms(X) @ self.coef_.T)
+
+
+def _ridge_solve(T, Y, alpha, weights=None):
+    """Ridge coefficients (n_target, n_term) and intercepts of ``Y`` on the terms ``T``, with an
+    unpenalised intercept, through the SVD of the (weighted) centred terms."""
+    if weights is None:
+        term_mean, target_mean, root = T.mean(axis=0), Y.mean(axis=0), 1.0
+    else:
+        term_mean, target_mean = weights @ T / weights.sum(), weights @ Y / weights.sum()
+        root = np.sqrt(weights)[:, None]
+    U, s, Vt = np.linalg.svd(root * (T - term_mean), full_matrices=False)
+    if alpha > 0:
+        shrink = s / (s * s + alpha)
+    else:
+        kept = s > _SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
+        shrink = np.where(kept, 1.0 / np.where(kept, s, 1.0), 0.0)
+    coef = (Vt.T @ (shrink[:, None] * (U.T @ (root * (Y - target_mean))))).T
+    return coef, target_mean - coef @ term_mean
 
 
 class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
@@ -460,6 +505,9 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         The clear-sky gate, as for :class:`RidgeCorrection`: where every listed feature
         is within :data:`CLEAR_SKY_TOLERANCE` of zero, :meth:`predict` returns exactly 0
         and :meth:`fit` leaves the sample out.  None or empty: no gate.
+    target_transforms : list of dict or None, optional
+        As for :class:`RidgeCorrection`: the ensembles learn residuals, a scaled target
+        with sample weights ``scale**2``.
 
     Attributes
     ----------
@@ -503,7 +551,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
     """
 
     def __init__(self, max_iter=300, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=20,
-                 l2_regularization=0.0, random_state=0, clear_sky_features=None):
+                 l2_regularization=0.0, random_state=0, clear_sky_features=None, target_transforms=None):
         self.max_iter = max_iter
         self.learning_rate = learning_rate
         self.max_leaf_nodes = max_leaf_nodes
@@ -511,6 +559,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.l2_regularization = l2_regularization
         self.random_state = random_state
         self.clear_sky_features = clear_sky_features
+        self.target_transforms = target_transforms
 
     def _check_parameters(self):
         _check_real("max_iter", self.max_iter, 1, math.inf, integer=True)
@@ -520,6 +569,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         _check_real("l2_regularization", self.l2_regularization, 0.0, math.inf)
         _check_real("random_state", self.random_state, 0, 2**32 - 1, integer=True)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
+        check_transforms(self.target_transforms)
 
     def fit(self, X, Y, feature_names=None):
         """Fit one ensemble per target column.
@@ -543,12 +593,14 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self._set_names(feature_names, n_feature)
         X, Y = self._fit_clear_sky_gate(X, Y)
         self.envelope_ = TrainingEnvelope.fit(X)
+        Y, weights = self._fit_transforms(X, Y)
+        scaled = self.target_transform_[0] >= 0
         self.estimators_ = [
             HistGradientBoostingRegressor(
                 loss="squared_error", max_iter=int(self.max_iter), learning_rate=float(self.learning_rate),
                 max_leaf_nodes=int(self.max_leaf_nodes), min_samples_leaf=int(self.min_samples_leaf),
                 l2_regularization=float(self.l2_regularization), early_stopping=False,
-                random_state=int(self.random_state)).fit(X, Y[:, m])
+                random_state=int(self.random_state)).fit(X, Y[:, m], sample_weight=weights[:, m] if scaled[m] else None)
             for m in range(Y.shape[1])]
         self.n_iter_ = [int(estimator.n_iter_) for estimator in self.estimators_]
         self.n_features_in_ = n_feature
@@ -567,9 +619,7 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
         """
         X = self._check_predict_input(X)
-        Y = np.column_stack([estimator.predict(X) for estimator in self.estimators_])
-        Y[self._gated(X)] = 0.0
-        return Y[:, 0] if self._one_column else Y
+        return self._transformed(X, np.column_stack([estimator.predict(X) for estimator in self.estimators_]))
 
 
 #: Model kinds a training recipe may name -> estimator class.

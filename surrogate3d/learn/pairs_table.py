@@ -141,16 +141,29 @@ def feature_matrix(ds, names, needed_by="the model"):
     if bad.any():
         i, j = np.argwhere(bad)[0]
         raise ValidationError(f"feature {names[j]} is not finite at sample {i} (scene "
-                              f"{ds['scene'].values[i]!r}): {X[i, j]!r} ({int(bad.sum())} values in all)")
+                              f"{str(ds['scene'].values[i])!r}): {float(X[i, j])} ({int(bad.sum())} values in all)")
     return X
 
 
 def target_matrix(ds, targets, variable="target_value"):
-    """A per-target variable as (n_sample, len(targets)) in the order of ``targets``."""
+    """A per-target variable as (n_sample, len(targets)) in the order of ``targets``.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        A target is missing from the table, or has a non-finite ``target_value`` (what
+        models learn from and are scored against).
+    """
     missing = [t for t in targets if t not in target_names(ds)]
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing}; it has {target_names(ds)}")
-    return np.asarray(ds[variable].sel(target=list(targets)).values, dtype=np.float64)
+    Y = np.asarray(ds[variable].sel(target=list(targets)).values, dtype=np.float64)
+    bad = ~np.isfinite(Y) if variable == "target_value" else np.zeros(Y.shape, dtype=bool)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise ValidationError(f"{variable} of target {targets[j]} is not finite at sample {i} (scene "
+                              f"{str(ds['scene'].values[i])!r}): {float(Y[i, j])} ({int(bad.sum())} values in all)")
+    return Y
 
 
 def scene_labels(ds):

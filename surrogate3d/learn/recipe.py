@@ -19,6 +19,13 @@ any training starts, and a wrong one is named in the error with the allowed valu
 
     [cross_validation]
     folds = 3                              # >= 2, scene-grouped folds for the search
+    grouping = "scene"                     # or "family": every fold leaves out whole regimes, so
+                                           # the search prefers what holds on families unseen
+
+    [target_transforms.TARGET]             # optional, per target: learn a residual (transforms.py)
+    scale_feature = "independent_column_atmosphere_absorption"
+    scale_floor = 1e-4
+    offset_features = {feature = 1.0, ...}
 
     [models.NAME]                          # NAME: letters, digits, _ and -
     kind = "ridge" | "boosted"
@@ -36,10 +43,14 @@ from pathlib import Path
 from ..errors import FormatError, ParameterError, ValidationError
 from .models import MODEL_KINDS, make_estimator
 from .pairs_table import TARGETS, check_has_features, feature_names
+from .transforms import check_transform, transform_features
 
-_TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models"}
+_TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models",
+             "target_transforms"}
 _SPLIT_KEYS = {"held_out_scene_fraction", "left_out_families", "held_out_regime", "seed"}
-_CV_KEYS = {"folds"}
+_CV_KEYS = {"folds", "grouping"}
+#: What the folds of the hyperparameter search keep together.
+GROUPINGS = ("scene", "family")
 _MODEL_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*$")
 
 #: Model parameters whose value is itself a list: a list of lists is their grid dimension.
@@ -85,6 +96,15 @@ class TrainingRecipe:
     models: tuple
     text: str
     source: str
+    target_transforms: tuple = None
+    grouping: str = "scene"
+
+    def model_parameters(self, params=None):
+        """Constructor parameters of a model: ``params`` plus the recipe's target transforms."""
+        params = dict(params or {})
+        if self.target_transforms is not None:
+            params["target_transforms"] = list(self.target_transforms)
+        return params
 
     def feature_list(self, pairs):
         """The recipe's features, or all features of ``pairs`` when the recipe says "all"."""
@@ -169,6 +189,9 @@ def parse_recipe(text, source="<recipe>"):
     folds = cv.get("folds", 3)
     if isinstance(folds, bool) or not isinstance(folds, int) or folds < 2:
         _fail(source, "cross_validation.folds", f"must be an integer >= 2; got {folds!r}")
+    grouping = cv.get("grouping", "scene")
+    if grouping not in GROUPINGS:
+        _fail(source, "cross_validation.grouping", f"must be one of {list(GROUPINGS)}; got {grouping!r}")
     models = raw.get("models")
     if not isinstance(models, dict) or not models:
         _fail(source, "[models]", "must define at least one model table, e.g. [models.ridge] with kind = \"ridge\"")
@@ -179,7 +202,23 @@ def parse_recipe(text, source="<recipe>"):
     return TrainingRecipe(name=raw.get("name", Path(source).stem), description=raw.get("description", ""),
                           targets=tuple(targets), features=None if features is None else tuple(features),
                           held_out_scene_fraction=float(fraction), left_out_families=families,
-                          split_seed=split_seed, folds=folds, models=specs, text=text, source=source)
+                          split_seed=split_seed, folds=folds, models=specs, text=text, source=source,
+                          target_transforms=_transforms(source, raw.get("target_transforms"), targets),
+                          grouping=grouping)
+
+
+def _transforms(source, table, targets):
+    """``[target_transforms.TARGET]`` tables as a tuple in target order (None where a target has
+    none), or None without any."""
+    if table is None:
+        return None
+    _check_keys(source, "[target_transforms]", table, set(targets))
+    for target, spec in table.items():
+        try:
+            check_transform(spec, f"[target_transforms.{target}]")
+        except ParameterError as exc:
+            raise ParameterError(f"training recipe {source!r}: {exc}") from None
+    return tuple(table.get(target) for target in targets)
 
 
 def _families(source, split):
@@ -242,6 +281,11 @@ def check_recipe_against_pairs(recipe, pairs):
     """
     features = recipe.feature_list(pairs)
     check_has_features(pairs, features, needed_by=f"training recipe {recipe.source!r}")
+    for target, spec in zip(recipe.targets, recipe.target_transforms or ()):
+        unused = [f for f in transform_features(spec or {}) if f not in features]
+        if unused:
+            raise ValidationError(f"training recipe {recipe.source!r}: [target_transforms.{target}] reads {unused}, "
+                                  "which are not among the recipe's features")
     for spec in recipe.models:
         for parameter in sorted(_LIST_PARAMETERS):
             for chosen in spec.grid.get(parameter, []):

@@ -71,17 +71,20 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
 
     training = select_scenes(pairs, split.training_scenes)
     X, Y = feature_matrix(training, features, "the training recipe"), target_matrix(training, targets)
-    scenes = scene_labels(training)
+    # The search's folds keep scenes together, or whole families (regimes) with grouping "family".
+    groups = scene_labels(training) if recipe.grouping == "scene" else np.asarray(training["regime"].values).astype(str)
     searches = {}
     for spec in tqdm(recipe.models, desc="train", unit="model", disable=True if quiet else None):
-        search = grid_search(make_estimator(spec.kind), spec.candidates(), X, Y, scenes, recipe.folds, quiet=quiet,
+        search = grid_search(make_estimator(spec.kind, recipe.model_parameters()), spec.candidates(), X, Y, groups,
+                             recipe.folds, quiet=quiet,
                              label=f"search {spec.name}", feature_names=features,
                              incident_flux=np.asarray(training["incident_flux"].values, dtype=np.float64))
         searches[spec.name] = search
-        estimator = make_estimator(spec.kind, search.best_params).fit_pairs(training, features, targets)
+        estimator = make_estimator(spec.kind, recipe.model_parameters(search.best_params)).fit_pairs(
+            training, features, targets)
         card = dict(format_version=MODEL_FORMAT_VERSION, name=spec.name, kind=spec.kind,
                     hyperparameters=estimator.get_params(), **shared,
-                    cross_validation={"grouping": "scene", "grid": spec.grid, **search.as_dict()},
+                    cross_validation={"grouping": recipe.grouping, "grid": spec.grid, **search.as_dict()},
                     provenance={**provenance, "training_scenes": list(split.training_scenes),
                                 "held_out_scenes": list(split.held_out_scenes), "excluded_regime": None})
         write_model(out_dir / spec.name, estimator, card)

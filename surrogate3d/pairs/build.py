@@ -25,7 +25,7 @@ from ..errors import FormatError, ParameterError
 from .coarsen import block_mean, coarsen_result, host_factors
 from .features import compute_features
 from .host_fields import assemble_host_fields
-from .recipe import FeatureRecipe, default_recipe
+from .recipe import DEFAULT_PARAMETERS, HOST_FLUX_KINDS, FeatureRecipe, default_recipe
 from .targets import TARGETS
 
 #: Version of the pair-table layout.
@@ -95,6 +95,25 @@ def _check_recipe(recipe):
     raise ParameterError(f"recipe must be a FeatureRecipe, a recipe dict or None; got {type(recipe).__name__}")
 
 
+def with_host_fluxes(recipe, host_fluxes):
+    """``recipe`` with its ``host_fluxes`` parameter set (unchanged for None).
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        ``host_fluxes`` is not a known kind, or the recipe explicitly names another kind.
+    """
+    if host_fluxes is None or host_fluxes == recipe.parameters["host_fluxes"]:
+        return recipe
+    if host_fluxes not in HOST_FLUX_KINDS:
+        raise ParameterError(f"host_fluxes must be one of {', '.join(HOST_FLUX_KINDS)}; got {host_fluxes!r}")
+    if recipe.parameters["host_fluxes"] != DEFAULT_PARAMETERS["host_fluxes"]:
+        raise ParameterError(f"host_fluxes {host_fluxes!r} contradicts the feature recipe {recipe.name!r}, whose "
+                             f"host_fluxes is {recipe.parameters['host_fluxes']!r}")
+    return FeatureRecipe(recipe.features, {**recipe.parameters, "host_fluxes": host_fluxes}, name=recipe.name,
+                         version=recipe.version)
+
+
 def _fingerprint_scene(digest, name, scene):
     """Feed a scene file's name and stored results (flux fields, their errors, slots) to ``digest``."""
     digest.update(name.encode())
@@ -153,7 +172,7 @@ def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_basel
     """Columns of the pair table for one scene, sun geometry and host resolution."""
     full, ica = results
     fy, fx = _factors(scene, name, resolution)
-    fields = assemble_host_fields(scene, ica, resolution)
+    fields = assemble_host_fields(scene, ica, resolution, recipe.parameters["host_fluxes"])
     x = compute_features(fields, recipe)
     c3d, cica = coarsen_result(full, fy, fx), coarsen_result(ica, fy, fx)
     ny, nx = fields["total_cloud_fraction"].shape
@@ -193,7 +212,7 @@ def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_basel
     return block
 
 
-def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False):
+def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fluxes=None):
     """Build the training-pair table of an archive directory.
 
     Parameters
@@ -207,6 +226,12 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False):
         Feature recipe; default :func:`~surrogate3d.pairs.recipe.default_recipe`.
     quiet : bool
         No progress bar and no notices of skipped results on stderr.
+    host_fluxes : {"monte_carlo", "two_stream_host"}, optional
+        Where the features' independent-column fluxes come from
+        (:func:`~surrogate3d.pairs.host_fields.assemble_host_fields`); sets the recipe
+        parameter of that name.  Default: the recipe's (``"monte_carlo"`` unless it
+        says otherwise).  The targets and the table's ``independent_column_flux`` are
+        always the Monte Carlo independent-column result.
 
     Returns
     -------
@@ -245,7 +270,7 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False):
     (4, 5)
     """
     resolutions = _check_resolutions(host_resolutions)
-    recipe = _check_recipe(recipe)
+    recipe = with_host_fluxes(_check_recipe(recipe), host_fluxes)
     files = scene_files(archive_dir)
     if not files:
         raise FormatError(f"archive directory {str(archive_dir)!r} holds no scene files (*.nc)")
@@ -304,6 +329,7 @@ def _assemble(blocks, recipe, fingerprint, skipped, resolutions):
         "feature_recipe": recipe.to_json(),
         "archive_fingerprint": fingerprint,
         "host_resolutions": json.dumps(resolutions),
+        "host_fluxes": recipe.parameters["host_fluxes"],
         "skipped": json.dumps(skipped),
         "source": f"surrogate3d {__version__} pairs",
     })

@@ -128,6 +128,44 @@ def edge_length_density(mask, dx, dy):
     return 0.5 * (faces_x * dy + faces_y * dx) / (dx * dy)
 
 
+def clear_sky_layer_optical_depth(tau, cloudy, z_edge):
+    """Optical depth each cell would have without its cloud [1], from the clear cells of its layer.
+
+    Clear cells keep their own optical depth.  A cloudy cell gets the mean optical depth
+    of the clear cells of its layer (the clear air of the synthetic scenes is
+    horizontally uniform: Rayleigh scattering and gas absorption depend on height
+    only); in a layer without clear cells, the mean clear extinction [m-1] of the other
+    layers is interpolated linearly in height (constant beyond the first and last), or
+    taken as 0 if no layer has a clear cell.
+
+    Parameters
+    ----------
+    tau : ndarray (nz, ny, nx)
+        Layer optical depth of each cell [1].
+    cloudy : ndarray of bool (nz, ny, nx)
+        Cloud mask.
+    z_edge : ndarray (nz + 1,)
+        Layer edge heights [m].
+
+    Returns
+    -------
+    ndarray (nz, ny, nx)
+    """
+    clear = ~np.asarray(cloudy, dtype=bool)
+    count = clear.sum(axis=(1, 2))
+    dz = np.diff(z_edge)
+    total = np.where(clear, tau, 0.0).sum(axis=(1, 2))
+    have = count > 0
+    if not have.any():
+        layer = np.zeros(dz.size)
+    else:
+        extinction = total[have] / count[have] / dz[have]
+        centre = 0.5 * (z_edge[1:] + z_edge[:-1])
+        layer = np.interp(centre, centre[have], extinction) * dz
+        layer[have] = total[have] / count[have]
+    return np.where(clear, tau, layer[:, None, None])
+
+
 def scene_host_fields(scene, host_resolution):
     """Host fields of a scene (the keys of :mod:`surrogate3d.pairs.features`, without fluxes or sun).
 
@@ -145,7 +183,8 @@ def scene_host_fields(scene, host_resolution):
     Returns
     -------
     dict
-        ``layer_cloud_fraction``, ``layer_optical_depth`` (nz, Ny, Nx); ``z_edge``;
+        ``layer_cloud_fraction``, ``layer_optical_depth``, ``layer_clear_sky_optical_depth``
+        (nz, Ny, Nx, the last from :func:`clear_sky_layer_optical_depth`); ``z_edge``;
         ``dx``, ``dy`` (= host_resolution); ``surface_albedo``, ``total_cloud_fraction``,
         ``column_optical_depth_mean``, ``column_optical_depth_std``, ``cloud_edge_length``
         (Ny, Nx).
@@ -158,12 +197,14 @@ def scene_host_fields(scene, host_resolution):
     mask = cloud_mask(scene)
     projected = mask.any(axis=0)
     column_tau = tau.sum(axis=0)
+    z_edge = scene["z_edge"].values.astype(np.float64)
     mean_tau = block_mean(column_tau, fy, fx)
     var_tau = np.maximum(block_mean(column_tau ** 2, fy, fx) - mean_tau ** 2, 0.0)
     return {
         "layer_cloud_fraction": block_mean(mask, fy, fx),
         "layer_optical_depth": block_mean(tau, fy, fx),
-        "z_edge": scene["z_edge"].values.astype(np.float64),
+        "layer_clear_sky_optical_depth": block_mean(clear_sky_layer_optical_depth(tau, mask, z_edge), fy, fx),
+        "z_edge": z_edge,
         "dx": float(fx * dx),
         "dy": float(fy * dy),
         "surface_albedo": block_mean(np.einsum("b,byx->yx", weight, scene["surface_albedo"].values), fy, fx),

@@ -12,25 +12,27 @@ def register(sub):
     p.add_argument("--host-resolution", type=float, nargs="+", default=[1000.0], metavar="M",
                    help="host column size(s) in m, whole multiples of the scene cell size (default: 1000)")
     p.add_argument("--recipe", metavar="FILE", help="feature recipe (.json or .toml); default: the built-in recipe")
+    p.add_argument("--host-fluxes", choices=("monte_carlo", "two_stream_host"), default=None,
+                   help="independent-column flux features from the Monte Carlo benchmark (block means) or from a "
+                        "delta-Eddington solve of the host's own columns with a clear and a cloudy sub-column; "
+                        "recorded in the feature recipe (default: the recipe's, else monte_carlo)")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no notices")
-    p.set_defaults(func=run)
+    p.set_defaults(func=run, interrupted="nothing was written",
+                   parameter_flags={"host_resolutions": "--host-resolution", "host_resolution": "--host-resolution"})
 
 
 def run(args):
-    from pathlib import Path
-
+    from .._outputs import check_output_file, staged_file
     from ..archive.netcdf import write_dataset
-    from ..errors import ParameterError
     from .build import build_pairs
     from .recipe import FeatureRecipe
 
-    out = Path(args.out)
-    directory = out.parent if str(out.parent) else Path(".")
-    if not directory.is_dir():
-        raise ParameterError(f"--out {args.out!r}: directory {str(directory)!r} does not exist")
+    out = check_output_file(args.out, "--out")
     recipe = FeatureRecipe.read(args.recipe) if args.recipe else None
-    pairs = build_pairs(args.archive_dir, args.host_resolution, recipe=recipe, quiet=args.quiet)
-    write_dataset(pairs, out)
+    pairs = build_pairs(args.archive_dir, args.host_resolution, recipe=recipe, quiet=args.quiet,
+                        host_fluxes=args.host_fluxes)
+    with staged_file(out) as staging:
+        write_dataset(pairs, staging)
     if not args.quiet:
         import json
 

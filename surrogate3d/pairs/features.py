@@ -17,6 +17,9 @@ key                                               shape             units   mean
 ``layer_cloud_fraction``                          (nz, ny, nx)      1       cloud fraction of each layer
 ``layer_optical_depth``                           (nz, ny, nx)      1       broadband (solar-weighted) layer optical
                                                                             depth, mean over the host column
+``layer_clear_sky_optical_depth``                 (nz, ny, nx)      1       the same without cloud (gases, Rayleigh,
+                                                                            aerosol: what the layer would have if
+                                                                            it were clear), mean over the column
 ``z_edge``                                        (nz + 1,)         m       layer edge heights, from 0 at the surface
 ``dx``, ``dy``                                    scalar            m       host column size
 ``solar_zenith_angle``                            scalar            degree  in [0, 90)
@@ -43,20 +46,21 @@ import math
 import numpy as np
 
 from ..errors import ValidationError
-from .slant_path import path_weights, slant_sum
+from .slant_path import area_path_weights, gather_layers, path_weights, slant_sum
 from .targets import TARGETS
 
 #: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
 INDEPENDENT_COLUMN_FLUXES = TARGETS
 
 _SCALARS = ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")
-_LAYER_KEYS = ("layer_cloud_fraction", "layer_optical_depth")
+_LAYER_KEYS = ("layer_cloud_fraction", "layer_optical_depth", "layer_clear_sky_optical_depth")
 _PLANE_KEYS = ("surface_albedo", "total_cloud_fraction", "column_optical_depth_mean", "column_optical_depth_std",
                "cloud_edge_length")
 
 
 #: Allowed range of the host fields that have one (others need only be finite).
-_ALLOWED_RANGE = {**{key: (0.0, np.inf) for key in ("layer_optical_depth", "column_optical_depth_mean",
+_ALLOWED_RANGE = {**{key: (0.0, np.inf) for key in ("layer_optical_depth", "layer_clear_sky_optical_depth",
+                                                    "column_optical_depth_mean",
                                                     "column_optical_depth_std", "cloud_edge_length")},
                   **{key: (0.0, 1.0) for key in ("layer_cloud_fraction", "total_cloud_fraction", "surface_albedo")}}
 
@@ -257,6 +261,470 @@ def _independent_column(fields, flux):
     raise ValidationError(f"host_fields has no {key!r}")
 
 
+# --- the direct-beam prior ----------------------------------------------------------------
+
+def maximum_random_clear_fraction(layer_cloud_fraction):
+    """Clear line-of-sight fraction through a stack of layers under maximum-random overlap [1].
+
+    Cloud in adjacent cloudy layers overlaps as much as it can (maximum overlap); blocks
+    of cloudy layers separated by a clear layer overlap at random (Geleyn and
+    Hollingsworth 1979).  From the top layer ``N`` down,
+
+        C = (1 - c_N) prod_{k < N} (1 - max(c_k, c_{k+1})) / (1 - c_{k+1}),
+
+    a factor whose denominator is 0 (``c_{k+1} = 1``) taken as 0: the product is then 0
+    already.
+
+    Parameters
+    ----------
+    layer_cloud_fraction : array_like, shape (nz, ...)
+        Cloud fraction of each layer [1], in [0, 1]; layer 0 is the lowest.
+
+    Returns
+    -------
+    ndarray, shape (...)
+        The fraction [1] of lines of sight that cross no cloud in any layer.
+
+    References
+    ----------
+    Geleyn, J.-F. and A. Hollingsworth, 1979: An economical analytical method for the
+    computation of the interaction between scattering and line absorption of radiation.
+    Contrib. Atmos. Phys., 52, 1-16.
+
+    Examples
+    --------
+    >>> float(maximum_random_clear_fraction([[0.5], [0.5]])[0])     # adjacent: maximum overlap
+    0.5
+    >>> float(maximum_random_clear_fraction([[0.5], [0.0], [0.5]])[0])   # separated: random
+    0.25
+    """
+    c = np.clip(np.asarray(layer_cloud_fraction, dtype=np.float64), 0.0, 1.0)
+    clear = 1.0 - c[-1]
+    for k in range(c.shape[0] - 2, -1, -1):
+        clear = clear * _overlap_ratio(c[k], c[k + 1])
+    return clear
+
+
+def _overlap_ratio(lower, upper):
+    """``(1 - max(lower, upper)) / (1 - upper)``, 0 where ``upper`` is 1."""
+    numerator = 1.0 - np.maximum(lower, upper)
+    denominator = 1.0 - upper
+    return np.divide(numerator, denominator, out=np.zeros_like(numerator), where=denominator > 0.0)
+
+
+def _scan_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
+    """Walk down the layers of every column and yield each block of adjacent cloudy layers as it ends.
+
+    Yields ``(k, index, cover, depth, thickness)``: the lowest layer ``k`` of the
+    blocks, the flat column indices of the columns whose block ends there, and each
+    block's cover, cloud optical depth and mean cloud thickness (see
+    :func:`cloud_blocks`).  The generator's return value is ``loose`` (flat), the cloud
+    optical depth of layers with zero cloud fraction.  Work on whole planes is limited
+    to a few comparisons per layer; the running sums touch only cloudy columns.
+    """
+    c = np.clip(np.asarray(layer_cloud_fraction, dtype=np.float64), 0.0, 1.0)
+    nz = c.shape[0]
+    c = c.reshape(nz, -1)
+    x = np.asarray(layer_cloud_optical_depth, dtype=np.float64).reshape(nz, -1)
+    dz = np.zeros(nz) if layer_thickness is None else np.asarray(layer_thickness, dtype=np.float64)
+    n = c.shape[1]
+    run_clear, run_depth, run_volume = np.ones(n), np.zeros(n), np.zeros(n)
+    loose = np.zeros(n)
+    cloudy_above = np.zeros(n, dtype=bool)
+    for k in range(nz - 1, -1, -1):
+        ck, xk = c[k], x[k]
+        cloudy = ck > 0.0
+        clear = ~cloudy
+        loose[clear] += xk[clear]
+        # A cloudy layer below a cloudy one continues its block; else it starts one.
+        cont = np.flatnonzero(cloudy & cloudy_above)
+        start = np.flatnonzero(cloudy & ~cloudy_above)
+        run_clear[start] = 1.0 - ck[start]
+        run_depth[start] = xk[start]
+        run_volume[start] = ck[start] * dz[k]
+        if cont.size:
+            run_clear[cont] *= _overlap_ratio(ck[cont], c[k + 1][cont])
+            run_depth[cont] += xk[cont]
+            run_volume[cont] += ck[cont] * dz[k]
+        ends = np.flatnonzero(cloudy & (c[k - 1] <= 0.0)) if k > 0 else np.flatnonzero(cloudy)
+        if ends.size:
+            cover = 1.0 - run_clear[ends]
+            thickness = np.divide(run_volume[ends], cover, out=np.zeros_like(cover), where=cover > 0.0)
+            yield k, ends, cover, run_depth[ends].copy(), thickness
+        cloudy_above = cloudy
+    return loose
+
+
+def _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
+    """All blocks of :func:`_scan_blocks` as a list, and ``loose``."""
+    scan = _scan_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
+    blocks = []
+    while True:
+        try:
+            blocks.append(next(scan))
+        except StopIteration as stop:
+            return blocks, stop.value
+
+
+def cloud_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
+    """Blocks of adjacent cloudy layers: the cover, cloud optical depth and thickness of each.
+
+    A block is a run of adjacent layers with positive cloud fraction.  Its cover is one
+    minus its clear line-of-sight fraction under maximum-random overlap
+    (:func:`maximum_random_clear_fraction` of its layers; maximum overlap where the
+    fractions grow toward the block's widest layer); its cloud optical depth is the sum
+    over its layers and its mean cloud thickness ``sum_k c_k dz_k / cover`` (cloud volume
+    over cover).  Blocks are separated by clear layers and overlap at random, so the
+    clear fraction of the whole stack is the product of ``1 - cover`` over the blocks
+    (Geleyn and Hollingsworth 1979).
+
+    Parameters
+    ----------
+    layer_cloud_fraction : array_like, shape (nz, ...)
+        Cloud fraction of each layer [1]; layer 0 is the lowest.
+    layer_cloud_optical_depth : array_like, shape (nz, ...)
+        Cloud optical depth of each layer, area mean [1] (total minus clear-sky).
+    layer_thickness : array_like, shape (nz,), optional
+        Layer thickness [m]; default 0 (block thickness 0).
+
+    Returns
+    -------
+    cover : ndarray, shape (nz, ...)
+        Each block's cover [1] at the index of its lowest layer, 0 elsewhere.
+    depth : ndarray, shape (nz, ...)
+        Each block's cloud optical depth [1] at the same index, 0 elsewhere.
+    thickness : ndarray, shape (nz, ...)
+        Each block's mean cloud thickness [m] at the same index, 0 elsewhere.
+    loose : ndarray, shape (...)
+        Cloud optical depth [1] of layers with zero cloud fraction (spread over every
+        line of sight).
+
+    References
+    ----------
+    Geleyn, J.-F. and A. Hollingsworth, 1979: An economical analytical method for the
+    computation of the interaction between scattering and line absorption of radiation.
+    Contrib. Atmos. Phys., 52, 1-16.
+    """
+    shape = np.shape(layer_cloud_fraction)
+    blocks, loose = _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
+    cover, depth, thickness = (np.zeros((shape[0], int(np.prod(shape[1:], dtype=np.int64)))) for _ in range(3))
+    for k, index, c, x, h in blocks:
+        cover[k, index], depth[k, index], thickness[k, index] = c, x, h
+    return cover.reshape(shape), depth.reshape(shape), thickness.reshape(shape), loose.reshape(shape[1:])
+
+
+def cloud_width_per_area(total_cloud_fraction, cloud_edge_length):
+    """Mean width over mean area of the clouds [m-1], from the cloud cover and the cloud-edge length.
+
+    In a Boolean model (clouds as independent, uniformly placed convex shapes of
+    intensity ``lambda``), the cover is ``c = 1 - exp(-lambda E[A])`` and the edge
+    length per unit area of the union ``P = (1 - c) lambda E[perimeter]`` (Matheron
+    1975; Serra 1982).  The mean width (caliper diameter) of a convex shape over all
+    directions is its perimeter over ``pi`` (Cauchy's formula; Santalo 1976), hence
+
+        rho = E[width] / E[A] = P / (pi (1 - c) (-ln(1 - c))),
+
+    ``2 / (pi r)`` for discs of radius ``r``; 0 where ``c`` is 0 or 1.
+
+    Parameters
+    ----------
+    total_cloud_fraction : array_like
+        ``c`` [1], vertically projected cloud cover.
+    cloud_edge_length : array_like
+        ``P`` [m-1], cloud-edge length per unit area.
+
+    Returns
+    -------
+    ndarray
+        ``rho`` [m-1].
+
+    References
+    ----------
+    Matheron, G., 1975: Random Sets and Integral Geometry. Wiley, New York.
+
+    Santalo, L. A., 1976: Integral Geometry and Geometric Probability. Addison-Wesley.
+
+    Serra, J., 1982: Image Analysis and Mathematical Morphology. Academic Press, London.
+    """
+    c = np.clip(np.asarray(total_cloud_fraction, dtype=np.float64), 0.0, 1.0)
+    perimeter = np.asarray(cloud_edge_length, dtype=np.float64)
+    clear = 1.0 - c
+    denominator = np.pi * clear * -np.log(np.where(clear > 0.0, clear, 1.0))
+    return np.divide(perimeter, denominator, out=np.zeros_like(denominator), where=denominator > 0.0)
+
+
+def slanted_cover(cover, thickness, shift_per_height, width_per_area):
+    """Cloud cover seen along a slanted direction [1]: ``1 - (1 - C)^(1 + rho H tan(theta0))``.
+
+    A cloud of height ``H`` seen along a direction of zenith angle ``theta0`` hides the
+    Minkowski sum of its base and a segment of length ``d = H tan(theta0)``: its area
+    plus ``d`` times its width across the direction.  In the Boolean model of
+    :func:`cloud_width_per_area` the clear fraction is then
+    ``exp(-lambda (E[A] + d E[width])) = (1 - C) exp(-rho d (-ln(1 - C)))``, i.e.
+    ``(1 - C)^(1 + rho d)`` (the widths averaged over directions: Matheron 1975; Serra
+    1982; Santalo 1976).  Exact for that model with vertical-sided clouds filling the
+    layers of the block.
+
+    Parameters
+    ----------
+    cover : array_like
+        ``C`` [1], cover seen from above.
+    thickness : array_like
+        ``H`` [m].
+    shift_per_height : float
+        ``tan(theta0)`` [1].
+    width_per_area : array_like
+        ``rho`` [m-1] (:func:`cloud_width_per_area`).
+
+    Returns
+    -------
+    ndarray
+        [1], >= ``C``.
+    """
+    clear = 1.0 - np.clip(np.asarray(cover, dtype=np.float64), 0.0, 1.0)
+    exponent = 1.0 + np.asarray(width_per_area, dtype=np.float64) * np.asarray(thickness, dtype=np.float64) \
+        * float(shift_per_height)
+    return 1.0 - np.where(clear > 0.0, clear, 0.0) ** exponent
+
+
+def gamma_mean_transmittance(mean_optical_depth, relative_variance, mu0):
+    """Mean direct transmittance ``<exp(-tau / mu0)>`` over a gamma distribution of optical depth [1].
+
+    With ``tau`` gamma-distributed of mean ``m`` and relative variance
+    ``v = var(tau) / m^2`` (shape ``1 / v``, scale ``m v``), the mean is the Laplace
+    transform of the gamma density at ``1 / mu0``,
+
+        <exp(-tau / mu0)> = (1 + m v / mu0) ^ (-1 / v),
+
+    and ``exp(-m / mu0)`` (Beer-Lambert) for ``v = 0``.  The gamma distribution
+    describes the sub-grid optical depth of boundary-layer clouds (Barker 1996;
+    Barker et al. 1996; Oreopoulos and Barker 1999).
+
+    Parameters
+    ----------
+    mean_optical_depth : array_like
+        Mean optical depth ``m`` [1], >= 0.
+    relative_variance : array_like
+        ``v`` [1], >= 0 (the square of the relative standard deviation).
+    mu0 : float or array_like
+        Cosine of the solar zenith angle [1], in (0, 1].
+
+    Returns
+    -------
+    ndarray
+        [1], in [exp(-m / mu0), 1]: variability only raises the mean transmittance.
+
+    References
+    ----------
+    Barker, H. W., 1996: A parameterization for computing grid-averaged solar fluxes for
+    inhomogeneous marine boundary layer clouds. Part I: Methodology and homogeneous
+    biases. J. Atmos. Sci., 53, 2289-2303.
+
+    Oreopoulos, L. and H. W. Barker, 1999: Accounting for subgrid-scale cloud
+    variability in a multi-layer 1D solar radiative transfer algorithm. Quart. J. Roy.
+    Meteor. Soc., 125, 301-330.
+
+    Examples
+    --------
+    >>> float(gamma_mean_transmittance(2.0, 1.0, 1.0))     # exponential distribution: 1 / (1 + m)
+    0.3333333333333333
+    """
+    m, v, mu0 = np.broadcast_arrays(*(np.asarray(a, dtype=np.float64) for a in (mean_optical_depth,
+                                                                                   relative_variance, mu0)))
+    # k ln(1 + theta / mu0) with k = 1 / v: log1p keeps it exact down to v -> 0, where it
+    # tends to m / mu0.
+    exponent = np.divide(np.log1p(m * v / mu0), v, out=np.array(m / mu0, dtype=np.float64), where=v > 0.0)
+    return np.exp(-exponent)
+
+
+def in_cloud_relative_variance(column_std, block_cover, block_depth):
+    """Relative variance [1] of the cloud optical depth where there is cloud, from the host's sub-grid statistics.
+
+    The host's sub-grid standard deviation of column optical depth, ``column_std``, is
+    over all its columns, clear ones included.  Model the cloud optical depth of a
+    column as the sum over the blocks of adjacent cloudy layers (:func:`cloud_blocks`,
+    randomly overlapped, hence independent) of ``m_j + e_j`` on a share ``C_j`` of the
+    columns and 0 elsewhere, with ``m_j = X_j / C_j`` and the in-cloud deviation ``e_j``
+    of variance ``v m_j^2`` (one relative variance ``v`` for all blocks).  The law of
+    total variance gives ``column_std^2 = sum_j [C_j v m_j^2 + C_j (1 - C_j) m_j^2]``, so
+
+        v = (column_std^2 - sum_j X_j^2 (1 - C_j) / C_j) / sum_j X_j^2 / C_j,
+
+    clipped at 0 (0 without cloud).  With one block of cover ``c`` this is
+    ``column_std^2 / (c m^2) - (1 - c)``.
+
+    Parameters
+    ----------
+    column_std : array_like, shape (...)
+        Sub-grid standard deviation of column optical depth [1].
+    block_cover, block_depth : array_like, shape (nz, ...)
+        Cover ``C_j`` [1] and cloud optical depth ``X_j`` [1] of each block, 0 where
+        there is none (:func:`cloud_blocks`).
+
+    Returns
+    -------
+    ndarray, shape (...)
+        ``v`` [1], >= 0.
+
+    References
+    ----------
+    Law of total variance (common practice); ``v`` is the inverse of the gamma shape
+    parameter ``nu`` of Barker et al. (1996) and Oreopoulos and Barker (1999).
+    """
+    cover = np.asarray(block_cover, dtype=np.float64)
+    depth = np.asarray(block_depth, dtype=np.float64)
+    squared = np.divide(depth * depth, cover, out=np.zeros_like(depth), where=cover > 0.0)
+    between = (squared * (1.0 - cover)).sum(axis=0)
+    within = squared.sum(axis=0)
+    s2 = np.asarray(column_std, dtype=np.float64) ** 2
+    v = np.divide(s2 - between, within, out=np.zeros_like(within), where=within > 0.0)
+    return np.maximum(v, 0.0)
+
+
+def _relative_variance_of_blocks(column_std, blocks, n):
+    """:func:`in_cloud_relative_variance` from a list of blocks of :func:`_scan_blocks` (flat, ``n`` columns)."""
+    between, within = np.zeros(n), np.zeros(n)
+    for _, index, cover, depth, _ in blocks:
+        squared = depth * depth / cover
+        np.add.at(within, index, squared)
+        np.add.at(between, index, squared * (1.0 - cover))
+    s2 = np.asarray(column_std, dtype=np.float64).reshape(-1) ** 2
+    v = np.divide(s2 - between, within, out=np.zeros(n), where=within > 0.0)
+    return np.maximum(v, 0.0)
+
+
+def _transmittance_of_blocks(blocks, loose, clear_sky_optical_depth, relative_variance, mu0, width_per_area):
+    """The formula of :func:`direct_transmittance_prior` from blocks of :func:`_scan_blocks` (flat)."""
+    mu0 = float(mu0)
+    tan0 = math.sqrt(max(1.0 - mu0 * mu0, 0.0)) / mu0
+    v = np.asarray(relative_variance, dtype=np.float64).reshape(-1)
+    rho = np.broadcast_to(np.asarray(width_per_area, dtype=np.float64), np.shape(clear_sky_optical_depth)).reshape(-1)
+    clear = np.asarray(clear_sky_optical_depth, dtype=np.float64).reshape(-1)
+    product = np.exp(-(clear + loose) / mu0)
+    for _, index, cover, depth, thickness in blocks:
+        seen = slanted_cover(cover, thickness, tan0, rho[index])
+        mean = np.divide(depth, seen, out=np.zeros_like(depth), where=seen > 0.0)
+        product[index] *= 1.0 - seen + seen * gamma_mean_transmittance(mean, v[index], mu0)
+    return product
+
+
+def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, clear_sky_optical_depth,
+                               cloud_relative_variance, mu0, layer_thickness=None, width_per_area=0.0):
+    """Mean direct transmittance of a path through partly cloudy layers [1] (the formula of the direct-beam prior).
+
+    The path's layers form blocks of adjacent cloudy layers (:func:`cloud_blocks`),
+    overlapped at random, each of cloud optical depth ``X_j``, mean cloud thickness ``H_j`` and
+    cover ``C_j`` (maximum-random overlap within it), seen by the slanted beam as
+    ``C'_j = 1 - (1 - C_j)^(1 + rho H_j tan(theta0))`` (:func:`slanted_cover`).  A share
+    ``1 - C'_j`` of the lines of sight misses the block, the others cross ``X_j / C'_j``
+    on average (the mean slant optical depth is kept), gamma-distributed with relative
+    variance ``v`` (:func:`gamma_mean_transmittance`).  Every line crosses the clear-sky
+    optical depth and the cloud optical depth of layers without cloud fraction
+    (``loose``)::
+
+        T = exp(-(tau_clear + loose) / mu0) prod_j [1 - C'_j + C'_j (1 + X_j v / (C'_j mu0)) ^ (-1 / v)]
+
+    One cloudy layer of fraction ``c`` and uniform in-cloud optical depth ``tau_c``
+    under an overhead sun gives ``1 - c + c exp(-tau_c)``; an overcast homogeneous
+    column Beer-Lambert, ``exp(-tau / mu0)``.
+
+    Parameters
+    ----------
+    layer_cloud_fraction : array_like, shape (nz, ...)
+        Cloud fraction of each layer along the path [1]; layer 0 is the lowest.
+    layer_cloud_optical_depth : array_like, shape (nz, ...)
+        Vertical cloud optical depth of each layer along the path, area mean [1].
+    clear_sky_optical_depth : array_like, shape (...)
+        ``tau_clear``: vertical optical depth of the path without cloud [1].
+    cloud_relative_variance : array_like, shape (...)
+        ``v`` [1] (:func:`in_cloud_relative_variance`).
+    mu0 : float
+        Cosine of the solar zenith angle [1], in (0, 1]; optical depths are divided by it.
+    layer_thickness : array_like, shape (nz,), optional
+        [m]; needed only with ``width_per_area``.
+    width_per_area : array_like, shape (...)
+        ``rho`` [m-1] (:func:`cloud_width_per_area`); 0 (the default) for the cover seen
+        from above.
+
+    Returns
+    -------
+    ndarray, shape (...)
+        Direct flux on the horizontal over the incident flux on the horizontal [1].
+
+    References
+    ----------
+    Beer-Lambert law along the slant path; Geleyn and Hollingsworth (1979) for the
+    overlap; Matheron (1975) and Serra (1982) for the Boolean model of the slanted
+    cover; Barker (1996) and Oreopoulos and Barker (1999) for the gamma average.
+
+    Examples
+    --------
+    >>> round(float(direct_transmittance_prior([[0.4]], [[0.4 * 2.0]], [0.0], [0.0], 1.0)[0]), 12)  # 0.6 + 0.4 e^-2
+    0.654134113295
+    """
+    shape = np.shape(clear_sky_optical_depth)
+    n = int(np.prod(shape, dtype=np.int64))
+    blocks, loose = _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
+    v = np.broadcast_to(np.asarray(cloud_relative_variance, dtype=np.float64), shape)
+    return _transmittance_of_blocks(blocks, loose.reshape(n), clear_sky_optical_depth, v, mu0,
+                                    width_per_area).reshape(shape)
+
+
+def _clear_sky_layers(fields):
+    return np.asarray(fields["layer_clear_sky_optical_depth"], dtype=np.float64)
+
+
+def _cloud_layers(fields):
+    """Layer optical depth beyond the clear-sky one (the cloud's share), >= 0 [1]."""
+    def compute():
+        out = np.subtract(np.asarray(fields["layer_optical_depth"], dtype=np.float64), _clear_sky_layers(fields))
+        return np.maximum(out, 0.0, out=out)
+    return _memo(fields, "cloud_tau", compute)
+
+
+def _vertical_blocks(fields):
+    """Blocks of each host column's own layers (flat), ``loose`` and the in-cloud relative variance."""
+    def compute():
+        fraction = fields["layer_cloud_fraction"]
+        blocks, loose = _blocks_list(fraction, _cloud_layers(fields))
+        n = loose.size
+        return blocks, loose, _relative_variance_of_blocks(fields["column_optical_depth_std"], blocks, n)
+    return _memo(fields, "vertical_blocks", compute)
+
+
+def _area_weights(fields):
+    return _memo(fields, "area_weights", lambda: area_path_weights(
+        fields["z_edge"], _scalar(fields, "dx"), _scalar(fields, "dy"), _scalar(fields, "solar_zenith_angle"),
+        _scalar(fields, "solar_beam_azimuth")))
+
+
+def _path_mean(values, layer_weights, weights, total):
+    """Mean of a column value over the columns the paths cross, weighted by ``layer_weights`` (nz, ny, nx)."""
+    return np.divide(slant_sum(layer_weights * values, weights), total, out=np.zeros_like(total), where=total > 0.0)
+
+
+def _direct_prior(fields, slanted):
+    """The direct-beam prior of each host column along the slant paths toward the sun, or the vertical."""
+    def compute():
+        mu0 = _mu0(fields)
+        cloud, clear = _cloud_layers(fields), _clear_sky_layers(fields)
+        shape = cloud.shape[1:]
+        blocks, loose, v = _vertical_blocks(fields)
+        if not slanted:
+            return _transmittance_of_blocks(blocks, loose, clear.sum(axis=0), v, mu0, 0.0).reshape(shape)
+        fraction = np.asarray(fields["layer_cloud_fraction"], dtype=np.float64)
+        weights = _area_weights(fields)
+        path_cloud, path_fraction = gather_layers(cloud, weights), gather_layers(fraction, weights)
+        # Column properties of the crossed columns, weighted by the cloud optical depth
+        # (relative variance) or the cloud fraction (cloud width per area) met in each.
+        v_path = _path_mean(v.reshape(shape), cloud, weights, path_cloud.sum(axis=0))
+        rho = cloud_width_per_area(fields["total_cloud_fraction"], fields["cloud_edge_length"])
+        rho_path = _path_mean(rho, fraction, weights, path_fraction.sum(axis=0))
+        return direct_transmittance_prior(path_fraction, path_cloud, slant_sum(clear, weights), v_path, mu0,
+                                          np.diff(np.asarray(fields["z_edge"], dtype=np.float64)), rho_path)
+    return _memo(fields, ("direct_prior", slanted), compute)
+
+
 # --- the features -------------------------------------------------------------------------
 
 def _grid_shape(fields):
@@ -317,10 +785,33 @@ def cloud_edge_length(fields):
 
 
 def _independent_column_feature(flux):
-    def feature(fields):
+    def feature(fields, host_fluxes="monte_carlo"):
         return _independent_column(fields, flux)
     feature.__name__ = f"independent_column_{flux}"
-    feature.__doc__ = f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident flux)."
+    feature.__doc__ = (f"The host's independent-column {flux.replace('_', ' ')} [1] (fraction of the incident "
+                       "flux).\n\n"
+                       "    ``host_fluxes`` (a recipe parameter) names the kind of fluxes the host passes (the\n"
+                       "    column solver they come from); it does not change the computation.\n")
+    return feature
+
+
+#: Fluxes whose neighbourhood excess is a feature: what horizontal transport could bring.
+NEIGHBOUR_EXCESS_FLUXES = ("surface_downward_direct_flux", "surface_downward_diffuse_flux", "toa_upward_flux")
+
+
+def _neighbour_excess_feature(flux):
+    def feature(fields, radius, host_fluxes="monte_carlo"):
+        own = _independent_column(fields, flux)
+        mean = _memo(fields, ("nm_ica", flux, radius), lambda: neighbourhood_mean(
+            own, radius, _scalar(fields, "dx"), _scalar(fields, "dy")))
+        return mean - own
+    feature.__name__ = f"neighbour_excess_independent_column_{flux}"
+    feature.__doc__ = (f"Neighbourhood mean of the host's independent-column {flux.replace('_', ' ')} over the window "
+                       "reaching ``radius`` [m] beyond the column, minus the column's own [1].\n\n"
+                       "    Light scattered in one column leaves through others: in 3D a column's diffuse and\n"
+                       "    reflected fluxes lean toward their neighbourhood's (the smoothing of the non-local\n"
+                       "    independent pixel approximation; Marshak et al. 1995), and its direct flux toward\n"
+                       "    that of the columns its slant path crosses.  The excess says how far and which way.\n")
     return feature
 
 
@@ -428,6 +919,38 @@ def cloud_top_height_upsun_minus_downsun(fields, cloud_side_distance=2000.0, lay
     return _shift_bilinear(top, sx, sy) - _shift_bilinear(top, -sx, -sy)
 
 
+def direct_beam_prior(fields):
+    """Direct-beam prior: surface direct flux over the incident flux along the slant path toward the sun [1].
+
+    :func:`direct_transmittance_prior` of the path from the column's surface centre
+    toward the sun (periodic, through neighbouring columns as for
+    :func:`slant_optical_depth`): layer cloud fractions and clear-sky and cloud optical
+    depths gathered along the path with the path weights, maximum-random overlap of the
+    gathered cloud fractions, the cloud's optical depth gamma-distributed with the
+    in-cloud relative variance of the crossed columns (:func:`in_cloud_relative_variance`,
+    weighted by the cloud optical depth the path meets in each).
+    """
+    return _direct_prior(fields, slanted=True)
+
+
+def direct_beam_prior_minus_independent_column(fields, host_fluxes="monte_carlo"):
+    """Direct-beam prior minus the host's independent-column direct flux [1]: a prior direct correction.
+
+    ``host_fluxes`` (a recipe parameter) names the kind of independent-column fluxes the
+    host passes; it does not change the computation.
+    """
+    return direct_beam_prior(fields) - _independent_column(fields, "surface_downward_direct_flux")
+
+
+def direct_beam_prior_slant_minus_vertical(fields):
+    """Direct-beam prior along the slant path minus the same formula along the vertical [1].
+
+    A prior direct correction in the manner of the tilted independent column (tilted
+    minus vertical of one method, so that the method's own errors largely cancel).
+    """
+    return _direct_prior(fields, slanted=True) - _direct_prior(fields, slanted=False)
+
+
 class Feature:
     """A registered feature: its function, unit, the host fields and recipe parameters it uses.
 
@@ -459,6 +982,10 @@ class Feature:
 _LAYERS = ("layer_cloud_fraction", "z_edge")
 _TAU = ("layer_optical_depth",)
 _THRESHOLD = ("layer_cloud_fraction_threshold",)
+_HOST_FLUXES = ("host_fluxes",)
+_PRIOR = ("layer_cloud_fraction", "layer_optical_depth", "layer_clear_sky_optical_depth", "z_edge",
+          "total_cloud_fraction", "column_optical_depth_std", "cloud_edge_length")
+_ICA_DIRECT = ("independent_column_surface_downward_direct_flux",)
 
 #: The feature registry, in the default order.
 FEATURES = {f.name: f for f in [
@@ -473,7 +1000,8 @@ FEATURES = {f.name: f for f in [
     Feature(cloud_edge_length, "m-1", ("cloud_edge_length",)),
     *[Feature(_independent_column_feature(flux), "1",
               ((f"independent_column_{flux}",) if flux != "surface_downward_flux" else
-               ("independent_column_surface_downward_direct_flux", "independent_column_surface_downward_diffuse_flux")))
+               ("independent_column_surface_downward_direct_flux", "independent_column_surface_downward_diffuse_flux")),
+              _HOST_FLUXES)
       for flux in INDEPENDENT_COLUMN_FLUXES],
     Feature(neighbour_mean_cloud_fraction, "1", ("total_cloud_fraction",), per_radius=True),
     Feature(neighbour_contrast_cloud_fraction, "1", ("total_cloud_fraction",), per_radius=True),
@@ -485,7 +1013,17 @@ FEATURES = {f.name: f for f in [
     Feature(slant_optical_depth, "1", _TAU + ("z_edge",)),
     Feature(slant_minus_vertical_optical_depth, "1", _TAU + ("z_edge",)),
     Feature(cloud_top_height_upsun_minus_downsun, "m", _LAYERS, ("cloud_side_distance",) + _THRESHOLD),
+    *[Feature(_neighbour_excess_feature(flux), "1", (f"independent_column_{flux}",), _HOST_FLUXES, per_radius=True)
+      for flux in NEIGHBOUR_EXCESS_FLUXES],
+    # Physical priors (not in the default recipe: docs/features.md).
+    Feature(direct_beam_prior, "1", _PRIOR),
+    Feature(direct_beam_prior_minus_independent_column, "1", _PRIOR + _ICA_DIRECT, _HOST_FLUXES),
+    Feature(direct_beam_prior_slant_minus_vertical, "1", _PRIOR),
 ]}
+
+#: Features of the default recipe: the registry up to the neighbourhood excesses and physical priors.
+DEFAULT_FEATURES = tuple(list(FEATURES)[:list(FEATURES).index(
+    f"neighbour_excess_independent_column_{NEIGHBOUR_EXCESS_FLUXES[0]}")])
 
 
 def column_name(feature, radius=None):

@@ -10,7 +10,7 @@ import math
 from pathlib import Path
 
 from ..errors import FormatError, ParameterError
-from .features import FEATURES, column_name
+from .features import DEFAULT_FEATURES, FEATURES, column_name
 
 #: Version of the recipe layout (and of the feature definitions it refers to).
 RECIPE_VERSION = 1
@@ -22,7 +22,11 @@ DEFAULT_PARAMETERS = {
     "edge_distance_cap": 10000.0,
     "layer_cloud_fraction_threshold": 0.0,
     "cloud_side_distance": 2000.0,
+    "host_fluxes": "monte_carlo",
 }
+
+#: Kinds of independent-column fluxes a host passes (``docs/features.md``, "Host fluxes").
+HOST_FLUX_KINDS = ("monte_carlo", "two_stream_host")
 
 _PARAMETER_RULES = {
     "neighbour_radii": "a non-empty list of distinct positive distances in m",
@@ -30,6 +34,7 @@ _PARAMETER_RULES = {
     "edge_distance_cap": "a positive distance in m",
     "layer_cloud_fraction_threshold": "a cloud fraction in [0, 1)",
     "cloud_side_distance": "a positive distance in m",
+    "host_fluxes": "one of " + ", ".join(repr(k) for k in HOST_FLUX_KINDS),
 }
 
 
@@ -42,6 +47,8 @@ def _check_parameter(name, value):
         ok = (isinstance(value, (list, tuple)) and len(value) > 0 and all(_finite(r) and r > 0 for r in value)
               and len(set(float(r) for r in value)) == len(value))
         return [float(r) for r in value] if ok else None
+    if name == "host_fluxes":
+        return value if isinstance(value, str) and value in HOST_FLUX_KINDS else None
     if not _finite(value):
         return None
     value = float(value)
@@ -205,10 +212,13 @@ class FeatureRecipe:
 
 
 def default_recipe():
-    """The default recipe: every registered feature in registry order, default parameters.
+    """The default recipe: every registered feature but the physical priors, in registry order, default parameters.
+
+    The priors (``direct_beam_prior`` and its two corrections) are opt-in: list them in
+    a recipe (``docs/features.md``).
 
     Returns
     -------
     FeatureRecipe
     """
-    return FeatureRecipe(list(FEATURES), name="default")
+    return FeatureRecipe(list(DEFAULT_FEATURES), name="default")

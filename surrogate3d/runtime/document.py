@@ -27,8 +27,9 @@ FORMAT_NAME = "surrogate3d-correction-coefficients"
 #: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate); 1.2 added the
 #: optional ``training_envelope`` (an older file has none: no column is flagged) and stores
 #: scale 1 for a ridge feature constant up to round-off (readers clip the standardized value
-#: of such a feature in older files, :mod:`surrogate3d.runtime.ridge`).
-FORMAT_VERSION = "1.2"
+#: of such a feature in older files, :mod:`surrogate3d.runtime.ridge`); 1.3 added the
+#: optional ``target_transforms`` (an older file has none: the model predicts corrections).
+FORMAT_VERSION = "1.3"
 
 #: Model kinds a coefficient file may hold.
 KINDS = ("ridge", "boosted")
@@ -67,6 +68,11 @@ GATE_FIELD = "clear_sky_gate"
 
 #: Optional top-level field: the training envelope (absent before format 1.2: nothing flagged).
 ENVELOPE_FIELD = "training_envelope"
+
+#: Optional top-level field: per target, the offset and scale that turn the model's output
+#: into the correction (absent before format 1.3: none).
+TRANSFORM_FIELD = "target_transforms"
+_TRANSFORM_KEYS = {"scale_feature", "scale_floor", "offset_features", "offset_coefficients"}
 
 #: Arrays with at most this many finite values are written as plain JSON lists.
 PLAIN_LIMIT = 64
@@ -312,6 +318,7 @@ def check_document(document, source):
     else:
         _check_trees(arrays, sizes, source)
     _check_gate(document, len(feature_names), source)
+    _check_transforms(document, len(feature_names), len(target_names), source)
     if ENVELOPE_FIELD in document:
         _envelope.check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
 
@@ -367,6 +374,51 @@ def _check_gate(document, n_feature, source):
             or tolerance < 0:
         raise FormatError(f"coefficient file {source!r}: field {GATE_FIELD}.tolerance must be a finite number "
                           f">= 0; got {_short(tolerance)}")
+
+
+def target_transforms(document):
+    """The target transforms of a checked document, one ``dict`` or None per target.
+
+    The correction of target ``m`` is ``offset + scale * y[m]``, where ``y`` is the model's
+    output, ``offset = sum_k offset_coefficients[k] * x[offset_features[k]]`` and ``scale =
+    max(x[scale_feature], scale_floor)`` (1 when ``scale_feature`` is -1).  A document
+    without the field (before format 1.3) has none: a list of None.
+    """
+    field = document.get(TRANSFORM_FIELD)
+    return list(field) if field is not None else [None] * len(document["targets"]["names"])
+
+
+def _check_transforms(document, n_feature, n_target, source):
+    if TRANSFORM_FIELD not in document:
+        return
+    field = document[TRANSFORM_FIELD]
+    if not isinstance(field, list) or len(field) != n_target:
+        raise FormatError(f"coefficient file {source!r}: field {TRANSFORM_FIELD} must be a list with one entry "
+                          f"per target ({n_target}); got {_short(field)}")
+    for m, spec in enumerate(field):
+        label = f"{TRANSFORM_FIELD}[{m}]"
+        if spec is None:
+            continue
+        if not isinstance(spec, dict) or set(spec) != _TRANSFORM_KEYS:
+            raise FormatError(f"coefficient file {source!r}: field {label} must be null or an object with exactly "
+                              f"{sorted(_TRANSFORM_KEYS)}; got {_short(spec)}")
+        scale, offsets, coefficients = spec["scale_feature"], spec["offset_features"], spec["offset_coefficients"]
+        if isinstance(scale, bool) or not isinstance(scale, int) or not -1 <= scale < n_feature:
+            raise FormatError(f"coefficient file {source!r}: field {label}.scale_feature must be a feature index "
+                              f"< {n_feature} or -1; got {_short(scale)}")
+        floor = spec["scale_floor"]
+        if isinstance(floor, bool) or not isinstance(floor, (int, float)) or not math.isfinite(floor) or floor < 0:
+            raise FormatError(f"coefficient file {source!r}: field {label}.scale_floor must be a finite number "
+                              f">= 0; got {_short(floor)}")
+        if not isinstance(offsets, list) or not isinstance(coefficients, list) or len(offsets) != len(coefficients):
+            raise FormatError(f"coefficient file {source!r}: fields {label}.offset_features and "
+                              f"offset_coefficients must be lists of one length")
+        for i, k in enumerate(offsets):
+            if isinstance(k, bool) or not isinstance(k, int) or not 0 <= k < n_feature:
+                _fail_at(source, f"{label}.offset_features", i, k, f"is not a feature index < {n_feature}")
+        for i, c in enumerate(coefficients):
+            if isinstance(c, bool) or not isinstance(c, (int, float)) or not math.isfinite(c):
+                _fail_at(source, f"{label}.offset_coefficients", i, c, "is not a finite number")
 
 
 def _fail_at(source, label, index, value, rule):

@@ -16,7 +16,7 @@ from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
 from ..pairs.targets import TARGETS
-from .document import check_document, clear_sky_gate, document_from_json, training_envelope
+from .document import check_document, clear_sky_gate, document_from_json, target_transforms, training_envelope
 from .envelope import EnvelopeCheck, EnvelopeWarning
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
@@ -47,6 +47,9 @@ class CorrectionModel:
     envelope : surrogate3d.runtime.envelope.TrainingEnvelope or None
         Ranges and distance threshold of the training columns; None for a file written
         before format 1.2 (then no column is flagged).
+    target_transforms : list of dict or None
+        Per target, how the model's output becomes the correction (None: it is the
+        correction; :func:`surrogate3d.runtime.document.target_transforms`).
     document : dict
         Everything the file holds (provenance, skill table, hyperparameters ...).
 
@@ -76,6 +79,7 @@ class CorrectionModel:
         self._gate, self.clear_sky_tolerance = clear_sky_gate(document)
         self.clear_sky_features = [self.feature_names[k] for k in self._gate]
         self.envelope = training_envelope(document)
+        self.target_transforms = target_transforms(document)
         arrays = document[self.kind]
         if self.kind == "ridge":
             self._evaluator = RidgeModel(**arrays)
@@ -125,7 +129,7 @@ class CorrectionModel:
             Wrong shape, or a value that is not finite (sample and feature named).
         """
         X = self._checked(features)
-        corrections = self._evaluator.predict(X)
+        corrections = self._transformed(X, self._evaluator.predict(X))
         gated = self._gated_rows(X)
         corrections[gated] = 0.0
         if check_envelope and self.envelope is not None:
@@ -135,6 +139,19 @@ class CorrectionModel:
                     f"{check.n_outside} of {X.shape[0]} columns lie outside the training envelope of model "
                     f"{self.name!r}: their corrections extrapolate (see envelope_check)"), stacklevel=2)
         return corrections
+
+    def _transformed(self, X, output):
+        """Corrections from the model's output: ``offset + scale * output`` per target with a
+        transform (:func:`surrogate3d.runtime.document.target_transforms`)."""
+        for m, spec in enumerate(self.target_transforms):
+            if spec is None:
+                continue
+            if spec["scale_feature"] >= 0:
+                output[:, m] *= np.maximum(X[:, spec["scale_feature"]], spec["scale_floor"])
+            # Term by term, in the file's order: the Fortran module adds them the same way.
+            for k, c in zip(spec["offset_features"], spec["offset_coefficients"]):
+                output[:, m] += c * X[:, k]
+        return output
 
     def envelope_check(self, features):
         """Which columns lie outside the training envelope: a flag per column and their count.

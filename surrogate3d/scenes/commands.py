@@ -38,8 +38,11 @@ def register(sub):
     p.add_argument("--cloud-top-variability", metavar="V",
                    help="coefficient of variation of the main layer's cloud thickness, in [0, 5]")
     p.add_argument("--config", metavar="FILE", help="scene-set configuration (TOML, see docs/scene-generator.md)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace scene files that hold results (their results are dropped)")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no per-file lines")
-    p.set_defaults(func=run_scenes)
+    p.set_defaults(func=run_scenes, interrupted="no scene file was written",
+                   parameter_flags={key: option for key, option, _ in _GRID_OPTIONS})
 
     p = sub.add_parser("show", help="draw a scene file: column optical depth map and a vertical cross-section")
     p.add_argument("file", metavar="FILE", help="scene file (*.nc)")
@@ -110,32 +113,74 @@ def _scene_set(args):
     return cfg
 
 
+def _stored_results(path):
+    """Results a scene file holds (stored and pending), or None if it cannot be read."""
+    from ..archive.netcdf import read_result_flags
+    from ..archive.pending import pending_keys
+    from ..archive.results import completed
+    from ..errors import FormatError
+
+    try:
+        return len(completed(read_result_flags(path))) + len(pending_keys(path))
+    except FormatError:
+        return None
+
+
+def _check_replacements(paths, overwrite):
+    """Refuse to replace scene files holding results unless ``overwrite``; returns the lines saying what is dropped."""
+    held = {path: _stored_results(path) for path in paths if path.exists()}
+    held = {path: n for path, n in held.items() if n != 0}
+    describe = {path: ("cannot be read" if n is None else f"holds {n} result{'s' if n != 1 else ''}")
+                for path, n in held.items()}
+    if held and not overwrite:
+        first = ", ".join(f"{path.name} {text}" for path, text in list(describe.items())[:3])
+        more = f" and {len(held) - 3} more" if len(held) > 3 else ""
+        raise Surrogate3DError(f"{len(held)} existing scene file{'s' if len(held) != 1 else ''} would be replaced "
+                               f"({first}{more}); use --overwrite to replace them and drop their results, or "
+                               "choose another --out")
+    return [f"replaced {path}: it {text.replace('holds', 'held')}, now dropped" for path, text in describe.items()]
+
+
 def run_scenes(args):
+    import shutil
+    from contextlib import ExitStack
+
     from tqdm import tqdm
 
+    from .._outputs import check_output_directory, staged_directory
     from ..archive import write_scene
+    from ..archive.locking import ArchiveLock
+    from ..archive.pending import pending_dir
     from .generator import generate_scene
 
     cfg = _scene_set(args)
     entries = cfg.entries()
-    out = Path(cfg.out)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise Surrogate3DError(f"cannot create output directory {str(out)!r}: {exc.strerror or exc}") from None
+    out = check_output_directory(cfg.out, "--out")
     jobs = [(entry.regime, seed) for entry in entries for seed in entry.seeds]
+    targets = [out / f"{regime.name}_{seed:05d}.nc" for regime, seed in jobs]
     written = []
-    with tqdm(total=len(jobs), desc="scenes", unit="scene", file=sys.stderr,
-              disable=True if args.quiet else None) as bar:
-        for regime, seed in jobs:
-            scene = generate_scene(regime, seed, **cfg.scene_options(regime.name, seed))
-            path = out / f"{regime.name}_{seed:05d}.nc"
-            write_scene(scene, path, validate=False)
-            written.append(path)
-            if not args.quiet:
-                tqdm.write(f"wrote {path}  (cloud fraction {scene.attrs['total_cloud_fraction']:.3f})",
-                           file=sys.stdout)
-            bar.update(1)
+    with ExitStack() as stack:
+        if out.is_dir():
+            # No simulate run may merge results into a file this run replaces.
+            lock = stack.enter_context(ArchiveLock(out))
+            lock.hold_archive(exclusive=True, what="scenes")
+        dropped = _check_replacements(targets, args.overwrite)
+        bar = stack.enter_context(tqdm(total=len(jobs), desc="scenes", unit="scene", file=sys.stderr,
+                                       disable=True if args.quiet else None))
+        with staged_directory(out) as staging:
+            for (regime, seed), path in zip(jobs, targets):
+                scene = generate_scene(regime, seed, **cfg.scene_options(regime.name, seed))
+                write_scene(scene, staging / path.name, validate=False)
+                written.append((path, scene.attrs["total_cloud_fraction"]))
+                bar.update(1)
+            for path in targets:
+                # Results of a replaced file must not be merged into the new scene.
+                shutil.rmtree(pending_dir(path), ignore_errors=True)
+    for line in dropped:
+        print(line, file=sys.stderr)
+    if not args.quiet:
+        for path, fraction in written:
+            print(f"wrote {path}  (cloud fraction {fraction:.3f})")
     print(f"wrote {len(written)} scene file{'s' if len(written) != 1 else ''} to {out}")
 
 

@@ -150,11 +150,13 @@ def make_scene(extinction, single_scattering_albedo, asymmetry_parameter, z_edge
         "z_edge": ("z_edge", z_edge),
     }
     ds = xr.Dataset(coords=coords)
+    sizes = {"band": nband, "z": nz, "y": ny, "x": nx, "z_edge": nz + 1}
     for name, value in data.items():
         dims = VARIABLE_SPEC[name][0]
-        if np.ndim(value) != len(dims):
-            raise ValidationError(
-                f"{name} has shape {np.shape(value)}; expected dimensions {dims}")
+        expected = tuple(sizes[d] for d in dims)
+        if np.shape(value) != expected:
+            raise ValidationError(f"{name} has shape {np.shape(value)}; expected {expected} for dimensions "
+                                  f"{dims} of {nband} band(s) on a {nz} x {ny} x {nx} grid")
         ds[name] = (dims, value)
     ds.attrs.update({
         "Conventions": "CF-1.10",

@@ -6,10 +6,13 @@ beam: ``nsub x nsub`` parallel rays land in every surface column, one at a unifo
 random point of each of the column's ``nsub x nsub`` equal strata (stratified random
 sampling).  Every batch's direct flux is then an unbiased estimate for every column,
 whatever the cloud edges do inside it, a column under a horizontally uniform sky still
-receives exactly ``exp(-tau/mu0)``, and the errors of different columns are independent.  Energy removed from the beam in a cell is split into absorption,
-``(1 - omega) dE``, and a scattering source, ``omega dE``, from which the batch's Monte
-Carlo photons start; the direct beam reaching the surface is absorbed, ``(1 - A) T``, or
-reflected into a Lambertian source, ``A T``.
+receives exactly ``exp(-tau/mu0)``, and the errors of different columns are independent.
+Energy removed from the beam in a cell is split into absorption, ``(1 - omega) dE``, and
+a scattering source, ``omega dE``, from which the batch's Monte Carlo photons start; the
+direct beam reaching the surface is absorbed, ``(1 - A) T``, or reflected into a
+Lambertian source, ``A T``.  Horizontally uniform layers above the clouds (and uniform
+conservative layers below them) are crossed without walking their cells
+(:func:`uniform_slabs`).
 """
 
 import math
@@ -18,6 +21,7 @@ import numpy as np
 from numba import njit
 
 from ._kernel import KERNEL
+from ._records import Slabs
 from ._rng import uniform
 
 INF = math.inf
@@ -111,8 +115,59 @@ def _apply_pending(trans, pending, source, b, r):
         pending[b] = 0.0
 
 
+@njit(cache=True, inline="always")
+def _enter_top_slab(trans, pending, source, r, ray_cum, ray_trans, kept, slabs, wray):
+    """Ray ``r`` through the uniform layers on top: every path through them crosses the same
+    optical depth, so their transmission and scattered source are the slab's precomputed
+    ones (:func:`uniform_slabs`), read at the kept layer edges ``kept`` (slot, edge index)."""
+    top, top_t, top_s = slabs.top, slabs.top_transmission, slabs.top_source
+    for b in range(trans.shape[0]):
+        trans[b] = wray * top_t[b, top]
+        source[b, r] = wray * top_s[b, top]
+        pending[b] = 0.0
+        for j in range(kept.shape[0]):
+            edge = kept[j, 1]
+            if edge >= top:
+                ray_cum[b, r, kept[j, 0]] = wray * top_s[b, edge]
+                ray_trans[b, r, kept[j, 0]] = wray * top_t[b, edge]
+
+
+@njit(cache=True, inline="always")
+def _cross_bottom_slab(trans, source, r, ray_cum, ray_trans, kept, slabs):
+    """Ray ``r`` through the uniform conservative layers below ``bottom``: the beam falls by the
+    slab's precomputed transmission and all it loses is scattered (:func:`uniform_slabs`)."""
+    bottom, bottom_t = slabs.bottom, slabs.bottom_transmission
+    for b in range(trans.shape[0]):
+        for j in range(kept.shape[0]):
+            edge = kept[j, 1]
+            if edge < bottom:
+                ray_cum[b, r, kept[j, 0]] = source[b, r] + trans[b] * (1.0 - bottom_t[b, edge])
+                ray_trans[b, r, kept[j, 0]] = trans[b] * bottom_t[b, edge]
+        t_out = trans[b] * bottom_t[b, 0]
+        source[b, r] += trans[b] - t_out
+        trans[b] = t_out
+
+
+@njit(cache=True, inline="always")
+def _uniform_layer_absorption(weights, slabs, direct, cell, scale):
+    """Direct-beam absorption of the uniform layers on top: the beam reaches them undiminished
+    by any cloud, so every cell of such a layer absorbs the same, its exact expectation (rays
+    through it would only sample where it falls)."""
+    top, absorbed = slabs.top, slabs.top_absorption
+    ny, nx = cell.shape[1], cell.shape[2]
+    for b in range(weights.shape[0]):
+        for k in range(top, absorbed.shape[1]):
+            a = weights[b] * absorbed[b, k]
+            if a > 0.0:
+                units = np.int64(a * scale + 0.5)
+                for iy in range(ny):
+                    for ix in range(nx):
+                        cell[k, iy, ix] += units
+                        direct[1, b, iy, ix] += a
+
+
 @njit(**KERNEL)
-def direct_beam_batch(state, optics, grid, beam, tables, tallies):
+def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
     """Trace one batch's direct beam along slant paths with periodic wrap.
 
     Parameters
@@ -125,7 +180,10 @@ def direct_beam_batch(state, optics, grid, beam, tables, tallies):
     grid : surrogate3d.solvers._records.Grid
         ``z_edge``, ``dx`` and ``dy`` are read.
     beam : surrogate3d.solvers._records.Beam
-        Direction, rays per column and axis, reach and ``edge_slot`` are read.
+        Direction, rays per column and axis, reach, ``edge_slot`` and ``kept`` are read.
+    slabs : surrogate3d.solvers._records.Slabs
+        The horizontally uniform layers from ``top`` up and below ``bottom`` (those also
+        conservative), which rays cross without walking their cells (:func:`uniform_slabs`).
     tables : surrogate3d.solvers._records.BeamTables
         ``ray_xy``, ``source``, ``ray_cum`` and ``ray_trans`` are written: the ray tables let
         a photon find its starting block without re-tracing the ray (sources in units of
@@ -137,60 +195,68 @@ def direct_beam_batch(state, optics, grid, beam, tables, tallies):
     """
     kext, ssa_g, alb, weights = optics.kext, optics.ssa_g, optics.albedo, optics.band_weight
     z_edge, dx, dy = grid.z_edge, grid.dx, grid.dy
-    ux, uy, uz, nsub, edge_slot = beam.ux, beam.uy, beam.uz, beam.nsub, beam.edge_slot
+    ux, uy, uz, nsub, edge_slot, kept = beam.ux, beam.uy, beam.uz, beam.nsub, beam.edge_slot, beam.kept
     reach = (beam.reach_x, beam.reach_y)
     ray_xy, source, ray_cum, ray_trans = tables.ray_xy, tables.source, tables.ray_cum, tables.ray_trans
     direct, work, cell, scale = tables.direct, tables.work, tallies.cell, tallies.scale
     nb, nz, ny, nx = kext.shape
     nray = nx * ny * nsub * nsub
     wray = 1.0 / (nsub * nsub)
+    mu0 = -uz
+    top, bottom = slabs.top, slabs.bottom
+    lx, ly = nx * dx, ny * dy
+    above = (z_edge[nz] - z_edge[top]) / mu0  # path length through the uniform layers on top
     trans, pending = work[:nb], work[nb:2 * nb]
+    _uniform_layer_absorption(weights, slabs, direct, cell, scale)
     for r in range(nray):
         x, y = ray_entry(r, nx, ny, nsub, dx, dy, (uniform(state), uniform(state)), reach)
         ray_xy[r, 0], ray_xy[r, 1] = x, y
-        ix, iy = min(int(x / dx), nx - 1), min(int(y / dy), ny - 1)
-        iz = nz - 1
-        z0 = z_edge[nz]
-        for b in range(nb):
-            trans[b] = wray
-            pending[b] = 0.0
-            source[b, r] = 0.0
-            ray_cum[b, r, 0] = 0.0
-            ray_trans[b, r, 0] = wray
-        sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x, y, z0, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
-        t = 0.0
-        while True:
-            tn = min(tmx, tmy, tmz)
-            for b in range(nb):
-                k = float(kext[b, iz, iy, ix])
-                if k > 0.0:
-                    w = float(ssa_g[b, iz, iy, ix, 0])
-                    if w == 1.0:
-                        # A conservative cell absorbs nothing and scatters all it removes, so
-                        # its source only telescopes: one exponential for a run of such cells.
-                        pending[b] += k * (tn - t)
-                        continue
-                    _apply_pending(trans, pending, source, b, r)
-                    t_out = trans[b] * math.exp(-k * (tn - t))
-                    removed = trans[b] - t_out
-                    a = weights[b] * (1.0 - w) * removed
-                    cell[iz, iy, ix] += np.int64(a * scale + 0.5)
-                    direct[1, b, iy, ix] += a
-                    source[b, r] += w * removed
-                    trans[b] = t_out
-            t = tn
-            ix, iy, iz, tmx, tmy, tmz, axis = descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny,
-                                                            z0, uz, z_edge)
-            if axis == 2:
-                j = edge_slot[iz + 1]
-                if j >= 0:
-                    for b in range(nb):
+        _enter_top_slab(trans, pending, source, r, ray_cum, ray_trans, kept, slabs, wray)
+        iz = top - 1
+        if iz >= bottom:
+            # --- walk the cells of the layers between the uniform slabs
+            x0, y0, z0 = wrap_into(x + above * ux, lx), wrap_into(y + above * uy, ly), z_edge[top]
+            ix, iy = min(int(x0 / dx), nx - 1), min(int(y0 / dy), ny - 1)
+            sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x0, y0, z0, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
+            t = 0.0
+            while True:
+                tn = min(tmx, tmy, tmz)
+                for b in range(nb):
+                    k = float(kext[b, iz, iy, ix])
+                    if k > 0.0:
+                        w = float(ssa_g[b, iz, iy, ix, 0])
+                        if w == 1.0:
+                            # A conservative cell absorbs nothing and scatters all it removes, so
+                            # its source only telescopes: one exponential for a run of such cells.
+                            pending[b] += k * (tn - t)
+                            continue
                         _apply_pending(trans, pending, source, b, r)
-                        ray_cum[b, r, j] = source[b, r]
-                        ray_trans[b, r, j] = trans[b]
-                if iz < 0:
-                    break
-        # The walk ends in the column the ray was aimed at, up to round-off.
+                        t_out = trans[b] * math.exp(-k * (tn - t))
+                        removed = trans[b] - t_out
+                        a = weights[b] * (1.0 - w) * removed
+                        cell[iz, iy, ix] += np.int64(a * scale + 0.5)
+                        direct[1, b, iy, ix] += a
+                        source[b, r] += w * removed
+                        trans[b] = t_out
+                t = tn
+                ix, iy, iz, tmx, tmy, tmz, axis = descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny,
+                                                                z0, uz, z_edge)
+                if axis == 2:
+                    j = edge_slot[iz + 1]
+                    if j >= 0:
+                        for b in range(nb):
+                            _apply_pending(trans, pending, source, b, r)
+                            ray_cum[b, r, j] = source[b, r]
+                            ray_trans[b, r, j] = trans[b]
+                    if iz < bottom:
+                        break
+        for b in range(nb):
+            _apply_pending(trans, pending, source, b, r)
+        _cross_bottom_slab(trans, source, r, ray_cum, ray_trans, kept, slabs)
+        if bottom > 0 or top == 0:
+            # Where it lands: the column it was aimed at, up to round-off.
+            ix = min(int(wrap_into(x + reach[0], lx) / dx), nx - 1)
+            iy = min(int(wrap_into(y + reach[1], ly) / dy), ny - 1)
         for b in range(nb):
             _apply_pending(trans, pending, source, b, r)
             albedo = alb[b, iy, ix]
@@ -328,3 +394,58 @@ def locate_source_column(col, band, target, u, props, alb, z_edge, mu0):
     if alb[band, iy, ix] * trans > 0.0 or last < 0:
         return 1, 0.0, 0
     return 0, 0.5 * (z_edge[last] + z_edge[last + 1]), last
+
+
+def uniform_slabs(kext, ssa, z_edge, mu0):
+    """The horizontally uniform layers the direct beam crosses without walking their cells.
+
+    Every path through a layer whose cells all have one extinction ``k`` and albedo crosses
+    the optical depth ``k dz / mu0`` (Beer-Lambert law), so a ray's transmission through a
+    slab of such layers is known beforehand.  Above the highest non-uniform layer (clear
+    air over the clouds) the beam is the same everywhere, and so are the slab's scattered
+    source and its absorption per cell; below the lowest one only conservative layers
+    qualify, where a ray's loss is all scattered.
+
+    Parameters
+    ----------
+    kext, ssa : ndarray (nband, nz, ny, nx)
+        Extinction [m-1] and single-scattering albedo, as the kernels trace them.
+    z_edge : ndarray (nz + 1,)
+        Layer edges [m].
+    mu0 : float
+        Cosine of the solar zenith angle.
+
+    Returns
+    -------
+    surrogate3d.solvers._records.Slabs
+        ``(top, bottom, top_transmission, top_source, bottom_transmission, top_absorption)``:
+        every layer from ``top`` up is uniform in every band, every layer below ``bottom <=
+        top`` uniform and conservative.  Per band (nband, nz + 1) and unit incident beam:
+        the transmission from the domain top down to edge ``k >= top`` and the energy
+        scattered above it; the transmission from edge ``bottom`` down to edge ``k <=
+        bottom``; and (nband, nz) the absorption of layer ``k >= top``.
+    """
+    nb, nz = kext.shape[:2]
+    flat_k = np.asarray(kext, dtype=np.float64).reshape(nb, nz, -1)
+    flat_w = np.asarray(ssa, dtype=np.float64).reshape(nb, nz, -1)
+    uniform = ((flat_k.min(axis=2) == flat_k.max(axis=2)) & (flat_w.min(axis=2) == flat_w.max(axis=2))).all(axis=0)
+    conservative = uniform & (flat_w.min(axis=2) == 1.0).all(axis=0)
+    top = nz
+    while top > 0 and uniform[top - 1]:
+        top -= 1
+    bottom = 0
+    while bottom < top and conservative[bottom]:
+        bottom += 1
+    k, w = flat_k[:, :, 0], flat_w[:, :, 0]
+    tau = k * (np.diff(np.asarray(z_edge, dtype=np.float64)) / mu0)
+    top_t, top_s = np.ones((nb, nz + 1)), np.zeros((nb, nz + 1))
+    absorbed = np.zeros((nb, nz))
+    for layer in range(nz - 1, top - 1, -1):
+        removed = top_t[:, layer + 1] * -np.expm1(-tau[:, layer])
+        top_t[:, layer] = top_t[:, layer + 1] - removed
+        top_s[:, layer] = top_s[:, layer + 1] + w[:, layer] * removed
+        absorbed[:, layer] = (1.0 - w[:, layer]) * removed
+    bottom_t = np.ones((nb, nz + 1))
+    for layer in range(bottom - 1, -1, -1):
+        bottom_t[:, layer] = bottom_t[:, layer + 1] * np.exp(-tau[:, layer])
+    return Slabs(int(top), int(bottom), top_t, top_s, bottom_t, absorbed)

@@ -9,7 +9,8 @@ bottom) and ``ny x nx`` columns; fluxes are fractions of one column's incident f
 Built by :mod:`surrogate3d.solvers.montecarlo` for a whole run: :class:`Optics` (what
 the photons interact with), :class:`Grid` (the cells and the majorant blocks the 3D walk
 is tracked on), :class:`Beam` (the direct solar beam and where its per-ray tables are
-kept), :class:`Run` (the settings) and :class:`RunSums` (the sums over batches).  Built
+kept), :class:`Slabs` (the uniform layers the beam crosses in one step), :class:`Run`
+(the settings) and :class:`RunSums` (the sums over batches).  Built
 by the kernels per batch or per photon: :class:`Tallies` (where a batch adds what it
 measures), :class:`Survival` (when a photon stops), :class:`BeamTables` (one batch's
 direct beam), :class:`Photon` (where and how a photon starts).
@@ -66,7 +67,7 @@ clear_below, clear_above : int64 (nband,)
     Block rows below ``clear_below`` and from ``clear_above`` up are clear in every column.
 """
 
-Beam = namedtuple("Beam", ["ux", "uy", "uz", "nsub", "reach_x", "reach_y", "edge_slot", "table_edges",
+Beam = namedtuple("Beam", ["ux", "uy", "uz", "nsub", "reach_x", "reach_y", "edge_slot", "kept", "table_edges",
                            "column_cdf", "column_direct"])
 Beam.__doc__ = """The direct solar beam.
 
@@ -79,6 +80,8 @@ reach_x, reach_y : float
     field may not be a tuple: a parallel loop cannot take nested tuples).
 edge_slot : int64 (nz + 1,)
     Slot of the per-ray tables at every layer edge (-1 where none is kept).
+kept : int64 (ncz + 1, 2)
+    The kept layer edges as ``(slot, edge index)``.
 table_edges : int64 (ncz + 1,)
     Layer-edge indices where the per-ray tables are kept, rising.
 column_cdf : float64 (nband * ny * nx,)
@@ -87,6 +90,23 @@ column_cdf : float64 (nband * ny * nx,)
 column_direct : float64 (3, nband, ny, nx)
     Independent columns: solar-weighted direct flux reaching the surface, absorbed in the
     column and absorbed by the surface (3D mode: unused).
+"""
+
+Slabs = namedtuple("Slabs", ["top", "bottom", "top_transmission", "top_source", "bottom_transmission",
+                             "top_absorption"])
+Slabs.__doc__ = """The horizontally uniform layers the direct beam crosses without walking their cells
+(:func:`surrogate3d.solvers._geometry.uniform_slabs`).
+
+top, bottom : int
+    Every layer from ``top`` up is uniform in every band, every layer below ``bottom <=
+    top`` uniform and conservative.
+top_transmission, top_source : float64 (nband, nz + 1)
+    Per unit incident beam: the transmission from the domain top down to edge
+    ``k >= top``, and the energy scattered above it.
+bottom_transmission : float64 (nband, nz + 1)
+    The transmission from edge ``bottom`` down to edge ``k <= bottom``.
+top_absorption : float64 (nband, nz)
+    The absorption of layer ``k >= top``.
 """
 
 Run = namedtuple("Run", ["full_3d", "seed", "batch_size", "roulette", "max_events"])

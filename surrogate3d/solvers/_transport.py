@@ -671,17 +671,18 @@ def _cumulate(source, weights, cdf):
 
 
 @njit(**KERNEL)
-def _run_batch(state, batch, run, optics, grid, beam, tables, tallies):
+def _run_batch(state, batch, run, optics, grid, beam, slabs, tables, tallies):
     """Trace batch number ``batch`` into ``tallies`` (its own column slot, and the cell
     tallies it shares with the other batches of its thread), drawing from the random stream
     ``state`` (uint64, seeded here for the batch); returns the scattering events.
 
     In 3D the batch first traces its own direct beam (:func:`direct_beam_batch`) into
-    ``tables``, with ray positions drawn from its stream, and builds its cumulative table
-    ``tables.cdf``.  Independent columns share the exact direct beam of every column
-    (``tables.cdf`` and ``tables.direct`` are then ``beam.column_cdf`` and
-    ``beam.column_direct``).  The batch adds the direct beam's surface, column-absorbed and
-    surface-absorbed flux, ``tables.direct``, to its tallies.
+    ``tables``, with ray positions drawn from its stream, crossing the uniform ``slabs``
+    without walking them, and builds its cumulative table ``tables.cdf``.  Independent
+    columns share the exact direct beam of every column (``tables.cdf`` and
+    ``tables.direct`` are then ``beam.column_cdf`` and ``beam.column_direct``).  The batch
+    adds the direct beam's surface, column-absorbed and surface-absorbed flux,
+    ``tables.direct``, to its tallies.
     """
     band_weight, alb, cdf, column_direct = optics.band_weight, optics.albedo, tables.cdf, tables.direct
     batch_size = run.batch_size
@@ -690,7 +691,7 @@ def _run_batch(state, batch, run, optics, grid, beam, tables, tallies):
     col = tallies.col
     seed_stream(state, run.seed, batch)
     if run.full_3d:
-        direct_beam_batch(state, optics, grid, beam, tables, tallies)
+        direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies)
         total = _cumulate(tables.source, band_weight, cdf)
     else:
         total = cdf[-1]
@@ -751,7 +752,7 @@ def _run_batch(state, batch, run, optics, grid, beam, tables, tallies):
 
 
 @njit(cache=True, parallel=True)
-def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, sums):
+def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, sums):
     """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to ``sums``.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
@@ -800,7 +801,7 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, sums):
                                 directs[thread] if full_3d else beam.column_direct, works[thread])
             if full_3d:
                 tables.direct[:] = 0.0
-            slot_events[i] = _run_batch(states[i], start + i, run, optics, grid, beam, tables,
+            slot_events[i] = _run_batch(states[i], start + i, run, optics, grid, beam, slabs, tables,
                                         Tallies(col_slots[i], cell_fixed[thread], scale))
         for i in range(n):
             cs = col_slots[i]

@@ -2,17 +2,25 @@
 
 from ..archive.results import SOLVERS
 
+#: Parameters of simulate_archive as the options that set them, for messages.
+FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_size": "--batch-size",
+         "rays_per_column": "--rays-per-column", "threads": "--threads", "solar_constant": "--solar-constant",
+         "solar_zenith_angle": "--zenith", "solar_beam_azimuth": "--azimuth", "scheduler": "--scheduler",
+         "solvers": "--solvers"}
+
 
 def register(sub):
     p = sub.add_parser(
         "simulate", help="run the 3D, independent-column and two-stream solvers on every scene of an archive",
         description="Runs every scene x sun geometry x solver kind and writes the results into the scene "
-                    "files. Finished results are kept: a run that is stopped continues where it stopped.")
+                    "files. Finished results are kept: a run that is stopped continues where it stopped. "
+                    "Runs started on one archive at the same time share the work.")
     p.add_argument("archive_dir", help="archive directory of scene files (*.nc)")
     p.add_argument("--zenith", type=float, nargs="+", default=[30.0], metavar="DEG",
                    help="solar zenith angles in degrees, 0 <= zenith < 90 (default: 30)")
     p.add_argument("--azimuth", type=float, nargs="+", default=[0.0], metavar="DEG",
-                   help="directions of travel of the direct beam in degrees, counterclockwise from +x (default: 0)")
+                   help="directions of travel of the direct beam in degrees, counterclockwise from +x, "
+                        "0 <= azimuth < 360 (default: 0)")
     p.add_argument("--random-azimuth", action="store_true",
                    help="instead of --azimuth, one beam azimuth per scene and zenith, drawn from the run seed "
                         "and the scene's file name")
@@ -24,21 +32,40 @@ def register(sub):
     p.add_argument("--batch-size", type=int, help="photons per batch (default: automatic)")
     p.add_argument("--rays-per-column", type=int, default=1,
                    help="direct-beam rays per column and axis in every photon batch (default: 1)")
-    p.add_argument("--threads", type=int, help="compiled threads per run (default: all cores)")
+    p.add_argument("--threads", type=int,
+                   help="compiled threads per run (default: all cores; 1 per worker with --jobs or --scheduler)")
     p.add_argument("--per-band", action="store_true", help="also store per-band column fluxes")
     p.add_argument("--solar-constant", type=float, default=1361.0, help="W m-2 (default: 1361, Kopp and Lean 2011)")
-    p.add_argument("--overwrite", action="store_true", help="recompute results that are already stored")
+    p.add_argument("--overwrite", action="store_true",
+                   help="recompute results that are already stored (needs the archive to itself)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.set_defaults(func=run)
+    p.set_defaults(func=run, parameter_flags=FLAGS, interrupted="finished results are kept; run it again to "
+                                                               "continue")
+
+
+def _check_azimuths(azimuths):
+    import math
+
+    from ..errors import ParameterError
+
+    for azimuth in azimuths:
+        # 400 and 40 are one direction: say so instead of storing another number than the one typed.
+        if not 0.0 <= azimuth < 360.0:
+            same = f" (the same direction as {azimuth % 360.0:g})" if math.isfinite(azimuth) else ""
+            raise ParameterError(f"--azimuth must be in [0, 360) degrees; got {azimuth:g}{same}")
 
 
 def run(args):
     from .simulate import simulate_archive
 
+    _check_azimuths(args.azimuth)
     summary = simulate_archive(
-        args.archive_dir, args.zenith, "random" if args.random_azimuth else args.azimuth, solvers=args.solvers, photons=args.photons, seed=args.seed,
+        args.archive_dir, args.zenith, "random" if args.random_azimuth else args.azimuth, solvers=args.solvers,
+        photons=args.photons, seed=args.seed,
         n_jobs=args.jobs, scheduler=args.scheduler, overwrite=args.overwrite, quiet=args.quiet,
         batch_size=args.batch_size, rays_per_column=args.rays_per_column, threads=args.threads,
         per_band=args.per_band, solar_constant=args.solar_constant)
-    print(f"simulate: {summary['computed']} runs computed, {summary['skipped']} already stored, "
+    shared = (f", {summary['by_other_runs']} computed meanwhile by another run on the archive"
+              if summary["by_other_runs"] else "")
+    print(f"simulate: {summary['computed']} runs computed, {summary['skipped']} already stored{shared}, "
           f"results in {args.archive_dir}")

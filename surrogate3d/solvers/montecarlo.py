@@ -384,6 +384,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                                   dx, dy)
             czi = np.zeros(2, np.int64)
             nsub, reach = 1, (0.0, 0.0)
+            slabs = _geometry.uniform_slabs(np.zeros((nb, nz, 1)), np.ones((nb, nz, 1)), z_edge, mu0)  # unused
             # Run-level scale: the whole photon weight of all batches maps to 2**61 units.
             energy = cdf[-1] if cdf.size and cdf[-1] > 0.0 else 1.0
         else:
@@ -394,11 +395,13 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
             path = (z_edge[-1] - z_edge[0]) / mu0
             reach = (path * ux, path * uy)
+            slabs = _geometry.uniform_slabs(kext, ssa_g[..., 0], z_edge, mu0)
             # A batch's whole beam, direct and scattered, is at most one column's flux per column.
             energy = float(nx * ny)
         del ext, ssa  # traced from the single-precision copies
         edge_slot = np.full(nz + 1, -1, dtype=np.int64)
         edge_slot[czi[::-1]] = np.arange(czi.size)
+        kept = np.ascontiguousarray(np.column_stack([np.arange(czi.size), czi[::-1]]), dtype=np.int64)
 
         col_sum = np.zeros((nb, ny, nx, nsum))
         spread = np.zeros((3, ny * nx + 1, nsum))
@@ -407,14 +410,14 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         scale = 2.0**61 / (n_batches * energy)
         cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
         optics = Optics(kext, ssa_g, column_props, alb, weights)
-        beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, czi, cdf, column_direct)
+        beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, kept, czi, cdf, column_direct)
         run = Run(not independent_columns, seed, batch_size, roulette, max_events)
         sums = RunSums(col_sum, spread, cell_fixed, scale)
         chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
         events = 0
         for first in range(0, n_batches, chunk):
             n = min(chunk, n_batches - first)
-            events += _transport.run_batches(first, n, WAVE, run, optics, grid, beam, sums)
+            events += _transport.run_batches(first, n, WAVE, run, optics, grid, beam, slabs, sums)
             if progress is not None:
                 progress((first + n) * batch_size)
         cell = cell_fixed.sum(axis=0) / (scale * n_batches)

@@ -4,23 +4,42 @@ Work is split into tasks (one scene, one sun geometry, one solver kind).  Worker
 compute; the calling process stores every finished result at once (atomically) beside
 its scene file and merges a scene's results into the scene file when its last task is
 done (:mod:`surrogate3d.archive.pending`), so a run that is killed loses at most the
-tasks in flight and the next run continues where it stopped.  Each task's seed is derived from the run seed and the task's
-identity, never from the order of execution, so 1 or N workers give the same numbers.
+tasks in flight and the next run continues where it stopped.  Each task's seed is
+derived from the run seed and the task's identity, never from the order of execution,
+so 1 or N workers give the same numbers.
+
+Runs started on one archive at the same time share the work
+(:mod:`surrogate3d.archive.locking`): a run claims each task before computing it, puts
+aside the tasks another run has claimed, and at the end waits for those and computes
+any that run left undone (it was killed).  Between them the runs compute every task
+once, and no finished result is lost.
 """
 
 import hashlib
+import inspect
+import math
 import os
+import socket
+import stat
+import time
+from collections import Counter, deque
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 
+import numba
+import numpy as np
 from tqdm.auto import tqdm
 
+from ..archive.leftovers import remove_leftovers
+from ..archive.locking import ArchiveLock
 from ..archive.netcdf import read_result_flags, read_scene, scene_files
-from ..archive.pending import merge_pending, write_pending
-from ..archive.results import SOLVERS, has_result
-from ..errors import ParameterError, Surrogate3DError
-from .montecarlo import SOLAR_CONSTANT, _check_int, solve_monte_carlo
+from ..archive.pending import merge_pending, pending_keys, write_pending
+from ..archive.results import SOLVERS, SUN_TOLERANCE_DEG, has_result
+from ..errors import OutputError, ParameterError, Surrogate3DError
+from .montecarlo import SOLAR_CONSTANT, _check_float, _check_int, solve_monte_carlo
 from .sun import check_sun
+from .._workers import WorkerPool
 
 
 @dataclass(frozen=True)
@@ -32,6 +51,16 @@ class Task:
     solar_zenith_angle: float
     solar_beam_azimuth: float
     seed: int
+
+    @property
+    def key(self):
+        """The task's identity in the archive (what concurrent runs claim)."""
+        return (f"{Path(self.path).name}|{self.solver}|{self.solar_zenith_angle:.6f}|"
+                f"{self.solar_beam_azimuth:.6f}")
+
+    def __str__(self):
+        return (f"{Path(self.path).name} {self.solver} at solar zenith {self.solar_zenith_angle:g} deg, "
+                f"beam azimuth {self.solar_beam_azimuth:g} deg")
 
 
 @dataclass
@@ -45,6 +74,67 @@ class RunOptions:
     solar_constant: float = SOLAR_CONSTANT
     threads: int = None
     extra: dict = field(default_factory=dict)
+
+
+#: Keywords of solve_monte_carlo that a run passes through unchanged (``extra``).
+_PASSED_THROUGH = sorted(set(inspect.signature(solve_monte_carlo).parameters)
+                         - set(RunOptions.__dataclass_fields__)
+                         - {"scene", "solar_zenith_angle", "solar_beam_azimuth", "seed", "independent_columns",
+                            "progress"})
+
+
+def check_run_options(photons, n_jobs, solver_options):
+    """Validate the options of a run before any work; returns ``(RunOptions, n_jobs)``.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        An option is outside its range (named as the parameter of :func:`simulate_archive`)
+        or unknown.
+    """
+    photons = _check_int("photons", photons, 1)
+    n_jobs = _check_int("n_jobs", n_jobs, 1)
+    solver_options = dict(solver_options)
+    known = {k: solver_options.pop(k) for k in list(solver_options) if k in RunOptions.__dataclass_fields__}
+    unknown = sorted(set(solver_options) - set(_PASSED_THROUGH))
+    if unknown or "extra" in known:
+        raise ParameterError(f"unknown solver option(s) {unknown or ['extra']}; known: "
+                             f"{sorted(set(RunOptions.__dataclass_fields__) - {'extra'}) + _PASSED_THROUGH}")
+    options = RunOptions(photons=photons, extra=solver_options, **known)
+    if options.batch_size is not None:
+        options.batch_size = _check_int("batch_size", options.batch_size, 1)
+    options.rays_per_column = _check_int("rays_per_column", options.rays_per_column, 1, 16)
+    if options.threads is not None:
+        options.threads = _check_int("threads", options.threads, 1, numba.config.NUMBA_NUM_THREADS)
+    options.solar_constant = _check_float("solar_constant", options.solar_constant, 0.0, math.inf,
+                                          low_open=True, high_open=True)
+    if not isinstance(options.per_band, (bool, np.bool_)):
+        raise ParameterError(f"per_band must be true or false; got {options.per_band!r}")
+    return options, n_jobs
+
+
+def check_scheduler(address):
+    """Validate the form of a Dask scheduler address (``tcp://HOST:PORT``, ``HOST:PORT``, ...); returns it.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+    """
+    from distributed.comm import parse_address, parse_host_port
+    from distributed.comm.registry import backends
+
+    try:
+        scheme, location = parse_address(str(address))
+        if scheme not in backends:
+            raise ValueError(f"unknown protocol {scheme!r}; known: {', '.join(sorted(backends))}")
+        if scheme != "inproc":
+            port = parse_host_port(location)[1]
+            if not 0 < int(port) < 65536:
+                raise ValueError(f"port {port} is not in 1-65535")
+    except (TypeError, ValueError) as exc:
+        raise ParameterError(f"scheduler must be an address such as tcp://HOST:8786; got {address!r} "
+                             f"({exc})") from None
+    return str(address)
 
 
 def task_seed(seed, path, zenith, azimuth):
@@ -77,8 +167,40 @@ def run_task(task, options):
         solar_constant=options.solar_constant, **options.extra)
 
 
-def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
+def _check_archive_dir(archive_dir):
+    archive_dir = Path(archive_dir)
+    if not archive_dir.is_dir():
+        what = "is not a directory" if archive_dir.exists() else "does not exist"
+        raise Surrogate3DError(f"archive directory {str(archive_dir)!r} {what}")
+    if not os.access(archive_dir, os.W_OK | os.X_OK):
+        raise OutputError(f"archive directory {str(archive_dir)!r} is not writable; results are stored in "
+                          "its scene files")
+    return archive_dir
+
+
+def _check_replaceable(path):
+    # A file whose permissions allow writing but that the system refuses is immutable,
+    # append-only or on a read-only mount: its results could never be stored.
+    if os.access(path, os.W_OK):
+        return
+    info = os.stat(path)
+    if os.geteuid() == 0 or (info.st_uid == os.geteuid() and info.st_mode & stat.S_IWUSR):
+        raise OutputError(f"scene file {str(path)!r} cannot be rewritten although its permissions allow it "
+                          "(immutable or append-only? see lsattr; or a read-only mount): lift that "
+                          "(chattr -i) or move the file out of the archive")
+
+
+def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, lock=None):
     """Validate the archive and the sun geometries; list the tasks still to do.
+
+    Results an interrupted run left pending are merged first, and the temporary files of
+    killed runs are removed.
+
+    Parameters
+    ----------
+    lock : surrogate3d.archive.locking.ArchiveLock, optional
+        The archive's locks, the archive lock held by the caller (default: held here, shared,
+        for the planning).
 
     Returns
     -------
@@ -86,11 +208,7 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
     done : int
         Tasks already stored (skipped).
     """
-    archive_dir = Path(archive_dir)
-    if not archive_dir.is_dir():
-        raise Surrogate3DError(f"archive directory {str(archive_dir)!r} does not exist")
-    if not os.access(archive_dir, os.W_OK):
-        raise Surrogate3DError(f"archive directory {str(archive_dir)!r} is not writable")
+    archive_dir = _check_archive_dir(archive_dir)
     files = scene_files(archive_dir)
     if not files:
         raise Surrogate3DError(f"archive directory {str(archive_dir)!r} holds no scene files (*.nc)")
@@ -103,11 +221,18 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
     if not zeniths or not azimuths:
         raise ParameterError("at least one solar zenith angle and one beam azimuth are needed")
     suns = [check_sun(z, 0.0 if drawn else a) for z in zeniths for a in ([0.0] if drawn else azimuths)]
+    if lock is None:
+        with ArchiveLock(archive_dir) as own:
+            own.hold_archive(exclusive=False, what="planning")
+            return plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite, own)
+    remove_leftovers(archive_dir, lock)
     todo, done = [], 0
     for path in files:
-        merge_pending(path)  # results an interrupted run left behind
+        with lock.scene(path):
+            merge_pending(path)  # results an interrupted run left behind
         read_scene(path, results=False)  # every scene is validated before any work starts
         stored = read_result_flags(path)
+        tasks = []
         for zenith, azimuth in suns:
             if drawn:
                 azimuth = drawn_azimuth(seed, path, zenith)
@@ -116,41 +241,147 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False):
                 if not overwrite and has_result(stored, solver, zenith, azimuth):
                     done += 1
                     continue
-                todo.append(Task(str(path), solver, zenith, azimuth, tseed))
+                tasks.append(Task(str(path), solver, zenith, azimuth, tseed))
+        if tasks:
+            _check_replaceable(path)
+        todo += tasks
     return todo, done
 
 
-def _local_results(todo, options, n_jobs):
-    if n_jobs == 1:
-        for task in todo:
-            yield task, run_task(task, options)
-        return
-    from joblib import Parallel, delayed
-
-    # One numba thread per worker process: the workers are the parallelism.
-    options = RunOptions(**{**options.__dict__, "threads": 1})
-    jobs = Parallel(n_jobs=n_jobs, return_as="generator_unordered")(
-        delayed(_run_pair)(task, options) for task in todo)
-    yield from jobs
+def _is_done(task, lock):
+    """True if the task's result is stored or pending (another run computed it)."""
+    slot = (task.solar_zenith_angle, task.solar_beam_azimuth)
+    with lock.scene(task.path):
+        if any(solver == task.solver and abs(z - slot[0]) < SUN_TOLERANCE_DEG and abs(a - slot[1]) < SUN_TOLERANCE_DEG
+               for solver, z, a in pending_keys(task.path)):
+            return True
+        return has_result(read_result_flags(task.path), task.solver, *slot)
 
 
-def _run_pair(task, options):
-    return task, run_task(task, options)
+class _WorkQueue:
+    """The tasks of a run in order, each claimed before it is handed out.
+
+    A task another run has claimed is put aside and handed out only once that run has let
+    go of it without finishing it (it was killed); one it finished is counted in
+    ``finished_elsewhere``.
+    """
+
+    def __init__(self, tasks, lock, is_done):
+        self._fresh = deque(tasks)
+        self._aside = deque()
+        self._lock = lock
+        self._is_done = is_done
+        self.finished_elsewhere = []
+
+    def next(self, wait):
+        """The next claimed task to compute, or None (all handed out, or ``not wait`` and only others' claims left)."""
+        while self._fresh:
+            task = self._fresh.popleft()
+            if not self._lock.claim(task.key):
+                self._aside.append(task)
+            elif self._take(task):
+                return task
+        while self._aside:
+            if not self._lock.claim(self._aside[0].key, wait=wait):
+                return None
+            task = self._aside.popleft()
+            if self._take(task):
+                return task
+        return None
+
+    def _take(self, task):
+        if self._is_done(task):
+            self._lock.release(task.key)
+            self.finished_elsewhere.append(task)
+            return False
+        return True
 
 
-def _dask_results(todo, options, scheduler):
-    from distributed import Client, as_completed
+class _InProcess:
+    """Computes each task in this process when its result is asked for."""
 
-    options = RunOptions(**{**options.__dict__, "threads": 1})
-    with Client(scheduler) as client:
-        futures = [client.submit(_run_pair, task, options, pure=False) for task in todo]
-        for future in as_completed(futures):
-            yield future.result()
+    def __init__(self, function):
+        self._function = function
+        self._items = deque()
+
+    free = property(lambda self: 1 - len(self._items))
+    busy = property(lambda self: len(self._items))
+
+    def submit(self, item):
+        self._items.append(item)
+
+    def next_result(self):
+        item = self._items.popleft()
+        return item, self._function(item)
+
+    def close(self, kill=False):
+        self._items.clear()
+
+
+def _connect(address):
+    """A Dask client of the scheduler at ``address``, or a one-line error if it cannot be reached."""
+    from distributed import Client
+    from distributed.comm import parse_address, parse_host_port
+
+    scheme, location = parse_address(address)
+    advice = "start it (dask scheduler) or give the address it prints"
+    if scheme in ("tcp", "tls", "ws", "wss"):
+        # A quick look first: the client itself retries for its whole timeout before it gives up.
+        host, port = parse_host_port(location)
+        try:
+            socket.create_connection((host, port), timeout=5).close()
+        except OSError as exc:
+            raise Surrogate3DError(f"cannot reach the Dask scheduler at {address!r} "
+                                   f"({exc.strerror or exc}); {advice}") from None
+    try:
+        return Client(address, timeout="10s")
+    except (OSError, TimeoutError) as exc:
+        raise Surrogate3DError(f"cannot connect to the Dask scheduler at {address!r} ({exc}); {advice}") from None
+
+
+class _DaskWorkers:
+    """Tasks run on a Dask cluster, a few per cluster thread in flight."""
+
+    def __init__(self, address, function):
+        self._client = _connect(address)
+        self._function = function
+        self._window = max(2, 2 * sum(self._client.nthreads().values()))
+        self._items = {}
+
+    free = property(lambda self: self._window - len(self._items))
+    busy = property(lambda self: len(self._items))
+
+    def submit(self, item):
+        self._items[self._client.submit(self._function, item, pure=False)] = item
+
+    def next_result(self):
+        # Polled: a Ctrl-C would not interrupt a blocking wait on the client's threads.
+        while not (done := [future for future in self._items if future.done()]):
+            time.sleep(0.05)
+        return self._items.pop(done[0]), done[0].result()
+
+    def close(self, kill=False):
+        self._client.close()
+
+
+def _workers(options, n_jobs, scheduler, n_tasks):
+    if scheduler:
+        # One compiled thread per task unless asked: the cluster's threads are the parallelism.
+        options = RunOptions(**{**options.__dict__, "threads": options.threads or 1})
+        return _DaskWorkers(scheduler, partial(run_task, options=options))
+    if n_jobs == 1 or n_tasks == 1:
+        # Looked up at call time, so that tests can replace run_task.
+        return _InProcess(lambda task: run_task(task, options))
+    options = RunOptions(**{**options.__dict__, "threads": options.threads or 1})
+    return WorkerPool(min(n_jobs, n_tasks), partial(run_task, options=options), describe=str)
 
 
 def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, photons=200_000, seed=0,
                      n_jobs=1, scheduler=None, overwrite=False, quiet=False, **solver_options):
     """Run the benchmark solvers on every scene of an archive and store the results.
+
+    Several runs may fill one archive at the same time: they share the work (see the
+    module docstring).  Every option is checked before anything is read or computed.
 
     Parameters
     ----------
@@ -167,47 +398,77 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
     seed : int
         Run seed; each task derives its own seed from it and its identity.
     n_jobs : int
-        Local worker processes (joblib).
+        Local worker processes; they exit when this process dies.
     scheduler : str, optional
         Address of a Dask distributed scheduler (for example ``tcp://127.0.0.1:8786``);
         the tasks then run on that cluster instead of locally.
     overwrite : bool
-        Recompute results that are already stored.
+        Recompute results that are already stored.  Needs the archive to itself: refused
+        while another run uses it.
     quiet : bool
         No progress bar.
     **solver_options
         ``batch_size``, ``rays_per_column``, ``per_band``, ``solar_constant``, ``threads``
-        and any further keyword of :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.
+        (per worker with ``n_jobs > 1`` or a scheduler, default 1 there) and any further
+        keyword of :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.
 
     Returns
     -------
     dict
-        ``{"computed": n, "skipped": n, "scenes": n}``.
+        ``{"computed": n, "skipped": n, "by_other_runs": n, "scenes": n}``: runs computed,
+        found stored, computed meanwhile by another run on the archive, and scenes with
+        work to do.
     """
-    photons = _check_int("photons", photons, 1)
+    options, n_jobs = check_run_options(photons, n_jobs, solver_options)
     seed = _check_int("seed", seed, 0, 2**63 - 1)
-    n_jobs = _check_int("n_jobs", n_jobs, 1)
-    known = {k: solver_options.pop(k) for k in list(solver_options) if k in RunOptions.__dataclass_fields__}
-    options = RunOptions(photons=photons, extra=solver_options, **known)
-    todo, done = plan_tasks(archive_dir, zeniths, azimuths, list(solvers), seed, overwrite)
     if scheduler:
-        results = _dask_results(todo, options, scheduler)
-    else:
-        results = _local_results(todo, options, n_jobs)
-    bar = tqdm(total=len(todo), desc="simulate", unit="run", disable=quiet or not todo)
-    remaining = {}
-    for task in todo:
-        remaining[task.path] = remaining.get(task.path, 0) + 1
-    computed = 0
-    try:
-        for task, result in results:
-            write_pending(task.path, result)
-            remaining[task.path] -= 1
-            if remaining[task.path] == 0:
+        scheduler = check_scheduler(scheduler)
+    archive_dir = _check_archive_dir(archive_dir)
+    with ArchiveLock(archive_dir) as lock:
+        lock.hold_archive(exclusive=overwrite, what="simulate --overwrite" if overwrite else "simulate")
+        todo, done = plan_tasks(archive_dir, zeniths, azimuths, list(solvers), seed, overwrite, lock)
+        counts = {"computed": 0, "skipped": done, "by_other_runs": 0, "scenes": len({t.path for t in todo})}
+        if todo:
+            _run(todo, _workers(options, n_jobs, scheduler, len(todo)), lock, overwrite, quiet, counts)
+    return counts
+
+
+def _run(todo, workers, lock, overwrite, quiet, counts):
+    """Compute the claimable tasks of ``todo`` with ``workers`` and store their results."""
+    queue = _WorkQueue(todo, lock, (lambda task: False) if overwrite else (lambda task: _is_done(task, lock)))
+    remaining = Counter(task.path for task in todo)
+
+    def settled(task):
+        remaining[task.path] -= 1
+        if remaining[task.path] == 0:
+            with lock.scene(task.path):
                 merge_pending(task.path)
-            computed += 1
+        bar.update()
+
+    bar = tqdm(total=len(todo), desc="simulate", unit="run", disable=True if quiet else None)
+    try:
+        while True:
+            while workers.free:
+                task = queue.next(wait=not workers.busy)
+                if task is None:
+                    break
+                workers.submit(task)
+            for task in queue.finished_elsewhere:
+                counts["by_other_runs"] += 1
+                settled(task)
+            queue.finished_elsewhere.clear()
+            if not workers.busy:
+                break
+            task, result = workers.next_result()
+            with lock.scene(task.path):
+                write_pending(task.path, result)
+            lock.release(task.key)
+            counts["computed"] += 1
             bar.set_postfix_str(f"{Path(task.path).stem} {task.solver} {task.solar_zenith_angle:g} deg")
-            bar.update()
+            settled(task)
+    except BaseException:
+        workers.close(kill=True)
+        raise
     finally:
         bar.close()
-    return {"computed": computed, "skipped": done, "scenes": len({t.path for t in todo})}
+    workers.close()

@@ -57,6 +57,15 @@ seed = 2
 [cross_validation]
 folds = 2
 
+# Transforms of two targets, so that every export path applies them (the values only
+# need to be positive for the scale).
+[target_transforms.atmosphere_absorption]
+scale_feature = "surface_albedo"
+scale_floor = 0.01
+
+[target_transforms.surface_downward_direct_flux]
+offset_features = {cloud_fraction = -0.5, cos_solar_zenith = 0.25}
+
 [models.ridge]
 kind = "ridge"
 interactions = true

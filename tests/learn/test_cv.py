@@ -52,7 +52,7 @@ def test_cv_folds_keep_scenes_together(synthetic_pairs):
         tested += sorted(set(scenes[test]))
     assert sorted(tested) == sorted(set(scenes))
     assert len(scene_folds(scenes, 50)) == len(set(scenes))
-    with pytest.raises(ValidationError, match="at least 2 training scenes"):
+    with pytest.raises(ValidationError, match="at least 2 groups"):
         scene_folds(np.array(["a", "a"]), 3)
 
 

@@ -150,7 +150,7 @@ def test_boosted_is_reproducible():
 def test_scikit_learn_protocol():
     model = RidgeCorrection(alpha=2.0, interactions=True)
     assert clone(model).get_params() == {"alpha": 2.0, "interactions": True, "interaction_features": None,
-                                         "clear_sky_features": None}
+                                         "clear_sky_features": None, "target_transforms": None}
     assert model.set_params(alpha=0.5).alpha == 0.5
     with pytest.raises(NotFittedError):
         model.predict(np.zeros((2, 2)))

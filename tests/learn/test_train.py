@@ -106,3 +106,19 @@ def test_training_is_reproducible(pairs_file, tmp_path):
         assert (tmp_path / "a" / name).read_text() == (tmp_path / "b" / name).read_text()
     first, second = load_model(tmp_path / "a" / "ridge"), load_model(tmp_path / "b" / "ridge")
     np.testing.assert_array_equal(first.estimator.coef_, second.estimator.coef_)
+
+
+def test_family_grouped_search_keeps_regimes_out_of_their_folds(tmp_path, pairs_file, small_recipe):
+    # With grouping "family" every fold of the search scores families its fit never saw
+    # (leave-group-out cross-validation; Roberts et al. 2017): the card records it, and a
+    # fold's training and test samples share no regime.
+    from surrogate3d.learn.cv import scene_folds
+
+    recipe = tmp_path / "recipe.toml"
+    recipe.write_text(small_recipe.replace("[cross_validation]", '[cross_validation]\ngrouping = "family"'))
+    train_models(pairs_file, recipe, tmp_path / "models", quiet=True)
+    card = json.loads((tmp_path / "models" / "ridge" / "model.json").read_text())
+    assert card["cross_validation"]["grouping"] == "family"
+    regimes = np.asarray(read_pairs_table(pairs_file)["regime"].values).astype(str)
+    for train, test in scene_folds(regimes, 2):
+        assert not set(regimes[train]) & set(regimes[test])

@@ -40,7 +40,7 @@ def make_block_scene():
     return block_cloud_scene
 
 
-@pytest.fixture
+@pytest.fixture(scope="session")
 def make_result():
     """Factory of :func:`fake_result` run results."""
     return fake_result

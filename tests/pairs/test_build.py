@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.archive import insert_result, read_scene, select_result, write_dataset, write_scene
-from surrogate3d.errors import FormatError, ParameterError
+from surrogate3d.errors import FormatError, OutputError, ParameterError
 from surrogate3d.pairs import build_pairs, read_pairs
 from surrogate3d.pairs import commands
 from surrogate3d.pairs.build import REQUIRED_VARIABLES, archive_fingerprint
@@ -101,7 +101,7 @@ def test_command_line(archive_template, tmp_path, capsys):
     with pytest.raises(ParameterError, match="host_resolution"):
         args.func(args)             # 1000 m does not divide the 800 m domain
     args = parser.parse_args(["pairs", str(archive), "--out", str(tmp_path / "nowhere" / "q.nc")])
-    with pytest.raises(ParameterError, match="does not exist"):
+    with pytest.raises(OutputError, match="does not exist"):
         args.func(args)
 
 

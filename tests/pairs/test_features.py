@@ -84,6 +84,21 @@ def test_neighbour_mean_whole_and_partial_windows_wrap():
     assert F.neighbour_contrast_cloud_fraction(fields, 1000.0)[0, 0] == pytest.approx(8 / 9)
 
 
+def test_neighbour_excess_of_independent_column_fluxes_by_hand():
+    # The 3 x 3 periodic box mean minus the column's own (common practice): a lone bright
+    # column loses 8/9 of its excess, each neighbour gains 1/9; a uniform field has none.
+    flux = np.zeros((5, 5))
+    flux[0, 0] = 0.9
+    fields = {"independent_column_toa_upward_flux": flux, "dx": 1000.0, "dy": 1000.0, "solar_zenith_angle": 0.0,
+              "solar_beam_azimuth": 0.0}
+    excess = F.FEATURES["neighbour_excess_independent_column_toa_upward_flux"].function(fields, radius=1000.0)
+    assert excess[0, 0] == pytest.approx(-0.8) and excess[4, 4] == pytest.approx(0.1) and excess[2, 2] == 0.0
+    assert excess.sum() == pytest.approx(0.0)
+    fields["independent_column_toa_upward_flux"] = np.full((5, 5), 0.4)
+    np.testing.assert_allclose(F.FEATURES["neighbour_excess_independent_column_toa_upward_flux"].function(
+        fields, radius=3000.0), 0.0, atol=1e-15)
+
+
 def test_cloud_edge_distance_by_hand_with_wrap_and_cap():
     # Euclidean distances between cell centres on a periodic grid, by hand (geometry).
     row = np.array([[1.0, 1.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0]])

@@ -5,16 +5,20 @@ import json
 import pytest
 
 from surrogate3d.errors import FormatError, ParameterError
-from surrogate3d.pairs.features import FEATURES
+from surrogate3d.pairs.features import FEATURES, NEIGHBOUR_EXCESS_FLUXES
 from surrogate3d.pairs.recipe import RECIPE_VERSION, FeatureRecipe, default_recipe
 
 
-def test_default_recipe_lists_every_feature_and_expands_radii():
+def test_default_recipe_lists_every_feature_but_the_opt_in_ones_and_expands_radii():
     recipe = default_recipe()
-    assert recipe.features == tuple(FEATURES)
+    priors = ("direct_beam_prior", "direct_beam_prior_minus_independent_column",
+              "direct_beam_prior_slant_minus_vertical") + tuple(
+        f"neighbour_excess_independent_column_{flux}" for flux in NEIGHBOUR_EXCESS_FLUXES)
+    assert recipe.features == tuple(f for f in FEATURES if f not in priors)
     radii = recipe.parameters["neighbour_radii"]
     assert "neighbour_mean_cloud_fraction_%gm" % radii[0] in recipe.column_names()
-    assert len(recipe.column_names()) == len(FEATURES) + 4 * (len(radii) - 1)
+    assert len(recipe.column_names()) == len(FEATURES) - len(priors) + 4 * (len(radii) - 1) == 32
+    assert recipe.parameters["host_fluxes"] == "monte_carlo"
 
 
 def test_json_dict_and_file_round_trips(tmp_path):

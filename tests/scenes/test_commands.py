@@ -131,7 +131,7 @@ def test_output_directory_that_is_a_file(tmp_path, capsys):
     blocker = tmp_path / "file"
     blocker.write_text("x")
     assert run(["scenes", "--out", str(blocker / "sub"), "--regime", "clear", *TINY]) == 1
-    assert "cannot create output directory" in capsys.readouterr().err
+    assert "is a file, not a directory" in capsys.readouterr().err
 
 
 def test_same_command_twice_gives_identical_files(tmp_path):

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.solvers import _geometry, _rng, _transport
-from surrogate3d.solvers._records import Beam, BeamTables, Grid, Optics, Photon, Survival, Tallies
+from surrogate3d.solvers._records import Beam, BeamTables, Grid, Optics, Photon, Slabs, Survival, Tallies
 
 MASK = (1 << 64) - 1
 
@@ -109,7 +109,7 @@ def _single(ext):
     return np.asarray(ext, dtype=np.float32).astype(np.float64)
 
 
-def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, weights=None):
+def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, weights=None, slabs=True):
     """One batch's direct beam (:func:`_geometry.direct_beam_batch`) with fresh scratch.
 
     Returns ``(absorbed, direct, source, cum, trans, ray_xy)``: absorbed per cell (band-summed,
@@ -131,9 +131,13 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     state = _rng.new_state()
     _rng.seed_stream(state, seed, batch)
     path = (z_edge[-1] - z_edge[0]) / -u[2]
+    uniform = _geometry.uniform_slabs(kext, ssa_g[..., 0], z_edge, -u[2])
+    if not slabs:  # walk every layer: no slab on top, none below
+        uniform = Slabs(nz, 0, np.ones((nb, nz + 1)), np.zeros((nb, nz + 1)), np.ones((nb, nz + 1)),
+                        np.zeros((nb, nz)))
     records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1])
     tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, np.empty(2 * nb + 16))
-    _geometry.direct_beam_batch(state, *records, tables, Tallies(np.empty((nb, 0)), cell, scale))
+    _geometry.direct_beam_batch(state, *records, uniform, tables, Tallies(np.empty((nb, 0)), cell, scale))
     return cell / scale, direct, source, cum, trans, ray_xy
 
 
@@ -148,7 +152,8 @@ def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach
                     np.asarray(weights, dtype=np.float64))
     grid = Grid(z_edge, float(dx), float(dy), 1, 1, np.array([0, nz]), z_edge[[0, nz]], kext[:, :1, :1, :1],
                 np.zeros((1, 1, 1, 1), np.uint8), unused, unused.astype(np.int64), unused.astype(np.int64))
-    beam = Beam(*(float(c) for c in u), int(nsub), float(reach_x), float(reach_y), edge_slot, np.asarray(czi),
+    kept = np.column_stack([np.arange(czi.size), czi[::-1]]).astype(np.int64)
+    beam = Beam(*(float(c) for c in u), int(nsub), float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
                 unused, np.zeros((3, 1, 1, 1)))
     return optics, grid, beam
 
@@ -199,6 +204,40 @@ def test_direct_beam_mixing_conservative_and_absorbing_layers_follows_beer_lambe
     np.testing.assert_allclose(absorbed[:, 1, 2], (1 - ssa[0, :, 0, 0]) * removed, rtol=1e-9, atol=1e-14)
     per_ray = ((ssa[0, :, 0, 0] * removed).sum() + 0.25 * t_surface) / 4
     np.testing.assert_allclose(source[0], per_ray, rtol=1e-12)
+
+
+def test_uniform_slabs_are_found_and_crossed_as_if_walked():
+    # Two bands; an absorbing uniform layer on top, a cloud in the middle layers, uniform
+    # conservative layers below: the slabs hold exactly those, and crossing them without
+    # walking gives every ray the same transmission and source (Beer-Lambert: a uniform
+    # layer has optical depth k dz / mu0 on every path) and every layer the same absorption.
+    rng = np.random.default_rng(3)
+    nz, ny, nx = 7, 5, 6
+    ext = np.full((2, nz, ny, nx), 1e-4)
+    ssa = np.ones_like(ext)
+    ext[:, 5:] = 3e-4
+    ssa[1, 5:] = 0.7
+    ext[:, 2:5, 1:3, 2:5] = _single(rng.uniform(0.005, 0.02, (2, 3, 2, 3)))
+    ssa[:, 2:5, 1:3, 2:5] = _single(rng.uniform(0.8, 1.0, (2, 3, 2, 3)))
+    ssa[:, 3] = np.where(ext[:, 3] > 1e-3, ssa[:, 3], 0.9)  # layer 3 absorbs in clear air too
+    alb = np.full((2, ny, nx), 0.2)
+    z_edge = np.linspace(0.0, 1400.0, nz + 1)
+    optics = np.zeros(ext.shape + (3,), np.float32)
+    optics[..., 0], optics[..., 1] = ext, ssa
+    top, bottom, top_t, *_ = _geometry.uniform_slabs(optics[..., 0], optics[..., 1], z_edge, 1.0)
+    assert (top, bottom) == (5, 2)
+    np.testing.assert_allclose(top_t[:, 5], np.exp(-float(np.float32(3e-4)) * 400.0), rtol=1e-12)  # Beer-Lambert
+    czi = np.array([0, 2, 4, 7])
+    u = _direction(50, 110)
+    fast = direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 2, czi, seed=4, weights=[0.6, 0.4])
+    walked = direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 2, czi, seed=4, weights=[0.6, 0.4], slabs=False)
+    for a, b in zip(fast[2:], walked[2:]):  # sources, tables, ray entries
+        np.testing.assert_allclose(a, b, rtol=1e-11, atol=1e-14)
+    np.testing.assert_allclose(fast[1][[0, 2]], walked[1][[0, 2]], rtol=1e-11)  # direct flux at the surface
+    # Absorption: the same in every layer (and band); the uniform top layers' spread evenly.
+    np.testing.assert_allclose(fast[0].sum(axis=(1, 2)), walked[0].sum(axis=(1, 2)), rtol=1e-9, atol=1e-13)
+    np.testing.assert_allclose(fast[1][1].sum(axis=(1, 2)), walked[1][1].sum(axis=(1, 2)), rtol=1e-11)
+    np.testing.assert_allclose(fast[0][5:], fast[0][5:, :1, :1] * np.ones((1, ny, nx)), rtol=1e-12)
 
 
 def _brute_force_landing(x0, y0, u, top, dx, dy, nx, ny):

@@ -37,7 +37,7 @@ def _stored(archive_dir):
 
 def test_runs_every_scene_sun_and_solver(archive):
     summary = simulate_archive(archive, [0.0, 60.0], [0.0], photons=2000, seed=3, quiet=True)
-    assert summary == {"computed": 12, "skipped": 0, "scenes": 2}
+    assert summary == {"computed": 12, "skipped": 0, "by_other_runs": 0, "scenes": 2}
     for scene in _stored(archive).values():
         assert len(completed(scene)) == 6
         result = select_result(scene, "full_3d", 60.0, 0.0)
@@ -68,7 +68,8 @@ def test_killed_run_continues_where_it_stopped(archive, monkeypatch):
     summary = simulate_archive(archive, [30.0], [0.0, 90.0], photons=2000, seed=4, quiet=True)
     assert summary["computed"] == 12 - 3 and summary["skipped"] == 3
     assert sum(len(completed(s)) for s in _stored(archive).values()) == 12
-    assert not list(archive.glob(".*"))  # no temporary or pending file left behind
+    # No temporary or pending file left behind; only the archive's lock file.
+    assert [p.name for p in archive.glob(".*")] == [".surrogate3d.lock"]
 
 
 def _fluxes(archive_dir):
@@ -142,7 +143,7 @@ def test_read_only_archive_is_refused(archive):
 def test_command_line_prints_one_line_errors(archive, capsys):
     assert main(["simulate", str(archive), "--zenith", "90", "--photons", "100", "--quiet"]) == 1
     err = capsys.readouterr().err.strip().splitlines()
-    assert len(err) == 1 and "solar_zenith_angle" in err[0]
+    assert len(err) == 1 and "--zenith must be in [0, 90)" in err[0]
     assert main(["simulate", str(archive), "--photons", "-3", "--quiet"]) == 1
     assert "photons" in capsys.readouterr().err
     assert main(["simulate", str(archive), "--zenith", "30", "--photons", "1000", "--solvers", "two_stream",

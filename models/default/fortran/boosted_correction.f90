@@ -4,7 +4,7 @@
 ! units of boosted_feature_names (see the coefficient file and docs/host-model-guide.md).
 module boosted_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   implicit none
   private
 
@@ -71,6 +71,11 @@ module boosted_correction
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
     real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
+    integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
+    real(real64), allocatable :: target_scale_floor(:)       ! (n_targets)
+    integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
+    integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
+    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)
   end type boosted_coefficients
 
   public :: boosted_read_coefficients, boosted_correct_column, boosted_correct_columns, boosted_check_column
@@ -103,6 +108,7 @@ contains
       m = model%tree_target(t)
       corrections(m) = corrections(m) + model%value(node)
     end do
+    call apply_transforms(model, features, corrections)
   end subroutine boosted_correct_column
 
   !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
@@ -156,6 +162,27 @@ contains
                      distance <= model%envelope_threshold)
   end subroutine boosted_check_column
 
+  !> The model's outputs made corrections: each scaled by its scale feature (at least the floor),
+  !> then the prior terms added (coefficient times feature) -- target transforms of the coefficient file.
+  pure subroutine apply_transforms(model, features, corrections)
+    type(boosted_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(boosted_n_features)
+    real(real64), intent(inout) :: corrections(boosted_n_targets)
+    integer :: m, o
+    real(real64) :: x
+    do m = 1, boosted_n_targets
+      if (model%target_scale_feature(m) > 0) then
+        ! A missing (NaN) scale feature makes the correction NaN, as in numpy's maximum.
+        x = features(model%target_scale_feature(m))
+        corrections(m) = corrections(m) * merge(x, max(x, model%target_scale_floor(m)), ieee_is_nan(x))
+      end if
+    end do
+    do o = 1, model%n_offsets
+      corrections(model%offset_target(o)) = corrections(model%offset_target(o)) + &
+          model%offset_coefficient(o) * features(model%offset_feature(o))
+    end do
+  end subroutine apply_transforms
+
   !> All clear-sky gate features (near) zero: a clear column far from cloud, which has no 3D correction.
   !> The loop stops at the first feature that is not zero (NaN compares false: not zero).
   pure logical function clear_sky(model, features)
@@ -188,6 +215,7 @@ contains
     call expect_count(unit, 'n_targets', boosted_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
     call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
+    call read_count(unit, 'n_offset_terms', model%n_offsets, status, message)
     call read_count(unit, 'n_trees', model%n_trees, status, message)
     call read_count(unit, 'n_nodes', model%n_nodes, status, message)
     call read_count(unit, 'n_leaves', n_leaves, status, message)
@@ -211,15 +239,25 @@ contains
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
     if (status == 0) call read_reals(unit, 'threshold_values', threshold_values, status, message)
+    if (status == 0) then
+      ! NaN or infinite leaves or baselines would turn corrections into NaN; a NaN threshold sends every value right.
+      if (.not. (all(ieee_is_finite(model%baseline)) .and. all(ieee_is_finite(leaf_value)))) then
+        status = 1
+        message = 'coefficient file: baseline and leaf_value must be finite numbers'
+      else if (any(ieee_is_nan(threshold_values))) then
+        status = 1
+        message = 'coefficient file: threshold_values must not be NaN'
+      end if
+    end if
     if (status == 0) call read_integers(unit, 'clear_sky_features', model%clear_sky_features, status, message)
     if (status == 0) call read_reals(unit, 'clear_sky_tolerance', tolerance, status, message)
     if (status == 0) then
       if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= boosted_n_features)) then
         status = 1
         message = 'coefficient file: a clear_sky_features index is out of range'
-      else if (.not. (tolerance(1) >= 0.0_real64)) then
+      else if (.not. (ieee_is_finite(tolerance(1)) .and. tolerance(1) >= 0.0_real64)) then
         status = 1
-        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+        message = 'coefficient file: clear_sky_tolerance must be a finite number >= 0'
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
@@ -248,6 +286,31 @@ contains
           status = 1
           message = 'coefficient file: the training envelope has a non-positive scale or variance, a negative '// &
               'threshold or a maximum below its minimum'
+        end if
+      end if
+    end if
+    if (status == 0) then
+      allocate (model%target_scale_feature(boosted_n_targets), model%target_scale_floor(boosted_n_targets))
+      allocate (model%offset_target(model%n_offsets), model%offset_feature(model%n_offsets))
+      allocate (model%offset_coefficient(model%n_offsets))
+      call read_integers(unit, 'target_scale_feature', model%target_scale_feature, status, message)
+      if (status == 0) call read_reals(unit, 'target_scale_floor', model%target_scale_floor, status, message)
+      if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
+      if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
+      if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      if (status == 0) then
+        if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= boosted_n_features) .or. &
+            any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
+            any(model%offset_target < 0 .or. model%offset_target >= boosted_n_targets) .or. &
+            any(model%offset_feature < 0 .or. model%offset_feature >= boosted_n_features) .or. &
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+          status = 1
+          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
+              'coefficient that is not finite'
+        else
+          model%target_scale_feature = model%target_scale_feature + 1
+          model%offset_target = model%offset_target + 1
+          model%offset_feature = model%offset_feature + 1
         end if
       end if
     end if

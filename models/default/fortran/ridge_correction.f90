@@ -4,7 +4,7 @@
 ! units of ridge_feature_names (see the coefficient file and docs/host-model-guide.md).
 module ridge_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   implicit none
   private
 
@@ -71,6 +71,11 @@ module ridge_correction
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
     real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
+    integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
+    real(real64), allocatable :: target_scale_floor(:)       ! (n_targets)
+    integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
+    integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
+    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)
   end type ridge_coefficients
 
   public :: ridge_read_coefficients, ridge_correct_column, ridge_correct_columns, ridge_check_column
@@ -103,6 +108,7 @@ contains
     do p = 1, model%n_pairs
       corrections = corrections + model%coef(:, ridge_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
     end do
+    call apply_transforms(model, features, corrections)
   end subroutine ridge_correct_column
 
   !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
@@ -156,6 +162,27 @@ contains
                      distance <= model%envelope_threshold)
   end subroutine ridge_check_column
 
+  !> The model's outputs made corrections: each scaled by its scale feature (at least the floor),
+  !> then the prior terms added (coefficient times feature) -- target transforms of the coefficient file.
+  pure subroutine apply_transforms(model, features, corrections)
+    type(ridge_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(ridge_n_features)
+    real(real64), intent(inout) :: corrections(ridge_n_targets)
+    integer :: m, o
+    real(real64) :: x
+    do m = 1, ridge_n_targets
+      if (model%target_scale_feature(m) > 0) then
+        ! A missing (NaN) scale feature makes the correction NaN, as in numpy's maximum.
+        x = features(model%target_scale_feature(m))
+        corrections(m) = corrections(m) * merge(x, max(x, model%target_scale_floor(m)), ieee_is_nan(x))
+      end if
+    end do
+    do o = 1, model%n_offsets
+      corrections(model%offset_target(o)) = corrections(model%offset_target(o)) + &
+          model%offset_coefficient(o) * features(model%offset_feature(o))
+    end do
+  end subroutine apply_transforms
+
   !> All clear-sky gate features (near) zero: a clear column far from cloud, which has no 3D correction.
   !> The loop stops at the first feature that is not zero (NaN compares false: not zero).
   pure logical function clear_sky(model, features)
@@ -187,6 +214,7 @@ contains
     call expect_count(unit, 'n_targets', ridge_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
     call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
+    call read_count(unit, 'n_offset_terms', model%n_offsets, status, message)
     call read_count(unit, 'n_pairs', model%n_pairs, status, message)
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
@@ -203,15 +231,23 @@ contains
     if (status == 0) call read_integers(unit, 'interaction_pairs', pair_list, status, message)
     if (status == 0) call read_reals(unit, 'coef', coef_list, status, message)
     if (status == 0) call read_reals(unit, 'intercept', model%intercept, status, message)
+    if (status == 0) then
+      ! NaN or infinite coefficients would turn every correction into NaN.
+      if (.not. (all(ieee_is_finite(model%feature_mean)) .and. all(ieee_is_finite(model%feature_scale)) .and. &
+          all(ieee_is_finite(coef_list)) .and. all(ieee_is_finite(model%intercept)))) then
+        status = 1
+        message = 'coefficient file: feature_mean, feature_scale, coef and intercept must be finite numbers'
+      end if
+    end if
     if (status == 0) call read_integers(unit, 'clear_sky_features', model%clear_sky_features, status, message)
     if (status == 0) call read_reals(unit, 'clear_sky_tolerance', tolerance, status, message)
     if (status == 0) then
       if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= ridge_n_features)) then
         status = 1
         message = 'coefficient file: a clear_sky_features index is out of range'
-      else if (.not. (tolerance(1) >= 0.0_real64)) then
+      else if (.not. (ieee_is_finite(tolerance(1)) .and. tolerance(1) >= 0.0_real64)) then
         status = 1
-        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+        message = 'coefficient file: clear_sky_tolerance must be a finite number >= 0'
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
@@ -240,6 +276,31 @@ contains
           status = 1
           message = 'coefficient file: the training envelope has a non-positive scale or variance, a negative '// &
               'threshold or a maximum below its minimum'
+        end if
+      end if
+    end if
+    if (status == 0) then
+      allocate (model%target_scale_feature(ridge_n_targets), model%target_scale_floor(ridge_n_targets))
+      allocate (model%offset_target(model%n_offsets), model%offset_feature(model%n_offsets))
+      allocate (model%offset_coefficient(model%n_offsets))
+      call read_integers(unit, 'target_scale_feature', model%target_scale_feature, status, message)
+      if (status == 0) call read_reals(unit, 'target_scale_floor', model%target_scale_floor, status, message)
+      if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
+      if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
+      if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      if (status == 0) then
+        if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= ridge_n_features) .or. &
+            any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
+            any(model%offset_target < 0 .or. model%offset_target >= ridge_n_targets) .or. &
+            any(model%offset_feature < 0 .or. model%offset_feature >= ridge_n_features) .or. &
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+          status = 1
+          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
+              'coefficient that is not finite'
+        else
+          model%target_scale_feature = model%target_scale_feature + 1
+          model%offset_target = model%offset_target + 1
+          model%offset_feature = model%offset_feature + 1
         end if
       end if
     end if
