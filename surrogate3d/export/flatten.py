@@ -147,7 +147,7 @@ def target_transforms(estimator):
     resolved = getattr(estimator, "target_transform_", None)  # none on estimators fitted before transforms
     if resolved is None:
         return None
-    scale_index, scale_floor, offset_index, offset_coef = resolved
+    scale_index, scale_floor, offset_index, offset_coef = resolved[:4]
     field = [None if scale_index[m] < 0 and not offset_index[m].size else
              {"scale_feature": int(scale_index[m]), "scale_floor": float(scale_floor[m]),
               "offset_features": [int(k) for k in offset_index[m]],

@@ -245,7 +245,9 @@ class _PairsTableMixin:
         self.target_transform_ = resolve_transforms(self.target_transforms, Y.shape[1], self.feature_names_)
         check_scales(self.target_transform_, X)
         offset, scale = offsets_and_scales(self.target_transform_, X)
-        return (Y - offset) / scale, scale * scale
+        weights = scale * scale
+        weights[:, self.target_transform_[4]] = 1.0
+        return (Y - offset) / scale, weights
 
     def _transformed(self, X, F):
         """Corrections from learned residuals ``F``: ``offset + scale * F``, 0 where the gate holds."""

@@ -14,9 +14,11 @@ does not absorb, whatever the clouds.  And where a feature already carries a phy
 estimate of the correction (the slant-path direct-beam prior), the learner only has to
 say what that estimate misses.
 
-The fit minimises the squared error of ``y``, not of ``f``: samples enter with weight
-``scale(x)**2``, so a residual of a column that barely absorbs counts as little as the
-error it makes in watts.
+By default the fit minimises the squared error of ``y``, not of ``f``: samples enter with
+weight ``scale(x)**2``, so a residual of a column that barely absorbs counts as little as
+the error it makes in watts.  With ``fit_errors = "relative"`` every sample counts the
+same in relative terms (weight 1), so that a few columns of large corrections do not
+decide the fit for all the others.
 """
 
 import math
@@ -26,7 +28,10 @@ import numpy as np
 
 from ..errors import ParameterError, ValidationError
 
-_KEYS = {"scale_feature", "scale_floor", "offset_features"}
+_KEYS = {"scale_feature", "scale_floor", "offset_features", "fit_errors"}
+#: What the fit of a scaled target minimises: the errors of the correction (weights
+#: ``scale**2``) or of the residual, relative errors of the correction (weights 1).
+FIT_ERRORS = ("absolute", "relative")
 
 
 def check_transforms(value, name="target_transforms"):
@@ -66,6 +71,8 @@ def check_transform(spec, where):
             isinstance(c, numbers.Real) and not isinstance(c, bool) and math.isfinite(c) for c in offsets.values()):
         raise ParameterError(f"{where}['offset_features'] must be a dict of feature name -> finite number; "
                              f"got {offsets!r}")
+    if spec.get("fit_errors", "absolute") not in FIT_ERRORS:
+        raise ParameterError(f"{where}['fit_errors'] must be one of {list(FIT_ERRORS)}; got {spec['fit_errors']!r}")
 
 
 def resolve_transforms(transforms, n_target, feature_names):
@@ -81,6 +88,8 @@ def resolve_transforms(transforms, n_target, feature_names):
     -------
     scale_index : ndarray of int (n_target,)
         Feature whose value scales the learned residual; -1 for none (scale 1).
+    relative : ndarray of bool (n_target,)
+        Whether a scaled target is fitted in relative errors (weights 1).
     scale_floor : ndarray (n_target,)
         Smallest scale used [units of that feature].
     offset_index, offset_coef : list (n_target) of ndarray
@@ -88,10 +97,11 @@ def resolve_transforms(transforms, n_target, feature_names):
     """
     scale_index = np.full(n_target, -1, dtype=np.int64)
     scale_floor = np.zeros(n_target)
+    relative = np.zeros(n_target, dtype=bool)
     offset_index = [np.zeros(0, dtype=np.int64) for _ in range(n_target)]
     offset_coef = [np.zeros(0) for _ in range(n_target)]
     if not transforms:
-        return scale_index, scale_floor, offset_index, offset_coef
+        return scale_index, scale_floor, offset_index, offset_coef, relative
     if len(transforms) != n_target:
         raise ValidationError(f"target_transforms has {len(transforms)} entries; Y has {n_target} targets")
 
@@ -109,15 +119,16 @@ def resolve_transforms(transforms, n_target, feature_names):
         if spec.get("scale_feature") is not None:
             scale_index[m] = index(spec["scale_feature"], where)
             scale_floor[m] = float(spec.get("scale_floor", 0.0))
+            relative[m] = spec.get("fit_errors", "absolute") == "relative"
         offsets = spec.get("offset_features", {})
         offset_index[m] = np.array([index(f, where) for f in offsets], dtype=np.int64)
         offset_coef[m] = np.array([float(c) for c in offsets.values()])
-    return scale_index, scale_floor, offset_index, offset_coef
+    return scale_index, scale_floor, offset_index, offset_coef, relative
 
 
 def offsets_and_scales(resolved, X):
     """``(offset, scale)``, each (n_sample, n_target), of resolved transforms at features ``X``."""
-    scale_index, scale_floor, offset_index, offset_coef = resolved
+    scale_index, scale_floor, offset_index, offset_coef = resolved[:4]
     n, n_target = X.shape[0], scale_index.size
     offset, scale = np.zeros((n, n_target)), np.ones((n, n_target))
     for m in range(n_target):
@@ -132,7 +143,7 @@ def apply_transforms(resolved, X, F):
     """Corrections from learned residuals ``F`` (n_sample, n_target), in place: ``F * scale``,
     then each offset term added in turn (the order the runtime and Fortran module use, so
     that all three agree to the last bit)."""
-    scale_index, scale_floor, offset_index, offset_coef = resolved
+    scale_index, scale_floor, offset_index, offset_coef = resolved[:4]
     for m in range(scale_index.size):
         if scale_index[m] >= 0:
             F[:, m] *= np.maximum(X[:, scale_index[m]], scale_floor[m])

@@ -315,10 +315,10 @@ def _overlap_ratio(lower, upper):
 def _scan_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness=None):
     """Walk down the layers of every column and yield each block of adjacent cloudy layers as it ends.
 
-    Yields ``(k, index, cover, depth, thickness)``: the lowest layer ``k`` of the
+    Yields ``(k, index, cover, depth, volume)``: the lowest layer ``k`` of the
     blocks, the flat column indices of the columns whose block ends there, and each
-    block's cover, cloud optical depth and mean cloud thickness (see
-    :func:`cloud_blocks`).  The generator's return value is ``loose`` (flat), the cloud
+    block's cover, cloud optical depth and cloud volume per unit area
+    ``sum_k c_k dz_k`` [m] (see :func:`cloud_blocks`).  The generator's return value is ``loose`` (flat), the cloud
     optical depth of layers with zero cloud fraction.  Work on whole planes is limited
     to a few comparisons per layer; the running sums touch only cloudy columns.
     """
@@ -348,9 +348,7 @@ def _scan_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thicknes
             run_volume[cont] += ck[cont] * dz[k]
         ends = np.flatnonzero(cloudy & (c[k - 1] <= 0.0)) if k > 0 else np.flatnonzero(cloudy)
         if ends.size:
-            cover = 1.0 - run_clear[ends]
-            thickness = np.divide(run_volume[ends], cover, out=np.zeros_like(cover), where=cover > 0.0)
-            yield k, ends, cover, run_depth[ends].copy(), thickness
+            yield k, ends, 1.0 - run_clear[ends], run_depth[ends].copy(), run_volume[ends].copy()
         cloudy_above = cloudy
     return loose
 
@@ -408,8 +406,9 @@ def cloud_blocks(layer_cloud_fraction, layer_cloud_optical_depth, layer_thicknes
     shape = np.shape(layer_cloud_fraction)
     blocks, loose = _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
     cover, depth, thickness = (np.zeros((shape[0], int(np.prod(shape[1:], dtype=np.int64)))) for _ in range(3))
-    for k, index, c, x, h in blocks:
-        cover[k, index], depth[k, index], thickness[k, index] = c, x, h
+    for k, index, c, x, volume in blocks:
+        cover[k, index], depth[k, index] = c, x
+        thickness[k, index] = np.divide(volume, c, out=np.zeros_like(c), where=c > 0.0)
     return cover.reshape(shape), depth.reshape(shape), thickness.reshape(shape), loose.reshape(shape[1:])
 
 
@@ -581,11 +580,19 @@ def in_cloud_relative_variance(column_std, block_cover, block_depth):
     return np.maximum(v, 0.0)
 
 
-def _relative_variance_of_blocks(column_std, blocks, n):
+def _adjusted_cover(cover, index, overlap_exponent):
+    """``1 - (1 - cover)^gamma`` of the blocks at flat ``index`` (:func:`overlap_exponent`)."""
+    if overlap_exponent is None:
+        return cover
+    return 1.0 - (1.0 - cover) ** overlap_exponent[index]
+
+
+def _relative_variance_of_blocks(column_std, blocks, n, overlap_exponent=None):
     """:func:`in_cloud_relative_variance` from a list of blocks of :func:`_scan_blocks` (flat, ``n`` columns)."""
     between, within = np.zeros(n), np.zeros(n)
     for _, index, cover, depth, _ in blocks:
-        squared = depth * depth / cover
+        cover = _adjusted_cover(cover, index, overlap_exponent)
+        squared = np.divide(depth * depth, cover, out=np.zeros_like(depth), where=cover > 0.0)
         np.add.at(within, index, squared)
         np.add.at(between, index, squared * (1.0 - cover))
     s2 = np.asarray(column_std, dtype=np.float64).reshape(-1) ** 2
@@ -593,7 +600,8 @@ def _relative_variance_of_blocks(column_std, blocks, n):
     return np.maximum(v, 0.0)
 
 
-def _transmittance_of_blocks(blocks, loose, clear_sky_optical_depth, relative_variance, mu0, width_per_area):
+def _transmittance_of_blocks(blocks, loose, clear_sky_optical_depth, relative_variance, mu0, width_per_area,
+                             overlap_exponent=None):
     """The formula of :func:`direct_transmittance_prior` from blocks of :func:`_scan_blocks` (flat)."""
     mu0 = float(mu0)
     tan0 = math.sqrt(max(1.0 - mu0 * mu0, 0.0)) / mu0
@@ -601,21 +609,55 @@ def _transmittance_of_blocks(blocks, loose, clear_sky_optical_depth, relative_va
     rho = np.broadcast_to(np.asarray(width_per_area, dtype=np.float64), np.shape(clear_sky_optical_depth)).reshape(-1)
     clear = np.asarray(clear_sky_optical_depth, dtype=np.float64).reshape(-1)
     product = np.exp(-(clear + loose) / mu0)
-    for _, index, cover, depth, thickness in blocks:
+    for _, index, cover, depth, volume in blocks:
+        cover = _adjusted_cover(cover, index, overlap_exponent)
+        thickness = np.divide(volume, cover, out=np.zeros_like(cover), where=cover > 0.0)
         seen = slanted_cover(cover, thickness, tan0, rho[index])
         mean = np.divide(depth, seen, out=np.zeros_like(depth), where=seen > 0.0)
         product[index] *= 1.0 - seen + seen * gamma_mean_transmittance(mean, v[index], mu0)
     return product
 
 
+def overlap_exponent(total_cloud_fraction, clear_fraction):
+    """Exponent ``gamma`` that makes the blocks' clear fractions multiply to the host's known clear fraction [1].
+
+    ``gamma = ln(1 - c) / ln(C)``, ``c`` the host column's total cloud cover and ``C``
+    the clear fraction that maximum-random overlap of its layers gives; each block's
+    clear fraction ``1 - C_j`` becomes ``(1 - C_j)^gamma``, so that their product is
+    ``1 - c`` exactly.  1 where ``C`` is 0 or 1 (no cloud, or a layer overcast: then
+    ``c = 1`` too); ``1 - c`` is taken as at least 1e-9.
+
+    Parameters
+    ----------
+    total_cloud_fraction : array_like
+        ``c`` [1].
+    clear_fraction : array_like
+        ``C`` [1], e.g. :func:`maximum_random_clear_fraction` of the column's layers.
+
+    Returns
+    -------
+    ndarray
+        ``gamma`` [1], > 0: above 1 where the layers overlap less than maximum-random
+        overlap assumes (clouds tilted or offset between layers), below 1 where more.
+    """
+    c = np.clip(np.asarray(total_cloud_fraction, dtype=np.float64), 0.0, 1.0)
+    clear = np.asarray(clear_fraction, dtype=np.float64)
+    log_clear = np.log(np.where((clear > 0.0) & (clear < 1.0), clear, 0.5))
+    gamma = np.log(np.maximum(1.0 - c, 1e-9)) / log_clear
+    return np.where((clear > 0.0) & (clear < 1.0) & (c > 0.0), gamma, 1.0)
+
+
 def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, clear_sky_optical_depth,
-                               cloud_relative_variance, mu0, layer_thickness=None, width_per_area=0.0):
+                               cloud_relative_variance, mu0, layer_thickness=None, width_per_area=0.0,
+                               overlap_exponent=None):
     """Mean direct transmittance of a path through partly cloudy layers [1] (the formula of the direct-beam prior).
 
     The path's layers form blocks of adjacent cloudy layers (:func:`cloud_blocks`),
-    overlapped at random, each of cloud optical depth ``X_j``, mean cloud thickness ``H_j`` and
-    cover ``C_j`` (maximum-random overlap within it), seen by the slanted beam as
-    ``C'_j = 1 - (1 - C_j)^(1 + rho H_j tan(theta0))`` (:func:`slanted_cover`).  A share
+    overlapped at random, each of cloud optical depth ``X_j`` and cover ``C_j``
+    (maximum-random overlap within it), made consistent with a known total cover by the
+    exponent ``gamma`` (:func:`overlap_exponent`): ``1 - C*_j = (1 - C_j)^gamma``, of mean
+    cloud thickness ``H_j = sum_k c_k dz_k / C*_j``, and seen by the slanted beam as
+    ``C'_j = 1 - (1 - C*_j)^(1 + rho H_j tan(theta0))`` (:func:`slanted_cover`).  A share
     ``1 - C'_j`` of the lines of sight misses the block, the others cross ``X_j / C'_j``
     on average (the mean slant optical depth is kept), gamma-distributed with relative
     variance ``v`` (:func:`gamma_mean_transmittance`).  Every line crosses the clear-sky
@@ -645,6 +687,8 @@ def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, 
     width_per_area : array_like, shape (...)
         ``rho`` [m-1] (:func:`cloud_width_per_area`); 0 (the default) for the cover seen
         from above.
+    overlap_exponent : array_like, shape (...), optional
+        ``gamma`` [1]; default 1 (maximum-random overlap as it is).
 
     Returns
     -------
@@ -666,8 +710,10 @@ def direct_transmittance_prior(layer_cloud_fraction, layer_cloud_optical_depth, 
     n = int(np.prod(shape, dtype=np.int64))
     blocks, loose = _blocks_list(layer_cloud_fraction, layer_cloud_optical_depth, layer_thickness)
     v = np.broadcast_to(np.asarray(cloud_relative_variance, dtype=np.float64), shape)
+    gamma = None if overlap_exponent is None else np.broadcast_to(
+        np.asarray(overlap_exponent, dtype=np.float64), shape).reshape(n)
     return _transmittance_of_blocks(blocks, loose.reshape(n), clear_sky_optical_depth, v, mu0,
-                                    width_per_area).reshape(shape)
+                                    width_per_area, gamma).reshape(shape)
 
 
 def _clear_sky_layers(fields):
@@ -682,13 +728,27 @@ def _cloud_layers(fields):
     return _memo(fields, "cloud_tau", compute)
 
 
+#: Euclidean length of a boundary over its length counted along grid faces (a staircase):
+#: a boundary element at angle ``a`` to the grid axes has a staircase ``|cos a| + |sin a|``
+#: times longer, ``4 / pi`` on average over all angles (Cauchy-Crofton; the staircase
+#: perimeter of a convex region is that of its bounding box: ``8 r`` for a disc of radius
+#: ``r``).  The host field ``cloud_edge_length`` of the pair tables counts grid faces.
+STAIRCASE_TO_EUCLIDEAN = math.pi / 4.0
+
+
 def _vertical_blocks(fields):
-    """Blocks of each host column's own layers (flat), ``loose`` and the in-cloud relative variance."""
+    """Blocks of each host column's own layers (flat), ``loose``, the in-cloud relative variance and overlap exponent."""
     def compute():
         fraction = fields["layer_cloud_fraction"]
         blocks, loose = _blocks_list(fraction, _cloud_layers(fields))
         n = loose.size
-        return blocks, loose, _relative_variance_of_blocks(fields["column_optical_depth_std"], blocks, n)
+        clear = np.ones(n)
+        for _, index, cover, _, _ in blocks:
+            clear[index] *= 1.0 - cover
+        gamma = overlap_exponent(fields["total_cloud_fraction"], clear.reshape(np.shape(fields["total_cloud_fraction"])))
+        gamma = gamma.reshape(n)
+        v = _relative_variance_of_blocks(fields["column_optical_depth_std"], blocks, n, gamma)
+        return blocks, loose, v, gamma
     return _memo(fields, "vertical_blocks", compute)
 
 
@@ -709,19 +769,22 @@ def _direct_prior(fields, slanted):
         mu0 = _mu0(fields)
         cloud, clear = _cloud_layers(fields), _clear_sky_layers(fields)
         shape = cloud.shape[1:]
-        blocks, loose, v = _vertical_blocks(fields)
+        blocks, loose, v, gamma = _vertical_blocks(fields)
         if not slanted:
-            return _transmittance_of_blocks(blocks, loose, clear.sum(axis=0), v, mu0, 0.0).reshape(shape)
+            return _transmittance_of_blocks(blocks, loose, clear.sum(axis=0), v, mu0, 0.0, gamma).reshape(shape)
         fraction = np.asarray(fields["layer_cloud_fraction"], dtype=np.float64)
         weights = _area_weights(fields)
         path_cloud, path_fraction = gather_layers(cloud, weights), gather_layers(fraction, weights)
         # Column properties of the crossed columns, weighted by the cloud optical depth
         # (relative variance) or the cloud fraction (cloud width per area) met in each.
         v_path = _path_mean(v.reshape(shape), cloud, weights, path_cloud.sum(axis=0))
-        rho = cloud_width_per_area(fields["total_cloud_fraction"], fields["cloud_edge_length"])
+        rho = cloud_width_per_area(fields["total_cloud_fraction"],
+                                   STAIRCASE_TO_EUCLIDEAN * np.asarray(fields["cloud_edge_length"], dtype=np.float64))
         rho_path = _path_mean(rho, fraction, weights, path_fraction.sum(axis=0))
+        gamma_path = _path_mean(gamma.reshape(shape), fraction, weights, path_fraction.sum(axis=0))
         return direct_transmittance_prior(path_fraction, path_cloud, slant_sum(clear, weights), v_path, mu0,
-                                          np.diff(np.asarray(fields["z_edge"], dtype=np.float64)), rho_path)
+                                          np.diff(np.asarray(fields["z_edge"], dtype=np.float64)), rho_path,
+                                          gamma_path)
     return _memo(fields, ("direct_prior", slanted), compute)
 
 

@@ -38,6 +38,22 @@ def test_scaled_target_vanishes_without_absorption_and_offset_keeps_the_prior(cl
     np.testing.assert_allclose(strong.predict(X)[:, 1], X[:, 1] + Y[:, 1].mean() - X[:, 1].mean(), atol=2e-3)
 
 
+def test_relative_fit_weighs_every_sample_alike():
+    # Two groups whose relative corrections differ: fitting the errors of the correction
+    # (weights scale**2) follows the large-scale group, fitting relative errors (weights 1)
+    # the larger group; a constant residual model (huge alpha) shows it plainly: the
+    # weighted mean (common practice).
+    s = np.r_[np.full(300, 0.01), np.full(100, 1.0)]
+    X = np.column_stack([s, RNG.normal(size=s.size)])
+    y = s * np.r_[np.full(300, 0.5), np.full(100, -0.5)]
+    spec = {"scale_feature": "s", "scale_floor": 1e-3}
+    absolute = RidgeCorrection(alpha=1e12, target_transforms=[spec]).fit(X, y, feature_names=["s", "x"])
+    relative = RidgeCorrection(alpha=1e12, target_transforms=[{**spec, "fit_errors": "relative"}]).fit(
+        X, y, feature_names=["s", "x"])
+    assert absolute.intercept_[0] == pytest.approx((300 * 1e-4 * 0.5 - 100 * 0.5) / (300 * 1e-4 + 100), abs=1e-6)
+    assert relative.intercept_[0] == pytest.approx(0.25, abs=1e-6)
+
+
 def test_weighted_ridge_recovers_an_exact_linear_residual():
     # y = s (a + b x): least squares on the weighted residual recovers a and b exactly,
     # whatever the weights (a linear model of a linear truth; common practice).
@@ -54,6 +70,7 @@ def test_weighted_ridge_recovers_an_exact_linear_residual():
     ([{"scale": "x"}], ["target_transforms[0]", "scale_feature"]),
     ([{"scale_feature": "x", "scale_floor": -1.0}], ["scale_floor", ">= 0", "-1.0"]),
     ([{"offset_features": {"x": "one"}}], ["offset_features", "finite number"]),
+    ([{"scale_feature": "x", "fit_errors": "squared"}], ["fit_errors", "relative", "'squared'"]),
 ])
 def test_bad_transforms_are_refused_with_the_entry_named(transforms, words):
     with pytest.raises(ParameterError) as info:

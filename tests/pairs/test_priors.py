@@ -21,7 +21,7 @@ def host(cloud_fraction, cloud_tau, clear_tau, z_edge, zenith=0.0, azimuth=0.0, 
     shape = c.shape[1:]
     return {"layer_cloud_fraction": c, "layer_optical_depth": tau, "layer_clear_sky_optical_depth": clear,
             "z_edge": np.asarray(z_edge, dtype=float), "dx": dx, "dy": dx, "solar_zenith_angle": zenith,
-            "solar_beam_azimuth": azimuth, "total_cloud_fraction": c.max(axis=0),
+            "solar_beam_azimuth": azimuth, "total_cloud_fraction": 1.0 - F.maximum_random_clear_fraction(c),
             "column_optical_depth_mean": tau.sum(axis=0),
             "column_optical_depth_std": np.zeros(shape) if std is None else np.asarray(std, dtype=float),
             "cloud_edge_length": np.zeros(shape) if edge is None else np.asarray(edge, dtype=float),
@@ -77,6 +77,37 @@ def test_two_separated_layers_overlap_at_random():
     np.testing.assert_allclose(F.direct_beam_prior(fields), expected, rtol=1e-12)
 
 
+def test_layers_side_by_side_take_the_known_total_cover():
+    # Cloud of two adjacent layers in different columns (cloud tilted by shear: no overlap),
+    # each on 30 % of the host column, total cover 60 %, optical depth 4 in every cloudy
+    # column: the mean direct transmittance under an overhead sun is 0.4 + 0.6 exp(-4)
+    # (shares of the columns); maximum overlap alone would see 70 % clear sky.
+    c = np.zeros((3, 1, 1))
+    c[0:2] = 0.3
+    fields = host(c, 0.3 * 4.0 * (c > 0), 0.0, [0.0, 300.0, 600.0, 2000.0])
+    fields["total_cloud_fraction"] = np.full((1, 1), 0.6)
+    fields["column_optical_depth_std"] = np.full((1, 1), 4.0 * math.sqrt(0.6 * 0.4))
+    np.testing.assert_allclose(F.direct_beam_prior(fields), 0.4 + 0.6 * math.exp(-4.0), rtol=1e-12)
+    gamma = F.overlap_exponent(0.6, 0.7)
+    assert float((1.0 - 0.3) ** gamma) == pytest.approx(0.4, rel=1e-14)
+    assert F.overlap_exponent([0.0, 1.0, 0.5], [1.0, 0.0, 0.5]).tolist() == [1.0, 1.0, 1.0]
+
+
+def test_staircase_edge_length_of_a_disc():
+    # The length of the cell faces along the edge of a digitized disc is the perimeter of its
+    # bounding box, 8 r, and pi / 4 of it the disc's perimeter 2 pi r (Cauchy-Crofton:
+    # a staircase is |cos a| + |sin a| times longer than the line it follows, 4 / pi on
+    # average over the angle a).
+    from surrogate3d.pairs.coarsen import edge_length_density
+
+    r, dx = 60.0, 1.0
+    y, x = np.mgrid[0:200, 0:200] + 0.5
+    disc = (x - 100.0) ** 2 + (y - 100.0) ** 2 <= r * r
+    staircase = edge_length_density(disc, dx, dx).sum() * dx * dx
+    assert staircase == pytest.approx(8.0 * r, rel=0.01)
+    assert F.STAIRCASE_TO_EUCLIDEAN * staircase == pytest.approx(2.0 * math.pi * r, rel=0.01)
+
+
 def test_maximum_random_overlap_by_hand():
     # Geleyn and Hollingsworth (1979): adjacent cloudy layers overlap maximally, blocks
     # separated by a clear layer at random.
@@ -88,9 +119,12 @@ def test_maximum_random_overlap_by_hand():
     c = np.where(rng.random((7, 50)) < 0.4, 0.0, rng.random((7, 50)))
     cover, _, _, _ = F.cloud_blocks(c, c)
     np.testing.assert_allclose(np.prod(1.0 - cover, axis=0), F.maximum_random_clear_fraction(c), rtol=1e-12)
-    # The features' block scan gives the same in-cloud relative variance as the plain functions.
+    # The features' block scan gives the same in-cloud relative variance as the plain
+    # functions, with the covers made consistent with the total cloud cover.
     fields = random_prior_fields()
     cover, depth, _, _ = F.cloud_blocks(fields["layer_cloud_fraction"], F._cloud_layers(F._Fields(fields)))
+    gamma = F.overlap_exponent(fields["total_cloud_fraction"], np.prod(1.0 - cover, axis=0))
+    cover = np.where(cover > 0.0, 1.0 - (1.0 - cover) ** gamma, 0.0)
     plain = F.in_cloud_relative_variance(fields["column_optical_depth_std"], cover, depth)
     np.testing.assert_allclose(F._vertical_blocks(F._Fields(fields))[2].reshape(plain.shape), plain, rtol=1e-12)
 
