@@ -129,7 +129,7 @@ def _warm_up_compiled_kernels():
 
 
 def _pairs_up_to_date(paths):
-    from .archive import open_dataset
+    from .core.netcdf import open_dataset
     from .pairs.build import archive_fingerprint
 
     if not paths.pairs.is_file():
@@ -208,7 +208,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     if _pairs_up_to_date(paths):
         stages.end(f"reused {paths.pairs}")
     else:
-        from .archive import write_dataset
+        from .core.netcdf import write_dataset
 
         write_dataset(build_pairs(paths.archive, resolutions, quiet=quiet), paths.pairs)
         stages.end(f"wrote {paths.pairs}")

@@ -18,7 +18,7 @@ reflected flux and the absorption are smoothed.
 
 import numpy as np
 
-from ..pairs.targets import TARGETS
+from ..core.data_model import TARGETS
 from ..scenes.model import cloud_mask, layer_thickness, spacing
 from ..errors import ParameterError
 from .base import Baseline
@@ -119,7 +119,6 @@ class NonlocalIndependentPixel(Baseline):
     """
 
     name = "nonlocal_independent_pixel"
-    variable = "baseline_nonlocal_independent_pixel"
 
     def __init__(self, smoothing_scale=None):
         if smoothing_scale is not None and not (np.isfinite(smoothing_scale) and smoothing_scale >= 0):

@@ -19,8 +19,8 @@ two-stream flux of the same solver, so solver biases common to both cancel.
 
 import numpy as np
 
-from ..pairs.slant_path import gather_layers, path_weights, scatter_layers, top_offset
-from ..pairs.targets import TARGETS
+from ..core.slant_path import gather_layers, path_weights, scatter_layers, top_offset
+from ..core.data_model import TARGETS
 from ..scenes.model import layer_thickness, spacing
 from .base import Baseline
 
@@ -132,7 +132,6 @@ class TiltedIndependentColumn(Baseline):
     """
 
     name = "tilted_independent_column"
-    variable = "baseline_tilted_independent_column"
 
     def corrections(self, scene, solar_zenith_angle, solar_beam_azimuth, independent_column=None):
         """Tilted-minus-vertical corrections on the benchmark grid.
@@ -149,7 +148,7 @@ class TiltedIndependentColumn(Baseline):
         Returns
         -------
         dict of str -> ndarray (ny, nx)
-            One array per target of :data:`surrogate3d.pairs.targets.TARGETS`.
+            One array per target of :data:`surrogate3d.core.data_model.TARGETS`.
         """
         tilted = two_stream_fluxes(scene, solar_zenith_angle, solar_beam_azimuth, tilted=True)
         vertical = two_stream_fluxes(scene, solar_zenith_angle, solar_beam_azimuth, tilted=False)

@@ -20,8 +20,7 @@ import xarray as xr
 
 from .. import __version__
 from .._atomic import atomic_path, write_text_atomic
-from ..archive import open_dataset
-from ..archive.netcdf import ENGINE
+from ..core.netcdf import ENGINE, open_dataset
 from ..errors import FormatError, ParameterError, ValidationError
 from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256

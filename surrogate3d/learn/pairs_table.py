@@ -13,7 +13,7 @@ import numpy as np
 
 from ..errors import FormatError, ValidationError
 from ..pairs import read_pairs
-from ..pairs.targets import TARGETS
+from ..core.data_model import TARGETS
 
 #: Per-sample, per-target variables [1].
 SAMPLE_TARGET_VARIABLES = ("target_value", "target_standard_error", "independent_column_flux",

@@ -1,6 +1,6 @@
 """Training pairs at host-model resolution: coarse-graining, the feature library, feature recipes.
 
-``features``, ``slant_path`` and ``recipe`` import only numpy and the standard library
+``features`` and ``recipe`` import only numpy and the standard library
 (the numpy-only runtime imports them), so this package loads the xarray-based parts
 (coarse-graining, the pair table) only when they are first used.
 """

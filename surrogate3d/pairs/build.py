@@ -17,8 +17,11 @@ import xarray as xr
 from tqdm import tqdm
 
 from .. import __version__
-from ..archive.netcdf import check_format_version, open_dataset, read_scene, scene_files
-from ..archive.results import COLUMN_FLUXES, completed, select_result, stderr_name
+from ..archive.netcdf import read_scene, scene_files
+from ..core.netcdf import check_format_version, open_dataset
+from ..archive.results import completed, select_result
+from ..core.data_model import COLUMN_FLUXES
+from ..core.run_result import stderr_name
 from ..baselines import NonlocalIndependentPixel, TiltedIndependentColumn
 from ..baselines.nonlocal_pixel import radiative_smoothing_scale
 from ..errors import FormatError, ParameterError
@@ -26,10 +29,9 @@ from .coarsen import block_mean, coarsen_result, host_factors
 from .features import compute_features
 from .host_fields import assemble_host_fields
 from .recipe import DEFAULT_PARAMETERS, HOST_FLUX_KINDS, FeatureRecipe, default_recipe
-from .targets import TARGETS
+from ..core.data_model import PAIRS_FORMAT_VERSION as FORMAT_VERSION
+from ..core.data_model import TARGETS
 
-#: Version of the pair-table layout.
-FORMAT_VERSION = "1.0"
 
 #: Variables every pair table holds (read_pairs checks them).
 REQUIRED_VARIABLES = (

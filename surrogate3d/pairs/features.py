@@ -46,8 +46,8 @@ import math
 import numpy as np
 
 from ..errors import ValidationError
-from .slant_path import area_path_weights, gather_layers, path_weights, slant_sum
-from .targets import TARGETS
+from ..core.slant_path import area_path_weights, gather_layers, path_weights, slant_sum
+from ..core.data_model import TARGETS
 
 #: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
 INDEPENDENT_COLUMN_FLUXES = TARGETS

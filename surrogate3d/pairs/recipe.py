@@ -9,11 +9,10 @@ import json
 import math
 from pathlib import Path
 
+from ..core.data_model import RECIPE_VERSION
 from ..errors import FormatError, ParameterError
 from .features import DEFAULT_FEATURES, FEATURES, column_name
 
-#: Version of the recipe layout (and of the feature definitions it refers to).
-RECIPE_VERSION = 1
 
 #: Parameters of the features and their defaults.
 DEFAULT_PARAMETERS = {

@@ -17,19 +17,11 @@ import zlib
 
 import numpy as np
 
+from ..core.data_model import COEFFICIENT_FORMAT_NAME as FORMAT_NAME
+from ..core.data_model import COEFFICIENT_FORMAT_VERSION as FORMAT_VERSION
 from ..errors import FormatError
 from . import envelope as _envelope
 
-#: The ``format`` field every coefficient file carries.
-FORMAT_NAME = "surrogate3d-correction-coefficients"
-
-#: Version of the coefficient layout.  Readers accept files of the same major version.
-#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate); 1.2 added the
-#: optional ``training_envelope`` (an older file has none: no column is flagged) and stores
-#: scale 1 for a ridge feature constant up to round-off (readers clip the standardized value
-#: of such a feature in older files, :mod:`surrogate3d.runtime.ridge`); 1.3 added the
-#: optional ``target_transforms`` (an older file has none: the model predicts corrections).
-FORMAT_VERSION = "1.3"
 
 #: Model kinds a coefficient file may hold.
 KINDS = ("ridge", "boosted")

@@ -15,7 +15,7 @@ import numpy as np
 from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
-from ..pairs.targets import TARGETS
+from ..core.data_model import TARGETS
 from .document import check_document, clear_sky_gate, document_from_json, target_transforms, training_envelope
 from .envelope import EnvelopeCheck, EnvelopeWarning
 from .ridge import RidgeModel

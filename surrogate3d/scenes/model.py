@@ -12,9 +12,8 @@ are ordered ``(band, z, y, x)`` so that a column is contiguous per layer plane.
 import numpy as np
 import xarray as xr
 
+from ..core.data_model import SCENE_FORMAT_VERSION as FORMAT_VERSION
 from ..errors import ValidationError
-
-FORMAT_VERSION = "1.1"
 
 OPTICAL_VARIABLES = ("extinction", "single_scattering_albedo", "asymmetry_parameter")
 REQUIRED_VARIABLES = OPTICAL_VARIABLES + ("surface_albedo", "solar_weight")

@@ -1,6 +1,6 @@
 """``surrogate3d simulate``: fill an archive with 3D, independent-column and two-stream results."""
 
-from ..archive.results import SOLVERS
+from ..core.data_model import SOLVERS
 
 #: Parameters of simulate_archive as the options that set them, for messages.
 FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_size": "--batch-size",

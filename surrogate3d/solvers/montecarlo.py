@@ -13,7 +13,7 @@ import numba
 import numpy as np
 
 from .. import __version__
-from ..archive.results import make_run_result
+from ..core.run_result import make_run_result
 from ..errors import ParameterError
 from ..scenes.model import spacing
 from ..scenes.validation import validate_scene

@@ -35,7 +35,8 @@ from ..archive.leftovers import remove_leftovers
 from ..archive.locking import ArchiveLock
 from ..archive.netcdf import read_result_flags, read_scene, scene_files
 from ..archive.pending import merge_pending, pending_keys, write_pending
-from ..archive.results import SOLVERS, SUN_TOLERANCE_DEG, has_result
+from ..archive.results import SUN_TOLERANCE_DEG, has_result
+from ..core.data_model import SOLVERS
 from ..errors import OutputError, ParameterError, Surrogate3DError
 from .montecarlo import SOLAR_CONSTANT, _check_float, _check_int, solve_monte_carlo
 from .sun import check_sun

@@ -23,7 +23,8 @@ import numpy as np
 from tqdm import tqdm
 
 from .. import __version__
-from ..archive import COLUMN_FLUXES, make_run_result
+from ..core.data_model import COLUMN_FLUXES
+from ..core.run_result import make_run_result
 from ..errors import ParameterError
 from ..scenes import layer_thickness, validate_scene
 from ._array_checks import as_float_array, broadcast_to_shape, check_range

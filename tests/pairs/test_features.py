@@ -10,7 +10,7 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.pairs import features as F
 from surrogate3d.pairs.recipe import FeatureRecipe, default_recipe
-from surrogate3d.pairs.slant_path import path_weights
+from surrogate3d.core.slant_path import path_weights
 
 
 def plane_fields(tau_column, z_edge=(0.0, 1000.0), dx=1000.0, zenith=45.0, azimuth=0.0):
@@ -217,7 +217,7 @@ def test_bad_host_fields_are_named(change, message):
 
 
 def test_feature_modules_import_only_numpy_and_the_standard_library():
-    code = ("import sys, surrogate3d.pairs.features, surrogate3d.pairs.recipe, surrogate3d.pairs.slant_path\n"
+    code = ("import sys, surrogate3d.pairs.features, surrogate3d.pairs.recipe, surrogate3d.core.slant_path\n"
             "heavy = [m for m in sys.modules if m.split('.')[0] in ('xarray', 'pandas', 'scipy', 'numba', 'tqdm',"
             " 'sklearn', 'matplotlib', 'h5netcdf', 'h5py', 'dask')]\n"
             "print(heavy)\nsys.exit(1 if heavy else 0)")
@@ -313,7 +313,7 @@ def test_path_weights_match_a_layer_by_layer_reference(zenith, azimuth, dy):
 def test_slant_sum_in_row_blocks_is_the_sum_of_rolled_planes(monkeypatch, block_cells):
     # Definition: the slant sum adds, for every column offset, the weighted layers rolled
     # into place; blocks of rows (some wrapping around the grid) change nothing.
-    from surrogate3d.pairs import slant_path
+    from surrogate3d.core import slant_path
 
     monkeypatch.setattr(slant_path, "_BLOCK_CELLS", block_cells)
     rng = np.random.default_rng(7)

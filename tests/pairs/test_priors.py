@@ -8,7 +8,7 @@ from scipy import integrate, stats
 
 from surrogate3d.pairs import features as F
 from surrogate3d.pairs.recipe import FeatureRecipe
-from surrogate3d.pairs.slant_path import area_path_weights
+from surrogate3d.core.slant_path import area_path_weights
 
 PRIORS = ["direct_beam_prior", "direct_beam_prior_minus_independent_column", "direct_beam_prior_slant_minus_vertical"]
 
