@@ -183,7 +183,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     from .export.exporter import export_training_run
     from .learn.train import train_models
     from .pairs.build import build_pairs
-    from .solvers.simulate import simulate_archive
+    from .archive.simulate import simulate_archive
 
     paths = DemoPaths(Path(out))
     paths.root.mkdir(parents=True, exist_ok=True)

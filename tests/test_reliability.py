@@ -35,8 +35,8 @@ from surrogate3d.cli import main
 from surrogate3d.errors import ValidationError
 from surrogate3d.learn.synthetic import make_synthetic_pairs
 from surrogate3d.scenes import make_scene
-from surrogate3d.solvers import simulate as simulate_module
-from surrogate3d.solvers.simulate import Task, run_task, simulate_archive
+from surrogate3d.archive import simulate as simulate_module
+from surrogate3d.archive.simulate import Task, run_task, simulate_archive
 from trained_model_fixtures import built, helpers, one_openmp_thread  # noqa: F401 (fixtures)
 
 REPO = Path(__file__).resolve().parents[1]

@@ -1,4 +1,5 @@
-"""The benchmark archive: one NetCDF file per scene holding the scene and its results."""
+"""The benchmark archive: one NetCDF file per scene holding the scene and its results, filled by
+:func:`~surrogate3d.archive.simulate.simulate_archive` (``surrogate3d simulate``)."""
 
 from ..core.data_model import COLUMN_FLUXES, SOLVERS
 from ..core.netcdf import open_dataset, write_dataset

@@ -31,16 +31,16 @@ import numba
 import numpy as np
 from tqdm.auto import tqdm
 
-from ..archive.leftovers import remove_leftovers
-from ..archive.locking import ArchiveLock
-from ..archive.netcdf import read_result_flags, read_scene, scene_files
-from ..archive.pending import merge_pending, pending_keys, write_pending
-from ..archive.results import SUN_TOLERANCE_DEG, has_result
+from .._workers import WorkerPool
 from ..core.data_model import SOLVERS
 from ..errors import OutputError, ParameterError, Surrogate3DError
-from .montecarlo import SOLAR_CONSTANT, _check_float, _check_int, solve_monte_carlo
-from .sun import check_sun
-from .._workers import WorkerPool
+from ..solvers.montecarlo import SOLAR_CONSTANT, _check_float, _check_int, solve_monte_carlo
+from ..solvers.sun import check_sun
+from .leftovers import remove_leftovers
+from .locking import ArchiveLock
+from .netcdf import read_result_flags, read_scene, scene_files
+from .pending import merge_pending, pending_keys, write_pending
+from .results import SUN_TOLERANCE_DEG, has_result
 
 
 @dataclass(frozen=True)
@@ -157,7 +157,7 @@ def run_task(task, options):
     """Compute one task; returns the run result (an xarray Dataset).  Runs in workers."""
     scene = read_scene(task.path, results=False)
     if task.solver == "two_stream":
-        from .two_stream import solve_scene
+        from ..solvers.two_stream import solve_scene
 
         return solve_scene(scene, task.solar_zenith_angle, task.solar_beam_azimuth,
                            solar_constant=options.solar_constant, per_band=options.per_band)
