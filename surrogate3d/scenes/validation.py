@@ -3,7 +3,7 @@
 import numpy as np
 
 from ..errors import ValidationError
-from .model import REQUIRED_VARIABLES, VARIABLE_SPEC
+from .variables import REQUIRED_VARIABLES, VARIABLE_SPEC
 
 #: Tolerance on the sum of band solar weights.
 WEIGHT_SUM_TOLERANCE = 1e-6
