@@ -101,16 +101,15 @@ def _make_scenes(cfg, archive, quiet):
     from tqdm.auto import tqdm
 
     from .archive import write_scene
-    from .scenes.generator import generate_scene
 
     archive.mkdir(parents=True, exist_ok=True)
-    jobs = [(entry.regime, seed) for entry in cfg.entries() for seed in entry.seeds]
+    jobs = cfg.scenes()
     made = 0
-    for regime, seed in tqdm(jobs, desc="scenes", unit="scene", disable=quiet or None):
-        path = archive / f"{regime.name}_{seed:05d}.nc"
+    for name, regime, seed in tqdm(jobs, desc="scenes", unit="scene", disable=quiet or None):
+        path = archive / name
         if path.is_file():
             continue
-        write_scene(generate_scene(regime, seed, **cfg.scene_options(regime.name, seed)), path, validate=False)
+        write_scene(cfg.generate(regime, seed), path, validate=False)
         made += 1
     return made, len(jobs)
 

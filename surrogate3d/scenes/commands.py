@@ -151,13 +151,11 @@ def run_scenes(args):
     from ..archive import write_scene
     from ..archive.locking import ArchiveLock
     from ..archive.pending import pending_dir
-    from .generator import generate_scene
 
     cfg = _scene_set(args)
-    entries = cfg.entries()
+    jobs = cfg.scenes()
     out = check_output_directory(cfg.out, "--out")
-    jobs = [(entry.regime, seed) for entry in entries for seed in entry.seeds]
-    targets = [out / f"{regime.name}_{seed:05d}.nc" for regime, seed in jobs]
+    targets = [out / name for name, _, _ in jobs]
     written = []
     with ExitStack() as stack:
         if out.is_dir():
@@ -168,8 +166,8 @@ def run_scenes(args):
         bar = stack.enter_context(tqdm(total=len(jobs), desc="scenes", unit="scene", file=sys.stderr,
                                        disable=True if args.quiet else None))
         with staged_directory(out) as staging:
-            for (regime, seed), path in zip(jobs, targets):
-                scene = generate_scene(regime, seed, **cfg.scene_options(regime.name, seed))
+            for (_, regime, seed), path in zip(jobs, targets):
+                scene = cfg.generate(regime, seed)
                 write_scene(scene, staging / path.name, validate=False)
                 written.append((path, scene.attrs["total_cloud_fraction"]))
                 bar.update(1)

@@ -15,6 +15,7 @@ from pathlib import Path
 
 from ..errors import FormatError, ParameterError
 from .draws import check_draws, contains_draw, draw_stream, is_draw, resolve
+from .generator import generate_scene
 from .optics import BANDS
 from .optics_sets import OPTICS_SETS, get_optics_set
 from .regimes import REGIMES, CloudLayer, get_regime
@@ -145,6 +146,30 @@ class SceneSetConfig:
             raise ParameterError(f"{self.source}: regime {twice[0]!r} is listed twice; give one of them a "
                                  "label so that their files do not overwrite each other")
         return out
+
+    def scenes(self):
+        """Every scene of the set, in order, as ``(file name, regime, seed)``.
+
+        The file name, ``<regime>_<seed:05d>.nc``, is the scene's label in the archive.
+
+        Raises
+        ------
+        surrogate3d.errors.ParameterError
+            As :meth:`entries`.
+        """
+        return [(f"{entry.regime.name}_{seed:05d}.nc", entry.regime, seed) for entry in self.entries()
+                for seed in entry.seeds]
+
+    def generate(self, regime, seed):
+        """One scene of the set (an xarray Dataset), with its grid, optics and draws.
+
+        Parameters
+        ----------
+        regime : surrogate3d.scenes.Regime
+            From :meth:`scenes`.
+        seed : int
+        """
+        return generate_scene(regime, seed, **self.scene_options(regime.name, seed))
 
 
 def _only_bands(value, bands):
