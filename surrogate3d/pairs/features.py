@@ -1177,15 +1177,16 @@ def _min_max(value):
     return np.min(lows), np.max(highs)
 
 
-def compute_features(host_fields, recipe=None):
+def compute_features(host_fields, recipe):
     """Feature matrix of a host grid.
 
     Parameters
     ----------
     host_fields : dict of ndarray
         Host-model fields (see the module docstring); the grid is periodic.
-    recipe : surrogate3d.pairs.recipe.FeatureRecipe, optional
-        Ordered features and their parameters; default :func:`~surrogate3d.pairs.recipe.default_recipe`.
+    recipe : surrogate3d.pairs.recipe.FeatureRecipe
+        Ordered features and their parameters (:func:`~surrogate3d.pairs.recipe.default_recipe` for
+        the default ones).
 
     Returns
     -------
@@ -1208,10 +1209,6 @@ def compute_features(host_fields, recipe=None):
     >>> compute_features(fields, FeatureRecipe(["log_column_optical_depth"])).shape
     (12, 1)
     """
-    if recipe is None:
-        from .recipe import default_recipe
-
-        recipe = default_recipe()
     keys = set()
     for name in recipe.features:
         keys.update(FEATURES[name].keys)

@@ -213,7 +213,7 @@ def test_bad_host_fields_are_named(change, message):
     fields = random_fields()
     change(fields)
     with pytest.raises(ValidationError, match=message):
-        F.compute_features(fields)
+        F.compute_features(fields, default_recipe())
 
 
 def test_feature_modules_import_only_numpy_and_the_standard_library():
