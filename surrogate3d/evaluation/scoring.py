@@ -15,9 +15,11 @@ from pathlib import Path
 
 from ..errors import FormatError, ParameterError, ValidationError
 from ..learn.model_directory import MODEL_CARD, TRAINING_FILE, file_sha256, load_model, load_training_run
-from ..learn.pairs_table import feature_names, read_pairs_table, scene_table, target_names
+from ..core.pairs_table import read_pairs_table
+from ..learn.pairs_table import feature_names, scene_table, target_names
 from ..pairs.features import FEATURES
 from ..pairs.recipe import FeatureRecipe
+from ..core.coefficient_file import read_coefficients
 from ..runtime.model import CorrectionModel
 from .evaluation_sets import Evaluation, score_set, set_tables
 from .importance import permutation_importance
@@ -51,9 +53,6 @@ def load_scored_models(source):
     surrogate3d.errors.FormatError
         Neither a coefficient file nor a model directory, or an unreadable one.
     """
-    # Imported here: the export stage reads the headline units from this package.
-    from ..export.coefficients import read_coefficients
-
     path = Path(source)
     if path.is_file():
         document = read_coefficients(path)

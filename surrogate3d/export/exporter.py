@@ -11,9 +11,11 @@ import numpy as np
 
 from ..errors import FormatError, ValidationError
 from ..learn.model_directory import load_training_run
-from ..learn.pairs_table import feature_matrix, read_pairs_table, select_scenes
+from ..core.pairs_table import read_pairs_table
+from ..learn.pairs_table import feature_matrix, select_scenes
 from ..runtime.model import CorrectionModel
-from .coefficients import build_document, read_coefficients, write_coefficients
+from ..core.coefficient_file import read_coefficients
+from .coefficients import build_document, write_coefficients
 from .fortran import fortran_files, fortran_name, read_features_file, write_fortran
 
 #: Subdirectory of the export directory that holds the Fortran files.

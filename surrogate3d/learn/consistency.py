@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import ValidationError
-from .pairs_table import TARGETS
+from ..core.data_model import TARGETS
 
 _TOTAL, _DIRECT, _DIFFUSE = "surface_downward_flux", "surface_downward_direct_flux", "surface_downward_diffuse_flux"
 _TOA, _ABSORPTION = "toa_upward_flux", "atmosphere_absorption"

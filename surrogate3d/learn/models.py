@@ -29,7 +29,8 @@ from sklearn.utils.validation import check_is_fitted
 from ..errors import ParameterError, ValidationError
 from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
 from ..runtime.ridge import near_constant
-from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
+from ..core.data_model import TARGETS
+from .pairs_table import feature_matrix, feature_names, target_matrix
 from .transforms import apply_transforms, check_scales, check_transforms, offsets_and_scales, resolve_transforms
 
 #: Relative cut-off below which singular values count as zero when ``alpha`` is 0.

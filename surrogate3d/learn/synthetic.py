@@ -14,7 +14,7 @@ import json
 import numpy as np
 import xarray as xr
 
-from .pairs_table import TARGETS
+from ..core.data_model import TARGETS
 
 #: Feature names of the synthetic tables, with units.
 SYNTHETIC_FEATURES = {

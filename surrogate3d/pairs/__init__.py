@@ -9,7 +9,7 @@ from .features import FEATURES, compute_features, validate_host_fields
 from .recipe import RECIPE_VERSION, FeatureRecipe, default_recipe
 
 _LAZY = {
-    "build_pairs": "build", "read_pairs": "build", "TARGETS": "build", "FORMAT_VERSION": "build",
+    "build_pairs": "build", "TARGETS": "build", "FORMAT_VERSION": "build",
     "assemble_host_fields": "host_fields", "scene_host_fields": "coarsen", "coarsen_result": "coarsen",
     "host_factors": "coarsen", "allowed_host_resolutions": "coarsen",
 }

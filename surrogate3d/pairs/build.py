@@ -3,7 +3,7 @@
 See ``docs/pairs-format.md`` for every variable.  :func:`build_pairs` reads an archive
 directory of scene files, coarse-grains every scene and sun geometry holding both a
 3D and an independent-column result to each host resolution, computes the features,
-the 3D-minus-independent-column targets and the baseline predictions; :func:`read_pairs`
+the 3D-minus-independent-column targets and the baseline predictions; :func:`surrogate3d.core.pairs_table.read_pairs`
 reads a written table back.
 """
 
@@ -18,7 +18,6 @@ from tqdm import tqdm
 
 from .. import __version__
 from ..archive.netcdf import read_scene, scene_files
-from ..core.netcdf import check_format_version, open_dataset
 from ..archive.results import completed, select_result
 from ..core.data_model import COLUMN_FLUXES
 from ..core.run_result import stderr_name
@@ -32,14 +31,6 @@ from .recipe import DEFAULT_PARAMETERS, HOST_FLUX_KINDS, FeatureRecipe, default_
 from ..core.data_model import PAIRS_FORMAT_VERSION as FORMAT_VERSION
 from ..core.data_model import TARGETS
 
-
-#: Variables every pair table holds (read_pairs checks them).
-REQUIRED_VARIABLES = (
-    "features", "target_value", "target_standard_error", "independent_column_flux", "full_3d_flux",
-    "baseline_tilted_independent_column", "baseline_nonlocal_independent_pixel", "scene", "regime", "seed",
-    "solar_zenith_angle", "solar_beam_azimuth", "host_resolution", "host_ix", "host_iy", "host_nx", "host_ny",
-    "cloud_fraction", "surface_albedo", "incident_flux",
-)
 
 _SAMPLE_META = {
     "scene": ("-", "scene identifier (scene file stem)"),
@@ -335,34 +326,4 @@ def _assemble(blocks, recipe, fingerprint, skipped, resolutions):
         "skipped": json.dumps(skipped),
         "source": f"surrogate3d {__version__} pairs",
     })
-    return ds
-
-
-def read_pairs(path):
-    """Read a pair table written by ``surrogate3d pairs`` (or :func:`build_pairs` + write_dataset).
-
-    Parameters
-    ----------
-    path : str or Path
-
-    Returns
-    -------
-    xarray.Dataset
-        Loaded into memory; string coordinates and labels as Python ``str``.
-
-    Raises
-    ------
-    surrogate3d.errors.FormatError
-        The file is missing or unreadable, of another format version, or lacks variables.
-    """
-    ds = open_dataset(path, what="pair table")
-    check_format_version(ds, path, expected=FORMAT_VERSION, what="pair table")
-    missing = [v for v in REQUIRED_VARIABLES if v not in ds.variables]
-    missing += [c for c in ("feature", "target") if c not in ds.coords]
-    if missing:
-        raise FormatError(f"pair table {str(path)!r} lacks variable(s) {', '.join(missing)}")
-    ds = ds.assign_coords(feature=[str(f) for f in ds["feature"].values],
-                          target=[str(t) for t in ds["target"].values])
-    for name in ("scene", "regime"):
-        ds[name] = ("sample", np.array([str(v) for v in ds[name].values], dtype=object), ds[name].attrs)
     return ds

@@ -21,7 +21,7 @@ The shipped default correction and its sample columns (paths in a checkout):
 documents the file.
 """
 
-from .document import FORMAT_NAME, FORMAT_VERSION
+from ..core.coefficient_format import FORMAT_NAME, FORMAT_VERSION
 from .model import CorrectionModel, load_coefficients
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "CorrectionModel", "load_coefficients"]

@@ -37,7 +37,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import FormatError, ValidationError
+from ..core.coefficient_format import ENVELOPE_ARRAYS as ARRAYS
+from ..core.coefficient_format import ENVELOPE_FIELD
+from ..core.coefficient_format import ENVELOPE_SCALARS as SCALARS
+from ..errors import ValidationError
 from .ridge import near_constant
 
 #: Principal components whose own variance the distance keeps (at most the feature count).
@@ -53,13 +56,6 @@ VARIANCE_FLOOR = 1e-6
 
 #: Columns per block of the checks: the block's arrays then stay in cache (twice as fast).
 _BLOCK_ROWS = 1024
-
-#: Arrays of the envelope: name -> dimension names.
-ARRAYS = {"feature_min": ("feature",), "feature_max": ("feature",), "center": ("feature",),
-          "scale": ("feature",), "components": ("component", "feature"), "component_variance": ("component",)}
-
-#: Numbers of the envelope besides its arrays.
-SCALARS = ("residual_variance", "distance_threshold", "quantile", "n_samples")
 
 
 class EnvelopeWarning(UserWarning):
@@ -283,7 +279,7 @@ class TrainingEnvelope:
 
     @classmethod
     def from_dict(cls, field):
-        """Envelope from a checked ``training_envelope`` field (:func:`check_envelope_field`)."""
+        """Envelope from a checked ``training_envelope`` field (:func:`surrogate3d.core.coefficient_format.check_envelope_field`)."""
         return cls(**{name: field[name] for name in (*ARRAYS, *SCALARS)})
 
 
@@ -305,54 +301,12 @@ def _single(values, outward=None):
     return np.where(keep, values, rounded)
 
 
-def check_envelope_field(field, n_feature, source, label="training_envelope"):
-    """Check the ``training_envelope`` field of a coefficient document; raise FormatError naming the problem.
+def training_envelope(document):
+    """The training envelope of a checked document, or None for a file without one (before format 1.2).
 
-    Parameters
-    ----------
-    field : dict
-        Arrays as numpy arrays, scalars as numbers.
-    n_feature : int
-        Length of ``features.names``.
-    source : str
-        File name for messages.
+    Returns
+    -------
+    TrainingEnvelope or None
     """
-    where = f"coefficient file {source!r}: field {label}"
-    if not isinstance(field, dict) or set(field) != set(ARRAYS) | set(SCALARS):
-        found = sorted(field) if isinstance(field, dict) else type(field).__name__
-        raise FormatError(f"{where} must be an object with exactly {sorted(set(ARRAYS) | set(SCALARS))}; "
-                          f"got {found}")
-    for name, dims in ARRAYS.items():
-        array = field[name]
-        if not isinstance(array, np.ndarray) or array.dtype != np.float64 or array.ndim != len(dims):
-            raise FormatError(f"{where}.{name} must be a float64 array of dimensions {dims}")
-        if dims[-1] == "feature" and array.shape[-1] != n_feature:
-            raise FormatError(f"{where}.{name} has length {array.shape[-1]} along feature; features.names has "
-                              f"{n_feature}")
-        bad = np.flatnonzero(~np.isfinite(array.ravel()))
-        if bad.size:
-            raise FormatError(f"{where}.{name} is not finite at index {int(bad[0])}")
-    n_component = field["components"].shape[0]
-    if not 1 <= n_component <= n_feature or field["component_variance"].shape != (n_component,):
-        raise FormatError(f"{where}: components has {n_component} rows and component_variance "
-                          f"{field['component_variance'].shape[0]} values; both must be the same count in "
-                          f"[1, {n_feature}]")
-    rules = [("feature_max", field["feature_max"] < field["feature_min"], "is below feature_min"),
-             ("scale", field["scale"] <= 0.0, "is not positive"),
-             ("component_variance", field["component_variance"] <= 0.0, "is not positive")]
-    for name, bad, rule in rules:
-        where_bad = np.flatnonzero(bad)
-        if where_bad.size:
-            raise FormatError(f"{where}.{name} {rule} at index {int(where_bad[0])}")
-    for name, low, low_open in (("residual_variance", 0.0, True), ("distance_threshold", 0.0, False),
-                                ("quantile", 0.0, True)):
-        value = field[name]
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
-                or (value <= low if low_open else value < low):
-            raise FormatError(f"{where}.{name} must be a finite number {'>' if low_open else '>='} {low:g}; "
-                              f"got {value!r}")
-    if field["quantile"] > 1.0:
-        raise FormatError(f"{where}.quantile must be at most 1; got {field['quantile']!r}")
-    n = field["n_samples"]
-    if isinstance(n, bool) or not isinstance(n, int) or n < 2:
-        raise FormatError(f"{where}.n_samples must be an integer >= 2; got {n!r}")
+    field = document.get(ENVELOPE_FIELD)
+    return None if field is None else TrainingEnvelope.from_dict(field)

@@ -15,9 +15,9 @@ import numpy as np
 from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
+from ..core.coefficient_format import check_document, clear_sky_gate, document_from_json, target_transforms
 from ..core.data_model import TARGETS
-from .document import check_document, clear_sky_gate, document_from_json, target_transforms, training_envelope
-from .envelope import EnvelopeCheck, EnvelopeWarning
+from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
 
@@ -49,7 +49,7 @@ class CorrectionModel:
         before format 1.2 (then no column is flagged).
     target_transforms : list of dict or None
         Per target, how the model's output becomes the correction (None: it is the
-        correction; :func:`surrogate3d.runtime.document.target_transforms`).
+        correction; :func:`surrogate3d.core.coefficient_format.target_transforms`).
     document : dict
         Everything the file holds (provenance, skill table, hyperparameters ...).
 
@@ -142,7 +142,7 @@ class CorrectionModel:
 
     def _transformed(self, X, output):
         """Corrections from the model's output: ``offset + scale * output`` per target with a
-        transform (:func:`surrogate3d.runtime.document.target_transforms`)."""
+        transform (:func:`surrogate3d.core.coefficient_format.target_transforms`)."""
         for m, spec in enumerate(self.target_transforms):
             if spec is None:
                 continue

@@ -7,7 +7,7 @@ from sklearn.exceptions import NotFittedError
 
 from surrogate3d.errors import ParameterError, ValidationError
 from surrogate3d.learn.models import BoostedCorrection, RidgeCorrection, make_estimator
-from surrogate3d.learn.pairs_table import TARGETS
+from surrogate3d.core.data_model import TARGETS
 
 RNG = np.random.default_rng(42)
 

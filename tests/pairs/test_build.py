@@ -8,9 +8,10 @@ import pytest
 
 from surrogate3d.archive import insert_result, read_scene, select_result, write_dataset, write_scene
 from surrogate3d.errors import FormatError, OutputError, ParameterError
-from surrogate3d.pairs import build_pairs, read_pairs
+from surrogate3d.core.pairs_table import REQUIRED_VARIABLES, read_pairs
+from surrogate3d.pairs import build_pairs
 from surrogate3d.pairs import commands
-from surrogate3d.pairs.build import REQUIRED_VARIABLES, archive_fingerprint
+from surrogate3d.pairs.build import archive_fingerprint
 from surrogate3d.pairs.coarsen import block_mean
 from surrogate3d.pairs.recipe import FeatureRecipe, default_recipe
 from surrogate3d.core.data_model import BASELINES, TARGETS

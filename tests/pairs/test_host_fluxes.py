@@ -10,7 +10,8 @@ import pytest
 from surrogate3d.archive import insert_result, write_scene
 from surrogate3d.errors import ParameterError, ValidationError
 from surrogate3d.evaluation.scoring import check_pairs_match
-from surrogate3d.pairs import build_pairs, commands, read_pairs
+from surrogate3d.core.pairs_table import read_pairs
+from surrogate3d.pairs import build_pairs, commands
 from surrogate3d.pairs.build import with_host_fluxes
 from surrogate3d.pairs.coarsen import HOST_FLUXES, block_mean, clear_sky_layer_optical_depth, scene_host_fields
 from surrogate3d.pairs.host_fields import assemble_host_fields, host_two_stream_fluxes

@@ -18,7 +18,7 @@ import pytest
 
 from surrogate3d.errors import FormatError
 from surrogate3d.runtime import load_coefficients
-from surrogate3d.runtime.document import decode_array, encode_array
+from surrogate3d.core.coefficient_format import decode_array, encode_array
 from surrogate3d.runtime.envelope import EnvelopeWarning, TrainingEnvelope, VARIANCE_FLOOR
 
 RNG = np.random.default_rng(11)

@@ -15,7 +15,7 @@ import pytest
 
 from surrogate3d.errors import FormatError
 from surrogate3d.runtime import FORMAT_VERSION, load_coefficients
-from surrogate3d.runtime.document import PLAIN_LIMIT, decode_array, encode_array
+from surrogate3d.core.coefficient_format import PLAIN_LIMIT, decode_array, encode_array
 
 
 @pytest.fixture(scope="module")

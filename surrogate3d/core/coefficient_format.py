@@ -6,8 +6,8 @@ stores every array as an object ``{"dtype", "shape", "data" | "packed"}``; the N
 file (written by :mod:`surrogate3d.export.coefficients`) stores the same arrays as
 variables.  ``docs/export-format.md`` documents every field.
 
-This module imports only numpy and the standard library: it is part of the runtime
-that host models import.
+This module imports only numpy and the standard library: the numpy-only runtime reads
+coefficient files with it, and the export stage writes them.
 """
 
 import base64
@@ -17,10 +17,9 @@ import zlib
 
 import numpy as np
 
-from ..core.data_model import COEFFICIENT_FORMAT_NAME as FORMAT_NAME
-from ..core.data_model import COEFFICIENT_FORMAT_VERSION as FORMAT_VERSION
 from ..errors import FormatError
-from . import envelope as _envelope
+from .data_model import COEFFICIENT_FORMAT_NAME as FORMAT_NAME
+from .data_model import COEFFICIENT_FORMAT_VERSION as FORMAT_VERSION
 
 
 #: Model kinds a coefficient file may hold.
@@ -65,6 +64,13 @@ ENVELOPE_FIELD = "training_envelope"
 #: into the correction (absent before format 1.3: none).
 TRANSFORM_FIELD = "target_transforms"
 _TRANSFORM_KEYS = {"scale_feature", "scale_floor", "offset_features", "offset_coefficients"}
+
+#: Arrays of the training envelope: name -> dimension names.
+ENVELOPE_ARRAYS = {"feature_min": ("feature",), "feature_max": ("feature",), "center": ("feature",),
+          "scale": ("feature",), "components": ("component", "feature"), "component_variance": ("component",)}
+
+#: Numbers of the training envelope besides its arrays.
+ENVELOPE_SCALARS = ("residual_variance", "distance_threshold", "quantile", "n_samples")
 
 #: Arrays with at most this many finite values are written as plain JSON lists.
 PLAIN_LIMIT = 64
@@ -187,7 +193,7 @@ def document_to_json(document):
     out[kind] = {name: encode_array(np.asarray(value)) for name, value in document[kind].items()}
     if document.get(ENVELOPE_FIELD) is not None:
         # Always packed: the envelope's single-precision values pack to half their decimal length.
-        out[ENVELOPE_FIELD] = {name: encode_array(np.asarray(value), plain_limit=0) if name in _envelope.ARRAYS
+        out[ENVELOPE_FIELD] = {name: encode_array(np.asarray(value), plain_limit=0) if name in ENVELOPE_ARRAYS
                                else value for name, value in document[ENVELOPE_FIELD].items()}
     return out
 
@@ -223,7 +229,7 @@ def document_from_json(content, source):
         raise FormatError(f"coefficient file {source!r} lacks fields {missing}")
     field = content.get(ENVELOPE_FIELD)
     if isinstance(field, dict):
-        out[ENVELOPE_FIELD] = {name: decode_array(value, f"{ENVELOPE_FIELD}.{name}") if name in _envelope.ARRAYS
+        out[ENVELOPE_FIELD] = {name: decode_array(value, f"{ENVELOPE_FIELD}.{name}") if name in ENVELOPE_ARRAYS
                                else value for name, value in field.items()}
     return out
 
@@ -312,18 +318,7 @@ def check_document(document, source):
     _check_gate(document, len(feature_names), source)
     _check_transforms(document, len(feature_names), len(target_names), source)
     if ENVELOPE_FIELD in document:
-        _envelope.check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
-
-
-def training_envelope(document):
-    """The training envelope of a checked document, or None for a file without one (before format 1.2).
-
-    Returns
-    -------
-    surrogate3d.runtime.envelope.TrainingEnvelope or None
-    """
-    field = document.get(ENVELOPE_FIELD)
-    return None if field is None else _envelope.TrainingEnvelope.from_dict(field)
+        check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
 
 
 def clear_sky_gate(document):
@@ -490,3 +485,56 @@ def _check_trees(arrays, sizes, source):
     if children.size != expected.size or not np.array_equal(np.sort(children), expected):
         raise FormatError(f"coefficient file {source!r}: {label}.left and {label}.right do not form trees "
                           "(every node but a root must be the child of exactly one node)")
+
+
+def check_envelope_field(field, n_feature, source, label="training_envelope"):
+    """Check the ``training_envelope`` field of a coefficient document; raise FormatError naming the problem.
+
+    Parameters
+    ----------
+    field : dict
+        Arrays as numpy arrays, scalars as numbers.
+    n_feature : int
+        Length of ``features.names``.
+    source : str
+        File name for messages.
+    """
+    where = f"coefficient file {source!r}: field {label}"
+    if not isinstance(field, dict) or set(field) != set(ENVELOPE_ARRAYS) | set(ENVELOPE_SCALARS):
+        found = sorted(field) if isinstance(field, dict) else type(field).__name__
+        raise FormatError(f"{where} must be an object with exactly {sorted(set(ENVELOPE_ARRAYS) | set(ENVELOPE_SCALARS))}; "
+                          f"got {found}")
+    for name, dims in ENVELOPE_ARRAYS.items():
+        array = field[name]
+        if not isinstance(array, np.ndarray) or array.dtype != np.float64 or array.ndim != len(dims):
+            raise FormatError(f"{where}.{name} must be a float64 array of dimensions {dims}")
+        if dims[-1] == "feature" and array.shape[-1] != n_feature:
+            raise FormatError(f"{where}.{name} has length {array.shape[-1]} along feature; features.names has "
+                              f"{n_feature}")
+        bad = np.flatnonzero(~np.isfinite(array.ravel()))
+        if bad.size:
+            raise FormatError(f"{where}.{name} is not finite at index {int(bad[0])}")
+    n_component = field["components"].shape[0]
+    if not 1 <= n_component <= n_feature or field["component_variance"].shape != (n_component,):
+        raise FormatError(f"{where}: components has {n_component} rows and component_variance "
+                          f"{field['component_variance'].shape[0]} values; both must be the same count in "
+                          f"[1, {n_feature}]")
+    rules = [("feature_max", field["feature_max"] < field["feature_min"], "is below feature_min"),
+             ("scale", field["scale"] <= 0.0, "is not positive"),
+             ("component_variance", field["component_variance"] <= 0.0, "is not positive")]
+    for name, bad, rule in rules:
+        where_bad = np.flatnonzero(bad)
+        if where_bad.size:
+            raise FormatError(f"{where}.{name} {rule} at index {int(where_bad[0])}")
+    for name, low, low_open in (("residual_variance", 0.0, True), ("distance_threshold", 0.0, False),
+                                ("quantile", 0.0, True)):
+        value = field[name]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
+                or (value <= low if low_open else value < low):
+            raise FormatError(f"{where}.{name} must be a finite number {'>' if low_open else '>='} {low:g}; "
+                              f"got {value!r}")
+    if field["quantile"] > 1.0:
+        raise FormatError(f"{where}.quantile must be at most 1; got {field['quantile']!r}")
+    n = field["n_samples"]
+    if isinstance(n, bool) or not isinstance(n, int) or n < 2:
+        raise FormatError(f"{where}.n_samples must be an integer >= 2; got {n!r}")
