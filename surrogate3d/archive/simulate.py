@@ -17,7 +17,6 @@ once, and no finished result is lost.
 
 import hashlib
 import inspect
-import math
 import os
 import socket
 import stat
@@ -27,14 +26,14 @@ from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
 
-import numba
 import numpy as np
 from tqdm.auto import tqdm
 
 from .._workers import WorkerPool
 from ..core.data_model import SOLVERS
 from ..errors import OutputError, ParameterError, Surrogate3DError
-from ..solvers.montecarlo import SOLAR_CONSTANT, _check_float, _check_int, solve_monte_carlo
+from ..core.validation import check_integer
+from ..solvers.montecarlo import SOLAR_CONSTANT, check_monte_carlo_options, solve_monte_carlo
 from ..solvers.sun import check_sun
 from .leftovers import remove_leftovers
 from .locking import ArchiveLock
@@ -93,8 +92,7 @@ def check_run_options(photons, n_jobs, solver_options):
         An option is outside its range (named as the parameter of :func:`simulate_archive`)
         or unknown.
     """
-    photons = _check_int("photons", photons, 1)
-    n_jobs = _check_int("n_jobs", n_jobs, 1)
+    n_jobs = check_integer("n_jobs", n_jobs, 1)
     solver_options = dict(solver_options)
     known = {k: solver_options.pop(k) for k in list(solver_options) if k in RunOptions.__dataclass_fields__}
     unknown = sorted(set(solver_options) - set(_PASSED_THROUGH))
@@ -102,13 +100,11 @@ def check_run_options(photons, n_jobs, solver_options):
         raise ParameterError(f"unknown solver option(s) {unknown or ['extra']}; known: "
                              f"{sorted(set(RunOptions.__dataclass_fields__) - {'extra'}) + _PASSED_THROUGH}")
     options = RunOptions(photons=photons, extra=solver_options, **known)
-    if options.batch_size is not None:
-        options.batch_size = _check_int("batch_size", options.batch_size, 1)
-    options.rays_per_column = _check_int("rays_per_column", options.rays_per_column, 1, 16)
-    if options.threads is not None:
-        options.threads = _check_int("threads", options.threads, 1, numba.config.NUMBA_NUM_THREADS)
-    options.solar_constant = _check_float("solar_constant", options.solar_constant, 0.0, math.inf,
-                                          low_open=True, high_open=True)
+    checked = check_monte_carlo_options(photons=options.photons, batch_size=options.batch_size,
+                                        rays_per_column=options.rays_per_column, threads=options.threads,
+                                        solar_constant=options.solar_constant)
+    for name, value in checked.items():
+        setattr(options, name, value)
     if not isinstance(options.per_band, (bool, np.bool_)):
         raise ParameterError(f"per_band must be true or false; got {options.per_band!r}")
     return options, n_jobs
@@ -421,7 +417,7 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
         work to do.
     """
     options, n_jobs = check_run_options(photons, n_jobs, solver_options)
-    seed = _check_int("seed", seed, 0, 2**63 - 1)
+    seed = check_monte_carlo_options(seed=seed)["seed"]
     if scheduler:
         scheduler = check_scheduler(scheduler)
     archive_dir = _check_archive_dir(archive_dir)

@@ -14,12 +14,28 @@ import math
 
 import numpy as np
 
+from ..errors import ParameterError
+from .validation import check_number
+
 #: Cells per block of rows in :func:`slant_sum` (a few float64 planes of this size fit in cache).
 _BLOCK_CELLS = 1 << 14
 
 #: Below this magnitude a direction component is taken as exactly zero (avoids
 #: spurious crossings from cos(90 deg) = 6e-17).
 _DIRECTION_EPS = 1e-12
+
+
+def check_solar_zenith_angle(value, name="solar_zenith_angle", error=ParameterError):
+    """The solar zenith angle [degree] as a float, in [0, 90): the sun above the horizon.
+
+    Examples
+    --------
+    >>> check_solar_zenith_angle(90.0)
+    Traceback (most recent call last):
+    ...
+    surrogate3d.errors.ParameterError: solar_zenith_angle must be in [0, 90); got 90.0
+    """
+    return check_number(name, value, 0.0, 90.0, high_open=True, error=error)
 
 
 def _crossings(s0, s1, u, spacing):

@@ -17,7 +17,6 @@ The fitted attributes are the contract with the coefficient exporter; they are
 documented in each class and in ``docs/methods/models-and-metrics.md``.
 """
 
-import math
 import numbers
 
 import numpy as np
@@ -26,6 +25,7 @@ from sklearn.ensemble import HistGradientBoostingRegressor
 from sklearn.utils import check_array
 from sklearn.utils.validation import check_is_fitted
 
+from ..core.validation import check_integer, check_number, fail, first_nonfinite
 from ..errors import ParameterError, ValidationError
 from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
 from ..runtime.ridge import near_constant
@@ -44,26 +44,6 @@ _SINGULAR_CUTOFF = 1e-12
 CLEAR_SKY_TOLERANCE = 1e-9
 
 
-def _check_real(name, value, low, high, *, low_open=False, high_open=False, integer=False):
-    """Raise ParameterError unless ``value`` is a (whole) number within the interval."""
-    kind = "an integer" if integer else "a finite number"
-    ok_type = (isinstance(value, numbers.Integral) if integer else isinstance(value, numbers.Real))
-    if isinstance(value, bool) or not ok_type or (not integer and not math.isfinite(value)):
-        ok = False
-    else:
-        ok = (value > low if low_open else value >= low) and (value < high if high_open else value <= high)
-    if not ok:
-        interval = (("(" if low_open else "[") + f"{_number(low)}, {_number(high)}"
-                    + (")" if high_open or math.isinf(high) else "]"))
-        raise ParameterError(f"{name} must be {kind} in {interval}; got {value!r}")
-
-
-def _number(value):
-    if math.isinf(value):
-        return "inf"
-    return str(int(value)) if float(value).is_integer() else f"{value:g}"
-
-
 def _check_bool(name, value):
     if not isinstance(value, (bool, np.bool_)):
         raise ParameterError(f"{name} must be true or false; got {value!r}")
@@ -76,12 +56,11 @@ def _as_matrix(name, values, min_samples=1, ensure_2d=True):
     """
     raw = np.asarray(values)  # sparse matrices become 0-d object arrays, left to check_array
     if raw.dtype.kind in "fiu" and raw.ndim in (1, 2):
-        bad = ~np.isfinite(raw)
-        if bad.any():
-            i, *j = np.argwhere(bad)[0]
+        found = first_nonfinite(raw)
+        if found is not None:
+            (i, *j), count = found
             where = f"sample {i}" + (f", column {j[0]}" if j else "")
-            raise ValidationError(f"{name} contains NaN or inf at {where}: {float(raw[(i, *j)])!r} "
-                                  f"({int(bad.sum())} values in all)")
+            fail(name, "free of NaN and inf", raw[(i, *j)], where, count, ValidationError)
     try:
         return check_array(values, dtype=np.float64, ensure_2d=ensure_2d, ensure_min_samples=min_samples,
                            input_name=name)
@@ -379,7 +358,7 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.target_transforms = target_transforms
 
     def _check_parameters(self):
-        _check_real("alpha", self.alpha, 0.0, math.inf)
+        check_number("alpha", self.alpha, 0.0)
         _check_bool("interactions", self.interactions)
         _check_feature_list("interaction_features", self.interaction_features, 2)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
@@ -565,12 +544,12 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.target_transforms = target_transforms
 
     def _check_parameters(self):
-        _check_real("max_iter", self.max_iter, 1, math.inf, integer=True)
-        _check_real("learning_rate", self.learning_rate, 0.0, 1.0, low_open=True)
-        _check_real("max_leaf_nodes", self.max_leaf_nodes, 2, math.inf, integer=True)
-        _check_real("min_samples_leaf", self.min_samples_leaf, 1, math.inf, integer=True)
-        _check_real("l2_regularization", self.l2_regularization, 0.0, math.inf)
-        _check_real("random_state", self.random_state, 0, 2**32 - 1, integer=True)
+        check_integer("max_iter", self.max_iter, 1)
+        check_number("learning_rate", self.learning_rate, 0.0, 1.0, low_open=True)
+        check_integer("max_leaf_nodes", self.max_leaf_nodes, 2)
+        check_integer("min_samples_leaf", self.min_samples_leaf, 1)
+        check_number("l2_regularization", self.l2_regularization, 0.0)
+        check_integer("random_state", self.random_state, 0, 2**32 - 1)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
         check_transforms(self.target_transforms)
 

@@ -9,6 +9,7 @@ together.
 import numpy as np
 
 from ..core.pairs_table import DOMAIN_LABELS
+from ..core.validation import fail, first_nonfinite
 from ..errors import ValidationError
 
 
@@ -41,11 +42,7 @@ def feature_matrix(ds, names, needed_by="the model"):
     """
     check_has_features(ds, names, needed_by)
     X = np.asarray(ds["features"].sel(feature=list(names)).values, dtype=np.float64)
-    bad = ~np.isfinite(X)
-    if bad.any():
-        i, j = np.argwhere(bad)[0]
-        raise ValidationError(f"feature {names[j]} is not finite at sample {i} (scene "
-                              f"{str(ds['scene'].values[i])!r}): {float(X[i, j])} ({int(bad.sum())} values in all)")
+    _check_finite_samples(ds, X, [f"feature {name}" for name in names])
     return X
 
 
@@ -62,12 +59,18 @@ def target_matrix(ds, targets, variable="target_value"):
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing}; it has {target_names(ds)}")
     Y = np.asarray(ds[variable].sel(target=list(targets)).values, dtype=np.float64)
-    bad = ~np.isfinite(Y) if variable == "target_value" else np.zeros(Y.shape, dtype=bool)
-    if bad.any():
-        i, j = np.argwhere(bad)[0]
-        raise ValidationError(f"{variable} of target {targets[j]} is not finite at sample {i} (scene "
-                              f"{str(ds['scene'].values[i])!r}): {float(Y[i, j])} ({int(bad.sum())} values in all)")
+    if variable == "target_value":
+        _check_finite_samples(ds, Y, [f"{variable} of target {target}" for target in targets])
     return Y
+
+
+def _check_finite_samples(ds, matrix, column_names):
+    """ValidationError at the first non-finite value of a (sample, column) matrix, naming its sample and scene."""
+    found = first_nonfinite(matrix)
+    if found is not None:
+        (i, j), count = found
+        fail(column_names[j], "finite", matrix[i, j], f"sample {i}, scene {str(ds['scene'].values[i])!r}", count,
+             ValidationError)
 
 
 def scene_labels(ds):

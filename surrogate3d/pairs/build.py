@@ -21,6 +21,7 @@ from ..archive.netcdf import read_scene, scene_files
 from ..archive.results import completed, select_result
 from ..core.data_model import COLUMN_FLUXES
 from ..core.run_result import stderr_name
+from ..core.validation import check_number
 from ..baselines import NonlocalIndependentPixel, TiltedIndependentColumn
 from ..baselines.nonlocal_pixel import radiative_smoothing_scale
 from ..errors import FormatError, ParameterError
@@ -62,15 +63,7 @@ _TARGET_VARS = {
 
 def _check_resolutions(host_resolutions):
     values = [host_resolutions] if np.isscalar(host_resolutions) else list(host_resolutions)
-    out = []
-    for value in values:
-        try:
-            v = float(value)
-        except (TypeError, ValueError):
-            v = math.nan
-        if not (math.isfinite(v) and v > 0):
-            raise ParameterError(f"host_resolutions must be positive host column sizes in m; got {value!r}")
-        out.append(v)
+    out = [check_number("host_resolutions", value, 0.0, None, low_open=True) for value in values]
     if not out:
         raise ParameterError("host_resolutions is empty; give at least one host column size in m, e.g. 1000")
     if len(set(out)) != len(out):

@@ -46,8 +46,9 @@ import math
 import numpy as np
 
 from ..errors import ValidationError
-from ..core.slant_path import area_path_weights, gather_layers, path_weights, slant_sum
+from ..core.slant_path import area_path_weights, check_solar_zenith_angle, gather_layers, path_weights, slant_sum
 from ..core.data_model import TARGETS
+from ..core.validation import check_array
 
 #: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
 INDEPENDENT_COLUMN_FLUXES = TARGETS
@@ -737,7 +738,8 @@ STAIRCASE_TO_EUCLIDEAN = math.pi / 4.0
 
 
 def _vertical_blocks(fields):
-    """Blocks of each host column's own layers (flat), ``loose``, the in-cloud relative variance and overlap exponent."""
+    """Blocks of each host column's own layers (flat), ``loose``, the in-cloud relative variance and
+    overlap exponent."""
     def compute():
         fraction = fields["layer_cloud_fraction"]
         blocks, loose = _blocks_list(fraction, _cloud_layers(fields))
@@ -745,7 +747,8 @@ def _vertical_blocks(fields):
         clear = np.ones(n)
         for _, index, cover, _, _ in blocks:
             clear[index] *= 1.0 - cover
-        gamma = overlap_exponent(fields["total_cloud_fraction"], clear.reshape(np.shape(fields["total_cloud_fraction"])))
+        total = fields["total_cloud_fraction"]
+        gamma = overlap_exponent(total, clear.reshape(np.shape(total)))
         gamma = gamma.reshape(n)
         v = _relative_variance_of_blocks(fields["column_optical_depth_std"], blocks, n, gamma)
         return blocks, loose, v, gamma
@@ -1122,9 +1125,7 @@ def validate_host_fields(fields, keys=None):
     for key in ("dx", "dy"):
         if float(fields[key]) <= 0.0:
             raise ValidationError(f"host_fields[{key!r}] (host column size in m) must be positive; got {fields[key]!r}")
-    zenith = float(fields["solar_zenith_angle"])
-    if not 0.0 <= zenith < 90.0:
-        raise ValidationError(f"host_fields['solar_zenith_angle'] must be in [0, 90) degree; got {zenith!r}")
+    check_solar_zenith_angle(fields["solar_zenith_angle"], "host_fields['solar_zenith_angle']", ValidationError)
     shape2d = None
     for key in sorted(k for k in fields if _is_plane_key(k)):
         value = np.asarray(fields[key])
@@ -1160,11 +1161,8 @@ def validate_host_fields(fields, keys=None):
         lowest, highest = _min_max(value) if value.size else (low, high)
         if np.isfinite(lowest) and np.isfinite(highest) and lowest >= low and highest <= high:
             continue
-        bad = ~np.isfinite(value) | (value < low) | (value > high)
-        if bad.any():
-            idx = tuple(int(i) for i in np.argwhere(bad)[0])
-            raise ValidationError(f"host_fields[{key!r}] is not finite or out of range at index {idx}: "
-                                  f"{float(value[idx])!r}")
+        check_array(f"host_fields[{key!r}]", value, None if np.isinf(low) else low, None if np.isinf(high) else high,
+                    error=ValidationError)
     return tuple(int(n) for n in shape2d)
 
 

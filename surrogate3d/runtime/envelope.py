@@ -25,8 +25,9 @@ weigh most.
 
 The envelope's arrays are rounded to single precision (ranges outward, so every training
 column stays inside) before the threshold is measured with them: seven digits are more
-than a flag needs, and the rounded doubles compress to half the size in the JSON twin.  A column whose clear-sky gate holds is never flagged: its zero correction
-is a physical rule, not an extrapolation.  A missing (NaN) feature is outside.
+than a flag needs, and the rounded doubles compress to half the size in the JSON twin.  A
+column whose clear-sky gate holds is never flagged: its zero correction is a physical rule,
+not an extrapolation.  A missing (NaN) feature is outside.
 
 ``docs/export-format.md`` stores the fields; ``docs/methods/models-and-metrics.md``
 gives the formula and how often held-out and left-out columns are flagged.
@@ -40,6 +41,7 @@ import numpy as np
 from ..core.coefficient_format import ENVELOPE_ARRAYS as ARRAYS
 from ..core.coefficient_format import ENVELOPE_FIELD
 from ..core.coefficient_format import ENVELOPE_SCALARS as SCALARS
+from ..core.validation import check_integer, check_number
 from ..errors import ValidationError
 from .ridge import near_constant
 
@@ -185,10 +187,8 @@ class TrainingEnvelope:
         if X.ndim != 2 or X.shape[0] < 2 or X.shape[1] < 1 or not np.all(np.isfinite(X)):
             raise ValidationError(f"the training envelope needs a finite (n_sample >= 2, n_feature >= 1) matrix; "
                                   f"got shape {X.shape}")
-        if isinstance(n_components, bool) or not isinstance(n_components, int) or n_components < 1:
-            raise ValidationError(f"n_components must be an integer >= 1; got {n_components!r}")
-        if not 0.0 < quantile <= 1.0:
-            raise ValidationError(f"quantile must be in (0, 1]; got {quantile!r}")
+        check_integer("n_components", n_components, 1, error=ValidationError)
+        check_number("quantile", quantile, 0.0, 1.0, low_open=True, error=ValidationError)
         center = X.mean(axis=0)
         scale = X.std(axis=0)
         scale[near_constant(center, scale)] = 1.0
@@ -279,7 +279,8 @@ class TrainingEnvelope:
 
     @classmethod
     def from_dict(cls, field):
-        """Envelope from a checked ``training_envelope`` field (:func:`surrogate3d.core.coefficient_format.check_envelope_field`)."""
+        """Envelope from a checked ``training_envelope`` field
+        (:func:`surrogate3d.core.coefficient_format.check_envelope_field`)."""
         return cls(**{name: field[name] for name in (*ARRAYS, *SCALARS)})
 
 

@@ -17,6 +17,7 @@ from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
 from ..core.coefficient_format import check_document, clear_sky_gate, document_from_json, target_transforms
 from ..core.data_model import TARGETS
+from ..core.validation import fail, first_nonfinite
 from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
@@ -217,11 +218,11 @@ class CorrectionModel:
         if X.ndim != 2 or X.shape[1] != self.n_features:
             raise ValidationError(f"features must have shape (n_column, {self.n_features}) for model "
                                   f"{self.name!r}; got {X.shape}")
-        bad = ~np.isfinite(X)
-        if bad.any():
-            i, j = np.argwhere(bad)[0]
-            raise ValidationError(f"features is not finite at column {i}, feature {self.feature_names[j]!r}: "
-                                  f"{X[i, j]!r}")
+        found = first_nonfinite(X)
+        if found is not None:
+            (i, j), count = found
+            fail("features", "finite", X[i, j], f"column {i}, feature {self.feature_names[j]!r}", count,
+                 ValidationError)
         return X
 
     def host_features(self, host_fields):

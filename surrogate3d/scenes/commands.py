@@ -1,9 +1,9 @@
 """``surrogate3d scenes`` (generate scene files) and ``surrogate3d show`` (picture of a scene)."""
 
-import math
 import sys
 from pathlib import Path
 
+from ..core.validation import check_number
 from ..errors import ParameterError, Surrogate3DError
 
 #: Main-layer overrides: attribute, option, allowed range (low, high, low end open).
@@ -101,9 +101,7 @@ def _scene_set(args):
         value = _number(getattr(args, key), option, float)
         if value is None:
             continue
-        if not (math.isfinite(value) and (value > low if low_open else value >= low) and value <= high):
-            raise ParameterError(f"{option} must be in {'(' if low_open else '['}{low:g}, {high:g}]; got {value!r}")
-        overrides[key] = value
+        overrides[key] = check_number(option, value, low, high, low_open=low_open)
     for table in cfg.regimes:
         table.update(overrides)
         if count is not None:

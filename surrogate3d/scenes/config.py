@@ -13,6 +13,7 @@ import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
+from ..core.validation import check_integer
 from ..errors import FormatError, ParameterError
 from .draws import check_draws, contains_draw, draw_stream, is_draw, resolve
 from .generator import generate_scene
@@ -213,12 +214,6 @@ def _check_keys(table, allowed, where):
         raise ParameterError(f"{where} has unknown key {unknown[0]!r}; allowed: {', '.join(sorted(allowed))}")
 
 
-def _check_int(value, where, low, high):
-    if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
-        raise ParameterError(f"{where} must be an integer in [{low}, {high}]; got {value!r}")
-    return value
-
-
 def _check_albedo(value, where):
     """Albedo values (possibly drawn, possibly per band) in [0, 1], band tables naming known bands."""
     check_draws(value, where, 0.0, 1.0)
@@ -293,8 +288,8 @@ def parse_config(data, source="configuration"):
         if not isinstance(data["out"], str) or not data["out"]:
             raise ParameterError(f"{source}: out must be a directory name; got {data['out']!r}")
         cfg.out = data["out"]
-    cfg.seed = _check_int(data.get("seed", 0), f"{source}: seed", 0, 2 ** 62)
-    cfg.count = _check_int(data.get("count", 1), f"{source}: count", 1, 100000)
+    cfg.seed = check_integer(f"{source}: seed", data.get("seed", 0), 0, 2 ** 62)
+    cfg.count = check_integer(f"{source}: count", data.get("count", 1), 1, 100000)
     grid = data.get("grid", {})
     _check_keys(grid, GRID_KEYS, f"{source}: [grid]")
     cfg.grid = dict(grid)
@@ -315,9 +310,9 @@ def parse_config(data, source="configuration"):
         if table["name"] != "all" and table["name"] not in REGIMES:
             raise ParameterError(f"{where}: name must be one of {', '.join(REGIMES)} or 'all'; got {table['name']!r}")
         if "count" in table:
-            _check_int(table["count"], f"{where} count", 1, 100000)
+            check_integer(f"{where} count", table["count"], 1, 100000)
         if "seed" in table:
-            _check_int(table["seed"], f"{where} seed", 0, 2 ** 62)
+            check_integer(f"{where} seed", table["seed"], 0, 2 ** 62)
         layers = table.get("layers", [])
         if not isinstance(layers, list):
             raise ParameterError(f"{where} layers must be an array of tables; got {layers!r}")

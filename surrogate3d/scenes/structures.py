@@ -21,8 +21,8 @@ from dataclasses import dataclass, field, fields
 
 import numpy as np
 
+from ..core.validation import check_number
 from ..errors import ParameterError
-from ._ranges import check_number as _check
 from .random_fields import bounded_cascade, gaussian_random_field
 
 
@@ -141,11 +141,11 @@ class ClusteredField:
     def validate(self, label="clustered structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "cluster_spacing", self.cluster_spacing, 0.0, 1e6, low_open=True)
-        _check(p, "cluster_radius", self.cluster_radius, 0.0, 1e6, low_open=True)
-        _check(p, "clouds_per_cluster", self.clouds_per_cluster, 1.0, 1000.0)
-        _check(p, "cloud_radius", self.cloud_radius, 0.0, 1e5, low_open=True)
-        _check(p, "roughness", self.roughness, 0.0, 10.0)
+        check_number(p + "cluster_spacing", self.cluster_spacing, 0.0, 1e6, low_open=True)
+        check_number(p + "cluster_radius", self.cluster_radius, 0.0, 1e6, low_open=True)
+        check_number(p + "clouds_per_cluster", self.clouds_per_cluster, 1.0, 1000.0)
+        check_number(p + "cloud_radius", self.cloud_radius, 0.0, 1e5, low_open=True)
+        check_number(p + "roughness", self.roughness, 0.0, 10.0)
         return self
 
     def cloud_positions(self, shape, dx, rng):
@@ -268,12 +268,12 @@ class StreetField:
     def validate(self, label="street structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "roll_wavelength", self.roll_wavelength, 0.0, 1e6, low_open=True)
-        _check(p, "street_length", self.street_length, 0.0, 1e7, low_open=True)
-        _check(p, "bandwidth", self.bandwidth, 0.0, 2.0, low_open=True)
+        check_number(p + "roll_wavelength", self.roll_wavelength, 0.0, 1e6, low_open=True)
+        check_number(p + "street_length", self.street_length, 0.0, 1e7, low_open=True)
+        check_number(p + "bandwidth", self.bandwidth, 0.0, 2.0, low_open=True)
         if self.direction is not None:
-            _check(p, "direction", self.direction, 0.0, 180.0, high_open=True)
-        _check(p, "irregularity", self.irregularity, 0.0, 1.0)
+            check_number(p + "direction", self.direction, 0.0, 180.0, high_open=True)
+        check_number(p + "irregularity", self.irregularity, 0.0, 1.0)
         return self
 
     def realise(self, shape, dx, rng):
@@ -362,9 +362,9 @@ class CellularField:
         p = f"{label}: "
         if self.cell_type not in ("closed", "open"):
             raise ParameterError(f"{p}cell_type must be 'closed' or 'open'; got {self.cell_type!r}")
-        _check(p, "cell_diameter", self.cell_diameter, 0.0, 1e6, low_open=True)
-        _check(p, "regularity", self.regularity, 0.0, MAX_CELL_REGULARITY)
-        _check(p, "roughness", self.roughness, 0.0, 10.0)
+        check_number(p + "cell_diameter", self.cell_diameter, 0.0, 1e6, low_open=True)
+        check_number(p + "regularity", self.regularity, 0.0, MAX_CELL_REGULARITY)
+        check_number(p + "roughness", self.roughness, 0.0, 10.0)
         return self
 
     def centres(self, shape, dx, rng):
@@ -510,8 +510,8 @@ class CascadeField:
     def validate(self, label="cascade structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "variability", self.variability, 0.0, 1.0, low_open=True, high_open=True)
-        _check(p, "hurst", self.hurst, 0.0, 1.0, low_open=True)
+        check_number(p + "variability", self.variability, 0.0, 1.0, low_open=True, high_open=True)
+        check_number(p + "hurst", self.hurst, 0.0, 1.0, low_open=True)
         return self
 
     def realise(self, shape, dx, rng):

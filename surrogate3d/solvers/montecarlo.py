@@ -14,6 +14,7 @@ import numpy as np
 
 from .. import __version__
 from ..core.run_result import make_run_result
+from ..core.validation import check_integer, check_number
 from ..errors import ParameterError
 from ..scenes.model import spacing
 from ..scenes.validation import validate_scene
@@ -34,29 +35,56 @@ MAX_CLEAR_CUBE = 14
 RAY_TABLE_LAYERS = 4
 
 
-def _check_int(name, value, low, high=None):
-    try:
-        ok = int(value) == value
-    except (TypeError, ValueError, OverflowError):
-        ok = False
-    if not ok or value < low or (high is not None and value > high):
-        rng = f"[{low}, {high}]" if high is not None else f">= {low}"
-        raise ParameterError(f"{name} must be an integer {rng}; got {value!r}")
-    return int(value)
+#: Declared ranges of the integer options of :func:`solve_monte_carlo`: name -> (low, high).
+_INTEGER_OPTIONS = {"photons": (1, None), "seed": (0, 2**63 - 1), "batch_size": (1, None), "rays_per_column": (1, 16),
+                    "threads": (1, numba.config.NUMBA_NUM_THREADS), "max_scattering_events": (1, None),
+                    "majorant_block": (1, 64), "clear_cube": (0, MAX_CLEAR_CUBE)}
+#: Declared ranges of its real options: name -> (low, high, low_open).
+_REAL_OPTIONS = {"roulette_weight": (0.0, 1.0, True), "solar_constant": (0.0, None, True)}
+#: Options whose None stands for a default chosen later.
+_DEFAULTED = ("batch_size", "threads")
 
 
-def _check_float(name, value, low, high, low_open=False, high_open=False):
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        v = math.nan
-    lo_ok = v > low if low_open else v >= low
-    hi_ok = v < high if high_open else v <= high
-    if not (math.isfinite(v) and lo_ok and hi_ok):
-        lb = "(" if low_open else "["
-        hb = ")" if high_open else "]"
-        raise ParameterError(f"{name} must be in {lb}{low}, {high}{hb}; got {value!r}")
-    return v
+def check_monte_carlo_options(**options):
+    """Options of :func:`solve_monte_carlo` checked against their declared ranges, before any work.
+
+    Parameters
+    ----------
+    **options
+        Any of ``photons``, ``seed``, ``batch_size``, ``rays_per_column``, ``threads``,
+        ``max_scattering_events``, ``majorant_block``, ``clear_cube``, ``roulette_weight`` and
+        ``solar_constant``; ``batch_size`` and ``threads`` may be None (their defaults).
+
+    Returns
+    -------
+    dict
+        The options as int or float.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        An option is outside its range (named as the parameter) or not one of these.
+
+    Examples
+    --------
+    >>> check_monte_carlo_options(photons=2000, rays_per_column=17)
+    Traceback (most recent call last):
+    ...
+    surrogate3d.errors.ParameterError: rays_per_column must be an integer in [1, 16]; got 17
+    """
+    checked = {}
+    for name, value in options.items():
+        if value is None and name in _DEFAULTED:
+            checked[name] = None
+        elif name in _INTEGER_OPTIONS:
+            checked[name] = check_integer(name, value, *_INTEGER_OPTIONS[name])
+        elif name in _REAL_OPTIONS:
+            low, high, low_open = _REAL_OPTIONS[name]
+            checked[name] = check_number(name, value, low, high, low_open=low_open)
+        else:
+            raise ParameterError(f"{name} is not an option of solve_monte_carlo; known: "
+                                 f"{sorted({**_INTEGER_OPTIONS, **_REAL_OPTIONS})}")
+    return checked
 
 
 @contextlib.contextmanager
@@ -306,9 +334,10 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     roulette_weight : float
         Photon weight, relative to the starting weight, below which a photon's survival of
         a collision or a surface hit is decided by Russian roulette instead of reducing its
-        weight (its expected absorption is tallied either way); in (0, 1].  The default 0.3 stops tracing photons of small
-        weight after a reflection by a dark surface: on the shared benchmark scene it needs
-        about 10 % less CPU time than 0.1 for the same noise in the surface fluxes.
+        weight (its expected absorption is tallied either way); in (0, 1].  The default 0.3
+        stops tracing photons of small weight after a reflection by a dark surface: on the
+        shared benchmark scene it needs about 10 % less CPU time than 0.1 for the same noise
+        in the surface fluxes.
     max_scattering_events : int
         Safety cap per photon; a photon reaching it is absorbed where it is (counted in the
         metadata as ``scattering_events``).
@@ -347,17 +376,14 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     """
     validate_scene(scene)
     zenith, azimuth = check_sun(solar_zenith_angle, solar_beam_azimuth)
-    photons = _check_int("photons", photons, 1)
-    seed = _check_int("seed", seed, 0, 2**63 - 1)
-    batch_size = default_batch_size(photons) if batch_size is None else _check_int("batch_size", batch_size, 1)
-    nsub = _check_int("rays_per_column", rays_per_column, 1, 16)
-    roulette = _check_float("roulette_weight", roulette_weight, 0.0, 1.0, low_open=True)
-    max_events = _check_int("max_scattering_events", max_scattering_events, 1)
-    solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
-    block = _check_int("majorant_block", majorant_block, 1, 64)
-    clear_cube = _check_int("clear_cube", clear_cube, 0, MAX_CLEAR_CUBE)
-    if threads is not None:
-        threads = _check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS)
+    checked = check_monte_carlo_options(
+        photons=photons, seed=seed, batch_size=batch_size, rays_per_column=rays_per_column, threads=threads,
+        roulette_weight=roulette_weight, max_scattering_events=max_scattering_events, solar_constant=solar_constant,
+        majorant_block=majorant_block, clear_cube=clear_cube)
+    photons, seed, threads, solar_constant = (checked[k] for k in ("photons", "seed", "threads", "solar_constant"))
+    batch_size = default_batch_size(photons) if batch_size is None else checked["batch_size"]
+    nsub, roulette = checked["rays_per_column"], checked["roulette_weight"]
+    max_events, block, clear_cube = checked["max_scattering_events"], checked["majorant_block"], checked["clear_cube"]
 
     started = time.perf_counter()
     ext, ssa, asym, alb = _arrays(scene)

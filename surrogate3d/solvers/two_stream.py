@@ -27,7 +27,8 @@ from ..core.data_model import COLUMN_FLUXES
 from ..core.run_result import make_run_result
 from ..errors import ParameterError
 from ..scenes import layer_thickness, validate_scene
-from ._array_checks import as_float_array, broadcast_to_shape, check_range
+from ..core.validation import check_array
+from ._array_checks import as_float_array, broadcast_to_shape
 from .heating import heating_rate
 from .sun import check_sun
 
@@ -180,10 +181,10 @@ def _checked_optics(tau, ssa, g, mu0):
     ssa = as_float_array("ssa", ssa)
     g = as_float_array("g", g)
     mu0 = as_float_array("mu0", mu0)
-    check_range("tau", tau, 0.0, None)
-    check_range("ssa", ssa, 0.0, 1.0)
-    check_range("g", g, -1.0, 1.0, low_open=True, high_open=True)
-    check_range("mu0", mu0, 0.0, 1.0, low_open=True)
+    check_array("tau", tau, 0.0, None)
+    check_array("ssa", ssa, 0.0, 1.0)
+    check_array("g", g, -1.0, 1.0, low_open=True, high_open=True)
+    check_array("mu0", mu0, 0.0, 1.0, low_open=True)
     return tau, ssa, g, mu0
 
 
@@ -316,7 +317,7 @@ def delta_eddington(tau, ssa, g, mu0, surface_albedo):
     g = broadcast_to_shape("g", g, shape, "tau's shape")
     mu0 = broadcast_to_shape("mu0", mu0, lead, "the leading (column) shape of tau")
     albedo = as_float_array("surface_albedo", surface_albedo)
-    check_range("surface_albedo", albedo, 0.0, 1.0)
+    check_array("surface_albedo", albedo, 0.0, 1.0)
     albedo = broadcast_to_shape("surface_albedo", albedo, lead, "the leading (column) shape of tau")
 
     ncol = int(np.prod(lead, dtype=np.int64))

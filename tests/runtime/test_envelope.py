@@ -163,8 +163,9 @@ def _set_first(field, name, value):
     (lambda e: e.pop("quantile"), "must be an object with exactly"),
     (lambda e: e.update(distance_threshold=-1.0), "distance_threshold must be a finite number >= 0"),
     (lambda e: e.update(n_samples=1), "n_samples must be an integer >= 2"),
-    (lambda e: _set_first(e, "scale", 0.0), "training_envelope.scale is not positive at index 0"),
-    (lambda e: _set_first(e, "feature_max", -1e300), "feature_max is below feature_min at index 0"),
+    (lambda e: _set_first(e, "scale", 0.0), r"training_envelope.scale must be > 0; got 0.0 \(at index 0\)"),
+    (lambda e: _set_first(e, "feature_max", -1e300),
+     r"feature_max must be >= feature_min; got -1e\+300 \(at index 0\)"),
 ], ids=["keys", "threshold", "samples", "scale", "range"])
 def test_malformed_envelope_is_refused(built, tmp_path, change, message):
     content = json.loads((built["export_dir"] / "ridge.coefficients.json").read_text())

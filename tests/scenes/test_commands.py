@@ -107,7 +107,7 @@ def scene_dir(tmp_path_factory):
     (["scenes", "--out", "{d}", "--regime", "overcast", "--optical-depth", "-2"], "--optical-depth must be in (0"),
     (["scenes", "--out", "{d}", "--regime", "overcast", "--count", "0"], "--count must be at least 1"),
     (["scenes", "--out", "{d}", "--regime", "overcast", "--seed", "-4"], "--seed must be >= 0"),
-    (["scenes", "--out", "{d}", "--regime", "overcast", "--nx", "0"], "nx must be in [1, 4096]"),
+    (["scenes", "--out", "{d}", "--regime", "overcast", "--nx", "0"], "nx must be an integer in [1, 4096]"),
     (["scenes", "--out", "{d}", "--regime", "overcast", "--top", "100"], "at or below the cloud base"),
     (["scenes", "--out", "{d}", "--regime", "clear", "--optical-depth", "3"], "has no cloud layer"),
     (["scenes", "--out", "{d}"], "no regime given"),
