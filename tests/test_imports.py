@@ -147,7 +147,8 @@ def _components(graph):
 
 
 @pytest.mark.parametrize("module", ["surrogate3d.runtime", "surrogate3d.core.data_model",
-                                    "surrogate3d.core.coefficient_format", "surrogate3d.core.validation"])
+                                    "surrogate3d.core.coefficient_format", "surrogate3d.core.validation",
+                                    "surrogate3d.core.config"])
 def test_numpy_only_modules_load_only_numpy(module):
     # The runtime runs inside host models: numpy and the standard library only (common
     # practice for code embedded in other programs); what it builds on must be as light.

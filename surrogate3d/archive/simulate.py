@@ -30,10 +30,11 @@ import numpy as np
 from tqdm.auto import tqdm
 
 from .._workers import WorkerPool
+from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
 from ..core.data_model import SOLVERS
 from ..errors import OutputError, ParameterError, Surrogate3DError
 from ..core.validation import check_integer
-from ..solvers.montecarlo import SOLAR_CONSTANT, check_monte_carlo_options, solve_monte_carlo
+from ..solvers.montecarlo import check_monte_carlo_options, solve_monte_carlo
 from ..solvers.sun import check_sun
 from .leftovers import remove_leftovers
 from .locking import ArchiveLock
@@ -67,7 +68,7 @@ class Task:
 class RunOptions:
     """Solver options shared by every task of a run (see :func:`simulate_archive`)."""
 
-    photons: int = 200_000
+    photons: int = SIMULATE_PHOTONS
     batch_size: int = None
     rays_per_column: int = 1
     per_band: bool = False
@@ -373,7 +374,7 @@ def _workers(options, n_jobs, scheduler, n_tasks):
     return WorkerPool(min(n_jobs, n_tasks), partial(run_task, options=options), describe=str)
 
 
-def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, photons=200_000, seed=0,
+def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, photons=SIMULATE_PHOTONS, seed=0,
                      n_jobs=1, scheduler=None, overwrite=False, quiet=False, **solver_options):
     """Run the benchmark solvers on every scene of an archive and store the results.
 

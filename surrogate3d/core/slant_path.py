@@ -15,10 +15,8 @@ import math
 import numpy as np
 
 from ..errors import ParameterError
+from .config import CELL_BLOCK
 from .validation import check_number
-
-#: Cells per block of rows in :func:`slant_sum` (a few float64 planes of this size fit in cache).
-_BLOCK_CELLS = 1 << 14
 
 #: Below this magnitude a direction component is taken as exactly zero (avoids
 #: spurious crossings from cos(90 deg) = 6e-17).
@@ -278,7 +276,7 @@ def slant_sum(layer_values, weights_per_layer):
     # total += np.roll(plane, (-oy, -ox), axis=(0, 1)) for each offset, done one block of
     # output rows at a time so that the planes stay in the cache; every cell still adds the
     # same terms in the same order.
-    rows = max(1, _BLOCK_CELLS // nx)
+    rows = max(1, CELL_BLOCK // nx)
     for start in range(0, ny, rows):
         out = total[start:start + rows]
         plane, term = np.empty_like(out), np.empty_like(out)

@@ -39,8 +39,8 @@ import numpy as np
 
 from .._atomic import write_text_atomic
 from ..errors import FormatError, ValidationError
+from ..core.config import NEAR_CONSTANT
 from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate, target_transforms
-from ..runtime.ridge import NEAR_CONSTANT
 
 #: Numbers per line in the data files.
 _PER_LINE = 6

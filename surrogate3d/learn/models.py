@@ -25,6 +25,7 @@ from sklearn.ensemble import HistGradientBoostingRegressor
 from sklearn.utils import check_array
 from sklearn.utils.validation import check_is_fitted
 
+from ..core.config import CLEAR_SKY_TOLERANCE, SINGULAR_CUTOFF
 from ..core.validation import check_integer, check_number, fail, first_nonfinite
 from ..errors import ParameterError, ValidationError
 from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
@@ -32,16 +33,6 @@ from ..runtime.ridge import near_constant
 from ..core.data_model import TARGETS
 from .pairs_table import feature_matrix, feature_names, target_matrix
 from .transforms import apply_transforms, check_scales, check_transforms, offsets_and_scales, resolve_transforms
-
-#: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
-_SINGULAR_CUTOFF = 1e-12
-
-#: Largest magnitude of a clear-sky gate feature that still counts as zero.  The gate
-#: features of the recipes (cloud fraction, neighbourhood cloud fraction, slant minus
-#: vertical optical depth) are exactly 0 in clear sky up to round-off, about 1e-16 of
-#: the clear-sky optical depth; 1e-9 is far above that and far below any cloud that
-#: matters radiatively.
-CLEAR_SKY_TOLERANCE = 1e-9
 
 
 def _check_bool(name, value):
@@ -455,7 +446,7 @@ def _ridge_solve(T, Y, alpha, weights=None):
     if alpha > 0:
         shrink = s / (s * s + alpha)
     else:
-        kept = s > _SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
+        kept = s > SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
         shrink = np.where(kept, 1.0 / np.where(kept, s, 1.0), 0.0)
     coef = (Vt.T @ (shrink[:, None] * (U.T @ (root * (Y - target_mean))))).T
     return coef, target_mean - coef @ term_mean

@@ -14,6 +14,7 @@ import json
 import numpy as np
 import xarray as xr
 
+from ..core.config import SOLAR_CONSTANT
 from ..core.data_model import TARGETS
 
 #: Feature names of the synthetic tables, with units.
@@ -104,7 +105,7 @@ def true_correction(features):
 
 def make_synthetic_pairs(regimes=(("sparse", 0.2), ("dense", 0.6)), seeds_per_regime=4,
                          host_grids=((8, 1000.0), (4, 2000.0)), solar_zenith_angles=(20.0, 45.0, 65.0),
-                         noise=0.004, seed=0, solar_constant=1361.0):
+                         noise=0.004, seed=0, solar_constant=SOLAR_CONSTANT):
     """A training-pair table with a known correction and known Monte Carlo noise.
 
     Parameters

@@ -48,6 +48,7 @@ import numpy as np
 from ..errors import ValidationError
 from ..core.slant_path import area_path_weights, check_solar_zenith_angle, gather_layers, path_weights, slant_sum
 from ..core.data_model import TARGETS
+from ..core.config import CELL_BLOCK
 from ..core.validation import check_array
 
 #: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
@@ -65,9 +66,6 @@ _ALLOWED_RANGE = {**{key: (0.0, np.inf) for key in ("layer_optical_depth", "laye
                                                     "column_optical_depth_std", "cloud_edge_length")},
                   **{key: (0.0, 1.0) for key in ("layer_cloud_fraction", "total_cloud_fraction", "surface_albedo")}}
 
-
-#: Cells per block of rows in the stencils that work block by block (fits in cache).
-_BLOCK_CELLS = 1 << 14
 
 
 def _is_plane_key(key):
@@ -208,7 +206,7 @@ def _distance_to(targets, dx, dy, reach):
     dist2 = row2.copy()
     padded = np.concatenate([row2[ny - ky:], row2, row2[:ky]], axis=0)
     # Column pass one block of rows at a time, so the rows it reads stay in the cache.
-    rows = max(1, _BLOCK_CELLS // nx)
+    rows = max(1, CELL_BLOCK // nx)
     for start in range(0, ny, rows):
         out = dist2[start:start + rows]
         shifted = np.empty_like(out)
@@ -1169,7 +1167,7 @@ def validate_host_fields(fields, keys=None):
 def _min_max(value):
     """Minimum and maximum (NaN if any value is NaN), reading each cache-sized chunk once."""
     flat = value.reshape(-1)
-    chunk = 8 * _BLOCK_CELLS
+    chunk = 8 * CELL_BLOCK
     parts = [(part.min(), part.max()) for part in (flat[i:i + chunk] for i in range(0, flat.size, chunk))]
     lows, highs = zip(*parts)
     return np.min(lows), np.max(highs)

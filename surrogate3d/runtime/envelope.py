@@ -41,23 +41,10 @@ import numpy as np
 from ..core.coefficient_format import ENVELOPE_ARRAYS as ARRAYS
 from ..core.coefficient_format import ENVELOPE_FIELD
 from ..core.coefficient_format import ENVELOPE_SCALARS as SCALARS
+from ..core.config import ENVELOPE_COMPONENTS, ENVELOPE_QUANTILE, ENVELOPE_VARIANCE_FLOOR, ROW_BLOCK
 from ..core.validation import check_integer, check_number
 from ..errors import ValidationError
 from .ridge import near_constant
-
-#: Principal components whose own variance the distance keeps (at most the feature count).
-#: Six keep a ridge coefficient file of the default recipe (32 features) within 20 kB.
-COMPONENTS = 6
-
-#: Quantile of the training columns' distances beyond which a column is flagged.
-QUANTILE = 0.99
-
-#: Smallest variance (of standardized features) any direction is given, so that
-#: directions without training variance flag departures instead of dividing by zero.
-VARIANCE_FLOOR = 1e-6
-
-#: Columns per block of the checks: the block's arrays then stay in cache (twice as fast).
-_BLOCK_ROWS = 1024
 
 
 class EnvelopeWarning(UserWarning):
@@ -127,9 +114,9 @@ class TrainingEnvelope:
         Leading orthonormal eigenvectors of the correlation matrix of the standardized
         training features.
     component_variance : ndarray (n_component,)
-        Their eigenvalues, at least :data:`VARIANCE_FLOOR`.
+        Their eigenvalues, at least :data:`~surrogate3d.core.config.ENVELOPE_VARIANCE_FLOOR`.
     residual_variance : float
-        Mean of the other eigenvalues, at least :data:`VARIANCE_FLOOR`.
+        Mean of the other eigenvalues, at least :data:`~surrogate3d.core.config.ENVELOPE_VARIANCE_FLOOR`.
     distance_threshold : float
         The ``quantile`` of the training columns' distances.
     quantile : float
@@ -167,7 +154,7 @@ class TrainingEnvelope:
         self.n_samples = int(n_samples)
 
     @classmethod
-    def fit(cls, X, n_components=COMPONENTS, quantile=QUANTILE):
+    def fit(cls, X, n_components=ENVELOPE_COMPONENTS, quantile=ENVELOPE_QUANTILE):
         """The envelope of training columns.
 
         Parameters
@@ -200,8 +187,9 @@ class TrainingEnvelope:
         rest = eigenvalues[r:]
         envelope = cls(_single(X.min(axis=0), -np.inf), _single(X.max(axis=0), np.inf), _single(center),
                        _single(scale), _single(eigenvectors[:, :r].T),
-                       _single(np.maximum(eigenvalues[:r], VARIANCE_FLOOR), np.inf),
-                       max(float(rest.mean()) if rest.size else 0.0, VARIANCE_FLOOR), math.inf, quantile, X.shape[0])
+                       _single(np.maximum(eigenvalues[:r], ENVELOPE_VARIANCE_FLOOR), np.inf),
+                       max(float(rest.mean()) if rest.size else 0.0, ENVELOPE_VARIANCE_FLOOR), math.inf, quantile,
+                       X.shape[0])
         envelope.distance_threshold = float(np.quantile(envelope.distance(X), quantile))
         return envelope
 
@@ -223,8 +211,8 @@ class TrainingEnvelope:
         """
         X = np.asarray(X, dtype=np.float64)
         out = np.empty(X.shape[0])
-        for start in range(0, X.shape[0], _BLOCK_ROWS):
-            out[start:start + _BLOCK_ROWS] = self._distance_block(X[start:start + _BLOCK_ROWS])
+        for start in range(0, X.shape[0], ROW_BLOCK):
+            out[start:start + ROW_BLOCK] = self._distance_block(X[start:start + ROW_BLOCK])
         return out
 
     def _distance_block(self, X):
@@ -255,10 +243,10 @@ class TrainingEnvelope:
             raise ValidationError(f"features must have shape (n_column, {self.n_features}) for the training "
                                   f"envelope; got {X.shape}")
         outside_range = np.empty(X.shape[0], dtype=bool)
-        for start in range(0, X.shape[0], _BLOCK_ROWS):
-            block = X[start:start + _BLOCK_ROWS]
+        for start in range(0, X.shape[0], ROW_BLOCK):
+            block = X[start:start + ROW_BLOCK]
             # Written as "not inside" so that NaN, which compares false, is outside.
-            outside_range[start:start + _BLOCK_ROWS] = ~((block >= self.feature_min)
+            outside_range[start:start + ROW_BLOCK] = ~((block >= self.feature_min)
                                                          & (block <= self.feature_max)).all(axis=1)
         first = np.full(X.shape[0], -1)
         rows = np.flatnonzero(outside_range)

@@ -13,6 +13,9 @@ import numba
 import numpy as np
 
 from .. import __version__
+from ..core.config import (BATCHES, CLEAR_CELL_OPTICAL_THICKNESS, CLEAR_CUBE, MAJORANT_BLOCK, MAX_BATCH_SIZE,
+                           MAX_SCATTERING_EVENTS, MIN_BATCH_SIZE, MONTE_CARLO_PHOTONS, MONTE_CARLO_WAVE,
+                           PROGRESS_PHOTONS, RAY_TABLE_LAYERS, ROULETTE_WEIGHT, SOLAR_CONSTANT)
 from ..core.run_result import make_run_result
 from ..core.validation import check_integer, check_number
 from ..errors import ParameterError
@@ -22,17 +25,8 @@ from . import _geometry, _transport
 from ._records import Beam, Grid, Optics, Run, RunSums
 from .sun import beam_direction, check_sun
 
-#: Solar constant [W m-2] (Kopp and Lean 2011, Geophys. Res. Lett. 38, L01706).
-SOLAR_CONSTANT = 1361.0
-#: Batches per parallel wave; fixed so results do not depend on the thread count.
-WAVE = 8
-#: Cells per side of the majorant blocks, largest clear-air cube radius (blocks), and
-#: layers per block of the per-ray source tables.
-DEFAULT_MAJORANT_BLOCK = 1
-DEFAULT_CLEAR_CUBE = 8
 #: Largest clear-cube radius: a block code (radius + 1) takes four bits.
 MAX_CLEAR_CUBE = 14
-RAY_TABLE_LAYERS = 4
 
 
 #: Declared ranges of the integer options of :func:`solve_monte_carlo`: name -> (low, high).
@@ -100,8 +94,10 @@ def _numba_threads(threads):
 
 
 def default_batch_size(photons):
-    """Batch size giving at least 32 batches (for the standard errors), 1000 to 50000 photons."""
-    return int(min(50_000, max(1_000, math.ceil(photons / 32))))
+    """Batch size giving at least :data:`~surrogate3d.core.config.BATCHES` batches (for the standard
+    errors), from :data:`~surrogate3d.core.config.MIN_BATCH_SIZE` to
+    :data:`~surrogate3d.core.config.MAX_BATCH_SIZE` photons."""
+    return int(min(MAX_BATCH_SIZE, max(MIN_BATCH_SIZE, math.ceil(photons / BATCHES))))
 
 
 #: Result field -> the column sum of :data:`_transport.SUM_NAMES` it is the batch mean of.
@@ -113,9 +109,6 @@ _RESULT_TALLIES = {
     "atmosphere_absorption": "atmosphere_absorbed",
     "surface_absorption": "surface_absorbed",
 }
-
-#: Optical thickness across a cell below which a cell counts as clear air for cube steps.
-CLEAR_CELL_OPTICAL_THICKNESS = 0.01
 
 
 def cube_radius(clear, max_radius):
@@ -157,7 +150,7 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
     Blocks are ``bx x by`` columns (the largest divisors of nx and ny not above
     ``block``) by ``block`` layers (the top block may be thinner).  A cell is clear air
     where its optical thickness across its smallest size is at most
-    :data:`CLEAR_CELL_OPTICAL_THICKNESS`, and a block is clear where all its cells are.
+    :data:`~surrogate3d.core.config.CLEAR_CELL_OPTICAL_THICKNESS`, and a block is clear where all its cells are.
 
     Parameters
     ----------
@@ -288,11 +281,11 @@ def _arrays(scene):
             np.ascontiguousarray(scene["surface_albedo"].values, dtype=np.float64))
 
 
-def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=1_000_000, seed=0,
+def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=MONTE_CARLO_PHOTONS, seed=0,
                       independent_columns=False, batch_size=None, rays_per_column=1, threads=None,
-                      per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=DEFAULT_MAJORANT_BLOCK,
-                      clear_cube=DEFAULT_CLEAR_CUBE,
-                      roulette_weight=0.3, max_scattering_events=100_000, progress=None):
+                      per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=MAJORANT_BLOCK,
+                      clear_cube=CLEAR_CUBE,
+                      roulette_weight=ROULETTE_WEIGHT, max_scattering_events=MAX_SCATTERING_EVENTS, progress=None):
     """Broadband (and per-band) solar fluxes of a scene by Monte Carlo.
 
     Parameters
@@ -439,11 +432,11 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, kept, czi, cdf, column_direct)
         run = Run(not independent_columns, seed, batch_size, roulette, max_events)
         sums = RunSums(col_sum, spread, cell_fixed, scale)
-        chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
+        chunk = MONTE_CARLO_WAVE * max(1, PROGRESS_PHOTONS // (MONTE_CARLO_WAVE * batch_size))
         events = 0
         for first in range(0, n_batches, chunk):
             n = min(chunk, n_batches - first)
-            events += _transport.run_batches(first, n, WAVE, run, optics, grid, beam, slabs, sums)
+            events += _transport.run_batches(first, n, MONTE_CARLO_WAVE, run, optics, grid, beam, slabs, sums)
             if progress is not None:
                 progress((first + n) * batch_size)
         cell = cell_fixed.sum(axis=0) / (scale * n_batches)

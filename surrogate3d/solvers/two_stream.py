@@ -27,17 +27,11 @@ from ..core.data_model import COLUMN_FLUXES
 from ..core.run_result import make_run_result
 from ..errors import ParameterError
 from ..scenes import layer_thickness, validate_scene
+from ..core.config import SOLAR_CONSTANT, TWO_STREAM_BLOCK_COLUMNS
 from ..core.validation import check_array
 from ._array_checks import as_float_array, broadcast_to_shape
 from .heating import heating_rate
 from .sun import check_sun
-
-#: Total solar irradiance at 1 au [W m-2] (Kopp and Lean 2011).
-SOLAR_CONSTANT = 1361.0
-
-#: Columns solved together: large enough to amortize numpy call overhead, small enough
-#: that the per-layer temporaries stay in cache (measured with benchmarks/bench_two_stream.py).
-_BLOCK_COLUMNS = 4096
 
 _LAYER_KEYS = ("diffuse_reflectance", "diffuse_transmittance", "direct_reflectance",
                "direct_diffuse_transmittance", "direct_transmittance")
@@ -154,8 +148,8 @@ def _solve_columns(tau, ssa, g, mu0, albedo):
     ncol, nz = tau.shape
     out = {"upward_flux": np.empty((nz + 1, ncol)), "downward_direct_flux": np.empty((nz + 1, ncol)),
            "downward_diffuse_flux": np.empty((nz + 1, ncol)), "layer_absorption": np.empty((nz, ncol))}
-    for start in range(0, ncol, _BLOCK_COLUMNS):
-        cols = slice(start, min(start + _BLOCK_COLUMNS, ncol))
+    for start in range(0, ncol, TWO_STREAM_BLOCK_COLUMNS):
+        cols = slice(start, min(start + TWO_STREAM_BLOCK_COLUMNS, ncol))
         block = _solve_block(np.ascontiguousarray(tau[cols].T), np.ascontiguousarray(ssa[cols].T),
                              np.ascontiguousarray(g[cols].T), mu0[cols], albedo[cols])
         for name, value in block.items():
@@ -343,7 +337,7 @@ def _solve_scene_bands(scene, mu0, quiet):
     absorption = np.zeros((nz, ncol))
     total = nband * ncol
     bar = tqdm(total=total, desc="two-stream columns", unit="col", leave=False, file=sys.stderr,
-               disable=True if quiet or total <= _BLOCK_COLUMNS else None)
+               disable=True if quiet or total <= TWO_STREAM_BLOCK_COLUMNS else None)
     extinction, ssa_all, g_all, albedo_all = (np.asarray(scene[name].values, dtype=np.float64) for name in (
         "extinction", "single_scattering_albedo", "asymmetry_parameter", "surface_albedo"))
     with bar:
@@ -352,8 +346,8 @@ def _solve_scene_bands(scene, mu0, quiet):
             ssa = ssa_all[b].reshape(nz, ncol)
             g = g_all[b].reshape(nz, ncol)
             albedo = albedo_all[b].reshape(ncol)
-            for start in range(0, ncol, _BLOCK_COLUMNS):
-                cols = slice(start, min(start + _BLOCK_COLUMNS, ncol))
+            for start in range(0, ncol, TWO_STREAM_BLOCK_COLUMNS):
+                cols = slice(start, min(start + TWO_STREAM_BLOCK_COLUMNS, ncol))
                 profiles = _solve_block(tau[:, cols], ssa[:, cols], g[:, cols], mu0, albedo[cols])
                 for name, value in _column_summary(profiles, axis=0).items():
                     flat[name][b, cols] = value

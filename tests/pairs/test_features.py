@@ -138,7 +138,8 @@ def test_slant_path_by_hand_with_wrap():
     fields = plane_fields([[1.0, 2.0, 3.0, 4.0]])
     slant = F.slant_optical_depth(fields)
     assert np.allclose(slant[0], math.sqrt(2.0) * np.array([2.5, 1.5, 2.5, 3.5]))
-    assert np.allclose(F.slant_minus_vertical_optical_depth(fields)[0], math.sqrt(2.0) * np.array([1.5, -0.5, -0.5, -0.5]))
+    difference = F.slant_minus_vertical_optical_depth(fields)[0]
+    assert np.allclose(difference, math.sqrt(2.0) * np.array([1.5, -0.5, -0.5, -0.5]))
     assert np.allclose(F.slant_optical_depth({**fields, "solar_zenith_angle": 0.0}), [[1.0, 2.0, 3.0, 4.0]])
 
 
@@ -247,7 +248,7 @@ def test_periodic_shift_and_box_sum_are_roll_and_direct_sums(shape):
 def test_distance_transform_matches_brute_force(monkeypatch, block_cells):
     # Definition: the periodic Euclidean distance between cell centres, nearest target,
     # infinity beyond the reach (in blocks of one, four or all rows).
-    monkeypatch.setattr(F, "_BLOCK_CELLS", block_cells)
+    monkeypatch.setattr(F, "CELL_BLOCK", block_cells)
     rng = np.random.default_rng(4)
     ny, nx, dx, dy = 9, 12, 1000.0, 700.0
     targets = rng.random((ny, nx)) < 0.15
@@ -315,7 +316,7 @@ def test_slant_sum_in_row_blocks_is_the_sum_of_rolled_planes(monkeypatch, block_
     # into place; blocks of rows (some wrapping around the grid) change nothing.
     from surrogate3d.core import slant_path
 
-    monkeypatch.setattr(slant_path, "_BLOCK_CELLS", block_cells)
+    monkeypatch.setattr(slant_path, "CELL_BLOCK", block_cells)
     rng = np.random.default_rng(7)
     layers = rng.random((5, 9, 6))
     weights = path_weights(np.linspace(0.0, 4000.0, 6), 1000.0, 800.0, 60.0, 120.0)

@@ -19,7 +19,8 @@ import pytest
 from surrogate3d.errors import FormatError
 from surrogate3d.runtime import load_coefficients
 from surrogate3d.core.coefficient_format import decode_array, encode_array
-from surrogate3d.runtime.envelope import EnvelopeWarning, TrainingEnvelope, VARIANCE_FLOOR
+from surrogate3d.core.config import ENVELOPE_VARIANCE_FLOOR
+from surrogate3d.runtime.envelope import EnvelopeWarning, TrainingEnvelope
 
 RNG = np.random.default_rng(11)
 
@@ -102,7 +103,7 @@ def test_constant_feature_has_a_point_range():
     envelope = TrainingEnvelope.fit(X)
     assert envelope.scale[2] == 1.0
     assert envelope.feature_min[2] <= 0.06 <= envelope.feature_max[2] < envelope.feature_min[2] + 1e-8
-    assert np.all(envelope.component_variance >= VARIANCE_FLOOR)
+    assert np.all(envelope.component_variance >= ENVELOPE_VARIANCE_FLOOR)
     column = X[:1].copy()
     column[0, 2] = 0.3
     assert envelope.check(column).outside_range.tolist() == [True]
