@@ -26,14 +26,13 @@ from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
 
-import numpy as np
 from tqdm.auto import tqdm
 
 from .._workers import WorkerPool
 from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
 from ..core.data_model import SOLVERS
 from ..errors import OutputError, ParameterError, Surrogate3DError
-from ..core.validation import check_integer
+from ..core.validation import check_bool, check_integer
 from ..solvers.montecarlo import check_monte_carlo_options, solve_monte_carlo
 from ..solvers.sun import check_sun
 from .leftovers import remove_leftovers
@@ -106,8 +105,7 @@ def check_run_options(photons, n_jobs, solver_options):
                                         solar_constant=options.solar_constant)
     for name, value in checked.items():
         setattr(options, name, value)
-    if not isinstance(options.per_band, (bool, np.bool_)):
-        raise ParameterError(f"per_band must be true or false; got {options.per_band!r}")
+    options.per_band = check_bool("per_band", options.per_band)
     return options, n_jobs
 
 

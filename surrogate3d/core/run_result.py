@@ -13,6 +13,7 @@ import xarray as xr
 
 from ..errors import ValidationError
 from .data_model import COLUMN_FLUXES, OPTIONAL_COLUMN_FLUXES, SOLVERS
+from .validation import check_option
 
 CELL_FIELDS = {
     "absorption": ("1", "shortwave flux absorbed in the cell per unit column area, as a fraction of the "
@@ -79,8 +80,7 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
     -------
     xarray.Dataset
     """
-    if solver not in SOLVERS:
-        raise ValidationError(f"solver must be one of {SOLVERS}; got {solver!r}")
+    check_option("solver", solver, SOLVERS, ValidationError)
     ds = xr.Dataset()
     present = {**COLUMN_FLUXES, **{k: v for k, v in OPTIONAL_COLUMN_FLUXES.items() if k in fluxes}}
     for name, long_name in present.items():

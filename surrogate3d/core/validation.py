@@ -135,10 +135,21 @@ def check_integer(name, value, low=None, high=None, error=ParameterError):
 
 
 def check_option(name, value, options, error=ParameterError):
-    """``value`` if it is one of ``options``; raise ``error`` listing them otherwise."""
-    if isinstance(value, str) and value in options:
-        return value
-    fail(name, "one of " + ", ".join(repr(o) for o in options), value, error=error)
+    """``value`` if it is one of ``options`` (names, or the keys of a dict); raise ``error`` listing them otherwise."""
+    try:
+        known = value in options
+    except TypeError:
+        known = False
+    if not known:
+        fail(name, "one of " + ", ".join(str(o) for o in options), value, error=error)
+    return value
+
+
+def check_bool(name, value, error=ParameterError):
+    """``value`` as a bool if it is True or False (numpy's included); raise ``error`` otherwise."""
+    if not isinstance(value, (bool, np.bool_)):
+        fail(name, "true or false", value, error=error)
+    return bool(value)
 
 
 def check_finite(name, values, error=ParameterError):

@@ -26,18 +26,13 @@ from sklearn.utils import check_array
 from sklearn.utils.validation import check_is_fitted
 
 from ..core.config import CLEAR_SKY_TOLERANCE, SINGULAR_CUTOFF
-from ..core.validation import check_integer, check_number, fail, first_nonfinite
+from ..core.validation import check_bool, check_integer, check_number, check_option, fail, first_nonfinite
 from ..errors import ParameterError, ValidationError
 from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
 from ..runtime.ridge import near_constant
 from ..core.data_model import TARGETS
 from .pairs_table import feature_matrix, feature_names, target_matrix
 from .transforms import apply_transforms, check_scales, check_transforms, offsets_and_scales, resolve_transforms
-
-
-def _check_bool(name, value):
-    if not isinstance(value, (bool, np.bool_)):
-        raise ParameterError(f"{name} must be true or false; got {value!r}")
 
 
 def _as_matrix(name, values, min_samples=1, ensure_2d=True):
@@ -350,7 +345,7 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
 
     def _check_parameters(self):
         check_number("alpha", self.alpha, 0.0)
-        _check_bool("interactions", self.interactions)
+        check_bool("interactions", self.interactions)
         _check_feature_list("interaction_features", self.interaction_features, 2)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
         check_transforms(self.target_transforms)
@@ -614,9 +609,7 @@ def make_estimator(kind, params=None):
     surrogate3d.errors.ParameterError
         Unknown kind or parameter, or a value out of range (named in the message).
     """
-    if kind not in MODEL_KINDS:
-        raise ParameterError(f"model kind must be one of {sorted(MODEL_KINDS)}; got {kind!r}")
-    cls = MODEL_KINDS[kind]
+    cls = MODEL_KINDS[check_option("model kind", kind, sorted(MODEL_KINDS))]
     allowed = sorted(cls().get_params())
     unknown = sorted(set(params or {}) - set(allowed))
     if unknown:

@@ -26,6 +26,7 @@ import numbers
 
 import numpy as np
 
+from ..core.validation import check_option
 from ..errors import ParameterError, ValidationError
 
 _KEYS = {"scale_feature", "scale_floor", "offset_features", "fit_errors"}
@@ -71,8 +72,7 @@ def check_transform(spec, where):
             isinstance(c, numbers.Real) and not isinstance(c, bool) and math.isfinite(c) for c in offsets.values()):
         raise ParameterError(f"{where}['offset_features'] must be a dict of feature name -> finite number; "
                              f"got {offsets!r}")
-    if spec.get("fit_errors", "absolute") not in FIT_ERRORS:
-        raise ParameterError(f"{where}['fit_errors'] must be one of {list(FIT_ERRORS)}; got {spec['fit_errors']!r}")
+    check_option(f"{where}['fit_errors']", spec.get("fit_errors", "absolute"), FIT_ERRORS)
 
 
 def resolve_transforms(transforms, n_target, feature_names):

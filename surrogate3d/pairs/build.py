@@ -21,7 +21,7 @@ from ..archive.netcdf import read_scene, scene_files
 from ..archive.results import completed, select_result
 from ..core.data_model import COLUMN_FLUXES
 from ..core.run_result import stderr_name
-from ..core.validation import check_number
+from ..core.validation import check_number, check_option
 from ..baselines import NonlocalIndependentPixel, TiltedIndependentColumn
 from ..baselines.nonlocal_pixel import radiative_smoothing_scale
 from ..errors import FormatError, ParameterError
@@ -91,8 +91,7 @@ def with_host_fluxes(recipe, host_fluxes):
     """
     if host_fluxes is None or host_fluxes == recipe.parameters["host_fluxes"]:
         return recipe
-    if host_fluxes not in HOST_FLUX_KINDS:
-        raise ParameterError(f"host_fluxes must be one of {', '.join(HOST_FLUX_KINDS)}; got {host_fluxes!r}")
+    check_option("host_fluxes", host_fluxes, HOST_FLUX_KINDS)
     if recipe.parameters["host_fluxes"] != DEFAULT_PARAMETERS["host_fluxes"]:
         raise ParameterError(f"host_fluxes {host_fluxes!r} contradicts the feature recipe {recipe.name!r}, whose "
                              f"host_fluxes is {recipe.parameters['host_fluxes']!r}")

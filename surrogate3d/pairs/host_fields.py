@@ -11,7 +11,7 @@ import math
 import numpy as np
 
 from ..core.slant_path import check_solar_zenith_angle
-from ..errors import ParameterError
+from ..core.validation import check_option
 from ..scenes.model import cloud_mask, layer_thickness
 from ..solvers.two_stream import delta_eddington
 from .coarsen import HOST_FLUXES, block_mean, coarsen_result, host_factors, scene_host_fields
@@ -127,8 +127,7 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
 
 
 def _check_host_fluxes(host_fluxes):
-    if host_fluxes not in HOST_FLUX_KINDS:
-        raise ParameterError(f"host_fluxes must be one of {', '.join(HOST_FLUX_KINDS)}; got {host_fluxes!r}")
+    check_option("host_fluxes", host_fluxes, HOST_FLUX_KINDS)
 
 
 def assemble_host_fields(scene, independent_column, host_resolution, host_fluxes="monte_carlo"):

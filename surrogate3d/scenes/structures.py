@@ -21,7 +21,7 @@ from dataclasses import dataclass, field, fields
 
 import numpy as np
 
-from ..core.validation import check_number
+from ..core.validation import check_number, check_option
 from ..errors import ParameterError
 from .random_fields import bounded_cascade, gaussian_random_field
 
@@ -565,9 +565,7 @@ def structure_from_dict(table, current=None, label="structure"):
         if current is None:
             raise ParameterError(f"{label} needs a kind: one of {', '.join(STRUCTURES)}")
         kind = current.kind
-    if kind not in STRUCTURES:
-        raise ParameterError(f"{label} kind must be one of {', '.join(STRUCTURES)}; got {kind!r}")
-    cls = STRUCTURES[kind]
+    cls = STRUCTURES[check_option(f"{label} kind", kind, STRUCTURES)]
     allowed = [f.name for f in fields(cls) if f.init]
     unknown = sorted(set(params) - set(allowed))
     if unknown:
