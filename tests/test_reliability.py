@@ -33,7 +33,7 @@ from surrogate3d.archive.netcdf import read_result_flags
 from surrogate3d.archive.pending import pending_dir, pending_keys, write_pending
 from surrogate3d.cli import main
 from surrogate3d.errors import ValidationError
-from surrogate3d.learn.synthetic import make_synthetic_pairs
+from synthetic_pairs import make_synthetic_pairs
 from surrogate3d.scenes import make_scene
 from surrogate3d.archive import simulate as simulate_module
 from surrogate3d.archive.simulate import Task, run_task, simulate_archive
