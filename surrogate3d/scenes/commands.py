@@ -3,7 +3,7 @@
 import sys
 from pathlib import Path
 
-from ..core.validation import check_number
+from ..core.validation import check_integer, check_number, check_option
 from ..errors import ParameterError, Surrogate3DError
 
 #: Main-layer overrides: attribute, option, allowed range (low, high, low end open).
@@ -65,7 +65,7 @@ def _number(text, option, kind):
 
 def _scene_set(args):
     """The scene-set configuration: the config file (if any) overridden by the options."""
-    from .config import SceneSetConfig, load_config
+    from .config import COUNT_RANGE, SEED_RANGE, SceneSetConfig, load_config
     from .regimes import REGIMES
 
     cfg = load_config(args.config) if args.config else SceneSetConfig()
@@ -82,14 +82,13 @@ def _scene_set(args):
         cfg.grid.pop("z_edge", None)
     count = _number(args.count, "--count", int)
     seed = _number(args.seed, "--seed", int)
-    if count is not None and count < 1:
-        raise ParameterError(f"--count must be at least 1; got {count}")
-    if seed is not None and seed < 0:
-        raise ParameterError(f"--seed must be >= 0; got {seed}")
+    if count is not None:
+        check_integer("--count", count, *COUNT_RANGE)
+    if seed is not None:
+        check_integer("--seed", seed, *SEED_RANGE)
     if args.regime:
         for name in args.regime:
-            if name != "all" and name not in REGIMES:
-                raise ParameterError(f"--regime must be one of {', '.join(REGIMES)} or 'all'; got {name!r}")
+            check_option("--regime", name, (*REGIMES, "all"))
         cfg.regimes = [{"name": name} for name in dict.fromkeys(args.regime)]
         if "all" in args.regime:
             cfg.regimes = [{"name": "all"}]

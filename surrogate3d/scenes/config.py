@@ -13,7 +13,7 @@ import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
-from ..core.validation import check_integer
+from ..core.validation import check_integer, check_option
 from ..errors import FormatError, ParameterError
 from .draws import check_draws, contains_draw, draw_stream, is_draw, resolve
 from .generator import generate_scene
@@ -27,6 +27,10 @@ TOP_KEYS = {"out", "seed", "count", "grid", "optics", "regime"}
 GRID_KEYS = {"nx", "ny", "nz", "dx", "top", "z_edge"}
 OPTICS_KEYS = {"bands", "surface_albedo", "surface_pressure", "gas_absorption", "optics_set", "surface_pattern"}
 SURFACE_PATTERN_KEYS = {f.name for f in fields(SurfacePattern)}
+#: Declared ranges of the scenes per regime and of the first seed.
+COUNT_RANGE = (1, 100_000)
+SEED_RANGE = (0, 2**62)
+
 REGIME_KEYS = {"name", "label", "count", "seed", "cloud_fraction", "mean_optical_depth",
                "cloud_top_variability", "layers"}
 LAYER_KEYS = {f.name for f in fields(CloudLayer)}
@@ -288,8 +292,8 @@ def parse_config(data, source="configuration"):
         if not isinstance(data["out"], str) or not data["out"]:
             raise ParameterError(f"{source}: out must be a directory name; got {data['out']!r}")
         cfg.out = data["out"]
-    cfg.seed = check_integer(f"{source}: seed", data.get("seed", 0), 0, 2 ** 62)
-    cfg.count = check_integer(f"{source}: count", data.get("count", 1), 1, 100000)
+    cfg.seed = check_integer(f"{source}: seed", data.get("seed", 0), *SEED_RANGE)
+    cfg.count = check_integer(f"{source}: count", data.get("count", 1), *COUNT_RANGE)
     grid = data.get("grid", {})
     _check_keys(grid, GRID_KEYS, f"{source}: [grid]")
     cfg.grid = dict(grid)
@@ -307,12 +311,11 @@ def parse_config(data, source="configuration"):
         _check_keys(table, REGIME_KEYS, where)
         if "name" not in table:
             raise ParameterError(f"{where} needs a name (one of {', '.join(REGIMES)}, or 'all')")
-        if table["name"] != "all" and table["name"] not in REGIMES:
-            raise ParameterError(f"{where}: name must be one of {', '.join(REGIMES)} or 'all'; got {table['name']!r}")
+        check_option(f"{where}: name", table["name"], (*REGIMES, "all"))
         if "count" in table:
-            check_integer(f"{where} count", table["count"], 1, 100000)
+            check_integer(f"{where} count", table["count"], *COUNT_RANGE)
         if "seed" in table:
-            check_integer(f"{where} seed", table["seed"], 0, 2 ** 62)
+            check_integer(f"{where} seed", table["seed"], *SEED_RANGE)
         layers = table.get("layers", [])
         if not isinstance(layers, list):
             raise ParameterError(f"{where} layers must be an array of tables; got {layers!r}")

@@ -13,7 +13,7 @@ water, and open and closed cells.  Any parameter can be changed with
 
 from dataclasses import asdict, dataclass, replace
 
-from ..core.validation import check_number
+from ..core.validation import check_number, check_option
 from ..errors import ParameterError
 from .structures import STRUCTURES, CascadeField, CellularField, ClusteredField, StreetField
 
@@ -266,6 +266,4 @@ def get_regime(regime):
     """
     if isinstance(regime, Regime):
         return regime.validate()
-    if isinstance(regime, str) and regime in REGIMES:
-        return REGIMES[regime]
-    raise ParameterError(f"regime must be one of {', '.join(REGIMES)} (or a Regime); got {regime!r}")
+    return REGIMES[check_option("regime", regime, REGIMES)]
