@@ -16,6 +16,7 @@ from pathlib import Path
 
 from ._atomic import write_text_atomic
 from ._outputs import staged_directory
+from .core.validation import check_integer
 from .errors import Surrogate3DError
 
 STAGES = ("scenes", "simulate", "pairs", "train", "evaluate", "export")
@@ -302,8 +303,6 @@ def register(sub):
 
 
 def _run_command(args):
-    from .errors import ParameterError
-
-    if args.jobs is not None and args.jobs < 1:
-        raise ParameterError(f"--jobs must be >= 1; got {args.jobs}")
+    if args.jobs is not None:
+        check_integer("--jobs", args.jobs, 1)
     run_demo(args.out, quick=args.quick, jobs=args.jobs, quiet=args.quiet)

@@ -31,8 +31,8 @@ from tqdm.auto import tqdm
 from .._workers import WorkerPool
 from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
 from ..core.data_model import SOLVERS
-from ..errors import OutputError, ParameterError, Surrogate3DError
 from ..core.validation import check_bool, check_integer
+from ..errors import OutputError, ParameterError, Surrogate3DError
 from ..solvers.montecarlo import check_monte_carlo_options, solve_monte_carlo
 from ..solvers.sun import check_sun
 from .leftovers import remove_leftovers

@@ -19,8 +19,8 @@ reflected flux and the absorption are smoothed.
 import numpy as np
 
 from ..core.data_model import TARGETS
+from ..core.validation import check_number
 from ..scenes.model import cloud_mask, layer_thickness, spacing
-from ..errors import ParameterError
 from .base import Baseline
 
 _SMOOTHED = ("surface_downward_diffuse_flux", "toa_upward_flux", "atmosphere_absorption")
@@ -121,8 +121,8 @@ class NonlocalIndependentPixel(Baseline):
     name = "nonlocal_independent_pixel"
 
     def __init__(self, smoothing_scale=None):
-        if smoothing_scale is not None and not (np.isfinite(smoothing_scale) and smoothing_scale >= 0):
-            raise ParameterError(f"smoothing_scale must be a distance >= 0 in m or None; got {smoothing_scale!r}")
+        if smoothing_scale is not None:
+            check_number("smoothing_scale", smoothing_scale, 0.0, None)
         self.smoothing_scale = smoothing_scale
 
     def __repr__(self):

@@ -13,13 +13,13 @@ import html
 import json
 from pathlib import Path
 
+from ..core.coefficient_file import read_coefficients
+from ..core.pairs_table import read_pairs_table
 from ..errors import FormatError, ParameterError, ValidationError
 from ..learn.model_directory import MODEL_CARD, TRAINING_FILE, file_sha256, load_model, load_training_run
-from ..core.pairs_table import read_pairs_table
 from ..learn.pairs_table import feature_names, scene_table, target_names
 from ..pairs.features import FEATURES
 from ..pairs.recipe import FeatureRecipe
-from ..core.coefficient_file import read_coefficients
 from ..runtime.model import CorrectionModel
 from .evaluation_sets import Evaluation, score_set, set_tables
 from .importance import permutation_importance
@@ -84,7 +84,8 @@ def _recipe(data):
 
 
 def check_pairs_match(model, recipe, pairs, label="the pairs table"):
-    """Raise ValidationError naming the first feature (or target) of ``model`` that ``pairs`` lacks or computes otherwise.
+    """Raise ValidationError naming the first feature (or target) of ``model`` that ``pairs`` lacks or computes
+    otherwise.
 
     A feature matches when the table has a column of its name, of the same unit, computed
     with the same values of the recipe parameters it depends on (``docs/features.md``).

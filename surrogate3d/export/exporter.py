@@ -9,12 +9,13 @@ from pathlib import Path
 
 import numpy as np
 
+from ..core.coefficient_file import read_coefficients
+from ..core.pairs_table import read_pairs_table
+from ..core.validation import check_integer
 from ..errors import FormatError, ValidationError
 from ..learn.model_directory import load_training_run
-from ..core.pairs_table import read_pairs_table
 from ..learn.pairs_table import feature_matrix, select_scenes
 from ..runtime.model import CorrectionModel
-from ..core.coefficient_file import read_coefficients
 from .coefficients import build_document, write_coefficients
 from .fortran import fortran_files, fortran_name, read_features_file, write_fortran
 
@@ -38,8 +39,7 @@ def sample_features(trained, pairs_path=None, n_columns=64):
     ndarray (n, n_feature)
         ``n = min(n_columns, number of training samples)``.
     """
-    if isinstance(n_columns, bool) or not isinstance(n_columns, (int, np.integer)) or n_columns < 1:
-        raise ValidationError(f"n_columns (sample columns) must be an integer >= 1; got {n_columns!r}")
+    check_integer("n_columns (sample columns)", n_columns, 1, error=ValidationError)
     path = Path(pairs_path or trained.card["provenance"].get("pairs_file") or "")
     if not path.is_file():
         raise FormatError(f"the training pairs file {str(path)!r} of model {trained.name!r} does not exist; "

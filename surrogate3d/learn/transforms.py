@@ -26,7 +26,7 @@ import numbers
 
 import numpy as np
 
-from ..core.validation import check_option
+from ..core.validation import check_number, check_option
 from ..errors import ParameterError, ValidationError
 
 _KEYS = {"scale_feature", "scale_floor", "offset_features", "fit_errors"}
@@ -65,8 +65,7 @@ def check_transform(spec, where):
     if scale is not None and not (isinstance(scale, str) and scale):
         raise ParameterError(f"{where}['scale_feature'] must be a feature name; got {scale!r}")
     floor = spec.get("scale_floor", 0.0)
-    if isinstance(floor, bool) or not isinstance(floor, numbers.Real) or not (math.isfinite(floor) and floor >= 0):
-        raise ParameterError(f"{where}['scale_floor'] must be a finite number >= 0; got {floor!r}")
+    check_number(f"{where}['scale_floor']", floor, 0.0, None)
     offsets = spec.get("offset_features", {})
     if not isinstance(offsets, dict) or not all(isinstance(k, str) and k for k in offsets) or not all(
             isinstance(c, numbers.Real) and not isinstance(c, bool) and math.isfinite(c) for c in offsets.values()):

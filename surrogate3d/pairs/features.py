@@ -49,7 +49,7 @@ from ..errors import ValidationError
 from ..core.slant_path import area_path_weights, check_solar_zenith_angle, gather_layers, path_weights, slant_sum
 from ..core.data_model import TARGETS
 from ..core.config import CELL_BLOCK
-from ..core.validation import check_array
+from ..core.validation import check_array, check_number
 
 #: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
 INDEPENDENT_COLUMN_FLUXES = TARGETS
@@ -1121,8 +1121,7 @@ def validate_host_fields(fields, keys=None):
         if value.ndim != 0 or not np.isfinite(value):
             raise ValidationError(f"host_fields[{key!r}] must be a finite scalar; got {fields[key]!r}")
     for key in ("dx", "dy"):
-        if float(fields[key]) <= 0.0:
-            raise ValidationError(f"host_fields[{key!r}] (host column size in m) must be positive; got {fields[key]!r}")
+        check_number(f"host_fields[{key!r}]", fields[key], 0.0, None, low_open=True, error=ValidationError)
     check_solar_zenith_angle(fields["solar_zenith_angle"], "host_fields['solar_zenith_angle']", ValidationError)
     shape2d = None
     for key in sorted(k for k in fields if _is_plane_key(k)):

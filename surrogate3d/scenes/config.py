@@ -249,8 +249,7 @@ def _check_optics(optics, where):
         check_draws(optics["surface_pressure"], f"{where} surface_pressure", 10000.0, 120000.0)
     if "optics_set" in optics:
         for name in _choices(optics["optics_set"]):
-            if name not in OPTICS_SETS:
-                raise ParameterError(f"{where} optics_set must be one of {', '.join(OPTICS_SETS)}; got {name!r}")
+            check_option(f"{where} optics_set", name, OPTICS_SETS)
         both = sorted({"bands", "gas_absorption"} & set(optics))
         if both:
             raise ParameterError(f"{where}: optics_set sets bands and gas_absorption; remove {both[0]}")
@@ -258,9 +257,7 @@ def _check_optics(optics, where):
         pattern = optics["surface_pattern"]
         _check_keys(pattern, SURFACE_PATTERN_KEYS, f"{where} surface_pattern")
         for kind in _choices(pattern.get("kind", "uniform")):
-            if kind not in SURFACE_PATTERNS:
-                raise ParameterError(f"{where} surface_pattern kind must be one of {', '.join(SURFACE_PATTERNS)}; "
-                                     f"got {kind!r}")
+            check_option(f"{where} surface_pattern kind", kind, SURFACE_PATTERNS)
         if "contrast_albedo" in pattern:
             _check_albedo(pattern["contrast_albedo"], f"{where} surface_pattern contrast_albedo")
         check_draws(pattern.get("scale", 1.0), f"{where} surface_pattern scale", 1e-9, 1e7)

@@ -24,7 +24,6 @@ uniform or a pattern of two surfaces (:mod:`surrogate3d.scenes.surface`).
 """
 
 import json
-import numbers
 import zlib
 
 import numpy as np
@@ -344,9 +343,7 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     >>> scene.attrs["regime"], dict(scene.sizes)["band"]
     ('broken_stratocumulus', 2)
     """
-    if isinstance(seed, bool) or not isinstance(seed, numbers.Integral) or not 0 <= int(seed) < 2 ** 63:
-        raise ParameterError(f"seed must be an integer in [0, 2**63); got {seed!r}")
-    seed = int(seed)
+    seed = check_integer("seed", seed, 0, 2**63 - 1)
     reg = get_regime(regime).with_overrides(cloud_fraction, mean_optical_depth, cloud_top_variability)
     nx = check_integer("nx", nx, 1, 4096)
     ny = check_integer("ny", ny, 1, 4096)

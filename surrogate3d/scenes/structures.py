@@ -360,8 +360,7 @@ class CellularField:
     def validate(self, label="cellular structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        if self.cell_type not in ("closed", "open"):
-            raise ParameterError(f"{p}cell_type must be 'closed' or 'open'; got {self.cell_type!r}")
+        check_option(p + "cell_type", self.cell_type, ("closed", "open"))
         check_number(p + "cell_diameter", self.cell_diameter, 0.0, 1e6, low_open=True)
         check_number(p + "regularity", self.regularity, 0.0, MAX_CELL_REGULARITY)
         check_number(p + "roughness", self.roughness, 0.0, 10.0)

@@ -28,7 +28,7 @@ from ..core.run_result import make_run_result
 from ..errors import ParameterError
 from ..scenes import layer_thickness, validate_scene
 from ..core.config import SOLAR_CONSTANT, TWO_STREAM_BLOCK_COLUMNS
-from ..core.validation import check_array
+from ..core.validation import check_array, check_number
 from ._array_checks import as_float_array, broadcast_to_shape
 from .heating import heating_rate
 from .sun import check_sun
@@ -404,12 +404,7 @@ def solve_scene(scene, solar_zenith_angle, solar_beam_azimuth=0.0, solar_constan
     started = time.perf_counter()
     validate_scene(scene)
     zenith, azimuth = check_sun(solar_zenith_angle, solar_beam_azimuth)
-    try:
-        s0 = float(solar_constant)
-    except (TypeError, ValueError):
-        s0 = float("nan")
-    if not (np.isfinite(s0) and s0 > 0.0):
-        raise ParameterError(f"solar_constant must be a positive number of W m-2; got {solar_constant!r}")
+    s0 = check_number("solar_constant", solar_constant, 0.0, None, low_open=True)
     mu0 = np.cos(np.radians(zenith))
 
     band_fluxes, absorption = _solve_scene_bands(scene, mu0, quiet)
