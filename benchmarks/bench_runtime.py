@@ -163,7 +163,8 @@ def main():
     if args.model_dir:
         run = load_training_run(args.model_dir)
         models = run.models
-        from surrogate3d.learn.pairs_table import feature_matrix, read_pairs_table
+        from surrogate3d.core.pairs_table import read_pairs_table
+        from surrogate3d.learn.pairs_table import feature_matrix
 
         pairs = read_pairs_table(run.record["provenance"]["pairs_file"])
         X = feature_matrix(pairs, run.record["feature_names"])

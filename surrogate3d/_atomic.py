@@ -27,8 +27,12 @@ def atomic_path(path, suffix=None):
 
     Examples
     --------
-    >>> with atomic_path("out.txt") as tmp:          # doctest: +SKIP
-    ...     Path(tmp).write_text("done")
+    >>> import tempfile
+    >>> target = Path(tempfile.mkdtemp()) / "out.txt"
+    >>> with atomic_path(target) as tmp:
+    ...     _ = Path(tmp).write_text("done")
+    >>> target.read_text()
+    'done'
     """
     path = Path(path)
     directory = path.parent if str(path.parent) else Path(".")

@@ -336,8 +336,12 @@ def staged_directory(path, *, replace=False, marker=None):
 
     Examples
     --------
-    >>> with staged_directory("report") as tmp:                 # doctest: +SKIP
-    ...     (tmp / "metrics.csv").write_text("...")
+    >>> import tempfile
+    >>> report = Path(tempfile.mkdtemp()) / "report"
+    >>> with staged_directory(report) as tmp:
+    ...     _ = (tmp / "metrics.csv").write_text("...")
+    >>> sorted(p.name for p in report.iterdir())
+    ['metrics.csv']
     """
     final = Path(path)
     created = _created_parents(final.parent)

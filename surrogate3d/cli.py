@@ -24,7 +24,6 @@ from .errors import ParameterError, Surrogate3DError
 COMMAND_MODULES = [
     "surrogate3d.scenes.commands",
     "surrogate3d.archive.commands",
-    "surrogate3d.solvers.commands",
     "surrogate3d.pairs.commands",
     "surrogate3d.learn.commands",
     "surrogate3d.evaluation.commands",

@@ -16,6 +16,7 @@ from pathlib import Path
 
 from ._atomic import write_text_atomic
 from ._outputs import staged_directory
+from .core.validation import check_integer
 from .errors import Surrogate3DError
 
 STAGES = ("scenes", "simulate", "pairs", "train", "evaluate", "export")
@@ -103,16 +104,15 @@ def _make_scenes(cfg, archive, quiet):
     from tqdm.auto import tqdm
 
     from .archive import write_scene
-    from .scenes.generator import generate_scene
 
     archive.mkdir(parents=True, exist_ok=True)
-    jobs = [(entry.regime, seed) for entry in cfg.entries() for seed in entry.seeds]
+    jobs = cfg.scenes()
     made = 0
-    for regime, seed in tqdm(jobs, desc="scenes", unit="scene", disable=quiet or None):
-        path = archive / f"{regime.name}_{seed:05d}.nc"
+    for name, regime, seed in tqdm(jobs, desc="scenes", unit="scene", disable=quiet or None):
+        path = archive / name
         if path.is_file():
             continue
-        write_scene(generate_scene(regime, seed, **cfg.scene_options(regime.name, seed)), path, validate=False)
+        write_scene(cfg.generate(regime, seed), path, validate=False)
         made += 1
     return made, len(jobs)
 
@@ -131,7 +131,7 @@ def _warm_up_compiled_kernels():
 
 
 def _pairs_up_to_date(paths, feature_recipe):
-    from .archive import open_dataset
+    from .core.netcdf import open_dataset
     from .pairs.build import archive_fingerprint
 
     if not paths.pairs.is_file():
@@ -186,7 +186,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     from .export.exporter import export_training_run
     from .learn.train import train_models
     from .pairs.build import build_pairs
-    from .solvers.simulate import simulate_archive
+    from .archive.simulate import simulate_archive
 
     paths = DemoPaths(Path(out))
     paths.root.mkdir(parents=True, exist_ok=True)
@@ -211,9 +211,10 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     if _pairs_up_to_date(paths, settings["feature_recipe"]):
         stages.end(f"reused {paths.pairs}")
     else:
-        from .archive import write_dataset
+        from .core.netcdf import write_dataset
 
-        write_dataset(build_pairs(paths.archive, resolutions, recipe=settings["feature_recipe"], quiet=quiet), paths.pairs)
+        write_dataset(build_pairs(paths.archive, resolutions, recipe=settings["feature_recipe"], quiet=quiet),
+                      paths.pairs)
         stages.end(f"wrote {paths.pairs}")
 
     stages.begin(4, "train", "ridge and gradient-boosted corrections, scene-grouped cross-validation")
@@ -306,8 +307,6 @@ def register(sub):
 
 
 def _run_command(args):
-    from .errors import ParameterError
-
-    if args.jobs is not None and args.jobs < 1:
-        raise ParameterError(f"--jobs must be >= 1; got {args.jobs}")
+    if args.jobs is not None:
+        check_integer("--jobs", args.jobs, 1)
     run_demo(args.out, quick=args.quick, jobs=args.jobs, quiet=args.quiet)

@@ -33,10 +33,10 @@ from surrogate3d.archive.netcdf import read_result_flags
 from surrogate3d.archive.pending import pending_dir, pending_keys, write_pending
 from surrogate3d.cli import main
 from surrogate3d.errors import ValidationError
-from surrogate3d.learn.synthetic import make_synthetic_pairs
+from synthetic_pairs import make_synthetic_pairs
 from surrogate3d.scenes import make_scene
-from surrogate3d.solvers import simulate as simulate_module
-from surrogate3d.solvers.simulate import Task, run_task, simulate_archive
+from surrogate3d.archive import simulate as simulate_module
+from surrogate3d.archive.simulate import Task, run_task, simulate_archive
 from trained_model_fixtures import built, helpers, one_openmp_thread  # noqa: F401 (fixtures)
 
 REPO = Path(__file__).resolve().parents[1]
@@ -385,7 +385,7 @@ def test_4_train_on_bad_values_leaves_no_directory(tmp_path, capsys, broken):
 def test_4_scenes_failing_leaves_no_directory(tmp_path, capsys):
     out = tmp_path / "new" / "scenes"
     assert run_cli("scenes", "--out", out, "--regime", "overcast", "--nx", "0", "--quiet") == 1
-    assert "--nx must be in [1, 4096]" in error_line(capsys, "scenes")
+    assert "--nx must be an integer in [1, 4096]" in error_line(capsys, "scenes")
     assert not (tmp_path / "new").exists()
 
 
@@ -526,8 +526,8 @@ def test_6_list_shows_the_first_problem_and_fails(archive, tmp_path, capsys):
     table = pd.read_csv(tmp_path / "list.csv")
     status = dict(zip(table["file"], table["status"]))
     assert status["test_00001.nc"] == "ok" and status["test_00002.nc"] == "ok"
-    assert status["nan.nc"].startswith("invalid:") and "extinction is not finite at (band='band0', z=1, y=2, x=3)" \
-        in status["nan.nc"]
+    assert status["nan.nc"].startswith("invalid:")
+    assert "extinction must be finite; got nan (at band='band0', z=1, y=2, x=3)" in status["nan.nc"]
     assert status["missing.nc"].startswith("invalid:") and "missing variables: asymmetry_parameter" in status[
         "missing.nc"]
     assert "format_version 2.0" in status["future.nc"] and status["junk.nc"].startswith("unreadable:")
@@ -612,7 +612,7 @@ def test_8_messages_name_the_options(archive, capsys):
         assert not re.search(r"n_jobs|batch_size|rays_per_column", line)
     assert run_cli("pairs", archive, "--out", archive.parent / "p.nc", "--host-resolution", "-5", "--quiet") == 1
     line = error_line(capsys, "pairs")
-    assert "--host-resolution must be positive" in line and "host_resolutions" not in line
+    assert "--host-resolution must be in (0, inf); got -5.0" in line and "host_resolutions" not in line
 
 
 def test_8_messages_name_the_model_not_its_class(built, tmp_path, capsys):
@@ -631,4 +631,4 @@ def test_8_feature_values_are_plain_numbers(tmp_path, capsys):
     (tmp_path / "recipe.toml").write_text(TRAIN_RECIPE)
     assert run_cli("train", path, "--recipe", tmp_path / "recipe.toml", "--out", tmp_path / "m", "--quiet") == 1
     line = error_line(capsys, "train")
-    assert f"feature {pairs['feature'].values[1]} is not finite" in line and ": nan (" in line
+    assert f"feature {pairs['feature'].values[1]} must be finite; got nan (at sample 0, scene" in line

@@ -1,10 +1,14 @@
-"""The shipped default correction in models/default: loads, reproduces its own sample, fits its limits."""
+"""The shipped default correction in models/default: loads, reproduces its own sample, fits its limits,
+and its Fortran files are what the generator makes of its coefficients."""
 
+import shutil
+import subprocess
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+from surrogate3d.export import regenerated_fortran
 from surrogate3d.runtime import load_coefficients
 
 SHIPPED = Path(__file__).resolve().parents[1] / "models" / "default"
@@ -25,6 +29,35 @@ def test_shipped_model_reproduces_its_sample_corrections(name):
     np.testing.assert_allclose(model.predict(features), expected, rtol=1e-12, atol=1e-15)
     assert list(model.target_names) == ["surface_downward_flux", "surface_downward_direct_flux",
                                         "surface_downward_diffuse_flux", "toa_upward_flux", "atmosphere_absorption"]
+
+
+@pytest.mark.parametrize("name", sorted(LIMITS))
+def test_shipped_fortran_is_what_the_generator_makes(name):
+    # The committed module, driver and data files must not drift from the generator: a
+    # host model building them would run code the tests no longer check.
+    for key, (file_name, text) in regenerated_fortran(SHIPPED / f"{name}.coefficients.json",
+                                                      SHIPPED / "fortran").items():
+        assert (SHIPPED / "fortran" / file_name).read_text() == text, (
+            f"models/default/fortran/{file_name} ({key}) differs from the generator's; refresh it with "
+            f"surrogate3d.export.refresh_fortran (models/README.md)")
+
+
+@pytest.mark.skipif(shutil.which("gfortran") is None, reason="gfortran is not installed (make test installs it)")
+@pytest.mark.parametrize("name", sorted(LIMITS))
+def test_shipped_fortran_builds_and_reproduces_its_sample(name, tmp_path):
+    # The shipped files predate the training envelope (format 1.1): the module must read them.
+    fortran = SHIPPED / "fortran"
+    built = subprocess.run(["gfortran", "-std=f2008", "-Wall", "-Werror", "-O2", str(fortran / f"{name}_correction.f90"),
+                            str(fortran / f"{name}_correction_driver.f90"), "-o", "driver"], cwd=tmp_path,
+                           capture_output=True, text=True)
+    assert built.returncode == 0, built.stderr
+    ran = subprocess.run([str(tmp_path / "driver"), str(fortran / f"{name}.coefficients.txt"),
+                          str(fortran / f"{name}_sample_features.txt")], capture_output=True, text=True)
+    assert ran.returncode == 0, ran.stderr
+    got = np.array([[float(v) for v in line.split()] for line in ran.stdout.splitlines()])
+    expected = _matrix(fortran / f"{name}_sample_corrections.txt", skip_header=False)
+    # Required of the export: 1e-10 relative to each target's largest correction.
+    assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
 
 
 @pytest.mark.parametrize("name", sorted(LIMITS))

@@ -61,7 +61,8 @@ def run(built):
 @pytest.fixture(scope="session")
 def held_out_features(built, run):
     """Feature matrix of the held-out scenes (model feature order) of the pairs table."""
-    from surrogate3d.learn.pairs_table import feature_matrix, read_pairs_table, select_scenes
+    from surrogate3d.core.pairs_table import read_pairs_table
+    from surrogate3d.learn.pairs_table import feature_matrix, select_scenes
 
     pairs = read_pairs_table(built["pairs_file"])
     held = select_scenes(pairs, run.record["split"]["held_out_scenes"])

@@ -1,9 +1,12 @@
-"""The benchmark archive: one NetCDF file per scene holding the scene and its results."""
+"""The benchmark archive: one NetCDF file per scene holding the scene and its results, filled by
+:func:`~surrogate3d.archive.simulate.simulate_archive` (``surrogate3d simulate``)."""
 
+from ..core.data_model import COLUMN_FLUXES, SOLVERS
+from ..core.netcdf import open_dataset, write_dataset
+from ..core.run_result import in_watts, make_run_result
 from .listing import list_archive
-from .netcdf import open_dataset, read_scene, scene_files, write_dataset, write_scene
-from .results import (COLUMN_FLUXES, SOLVERS, completed, has_result, in_watts, insert_result,
-                      make_run_result, select_result, strip_results)
+from .netcdf import read_scene, scene_files, write_scene
+from .results import completed, has_result, insert_result, select_result, strip_results
 
 __all__ = ["COLUMN_FLUXES", "SOLVERS", "completed", "has_result", "in_watts", "insert_result",
            "list_archive", "make_run_result", "open_dataset", "read_scene", "scene_files",

@@ -1,7 +1,11 @@
-"""``surrogate3d list``: what an archive directory holds, and whether simulate and pairs can use it."""
+"""``surrogate3d simulate`` (:mod:`.simulate_command`) and ``surrogate3d list``: what an archive
+directory holds, and whether simulate and pairs can use it."""
 
 
 def register(sub):
+    from .simulate_command import register as register_simulate
+
+    register_simulate(sub)
     p = sub.add_parser("list", help="list the scenes of an archive directory and the results they hold",
                        description="One line per scene file, each checked as simulate and pairs check it; exits "
                                    "with status 1 if any file is unreadable or invalid.")

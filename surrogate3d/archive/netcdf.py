@@ -1,70 +1,28 @@
 """NetCDF reading and writing of scene files (the benchmark archive format).
 
-This is the only module that touches the on-disk format of scenes.  One file per
-scene holds the scene and every radiative-transfer result computed for it; see
-``docs/archive-format.md``.  Writes are atomic: a temporary file in the same directory
-is renamed onto the target only once complete.
+This is the only module that knows the layout of scene files (reading and writing any
+NetCDF file is :mod:`surrogate3d.core.netcdf`).  One file per scene holds the scene and
+every radiative-transfer result computed for it; see ``docs/archive-format.md``.  Writes
+are atomic: a temporary file in the same directory is renamed onto the target only once
+complete.
 """
 
 from pathlib import Path
 
-import numpy as np
 import xarray as xr
 
-from .._atomic import atomic_path
+from ..core.data_model import SCENE_FORMAT_VERSION as FORMAT_VERSION
+from ..core.netcdf import check_format_version, open_dataset, write_dataset
 from ..errors import FormatError
-from .results import strip_results
-from ..scenes.model import FORMAT_VERSION, annotate
+from ..scenes.model import annotate
 from ..scenes.validation import validate_scene
+from .results import strip_results
 
-ENGINE = "netcdf4"
 SCENE_SUFFIX = ".nc"
-
-
-def _encoding(ds):
-    # Scene fields (clear air, smooth clouds) compress well; Monte Carlo results are noise
-    # that does not, and compressing them would only slow every rewrite.
-    enc = {}
-    for name, var in ds.variables.items():
-        if np.issubdtype(var.dtype, np.floating) and var.ndim >= 2 and "solver" not in var.dims:
-            enc[name] = {"zlib": True, "complevel": 1, "shuffle": True}
-    return enc
-
-
-def write_dataset(ds, path):
-    """Write any Dataset to NetCDF-4 atomically (temporary file, then rename)."""
-    path = Path(path)
-    with atomic_path(path, suffix=".tmp.nc") as tmp:
-        ds.to_netcdf(tmp, engine=ENGINE, encoding=_encoding(ds), invalid_netcdf=False)
-    return path
 
 
 def _scene_only(ds):
     return strip_results(ds)
-
-
-def open_dataset(path, what="file", keep=None):
-    """Read a whole NetCDF file into memory and close it; unreadable files raise FormatError.
-
-    ``keep``, if given, maps the lazily opened Dataset to the part to load.
-    """
-    path = Path(path)
-    if not path.is_file():
-        raise FormatError(f"{what} {str(path)!r} does not exist")
-    try:
-        with xr.open_dataset(path, engine=ENGINE) as ds:
-            return (keep(ds) if keep else ds).load()
-    except (OSError, ValueError, KeyError, RuntimeError) as exc:
-        raise FormatError(f"cannot read {what} {str(path)!r}: not a NetCDF-4 file or truncated ({exc})") from None
-
-
-def check_format_version(ds, path, expected=FORMAT_VERSION, what="scene file"):
-    """Raise FormatError unless ``ds.attrs['format_version']`` has the expected major version."""
-    found = ds.attrs.get("format_version")
-    if found is None:
-        raise FormatError(f"{what} {str(path)!r} has no format_version attribute; is it a surrogate3d file?")
-    if str(found).split(".")[0] != str(expected).split(".")[0]:
-        raise FormatError(f"{what} {str(path)!r} has format_version {found}; this version reads {expected}")
 
 
 def write_scene(scene, path, validate=True):
@@ -113,7 +71,7 @@ def read_scene(path, validate=True, results=True):
         The scene breaks the data model.
     """
     ds = open_dataset(path, what="scene file", keep=None if results else _scene_only)
-    check_format_version(ds, path)
+    check_format_version(ds, path, FORMAT_VERSION, what="scene file")
     # NetCDF stores band names as variable-length strings; keep them as Python str.
     if "band" in ds.coords:
         ds = ds.assign_coords(band=[str(b) for b in ds["band"].values])

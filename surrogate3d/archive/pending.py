@@ -13,7 +13,8 @@ write or merge its pending results.
 import contextlib
 from pathlib import Path
 
-from .netcdf import open_dataset, read_scene, write_dataset, write_scene
+from ..core.netcdf import open_dataset, write_dataset
+from .netcdf import read_scene, write_scene
 from .results import insert_results, run_key
 
 

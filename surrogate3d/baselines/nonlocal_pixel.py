@@ -18,9 +18,9 @@ reflected flux and the absorption are smoothed.
 
 import numpy as np
 
-from ..pairs.targets import TARGETS
+from ..core.data_model import TARGETS
+from ..core.validation import check_number
 from ..scenes.model import cloud_mask, layer_thickness, spacing
-from ..errors import ParameterError
 from .base import Baseline
 
 _SMOOTHED = ("surface_downward_diffuse_flux", "toa_upward_flux", "atmosphere_absorption")
@@ -119,11 +119,10 @@ class NonlocalIndependentPixel(Baseline):
     """
 
     name = "nonlocal_independent_pixel"
-    variable = "baseline_nonlocal_independent_pixel"
 
     def __init__(self, smoothing_scale=None):
-        if smoothing_scale is not None and not (np.isfinite(smoothing_scale) and smoothing_scale >= 0):
-            raise ParameterError(f"smoothing_scale must be a distance >= 0 in m or None; got {smoothing_scale!r}")
+        if smoothing_scale is not None:
+            check_number("smoothing_scale", smoothing_scale, 0.0, None)
         self.smoothing_scale = smoothing_scale
 
     def __repr__(self):

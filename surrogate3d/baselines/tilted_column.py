@@ -19,8 +19,8 @@ two-stream flux of the same solver, so solver biases common to both cancel.
 
 import numpy as np
 
-from ..pairs.slant_path import gather_layers, path_weights, scatter_layers, top_offset
-from ..pairs.targets import TARGETS
+from ..core.slant_path import gather_layers, path_weights, scatter_layers, top_offset
+from ..core.data_model import TARGETS
 from ..scenes.model import layer_thickness, spacing
 from .base import Baseline
 
@@ -119,13 +119,19 @@ class TiltedIndependentColumn(Baseline):
 
     Examples
     --------
-    >>> corr = TiltedIndependentColumn().corrections(scene, 60.0, 0.0)   # doctest: +SKIP
-    >>> sorted(corr)                                                      # doctest: +SKIP
-    ['atmosphere_absorption', 'surface_downward_diffuse_flux', ...]
+    >>> import numpy as np
+    >>> from surrogate3d.scenes import make_scene
+    >>> extinction = np.zeros((1, 4, 4, 4))
+    >>> extinction[0, 1:3, 1, 1] = 0.02          # one cloudy cell column, 500 m deep
+    >>> scene = make_scene(extinction, 1.0, 0.85, [0, 250, 500, 750, 1000], 100, 100)
+    >>> corr = TiltedIndependentColumn().corrections(scene, 60.0, 0.0)
+    >>> sorted(corr)
+    ['atmosphere_absorption', 'surface_downward_diffuse_flux', 'surface_downward_direct_flux', ...]
+    >>> corr["surface_downward_direct_flux"][1].round(2)   # the shadow falls beside the cloud
+    array([-0.99,  0.01, -1.  , -0.99])
     """
 
     name = "tilted_independent_column"
-    variable = "baseline_tilted_independent_column"
 
     def corrections(self, scene, solar_zenith_angle, solar_beam_azimuth, independent_column=None):
         """Tilted-minus-vertical corrections on the benchmark grid.
@@ -142,7 +148,7 @@ class TiltedIndependentColumn(Baseline):
         Returns
         -------
         dict of str -> ndarray (ny, nx)
-            One array per target of :data:`surrogate3d.pairs.targets.TARGETS`.
+            One array per target of :data:`surrogate3d.core.data_model.TARGETS`.
         """
         tilted = two_stream_fluxes(scene, solar_zenith_angle, solar_beam_azimuth, tilted=True)
         vertical = two_stream_fluxes(scene, solar_zenith_angle, solar_beam_azimuth, tilted=False)

@@ -28,12 +28,11 @@ def register(sub):
 
 def run(args):
     from .._outputs import check_output_directory, staged_directory
-    from ..errors import ParameterError
+    from ..core.validation import check_integer
     from .report import HELD_OUT, evaluate, write_report
 
     for name in ("learning_curve_points", "importance_repeats", "map_scenes", "seed"):
-        if getattr(args, name) < 0:
-            raise ParameterError(f"--{name.replace('_', '-')} must be >= 0; got {getattr(args, name)}")
+        check_integer(f"--{name.replace('_', '-')}", getattr(args, name), 0)
     out = check_output_directory(args.out, "--out")
     evaluation = evaluate(args.model_dir, args.pairs, consistency=not args.no_consistency,
                           learning_curve_points=args.learning_curve_points,

@@ -10,7 +10,8 @@ import numpy as np
 
 from ..errors import ValidationError
 from ..learn.consistency import apply_correction
-from ..learn.pairs_table import BASELINES, domain_groups, target_matrix
+from ..core.data_model import BASELINES
+from ..learn.pairs_table import domain_groups, target_matrix
 
 NO_CORRECTION = "no correction"
 _BALANCE_TARGETS = ("surface_downward_flux", "toa_upward_flux", "atmosphere_absorption")
@@ -25,8 +26,8 @@ def reference_predictions(pairs, targets):
         ``"no correction"`` (zeros), ``"tilted independent column"``, ``"non-local independent pixel"``.
     """
     out = {NO_CORRECTION: np.zeros((pairs.sizes["sample"], len(targets)))}
-    for name, variable in BASELINES.items():
-        out[name] = target_matrix(pairs, targets, variable)
+    for baseline in BASELINES.values():
+        out[baseline.label] = target_matrix(pairs, targets, baseline.variable)
     return out
 
 

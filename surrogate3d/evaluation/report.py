@@ -14,7 +14,8 @@ from tqdm import tqdm
 
 from ..errors import ValidationError
 from ..learn.model_directory import file_sha256, load_training_run
-from ..learn.pairs_table import read_pairs_table, scene_table, select_scenes
+from ..core.pairs_table import read_pairs_table
+from ..learn.pairs_table import scene_table, select_scenes
 from .breakdown import FAMILY_BREAKDOWNS
 from .evaluation_sets import Evaluation, EvaluationSet, score_set, set_tables
 from .family_transfer import LEFT_OUT, leave_one_family_out

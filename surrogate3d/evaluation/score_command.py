@@ -23,14 +23,13 @@ def register(sub):
 
 
 def run(args):
-    from ..errors import ParameterError
+    from ..core.validation import check_integer
     from .metrics import HEADLINE_UNITS
     from .report_writer import write_report
     from .scoring import SCORED, score
 
     for name in ("importance_repeats", "map_scenes", "seed"):
-        if getattr(args, name) < 0:
-            raise ParameterError(f"--{name.replace('_', '-')} must be >= 0; got {getattr(args, name)}")
+        check_integer(f"--{name.replace('_', '-')}", getattr(args, name), 0)
     evaluation = score(args.source, args.pairs, consistency=not args.no_consistency,
                        importance_repeats=args.importance_repeats, seed=args.seed, quiet=args.quiet)
     page = write_report(evaluation, args.out, map_scenes=args.map_scenes)

@@ -13,9 +13,11 @@ import html
 import json
 from pathlib import Path
 
+from ..core.coefficient_file import read_coefficients
+from ..core.pairs_table import read_pairs_table
 from ..errors import FormatError, ParameterError, ValidationError
 from ..learn.model_directory import MODEL_CARD, TRAINING_FILE, file_sha256, load_model, load_training_run
-from ..learn.pairs_table import feature_names, read_pairs_table, scene_table, target_names
+from ..learn.pairs_table import feature_names, scene_table, target_names
 from ..pairs.features import FEATURES
 from ..pairs.recipe import FeatureRecipe
 from ..runtime.model import CorrectionModel
@@ -51,9 +53,6 @@ def load_scored_models(source):
     surrogate3d.errors.FormatError
         Neither a coefficient file nor a model directory, or an unreadable one.
     """
-    # Imported here: the export stage reads the headline units from this package.
-    from ..export.coefficients import read_coefficients
-
     path = Path(source)
     if path.is_file():
         document = read_coefficients(path)
@@ -85,7 +84,8 @@ def _recipe(data):
 
 
 def check_pairs_match(model, recipe, pairs, label="the pairs table"):
-    """Raise ValidationError naming the first feature (or target) of ``model`` that ``pairs`` lacks or computes otherwise.
+    """Raise ValidationError naming the first feature (or target) of ``model`` that ``pairs`` lacks or computes
+    otherwise.
 
     A feature matches when the table has a column of its name, of the same unit, computed
     with the same values of the recipe parameters it depends on (``docs/features.md``).

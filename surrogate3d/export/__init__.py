@@ -6,11 +6,12 @@ and optionally a Fortran 2008 module with a driver program.  ``docs/export-forma
 documents the files; ``docs/host-model-guide.md`` shows how a host model uses them.
 """
 
-from .coefficients import build_document, read_coefficients, write_coefficients
-from .exporter import export_model, export_training_run, sample_features
+from ..core.coefficient_file import read_coefficients
+from .coefficients import build_document, write_coefficients
+from .exporter import export_model, export_training_run, refresh_fortran, regenerated_fortran, sample_features
 from .flatten import flatten, ridge_arrays, tree_arrays
 from .fortran import fortran_name, fortran_sources, write_fortran
 
 __all__ = ["build_document", "export_model", "export_training_run", "flatten", "fortran_name", "fortran_sources",
-           "read_coefficients", "ridge_arrays", "sample_features", "tree_arrays", "write_coefficients",
-           "write_fortran"]
+           "read_coefficients", "refresh_fortran", "regenerated_fortran", "ridge_arrays", "sample_features",
+           "tree_arrays", "write_coefficients", "write_fortran"]

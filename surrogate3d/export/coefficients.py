@@ -1,6 +1,6 @@
 """Coefficient files: one trained model as a NetCDF file and its JSON twin.
 
-Both files hold the same *document* (:mod:`surrogate3d.runtime.document`): format
+Both files hold the same *document* (:mod:`surrogate3d.core.coefficient_format`): format
 version, model kind and hyperparameters, the ordered features with units and their
 recipe, the targets, the model arrays, the training provenance and, when a report
 directory is given, the model's rows of the held-out skill table.  The JSON twin is
@@ -15,20 +15,16 @@ import json
 import math
 from pathlib import Path
 
-import numpy as np
-import xarray as xr
-
 from .. import __version__
 from .._atomic import atomic_path, write_text_atomic
-from ..archive import open_dataset
-from ..archive.netcdf import ENGINE
+from ..core.coefficient_file import NETCDF_FORMAT, document_to_dataset
+from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, TRANSFORM_FIELD, \
+    check_document, document_to_json
+from ..core.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
 from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.recipe import FeatureRecipe
-from ..runtime import envelope as _envelope
-from ..runtime.document import (ARRAYS, ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, TRANSFORM_FIELD,
-                                check_document, document_from_json, document_to_json)
 from .flatten import clear_sky_gate, flatten, target_transforms, training_envelope
 
 #: Suffixes of the two files of one model.
@@ -53,8 +49,6 @@ _CONSTANT_COLUMNS = ("breakdown", "group", "group_order", "group_value")
 
 _SKILL_KEYS = ("evaluation_set", "predictor", "target", "units")
 
-#: Flavour of the NetCDF file (classic format with 64-bit offsets).
-NETCDF_FORMAT = "NETCDF3_64BIT"
 
 
 def build_document(trained, report_dir=None):
@@ -185,78 +179,6 @@ def skill_table(report_dir, model_name):
             "rows": [[row[i] if i in text else _cell(row[i]) for i in keep] for row in rows]}
 
 
-def document_to_dataset(document):
-    """The NetCDF form (an xarray Dataset) of a document.
-
-    Feature and target names are the coordinates ``feature`` and ``target``; every
-    model array is a variable ``<kind>_<name>``, every array of the training envelope a
-    variable ``envelope_<name>``; the other fields (the clear-sky gate and the envelope's
-    numbers included) are JSON text in global attributes of the same names.
-    """
-    kind = document["model"]["kind"]
-    ds = xr.Dataset(coords={"feature": list(document["features"]["names"]), "target": list(document["targets"]["names"])})
-    for name, (dims, _) in ARRAYS[kind].items():
-        variable = f"{kind}_{name}"
-        ds[variable] = (dims, np.asarray(document[kind][name]))
-        ds[variable].encoding = {"_FillValue": None}
-    ds.attrs = {"format": document["format"], "format_version": document["format_version"],
-                "model_name": document["model"]["name"], "model_kind": kind}
-    ds.attrs["features"] = json.dumps({k: v for k, v in document["features"].items() if k != "names"})
-    ds.attrs["targets"] = json.dumps({k: v for k, v in document["targets"].items() if k != "names"})
-    for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD, TRANSFORM_FIELD):
-        if key in document:
-            ds.attrs[key] = json.dumps(document[key], allow_nan=False)
-    if ENVELOPE_FIELD in document:
-        field = document[ENVELOPE_FIELD]
-        for name, dims in _envelope.ARRAYS.items():
-            ds[f"envelope_{name}"] = (dims, np.asarray(field[name]))
-            ds[f"envelope_{name}"].encoding = {"_FillValue": None}
-        ds.attrs[ENVELOPE_FIELD] = json.dumps({name: field[name] for name in _envelope.SCALARS}, allow_nan=False)
-    return ds
-
-
-def dataset_to_document(ds, source):
-    """The document held by a coefficient NetCDF Dataset; checked (FormatError naming the field)."""
-    attrs = ds.attrs
-    if attrs.get("format") != FORMAT_NAME:
-        raise FormatError(f"{source!r} is not a surrogate3d coefficient file: attribute format is "
-                          f"{attrs.get('format')!r}; expected {FORMAT_NAME!r}")
-    content = {"format": attrs["format"], "format_version": attrs.get("format_version")}
-    for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD, ENVELOPE_FIELD,
-                TRANSFORM_FIELD):
-        if key not in attrs:
-            if key in (GATE_FIELD, ENVELOPE_FIELD, TRANSFORM_FIELD):   # optional: older files lack them
-                continue
-            raise FormatError(f"coefficient file {source!r} lacks attribute {key!r}")
-        try:
-            content[key] = json.loads(attrs[key])
-        except (TypeError, ValueError) as exc:
-            raise FormatError(f"coefficient file {source!r}: attribute {key!r} is not valid JSON ({exc})") from None
-    for coord in ("feature", "target"):
-        if coord not in ds.coords:
-            raise FormatError(f"coefficient file {source!r} lacks the coordinate {coord!r}")
-    if not isinstance(content["features"], dict) or not isinstance(content["targets"], dict):
-        raise FormatError(f"coefficient file {source!r}: attributes features and targets must be JSON objects")
-    content["features"] = {"names": [str(v) for v in ds["feature"].values], **content["features"]}
-    content["targets"] = {"names": [str(v) for v in ds["target"].values], **content["targets"]}
-    kind = content["model"].get("kind") if isinstance(content["model"], dict) else None
-    if kind not in ARRAYS:
-        raise FormatError(f"coefficient file {source!r}: model kind {kind!r} is not one of {sorted(ARRAYS)}")
-    missing = [f"{kind}_{name}" for name in ARRAYS[kind] if f"{kind}_{name}" not in ds]
-    if missing:
-        raise FormatError(f"coefficient file {source!r} lacks variables {missing}")
-    content[kind] = {name: np.asarray(ds[f"{kind}_{name}"].values) for name in ARRAYS[kind]}
-    if ENVELOPE_FIELD in content:
-        missing = [f"envelope_{name}" for name in _envelope.ARRAYS if f"envelope_{name}" not in ds]
-        if missing or not isinstance(content[ENVELOPE_FIELD], dict):
-            raise FormatError(f"coefficient file {source!r}: attribute {ENVELOPE_FIELD} needs a JSON object and "
-                              f"the variables envelope_*; lacks {missing}")
-        content[ENVELOPE_FIELD].update({name: np.asarray(ds[f"envelope_{name}"].values)
-                                        for name in _envelope.ARRAYS})
-    check_document(content, source)
-    return content
-
-
 def coefficient_json_text(document):
     """The JSON twin's text: compact separators, arrays encoded, standard JSON (no NaN)."""
     return json.dumps(document_to_json(document), separators=(",", ":"), allow_nan=False) + "\n"
@@ -288,33 +210,3 @@ def write_coefficients(document, out_dir, stem=None):
     twin = out_dir / f"{stem}{JSON_SUFFIX}"
     write_text_atomic(twin, coefficient_json_text(document))
     return netcdf, twin
-
-
-def read_coefficients(path):
-    """Read a coefficient file, NetCDF or JSON twin, into a checked document.
-
-    Parameters
-    ----------
-    path : str or Path
-
-    Returns
-    -------
-    dict
-
-    Raises
-    ------
-    surrogate3d.errors.FormatError
-        Unreadable file, other format version, missing or inconsistent fields.
-    """
-    path = Path(path)
-    if path.suffix.lower() == ".nc":
-        return dataset_to_document(open_dataset(path, what="coefficient file"), str(path))
-    if not path.is_file():
-        raise FormatError(f"coefficient file {str(path)!r} does not exist")
-    try:
-        content = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, ValueError) as exc:
-        raise FormatError(f"coefficient file {str(path)!r} is not valid JSON ({exc})") from None
-    document = document_from_json(content, str(path))
-    check_document(document, str(path))
-    return document

@@ -24,11 +24,10 @@ def run(args):
     import os
 
     from .._outputs import check_output_directory, staged_directory
-    from ..errors import ParameterError
+    from ..core.validation import check_integer
     from .exporter import export_training_run
 
-    if args.sample_columns < 1:
-        raise ParameterError(f"--sample-columns must be >= 1; got {args.sample_columns}")
+    check_integer("--sample-columns", args.sample_columns, 1)
     out = check_output_directory(args.out, "--out")
     with staged_directory(out) as staging:
         exported = export_training_run(args.model_dir, staging, model=args.model, report_dir=args.report,

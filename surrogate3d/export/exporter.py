@@ -9,12 +9,15 @@ from pathlib import Path
 
 import numpy as np
 
+from ..core.coefficient_file import read_coefficients
+from ..core.pairs_table import read_pairs_table
+from ..core.validation import check_integer
 from ..errors import FormatError, ValidationError
 from ..learn.model_directory import load_training_run
-from ..learn.pairs_table import feature_matrix, read_pairs_table, select_scenes
+from ..learn.pairs_table import feature_matrix, select_scenes
 from ..runtime.model import CorrectionModel
 from .coefficients import build_document, write_coefficients
-from .fortran import write_fortran
+from .fortran import fortran_files, fortran_name, read_features_file, write_fortran
 
 #: Subdirectory of the export directory that holds the Fortran files.
 FORTRAN_DIR = "fortran"
@@ -36,8 +39,7 @@ def sample_features(trained, pairs_path=None, n_columns=64):
     ndarray (n, n_feature)
         ``n = min(n_columns, number of training samples)``.
     """
-    if isinstance(n_columns, bool) or not isinstance(n_columns, (int, np.integer)) or n_columns < 1:
-        raise ValidationError(f"n_columns (sample columns) must be an integer >= 1; got {n_columns!r}")
+    check_integer("n_columns (sample columns)", n_columns, 1, error=ValidationError)
     path = Path(pairs_path or trained.card["provenance"].get("pairs_file") or "")
     if not path.is_file():
         raise FormatError(f"the training pairs file {str(path)!r} of model {trained.name!r} does not exist; "
@@ -85,6 +87,49 @@ def export_model(trained, out_dir, report_dir=None, fortran=False, pairs_path=No
         corrections = CorrectionModel.from_document(document, str(twin)).predict(features, check_envelope=False)
         paths.update(write_fortran(document, Path(out_dir) / FORTRAN_DIR, features, corrections))
     return paths
+
+
+def _exported_fortran_inputs(coefficients_path, fortran_dir):
+    document = read_coefficients(coefficients_path)
+    prefix = fortran_name(document["model"]["name"])
+    features = read_features_file(Path(fortran_dir) / f"{prefix}_sample_features.txt")
+    model = CorrectionModel.from_document(document, str(coefficients_path))
+    return document, features, model.predict(features, check_envelope=False)
+
+
+def regenerated_fortran(coefficients_path, fortran_dir):
+    """The Fortran files of an exported model as this version's generator writes them.
+
+    Parameters
+    ----------
+    coefficients_path : str or Path
+        A coefficient file (NetCDF or JSON twin).
+    fortran_dir : str or Path
+        Its Fortran directory, whose sample features are kept (their corrections are
+        computed again by the runtime).
+
+    Returns
+    -------
+    dict of str -> (str, str)
+        As :func:`~surrogate3d.export.fortran.fortran_files`.
+    """
+    return fortran_files(*_exported_fortran_inputs(coefficients_path, fortran_dir))
+
+
+def refresh_fortran(coefficients_path, fortran_dir):
+    """Rewrite the Fortran files of an exported model with this version's generator.
+
+    ``models/default/fortran`` is refreshed this way whenever the generator changes
+    (``tests/test_shipped_model.py`` checks that it is).  Parameters as for
+    :func:`regenerated_fortran`.
+
+    Returns
+    -------
+    dict of str -> Path
+        As :func:`~surrogate3d.export.fortran.write_fortran`.
+    """
+    document, features, corrections = _exported_fortran_inputs(coefficients_path, fortran_dir)
+    return write_fortran(document, fortran_dir, features, corrections)
 
 
 def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran=False, pairs_path=None,

@@ -20,7 +20,7 @@ import numpy as np
 
 from ..errors import ValidationError
 from ..learn.models import BoostedCorrection, RidgeCorrection
-from ..runtime.document import smallest_int_dtype
+from ..core.coefficient_format import smallest_int_dtype
 
 
 def ridge_arrays(estimator):

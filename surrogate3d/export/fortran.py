@@ -38,9 +38,9 @@ from pathlib import Path
 import numpy as np
 
 from .._atomic import write_text_atomic
-from ..errors import ValidationError
-from ..runtime.document import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate, target_transforms
-from ..runtime.ridge import NEAR_CONSTANT
+from ..errors import FormatError, ValidationError
+from ..core.config import NEAR_CONSTANT
+from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate, target_transforms
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -867,6 +867,29 @@ def features_file_text(features):
                      [" ".join(_number(v) for v in row) for row in features]) + "\n"
 
 
+def read_features_file(path):
+    """The feature matrix of a sample-features file written by :func:`features_file_text`.
+
+    Raises
+    ------
+    surrogate3d.errors.FormatError
+        The file is missing, or its rows disagree with its header.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise FormatError(f"sample features file {str(path)!r} does not exist")
+    header, *rows = path.read_text().splitlines()
+    try:
+        shape = tuple(int(n) for n in header.split())
+        features = np.array([[float(v) for v in row.split()] for row in rows if row.strip()], dtype=np.float64)
+    except ValueError as exc:
+        raise FormatError(f"sample features file {str(path)!r} is not numbers ({exc})") from None
+    if features.reshape(-1, shape[-1] if shape else 1).shape != shape:
+        raise FormatError(f"sample features file {str(path)!r} announces shape {shape}; its rows give "
+                          f"{features.shape}")
+    return features
+
+
 def corrections_file_text(corrections):
     """Text of the expected corrections: one line per column, shortest round-trip decimals."""
     return "\n".join(" ".join(_number(v) for v in row) for row in np.asarray(corrections)) + "\n"
@@ -884,6 +907,25 @@ def fortran_sources(document):
             raise ValidationError(f"generated {name} has lines longer than {_LINE_LIMIT} characters at {long[:5]}; "
                                   "shorten the feature or target names")
     return sources
+
+
+def fortran_files(document, sample_features, sample_corrections):
+    """Names and texts of the Fortran module, the driver and the data files of a document.
+
+    Parameters are those of :func:`write_fortran`.
+
+    Returns
+    -------
+    dict of str -> (str, str)
+        ``module``, ``driver``, ``coefficients``, ``sample_features``,
+        ``sample_corrections`` -> (file name, text).
+    """
+    prefix = fortran_name(document["model"]["name"])
+    (module, module_text), (driver, driver_text) = fortran_sources(document).items()
+    return {"module": (module, module_text), "driver": (driver, driver_text),
+            "coefficients": (f"{prefix}.coefficients.txt", data_file_text(document)),
+            "sample_features": (f"{prefix}_sample_features.txt", features_file_text(sample_features)),
+            "sample_corrections": (f"{prefix}_sample_corrections.txt", corrections_file_text(sample_corrections))}
 
 
 def write_fortran(document, out_dir, sample_features, sample_corrections):
@@ -907,14 +949,8 @@ def write_fortran(document, out_dir, sample_features, sample_corrections):
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    prefix = fortran_name(document["model"]["name"])
-    (module, module_text), (driver, driver_text) = fortran_sources(document).items()
-    files = {"module": (module, module_text), "driver": (driver, driver_text),
-             "coefficients": (f"{prefix}.coefficients.txt", data_file_text(document)),
-             "sample_features": (f"{prefix}_sample_features.txt", features_file_text(sample_features)),
-             "sample_corrections": (f"{prefix}_sample_corrections.txt", corrections_file_text(sample_corrections))}
     paths = {}
-    for key, (name, text) in files.items():
+    for key, (name, text) in fortran_files(document, sample_features, sample_corrections).items():
         write_text_atomic(out_dir / name, text)
         paths[key] = out_dir / name
     return paths

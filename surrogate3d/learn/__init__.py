@@ -12,7 +12,9 @@ from .consistency import CorrectedFluxes, apply_correction, energy_residual
 from .cv import SceneSplit, correction_skill, grid_search, scene_folds, split_scenes
 from .model_directory import MODEL_FORMAT_VERSION, TrainedModel, TrainingRun, load_model, load_training_run
 from .models import MODEL_KINDS, BoostedCorrection, RidgeCorrection, make_estimator
-from .pairs_table import TARGETS, domain_groups, read_pairs_table
+from ..core.data_model import TARGETS
+from ..core.pairs_table import read_pairs_table
+from .pairs_table import domain_groups
 from .recipe import TrainingRecipe, parse_recipe, read_recipe
 from .train import train_models
 

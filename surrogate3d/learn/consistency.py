@@ -11,7 +11,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import ValidationError
-from .pairs_table import TARGETS
+from ..core.data_model import TARGETS
+from ..core.validation import check_array
 
 _TOTAL, _DIRECT, _DIFFUSE = "surface_downward_flux", "surface_downward_direct_flux", "surface_downward_diffuse_flux"
 _TOA, _ABSORPTION = "toa_upward_flux", "atmosphere_absorption"
@@ -179,9 +180,7 @@ def apply_correction(ica_flux, correction, surface_albedo, group, *, clip_nonneg
     if albedo.shape[0] != ica.shape[0] or labels.shape[0] != ica.shape[0]:
         raise ValidationError(f"surface_albedo and group must have {ica.shape[0]} samples; got "
                               f"{albedo.shape[0]} and {labels.shape[0]}")
-    if np.any((albedo < 0) | (albedo > 1)):
-        i = int(np.flatnonzero((albedo < 0) | (albedo > 1))[0])
-        raise ValidationError(f"surface_albedo must be in [0, 1]; got {albedo[i]!r} at sample {i}")
+    check_array("surface_albedo", albedo, 0.0, 1.0, error=ValidationError)
     free = np.ones(ica.shape[0], dtype=bool) if clear_sky is None else ~np.asarray(clear_sky, dtype=bool).reshape(-1)
     if free.shape[0] != ica.shape[0]:
         raise ValidationError(f"clear_sky must have {ica.shape[0]} samples; got {free.shape[0]}")

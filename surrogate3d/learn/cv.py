@@ -14,6 +14,7 @@ from sklearn.base import clone
 from sklearn.model_selection import GroupKFold
 from tqdm import tqdm
 
+from ..core.validation import check_number
 from ..errors import ValidationError
 from .pairs_table import scene_table
 
@@ -109,8 +110,7 @@ def split_scenes(pairs, held_out_fraction, seed=0):
     -------
     SceneSplit
     """
-    if not 0.0 <= held_out_fraction < 1.0:
-        raise ValidationError(f"held_out_fraction must be in [0, 1); got {held_out_fraction!r}")
+    check_number("held_out_fraction", held_out_fraction, 0.0, 1.0, high_open=True, error=ValidationError)
     table = scene_table(pairs)
     rng = np.random.default_rng(seed)
     held = set()
@@ -154,7 +154,8 @@ def scene_folds(scenes, n_folds):
     scenes = np.asarray(scenes).astype(str)
     n_scenes = np.unique(scenes).size
     if n_scenes < 2:
-        raise ValidationError(f"cross-validation needs at least 2 groups (training scenes, or families); got {n_scenes}")
+        raise ValidationError(f"cross-validation needs at least 2 groups (training scenes, or families); "
+                              f"got {n_scenes}")
     folds = GroupKFold(n_splits=min(int(n_folds), n_scenes))
     return [(train, test) for train, test in folds.split(np.zeros(scenes.size), groups=scenes)]
 

@@ -18,11 +18,10 @@ from pathlib import Path
 import joblib
 
 from .._atomic import atomic_path, write_text_atomic
+from ..core.data_model import MODEL_FORMAT_VERSION
 from ..errors import FormatError
 from .models import MODEL_KINDS
 
-#: Version of the model directory layout and of model.json.
-MODEL_FORMAT_VERSION = "1.0"
 MODEL_CARD = "model.json"
 ESTIMATOR_FILE = "estimator.joblib"
 TRAINING_FILE = "training.json"

@@ -17,7 +17,6 @@ The fitted attributes are the contract with the coefficient exporter; they are
 documented in each class and in ``docs/methods/models-and-metrics.md``.
 """
 
-import math
 import numbers
 
 import numpy as np
@@ -26,46 +25,14 @@ from sklearn.ensemble import HistGradientBoostingRegressor
 from sklearn.utils import check_array
 from sklearn.utils.validation import check_is_fitted
 
+from ..core.config import CLEAR_SKY_TOLERANCE, SINGULAR_CUTOFF
+from ..core.validation import check_bool, check_integer, check_number, check_option, fail, first_nonfinite
 from ..errors import ParameterError, ValidationError
 from ..runtime.envelope import EnvelopeCheck, TrainingEnvelope
 from ..runtime.ridge import near_constant
-from .pairs_table import TARGETS, feature_matrix, feature_names, target_matrix
+from ..core.data_model import TARGETS
+from .pairs_table import feature_matrix, feature_names, target_matrix
 from .transforms import apply_transforms, check_scales, check_transforms, offsets_and_scales, resolve_transforms
-
-#: Relative cut-off below which singular values count as zero when ``alpha`` is 0.
-_SINGULAR_CUTOFF = 1e-12
-
-#: Largest magnitude of a clear-sky gate feature that still counts as zero.  The gate
-#: features of the recipes (cloud fraction, neighbourhood cloud fraction, slant minus
-#: vertical optical depth) are exactly 0 in clear sky up to round-off, about 1e-16 of
-#: the clear-sky optical depth; 1e-9 is far above that and far below any cloud that
-#: matters radiatively.
-CLEAR_SKY_TOLERANCE = 1e-9
-
-
-def _check_real(name, value, low, high, *, low_open=False, high_open=False, integer=False):
-    """Raise ParameterError unless ``value`` is a (whole) number within the interval."""
-    kind = "an integer" if integer else "a finite number"
-    ok_type = (isinstance(value, numbers.Integral) if integer else isinstance(value, numbers.Real))
-    if isinstance(value, bool) or not ok_type or (not integer and not math.isfinite(value)):
-        ok = False
-    else:
-        ok = (value > low if low_open else value >= low) and (value < high if high_open else value <= high)
-    if not ok:
-        interval = (("(" if low_open else "[") + f"{_number(low)}, {_number(high)}"
-                    + (")" if high_open or math.isinf(high) else "]"))
-        raise ParameterError(f"{name} must be {kind} in {interval}; got {value!r}")
-
-
-def _number(value):
-    if math.isinf(value):
-        return "inf"
-    return str(int(value)) if float(value).is_integer() else f"{value:g}"
-
-
-def _check_bool(name, value):
-    if not isinstance(value, (bool, np.bool_)):
-        raise ParameterError(f"{name} must be true or false; got {value!r}")
 
 
 def _as_matrix(name, values, min_samples=1, ensure_2d=True):
@@ -75,12 +42,11 @@ def _as_matrix(name, values, min_samples=1, ensure_2d=True):
     """
     raw = np.asarray(values)  # sparse matrices become 0-d object arrays, left to check_array
     if raw.dtype.kind in "fiu" and raw.ndim in (1, 2):
-        bad = ~np.isfinite(raw)
-        if bad.any():
-            i, *j = np.argwhere(bad)[0]
+        found = first_nonfinite(raw)
+        if found is not None:
+            (i, *j), count = found
             where = f"sample {i}" + (f", column {j[0]}" if j else "")
-            raise ValidationError(f"{name} contains NaN or inf at {where}: {float(raw[(i, *j)])!r} "
-                                  f"({int(bad.sum())} values in all)")
+            fail(name, "free of NaN and inf", raw[(i, *j)], where, count, ValidationError)
     try:
         return check_array(values, dtype=np.float64, ensure_2d=ensure_2d, ensure_min_samples=min_samples,
                            input_name=name)
@@ -378,8 +344,8 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.target_transforms = target_transforms
 
     def _check_parameters(self):
-        _check_real("alpha", self.alpha, 0.0, math.inf)
-        _check_bool("interactions", self.interactions)
+        check_number("alpha", self.alpha, 0.0)
+        check_bool("interactions", self.interactions)
         _check_feature_list("interaction_features", self.interaction_features, 2)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
         check_transforms(self.target_transforms)
@@ -475,7 +441,7 @@ def _ridge_solve(T, Y, alpha, weights=None):
     if alpha > 0:
         shrink = s / (s * s + alpha)
     else:
-        kept = s > _SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
+        kept = s > SINGULAR_CUTOFF * (s[0] if s.size else 0.0)
         shrink = np.where(kept, 1.0 / np.where(kept, s, 1.0), 0.0)
     coef = (Vt.T @ (shrink[:, None] * (U.T @ (root * (Y - target_mean))))).T
     return coef, target_mean - coef @ term_mean
@@ -564,12 +530,12 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         self.target_transforms = target_transforms
 
     def _check_parameters(self):
-        _check_real("max_iter", self.max_iter, 1, math.inf, integer=True)
-        _check_real("learning_rate", self.learning_rate, 0.0, 1.0, low_open=True)
-        _check_real("max_leaf_nodes", self.max_leaf_nodes, 2, math.inf, integer=True)
-        _check_real("min_samples_leaf", self.min_samples_leaf, 1, math.inf, integer=True)
-        _check_real("l2_regularization", self.l2_regularization, 0.0, math.inf)
-        _check_real("random_state", self.random_state, 0, 2**32 - 1, integer=True)
+        check_integer("max_iter", self.max_iter, 1)
+        check_number("learning_rate", self.learning_rate, 0.0, 1.0, low_open=True)
+        check_integer("max_leaf_nodes", self.max_leaf_nodes, 2)
+        check_integer("min_samples_leaf", self.min_samples_leaf, 1)
+        check_number("l2_regularization", self.l2_regularization, 0.0)
+        check_integer("random_state", self.random_state, 0, 2**32 - 1)
         _check_feature_list("clear_sky_features", self.clear_sky_features, 0)
         check_transforms(self.target_transforms)
 
@@ -643,9 +609,7 @@ def make_estimator(kind, params=None):
     surrogate3d.errors.ParameterError
         Unknown kind or parameter, or a value out of range (named in the message).
     """
-    if kind not in MODEL_KINDS:
-        raise ParameterError(f"model kind must be one of {sorted(MODEL_KINDS)}; got {kind!r}")
-    cls = MODEL_KINDS[kind]
+    cls = MODEL_KINDS[check_option("model kind", kind, sorted(MODEL_KINDS))]
     allowed = sorted(cls().get_params())
     unknown = sorted(set(params or {}) - set(allowed))
     if unknown:

@@ -42,7 +42,8 @@ from pathlib import Path
 
 from ..errors import FormatError, ParameterError, ValidationError
 from .models import MODEL_KINDS, make_estimator
-from .pairs_table import TARGETS, check_has_features, feature_names
+from ..core.data_model import TARGETS
+from .pairs_table import check_has_features, feature_names
 from .transforms import check_transform, transform_features
 
 _TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models",

@@ -17,7 +17,8 @@ from .. import __version__
 from .cv import grid_search, split_scenes
 from .model_directory import MODEL_FORMAT_VERSION, file_sha256, write_model, write_training_record
 from .models import make_estimator
-from .pairs_table import feature_matrix, feature_recipe, read_pairs_table, scene_labels, select_scenes, target_matrix
+from ..core.pairs_table import feature_recipe, read_pairs_table
+from .pairs_table import feature_matrix, scene_labels, select_scenes, target_matrix
 from .recipe import check_recipe_against_pairs, read_recipe
 
 

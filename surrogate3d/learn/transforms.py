@@ -26,6 +26,7 @@ import numbers
 
 import numpy as np
 
+from ..core.validation import check_number, check_option
 from ..errors import ParameterError, ValidationError
 
 _KEYS = {"scale_feature", "scale_floor", "offset_features", "fit_errors"}
@@ -64,15 +65,13 @@ def check_transform(spec, where):
     if scale is not None and not (isinstance(scale, str) and scale):
         raise ParameterError(f"{where}['scale_feature'] must be a feature name; got {scale!r}")
     floor = spec.get("scale_floor", 0.0)
-    if isinstance(floor, bool) or not isinstance(floor, numbers.Real) or not (math.isfinite(floor) and floor >= 0):
-        raise ParameterError(f"{where}['scale_floor'] must be a finite number >= 0; got {floor!r}")
+    check_number(f"{where}['scale_floor']", floor, 0.0, None)
     offsets = spec.get("offset_features", {})
     if not isinstance(offsets, dict) or not all(isinstance(k, str) and k for k in offsets) or not all(
             isinstance(c, numbers.Real) and not isinstance(c, bool) and math.isfinite(c) for c in offsets.values()):
         raise ParameterError(f"{where}['offset_features'] must be a dict of feature name -> finite number; "
                              f"got {offsets!r}")
-    if spec.get("fit_errors", "absolute") not in FIT_ERRORS:
-        raise ParameterError(f"{where}['fit_errors'] must be one of {list(FIT_ERRORS)}; got {spec['fit_errors']!r}")
+    check_option(f"{where}['fit_errors']", spec.get("fit_errors", "absolute"), FIT_ERRORS)
 
 
 def resolve_transforms(transforms, n_target, feature_names):

@@ -1,6 +1,6 @@
 """Training pairs at host-model resolution: coarse-graining, the feature library, feature recipes.
 
-``features``, ``slant_path`` and ``recipe`` import only numpy and the standard library
+``features`` and ``recipe`` import only numpy and the standard library
 (the numpy-only runtime imports them), so this package loads the xarray-based parts
 (coarse-graining, the pair table) only when they are first used.
 """
@@ -9,7 +9,7 @@ from .features import FEATURES, compute_features, validate_host_fields
 from .recipe import RECIPE_VERSION, FeatureRecipe, default_recipe
 
 _LAZY = {
-    "build_pairs": "build", "read_pairs": "build", "TARGETS": "build", "FORMAT_VERSION": "build",
+    "build_pairs": "build", "TARGETS": "build", "FORMAT_VERSION": "build",
     "assemble_host_fields": "host_fields", "scene_host_fields": "coarsen", "coarsen_result": "coarsen",
     "host_factors": "coarsen", "allowed_host_resolutions": "coarsen",
 }

@@ -3,7 +3,7 @@
 See ``docs/pairs-format.md`` for every variable.  :func:`build_pairs` reads an archive
 directory of scene files, coarse-grains every scene and sun geometry holding both a
 3D and an independent-column result to each host resolution, computes the features,
-the 3D-minus-independent-column targets and the baseline predictions; :func:`read_pairs`
+the 3D-minus-independent-column targets and the baseline predictions; :func:`surrogate3d.core.pairs_table.read_pairs`
 reads a written table back.
 """
 
@@ -17,8 +17,11 @@ import xarray as xr
 from tqdm import tqdm
 
 from .. import __version__
-from ..archive.netcdf import check_format_version, open_dataset, read_scene, scene_files
-from ..archive.results import COLUMN_FLUXES, completed, select_result, stderr_name
+from ..archive.netcdf import read_scene, scene_files
+from ..archive.results import completed, select_result
+from ..core.data_model import COLUMN_FLUXES
+from ..core.run_result import stderr_name
+from ..core.validation import check_number, check_option
 from ..baselines import NonlocalIndependentPixel, TiltedIndependentColumn
 from ..baselines.nonlocal_pixel import radiative_smoothing_scale
 from ..errors import FormatError, ParameterError
@@ -26,18 +29,9 @@ from .coarsen import block_mean, coarsen_result, host_factors
 from .features import compute_features
 from .host_fields import assemble_host_fields
 from .recipe import DEFAULT_PARAMETERS, HOST_FLUX_KINDS, FeatureRecipe, default_recipe
-from .targets import TARGETS
+from ..core.data_model import PAIRS_FORMAT_VERSION as FORMAT_VERSION
+from ..core.data_model import TARGETS
 
-#: Version of the pair-table layout.
-FORMAT_VERSION = "1.0"
-
-#: Variables every pair table holds (read_pairs checks them).
-REQUIRED_VARIABLES = (
-    "features", "target_value", "target_standard_error", "independent_column_flux", "full_3d_flux",
-    "baseline_tilted_independent_column", "baseline_nonlocal_independent_pixel", "scene", "regime", "seed",
-    "solar_zenith_angle", "solar_beam_azimuth", "host_resolution", "host_ix", "host_iy", "host_nx", "host_ny",
-    "cloud_fraction", "surface_albedo", "incident_flux",
-)
 
 _SAMPLE_META = {
     "scene": ("-", "scene identifier (scene file stem)"),
@@ -69,15 +63,7 @@ _TARGET_VARS = {
 
 def _check_resolutions(host_resolutions):
     values = [host_resolutions] if np.isscalar(host_resolutions) else list(host_resolutions)
-    out = []
-    for value in values:
-        try:
-            v = float(value)
-        except (TypeError, ValueError):
-            v = math.nan
-        if not (math.isfinite(v) and v > 0):
-            raise ParameterError(f"host_resolutions must be positive host column sizes in m; got {value!r}")
-        out.append(v)
+    out = [check_number("host_resolutions", value, 0.0, None, low_open=True) for value in values]
     if not out:
         raise ParameterError("host_resolutions is empty; give at least one host column size in m, e.g. 1000")
     if len(set(out)) != len(out):
@@ -105,8 +91,7 @@ def with_host_fluxes(recipe, host_fluxes):
     """
     if host_fluxes is None or host_fluxes == recipe.parameters["host_fluxes"]:
         return recipe
-    if host_fluxes not in HOST_FLUX_KINDS:
-        raise ParameterError(f"host_fluxes must be one of {', '.join(HOST_FLUX_KINDS)}; got {host_fluxes!r}")
+    check_option("host_fluxes", host_fluxes, HOST_FLUX_KINDS)
     if recipe.parameters["host_fluxes"] != DEFAULT_PARAMETERS["host_fluxes"]:
         raise ParameterError(f"host_fluxes {host_fluxes!r} contradicts the feature recipe {recipe.name!r}, whose "
                              f"host_fluxes is {recipe.parameters['host_fluxes']!r}")
@@ -249,9 +234,25 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
 
     Examples
     --------
-    >>> pairs = build_pairs("archive", [1000.0, 2000.0], quiet=True)   # doctest: +SKIP
-    >>> pairs.sizes["target"]                                          # doctest: +SKIP
-    5
+    An archive of one scene (a block of cloud) with both results at one sun, paired at
+    400 m host columns:
+
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from surrogate3d.archive import insert_result, write_scene
+    >>> from surrogate3d.scenes import make_scene
+    >>> from surrogate3d.solvers import solve_monte_carlo
+    >>> extinction = np.zeros((1, 4, 8, 8))
+    >>> extinction[0, 1:3, 2:5, 2:5] = 0.02
+    >>> scene = make_scene(extinction, 1.0, 0.85, [0, 250, 500, 750, 1000], 100, 100)
+    >>> for independent_columns in (False, True):
+    ...     run = solve_monte_carlo(scene, 30.0, photons=4000, independent_columns=independent_columns)
+    ...     scene = insert_result(scene, run)
+    >>> archive = Path(tempfile.mkdtemp())
+    >>> _ = write_scene(scene, archive / "block.nc")
+    >>> pairs = build_pairs(archive, [400.0], quiet=True)
+    >>> pairs.sizes["sample"], pairs.sizes["target"]
+    (4, 5)
     """
     resolutions = _check_resolutions(host_resolutions)
     recipe = with_host_fluxes(_check_recipe(recipe), host_fluxes)
@@ -317,34 +318,4 @@ def _assemble(blocks, recipe, fingerprint, skipped, resolutions):
         "skipped": json.dumps(skipped),
         "source": f"surrogate3d {__version__} pairs",
     })
-    return ds
-
-
-def read_pairs(path):
-    """Read a pair table written by ``surrogate3d pairs`` (or :func:`build_pairs` + write_dataset).
-
-    Parameters
-    ----------
-    path : str or Path
-
-    Returns
-    -------
-    xarray.Dataset
-        Loaded into memory; string coordinates and labels as Python ``str``.
-
-    Raises
-    ------
-    surrogate3d.errors.FormatError
-        The file is missing or unreadable, of another format version, or lacks variables.
-    """
-    ds = open_dataset(path, what="pair table")
-    check_format_version(ds, path, expected=FORMAT_VERSION, what="pair table")
-    missing = [v for v in REQUIRED_VARIABLES if v not in ds.variables]
-    missing += [c for c in ("feature", "target") if c not in ds.coords]
-    if missing:
-        raise FormatError(f"pair table {str(path)!r} lacks variable(s) {', '.join(missing)}")
-    ds = ds.assign_coords(feature=[str(f) for f in ds["feature"].values],
-                          target=[str(t) for t in ds["target"].values])
-    for name in ("scene", "regime"):
-        ds[name] = ("sample", np.array([str(v) for v in ds[name].values], dtype=object), ds[name].attrs)
     return ds

@@ -10,7 +10,8 @@ import math
 
 import numpy as np
 
-from ..archive.results import COLUMN_FLUXES, stderr_name
+from ..core.data_model import COLUMN_FLUXES
+from ..core.run_result import stderr_name
 from ..errors import ParameterError
 from ..scenes.model import cloud_mask, layer_thickness, spacing
 

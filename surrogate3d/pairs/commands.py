@@ -23,7 +23,7 @@ def register(sub):
 
 def run(args):
     from .._outputs import check_output_file, staged_file
-    from ..archive.netcdf import write_dataset
+    from ..core.netcdf import write_dataset
     from .build import build_pairs
     from .recipe import FeatureRecipe
 

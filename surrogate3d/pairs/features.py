@@ -46,8 +46,11 @@ import math
 import numpy as np
 
 from ..errors import ValidationError
-from .slant_path import area_path_weights, gather_layers, path_weights, scatter_layers, slant_sum
-from .targets import TARGETS
+from ..core.slant_path import (area_path_weights, check_solar_zenith_angle, gather_layers, path_weights,
+                               scatter_layers, slant_sum)
+from ..core.data_model import TARGETS
+from ..core.config import CELL_BLOCK
+from ..core.validation import check_array, check_number
 
 #: Fluxes a host passes as ``independent_column_<flux>`` (the correction targets).
 INDEPENDENT_COLUMN_FLUXES = TARGETS
@@ -64,9 +67,6 @@ _ALLOWED_RANGE = {**{key: (0.0, np.inf) for key in ("layer_optical_depth", "laye
                                                     "column_optical_depth_std", "cloud_edge_length")},
                   **{key: (0.0, 1.0) for key in ("layer_cloud_fraction", "total_cloud_fraction", "surface_albedo")}}
 
-
-#: Cells per block of rows in the stencils that work block by block (fits in cache).
-_BLOCK_CELLS = 1 << 14
 
 
 def _is_plane_key(key):
@@ -207,7 +207,7 @@ def _distance_to(targets, dx, dy, reach):
     dist2 = row2.copy()
     padded = np.concatenate([row2[ny - ky:], row2, row2[:ky]], axis=0)
     # Column pass one block of rows at a time, so the rows it reads stay in the cache.
-    rows = max(1, _BLOCK_CELLS // nx)
+    rows = max(1, CELL_BLOCK // nx)
     for start in range(0, ny, rows):
         out = dist2[start:start + rows]
         shifted = np.empty_like(out)
@@ -737,7 +737,8 @@ STAIRCASE_TO_EUCLIDEAN = math.pi / 4.0
 
 
 def _vertical_blocks(fields):
-    """Blocks of each host column's own layers (flat), ``loose``, the in-cloud relative variance and overlap exponent."""
+    """Blocks of each host column's own layers (flat), ``loose``, the in-cloud relative variance and
+    overlap exponent."""
     def compute():
         fraction = fields["layer_cloud_fraction"]
         blocks, loose = _blocks_list(fraction, _cloud_layers(fields))
@@ -745,7 +746,8 @@ def _vertical_blocks(fields):
         clear = np.ones(n)
         for _, index, cover, _, _ in blocks:
             clear[index] *= 1.0 - cover
-        gamma = overlap_exponent(fields["total_cloud_fraction"], clear.reshape(np.shape(fields["total_cloud_fraction"])))
+        total = fields["total_cloud_fraction"]
+        gamma = overlap_exponent(total, clear.reshape(np.shape(total)))
         gamma = gamma.reshape(n)
         v = _relative_variance_of_blocks(fields["column_optical_depth_std"], blocks, n, gamma)
         return blocks, loose, v, gamma
@@ -1183,11 +1185,8 @@ def validate_host_fields(fields, keys=None):
         if value.ndim != 0 or not np.isfinite(value):
             raise ValidationError(f"host_fields[{key!r}] must be a finite scalar; got {fields[key]!r}")
     for key in ("dx", "dy"):
-        if float(fields[key]) <= 0.0:
-            raise ValidationError(f"host_fields[{key!r}] (host column size in m) must be positive; got {fields[key]!r}")
-    zenith = float(fields["solar_zenith_angle"])
-    if not 0.0 <= zenith < 90.0:
-        raise ValidationError(f"host_fields['solar_zenith_angle'] must be in [0, 90) degree; got {zenith!r}")
+        check_number(f"host_fields[{key!r}]", fields[key], 0.0, None, low_open=True, error=ValidationError)
+    check_solar_zenith_angle(fields["solar_zenith_angle"], "host_fields['solar_zenith_angle']", ValidationError)
     shape2d = None
     for key in sorted(k for k in fields if _is_plane_key(k)):
         value = np.asarray(fields[key])
@@ -1223,32 +1222,30 @@ def validate_host_fields(fields, keys=None):
         lowest, highest = _min_max(value) if value.size else (low, high)
         if np.isfinite(lowest) and np.isfinite(highest) and lowest >= low and highest <= high:
             continue
-        bad = ~np.isfinite(value) | (value < low) | (value > high)
-        if bad.any():
-            idx = tuple(int(i) for i in np.argwhere(bad)[0])
-            raise ValidationError(f"host_fields[{key!r}] is not finite or out of range at index {idx}: "
-                                  f"{float(value[idx])!r}")
+        check_array(f"host_fields[{key!r}]", value, None if np.isinf(low) else low, None if np.isinf(high) else high,
+                    error=ValidationError)
     return tuple(int(n) for n in shape2d)
 
 
 def _min_max(value):
     """Minimum and maximum (NaN if any value is NaN), reading each cache-sized chunk once."""
     flat = value.reshape(-1)
-    chunk = 8 * _BLOCK_CELLS
+    chunk = 8 * CELL_BLOCK
     parts = [(part.min(), part.max()) for part in (flat[i:i + chunk] for i in range(0, flat.size, chunk))]
     lows, highs = zip(*parts)
     return np.min(lows), np.max(highs)
 
 
-def compute_features(host_fields, recipe=None):
+def compute_features(host_fields, recipe):
     """Feature matrix of a host grid.
 
     Parameters
     ----------
     host_fields : dict of ndarray
         Host-model fields (see the module docstring); the grid is periodic.
-    recipe : surrogate3d.pairs.recipe.FeatureRecipe, optional
-        Ordered features and their parameters; default :func:`~surrogate3d.pairs.recipe.default_recipe`.
+    recipe : surrogate3d.pairs.recipe.FeatureRecipe
+        Ordered features and their parameters (:func:`~surrogate3d.pairs.recipe.default_recipe` for
+        the default ones).
 
     Returns
     -------
@@ -1271,10 +1268,6 @@ def compute_features(host_fields, recipe=None):
     >>> compute_features(fields, FeatureRecipe(["log_column_optical_depth"])).shape
     (12, 1)
     """
-    if recipe is None:
-        from .recipe import default_recipe
-
-        recipe = default_recipe()
     keys = set()
     for name in recipe.features:
         keys.update(FEATURES[name].keys)

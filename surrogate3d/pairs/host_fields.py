@@ -10,7 +10,8 @@ import math
 
 import numpy as np
 
-from ..errors import ParameterError
+from ..core.slant_path import check_solar_zenith_angle
+from ..core.validation import check_option
 from ..scenes.model import cloud_mask, layer_thickness
 from ..solvers.two_stream import delta_eddington
 from .coarsen import HOST_FLUXES, block_mean, coarsen_result, host_factors, scene_host_fields
@@ -88,9 +89,7 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
     Joseph, J. H., W. J. Wiscombe and J. A. Weinman, 1976: The delta-Eddington
     approximation for radiative flux transfer. J. Atmos. Sci., 33, 2452-2459.
     """
-    zenith = float(solar_zenith_angle)
-    if not (math.isfinite(zenith) and 0.0 <= zenith < 90.0):
-        raise ParameterError(f"solar_zenith_angle must be in [0, 90) degree; got {solar_zenith_angle!r}")
+    zenith = check_solar_zenith_angle(solar_zenith_angle)
     fy, fx = host_factors(scene, host_resolution)
     mu0 = math.cos(math.radians(zenith))
     cloudy = cloud_mask(scene)
@@ -128,8 +127,7 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
 
 
 def _check_host_fluxes(host_fluxes):
-    if host_fluxes not in HOST_FLUX_KINDS:
-        raise ParameterError(f"host_fluxes must be one of {', '.join(HOST_FLUX_KINDS)}; got {host_fluxes!r}")
+    check_option("host_fluxes", host_fluxes, HOST_FLUX_KINDS)
 
 
 def assemble_host_fields(scene, independent_column, host_resolution, host_fluxes="monte_carlo"):

@@ -6,14 +6,13 @@ a version so that a file written by a later, incompatible library is refused.
 """
 
 import json
-import math
 from pathlib import Path
 
+from ..core.data_model import RECIPE_VERSION
+from ..core.validation import check_number, check_option, fail
 from ..errors import FormatError, ParameterError
 from .features import DEFAULT_FEATURES, FEATURES, column_name
 
-#: Version of the recipe layout (and of the feature definitions it refers to).
-RECIPE_VERSION = 1
 
 #: Parameters of the features and their defaults.
 DEFAULT_PARAMETERS = {
@@ -28,35 +27,24 @@ DEFAULT_PARAMETERS = {
 #: Kinds of independent-column fluxes a host passes (``docs/features.md``, "Host fluxes").
 HOST_FLUX_KINDS = ("monte_carlo", "two_stream_host")
 
-_PARAMETER_RULES = {
-    "neighbour_radii": "a non-empty list of distinct positive distances in m",
-    "edge_cloud_fraction": "a cloud fraction in (0, 1]",
-    "edge_distance_cap": "a positive distance in m",
-    "layer_cloud_fraction_threshold": "a cloud fraction in [0, 1)",
-    "cloud_side_distance": "a positive distance in m",
-    "host_fluxes": "one of " + ", ".join(repr(k) for k in HOST_FLUX_KINDS),
-}
-
-
-def _finite(value):
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+#: Declared ranges of the real feature parameters: name -> (low, high, low_open, high_open).
+_PARAMETER_RANGES = {"edge_cloud_fraction": (0.0, 1.0, True, False), "edge_distance_cap": (0.0, None, True, False),
+                     "layer_cloud_fraction_threshold": (0.0, 1.0, False, True),
+                     "cloud_side_distance": (0.0, None, True, False)}
 
 
 def _check_parameter(name, value):
-    if name == "neighbour_radii":
-        ok = (isinstance(value, (list, tuple)) and len(value) > 0 and all(_finite(r) and r > 0 for r in value)
-              and len(set(float(r) for r in value)) == len(value))
-        return [float(r) for r in value] if ok else None
+    label = f"feature parameter {name}"
     if name == "host_fluxes":
-        return value if isinstance(value, str) and value in HOST_FLUX_KINDS else None
-    if not _finite(value):
-        return None
-    value = float(value)
-    ok = {"edge_cloud_fraction": 0.0 < value <= 1.0,
-          "edge_distance_cap": value > 0.0,
-          "layer_cloud_fraction_threshold": 0.0 <= value < 1.0,
-          "cloud_side_distance": value > 0.0}[name]
-    return value if ok else None
+        return check_option(label, value, HOST_FLUX_KINDS)
+    if name == "neighbour_radii":
+        if not isinstance(value, (list, tuple)) or not value:
+            fail(label, "a non-empty list of distinct positive distances in m", value)
+        radii = [check_number(f"{label}[{i}]", r, 0.0, None, low_open=True) for i, r in enumerate(value)]
+        if len(set(radii)) != len(radii):
+            fail(label, "a list of distinct distances in m", value)
+        return radii
+    return check_number(label, value, *_PARAMETER_RANGES[name])
 
 
 class FeatureRecipe:
@@ -108,11 +96,7 @@ class FeatureRecipe:
                                  f"{', '.join(DEFAULT_PARAMETERS)}")
         merged = {}
         for key, default in DEFAULT_PARAMETERS.items():
-            value = _check_parameter(key, given.get(key, default))
-            if value is None:
-                raise ParameterError(f"feature parameter {key} must be {_PARAMETER_RULES[key]}; "
-                                     f"got {given[key]!r}")
-            merged[key] = value
+            merged[key] = _check_parameter(key, given.get(key, default))
         self.features = tuple(features)
         self.parameters = merged
         self.name = str(name)

@@ -5,17 +5,23 @@ Imports only numpy, the standard library and the numpy-only parts of surrogate3d
 :mod:`surrogate3d.pairs.recipe`), so a host model can use it without scikit-learn,
 xarray or numba.
 
->>> from surrogate3d.runtime import load_coefficients
->>> model = load_coefficients("export/ridge.coefficients.json")    # doctest: +SKIP
->>> corrections = model.predict(features)         # (n_column, n_feature) -> (n_column, n_target)
->>> corrections = model.predict_host(host_fields)  # features computed from host fields first
->>> model.envelope_check(features).outside         # columns unlike the training data (flagged, not refused)
+The shipped default correction and its sample columns (paths in a checkout):
 
+>>> import numpy as np
+>>> from surrogate3d.runtime import load_coefficients
+>>> model = load_coefficients("models/default/ridge.coefficients.json")
+>>> features = np.loadtxt("models/default/fortran/ridge_sample_features.txt", skiprows=1)
+>>> model.predict(features).shape            # (n_column, n_feature) -> (n_column, n_target)
+(64, 5)
+>>> model.envelope_check(features).outside.shape   # columns unlike the training data (flagged, not refused)
+(64,)
+
+``model.predict_host(host_fields)`` computes the features from host-model fields first.
 ``docs/host-model-guide.md`` shows both, and the Fortran module; ``docs/export-format.md``
 documents the file.
 """
 
-from .document import FORMAT_NAME, FORMAT_VERSION
+from ..core.coefficient_format import FORMAT_NAME, FORMAT_VERSION
 from .model import CorrectionModel, load_coefficients
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "CorrectionModel", "load_coefficients"]

@@ -25,8 +25,9 @@ weigh most.
 
 The envelope's arrays are rounded to single precision (ranges outward, so every training
 column stays inside) before the threshold is measured with them: seven digits are more
-than a flag needs, and the rounded doubles compress to half the size in the JSON twin.  A column whose clear-sky gate holds is never flagged: its zero correction
-is a physical rule, not an extrapolation.  A missing (NaN) feature is outside.
+than a flag needs, and the rounded doubles compress to half the size in the JSON twin.  A
+column whose clear-sky gate holds is never flagged: its zero correction is a physical rule,
+not an extrapolation.  A missing (NaN) feature is outside.
 
 ``docs/export-format.md`` stores the fields; ``docs/methods/models-and-metrics.md``
 gives the formula and how often held-out and left-out columns are flagged.
@@ -37,29 +38,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import FormatError, ValidationError
+from ..core.coefficient_format import ENVELOPE_ARRAYS as ARRAYS
+from ..core.coefficient_format import ENVELOPE_FIELD
+from ..core.coefficient_format import ENVELOPE_SCALARS as SCALARS
+from ..core.config import ENVELOPE_COMPONENTS, ENVELOPE_QUANTILE, ENVELOPE_VARIANCE_FLOOR, ROW_BLOCK
+from ..core.validation import check_integer, check_number
+from ..errors import ValidationError
 from .ridge import near_constant
-
-#: Principal components whose own variance the distance keeps (at most the feature count).
-#: Six keep a ridge coefficient file of the default recipe (32 features) within 20 kB.
-COMPONENTS = 6
-
-#: Quantile of the training columns' distances beyond which a column is flagged.
-QUANTILE = 0.99
-
-#: Smallest variance (of standardized features) any direction is given, so that
-#: directions without training variance flag departures instead of dividing by zero.
-VARIANCE_FLOOR = 1e-6
-
-#: Columns per block of the checks: the block's arrays then stay in cache (twice as fast).
-_BLOCK_ROWS = 1024
-
-#: Arrays of the envelope: name -> dimension names.
-ARRAYS = {"feature_min": ("feature",), "feature_max": ("feature",), "center": ("feature",),
-          "scale": ("feature",), "components": ("component", "feature"), "component_variance": ("component",)}
-
-#: Numbers of the envelope besides its arrays.
-SCALARS = ("residual_variance", "distance_threshold", "quantile", "n_samples")
 
 
 class EnvelopeWarning(UserWarning):
@@ -129,9 +114,9 @@ class TrainingEnvelope:
         Leading orthonormal eigenvectors of the correlation matrix of the standardized
         training features.
     component_variance : ndarray (n_component,)
-        Their eigenvalues, at least :data:`VARIANCE_FLOOR`.
+        Their eigenvalues, at least :data:`~surrogate3d.core.config.ENVELOPE_VARIANCE_FLOOR`.
     residual_variance : float
-        Mean of the other eigenvalues, at least :data:`VARIANCE_FLOOR`.
+        Mean of the other eigenvalues, at least :data:`~surrogate3d.core.config.ENVELOPE_VARIANCE_FLOOR`.
     distance_threshold : float
         The ``quantile`` of the training columns' distances.
     quantile : float
@@ -169,7 +154,7 @@ class TrainingEnvelope:
         self.n_samples = int(n_samples)
 
     @classmethod
-    def fit(cls, X, n_components=COMPONENTS, quantile=QUANTILE):
+    def fit(cls, X, n_components=ENVELOPE_COMPONENTS, quantile=ENVELOPE_QUANTILE):
         """The envelope of training columns.
 
         Parameters
@@ -189,10 +174,8 @@ class TrainingEnvelope:
         if X.ndim != 2 or X.shape[0] < 2 or X.shape[1] < 1 or not np.all(np.isfinite(X)):
             raise ValidationError(f"the training envelope needs a finite (n_sample >= 2, n_feature >= 1) matrix; "
                                   f"got shape {X.shape}")
-        if isinstance(n_components, bool) or not isinstance(n_components, int) or n_components < 1:
-            raise ValidationError(f"n_components must be an integer >= 1; got {n_components!r}")
-        if not 0.0 < quantile <= 1.0:
-            raise ValidationError(f"quantile must be in (0, 1]; got {quantile!r}")
+        check_integer("n_components", n_components, 1, error=ValidationError)
+        check_number("quantile", quantile, 0.0, 1.0, low_open=True, error=ValidationError)
         center = X.mean(axis=0)
         scale = X.std(axis=0)
         scale[near_constant(center, scale)] = 1.0
@@ -204,8 +187,9 @@ class TrainingEnvelope:
         rest = eigenvalues[r:]
         envelope = cls(_single(X.min(axis=0), -np.inf), _single(X.max(axis=0), np.inf), _single(center),
                        _single(scale), _single(eigenvectors[:, :r].T),
-                       _single(np.maximum(eigenvalues[:r], VARIANCE_FLOOR), np.inf),
-                       max(float(rest.mean()) if rest.size else 0.0, VARIANCE_FLOOR), math.inf, quantile, X.shape[0])
+                       _single(np.maximum(eigenvalues[:r], ENVELOPE_VARIANCE_FLOOR), np.inf),
+                       max(float(rest.mean()) if rest.size else 0.0, ENVELOPE_VARIANCE_FLOOR), math.inf, quantile,
+                       X.shape[0])
         envelope.distance_threshold = float(np.quantile(envelope.distance(X), quantile))
         return envelope
 
@@ -227,8 +211,8 @@ class TrainingEnvelope:
         """
         X = np.asarray(X, dtype=np.float64)
         out = np.empty(X.shape[0])
-        for start in range(0, X.shape[0], _BLOCK_ROWS):
-            out[start:start + _BLOCK_ROWS] = self._distance_block(X[start:start + _BLOCK_ROWS])
+        for start in range(0, X.shape[0], ROW_BLOCK):
+            out[start:start + ROW_BLOCK] = self._distance_block(X[start:start + ROW_BLOCK])
         return out
 
     def _distance_block(self, X):
@@ -259,10 +243,10 @@ class TrainingEnvelope:
             raise ValidationError(f"features must have shape (n_column, {self.n_features}) for the training "
                                   f"envelope; got {X.shape}")
         outside_range = np.empty(X.shape[0], dtype=bool)
-        for start in range(0, X.shape[0], _BLOCK_ROWS):
-            block = X[start:start + _BLOCK_ROWS]
+        for start in range(0, X.shape[0], ROW_BLOCK):
+            block = X[start:start + ROW_BLOCK]
             # Written as "not inside" so that NaN, which compares false, is outside.
-            outside_range[start:start + _BLOCK_ROWS] = ~((block >= self.feature_min)
+            outside_range[start:start + ROW_BLOCK] = ~((block >= self.feature_min)
                                                          & (block <= self.feature_max)).all(axis=1)
         first = np.full(X.shape[0], -1)
         rows = np.flatnonzero(outside_range)
@@ -283,7 +267,8 @@ class TrainingEnvelope:
 
     @classmethod
     def from_dict(cls, field):
-        """Envelope from a checked ``training_envelope`` field (:func:`check_envelope_field`)."""
+        """Envelope from a checked ``training_envelope`` field
+        (:func:`surrogate3d.core.coefficient_format.check_envelope_field`)."""
         return cls(**{name: field[name] for name in (*ARRAYS, *SCALARS)})
 
 
@@ -305,54 +290,12 @@ def _single(values, outward=None):
     return np.where(keep, values, rounded)
 
 
-def check_envelope_field(field, n_feature, source, label="training_envelope"):
-    """Check the ``training_envelope`` field of a coefficient document; raise FormatError naming the problem.
+def training_envelope(document):
+    """The training envelope of a checked document, or None for a file without one (before format 1.2).
 
-    Parameters
-    ----------
-    field : dict
-        Arrays as numpy arrays, scalars as numbers.
-    n_feature : int
-        Length of ``features.names``.
-    source : str
-        File name for messages.
+    Returns
+    -------
+    TrainingEnvelope or None
     """
-    where = f"coefficient file {source!r}: field {label}"
-    if not isinstance(field, dict) or set(field) != set(ARRAYS) | set(SCALARS):
-        found = sorted(field) if isinstance(field, dict) else type(field).__name__
-        raise FormatError(f"{where} must be an object with exactly {sorted(set(ARRAYS) | set(SCALARS))}; "
-                          f"got {found}")
-    for name, dims in ARRAYS.items():
-        array = field[name]
-        if not isinstance(array, np.ndarray) or array.dtype != np.float64 or array.ndim != len(dims):
-            raise FormatError(f"{where}.{name} must be a float64 array of dimensions {dims}")
-        if dims[-1] == "feature" and array.shape[-1] != n_feature:
-            raise FormatError(f"{where}.{name} has length {array.shape[-1]} along feature; features.names has "
-                              f"{n_feature}")
-        bad = np.flatnonzero(~np.isfinite(array.ravel()))
-        if bad.size:
-            raise FormatError(f"{where}.{name} is not finite at index {int(bad[0])}")
-    n_component = field["components"].shape[0]
-    if not 1 <= n_component <= n_feature or field["component_variance"].shape != (n_component,):
-        raise FormatError(f"{where}: components has {n_component} rows and component_variance "
-                          f"{field['component_variance'].shape[0]} values; both must be the same count in "
-                          f"[1, {n_feature}]")
-    rules = [("feature_max", field["feature_max"] < field["feature_min"], "is below feature_min"),
-             ("scale", field["scale"] <= 0.0, "is not positive"),
-             ("component_variance", field["component_variance"] <= 0.0, "is not positive")]
-    for name, bad, rule in rules:
-        where_bad = np.flatnonzero(bad)
-        if where_bad.size:
-            raise FormatError(f"{where}.{name} {rule} at index {int(where_bad[0])}")
-    for name, low, low_open in (("residual_variance", 0.0, True), ("distance_threshold", 0.0, False),
-                                ("quantile", 0.0, True)):
-        value = field[name]
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
-                or (value <= low if low_open else value < low):
-            raise FormatError(f"{where}.{name} must be a finite number {'>' if low_open else '>='} {low:g}; "
-                              f"got {value!r}")
-    if field["quantile"] > 1.0:
-        raise FormatError(f"{where}.quantile must be at most 1; got {field['quantile']!r}")
-    n = field["n_samples"]
-    if isinstance(n, bool) or not isinstance(n, int) or n < 2:
-        raise FormatError(f"{where}.n_samples must be an integer >= 2; got {n!r}")
+    field = document.get(ENVELOPE_FIELD)
+    return None if field is None else TrainingEnvelope.from_dict(field)

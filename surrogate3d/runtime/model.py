@@ -15,9 +15,10 @@ import numpy as np
 from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
-from ..pairs.targets import TARGETS
-from .document import check_document, clear_sky_gate, document_from_json, target_transforms, training_envelope
-from .envelope import EnvelopeCheck, EnvelopeWarning
+from ..core.coefficient_format import check_document, clear_sky_gate, document_from_json, target_transforms
+from ..core.data_model import TARGETS
+from ..core.validation import fail, first_nonfinite
+from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
 
@@ -49,15 +50,15 @@ class CorrectionModel:
         before format 1.2 (then no column is flagged).
     target_transforms : list of dict or None
         Per target, how the model's output becomes the correction (None: it is the
-        correction; :func:`surrogate3d.runtime.document.target_transforms`).
+        correction; :func:`surrogate3d.core.coefficient_format.target_transforms`).
     document : dict
         Everything the file holds (provenance, skill table, hyperparameters ...).
 
     Examples
     --------
-    >>> model = load_coefficients("models/boosted.coefficients.json")   # doctest: +SKIP
-    >>> model.predict(features).shape                                  # doctest: +SKIP
-    (n_column, 5)
+    >>> model = load_coefficients("models/default/boosted.coefficients.json")
+    >>> model.kind, model.n_features, model.target_names[0]
+    ('boosted', 32, 'surface_downward_flux')
     """
 
     def __init__(self, document, source="<document>"):
@@ -142,7 +143,7 @@ class CorrectionModel:
 
     def _transformed(self, X, output):
         """Corrections from the model's output: ``offset + scale * output`` per target with a
-        transform (:func:`surrogate3d.runtime.document.target_transforms`)."""
+        transform (:func:`surrogate3d.core.coefficient_format.target_transforms`)."""
         for m, spec in enumerate(self.target_transforms):
             if spec is None:
                 continue
@@ -217,11 +218,11 @@ class CorrectionModel:
         if X.ndim != 2 or X.shape[1] != self.n_features:
             raise ValidationError(f"features must have shape (n_column, {self.n_features}) for model "
                                   f"{self.name!r}; got {X.shape}")
-        bad = ~np.isfinite(X)
-        if bad.any():
-            i, j = np.argwhere(bad)[0]
-            raise ValidationError(f"features is not finite at column {i}, feature {self.feature_names[j]!r}: "
-                                  f"{X[i, j]!r}")
+        found = first_nonfinite(X)
+        if found is not None:
+            (i, j), count = found
+            fail("features", "finite", X[i, j], f"column {i}, feature {self.feature_names[j]!r}", count,
+                 ValidationError)
         return X
 
     def host_features(self, host_fields):
@@ -319,8 +320,8 @@ def load_coefficients(path):
     Examples
     --------
     >>> from surrogate3d.runtime import load_coefficients
-    >>> model = load_coefficients("export/boosted.coefficients.json")     # doctest: +SKIP
-    >>> corrections = model.predict_host(host_fields)                     # doctest: +SKIP
+    >>> load_coefficients("models/default/boosted.coefficients.json")
+    CorrectionModel(name='boosted', kind='boosted', features=32, targets=5)
     """
     path = Path(path)
     if not path.is_file():

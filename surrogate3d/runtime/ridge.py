@@ -21,14 +21,7 @@ training samples had, so its terms stay what they were in training.
 
 import numpy as np
 
-#: Columns per block: the (block, n_target * n_feature) product then stays in cache.
-_BLOCK_ROWS = 1024
-
-#: A feature whose training standard deviation is at most this fraction of the magnitude
-#: of its mean is constant up to round-off.  The round-off of a mean over 10^4 to 10^5
-#: float64 values summed in order is below 1e-11 of it; any variation that matters
-#: physically is far above 1e-9 of the value.
-NEAR_CONSTANT = 1e-9
+from ..core.config import NEAR_CONSTANT, ROW_BLOCK
 
 
 def near_constant(mean, scale):
@@ -94,8 +87,8 @@ class RidgeModel:
         """Predictions (n, n_target) for finite features X (n, n_feature)."""
         X = np.asarray(X, dtype=np.float64)
         out = np.empty((X.shape[0], self.intercept.size))
-        for start in range(0, X.shape[0], _BLOCK_ROWS):
-            out[start:start + _BLOCK_ROWS] = self._predict_block(X[start:start + _BLOCK_ROWS])
+        for start in range(0, X.shape[0], ROW_BLOCK):
+            out[start:start + ROW_BLOCK] = self._predict_block(X[start:start + ROW_BLOCK])
         return out
 
     def _predict_block(self, X):

@@ -41,9 +41,7 @@ regression trees.  Proceedings of the 38th ACM SIGIR Conference, 73-82.
 
 import numpy as np
 
-#: (node, column) pairs handled per block: large enough to amortize the per-block work,
-#: small enough for the working arrays to stay in cache.
-_BLOCK_ELEMENTS = 1 << 19
+from ..core.config import TREE_BLOCK_ELEMENTS
 
 #: Unsigned word types by the number of leaves they hold.
 _WORDS = ((8, np.uint8), (16, np.uint16), (32, np.uint32), (64, np.uint64))
@@ -188,7 +186,7 @@ class TreeEnsemble:
         # Leaf number = exponent bits of the exit bit + (first leaf of the segment - bias).
         bias = 127 if self.bits <= 32 else 1023
         self.segment_leaf_biased = self.segment_leaf - bias
-        self.block = int(np.clip(_BLOCK_ELEMENTS // (n_segment * self.width), 128, 4096))
+        self.block = int(np.clip(TREE_BLOCK_ELEMENTS // (n_segment * self.width), 128, 4096))
 
     def predict(self, X):
         """Predictions (n, n_target) for features X (n, n_feature); NaN marks a missing value."""

@@ -9,7 +9,7 @@ to 20 km and a 1 K km-1 inversion up to 32 km, with hydrostatic pressure through
 
 import numpy as np
 
-from ..errors import ParameterError
+from ..core.validation import check_array, check_number
 
 #: Sea-level temperature [K] (U.S. Standard Atmosphere 1976).
 SEA_LEVEL_TEMPERATURE = 288.15
@@ -50,10 +50,7 @@ _BASE_T, _BASE_P = _base_states()
 
 def _check_heights(height):
     height = np.asarray(height, dtype=np.float64)
-    if not np.all(np.isfinite(height)) or np.any(height < 0) or np.any(height > MAX_HEIGHT):
-        bad = height[~(np.isfinite(height) & (height >= 0) & (height <= MAX_HEIGHT))].flat[0]
-        raise ParameterError(f"height must be in [0, {MAX_HEIGHT:.0f}] m for the standard atmosphere; "
-                             f"got {float(bad)!r}")
+    check_array("height", height, 0.0, MAX_HEIGHT)
     return height
 
 
@@ -135,8 +132,7 @@ def standard_pressure(height, surface_pressure=SEA_LEVEL_PRESSURE):
     >>> round(float(standard_pressure(5000.0)))
     54048
     """
-    if not (np.isfinite(surface_pressure) and 10000.0 <= surface_pressure <= 120000.0):
-        raise ParameterError(f"surface_pressure must be in [10000, 120000] Pa; got {surface_pressure!r}")
+    check_number("surface_pressure", surface_pressure, 10000.0, 120000.0)
     h = geopotential_height(_check_heights(height))
     i = np.clip(np.searchsorted(_LAYER_BASES, h, side="right") - 1, 0, len(_LAPSE_RATES) - 1)
     lapse = _LAPSE_RATES[i]

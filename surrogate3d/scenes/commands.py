@@ -1,9 +1,9 @@
 """``surrogate3d scenes`` (generate scene files) and ``surrogate3d show`` (picture of a scene)."""
 
-import math
 import sys
 from pathlib import Path
 
+from ..core.validation import check_integer, check_number, check_option
 from ..errors import ParameterError, Surrogate3DError
 
 #: Main-layer overrides: attribute, option, allowed range (low, high, low end open).
@@ -65,7 +65,7 @@ def _number(text, option, kind):
 
 def _scene_set(args):
     """The scene-set configuration: the config file (if any) overridden by the options."""
-    from .config import SceneSetConfig, load_config
+    from .config import COUNT_RANGE, SEED_RANGE, SceneSetConfig, load_config
     from .regimes import REGIMES
 
     cfg = load_config(args.config) if args.config else SceneSetConfig()
@@ -82,14 +82,13 @@ def _scene_set(args):
         cfg.grid.pop("z_edge", None)
     count = _number(args.count, "--count", int)
     seed = _number(args.seed, "--seed", int)
-    if count is not None and count < 1:
-        raise ParameterError(f"--count must be at least 1; got {count}")
-    if seed is not None and seed < 0:
-        raise ParameterError(f"--seed must be >= 0; got {seed}")
+    if count is not None:
+        check_integer("--count", count, *COUNT_RANGE)
+    if seed is not None:
+        check_integer("--seed", seed, *SEED_RANGE)
     if args.regime:
         for name in args.regime:
-            if name != "all" and name not in REGIMES:
-                raise ParameterError(f"--regime must be one of {', '.join(REGIMES)} or 'all'; got {name!r}")
+            check_option("--regime", name, (*REGIMES, "all"))
         cfg.regimes = [{"name": name} for name in dict.fromkeys(args.regime)]
         if "all" in args.regime:
             cfg.regimes = [{"name": "all"}]
@@ -101,9 +100,7 @@ def _scene_set(args):
         value = _number(getattr(args, key), option, float)
         if value is None:
             continue
-        if not (math.isfinite(value) and (value > low if low_open else value >= low) and value <= high):
-            raise ParameterError(f"{option} must be in {'(' if low_open else '['}{low:g}, {high:g}]; got {value!r}")
-        overrides[key] = value
+        overrides[key] = check_number(option, value, low, high, low_open=low_open)
     for table in cfg.regimes:
         table.update(overrides)
         if count is not None:
@@ -151,13 +148,11 @@ def run_scenes(args):
     from ..archive import write_scene
     from ..archive.locking import ArchiveLock
     from ..archive.pending import pending_dir
-    from .generator import generate_scene
 
     cfg = _scene_set(args)
-    entries = cfg.entries()
+    jobs = cfg.scenes()
     out = check_output_directory(cfg.out, "--out")
-    jobs = [(entry.regime, seed) for entry in entries for seed in entry.seeds]
-    targets = [out / f"{regime.name}_{seed:05d}.nc" for regime, seed in jobs]
+    targets = [out / name for name, _, _ in jobs]
     written = []
     with ExitStack() as stack:
         if out.is_dir():
@@ -168,8 +163,8 @@ def run_scenes(args):
         bar = stack.enter_context(tqdm(total=len(jobs), desc="scenes", unit="scene", file=sys.stderr,
                                        disable=True if args.quiet else None))
         with staged_directory(out) as staging:
-            for (regime, seed), path in zip(jobs, targets):
-                scene = generate_scene(regime, seed, **cfg.scene_options(regime.name, seed))
+            for (_, regime, seed), path in zip(jobs, targets):
+                scene = cfg.generate(regime, seed)
                 write_scene(scene, staging / path.name, validate=False)
                 written.append((path, scene.attrs["total_cloud_fraction"]))
                 bar.update(1)

@@ -13,8 +13,10 @@ import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
+from ..core.validation import check_integer, check_option
 from ..errors import FormatError, ParameterError
 from .draws import check_draws, contains_draw, draw_stream, is_draw, resolve
+from .generator import generate_scene
 from .optics import BANDS
 from .optics_sets import OPTICS_SETS, get_optics_set
 from .regimes import REGIMES, CloudLayer, get_regime
@@ -25,6 +27,10 @@ TOP_KEYS = {"out", "seed", "count", "grid", "optics", "regime"}
 GRID_KEYS = {"nx", "ny", "nz", "dx", "top", "z_edge"}
 OPTICS_KEYS = {"bands", "surface_albedo", "surface_pressure", "gas_absorption", "optics_set", "surface_pattern"}
 SURFACE_PATTERN_KEYS = {f.name for f in fields(SurfacePattern)}
+#: Declared ranges of the scenes per regime and of the first seed.
+COUNT_RANGE = (1, 100_000)
+SEED_RANGE = (0, 2**62)
+
 REGIME_KEYS = {"name", "label", "count", "seed", "cloud_fraction", "mean_optical_depth",
                "cloud_top_variability", "layers"}
 LAYER_KEYS = {f.name for f in fields(CloudLayer)}
@@ -146,6 +152,30 @@ class SceneSetConfig:
                                  "label so that their files do not overwrite each other")
         return out
 
+    def scenes(self):
+        """Every scene of the set, in order, as ``(file name, regime, seed)``.
+
+        The file name, ``<regime>_<seed:05d>.nc``, is the scene's label in the archive.
+
+        Raises
+        ------
+        surrogate3d.errors.ParameterError
+            As :meth:`entries`.
+        """
+        return [(f"{entry.regime.name}_{seed:05d}.nc", entry.regime, seed) for entry in self.entries()
+                for seed in entry.seeds]
+
+    def generate(self, regime, seed):
+        """One scene of the set (an xarray Dataset), with its grid, optics and draws.
+
+        Parameters
+        ----------
+        regime : surrogate3d.scenes.Regime
+            From :meth:`scenes`.
+        seed : int
+        """
+        return generate_scene(regime, seed, **self.scene_options(regime.name, seed))
+
 
 def _only_bands(value, bands):
     """A per-band table restricted to ``bands``; any other value unchanged."""
@@ -188,12 +218,6 @@ def _check_keys(table, allowed, where):
         raise ParameterError(f"{where} has unknown key {unknown[0]!r}; allowed: {', '.join(sorted(allowed))}")
 
 
-def _check_int(value, where, low, high):
-    if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
-        raise ParameterError(f"{where} must be an integer in [{low}, {high}]; got {value!r}")
-    return value
-
-
 def _check_albedo(value, where):
     """Albedo values (possibly drawn, possibly per band) in [0, 1], band tables naming known bands."""
     check_draws(value, where, 0.0, 1.0)
@@ -225,8 +249,7 @@ def _check_optics(optics, where):
         check_draws(optics["surface_pressure"], f"{where} surface_pressure", 10000.0, 120000.0)
     if "optics_set" in optics:
         for name in _choices(optics["optics_set"]):
-            if name not in OPTICS_SETS:
-                raise ParameterError(f"{where} optics_set must be one of {', '.join(OPTICS_SETS)}; got {name!r}")
+            check_option(f"{where} optics_set", name, OPTICS_SETS)
         both = sorted({"bands", "gas_absorption"} & set(optics))
         if both:
             raise ParameterError(f"{where}: optics_set sets bands and gas_absorption; remove {both[0]}")
@@ -234,9 +257,7 @@ def _check_optics(optics, where):
         pattern = optics["surface_pattern"]
         _check_keys(pattern, SURFACE_PATTERN_KEYS, f"{where} surface_pattern")
         for kind in _choices(pattern.get("kind", "uniform")):
-            if kind not in SURFACE_PATTERNS:
-                raise ParameterError(f"{where} surface_pattern kind must be one of {', '.join(SURFACE_PATTERNS)}; "
-                                     f"got {kind!r}")
+            check_option(f"{where} surface_pattern kind", kind, SURFACE_PATTERNS)
         if "contrast_albedo" in pattern:
             _check_albedo(pattern["contrast_albedo"], f"{where} surface_pattern contrast_albedo")
         check_draws(pattern.get("scale", 1.0), f"{where} surface_pattern scale", 1e-9, 1e7)
@@ -268,8 +289,8 @@ def parse_config(data, source="configuration"):
         if not isinstance(data["out"], str) or not data["out"]:
             raise ParameterError(f"{source}: out must be a directory name; got {data['out']!r}")
         cfg.out = data["out"]
-    cfg.seed = _check_int(data.get("seed", 0), f"{source}: seed", 0, 2 ** 62)
-    cfg.count = _check_int(data.get("count", 1), f"{source}: count", 1, 100000)
+    cfg.seed = check_integer(f"{source}: seed", data.get("seed", 0), *SEED_RANGE)
+    cfg.count = check_integer(f"{source}: count", data.get("count", 1), *COUNT_RANGE)
     grid = data.get("grid", {})
     _check_keys(grid, GRID_KEYS, f"{source}: [grid]")
     cfg.grid = dict(grid)
@@ -287,12 +308,11 @@ def parse_config(data, source="configuration"):
         _check_keys(table, REGIME_KEYS, where)
         if "name" not in table:
             raise ParameterError(f"{where} needs a name (one of {', '.join(REGIMES)}, or 'all')")
-        if table["name"] != "all" and table["name"] not in REGIMES:
-            raise ParameterError(f"{where}: name must be one of {', '.join(REGIMES)} or 'all'; got {table['name']!r}")
+        check_option(f"{where}: name", table["name"], (*REGIMES, "all"))
         if "count" in table:
-            _check_int(table["count"], f"{where} count", 1, 100000)
+            check_integer(f"{where} count", table["count"], *COUNT_RANGE)
         if "seed" in table:
-            _check_int(table["seed"], f"{where} seed", 0, 2 ** 62)
+            check_integer(f"{where} seed", table["seed"], *SEED_RANGE)
         layers = table.get("layers", [])
         if not isinstance(layers, list):
             raise ParameterError(f"{where} layers must be an array of tables; got {layers!r}")
@@ -325,8 +345,9 @@ def load_config(path):
 
     Examples
     --------
-    >>> cfg = load_config("training/scenes-demo.toml")        # doctest: +SKIP
-    >>> [e.regime.name for e in cfg.entries()]                 # doctest: +SKIP
+    >>> cfg = load_config("training/scenes-demo.toml")
+    >>> [e.regime.name for e in cfg.entries()][:3]
+    ['scattered_cumulus', 'broken_stratocumulus', 'deep_convection']
     """
     path = Path(path)
     if not path.is_file():

@@ -12,6 +12,7 @@ configuration gives the same scenes.
 import numbers
 import zlib
 
+from ..core.validation import check_number
 from ..errors import ParameterError
 from .random_fields import random_generator
 
@@ -41,10 +42,8 @@ def _is_number(value):
 
 
 def _check_leaf(value, where, low, high):
-    if low is None or not _is_number(value):
-        return
-    if not low <= value <= high:
-        raise ParameterError(f"{where} must be in [{low:g}, {high:g}]; got {value!r}")
+    if low is not None and _is_number(value):
+        check_number(where, value, low, high)
 
 
 def check_draws(value, where, low=None, high=None):

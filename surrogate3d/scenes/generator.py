@@ -24,11 +24,11 @@ uniform or a pattern of two surfaces (:mod:`surrogate3d.scenes.surface`).
 """
 
 import json
-import numbers
 import zlib
 
 import numpy as np
 
+from ..core.validation import check_integer, check_number
 from ..errors import ParameterError
 from . import optics
 from .atmosphere import MAX_HEIGHT, SEA_LEVEL_PRESSURE, standard_profile
@@ -59,24 +59,6 @@ _MIN_THICKNESS = 1.0
 #: Key of the random stream of the surface pattern (layer streams are keyed by layer
 #: index and stream number, so this cannot collide with them).
 _SURFACE_STREAM = 2 ** 32
-
-
-def _int_param(name, value, low, high):
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
-        raise ParameterError(f"{name} must be an integer in [{low}, {high}]; got {value!r}")
-    if not low <= int(value) <= high:
-        raise ParameterError(f"{name} must be in [{low}, {high}]; got {value!r}")
-    return int(value)
-
-
-def _float_param(name, value, low, high, low_open=False):
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name} must be a number; got {value!r}") from None
-    if not (np.isfinite(v) and (v > low if low_open else v >= low) and v <= high):
-        raise ParameterError(f"{name} must be in {'(' if low_open else '['}{low:g}, {high:g}]; got {value!r}")
-    return v
 
 
 def vertical_grid(nz=None, top=None, z_edge=None):
@@ -112,8 +94,8 @@ def vertical_grid(nz=None, top=None, z_edge=None):
         if top is not None and not np.isclose(float(top), edges[-1]):
             raise ParameterError(f"top={top!r} disagrees with the last z_edge {edges[-1]!r}")
         return edges
-    nz = _int_param("nz", DEFAULT_GRID["nz"] if nz is None else nz, 1, 1000)
-    top = _float_param("top", top, 0.0, MAX_HEIGHT, low_open=True)
+    nz = check_integer("nz", DEFAULT_GRID["nz"] if nz is None else nz, 1, 1000)
+    top = check_number("top", top, 0.0, MAX_HEIGHT, low_open=True)
     return np.linspace(0.0, top, nz + 1)
 
 
@@ -133,7 +115,7 @@ def _per_band(name, value, band_names, low, high):
         values = list(value)
         if len(values) != len(band_names):
             raise ParameterError(f"{name} has {len(values)} values for {len(band_names)} bands {band_names}")
-    return np.array([_float_param(f"{name}[{b}]", v, low, high) for b, v in zip(band_names, values)])
+    return np.array([check_number(f"{name}[{b}]", v, low, high) for b, v in zip(band_names, values)])
 
 
 def _gas_profiles(gas_absorption, band_names, z_edge):
@@ -157,8 +139,8 @@ def _gas_profiles(gas_absorption, band_names, z_edge):
             height = spec.get("scale_height", DEFAULT_GAS_SCALE_HEIGHT)
         else:
             tau, height = spec, DEFAULT_GAS_SCALE_HEIGHT
-        tau = _float_param(f"gas_absorption[{band}] column_optical_depth", tau, 0.0, 100.0)
-        height = _float_param(f"gas_absorption[{band}] scale_height", height, 0.0, 1e5, low_open=True)
+        tau = check_number(f"gas_absorption[{band}] column_optical_depth", tau, 0.0, 100.0)
+        height = check_number(f"gas_absorption[{band}] scale_height", height, 0.0, 1e5, low_open=True)
         out[band_names.index(band)] = optics.gas_absorption_layer_optical_depth(z_edge, tau, height)
         used[band] = {"column_optical_depth": tau, "scale_height": height}
     return out, used
@@ -361,17 +343,15 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     >>> scene.attrs["regime"], dict(scene.sizes)["band"]
     ('broken_stratocumulus', 2)
     """
-    if isinstance(seed, bool) or not isinstance(seed, numbers.Integral) or not 0 <= int(seed) < 2 ** 63:
-        raise ParameterError(f"seed must be an integer in [0, 2**63); got {seed!r}")
-    seed = int(seed)
+    seed = check_integer("seed", seed, 0, 2**63 - 1)
     reg = get_regime(regime).with_overrides(cloud_fraction, mean_optical_depth, cloud_top_variability)
-    nx = _int_param("nx", nx, 1, 4096)
-    ny = _int_param("ny", ny, 1, 4096)
-    dx = _float_param("dx", dx, 0.0, 1e5, low_open=True)
+    nx = check_integer("nx", nx, 1, 4096)
+    ny = check_integer("ny", ny, 1, 4096)
+    dx = check_number("dx", dx, 0.0, 1e5, low_open=True)
     if z_edge is None and top is None:
         top = reg.top
     edges = vertical_grid(nz, top, z_edge)
-    surface_pressure = _float_param("surface_pressure", surface_pressure, 10000.0, 120000.0)
+    surface_pressure = check_number("surface_pressure", surface_pressure, 10000.0, 120000.0)
     if optics_set is not None:
         if bands is not None or gas_absorption is not None:
             raise ParameterError(f"optics_set={optics_set!r} sets bands and gas_absorption; give either "

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..core.validation import check_array, check_number
 from ..errors import ParameterError
 
 #: Density of liquid water [kg m-3].
@@ -184,8 +185,7 @@ def cloud_extinction(liquid_water_content, effective_radius):
     """
     lwc = np.asarray(liquid_water_content, dtype=np.float64)
     r = np.asarray(effective_radius, dtype=np.float64)
-    if np.any(lwc < 0) or np.any(~np.isfinite(lwc)):
-        raise ParameterError("liquid_water_content must be finite and >= 0 kg m-3")
+    check_array("liquid_water_content", lwc, 0.0, None)
     cloudy = lwc > 0
     if np.any(np.broadcast_to(r, lwc.shape)[cloudy] <= 0):
         raise ParameterError("effective_radius must be > 0 m where liquid_water_content > 0")
@@ -276,10 +276,8 @@ def rayleigh_optical_depth(wavelength, surface_pressure=RAYLEIGH_REFERENCE_PRESS
     0.0971
     """
     lam = np.asarray(wavelength, dtype=np.float64) * 1e6
-    if np.any(~np.isfinite(lam)) or np.any(lam <= 0.2):
-        raise ParameterError(f"wavelength must be > 0.2e-6 m; got {wavelength!r}")
-    if not (np.isfinite(surface_pressure) and surface_pressure > 0):
-        raise ParameterError(f"surface_pressure must be a positive number of Pa; got {surface_pressure!r}")
+    check_array("wavelength", np.asarray(wavelength, dtype=np.float64), 0.2e-6, None, low_open=True)
+    check_number("surface_pressure", surface_pressure, 0.0, None, low_open=True)
     l2 = lam * lam
     tau = 0.0021520 * (1.0455996 - 341.29061 / l2 - 0.90230850 * l2) / (1.0 + 0.0027059889 / l2 - 85.968563 * l2)
     return tau * (float(surface_pressure) / RAYLEIGH_REFERENCE_PRESSURE)
@@ -345,10 +343,8 @@ def gas_absorption_layer_optical_depth(z_edge, column_optical_depth, scale_heigh
     common practice.
     """
     z = np.asarray(z_edge, dtype=np.float64)
-    if not (np.isfinite(column_optical_depth) and column_optical_depth >= 0):
-        raise ParameterError(f"column_optical_depth must be >= 0; got {column_optical_depth!r}")
-    if not (np.isfinite(scale_height) and scale_height > 0):
-        raise ParameterError(f"scale_height must be > 0 m; got {scale_height!r}")
+    check_number("column_optical_depth", column_optical_depth, 0.0, None)
+    check_number("scale_height", scale_height, 0.0, None, low_open=True)
     share = -np.diff(np.exp(-(z - z[0]) / float(scale_height)))
     return float(column_optical_depth) * share / share.sum()
 

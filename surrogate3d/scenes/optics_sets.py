@@ -9,7 +9,7 @@ still absorb a little there), and a single visible band, where nothing absorbs.
 
 from dataclasses import dataclass
 
-from ..errors import ParameterError
+from ..core.validation import check_option
 
 
 @dataclass(frozen=True)
@@ -79,6 +79,4 @@ def get_optics_set(name):
     >>> get_optics_set("visible_only").bands
     ('visible',)
     """
-    if isinstance(name, str) and name in OPTICS_SETS:
-        return OPTICS_SETS[name]
-    raise ParameterError(f"optics_set must be one of {', '.join(OPTICS_SETS)}; got {name!r}")
+    return OPTICS_SETS[check_option("optics_set", name, OPTICS_SETS)]

@@ -5,6 +5,7 @@ from pathlib import Path
 import numpy as np
 
 from .._atomic import atomic_path
+from ..core.validation import check_integer
 from ..errors import ParameterError
 from .model import column_optical_depth, layer_thickness, spacing
 
@@ -14,9 +15,7 @@ def _band_index(scene, band):
     if band is None:
         return 0
     if isinstance(band, (int, np.integer)) and not isinstance(band, bool):
-        if not 0 <= int(band) < len(names):
-            raise ParameterError(f"band index must be in [0, {len(names) - 1}]; got {band!r}")
-        return int(band)
+        return check_integer("band index", band, 0, len(names) - 1)
     if str(band) not in names:
         raise ParameterError(f"band {band!r} is not in the scene; it has {', '.join(names)}")
     return names.index(str(band))
@@ -67,9 +66,7 @@ def plot_scene(scene, path, row=None, band=None):
     ny, nx = scene.sizes["y"], scene.sizes["x"]
     if row is None:
         row = _default_row(scene)
-    if isinstance(row, bool) or not isinstance(row, (int, np.integer)) or not 0 <= int(row) < ny:
-        raise ParameterError(f"row must be an integer in [0, {ny - 1}]; got {row!r}")
-    row = int(row)
+    row = check_integer("row", row, 0, ny - 1)
     dx, dy = spacing(scene)
     x_edges = np.arange(nx + 1) * dx / 1000.0
     y_edges = np.arange(ny + 1) * dy / 1000.0

@@ -9,6 +9,7 @@ field at a quantile gives a cloud mask with an exact cloud fraction.
 
 import numpy as np
 
+from ..core.validation import check_number
 from ..errors import ParameterError
 
 #: Exponent of the wavenumber spectrum of cloud fields, E(k) ~ k**(-5/3).
@@ -88,10 +89,9 @@ def gaussian_random_field(shape, dx, dy, rng, spectral_exponent=CLOUD_SPECTRAL_E
     ny, nx = (int(n) for n in shape)
     if ny < 1 or nx < 1:
         raise ParameterError(f"shape must be two positive sizes; got {shape!r}")
-    if not (np.isfinite(spectral_exponent) and 0.0 <= spectral_exponent <= 5.0):
-        raise ParameterError(f"spectral_exponent must be in [0, 5]; got {spectral_exponent!r}")
-    if outer_scale is not None and not (np.isfinite(outer_scale) and outer_scale > 0):
-        raise ParameterError(f"outer_scale must be a positive length in m or None; got {outer_scale!r}")
+    check_number("spectral_exponent", spectral_exponent, 0.0, 5.0)
+    if outer_scale is not None:
+        check_number("outer_scale", outer_scale, 0.0, None, low_open=True)
     noise = rng.standard_normal((ny, nx))
     if ny * nx == 1:
         return np.zeros((ny, nx))
@@ -161,8 +161,7 @@ def quantile_mask(field, fraction):
     >>> mask.nonzero()[0].tolist(), t
     ([7, 8, 9], 6.5)
     """
-    if not (np.isfinite(fraction) and 0.0 <= fraction <= 1.0):
-        raise ParameterError(f"fraction must be in [0, 1]; got {fraction!r}")
+    check_number("fraction", fraction, 0.0, 1.0)
     f = np.asarray(field, dtype=np.float64)
     flat = f.ravel()
     n = int(round(float(fraction) * flat.size))
@@ -244,10 +243,8 @@ def bounded_cascade(shape, rng, variability=0.5, hurst=1.0 / 3.0):
     ny, nx = (int(n) for n in shape)
     if ny < 1 or nx < 1:
         raise ParameterError(f"shape must be two positive sizes; got {shape!r}")
-    if not (np.isfinite(variability) and 0.0 <= variability < 1.0):
-        raise ParameterError(f"variability must be in [0, 1); got {variability!r}")
-    if not (np.isfinite(hurst) and 0.0 < hurst <= 1.0):
-        raise ParameterError(f"hurst must be in (0, 1]; got {hurst!r}")
+    check_number("variability", variability, 0.0, 1.0, high_open=True)
+    check_number("hurst", hurst, 0.0, 1.0, low_open=True)
     field = np.ones((ny, nx))
     levels = int(np.ceil(np.log2(max(ny, nx)))) if max(ny, nx) > 1 else 0
     for n in range(levels):

@@ -13,8 +13,8 @@ water, and open and closed cells.  Any parameter can be changed with
 
 from dataclasses import asdict, dataclass, replace
 
+from ..core.validation import check_number, check_option
 from ..errors import ParameterError
-from ._ranges import check_number as _check
 from .structures import STRUCTURES, CascadeField, CellularField, ClusteredField, StreetField
 
 
@@ -87,27 +87,27 @@ class CloudLayer:
     def validate(self, label="cloud layer"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "cloud_fraction", self.cloud_fraction, 0.0, 1.0)
-        _check(p, "base_height", self.base_height, 0.0, 30000.0)
-        _check(p, "thickness", self.thickness, 0.0, 30000.0, low_open=True)
-        _check(p, "mean_optical_depth", self.mean_optical_depth, 0.0, 10000.0, low_open=True)
-        _check(p, "cloud_top_variability", self.cloud_top_variability, 0.0, 5.0)
-        _check(p, "base_variability", self.base_variability, 0.0, 10000.0)
+        check_number(p + "cloud_fraction", self.cloud_fraction, 0.0, 1.0)
+        check_number(p + "base_height", self.base_height, 0.0, 30000.0)
+        check_number(p + "thickness", self.thickness, 0.0, 30000.0, low_open=True)
+        check_number(p + "mean_optical_depth", self.mean_optical_depth, 0.0, 10000.0, low_open=True)
+        check_number(p + "cloud_top_variability", self.cloud_top_variability, 0.0, 5.0)
+        check_number(p + "base_variability", self.base_variability, 0.0, 10000.0)
         if self.outer_scale is not None:
-            _check(p, "outer_scale", self.outer_scale, 0.0, 1e7, low_open=True)
-        _check(p, "edge_taper", self.edge_taper, 0.0, 10.0)
-        _check(p, "droplet_number", self.droplet_number, 0.0, 1e11, low_open=True)
-        _check(p, "droplet_spectrum_k", self.droplet_spectrum_k, 0.0, 1.0, low_open=True)
+            check_number(p + "outer_scale", self.outer_scale, 0.0, 1e7, low_open=True)
+        check_number(p + "edge_taper", self.edge_taper, 0.0, 10.0)
+        check_number(p + "droplet_number", self.droplet_number, 0.0, 1e11, low_open=True)
+        check_number(p + "droplet_spectrum_k", self.droplet_spectrum_k, 0.0, 1.0, low_open=True)
         if self.effective_radius is not None:
-            _check(p, "effective_radius", self.effective_radius, 1e-7, 1e-4)
+            check_number(p + "effective_radius", self.effective_radius, 1e-7, 1e-4)
         if self.structure is not None:
             if type(self.structure) not in STRUCTURES.values():
                 names = ", ".join(c.__name__ for c in STRUCTURES.values())
                 raise ParameterError(f"{p}structure must be one of {names} or None; got {self.structure!r}")
             self.structure.validate(f"{p}structure")
-        _check(p, "tilt", self.tilt, 0.0, 5.0)
+        check_number(p + "tilt", self.tilt, 0.0, 5.0)
         if self.tilt_direction is not None:
-            _check(p, "tilt_direction", self.tilt_direction, 0.0, 360.0, high_open=True)
+            check_number(p + "tilt_direction", self.tilt_direction, 0.0, 360.0, high_open=True)
         return self
 
 
@@ -137,7 +137,7 @@ class Regime:
         """Raise ParameterError naming the first bad parameter; return self."""
         if not self.name or not all(c.isalnum() or c in "_-" for c in self.name):
             raise ParameterError(f"regime name must be letters, digits, '_' or '-'; got {self.name!r}")
-        _check(f"regime {self.name}: ", "top", self.top, 0.0, 32000.0, low_open=True)
+        check_number(f"regime {self.name}: top", self.top, 0.0, 32000.0, low_open=True)
         for i, layer in enumerate(self.layers):
             if not isinstance(layer, CloudLayer):
                 raise ParameterError(f"regime {self.name}: layers[{i}] must be a CloudLayer; got {layer!r}")
@@ -266,6 +266,4 @@ def get_regime(regime):
     """
     if isinstance(regime, Regime):
         return regime.validate()
-    if isinstance(regime, str) and regime in REGIMES:
-        return REGIMES[regime]
-    raise ParameterError(f"regime must be one of {', '.join(REGIMES)} (or a Regime); got {regime!r}")
+    return REGIMES[check_option("regime", regime, REGIMES)]

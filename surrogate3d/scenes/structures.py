@@ -21,8 +21,8 @@ from dataclasses import dataclass, field, fields
 
 import numpy as np
 
+from ..core.validation import check_number, check_option
 from ..errors import ParameterError
-from ._ranges import check_number as _check
 from .random_fields import bounded_cascade, gaussian_random_field
 
 
@@ -141,11 +141,11 @@ class ClusteredField:
     def validate(self, label="clustered structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "cluster_spacing", self.cluster_spacing, 0.0, 1e6, low_open=True)
-        _check(p, "cluster_radius", self.cluster_radius, 0.0, 1e6, low_open=True)
-        _check(p, "clouds_per_cluster", self.clouds_per_cluster, 1.0, 1000.0)
-        _check(p, "cloud_radius", self.cloud_radius, 0.0, 1e5, low_open=True)
-        _check(p, "roughness", self.roughness, 0.0, 10.0)
+        check_number(p + "cluster_spacing", self.cluster_spacing, 0.0, 1e6, low_open=True)
+        check_number(p + "cluster_radius", self.cluster_radius, 0.0, 1e6, low_open=True)
+        check_number(p + "clouds_per_cluster", self.clouds_per_cluster, 1.0, 1000.0)
+        check_number(p + "cloud_radius", self.cloud_radius, 0.0, 1e5, low_open=True)
+        check_number(p + "roughness", self.roughness, 0.0, 10.0)
         return self
 
     def cloud_positions(self, shape, dx, rng):
@@ -268,12 +268,12 @@ class StreetField:
     def validate(self, label="street structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "roll_wavelength", self.roll_wavelength, 0.0, 1e6, low_open=True)
-        _check(p, "street_length", self.street_length, 0.0, 1e7, low_open=True)
-        _check(p, "bandwidth", self.bandwidth, 0.0, 2.0, low_open=True)
+        check_number(p + "roll_wavelength", self.roll_wavelength, 0.0, 1e6, low_open=True)
+        check_number(p + "street_length", self.street_length, 0.0, 1e7, low_open=True)
+        check_number(p + "bandwidth", self.bandwidth, 0.0, 2.0, low_open=True)
         if self.direction is not None:
-            _check(p, "direction", self.direction, 0.0, 180.0, high_open=True)
-        _check(p, "irregularity", self.irregularity, 0.0, 1.0)
+            check_number(p + "direction", self.direction, 0.0, 180.0, high_open=True)
+        check_number(p + "irregularity", self.irregularity, 0.0, 1.0)
         return self
 
     def realise(self, shape, dx, rng):
@@ -360,11 +360,10 @@ class CellularField:
     def validate(self, label="cellular structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        if self.cell_type not in ("closed", "open"):
-            raise ParameterError(f"{p}cell_type must be 'closed' or 'open'; got {self.cell_type!r}")
-        _check(p, "cell_diameter", self.cell_diameter, 0.0, 1e6, low_open=True)
-        _check(p, "regularity", self.regularity, 0.0, MAX_CELL_REGULARITY)
-        _check(p, "roughness", self.roughness, 0.0, 10.0)
+        check_option(p + "cell_type", self.cell_type, ("closed", "open"))
+        check_number(p + "cell_diameter", self.cell_diameter, 0.0, 1e6, low_open=True)
+        check_number(p + "regularity", self.regularity, 0.0, MAX_CELL_REGULARITY)
+        check_number(p + "roughness", self.roughness, 0.0, 10.0)
         return self
 
     def centres(self, shape, dx, rng):
@@ -510,8 +509,8 @@ class CascadeField:
     def validate(self, label="cascade structure"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         p = f"{label}: "
-        _check(p, "variability", self.variability, 0.0, 1.0, low_open=True, high_open=True)
-        _check(p, "hurst", self.hurst, 0.0, 1.0, low_open=True)
+        check_number(p + "variability", self.variability, 0.0, 1.0, low_open=True, high_open=True)
+        check_number(p + "hurst", self.hurst, 0.0, 1.0, low_open=True)
         return self
 
     def realise(self, shape, dx, rng):
@@ -565,9 +564,7 @@ def structure_from_dict(table, current=None, label="structure"):
         if current is None:
             raise ParameterError(f"{label} needs a kind: one of {', '.join(STRUCTURES)}")
         kind = current.kind
-    if kind not in STRUCTURES:
-        raise ParameterError(f"{label} kind must be one of {', '.join(STRUCTURES)}; got {kind!r}")
-    cls = STRUCTURES[kind]
+    cls = STRUCTURES[check_option(f"{label} kind", kind, STRUCTURES)]
     allowed = [f.name for f in fields(cls) if f.init]
     unknown = sorted(set(params) - set(allowed))
     if unknown:

@@ -14,7 +14,7 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 from ..errors import ParameterError
-from ._ranges import check_number
+from ..core.validation import check_number, check_option
 from .random_fields import gaussian_random_field
 
 #: Pattern kinds.
@@ -53,10 +53,9 @@ class SurfacePattern:
 
     def validate(self, label="surface_pattern"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
-        if self.kind not in SURFACE_PATTERNS:
-            raise ParameterError(f"{label} kind must be one of {', '.join(SURFACE_PATTERNS)}; got {self.kind!r}")
-        check_number(f"{label} ", "scale", self.scale, 0.0, 1e7, low_open=True)
-        check_number(f"{label} ", "fraction", self.fraction, 0.0, 1.0)
+        check_option(f"{label} kind", self.kind, SURFACE_PATTERNS)
+        check_number(f"{label} scale", self.scale, 0.0, 1e7, low_open=True)
+        check_number(f"{label} fraction", self.fraction, 0.0, 1.0)
         return self
 
 

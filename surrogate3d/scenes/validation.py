@@ -2,8 +2,9 @@
 
 import numpy as np
 
+from ..core.validation import first_true, message
 from ..errors import ValidationError
-from .model import REQUIRED_VARIABLES, VARIABLE_SPEC
+from .variables import REQUIRED_VARIABLES, VARIABLE_SPEC
 
 #: Tolerance on the sum of band solar weights.
 WEIGHT_SUM_TOLERANCE = 1e-6
@@ -17,20 +18,12 @@ def _where(da_dims, coords, index):
             parts.append(f"band={str(coords['band'].values[i])!r}")
         else:
             parts.append(f"{dim}={int(i)}")
-    return "(" + ", ".join(parts) + ")"
+    return ", ".join(parts)
 
 
 def _show(value):
     """repr of a value with numpy scalars shown as plain Python numbers (``1.5``, not ``np.float64(1.5)``)."""
     return repr(value.item() if isinstance(value, np.generic) else value)
-
-
-def _first_bad(values, bad):
-    """Index tuple of the first True in ``bad`` and the value there, or None."""
-    if not bad.any():
-        return None
-    idx = tuple(int(i) for i in np.argwhere(bad)[0])
-    return idx, values[idx] if values.ndim else values
 
 
 class _Problems:
@@ -41,14 +34,12 @@ class _Problems:
         self.items.append(text)
 
     def check(self, name, bad, rule):
-        values = np.asarray(self.ds[name].values)
-        hit = _first_bad(values, bad)
-        if hit is not None:
-            idx, value = hit
-            count = int(np.count_nonzero(bad))
-            where = _where(self.ds[name].dims, self.ds.coords, idx)
-            more = f" ({count} cells in all)" if count > 1 else ""
-            self.add(f"{name} {rule} at {where}: {float(value)!r}{more}")
+        found = first_true(bad)
+        if found is not None:
+            index, count = found
+            values = np.asarray(self.ds[name].values, dtype=np.float64)
+            where = _where(self.ds[name].dims, self.ds.coords, index)
+            self.add(message(name, rule, float(values[index]), where, count))
 
     def raise_if_any(self):
         if self.items:
@@ -115,7 +106,7 @@ def validate_scene(ds, label="scene"):
         if not np.issubdtype(da.dtype, np.number):
             p.add(f"{name} must be numeric; got dtype {da.dtype}")
             continue
-        p.check(name, ~np.isfinite(da.values), "is not finite")
+        p.check(name, ~np.isfinite(da.values), "finite")
     if any(" has dimensions " in item or " must be numeric" in item for item in p.items):
         p.raise_if_any()
 
@@ -127,7 +118,7 @@ def validate_scene(ds, label="scene"):
         p.add(f"grid must have at least one cell in x, y and z; got {dict(ds.sizes)}")
     edges = np.asarray(ds["z_edge"].values, dtype=float)
     if not np.all(np.isfinite(edges)):
-        p.check("z_edge", ~np.isfinite(edges), "is not finite")
+        p.check("z_edge", ~np.isfinite(edges), "finite")
     else:
         step = np.diff(edges)
         if np.any(step <= 0):
@@ -137,30 +128,30 @@ def validate_scene(ds, label="scene"):
         if edges[0] != 0.0:
             p.add(f"z_edge must start at the surface (0 m); z_edge=0 is {_show(edges[0])}")
 
-    p.check("extinction", ds["extinction"].values < 0, "is negative")
+    p.check("extinction", ds["extinction"].values < 0, ">= 0")
     ssa = ds["single_scattering_albedo"].values
-    p.check("single_scattering_albedo", (ssa < 0) | (ssa > 1), "is outside [0, 1]")
+    p.check("single_scattering_albedo", (ssa < 0) | (ssa > 1), "in [0, 1]")
     g = ds["asymmetry_parameter"].values
-    p.check("asymmetry_parameter", (g <= -1) | (g >= 1), "is outside (-1, 1)")
+    p.check("asymmetry_parameter", (g <= -1) | (g >= 1), "in (-1, 1)")
     alb = ds["surface_albedo"].values
-    p.check("surface_albedo", (alb < 0) | (alb > 1), "is outside [0, 1]")
+    p.check("surface_albedo", (alb < 0) | (alb > 1), "in [0, 1]")
     w = np.asarray(ds["solar_weight"].values, dtype=float)
-    p.check("solar_weight", w < 0, "is negative")
+    p.check("solar_weight", w < 0, ">= 0")
     if abs(w.sum() - 1.0) > WEIGHT_SUM_TOLERANCE:
         p.add(f"solar_weight sums to {_show(w.sum())}; band solar weights must sum to 1")
 
     if "liquid_water_content" in ds:
-        p.check("liquid_water_content", ds["liquid_water_content"].values < 0, "is negative")
+        p.check("liquid_water_content", ds["liquid_water_content"].values < 0, ">= 0")
     if "effective_radius" in ds:
         lwc = ds["liquid_water_content"].values if "liquid_water_content" in ds else None
         r = ds["effective_radius"].values
         bad = r <= 0 if lwc is None else (r <= 0) & (lwc > 0)
-        p.check("effective_radius", bad, "is not positive in a cloudy cell")
+        p.check("effective_radius", bad, "> 0 in a cloudy cell")
     if "air_temperature" in ds:
-        p.check("air_temperature", ds["air_temperature"].values <= 0, "is not positive")
+        p.check("air_temperature", ds["air_temperature"].values <= 0, "> 0")
     if "air_pressure" in ds:
         pres = ds["air_pressure"].values
-        p.check("air_pressure", pres <= 0, "is not positive")
+        p.check("air_pressure", pres <= 0, "> 0")
         if np.any(np.diff(pres) >= 0):
             i = int(np.argmax(np.diff(pres) >= 0)) + 1
             p.add(f"air_pressure does not decrease with height at z_edge={i}: "

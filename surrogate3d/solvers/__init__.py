@@ -1,9 +1,8 @@
 """Radiative transfer solvers: 3D and independent-column Monte Carlo, the direct beam, delta-Eddington."""
 
+from ..core.config import SOLAR_CONSTANT
 from .heating import heating_rate
-from .montecarlo import SOLAR_CONSTANT, solve_monte_carlo
-from .simulate import simulate_archive
+from .montecarlo import solve_monte_carlo
 from .two_stream import delta_eddington, solve_scene as solve_two_stream
 
-__all__ = ["SOLAR_CONSTANT", "delta_eddington", "heating_rate", "simulate_archive", "solve_monte_carlo",
-           "solve_two_stream"]
+__all__ = ["SOLAR_CONSTANT", "delta_eddington", "heating_rate", "solve_monte_carlo", "solve_two_stream"]

@@ -32,12 +32,14 @@ measures the noise of every tally, the direct beam's included.
 """
 
 import math
+from collections import namedtuple
 
 import numpy as np
 from numba import get_thread_id, njit, prange
 
 from ._geometry import axis_start, direct_beam_batch, locate_source_3d, locate_source_column
 from ._kernel import KERNEL
+from ._records import BeamTables, Photon, Survival, Tallies
 from ._rng import seed_stream, uniform, uniform_open
 
 TOA_UP, ATM_ABS, SFC_DIR, SFC_DOWN, SFC_ABS = 0, 1, 2, 3, 4
@@ -137,14 +139,16 @@ def _deposit(cell, scale, iz, iy, ix, a):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _absorb_in_cell(cell, scale, col, b, iz, iy, ix, a):
-    _deposit(cell, scale, iz, iy, ix, a)
-    _add(col, b, ATM_ABS, iy, ix, cell, a)
+def _absorb_in_cell(tallies, b, iz, iy, ix, a):
+    _deposit(tallies.cell, tallies.scale, iz, iy, ix, a)
+    _add(tallies.col, b, ATM_ABS, iy, ix, tallies.cell, a)
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy, uz, col, cell, scale):
-    """Absorption (by weight, or expected value and roulette) and Henyey-Greenstein scattering.
+def _collide(state, w, om, g, iz, iy, ix, b, events, survival, ux, uy, uz, tallies):
+    """Absorption (by weight, or expected value and roulette) and Henyey-Greenstein scattering
+    of a photon of weight ``w`` at its ``events``-th collision, in cell (iz, iy, ix) of
+    single-scattering albedo ``om`` and asymmetry ``g``.
 
     Returns ``(alive, w, ux, uy, uz)``.
     """
@@ -152,17 +156,17 @@ def _collide(state, w, om, g, iz, iy, ix, b, thresh, events, max_events, ux, uy,
         a = w * (1.0 - om)
         q = ABSORPTION_QUANTUM * w
         if a >= q:
-            _absorb_in_cell(cell, scale, col, b, iz, iy, ix, a)
+            _absorb_in_cell(tallies, b, iz, iy, ix, a)
         elif uniform(state) * q < a:
-            _absorb_in_cell(cell, scale, col, b, iz, iy, ix, q)
-        if w >= thresh:
+            _absorb_in_cell(tallies, b, iz, iy, ix, q)
+        if w >= survival.threshold:
             w -= a
             if w <= 0.0:
                 return False, w, ux, uy, uz
         elif uniform(state) >= om:
             return False, w, ux, uy, uz
-    if events >= max_events:
-        _absorb_in_cell(cell, scale, col, b, iz, iy, ix, w)
+    if events >= survival.max_events:
+        _absorb_in_cell(tallies, b, iz, iy, ix, w)
         return False, w, ux, uy, uz
     mu = hg_cosine(g, uniform(state))
     cp, sp = random_azimuth(state)
@@ -254,17 +258,18 @@ def _periodic(ib, pos, n, length):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh, events, max_events, ux, uy, uz, col, cell, scale):
+def _tentative(state, w, b, iz, iy, ix, k_major, optics, events, survival, ux, uy, uz, tallies):
     """A tentative collision of delta tracking in cell (iz, iy, ix): null with probability
     ``1 - k / k_major``, else real (absorption and scattering by :func:`_collide`).
 
     Returns ``(real, alive, w, ux, uy, uz)``.
     """
-    kf = kext[b, iz, iy, ix]
+    kf = optics.kext[b, iz, iy, ix]
     if kf < k_major and uniform(state) * k_major >= kf:
         return False, True, w, ux, uy, uz
+    ssa_g = optics.ssa_g
     alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, iz, iy, ix, 0], ssa_g[b, iz, iy, ix, 1], iz, iy, ix, b,
-                                    thresh, events + 1, max_events, ux, uy, uz, col, cell, scale)
+                                    events + 1, survival, ux, uy, uz, tallies)
     return True, alive, w, ux, uy, uz
 
 
@@ -322,36 +327,192 @@ def _code(bcode, b, k, j, i):
     return (bcode[b, k, j, i >> 1] >> ((i & 1) << 2)) & 15
 
 
-@njit(**KERNEL)
-def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid, ix, iy, iz,
-                 thresh, max_events, col, cell, scale):
-    """Trace one photon in 3D from (x, y, z) in cell (iz, iy, ix); returns its scattering events.
+#: What a 3D walk reads of the grid for one band, with the block sizes derived from it
+#: (built once per photon: the step helpers take it instead of a dozen arguments).
+_Blocks = namedtuple("_Blocks", ["zb", "kmaj", "bcode", "kclear", "slab_lo", "slab_hi", "nbx", "nby", "nbz",
+                                 "bdx", "bdy", "inv_bdx", "inv_bdy", "lx", "ly"])
 
-    ``grid`` is the majorant grid ``(bx, by, bedge, zb, kmaj, bcode, kclear, clear_below,
-    clear_above)``.  Free paths are sampled by delta tracking (Woodcock et al. 1965) over
-    majorant blocks of ``bx x by`` columns and the layers ``bedge[k] .. bedge[k + 1] - 1``
-    (block top heights ``zb``): inside block (k, j, i) tentative collisions come at rate
-    ``kmaj[b, k, j, i]``, the largest extinction in the block (or at the clear-air rate
-    ``kclear[b]`` where ``bcode[b, k, j, i] = 1``), and are real with probability
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _blocks(grid, b):
+    nbz, nby, nbx = grid.kmaj.shape[1], grid.kmaj.shape[2], grid.kmaj.shape[3]
+    bdx, bdy = grid.bx * grid.dx, grid.by * grid.dy
+    return _Blocks(grid.zb, grid.kmaj, grid.bcode, grid.kclear[b], grid.clear_below[b], grid.clear_above[b],
+                   nbx, nby, nbz, bdx, bdy, 1.0 / bdx, 1.0 / bdy, nbx * bdx, nby * bdy)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _walk_blocks(blocks, b, code, x, y, z, ux, uy, uz, iux, iuy, iuz, ibx, iby, ibz, tau):
+    """A run of single-block steps from block (ibz, iby, ibx) of code 0 or 1, walked
+    incrementally (Amanatides and Woo 1987): each crossing adds one block's length to one
+    axis' face distance, and the position is only brought up to date where the run ends.
+
+    The run ends in a tentative collision (``axis`` 3: the optical depth ``tau`` is used
+    up, at the rate ``k_major`` of the block it ends in), or on the face (``axis`` 0 x,
+    1 y, 2 z) into a clear slab, out of the domain or into a cube of clear blocks
+    (``code`` > 1).  Returns ``(x, y, z, ibx, iby, ibz, tau, axis, code, k_major)``.
+    """
+    zb, kmaj, bcode = blocks.zb, blocks.kmaj, blocks.bcode
+    nbx, nby, lx, ly = blocks.nbx, blocks.nby, blocks.lx, blocks.ly
+    k_major = kmaj[b, ibz, iby, ibx] if code == 0 else blocks.kclear
+    sx, dtx, tmx = axis_start(ux, iux, ibx, blocks.bdx, x)
+    sy, dty, tmy = axis_start(uy, iuy, iby, blocks.bdy, y)
+    tmz = max(((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z) * iuz, 0.0)
+    sz = 1 if uz > 0.0 else -1
+    x0, y0, z0 = x, y, z
+    t = 0.0
+    while True:
+        tn = min(tmx, tmy, tmz)
+        d = k_major * (tn - t)
+        if d > tau:
+            t += tau / k_major
+            axis = 3
+            break
+        tau -= d
+        t = tn
+        if tmx <= tmy and tmx <= tmz:
+            ibx, x0 = _next_block(ibx, sx, nbx, x0, lx)
+            tmx += dtx
+            axis = 0
+        elif tmy <= tmz:
+            iby, y0 = _next_block(iby, sy, nby, y0, ly)
+            tmy += dty
+            axis = 1
+        else:
+            ibz += sz
+            axis = 2
+            if ibz < blocks.slab_lo or ibz >= blocks.slab_hi:
+                break  # into a clear slab, or out of the domain
+            tmz = ((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z0) * iuz
+        code = _code(bcode, b, ibz, iby, ibx)
+        if code == 0:
+            k_major = kmaj[b, ibz, iby, ibx]
+        elif code == 1:
+            k_major = blocks.kclear
+        else:
+            break  # into a cube of clear blocks
+    x = _face(ux, ibx, blocks.bdx) if axis == 0 else x0 + t * ux
+    y = _face(uy, iby, blocks.bdy) if axis == 1 else y0 + t * uy
+    z = (zb[ibz] if uz > 0.0 else zb[ibz + 1]) if axis == 2 else z0 + t * uz
+    return x, y, z, ibx, iby, ibz, tau, axis, code, k_major
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _cross_slab(state, blocks, x, y, z, ux, uy, uz, iuz, ibz, tau):
+    """One step across the clear slab (above the highest or below the lowest cloud) that
+    block row ``ibz`` belongs to, at the clear-air rate, whatever the horizontal travel.
+
+    Returns ``(x, y, z, ibx, iby, ibz, tau, hit, z_lo, z_hi)``: ``hit`` says the step ends
+    in a tentative collision inside the slab of block rows ``z_lo .. z_hi`` (a fresh
+    ``tau`` drawn), else it ends on the slab's face, in block row ``ibz`` beyond it.
+    """
+    kc, zb, nbz = blocks.kclear, blocks.zb, blocks.nbz
+    z_lo, z_hi = (0, blocks.slab_lo - 1) if ibz < blocks.slab_lo else (blocks.slab_hi, nbz - 1)
+    z_face = zb[z_hi + 1] if uz > 0.0 else zb[z_lo]
+    t = max((z_face - z) * iuz, 0.0)
+    if kc * t > tau:
+        s = tau / kc
+        z += s * uz
+        tau = -math.log(uniform_open(state))
+    else:
+        tau -= kc * t
+        s = t
+        z = z_face
+    x = _wrap_far(x + s * ux, blocks.lx)
+    y = _wrap_far(y + s * uy, blocks.ly)
+    ibx = min(int(x * blocks.inv_bdx), blocks.nbx - 1)
+    iby = min(int(y * blocks.inv_bdy), blocks.nby - 1)
+    hit = s < t
+    if not hit:
+        ibz = z_hi + 1 if uz > 0.0 else z_lo - 1
+    return x, y, z, ibx, iby, ibz, tau, hit, z_lo, z_hi
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _cross_cube(state, blocks, code, x, y, z, ux, uy, uz, iux, iuy, iuz, ibx, iby, ibz, tau):
+    """One step across the cube of clear blocks of radius ``code - 1`` around block
+    (ibz, iby, ibx), at the clear-air rate.
+
+    Returns ``(x, y, z, ibx, iby, ibz, tau, hit, z_lo, z_hi)``: ``hit`` says the step ends
+    in a tentative collision inside the cube, whose block rows are ``z_lo .. z_hi`` (a
+    fresh ``tau`` drawn), else it ends on the cube's face, in block (ibz, iby, ibx) beyond it.
+    """
+    kc, zb, nbz = blocks.kclear, blocks.zb, blocks.nbz
+    bdx, bdy, inv_bdx, inv_bdy = blocks.bdx, blocks.bdy, blocks.inv_bdx, blocks.inv_bdy
+    r = code - 1
+    z_lo = ibz - r if ibz > r else 0
+    z_hi = ibz + r if ibz + r < nbz else nbz - 1
+    tx = _face_distance(ux, iux, ibx, r, bdx, x)
+    ty = _face_distance(uy, iuy, iby, r, bdy, y)
+    tz = ((zb[z_hi + 1] if uz > 0.0 else zb[z_lo]) - z) * iuz
+    t = max(min(tx, ty, tz), 0.0)
+    if kc * t > tau:
+        s = tau / kc
+        x = _wrap(x + s * ux, blocks.lx)
+        y = _wrap(y + s * uy, blocks.ly)
+        z += s * uz
+        tau = -math.log(uniform_open(state))
+        ibx = min(int(x * inv_bdx), blocks.nbx - 1)
+        iby = min(int(y * inv_bdy), blocks.nby - 1)
+        return x, y, z, ibx, iby, ibz, tau, True, z_lo, z_hi
+    tau -= kc * t
+    x += t * ux
+    y += t * uy
+    z += t * uz
+    if tx <= ty and tx <= tz:
+        ibx, x = _leave_cube(ux, ibx, r, bdx)
+        iby = _block_near(y, inv_bdy, iby, r)
+        ibz = _interval_in(z, zb, z_lo, z_hi)
+    elif ty <= tz:
+        iby, y = _leave_cube(uy, iby, r, bdy)
+        ibx = _block_near(x, inv_bdx, ibx, r)
+        ibz = _interval_in(z, zb, z_lo, z_hi)
+    else:
+        ibx = _block_near(x, inv_bdx, ibx, r)
+        iby = _block_near(y, inv_bdy, iby, r)
+        if uz > 0.0:
+            ibz = z_hi + 1
+            z = zb[ibz]
+        else:
+            ibz = z_lo - 1
+            z = zb[z_lo]
+    ibx, x = _periodic(ibx, x, blocks.nbx, blocks.lx)
+    iby, y = _periodic(iby, y, blocks.nby, blocks.ly)
+    return x, y, z, ibx, iby, ibz, tau, False, z_lo, z_hi
+
+
+@njit(**KERNEL)
+def transport_3d(state, photon, optics, grid, survival, tallies):
+    """Trace one photon in 3D (a :class:`~surrogate3d.solvers._records.Photon`); returns
+    its scattering events.
+
+    Free paths are sampled by delta tracking (Woodcock et al. 1965) over the majorant
+    blocks of ``grid`` (:class:`~surrogate3d.solvers._records.Grid`): inside a block,
+    tentative collisions come at the block's largest extinction ``kmaj`` (or at the
+    clear-air rate ``kclear`` where the block's code is 1), and are real with probability
     ``kext / rate``, which is exact (Villefranque et al. 2019).  With blocks of one cell
     every tentative collision in cloud is real, and the walk is a plain cell-by-cell
-    traversal.  Where ``bcode[b, k, j, i] = r + 1 > 1`` every block within ``r`` blocks is
-    clear air, and the photon crosses that cube of blocks in one step at rate
-    ``kclear[b]``.  Block rows below ``clear_below[b]`` and from ``clear_above[b]`` up are
-    clear air in every column: the photon crosses such a slab in one step, whatever its
-    horizontal travel.
+    traversal.  A step is one of three modes:
 
-    ``kext`` is the float32 extinction (nband, nz, ny, nx) and ``ssa_g`` the float32
-    (nband, nz, ny, nx, 2) single-scattering albedo and asymmetry (see
-    :func:`surrogate3d.solvers.montecarlo.tracking_arrays`).
+    * a run of single blocks (:func:`_walk_blocks`);
+    * across a clear slab, the block rows clear in every column below the lowest and
+      above the highest cloud (:func:`_cross_slab`), in one step whatever its horizontal
+      travel;
+    * across a cube of clear blocks (block code ``r + 1 > 1``: every block within ``r``
+      blocks is clear air; :func:`_cross_cube`).
+
+    ``optics`` (:class:`~surrogate3d.solvers._records.Optics`) gives the cells' ``kext``
+    and ``ssa_g`` and the surface albedo; ``survival`` and ``tallies`` are the batch's.
     """
-    bx, by, bedge, zb, kmaj, bcode, kclear, clear_below, clear_above = grid
-    nz = kext.shape[1]
-    nbz, nby, nbx = kmaj.shape[1], kmaj.shape[2], kmaj.shape[3]
-    cell_walk = bx == 1 and by == 1 and nbz == nz
-    bdx, bdy = bx * dx, by * dy
-    inv_dx, inv_dy, inv_bdx, inv_bdy = 1.0 / dx, 1.0 / dy, 1.0 / bdx, 1.0 / bdy
-    lx, ly = nbx * bdx, nby * bdy
+    b, w = photon.band, photon.weight
+    x, y, z, ux, uy, uz = photon.x, photon.y, photon.z, photon.ux, photon.uy, photon.uz
+    ix, iy, iz = photon.ix, photon.iy, photon.iz
+    ssa_g, alb, z_edge = optics.ssa_g, optics.albedo, grid.z_edge
+    bx, by, bedge = grid.bx, grid.by, grid.bedge
+    blocks = _blocks(grid, b)
+    zb, nbz, kc = blocks.zb, blocks.nbz, blocks.kclear
+    cell_walk = bx == 1 and by == 1 and nbz == optics.kext.shape[1]
+    inv_dx, inv_dy = 1.0 / grid.dx, 1.0 / grid.dy
     ibx, iby = ix // bx, iy // by
     ibz = 0
     while bedge[ibz + 1] <= iz:
@@ -360,57 +521,13 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
     uz = _not_flat(uz)
     iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
     tau = -math.log(uniform_open(state))
-    kc = kclear[b]
-    slab_lo, slab_hi = clear_below[b], clear_above[b]
-    z_lo = z_hi = 0  # the clear-air layer range of the current slab or cube step
+    z_lo = z_hi = 0  # the clear-air block rows of the current slab or cube step
     while True:
-        in_slab = ibz < slab_lo or ibz >= slab_hi
-        clear_hit = False
-        code = 2 if in_slab else _code(bcode, b, ibz, iby, ibx)
+        in_slab = ibz < blocks.slab_lo or ibz >= blocks.slab_hi
+        code = 2 if in_slab else _code(blocks.bcode, b, ibz, iby, ibx)
         if code < 2:
-            # --- a run of single-block steps, walked incrementally (Amanatides and Woo 1987):
-            # each crossing adds one block's length to one axis' face distance, and the
-            # position is only brought up to date where the run ends.
-            k_major = kmaj[b, ibz, iby, ibx] if code == 0 else kc
-            sx, dtx, tmx = axis_start(ux, iux, ibx, bdx, x)
-            sy, dty, tmy = axis_start(uy, iuy, iby, bdy, y)
-            tmz = max(((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z) * iuz, 0.0)
-            sz = 1 if uz > 0.0 else -1
-            x0, y0, z0 = x, y, z
-            t = 0.0
-            while True:
-                tn = min(tmx, tmy, tmz)
-                d = k_major * (tn - t)
-                if d > tau:
-                    t += tau / k_major
-                    axis = 3  # the run ends in a tentative collision, not on a face
-                    break
-                tau -= d
-                t = tn
-                if tmx <= tmy and tmx <= tmz:
-                    ibx, x0 = _next_block(ibx, sx, nbx, x0, lx)
-                    tmx += dtx
-                    axis = 0  # the face the run stopped on, if it stops: 0 x, 1 y, 2 z
-                elif tmy <= tmz:
-                    iby, y0 = _next_block(iby, sy, nby, y0, ly)
-                    tmy += dty
-                    axis = 1
-                else:
-                    ibz += sz
-                    axis = 2
-                    if ibz < slab_lo or ibz >= slab_hi:
-                        break  # into a clear slab, or out of the domain
-                    tmz = ((zb[ibz + 1] if uz > 0.0 else zb[ibz]) - z0) * iuz
-                code = _code(bcode, b, ibz, iby, ibx)
-                if code == 0:
-                    k_major = kmaj[b, ibz, iby, ibx]
-                elif code == 1:
-                    k_major = kc
-                else:
-                    break  # into a cube of clear blocks
-            x = _face(ux, ibx, bdx) if axis == 0 else x0 + t * ux
-            y = _face(uy, iby, bdy) if axis == 1 else y0 + t * uy
-            z = (zb[ibz] if uz > 0.0 else zb[ibz + 1]) if axis == 2 else z0 + t * uz
+            x, y, z, ibx, iby, ibz, tau, axis, code, k_major = _walk_blocks(blocks, b, code, x, y, z, ux, uy, uz,
+                                                                             iux, iuy, iuz, ibx, iby, ibz, tau)
             if axis == 3:
                 tau = -math.log(uniform_open(state))
                 # Handled here, not in the shared clear-air tail below: routing the hot
@@ -418,103 +535,43 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
                 if cell_walk and code == 0:
                     real = True
                     alive, w, ux, uy, uz = _collide(state, w, ssa_g[b, ibz, iby, ibx, 0], ssa_g[b, ibz, iby, ibx, 1],
-                                                    ibz, iby, ibx, b, thresh, events + 1, max_events, ux, uy, uz,
-                                                    col, cell, scale)
+                                                    ibz, iby, ibx, b, events + 1, survival, ux, uy, uz, tallies)
                 else:
                     ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
                     iz = _interval_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-                    real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, k_major, kext, ssa_g, thresh,
-                                                            events, max_events, ux, uy, uz, col, cell, scale)
+                    real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, k_major, optics, events,
+                                                            survival, ux, uy, uz, tallies)
                 if real:
                     events += 1
                     if not alive:
                         return events
                     iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
                 continue
-            if 0 <= ibz < nbz:
-                continue
+            hit = False
         elif in_slab:
-            # --- one step across a clear slab (above the highest or below the lowest cloud)
-            z_lo, z_hi = (0, slab_lo - 1) if ibz < slab_lo else (slab_hi, nbz - 1)
-            z_face = zb[z_hi + 1] if uz > 0.0 else zb[z_lo]
-            t = max((z_face - z) * iuz, 0.0)
-            if kc * t > tau:
-                s = tau / kc
-                z += s * uz
-                tau = -math.log(uniform_open(state))
-            else:
-                tau -= kc * t
-                s = t
-                z = z_face
-            x = _wrap_far(x + s * ux, lx)
-            y = _wrap_far(y + s * uy, ly)
-            ibx = min(int(x * inv_bdx), nbx - 1)
-            iby = min(int(y * inv_bdy), nby - 1)
-            clear_hit = s < t
-            if not clear_hit:
-                ibz = z_hi + 1 if uz > 0.0 else z_lo - 1
-                if 0 <= ibz < nbz:
-                    continue
+            x, y, z, ibx, iby, ibz, tau, hit, z_lo, z_hi = _cross_slab(state, blocks, x, y, z, ux, uy, uz, iuz,
+                                                                        ibz, tau)
         else:
-            # --- one step across the cube of clear blocks of radius r > 0
-            r = code - 1
-            z_lo = ibz - r if ibz > r else 0
-            z_hi = ibz + r if ibz + r < nbz else nbz - 1
-            tx = _face_distance(ux, iux, ibx, r, bdx, x)
-            ty = _face_distance(uy, iuy, iby, r, bdy, y)
-            tz = ((zb[z_hi + 1] if uz > 0.0 else zb[z_lo]) - z) * iuz
-            t = max(min(tx, ty, tz), 0.0)
-            if kc * t > tau:
-                s = tau / kc
-                x = _wrap(x + s * ux, lx)
-                y = _wrap(y + s * uy, ly)
-                z += s * uz
-                tau = -math.log(uniform_open(state))
-                ibx = min(int(x * inv_bdx), nbx - 1)
-                iby = min(int(y * inv_bdy), nby - 1)
-                clear_hit = True
-            else:
-                tau -= kc * t
-                x += t * ux
-                y += t * uy
-                z += t * uz
-                if tx <= ty and tx <= tz:
-                    ibx, x = _leave_cube(ux, ibx, r, bdx)
-                    iby = _block_near(y, inv_bdy, iby, r)
-                    ibz = _interval_in(z, zb, z_lo, z_hi)
-                elif ty <= tz:
-                    iby, y = _leave_cube(uy, iby, r, bdy)
-                    ibx = _block_near(x, inv_bdx, ibx, r)
-                    ibz = _interval_in(z, zb, z_lo, z_hi)
-                else:
-                    ibx = _block_near(x, inv_bdx, ibx, r)
-                    iby = _block_near(y, inv_bdy, iby, r)
-                    if uz > 0.0:
-                        ibz = z_hi + 1
-                        z = zb[ibz]
-                    else:
-                        ibz = z_lo - 1
-                        z = zb[z_lo]
-                ibx, x = _periodic(ibx, x, nbx, lx)
-                iby, y = _periodic(iby, y, nby, ly)
-                if 0 <= ibz < nbz:
-                    continue
-        if clear_hit:
+            x, y, z, ibx, iby, ibz, tau, hit, z_lo, z_hi = _cross_cube(state, blocks, code, x, y, z, ux, uy, uz,
+                                                                        iux, iuy, iuz, ibx, iby, ibz, tau)
+        if hit:
             # --- a tentative collision in clear air (slab or cube), at rate kc
             ibz = _interval_in(z, zb, z_lo, z_hi)
             ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
             iz = _interval_in(z, z_edge, bedge[ibz], bedge[ibz + 1] - 1)
-            real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, kext, ssa_g, thresh, events,
-                                                    max_events, ux, uy, uz, col, cell, scale)
+            real, alive, w, ux, uy, uz = _tentative(state, w, b, iz, iy, ix, kc, optics, events, survival, ux, uy,
+                                                    uz, tallies)
             if real:
                 events += 1
                 if not alive:
                     return events
                 iux, iuy, iuz = _inverse(ux), _inverse(uy), 1.0 / uz
             continue
+        if 0 <= ibz < nbz:
+            continue
         # --- out through the top, or onto the surface
         ix, iy = _fine_cell(x, ibx, bx, inv_dx), _fine_cell(y, iby, by, inv_dy)
-        alive, w, ux, uy, uz = _boundary(state, w, b, iy, ix, ibz == nbz, thresh, alb, col)
+        alive, w, ux, uy, uz = _boundary(state, w, b, iy, ix, ibz == nbz, survival.threshold, alb, tallies.col)
         if not alive:
             return events
         ibz = 0
@@ -524,12 +581,17 @@ def transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx,
 
 
 @njit(**KERNEL)
-def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
-                     thresh, max_events, col, cell, scale):
-    """Trace one photon confined to column (ix, iy) as if it extended to infinity horizontally.
+def transport_column(state, photon, props, alb, z_edge, survival, tallies):
+    """Trace one photon (a :class:`~surrogate3d.solvers._records.Photon`) confined to its
+    column as if the column extended to infinity horizontally; returns its scattering events.
 
-    ``props`` is float32 (nband, ny, nx, nz, 3): a column's layers are contiguous.
+    ``props`` is :attr:`~surrogate3d.solvers._records.Optics.column_props` (a column's
+    layers contiguous), ``alb`` the surface albedo, ``z_edge`` the layer edges [m]: three
+    arrays, not the records, because the fields of a record all cross the call, and
+    this call is made for every photon.
     """
+    b, w, z, ux, uy, uz = photon.band, photon.weight, photon.z, photon.ux, photon.uy, photon.uz
+    ix, iy, iz = photon.ix, photon.iy, photon.iz
     nz = props.shape[3]
     column = props[b, iy, ix]
     events = 0
@@ -547,15 +609,15 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             z += (tau / k) * uz
             tau = -math.log(uniform_open(state))
             events += 1
-            alive, w, ux, uy, uz = _collide(state, w, cellp[1], cellp[2], iz, iy, ix, b, thresh, events,
-                                            max_events, ux, uy, uz, col, cell, scale)
+            alive, w, ux, uy, uz = _collide(state, w, cellp[1], cellp[2], iz, iy, ix, b, events, survival, ux, uy,
+                                            uz, tallies)
             if not alive:
                 return events
             continue
         tau -= k * t
         if uz > 0.0:
             if iz == nz - 1:
-                _add(col, b, TOA_UP, iy, ix, alb, w)
+                _add(tallies.col, b, TOA_UP, iy, ix, alb, w)
                 return events
             iz += 1
             z = z_edge[iz]
@@ -564,7 +626,7 @@ def transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, props, alb, z_edge,
             z = z_edge[iz + 1]
         else:
             z = z_edge[0]
-            alive, w = _surface(state, w, b, iy, ix, thresh, alb, col)
+            alive, w = _surface(state, w, b, iy, ix, survival.threshold, alb, tallies.col)
             if not alive:
                 return events
             ux, uy, uz = lambertian_up(state)
@@ -609,34 +671,28 @@ def _cumulate(source, weights, cdf):
 
 
 @njit(**KERNEL)
-def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, ssa_g, column_props, alb,
-               z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, slabs, edge_slot, kept, grid, czi, column_direct, ray_xy,
-               source,
-               ray_cum, ray_trans, work, roulette, max_events, col, cell, scale):
-    """Trace one batch into the slot tallies ``col`` and the fixed-point cell tallies ``cell``
-    (units of ``1 / scale``), drawing from the random stream ``state`` (uint64, seeded here
-    for the batch); returns events.
+def _run_batch(state, batch, run, optics, grid, beam, slabs, tables, tallies):
+    """Trace batch number ``batch`` into ``tallies`` (its own column slot, and the cell
+    tallies it shares with the other batches of its thread), drawing from the random stream
+    ``state`` (uint64, seeded here for the batch); returns the scattering events.
 
-    In 3D the batch first traces its own direct beam (:func:`direct_beam_batch`), with
-    ray positions drawn from its stream, into ``ray_xy``, ``source``, ``ray_cum``,
-    ``ray_trans`` and the cumulative table ``cdf``; ``reach`` is the beam's horizontal
-    travel (x, y) [m] from the top to the surface and ``slabs`` the uniform layers it crosses
-    without walking them (:func:`surrogate3d.solvers._geometry.uniform_slabs`).  Independent columns share the exact
-    direct beam of every column: ``cdf`` holds its source.  ``column_direct`` (3, nband,
-    ny, nx) holds the direct beam's surface, column-absorbed and surface-absorbed flux
-    (zeroed scratch in 3D, filled here), which the batch adds to its tallies.
-
-    3D tracing uses ``kext`` and ``ssa_g`` (see :func:`transport_3d`); independent-column
-    tracing uses ``column_props``, float32 (nband, ny, nx, nz, 3) with each column's
-    extinction, single-scattering albedo and asymmetry contiguous.
+    In 3D the batch first traces its own direct beam (:func:`direct_beam_batch`) into
+    ``tables``, with ray positions drawn from its stream, crossing the uniform ``slabs``
+    without walking them, and builds its cumulative table ``tables.cdf``.  Independent
+    columns share the exact direct beam of every column (``tables.cdf`` and
+    ``tables.direct`` are then ``beam.column_cdf`` and ``beam.column_direct``).  The batch
+    adds the direct beam's surface, column-absorbed and surface-absorbed flux,
+    ``tables.direct``, to its tallies.
     """
+    band_weight, alb, cdf, column_direct = optics.band_weight, optics.albedo, tables.cdf, tables.direct
+    batch_size = run.batch_size
     nb, ny, nx = alb.shape
     ncol = ny * nx
-    seed_stream(state, seed, batch)
-    if full_3d:
-        direct_beam_batch(state, kext, ssa_g, alb, band_weight, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, slabs,
-                          edge_slot, kept, ray_xy, source, ray_cum, ray_trans, column_direct, cell, scale, work)
-        total = _cumulate(source, band_weight, cdf)
+    col = tallies.col
+    seed_stream(state, run.seed, batch)
+    if run.full_3d:
+        direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies)
+        total = _cumulate(tables.source, band_weight, cdf)
     else:
         total = cdf[-1]
     nrays = cdf.shape[0] // nb
@@ -648,7 +704,8 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, 
     if not total > 0.0:
         return 0
     w = total / batch_size
-    thresh = roulette * w
+    survival = Survival(run.roulette * w, run.max_events)
+    ux0, uy0, uz0 = beam.ux, beam.uy, beam.uz
     mu0 = -uz0
     events = 0
     last = cdf.shape[0] - 1
@@ -665,53 +722,52 @@ def _run_batch(state, batch, full_3d, seed, batch_size, cdf, band_weight, kext, 
         r = k - b * nrays
         target = (u - below) / band_weight[b]
         v = uniform(state)
-        if full_3d:
-            kind, x, y, z, ix, iy, iz = locate_source_3d(r, b, target, kext, alb, z_edge, dx, dy, ux0, uy0, uz0,
-                                                         ray_xy, v, ssa_g, czi, ray_cum, ray_trans)
+        if run.full_3d:
+            kind, x, y, z, ix, iy, iz = locate_source_3d(r, b, target, v, optics.kext, optics.ssa_g, grid.z_edge,
+                                                         grid.dx, grid.dy, ux0, uy0, uz0, beam.table_edges,
+                                                         tables.ray_xy, tables.ray_cum, tables.ray_trans)
             if kind == 0:
                 events += 1
-                mu = hg_cosine(ssa_g[b, iz, iy, ix, 1], uniform(state))
+                mu = hg_cosine(optics.ssa_g[b, iz, iy, ix, 1], uniform(state))
                 cp, sp = random_azimuth(state)
                 ux, uy, uz = rotate(ux0, uy0, uz0, mu, cp, sp)
             else:
                 ux, uy, uz = lambertian_up(state)
-            events += transport_3d(state, b, w, x, y, z, ux, uy, uz, kext, ssa_g, alb, z_edge, dx, dy, grid,
-                                   ix, iy, iz, thresh, max_events, col, cell, scale)
+            events += transport_3d(state, Photon(b, w, x, y, z, ux, uy, uz, ix, iy, iz), optics, grid, survival,
+                                   tallies)
         else:
-            kind, z, iz = locate_source_column(r, b, target, column_props, alb, z_edge, mu0, v)
+            kind, z, iz = locate_source_column(r, b, target, v, optics.column_props, alb, grid.z_edge, mu0)
             ix = r % nx
             iy = r // nx
             if kind == 0:
                 events += 1
-                mu = hg_cosine(column_props[b, iy, ix, iz, 2], uniform(state))
+                mu = hg_cosine(optics.column_props[b, iy, ix, iz, 2], uniform(state))
                 cp, sp = random_azimuth(state)
                 ux, uy, uz = rotate(ux0, uy0, uz0, mu, cp, sp)
             else:
                 ux, uy, uz = lambertian_up(state)
-            events += transport_column(state, b, w, z, ux, uy, uz, iz, ix, iy, column_props, alb, z_edge,
-                                       thresh, max_events, col, cell, scale)
+            events += transport_column(state, Photon(b, w, 0.0, 0.0, z, ux, uy, uz, ix, iy, iz),
+                                       optics.column_props, alb, grid.z_edge, survival, tallies)
     return events
 
 
 @njit(cache=True, parallel=True)
-def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, band_weight, kext, ssa_g,
-                column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub, reach, slabs, edge_slot, kept, grid, czi,
-                column_direct, roulette, max_events, col_sum, spread, cell_fixed, scale):
-    """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to the sums.
+def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, sums):
+    """Run batches ``first_batch .. first_batch + n_batches - 1`` and add them to ``sums``.
 
     Batches run in waves of ``wave`` slots, in parallel within a wave; the slots are then
-    added in batch order, so the sums do not depend on the number of threads.
-    ``col_sum`` (nband, ny, nx, 6) receives the batch tallies (in the order
-    :data:`SUM_NAMES`).  ``spread`` (3, ncol + 1, 6) receives, for the band-summed batch
-    tallies of every column and (last row) their domain means, the sums of their
-    deviations from batch 0's values, of the squared deviations, and batch 0's values.
-    Cell absorption needs no batch-to-batch variance: every thread adds it to its own int64
-    array ``cell_fixed[thread]`` (nthread, nz, ny, nx), in units of ``1 / scale``; integer
-    sums make the total independent of which thread ran which batch.  In 3D ``cdf`` is
-    unused (every batch builds its own table); for independent columns it is the shared
-    (nband * ncol,) table.  Returns the scattering events.
+    added in batch order, so the sums do not depend on the number of threads.  ``sums``
+    (:class:`~surrogate3d.solvers._records.RunSums`): ``col_sum`` receives the batch
+    tallies; ``spread`` receives, for the band-summed batch tallies of every column and
+    (last row) their domain means, the sums of their deviations from batch 0's values, of
+    the squared deviations, and batch 0's values.  Cell absorption needs no
+    batch-to-batch variance: every thread adds it to its own row of ``cell_fixed``;
+    integer sums make the total independent of which thread ran which batch.  Returns
+    the scattering events.
     """
-    nb, ny, nx = alb.shape
+    full_3d = run.full_3d
+    col_sum, spread, cell_fixed, scale = sums.col_sum, sums.spread, sums.cell_fixed, sums.scale
+    nb, ny, nx = optics.albedo.shape
     ncol = ny * nx
     nthreads = cell_fixed.shape[0]
     col_slots = np.empty((wave, nb, N_TALLIES * ncol))  # every batch zeroes its slot
@@ -720,8 +776,8 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
     # shares a cache line with another thread's.
     states = np.zeros((wave, 16), dtype=np.uint64)
     # Per thread, the scratch of the batch it runs: its direct beam's per-ray tables.
-    nray = ncol * nsub * nsub if full_3d else 1
-    ncz = czi.shape[0] - 1
+    nray = ncol * beam.nsub * beam.nsub if full_3d else 1
+    ncz = beam.table_edges.shape[0] - 1
     sources = np.empty((nthreads, nb, nray))
     cums = np.empty((nthreads, nb, nray, ncz + 1))
     transs = np.empty((nthreads, nb, nray, ncz + 1))
@@ -740,15 +796,13 @@ def run_batches(first_batch, n_batches, wave, full_3d, seed, batch_size, cdf, ba
         for i in prange(n):
             thread = get_thread_id()
             col_slots[i, :, :] = 0.0
-            table = cdfs[thread] if full_3d else cdf
-            direct = directs[thread] if full_3d else column_direct
+            tables = BeamTables(xys[thread], sources[thread], cums[thread], transs[thread],
+                                cdfs[thread] if full_3d else beam.column_cdf,
+                                directs[thread] if full_3d else beam.column_direct, works[thread])
             if full_3d:
-                direct[:] = 0.0
-            slot_events[i] = _run_batch(states[i], start + i, full_3d, seed, batch_size, table, band_weight,
-                                        kext, ssa_g, column_props, alb, z_edge, dx, dy, ux0, uy0, uz0, nsub,
-                                        reach, slabs, edge_slot, kept, grid, czi, direct, xys[thread], sources[thread],
-                                        cums[thread], transs[thread], works[thread], roulette, max_events,
-                                        col_slots[i], cell_fixed[thread], scale)
+                tables.direct[:] = 0.0
+            slot_events[i] = _run_batch(states[i], start + i, run, optics, grid, beam, slabs, tables,
+                                        Tallies(col_slots[i], cell_fixed[thread], scale))
         for i in range(n):
             cs = col_slots[i]
             first = start + i == 0

@@ -3,7 +3,8 @@
 import numpy as np
 
 from ..errors import ParameterError
-from ._array_checks import as_float_array, broadcast_to_shape, check_finite, check_range
+from ..core.validation import check_array, check_finite
+from ._array_checks import as_float_array, broadcast_to_shape
 
 #: Standard acceleration of gravity [m s-2] (3rd CGPM 1901; the value of the
 #: U.S. Standard Atmosphere 1976).
@@ -57,14 +58,14 @@ def heating_rate(absorption, incident_flux, air_pressure_edges):
     if absorption.ndim < 1:
         raise ParameterError("absorption must have the layer axis first, shape (nz, ...); got a scalar")
     flux = as_float_array("incident_flux", incident_flux)
-    check_range("incident_flux", flux, 0.0, None)
+    check_array("incident_flux", flux, 0.0, None)
     flux = broadcast_to_shape("incident_flux", flux, absorption.shape[1:], "absorption's trailing shape")
     pressure = as_float_array("air_pressure_edges", air_pressure_edges)
     nz = absorption.shape[0]
     if pressure.shape != (nz + 1,):
         raise ParameterError(f"air_pressure_edges has shape {pressure.shape}; expected ({nz + 1},) for the "
                              f"{nz} layers of absorption")
-    check_range("air_pressure_edges", pressure, 0.0, None, low_open=True)
+    check_array("air_pressure_edges", pressure, 0.0, None, low_open=True)
     dp = pressure[:-1] - pressure[1:]
     if np.any(dp <= 0.0):
         i = int(np.argmax(dp <= 0.0)) + 1

@@ -13,49 +13,72 @@ import numba
 import numpy as np
 
 from .. import __version__
-from ..archive.results import make_run_result
+from ..core.config import (BATCHES, CLEAR_CELL_OPTICAL_THICKNESS, CLEAR_CUBE, MAJORANT_BLOCK, MAX_BATCH_SIZE,
+                           MAX_SCATTERING_EVENTS, MIN_BATCH_SIZE, MONTE_CARLO_PHOTONS, MONTE_CARLO_WAVE,
+                           PROGRESS_PHOTONS, RAY_TABLE_LAYERS, ROULETTE_WEIGHT, SOLAR_CONSTANT)
+from ..core.run_result import make_run_result
+from ..core.validation import check_integer, check_number
 from ..errors import ParameterError
 from ..scenes.model import spacing
 from ..scenes.validation import validate_scene
 from . import _geometry, _transport
+from ._records import Beam, Grid, Optics, Run, RunSums
 from .sun import beam_direction, check_sun
 
-#: Solar constant [W m-2] (Kopp and Lean 2011, Geophys. Res. Lett. 38, L01706).
-SOLAR_CONSTANT = 1361.0
-#: Batches per parallel wave; fixed so results do not depend on the thread count.
-WAVE = 8
-#: Cells per side of the majorant blocks, largest clear-air cube radius (blocks), and
-#: layers per block of the per-ray source tables.
-DEFAULT_MAJORANT_BLOCK = 1
-DEFAULT_CLEAR_CUBE = 8
 #: Largest clear-cube radius: a block code (radius + 1) takes four bits.
 MAX_CLEAR_CUBE = 14
-RAY_TABLE_LAYERS = 4
 
 
-def _check_int(name, value, low, high=None):
-    try:
-        ok = int(value) == value
-    except (TypeError, ValueError, OverflowError):
-        ok = False
-    if not ok or value < low or (high is not None and value > high):
-        rng = f"[{low}, {high}]" if high is not None else f">= {low}"
-        raise ParameterError(f"{name} must be an integer {rng}; got {value!r}")
-    return int(value)
+#: Declared ranges of the integer options of :func:`solve_monte_carlo`: name -> (low, high).
+_INTEGER_OPTIONS = {"photons": (1, None), "seed": (0, 2**63 - 1), "batch_size": (1, None), "rays_per_column": (1, 16),
+                    "threads": (1, numba.config.NUMBA_NUM_THREADS), "max_scattering_events": (1, None),
+                    "majorant_block": (1, 64), "clear_cube": (0, MAX_CLEAR_CUBE)}
+#: Declared ranges of its real options: name -> (low, high, low_open).
+_REAL_OPTIONS = {"roulette_weight": (0.0, 1.0, True), "solar_constant": (0.0, None, True)}
+#: Options whose None stands for a default chosen later.
+_DEFAULTED = ("batch_size", "threads")
 
 
-def _check_float(name, value, low, high, low_open=False, high_open=False):
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        v = math.nan
-    lo_ok = v > low if low_open else v >= low
-    hi_ok = v < high if high_open else v <= high
-    if not (math.isfinite(v) and lo_ok and hi_ok):
-        lb = "(" if low_open else "["
-        hb = ")" if high_open else "]"
-        raise ParameterError(f"{name} must be in {lb}{low}, {high}{hb}; got {value!r}")
-    return v
+def check_monte_carlo_options(**options):
+    """Options of :func:`solve_monte_carlo` checked against their declared ranges, before any work.
+
+    Parameters
+    ----------
+    **options
+        Any of ``photons``, ``seed``, ``batch_size``, ``rays_per_column``, ``threads``,
+        ``max_scattering_events``, ``majorant_block``, ``clear_cube``, ``roulette_weight`` and
+        ``solar_constant``; ``batch_size`` and ``threads`` may be None (their defaults).
+
+    Returns
+    -------
+    dict
+        The options as int or float.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        An option is outside its range (named as the parameter) or not one of these.
+
+    Examples
+    --------
+    >>> check_monte_carlo_options(photons=2000, rays_per_column=17)
+    Traceback (most recent call last):
+    ...
+    surrogate3d.errors.ParameterError: rays_per_column must be an integer in [1, 16]; got 17
+    """
+    checked = {}
+    for name, value in options.items():
+        if value is None and name in _DEFAULTED:
+            checked[name] = None
+        elif name in _INTEGER_OPTIONS:
+            checked[name] = check_integer(name, value, *_INTEGER_OPTIONS[name])
+        elif name in _REAL_OPTIONS:
+            low, high, low_open = _REAL_OPTIONS[name]
+            checked[name] = check_number(name, value, low, high, low_open=low_open)
+        else:
+            raise ParameterError(f"{name} is not an option of solve_monte_carlo; known: "
+                                 f"{sorted({**_INTEGER_OPTIONS, **_REAL_OPTIONS})}")
+    return checked
 
 
 @contextlib.contextmanager
@@ -71,8 +94,10 @@ def _numba_threads(threads):
 
 
 def default_batch_size(photons):
-    """Batch size giving at least 32 batches (for the standard errors), 1000 to 50000 photons."""
-    return int(min(50_000, max(1_000, math.ceil(photons / 32))))
+    """Batch size giving at least :data:`~surrogate3d.core.config.BATCHES` batches (for the standard
+    errors), from :data:`~surrogate3d.core.config.MIN_BATCH_SIZE` to
+    :data:`~surrogate3d.core.config.MAX_BATCH_SIZE` photons."""
+    return int(min(MAX_BATCH_SIZE, max(MIN_BATCH_SIZE, math.ceil(photons / BATCHES))))
 
 
 #: Result field -> the column sum of :data:`_transport.SUM_NAMES` it is the batch mean of.
@@ -84,9 +109,6 @@ _RESULT_TALLIES = {
     "atmosphere_absorption": "atmosphere_absorbed",
     "surface_absorption": "surface_absorbed",
 }
-
-#: Optical thickness across a cell below which a cell counts as clear air for cube steps.
-CLEAR_CELL_OPTICAL_THICKNESS = 0.01
 
 
 def cube_radius(clear, max_radius):
@@ -128,7 +150,7 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
     Blocks are ``bx x by`` columns (the largest divisors of nx and ny not above
     ``block``) by ``block`` layers (the top block may be thinner).  A cell is clear air
     where its optical thickness across its smallest size is at most
-    :data:`CLEAR_CELL_OPTICAL_THICKNESS`, and a block is clear where all its cells are.
+    :data:`~surrogate3d.core.config.CLEAR_CELL_OPTICAL_THICKNESS`, and a block is clear where all its cells are.
 
     Parameters
     ----------
@@ -179,8 +201,8 @@ def majorant_blocks(kext, z_edge, dx, dy, block, max_radius):
     return kmaj, cube_radius(bclear, max_radius), kclear, bx, by, bedge, clear_below, clear_above
 
 
-def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge):
-    """:func:`majorant_blocks` packed in the order the 3D kernel unpacks it.
+def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above, z_edge, dx, dy):
+    """The :class:`~surrogate3d.solvers._records.Grid` of the cells and the blocks of :func:`majorant_blocks`.
 
     The kernel reads first a four-bit block code: 0 for a block tracked at its majorant, 1
     for a block tracked at the clear-air rate ``kclear`` (no majorant read), ``r + 1`` for
@@ -195,8 +217,8 @@ def _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, clear_below, clear_above,
     if code.shape[3] % 2:
         code = np.concatenate([code, np.zeros(code.shape[:3] + (1,), np.uint8)], axis=3)
     packed = np.ascontiguousarray(code[..., 0::2] | (code[..., 1::2] << 4))
-    return (int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj, packed, kclear, clear_below,
-            clear_above)
+    return Grid(z_edge, float(dx), float(dy), int(bx), int(by), bedge, np.ascontiguousarray(z_edge[bedge]), kmaj,
+                packed, kclear, clear_below, clear_above)
 
 
 def _ray_table_edges(nz, layers):
@@ -259,11 +281,11 @@ def _arrays(scene):
             np.ascontiguousarray(scene["surface_albedo"].values, dtype=np.float64))
 
 
-def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=1_000_000, seed=0,
+def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, photons=MONTE_CARLO_PHOTONS, seed=0,
                       independent_columns=False, batch_size=None, rays_per_column=1, threads=None,
-                      per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=DEFAULT_MAJORANT_BLOCK,
-                      clear_cube=DEFAULT_CLEAR_CUBE,
-                      roulette_weight=0.3, max_scattering_events=100_000, progress=None):
+                      per_band=False, solar_constant=SOLAR_CONSTANT, majorant_block=MAJORANT_BLOCK,
+                      clear_cube=CLEAR_CUBE,
+                      roulette_weight=ROULETTE_WEIGHT, max_scattering_events=MAX_SCATTERING_EVENTS, progress=None):
     """Broadband (and per-band) solar fluxes of a scene by Monte Carlo.
 
     Parameters
@@ -305,9 +327,10 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     roulette_weight : float
         Photon weight, relative to the starting weight, below which a photon's survival of
         a collision or a surface hit is decided by Russian roulette instead of reducing its
-        weight (its expected absorption is tallied either way); in (0, 1].  The default 0.3 stops tracing photons of small
-        weight after a reflection by a dark surface: on the shared benchmark scene it needs
-        about 10 % less CPU time than 0.1 for the same noise in the surface fluxes.
+        weight (its expected absorption is tallied either way); in (0, 1].  The default 0.3
+        stops tracing photons of small weight after a reflection by a dark surface: on the
+        shared benchmark scene it needs about 10 % less CPU time than 0.1 for the same noise
+        in the surface fluxes.
     max_scattering_events : int
         Safety cap per photon; a photon reaching it is absorbed where it is (counted in the
         metadata as ``scattering_events``).
@@ -338,22 +361,22 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
     >>> import numpy as np
     >>> from surrogate3d.scenes import make_scene
     >>> scene = make_scene(np.full((1, 4, 4, 4), 0.005), 1.0, 0.85, [0, 250, 500, 750, 1000], 100, 100)
-    >>> out = solve_monte_carlo(scene, 30.0, photons=20_000, seed=1)   # doctest: +SKIP
-    >>> float(out.toa_upward_flux.mean())                               # doctest: +SKIP
+    >>> out = solve_monte_carlo(scene, 30.0, photons=20_000, seed=1)
+    >>> round(float(out.toa_upward_flux.mean()), 2)        # standard error 0.003
+    0.29
+    >>> float(out.surface_downward_direct_flux.mean())     # exp(-5 / cos 30 deg) = 0.0031088...
+    0.0031088...
     """
     validate_scene(scene)
     zenith, azimuth = check_sun(solar_zenith_angle, solar_beam_azimuth)
-    photons = _check_int("photons", photons, 1)
-    seed = _check_int("seed", seed, 0, 2**63 - 1)
-    batch_size = default_batch_size(photons) if batch_size is None else _check_int("batch_size", batch_size, 1)
-    nsub = _check_int("rays_per_column", rays_per_column, 1, 16)
-    roulette = _check_float("roulette_weight", roulette_weight, 0.0, 1.0, low_open=True)
-    max_events = _check_int("max_scattering_events", max_scattering_events, 1)
-    solar_constant = _check_float("solar_constant", solar_constant, 0.0, math.inf, low_open=True, high_open=True)
-    block = _check_int("majorant_block", majorant_block, 1, 64)
-    clear_cube = _check_int("clear_cube", clear_cube, 0, MAX_CLEAR_CUBE)
-    if threads is not None:
-        threads = _check_int("threads", threads, 1, numba.config.NUMBA_NUM_THREADS)
+    checked = check_monte_carlo_options(
+        photons=photons, seed=seed, batch_size=batch_size, rays_per_column=rays_per_column, threads=threads,
+        roulette_weight=roulette_weight, max_scattering_events=max_scattering_events, solar_constant=solar_constant,
+        majorant_block=majorant_block, clear_cube=clear_cube)
+    photons, seed, threads, solar_constant = (checked[k] for k in ("photons", "seed", "threads", "solar_constant"))
+    batch_size = default_batch_size(photons) if batch_size is None else checked["batch_size"]
+    nsub, roulette = checked["rays_per_column"], checked["roulette_weight"]
+    max_events, block, clear_cube = checked["max_scattering_events"], checked["majorant_block"], checked["clear_cube"]
 
     started = time.perf_counter()
     ext, ssa, asym, alb = _arrays(scene)
@@ -376,7 +399,8 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
                                                            w3 * (1.0 - alb) * surface]))
             cdf = np.cumsum((source * weights[:, None]).reshape(-1))
             grid = _majorant_grid(np.zeros((nb, 1, 1, 1), np.float32), np.zeros((nb, 1, 1, 1), np.uint8), np.zeros(nb),
-                                  1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge)
+                                  1, 1, np.array([0, nz]), np.zeros(nb, np.int64), np.zeros(nb, np.int64), z_edge,
+                                  dx, dy)
             czi = np.zeros(2, np.int64)
             nsub, reach = 1, (0.0, 0.0)
             slabs = _geometry.uniform_slabs(np.zeros((nb, nz, 1)), np.ones((nb, nz, 1)), z_edge, mu0)  # unused
@@ -386,7 +410,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             absorbed = None
             column_direct = np.zeros((3, nb, ny, nx))
             cdf = np.zeros(1)
-            grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge)
+            grid = _majorant_grid(*majorant_blocks(kext, z_edge, dx, dy, block, clear_cube), z_edge, dx, dy)
             czi = _ray_table_edges(nz, RAY_TABLE_LAYERS)
             path = (z_edge[-1] - z_edge[0]) / mu0
             reach = (path * ux, path * uy)
@@ -404,14 +428,15 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         # inside int64 and fine enough (2**-61) that rounding never shows.
         scale = 2.0**61 / (n_batches * energy)
         cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
-        chunk = WAVE * max(1, 200_000 // (WAVE * batch_size))
+        optics = Optics(kext, ssa_g, column_props, alb, weights)
+        beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, kept, czi, cdf, column_direct)
+        run = Run(not independent_columns, seed, batch_size, roulette, max_events)
+        sums = RunSums(col_sum, spread, cell_fixed, scale)
+        chunk = MONTE_CARLO_WAVE * max(1, PROGRESS_PHOTONS // (MONTE_CARLO_WAVE * batch_size))
         events = 0
         for first in range(0, n_batches, chunk):
             n = min(chunk, n_batches - first)
-            events += _transport.run_batches(
-                first, n, WAVE, not independent_columns, seed, batch_size, cdf, weights, kext, ssa_g, column_props,
-                alb, z_edge, dx, dy, ux, uy, uz, nsub, reach, slabs, edge_slot, kept, grid, czi, column_direct, roulette,
-                max_events, col_sum, spread, cell_fixed, scale)
+            events += _transport.run_batches(first, n, MONTE_CARLO_WAVE, run, optics, grid, beam, slabs, sums)
             if progress is not None:
                 progress((first + n) * batch_size)
         cell = cell_fixed.sum(axis=0) / (scale * n_batches)

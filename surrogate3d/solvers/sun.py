@@ -2,7 +2,8 @@
 
 import math
 
-from ..errors import ParameterError
+from ..core.slant_path import check_solar_zenith_angle
+from ..core.validation import check_number
 
 
 def check_sun(solar_zenith_angle, solar_beam_azimuth):
@@ -15,20 +16,8 @@ def check_sun(solar_zenith_angle, solar_beam_azimuth):
     solar_beam_azimuth : float
         Direction in which the direct beam travels [degree], counterclockwise from +x.
     """
-    try:
-        zenith = float(solar_zenith_angle)
-    except (TypeError, ValueError):
-        zenith = math.nan
-    if not (math.isfinite(zenith) and 0.0 <= zenith < 90.0):
-        raise ParameterError(f"solar_zenith_angle must be in [0, 90) degrees (sun above the horizon); "
-                             f"got {solar_zenith_angle!r}")
-    try:
-        azimuth = float(solar_beam_azimuth)
-    except (TypeError, ValueError):
-        azimuth = math.nan
-    if not math.isfinite(azimuth):
-        raise ParameterError(f"solar_beam_azimuth must be a finite angle in degrees; got {solar_beam_azimuth!r}")
-    return zenith, azimuth % 360.0
+    zenith = check_solar_zenith_angle(solar_zenith_angle)
+    return zenith, check_number("solar_beam_azimuth", solar_beam_azimuth) % 360.0
 
 
 def beam_direction(solar_zenith_angle, solar_beam_azimuth):

@@ -23,19 +23,15 @@ import numpy as np
 from tqdm import tqdm
 
 from .. import __version__
-from ..archive import COLUMN_FLUXES, make_run_result
+from ..core.data_model import COLUMN_FLUXES
+from ..core.run_result import make_run_result
 from ..errors import ParameterError
 from ..scenes import layer_thickness, validate_scene
-from ._array_checks import as_float_array, broadcast_to_shape, check_range
+from ..core.config import SOLAR_CONSTANT, TWO_STREAM_BLOCK_COLUMNS
+from ..core.validation import check_array, check_number
+from ._array_checks import as_float_array, broadcast_to_shape
 from .heating import heating_rate
 from .sun import check_sun
-
-#: Total solar irradiance at 1 au [W m-2] (Kopp and Lean 2011).
-SOLAR_CONSTANT = 1361.0
-
-#: Columns solved together: large enough to amortize numpy call overhead, small enough
-#: that the per-layer temporaries stay in cache (measured with benchmarks/bench_two_stream.py).
-_BLOCK_COLUMNS = 4096
 
 _LAYER_KEYS = ("diffuse_reflectance", "diffuse_transmittance", "direct_reflectance",
                "direct_diffuse_transmittance", "direct_transmittance")
@@ -152,8 +148,8 @@ def _solve_columns(tau, ssa, g, mu0, albedo):
     ncol, nz = tau.shape
     out = {"upward_flux": np.empty((nz + 1, ncol)), "downward_direct_flux": np.empty((nz + 1, ncol)),
            "downward_diffuse_flux": np.empty((nz + 1, ncol)), "layer_absorption": np.empty((nz, ncol))}
-    for start in range(0, ncol, _BLOCK_COLUMNS):
-        cols = slice(start, min(start + _BLOCK_COLUMNS, ncol))
+    for start in range(0, ncol, TWO_STREAM_BLOCK_COLUMNS):
+        cols = slice(start, min(start + TWO_STREAM_BLOCK_COLUMNS, ncol))
         block = _solve_block(np.ascontiguousarray(tau[cols].T), np.ascontiguousarray(ssa[cols].T),
                              np.ascontiguousarray(g[cols].T), mu0[cols], albedo[cols])
         for name, value in block.items():
@@ -179,10 +175,10 @@ def _checked_optics(tau, ssa, g, mu0):
     ssa = as_float_array("ssa", ssa)
     g = as_float_array("g", g)
     mu0 = as_float_array("mu0", mu0)
-    check_range("tau", tau, 0.0, None)
-    check_range("ssa", ssa, 0.0, 1.0)
-    check_range("g", g, -1.0, 1.0, low_open=True, high_open=True)
-    check_range("mu0", mu0, 0.0, 1.0, low_open=True)
+    check_array("tau", tau, 0.0, None)
+    check_array("ssa", ssa, 0.0, 1.0)
+    check_array("g", g, -1.0, 1.0, low_open=True, high_open=True)
+    check_array("mu0", mu0, 0.0, 1.0, low_open=True)
     return tau, ssa, g, mu0
 
 
@@ -315,7 +311,7 @@ def delta_eddington(tau, ssa, g, mu0, surface_albedo):
     g = broadcast_to_shape("g", g, shape, "tau's shape")
     mu0 = broadcast_to_shape("mu0", mu0, lead, "the leading (column) shape of tau")
     albedo = as_float_array("surface_albedo", surface_albedo)
-    check_range("surface_albedo", albedo, 0.0, 1.0)
+    check_array("surface_albedo", albedo, 0.0, 1.0)
     albedo = broadcast_to_shape("surface_albedo", albedo, lead, "the leading (column) shape of tau")
 
     ncol = int(np.prod(lead, dtype=np.int64))
@@ -341,7 +337,7 @@ def _solve_scene_bands(scene, mu0, quiet):
     absorption = np.zeros((nz, ncol))
     total = nband * ncol
     bar = tqdm(total=total, desc="two-stream columns", unit="col", leave=False, file=sys.stderr,
-               disable=True if quiet or total <= _BLOCK_COLUMNS else None)
+               disable=True if quiet or total <= TWO_STREAM_BLOCK_COLUMNS else None)
     extinction, ssa_all, g_all, albedo_all = (np.asarray(scene[name].values, dtype=np.float64) for name in (
         "extinction", "single_scattering_albedo", "asymmetry_parameter", "surface_albedo"))
     with bar:
@@ -350,8 +346,8 @@ def _solve_scene_bands(scene, mu0, quiet):
             ssa = ssa_all[b].reshape(nz, ncol)
             g = g_all[b].reshape(nz, ncol)
             albedo = albedo_all[b].reshape(ncol)
-            for start in range(0, ncol, _BLOCK_COLUMNS):
-                cols = slice(start, min(start + _BLOCK_COLUMNS, ncol))
+            for start in range(0, ncol, TWO_STREAM_BLOCK_COLUMNS):
+                cols = slice(start, min(start + TWO_STREAM_BLOCK_COLUMNS, ncol))
                 profiles = _solve_block(tau[:, cols], ssa[:, cols], g[:, cols], mu0, albedo[cols])
                 for name, value in _column_summary(profiles, axis=0).items():
                     flat[name][b, cols] = value
@@ -408,12 +404,7 @@ def solve_scene(scene, solar_zenith_angle, solar_beam_azimuth=0.0, solar_constan
     started = time.perf_counter()
     validate_scene(scene)
     zenith, azimuth = check_sun(solar_zenith_angle, solar_beam_azimuth)
-    try:
-        s0 = float(solar_constant)
-    except (TypeError, ValueError):
-        s0 = float("nan")
-    if not (np.isfinite(s0) and s0 > 0.0):
-        raise ParameterError(f"solar_constant must be a positive number of W m-2; got {solar_constant!r}")
+    s0 = check_number("solar_constant", solar_constant, 0.0, None, low_open=True)
     mu0 = np.cos(np.radians(zenith))
 
     band_fluxes, absorption = _solve_scene_bands(scene, mu0, quiet)

@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 
 from surrogate3d.archive import (completed, insert_result, make_run_result, read_scene, select_result,
                                  write_dataset, write_scene)
-from surrogate3d.archive.results import COLUMN_FLUXES
+from surrogate3d.core.data_model import COLUMN_FLUXES
 from surrogate3d.errors import FormatError, ValidationError
 from surrogate3d.scenes.generator import generate_scene
 from surrogate3d.scenes.model import make_scene

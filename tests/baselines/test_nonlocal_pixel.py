@@ -4,12 +4,11 @@ import math
 
 import numpy as np
 import pytest
-import xarray as xr
 
-from surrogate3d.baselines import BASELINES, NoCorrection, NonlocalIndependentPixel, radiative_smoothing_scale
+from surrogate3d.baselines import NonlocalIndependentPixel, radiative_smoothing_scale
 from surrogate3d.baselines.nonlocal_pixel import gaussian_kernel_spectrum, smooth
-from surrogate3d.errors import FormatError, ParameterError
-from surrogate3d.pairs.targets import TARGETS
+from surrogate3d.core.data_model import TARGETS
+from surrogate3d.errors import ParameterError
 from surrogate3d.scenes import make_scene
 
 
@@ -54,13 +53,6 @@ def test_gaussian_kernel_has_the_requested_width():
     assert np.allclose(smooth(delta, gaussian_kernel_spectrum(64, 64, 100.0, 100.0, 0.0)), delta)
 
 
-def test_predict_pairs_reads_the_table():
-    n = 4
-    pairs = xr.Dataset({"baseline_nonlocal_independent_pixel": (("sample", "target"), np.arange(20.0).reshape(n, 5))},
-                       coords={"target": list(TARGETS)})
-    assert np.array_equal(BASELINES["nonlocal_independent_pixel"].predict_pairs(pairs), np.arange(20.0).reshape(n, 5))
-    assert np.array_equal(NoCorrection().predict_pairs(pairs), np.zeros((n, 5)))
-    with pytest.raises(FormatError, match="baseline_tilted_independent_column"):
-        BASELINES["tilted_independent_column"].predict_pairs(pairs)
+def test_smoothing_scale_is_checked():
     with pytest.raises(ParameterError, match="smoothing_scale"):
         NonlocalIndependentPixel(smoothing_scale=-1.0)

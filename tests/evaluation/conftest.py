@@ -6,7 +6,7 @@ from threadpoolctl import threadpool_limits
 from surrogate3d import cli
 from surrogate3d.archive import write_dataset
 from surrogate3d.evaluation.report import evaluate
-from surrogate3d.learn.synthetic import make_synthetic_pairs
+from synthetic_pairs import make_synthetic_pairs
 from surrogate3d.learn.train import train_models
 
 RECIPE = """

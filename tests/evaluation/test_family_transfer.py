@@ -13,7 +13,8 @@ from sklearn.base import clone
 from surrogate3d.evaluation.family_transfer import LEFT_OUT, WITHOUT_FAMILY
 from surrogate3d.evaluation.report import evaluate
 from surrogate3d.learn.model_directory import load_training_run
-from surrogate3d.learn.pairs_table import feature_matrix, read_pairs_table, scene_table, select_scenes
+from surrogate3d.core.pairs_table import read_pairs_table
+from surrogate3d.learn.pairs_table import feature_matrix, scene_table, select_scenes
 from surrogate3d.learn.train import train_models
 
 

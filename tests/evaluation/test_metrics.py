@@ -6,8 +6,9 @@ import pytest
 from surrogate3d.evaluation.breakdown import group_labels, metric_table
 from surrogate3d.evaluation.metrics import error_metrics
 from surrogate3d.evaluation.predictions import reference_predictions
-from surrogate3d.learn.pairs_table import TARGETS, target_matrix
-from surrogate3d.learn.synthetic import make_synthetic_pairs
+from surrogate3d.core.data_model import TARGETS
+from surrogate3d.learn.pairs_table import target_matrix
+from synthetic_pairs import make_synthetic_pairs
 
 RNG = np.random.default_rng(3)
 

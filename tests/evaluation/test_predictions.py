@@ -6,7 +6,8 @@ from surrogate3d.evaluation.predictions import model_correction
 from surrogate3d.evaluation.scored_model import ScoredModel
 from surrogate3d.learn.consistency import energy_residual
 from surrogate3d.learn.models import RidgeCorrection
-from surrogate3d.learn.pairs_table import TARGETS, domain_groups, feature_matrix
+from surrogate3d.core.data_model import TARGETS
+from surrogate3d.learn.pairs_table import domain_groups, feature_matrix
 
 
 def test_gated_columns_stay_zero_after_the_consistency_step(synthetic_pairs):

@@ -16,7 +16,7 @@ from surrogate3d import cli
 from surrogate3d.archive import write_dataset
 from surrogate3d.errors import ValidationError
 from surrogate3d.evaluation.scoring import SCORED, score
-from surrogate3d.learn.pairs_table import read_pairs_table
+from surrogate3d.core.pairs_table import read_pairs_table
 from surrogate3d.pairs.recipe import FeatureRecipe
 from surrogate3d.runtime import load_coefficients
 

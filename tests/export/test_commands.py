@@ -37,7 +37,7 @@ def test_export_all_models_quietly(built, tmp_path, capsys):
 
 @pytest.mark.parametrize("extra, error, message", [
     (["--model", "forest"], ValidationError, r"has no model 'forest'; it has \['boosted', 'ridge'\]"),
-    (["--sample-columns", "0"], ParameterError, "--sample-columns must be >= 1; got 0"),
+    (["--sample-columns", "0"], ParameterError, "--sample-columns must be an integer >= 1; got 0"),
     (["--report", "/nonexistent/report"], FormatError, "has no metrics.csv"),
     (["--fortran", "--pairs", "/nonexistent/pairs.nc"], FormatError, "pairs file '/nonexistent/pairs.nc'"),
 ], ids=["unknown-model", "sample-columns", "report", "pairs"])

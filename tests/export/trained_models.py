@@ -1,6 +1,6 @@
 """Small trained models for the export and runtime tests, built once per test session.
 
-The synthetic pair table of :mod:`surrogate3d.learn.synthetic` has features of its own;
+The synthetic pair table of ``tests/synthetic_pairs.py`` has features of its own;
 here its six columns are renamed to registry features and given a matching feature
 recipe, so that exported models can also compute their features from host fields.
 The values keep their synthetic meaning: only names and units matter to the export.
@@ -13,7 +13,7 @@ import numpy as np
 from surrogate3d.archive import write_dataset
 from surrogate3d.export import export_training_run
 from surrogate3d.learn import train_models
-from surrogate3d.learn.synthetic import make_synthetic_pairs
+from synthetic_pairs import make_synthetic_pairs
 from surrogate3d.pairs.features import FEATURES, column_name
 from surrogate3d.pairs.recipe import FeatureRecipe
 

@@ -4,7 +4,7 @@ import pytest
 from threadpoolctl import threadpool_limits
 
 from surrogate3d.archive import write_dataset
-from surrogate3d.learn.synthetic import make_synthetic_pairs
+from synthetic_pairs import make_synthetic_pairs
 
 SMALL_RECIPE = """
 name = "small"

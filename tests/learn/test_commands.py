@@ -35,7 +35,7 @@ def test_pairs_file_missing_a_feature(main, synthetic_pairs, recipe_file, tmp_pa
 
 @pytest.mark.parametrize("edit, words", [
     (('kind = "boosted"', 'kind = "neural"'), ["kind", "'neural'"]),
-    (("min_samples_leaf = 10", "min_samples_leaf = 0"), ["min_samples_leaf", "[1, inf)"]),
+    (("min_samples_leaf = 10", "min_samples_leaf = 0"), ["min_samples_leaf", "an integer >= 1"]),
     (('features = "all"', 'features = ["cloud_fraction", "rain_rate"]'), ["rain_rate"]),
 ])
 def test_bad_recipe(main, pairs_file, recipe_file, tmp_path, capsys, edit, words):

@@ -6,7 +6,8 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.learn.consistency import apply_correction, energy_residual
 from surrogate3d.learn.models import BoostedCorrection, RidgeCorrection
-from surrogate3d.learn.pairs_table import TARGETS, domain_groups, feature_matrix, target_matrix
+from surrogate3d.core.data_model import TARGETS
+from surrogate3d.learn.pairs_table import domain_groups, feature_matrix, target_matrix
 
 RNG = np.random.default_rng(7)
 

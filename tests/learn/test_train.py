@@ -9,7 +9,8 @@ import pytest
 
 from surrogate3d.errors import FormatError
 from surrogate3d.learn.model_directory import load_model, load_training_run
-from surrogate3d.learn.pairs_table import read_pairs_table, scene_table, select_scenes
+from surrogate3d.core.pairs_table import read_pairs_table
+from surrogate3d.learn.pairs_table import scene_table, select_scenes
 from surrogate3d.learn.train import train_models
 
 

@@ -68,7 +68,7 @@ def test_weighted_ridge_recovers_an_exact_linear_residual():
 @pytest.mark.parametrize("transforms, words", [
     ("absorption", ["target_transforms", "one entry"]),
     ([{"scale": "x"}], ["target_transforms[0]", "scale_feature"]),
-    ([{"scale_feature": "x", "scale_floor": -1.0}], ["scale_floor", ">= 0", "-1.0"]),
+    ([{"scale_feature": "x", "scale_floor": -1.0}], ["scale_floor", "in [0, inf)", "-1.0"]),
     ([{"offset_features": {"x": "one"}}], ["offset_features", "finite number"]),
     ([{"scale_feature": "x", "fit_errors": "squared"}], ["fit_errors", "relative", "'squared'"]),
 ])

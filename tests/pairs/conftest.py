@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.archive import insert_result, make_run_result, write_scene
-from surrogate3d.archive.results import COLUMN_FLUXES
+from surrogate3d.core.data_model import COLUMN_FLUXES
 from surrogate3d.scenes import make_scene
 
 METADATA = {"run_photons": 1000, "run_seed": 1, "run_scattering_events": 10, "run_wall_time": 0.1, "run_solar_constant": 1361.0,

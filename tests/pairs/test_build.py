@@ -8,12 +8,13 @@ import pytest
 
 from surrogate3d.archive import insert_result, read_scene, select_result, write_dataset, write_scene
 from surrogate3d.errors import FormatError, OutputError, ParameterError
-from surrogate3d.pairs import build_pairs, read_pairs
+from surrogate3d.core.pairs_table import REQUIRED_VARIABLES, read_pairs
+from surrogate3d.pairs import build_pairs
 from surrogate3d.pairs import commands
-from surrogate3d.pairs.build import REQUIRED_VARIABLES, archive_fingerprint
+from surrogate3d.pairs.build import archive_fingerprint
 from surrogate3d.pairs.coarsen import block_mean
 from surrogate3d.pairs.recipe import FeatureRecipe, default_recipe
-from surrogate3d.pairs.targets import TARGETS
+from surrogate3d.core.data_model import BASELINES, TARGETS
 
 
 @pytest.fixture(scope="module")
@@ -71,16 +72,18 @@ def test_fingerprint_follows_the_results(pairs, archive, make_result):
 
 
 def test_baselines_are_coarse_grained_benchmark_corrections(pairs, archive_template):
-    from surrogate3d.baselines import BASELINES, TiltedIndependentColumn
+    from surrogate3d.baselines import NonlocalIndependentPixel, TiltedIndependentColumn
     scene = read_scene(archive_template / "scene0.nc")
     fine = TiltedIndependentColumn().corrections(scene, 30.0, 0.0)
     pick = ((pairs["scene"] == "scene0") & (pairs["solar_zenith_angle"] == 30.0)
             & (pairs["host_resolution"] == 400.0)).values
     stored = pairs["baseline_tilted_independent_column"].values[pick]
     assert np.allclose(stored[:, 1], block_mean(fine["surface_downward_direct_flux"], 4, 4).reshape(-1))
-    for name, baseline in BASELINES.items():
-        predicted = baseline.predict_pairs(pairs)
-        assert predicted.shape == (pairs.sizes["sample"], len(TARGETS)) and baseline.name == name
+    # Every baseline of the registry is computed and stored under its variable.
+    assert {b.name: b.variable for b in (TiltedIndependentColumn(), NonlocalIndependentPixel())} == {
+        name: entry.variable for name, entry in BASELINES.items()}
+    for entry in BASELINES.values():
+        assert pairs[entry.variable].dims == ("sample", "target") and np.isfinite(pairs[entry.variable]).all()
 
 
 def test_command_line(archive_template, tmp_path, capsys):

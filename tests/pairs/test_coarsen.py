@@ -3,7 +3,8 @@
 import numpy as np
 import pytest
 
-from surrogate3d.archive.results import COLUMN_FLUXES, stderr_name
+from surrogate3d.core.data_model import COLUMN_FLUXES
+from surrogate3d.core.run_result import stderr_name
 from surrogate3d.errors import ParameterError
 from surrogate3d.pairs.coarsen import (allowed_host_resolutions, block_mean, coarsen_result, edge_length_density,
                                        host_factors, scene_host_fields)

@@ -10,7 +10,7 @@ import pytest
 from surrogate3d.errors import ValidationError
 from surrogate3d.pairs import features as F
 from surrogate3d.pairs.recipe import FeatureRecipe, default_recipe
-from surrogate3d.pairs.slant_path import path_weights
+from surrogate3d.core.slant_path import path_weights
 
 
 def plane_fields(tau_column, z_edge=(0.0, 1000.0), dx=1000.0, zenith=45.0, azimuth=0.0):
@@ -138,7 +138,8 @@ def test_slant_path_by_hand_with_wrap():
     fields = plane_fields([[1.0, 2.0, 3.0, 4.0]])
     slant = F.slant_optical_depth(fields)
     assert np.allclose(slant[0], math.sqrt(2.0) * np.array([2.5, 1.5, 2.5, 3.5]))
-    assert np.allclose(F.slant_minus_vertical_optical_depth(fields)[0], math.sqrt(2.0) * np.array([1.5, -0.5, -0.5, -0.5]))
+    difference = F.slant_minus_vertical_optical_depth(fields)[0]
+    assert np.allclose(difference, math.sqrt(2.0) * np.array([1.5, -0.5, -0.5, -0.5]))
     assert np.allclose(F.slant_optical_depth({**fields, "solar_zenith_angle": 0.0}), [[1.0, 2.0, 3.0, 4.0]])
 
 
@@ -213,11 +214,11 @@ def test_bad_host_fields_are_named(change, message):
     fields = random_fields()
     change(fields)
     with pytest.raises(ValidationError, match=message):
-        F.compute_features(fields)
+        F.compute_features(fields, default_recipe())
 
 
 def test_feature_modules_import_only_numpy_and_the_standard_library():
-    code = ("import sys, surrogate3d.pairs.features, surrogate3d.pairs.recipe, surrogate3d.pairs.slant_path\n"
+    code = ("import sys, surrogate3d.pairs.features, surrogate3d.pairs.recipe, surrogate3d.core.slant_path\n"
             "heavy = [m for m in sys.modules if m.split('.')[0] in ('xarray', 'pandas', 'scipy', 'numba', 'tqdm',"
             " 'sklearn', 'matplotlib', 'h5netcdf', 'h5py', 'dask')]\n"
             "print(heavy)\nsys.exit(1 if heavy else 0)")
@@ -247,7 +248,7 @@ def test_periodic_shift_and_box_sum_are_roll_and_direct_sums(shape):
 def test_distance_transform_matches_brute_force(monkeypatch, block_cells):
     # Definition: the periodic Euclidean distance between cell centres, nearest target,
     # infinity beyond the reach (in blocks of one, four or all rows).
-    monkeypatch.setattr(F, "_BLOCK_CELLS", block_cells)
+    monkeypatch.setattr(F, "CELL_BLOCK", block_cells)
     rng = np.random.default_rng(4)
     ny, nx, dx, dy = 9, 12, 1000.0, 700.0
     targets = rng.random((ny, nx)) < 0.15
@@ -313,9 +314,9 @@ def test_path_weights_match_a_layer_by_layer_reference(zenith, azimuth, dy):
 def test_slant_sum_in_row_blocks_is_the_sum_of_rolled_planes(monkeypatch, block_cells):
     # Definition: the slant sum adds, for every column offset, the weighted layers rolled
     # into place; blocks of rows (some wrapping around the grid) change nothing.
-    from surrogate3d.pairs import slant_path
+    from surrogate3d.core import slant_path
 
-    monkeypatch.setattr(slant_path, "_BLOCK_CELLS", block_cells)
+    monkeypatch.setattr(slant_path, "CELL_BLOCK", block_cells)
     rng = np.random.default_rng(7)
     layers = rng.random((5, 9, 6))
     weights = path_weights(np.linspace(0.0, 4000.0, 6), 1000.0, 800.0, 60.0, 120.0)

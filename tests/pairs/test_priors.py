@@ -8,7 +8,7 @@ from scipy import integrate, stats
 
 from surrogate3d.pairs import features as F
 from surrogate3d.pairs.recipe import FeatureRecipe
-from surrogate3d.pairs.slant_path import area_path_weights
+from surrogate3d.core.slant_path import area_path_weights
 
 PRIORS = ["direct_beam_prior", "direct_beam_prior_minus_independent_column", "direct_beam_prior_slant_minus_vertical"]
 
@@ -300,7 +300,7 @@ def test_interception_keeps_the_domain_total_of_the_tilted_columns():
     fields = random_prior_fields(zenith=60.0, azimuth=130.0)
     mu0 = 0.5
     weights = area_path_weights(fields["z_edge"], 1000.0, 1000.0, 60.0, 130.0)
-    from surrogate3d.pairs.slant_path import gather_layers
+    from surrogate3d.core.slant_path import gather_layers
 
     tilted_tau = gather_layers(fields["layer_optical_depth"], weights)
     above = np.cumsum(tilted_tau[::-1], axis=0)[::-1] - tilted_tau

@@ -18,8 +18,9 @@ import pytest
 
 from surrogate3d.errors import FormatError
 from surrogate3d.runtime import load_coefficients
-from surrogate3d.runtime.document import decode_array, encode_array
-from surrogate3d.runtime.envelope import EnvelopeWarning, TrainingEnvelope, VARIANCE_FLOOR
+from surrogate3d.core.coefficient_format import decode_array, encode_array
+from surrogate3d.core.config import ENVELOPE_VARIANCE_FLOOR
+from surrogate3d.runtime.envelope import EnvelopeWarning, TrainingEnvelope
 
 RNG = np.random.default_rng(11)
 
@@ -102,7 +103,7 @@ def test_constant_feature_has_a_point_range():
     envelope = TrainingEnvelope.fit(X)
     assert envelope.scale[2] == 1.0
     assert envelope.feature_min[2] <= 0.06 <= envelope.feature_max[2] < envelope.feature_min[2] + 1e-8
-    assert np.all(envelope.component_variance >= VARIANCE_FLOOR)
+    assert np.all(envelope.component_variance >= ENVELOPE_VARIANCE_FLOOR)
     column = X[:1].copy()
     column[0, 2] = 0.3
     assert envelope.check(column).outside_range.tolist() == [True]
@@ -163,8 +164,9 @@ def _set_first(field, name, value):
     (lambda e: e.pop("quantile"), "must be an object with exactly"),
     (lambda e: e.update(distance_threshold=-1.0), "distance_threshold must be a finite number >= 0"),
     (lambda e: e.update(n_samples=1), "n_samples must be an integer >= 2"),
-    (lambda e: _set_first(e, "scale", 0.0), "training_envelope.scale is not positive at index 0"),
-    (lambda e: _set_first(e, "feature_max", -1e300), "feature_max is below feature_min at index 0"),
+    (lambda e: _set_first(e, "scale", 0.0), r"training_envelope.scale must be > 0; got 0.0 \(at index 0\)"),
+    (lambda e: _set_first(e, "feature_max", -1e300),
+     r"feature_max must be >= feature_min; got -1e\+300 \(at index 0\)"),
 ], ids=["keys", "threshold", "samples", "scale", "range"])
 def test_malformed_envelope_is_refused(built, tmp_path, change, message):
     content = json.loads((built["export_dir"] / "ridge.coefficients.json").read_text())

@@ -15,7 +15,7 @@ import pytest
 
 from surrogate3d.errors import FormatError
 from surrogate3d.runtime import FORMAT_VERSION, load_coefficients
-from surrogate3d.runtime.document import PLAIN_LIMIT, decode_array, encode_array
+from surrogate3d.core.coefficient_format import PLAIN_LIMIT, decode_array, encode_array
 
 
 @pytest.fixture(scope="module")
@@ -58,7 +58,8 @@ def test_unchanged_files_load(tmp_path, contents):
     (lambda c: c["features"]["names"].__setitem__(0, "slant_optical_depth"),
      r"features \['slant_optical_depth'\] are not columns of the stored feature recipe"),
     (lambda c: c["features"]["units"].__setitem__(0, "m"), "has units 'm'; the feature recipe gives '1'"),
-    (lambda c: c["feature_recipe"].update(features=["no_such_feature"]), "feature_recipe is not a valid feature recipe"),
+    (lambda c: c["feature_recipe"].update(features=["no_such_feature"]),
+     "feature_recipe is not a valid feature recipe"),
     (lambda c: c["ridge"]["coef"].update(shape=[5, 3]), "'data' has \\d+ values|unpacks to"),
     (lambda c: c["ridge"]["feature_scale"].update(dtype="float16"), "dtype 'float16'"),
 ], ids=["version", "format", "missing-section", "kind", "missing-array", "names-vs-arrays", "units-count",
@@ -74,7 +75,7 @@ def test_array_value_errors(tmp_path, contents):
     ridge = contents["ridge"]
     scale = _array(ridge, "ridge", "feature_scale").copy()
     scale[3] = 0.0
-    with pytest.raises(FormatError, match="feature_scale is not positive at index 3"):
+    with pytest.raises(FormatError, match=r"feature_scale must be > 0; got 0.0 \(at index 3\)"):
         _load(tmp_path, _with_array(ridge, "ridge", "feature_scale", scale))
     coef = _array(ridge, "ridge", "coef")
     with pytest.raises(FormatError, match=f"has {coef.shape[1] - 1} terms"):
@@ -85,7 +86,7 @@ def test_array_value_errors(tmp_path, contents):
         _load(tmp_path, _with_array(ridge, "ridge", "interaction_pairs", pairs))
     nan = coef.copy()
     nan[1, 2] = np.nan
-    with pytest.raises(FormatError, match="ridge.coef is not finite at index"):
+    with pytest.raises(FormatError, match=r"ridge.coef must be finite; got nan \(at index \(1, 2\)\)"):
         _load(tmp_path, _with_array(ridge, "ridge", "coef", nan))
 
 
@@ -118,11 +119,11 @@ def test_tree_structure_errors(tmp_path, contents):
         _load(tmp_path, _with_array(boosted, "boosted", "tree_offset", offset))
     feature = _array(boosted, "boosted", "feature").copy()
     feature[0] = 40
-    with pytest.raises(FormatError, match="boosted.feature is not -1 .* index 0: 40"):
+    with pytest.raises(FormatError, match=r"boosted.feature must be -1 .*; got 40 \(at index 0\)"):
         _load(tmp_path, _with_array(boosted, "boosted", "feature", feature))
     target = _array(boosted, "boosted", "tree_target").copy()
     target[-1] = 5
-    with pytest.raises(FormatError, match="tree_target is not a target index < 5"):
+    with pytest.raises(FormatError, match="tree_target must be a target index < 5"):
         _load(tmp_path, _with_array(boosted, "boosted", "tree_target", target))
     leaves = _array(boosted, "boosted", "leaf_value")
     with pytest.raises(FormatError, match=f"leaf_value has {leaves.size - 1} values; .* marks {leaves.size} leaves"):
@@ -134,8 +135,8 @@ def test_tree_structure_errors(tmp_path, contents):
 
 @pytest.mark.parametrize("gate, message", [
     ({"feature_indices": [0, 99], "tolerance": 1e-9},
-     r"clear_sky_gate.feature_indices is not a feature index < \d+ at index 1: 99"),
-    ({"feature_indices": [-1], "tolerance": 1e-9}, "clear_sky_gate.feature_indices is not a feature index"),
+     r"clear_sky_gate.feature_indices must be a feature index < \d+; got 99 \(at index 1\)"),
+    ({"feature_indices": [-1], "tolerance": 1e-9}, "clear_sky_gate.feature_indices must be a feature index"),
     ({"feature_indices": [1, 1], "tolerance": 1e-9}, "repeats an index"),
     ({"feature_indices": [0.5], "tolerance": 1e-9}, "must be a list of integers"),
     ({"feature_indices": [0], "tolerance": -1.0}, "clear_sky_gate.tolerance must be a finite number >= 0"),

@@ -32,7 +32,7 @@ def test_clear_scene_and_non_uniform_levels_draw(tmp_path):
     ({"row": 12}, "row must be an integer in [0, 11]"),
     ({"row": -1}, "row must be an integer in [0, 11]"),
     ({"band": "ultraviolet"}, "band 'ultraviolet' is not in the scene; it has visible, near_infrared"),
-    ({"band": 5}, "band index must be in [0, 1]"),
+    ({"band": 5}, "band index must be an integer in [0, 1]"),
 ])
 def test_bad_arguments_name_the_parameter(tmp_path, scene, kwargs, message):
     with pytest.raises(ParameterError) as err:

@@ -281,7 +281,7 @@ def test_cell_walls_from_windows_equal_those_from_every_centre():
     (lambda: StreetField(direction=180.0), "direction must be in [0, 180); got 180.0"),
     (lambda: StreetField(irregularity=1.5), "irregularity must be in [0, 1]; got 1.5"),
     (lambda: StreetField(roll_wavelength="wide"), "roll_wavelength must be a number; got 'wide'"),
-    (lambda: CellularField("hexagonal"), "cell_type must be 'closed' or 'open'; got 'hexagonal'"),
+    (lambda: CellularField("hexagonal"), "cell_type must be one of closed, open; got 'hexagonal'"),
     (lambda: CellularField(regularity=0.9), "regularity must be in [0, 0.75]; got 0.9"),
     (lambda: CascadeField(variability=1.0), "variability must be in (0, 1); got 1.0"),
     (lambda: CascadeField(hurst=0.0), "hurst must be in (0, 1]; got 0.0"),

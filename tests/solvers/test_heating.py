@@ -30,7 +30,7 @@ def test_heating_rate_scales_with_layer_pressure_thickness_and_grid():
     (([0.1], 1000.0, [1000.0, 2000.0]), ["air_pressure_edges", "decrease", "index 1"]),
     (([0.1], 1000.0, [1000.0, 900.0, 800.0]), ["air_pressure_edges", "shape", "(2,)"]),
     (([0.1], -1.0, [1000.0, 900.0]), ["incident_flux", "-1.0"]),
-    (([np.nan], 1000.0, [1000.0, 900.0]), ["absorption", "not finite"]),
+    (([np.nan], 1000.0, [1000.0, 900.0]), ["absorption", "must be finite"]),
     (([0.1], 1000.0, [1000.0, -5.0]), ["air_pressure_edges", "-5.0"]),
     ((np.zeros((1, 2)), [1.0, 2.0, 3.0], [1000.0, 900.0]), ["incident_flux", "shape"]),
 ])

@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.solvers import _geometry, _rng, _transport
+from surrogate3d.solvers._records import Beam, BeamTables, Grid, Optics, Photon, Slabs, Survival, Tallies
 
 MASK = (1 << 64) - 1
 
@@ -122,8 +123,6 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     kext, ssa_g = optics[..., 0], optics[..., 1:3]
     nray = nx * ny * nsub * nsub
     ncz = czi.size - 1
-    edge_slot = np.full(nz + 1, -1, dtype=np.int64)
-    edge_slot[czi[::-1]] = np.arange(czi.size)
     source, ray_xy = np.empty((nb, nray)), np.empty((nray, 2))
     cum, trans = np.empty((nb, nray, ncz + 1)), np.empty((nb, nray, ncz + 1))
     direct = np.zeros((3, nb, ny, nx))
@@ -134,13 +133,29 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     path = (z_edge[-1] - z_edge[0]) / -u[2]
     uniform = _geometry.uniform_slabs(kext, ssa_g[..., 0], z_edge, -u[2])
     if not slabs:  # walk every layer: no slab on top, none below
-        uniform = (nz, 0, np.ones((nb, nz + 1)), np.zeros((nb, nz + 1)), np.ones((nb, nz + 1)), np.zeros((nb, nz)))
-    kept = np.column_stack([np.arange(czi.size), czi[::-1]]).astype(np.int64)
-    _geometry.direct_beam_batch(state, kext, ssa_g, np.asarray(alb, dtype=np.float64), weights,
-                                np.asarray(z_edge, dtype=np.float64), dx, dy, *u, nsub, (path * u[0], path * u[1]),
-                                uniform, edge_slot, kept, ray_xy, source, cum, trans, direct, cell, scale,
-                                np.empty(2 * nb + 16))
+        uniform = Slabs(nz, 0, np.ones((nb, nz + 1)), np.zeros((nb, nz + 1)), np.ones((nb, nz + 1)),
+                        np.zeros((nb, nz)))
+    records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1])
+    tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, np.empty(2 * nb + 16))
+    _geometry.direct_beam_batch(state, *records, uniform, tables, Tallies(np.empty((nb, 0)), cell, scale))
     return cell / scale, direct, source, cum, trans, ray_xy
+
+
+def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach_x=0.0, reach_y=0.0):
+    """The optics, grid (cells only) and beam records of the direct-beam kernels."""
+    nz = kext.shape[1]
+    edge_slot = np.full(nz + 1, -1, dtype=np.int64)
+    edge_slot[czi[::-1]] = np.arange(czi.size)
+    z_edge = np.asarray(z_edge, dtype=np.float64)
+    unused = np.zeros(1)
+    optics = Optics(kext, ssa_g, np.zeros((1, 1, 1, 1, 3), np.float32), np.asarray(alb, dtype=np.float64),
+                    np.asarray(weights, dtype=np.float64))
+    grid = Grid(z_edge, float(dx), float(dy), 1, 1, np.array([0, nz]), z_edge[[0, nz]], kext[:, :1, :1, :1],
+                np.zeros((1, 1, 1, 1), np.uint8), unused, unused.astype(np.int64), unused.astype(np.int64))
+    kept = np.column_stack([np.arange(czi.size), czi[::-1]]).astype(np.int64)
+    beam = Beam(*(float(c) for c in u), int(nsub), float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
+                unused, np.zeros((3, 1, 1, 1)))
+    return optics, grid, beam
 
 
 def _direction(zenith, azimuth):
@@ -320,8 +335,8 @@ def test_sampled_first_scatter_points_follow_the_direct_beam_source():
         target = (i + 0.5) / n * cdf[-1]
         r = int(np.searchsorted(cdf, target, side="right"))
         below = cdf[r - 1] if r else 0.0
-        kind, x, y, z, ix, iy, iz = _geometry.locate_source_3d(
-            r, 0, target - below, kext, alb, z_edge, 100.0, 100.0, *u, ray_xy, rng.random(), ssa_g, czi, cum, trans)
+        kind, x, y, z, ix, iy, iz = _geometry.locate_source_3d(r, 0, target - below, rng.random(), kext, ssa_g,
+                                                               z_edge, 100.0, 100.0, *u, czi, ray_xy, cum, trans)
         counts[(iz * 3 + iy) * 4 + ix if kind == 0 else ext[0].size + iy * 4 + ix] += 1
         if kind == 0:
             assert z_edge[iz] - 1e-9 <= z <= z_edge[iz + 1] + 1e-9
@@ -373,7 +388,7 @@ def test_block_codes_read_back_as_packed(nx):
     z_edge = np.linspace(0.0, 500.0, 6)
     kmaj, bskip, kclear, *rest = majorant_blocks(ext, z_edge, 100.0, 100.0, 1, 3)
     bskip[0, 0, 0, 0] = 40  # beyond four bits: read back as the largest radius
-    packed = _majorant_grid(kmaj, bskip, kclear, *rest, z_edge)[5]
+    packed = _majorant_grid(kmaj, bskip, kclear, *rest, z_edge, 100.0, 100.0).bcode
     for b, k, j, i in np.ndindex(ext.shape):
         expected = 0 if kmaj[b, k, j, i] > kclear[b] else min(int(bskip[b, k, j, i]), MAX_CLEAR_CUBE) + 1
         assert _transport._code(packed, b, k, j, i) == expected, (b, k, j, i)
@@ -417,15 +432,17 @@ def test_delta_tracking_free_paths_follow_beer_lambert():
     expected = np.append(np.exp(-np.concatenate([[0.0], np.cumsum(tau)[:-1]])) * -np.expm1(-tau), np.exp(-tau.sum()))
     for block, cube in [(1, 0), (2, 1), (4, 2)]:
         kmaj, bskip, kclear, bx, by, bedge, below, above = majorant_blocks(ext, z_edge, 100.0, 100.0, block, cube)
-        grid = _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, below, above, z_edge)
-        col, cell, scale = np.zeros((1, 16 * _transport.N_TALLIES)), np.zeros((6, 4, 4), np.int64), 2.0**61
+        grid = _majorant_grid(kmaj, bskip, kclear, bx, by, bedge, below, above, z_edge, 100.0, 100.0)
+        optics = Optics(ext, ssa_g, np.zeros((1, 1, 1, 1, 3), np.float32), alb, np.ones(1))
+        tallies = Tallies(np.zeros((1, 16 * _transport.N_TALLIES)), np.zeros((6, 4, 4), np.int64), 2.0**61)
         state = _rng.new_state()
         _rng.seed_stream(state, 3, block)
         n = 20000
+        photon = Photon(0, 1.0 / n, 50.0, 50.0, 0.0, 0.0, 0.0, 1.0, 0, 0, 0)
         for _ in range(n):
-            _transport.transport_3d(state, 0, 1.0 / n, 50.0, 50.0, 0.0, 0.0, 0.0, 1.0, ext, ssa_g, alb, z_edge,
-                                    100.0, 100.0, grid, 0, 0, 0, 0.0, 10, col, cell, scale)
-        got = np.append(cell[:, 0, 0] / scale, col[0, _transport.slot_index(_transport.TOA_UP, 0, 16)])
+            _transport.transport_3d(state, photon, optics, grid, Survival(0.0, 10), tallies)
+        got = np.append(tallies.cell[:, 0, 0] / tallies.scale,
+                        tallies.col[0, _transport.slot_index(_transport.TOA_UP, 0, 16)])
         np.testing.assert_allclose(got, expected, atol=4 * math.sqrt(0.25 / n))
         assert abs(got.sum() - 1.0) < 1e-12
 
@@ -444,8 +461,8 @@ def test_oblique_free_paths_follow_beer_lambert_along_the_wrapped_slant_path(blo
     ext[0, 3:] = np.where(rng.random((3, 8, 8)) < 0.4, rng.uniform(0.0005, 0.003, (3, 8, 8)), 2e-6)
     ext[0, 1, 2, 5] = 0.002
     z_edge = np.array([0.0, 150.0, 300.0, 400.0, 600.0, 800.0, 1000.0])
-    kext, ssa_g, _ = tracking_arrays(ext, np.zeros_like(ext), np.zeros_like(ext), False)
-    grid = _majorant_grid(*majorant_blocks(kext, z_edge, 100.0, 100.0, block, cube), z_edge)
+    kext, ssa_g, column_props = tracking_arrays(ext, np.zeros_like(ext), np.zeros_like(ext), False)
+    grid = _majorant_grid(*majorant_blocks(kext, z_edge, 100.0, 100.0, block, cube), z_edge, 100.0, 100.0)
     alb = np.zeros((1, 8, 8))
     u = np.array([0.8, 0.3, 0.0])
     u[2] = math.sqrt(1.0 - u[0] ** 2 - u[1] ** 2)
@@ -454,12 +471,13 @@ def test_oblique_free_paths_follow_beer_lambert_along_the_wrapped_slant_path(blo
     top = (x0 + path * u[0], y0 + path * u[1])
     tau = _brute_force_tau(ext.astype(np.float32).astype(float), z_edge, 100.0, 100.0, *top, -u)[0]
     col, cell, scale = np.zeros((1, 64 * _transport.N_TALLIES)), np.zeros((6, 8, 8), np.int64), 2.0**61
+    optics = Optics(kext, ssa_g, column_props, alb, np.ones(1))
     state = _rng.new_state()
     _rng.seed_stream(state, 5, block + 10 * cube)
     n = 20000
+    photon = Photon(0, 1.0 / n, x0, y0, 0.0, *u, 1, 4, 0)
     for _ in range(n):
-        _transport.transport_3d(state, 0, 1.0 / n, x0, y0, 0.0, *u, kext, ssa_g, alb, z_edge, 100.0, 100.0, grid,
-                                1, 4, 0, 0.0, 10, col, cell, scale)
+        _transport.transport_3d(state, photon, optics, grid, Survival(0.0, 10), Tallies(col, cell, scale))
     escaped = sum(col[0, _transport.slot_index(_transport.TOA_UP, j, 64)] for j in range(64))
     p = math.exp(-tau)
     assert abs(escaped - p) < 4 * math.sqrt(p * (1 - p) / n), (escaped, p)

@@ -316,8 +316,8 @@ def test_vectorized_equals_loop_over_columns():
 @pytest.mark.parametrize("kwargs, words", [
     ({"tau": [[0.1, -0.2]]}, ["tau", "(0, 1)", "-0.2"]),
     ({"ssa": [1.2, 0.5]}, ["ssa", "[0, 1]", "1.2"]),
-    ({"g": [0.1, 1.0]}, ["g", "(-1, 1)", "index (1,)"]),
-    ({"g": [np.nan, 0.0]}, ["g", "not finite", "nan"]),
+    ({"g": [0.1, 1.0]}, ["g", "(-1, 1)", "index 1"]),
+    ({"g": [np.nan, 0.0]}, ["g", "must be finite", "nan"]),
     ({"mu0": 0.0}, ["mu0", "(0, 1]", "0.0"]),
     ({"mu0": 1.5}, ["mu0", "1.5"]),
     ({"surface_albedo": -0.1}, ["surface_albedo", "[0, 1]", "-0.1"]),

@@ -4,7 +4,7 @@
 ! units of boosted_feature_names (see the coefficient file and docs/host-model-guide.md).
 module boosted_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   implicit none
   private
 
@@ -66,9 +66,19 @@ module boosted_correction
     integer :: n_clear_sky = 0                             ! clear-sky gate: no gate when 0
     integer(int32), allocatable :: clear_sky_features(:)   ! (n_clear_sky), 1-based feature indices
     real(real64) :: clear_sky_tolerance = 0.0_real64
+    integer :: n_envelope = 0                              ! training envelope: none when 0
+    real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
+    real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
+    real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
+    real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
+    integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
+    real(real64), allocatable :: target_scale_floor(:)       ! (n_targets)
+    integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
+    integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
+    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)
   end type boosted_coefficients
 
-  public :: boosted_read_coefficients, boosted_correct_column, boosted_correct_columns
+  public :: boosted_read_coefficients, boosted_correct_column, boosted_correct_columns, boosted_check_column
 
 contains
 
@@ -79,15 +89,10 @@ contains
     type(boosted_coefficients), intent(in) :: model
     real(real64), intent(in) :: features(boosted_n_features)
     real(real64), intent(out) :: corrections(boosted_n_targets)
-    integer :: t, node, m, g
+    integer :: t, node, m
     real(real64) :: x
     logical :: go_left
-    ! All gate features (near) zero: a clear column far from cloud, which has no 3D correction.
-    ! The loop stops at the first feature that is not zero (NaN compares false: not zero).
-    do g = 1, model%n_clear_sky
-      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
-    end do
-    if (model%n_clear_sky > 0 .and. g > model%n_clear_sky) then
+    if (clear_sky(model, features)) then
       corrections = 0.0_real64
       return
     end if
@@ -103,19 +108,92 @@ contains
       m = model%tree_target(t)
       corrections(m) = corrections(m) + model%value(node)
     end do
+    call apply_transforms(model, features, corrections)
   end subroutine boosted_correct_column
 
-  !> Corrections of many columns: features(:, i) -> corrections(:, i).
-  pure subroutine boosted_correct_columns(model, n_columns, features, corrections)
+  !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
+  !> also which columns lie outside the training envelope and how many (see boosted_check_column).
+  pure subroutine boosted_correct_columns(model, n_columns, features, corrections, outside, n_outside)
     type(boosted_coefficients), intent(in) :: model
     integer, intent(in) :: n_columns
     real(real64), intent(in) :: features(boosted_n_features, n_columns)
     real(real64), intent(out) :: corrections(boosted_n_targets, n_columns)
+    logical, intent(out), optional :: outside(n_columns)
+    integer, intent(out), optional :: n_outside
+    logical :: flag
+    real(real64) :: distance
     integer :: i
+    if (present(n_outside)) n_outside = 0
     do i = 1, n_columns
       call boosted_correct_column(model, features(:, i), corrections(:, i))
+      if (present(outside) .or. present(n_outside)) then
+        call boosted_check_column(model, features(:, i), flag, distance)
+        if (present(outside)) outside(i) = flag
+        if (present(n_outside) .and. flag) n_outside = n_outside + 1
+      end if
     end do
   end subroutine boosted_correct_columns
+
+  !> Whether one column lies outside the training envelope (a feature outside its training range, or a
+  !> Mahalanobis distance from the training columns above the stored threshold; never where the clear-sky
+  !> gate holds; a NaN feature is outside), and that distance. Without an envelope in the data file
+  !> (n_envelope_components 0) nothing is outside and the distance is 0.
+  pure subroutine boosted_check_column(model, features, outside, distance)
+    type(boosted_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(boosted_n_features)
+    logical, intent(out) :: outside
+    real(real64), intent(out) :: distance
+    real(real64) :: z(boosted_n_features), residual(boosted_n_features), projection
+    integer :: j
+    outside = .false.
+    distance = 0.0_real64
+    if (model%n_envelope == 0) return
+    z = (features - model%envelope_center) / model%envelope_scale
+    residual = z
+    do j = 1, model%n_envelope
+      projection = dot_product(model%envelope_components(:, j), z)
+      residual = residual - projection * model%envelope_components(:, j)
+      distance = distance + projection * projection / model%envelope_variance(j)
+    end do
+    distance = sqrt(distance + sum(residual * residual) / model%envelope_residual_variance)
+    if (clear_sky(model, features)) return
+    ! Written as "not inside" so that NaN, which compares false, is outside.
+    outside = .not. (all(features >= model%envelope_min .and. features <= model%envelope_max) .and. &
+                     distance <= model%envelope_threshold)
+  end subroutine boosted_check_column
+
+  !> The model's outputs made corrections: each scaled by its scale feature (at least the floor),
+  !> then the prior terms added (coefficient times feature) -- target transforms of the coefficient file.
+  pure subroutine apply_transforms(model, features, corrections)
+    type(boosted_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(boosted_n_features)
+    real(real64), intent(inout) :: corrections(boosted_n_targets)
+    integer :: m, o
+    real(real64) :: x
+    do m = 1, boosted_n_targets
+      if (model%target_scale_feature(m) > 0) then
+        ! A missing (NaN) scale feature makes the correction NaN, as in numpy's maximum.
+        x = features(model%target_scale_feature(m))
+        corrections(m) = corrections(m) * merge(x, max(x, model%target_scale_floor(m)), ieee_is_nan(x))
+      end if
+    end do
+    do o = 1, model%n_offsets
+      corrections(model%offset_target(o)) = corrections(model%offset_target(o)) + &
+          model%offset_coefficient(o) * features(model%offset_feature(o))
+    end do
+  end subroutine apply_transforms
+
+  !> All clear-sky gate features (near) zero: a clear column far from cloud, which has no 3D correction.
+  !> The loop stops at the first feature that is not zero (NaN compares false: not zero).
+  pure logical function clear_sky(model, features)
+    type(boosted_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(boosted_n_features)
+    integer :: g
+    do g = 1, model%n_clear_sky
+      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
+    end do
+    clear_sky = model%n_clear_sky > 0 .and. g > model%n_clear_sky
+  end function clear_sky
 
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine boosted_read_coefficients(path, model, status, message)
@@ -126,6 +204,7 @@ contains
     integer(int32), allocatable :: offset(:), threshold_index(:), missing(:)
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
     real(real64) :: tolerance(1)
+    real(real64), allocatable :: envelope_list(:)
     integer :: unit, n_leaves, n_thresholds, t, node, first, last, leaf
     status = 0
     message = ''
@@ -135,6 +214,8 @@ contains
     call expect_count(unit, 'n_features', boosted_n_features, status, message)
     call expect_count(unit, 'n_targets', boosted_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
+    call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
+    call read_count(unit, 'n_offset_terms', model%n_offsets, status, message)
     call read_count(unit, 'n_trees', model%n_trees, status, message)
     call read_count(unit, 'n_nodes', model%n_nodes, status, message)
     call read_count(unit, 'n_leaves', n_leaves, status, message)
@@ -158,18 +239,79 @@ contains
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
     if (status == 0) call read_reals(unit, 'threshold_values', threshold_values, status, message)
+    if (status == 0) then
+      ! NaN or infinite leaves or baselines would turn corrections into NaN; a NaN threshold sends every value right.
+      if (.not. (all(ieee_is_finite(model%baseline)) .and. all(ieee_is_finite(leaf_value)))) then
+        status = 1
+        message = 'coefficient file: baseline and leaf_value must be finite numbers'
+      else if (any(ieee_is_nan(threshold_values))) then
+        status = 1
+        message = 'coefficient file: threshold_values must not be NaN'
+      end if
+    end if
     if (status == 0) call read_integers(unit, 'clear_sky_features', model%clear_sky_features, status, message)
     if (status == 0) call read_reals(unit, 'clear_sky_tolerance', tolerance, status, message)
     if (status == 0) then
       if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= boosted_n_features)) then
         status = 1
         message = 'coefficient file: a clear_sky_features index is out of range'
-      else if (.not. (tolerance(1) >= 0.0_real64)) then
+      else if (.not. (ieee_is_finite(tolerance(1)) .and. tolerance(1) >= 0.0_real64)) then
         status = 1
-        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+        message = 'coefficient file: clear_sky_tolerance must be a finite number >= 0'
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
+      end if
+    end if
+    if (status == 0 .and. model%n_envelope > 0) then
+      allocate (model%envelope_min(boosted_n_features), model%envelope_max(boosted_n_features))
+      allocate (model%envelope_center(boosted_n_features), model%envelope_scale(boosted_n_features))
+      allocate (envelope_list(boosted_n_features * model%n_envelope), model%envelope_variance(model%n_envelope))
+      call read_reals(unit, 'envelope_feature_min', model%envelope_min, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_feature_max', model%envelope_max, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_center', model%envelope_center, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_scale', model%envelope_scale, status, message)
+      ! The file lists the components one after the other: one column each here.
+      if (status == 0) call read_reals(unit, 'envelope_components', envelope_list, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_component_variance', model%envelope_variance, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_residual_variance', tolerance, status, message)
+      model%envelope_residual_variance = tolerance(1)
+      if (status == 0) call read_reals(unit, 'envelope_distance_threshold', tolerance, status, message)
+      model%envelope_threshold = tolerance(1)
+      if (status == 0) then
+        model%envelope_components = reshape(envelope_list, [boosted_n_features, model%n_envelope])
+        if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
+            .or. .not. (model%envelope_residual_variance > 0.0_real64) .or. &
+            .not. (model%envelope_threshold >= 0.0_real64) .or. any(model%envelope_max < model%envelope_min)) then
+          status = 1
+          message = 'coefficient file: the training envelope has a non-positive scale or variance, a negative '// &
+              'threshold or a maximum below its minimum'
+        end if
+      end if
+    end if
+    if (status == 0) then
+      allocate (model%target_scale_feature(boosted_n_targets), model%target_scale_floor(boosted_n_targets))
+      allocate (model%offset_target(model%n_offsets), model%offset_feature(model%n_offsets))
+      allocate (model%offset_coefficient(model%n_offsets))
+      call read_integers(unit, 'target_scale_feature', model%target_scale_feature, status, message)
+      if (status == 0) call read_reals(unit, 'target_scale_floor', model%target_scale_floor, status, message)
+      if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
+      if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
+      if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      if (status == 0) then
+        if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= boosted_n_features) .or. &
+            any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
+            any(model%offset_target < 0 .or. model%offset_target >= boosted_n_targets) .or. &
+            any(model%offset_feature < 0 .or. model%offset_feature >= boosted_n_features) .or. &
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+          status = 1
+          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
+              'coefficient that is not finite'
+        else
+          model%target_scale_feature = model%target_scale_feature + 1
+          model%offset_target = model%offset_target + 1
+          model%offset_feature = model%offset_feature + 1
+        end if
       end if
     end if
     if (unit /= -1) close (unit)

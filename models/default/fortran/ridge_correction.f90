@@ -4,7 +4,7 @@
 ! units of ridge_feature_names (see the coefficient file and docs/host-model-guide.md).
 module ridge_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   implicit none
   private
 
@@ -53,6 +53,7 @@ module ridge_correction
   character(len=*), parameter :: format_name = 'surrogate3d-correction-coefficients'
   character(len=*), parameter :: format_major = '1'
   integer, parameter :: line_length = 1024
+  real(real64), parameter :: near_constant_fraction = 1e-09_real64
 
   !> Standardization, interaction pairs (1-based feature indices) and coefficients.
   type, public :: ridge_coefficients
@@ -61,12 +62,23 @@ module ridge_correction
     integer(int32), allocatable :: pairs(:, :)          ! (2, n_pairs)
     real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
     real(real64), allocatable :: intercept(:)
+    integer(int32), allocatable :: near_constant(:)     ! features constant up to round-off (see the reader)
     integer :: n_clear_sky = 0                             ! clear-sky gate: no gate when 0
     integer(int32), allocatable :: clear_sky_features(:)   ! (n_clear_sky), 1-based feature indices
     real(real64) :: clear_sky_tolerance = 0.0_real64
+    integer :: n_envelope = 0                              ! training envelope: none when 0
+    real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
+    real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
+    real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
+    real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
+    integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
+    real(real64), allocatable :: target_scale_floor(:)       ! (n_targets)
+    integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
+    integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
+    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)
   end type ridge_coefficients
 
-  public :: ridge_read_coefficients, ridge_correct_column, ridge_correct_columns
+  public :: ridge_read_coefficients, ridge_correct_column, ridge_correct_columns, ridge_check_column
 
 contains
 
@@ -77,17 +89,17 @@ contains
     real(real64), intent(in) :: features(ridge_n_features)
     real(real64), intent(out) :: corrections(ridge_n_targets)
     real(real64) :: z(ridge_n_features)
-    integer :: k, p, g
-    ! All gate features (near) zero: a clear column far from cloud, which has no 3D correction.
-    ! The loop stops at the first feature that is not zero (NaN compares false: not zero).
-    do g = 1, model%n_clear_sky
-      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
-    end do
-    if (model%n_clear_sky > 0 .and. g > model%n_clear_sky) then
+    integer :: k, p
+    if (clear_sky(model, features)) then
       corrections = 0.0_real64
       return
     end if
     z = (features - model%feature_mean) / model%feature_scale
+    ! Only values training saw for a feature that was constant in it: a file's round-off scale
+    ! must not turn another value into a term of order 1e13.
+    do k = 1, size(model%near_constant)
+      z(model%near_constant(k)) = max(-1.0_real64, min(1.0_real64, z(model%near_constant(k))))
+    end do
     ! All targets advance together: independent sums, so additions overlap in the CPU.
     corrections = model%intercept
     do k = 1, ridge_n_features
@@ -96,19 +108,92 @@ contains
     do p = 1, model%n_pairs
       corrections = corrections + model%coef(:, ridge_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
     end do
+    call apply_transforms(model, features, corrections)
   end subroutine ridge_correct_column
 
-  !> Corrections of many columns: features(:, i) -> corrections(:, i).
-  pure subroutine ridge_correct_columns(model, n_columns, features, corrections)
+  !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
+  !> also which columns lie outside the training envelope and how many (see ridge_check_column).
+  pure subroutine ridge_correct_columns(model, n_columns, features, corrections, outside, n_outside)
     type(ridge_coefficients), intent(in) :: model
     integer, intent(in) :: n_columns
     real(real64), intent(in) :: features(ridge_n_features, n_columns)
     real(real64), intent(out) :: corrections(ridge_n_targets, n_columns)
+    logical, intent(out), optional :: outside(n_columns)
+    integer, intent(out), optional :: n_outside
+    logical :: flag
+    real(real64) :: distance
     integer :: i
+    if (present(n_outside)) n_outside = 0
     do i = 1, n_columns
       call ridge_correct_column(model, features(:, i), corrections(:, i))
+      if (present(outside) .or. present(n_outside)) then
+        call ridge_check_column(model, features(:, i), flag, distance)
+        if (present(outside)) outside(i) = flag
+        if (present(n_outside) .and. flag) n_outside = n_outside + 1
+      end if
     end do
   end subroutine ridge_correct_columns
+
+  !> Whether one column lies outside the training envelope (a feature outside its training range, or a
+  !> Mahalanobis distance from the training columns above the stored threshold; never where the clear-sky
+  !> gate holds; a NaN feature is outside), and that distance. Without an envelope in the data file
+  !> (n_envelope_components 0) nothing is outside and the distance is 0.
+  pure subroutine ridge_check_column(model, features, outside, distance)
+    type(ridge_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(ridge_n_features)
+    logical, intent(out) :: outside
+    real(real64), intent(out) :: distance
+    real(real64) :: z(ridge_n_features), residual(ridge_n_features), projection
+    integer :: j
+    outside = .false.
+    distance = 0.0_real64
+    if (model%n_envelope == 0) return
+    z = (features - model%envelope_center) / model%envelope_scale
+    residual = z
+    do j = 1, model%n_envelope
+      projection = dot_product(model%envelope_components(:, j), z)
+      residual = residual - projection * model%envelope_components(:, j)
+      distance = distance + projection * projection / model%envelope_variance(j)
+    end do
+    distance = sqrt(distance + sum(residual * residual) / model%envelope_residual_variance)
+    if (clear_sky(model, features)) return
+    ! Written as "not inside" so that NaN, which compares false, is outside.
+    outside = .not. (all(features >= model%envelope_min .and. features <= model%envelope_max) .and. &
+                     distance <= model%envelope_threshold)
+  end subroutine ridge_check_column
+
+  !> The model's outputs made corrections: each scaled by its scale feature (at least the floor),
+  !> then the prior terms added (coefficient times feature) -- target transforms of the coefficient file.
+  pure subroutine apply_transforms(model, features, corrections)
+    type(ridge_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(ridge_n_features)
+    real(real64), intent(inout) :: corrections(ridge_n_targets)
+    integer :: m, o
+    real(real64) :: x
+    do m = 1, ridge_n_targets
+      if (model%target_scale_feature(m) > 0) then
+        ! A missing (NaN) scale feature makes the correction NaN, as in numpy's maximum.
+        x = features(model%target_scale_feature(m))
+        corrections(m) = corrections(m) * merge(x, max(x, model%target_scale_floor(m)), ieee_is_nan(x))
+      end if
+    end do
+    do o = 1, model%n_offsets
+      corrections(model%offset_target(o)) = corrections(model%offset_target(o)) + &
+          model%offset_coefficient(o) * features(model%offset_feature(o))
+    end do
+  end subroutine apply_transforms
+
+  !> All clear-sky gate features (near) zero: a clear column far from cloud, which has no 3D correction.
+  !> The loop stops at the first feature that is not zero (NaN compares false: not zero).
+  pure logical function clear_sky(model, features)
+    type(ridge_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(ridge_n_features)
+    integer :: g
+    do g = 1, model%n_clear_sky
+      if (.not. (abs(features(model%clear_sky_features(g))) <= model%clear_sky_tolerance)) exit
+    end do
+    clear_sky = model%n_clear_sky > 0 .and. g > model%n_clear_sky
+  end function clear_sky
 
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine ridge_read_coefficients(path, model, status, message)
@@ -119,6 +204,7 @@ contains
     real(real64), allocatable :: coef_list(:)
     integer(int32), allocatable :: pair_list(:)
     real(real64) :: tolerance(1)
+    real(real64), allocatable :: envelope_list(:)
     integer :: unit, p, n_terms
     status = 0
     message = ''
@@ -127,10 +213,13 @@ contains
     call expect_count(unit, 'n_features', ridge_n_features, status, message)
     call expect_count(unit, 'n_targets', ridge_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
+    call read_count(unit, 'n_envelope_components', model%n_envelope, status, message)
+    call read_count(unit, 'n_offset_terms', model%n_offsets, status, message)
     call read_count(unit, 'n_pairs', model%n_pairs, status, message)
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%feature_mean(ridge_n_features), model%feature_scale(ridge_n_features))
+      allocate (model%near_constant(0))
       allocate (pair_list(2 * model%n_pairs), model%intercept(ridge_n_targets))
       n_terms = ridge_n_features + model%n_pairs
       allocate (coef_list(n_terms * ridge_n_targets))
@@ -142,18 +231,77 @@ contains
     if (status == 0) call read_integers(unit, 'interaction_pairs', pair_list, status, message)
     if (status == 0) call read_reals(unit, 'coef', coef_list, status, message)
     if (status == 0) call read_reals(unit, 'intercept', model%intercept, status, message)
+    if (status == 0) then
+      ! NaN or infinite coefficients would turn every correction into NaN.
+      if (.not. (all(ieee_is_finite(model%feature_mean)) .and. all(ieee_is_finite(model%feature_scale)) .and. &
+          all(ieee_is_finite(coef_list)) .and. all(ieee_is_finite(model%intercept)))) then
+        status = 1
+        message = 'coefficient file: feature_mean, feature_scale, coef and intercept must be finite numbers'
+      end if
+    end if
     if (status == 0) call read_integers(unit, 'clear_sky_features', model%clear_sky_features, status, message)
     if (status == 0) call read_reals(unit, 'clear_sky_tolerance', tolerance, status, message)
     if (status == 0) then
       if (any(model%clear_sky_features < 0 .or. model%clear_sky_features >= ridge_n_features)) then
         status = 1
         message = 'coefficient file: a clear_sky_features index is out of range'
-      else if (.not. (tolerance(1) >= 0.0_real64)) then
+      else if (.not. (ieee_is_finite(tolerance(1)) .and. tolerance(1) >= 0.0_real64)) then
         status = 1
-        message = 'coefficient file: clear_sky_tolerance must be >= 0'
+        message = 'coefficient file: clear_sky_tolerance must be a finite number >= 0'
       else
         model%clear_sky_features = model%clear_sky_features + 1
         model%clear_sky_tolerance = tolerance(1)
+      end if
+    end if
+    if (status == 0 .and. model%n_envelope > 0) then
+      allocate (model%envelope_min(ridge_n_features), model%envelope_max(ridge_n_features))
+      allocate (model%envelope_center(ridge_n_features), model%envelope_scale(ridge_n_features))
+      allocate (envelope_list(ridge_n_features * model%n_envelope), model%envelope_variance(model%n_envelope))
+      call read_reals(unit, 'envelope_feature_min', model%envelope_min, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_feature_max', model%envelope_max, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_center', model%envelope_center, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_scale', model%envelope_scale, status, message)
+      ! The file lists the components one after the other: one column each here.
+      if (status == 0) call read_reals(unit, 'envelope_components', envelope_list, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_component_variance', model%envelope_variance, status, message)
+      if (status == 0) call read_reals(unit, 'envelope_residual_variance', tolerance, status, message)
+      model%envelope_residual_variance = tolerance(1)
+      if (status == 0) call read_reals(unit, 'envelope_distance_threshold', tolerance, status, message)
+      model%envelope_threshold = tolerance(1)
+      if (status == 0) then
+        model%envelope_components = reshape(envelope_list, [ridge_n_features, model%n_envelope])
+        if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
+            .or. .not. (model%envelope_residual_variance > 0.0_real64) .or. &
+            .not. (model%envelope_threshold >= 0.0_real64) .or. any(model%envelope_max < model%envelope_min)) then
+          status = 1
+          message = 'coefficient file: the training envelope has a non-positive scale or variance, a negative '// &
+              'threshold or a maximum below its minimum'
+        end if
+      end if
+    end if
+    if (status == 0) then
+      allocate (model%target_scale_feature(ridge_n_targets), model%target_scale_floor(ridge_n_targets))
+      allocate (model%offset_target(model%n_offsets), model%offset_feature(model%n_offsets))
+      allocate (model%offset_coefficient(model%n_offsets))
+      call read_integers(unit, 'target_scale_feature', model%target_scale_feature, status, message)
+      if (status == 0) call read_reals(unit, 'target_scale_floor', model%target_scale_floor, status, message)
+      if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
+      if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
+      if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      if (status == 0) then
+        if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= ridge_n_features) .or. &
+            any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
+            any(model%offset_target < 0 .or. model%offset_target >= ridge_n_targets) .or. &
+            any(model%offset_feature < 0 .or. model%offset_feature >= ridge_n_features) .or. &
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+          status = 1
+          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
+              'coefficient that is not finite'
+        else
+          model%target_scale_feature = model%target_scale_feature + 1
+          model%offset_target = model%offset_target + 1
+          model%offset_feature = model%offset_feature + 1
+        end if
       end if
     end if
     if (status == 0) then
@@ -172,6 +320,10 @@ contains
         status = 1
         message = 'coefficient file: feature_scale must be positive'
       end if
+      ! A scale at most near_constant_fraction of the mean's magnitude is the round-off spread of a
+      ! feature constant in training (written before format 1.2): its standardized value is clipped.
+      model%near_constant = pack([(p, p = 1, ridge_n_features)], &
+          model%feature_scale <= near_constant_fraction * abs(model%feature_mean))
     end if
     if (unit /= -1) close (unit)
   end subroutine ridge_read_coefficients

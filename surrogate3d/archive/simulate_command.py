@@ -1,6 +1,7 @@
 """``surrogate3d simulate``: fill an archive with 3D, independent-column and two-stream results."""
 
-from ..archive.results import SOLVERS
+from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
+from ..core.data_model import SOLVERS
 
 #: Parameters of simulate_archive as the options that set them, for messages.
 FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_size": "--batch-size",
@@ -24,7 +25,8 @@ def register(sub):
     p.add_argument("--random-azimuth", action="store_true",
                    help="instead of --azimuth, one beam azimuth per scene and zenith, drawn from the run seed "
                         "and the scene's file name")
-    p.add_argument("--photons", type=int, default=200_000, help="photons per Monte Carlo run (default: 200000)")
+    p.add_argument("--photons", type=int, default=SIMULATE_PHOTONS,
+                   help=f"photons per Monte Carlo run (default: {SIMULATE_PHOTONS})")
     p.add_argument("--seed", type=int, default=0, help="run seed (default: 0)")
     p.add_argument("--solvers", nargs="+", choices=SOLVERS, default=list(SOLVERS), help="solver kinds to run")
     p.add_argument("--jobs", type=int, default=1, help="local worker processes (default: 1)")
@@ -35,7 +37,8 @@ def register(sub):
     p.add_argument("--threads", type=int,
                    help="compiled threads per run (default: all cores; 1 per worker with --jobs or --scheduler)")
     p.add_argument("--per-band", action="store_true", help="also store per-band column fluxes")
-    p.add_argument("--solar-constant", type=float, default=1361.0, help="W m-2 (default: 1361, Kopp and Lean 2011)")
+    p.add_argument("--solar-constant", type=float, default=SOLAR_CONSTANT,
+                   help=f"W m-2 (default: {SOLAR_CONSTANT:g}, Kopp and Lean 2011)")
     p.add_argument("--overwrite", action="store_true",
                    help="recompute results that are already stored (needs the archive to itself)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")

@@ -17,7 +17,6 @@ once, and no finished result is lost.
 
 import hashlib
 import inspect
-import math
 import os
 import socket
 import stat
@@ -27,19 +26,20 @@ from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
 
-import numba
-import numpy as np
 from tqdm.auto import tqdm
 
-from ..archive.leftovers import remove_leftovers
-from ..archive.locking import ArchiveLock
-from ..archive.netcdf import read_result_flags, read_scene, scene_files
-from ..archive.pending import merge_pending, pending_keys, write_pending
-from ..archive.results import SOLVERS, SUN_TOLERANCE_DEG, has_result
-from ..errors import OutputError, ParameterError, Surrogate3DError
-from .montecarlo import SOLAR_CONSTANT, _check_float, _check_int, solve_monte_carlo
-from .sun import check_sun
 from .._workers import WorkerPool
+from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
+from ..core.data_model import SOLVERS
+from ..core.validation import check_bool, check_integer
+from ..errors import OutputError, ParameterError, Surrogate3DError
+from ..solvers.montecarlo import check_monte_carlo_options, solve_monte_carlo
+from ..solvers.sun import check_sun
+from .leftovers import remove_leftovers
+from .locking import ArchiveLock
+from .netcdf import read_result_flags, read_scene, scene_files
+from .pending import merge_pending, pending_keys, write_pending
+from .results import SUN_TOLERANCE_DEG, has_result
 
 
 @dataclass(frozen=True)
@@ -67,7 +67,7 @@ class Task:
 class RunOptions:
     """Solver options shared by every task of a run (see :func:`simulate_archive`)."""
 
-    photons: int = 200_000
+    photons: int = SIMULATE_PHOTONS
     batch_size: int = None
     rays_per_column: int = 1
     per_band: bool = False
@@ -92,8 +92,7 @@ def check_run_options(photons, n_jobs, solver_options):
         An option is outside its range (named as the parameter of :func:`simulate_archive`)
         or unknown.
     """
-    photons = _check_int("photons", photons, 1)
-    n_jobs = _check_int("n_jobs", n_jobs, 1)
+    n_jobs = check_integer("n_jobs", n_jobs, 1)
     solver_options = dict(solver_options)
     known = {k: solver_options.pop(k) for k in list(solver_options) if k in RunOptions.__dataclass_fields__}
     unknown = sorted(set(solver_options) - set(_PASSED_THROUGH))
@@ -101,15 +100,12 @@ def check_run_options(photons, n_jobs, solver_options):
         raise ParameterError(f"unknown solver option(s) {unknown or ['extra']}; known: "
                              f"{sorted(set(RunOptions.__dataclass_fields__) - {'extra'}) + _PASSED_THROUGH}")
     options = RunOptions(photons=photons, extra=solver_options, **known)
-    if options.batch_size is not None:
-        options.batch_size = _check_int("batch_size", options.batch_size, 1)
-    options.rays_per_column = _check_int("rays_per_column", options.rays_per_column, 1, 16)
-    if options.threads is not None:
-        options.threads = _check_int("threads", options.threads, 1, numba.config.NUMBA_NUM_THREADS)
-    options.solar_constant = _check_float("solar_constant", options.solar_constant, 0.0, math.inf,
-                                          low_open=True, high_open=True)
-    if not isinstance(options.per_band, (bool, np.bool_)):
-        raise ParameterError(f"per_band must be true or false; got {options.per_band!r}")
+    checked = check_monte_carlo_options(photons=options.photons, batch_size=options.batch_size,
+                                        rays_per_column=options.rays_per_column, threads=options.threads,
+                                        solar_constant=options.solar_constant)
+    for name, value in checked.items():
+        setattr(options, name, value)
+    options.per_band = check_bool("per_band", options.per_band)
     return options, n_jobs
 
 
@@ -156,7 +152,7 @@ def run_task(task, options):
     """Compute one task; returns the run result (an xarray Dataset).  Runs in workers."""
     scene = read_scene(task.path, results=False)
     if task.solver == "two_stream":
-        from .two_stream import solve_scene
+        from ..solvers.two_stream import solve_scene
 
         return solve_scene(scene, task.solar_zenith_angle, task.solar_beam_azimuth,
                            solar_constant=options.solar_constant, per_band=options.per_band)
@@ -376,7 +372,7 @@ def _workers(options, n_jobs, scheduler, n_tasks):
     return WorkerPool(min(n_jobs, n_tasks), partial(run_task, options=options), describe=str)
 
 
-def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, photons=200_000, seed=0,
+def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, photons=SIMULATE_PHOTONS, seed=0,
                      n_jobs=1, scheduler=None, overwrite=False, quiet=False, **solver_options):
     """Run the benchmark solvers on every scene of an archive and store the results.
 
@@ -420,7 +416,7 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
         work to do.
     """
     options, n_jobs = check_run_options(photons, n_jobs, solver_options)
-    seed = _check_int("seed", seed, 0, 2**63 - 1)
+    seed = check_monte_carlo_options(seed=seed)["seed"]
     if scheduler:
         scheduler = check_scheduler(scheduler)
     archive_dir = _check_archive_dir(archive_dir)

@@ -14,12 +14,26 @@ import math
 
 import numpy as np
 
-#: Cells per block of rows in :func:`slant_sum` (a few float64 planes of this size fit in cache).
-_BLOCK_CELLS = 1 << 14
+from ..errors import ParameterError
+from .config import CELL_BLOCK
+from .validation import check_number
 
 #: Below this magnitude a direction component is taken as exactly zero (avoids
 #: spurious crossings from cos(90 deg) = 6e-17).
 _DIRECTION_EPS = 1e-12
+
+
+def check_solar_zenith_angle(value, name="solar_zenith_angle", error=ParameterError):
+    """The solar zenith angle [degree] as a float, in [0, 90): the sun above the horizon.
+
+    Examples
+    --------
+    >>> check_solar_zenith_angle(90.0)
+    Traceback (most recent call last):
+    ...
+    surrogate3d.errors.ParameterError: solar_zenith_angle must be in [0, 90); got 90.0
+    """
+    return check_number(name, value, 0.0, 90.0, high_open=True, error=error)
 
 
 def _crossings(s0, s1, u, spacing):
@@ -262,7 +276,7 @@ def slant_sum(layer_values, weights_per_layer):
     # total += np.roll(plane, (-oy, -ox), axis=(0, 1)) for each offset, done one block of
     # output rows at a time so that the planes stay in the cache; every cell still adds the
     # same terms in the same order.
-    rows = max(1, _BLOCK_CELLS // nx)
+    rows = max(1, CELL_BLOCK // nx)
     for start in range(0, ny, rows):
         out = total[start:start + rows]
         plane, term = np.empty_like(out), np.empty_like(out)

@@ -6,8 +6,8 @@ stores every array as an object ``{"dtype", "shape", "data" | "packed"}``; the N
 file (written by :mod:`surrogate3d.export.coefficients`) stores the same arrays as
 variables.  ``docs/export-format.md`` documents every field.
 
-This module imports only numpy and the standard library: it is part of the runtime
-that host models import.
+This module imports only numpy and the standard library: the numpy-only runtime reads
+coefficient files with it, and the export stage writes them.
 """
 
 import base64
@@ -18,18 +18,10 @@ import zlib
 import numpy as np
 
 from ..errors import FormatError
-from . import envelope as _envelope
+from .data_model import COEFFICIENT_FORMAT_NAME as FORMAT_NAME
+from .data_model import COEFFICIENT_FORMAT_VERSION as FORMAT_VERSION
+from .validation import first_true, message
 
-#: The ``format`` field every coefficient file carries.
-FORMAT_NAME = "surrogate3d-correction-coefficients"
-
-#: Version of the coefficient layout.  Readers accept files of the same major version.
-#: 1.1 added the optional ``clear_sky_gate`` (a 1.0 file has none: no gate); 1.2 added the
-#: optional ``training_envelope`` (an older file has none: no column is flagged) and stores
-#: scale 1 for a ridge feature constant up to round-off (readers clip the standardized value
-#: of such a feature in older files, :mod:`surrogate3d.runtime.ridge`); 1.3 added the
-#: optional ``target_transforms`` (an older file has none: the model predicts corrections).
-FORMAT_VERSION = "1.3"
 
 #: Model kinds a coefficient file may hold.
 KINDS = ("ridge", "boosted")
@@ -73,6 +65,13 @@ ENVELOPE_FIELD = "training_envelope"
 #: into the correction (absent before format 1.3: none).
 TRANSFORM_FIELD = "target_transforms"
 _TRANSFORM_KEYS = {"scale_feature", "scale_floor", "offset_features", "offset_coefficients"}
+
+#: Arrays of the training envelope: name -> dimension names.
+ENVELOPE_ARRAYS = {"feature_min": ("feature",), "feature_max": ("feature",), "center": ("feature",),
+          "scale": ("feature",), "components": ("component", "feature"), "component_variance": ("component",)}
+
+#: Numbers of the training envelope besides its arrays.
+ENVELOPE_SCALARS = ("residual_variance", "distance_threshold", "quantile", "n_samples")
 
 #: Arrays with at most this many finite values are written as plain JSON lists.
 PLAIN_LIMIT = 64
@@ -195,7 +194,7 @@ def document_to_json(document):
     out[kind] = {name: encode_array(np.asarray(value)) for name, value in document[kind].items()}
     if document.get(ENVELOPE_FIELD) is not None:
         # Always packed: the envelope's single-precision values pack to half their decimal length.
-        out[ENVELOPE_FIELD] = {name: encode_array(np.asarray(value), plain_limit=0) if name in _envelope.ARRAYS
+        out[ENVELOPE_FIELD] = {name: encode_array(np.asarray(value), plain_limit=0) if name in ENVELOPE_ARRAYS
                                else value for name, value in document[ENVELOPE_FIELD].items()}
     return out
 
@@ -231,7 +230,7 @@ def document_from_json(content, source):
         raise FormatError(f"coefficient file {source!r} lacks fields {missing}")
     field = content.get(ENVELOPE_FIELD)
     if isinstance(field, dict):
-        out[ENVELOPE_FIELD] = {name: decode_array(value, f"{ENVELOPE_FIELD}.{name}") if name in _envelope.ARRAYS
+        out[ENVELOPE_FIELD] = {name: decode_array(value, f"{ENVELOPE_FIELD}.{name}") if name in ENVELOPE_ARRAYS
                                else value for name, value in field.items()}
     return out
 
@@ -307,7 +306,8 @@ def check_document(document, source):
                               f"expected {len(dims)} {dims}")
         if (dtype_kind == "f") != (array.dtype == np.float64) or array.dtype.kind not in "fi":
             expected = "float64" if dtype_kind == "f" else "a signed integer type"
-            raise FormatError(f"coefficient file {source!r}: field {label} has dtype {array.dtype}; expected {expected}")
+            raise FormatError(f"coefficient file {source!r}: field {label} has dtype {array.dtype}; "
+                              f"expected {expected}")
         for dim, n in zip(dims, array.shape):
             known, where = sizes.setdefault(dim, (n, label))
             if n != known:
@@ -320,18 +320,7 @@ def check_document(document, source):
     _check_gate(document, len(feature_names), source)
     _check_transforms(document, len(feature_names), len(target_names), source)
     if ENVELOPE_FIELD in document:
-        _envelope.check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
-
-
-def training_envelope(document):
-    """The training envelope of a checked document, or None for a file without one (before format 1.2).
-
-    Returns
-    -------
-    surrogate3d.runtime.envelope.TrainingEnvelope or None
-    """
-    field = document.get(ENVELOPE_FIELD)
-    return None if field is None else _envelope.TrainingEnvelope.from_dict(field)
+        check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
 
 
 def clear_sky_gate(document):
@@ -365,7 +354,7 @@ def _check_gate(document, n_feature, source):
                           f"integers; got {_short(indices)}")
     for i, k in enumerate(indices):
         if not 0 <= k < n_feature:
-            _fail_at(source, f"{GATE_FIELD}.feature_indices", i, k, f"is not a feature index < {n_feature}")
+            _fail_at(source, f"{GATE_FIELD}.feature_indices", i, k, f"a feature index < {n_feature}")
     if len(set(indices)) != len(indices):
         raise FormatError(f"coefficient file {source!r}: field {GATE_FIELD}.feature_indices repeats an index: "
                           f"{indices}")
@@ -415,38 +404,41 @@ def _check_transforms(document, n_feature, n_target, source):
                               f"offset_coefficients must be lists of one length")
         for i, k in enumerate(offsets):
             if isinstance(k, bool) or not isinstance(k, int) or not 0 <= k < n_feature:
-                _fail_at(source, f"{label}.offset_features", i, k, f"is not a feature index < {n_feature}")
+                _fail_at(source, f"{label}.offset_features", i, k, f"a feature index < {n_feature}")
         for i, c in enumerate(coefficients):
             if isinstance(c, bool) or not isinstance(c, (int, float)) or not math.isfinite(c):
-                _fail_at(source, f"{label}.offset_coefficients", i, c, "is not a finite number")
+                _fail_at(source, f"{label}.offset_coefficients", i, c, "a finite number")
 
 
-def _fail_at(source, label, index, value, rule):
-    raise FormatError(f"coefficient file {source!r}: field {label} {rule} at index {index}: {value!r}")
+def _fail_at(source, label, index, value, rule, count=1):
+    raise FormatError(f"coefficient file {source!r}: " + message(f"field {label}", rule, value, index, count))
+
+
+def _check_rule(source, label, values, bad, rule):
+    """FormatError at the first element of ``values`` where ``bad`` is True."""
+    found = first_true(bad)
+    if found is not None:
+        index, count = found
+        _fail_at(source, label, index, values[index].tolist(), rule, count)
 
 
 def _check_finite(arrays, kind, names, source):
     for name in names:
-        bad = np.flatnonzero(~np.isfinite(arrays[name].ravel()))
-        if bad.size:
-            _fail_at(source, f"{kind}.{name}", int(bad[0]), float(arrays[name].ravel()[bad[0]]), "is not finite")
+        _check_rule(source, f"{kind}.{name}", arrays[name], ~np.isfinite(arrays[name]), "finite")
 
 
 def _check_ridge(arrays, sizes, source):
     _check_finite(arrays, "ridge", ("feature_mean", "feature_scale", "coef", "intercept"), source)
-    bad = np.flatnonzero(arrays["feature_scale"] <= 0.0)
-    if bad.size:
-        _fail_at(source, "ridge.feature_scale", int(bad[0]), float(arrays["feature_scale"][bad[0]]), "is not positive")
+    _check_rule(source, "ridge.feature_scale", arrays["feature_scale"], arrays["feature_scale"] <= 0.0, "> 0")
     n_feature, n_pair = sizes["feature"][0], arrays["interaction_pairs"].shape[0]
     n_term = sizes["term"][0]
     if n_term != n_feature + n_pair:
         raise FormatError(f"coefficient file {source!r}: ridge.coef has {n_term} terms; {n_feature} features and "
                           f"{n_pair} interaction pairs make {n_feature + n_pair}")
     pairs = arrays["interaction_pairs"]
-    bad = np.flatnonzero((pairs[:, 0] < 0) | (pairs[:, 0] >= pairs[:, 1]) | (pairs[:, 1] >= n_feature))
-    if bad.size:
-        _fail_at(source, "ridge.interaction_pairs", int(bad[0]), pairs[bad[0]].tolist(),
-                 f"must be feature indices i < j < {n_feature}")
+    _check_rule(source, "ridge.interaction_pairs", pairs,
+                (pairs[:, 0] < 0) | (pairs[:, 0] >= pairs[:, 1]) | (pairs[:, 1] >= n_feature),
+                f"feature indices i < j < {n_feature}")
     if len({tuple(p) for p in pairs.tolist()}) != n_pair:
         raise FormatError(f"coefficient file {source!r}: ridge.interaction_pairs lists a pair twice")
 
@@ -462,9 +454,8 @@ def _check_trees(arrays, sizes, source):
         raise FormatError(f"coefficient file {source!r}: {label}.tree_offset must rise strictly from 0 to the "
                           f"node count {n_node}; got {_short(offset.tolist())}")
     target = arrays["tree_target"]
-    bad = np.flatnonzero((target < 0) | (target >= n_target))
-    if bad.size:
-        _fail_at(source, f"{label}.tree_target", int(bad[0]), int(target[bad[0]]), f"is not a target index < {n_target}")
+    _check_rule(source, f"{label}.tree_target", target, (target < 0) | (target >= n_target),
+                f"a target index < {n_target}")
     _check_finite(arrays, label, ("baseline", "leaf_value"), source)
     thresholds = arrays["threshold_values"]
     if np.any(np.isnan(thresholds)) or np.any(np.diff(thresholds) <= 0):
@@ -478,23 +469,71 @@ def _check_trees(arrays, sizes, source):
         raise FormatError(f"coefficient file {source!r}: {label}.leaf_value has {arrays['leaf_value'].size} values; "
                           f"{label}.feature marks {np.count_nonzero(leaf)} leaves")
     rules = [("feature", feature, (feature < -1) | (feature >= n_feature),
-              f"is not -1 (leaf) or a feature index < {n_feature}"),
+              f"-1 (leaf) or a feature index < {n_feature}"),
              ("threshold_index", index, np.where(leaf, index != -1, (index < 0) | (index >= thresholds.size)),
-              f"must be -1 at a leaf and an index < {thresholds.size} elsewhere"),
-             ("missing_go_left", missing, (missing != 0) & (missing != 1), "must be 0 or 1")]
+              f"-1 at a leaf and an index < {thresholds.size} elsewhere"),
+             ("missing_go_left", missing, (missing != 0) & (missing != 1), "0 or 1")]
     tree_of_node = np.repeat(np.arange(n_tree), np.diff(offset))
     local = np.arange(n_node) - offset[tree_of_node]
     size = np.diff(offset)[tree_of_node]
     for name, child in (("left", left), ("right", right)):
         # Children come after their parent within the tree, so every path ends at a leaf.
         rules.append((name, child, np.where(leaf, child != -1, (child <= local) | (child >= size)),
-                      "must be -1 at a leaf and a later node of the same tree elsewhere"))
+                      "-1 at a leaf and a later node of the same tree elsewhere"))
     for name, values, bad, rule in rules:
-        where = np.flatnonzero(bad)
-        if where.size:
-            _fail_at(source, f"{label}.{name}", int(where[0]), int(values[where[0]]), rule)
+        _check_rule(source, f"{label}.{name}", values, bad, rule)
     children = np.concatenate([(left + offset[tree_of_node])[~leaf], (right + offset[tree_of_node])[~leaf]])
     expected = np.setdiff1d(np.arange(n_node), offset[:-1])
     if children.size != expected.size or not np.array_equal(np.sort(children), expected):
         raise FormatError(f"coefficient file {source!r}: {label}.left and {label}.right do not form trees "
                           "(every node but a root must be the child of exactly one node)")
+
+
+def check_envelope_field(field, n_feature, source, label="training_envelope"):
+    """Check the ``training_envelope`` field of a coefficient document; raise FormatError naming the problem.
+
+    Parameters
+    ----------
+    field : dict
+        Arrays as numpy arrays, scalars as numbers.
+    n_feature : int
+        Length of ``features.names``.
+    source : str
+        File name for messages.
+    """
+    where = f"coefficient file {source!r}: field {label}"
+    if not isinstance(field, dict) or set(field) != set(ENVELOPE_ARRAYS) | set(ENVELOPE_SCALARS):
+        found = sorted(field) if isinstance(field, dict) else type(field).__name__
+        raise FormatError(f"{where} must be an object with exactly "
+                          f"{sorted(set(ENVELOPE_ARRAYS) | set(ENVELOPE_SCALARS))}; "
+                          f"got {found}")
+    for name, dims in ENVELOPE_ARRAYS.items():
+        array = field[name]
+        if not isinstance(array, np.ndarray) or array.dtype != np.float64 or array.ndim != len(dims):
+            raise FormatError(f"{where}.{name} must be a float64 array of dimensions {dims}")
+        if dims[-1] == "feature" and array.shape[-1] != n_feature:
+            raise FormatError(f"{where}.{name} has length {array.shape[-1]} along feature; features.names has "
+                              f"{n_feature}")
+        _check_rule(source, f"{label}.{name}", array, ~np.isfinite(array), "finite")
+    n_component = field["components"].shape[0]
+    if not 1 <= n_component <= n_feature or field["component_variance"].shape != (n_component,):
+        raise FormatError(f"{where}: components has {n_component} rows and component_variance "
+                          f"{field['component_variance'].shape[0]} values; both must be the same count in "
+                          f"[1, {n_feature}]")
+    rules = [("feature_max", field["feature_max"] < field["feature_min"], ">= feature_min"),
+             ("scale", field["scale"] <= 0.0, "> 0"),
+             ("component_variance", field["component_variance"] <= 0.0, "> 0")]
+    for name, bad, rule in rules:
+        _check_rule(source, f"{label}.{name}", field[name], bad, rule)
+    for name, low, low_open in (("residual_variance", 0.0, True), ("distance_threshold", 0.0, False),
+                                ("quantile", 0.0, True)):
+        value = field[name]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
+                or (value <= low if low_open else value < low):
+            raise FormatError(f"{where}.{name} must be a finite number {'>' if low_open else '>='} {low:g}; "
+                              f"got {value!r}")
+    if field["quantile"] > 1.0:
+        raise FormatError(f"{where}.quantile must be at most 1; got {field['quantile']!r}")
+    n = field["n_samples"]
+    if isinstance(n, bool) or not isinstance(n, int) or n < 2:
+        raise FormatError(f"{where}.n_samples must be an integer >= 2; got {n!r}")

@@ -13,8 +13,8 @@ from surrogate3d.archive.pending import pending_keys
 from surrogate3d.cli import main
 from surrogate3d.errors import ParameterError, Surrogate3DError
 from surrogate3d.scenes import generate_scene, make_scene
-from surrogate3d.solvers import simulate as simulate_module
-from surrogate3d.solvers.simulate import simulate_archive
+from surrogate3d.archive import simulate as simulate_module
+from surrogate3d.archive.simulate import simulate_archive
 
 
 def small_scene(seed):
@@ -159,7 +159,7 @@ def test_console_script_exit_status(archive):
 
 
 def test_random_azimuths_are_drawn_per_scene_and_zenith_and_stable(tmp_path):
-    from surrogate3d.solvers.simulate import drawn_azimuth, plan_tasks
+    from surrogate3d.archive.simulate import drawn_azimuth, plan_tasks
 
     scenes = [generate_scene("scattered_cumulus", s, nx=6, ny=6, nz=4) for s in (1, 2)]
     for k, scene in enumerate(scenes):

@@ -1,4 +1,4 @@
-"""Synthetic training-pair tables with a known correction, for tests and benchmarks.
+"""Synthetic training-pair tables with a known correction, for the tests (not shipped in the package).
 
 :func:`make_synthetic_pairs` writes tables in exactly the layout of
 ``docs/pairs-format.md`` whose targets follow a prescribed function of the features plus
@@ -14,7 +14,8 @@ import json
 import numpy as np
 import xarray as xr
 
-from .pairs_table import TARGETS
+from surrogate3d.core.config import SOLAR_CONSTANT
+from surrogate3d.core.data_model import TARGETS
 
 #: Feature names of the synthetic tables, with units.
 SYNTHETIC_FEATURES = {
@@ -104,7 +105,7 @@ def true_correction(features):
 
 def make_synthetic_pairs(regimes=(("sparse", 0.2), ("dense", 0.6)), seeds_per_regime=4,
                          host_grids=((8, 1000.0), (4, 2000.0)), solar_zenith_angles=(20.0, 45.0, 65.0),
-                         noise=0.004, seed=0, solar_constant=1361.0):
+                         noise=0.004, seed=0, solar_constant=SOLAR_CONSTANT):
     """A training-pair table with a known correction and known Monte Carlo noise.
 
     Parameters
@@ -137,12 +138,6 @@ def make_synthetic_pairs(regimes=(("sparse", 0.2), ("dense", 0.6)), seeds_per_re
         Baselines are fabricated with known skill on noise-free targets: the tilted
         independent column predicts half the true correction (skill 0.5), the non-local
         independent pixel 80 % of it (skill 0.8).
-
-    Examples
-    --------
-    >>> pairs = make_synthetic_pairs(seeds_per_regime=2)
-    >>> pairs.sizes["target"]
-    5
     """
     rows = []
     for r, (regime, cover) in enumerate(regimes):
@@ -240,5 +235,5 @@ def _assemble(rows, noise, seed, solar_constant):
     recipe = {"features": [{"name": name, "parameters": {}} for name in SYNTHETIC_FEATURES]}
     ds.attrs.update(format_version="1.0", Conventions="CF-1.10", feature_recipe=json.dumps(recipe),
                     archive_fingerprint=hashlib.sha256(f"synthetic-{seed}".encode()).hexdigest(),
-                    source="surrogate3d.learn.synthetic (test table, not radiative transfer)")
+                    source="tests/synthetic_pairs.py (test table, not radiative transfer)")
     return ds
