@@ -466,11 +466,29 @@ def test_5_kill_during_merge_leaves_a_temporary_file_the_next_run_removes(archiv
     assert stored(archive) == {"test_00001.nc": 2, "test_00002.nc": 2} and leftovers(archive) == []
 
 
+def cpu_ticks(pid):
+    """User + system CPU time of a process [clock ticks] (from /proc), 0 once it is gone."""
+    try:
+        fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    except OSError:
+        return 0
+    return int(fields[11]) + int(fields[12])
+
+
 def _long_run(archive):
-    """A simulate run of two long tasks, returned once its two workers have started."""
+    """A simulate run of two long tasks, returned once its two workers are computing.
+
+    Computing, not only started: a signal that reached the parent while it was still
+    starting its workers was seen to be lost under load (the run then finished normally),
+    which these tests do not cover.
+    """
     run = spawn("simulate", archive, "--zenith", "30", "--photons", "20000000", "--solvers", "full_3d", "--jobs", "2",
                 "--quiet")
     wait_for(lambda: len(children(run.pid)) == 2 or run.poll() is not None)
+    workers = children(run.pid)
+    start = {pid: cpu_ticks(pid) for pid in workers}
+    # Past their start-up (about 1 s of CPU importing and compiling): the tasks are running.
+    wait_for(lambda: all(cpu_ticks(pid) - start[pid] > 100 for pid in workers) or run.poll() is not None)
     assert run.poll() is None, run.communicate()
     return run
 
