@@ -51,7 +51,12 @@ def document_to_dataset(document):
     if ENVELOPE_FIELD in document:
         field = document[ENVELOPE_FIELD]
         for name, dims in ENVELOPE_ARRAYS.items():
-            ds[f"envelope_{name}"] = (dims, np.asarray(field[name]))
+            values = np.asarray(field[name], dtype=np.float64)
+            # The envelope is rounded to single precision (runtime/envelope.py): stored so
+            # when that is exact, which halves its share of the file.
+            single = values.astype(np.float32)
+            exact = np.array_equal(single.astype(np.float64), values)
+            ds[f"envelope_{name}"] = (dims, single if exact else values)
             ds[f"envelope_{name}"].encoding = {"_FillValue": None}
         ds.attrs[ENVELOPE_FIELD] = json.dumps({name: field[name] for name in ENVELOPE_SCALARS}, allow_nan=False)
     return ds
@@ -93,7 +98,7 @@ def dataset_to_document(ds, source):
         if missing or not isinstance(content[ENVELOPE_FIELD], dict):
             raise FormatError(f"coefficient file {source!r}: attribute {ENVELOPE_FIELD} needs a JSON object and "
                               f"the variables envelope_*; lacks {missing}")
-        content[ENVELOPE_FIELD].update({name: np.asarray(ds[f"envelope_{name}"].values)
+        content[ENVELOPE_FIELD].update({name: np.asarray(ds[f"envelope_{name}"].values, dtype=np.float64)
                                         for name in ENVELOPE_ARRAYS})
     check_document(content, source)
     return content
