@@ -8,9 +8,9 @@ module boosted_correction
   implicit none
   private
 
-  integer, parameter, public :: boosted_n_features = 32
+  integer, parameter, public :: boosted_n_features = 44
   integer, parameter, public :: boosted_n_targets = 5
-  character(len=48), parameter, public :: boosted_feature_names(boosted_n_features) = [character(len=48) :: &
+  character(len=71), parameter, public :: boosted_feature_names(boosted_n_features) = [character(len=71) :: &
        "cos_solar_zenith", &
        "surface_albedo", &
        "log_column_optical_depth", &
@@ -27,22 +27,34 @@ module boosted_correction
        "independent_column_atmosphere_absorption", &
        "neighbour_mean_cloud_fraction_1000m", &
        "neighbour_mean_cloud_fraction_3000m", &
-       "neighbour_mean_cloud_fraction_10000m", &
+       "neighbour_mean_cloud_fraction_5000m", &
        "neighbour_contrast_cloud_fraction_1000m", &
        "neighbour_contrast_cloud_fraction_3000m", &
-       "neighbour_contrast_cloud_fraction_10000m", &
+       "neighbour_contrast_cloud_fraction_5000m", &
        "neighbour_mean_log_optical_depth_1000m", &
        "neighbour_mean_log_optical_depth_3000m", &
-       "neighbour_mean_log_optical_depth_10000m", &
+       "neighbour_mean_log_optical_depth_5000m", &
        "neighbour_contrast_log_optical_depth_1000m", &
        "neighbour_contrast_log_optical_depth_3000m", &
-       "neighbour_contrast_log_optical_depth_10000m", &
+       "neighbour_contrast_log_optical_depth_5000m", &
        "cloud_edge_distance", &
        "log_optical_depth_gradient_along_beam", &
        "log_optical_depth_gradient_across_beam", &
        "slant_optical_depth", &
        "slant_minus_vertical_optical_depth", &
-       "cloud_top_height_upsun_minus_downsun"]
+       "cloud_top_height_upsun_minus_downsun", &
+       "neighbour_excess_independent_column_surface_downward_direct_flux_1000m", &
+       "neighbour_excess_independent_column_surface_downward_direct_flux_3000m", &
+       "neighbour_excess_independent_column_surface_downward_direct_flux_5000m", &
+       "neighbour_excess_independent_column_surface_downward_diffuse_flux_1000m", &
+       "neighbour_excess_independent_column_surface_downward_diffuse_flux_3000m", &
+       "neighbour_excess_independent_column_surface_downward_diffuse_flux_5000m", &
+       "neighbour_excess_independent_column_toa_upward_flux_1000m", &
+       "neighbour_excess_independent_column_toa_upward_flux_3000m", &
+       "neighbour_excess_independent_column_toa_upward_flux_5000m", &
+       "direct_beam_prior", &
+       "direct_beam_prior_minus_independent_column", &
+       "direct_beam_prior_slant_minus_vertical"]
   character(len=29), parameter, public :: boosted_target_names(boosted_n_targets) = [character(len=29) :: &
        "surface_downward_flux", &
        "surface_downward_direct_flux", &
