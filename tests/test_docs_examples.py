@@ -41,8 +41,10 @@ def test_bring_your_own_example_converts_and_builds_pairs(tmp_path, capsys):
     # docs/bring-your-own-benchmarks.md, "Checking the shipped model": the shipped model
     # scored on the converted benchmarks at its 1 km host resolution.
     pairs = tmp_path / "pairs-1km.nc"
-    assert main(["pairs", str(archive), "--out", str(pairs), "--host-resolution", "1000", "--quiet"]) == 0
-    shipped = Path(__file__).resolve().parents[1] / "models" / "default" / "boosted.coefficients.json"
+    repo = Path(__file__).resolve().parents[1]
+    assert main(["pairs", str(archive), "--out", str(pairs), "--host-resolution", "1000", "--recipe",
+                 str(repo / "training" / "features.toml"), "--quiet"]) == 0
+    shipped = repo / "models" / "default" / "boosted.coefficients.json"
     assert main(["score", str(shipped), str(pairs), "--out", str(tmp_path / "score"), "--quiet"]) == 0
     summary = json.loads((tmp_path / "score" / "summary.json").read_text())
     assert summary["evaluation_sets"]["scored samples"] == 32          # 4 x 4 host columns x 2 suns
