@@ -95,11 +95,18 @@ def run_cli(*argv):
     return main([str(a) for a in argv])
 
 
+def _default_interrupt():
+    # A test suite started in the background of a shell inherits an ignored SIGINT, and
+    # Python then installs no Ctrl-C handler (POSIX: ignored signals stay ignored across
+    # exec): give the command the terminal's default, as a user's shell does.
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def spawn(*argv, script=None):
     """The command line in a new process (and session, so that signals reach only what the test sends)."""
     head = [sys.executable, "-c", script] if script else [sys.executable, "-m", "surrogate3d"]
     return subprocess.Popen(head + [str(a) for a in argv], env=ENV, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            text=True, start_new_session=True)
+                            text=True, start_new_session=True, preexec_fn=_default_interrupt)
 
 
 def children(pid):

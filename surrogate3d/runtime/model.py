@@ -58,7 +58,7 @@ class CorrectionModel:
     --------
     >>> model = load_coefficients("models/default/boosted.coefficients.json")
     >>> model.kind, model.n_features, model.target_names[0]
-    ('boosted', 32, 'surface_downward_flux')
+    ('boosted', 44, 'surface_downward_flux')
     """
 
     def __init__(self, document, source="<document>"):
@@ -321,7 +321,7 @@ def load_coefficients(path):
     --------
     >>> from surrogate3d.runtime import load_coefficients
     >>> load_coefficients("models/default/boosted.coefficients.json")
-    CorrectionModel(name='boosted', kind='boosted', features=32, targets=5)
+    CorrectionModel(name='boosted', kind='boosted', features=44, targets=5)
     """
     path = Path(path)
     if not path.is_file():
