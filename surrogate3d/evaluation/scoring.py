@@ -103,7 +103,9 @@ def check_pairs_match(model, recipe, pairs, label="the pairs table"):
     missing = [f for f in model.feature_names if f not in available]
     if missing:
         more = f" (and {len(missing) - 1} more)" if len(missing) > 1 else ""
-        raise ValidationError(f"{label} lacks feature {missing[0]!r}{more} needed by model {model.name!r}")
+        raise ValidationError(f"{label} lacks feature {missing[0]!r}{more} needed by model {model.name!r}; make "
+                              f"the pairs with the model's feature recipe (surrogate3d pairs ... --recipe FILE; "
+                              f"the shipped models': training/features.toml)")
     theirs_text = pairs.attrs.get("feature_recipe", "{}")
     ours, theirs = _recipe(recipe), _recipe(json.loads(theirs_text))
     if ours is None or theirs is None:
