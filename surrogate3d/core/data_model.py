@@ -49,7 +49,7 @@ BASELINES = {
 #: Scene files (``docs/archive-format.md``).
 SCENE_FORMAT_VERSION = "1.1"
 #: Pair tables (``docs/pairs-format.md``).
-PAIRS_FORMAT_VERSION = "1.0"
+PAIRS_FORMAT_VERSION = "1.1"
 #: Feature recipes (and the feature definitions they name).
 RECIPE_VERSION = 1
 #: Model directories and their ``model.json``.

@@ -28,6 +28,7 @@ from ..errors import FormatError, ParameterError
 from .coarsen import block_mean, coarsen_result, host_factors
 from .features import compute_features
 from .host_fields import assemble_host_fields
+from .profiles import PROFILE_VARIABLES, host_profiles
 from .recipe import DEFAULT_PARAMETERS, HOST_FLUX_KINDS, FeatureRecipe, default_recipe
 from ..core.data_model import PAIRS_FORMAT_VERSION as FORMAT_VERSION
 from ..core.data_model import TARGETS
@@ -153,8 +154,13 @@ def _factors(scene, name, resolution):
         raise ParameterError(f"scene {name!r}: {exc}") from None
 
 
-def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_baselines, smoothing_scale):
-    """Columns of the pair table for one scene, sun geometry and host resolution."""
+def _has_absorption(result):
+    return "absorption" in result and bool(np.all(np.isfinite(result["absorption"].values)))
+
+
+def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_baselines, smoothing_scale, layers):
+    """Columns of the pair table for one scene, sun geometry and host resolution; with the
+    per-layer variables on the host layers ``layers[1]`` when ``layers[0]``."""
     full, ica = results
     fy, fx = _factors(scene, name, resolution)
     fields = assemble_host_fields(scene, ica, resolution, recipe.parameters["host_fluxes"])
@@ -194,10 +200,12 @@ def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_basel
         "incident_flux": np.full(n, incident),
         "nonlocal_smoothing_scale": np.full(n, smoothing_scale),
     })
+    if layers[0]:
+        block.update(host_profiles(scene, full, ica, fy, fx, layers[1]))
     return block
 
 
-def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fluxes=None):
+def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fluxes=None, host_layer_edges=None):
     """Build the training-pair table of an archive directory.
 
     Parameters
@@ -217,12 +225,19 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
         parameter of that name.  Default: the recipe's (``"monte_carlo"`` unless it
         says otherwise).  The targets and the table's ``independent_column_flux`` are
         always the Monte Carlo independent-column result.
+    host_layer_edges : array_like, optional
+        The host model's layer edges [m] for the per-layer (heating-rate) variables
+        (:func:`surrogate3d.pairs.profiles.check_host_layer_edges`); default every scene's
+        own layers.  The table holds the per-layer variables when every 3D and
+        independent-column result has per-cell absorption; given edges then require it.
 
     Returns
     -------
     xarray.Dataset
         The table of ``docs/pairs-format.md``; ``attrs["skipped"]`` lists (JSON) the scene
-        and sun geometries left out for lack of a 3D or independent-column result.
+        and sun geometries left out for lack of a 3D or independent-column result.  The
+        per-layer variables have dims (sample, host_layer), NaN beyond a scene's host
+        layers where scenes differ in their count.
 
     Raises
     ------
@@ -251,8 +266,8 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
     >>> archive = Path(tempfile.mkdtemp())
     >>> _ = write_scene(scene, archive / "block.nc")
     >>> pairs = build_pairs(archive, [400.0], quiet=True)
-    >>> pairs.sizes["sample"], pairs.sizes["target"]
-    (4, 5)
+    >>> pairs.sizes["sample"], pairs.sizes["target"], pairs.sizes["host_layer"]
+    (4, 5, 4)
     """
     resolutions = _check_resolutions(host_resolutions)
     recipe = with_host_fluxes(_check_recipe(recipe), host_fluxes)
@@ -261,6 +276,9 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
         raise FormatError(f"archive directory {str(archive_dir)!r} holds no scene files (*.nc)")
     digest = hashlib.sha256()
     blocks, skipped = [], []
+    # Per-layer variables: wanted unless a result lacks per-cell absorption (old archives,
+    # results from elsewhere), required when the host layers are given.
+    layers = [True, host_layer_edges]
     tilted = TiltedIndependentColumn()
     bar = tqdm(files, desc="pairs", unit="scene", disable=quiet, file=sys.stderr)
     for path in bar:
@@ -281,10 +299,21 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
         for zenith, azimuth in suns:
             full = select_result(scene, "full_3d", zenith, azimuth)
             ica = select_result(scene, "independent_column", zenith, azimuth)
+            if layers[0] and not (_has_absorption(full) and _has_absorption(ica)):
+                if host_layer_edges is not None:
+                    raise FormatError(f"scene {name!r}, solar zenith {zenith:g} deg: a result has no per-cell "
+                                      f"absorption, which the per-layer variables (host_layer_edges) need")
+                layers[0] = False
+                for block in blocks:
+                    for var in PROFILE_VARIABLES:
+                        block.pop(var, None)
+                if not quiet:
+                    tqdm.write(f"no per-layer variables: scene {name!r} lacks per-cell absorption", file=sys.stderr)
             fine = {tilted.variable: tilted.corrections(scene, zenith, azimuth),
                     nonlocal_.variable: nonlocal_.corrections(scene, zenith, azimuth, ica)}
             for resolution in resolutions:
-                blocks.append(_block(scene, name, zenith, azimuth, resolution, recipe, (full, ica), fine, smoothing))
+                blocks.append(_block(scene, name, zenith, azimuth, resolution, recipe, (full, ica), fine, smoothing,
+                                     layers))
     bar.close()
     if not blocks:
         raise FormatError(f"archive directory {str(archive_dir)!r} has no scene and sun geometry with both full_3d "
@@ -292,8 +321,15 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
     return _assemble(blocks, recipe, digest.hexdigest(), skipped, resolutions)
 
 
+def _padded(arrays):
+    # Per-layer arrays of blocks with different host layer counts, NaN beyond each one's.
+    width = max(a.shape[1] for a in arrays)
+    return np.concatenate([np.pad(a, ((0, 0), (0, width - a.shape[1])), constant_values=np.nan) for a in arrays])
+
+
 def _assemble(blocks, recipe, fingerprint, skipped, resolutions):
-    data = {key: np.concatenate([b[key] for b in blocks]) for key in blocks[0]}
+    data = {key: (_padded if key in PROFILE_VARIABLES else np.concatenate)([b[key] for b in blocks])
+            for key in blocks[0]}
     coords = {"feature": ("feature", np.array(recipe.column_names(), dtype=object)),
               "target": ("target", np.array(TARGETS, dtype=object))}
     ds = xr.Dataset(coords=coords)
@@ -306,6 +342,9 @@ def _assemble(blocks, recipe, fingerprint, skipped, resolutions):
     for name, (units, long_name) in _SAMPLE_META.items():
         attrs = {"long_name": long_name} if units == "-" else {"units": units, "long_name": long_name}
         ds[name] = (("sample",), data.pop(name), attrs)
+    for name, (units, long_name) in PROFILE_VARIABLES.items():
+        if name in data:
+            ds[name] = (("sample", "host_layer"), data.pop(name), {"units": units, "long_name": long_name})
     ds["solar_zenith_angle"].attrs["standard_name"] = "solar_zenith_angle"
     ds["surface_albedo"].attrs["standard_name"] = "surface_albedo"
     ds.attrs.update({

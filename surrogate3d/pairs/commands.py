@@ -16,9 +16,13 @@ def register(sub):
                    help="independent-column flux features from the Monte Carlo benchmark (block means) or from a "
                         "delta-Eddington solve of the host's own columns with a clear and a cloudy sub-column; "
                         "recorded in the feature recipe (default: the recipe's, else monte_carlo)")
+    p.add_argument("--host-layer-edges", type=float, nargs="+", default=None, metavar="M",
+                   help="the host model's layer edges in m, increasing from the surface to at least the scene top, "
+                        "for the per-layer (heating-rate) targets (default: every scene's own layers)")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no notices")
     p.set_defaults(func=run, interrupted="nothing was written",
-                   parameter_flags={"host_resolutions": "--host-resolution", "host_resolution": "--host-resolution"})
+                   parameter_flags={"host_resolutions": "--host-resolution", "host_resolution": "--host-resolution",
+                                    "host_layer_edges": "--host-layer-edges"})
 
 
 def run(args):
@@ -30,7 +34,7 @@ def run(args):
     out = check_output_file(args.out, "--out")
     recipe = FeatureRecipe.read(args.recipe) if args.recipe else None
     pairs = build_pairs(args.archive_dir, args.host_resolution, recipe=recipe, quiet=args.quiet,
-                        host_fluxes=args.host_fluxes)
+                        host_fluxes=args.host_fluxes, host_layer_edges=args.host_layer_edges)
     with staged_file(out) as staging:
         write_dataset(pairs, staging)
     if not args.quiet:
@@ -38,7 +42,8 @@ def run(args):
 
         skipped = json.loads(pairs.attrs["skipped"])
         scenes = len(set(pairs["scene"].values.tolist()))
-        print(f"wrote {pairs.sizes['sample']} samples x {pairs.sizes['feature']} features from {scenes} scene(s) "
-              f"at host resolution(s) {', '.join(f'{r:g}' for r in args.host_resolution)} m to {out}"
+        layers = f" and {pairs.sizes['host_layer']} host layers" if "host_layer" in pairs.sizes else ""
+        print(f"wrote {pairs.sizes['sample']} samples x {pairs.sizes['feature']} features{layers} from {scenes} "
+              f"scene(s) at host resolution(s) {', '.join(f'{r:g}' for r in args.host_resolution)} m to {out}"
               + (f"; skipped {len(skipped)} scene/sun geometr{'y' if len(skipped) == 1 else 'ies'} "
                  "without both full_3d and independent_column results" if skipped else ""))

@@ -97,7 +97,7 @@ def test_command_line(archive_template, tmp_path, capsys):
                               "--recipe", str(recipe_file)])
     args.func(args)
     printed = capsys.readouterr()
-    assert "wrote 20 samples x 2 features from 2 scene(s)" in printed.out and "skipped 2" in printed.out
+    assert "wrote 20 samples x 2 features and 4 host layers from 2 scene(s)" in printed.out and "skipped 2" in printed.out
     assert "lacks independent_column" in printed.err
     assert read_pairs(out).sizes["sample"] == 20
     args = parser.parse_args(["pairs", str(archive), "--out", str(tmp_path / "q.nc"), "--quiet"])
