@@ -237,3 +237,47 @@ def _assemble(rows, noise, seed, solar_constant):
                     archive_fingerprint=hashlib.sha256(f"synthetic-{seed}".encode()).hexdigest(),
                     source="tests/synthetic_pairs.py (test table, not radiative transfer)")
     return ds
+
+
+#: Layer shares of the independent-column absorption of the synthetic columns (bottom up).
+_LAYER_SHARES = np.array([0.25, 0.25, 0.2, 0.15, 0.1, 0.05])
+
+
+def add_synthetic_layers(ds):
+    """A copy of a synthetic pair table with per-layer variables (``docs/pairs-format.md``).
+
+    Six 500 m layers, cloud in the second to fourth with the column's cloud fraction, an
+    isothermal hydrostatic pressure profile (scale height 8 km); the layer corrections
+    share the column's absorption target among the layers in proportion to their
+    independent-column absorption, weighted up by half in the cloudy layers, so they sum
+    to it exactly.
+    """
+    n, L = ds.sizes["sample"], _LAYER_SHARES.size
+    edges = np.linspace(0.0, 3000.0, L + 1)
+    cf = ds["cloud_fraction"].values
+    cloudy = np.zeros((n, L))
+    cloudy[:, 1:4] = cf[:, None]
+    tau_cloud = ds["features"].sel(feature="cloud_optical_depth").values
+    tau = 0.02 + cloudy * tau_cloud[:, None] / 3.0
+    mu0 = np.cos(np.radians(ds["solar_zenith_angle"].values))
+    above = np.cumsum(tau[:, ::-1], axis=1)[:, ::-1] - 0.5 * tau
+    ica = ds["independent_column_flux"].sel(target="atmosphere_absorption").values[:, None] * _LAYER_SHARES
+    weight = ica * (1.0 + 0.5 * (cloudy > 0))
+    target = ds["target_value"].sel(target="atmosphere_absorption").values[:, None] * weight / weight.sum(
+        axis=1, keepdims=True)
+    pressure = 101325.0 * np.exp(-edges / 8000.0)
+    dp = np.broadcast_to(pressure[:-1] - pressure[1:], (n, L))
+    heating = target * ds["incident_flux"].values[:, None] * 9.80665 / 1004.64 * 86400.0 / dp
+    layer = ("sample", "host_layer")
+    return ds.assign({
+        "host_layer_bottom": (layer, np.broadcast_to(edges[:-1], (n, L)).copy(), {"units": "m"}),
+        "host_layer_top": (layer, np.broadcast_to(edges[1:], (n, L)).copy(), {"units": "m"}),
+        "host_layer_pressure_thickness": (layer, dp.copy(), {"units": "Pa"}),
+        "layer_optical_depth": (layer, tau, {"units": "1"}),
+        "layer_cloud_fraction": (layer, cloudy, {"units": "1"}),
+        "layer_slant_optical_depth_above": (layer, above / mu0[:, None], {"units": "1"}),
+        "independent_column_layer_absorption": (layer, ica, {"units": "1"}),
+        "full_3d_layer_absorption": (layer, ica + target, {"units": "1"}),
+        "layer_absorption_target": (layer, target, {"units": "1"}),
+        "layer_heating_rate_target": (layer, heating, {"units": "K day-1"}),
+    })

@@ -81,6 +81,8 @@ class Evaluation:
         The leave-one-family-out fits (:mod:`surrogate3d.evaluation.family_transfer`).
     record : dict or None
         ``training.json`` of the evaluated run (None when scoring a coefficient file).
+    profile : surrogate3d.evaluation.profile_skill.ProfileEvaluation or None
+        The heating-rate (profile) model's skill on the held-out scenes, if the run has one.
     """
 
     title: str
@@ -99,6 +101,7 @@ class Evaluation:
     curve_model: str | None = None
     family_runs: pd.DataFrame | None = None
     record: dict | None = None
+    profile: object = None
 
 
 def score_set(label, pairs, models, targets, consistency, breakdowns=BREAKDOWNS):

@@ -353,3 +353,44 @@ def skill_bars(table, targets, predictors, title):
         ax.set_title(title)
         ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0))
         return fig
+
+
+def profile_panels(mean_profiles, by_height, model_name):
+    """Domain-mean absorption-correction profiles of sample scenes, and RMSE by height.
+
+    Parameters
+    ----------
+    mean_profiles : list of dict
+        :attr:`surrogate3d.evaluation.profile_skill.ProfileEvaluation.mean_profiles`.
+    by_height : pandas.DataFrame
+        :attr:`~surrogate3d.evaluation.profile_skill.ProfileEvaluation.by_height`.
+    model_name : str
+    """
+    with matplotlib.rc_context(STYLE):
+        fig = _figure(3.0 * (len(mean_profiles) + 1), 3.9)
+        axes = _panels(fig, len(mean_profiles) + 1, len(mean_profiles) + 1)
+        for ax, profile in zip(axes, mean_profiles):
+            # Per km of height, so that layers of different thickness compare.
+            per_km = 1000.0 / profile["thickness"]
+            height = profile["height"] / 1000.0
+            ax.axvline(0.0, color="0.7", lw=0.8)
+            ax.plot(profile["target"] * per_km, height, color="black", lw=1.6, label="3D minus independent column")
+            ax.plot(profile["predicted"] * per_km, height, color=_MODEL_COLOURS[2], lw=1.4, ls="--", label=model_name)
+            ax.set_title(f"{profile['scene']}, sun {profile['solar_zenith_angle']:g} deg", fontsize=8)
+            ax.set_xlabel("absorption change [W m-2 km-1]")
+            ax.set_ylabel("height [km]")
+        ax = axes[-1]
+        part = by_height[by_height["units"] == "K day-1"]
+        if part.empty:
+            part = by_height[by_height["units"] == "1"]
+        labels = list(part["height_above_cloud_top"])
+        y = np.arange(len(labels))
+        ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=_FIXED_COLOURS[NO_CORRECTION],
+                label=NO_CORRECTION)
+        ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=_MODEL_COLOURS[2], label=model_name)
+        ax.set_yticks(y, labels, fontsize=7)
+        ax.set_xlabel(f"RMSE [{part['units'].iloc[0]}]" if len(part) else "RMSE")
+        ax.set_title("cloudy columns, by height above cloud top", fontsize=8)
+        axes[0].legend(loc="lower left", fontsize=7)
+        ax.legend(loc="lower right", fontsize=7)
+        return fig

@@ -21,6 +21,7 @@ from .evaluation_sets import Evaluation, EvaluationSet, score_set, set_tables
 from .family_transfer import LEFT_OUT, leave_one_family_out
 from .importance import permutation_importance
 from .learning_curve import learning_curve
+from .profile_skill import score_profiles
 from .report_writer import write_report
 from .scored_model import ScoredModel
 
@@ -140,6 +141,7 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
             notes.append("The learning curve is left out: the pairs file lacks some training scenes.")
     steps.update()
     steps.close()
+    profile = _profile_skill(run, held, sets[0], targets, notes)
 
     intro = (f"<p>Models of <code>{html.escape(str(model_dir))}</code> (recipe "
              f"<code>{html.escape(str(record.get('recipe_name')))}</code>) scored on {len(split['held_out_scenes'])} "
@@ -162,4 +164,21 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
                       summary={"model_dir": str(model_dir), "pairs_file": str(pairs_path),
                                "pairs_matches_training": matches},
                       importance=importance, curve=curve, curve_model=curve_model, family_runs=family_runs,
-                      record=record)
+                      record=record, profile=profile)
+
+
+def _profile_skill(run, held, held_set, targets, notes):
+    """The profile model's held-out skill, its layers matched to a column model's absorption
+    correction (the first boosted one, else the first) when that is a target; None without
+    a profile model."""
+    if run.profile is None:
+        return None
+    if "layer_absorption_target" not in held:
+        notes.append("The profile model is not scored: the pairs table has no per-layer variables.")
+        return None
+    column, column_model = None, None
+    if "atmosphere_absorption" in targets:
+        kinds = {name: model.kind for name, model in run.models.items()}
+        column_model = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
+        column = held_set.predictions[column_model][:, targets.index("atmosphere_absorption")]
+    return score_profiles(run.profile.name, run.profile.estimator, held, column, column_model)

@@ -254,6 +254,9 @@ def _write_tables(evaluation, out_dir):
     if evaluation.family_runs is not None:
         write_text_atomic(out_dir / "left_out_family_fits.csv", evaluation.family_runs.to_csv(index=False))
     write_text_atomic(out_dir / "envelope.csv", evaluation.envelope.to_csv(index=False))
+    if evaluation.profile is not None:
+        write_text_atomic(out_dir / "profile_metrics.csv", evaluation.profile.table.to_csv(index=False))
+        write_text_atomic(out_dir / "profile_by_height.csv", evaluation.profile.by_height.to_csv(index=False))
 
 
 def _summary(evaluation):
@@ -272,6 +275,13 @@ def _summary(evaluation):
                                    for s in evaluation.sets},
         "notes": evaluation.notes,
     }
+    if evaluation.profile is not None:
+        profile = evaluation.profile
+        summary["profile"] = {
+            "model": profile.model, "matched_to": profile.column_model,
+            "rmse_reduction": {f"{r.quantity} [{r.units}]": r.rmse_reduction
+                               for r in profile.table[profile.table["predictor"] == profile.model].itertuples()},
+            "column_integral": profile.column_integral}
     if evaluation.family_runs is not None:
         runs = evaluation.family_runs
         summary["left_out_families"] = {"families": list(dict.fromkeys(runs["family"])), "fits": len(runs),
@@ -299,6 +309,23 @@ def _family_section(evaluation, eval_set, images):
             + to_html(cross[cross["target"] == target]))
 
 
+def _profile_section(profile, out_dir):
+    png = figures.to_png(figures.profile_panels(profile.mean_profiles, profile.by_height, profile.model))
+    write_bytes_atomic(out_dir / "figures" / "profiles.png", png)
+    matched = (f"matched to the absorption correction of {html.escape(profile.column_model)} (the consistency step)"
+               if profile.column_model else "summing to their own column total")
+    text = (f"<p>The profile model {html.escape(profile.model)} predicts the 3D change of the absorption of every "
+            f"host layer; its layers are {matched}. Scored in the cloudy host columns of the held-out scenes, pooled "
+            "over their layers, against no correction (the independent column): RMSE and the share of the "
+            "independent column's RMSE removed. The column integral of the profile model's own layers removes "
+            f"{profile.column_integral['rmse_reduction']:.2f} of the RMSE of the column absorption; after matching, "
+            f"the layers sum to the column correction within {profile.column_integral['largest_mismatch']:.1e}.</p>")
+    caption = ("Domain-mean profiles of the absorption change of the cloudiest held-out scenes (3D minus independent "
+               "column and predicted), and the RMSE by height above the cloud top in the cloudy columns.")
+    return (text + to_html(profile.table) + _image(png, caption) + "<h3>By height above the cloud top</h3>"
+            + to_html(profile.by_height))
+
+
 def write_report(evaluation, out_dir, map_scenes=2):
     """Write the report files of an evaluation.
 
@@ -309,7 +336,8 @@ def write_report(evaluation, out_dir, map_scenes=2):
     (columns outside each model's training envelope, skill inside and outside),
     ``consistency.csv`` (clipping and balance counts), ``consistency_skill.csv`` (skill
     before and after the consistency step), ``summary.json``, ``figures/*.png`` and, when
-    computed, ``importance.csv``, ``learning_curve.csv`` and ``left_out_family_fits.csv``.
+    computed, ``importance.csv``, ``learning_curve.csv``, ``left_out_family_fits.csv`` and, with a
+    profile model, ``profile_metrics.csv``, ``profile_by_height.csv`` and ``figures/profiles.png``.
 
     Parameters
     ----------
@@ -355,6 +383,8 @@ def write_report(evaluation, out_dir, map_scenes=2):
         if eval_set.label == LEFT_OUT:
             sections.append(("Leave-one-family-out", _family_section(evaluation, eval_set, images)))
     target = _headline_target(evaluation.targets)
+    if evaluation.profile is not None:
+        sections.append(("Heating-rate profiles", _profile_section(evaluation.profile, out_dir)))
     sections.append(("Training envelope", f"<p>Columns outside each model's training envelope (a feature outside its "
                      "training range, or too far from the training columns in the Mahalanobis distance), and the "
                      f"skill for {html.escape(target)} on the flagged and the other columns. For the left-out "

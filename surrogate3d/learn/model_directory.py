@@ -6,6 +6,8 @@ Layout (``docs/methods/models-and-metrics.md``)::
       training.json                 split, recipe, provenance; written last
       <model>/model.json            model card: kind, hyperparameters, targets, features, CV scores
       <model>/estimator.joblib      the fitted estimator
+      profile/                      the heating-rate (profile) model, when the recipe has one:
+                                    model.json (kind "profile") and estimator.joblib
 
 ``estimator.joblib`` is a pickle: load model directories only from sources you trust.
 """
@@ -21,9 +23,14 @@ from .._atomic import atomic_path, write_text_atomic
 from ..core.data_model import MODEL_FORMAT_VERSION
 from ..errors import FormatError
 from .models import MODEL_KINDS
+from .profile_model import ProfileCorrection
 
 MODEL_CARD = "model.json"
 ESTIMATOR_FILE = "estimator.joblib"
+#: Subdirectory of the profile model (``training.json`` names it as ``profile_model``).
+PROFILE_MODEL = "profile"
+#: Every estimator class a model card's ``kind`` may name.
+_KINDS = {**MODEL_KINDS, "profile": ProfileCorrection}
 TRAINING_FILE = "training.json"
 
 _CARD_KEYS = ("format_version", "name", "kind", "hyperparameters", "targets", "feature_names", "feature_recipe",
@@ -64,11 +71,14 @@ class TrainingRun:
         The content of ``training.json``.
     models : dict of str -> TrainedModel
     path : Path
+    profile : TrainedModel or None
+        The heating-rate (profile) model, if the recipe had one.
     """
 
     record: dict
     models: dict
     path: Path
+    profile: TrainedModel = None
 
 
 def file_sha256(path):
@@ -160,8 +170,8 @@ def load_model(path):
     missing = [k for k in _CARD_KEYS if k not in card]
     if missing:
         raise FormatError(f"model card {str(card_path)!r} lacks keys {missing}")
-    if card["kind"] not in MODEL_KINDS:
-        raise FormatError(f"model card {str(card_path)!r} has kind {card['kind']!r}; known: {sorted(MODEL_KINDS)}")
+    if card["kind"] not in _KINDS:
+        raise FormatError(f"model card {str(card_path)!r} has kind {card['kind']!r}; known: {sorted(_KINDS)}")
     estimator_path = path / ESTIMATOR_FILE
     if not estimator_path.is_file():
         raise FormatError(f"model directory {str(path)!r} lacks {ESTIMATOR_FILE}")
@@ -169,11 +179,13 @@ def load_model(path):
         estimator = joblib.load(estimator_path)
     except Exception as exc:  # joblib re-raises whatever unpickling hits
         raise FormatError(f"cannot read {str(estimator_path)!r}: {type(exc).__name__}: {exc}") from None
-    expected = MODEL_KINDS[card["kind"]]
+    expected = _KINDS[card["kind"]]
     if type(estimator) is not expected:
         raise FormatError(f"{str(estimator_path)!r} holds a {type(estimator).__name__}; model.json says "
                           f"{card['kind']} ({expected.__name__})")
     for attribute, key in (("feature_names_", "feature_names"), ("target_names_", "targets")):
+        if key == "targets" and card["kind"] == "profile":
+            continue
         if list(getattr(estimator, attribute, None) or []) != list(card[key]):
             raise FormatError(f"{str(estimator_path)!r}: {attribute} {getattr(estimator, attribute, None)} "
                               f"differs from {key} {card[key]} in model.json")
@@ -209,4 +221,6 @@ def load_training_run(model_dir):
     # Directories written before leave-one-family-out evaluation also hold regime-transfer
     # models (transfer/); evaluate refits them, with the same result, so they are not read.
     models = {name: load_model(model_dir / name) for name in record["models"]}
-    return TrainingRun(record=record, models=models, path=model_dir)
+    profile = record.get("profile_model")
+    return TrainingRun(record=record, models=models, path=model_dir,
+                       profile=load_model(model_dir / profile) if profile else None)

@@ -32,6 +32,10 @@ any training starts, and a wrong one is named in the error with the allowed valu
     PARAMETER = value | [values]           # a list is a grid dimension
     interaction_features = ["a", "b", ...] # list-valued parameter: one value; a list of lists is a grid
     clear_sky_features = ["a", ...]        # list-valued too: the clear-sky gate (models.py)
+
+    [profile]                              # optional: the heating-rate correction (profile_model.py),
+    max_iter = 200                         # fitted on the per-layer variables of the pairs table;
+    min_samples_leaf = 50                  # its parameters (single values, no search)
 """
 
 import itertools
@@ -44,10 +48,11 @@ from ..errors import FormatError, ParameterError, ValidationError
 from .models import MODEL_KINDS, make_estimator
 from ..core.data_model import TARGETS
 from .pairs_table import check_has_features, feature_names
+from .profile_model import LAYER_FIELDS, ProfileCorrection
 from .transforms import check_transform, transform_features
 
 _TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models",
-             "target_transforms"}
+             "target_transforms", "profile"}
 _SPLIT_KEYS = {"held_out_scene_fraction", "left_out_families", "held_out_regime", "seed"}
 _CV_KEYS = {"folds", "grouping"}
 #: What the folds of the hyperparameter search keep together.
@@ -99,6 +104,7 @@ class TrainingRecipe:
     source: str
     target_transforms: tuple = None
     grouping: str = "scene"
+    profile: dict = None
 
     def model_parameters(self, params=None):
         """Constructor parameters of a model: ``params`` plus the recipe's target transforms."""
@@ -205,7 +211,22 @@ def parse_recipe(text, source="<recipe>"):
                           held_out_scene_fraction=float(fraction), left_out_families=families,
                           split_seed=split_seed, folds=folds, models=specs, text=text, source=source,
                           target_transforms=_transforms(source, raw.get("target_transforms"), targets),
-                          grouping=grouping)
+                          grouping=grouping, profile=_profile(source, raw.get("profile")))
+
+
+def _profile(source, table):
+    """``[profile]``: the profile model's parameters, checked (None without the table)."""
+    if table is None:
+        return None
+    _check_keys(source, "[profile]", table, set(ProfileCorrection().get_params()))
+    for key, value in table.items():
+        if isinstance(value, list):
+            _fail(source, f"[profile] {key}", f"takes one value (the profile model has no search); got {value!r}")
+    try:
+        ProfileCorrection(**table)._boosted()
+    except ParameterError as exc:
+        _fail(source, "[profile]", str(exc))
+    return dict(table)
 
 
 def _transforms(source, table, targets):
@@ -298,6 +319,12 @@ def check_recipe_against_pairs(recipe, pairs):
     missing = [t for t in recipe.targets if t not in [str(v) for v in pairs["target"].values]]
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing} named by training recipe {recipe.source!r}")
+    if recipe.profile is not None:
+        lacking = [v for v in list(LAYER_FIELDS.values()) + ["layer_absorption_target"] if v not in pairs]
+        if lacking:
+            raise ValidationError(f"training recipe {recipe.source!r} has a [profile] model but the pairs table has "
+                                  f"no per-layer variables ({', '.join(lacking)}); build it from results with "
+                                  "per-cell absorption (docs/pairs-format.md)")
     if recipe.left_out_families:
         regimes = sorted({str(r) for r in pairs["regime"].values})
         unknown = [f for f in recipe.left_out_families if f not in regimes]

@@ -15,8 +15,9 @@ from tqdm import tqdm
 
 from .. import __version__
 from .cv import grid_search, split_scenes
-from .model_directory import MODEL_FORMAT_VERSION, file_sha256, write_model, write_training_record
+from .model_directory import MODEL_FORMAT_VERSION, PROFILE_MODEL, file_sha256, write_model, write_training_record
 from .models import make_estimator
+from .profile_model import ProfileCorrection
 from ..core.pairs_table import feature_recipe, read_pairs_table
 from .pairs_table import feature_matrix, scene_labels, select_scenes, target_matrix
 from .recipe import check_recipe_against_pairs, read_recipe
@@ -89,11 +90,23 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
                     provenance={**provenance, "training_scenes": list(split.training_scenes),
                                 "held_out_scenes": list(split.held_out_scenes), "excluded_regime": None})
         write_model(out_dir / spec.name, estimator, card)
+    if recipe.profile is not None:
+        if not quiet:
+            print(f"profile model on {training.sizes['sample']} columns x {training.sizes['host_layer']} layers",
+                  flush=True)
+        profile = ProfileCorrection(**recipe.profile).fit_pairs(training, features)
+        write_model(out_dir / PROFILE_MODEL, profile, dict(
+            format_version=MODEL_FORMAT_VERSION, name=PROFILE_MODEL, kind="profile",
+            hyperparameters=profile.get_params(), targets=["layer_absorption_density"], feature_names=features,
+            feature_recipe=shared["feature_recipe"], cross_validation=None,
+            provenance={**provenance, "training_scenes": list(split.training_scenes),
+                        "held_out_scenes": list(split.held_out_scenes), "excluded_regime": None}))
 
     record = {
         "format_version": MODEL_FORMAT_VERSION,
         "recipe_name": recipe.name,
         "models": [spec.name for spec in recipe.models],
+        "profile_model": PROFILE_MODEL if recipe.profile is not None else None,
         "kinds": {spec.name: spec.kind for spec in recipe.models},
         "targets": targets,
         "feature_names": features,

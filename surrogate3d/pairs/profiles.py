@@ -17,9 +17,10 @@ import math
 
 import numpy as np
 
+from ..core.slant_path import path_weights, slant_sum
 from ..core.validation import check_finite
 from ..errors import ParameterError
-from ..scenes.model import cloud_mask, layer_thickness
+from ..scenes.model import cloud_mask, layer_thickness, spacing
 from ..solvers.heating import heating_rate
 from .coarsen import block_mean
 
@@ -30,6 +31,8 @@ PROFILE_VARIABLES = {
     "host_layer_pressure_thickness": ("Pa", "pressure drop across the host layer (NaN without air pressure)"),
     "layer_optical_depth": ("1", "solar-weighted optical depth of the host layer, host-column mean"),
     "layer_cloud_fraction": ("1", "cloud fraction of the host layer"),
+    "layer_slant_optical_depth_above": ("1", "optical depth along the path from the host layer's middle toward the "
+                                             "sun, through the neighbouring host columns, to the domain top"),
     "independent_column_layer_absorption": ("1", "independent-column absorption of the host layer / incident flux"),
     "full_3d_layer_absorption": ("1", "3D absorption of the host layer / incident flux"),
     "layer_absorption_target": ("1", "3D minus independent-column absorption of the host layer / incident flux"),
@@ -128,6 +131,42 @@ def host_edge_pressure(z_edge, air_pressure, host_layer_edges):
     return np.exp(np.where(h > z[-1], log_p[-1] + slope * (h - z[-1]), inside))
 
 
+def slant_optical_depth_above(layer_optical_depth, host_layer_edges, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+    """Optical depth [1] along the straight path from every host layer's middle toward the sun.
+
+    The path rises from the middle of the layer through the upper half of the layer and
+    every layer above, crossing neighbouring host columns (periodic), each uniform
+    (:func:`surrogate3d.core.slant_path.path_weights`); Beer-Lambert along the path,
+    ``sum w tau / cos(theta0)``.
+
+    Parameters
+    ----------
+    layer_optical_depth : ndarray (nh, Ny, Nx)
+        Vertical optical depth of every host layer and column [1].
+    host_layer_edges : array_like (nh + 1,)
+        [m].
+    dx, dy : float
+        Host column size [m].
+    solar_zenith_angle, solar_beam_azimuth : float
+        [degree].
+
+    Returns
+    -------
+    ndarray (nh, Ny, Nx)
+    """
+    tau = np.asarray(layer_optical_depth, dtype=np.float64)
+    edges = np.asarray(host_layer_edges, dtype=np.float64)
+    mu0 = math.cos(math.radians(solar_zenith_angle))
+    out = np.empty_like(tau)
+    for k in range(tau.shape[0]):
+        middle = 0.5 * (edges[k] + edges[k + 1])
+        path_edges = np.concatenate([[0.0], edges[k + 1:] - middle])
+        values = np.concatenate([0.5 * tau[k:k + 1], tau[k + 1:]])
+        weights = path_weights(path_edges, dx, dy, solar_zenith_angle, solar_beam_azimuth)
+        out[k] = slant_sum(values, weights) / mu0
+    return out
+
+
 def host_profiles(scene, full, ica, fy, fx, host_layer_edges=None):
     """The per-layer variables of a pair table for one scene, sun geometry and host resolution.
 
@@ -175,11 +214,16 @@ def host_profiles(scene, full, ica, fy, fx, host_layer_edges=None):
     def rows(values):
         return np.ascontiguousarray(np.asarray(values).reshape(nh, n).T)
 
+    host_tau = np.einsum("hz,zyx->hyx", share, block_mean(tau, fy, fx))
+    dx, dy = spacing(scene)
+    slant = slant_optical_depth_above(host_tau, edges, dx * fx, dy * fy, float(full.attrs["solar_zenith_angle"]),
+                                      float(full.attrs["solar_beam_azimuth"]))
     out = {
         "host_layer_bottom": np.broadcast_to(edges[:-1], (n, nh)).copy(),
         "host_layer_top": np.broadcast_to(edges[1:], (n, nh)).copy(),
-        "layer_optical_depth": rows(np.einsum("hz,zyx->hyx", share, block_mean(tau, fy, fx))),
+        "layer_optical_depth": rows(host_tau),
         "layer_cloud_fraction": rows(np.clip(host_cloud, 0.0, 1.0)),
+        "layer_slant_optical_depth_above": rows(slant),
         "independent_column_layer_absorption": rows(absorbed["independent-column"]),
         "full_3d_layer_absorption": rows(absorbed["3D"]),
         "layer_absorption_target": rows(absorbed["3D"] - absorbed["independent-column"]),

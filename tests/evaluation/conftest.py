@@ -6,7 +6,7 @@ from threadpoolctl import threadpool_limits
 from surrogate3d import cli
 from surrogate3d.archive import write_dataset
 from surrogate3d.evaluation.report import evaluate
-from synthetic_pairs import make_synthetic_pairs
+from synthetic_pairs import add_synthetic_layers, make_synthetic_pairs
 from surrogate3d.learn.train import train_models
 
 RECIPE = """
@@ -26,6 +26,10 @@ alpha = 1.0
 kind = "boosted"
 max_iter = 40
 min_samples_leaf = 10
+
+[profile]
+max_iter = 60
+min_samples_leaf = 10
 """
 
 
@@ -39,7 +43,7 @@ def one_openmp_thread():
 
 @pytest.fixture(scope="session")
 def synthetic_pairs():
-    return make_synthetic_pairs(seeds_per_regime=4, seed=5)
+    return add_synthetic_layers(make_synthetic_pairs(seeds_per_regime=4, seed=5))
 
 
 @pytest.fixture(scope="session")

@@ -122,3 +122,17 @@ def test_missing_held_out_scene_is_named(model_dir, synthetic_pairs, tmp_path, e
     path = write_dataset(synthetic_pairs.isel(sample=keep), tmp_path / "partial.nc")
     with pytest.raises(ValidationError, match=held):
         evaluate(model_dir, path, learning_curve_points=0, importance_repeats=0, quiet=True)
+
+
+def test_profile_section(evaluation, report_dir):
+    # The layers are matched to the boosted model's absorption correction (energy conservation,
+    # to round-off) and beat no correction on the synthetic layer targets.
+    profile = evaluation.profile
+    assert profile.column_model == "boosted" and profile.column_integral["largest_mismatch"] < 1e-14
+    rows = profile.table[profile.table["predictor"] == profile.model].set_index("units")
+    assert rows.loc["1", "rmse_reduction"] > 0.3 and rows.loc["K day-1", "rmse_reduction"] > 0.3
+    summary = json.loads((report_dir / "summary.json").read_text())
+    assert summary["profile"]["matched_to"] == "boosted"
+    assert "Heating-rate profiles" in (report_dir / "report.html").read_text()
+    for name in ("profile_metrics.csv", "profile_by_height.csv", "figures/profiles.png"):
+        assert (report_dir / name).is_file()

@@ -120,3 +120,16 @@ def test_default_recipes_gate_both_models():
         gates = [spec.grid["clear_sky_features"] for spec in read_recipe(path).models]
         assert gates == [[["cloud_fraction", f"neighbour_mean_cloud_fraction_{radius}m",
                            "slant_minus_vertical_optical_depth"]]] * 2, path
+
+
+def test_profile_section(synthetic_pairs, small_recipe):
+    recipe = parse_recipe(small_recipe + "\n[profile]\nmax_iter = 30\nmin_samples_leaf = 5\n")
+    assert recipe.profile == {"max_iter": 30, "min_samples_leaf": 5}
+    for text, words in (("max_iter = [10, 20]", r"\[profile\] max_iter takes one value"),
+                        ("depth = 3", r"\[profile\] has unknown keys \['depth'\]"),
+                        ("scale_floor = 0.0", "scale_floor must be")):
+        with pytest.raises(ParameterError, match=words):
+            parse_recipe(small_recipe + f"\n[profile]\n{text}\n", source="bad.toml")
+    # The synthetic table of this directory has no per-layer variables.
+    with pytest.raises(ValidationError, match="has a \\[profile\\] model but the pairs table has no per-layer"):
+        check_recipe_against_pairs(recipe, synthetic_pairs)

@@ -8,7 +8,8 @@ import pytest
 from surrogate3d.archive import insert_result, write_scene
 from surrogate3d.errors import FormatError, ParameterError
 from surrogate3d.pairs import build_pairs
-from surrogate3d.pairs.profiles import check_host_layer_edges, host_edge_pressure, overlap_matrix
+from surrogate3d.pairs.profiles import (check_host_layer_edges, host_edge_pressure, overlap_matrix,
+                                       slant_optical_depth_above)
 from surrogate3d.scenes import make_scene
 from surrogate3d.solvers import solve_monte_carlo
 
@@ -78,6 +79,24 @@ def test_overlap_shares_and_edge_pressure():
     host = np.array([0.0, 200.0, 1000.0, 2500.0])
     np.testing.assert_allclose(host_edge_pressure(z, p, host), SURFACE_PRESSURE * np.exp(-host / SCALE_HEIGHT),
                                rtol=1e-12)
+
+
+def test_slant_path_from_a_layer_middle():
+    # Sun at 45 deg, beam toward +x, 1 km columns and layers: from the middle of the lowest
+    # layer the path toward the sun stays in its own column through the upper half of that
+    # layer and crosses the column up-sun (-x) in the next one; Beer-Lambert along it, the
+    # optical depth divided by cos(45 deg) (geometry, common practice).
+    tau = np.zeros((2, 1, 4))
+    tau[0] = [[1.0, 2.0, 3.0, 4.0]]
+    tau[1] = [[10.0, 20.0, 30.0, 40.0]]
+    out = slant_optical_depth_above(tau, [0.0, 1000.0, 2000.0], 1000.0, 1000.0, 45.0, 0.0)
+    mu0 = math.cos(math.radians(45.0))
+    np.testing.assert_allclose(out[0, 0], (0.5 * tau[0, 0] + np.roll(tau[1, 0], 1)) / mu0, rtol=1e-12)
+    np.testing.assert_allclose(out[1, 0], 0.5 * tau[1, 0] / mu0, rtol=1e-12)
+    # A horizontally uniform sky: the plane-parallel slant path.
+    uniform = np.ones((2, 3, 3))
+    np.testing.assert_allclose(slant_optical_depth_above(uniform, [0.0, 400.0, 2000.0], 500.0, 500.0, 60.0, 37.0)[0],
+                               1.5 / 0.5, rtol=1e-12)
 
 
 @pytest.mark.parametrize("edges, words", [

@@ -1,0 +1,143 @@
+"""Skill of the heating-rate (profile) correction on held-out scenes.
+
+The profile model's per-layer absorption corrections are made to sum to a column model's
+absorption correction (:func:`surrogate3d.learn.profile_model.match_column_integral`), as
+a host model would use them, and scored in the cloudy host columns (total cloud
+fraction above 0), pooled over their layers, against no correction (the independent
+column): RMSE of the layer absorption (fraction of the incident flux and W m-2) and of the
+heating rate (K day-1, where the scenes give pressures), overall and by height relative to
+the column's cloud top.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ..learn.profile_model import layer_fields, match_column_integral
+from ..pairs.layer_features import layer_features
+from .predictions import NO_CORRECTION
+from ..solvers.heating import DRY_AIR_SPECIFIC_HEAT, SECONDS_PER_DAY, STANDARD_GRAVITY
+
+#: Edges [m] of the bins of height above the cloud top (layer middle minus cloud-top height).
+HEIGHT_BINS = (-np.inf, -1500.0, -1000.0, -500.0, -250.0, 0.0, 250.0, 500.0, 1000.0, np.inf)
+
+
+@dataclass
+class ProfileEvaluation:
+    """What the report shows of the profile model.
+
+    Attributes
+    ----------
+    model : str
+        The profile model's name.
+    column_model : str or None
+        The column model whose absorption correction the profiles are matched to.
+    table : pandas.DataFrame
+        ``quantity, units, predictor, rmse, rmse_reduction, n``: pooled over the layers of
+        the cloudy columns.
+    by_height : pandas.DataFrame
+        ``quantity, height_above_cloud_top, n, rmse_no_correction, rmse_model, rmse_reduction``.
+    column_integral : dict
+        ``rmse_reduction`` of the column absorption from the profile's own sum, and
+        ``largest_mismatch``: the largest ``|sum(profile) - column correction|`` after matching.
+    mean_profiles : list of dict
+        Domain-mean profiles of sample scenes (``scene``, ``solar_zenith_angle``,
+        ``height`` [m], ``target``, ``predicted`` [W m-2 per layer] and ``thickness`` [m]).
+    """
+
+    model: str
+    column_model: str | None
+    table: pd.DataFrame
+    by_height: pd.DataFrame
+    column_integral: dict
+    mean_profiles: list
+
+
+def _rmse(values, mask):
+    return float(np.sqrt(np.mean(values[mask] ** 2))) if mask.any() else float("nan")
+
+
+def _reduction(error, truth, mask):
+    base = _rmse(truth, mask)
+    return 1.0 - _rmse(error, mask) / base if base > 0 else float("nan")
+
+
+def score_profiles(name, estimator, pairs, column_correction=None, column_model=None, sample_scenes=3):
+    """Score a profile model on a pair table (normally the held-out scenes).
+
+    Parameters
+    ----------
+    name : str
+    estimator : surrogate3d.learn.profile_model.ProfileCorrection
+    pairs : xarray.Dataset
+        With per-layer variables.
+    column_correction : array_like (n_sample,), optional
+        The column absorption correction to match; default the profile's own sum.
+    column_model : str, optional
+        Name of the model that gave ``column_correction``.
+    sample_scenes : int
+        Scenes (the cloudiest) whose domain-mean profiles are kept for a figure.
+
+    Returns
+    -------
+    ProfileEvaluation
+    """
+    fields = layer_fields(pairs)
+    raw = estimator.predict_pairs(pairs)
+    own_sum = np.nansum(raw, axis=1)
+    column = own_sum if column_correction is None else np.asarray(column_correction, dtype=np.float64)
+    predicted = match_column_integral(raw, column, fields["independent_column_absorption"])
+    target = pairs["layer_absorption_target"].values
+    incident = pairs["incident_flux"].values[:, None]
+    cloudy = (pairs["cloud_fraction"].values > 0.0)[:, None] & np.isfinite(target)
+    heating = pairs["layer_heating_rate_target"].values
+    # Heating rate of an absorbed fraction [K day-1]: g / c_p * S0 cos(theta0) / dp (Liou 2002).
+    per_fraction = (STANDARD_GRAVITY / DRY_AIR_SPECIFIC_HEAT * SECONDS_PER_DAY * incident
+                    / pairs["host_layer_pressure_thickness"].values)
+    quantities = [("layer absorption", "1", target, predicted, cloudy),
+                  ("layer absorption", "W m-2", target * incident, predicted * incident, cloudy),
+                  ("heating rate", "K day-1", heating, predicted * per_fraction, cloudy & np.isfinite(heating))]
+    rows, by_height = [], []
+    local = layer_features(fields["bottom"], fields["top"], fields["optical_depth"], fields["cloud_fraction"],
+                           fields["independent_column_absorption"], fields["cos_solar_zenith"],
+                           fields["slant_optical_depth_above"])
+    height = local[..., 0]
+    for quantity, units, truth, guess, mask in quantities:
+        if not mask.any():
+            continue
+        for predictor, values in ((NO_CORRECTION, np.zeros_like(truth)), (name, guess)):
+            rows.append({"quantity": quantity, "units": units, "predictor": predictor,
+                         "rmse": _rmse(values - truth, mask), "rmse_reduction": _reduction(values - truth, truth, mask),
+                         "n": int(mask.sum())})
+        for lo, hi in zip(HEIGHT_BINS[:-1], HEIGHT_BINS[1:]):
+            inside = mask & (height >= lo) & (height < hi)
+            by_height.append({"quantity": quantity, "units": units, "height_above_cloud_top": f"[{lo:g}, {hi:g}) m",
+                              "n": int(inside.sum()), "rmse_no_correction": _rmse(truth, inside),
+                              "rmse_model": _rmse(guess - truth, inside),
+                              "rmse_reduction": _reduction(guess - truth, truth, inside)})
+    column_target = pairs["target_value"].sel(target="atmosphere_absorption").values
+    clouds = cloudy.any(axis=1)
+    integral = {"rmse_reduction": _reduction(own_sum - column_target, column_target, clouds),
+                "largest_mismatch": float(np.max(np.abs(np.nansum(predicted, axis=1) - column)))}
+    return ProfileEvaluation(model=name, column_model=column_model, table=pd.DataFrame(rows),
+                             by_height=pd.DataFrame(by_height), column_integral=integral,
+                             mean_profiles=_mean_profiles(pairs, predicted, sample_scenes))
+
+
+def _mean_profiles(pairs, predicted, count):
+    """Domain-mean profiles (W m-2 per layer) of the ``count`` cloudiest scene and sun geometries."""
+    keys = pd.DataFrame({"scene": pairs["scene"].values, "zenith": pairs["solar_zenith_angle"].values,
+                         "cloud": pairs["cloud_fraction"].values})
+    cover = keys.groupby(["scene", "zenith"], sort=True)["cloud"].mean().sort_values(ascending=False)
+    incident = pairs["incident_flux"].values[:, None]
+    out = []
+    for scene, zenith in cover.index[:count]:
+        pick = ((keys["scene"] == scene) & (keys["zenith"] == zenith)).values
+        bottom = pairs["host_layer_bottom"].values[pick][0]
+        top = pairs["host_layer_top"].values[pick][0]
+        out.append({"scene": str(scene), "solar_zenith_angle": float(zenith), "height": 0.5 * (bottom + top),
+                    "thickness": top - bottom,
+                    "target": np.mean(pairs["layer_absorption_target"].values[pick] * incident[pick], axis=0),
+                    "predicted": np.mean(predicted[pick] * incident[pick], axis=0)})
+    return out

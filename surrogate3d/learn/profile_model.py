@@ -1,0 +1,223 @@
+"""The heating-rate correction: the 3D change of the absorption of every host layer.
+
+A host model heats each of its layers, so a column-integrated absorption correction is
+not enough.  :class:`ProfileCorrection` learns the 3D-minus-independent-column absorption
+*per unit thickness* of a layer (km-1, fraction of the incident flux) from the column's
+features and the layer's own (:mod:`surrogate3d.pairs.layer_features`): both are
+independent of how many layers the host has, so a model trained on one vertical grid
+predicts on another.  The learned density is scaled by the independent-column absorption
+of the column, so an atmosphere that does not absorb gets no correction (as for the
+column absorption target, :mod:`surrogate3d.learn.transforms`), and a layer whose
+independent-column absorption is zero (no absorber) gets none.
+:func:`match_column_integral` then makes the profile sum to the column's absorption
+correction, so energy is conserved.
+"""
+
+import numpy as np
+from sklearn.base import BaseEstimator
+
+from ..core.validation import check_number
+from ..errors import ParameterError, ValidationError
+from ..pairs.layer_features import LAYER_FEATURES, layer_features
+from .models import BoostedCorrection
+from .pairs_table import feature_matrix
+
+#: The layer fields a profile model reads (dict keys, arrays (n_column, n_layer)), and the
+#: pair-table variables holding them.
+LAYER_FIELDS = {
+    "bottom": "host_layer_bottom",
+    "top": "host_layer_top",
+    "optical_depth": "layer_optical_depth",
+    "cloud_fraction": "layer_cloud_fraction",
+    "independent_column_absorption": "independent_column_layer_absorption",
+    "slant_optical_depth_above": "layer_slant_optical_depth_above",
+}
+#: The scale of the learned density: the column's independent-column absorption.
+SCALE_FEATURE = "independent_column_column_absorption"
+
+
+def layer_fields(pairs):
+    """The layer fields of :data:`LAYER_FIELDS` from a pair table, plus ``cos_solar_zenith``.
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        The table has no per-layer variables (``docs/pairs-format.md``).
+    """
+    missing = [var for var in list(LAYER_FIELDS.values()) + ["layer_absorption_target"] if var not in pairs]
+    if missing:
+        raise ValidationError(f"the pairs table has no per-layer variables ({', '.join(missing)}); build it from "
+                              "results with per-cell absorption (docs/pairs-format.md, per-layer variables)")
+    fields = {key: np.asarray(pairs[var].values, dtype=np.float64) for key, var in LAYER_FIELDS.items()}
+    fields["cos_solar_zenith"] = np.cos(np.radians(np.asarray(pairs["solar_zenith_angle"].values, dtype=np.float64)))
+    return fields
+
+
+def layer_rows(X, fields):
+    """One row per (column, layer): the column's features then the layer's.
+
+    Returns
+    -------
+    rows : ndarray (n_column * n_layer, n_feature + len(LAYER_FEATURES))
+    valid : ndarray of bool (n_column * n_layer,)
+        Rows of layers the column has (not padding).
+    """
+    X = np.asarray(X, dtype=np.float64)
+    local = layer_features(fields["bottom"], fields["top"], fields["optical_depth"], fields["cloud_fraction"],
+                           fields["independent_column_absorption"], fields["cos_solar_zenith"],
+                           fields["slant_optical_depth_above"])
+    n, n_layer = local.shape[:2]
+    if X.shape[0] != n:
+        raise ParameterError(f"X has {X.shape[0]} columns but the layer fields {n}")
+    rows = np.concatenate([np.broadcast_to(X[:, None, :], (n, n_layer, X.shape[1])), local], axis=2)
+    rows = rows.reshape(n * n_layer, -1)
+    return rows, np.isfinite(local[..., 0]).reshape(-1)
+
+
+def match_column_integral(profile, column_correction, independent_column_absorption):
+    """Make every column's profile sum to its column absorption correction.
+
+    The residual ``column_correction - sum(profile)`` is shared among the layers in
+    proportion to their independent-column absorption (where light is absorbed, a
+    change of the light's path changes the absorption), or equally among the column's
+    layers where it absorbs nothing.
+
+    Parameters
+    ----------
+    profile : array_like (n_column, n_layer)
+        Absorption correction of each layer [1]; NaN for padding layers.
+    column_correction : array_like (n_column,)
+        Absorption correction of each column [1].
+    independent_column_absorption : array_like (n_column, n_layer)
+        Independent-column absorption of each layer [1].
+
+    Returns
+    -------
+    ndarray (n_column, n_layer)
+
+    Examples
+    --------
+    >>> match_column_integral([[0.01, 0.0]], [0.03], [[1.0, 3.0]]).tolist()
+    [[0.015, 0.015]]
+    """
+    profile = np.asarray(profile, dtype=np.float64)
+    present = np.isfinite(profile)
+    weight = np.where(present, np.clip(np.nan_to_num(np.asarray(independent_column_absorption, dtype=np.float64)),
+                                       0.0, None), 0.0)
+    total = weight.sum(axis=1, keepdims=True)
+    equal = present / np.maximum(present.sum(axis=1, keepdims=True), 1)
+    share = np.where(total > 0.0, weight / np.where(total > 0.0, total, 1.0), equal)
+    residual = np.asarray(column_correction, dtype=np.float64) - np.nansum(profile, axis=1)
+    return profile + residual[:, None] * share
+
+
+class ProfileCorrection(BaseEstimator):
+    """Gradient-boosted 3D correction of the absorption of every host layer.
+
+    Rows are (host column, host layer) pairs with the column's features followed by
+    :data:`~surrogate3d.pairs.layer_features.LAYER_FEATURES`; the target is the
+    3D-minus-independent-column absorption per km of the layer, learned relative to the
+    column's independent-column absorption (:class:`~surrogate3d.learn.models.BoostedCorrection`
+    with a scaled target, weights ``scale**2``: the squared error of the correction).
+
+    Parameters
+    ----------
+    max_iter : int, default 200
+        Boosting iterations, >= 1.
+    learning_rate : float, default 0.1
+        In (0, 1].
+    max_leaf_nodes : int, default 31
+        >= 2.
+    min_samples_leaf : int, default 50
+        >= 1.
+    l2_regularization : float, default 0.0
+        >= 0.
+    scale_floor : float, default 1e-4
+        Smallest column absorption [1] the learned density is scaled by, > 0.
+    random_state : int, default 0
+
+    Attributes
+    ----------
+    boosted_ : BoostedCorrection
+        The fitted ensemble on layer rows.
+    feature_names_ : list of str
+        Column features, in the order :meth:`predict` expects them.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> n, L = 50, 3
+    >>> fields = {"bottom": np.tile([0.0, 500.0, 1000.0], (n, 1)), "top": np.tile([500.0, 1000.0, 1500.0], (n, 1)),
+    ...           "optical_depth": rng.uniform(0, 5, (n, L)), "cloud_fraction": rng.uniform(0, 1, (n, L)),
+    ...           "independent_column_absorption": rng.uniform(0, 0.01, (n, L)),
+    ...           "cos_solar_zenith": rng.uniform(0.2, 1, n), "slant_optical_depth_above": rng.uniform(0, 9, (n, L))}
+    >>> X = rng.uniform(size=(n, 2))
+    >>> target = 0.1 * fields["independent_column_absorption"] * X[:, :1]
+    >>> model = ProfileCorrection(max_iter=20, min_samples_leaf=5).fit(X, ["a", "b"], fields, target)
+    >>> model.predict(X, fields).shape
+    (50, 3)
+    """
+
+    def __init__(self, max_iter=200, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=50,
+                 l2_regularization=0.0, scale_floor=1e-4, random_state=0):
+        self.max_iter = max_iter
+        self.learning_rate = learning_rate
+        self.max_leaf_nodes = max_leaf_nodes
+        self.min_samples_leaf = min_samples_leaf
+        self.l2_regularization = l2_regularization
+        self.scale_floor = scale_floor
+        self.random_state = random_state
+
+    def _boosted(self):
+        check_number("scale_floor", self.scale_floor, 0.0, None, low_open=True)
+        boosted = BoostedCorrection(max_iter=self.max_iter, learning_rate=self.learning_rate,
+                                    max_leaf_nodes=self.max_leaf_nodes, min_samples_leaf=self.min_samples_leaf,
+                                    l2_regularization=self.l2_regularization, random_state=self.random_state,
+                                    target_transforms=[{"scale_feature": SCALE_FEATURE,
+                                                        "scale_floor": float(self.scale_floor)}])
+        boosted._check_parameters()
+        return boosted
+
+    def fit(self, X, feature_names, fields, target):
+        """Fit on column features ``X`` (n_column, n_feature), their names, the layer fields
+        (:data:`LAYER_FIELDS` keys and ``cos_solar_zenith``) and the absorption correction
+        of every layer ``target`` (n_column, n_layer) [1]."""
+        boosted = self._boosted()
+        names = list(feature_names)
+        rows, valid = layer_rows(X, fields)
+        if len(names) + len(LAYER_FEATURES) != rows.shape[1]:
+            raise ParameterError(f"feature_names has {len(names)} names for {rows.shape[1] - len(LAYER_FEATURES)} "
+                                 "feature columns")
+        thickness = np.asarray(fields["top"], dtype=np.float64) - np.asarray(fields["bottom"], dtype=np.float64)
+        density = (1000.0 * np.asarray(target, dtype=np.float64) / thickness).reshape(-1)
+        keep = valid & np.isfinite(density)
+        if not keep.any():
+            raise ValidationError("no layer with a finite target to fit the profile correction on")
+        self.boosted_ = boosted.fit(rows[keep], density[keep], feature_names=names + list(LAYER_FEATURES))
+        self.feature_names_ = names
+        self.n_features_in_ = len(names)
+        return self
+
+    def predict(self, X, fields):
+        """Absorption correction of every layer [1], (n_column, n_layer); NaN for padding layers."""
+        if not hasattr(self, "boosted_"):
+            raise ValidationError("this ProfileCorrection is not fitted yet; call fit first")
+        X = np.asarray(X, dtype=np.float64)
+        if X.ndim != 2 or X.shape[1] != self.n_features_in_:
+            raise ParameterError(f"X must have shape (n_column, {self.n_features_in_}); got {X.shape}")
+        rows, valid = layer_rows(X, fields)
+        density = np.full(rows.shape[0], np.nan)
+        density[valid] = self.boosted_.predict(rows[valid])
+        thickness = np.asarray(fields["top"], dtype=np.float64) - np.asarray(fields["bottom"], dtype=np.float64)
+        # A layer without absorber absorbs nothing in 3D either.
+        absorbs = np.asarray(fields["independent_column_absorption"], dtype=np.float64) > 0.0
+        return np.where(absorbs | np.isnan(thickness), density.reshape(thickness.shape), 0.0) * thickness / 1000.0
+
+    def fit_pairs(self, pairs, features):
+        """Fit on a pair table's columns (features ``features``) and per-layer variables."""
+        return self.fit(feature_matrix(pairs, features, "the profile model"), features, layer_fields(pairs),
+                        pairs["layer_absorption_target"].values)
+
+    def predict_pairs(self, pairs):
+        """:meth:`predict` on a pair table."""
+        return self.predict(feature_matrix(pairs, self.feature_names_, "the profile model"), layer_fields(pairs))
