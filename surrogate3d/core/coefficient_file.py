@@ -20,7 +20,7 @@ import xarray as xr
 
 from ..errors import FormatError
 from .coefficient_format import (ARRAYS, ENVELOPE_ARRAYS, ENVELOPE_FIELD, ENVELOPE_SCALARS, FORMAT_NAME, GATE_FIELD,
-                                 TRANSFORM_FIELD, check_document, document_from_json)
+                                 PROFILE_FIELD, TRANSFORM_FIELD, check_document, document_from_json)
 from .netcdf import open_dataset
 
 #: Flavour of the NetCDF file (classic format with 64-bit offsets).
@@ -45,7 +45,7 @@ def document_to_dataset(document):
                 "model_name": document["model"]["name"], "model_kind": kind}
     ds.attrs["features"] = json.dumps({k: v for k, v in document["features"].items() if k != "names"})
     ds.attrs["targets"] = json.dumps({k: v for k, v in document["targets"].items() if k != "names"})
-    for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD, TRANSFORM_FIELD):
+    for key in ("model", "feature_recipe", "provenance", "skill", GATE_FIELD, TRANSFORM_FIELD, PROFILE_FIELD):
         if key in document:
             ds.attrs[key] = json.dumps(document[key], allow_nan=False)
     if ENVELOPE_FIELD in document:
@@ -70,9 +70,9 @@ def dataset_to_document(ds, source):
                           f"{attrs.get('format')!r}; expected {FORMAT_NAME!r}")
     content = {"format": attrs["format"], "format_version": attrs.get("format_version")}
     for key in ("model", "features", "targets", "feature_recipe", "provenance", "skill", GATE_FIELD, ENVELOPE_FIELD,
-                TRANSFORM_FIELD):
+                TRANSFORM_FIELD, PROFILE_FIELD):
         if key not in attrs:
-            if key in (GATE_FIELD, ENVELOPE_FIELD, TRANSFORM_FIELD):   # optional: older files lack them
+            if key in (GATE_FIELD, ENVELOPE_FIELD, TRANSFORM_FIELD, PROFILE_FIELD):   # optional: older files lack them
                 continue
             raise FormatError(f"coefficient file {source!r} lacks attribute {key!r}")
         try:

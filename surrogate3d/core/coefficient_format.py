@@ -66,6 +66,13 @@ ENVELOPE_FIELD = "training_envelope"
 TRANSFORM_FIELD = "target_transforms"
 _TRANSFORM_KEYS = {"scale_feature", "scale_floor", "offset_features", "offset_coefficients"}
 
+#: Optional top-level field of a heating-rate (profile) model (absent before format 1.4:
+#: a column model): ``layer_features``, the names of the last features, which describe one
+#: host layer, and ``target_units``; the single target is the layer's absorption change per km.
+PROFILE_FIELD = "profile"
+#: The target of a profile model.
+PROFILE_TARGET = "layer_absorption_density"
+
 #: Arrays of the training envelope: name -> dimension names.
 ENVELOPE_ARRAYS = {"feature_min": ("feature",), "feature_max": ("feature",), "center": ("feature",),
           "scale": ("feature",), "components": ("component", "feature"), "component_variance": ("component",)}
@@ -321,6 +328,19 @@ def check_document(document, source):
     _check_transforms(document, len(feature_names), len(target_names), source)
     if ENVELOPE_FIELD in document:
         check_envelope_field(document[ENVELOPE_FIELD], len(feature_names), source)
+    if PROFILE_FIELD in document:
+        _check_profile(document[PROFILE_FIELD], feature_names, target_names, source)
+
+
+def _check_profile(field, feature_names, target_names, source):
+    layer = field.get("layer_features") if isinstance(field, dict) else None
+    if not isinstance(layer, list) or not layer or not all(isinstance(n, str) for n in layer) \
+            or feature_names[-len(layer):] != layer or len(layer) >= len(feature_names):
+        raise FormatError(f"coefficient file {source!r}: field {PROFILE_FIELD}.layer_features must list the last "
+                          f"features.names (after at least one column feature); got {_short(layer)}")
+    if target_names != [PROFILE_TARGET]:
+        raise FormatError(f"coefficient file {source!r}: a profile model has the single target {PROFILE_TARGET!r}; "
+                          f"targets.names is {target_names}")
 
 
 def clear_sky_gate(document):

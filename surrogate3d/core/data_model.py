@@ -61,5 +61,6 @@ COEFFICIENT_FORMAT_NAME = "surrogate3d-correction-coefficients"
 #: is flagged) and stores scale 1 for a ridge feature constant up to round-off (readers
 #: clip the standardized value of such a feature in older files,
 #: :mod:`surrogate3d.runtime.ridge`); 1.3 added the optional ``target_transforms`` (an
-#: older file has none: the model predicts corrections).
-COEFFICIENT_FORMAT_VERSION = "1.3"
+#: older file has none: the model predicts corrections); 1.4 added the optional
+#: ``profile`` (a heating-rate model's layer features; an older file is a column model).
+COEFFICIENT_FORMAT_VERSION = "1.4"

@@ -14,7 +14,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..learn.profile_model import layer_fields, match_column_integral
+from ..learn.profile_model import layer_fields
+from ..runtime.profile import match_column_integral
 from ..pairs.layer_features import layer_features
 from .predictions import NO_CORRECTION
 from ..solvers.heating import DRY_AIR_SPECIFIC_HEAT, SECONDS_PER_DAY, STANDARD_GRAVITY

@@ -18,12 +18,13 @@ from pathlib import Path
 from .. import __version__
 from .._atomic import atomic_path, write_text_atomic
 from ..core.coefficient_file import NETCDF_FORMAT, document_to_dataset
-from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, TRANSFORM_FIELD, \
-    check_document, document_to_json
+from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, PROFILE_FIELD, \
+    PROFILE_TARGET, TRANSFORM_FIELD, check_document, document_to_json
 from ..core.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
 from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
+from ..pairs.layer_features import LAYER_FEATURES
 from ..pairs.recipe import FeatureRecipe
 from .flatten import clear_sky_gate, flatten, target_transforms, training_envelope
 
@@ -34,6 +35,10 @@ JSON_SUFFIX = ".coefficients.json"
 #: Definition of the targets, stored with their names.
 TARGET_DEFINITION = ("3D minus independent-column flux, host-column mean, as a fraction of the incident flux on "
                      "the horizontal (S0 cos(theta0))")
+
+#: Definition of a profile model's target.
+PROFILE_DEFINITION = ("3D minus independent-column absorption of a host layer per km of its thickness, as a fraction "
+                      "of the incident flux on the horizontal")
 
 #: Provenance keys copied from the model card.
 _CARD_PROVENANCE = ("archive_fingerprint", "pairs_file", "pairs_sha256", "recipe_file", "recipe_text",
@@ -76,8 +81,11 @@ def build_document(trained, report_dir=None):
         The estimator cannot be exported, or the report has no rows of this model.
     """
     card = trained.card
-    kind, arrays = flatten(trained.estimator)
-    if kind != trained.kind:
+    profile = trained.kind == "profile"
+    # A profile model is evaluated by its boosted ensemble on (column, layer) rows.
+    estimator = trained.estimator.boosted_ if profile else trained.estimator
+    kind, arrays = flatten(estimator)
+    if kind != trained.kind and not profile:
         raise ValidationError(f"model {trained.name!r}: model.json says kind {trained.kind!r}; the estimator is {kind}")
     try:
         recipe = FeatureRecipe.from_dict(card["feature_recipe"])
@@ -95,7 +103,7 @@ def build_document(trained, report_dir=None):
     provenance.update(model_format_version=card["format_version"],
                       estimator_sha256=file_sha256(estimator_path) if estimator_path.is_file() else None,
                       exported_with=f"surrogate3d {__version__}")
-    cv = card.get("cross_validation", {})
+    cv = card.get("cross_validation") or {}
     # The chosen values of the searched parameters; fixed ones are in the hyperparameters.
     grid = cv.get("grid") or {}
     chosen = {k: v for k, v in (cv.get("best_params") or {}).items() if len(grid.get(k, [None, None])) > 1}
@@ -110,14 +118,20 @@ def build_document(trained, report_dir=None):
         "feature_recipe": recipe.to_dict(),
         "targets": {"names": list(card["targets"]), "units": "1", "definition": TARGET_DEFINITION},
         kind: arrays,
-        GATE_FIELD: clear_sky_gate(trained.estimator),
+        GATE_FIELD: clear_sky_gate(estimator),
         "provenance": provenance,
-        "skill": None if report_dir is None else skill_table(report_dir, trained.name),
+        "skill": None if report_dir is None else (profile_skill_table if profile else skill_table)(report_dir,
+                                                                                                  trained.name),
     }
-    envelope = training_envelope(trained.estimator)
+    if profile:
+        document["features"]["names"] = names + list(LAYER_FEATURES)
+        document["features"]["units"] += [units for units, _ in LAYER_FEATURES.values()]
+        document["targets"] = {"names": [PROFILE_TARGET], "units": "km-1", "definition": PROFILE_DEFINITION}
+        document[PROFILE_FIELD] = {"layer_features": list(LAYER_FEATURES), "target_units": "km-1"}
+    envelope = training_envelope(estimator)
     if envelope is not None:
         document[ENVELOPE_FIELD] = envelope
-    transforms = target_transforms(trained.estimator)
+    transforms = target_transforms(estimator)
     if transforms is not None:
         document[TRANSFORM_FIELD] = transforms
     check_document(document, f"model {trained.name!r}")
@@ -177,6 +191,25 @@ def skill_table(report_dir, model_name):
     text = {header.index(k) for k in _SKILL_KEYS}
     return {"source": str(path), "sha256": file_sha256(path), "columns": [header[i] for i in keep],
             "rows": [[row[i] if i in text else _cell(row[i]) for i in keep] for row in rows]}
+
+
+def profile_skill_table(report_dir, model_name):
+    """The profile model's skill table: the rows of a report's ``profile_metrics.csv`` (as :func:`skill_table`)."""
+    path = Path(report_dir) / "profile_metrics.csv"
+    if not path.is_file():
+        raise FormatError(f"report directory {str(report_dir)!r} has no profile_metrics.csv; is it written by "
+                          "'surrogate3d evaluate' for a model directory with a profile model?")
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            table = list(csv.reader(handle))
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise FormatError(f"cannot read {str(path)!r}: {exc}") from None
+    if not table or "predictor" not in table[0]:
+        raise FormatError(f"{str(path)!r} lacks the column 'predictor' of a skill table")
+    header = table[0]
+    text = {header.index(k) for k in ("quantity", "units", "predictor") if k in header}
+    return {"source": str(path), "sha256": file_sha256(path), "columns": header,
+            "rows": [[row[i] if i in text else _cell(row[i]) for i in range(len(header))] for row in table[1:]]}
 
 
 def coefficient_json_text(document):

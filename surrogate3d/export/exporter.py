@@ -15,7 +15,9 @@ from ..core.validation import check_integer
 from ..errors import FormatError, ValidationError
 from ..learn.model_directory import load_training_run
 from ..learn.pairs_table import feature_matrix, select_scenes
+from ..learn.profile_model import layer_fields
 from ..runtime.model import CorrectionModel
+from ..runtime.profile import layer_rows
 from .coefficients import build_document, write_coefficients
 from .fortran import fortran_files, fortran_name, read_features_file, write_fortran
 
@@ -37,7 +39,9 @@ def sample_features(trained, pairs_path=None, n_columns=64):
     Returns
     -------
     ndarray (n, n_feature)
-        ``n = min(n_columns, number of training samples)``.
+        ``n = min(n_columns, number of training samples)``; for a profile model, rows of
+        (column, layer) features (:func:`surrogate3d.runtime.profile.layer_rows`) evenly
+        spread over the training columns' layers.
     """
     check_integer("n_columns (sample columns)", n_columns, 1, error=ValidationError)
     path = Path(pairs_path or trained.card["provenance"].get("pairs_file") or "")
@@ -50,6 +54,9 @@ def sample_features(trained, pairs_path=None, n_columns=64):
     if training.sizes["sample"] == 0:
         raise ValidationError(f"pairs file {str(path)!r} holds none of the training scenes of model {trained.name!r}")
     X = feature_matrix(training, trained.card["feature_names"], needed_by=f"model {trained.name!r}")
+    if trained.kind == "profile":
+        X, valid = layer_rows(X, layer_fields(training))
+        X = X[valid]
     rows = np.unique(np.linspace(0, X.shape[0] - 1, min(n_columns, X.shape[0])).round().astype(int))
     return X[rows]
 
@@ -141,7 +148,8 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
     model_dir : str or Path
     out_dir : str or Path
     model : str, optional
-        Export only this model; default every model of the run.
+        Export only this model; default every model of the run (with the profile model,
+        if the run has one).
     report_dir, fortran, pairs_path, n_sample_columns
         As for :func:`export_model`.
 
@@ -156,8 +164,11 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
         ``model`` is not a model of the run (the known ones are named).
     """
     run = load_training_run(model_dir)
-    if model is not None and model not in run.models:
-        raise ValidationError(f"model directory {str(model_dir)!r} has no model {model!r}; it has {sorted(run.models)}")
-    names = [model] if model is not None else list(run.models)
-    return {name: export_model(run.models[name], out_dir, report_dir, fortran, pairs_path, n_sample_columns)
+    models = dict(run.models)
+    if run.profile is not None:
+        models[run.profile.name] = run.profile
+    if model is not None and model not in models:
+        raise ValidationError(f"model directory {str(model_dir)!r} has no model {model!r}; it has {sorted(models)}")
+    names = [model] if model is not None else list(models)
+    return {name: export_model(models[name], out_dir, report_dir, fortran, pairs_path, n_sample_columns)
             for name in names}

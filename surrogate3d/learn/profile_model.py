@@ -9,8 +9,8 @@ predicts on another.  The learned density is scaled by the independent-column ab
 of the column, so an atmosphere that does not absorb gets no correction (as for the
 column absorption target, :mod:`surrogate3d.learn.transforms`), and a layer whose
 independent-column absorption is zero (no absorber) gets none.
-:func:`match_column_integral` then makes the profile sum to the column's absorption
-correction, so energy is conserved.
+:func:`~surrogate3d.runtime.profile.match_column_integral` then makes the profile sum to
+the column's absorption correction, so energy is conserved.
 """
 
 import numpy as np
@@ -18,20 +18,11 @@ from sklearn.base import BaseEstimator
 
 from ..core.validation import check_number
 from ..errors import ParameterError, ValidationError
-from ..pairs.layer_features import LAYER_FEATURES, layer_features
+from ..pairs.layer_features import LAYER_FEATURES
+from ..runtime.profile import LAYER_FIELDS, density_to_layers, layer_rows
 from .models import BoostedCorrection
 from .pairs_table import feature_matrix
 
-#: The layer fields a profile model reads (dict keys, arrays (n_column, n_layer)), and the
-#: pair-table variables holding them.
-LAYER_FIELDS = {
-    "bottom": "host_layer_bottom",
-    "top": "host_layer_top",
-    "optical_depth": "layer_optical_depth",
-    "cloud_fraction": "layer_cloud_fraction",
-    "independent_column_absorption": "independent_column_layer_absorption",
-    "slant_optical_depth_above": "layer_slant_optical_depth_above",
-}
 #: The scale of the learned density: the column's independent-column absorption.
 SCALE_FEATURE = "independent_column_column_absorption"
 
@@ -51,64 +42,6 @@ def layer_fields(pairs):
     fields = {key: np.asarray(pairs[var].values, dtype=np.float64) for key, var in LAYER_FIELDS.items()}
     fields["cos_solar_zenith"] = np.cos(np.radians(np.asarray(pairs["solar_zenith_angle"].values, dtype=np.float64)))
     return fields
-
-
-def layer_rows(X, fields):
-    """One row per (column, layer): the column's features then the layer's.
-
-    Returns
-    -------
-    rows : ndarray (n_column * n_layer, n_feature + len(LAYER_FEATURES))
-    valid : ndarray of bool (n_column * n_layer,)
-        Rows of layers the column has (not padding).
-    """
-    X = np.asarray(X, dtype=np.float64)
-    local = layer_features(fields["bottom"], fields["top"], fields["optical_depth"], fields["cloud_fraction"],
-                           fields["independent_column_absorption"], fields["cos_solar_zenith"],
-                           fields["slant_optical_depth_above"])
-    n, n_layer = local.shape[:2]
-    if X.shape[0] != n:
-        raise ParameterError(f"X has {X.shape[0]} columns but the layer fields {n}")
-    rows = np.concatenate([np.broadcast_to(X[:, None, :], (n, n_layer, X.shape[1])), local], axis=2)
-    rows = rows.reshape(n * n_layer, -1)
-    return rows, np.isfinite(local[..., 0]).reshape(-1)
-
-
-def match_column_integral(profile, column_correction, independent_column_absorption):
-    """Make every column's profile sum to its column absorption correction.
-
-    The residual ``column_correction - sum(profile)`` is shared among the layers in
-    proportion to their independent-column absorption (where light is absorbed, a
-    change of the light's path changes the absorption), or equally among the column's
-    layers where it absorbs nothing.
-
-    Parameters
-    ----------
-    profile : array_like (n_column, n_layer)
-        Absorption correction of each layer [1]; NaN for padding layers.
-    column_correction : array_like (n_column,)
-        Absorption correction of each column [1].
-    independent_column_absorption : array_like (n_column, n_layer)
-        Independent-column absorption of each layer [1].
-
-    Returns
-    -------
-    ndarray (n_column, n_layer)
-
-    Examples
-    --------
-    >>> match_column_integral([[0.01, 0.0]], [0.03], [[1.0, 3.0]]).tolist()
-    [[0.015, 0.015]]
-    """
-    profile = np.asarray(profile, dtype=np.float64)
-    present = np.isfinite(profile)
-    weight = np.where(present, np.clip(np.nan_to_num(np.asarray(independent_column_absorption, dtype=np.float64)),
-                                       0.0, None), 0.0)
-    total = weight.sum(axis=1, keepdims=True)
-    equal = present / np.maximum(present.sum(axis=1, keepdims=True), 1)
-    share = np.where(total > 0.0, weight / np.where(total > 0.0, total, 1.0), equal)
-    residual = np.asarray(column_correction, dtype=np.float64) - np.nansum(profile, axis=1)
-    return profile + residual[:, None] * share
 
 
 class ProfileCorrection(BaseEstimator):
@@ -208,10 +141,7 @@ class ProfileCorrection(BaseEstimator):
         rows, valid = layer_rows(X, fields)
         density = np.full(rows.shape[0], np.nan)
         density[valid] = self.boosted_.predict(rows[valid])
-        thickness = np.asarray(fields["top"], dtype=np.float64) - np.asarray(fields["bottom"], dtype=np.float64)
-        # A layer without absorber absorbs nothing in 3D either.
-        absorbs = np.asarray(fields["independent_column_absorption"], dtype=np.float64) > 0.0
-        return np.where(absorbs | np.isnan(thickness), density.reshape(thickness.shape), 0.0) * thickness / 1000.0
+        return density_to_layers(density, fields)
 
     def fit_pairs(self, pairs, features):
         """Fit on a pair table's columns (features ``features``) and per-layer variables."""

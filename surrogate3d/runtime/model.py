@@ -15,10 +15,12 @@ import numpy as np
 from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
 from ..pairs.recipe import FeatureRecipe
-from ..core.coefficient_format import check_document, clear_sky_gate, document_from_json, target_transforms
+from ..core.coefficient_format import (PROFILE_FIELD, check_document, clear_sky_gate, document_from_json,
+                                       target_transforms)
 from ..core.data_model import TARGETS
 from ..core.validation import fail, first_nonfinite
 from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
+from .profile import density_to_layers, layer_rows, match_column_integral
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
 
@@ -51,6 +53,12 @@ class CorrectionModel:
     target_transforms : list of dict or None
         Per target, how the model's output becomes the correction (None: it is the
         correction; :func:`surrogate3d.core.coefficient_format.target_transforms`).
+    layer_feature_names : list of str
+        A heating-rate (profile) model's features of one host layer, the last of
+        :attr:`feature_names` (empty for a column model); :meth:`predict_profile` makes
+        them from the host's layer fields.
+    column_feature_names : list of str
+        The features of the host column (all of :attr:`feature_names` for a column model).
     document : dict
         Everything the file holds (provenance, skill table, hyperparameters ...).
 
@@ -70,13 +78,16 @@ class CorrectionModel:
         self.feature_names = list(document["features"]["names"])
         self.feature_units = list(document["features"]["units"])
         self.target_names = list(document["targets"]["names"])
+        self.layer_feature_names = list((document.get(PROFILE_FIELD) or {}).get("layer_features", []))
+        n_column = len(self.feature_names) - len(self.layer_feature_names)
+        self.column_feature_names = self.feature_names[:n_column]
         unknown = [t for t in self.target_names if t not in TARGETS]
-        if unknown:
+        if unknown and not self.layer_feature_names:
             raise FormatError(f"coefficient file {source!r}: targets.names has unknown targets {unknown}; "
                               f"known: {list(TARGETS)}")
-        self.recipe = _recipe(document, self.feature_names, self.feature_units, source)
+        self.recipe = _recipe(document, self.column_feature_names, self.feature_units[:n_column], source)
         producer = _column_producers(self.recipe)
-        self._needed = [f for f in self.recipe.features if any(producer[c] == f for c in self.feature_names)]
+        self._needed = [f for f in self.recipe.features if any(producer[c] == f for c in self.column_feature_names)]
         self._gate, self.clear_sky_tolerance = clear_sky_gate(document)
         self.clear_sky_features = [self.feature_names[k] for k in self._gate]
         self.envelope = training_envelope(document)
@@ -248,9 +259,59 @@ class CorrectionModel:
         recipe = FeatureRecipe(self._needed, self.recipe.parameters, name=self.recipe.name)
         columns = recipe.column_names()
         matrix = compute_features(host_fields, recipe)
-        if columns == self.feature_names:
+        if columns == self.column_feature_names:
             return matrix
-        return matrix[:, [columns.index(name) for name in self.feature_names]]
+        return matrix[:, [columns.index(name) for name in self.column_feature_names]]
+
+    def predict_profile(self, column_features, layer_fields, column_correction=None, check_envelope=True):
+        """The heating-rate model's absorption correction of every host layer.
+
+        Parameters
+        ----------
+        column_features : array_like (n_column, len(column_feature_names))
+            The columns' features (:meth:`host_features`).
+        layer_fields : dict of array_like
+            Per column and layer (n_column, n_layer), bottom first: ``bottom`` and ``top``
+            [m], ``optical_depth`` [1], ``cloud_fraction`` [1],
+            ``independent_column_absorption`` [1] (the host's own, fraction of the
+            incident flux), ``slant_optical_depth_above`` [1]
+            (:func:`surrogate3d.pairs.profiles.slant_optical_depth_above`); and
+            ``cos_solar_zenith`` (n_column,).  NaN edges mark layers a column does not have.
+        column_correction : array_like (n_column,), optional
+            The column absorption correction [1] (a column model's, after the consistency
+            step) that the layers are made to sum to
+            (:func:`~surrogate3d.runtime.profile.match_column_integral`); default none.
+        check_envelope : bool
+            As for :meth:`predict`.
+
+        Returns
+        -------
+        ndarray (n_column, n_layer)
+            Absorption correction of every layer [1], fractions of the incident flux on
+            the horizontal; NaN in padding layers.
+
+        Raises
+        ------
+        surrogate3d.errors.ValidationError
+            A column model, or features of the wrong shape.
+        surrogate3d.errors.ParameterError
+            Missing or malformed layer fields (named).
+        """
+        if not self.layer_feature_names:
+            raise ValidationError(f"model {self.name!r} is a column model; predict_profile needs a heating-rate "
+                                  "(profile) model")
+        X = np.asarray(column_features, dtype=np.float64)
+        if X.ndim != 2 or X.shape[1] != len(self.column_feature_names):
+            raise ValidationError(f"column_features must have shape (n_column, {len(self.column_feature_names)}) "
+                                  f"for model {self.name!r}; got {X.shape}")
+        rows, valid = layer_rows(X, layer_fields)
+        density = np.full(rows.shape[0], np.nan)
+        if valid.any():
+            density[valid] = self.predict(rows[valid], check_envelope)[:, 0]
+        layers = density_to_layers(density, layer_fields)
+        if column_correction is None:
+            return layers
+        return match_column_integral(layers, column_correction, layer_fields["independent_column_absorption"])
 
     def predict_host(self, host_fields, check_envelope=True):
         """Predicted corrections of every column of a host grid.

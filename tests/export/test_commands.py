@@ -31,12 +31,12 @@ def test_export_all_models_quietly(built, tmp_path, capsys):
     args = _parse(["export", str(built["model_dir"]), "--out", str(tmp_path), "--quiet"])
     args.func(args)
     assert capsys.readouterr().out == ""
-    assert {p.name for p in tmp_path.iterdir()} == {f"{m}.coefficients.{s}" for m in ("ridge", "boosted")
+    assert {p.name for p in tmp_path.iterdir()} == {f"{m}.coefficients.{s}" for m in ("ridge", "boosted", "profile")
                                                     for s in ("nc", "json")}
 
 
 @pytest.mark.parametrize("extra, error, message", [
-    (["--model", "forest"], ValidationError, r"has no model 'forest'; it has \['boosted', 'ridge'\]"),
+    (["--model", "forest"], ValidationError, r"has no model 'forest'; it has \['boosted', 'profile', 'ridge'\]"),
     (["--sample-columns", "0"], ParameterError, "--sample-columns must be an integer >= 1; got 0"),
     (["--report", "/nonexistent/report"], FormatError, "has no metrics.csv"),
     (["--fortran", "--pairs", "/nonexistent/pairs.nc"], FormatError, "pairs file '/nonexistent/pairs.nc'"),

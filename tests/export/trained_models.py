@@ -13,7 +13,7 @@ import numpy as np
 from surrogate3d.archive import write_dataset
 from surrogate3d.export import export_training_run
 from surrogate3d.learn import train_models
-from synthetic_pairs import make_synthetic_pairs
+from synthetic_pairs import add_synthetic_layers, make_synthetic_pairs
 from surrogate3d.pairs.features import FEATURES, column_name
 from surrogate3d.pairs.recipe import FeatureRecipe
 
@@ -80,6 +80,11 @@ max_iter = 25
 max_leaf_nodes = 9
 min_samples_leaf = 5
 clear_sky_features = ["cloud_fraction", "neighbour_mean_cloud_fraction_1000m"]
+
+[profile]
+max_iter = 25
+max_leaf_nodes = 9
+min_samples_leaf = 5
 """
 
 #: The clear-sky gate of both test models: no cloud in the column nor in its 3 x 3 neighbourhood.
@@ -92,7 +97,7 @@ METRICS_HEADER = ("evaluation_set,breakdown,group,group_order,group_value,predic
 
 def registry_pairs():
     """The synthetic pair table with registry feature names and a valid feature recipe."""
-    pairs = make_synthetic_pairs(seeds_per_regime=3, seed=5)
+    pairs = add_synthetic_layers(make_synthetic_pairs(seeds_per_regime=3, seed=5))
     names = _registry_names([str(f) for f in pairs["feature"].values])
     recipe = recipe_for(names)
     units = dict(zip(recipe.column_names(), recipe.column_units()))
@@ -111,6 +116,9 @@ def write_metrics(report_dir, predictors=("ridge", "boosted", "no correction")):
             rows.append(f"held-out scenes,all,all,0,,{predictor},surface_downward_flux,{units},120,0.01,0.008,"
                         f"-0.001,0.9,0.7,0.03,0.002,0.99,0.009,0.72")
     (report_dir / "metrics.csv").write_text("\n".join(rows) + "\n")
+    (report_dir / "profile_metrics.csv").write_text(
+        "quantity,units,predictor,rmse,rmse_reduction,n\nheating rate,K day-1,no correction,1.2,0.0,100\n"
+        "heating rate,K day-1,profile,0.6,0.5,100\n")
     return report_dir
 
 

@@ -4,7 +4,8 @@ import numpy as np
 import pytest
 
 from surrogate3d.errors import ParameterError, ValidationError
-from surrogate3d.learn.profile_model import ProfileCorrection, match_column_integral
+from surrogate3d.learn.profile_model import ProfileCorrection
+from surrogate3d.runtime.profile import match_column_integral
 
 
 def fields(n=80, seed=0, split=1):
