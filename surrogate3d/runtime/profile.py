@@ -113,7 +113,7 @@ def match_column_integral(profile, column_correction, independent_column_absorpt
 
     Examples
     --------
-    >>> match_column_integral([[0.01, 0.0]], [0.03], [[1.0, 3.0]]).tolist()
+    >>> match_column_integral([[0.01, 0.0]], [0.03], [[1.0, 3.0]]).round(15).tolist()
     [[0.015, 0.015]]
     """
     profile = np.asarray(profile, dtype=np.float64)
