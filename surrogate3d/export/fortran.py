@@ -40,7 +40,9 @@ import numpy as np
 from .._atomic import write_text_atomic
 from ..errors import FormatError, ValidationError
 from ..core.config import NEAR_CONSTANT
-from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, clear_sky_gate, target_transforms
+from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD, clear_sky_gate,
+                                       target_transforms)
+from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -473,7 +475,7 @@ def _module_header(prefix, document):
 ! units of {prefix}_feature_names (see the coefficient file and docs/host-model-guide.md).
 module {prefix}_correction
   use, intrinsic :: iso_fortran_env, only: real64, int32
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan{_profile_imports(document)}
   implicit none
   private
 
@@ -485,6 +487,151 @@ module {prefix}_correction
   character(len=*), parameter :: format_name = '{FORMAT_NAME}'
   character(len=*), parameter :: format_major = '{FORMAT_VERSION.split('.')[0]}'
   integer, parameter :: line_length = 1024
+"""
+
+
+#: Fortran expression of every layer feature (docs/features.md, "Layer features"), in the
+#: variables of :func:`_profile_procedure`; the same operations in the same order as
+#: :func:`surrogate3d.pairs.layer_features.layer_features`.
+_LAYER_FEATURE_CODE = {
+    "layer_height_above_cloud_top": "middle - cloud_top",
+    "layer_height_above_cloud_base": "middle - cloud_base",
+    "layer_cloud_fraction": "cloud_fraction(k, i)",
+    "layer_log_extinction": f"log(max(1000.0_real64 * optical_depth(k, i) / thickness, {EXTINCTION_FLOOR!r}_real64))",
+    "layer_log_optical_depth_above": "log(1.0_real64 + above(k))",
+    "layer_direct_beam_transmittance": "vertical",
+    "layer_slant_direct_beam_transmittance": "slanted",
+    "layer_slant_minus_vertical_transmittance": "slanted - vertical",
+    "independent_column_layer_absorption_density": "1000.0_real64 * absorption(k, i) / thickness",
+    "independent_column_column_absorption": "column_absorption",
+}
+
+
+def _profile_layer_features(document):
+    """The layer features of a profile document (empty for a column model), checked against the generator's."""
+    layer = list((document.get(PROFILE_FIELD) or {}).get("layer_features", []))
+    if layer and layer != list(_LAYER_FEATURE_CODE):
+        raise ValidationError(f"profile model {document['model']['name']!r} has layer features {layer}; this "
+                              f"version generates Fortran for {list(_LAYER_FEATURE_CODE)}")
+    return layer
+
+
+def _profile_imports(document):
+    return ", ieee_value, ieee_quiet_nan" if _profile_layer_features(document) else ""
+
+
+def _profile_declarations(prefix, document):
+    layer = _profile_layer_features(document)
+    if not layer:
+        return ""
+    return f"""  !> A heating-rate (profile) model: the last n_layer_features features describe one host layer.
+  integer, parameter, public :: {prefix}_n_layer_features = {len(layer)}
+  integer, parameter, public :: {prefix}_n_column_features = {prefix}_n_features - {prefix}_n_layer_features
+  public :: {prefix}_correct_profiles
+"""
+
+
+def _profile_procedure(prefix, document):
+    """The profile procedure of a heating-rate model (empty for a column model)."""
+    if not _profile_layer_features(document):
+        return ""
+    rows = "\n".join(f"        ! {name}\n        row({prefix}_n_column_features + {j + 1}) = {code}"
+                      for j, (name, code) in enumerate(_LAYER_FEATURE_CODE.items()))
+    return f"""
+  !> Heating-rate model: the absorption correction [1] (fraction of the incident flux on the horizontal)
+  !> of every layer of many host columns, layers bottom first; a layer whose bottom or top is NaN is one the
+  !> column does not have (its correction is NaN). Inputs per column: its features (the column features of
+  !> {prefix}_feature_names) and cos(solar zenith); per layer: its edges [m], optical depth, cloud fraction,
+  !> independent-column absorption [1] and the optical depth along the path from its middle toward the sun
+  !> (docs/features.md, "Layer features"). The model gives the change per km of the layer; a layer that
+  !> absorbs nothing in the independent column gets none. With column_correction, the residual to it is
+  !> shared among the layers in proportion to their independent-column absorption (equally where the
+  !> column absorbs nothing), so the layers sum to it: energy is conserved.
+  pure subroutine {prefix}_correct_profiles(model, n_columns, n_layers, column_features, cos_zenith, bottom, top, &
+                                        optical_depth, cloud_fraction, absorption, slant, profile, column_correction)
+    type({prefix}_coefficients), intent(in) :: model
+    integer, intent(in) :: n_columns, n_layers
+    real(real64), intent(in) :: column_features({prefix}_n_column_features, n_columns), cos_zenith(n_columns)
+    real(real64), intent(in), dimension(n_layers, n_columns) :: bottom, top, optical_depth, cloud_fraction, &
+                                                                absorption, slant
+    real(real64), intent(out) :: profile(n_layers, n_columns)
+    real(real64), intent(in), optional :: column_correction(n_columns)
+    real(real64) :: row({prefix}_n_features), density(1), above(n_layers)
+    real(real64) :: tau, acc, thickness, middle, cloud_top, cloud_base, column_absorption, vertical, slanted
+    real(real64) :: weight_sum, profile_sum, residual, share
+    integer :: i, k, n_present
+    logical :: any_cloud
+    do i = 1, n_columns
+      any_cloud = .false.
+      cloud_top = -huge(1.0_real64)
+      cloud_base = huge(1.0_real64)
+      column_absorption = 0.0_real64
+      do k = 1, n_layers
+        ! NaN compares false: a padding layer has no cloud.
+        if (cloud_fraction(k, i) > 0.0_real64) then
+          any_cloud = .true.
+          cloud_top = max(cloud_top, top(k, i))
+          cloud_base = min(cloud_base, bottom(k, i))
+        end if
+        column_absorption = column_absorption + zero_nan(absorption(k, i))
+      end do
+      if (.not. any_cloud) then
+        cloud_top = 0.0_real64
+        cloud_base = 0.0_real64
+      end if
+      ! Optical depth from the domain top down to each layer's middle.
+      acc = 0.0_real64
+      do k = n_layers, 1, -1
+        tau = zero_nan(optical_depth(k, i))
+        acc = acc + tau
+        above(k) = acc - 0.5_real64 * tau
+      end do
+      row(1:{prefix}_n_column_features) = column_features(:, i)
+      do k = 1, n_layers
+        thickness = top(k, i) - bottom(k, i)
+        if (.not. ieee_is_finite(thickness)) then
+          profile(k, i) = ieee_value(0.0_real64, ieee_quiet_nan)
+          cycle
+        end if
+        middle = 0.5_real64 * (bottom(k, i) + top(k, i))
+        vertical = exp(-above(k) / cos_zenith(i))
+        slanted = exp(-zero_nan(slant(k, i)))
+{rows}
+        call {prefix}_correct_column(model, row, density)
+        if (absorption(k, i) > 0.0_real64) then
+          profile(k, i) = density(1) * thickness / 1000.0_real64
+        else
+          profile(k, i) = 0.0_real64
+        end if
+      end do
+      if (.not. present(column_correction)) cycle
+      weight_sum = 0.0_real64
+      profile_sum = 0.0_real64
+      n_present = 0
+      do k = 1, n_layers
+        if (ieee_is_nan(profile(k, i))) cycle
+        n_present = n_present + 1
+        weight_sum = weight_sum + max(zero_nan(absorption(k, i)), 0.0_real64)
+        profile_sum = profile_sum + profile(k, i)
+      end do
+      residual = column_correction(i) - profile_sum
+      do k = 1, n_layers
+        if (ieee_is_nan(profile(k, i))) cycle
+        if (weight_sum > 0.0_real64) then
+          share = max(zero_nan(absorption(k, i)), 0.0_real64) / weight_sum
+        else
+          share = 1.0_real64 / real(max(n_present, 1), real64)
+        end if
+        profile(k, i) = profile(k, i) + residual * share
+      end do
+    end do
+  end subroutine {prefix}_correct_profiles
+
+  !> x, or 0 where x is NaN.
+  elemental real(real64) function zero_nan(x)
+    real(real64), intent(in) :: x
+    zero_nan = merge(0.0_real64, x, ieee_is_nan(x))
+  end function zero_nan
 """
 
 
@@ -504,9 +651,9 @@ def _ridge_module(prefix, document):
   end type {prefix}_coefficients
 
   public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns, {prefix}_check_column
-
+{_profile_declarations(prefix, document)}
 contains
-
+{_profile_procedure(prefix, document)}
   !> Corrections of one column: intercept + coef . [z, z_i z_j] with z = (x - mean) / scale,
   !> and 0 where the clear-sky gate holds.
   pure subroutine {prefix}_correct_column(model, features, corrections)
@@ -624,9 +771,9 @@ def _boosted_module(prefix, document):
   end type {prefix}_coefficients
 
   public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns, {prefix}_check_column
-
+{_profile_declarations(prefix, document)}
 contains
-
+{_profile_procedure(prefix, document)}
   !> Corrections of one column: baseline plus, tree by tree, the value of the leaf reached by
   !> going left where x(feature) <= threshold (NaN: where missing_go_left) and right elsewhere;
   !> 0 where the clear-sky gate holds.

@@ -36,6 +36,16 @@ LAYER_FEATURES = {
 EXTINCTION_FLOOR = 1e-4
 
 
+def layer_sum(values):
+    """Sum over the layer axis (last) of (n_column, n_layer) values, NaN as 0, layer by layer
+    from the bottom: the order the generated Fortran adds them in, so both agree to round-off."""
+    values = np.nan_to_num(np.asarray(values, dtype=np.float64))
+    total = np.zeros(values.shape[0])
+    for k in range(values.shape[1]):
+        total += values[:, k]
+    return total
+
+
 def _check_shapes(arrays, n_column):
     shape = None
     for name, value in arrays.items():
@@ -106,12 +116,12 @@ def layer_features(bottom, top, optical_depth, cloud_fraction, independent_colum
         middle - cloud_base[:, None],
         arrays["cloud_fraction"],
         np.log(np.maximum(1000.0 * arrays["optical_depth"] / thickness, EXTINCTION_FLOOR)),
-        np.log1p(above),
+        np.log(1.0 + above),
         vertical,
         slanted,
         slanted - vertical,
         1000.0 * absorbed / thickness,
-        np.broadcast_to(np.nansum(absorbed, axis=1)[:, None], absorbed.shape),
+        np.broadcast_to(layer_sum(absorbed)[:, None], absorbed.shape),
     ], axis=-1)
     out[~np.isfinite(thickness)] = np.nan
     return out

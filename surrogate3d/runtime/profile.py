@@ -13,7 +13,7 @@ exported model (:meth:`surrogate3d.runtime.CorrectionModel.predict_profile`) sha
 import numpy as np
 
 from ..errors import ParameterError
-from ..pairs.layer_features import layer_features
+from ..pairs.layer_features import layer_features, layer_sum
 
 #: The layer fields a profile model reads (arrays (n_column, n_layer)) and the pair-table
 #: variables holding them; with them ``cos_solar_zenith`` (n_column,).
@@ -120,8 +120,8 @@ def match_column_integral(profile, column_correction, independent_column_absorpt
     present = np.isfinite(profile)
     weight = np.where(present, np.clip(np.nan_to_num(np.asarray(independent_column_absorption, dtype=np.float64)),
                                        0.0, None), 0.0)
-    total = weight.sum(axis=1, keepdims=True)
+    total = layer_sum(weight)[:, None]
     equal = present / np.maximum(present.sum(axis=1, keepdims=True), 1)
     share = np.where(total > 0.0, weight / np.where(total > 0.0, total, 1.0), equal)
-    residual = np.asarray(column_correction, dtype=np.float64) - np.nansum(profile, axis=1)
+    residual = np.asarray(column_correction, dtype=np.float64) - layer_sum(profile)
     return profile + residual[:, None] * share
