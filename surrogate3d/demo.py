@@ -281,6 +281,15 @@ def summarize(paths, page):
                      for t in targets]
             lines.append(f"| {predictor} | " + " | ".join(cells) + " |")
         lines.append("")
+    profile = paths.report / "profile_metrics.csv"
+    if profile.is_file():
+        rows = pd.read_csv(profile)
+        lines += ["## heating-rate profiles (held-out scenes, cloudy columns, pooled over layers)", "",
+                  "share of the independent column's RMSE removed (RMSE in brackets)", "",
+                  "| predictor | quantity | units | skill (RMSE) |", "|---|---|---|---|"]
+        lines += [f"| {r.predictor} | {r.quantity} | {r.units} | {r.rmse_reduction:.2f} ({r.rmse:.3g}) |"
+                  for r in rows.itertuples()]
+        lines.append("")
     lines += ["## outputs", "",
               f"- archive (scenes and benchmark results): `{paths.archive}`",
               f"- training pairs: `{paths.pairs}`",

@@ -356,7 +356,7 @@ def skill_bars(table, targets, predictors, title):
 
 
 def profile_panels(mean_profiles, by_height, model_name):
-    """Domain-mean absorption-correction profiles of sample scenes, and RMSE by height.
+    """Domain-mean absorption profiles of sample scenes (3D, independent column, corrected), and RMSE by height.
 
     Parameters
     ----------
@@ -373,11 +373,13 @@ def profile_panels(mean_profiles, by_height, model_name):
             # Per km of height, so that layers of different thickness compare.
             per_km = 1000.0 / profile["thickness"]
             height = profile["height"] / 1000.0
-            ax.axvline(0.0, color="0.7", lw=0.8)
-            ax.plot(profile["target"] * per_km, height, color="black", lw=1.6, label="3D minus independent column")
-            ax.plot(profile["predicted"] * per_km, height, color=_MODEL_COLOURS[2], lw=1.4, ls="--", label=model_name)
+            ax.plot(profile["full_3d"] * per_km, height, color="black", lw=1.8, label="3D")
+            ax.plot(profile["independent_column"] * per_km, height, color=_FIXED_COLOURS[NO_CORRECTION], lw=1.4,
+                    label="independent column")
+            ax.plot(profile["corrected"] * per_km, height, color=_MODEL_COLOURS[2], lw=1.4, ls="--",
+                    label=f"corrected ({model_name})")
             ax.set_title(f"{profile['scene']}, sun {profile['solar_zenith_angle']:g} deg", fontsize=8)
-            ax.set_xlabel("absorption change [W m-2 km-1]")
+            ax.set_xlabel("absorbed flux [W m-2 km-1]")
             ax.set_ylabel("height [km]")
         ax = axes[-1]
         part = by_height[by_height["units"] == "K day-1"]
@@ -391,6 +393,6 @@ def profile_panels(mean_profiles, by_height, model_name):
         ax.set_yticks(y, labels, fontsize=7)
         ax.set_xlabel(f"RMSE [{part['units'].iloc[0]}]" if len(part) else "RMSE")
         ax.set_title("cloudy columns, by height above cloud top", fontsize=8)
-        axes[0].legend(loc="lower left", fontsize=7)
+        axes[0].legend(loc="upper right", fontsize=7)
         ax.legend(loc="lower right", fontsize=7)
         return fig

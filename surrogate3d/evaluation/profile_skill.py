@@ -43,8 +43,10 @@ class ProfileEvaluation:
         ``rmse_reduction`` of the column absorption from the profile's own sum, and
         ``largest_mismatch``: the largest ``|sum(profile) - column correction|`` after matching.
     mean_profiles : list of dict
-        Domain-mean profiles of sample scenes (``scene``, ``solar_zenith_angle``,
-        ``height`` [m], ``target``, ``predicted`` [W m-2 per layer] and ``thickness`` [m]).
+        Domain-mean profiles of sample scenes: ``scene``, ``solar_zenith_angle``, ``height``
+        and ``thickness`` [m] of the layers, and the absorbed flux of every layer [W m-2]
+        in 3D (``full_3d``), in the independent column and corrected by the model
+        (``independent_column`` plus the predicted change, ``corrected``).
     """
 
     model: str
@@ -137,8 +139,9 @@ def _mean_profiles(pairs, predicted, count):
         pick = ((keys["scene"] == scene) & (keys["zenith"] == zenith)).values
         bottom = pairs["host_layer_bottom"].values[pick][0]
         top = pairs["host_layer_top"].values[pick][0]
+        ica = np.mean(pairs["independent_column_layer_absorption"].values[pick] * incident[pick], axis=0)
         out.append({"scene": str(scene), "solar_zenith_angle": float(zenith), "height": 0.5 * (bottom + top),
-                    "thickness": top - bottom,
-                    "target": np.mean(pairs["layer_absorption_target"].values[pick] * incident[pick], axis=0),
-                    "predicted": np.mean(predicted[pick] * incident[pick], axis=0)})
+                    "thickness": top - bottom, "independent_column": ica,
+                    "full_3d": np.mean(pairs["full_3d_layer_absorption"].values[pick] * incident[pick], axis=0),
+                    "corrected": ica + np.mean(predicted[pick] * incident[pick], axis=0)})
     return out

@@ -320,8 +320,9 @@ def _profile_section(profile, out_dir):
             "independent column's RMSE removed. The column integral of the profile model's own layers removes "
             f"{profile.column_integral['rmse_reduction']:.2f} of the RMSE of the column absorption; after matching, "
             f"the layers sum to the column correction within {profile.column_integral['largest_mismatch']:.1e}.</p>")
-    caption = ("Domain-mean profiles of the absorption change of the cloudiest held-out scenes (3D minus independent "
-               "column and predicted), and the RMSE by height above the cloud top in the cloudy columns.")
+    caption = ("Domain-mean absorption profiles of the cloudiest held-out scenes: 3D, independent column, and the "
+               "independent column corrected by the profile model; and the RMSE by height above the cloud top in the "
+               "cloudy columns.")
     return (text + to_html(profile.table) + _image(png, caption) + "<h3>By height above the cloud top</h3>"
             + to_html(profile.by_height))
 
