@@ -122,9 +122,22 @@ def host_edge_pressure(z_edge, air_pressure, host_layer_edges):
     """Air pressure [Pa] at host layer edges: ``log p`` linear in height between benchmark edges.
 
     Above the scene's top the pressure keeps the scale height of its highest layer.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        ``air_pressure`` not finite, not positive or not decreasing with height (the edge named).
     """
     z = np.asarray(z_edge, dtype=np.float64)
-    log_p = np.log(np.asarray(air_pressure, dtype=np.float64))
+    pressure = np.asarray(air_pressure, dtype=np.float64)
+    check_finite("air_pressure", pressure)
+    falls = np.diff(pressure) < 0.0
+    if np.any(pressure <= 0.0) or not falls.all():
+        i = int(np.argmax(pressure <= 0.0)) if np.any(pressure <= 0.0) else int(np.argmax(~falls)) + 1
+        raise ParameterError(f"air_pressure must be positive and decrease with height along the layer edges; at "
+                             f"edge {i} ({z[i]:g} m) it is {float(pressure[i])!r}"
+                             + (f" after {float(pressure[i - 1])!r}" if i else ""))
+    log_p = np.log(pressure)
     h = np.asarray(host_layer_edges, dtype=np.float64)
     inside = np.interp(h, z, log_p)
     slope = (log_p[-1] - log_p[-2]) / (z[-1] - z[-2])

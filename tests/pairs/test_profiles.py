@@ -79,6 +79,9 @@ def test_overlap_shares_and_edge_pressure():
     host = np.array([0.0, 200.0, 1000.0, 2500.0])
     np.testing.assert_allclose(host_edge_pressure(z, p, host), SURFACE_PRESSURE * np.exp(-host / SCALE_HEIGHT),
                                rtol=1e-12)
+    with pytest.raises(ParameterError, match=r"air_pressure must be positive and decrease with height .* at edge 2 "
+                                             r"\(1500 m\) it is 95000.0 after 90000.0"):
+        host_edge_pressure(z, [100000.0, 90000.0, 95000.0], host)
 
 
 def test_slant_path_from_a_layer_middle():
