@@ -16,7 +16,7 @@ import pandas as pd
 
 from ..learn.profile_model import layer_fields
 from ..runtime.profile import match_column_integral
-from ..pairs.layer_features import layer_features
+from ..pairs.layer_features import layer_features, layer_sum
 from .predictions import NO_CORRECTION
 from ..solvers.heating import DRY_AIR_SPECIFIC_HEAT, SECONDS_PER_DAY, STANDARD_GRAVITY
 
@@ -40,8 +40,11 @@ class ProfileEvaluation:
     by_height : pandas.DataFrame
         ``quantity, height_above_cloud_top, n, rmse_no_correction, rmse_model, rmse_reduction``.
     column_integral : dict
-        ``rmse_reduction`` of the column absorption from the profile's own sum, and
-        ``largest_mismatch``: the largest ``|sum(profile) - column correction|`` after matching.
+        Shares of the column absorption's RMSE removed in the cloudy columns by the
+        profile's own sum (``rmse_reduction``) and by the column correction it is matched
+        to (``rmse_reduction_matched``; ``..._all_columns_w_m2``: in every column, errors
+        in W m-2, the report's headline skill), and ``largest_mismatch``: the largest
+        ``|sum(profile) - column correction|`` after matching.
     mean_profiles : list of dict
         Domain-mean profiles of sample scenes: ``scene``, ``solar_zenith_angle``, ``height``
         and ``thickness`` [m] of the layers, and the absorbed flux of every layer [W m-2]
@@ -66,7 +69,7 @@ def _reduction(error, truth, mask):
     return 1.0 - _rmse(error, mask) / base if base > 0 else float("nan")
 
 
-def score_profiles(name, estimator, pairs, column_correction=None, column_model=None, sample_scenes=3):
+def score_profiles(name, estimator, pairs, column_correction=None, column_model=None, sample_scenes=3, layers=None):
     """Score a profile model on a pair table (normally the held-out scenes).
 
     Parameters
@@ -78,17 +81,19 @@ def score_profiles(name, estimator, pairs, column_correction=None, column_model=
     column_correction : array_like (n_sample,), optional
         The column absorption correction to match; default the profile's own sum.
     column_model : str, optional
-        Name of the model that gave ``column_correction``.
+        Name of the column model whose consistency step gave ``column_correction``.
     sample_scenes : int
         Scenes (the cloudiest) whose domain-mean profiles are kept for a figure.
+    layers : ndarray (n_sample, n_layer), optional
+        The profile model's layer corrections of ``pairs``, if already predicted.
 
     Returns
     -------
     ProfileEvaluation
     """
     fields = layer_fields(pairs)
-    raw = estimator.predict_pairs(pairs)
-    own_sum = np.nansum(raw, axis=1)
+    raw = estimator.predict_pairs(pairs) if layers is None else layers
+    own_sum = layer_sum(raw)
     column = own_sum if column_correction is None else np.asarray(column_correction, dtype=np.float64)
     predicted = match_column_integral(raw, column, fields["independent_column_absorption"])
     target = pairs["layer_absorption_target"].values
@@ -121,8 +126,13 @@ def score_profiles(name, estimator, pairs, column_correction=None, column_model=
                               "rmse_reduction": _reduction(guess - truth, truth, inside)})
     column_target = pairs["target_value"].sel(target="atmosphere_absorption").values
     clouds = cloudy.any(axis=1)
+    watts = pairs["incident_flux"].values
     integral = {"rmse_reduction": _reduction(own_sum - column_target, column_target, clouds),
-                "largest_mismatch": float(np.max(np.abs(np.nansum(predicted, axis=1) - column)))}
+                "rmse_reduction_matched": _reduction(column - column_target, column_target, clouds),
+                "rmse_reduction_matched_all_columns_w_m2": _reduction((column - column_target) * watts,
+                                                                      column_target * watts,
+                                                                      np.ones(column.size, dtype=bool)),
+                "largest_mismatch": float(np.max(np.abs(layer_sum(predicted) - column)))}
     return ProfileEvaluation(model=name, column_model=column_model, table=pd.DataFrame(rows),
                              by_height=pd.DataFrame(by_height), column_integral=integral,
                              mean_profiles=_mean_profiles(pairs, predicted, sample_scenes))

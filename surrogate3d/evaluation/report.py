@@ -16,11 +16,13 @@ from ..errors import ValidationError
 from ..learn.model_directory import file_sha256, load_training_run
 from ..core.pairs_table import read_pairs_table
 from ..learn.pairs_table import scene_table, select_scenes
+from ..pairs.layer_features import layer_sum
 from .breakdown import FAMILY_BREAKDOWNS
 from .evaluation_sets import Evaluation, EvaluationSet, score_set, set_tables
 from .family_transfer import LEFT_OUT, leave_one_family_out
 from .importance import permutation_importance
 from .learning_curve import learning_curve
+from .predictions import consistent_correction, raw_correction
 from .profile_skill import score_profiles
 from .report_writer import write_report
 from .scored_model import ScoredModel
@@ -141,7 +143,7 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
             notes.append("The learning curve is left out: the pairs file lacks some training scenes.")
     steps.update()
     steps.close()
-    profile = _profile_skill(run, held, sets[0], targets, notes)
+    profile = _profile_skill(run, held, targets, notes)
 
     intro = (f"<p>Models of <code>{html.escape(str(model_dir))}</code> (recipe "
              f"<code>{html.escape(str(record.get('recipe_name')))}</code>) scored on {len(split['held_out_scenes'])} "
@@ -167,18 +169,28 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
                       record=record, profile=profile)
 
 
-def _profile_skill(run, held, held_set, targets, notes):
-    """The profile model's held-out skill, its layers matched to a column model's absorption
-    correction (the first boosted one, else the first) when that is a target; None without
-    a profile model."""
+def _profile_skill(run, held, targets, notes):
+    """The profile model's held-out skill, or None without a profile model.
+
+    As a host would use it: the column model's corrections (the first boosted model, else
+    the first) with the absorption replaced by the profile's own column sum go through the
+    consistency step, and the layers are matched to the absorption that comes out (when
+    the absorption is a target); otherwise the layers keep their own sum.
+    """
     if run.profile is None:
         return None
     if "layer_absorption_target" not in held:
         notes.append("The profile model is not scored: the pairs table has no per-layer variables.")
         return None
-    column, column_model = None, None
-    if "atmosphere_absorption" in targets:
-        kinds = {name: model.kind for name, model in run.models.items()}
-        column_model = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
-        column = held_set.predictions[column_model][:, targets.index("atmosphere_absorption")]
-    return score_profiles(run.profile.name, run.profile.estimator, held, column, column_model)
+    estimator = run.profile.estimator
+    layers = estimator.predict_pairs(held)
+    if "atmosphere_absorption" not in targets:
+        return score_profiles(run.profile.name, estimator, held, layers=layers)
+    kinds = {name: model.kind for name, model in run.models.items()}
+    name = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
+    model = ScoredModel.from_estimator(name, kinds[name], run.models[name].estimator)
+    correction, gated, _ = raw_correction(model, held, targets)
+    m = targets.index("atmosphere_absorption")
+    correction[:, m] = layer_sum(layers)
+    column = consistent_correction(held, targets, correction, gated).correction[:, m]
+    return score_profiles(run.profile.name, estimator, held, column, name, layers=layers)
