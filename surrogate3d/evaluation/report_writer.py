@@ -312,14 +312,21 @@ def _family_section(evaluation, eval_set, images):
 def _profile_section(profile, out_dir):
     png = figures.to_png(figures.profile_panels(profile.mean_profiles, profile.by_height, profile.model))
     write_bytes_atomic(out_dir / "figures" / "profiles.png", png)
-    matched = (f"matched to the absorption correction of {html.escape(profile.column_model)} (the consistency step)"
-               if profile.column_model else "summing to their own column total")
+    integral = profile.column_integral
+    if profile.column_model:
+        matched = (f"matched to the column absorption that the consistency step gives when the profile's column sum "
+                   f"replaces the absorption correction of {html.escape(profile.column_model)} (as a host uses them)"
+                   f"; that column absorption removes {integral['rmse_reduction_matched']:.2f} of the independent "
+                   f"column's RMSE in the cloudy columns, {integral['rmse_reduction_matched_all_columns_w_m2']:.2f} "
+                   "in all columns (errors in W m-2)")
+    else:
+        matched = "summing to their own column total"
     text = (f"<p>The profile model {html.escape(profile.model)} predicts the 3D change of the absorption of every "
             f"host layer; its layers are {matched}. Scored in the cloudy host columns of the held-out scenes, pooled "
             "over their layers, against no correction (the independent column): RMSE and the share of the "
-            "independent column's RMSE removed. The column integral of the profile model's own layers removes "
-            f"{profile.column_integral['rmse_reduction']:.2f} of the RMSE of the column absorption; after matching, "
-            f"the layers sum to the column correction within {profile.column_integral['largest_mismatch']:.1e}.</p>")
+            "independent column's RMSE removed. The profile's own column sum removes "
+            f"{integral['rmse_reduction']:.2f} of the RMSE of the column absorption in the cloudy columns; after "
+            f"matching, the layers sum to the column correction within {integral['largest_mismatch']:.1e}.</p>")
     caption = ("Domain-mean absorption profiles of the cloudiest held-out scenes: 3D, independent column, and the "
                "independent column corrected by the profile model; and the RMSE by height above the cloud top in the "
                "cloudy columns.")
