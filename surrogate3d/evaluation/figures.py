@@ -356,7 +356,11 @@ def skill_bars(table, targets, predictors, title):
 
 
 def profile_panels(mean_profiles, by_height, model_name):
-    """Domain-mean absorption profiles of sample scenes (3D, independent column, corrected), and RMSE by height.
+    """Domain-mean absorption profiles of sample scenes and their 3D change, and RMSE by height.
+
+    Top row: 3D, independent-column and corrected absorption per km of every layer; bottom
+    row: 3D minus independent column, and the model's change; right: RMSE in the cloudy
+    columns by height above the cloud top (heating rate, and layer absorption in W m-2).
 
     Parameters
     ----------
@@ -367,32 +371,44 @@ def profile_panels(mean_profiles, by_height, model_name):
     model_name : str
     """
     with matplotlib.rc_context(STYLE):
-        fig = _figure(3.0 * (len(mean_profiles) + 1), 3.9)
-        axes = _panels(fig, len(mean_profiles) + 1, len(mean_profiles) + 1)
-        for ax, profile in zip(axes, mean_profiles):
+        n = len(mean_profiles)
+        fig = _figure(2.7 * n + 4.2, 7.2)
+        grid = fig.add_gridspec(2, n + 1, width_ratios=[1.0] * n + [1.5])
+        model_colour, ica_colour = _MODEL_COLOURS[2], _FIXED_COLOURS[NO_CORRECTION]
+        for j, profile in enumerate(mean_profiles):
             # Per km of height, so that layers of different thickness compare.
             per_km = 1000.0 / profile["thickness"]
             height = profile["height"] / 1000.0
-            ax.plot(profile["full_3d"] * per_km, height, color="black", lw=1.8, label="3D")
-            ax.plot(profile["independent_column"] * per_km, height, color=_FIXED_COLOURS[NO_CORRECTION], lw=1.4,
-                    label="independent column")
-            ax.plot(profile["corrected"] * per_km, height, color=_MODEL_COLOURS[2], lw=1.4, ls="--",
-                    label=f"corrected ({model_name})")
-            ax.set_title(f"{profile['scene']}, sun {profile['solar_zenith_angle']:g} deg", fontsize=8)
-            ax.set_xlabel("absorbed flux [W m-2 km-1]")
-            ax.set_ylabel("height [km]")
-        ax = axes[-1]
-        part = by_height[by_height["units"] == "K day-1"]
-        if part.empty:
-            part = by_height[by_height["units"] == "1"]
-        labels = list(part["height_above_cloud_top"])
-        y = np.arange(len(labels))
-        ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=_FIXED_COLOURS[NO_CORRECTION],
-                label=NO_CORRECTION)
-        ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=_MODEL_COLOURS[2], label=model_name)
-        ax.set_yticks(y, labels, fontsize=7)
-        ax.set_xlabel(f"RMSE [{part['units'].iloc[0]}]" if len(part) else "RMSE")
-        ax.set_title("cloudy columns, by height above cloud top", fontsize=8)
-        axes[0].legend(loc="upper right", fontsize=7)
-        ax.legend(loc="lower right", fontsize=7)
+            top, bottom = fig.add_subplot(grid[0, j]), fig.add_subplot(grid[1, j])
+            top.plot(profile["full_3d"] * per_km, height, color="black", lw=1.8, label="3D")
+            top.plot(profile["independent_column"] * per_km, height, color=ica_colour, lw=1.4,
+                     label="independent column")
+            top.plot(profile["corrected"] * per_km, height, color=model_colour, lw=1.4, ls="--",
+                     label=f"corrected ({model_name})")
+            top.set_title(f"{profile['scene']}, sun {profile['solar_zenith_angle']:g} deg", fontsize=8)
+            top.set_xlabel("absorbed [W m-2 km-1]")
+            bottom.axvline(0.0, color="0.75", lw=0.8)
+            bottom.plot((profile["full_3d"] - profile["independent_column"]) * per_km, height, color="black", lw=1.8,
+                        label="3D minus independent column")
+            bottom.plot((profile["corrected"] - profile["independent_column"]) * per_km, height, color=model_colour,
+                        lw=1.4, ls="--", label=model_name)
+            bottom.set_xlabel("3D change [W m-2 km-1]")
+            for ax in (top, bottom):
+                ax.set_ylabel("height [km]" if j == 0 else "")
+            if j == 0:
+                top.legend(loc="upper right", fontsize=7)
+                bottom.legend(loc="upper right", fontsize=7)
+        for row, units in enumerate(("K day-1", "W m-2")):
+            ax = fig.add_subplot(grid[row, n])
+            part = by_height[by_height["units"] == units]
+            labels = list(part["height_above_cloud_top"])
+            y = np.arange(len(labels))
+            ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=ica_colour, label=NO_CORRECTION)
+            ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=model_colour, label=model_name)
+            ax.set_yticks(y, labels, fontsize=7)
+            ax.set_xlabel(f"RMSE [{units}]")
+            ax.set_title(("heating rate" if row == 0 else "layer absorption") + ", cloudy columns", fontsize=8)
+            if row == 0:
+                ax.set_ylabel("height above cloud top")
+                ax.legend(loc="upper right", fontsize=7)
         return fig

@@ -83,7 +83,8 @@ def score_profiles(name, estimator, pairs, column_correction=None, column_model=
     column_model : str, optional
         Name of the column model whose consistency step gave ``column_correction``.
     sample_scenes : int
-        Scenes (the cloudiest) whose domain-mean profiles are kept for a figure.
+        Scenes (those of the largest domain-mean 3D change) whose domain-mean profiles
+        are kept for a figure.
     layers : ndarray (n_sample, n_layer), optional
         The profile model's layer corrections of ``pairs``, if already predicted.
 
@@ -139,13 +140,23 @@ def score_profiles(name, estimator, pairs, column_correction=None, column_model=
 
 
 def _mean_profiles(pairs, predicted, count):
-    """Domain-mean profiles (W m-2 per layer) of the ``count`` cloudiest scene and sun geometries."""
-    keys = pd.DataFrame({"scene": pairs["scene"].values, "zenith": pairs["solar_zenith_angle"].values,
-                         "cloud": pairs["cloud_fraction"].values})
-    cover = keys.groupby(["scene", "zenith"], sort=True)["cloud"].mean().sort_values(ascending=False)
+    """Domain-mean profiles (W m-2 per layer) of the ``count`` scenes (at one sun each) whose
+    domain-mean 3D change of the layer absorption is largest."""
     incident = pairs["incident_flux"].values[:, None]
+    change = pairs["layer_absorption_target"].values * incident
+    keys = pd.DataFrame({"scene": pairs["scene"].values, "zenith": pairs["solar_zenith_angle"].values})
+    size = {}
+    for (scene, zenith), rows in keys.groupby(["scene", "zenith"], sort=True).groups.items():
+        size[(scene, zenith)] = float(np.sqrt(np.nanmean(np.nanmean(change[np.asarray(rows)], axis=0) ** 2)))
+    chosen, seen = [], set()
+    for (scene, zenith), _ in sorted(size.items(), key=lambda item: -item[1]):
+        if scene not in seen:
+            chosen.append((scene, zenith))
+            seen.add(scene)
+        if len(chosen) == count:
+            break
     out = []
-    for scene, zenith in cover.index[:count]:
+    for scene, zenith in chosen:
         pick = ((keys["scene"] == scene) & (keys["zenith"] == zenith)).values
         bottom = pairs["host_layer_bottom"].values[pick][0]
         top = pairs["host_layer_top"].values[pick][0]
