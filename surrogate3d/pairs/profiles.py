@@ -78,7 +78,8 @@ def check_host_layer_edges(host_layer_edges, z_edge, name="host_layer_edges"):
     steps = np.diff(edges)
     if np.any(steps <= 0.0):
         i = int(np.argmax(steps <= 0.0)) + 1
-        raise ParameterError(f"{name} must increase strictly; at index {i} it is {edges[i]!r} after {edges[i - 1]!r}")
+        raise ParameterError(f"{name} must increase strictly; at index {i} it is {float(edges[i])!r} after "
+                             f"{float(edges[i - 1])!r}")
     tolerance = 1e-6 * max(1.0, float(z_edge[-1] - z_edge[0]))
     if abs(edges[0] - z_edge[0]) > tolerance:
         raise ParameterError(f"{name} must start at the scene's surface, {z_edge[0]:g} m; got {edges[0]!r}")

@@ -127,3 +127,15 @@ def test_results_without_cell_absorption(tmp_path):
     assert "host_layer" not in pairs.sizes and "layer_absorption_target" not in pairs
     with pytest.raises(FormatError, match="scene 'old'.*per-cell absorption"):
         build_pairs(tmp_path, [400.0], quiet=True, host_layer_edges=[0.0, 1000.0, 2000.0])
+
+
+def test_command_line_names_bad_host_layer_edges(archive, tmp_path, capsys):
+    from surrogate3d import cli
+
+    out = tmp_path / "pairs.nc"
+    status = cli.main(["pairs", str(archive), "--out", str(out), "--host-resolution", "400", "--quiet",
+                       "--host-layer-edges", "0", "800", "600", "2000"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert status != 0 and len(err) == 1, err
+    assert err[0].endswith("--host-layer-edges must increase strictly; at index 2 it is 600.0 after 800.0"), err
+    assert not out.exists()
