@@ -82,9 +82,9 @@ def check_host_layer_edges(host_layer_edges, z_edge, name="host_layer_edges"):
                              f"{float(edges[i - 1])!r}")
     tolerance = 1e-6 * max(1.0, float(z_edge[-1] - z_edge[0]))
     if abs(edges[0] - z_edge[0]) > tolerance:
-        raise ParameterError(f"{name} must start at the scene's surface, {z_edge[0]:g} m; got {edges[0]!r}")
+        raise ParameterError(f"{name} must start at the scene's surface, {z_edge[0]:g} m; got {float(edges[0])!r}")
     if edges[-1] < z_edge[-1] - tolerance:
-        raise ParameterError(f"{name} must reach the scene's top, {z_edge[-1]:g} m; its last edge is {edges[-1]!r}")
+        raise ParameterError(f"{name} must reach the scene's top, {z_edge[-1]:g} m; its last edge is {float(edges[-1])!r}")
     return edges
 
 
