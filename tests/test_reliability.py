@@ -409,7 +409,8 @@ def test_4_training_again_replaces_the_whole_model_directory(built, helpers, tmp
     assert not (models / "old_model").exists() and leftovers(models) == []
     assert run_cli("export", models, "--out", tmp_path / "export", "--quiet") == 0
     assert sorted(p.name for p in (tmp_path / "export").iterdir()) == [
-        "boosted.coefficients.json", "boosted.coefficients.nc", "ridge.coefficients.json", "ridge.coefficients.nc"]
+        "boosted.coefficients.json", "boosted.coefficients.nc", "profile.coefficients.json", "profile.coefficients.nc",
+        "ridge.coefficients.json", "ridge.coefficients.nc"]
 
 
 def test_4_staging_of_killed_runs_is_removed_and_live_staging_kept(tmp_path):
