@@ -20,6 +20,7 @@ from ..core.coefficient_format import (PROFILE_FIELD, check_document, clear_sky_
 from ..core.data_model import TARGETS
 from ..core.validation import fail, first_nonfinite
 from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
+from .halo import subdomain_features
 from .profile import density_to_layers, layer_rows, match_column_integral
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
@@ -236,20 +237,26 @@ class CorrectionModel:
                  ValidationError)
         return X
 
-    def host_features(self, host_fields):
+    def host_features(self, host_fields, halo=None):
         """The model's feature matrix computed from host-model fields with the stored recipe.
 
         Parameters
         ----------
         host_fields : dict of ndarray
             Host fields on a periodic ``(ny, nx)`` grid (see
-            :mod:`surrogate3d.pairs.features`); only those the model's features use are
-            needed.
+            :mod:`surrogate3d.pairs.features`), or on a sub-domain with a halo; only those
+            the model's features use are needed.
+        halo : int or (int, int), optional
+            The fields are those of a sub-domain with a halo this wide (columns, or
+            ``(hx, hy)``), at least what the features read
+            (:func:`surrogate3d.runtime.halo.halo_width`); the features are those of the
+            sub-domain's own columns, equal to the whole periodic domain's
+            (:func:`~surrogate3d.runtime.halo.subdomain_features`).  Default: periodic.
 
         Returns
         -------
         ndarray (ny * nx, n_feature)
-            Rows in row-major ``(iy, ix)`` order.
+            Rows in row-major ``(iy, ix)`` order (own columns only with a halo).
 
         Raises
         ------
@@ -258,7 +265,8 @@ class CorrectionModel:
         """
         recipe = FeatureRecipe(self._needed, self.recipe.parameters, name=self.recipe.name)
         columns = recipe.column_names()
-        matrix = compute_features(host_fields, recipe)
+        matrix = compute_features(host_fields, recipe) if halo is None else subdomain_features(host_fields, recipe,
+                                                                                               halo)
         if columns == self.column_feature_names:
             return matrix
         return matrix[:, [columns.index(name) for name in self.column_feature_names]]
@@ -313,7 +321,7 @@ class CorrectionModel:
             return layers
         return match_column_integral(layers, column_correction, layer_fields["independent_column_absorption"])
 
-    def predict_host(self, host_fields, check_envelope=True):
+    def predict_host(self, host_fields, check_envelope=True, halo=None):
         """Predicted corrections of every column of a host grid.
 
         Parameters
@@ -322,6 +330,8 @@ class CorrectionModel:
             See :meth:`host_features`.
         check_envelope : bool
             As for :meth:`predict`.
+        halo : int or (int, int), optional
+            As for :meth:`host_features`: the corrections of a sub-domain's own columns.
 
         Returns
         -------
@@ -329,7 +339,7 @@ class CorrectionModel:
             Corrections [1], rows in row-major ``(iy, ix)`` order, columns as
             :attr:`target_names`.
         """
-        return self.predict(self.host_features(host_fields), check_envelope)
+        return self.predict(self.host_features(host_fields, halo), check_envelope)
 
 
 def _column_producers(recipe):
