@@ -42,6 +42,7 @@ from ..errors import FormatError, ValidationError
 from ..core.config import NEAR_CONSTANT
 from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD, clear_sky_gate,
                                        target_transforms)
+from ..core.data_model import TARGETS
 from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES
 
 #: Numbers per line in the data files.
@@ -490,6 +491,113 @@ module {prefix}_correction
 """
 
 
+def _consistency_indices(document):
+    """1-based positions of the five column targets in the model's targets, or None without all five."""
+    names = list(document["targets"]["names"])
+    if not all(t in names for t in TARGETS):
+        return None
+    return {t: names.index(t) + 1 for t in TARGETS}
+
+
+def _consistency_declarations(prefix, document):
+    if _consistency_indices(document) is None:
+        return ""
+    return f"""\
+  public :: {prefix}_clear_sky_column, {prefix}_consistency_sums, {prefix}_balance_columns, {prefix}_make_consistent
+"""
+
+
+def _consistency_procedures(prefix, document):
+    """The consistency step of :func:`surrogate3d.learn.apply_correction` (clip, direct + diffuse = total,
+    energy balance per domain) for a model that predicts all five column targets."""
+    index = _consistency_indices(document)
+    if index is None:
+        return ""
+    total, direct, diffuse = (index[t] for t in TARGETS[:3])
+    toa, absorbed = index["toa_upward_flux"], index["atmosphere_absorption"]
+    clipped = ", ".join(str(index[t]) for t in TARGETS[1:])
+    return f"""
+  !> Whether the clear-sky gate holds for a column (its corrections are exactly 0 and stay so).
+  pure logical function {prefix}_clear_sky_column(model, features)
+    type({prefix}_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features({prefix}_n_features)
+    {prefix}_clear_sky_column = clear_sky(model, features)
+  end function {prefix}_clear_sky_column
+
+  !> Consistency step, first half, on the columns of one process: negative corrected fluxes clipped to
+  !> zero, the total surface correction made direct + diffuse; need and have receive the columns' shares of
+  !> the energy balance of their periodic domain (add them over the processes of the domain, e.g. with an
+  !> MPI all-reduce, before {prefix}_balance_columns). Fluxes and corrections are fractions of the incident
+  !> flux, targets in the order of {prefix}_target_names; gated marks the columns of the clear-sky gate.
+  pure subroutine {prefix}_consistency_sums(n_columns, ica, corrections, albedo, gated, need, have)
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: ica({prefix}_n_targets, n_columns), albedo(n_columns)
+    real(real64), intent(inout) :: corrections({prefix}_n_targets, n_columns)
+    logical, intent(in) :: gated(n_columns)
+    real(real64), intent(inout) :: need, have
+    integer, parameter :: clipped(4) = [{clipped}]
+    real(real64) :: flux({prefix}_n_targets), budget, corrected_total
+    integer :: i, k
+    do i = 1, n_columns
+      do k = 1, 4
+        if (ica(clipped(k), i) + corrections(clipped(k), i) < 0.0_real64) corrections(clipped(k), i) = -ica(clipped(k), i)
+      end do
+      corrected_total = ica({direct}, i) + corrections({direct}, i) + ica({diffuse}, i) + corrections({diffuse}, i)
+      corrections({total}, i) = merge(0.0_real64, corrected_total - ica({total}, i), gated(i))
+      if (gated(i)) cycle
+      flux = ica(:, i) + corrections(:, i)
+      budget = ica({toa}, i) + ica({absorbed}, i) + (1.0_real64 - albedo(i)) * ica({total}, i)
+      need = need + (budget - (1.0_real64 - albedo(i)) * flux({direct}))
+      have = have + (flux({toa}) + flux({absorbed}) + (1.0_real64 - albedo(i)) * flux({diffuse}))
+    end do
+  end subroutine {prefix}_consistency_sums
+
+  !> Consistency step, second half: with the domain's need and have, the sinks of scattered light (TOA
+  !> upward, absorption, surface diffuse) of every ungated column are scaled by one factor so that the
+  !> domain's energy budget closes (the direct beam kept), and the corrected fluxes returned.
+  pure subroutine {prefix}_balance_columns(n_columns, ica, corrections, gated, need, have, fluxes)
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: ica({prefix}_n_targets, n_columns), corrections({prefix}_n_targets, n_columns)
+    real(real64), intent(in) :: need, have
+    logical, intent(in) :: gated(n_columns)
+    real(real64), intent(out) :: fluxes({prefix}_n_targets, n_columns)
+    real(real64) :: factor, flux({prefix}_n_targets)
+    integer :: i
+    factor = 1.0_real64
+    if (have > 0.0_real64) factor = need / have
+    if (factor < 0.0_real64) factor = 0.0_real64
+    do i = 1, n_columns
+      if (gated(i)) then
+        fluxes(:, i) = ica(:, i)
+        cycle
+      end if
+      flux = ica(:, i) + corrections(:, i)
+      flux({toa}) = flux({toa}) * factor
+      flux({absorbed}) = flux({absorbed}) * factor
+      flux({diffuse}) = flux({diffuse}) * factor
+      flux({total}) = flux({direct}) + flux({diffuse})
+      ! As the numpy runtime: the correction (flux - ica) added to the independent column.
+      fluxes(:, i) = ica(:, i) + (flux - ica(:, i))
+    end do
+  end subroutine {prefix}_balance_columns
+
+  !> The consistency step on the whole periodic domain held by one process: corrected fluxes ready to use.
+  pure subroutine {prefix}_make_consistent(n_columns, ica, corrections, albedo, gated, fluxes)
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: ica({prefix}_n_targets, n_columns), corrections({prefix}_n_targets, n_columns)
+    real(real64), intent(in) :: albedo(n_columns)
+    logical, intent(in) :: gated(n_columns)
+    real(real64), intent(out) :: fluxes({prefix}_n_targets, n_columns)
+    real(real64) :: work({prefix}_n_targets, n_columns), need, have
+    work = corrections
+    need = 0.0_real64
+    have = 0.0_real64
+    call {prefix}_consistency_sums(n_columns, ica, work, albedo, gated, need, have)
+    call {prefix}_balance_columns(n_columns, ica, work, gated, need, have, fluxes)
+  end subroutine {prefix}_make_consistent
+"""
+
+
 #: Fortran expression of every layer feature (docs/features.md, "Layer features"), in the
 #: variables of :func:`_profile_procedure`; the same operations in the same order as
 #: :func:`surrogate3d.pairs.layer_features.layer_features`.
@@ -651,7 +759,7 @@ def _ridge_module(prefix, document):
   end type {prefix}_coefficients
 
   public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns, {prefix}_check_column
-{_profile_declarations(prefix, document)}
+{_consistency_declarations(prefix, document)}{_profile_declarations(prefix, document)}
 contains
 {_profile_procedure(prefix, document)}
   !> Corrections of one column: intercept + coef . [z, z_i z_j] with z = (x - mean) / scale,
@@ -681,7 +789,7 @@ contains
   end subroutine {prefix}_correct_column
 
 {_batched_procedure(prefix)}
-
+{_consistency_procedures(prefix, document)}
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine {prefix}_read_coefficients(path, model, status, message)
     character(len=*), intent(in) :: path
@@ -771,7 +879,7 @@ def _boosted_module(prefix, document):
   end type {prefix}_coefficients
 
   public :: {prefix}_read_coefficients, {prefix}_correct_column, {prefix}_correct_columns, {prefix}_check_column
-{_profile_declarations(prefix, document)}
+{_consistency_declarations(prefix, document)}{_profile_declarations(prefix, document)}
 contains
 {_profile_procedure(prefix, document)}
   !> Corrections of one column: baseline plus, tree by tree, the value of the leaf reached by
@@ -801,7 +909,7 @@ contains
   end subroutine {prefix}_correct_column
 
 {_batched_procedure(prefix)}
-
+{_consistency_procedures(prefix, document)}
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine {prefix}_read_coefficients(path, model, status, message)
     character(len=*), intent(in) :: path

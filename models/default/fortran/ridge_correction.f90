@@ -91,6 +91,7 @@ module ridge_correction
   end type ridge_coefficients
 
   public :: ridge_read_coefficients, ridge_correct_column, ridge_correct_columns, ridge_check_column
+  public :: ridge_clear_sky_column, ridge_consistency_sums, ridge_balance_columns, ridge_make_consistent
 
 contains
 
@@ -206,6 +207,85 @@ contains
     end do
     clear_sky = model%n_clear_sky > 0 .and. g > model%n_clear_sky
   end function clear_sky
+
+  !> Whether the clear-sky gate holds for a column (its corrections are exactly 0 and stay so).
+  pure logical function ridge_clear_sky_column(model, features)
+    type(ridge_coefficients), intent(in) :: model
+    real(real64), intent(in) :: features(ridge_n_features)
+    ridge_clear_sky_column = clear_sky(model, features)
+  end function ridge_clear_sky_column
+
+  !> Consistency step, first half, on the columns of one process: negative corrected fluxes clipped to
+  !> zero, the total surface correction made direct + diffuse; need and have receive the columns' shares of
+  !> the energy balance of their periodic domain (add them over the processes of the domain, e.g. with an
+  !> MPI all-reduce, before ridge_balance_columns). Fluxes and corrections are fractions of the incident
+  !> flux, targets in the order of ridge_target_names; gated marks the columns of the clear-sky gate.
+  pure subroutine ridge_consistency_sums(n_columns, ica, corrections, albedo, gated, need, have)
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: ica(ridge_n_targets, n_columns), albedo(n_columns)
+    real(real64), intent(inout) :: corrections(ridge_n_targets, n_columns)
+    logical, intent(in) :: gated(n_columns)
+    real(real64), intent(inout) :: need, have
+    integer, parameter :: clipped(4) = [2, 3, 4, 5]
+    real(real64) :: flux(ridge_n_targets), budget, corrected_total
+    integer :: i, k
+    do i = 1, n_columns
+      do k = 1, 4
+        if (ica(clipped(k), i) + corrections(clipped(k), i) < 0.0_real64) corrections(clipped(k), i) = -ica(clipped(k), i)
+      end do
+      corrected_total = ica(2, i) + corrections(2, i) + ica(3, i) + corrections(3, i)
+      corrections(1, i) = merge(0.0_real64, corrected_total - ica(1, i), gated(i))
+      if (gated(i)) cycle
+      flux = ica(:, i) + corrections(:, i)
+      budget = ica(4, i) + ica(5, i) + (1.0_real64 - albedo(i)) * ica(1, i)
+      need = need + (budget - (1.0_real64 - albedo(i)) * flux(2))
+      have = have + (flux(4) + flux(5) + (1.0_real64 - albedo(i)) * flux(3))
+    end do
+  end subroutine ridge_consistency_sums
+
+  !> Consistency step, second half: with the domain's need and have, the sinks of scattered light (TOA
+  !> upward, absorption, surface diffuse) of every ungated column are scaled by one factor so that the
+  !> domain's energy budget closes (the direct beam kept), and the corrected fluxes returned.
+  pure subroutine ridge_balance_columns(n_columns, ica, corrections, gated, need, have, fluxes)
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: ica(ridge_n_targets, n_columns), corrections(ridge_n_targets, n_columns)
+    real(real64), intent(in) :: need, have
+    logical, intent(in) :: gated(n_columns)
+    real(real64), intent(out) :: fluxes(ridge_n_targets, n_columns)
+    real(real64) :: factor, flux(ridge_n_targets)
+    integer :: i
+    factor = 1.0_real64
+    if (have > 0.0_real64) factor = need / have
+    if (factor < 0.0_real64) factor = 0.0_real64
+    do i = 1, n_columns
+      if (gated(i)) then
+        fluxes(:, i) = ica(:, i)
+        cycle
+      end if
+      flux = ica(:, i) + corrections(:, i)
+      flux(4) = flux(4) * factor
+      flux(5) = flux(5) * factor
+      flux(3) = flux(3) * factor
+      flux(1) = flux(2) + flux(3)
+      ! As the numpy runtime: the correction (flux - ica) added to the independent column.
+      fluxes(:, i) = ica(:, i) + (flux - ica(:, i))
+    end do
+  end subroutine ridge_balance_columns
+
+  !> The consistency step on the whole periodic domain held by one process: corrected fluxes ready to use.
+  pure subroutine ridge_make_consistent(n_columns, ica, corrections, albedo, gated, fluxes)
+    integer, intent(in) :: n_columns
+    real(real64), intent(in) :: ica(ridge_n_targets, n_columns), corrections(ridge_n_targets, n_columns)
+    real(real64), intent(in) :: albedo(n_columns)
+    logical, intent(in) :: gated(n_columns)
+    real(real64), intent(out) :: fluxes(ridge_n_targets, n_columns)
+    real(real64) :: work(ridge_n_targets, n_columns), need, have
+    work = corrections
+    need = 0.0_real64
+    have = 0.0_real64
+    call ridge_consistency_sums(n_columns, ica, work, albedo, gated, need, have)
+    call ridge_balance_columns(n_columns, ica, work, gated, need, have, fluxes)
+  end subroutine ridge_make_consistent
 
   !> Read the data file written by surrogate3d export; status 0 on success, else message says why.
   subroutine ridge_read_coefficients(path, model, status, message)
