@@ -158,9 +158,11 @@ def _has_absorption(result):
     return "absorption" in result and bool(np.all(np.isfinite(result["absorption"].values)))
 
 
-def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_baselines, smoothing_scale, layers):
+def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_baselines, smoothing_scale,
+           host_layer_edges):
     """Columns of the pair table for one scene, sun geometry and host resolution; with the
-    per-layer variables on the host layers ``layers[1]`` when ``layers[0]``."""
+    per-layer variables (on ``host_layer_edges``, default the scene's own layers) when both
+    results have per-cell absorption."""
     full, ica = results
     fy, fx = _factors(scene, name, resolution)
     fields = assemble_host_fields(scene, ica, resolution, recipe.parameters["host_fluxes"])
@@ -200,8 +202,11 @@ def _block(scene, name, zenith, azimuth, resolution, recipe, results, fine_basel
         "incident_flux": np.full(n, incident),
         "nonlocal_smoothing_scale": np.full(n, smoothing_scale),
     })
-    if layers[0]:
-        block.update(host_profiles(scene, full, ica, fy, fx, layers[1]))
+    if _has_absorption(full) and _has_absorption(ica):
+        block.update(host_profiles(scene, full, ica, fy, fx, host_layer_edges))
+    elif host_layer_edges is not None:
+        raise FormatError(f"scene {name!r}, solar zenith {zenith:g} deg: a result has no per-cell absorption, which "
+                          f"the per-layer variables (host_layer_edges) need")
     return block
 
 
@@ -276,9 +281,6 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
         raise FormatError(f"archive directory {str(archive_dir)!r} holds no scene files (*.nc)")
     digest = hashlib.sha256()
     blocks, skipped = [], []
-    # Per-layer variables: wanted unless a result lacks per-cell absorption (old archives,
-    # results from elsewhere), required when the host layers are given.
-    layers = [True, host_layer_edges]
     tilted = TiltedIndependentColumn()
     bar = tqdm(files, desc="pairs", unit="scene", disable=quiet, file=sys.stderr)
     for path in bar:
@@ -299,25 +301,24 @@ def build_pairs(archive_dir, host_resolutions, recipe=None, quiet=False, host_fl
         for zenith, azimuth in suns:
             full = select_result(scene, "full_3d", zenith, azimuth)
             ica = select_result(scene, "independent_column", zenith, azimuth)
-            if layers[0] and not (_has_absorption(full) and _has_absorption(ica)):
-                if host_layer_edges is not None:
-                    raise FormatError(f"scene {name!r}, solar zenith {zenith:g} deg: a result has no per-cell "
-                                      f"absorption, which the per-layer variables (host_layer_edges) need")
-                layers[0] = False
-                for block in blocks:
-                    for var in PROFILE_VARIABLES:
-                        block.pop(var, None)
-                if not quiet:
-                    tqdm.write(f"no per-layer variables: scene {name!r} lacks per-cell absorption", file=sys.stderr)
             fine = {tilted.variable: tilted.corrections(scene, zenith, azimuth),
                     nonlocal_.variable: nonlocal_.corrections(scene, zenith, azimuth, ica)}
             for resolution in resolutions:
                 blocks.append(_block(scene, name, zenith, azimuth, resolution, recipe, (full, ica), fine, smoothing,
-                                     layers))
+                                     host_layer_edges))
     bar.close()
     if not blocks:
         raise FormatError(f"archive directory {str(archive_dir)!r} has no scene and sun geometry with both full_3d "
                           f"and independent_column results; " + "; ".join(skipped))
+    # Per-layer variables only where every result has per-cell absorption (old archives and
+    # results from elsewhere may lack it).
+    lacking = [b["scene"][0] for b in blocks if "layer_absorption_target" not in b]
+    if lacking:
+        for block in blocks:
+            for var in PROFILE_VARIABLES:
+                block.pop(var, None)
+        if not quiet and len(lacking) < len(blocks):
+            print(f"no per-layer variables: scene {lacking[0]!r} lacks per-cell absorption", file=sys.stderr)
     return _assemble(blocks, recipe, digest.hexdigest(), skipped, resolutions)
 
 
