@@ -57,6 +57,8 @@ def load_scored_models(source):
     if path.is_file():
         document = read_coefficients(path)
         model = CorrectionModel.from_document(document, str(path))
+        if model.layer_feature_names:
+            _refuse_profile(path)
         provenance = {**document["provenance"], "coefficient_file": str(path), "format_version":
                       document["format_version"], "coefficient_sha256": file_sha256(path)}
         return {model.name: ScoredModel.from_runtime(model)}, {model.name: document["feature_recipe"]}, provenance
@@ -66,6 +68,8 @@ def load_scored_models(source):
         provenance = dict(run.record["provenance"], training_scenes=run.record["split"]["training_scenes"])
     elif (path / MODEL_CARD).is_file():
         one = load_model(path)
+        if one.kind == "profile":
+            _refuse_profile(path)
         trained = {one.name: one}
         provenance = dict(one.card["provenance"])
     else:
@@ -135,6 +139,11 @@ def _check_recipes(model, ours, theirs, label):
                 raise ValidationError(f"feature {name!r} of model {model.name!r} was computed with {parameter} = "
                                       f"{ours.parameters[parameter]!r} in training; {label}'s feature recipe uses "
                                       f"{theirs.parameters[parameter]!r}")
+
+
+def _refuse_profile(path):
+    raise ValidationError(f"{str(path)!r} is a heating-rate (profile) model; 'surrogate3d score' scores column "
+                          "corrections: 'surrogate3d evaluate MODEL_DIR PAIRS' scores the profile model of a run")
 
 
 def score(source, pairs_path, *, consistency=True, importance_repeats=3, seed=0, quiet=False):

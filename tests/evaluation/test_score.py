@@ -139,3 +139,12 @@ def test_missing_target_and_bad_source(built, tmp_path, capsys):
         score(built["export_dir"] / "boosted.coefficients.json", path, importance_repeats=0, quiet=True)
     assert cli.main(["score", str(tmp_path), str(built["pairs_file"]), "--out", str(tmp_path / "r"), "--quiet"]) == 1
     assert "neither a coefficient file" in _error_line(capsys)
+
+
+def test_a_profile_model_is_referred_to_evaluate(built, capsys, tmp_path):
+    # score scores column corrections; the heating-rate model is scored by evaluate.
+    for source in (built["export_dir"] / "profile.coefficients.json", built["model_dir"] / "profile"):
+        assert cli.main(["score", str(source), str(built["pairs_file"]), "--out", str(tmp_path / "report"),
+                         "--quiet"]) == 1
+        assert "is a heating-rate (profile) model" in _error_line(capsys)
+        assert not (tmp_path / "report").exists()
