@@ -11,10 +11,10 @@ The shipped default correction and its sample columns (paths in a checkout):
 >>> from surrogate3d.runtime import load_coefficients
 >>> model = load_coefficients("models/default/ridge.coefficients.json")
 >>> features = np.loadtxt("models/default/fortran/ridge_sample_features.txt", skiprows=1)
->>> model.predict(features).shape            # (n_column, n_feature) -> (n_column, n_target)
+>>> model.predict(features, check_envelope=False).shape   # (n_column, n_feature) -> (n_column, n_target)
 (64, 5)
->>> model.envelope_check(features).outside.shape   # columns unlike the training data (flagged, not refused)
-(64,)
+>>> int(model.envelope_check(features).n_outside)   # columns unlike the training data (flagged, not refused)
+1
 
 ``model.predict_host(host_fields)`` computes the features from host-model fields first.
 ``docs/host-model-guide.md`` shows both, and the Fortran module; ``docs/export-format.md``
