@@ -184,8 +184,6 @@ def load_model(path):
         raise FormatError(f"{str(estimator_path)!r} holds a {type(estimator).__name__}; model.json says "
                           f"{card['kind']} ({expected.__name__})")
     for attribute, key in (("feature_names_", "feature_names"), ("target_names_", "targets")):
-        if key == "targets" and card["kind"] == "profile":
-            continue
         if list(getattr(estimator, attribute, None) or []) != list(card[key]):
             raise FormatError(f"{str(estimator_path)!r}: {attribute} {getattr(estimator, attribute, None)} "
                               f"differs from {key} {card[key]} in model.json")

@@ -16,6 +16,7 @@ the column's absorption correction, so energy is conserved.
 import numpy as np
 from sklearn.base import BaseEstimator
 
+from ..core.coefficient_format import PROFILE_TARGET
 from ..core.validation import check_number
 from ..errors import ParameterError, ValidationError
 from ..pairs.layer_features import LAYER_FEATURES
@@ -75,6 +76,8 @@ class ProfileCorrection(BaseEstimator):
         The fitted ensemble on layer rows.
     feature_names_ : list of str
         Column features, in the order :meth:`predict` expects them.
+    target_names_ : list of str
+        ``["layer_absorption_density"]``: the absorption change per km of a layer.
 
     Examples
     --------
@@ -128,6 +131,7 @@ class ProfileCorrection(BaseEstimator):
             raise ValidationError("no layer with a finite target to fit the profile correction on")
         self.boosted_ = boosted.fit(rows[keep], density[keep], feature_names=names + list(LAYER_FEATURES))
         self.feature_names_ = names
+        self.target_names_ = [PROFILE_TARGET]
         self.n_features_in_ = len(names)
         return self
 

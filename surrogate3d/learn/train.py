@@ -97,7 +97,7 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
         profile = ProfileCorrection(**recipe.profile).fit_pairs(training, features)
         write_model(out_dir / PROFILE_MODEL, profile, dict(
             format_version=MODEL_FORMAT_VERSION, name=PROFILE_MODEL, kind="profile",
-            hyperparameters=profile.get_params(), targets=["layer_absorption_density"], feature_names=features,
+            hyperparameters=profile.get_params(), targets=profile.target_names_, feature_names=features,
             feature_recipe=shared["feature_recipe"], cross_validation=None,
             provenance={**provenance, "training_scenes": list(split.training_scenes),
                         "held_out_scenes": list(split.held_out_scenes), "excluded_regime": None}))

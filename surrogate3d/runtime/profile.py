@@ -26,9 +26,6 @@ LAYER_FIELDS = {
     "slant_optical_depth_above": "layer_slant_optical_depth_above",
 }
 
-#: Target of a profile model: the absorption change per km of a layer [km-1].
-PROFILE_TARGET = "layer_absorption_density"
-
 
 def check_layer_fields(fields, n_column=None):
     """The layer fields as float arrays, checked: every key present, one shape, edges increasing.
