@@ -10,6 +10,8 @@ compared on the same samples with no correction and the two published baselines.
 
 import html
 
+import numpy as np
+
 from tqdm import tqdm
 
 from ..errors import ValidationError
@@ -175,7 +177,8 @@ def _profile_skill(run, held, targets, notes):
     As a host would use it: the column model's corrections (the first boosted model, else
     the first) with the absorption replaced by the profile's own column sum go through the
     consistency step, and the layers are matched to the absorption that comes out (when
-    the absorption is a target); otherwise the layers keep their own sum.
+    the absorption is a target); otherwise the layers keep their own sum.  Where the
+    column model's clear-sky gate holds, the layers are zero too.
     """
     if run.profile is None:
         return None
@@ -190,6 +193,7 @@ def _profile_skill(run, held, targets, notes):
     name = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
     model = ScoredModel.from_estimator(name, kinds[name], run.models[name].estimator)
     correction, gated, _ = raw_correction(model, held, targets)
+    layers = np.where(gated[:, None] & np.isfinite(layers), 0.0, layers)
     m = targets.index("atmosphere_absorption")
     correction[:, m] = layer_sum(layers)
     column = consistent_correction(held, targets, correction, gated).correction[:, m]

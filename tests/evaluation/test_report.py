@@ -136,3 +136,37 @@ def test_profile_section(evaluation, report_dir):
     assert "Heating-rate profiles" in (report_dir / "report.html").read_text()
     for name in ("profile_metrics.csv", "profile_by_height.csv", "figures/profiles.png"):
         assert (report_dir / name).is_file()
+
+
+def test_profiles_are_zero_where_the_clear_sky_gate_holds(pairs_file, tmp_path):
+    # A gated column has no 3D correction (the consistency step refuses any), so its layers
+    # are zero too and the profile scoring goes through with the energy matched.
+    from surrogate3d.core.pairs_table import read_pairs_table
+    from surrogate3d.evaluation.report import _profile_skill
+    from surrogate3d.learn import load_training_run
+    from surrogate3d.learn.pairs_table import select_scenes
+    from surrogate3d.learn.train import train_models
+
+    recipe = """
+[split]
+held_out_scene_fraction = 0.25
+seed = 2
+
+[models.boosted]
+kind = "boosted"
+max_iter = 20
+min_samples_leaf = 10
+clear_sky_features = ["cloud_fraction", "neighbour_cloud_fraction"]
+
+[profile]
+max_iter = 20
+min_samples_leaf = 10
+"""
+    (tmp_path / "recipe.toml").write_text(recipe)
+    train_models(pairs_file, tmp_path / "recipe.toml", tmp_path / "run", quiet=True)
+    run = load_training_run(tmp_path / "run")
+    held = select_scenes(read_pairs_table(pairs_file), run.record["split"]["held_out_scenes"])
+    boosted = run.models["boosted"].estimator
+    assert boosted.clear_sky_mask(held["features"].sel(feature=boosted.feature_names_).values).any()
+    profile = _profile_skill(run, held, list(run.record["targets"]), [])
+    assert profile.column_integral["largest_mismatch"] < 1e-14
