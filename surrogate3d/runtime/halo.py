@@ -165,9 +165,13 @@ def subdomain_features(host_fields, recipe, halo):
     hx, hy = (halo, halo) if np.isscalar(halo) else tuple(halo)
     if not all(isinstance(h, (int, np.integer)) and not isinstance(h, bool) and h >= 0 for h in (hx, hy)):
         raise ParameterError(f"halo must be an integer >= 0 or a pair (hx, hy) of them; got {halo!r}")
-    plane = next((np.shape(v) for k, v in host_fields.items() if np.ndim(v) == 2), None)
+    missing = [k for k in ("z_edge", "dx", "dy", "solar_zenith_angle", "solar_beam_azimuth") if k not in host_fields]
+    if missing:
+        raise ValidationError(f"host fields lack {missing}, which the halo a feature reads depends on")
+    plane = next((np.shape(v) for v in host_fields.values() if np.ndim(v) == 2),
+                 next((np.shape(v)[1:] for v in host_fields.values() if np.ndim(v) == 3), None))
     if plane is None:
-        plane = np.shape(host_fields["layer_optical_depth"])[1:]
+        raise ValidationError("host fields hold no plane (ny, nx) nor layer field (nz, ny, nx)")
     if plane[0] <= 2 * hy or plane[1] <= 2 * hx:
         raise ParameterError(f"a halo of ({hx}, {hy}) columns leaves no own column in host fields of {plane[1]} x "
                              f"{plane[0]} columns (x, y)")

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from surrogate3d.errors import ValidationError
+from surrogate3d.errors import ParameterError, ValidationError
 from surrogate3d.pairs.features import FEATURES, compute_features
 from surrogate3d.pairs.recipe import FeatureRecipe
 from surrogate3d.runtime.halo import REACH, feature_reach, halo_width, subdomain_features
@@ -98,3 +98,13 @@ def test_runtime_corrections_of_sub_domains(built):
             part = model.predict_host(cut(fields, y0, y1, x0, x1, hx, hy), check_envelope=False, halo=(hx, hy))
             np.testing.assert_allclose(part.reshape(y1 - y0, x1 - x0, -1), whole[y0:y1, x0:x1], rtol=1e-10,
                                        atol=1e-12)
+
+
+def test_malformed_sub_domain_fields_are_named():
+    fields = cut(dict(periodic_fields(4), solar_zenith_angle=20.0, solar_beam_azimuth=0.0), 0, 6, 0, 6, 3, 3)
+    with pytest.raises(ValidationError, match="host fields lack \\['solar_beam_azimuth'\\]"):
+        subdomain_features({k: v for k, v in fields.items() if k != "solar_beam_azimuth"}, RECIPE, 3)
+    with pytest.raises(ParameterError, match="halo must be an integer >= 0"):
+        subdomain_features(fields, RECIPE, -1)
+    with pytest.raises(ParameterError, match="leaves no own column"):
+        subdomain_features(fields, RECIPE, 6)
