@@ -25,6 +25,7 @@ for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 
 import numpy as np  # noqa: E402
 
+from bench_runtime import best_rate  # noqa: E402
 from surrogate3d.core.coefficient_file import read_coefficients  # noqa: E402
 from surrogate3d.core.pairs_table import read_pairs  # noqa: E402
 from surrogate3d.export.fortran import write_fortran  # noqa: E402
@@ -76,15 +77,6 @@ end program profile_timing
 """
 
 
-def best_rate(func, n, repeat=3):
-    best = np.inf
-    for _ in range(repeat):
-        start = time.perf_counter()
-        func()
-        best = min(best, time.perf_counter() - start)
-    return n / best
-
-
 def fortran_rate(document, X, fields, work):
     gfortran = shutil.which("gfortran")
     if gfortran is None:
@@ -127,13 +119,13 @@ def main():
     column = np.zeros(n)
     figures = {"columns": int(n), "layers": int(nl), "load_average": os.getloadavg()[0]}
     figures["numpy_columns_per_second"] = best_rate(
-        lambda: model.predict_profile(X, fields, column, check_envelope=False), n)
+        lambda: model.predict_profile(X, fields, column, check_envelope=False), n)[0]
     with tempfile.TemporaryDirectory() as work:
         figures["fortran_columns_per_second"] = fortran_rate(document, X, fields, Path(work))
     tau = np.nan_to_num(fields["optical_depth"])
     mu0 = fields["cos_solar_zenith"][:, None]
     figures["delta_eddington_band_columns_per_second"] = best_rate(
-        lambda: delta_eddington(tau, 0.999, 0.85, mu0[:, 0], 0.2), n)
+        lambda: delta_eddington(tau, 0.999, 0.85, mu0[:, 0], 0.2), n)[0]
     for key, value in figures.items():
         print(f"{key}: {value:.4g}" if isinstance(value, float) else f"{key}: {value}")
     if args.json:

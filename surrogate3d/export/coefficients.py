@@ -147,6 +147,25 @@ def _cell(text):
     return float(f"{value:.{_SKILL_DIGITS}g}") if math.isfinite(value) else None
 
 
+def _report_table(report_dir, name, columns, written_for):
+    """``(path, header, rows)`` of a CSV table of a report, with the ``columns`` it must have."""
+    path = Path(report_dir) / name
+    if not path.is_file():
+        raise FormatError(f"report directory {str(report_dir)!r} has no {name}; is it written by "
+                          f"'surrogate3d evaluate'{written_for}?")
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            table = list(csv.reader(handle))
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise FormatError(f"cannot read {str(path)!r}: {exc}") from None
+    if not table or any(key not in table[0] for key in columns):
+        raise FormatError(f"{str(path)!r} lacks the columns {list(columns)} of a skill table")
+    header = table[0]
+    if any(len(row) != len(header) for row in table[1:]):
+        raise FormatError(f"{str(path)!r} has rows of another length than its header")
+    return path, header, table
+
+
 def skill_table(report_dir, model_name):
     """The rows of a report's ``metrics.csv`` that score ``model_name``, in the headline units (W m-2).
 
@@ -165,20 +184,7 @@ def skill_table(report_dir, model_name):
         ``source`` (file name), ``sha256``, ``columns`` and ``rows`` (lists of floats to
         6 significant digits, strings, or None for empty cells).
     """
-    path = Path(report_dir) / "metrics.csv"
-    if not path.is_file():
-        raise FormatError(f"report directory {str(report_dir)!r} has no metrics.csv; is it written by "
-                          "'surrogate3d evaluate'?")
-    try:
-        with open(path, newline="", encoding="utf-8") as handle:
-            table = list(csv.reader(handle))
-    except (OSError, UnicodeDecodeError, csv.Error) as exc:
-        raise FormatError(f"cannot read {str(path)!r}: {exc}") from None
-    if not table or any(key not in table[0] for key in _SKILL_KEYS):
-        raise FormatError(f"{str(path)!r} lacks the columns {list(_SKILL_KEYS)} of a skill table")
-    header = table[0]
-    if any(len(row) != len(header) for row in table[1:]):
-        raise FormatError(f"{str(path)!r} has rows of another length than its header")
+    path, header, table = _report_table(report_dir, "metrics.csv", _SKILL_KEYS, "")
     keep = [i for i, column in enumerate(header) if column not in _CONSTANT_COLUMNS]
     predictor = header.index("predictor")
     # One skill everywhere (the W m-2 errors); the fractions' rows stay in metrics.csv.
@@ -195,19 +201,10 @@ def skill_table(report_dir, model_name):
 
 def profile_skill_table(report_dir, model_name):
     """The profile model's skill table: the rows of a report's ``profile_metrics.csv`` (as :func:`skill_table`)."""
-    path = Path(report_dir) / "profile_metrics.csv"
-    if not path.is_file():
-        raise FormatError(f"report directory {str(report_dir)!r} has no profile_metrics.csv; is it written by "
-                          "'surrogate3d evaluate' for a model directory with a profile model?")
-    try:
-        with open(path, newline="", encoding="utf-8") as handle:
-            table = list(csv.reader(handle))
-    except (OSError, UnicodeDecodeError, csv.Error) as exc:
-        raise FormatError(f"cannot read {str(path)!r}: {exc}") from None
-    if not table or "predictor" not in table[0]:
-        raise FormatError(f"{str(path)!r} lacks the column 'predictor' of a skill table")
-    header = table[0]
-    text = {header.index(k) for k in ("quantity", "units", "predictor") if k in header}
+    labels = ("quantity", "units", "predictor")
+    path, header, table = _report_table(report_dir, "profile_metrics.csv", labels,
+                                        " for a model directory with a profile model")
+    text = {header.index(k) for k in labels}
     return {"source": str(path), "sha256": file_sha256(path), "columns": header,
             "rows": [[row[i] if i in text else _cell(row[i]) for i in range(len(header))] for row in table[1:]]}
 
