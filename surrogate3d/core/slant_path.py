@@ -36,6 +36,49 @@ def check_solar_zenith_angle(value, name="solar_zenith_angle", error=ParameterEr
     return check_number(name, value, 0.0, 90.0, high_open=True, error=error)
 
 
+def _checked_reach(reach):
+    """A slant-path reach cap [m], checked: finite and >= 0."""
+    value = float(reach)
+    if not math.isfinite(value) or value < 0.0:
+        raise ParameterError(f"slant_path_reach must be a finite distance >= 0 in m; got {reach!r}")
+    return value
+
+
+def _capped(weights_of, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth, *args):
+    """Path weights with the horizontal travel capped at ``reach`` [m].
+
+    Up to the height ``z_cap = reach / tan(theta0)`` the path is the uncapped one; above
+    it the path rises vertically through the column it has reached, i.e. the uncapped
+    path of the height ``z_cap`` (a layer cut by ``z_cap`` gets both parts, weighted by
+    their share of its height).
+    """
+    cap = _checked_reach(reach)
+    z_cap = cap / tan0 if tan0 > 0.0 else math.inf
+    if z_cap >= z_edge[-1]:
+        return weights_of(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, *args)
+    below = z_edge[z_edge < z_cap]
+    edges = np.append(below, z_cap)
+    low = weights_of(edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, *args) if edges.size > 1 else []
+    # The vertical part: the single path point at z_cap (a zero-thickness slab there).
+    top = weights_of(np.array([z_cap, np.nextafter(z_cap, math.inf)]), dx, dy, solar_zenith_angle,
+                     solar_beam_azimuth, *args)[0]
+    out = list(low[:-1]) if below.size else []
+    for k in range(below.size - 1 if below.size else 0, z_edge.size - 1):
+        z0, z1 = z_edge[k], z_edge[k + 1]
+        if z0 >= z_cap:
+            out.append(top)
+            continue
+        share = (z_cap - z0) / (z1 - z0)
+        oy = np.concatenate([low[-1][0], top[0]])
+        ox = np.concatenate([low[-1][1], top[1]])
+        w = np.concatenate([low[-1][2] * share, top[2] * (1.0 - share)])
+        keys, inverse = np.unique(np.stack([oy, ox], axis=1), axis=0, return_inverse=True)
+        total = np.bincount(inverse.reshape(-1), weights=w, minlength=len(keys))
+        keep = total > 0.0
+        out.append((keys[keep, 0].astype(np.int64), keys[keep, 1].astype(np.int64), total[keep]))
+    return out
+
+
 def _crossings(s0, s1, u, spacing):
     """Path lengths where the coordinate ``s * u / spacing`` is a half-integer, layer by layer.
 
@@ -63,7 +106,7 @@ def _crossings(s0, s1, u, spacing):
     return layer, faces * spacing / u
 
 
-def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, reach=None):
     """Columns crossed in each layer by the path from a column's surface centre toward the sun.
 
     Parameters
@@ -77,6 +120,11 @@ def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
     solar_beam_azimuth : float
         Direction of travel of the direct beam [degree], counterclockwise from +x; the
         path goes the opposite way, toward the sun.
+    reach : float, optional
+        Cap of the path's horizontal travel [m]: above the height where ``z tan(theta0)``
+        reaches it, the path rises vertically through the column it has reached (exact
+        where the atmosphere beyond is horizontally uniform, as clear air above the
+        clouds nearly is).  Default: no cap.
 
     Returns
     -------
@@ -103,6 +151,8 @@ def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
     phi = math.radians(float(solar_beam_azimuth))
     # Toward the sun: opposite to the direction in which the beam travels.
     ux, uy = -math.cos(phi), -math.sin(phi)
+    if reach is not None:
+        return _capped(path_weights, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth)
     s = z_edge * tan0
     s0, s1 = s[:-1], s[1:]
     n_layer = s0.size
@@ -147,7 +197,7 @@ def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
     return out
 
 
-def area_path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, max_step=0.125):
+def area_path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, max_step=0.125, reach=None):
     """Columns met in each layer by the paths toward the sun from every point of a column's surface.
 
     The paths from all the points of a column's surface, shifted together, fill a copy
@@ -171,6 +221,8 @@ def area_path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, ma
         Direction of travel of the direct beam [degree], counterclockwise from +x.
     max_step : float
         Largest displacement [columns] between the sub-layers of the midpoint rule.
+    reach : float, optional
+        Cap of the displacement [m], as in :func:`path_weights`; default none.
 
     Returns
     -------
@@ -193,6 +245,9 @@ def area_path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, ma
     uy = uy if abs(uy) >= _DIRECTION_EPS else 0.0
     step = max_step * min(dx, dy)
     out = []
+    if reach is not None:
+        return _capped(area_path_weights, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth,
+                       max_step)
     for z0, z1 in zip(z_edge[:-1], z_edge[1:]):
         shift = (z1 - z0) * tan0
         n = max(1, int(math.ceil(shift / step)))

@@ -25,6 +25,10 @@ key                                               shape             units   mean
 ``solar_zenith_angle``                            scalar            degree  in [0, 90)
 ``solar_beam_azimuth``                            scalar            degree  direction the beam travels,
                                                                             counterclockwise from +x
+``slant_path_reach`` (optional)                   scalar            m       cap of the slant paths' horizontal
+                                                                            travel (beyond it they rise
+                                                                            vertically): bounds the halo
+                                                                            at low sun; default none
 ``surface_albedo``                                (ny, nx)          1       broadband surface albedo
 ``total_cloud_fraction``                          (ny, nx)          1       vertically projected cloud cover
 ``column_optical_depth_mean``                     (ny, nx)          1       mean sub-grid column optical depth
@@ -754,10 +758,15 @@ def _vertical_blocks(fields):
     return _memo(fields, "vertical_blocks", compute)
 
 
+def _reach(fields):
+    """The host's cap on the slant paths' horizontal travel [m] (``slant_path_reach``), or None."""
+    return _scalar(fields, "slant_path_reach") if "slant_path_reach" in fields else None
+
+
 def _area_weights(fields):
     return _memo(fields, "area_weights", lambda: area_path_weights(
         fields["z_edge"], _scalar(fields, "dx"), _scalar(fields, "dy"), _scalar(fields, "solar_zenith_angle"),
-        _scalar(fields, "solar_beam_azimuth")))
+        _scalar(fields, "solar_beam_azimuth"), reach=_reach(fields)))
 
 
 def _path_mean(values, layer_weights, weights, total):
@@ -960,7 +969,8 @@ def slant_optical_depth(fields):
     """
     def compute():
         weights = path_weights(fields["z_edge"], _scalar(fields, "dx"), _scalar(fields, "dy"),
-                               _scalar(fields, "solar_zenith_angle"), _scalar(fields, "solar_beam_azimuth"))
+                               _scalar(fields, "solar_zenith_angle"), _scalar(fields, "solar_beam_azimuth"),
+                               reach=_reach(fields))
         return slant_sum(np.asarray(fields["layer_optical_depth"], dtype=np.float64), weights) / _mu0(fields)
     return _memo(fields, "slant", compute)
 
@@ -1187,6 +1197,8 @@ def validate_host_fields(fields, keys=None):
     for key in ("dx", "dy"):
         check_number(f"host_fields[{key!r}]", fields[key], 0.0, None, low_open=True, error=ValidationError)
     check_solar_zenith_angle(fields["solar_zenith_angle"], "host_fields['solar_zenith_angle']", ValidationError)
+    if "slant_path_reach" in fields:
+        check_number("host_fields['slant_path_reach']", fields["slant_path_reach"], 0.0, None, error=ValidationError)
     shape2d = None
     for key in sorted(k for k in fields if _is_plane_key(k)):
         value = np.asarray(fields[key])

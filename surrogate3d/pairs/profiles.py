@@ -145,7 +145,8 @@ def host_edge_pressure(z_edge, air_pressure, host_layer_edges):
     return np.exp(np.where(h > z[-1], log_p[-1] + slope * (h - z[-1]), inside))
 
 
-def slant_optical_depth_above(layer_optical_depth, host_layer_edges, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+def slant_optical_depth_above(layer_optical_depth, host_layer_edges, dx, dy, solar_zenith_angle, solar_beam_azimuth,
+                              reach=None):
     """Optical depth [1] along the straight path from every host layer's middle toward the sun.
 
     The path rises from the middle of the layer through the upper half of the layer and
@@ -163,6 +164,8 @@ def slant_optical_depth_above(layer_optical_depth, host_layer_edges, dx, dy, sol
         Host column size [m].
     solar_zenith_angle, solar_beam_azimuth : float
         [degree].
+    reach : float, optional
+        Cap of the path's horizontal travel [m] (:func:`surrogate3d.core.slant_path.path_weights`).
 
     Returns
     -------
@@ -176,7 +179,7 @@ def slant_optical_depth_above(layer_optical_depth, host_layer_edges, dx, dy, sol
         middle = 0.5 * (edges[k] + edges[k + 1])
         path_edges = np.concatenate([[0.0], edges[k + 1:] - middle])
         values = np.concatenate([0.5 * tau[k:k + 1], tau[k + 1:]])
-        weights = path_weights(path_edges, dx, dy, solar_zenith_angle, solar_beam_azimuth)
+        weights = path_weights(path_edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, reach=reach)
         out[k] = slant_sum(values, weights) / mu0
     return out
 

@@ -54,12 +54,27 @@ def _largest_offsets(weights):
 
 def _path(geometry, parameters, radius):
     return _largest_offsets(path_weights(geometry["z_edge"], geometry["dx"], geometry["dy"],
-                                         geometry["solar_zenith_angle"], geometry["solar_beam_azimuth"]))
+                                         geometry["solar_zenith_angle"], geometry["solar_beam_azimuth"],
+                                         reach=geometry.get("slant_path_reach")))
+
+
+def path_reach(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach=None):
+    """Columns ``(along x, along y)`` the straight path toward the sun crosses from the surface to the top edge
+    (what every slant-path quantity of the layers reads; ``z_edge`` [m], ``dx``, ``dy`` [m], angles [degree],
+    ``slant_path_reach`` [m] the host's cap of the path's horizontal travel, default none)."""
+    return _path(_geometry(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach), None, None)
+
+
+def _geometry(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach):
+    return {"z_edge": np.asarray(z_edge, dtype=np.float64), "dx": float(dx), "dy": float(dy),
+            "solar_zenith_angle": float(solar_zenith_angle), "solar_beam_azimuth": float(solar_beam_azimuth),
+            "slant_path_reach": None if slant_path_reach is None else float(slant_path_reach)}
 
 
 def _area(geometry, parameters, radius):
     return _largest_offsets(area_path_weights(geometry["z_edge"], geometry["dx"], geometry["dy"],
-                                              geometry["solar_zenith_angle"], geometry["solar_beam_azimuth"]))
+                                              geometry["solar_zenith_angle"], geometry["solar_beam_azimuth"],
+                                              reach=geometry.get("slant_path_reach")))
 
 
 def _area_twice(geometry, parameters, radius):
@@ -89,7 +104,7 @@ REACH = {
 }
 
 
-def feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+def feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach=None):
     """How many neighbouring columns each feature column of a recipe reads, along x and y.
 
     Parameters
@@ -101,6 +116,9 @@ def feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth
         Host column size [m].
     solar_zenith_angle, solar_beam_azimuth : float
         [degree].
+    slant_path_reach : float, optional
+        The host's cap of the slant paths' horizontal travel [m] (host field
+        ``slant_path_reach``); default none.
 
     Returns
     -------
@@ -115,8 +133,7 @@ def feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth
     >>> feature_reach(recipe, [0.0, 2000.0, 4000.0], 1000.0, 1000.0, 45.0, 0.0)
     {'cloud_fraction': (0, 0), 'neighbour_mean_cloud_fraction_2500m': (3, 3), 'slant_optical_depth': (4, 0)}
     """
-    geometry = {"z_edge": np.asarray(z_edge, dtype=np.float64), "dx": float(dx), "dy": float(dy),
-                "solar_zenith_angle": float(solar_zenith_angle), "solar_beam_azimuth": float(solar_beam_azimuth)}
+    geometry = _geometry(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach)
     out = {}
     for name in recipe.features:
         reach = REACH.get(name, _own)
@@ -126,10 +143,10 @@ def feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth
     return out
 
 
-def halo_width(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth):
+def halo_width(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach=None):
     """The halo ``(columns along x, columns along y)`` a sub-domain needs for every feature of a recipe
     (:func:`feature_reach`, largest over the features)."""
-    reach = feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth).values()
+    reach = feature_reach(recipe, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, slant_path_reach).values()
     return max((x for x, _ in reach), default=0), max((y for _, y in reach), default=0)
 
 
@@ -176,7 +193,8 @@ def subdomain_features(host_fields, recipe, halo):
         raise ParameterError(f"a halo of ({hx}, {hy}) columns leaves no own column in host fields of {plane[1]} x "
                              f"{plane[0]} columns (x, y)")
     reach = feature_reach(recipe, host_fields["z_edge"], host_fields["dx"], host_fields["dy"],
-                          host_fields["solar_zenith_angle"], host_fields["solar_beam_azimuth"])
+                          host_fields["solar_zenith_angle"], host_fields["solar_beam_azimuth"],
+                          host_fields.get("slant_path_reach"))
     short = [(name, r) for name, r in reach.items() if r[0] > hx or r[1] > hy]
     if short:
         name, (rx, ry) = max(short, key=lambda item: max(item[1]))

@@ -108,3 +108,48 @@ def test_malformed_sub_domain_fields_are_named():
         subdomain_features(fields, RECIPE, -1)
     with pytest.raises(ParameterError, match="leaves no own column"):
         subdomain_features(fields, RECIPE, 6)
+
+
+def test_capped_slant_path_bounds_the_halo_and_splits_exactly():
+    # With the host's cap on the slant paths' horizontal travel the halo stops growing as
+    # the sun sinks, and four sub-domains still give the periodic domain's features.
+    fields = dict(periodic_fields(11), solar_zenith_angle=80.0, solar_beam_azimuth=200.0, slant_path_reach=2500.0)
+    uncapped = halo_width(RECIPE, fields["z_edge"], 1000.0, 1000.0, 80.0, 200.0)
+    hx, hy = halo_width(RECIPE, fields["z_edge"], 1000.0, 1000.0, 80.0, 200.0, slant_path_reach=2500.0)
+    # Toward the sun (20 degrees from -x): 2.5 km of travel is 2.35 columns along x and 0.86
+    # along y, so the swept area reads 3 and 1 columns (bilinear neighbours), the
+    # interception twice that (out and back): 6 along x; along y the 3 km edge-distance cap
+    # and the 2.5 km windows read 3. Uncapped, the path travels 17 km from the 3 km top
+    # (3000 tan 80 degrees, geometry).
+    assert (hx, hy) == (6, 3) and uncapped[0] > 30
+    whole = compute_features(fields, RECIPE).reshape(18, 20, -1)
+    for y0, y1 in ((0, 9), (9, 18)):
+        for x0, x1 in ((0, 10), (10, 20)):
+            part = subdomain_features(cut(fields, y0, y1, x0, x1, hx, hy), RECIPE, (hx, hy))
+            np.testing.assert_allclose(part.reshape(y1 - y0, x1 - x0, -1), whole[y0:y1, x0:x1], rtol=1e-10,
+                                       atol=1e-12)
+
+
+def test_capped_path_is_exact_under_a_horizontally_uniform_sky():
+    # Beer-Lambert: under horizontally uniform layers every path toward the sun has the
+    # optical depth tau / cos(theta0), capped or not; a cap of 0 is the vertical column.
+    from surrogate3d.core.slant_path import area_path_weights, path_weights
+
+    fields = dict(periodic_fields(5), solar_zenith_angle=70.0, solar_beam_azimuth=37.0)
+    uniform = np.linspace(0.3, 0.05, 5)[:, None, None] * np.ones((5, 18, 20))
+    fields["layer_optical_depth"] = uniform
+    mu0 = np.cos(np.radians(70.0))
+    for reach in (0.0, 1200.0, 4000.0):
+        capped = dict(fields, slant_path_reach=reach)
+        slant = compute_features(capped, FeatureRecipe(["slant_optical_depth"]))[:, 0]
+        np.testing.assert_allclose(slant, uniform.sum(axis=0).reshape(-1) / mu0, rtol=1e-12)
+    for weights_of in (path_weights, area_path_weights):
+        vertical = weights_of(fields["z_edge"], 1000.0, 1000.0, 70.0, 37.0, reach=0.0)
+        assert all(oy.tolist() == [0] and ox.tolist() == [0] and w.tolist() == [1.0] for oy, ox, w in vertical)
+        far = weights_of(fields["z_edge"], 1000.0, 1000.0, 70.0, 37.0, reach=1e7)
+        plain = weights_of(fields["z_edge"], 1000.0, 1000.0, 70.0, 37.0)
+        assert all(np.array_equal(a[2], b[2]) and np.array_equal(a[1], b[1]) for a, b in zip(far, plain))
+    with pytest.raises(ParameterError, match="slant_path_reach"):
+        path_weights(fields["z_edge"], 1000.0, 1000.0, 70.0, 37.0, reach=-1.0)
+    with pytest.raises(ValidationError, match="slant_path_reach"):
+        compute_features(dict(fields, slant_path_reach=float("nan")), FeatureRecipe(["slant_optical_depth"]))
