@@ -38,7 +38,7 @@ def _sub_column_optics(quantity, clear, projected, fy, fx):
     return clear_value, np.maximum(cloudy_value, 0.0), cover
 
 
-def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
+def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle, layers=False):
     """Independent-column fluxes of the host's own columns: delta-Eddington with a clear and a cloudy sub-column.
 
     What a host radiation scheme with a sub-grid cloud fraction computes from its own
@@ -64,6 +64,9 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
         Host column size [m].
     solar_zenith_angle : float
         [degree], in [0, 90).
+    layers : bool
+        Also return ``layer_absorption`` (nz, Ny, Nx) [1], the absorption of every layer
+        (what the heating-rate model needs from the host).
 
     Returns
     -------
@@ -100,6 +103,7 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
     extinction, ssa, asymmetry, albedo = (np.asarray(scene[name].values, dtype=np.float64) for name in (
         "extinction", "single_scattering_albedo", "asymmetry_parameter", "surface_albedo"))
     out = None
+    names = HOST_FLUXES[1:] + (("layer_absorption",) if layers else ())
     for b, weight in enumerate(weights):
         tau = extinction[b] * dz
         scattering = tau * ssa[b]
@@ -115,15 +119,19 @@ def host_two_stream_fluxes(scene, host_resolution, solar_zenith_angle):
             # Layers last for the solver: (Ny, Nx, nz).
             solved = delta_eddington(np.moveaxis(t, 0, -1), np.moveaxis(omega, 0, -1), np.moveaxis(g, 0, -1),
                                      mu0, band_albedo)
-            for flux in HOST_FLUXES[1:]:
-                band[flux] = band.get(flux, 0.0) + share * solved[flux]
+            for flux in names:
+                # Layer absorption has the layers last: the cover broadcasts over them.
+                cover_share = share[..., None] if solved[flux].ndim > np.ndim(share) else share
+                band[flux] = band.get(flux, 0.0) + cover_share * solved[flux]
         if out is None:
-            out = {flux: weight * band[flux] for flux in HOST_FLUXES[1:]}
+            out = {flux: weight * band[flux] for flux in names}
         else:
-            for flux in HOST_FLUXES[1:]:
+            for flux in names:
                 out[flux] += weight * band[flux]
     out["surface_downward_flux"] = out["surface_downward_direct_flux"] + out["surface_downward_diffuse_flux"]
-    return {flux: out[flux] for flux in HOST_FLUXES}
+    if layers:
+        out["layer_absorption"] = np.moveaxis(out["layer_absorption"], -1, 0)
+    return {flux: out[flux] for flux in ("surface_downward_flux",) + names}
 
 
 def _check_host_fluxes(host_fluxes):

@@ -88,6 +88,20 @@ def test_mixed_columns_keep_the_energy_balance_of_each_band():
     assert np.allclose(host["surface_upward_flux"], 0.2 * host["surface_downward_flux"])
 
 
+def test_layer_absorption_of_the_host_columns_sums_to_the_column():
+    # Energy: the absorbed shares of the layers add up to the column's absorption, and two
+    # kinds of columns give the block mean of the fine grid's layers (linearity of the mean).
+    cloudy = np.zeros((8, 8), dtype=bool)
+    cloudy[1:4, 2:7] = True
+    scene = two_band_scene(cloudy)
+    host = host_two_stream_fluxes(scene, 400.0, 35.0, layers=True)
+    assert host["layer_absorption"].shape == (4, 2, 2)
+    np.testing.assert_allclose(host["layer_absorption"].sum(axis=0), host["atmosphere_absorption"], rtol=1e-12)
+    fine = solve_scene(scene, 35.0, quiet=True)
+    np.testing.assert_allclose(host["layer_absorption"], block_mean(fine["absorption"].values, 4, 4),
+                               rtol=1e-12, atol=1e-15)
+
+
 def test_clear_sky_optical_depth_of_cloudy_cells():
     # Clear cells keep their optical depth; cloudy cells get the mean of the clear cells of
     # their layer; a layer without clear cells is interpolated in height (by hand).
