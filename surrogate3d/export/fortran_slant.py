@@ -133,7 +133,7 @@ def _common_procedures(p):
     """Sorting, the offset groups and the largest offsets: every family uses them."""
     return f"""
   !> Sorts the entries (oy, ox, weight) by oy, then ox (insertion sort: the lists are short).
-  pure subroutine {p}_sort_entries(n, oy, ox, weight)
+  pure subroutine {p}_slant_sort_entries(n, oy, ox, weight)
     integer, intent(in) :: n
     integer, intent(inout) :: oy(n), ox(n)
     real(real64), intent(inout) :: weight(n)
@@ -155,11 +155,11 @@ def _common_procedures(p):
       ox(j + 1) = key_x
       weight(j + 1) = key_w
     end do
-  end subroutine {p}_sort_entries
+  end subroutine {p}_slant_sort_entries
 
   !> The offset groups of the weights (slant_path.gather_offsets): one array shift then serves every
   !> layer that meets that column, and the sums of slant_sum come in numpy's order.
-  pure subroutine {p}_group_offsets(n_layer, paths)
+  pure subroutine {p}_slant_group_offsets(n_layer, paths)
     integer, intent(in) :: n_layer
     type({p}_slant_weights), intent(inout) :: paths
     integer :: group(size(paths%ox)), count(size(paths%ox)), next(size(paths%ox))
@@ -196,25 +196,27 @@ def _common_procedures(p):
         next(g) = next(g) + 1
       end do
     end do
-  end subroutine {p}_group_offsets
+  end subroutine {p}_slant_group_offsets
 
   !> The farthest column offsets along x and y of the weights (runtime.halo._largest_offsets).
-  pure subroutine {p}_largest_offsets(paths, rx, ry)
+  pure subroutine {p}_slant_largest_offsets(paths, rx, ry)
     type({p}_slant_weights), intent(in) :: paths
     integer, intent(out) :: rx, ry
     rx = max(0, maxval(abs(paths%ox)))
     ry = max(0, maxval(abs(paths%oy)))
-  end subroutine {p}_largest_offsets
+  end subroutine {p}_slant_largest_offsets
 
   !> Whether the geometry has a finite reach: the sun above the horizon and the paths crossing fewer than
   !> 1e6 columns (a lower sun needs a halo no host has; the weights would not fit in memory).
-  pure logical function {p}_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
+  pure logical function {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle
 {_DEGREE}
-    {p}_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
-    if ({p}_reachable) {p}_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
-  end function {p}_reachable
+    {p}_slant_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
+    if ({p}_slant_reachable) then
+      {p}_slant_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
+    end if
+  end function {p}_slant_reachable
 """
 
 
@@ -223,7 +225,7 @@ def _path_procedures(p):
     return f"""
   !> The faces lo + 1/2 .. hi + 1/2 (none if hi < lo) where s u / spacing is a half-integer for s between
   !> s0 and s1 [m] (slant_path._crossings); none for a direction component u below direction_eps.
-  pure subroutine {p}_crossing_range(s0, s1, u, spacing, lo, hi)
+  pure subroutine {p}_slant_crossings(s0, s1, u, spacing, lo, hi)
     real(real64), intent(in) :: s0, s1, u, spacing
     integer, intent(out) :: lo, hi
 {_DIRECTION}
@@ -235,10 +237,10 @@ def _path_procedures(p):
     b = (s1 * u) / spacing
     lo = ceiling(min(a, b) - 0.5_real64)
     hi = floor(max(a, b) - 0.5_real64)
-  end subroutine {p}_crossing_range
+  end subroutine {p}_slant_crossings
 
   !> Sorts x ascending (insertion sort: the cuts along x and along y come each in order).
-  pure subroutine {p}_sort_cuts(n, x)
+  pure subroutine {p}_slant_sort_cuts(n, x)
     integer, intent(in) :: n
     real(real64), intent(inout) :: x(n)
     real(real64) :: key
@@ -253,7 +255,7 @@ def _path_procedures(p):
       end do
       x(j + 1) = key
     end do
-  end subroutine {p}_sort_cuts
+  end subroutine {p}_slant_sort_cuts
 
   !> Path weights of slant_path.path_weights for the n_layer layers between edges(k) and edges(k + 1) [m]:
   !> the columns the straight path from a column's surface centre toward the sun crosses, and the share of
@@ -279,8 +281,8 @@ def _path_procedures(p):
     max_cut = 2
     capacity = 0
     do k = 1, n_layer
-      call {p}_crossing_range(edges(k) * tan0, edges(k + 1) * tan0, ux, dx, x_lo, x_hi)
-      call {p}_crossing_range(edges(k) * tan0, edges(k + 1) * tan0, uy, dy, y_lo, y_hi)
+      call {p}_slant_crossings(edges(k) * tan0, edges(k + 1) * tan0, ux, dx, x_lo, x_hi)
+      call {p}_slant_crossings(edges(k) * tan0, edges(k + 1) * tan0, uy, dy, y_lo, y_hi)
       n_cut = 2 + max(x_hi - x_lo + 1, 0) + max(y_hi - y_lo + 1, 0)
       max_cut = max(max_cut, n_cut)
       capacity = capacity + n_cut
@@ -302,18 +304,18 @@ def _path_procedures(p):
       cuts(1) = s0
       cuts(2) = s1
       n_cut = 2
-      call {p}_crossing_range(s0, s1, ux, dx, x_lo, x_hi)
+      call {p}_slant_crossings(s0, s1, ux, dx, x_lo, x_hi)
       do j = x_lo, x_hi
         n_cut = n_cut + 1
         cuts(n_cut) = ((real(j, real64) + 0.5_real64) * dx) / ux
       end do
-      call {p}_crossing_range(s0, s1, uy, dy, y_lo, y_hi)
+      call {p}_slant_crossings(s0, s1, uy, dy, y_lo, y_hi)
       do j = y_lo, y_hi
         n_cut = n_cut + 1
         cuts(n_cut) = ((real(j, real64) + 0.5_real64) * dy) / uy
       end do
       cuts(1:n_cut) = min(max(cuts(1:n_cut), s0), s1)
-      call {p}_sort_cuts(n_cut, cuts(1:n_cut))
+      call {p}_slant_sort_cuts(n_cut, cuts(1:n_cut))
       ! Each piece between distinct cuts lies in the column of its middle; the lengths per column are
       ! added in path order, as numpy's bincount adds them.
       do i = 1, n_cut - 1
@@ -333,8 +335,8 @@ def _path_procedures(p):
         weight(e) = weight(e) + (cuts(i + 1) - cuts(i))
       end do
       weight(paths%first(k):n_entry) = weight(paths%first(k):n_entry) / (s1 - s0)
-      call {p}_sort_entries(n_entry - paths%first(k) + 1, oy(paths%first(k):n_entry), ox(paths%first(k):n_entry), &
-                            weight(paths%first(k):n_entry))
+      call {p}_slant_sort_entries(n_entry - paths%first(k) + 1, oy(paths%first(k):n_entry), &
+                                  ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
     paths%oy = oy(1:n_entry)
@@ -351,9 +353,9 @@ def _path_procedures(p):
     type({p}_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. {p}_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
+    if (.not. {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
     call {p}_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
-    call {p}_largest_offsets(paths, rx, ry)
+    call {p}_slant_largest_offsets(paths, rx, ry)
   end subroutine {p}_path_reach
 """
 
@@ -375,7 +377,7 @@ def _slant_depth_procedure(p):
     integer :: ix, iy, g, t, k
     mu0 = cos(solar_zenith_angle * degree)
     call {p}_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
-    call {p}_group_offsets(nz, paths)
+    call {p}_slant_group_offsets(nz, paths)
     do iy = 1, ny
       do ix = 1, nx
         total = 0.0_real64
@@ -457,7 +459,7 @@ def slant_depth_above_procedure(prefix):
       edges(2:nz - k + 2) = z_edge(k + 1:nz + 1) - middle
       call {p}_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, solar_beam_azimuth, &
                             paths(k))
-      call {p}_group_offsets(nz - k + 1, paths(k))
+      call {p}_slant_group_offsets(nz - k + 1, paths(k))
     end do
     do iy = 1, ny
       do ix = 1, nx
@@ -564,8 +566,8 @@ def _area_procedures(p):
         weight(n_kept) = weight(e)
       end do
       n_entry = n_kept
-      call {p}_sort_entries(n_entry - paths%first(k) + 1, oy(paths%first(k):n_entry), ox(paths%first(k):n_entry), &
-                            weight(paths%first(k):n_entry))
+      call {p}_slant_sort_entries(n_entry - paths%first(k) + 1, oy(paths%first(k):n_entry), &
+                                  ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
     paths%oy = oy(1:n_entry)
@@ -582,9 +584,9 @@ def _area_procedures(p):
     type({p}_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. {p}_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
+    if (.not. {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
     call {p}_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
-    call {p}_largest_offsets(paths, rx, ry)
+    call {p}_slant_largest_offsets(paths, rx, ry)
   end subroutine {p}_area_reach
 """
 
@@ -595,21 +597,21 @@ def _prior_procedures(p):
   !> log(1 + x) accurate for small x (Fortran 2008 has no log1p): log(u) x / (u - 1) with u = 1 + x, whose
   !> rounding errors cancel (Goldberg 1991, What every computer scientist should know about
   !> floating-point arithmetic, ACM Computing Surveys 23, 5-48, theorem 4).
-  elemental real(real64) function {p}_log1p(x)
+  elemental real(real64) function {p}_slant_log1p(x)
     real(real64), intent(in) :: x
     real(real64) :: u
     u = 1.0_real64 + x
     if (u == 1.0_real64) then
-      {p}_log1p = x
+      {p}_slant_log1p = x
     else
-      {p}_log1p = log(u) * (x / (u - 1.0_real64))
+      {p}_slant_log1p = log(u) * (x / (u - 1.0_real64))
     end if
-  end function {p}_log1p
+  end function {p}_slant_log1p
 
   !> Blocks of adjacent cloudy layers of one path, top down (features._scan_blocks): each block's cover
   !> (maximum-random overlap within it, Geleyn and Hollingsworth 1979), cloud optical depth [1] and cloud
   !> volume per area sum c dz [m]; loose, the cloud optical depth of layers without cloud fraction.
-  pure subroutine {p}_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
+  pure subroutine {p}_prior_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
     integer, intent(in) :: nz
     real(real64), intent(in) :: fraction(nz), cloud(nz), dz(nz)
     integer, intent(out) :: n_block
@@ -654,7 +656,7 @@ def _prior_procedures(p):
       end if
       cloudy_above = c(k) > 0.0_real64
     end do
-  end subroutine {p}_cloud_blocks
+  end subroutine {p}_prior_cloud_blocks
 
   !> The host column's overlap exponent gamma (features.overlap_exponent) and in-cloud relative variance v
   !> (features._relative_variance_of_blocks with gamma) from its own layers, its total cloud fraction and
@@ -666,7 +668,7 @@ def _prior_procedures(p):
     real(real64), dimension(nz) :: cover, depth, volume
     real(real64) :: loose, clear, c, adjusted, squared, between, within
     integer :: n_block, j
-    call {p}_cloud_blocks(nz, fraction, cloud, spread(0.0_real64, 1, nz), n_block, cover, depth, volume, loose)
+    call {p}_prior_cloud_blocks(nz, fraction, cloud, spread(0.0_real64, 1, nz), n_block, cover, depth, volume, loose)
     clear = 1.0_real64
     do j = 1, n_block
       clear = clear * (1.0_real64 - cover(j))
@@ -708,15 +710,15 @@ def _prior_procedures(p):
   !> blocks of cloudy layers overlapped at random, their covers made consistent by gamma, seen slanted as
   !> 1 - (1 - C)^(1 + rho H tan(theta0)), the cloud optical depth gamma-distributed with relative variance v
   !> (mean transmittance (1 + m v / mu0)^(-1 / v)), Beer-Lambert for the clear sky and loose cloud.
-  pure real(real64) function {p}_transmittance(nz, fraction, cloud, dz, clear_depth, v, mu0, rho, gamma)
+  pure real(real64) function {p}_prior_transmittance(nz, fraction, cloud, dz, clear_depth, v, mu0, rho, gamma)
     integer, intent(in) :: nz
     real(real64), intent(in) :: fraction(nz), cloud(nz), dz(nz), clear_depth, v, mu0, rho, gamma
     real(real64), dimension(nz) :: cover, depth, volume
     real(real64) :: loose, tan0, adjusted, thickness, seen, mean, exponent
     integer :: n_block, j
-    call {p}_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
+    call {p}_prior_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
     tan0 = sqrt(max(1.0_real64 - mu0 * mu0, 0.0_real64)) / mu0
-    {p}_transmittance = exp(-(clear_depth + loose) / mu0)
+    {p}_prior_transmittance = exp(-(clear_depth + loose) / mu0)
     do j = 1, n_block
       adjusted = 1.0_real64 - (1.0_real64 - cover(j)) ** gamma
       thickness = 0.0_real64
@@ -727,13 +729,13 @@ def _prior_procedures(p):
       mean = 0.0_real64
       if (seen > 0.0_real64) mean = depth(j) / seen
       if (v > 0.0_real64) then
-        exponent = {p}_log1p((mean * v) / mu0) / v
+        exponent = {p}_slant_log1p((mean * v) / mu0) / v
       else
         exponent = mean / mu0
       end if
-      {p}_transmittance = {p}_transmittance * ((1.0_real64 - seen) + seen * exp(-exponent))
+      {p}_prior_transmittance = {p}_prior_transmittance * ((1.0_real64 - seen) + seen * exp(-exponent))
     end do
-  end function {p}_transmittance
+  end function {p}_prior_transmittance
 
   !> The direct-beam prior of own column (ix, iy) along the paths toward the sun (features._direct_prior,
   !> slanted): the layers' cloud fraction and cloud optical depth gathered along the area weights, the
@@ -797,7 +799,7 @@ def _prior_procedures(p):
       rho_path = rho_sum / fraction_total
       gamma_path = gamma_sum / fraction_total
     end if
-    {p}_slanted_prior = {p}_transmittance(nz, path_fraction, path_cloud, dz, clear_path, v_path, mu0, rho_path, &
+    {p}_slanted_prior = {p}_prior_transmittance(nz, path_fraction, path_cloud, dz, clear_path, v_path, mu0, rho_path, &
                                             gamma_path)
   end function {p}_slanted_prior
 
@@ -824,8 +826,8 @@ def _prior_procedures(p):
     mu0 = cos(solar_zenith_angle * degree)
     dz = z_edge(2:nz + 1) - z_edge(1:nz)
     call {p}_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
-    call {p}_group_offsets(nz, paths)
-    call {p}_largest_offsets(paths, rx, ry)
+    call {p}_slant_group_offsets(nz, paths)
+    call {p}_slant_largest_offsets(paths, rx, ry)
     ! The column statistics of every column the own columns' paths meet.
     allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry))
     do iy = 1 - ry, ny + ry
@@ -848,7 +850,7 @@ def _prior_procedures(p):
             clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
           end do
           cloud = max(layer_optical_depth(ix, iy, :) - layer_clear_sky_optical_depth(ix, iy, :), 0.0_real64)
-          out(ix, iy) = out(ix, iy) - {p}_transmittance(nz, layer_cloud_fraction(ix, iy, :), cloud, &
+          out(ix, iy) = out(ix, iy) - {p}_prior_transmittance(nz, layer_cloud_fraction(ix, iy, :), cloud, &
               spread(0.0_real64, 1, nz), clear_depth, v(ix, iy), mu0, 0.0_real64, gamma(ix, iy))
         end if
       end do
@@ -863,18 +865,18 @@ def _interception_procedures(p):
   !> exp(x) - 1 accurate for small x (Fortran 2008 has no expm1): (u - 1) x / log(u) with u = exp(x), whose
   !> rounding errors cancel (Kahan's method; Higham 2002, Accuracy and Stability of Numerical Algorithms,
   !> SIAM, section 1.14.1).
-  elemental real(real64) function {p}_expm1(x)
+  elemental real(real64) function {p}_slant_expm1(x)
     real(real64), intent(in) :: x
     real(real64) :: u
     u = exp(x)
     if (u == 1.0_real64) then
-      {p}_expm1 = x
+      {p}_slant_expm1 = x
     else if (u - 1.0_real64 == -1.0_real64) then
-      {p}_expm1 = -1.0_real64
+      {p}_slant_expm1 = -1.0_real64
     else
-      {p}_expm1 = (u - 1.0_real64) * (x / log(u))
+      {p}_slant_expm1 = (u - 1.0_real64) * (x / log(u))
     end if
-  end function {p}_expm1
+  end function {p}_slant_expm1
 
   !> Share of the incident direct beam each layer of a column removes (features._layer_interception),
   !> exp(-tau_above / mu0) (1 - exp(-tau_k / mu0)) (Beer-Lambert), layers bottom first.
@@ -888,7 +890,7 @@ def _interception_procedures(p):
     do k = nz, 1, -1
       ! numpy's cumulative sum from the top, including the layer itself, minus the layer.
       above = above + tau(k)
-      share(k) = exp(-(above - tau(k)) / mu0) * (-{p}_expm1(-tau(k) / mu0))
+      share(k) = exp(-(above - tau(k)) / mu0) * (-{p}_slant_expm1(-tau(k) / mu0))
     end do
   end subroutine {p}_layer_interception
 
@@ -922,7 +924,7 @@ def _interception_procedures(p):
     integer :: ix, iy, k, e, rx, ry
     mu0 = cos(solar_zenith_angle * degree)
     call {p}_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
-    call {p}_largest_offsets(paths, rx, ry)
+    call {p}_slant_largest_offsets(paths, rx, ry)
     ! The tilted columns through every cell the own columns' paths meet: what each removes per unit of
     ! optical depth met, layer by layer.
     allocate (per_tau(nz, 1-rx:nx+rx, 1-ry:ny+ry))
@@ -961,7 +963,9 @@ def _interception_procedures(p):
           vertical = vertical + share(k)
         end do
         out(ix, iy) = tilted - vertical
-        if (feature == 'direct_beam_interception_relative_change') out(ix, iy) = out(ix, iy) / max(vertical, 0.01_real64)
+        if (feature == 'direct_beam_interception_relative_change') then
+          out(ix, iy) = out(ix, iy) / max(vertical, 0.01_real64)
+        end if
       end do
     end do
   end subroutine {p}_interception
@@ -1093,9 +1097,9 @@ def slant_call(prefix, feature, out):
         text = f"{head}interception({_CALL_HEAD}, &\n    layer_optical_depth, '{feature}', {out})"
     else:
         text = (f"{head}direct_prior({_CALL_HEAD}, &\n"
-                "    layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, total_cloud_fraction, &\n"
-                "    column_optical_depth_std, cloud_edge_length, independent_column_fluxes(:, :, 2), &\n"
-                f"    '{feature}', {out})")
+                "    layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &\n"
+                "    total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &\n"
+                f"    independent_column_fluxes(:, :, 2), '{feature}', {out})")
     return _wrapped(text)
 
 

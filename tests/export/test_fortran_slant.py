@@ -10,6 +10,7 @@ periodic copy), :func:`surrogate3d.runtime.halo.subdomain_features` on sub-domai
 :data:`surrogate3d.runtime.halo.REACH`, to 1e-10 relative (1e-12 absolute near zero).
 """
 
+import re
 import shutil
 import subprocess
 
@@ -192,6 +193,21 @@ def geometry(fields):
     return (fields["z_edge"], fields["dx"], fields["dy"], fields["solar_zenith_angle"], fields["solar_beam_azimuth"])
 
 
+def check_periodic(program, tmp_path, fields):
+    """The Fortran reaches, features and optical depths above on the periodic domain equal numpy's."""
+    ny, nx = fields["total_cloud_fraction"].shape
+    hx, hy = halo_width(RECIPE, *geometry(fields))
+    reaches, features, slant = run(program, tmp_path, with_halo(fields, hx, hy), hx, hy)
+    reach = feature_reach(RECIPE, *geometry(fields))
+    # The optical depth above reads as far as the path from the surface (halo.py's _path of all of z_edge).
+    assert reaches == {**reach, SLANT_DEPTH_ABOVE: reach["slant_optical_depth"]}
+    expected = compute_features(fields, RECIPE).reshape(ny, nx, -1)
+    for j, name in enumerate(FEATURES):
+        assert_close(features[name], expected[..., j], name)
+    above = slant_optical_depth_above(fields["layer_optical_depth"], *geometry(fields))
+    assert_close(slant, above.transpose(1, 2, 0), SLANT_DEPTH_ABOVE)
+
+
 CASES = [(zenith, azimuth) for zenith in (0.0, 30.0, 60.0, 80.0) for azimuth in (0.0, 37.0, 90.0, 200.0, 315.0)]
 
 
@@ -201,17 +217,17 @@ def test_periodic_domain_equals_numpy(program, tmp_path, zenith, azimuth):
     # Columns of unequal sides (dx != dy) at the azimuth 37 degrees.
     dy = 700.0 if azimuth == 37.0 else 1000.0
     fields = dict(random_fields(int(zenith + azimuth), dy=dy), solar_zenith_angle=zenith, solar_beam_azimuth=azimuth)
-    ny, nx = fields["total_cloud_fraction"].shape
-    hx, hy = halo_width(RECIPE, *geometry(fields))
-    reaches, features, slant = run(program, tmp_path, with_halo(fields, hx, hy), hx, hy)
-    assert reaches == {**feature_reach(RECIPE, *geometry(fields)),
-                       SLANT_DEPTH_ABOVE: feature_reach(RECIPE, *geometry(fields))["slant_optical_depth"]}
-    expected = compute_features(fields, RECIPE).reshape(ny, nx, -1)
-    for j, name in enumerate(FEATURES):
-        assert_close(features[name], expected[..., j], name)
-    above = slant_optical_depth_above(fields["layer_optical_depth"], fields["z_edge"], fields["dx"], dy, zenith,
-                                      azimuth)
-    assert_close(slant, above.transpose(1, 2, 0), SLANT_DEPTH_ABOVE)
+    check_periodic(program, tmp_path, fields)
+
+
+@needs_gfortran
+@pytest.mark.parametrize("azimuth", [0.0, 45.0, 90.0, 180.0, 270.0])
+def test_paths_through_column_faces_and_corners_equal_numpy(program, tmp_path, azimuth):
+    # At 45 degrees over layers of whole columns the paths meet column faces (and at 45 degrees of azimuth
+    # corners) exactly where layers end: the cuts coincide up to round-off, as in numpy.
+    fields = dict(random_fields(11, dx=500.0, dy=500.0), solar_zenith_angle=45.0, solar_beam_azimuth=azimuth)
+    fields["z_edge"] = 500.0 * np.arange(fields["layer_optical_depth"].shape[0] + 1)
+    check_periodic(program, tmp_path, fields)
 
 
 def cut(fields, y0, y1, x0, x1, hx, hy):
@@ -269,6 +285,8 @@ def test_lines_fit_free_form_with_the_longest_prefix():
     texts += ["        " + slant_reach_call(prefix, name, "reach_x", "reach_y") for name in everything]
     longest = max(len(line) for text in texts for line in text.splitlines())
     assert longest < 132
+    # Fortran 2008 names have at most 63 characters.
+    assert max(len(name) for text in texts for name in re.findall(rf"\b{prefix}_\w+", text)) <= 63
 
 
 def test_every_slant_feature_has_the_reach_of_halo_py():
