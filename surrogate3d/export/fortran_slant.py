@@ -157,12 +157,12 @@ def _common_procedures(p):
     end do
   end subroutine {p}_slant_sort_entries
 
-  !> The offset groups of the weights (slant_path.gather_offsets): one array shift then serves every
-  !> layer that meets that column, and the sums of slant_sum come in numpy's order.
+  !> The weights regrouped by column offset as slant_path.gather_offsets groups them, so that the sums of
+  !> slant_path.slant_sum are added in numpy's order.
   pure subroutine {p}_slant_group_offsets(n_layer, paths)
     integer, intent(in) :: n_layer
     type({p}_slant_weights), intent(inout) :: paths
-    integer :: group(size(paths%ox)), count(size(paths%ox)), next(size(paths%ox))
+    integer :: group(size(paths%ox)), n_terms(size(paths%ox)), next(size(paths%ox))
     integer :: group_oy(size(paths%ox)), group_ox(size(paths%ox))
     integer :: n_group, e, g, k
     n_group = 0
@@ -174,10 +174,10 @@ def _common_procedures(p):
         n_group = g
         group_oy(g) = paths%oy(e)
         group_ox(g) = paths%ox(e)
-        count(g) = 0
+        n_terms(g) = 0
       end if
       group(e) = g
-      count(g) = count(g) + 1
+      n_terms(g) = n_terms(g) + 1
     end do
     allocate (paths%group_first(n_group + 1), paths%term_layer(size(paths%ox)), &
               paths%term_weight(size(paths%ox)))
@@ -185,7 +185,7 @@ def _common_procedures(p):
     paths%group_ox = group_ox(1:n_group)
     paths%group_first(1) = 1
     do g = 1, n_group
-      paths%group_first(g + 1) = paths%group_first(g) + count(g)
+      paths%group_first(g + 1) = paths%group_first(g) + n_terms(g)
     end do
     next(1:n_group) = paths%group_first(1:n_group)
     do k = 1, n_layer
@@ -336,7 +336,7 @@ def _path_procedures(p):
       end do
       weight(paths%first(k):n_entry) = weight(paths%first(k):n_entry) / (s1 - s0)
       call {p}_slant_sort_entries(n_entry - paths%first(k) + 1, oy(paths%first(k):n_entry), &
-                                  ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
+          ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
     paths%oy = oy(1:n_entry)
@@ -365,7 +365,8 @@ def _slant_depth_procedure(p):
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
   !> column's own tau / mu0. The halo must cover {p}_path_reach.
-  pure subroutine {p}_slant_depth({_CALL_HEAD}, layer_optical_depth, feature, out)
+  pure subroutine {p}_slant_depth({_CALL_HEAD}, &
+      layer_optical_depth, feature, out)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
@@ -442,7 +443,8 @@ def slant_depth_above_procedure(prefix):
   !> (surrogate3d.pairs.profiles.slant_optical_depth_above): through the upper half of the layer and every
   !> layer above, crossing neighbouring columns; Beer-Lambert along the path, sum w tau / mu0.
   !> slant(k, i) for layer k of own column i = ix + (iy - 1) * nx. The halo must cover {p}_path_reach.
-  pure subroutine {p}_slant_depth_above({_CALL_HEAD}, layer_optical_depth, slant)
+  pure subroutine {p}_slant_depth_above({_CALL_HEAD}, &
+      layer_optical_depth, slant)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
@@ -458,7 +460,7 @@ def slant_depth_above_procedure(prefix):
       edges(1) = 0.0_real64
       edges(2:nz - k + 2) = z_edge(k + 1:nz + 1) - middle
       call {p}_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                            paths(k))
+          paths(k))
       call {p}_slant_group_offsets(nz - k + 1, paths(k))
     end do
     do iy = 1, ny
@@ -567,7 +569,7 @@ def _area_procedures(p):
       end do
       n_entry = n_kept
       call {p}_slant_sort_entries(n_entry - paths%first(k) + 1, oy(paths%first(k):n_entry), &
-                                  ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
+          ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
     paths%oy = oy(1:n_entry)
@@ -594,7 +596,7 @@ def _area_procedures(p):
 def _prior_procedures(p):
     """The direct-beam prior (features._direct_prior) and its column formula."""
     return f"""
-  !> log(1 + x) accurate for small x (Fortran 2008 has no log1p): log(u) x / (u - 1) with u = 1 + x, whose
+  !> log(1 + x) accurate for small x (Fortran 2008 has no log1p): x log(u) / (u - 1) with u = 1 + x, whose
   !> rounding errors cancel (Goldberg 1991, What every computer scientist should know about
   !> floating-point arithmetic, ACM Computing Surveys 23, 5-48, theorem 4).
   elemental real(real64) function {p}_slant_log1p(x)
@@ -604,7 +606,7 @@ def _prior_procedures(p):
     if (u == 1.0_real64) then
       {p}_slant_log1p = x
     else
-      {p}_slant_log1p = log(u) * (x / (u - 1.0_real64))
+      {p}_slant_log1p = (x * log(u)) / (u - 1.0_real64)
     end if
   end function {p}_slant_log1p
 
@@ -742,7 +744,7 @@ def _prior_procedures(p):
   !> clear-sky optical depth summed along them, and the crossed columns' v (weighted by the cloud optical
   !> depth met in each), rho and gamma (weighted by the cloud fraction met), each summed as slant_sum does.
   pure real(real64) function {p}_slanted_prior(nx, ny, nz, hx, hy, rx, ry, ix, iy, paths, fraction, tau, clear, &
-                                                 v, rho, gamma, dz, mu0)
+      v, rho, gamma, dz, mu0)
     integer, intent(in) :: nx, ny, nz, hx, hy, rx, ry, ix, iy
     type({p}_slant_weights), intent(in) :: paths
     real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy, nz) :: fraction, tau, clear
@@ -800,16 +802,16 @@ def _prior_procedures(p):
       gamma_path = gamma_sum / fraction_total
     end if
     {p}_slanted_prior = {p}_prior_transmittance(nz, path_fraction, path_cloud, dz, clear_path, v_path, mu0, rho_path, &
-                                            gamma_path)
+        gamma_path)
   end function {p}_slanted_prior
 
   !> direct_beam_prior [1] of the own columns (feature 'direct_beam_prior'), minus the host's
   !> independent-column direct flux ica_direct ('direct_beam_prior_minus_independent_column') or minus
   !> the same formula along the vertical ('direct_beam_prior_slant_minus_vertical'). The halo must cover
   !> {p}_area_reach.
-  pure subroutine {p}_direct_prior({_CALL_HEAD}, layer_cloud_fraction, &
-                                   layer_optical_depth, layer_clear_sky_optical_depth, total_cloud_fraction, &
-                                   column_optical_depth_std, cloud_edge_length, ica_direct, feature, out)
+  pure subroutine {p}_direct_prior({_CALL_HEAD}, &
+      layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, total_cloud_fraction, &
+      column_optical_depth_std, cloud_edge_length, ica_direct, feature, out)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy, nz) :: layer_cloud_fraction, &
@@ -834,14 +836,14 @@ def _prior_procedures(p):
       do ix = 1 - rx, nx + rx
         cloud = max(layer_optical_depth(ix, iy, :) - layer_clear_sky_optical_depth(ix, iy, :), 0.0_real64)
         call {p}_overlap_statistics(nz, layer_cloud_fraction(ix, iy, :), cloud, total_cloud_fraction(ix, iy), &
-                                    column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
+            column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
         rho(ix, iy) = {p}_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
       end do
     end do
     do iy = 1, ny
       do ix = 1, nx
         out(ix, iy) = {p}_slanted_prior(nx, ny, nz, hx, hy, rx, ry, ix, iy, paths, layer_cloud_fraction, &
-                                        layer_optical_depth, layer_clear_sky_optical_depth, v, rho, gamma, dz, mu0)
+            layer_optical_depth, layer_clear_sky_optical_depth, v, rho, gamma, dz, mu0)
         if (feature == 'direct_beam_prior_minus_independent_column') then
           out(ix, iy) = out(ix, iy) - ica_direct(ix, iy)
         else if (feature == 'direct_beam_prior_slant_minus_vertical') then
@@ -874,7 +876,7 @@ def _interception_procedures(p):
     else if (u - 1.0_real64 == -1.0_real64) then
       {p}_slant_expm1 = -1.0_real64
     else
-      {p}_slant_expm1 = (u - 1.0_real64) * (x / log(u))
+      {p}_slant_expm1 = ((u - 1.0_real64) * x) / log(u)
     end if
   end function {p}_slant_expm1
 
@@ -911,7 +913,8 @@ def _interception_procedures(p):
   !> and summed over the column's layers; for 'direct_beam_interception_tilted_minus_vertical' minus the
   !> vertical column's share, for 'direct_beam_interception_relative_change' that difference over
   !> max(vertical, 0.01). The halo must cover {p}_area_twice_reach.
-  pure subroutine {p}_interception({_CALL_HEAD}, layer_optical_depth, feature, out)
+  pure subroutine {p}_interception({_CALL_HEAD}, &
+      layer_optical_depth, feature, out)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
