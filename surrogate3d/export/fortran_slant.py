@@ -130,7 +130,7 @@ def _type_declaration(p):
 
 
 def _common_procedures(p):
-    """Sorting, the offset groups and the largest offsets: every family uses them."""
+    """Sorting, the largest offsets and the test of a finite reach: every family uses them."""
     return f"""
   !> Sorts the entries (oy, ox, weight) by oy, then ox (insertion sort: the lists are short).
   pure subroutine {p}_slant_sort_entries(n, oy, ox, weight)
@@ -157,6 +157,31 @@ def _common_procedures(p):
     end do
   end subroutine {p}_slant_sort_entries
 
+  !> The farthest column offsets along x and y of the weights (runtime.halo._largest_offsets).
+  pure subroutine {p}_slant_largest_offsets(paths, rx, ry)
+    type({p}_slant_weights), intent(in) :: paths
+    integer, intent(out) :: rx, ry
+    rx = max(0, maxval(abs(paths%ox)))
+    ry = max(0, maxval(abs(paths%oy)))
+  end subroutine {p}_slant_largest_offsets
+
+  !> Whether the geometry has a finite reach: the sun above the horizon and the paths crossing fewer than
+  !> 1e6 columns (a lower sun needs a halo no host has; the weights would not fit in memory).
+  pure logical function {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
+    integer, intent(in) :: nz
+    real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle
+{_DEGREE}
+    {p}_slant_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
+    if ({p}_slant_reachable) then
+      {p}_slant_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
+    end if
+  end function {p}_slant_reachable
+"""
+
+
+def _group_procedure(p):
+    """The weights regrouped by column offset (slant_path.gather_offsets), for the sums of slant_sum."""
+    return f"""
   !> The weights regrouped by column offset as slant_path.gather_offsets groups them, so that the sums of
   !> slant_path.slant_sum are added in numpy's order.
   pure subroutine {p}_slant_group_offsets(n_layer, paths)
@@ -197,26 +222,6 @@ def _common_procedures(p):
       end do
     end do
   end subroutine {p}_slant_group_offsets
-
-  !> The farthest column offsets along x and y of the weights (runtime.halo._largest_offsets).
-  pure subroutine {p}_slant_largest_offsets(paths, rx, ry)
-    type({p}_slant_weights), intent(in) :: paths
-    integer, intent(out) :: rx, ry
-    rx = max(0, maxval(abs(paths%ox)))
-    ry = max(0, maxval(abs(paths%oy)))
-  end subroutine {p}_slant_largest_offsets
-
-  !> Whether the geometry has a finite reach: the sun above the horizon and the paths crossing fewer than
-  !> 1e6 columns (a lower sun needs a halo no host has; the weights would not fit in memory).
-  pure logical function {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
-    integer, intent(in) :: nz
-    real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle
-{_DEGREE}
-    {p}_slant_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
-    if ({p}_slant_reachable) then
-      {p}_slant_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
-    end if
-  end function {p}_slant_reachable
 """
 
 
@@ -1046,6 +1051,8 @@ def slant_procedures(prefix, needed):
         return ""
     p = prefix
     parts = [_common_procedures(p)]
+    if families & {"path", "depth_above", "prior"}:
+        parts.append(_group_procedure(p))
     if families & {"path", "depth_above"}:
         parts.append(_path_procedures(p))
     if "path" in families:
