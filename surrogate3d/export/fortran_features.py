@@ -29,15 +29,17 @@ periodic domain, exactly as :func:`~surrogate3d.runtime.halo.subdomain_features`
 (stencils wrap around the block), and keep the own columns.  With a halo at least
 ``NAME_halo_needed`` wide no stencil of an own column wraps, so a whole periodic domain
 whose halo the host fills by periodic copy gives the features of ``compute_features``,
-and a sub-domain those of the whole domain.  Windows, edge distances and the bilinear
-samples are direct sums in Fortran where numpy uses cumulative sums; the values agree
-to rounding (``tests/export/test_fortran_features.py``).
+and a sub-domain those of the whole domain.  Neighbour windows are direct sums where
+numpy takes differences of cumulative sums, and ``ln(1 + tau)`` comes from Goldberg's
+formula (Fortran 2008 has no ``log1p``): these agree with numpy to rounding; the other
+features repeat numpy's arithmetic operation by operation
+(``tests/export/test_fortran_features.py``).
 
 Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is wrong,
 ``features`` is NaN on failure):
 
-1. the halo is narrower than a feature column reads (the column with the largest reach
-   named first, its reach and the halo);
+1. the halo is narrower than a feature column reads (the first of the columns reading
+   furthest named, with its reach and the halo);
 2. a non-finite value in a field the recipe reads (own columns and halo), in
    ``dx``, ``dy`` or in ``z_edge`` (the field and its ``(ix, iy[, k])`` index);
 3. a value outside its allowed range (``_ALLOWED_RANGE`` of
@@ -50,7 +52,11 @@ Fields the recipe does not read are neither read nor checked.  The feature
 ``independent_column_surface_downward_flux`` is formed as direct plus diffuse
 (``independent_column_fluxes(:, :, 2) + (:, :, 3)``), the fields the feature registry
 lists for it (numpy forms it so when the host fields hold the two parts only); slot 1 is
-not read.
+not read.  The recipe parameter ``host_fluxes`` changes no computation (as in numpy).
+
+``NAME_host_features`` is ``pure`` unless the recipe has slant-path features (whose
+procedures need not be); the module writes no module variable at run time (OpenMP-safe)
+and uses the intrinsic modules ``iso_fortran_env`` and ``ieee_arithmetic`` only.
 
 The slant-path family (``slant_optical_depth``, the direct-beam priors and
 interceptions) comes from :mod:`surrogate3d.export.fortran_slant`, imported only when a
@@ -58,6 +64,7 @@ recipe needs one of its features.
 """
 
 import re
+import textwrap
 
 from ..core.data_model import TARGETS
 from ..errors import ValidationError
@@ -502,7 +509,7 @@ def features_module_text(prefix, recipe, column_names):
     slant_needed = features - IMPLEMENTED_FEATURES
     declarations = slant.slant_declarations(prefix, slant_needed) if slant_needed else ""
     helpers = {"number_text", "check_layers", "check_plane"} | _helpers_of(features)
-    body = [_HEADER.format(p=prefix, recipe=recipe.name, n=len(columns),
+    body = [_HEADER.format(p=prefix, recipe=" ".join(str(recipe.name).split())[:60], n=len(columns),
                            names=_names_parameter(f"{prefix}_column_names", [name for name, _, _ in columns]),
                            declarations=declarations.rstrip("\n") + "\n" if declarations.strip() else ""),
             _halo_needed(prefix),
@@ -678,7 +685,8 @@ def _reach_statements(prefix, recipe, feature, radius, slant):
         return [f"reach_x(j) = floor(min(abs({d} * cos(solar_beam_azimuth * {prefix}_degree)) / dx, 1.0e9_real64)) + 1",
                 f"reach_y(j) = floor(min(abs({d} * sin(solar_beam_azimuth * {prefix}_degree)) / dy, 1.0e9_real64)) + 1"]
     if feature not in IMPLEMENTED_FEATURES:
-        return [slant.slant_reach_call(prefix, feature, "rx", "ry").strip(), "reach_x(j) = rx", "reach_y(j) = ry"]
+        return [*_indented(slant.slant_reach_call(prefix, feature, "rx", "ry"), ""), "reach_x(j) = rx",
+                "reach_y(j) = ry"]
     return []
 
 
@@ -696,7 +704,6 @@ def _feature_reach(prefix, recipe, columns, slant):
         declarations.append("    integer :: j")
     if uses_slant:
         declarations.append("    integer :: rx, ry")
-    body = "\n".join(lines)
     return f"""\
   ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach);
   ! -1 everywhere for a geometry {prefix}_host_features refuses.
@@ -705,8 +712,7 @@ def _feature_reach(prefix, recipe, columns, slant):
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
-{chr(10).join(declarations)}
-    status = 0
+{_text(declarations)}    status = 0
     call {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
                                  status, message)
     if (status /= 0) then
@@ -716,9 +722,8 @@ def _feature_reach(prefix, recipe, columns, slant):
     end if
     reach_x = 0
     reach_y = 0
-{body}
-  end subroutine {prefix}_feature_reach
-""".replace("\n\n  end subroutine", "\n  end subroutine")
+{_text(lines)}  end subroutine {prefix}_feature_reach
+"""
 
 
 def _check_geometry(prefix, keys):
@@ -775,6 +780,16 @@ def _check_geometry(prefix, keys):
 """
 
 
+def _text(lines):
+    """Lines of Fortran as text, each ending in a newline ("" for none)."""
+    return "".join(line + "\n" for line in lines)
+
+
+def _indented(text, indent):
+    """Fortran text from another generator (one statement or several lines) as lines, indented alike."""
+    return [indent + line for line in textwrap.dedent(text.strip("\n")).splitlines() if line.strip()]
+
+
 def _flux_slot(flux):
     """1-based plane of ``independent_column_fluxes`` holding a flux (the order of TARGETS)."""
     return TARGETS.index(flux) + 1
@@ -828,7 +843,7 @@ def _column_statements(prefix, recipe, feature, radius, slant):
     if feature == "cloud_top_height_upsun_minus_downsun":
         return [f"call {p}_cloud_top_sides(top, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, "
                 f"{_real(parameters['cloud_side_distance'])}, column)"]
-    return [slant.slant_call(prefix, feature, "column").strip()]
+    return _indented(slant.slant_call(prefix, feature, "column"), "")
 
 
 def _field_checks(prefix, keys):
@@ -863,6 +878,8 @@ def _host_features(prefix, recipe, columns, slant):
     """``NAME_host_features``: checks, derived block arrays, then one feature column at a time."""
     p = prefix
     features = {feature for _, feature, _ in columns}
+    # The slant-path procedures of the other generator need not be pure.
+    purity = "pure " if slant is None else ""
     flags, checks = _field_checks(prefix, _reads(features))
     derived, declarations = [], []
     if features & set(_LOG_TAU):
@@ -882,7 +899,7 @@ def _host_features(prefix, recipe, columns, slant):
     return f"""\
   ! Features of the nx x ny own columns from fields on the own columns and a halo of hx, hy
   ! columns (the block periodic); status and message as in the module's header.
-  subroutine {p}_host_features(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, &
+  {purity}subroutine {p}_host_features(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, &
       solar_beam_azimuth, z_edge, layer_cloud_fraction, layer_optical_depth, &
       layer_clear_sky_optical_depth, surface_albedo, total_cloud_fraction, column_optical_depth_mean, &
       column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message)
@@ -901,8 +918,7 @@ def _host_features(prefix, recipe, columns, slant):
 {flags}
     integer :: reach_x({p}_n_host_features), reach_y({p}_n_host_features), j, worst, short
     real(real64), allocatable :: column(:, :)
-{chr(10).join(declarations)}
-    character(len=400) :: text
+{_text(declarations)}    character(len=400) :: text
     features = ieee_value(0.0_real64, ieee_quiet_nan)
     status = 0
     message = ''
@@ -940,8 +956,6 @@ def _host_features(prefix, recipe, columns, slant):
     end if
 {checks}
     if (status /= 0) return
-{chr(10).join(derived)}
-    allocate (column(nx, ny))
-{chr(10).join(statements)}
-  end subroutine {p}_host_features
-""".replace("\n\n\n", "\n\n")
+{_text(derived)}    allocate (column(nx, ny))
+{_text(statements)}  end subroutine {p}_host_features
+"""

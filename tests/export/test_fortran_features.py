@@ -104,8 +104,14 @@ def _use_slant(monkeypatch, module):
         monkeypatch.delattr(surrogate3d.export, "fortran_slant")
 
 
+def sun_recipe():
+    """A feature that reads no field: every argument of the module unread (compiles without warnings)."""
+    return FeatureRecipe(["cos_solar_zenith"], name="sun")
+
+
 #: Test modules: (prefix, recipe).
-MODULES = {"shipped": ("shipped", shipped_recipe), "every": (LONG_PREFIX, every_recipe), "stub": ("stub", stub_recipe)}
+MODULES = {"shipped": ("shipped", shipped_recipe), "every": (LONG_PREFIX, every_recipe), "stub": ("stub", stub_recipe),
+           "sun": ("sun", sun_recipe)}
 
 
 def _program():
@@ -406,6 +412,20 @@ def test_bad_values_are_refused_with_field_and_index(program):
     low_sun = dict(fields, solar_zenith_angle=95.0)
     status, needed, message, _ = run(program, "shipped", low_sun, (5, 5))
     assert status == 4 and message.startswith("solar_zenith_angle = 95.") and needed == (-1, -1)
+    edges = dict(fields, z_edge=fields["z_edge"][[0, 2, 1, 3, 4, 5, 6]])
+    status, needed, message, _ = run(program, "shipped", edges, (5, 5))
+    assert status == 3 and message.startswith("z_edge(3) = ") and needed == (-1, -1)
+
+
+@needs_gfortran
+def test_fields_not_read_are_not_checked(program):
+    fields = with_halo(random_fields(85, 12, 14, zenith=60.0), 1, 1)
+    for key, value in fields.items():
+        if np.ndim(value) >= 2 and key != "z_edge":
+            fields[key] = np.full_like(value, np.nan)
+    status, needed, message, features = run(program, "sun", fields, (1, 1))
+    assert (status, message, needed) == (0, "", (0, 0))
+    np.testing.assert_allclose(features, 0.5, rtol=1e-15)
 
 
 @needs_gfortran
