@@ -654,13 +654,13 @@ def _halo_needed(prefix):
   ! The halo (columns along x and along y) the features need for this geometry, -1 for a
   ! geometry {prefix}_host_features refuses (status 2, 3 or 4).
   pure subroutine {prefix}_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                       hx_needed, hy_needed)
+        hx_needed, hy_needed)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: hx_needed, hy_needed
     integer :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
     call {prefix}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                reach_x, reach_y)
+        reach_x, reach_y)
     hx_needed = maxval(reach_x)
     hy_needed = maxval(reach_y)
   end subroutine {prefix}_halo_needed
@@ -708,13 +708,13 @@ def _feature_reach(prefix, recipe, columns, slant):
   ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach);
   ! -1 everywhere for a geometry {prefix}_host_features refuses.
   pure subroutine {prefix}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                         reach_x, reach_y)
+        reach_x, reach_y)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
 {_text(declarations)}    status = 0
     call {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                 status, message)
+        status, message)
     if (status /= 0) then
       reach_x = -1
       reach_y = -1
@@ -733,7 +733,7 @@ def _check_geometry(prefix, keys):
   ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 2 or 3
   ! for layer edges not finite or not strictly increasing (when the recipe reads them).
   pure subroutine {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                          status, message)
+        status, message)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(inout) :: status
@@ -930,11 +930,11 @@ def _host_features(prefix, recipe, columns, slant):
       return
     end if
     call {p}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                            status, message)
+        status, message)
     if (status /= 0) return
     ! The halo: the first of the columns with the largest reach beyond it is named.
     call {p}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                           reach_x, reach_y)
+        reach_x, reach_y)
     worst = 0
     short = 0
     do j = 1, {p}_n_host_features
