@@ -8,7 +8,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from surrogate3d.export import regenerated_fortran
+from surrogate3d.core.coefficient_file import read_coefficients
+from surrogate3d.export import host_files, regenerated_fortran
 from surrogate3d.runtime import load_coefficients
 
 SHIPPED = Path(__file__).resolve().parents[1] / "models" / "default"
@@ -42,6 +43,17 @@ def test_shipped_fortran_is_what_the_generator_makes(name):
         assert (SHIPPED / "fortran" / file_name).read_text() == text, (
             f"models/default/fortran/{file_name} ({key}) differs from the generator's; refresh it with "
             f"surrogate3d.export.refresh_fortran (models/README.md)")
+
+
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_shipped_host_interface_is_what_the_generator_makes(name):
+    # The features module, the one-call host module and its driver (with the heating-rate model).
+    files = host_files(read_coefficients(SHIPPED / f"{name}.coefficients.json"),
+                       read_coefficients(SHIPPED / "profile.coefficients.json"))
+    for file_name, text in files.items():
+        assert (SHIPPED / "fortran" / file_name).read_text() == text, (
+            f"models/default/fortran/{file_name} differs from the generator's; refresh it with "
+            f"surrogate3d.export.refresh_host_fortran (models/README.md)")
 
 
 @pytest.mark.skipif(shutil.which("gfortran") is None, reason="gfortran is not installed (make test installs it)")

@@ -18,6 +18,8 @@ def register(sub):
                    help="columns in the Fortran sample features file (default 64)")
     p.add_argument("--quiet", action="store_true", help="print nothing on success")
     p.set_defaults(func=run, interrupted="nothing was written")
+    from .host_fields_command import register as register_host_fields
+    register_host_fields(sub)
 
 
 def run(args):

@@ -20,6 +20,8 @@ from ..runtime.model import CorrectionModel
 from ..runtime.profile import layer_rows
 from .coefficients import build_document, write_coefficients
 from .fortran import fortran_files, fortran_name, read_features_file, write_fortran
+from .fortran_host import has_host_interface, host_files
+from .._atomic import write_text_atomic
 
 #: Subdirectory of the export directory that holds the Fortran files.
 FORTRAN_DIR = "fortran"
@@ -170,5 +172,62 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
     if model is not None and model not in models:
         raise ValidationError(f"model directory {str(model_dir)!r} has no model {model!r}; it has {sorted(models)}")
     names = [model] if model is not None else list(models)
-    return {name: export_model(models[name], out_dir, report_dir, fortran, pairs_path, n_sample_columns)
-            for name in names}
+    exported = {name: export_model(models[name], out_dir, report_dir, fortran, pairs_path, n_sample_columns)
+                for name in names}
+    if fortran:
+        profile = run.profile.name if run.profile is not None and run.profile.name in exported else None
+        profile_document = read_coefficients(exported[profile]["json"]) if profile else None
+        for paths in exported.values():
+            document = read_coefficients(paths["json"])
+            if has_host_interface(document):
+                paths.update(write_host_fortran(document, Path(out_dir) / FORTRAN_DIR, profile_document))
+    return exported
+
+
+def refresh_host_fortran(coefficients_path, fortran_dir, profile_coefficients_path=None):
+    """Rewrite the host interface of an exported column model with this version's generator.
+
+    ``models/default/fortran`` is refreshed this way (with the heating-rate model beside
+    it) whenever the generator changes; ``tests/test_shipped_model.py`` checks that it is.
+
+    Parameters
+    ----------
+    coefficients_path : str or Path
+        The column model's coefficient file.
+    fortran_dir : str or Path
+    profile_coefficients_path : str or Path, optional
+        The heating-rate model's coefficient file.
+
+    Returns
+    -------
+    dict of str -> Path
+        As :func:`write_host_fortran`.
+    """
+    profile = read_coefficients(profile_coefficients_path) if profile_coefficients_path else None
+    return write_host_fortran(read_coefficients(coefficients_path), fortran_dir, profile)
+
+
+def write_host_fortran(document, fortran_dir, profile_document=None):
+    """Write the host interface of a column model (:func:`surrogate3d.export.fortran_host.host_files`).
+
+    Parameters
+    ----------
+    document : dict
+        A column model's checked coefficient document.
+    fortran_dir : str or Path
+    profile_document : dict, optional
+        A heating-rate model's document, exported beside it.
+
+    Returns
+    -------
+    dict of str -> Path
+        ``host_module``, ``host_driver``, ``features_module`` (and ``profile_features_module``).
+    """
+    prefix = fortran_name(document["model"]["name"])
+    keys = {f"{prefix}_host.f90": "host_module", f"{prefix}_host_driver.f90": "host_driver",
+            f"{prefix}_features.f90": "features_module"}
+    paths = {}
+    for name, text in host_files(document, profile_document).items():
+        write_text_atomic(Path(fortran_dir) / name, text)
+        paths[keys.get(name, "profile_features_module")] = Path(fortran_dir) / name
+    return paths

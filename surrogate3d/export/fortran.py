@@ -43,7 +43,7 @@ from ..core.config import NEAR_CONSTANT
 from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD, clear_sky_gate,
                                        target_transforms)
 from ..core.data_model import TARGETS
-from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES
+from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES, SAME_PATH_TOLERANCE
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -609,7 +609,7 @@ _LAYER_FEATURE_CODE = {
     "layer_log_optical_depth_above": "log(1.0_real64 + above(k))",
     "layer_direct_beam_transmittance": "vertical",
     "layer_slant_direct_beam_transmittance": "slanted",
-    "layer_slant_minus_vertical_transmittance": "slanted - vertical",
+    "layer_slant_minus_vertical_transmittance": "difference",
     "independent_column_layer_absorption_density": "1000.0_real64 * absorption(k, i) / thickness",
     "independent_column_column_absorption": "column_absorption",
 }
@@ -635,7 +635,7 @@ def _profile_declarations(prefix, document):
     return f"""  !> A heating-rate (profile) model: the last n_layer_features features describe one host layer.
   integer, parameter, public :: {prefix}_n_layer_features = {len(layer)}
   integer, parameter, public :: {prefix}_n_column_features = {prefix}_n_features - {prefix}_n_layer_features
-  public :: {prefix}_correct_profiles
+  public :: {prefix}_correct_profiles, {prefix}_match_column_integral
 """
 
 
@@ -666,8 +666,8 @@ def _profile_procedure(prefix, document):
     real(real64), intent(in), optional :: column_correction(n_columns)
     real(real64) :: row({prefix}_n_features), density(1), above(n_layers)
     real(real64) :: tau, acc, thickness, middle, cloud_top, cloud_base, column_absorption, vertical, slanted
-    real(real64) :: weight_sum, profile_sum, residual, share
-    integer :: i, k, n_present
+    real(real64) :: difference
+    integer :: i, k
     logical :: any_cloud
     do i = 1, n_columns
       any_cloud = .false.
@@ -704,6 +704,9 @@ def _profile_procedure(prefix, document):
         middle = 0.5_real64 * (bottom(k, i) + top(k, i))
         vertical = exp(-above(k) / cos_zenith(i))
         slanted = exp(-zero_nan(slant(k, i)))
+        ! The same path (clear layers above the cloud): 0, not the round-off of exp.
+        difference = slanted - vertical
+        if (abs(difference) <= {SAME_PATH_TOLERANCE!r}_real64 * max(slanted, vertical)) difference = 0.0_real64
 {rows}
         call {prefix}_correct_column(model, row, density)
         if (absorption(k, i) > 0.0_real64) then
@@ -712,7 +715,22 @@ def _profile_procedure(prefix, document):
           profile(k, i) = 0.0_real64
         end if
       end do
-      if (.not. present(column_correction)) cycle
+    end do
+    if (present(column_correction)) then
+      call {prefix}_match_column_integral(n_columns, n_layers, absorption, column_correction, profile)
+    end if
+  end subroutine {prefix}_correct_profiles
+
+  !> Make every column's layer corrections sum to its column absorption correction: the residual is shared
+  !> among the layers in proportion to their independent-column absorption (equally where the column
+  !> absorbs nothing); NaN layers (absent) stay NaN. Energy is conserved to round-off.
+  pure subroutine {prefix}_match_column_integral(n_columns, n_layers, absorption, column_correction, profile)
+    integer, intent(in) :: n_columns, n_layers
+    real(real64), intent(in) :: absorption(n_layers, n_columns), column_correction(n_columns)
+    real(real64), intent(inout) :: profile(n_layers, n_columns)
+    real(real64) :: weight_sum, profile_sum, residual, share
+    integer :: i, k, n_present
+    do i = 1, n_columns
       weight_sum = 0.0_real64
       profile_sum = 0.0_real64
       n_present = 0
@@ -733,7 +751,7 @@ def _profile_procedure(prefix, document):
         profile(k, i) = profile(k, i) + residual * share
       end do
     end do
-  end subroutine {prefix}_correct_profiles
+  end subroutine {prefix}_match_column_integral
 
   !> x, or 0 where x is NaN.
   elemental real(real64) function zero_nan(x)

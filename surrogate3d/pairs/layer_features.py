@@ -26,7 +26,8 @@ LAYER_FEATURES = {
     "layer_slant_direct_beam_transmittance": ("1", "exp(-optical depth along the path from the layer middle toward "
                                                    "the sun through the neighbouring columns)"),
     "layer_slant_minus_vertical_transmittance": ("1", "layer_slant_direct_beam_transmittance minus "
-                                                      "layer_direct_beam_transmittance"),
+                                                      "layer_direct_beam_transmittance, 0 where they agree to "
+                                                      "1e-12 relative"),
     "independent_column_layer_absorption_density": ("km-1", "independent-column absorption of the layer per km "
                                                             "of its thickness (fraction of the incident flux)"),
     "independent_column_column_absorption": ("1", "independent-column absorption of the whole host column"),
@@ -34,6 +35,11 @@ LAYER_FEATURES = {
 
 #: Smallest layer extinction [km-1] the log feature resolves (clear air is above it).
 EXTINCTION_FLOOR = 1e-4
+
+#: Slant and vertical transmittances that agree to this relative tolerance are the same path
+#: (clear layers above the cloud): their difference is set to 0, not left to the round-off of
+#: one exponential implementation or another, on which a tree split near 0 would turn.
+SAME_PATH_TOLERANCE = 1e-12
 
 
 def layer_sum(values):
@@ -111,6 +117,8 @@ def layer_features(bottom, top, optical_depth, cloud_fraction, independent_colum
     absorbed = arrays["independent_column_absorption"]
     vertical = np.exp(-above / mu0[:, None])
     slanted = np.exp(-np.nan_to_num(arrays["slant_optical_depth_above"]))
+    difference = slanted - vertical
+    difference[np.abs(difference) <= SAME_PATH_TOLERANCE * np.maximum(slanted, vertical)] = 0.0
     out = np.stack([
         middle - cloud_top[:, None],
         middle - cloud_base[:, None],
@@ -119,7 +127,7 @@ def layer_features(bottom, top, optical_depth, cloud_fraction, independent_colum
         np.log(1.0 + above),
         vertical,
         slanted,
-        slanted - vertical,
+        difference,
         1000.0 * absorbed / thickness,
         np.broadcast_to(layer_sum(absorbed)[:, None], absorbed.shape),
     ], axis=-1)

@@ -100,7 +100,7 @@ module profile_correction
   !> A heating-rate (profile) model: the last n_layer_features features describe one host layer.
   integer, parameter, public :: profile_n_layer_features = 10
   integer, parameter, public :: profile_n_column_features = profile_n_features - profile_n_layer_features
-  public :: profile_correct_profiles
+  public :: profile_correct_profiles, profile_match_column_integral
 
 contains
 
@@ -124,8 +124,8 @@ contains
     real(real64), intent(in), optional :: column_correction(n_columns)
     real(real64) :: row(profile_n_features), density(1), above(n_layers)
     real(real64) :: tau, acc, thickness, middle, cloud_top, cloud_base, column_absorption, vertical, slanted
-    real(real64) :: weight_sum, profile_sum, residual, share
-    integer :: i, k, n_present
+    real(real64) :: difference
+    integer :: i, k
     logical :: any_cloud
     do i = 1, n_columns
       any_cloud = .false.
@@ -162,6 +162,9 @@ contains
         middle = 0.5_real64 * (bottom(k, i) + top(k, i))
         vertical = exp(-above(k) / cos_zenith(i))
         slanted = exp(-zero_nan(slant(k, i)))
+        ! The same path (clear layers above the cloud): 0, not the round-off of exp.
+        difference = slanted - vertical
+        if (abs(difference) <= 1e-12_real64 * max(slanted, vertical)) difference = 0.0_real64
         ! layer_height_above_cloud_top
         row(profile_n_column_features + 1) = middle - cloud_top
         ! layer_height_above_cloud_base
@@ -177,7 +180,7 @@ contains
         ! layer_slant_direct_beam_transmittance
         row(profile_n_column_features + 7) = slanted
         ! layer_slant_minus_vertical_transmittance
-        row(profile_n_column_features + 8) = slanted - vertical
+        row(profile_n_column_features + 8) = difference
         ! independent_column_layer_absorption_density
         row(profile_n_column_features + 9) = 1000.0_real64 * absorption(k, i) / thickness
         ! independent_column_column_absorption
@@ -189,7 +192,22 @@ contains
           profile(k, i) = 0.0_real64
         end if
       end do
-      if (.not. present(column_correction)) cycle
+    end do
+    if (present(column_correction)) then
+      call profile_match_column_integral(n_columns, n_layers, absorption, column_correction, profile)
+    end if
+  end subroutine profile_correct_profiles
+
+  !> Make every column's layer corrections sum to its column absorption correction: the residual is shared
+  !> among the layers in proportion to their independent-column absorption (equally where the column
+  !> absorbs nothing); NaN layers (absent) stay NaN. Energy is conserved to round-off.
+  pure subroutine profile_match_column_integral(n_columns, n_layers, absorption, column_correction, profile)
+    integer, intent(in) :: n_columns, n_layers
+    real(real64), intent(in) :: absorption(n_layers, n_columns), column_correction(n_columns)
+    real(real64), intent(inout) :: profile(n_layers, n_columns)
+    real(real64) :: weight_sum, profile_sum, residual, share
+    integer :: i, k, n_present
+    do i = 1, n_columns
       weight_sum = 0.0_real64
       profile_sum = 0.0_real64
       n_present = 0
@@ -210,7 +228,7 @@ contains
         profile(k, i) = profile(k, i) + residual * share
       end do
     end do
-  end subroutine profile_correct_profiles
+  end subroutine profile_match_column_integral
 
   !> x, or 0 where x is NaN.
   elemental real(real64) function zero_nan(x)
