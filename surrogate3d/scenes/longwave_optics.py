@@ -199,9 +199,9 @@ def _cloud_table():
     mass = weights @ (4.0 / 3.0 * np.pi * _MIE_RADII ** 3) * WATER_DENSITY
     shape = (len(LONGWAVE_BANDS), radii.size)
     extinction, scattering, asymmetry = np.zeros(shape), np.zeros(shape), np.zeros(shape)
+    cross = np.pi * _MIE_RADII ** 2
     for i, band in enumerate(LONGWAVE_BANDS):
         total = 0.0
-        cross = np.pi * _MIE_RADII ** 2
         for nu, step in zip(*_band_quadrature(band)):
             planck = step * float(planck_radiance(CLOUD_WEIGHTING_TEMPERATURE, nu))
             q_ext, q_sca, g = mie_efficiencies(2.0 * np.pi * _MIE_RADII * nu, water_refractive_index(nu))

@@ -227,11 +227,11 @@ def longwave_two_stream(tau, ssa, g, temperature, surface_temperature, surface_e
     g = broadcast_to_shape("g", g, shape, "tau's shape")
     t_air = _checked_temperature(temperature, lead, nz)
     columns = {}
-    for name, value, low, high in (("surface_temperature", surface_temperature, 0.0, None),
-                                   ("surface_emissivity", surface_emissivity, 0.0, 1.0),
-                                   ("top_downward_flux", top_downward_flux, 0.0, None)):
+    for name, value, low, high, low_open in (("surface_temperature", surface_temperature, 0.0, None, True),
+                                             ("surface_emissivity", surface_emissivity, 0.0, 1.0, False),
+                                             ("top_downward_flux", top_downward_flux, 0.0, None, False)):
         array = as_float_array(name, value)
-        check_array(name, array, low, high, low_open=name == "surface_temperature")
+        check_array(name, array, low, high, low_open=low_open)
         columns[name] = broadcast_to_shape(name, array, lead, "the columns' shape")
     diffusivity = check_number("diffusivity", diffusivity, 1.0, 2.0)
     low = as_float_array("wavenumber_low", wavenumber_low)
