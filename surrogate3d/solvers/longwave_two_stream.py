@@ -68,8 +68,8 @@ def _layers(tau, ssa, g, diffusivity):
     return reflectance, transmittance, emissivity, gradient
 
 
-def _solve_block(tau, ssa, g, b_top, b_bottom, b_surface, emissivity_surface, top_flux, diffusivity):
-    """Adding solution for columns as (nz, m) arrays; surface and top terms are (m,)."""
+def _adding(tau, ssa, g, b_top, b_bottom, b_surface, emissivity_surface, top_flux, diffusivity):
+    """Adding solution for columns given layer first, (nz, m); surface and top terms are (m,)."""
     nz, m = tau.shape
     r, t, emissivity, gradient = _layers(tau, ssa, g, diffusivity)
     slope = b_bottom - b_top
@@ -251,7 +251,7 @@ def longwave_two_stream(tau, ssa, g, temperature, surface_temperature, surface_e
     def layer_first(a, width):
         return np.ascontiguousarray(np.broadcast_to(a, lead + (width,)).reshape(-1, width).T)
 
-    up, down = _solve_block(layer_first(tau, nz), layer_first(ssa, nz), layer_first(g, nz),
+    up, down = _adding(layer_first(tau, nz), layer_first(ssa, nz), layer_first(g, nz),
                             layer_first(b_top, nz), layer_first(b_bottom, nz), b_surface.ravel(),
                             columns["surface_emissivity"].ravel(), columns["top_downward_flux"].ravel(),
                             diffusivity)
