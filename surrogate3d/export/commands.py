@@ -46,4 +46,7 @@ def run(args):
         if "module" in paths:
             print(f"  fortran: {paths['module'].name}, {paths['driver'].name}, {paths['coefficients'].name}, "
                   f"{paths['sample_features'].name}")
+        if "host_module" in paths:
+            host = [paths[key].name for key in ("features_module", "host_module", "host_driver", "halo")]
+            print(f"  host interface: {', '.join(host)}")
     print(f"wrote {args.out}")

@@ -221,11 +221,11 @@ def write_host_fortran(document, fortran_dir, profile_document=None):
     Returns
     -------
     dict of str -> Path
-        ``host_module``, ``host_driver``, ``features_module`` (and ``profile_features_module``).
+        ``host_module``, ``host_driver``, ``features_module``, ``halo`` (and ``profile_features_module``).
     """
     prefix = fortran_name(document["model"]["name"])
     keys = {f"{prefix}_host.f90": "host_module", f"{prefix}_host_driver.f90": "host_driver",
-            f"{prefix}_features.f90": "features_module"}
+            f"{prefix}_features.f90": "features_module", f"{prefix}_halo.md": "halo"}
     paths = {}
     for name, text in host_files(document, profile_document).items():
         write_text_atomic(Path(fortran_dir) / name, text)

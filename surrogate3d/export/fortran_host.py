@@ -560,8 +560,9 @@ end program {prefix}_host_driver
 
 
 def host_files(document, profile_document=None):
-    """``{file name: text}`` of the host interface of a column model: its features module, ``NAME_host`` and
-    the example driver (and the heating-rate model's features module when its features differ).
+    """``{file name: text}`` of the host interface of a column model: its features module, ``NAME_host``, the
+    example driver, the halo statement ``NAME_halo.md`` (:mod:`surrogate3d.export.halo_statement`) and the
+    heating-rate model's features module when its features differ.
 
     Parameters
     ----------
@@ -577,6 +578,7 @@ def host_files(document, profile_document=None):
     from ..runtime.model import CorrectionModel
     from .fortran import fortran_name
     from .fortran_features import features_module_text
+    from .halo_statement import halo_statement
 
     prefix = fortran_name(document["model"]["name"])
     model = CorrectionModel.from_document(document)
@@ -590,4 +592,5 @@ def host_files(document, profile_document=None):
                                                                            profile.column_feature_names)
     files[f"{prefix}_host.f90"] = host_module_text(prefix, document, profile_prefix, profile_document)
     files[f"{prefix}_host_driver.f90"] = host_driver_text(prefix, profile_prefix)
+    files[f"{prefix}_halo.md"] = halo_statement(model.name, model.recipe, model.column_feature_names)
     return files

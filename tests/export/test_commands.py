@@ -25,6 +25,9 @@ def test_export_one_model_with_fortran(built, tmp_path, capsys):
     assert sorted(p.name for p in out.iterdir()) == ["fortran", "ridge.coefficients.json", "ridge.coefficients.nc"]
     assert (out / "fortran" / "ridge_sample_features.txt").read_text().startswith("5 ")
     assert load_coefficients(out / "ridge.coefficients.json").document["skill"] is not None
+    # The drop-in host interface of a column model of all five targets, and its halo statement.
+    assert "host interface: ridge_features.f90, ridge_host.f90, ridge_host_driver.f90, ridge_halo.md" in printed
+    assert "| `cloud_fraction` | its own column | 0, 0 |" in (out / "fortran" / "ridge_halo.md").read_text()
 
 
 def test_export_all_models_quietly(built, tmp_path, capsys):
