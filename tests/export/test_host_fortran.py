@@ -116,6 +116,31 @@ def test_guide_commands_give_the_numpy_corrections_whole_and_split(guide_run):
     assert np.isfinite(whole).all()
 
 
+def _run_driver(guide_run, files):
+    fortran = SHIPPED / "fortran"
+    done = subprocess.run([str(guide_run / "host-demo" / "host_driver"), str(fortran / "boosted.coefficients.txt"),
+                           "--profile", str(fortran / "profile.coefficients.txt"), *(str(f) for f in files)],
+                          capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    rows = np.array([[float(v) for v in line.split()] for line in done.stdout.splitlines()])
+    return rows[np.lexsort((rows[:, 0], rows[:, 1])), 2:]
+
+
+@pytest.mark.parametrize("zenith, azimuth", [(20.0, 200.0), (75.0, 123.0)])
+def test_other_suns_whole_and_split_equal_numpy(guide_run, tmp_path, zenith, azimuth):
+    # High and low sun, beams all around: the halo grows with the slant paths (75 degrees:
+    # the largest the 4 km scene needs), and the four sub-domains still give the whole domain.
+    scene = guide_run / "host-demo" / "scenes" / "open_cells_00000.nc"
+    out = tmp_path / "fields"
+    assert main(["host-fields", str(scene), "--model", str(SHIPPED / "boosted.coefficients.json"),
+                 str(SHIPPED / "profile.coefficients.json"), "--zenith", str(zenith), "--azimuth", str(azimuth),
+                 "--split", "2", "2", "--out", str(out), "--quiet"]) == 0
+    whole = _run_driver(guide_run, [out / "whole.txt"])
+    split = _run_driver(guide_run, sorted(out.glob("subdomain_*.txt")))
+    np.testing.assert_allclose(split, whole, rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(whole, _numpy_reference(out / "whole.txt"), rtol=1e-10, atol=1e-12)
+
+
 def test_narrow_halo_is_refused_naming_the_feature(guide_run, tmp_path):
     fields = guide_run / "host-demo" / "fields"
     narrow = tmp_path / "narrow.txt"
