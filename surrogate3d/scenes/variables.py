@@ -26,7 +26,7 @@ VARIABLE_SPEC = {
         ("z", "y", "x"), "kg m-3", "cloud liquid water content", "mass_concentration_of_cloud_liquid_water_in_air"),
     "effective_radius": (("z", "y", "x"), "m", "cloud droplet effective radius",
                          "effective_radius_of_cloud_liquid_water_particles"),
-    "air_temperature": (("z", "y", "x"), "K", "air temperature of the cell", "air_temperature"),
+    "air_temperature": (("z", "y", "x"), "K", "air temperature", "air_temperature"),
     "air_pressure": (("z_edge",), "Pa", "air pressure at layer edges", "air_pressure"),
     "specific_humidity": (("z", "y", "x"), "kg kg-1", "mass of water vapour per mass of moist air",
                           "specific_humidity"),
