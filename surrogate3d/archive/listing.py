@@ -9,9 +9,10 @@ from .leftovers import find_leftovers, orphaned_pending_dirs
 from .locking import archive_in_use
 from .netcdf import read_result_flags, read_scene, scene_files
 from .pending import pending_keys
+from ..scenes.variables import missing_longwave_variables
 from .results import completed
 
-COLUMNS = ["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands", "results", "pending", "status"]
+COLUMNS = ["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands", "longwave", "results", "pending", "status"]
 
 
 def list_archive(archive_dir):
@@ -20,8 +21,10 @@ def list_archive(archive_dir):
     Returns
     -------
     pandas.DataFrame
-        Columns: file, regime, seed, nx, ny, nz, dx_m, bands, results (solver@zenith/azimuth
-        entries, comma separated), pending (results of an interrupted run not yet merged:
+        Columns: file, regime, seed, nx, ny, nz, dx_m, bands, longwave ("yes" when the scene
+        has the fields of longwave radiation: temperatures, humidity, surface emissivity; "no"
+        for files written before longwave support), results (solver@zenith/azimuth entries,
+        comma separated), pending (results of an interrupted run not yet merged:
         run ``surrogate3d simulate`` again to merge them), status ("ok", or "unreadable: ..."
         or "invalid: ..." with the first problem).
     """
@@ -32,7 +35,8 @@ def list_archive(archive_dir):
             scene = read_scene(path, results=False, validate=False)
             row.update(regime=scene.attrs.get("regime", ""), seed=scene.attrs.get("seed", ""),
                        nx=scene.sizes.get("x"), ny=scene.sizes.get("y"), nz=scene.sizes.get("z"),
-                       dx_m=scene.attrs.get("dx_m"), bands=scene.sizes.get("band"))
+                       dx_m=scene.attrs.get("dx_m"), bands=scene.sizes.get("band"),
+                       longwave="no" if missing_longwave_variables(scene) else "yes")
             done = completed(read_result_flags(path))
             row.update(results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done), pending=len(pending_keys(path)))
         except (FormatError, OSError, ValueError, KeyError) as exc:

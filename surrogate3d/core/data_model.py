@@ -46,8 +46,10 @@ BASELINES = {
     "nonlocal_independent_pixel": Baseline("non-local independent pixel", "baseline_nonlocal_independent_pixel"),
 }
 
-#: Scene files (``docs/archive-format.md``).
-SCENE_FORMAT_VERSION = "1.1"
+#: Scene files (``docs/archive-format.md``).  1.2 added the optional longwave fields
+#: (``specific_humidity``, ``surface_temperature``, ``surface_longwave_emissivity``) and
+#: ``air_temperature`` per cell; a 1.1 file's layer profile of ``air_temperature`` still reads.
+SCENE_FORMAT_VERSION = "1.2"
 #: Pair tables (``docs/pairs-format.md``).
 PAIRS_FORMAT_VERSION = "1.1"
 #: Feature recipes (and the feature definitions they name).

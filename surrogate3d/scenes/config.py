@@ -16,16 +16,17 @@ from pathlib import Path
 from ..core.validation import check_integer, check_option
 from ..errors import FormatError, ParameterError
 from .draws import check_draws, contains_draw, draw_stream, is_draw, resolve
-from .generator import generate_scene
+from .generator import SURFACE_TEMPERATURE_RANGE, generate_scene
 from .optics import BANDS
 from .optics_sets import OPTICS_SETS, get_optics_set
 from .regimes import REGIMES, CloudLayer, get_regime
 from .structures import structure_from_dict
-from .surface import SURFACE_PATTERNS, SurfacePattern
+from .surface import SURFACE_LONGWAVE_EMISSIVITY, SURFACE_PATTERNS, SurfacePattern
 
 TOP_KEYS = {"out", "seed", "count", "grid", "optics", "regime"}
 GRID_KEYS = {"nx", "ny", "nz", "dx", "top", "z_edge"}
-OPTICS_KEYS = {"bands", "surface_albedo", "surface_pressure", "gas_absorption", "optics_set", "surface_pattern"}
+OPTICS_KEYS = {"bands", "surface_albedo", "surface_pressure", "gas_absorption", "optics_set", "surface_pattern",
+               "surface_temperature", "surface_longwave_emissivity", "surface_relative_humidity"}
 SURFACE_PATTERN_KEYS = {f.name for f in fields(SurfacePattern)}
 #: Declared ranges of the scenes per regime and of the first seed.
 COUNT_RANGE = (1, 100_000)
@@ -231,6 +232,14 @@ def _check_albedo(value, where):
             raise ParameterError(f"{where} names band {unknown[0]!r}; bands are {', '.join(BANDS)}")
 
 
+def _check_emissivity(value, where):
+    """An emissivity setting (possibly drawn): numbers in [0, 1] or kinds of surface."""
+    check_draws(value, where, 0.0, 1.0)
+    for option in _choices(value):
+        if isinstance(option, str):
+            check_option(where, option, SURFACE_LONGWAVE_EMISSIVITY)
+
+
 def _choices(value):
     """The values a (possibly drawn) setting can take."""
     if is_draw(value) and "choice" in value:
@@ -241,12 +250,19 @@ def _choices(value):
 def _check_optics(optics, where):
     """Check the [optics] table up front: draws, ranges, optics-set names, surface pattern keys."""
     for key, value in optics.items():
-        if key not in ("surface_albedo", "surface_pressure", "surface_pattern"):
+        if key not in ("surface_albedo", "surface_pressure", "surface_pattern", "surface_temperature",
+                       "surface_longwave_emissivity", "surface_relative_humidity"):
             check_draws(value, f"{where} {key}")
     if "surface_albedo" in optics:
         _check_albedo(optics["surface_albedo"], f"{where} surface_albedo")
     if "surface_pressure" in optics:
         check_draws(optics["surface_pressure"], f"{where} surface_pressure", 10000.0, 120000.0)
+    if "surface_temperature" in optics:
+        check_draws(optics["surface_temperature"], f"{where} surface_temperature", *SURFACE_TEMPERATURE_RANGE)
+    if "surface_relative_humidity" in optics:
+        check_draws(optics["surface_relative_humidity"], f"{where} surface_relative_humidity", 0.0, 1.0)
+    if "surface_longwave_emissivity" in optics:
+        _check_emissivity(optics["surface_longwave_emissivity"], f"{where} surface_longwave_emissivity")
     if "optics_set" in optics:
         for name in _choices(optics["optics_set"]):
             check_option(f"{where} optics_set", name, OPTICS_SETS)
@@ -260,6 +276,8 @@ def _check_optics(optics, where):
             check_option(f"{where} surface_pattern kind", kind, SURFACE_PATTERNS)
         if "contrast_albedo" in pattern:
             _check_albedo(pattern["contrast_albedo"], f"{where} surface_pattern contrast_albedo")
+        if "contrast_emissivity" in pattern:
+            _check_emissivity(pattern["contrast_emissivity"], f"{where} surface_pattern contrast_emissivity")
         check_draws(pattern.get("scale", 1.0), f"{where} surface_pattern scale", 1e-9, 1e7)
         check_draws(pattern.get("fraction", 0.5), f"{where} surface_pattern fraction", 0.0, 1.0)
 

@@ -16,11 +16,16 @@ For each cloud layer of a regime (:mod:`surrogate3d.scenes.regimes`):
    that the mean cloud optical depth of the layer's cloudy columns equals its target;
 5. a tilted layer is shifted level by level in proportion to the height above its base.
 
-Layers are merged, the standard atmosphere gives temperature and pressure, and
+Layers are merged, the standard atmosphere gives temperature and pressure, the
+relative-humidity profile of Manabe and Wetherald (1967) the water vapour (saturated in
+cloud), and
 :mod:`surrogate3d.scenes.optics` gives the per-band extinction, single-scattering
 albedo and asymmetry parameter of cloud, Rayleigh scattering and an optional gas (or a
 named optics set, :mod:`surrogate3d.scenes.optics_sets`).  The surface albedo is
-uniform or a pattern of two surfaces (:mod:`surrogate3d.scenes.surface`).
+uniform or a pattern of two surfaces (:mod:`surrogate3d.scenes.surface`), whose
+longwave emissivity shares the pattern; the surface temperature is uniform.  Nothing of
+the longwave fields draws random numbers: the shortwave fields of a seed are those of
+the generator before it had them.
 """
 
 import json
@@ -31,12 +36,13 @@ import numpy as np
 from ..core.validation import check_integer, check_number
 from ..errors import ParameterError
 from . import optics
-from .atmosphere import MAX_HEIGHT, SEA_LEVEL_PRESSURE, standard_profile
+from .atmosphere import (MAX_HEIGHT, SEA_LEVEL_PRESSURE, SURFACE_RELATIVE_HUMIDITY, specific_humidity,
+                         standard_humidity, standard_pressure, standard_profile, standard_temperature)
 from .model import make_scene
 from .optics_sets import get_optics_set
 from .random_fields import gaussian_random_field, quantile_mask, random_generator
 from .regimes import get_regime
-from .surface import albedo_map, surface_pattern_from_dict
+from .surface import albedo_map, longwave_emissivity, surface_pattern_from_dict
 
 #: Adiabatic rate of increase of liquid water content with height [kg m-3 m-1]: about
 #: 2 g m-3 per km for cloud bases near 10 degC and 900 hPa (common practice; it
@@ -48,6 +54,11 @@ ADIABATIC_LWC_LAPSE_RATE = 2.0e-6
 DEFAULT_GRID = {"nx": 64, "ny": 64, "nz": 40, "dx": 100.0}
 #: Default Lambertian surface albedo [1] (dark ocean, common practice).
 DEFAULT_SURFACE_ALBEDO = 0.06
+#: Default surface for the longwave emissivity: ocean, as the default albedo.
+DEFAULT_SURFACE_EMISSIVITY = "ocean"
+#: Allowed surface (skin) temperatures [K]: about the coldest and hottest measured on Earth
+#: (common practice for a plausibility range).
+SURFACE_TEMPERATURE_RANGE = (150.0, 350.0)
 #: Default scale height of the optional gas absorber [m] (water vapour, common practice).
 DEFAULT_GAS_SCALE_HEIGHT = 2000.0
 #: Smallest effective radius of cloud droplets [m] (GCM cloud optics bound their
@@ -255,6 +266,16 @@ def _layer_water(layer, z_edge, shape, dx, rng_of, upper_base=None):
     return lwc, r_eff, mask, float(scale), np.where(mask, base, np.nan), drawn
 
 
+def _humidity(z_edge, temperature, cloudy, surface_pressure, surface_relative_humidity):
+    """Specific humidity [kg kg-1] of every cell, shape of ``cloudy``: the profile of
+    Manabe and Wetherald (1967) in clear air, saturation at the layer's temperature and
+    pressure in cloudy cells (cloud droplets coexist with saturated vapour)."""
+    clear = standard_humidity(z_edge, surface_pressure, surface_relative_humidity)
+    centres = 0.5 * (z_edge[1:] + z_edge[:-1])
+    saturated = specific_humidity(temperature, standard_pressure(centres, surface_pressure), 1.0)
+    return np.where(cloudy, saturated[:, None, None], clear[:, None, None])
+
+
 def _regime_key(name):
     """A stable integer naming the regime's random streams (same seed, different regimes differ)."""
     return zlib.crc32(name.encode("utf-8"))
@@ -264,7 +285,9 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
                    top=None, z_edge=None, cloud_fraction=None, mean_optical_depth=None,
                    cloud_top_variability=None, bands=None, surface_albedo=DEFAULT_SURFACE_ALBEDO,
                    surface_pressure=SEA_LEVEL_PRESSURE, gas_absorption=None, optics_set=None,
-                   surface_pattern=None, validate=True):
+                   surface_pattern=None, surface_temperature=None,
+                   surface_longwave_emissivity=DEFAULT_SURFACE_EMISSIVITY,
+                   surface_relative_humidity=SURFACE_RELATIVE_HUMIDITY, validate=True):
     """Generate a synthetic 3D cloud scene of a regime.
 
     Parameters
@@ -308,8 +331,20 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     surface_pattern : SurfacePattern or dict, optional
         How a second surface shares the domain with the first
         (:class:`surrogate3d.scenes.surface.SurfacePattern`: ``kind`` uniform, patches
-        or coastline, ``contrast_albedo``, ``scale`` [m], ``fraction`` [1]); drawn from
-        the seed.  Default: ``surface_albedo`` everywhere.
+        or coastline, ``contrast_albedo``, ``scale`` [m], ``fraction`` [1],
+        ``contrast_emissivity``); drawn from the seed.  Default: ``surface_albedo``
+        everywhere.
+    surface_temperature : float, optional
+        Radiative (skin) temperature of the surface [K], in [150, 350]; default the
+        standard atmosphere's at the surface, 288.15 K.  The air temperature keeps the
+        standard profile.
+    surface_longwave_emissivity : float or str
+        Broadband longwave emissivity of the (first) surface [1], in [0, 1], or a kind of
+        surface of :data:`surrogate3d.scenes.surface.SURFACE_LONGWAVE_EMISSIVITY`
+        (default ``"ocean"``, 0.99).
+    surface_relative_humidity : float
+        Relative humidity at the surface [1] of the Manabe and Wetherald (1967) profile,
+        in [0, 1] (default 0.77).
     validate : bool
         Run the scene validator on the result.
 
@@ -317,8 +352,10 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     -------
     xarray.Dataset
         A scene (:func:`surrogate3d.scenes.make_scene`) with ``liquid_water_content``,
-        ``effective_radius`` (0 where there is no water), ``air_temperature`` and
-        ``air_pressure``, and attributes ``regime``, ``seed``, ``title``,
+        ``effective_radius`` (0 where there is no water), ``air_temperature`` (the
+        standard profile in every column, clouds included), ``air_pressure``,
+        ``specific_humidity`` (saturated in cloudy cells), ``surface_temperature`` and
+        ``surface_longwave_emissivity``, and attributes ``regime``, ``seed``, ``title``,
         ``cloud_fraction``, ``mean_optical_depth``, ``cloud_top_variability`` (of the
         main layer), ``total_cloud_fraction`` (projected, all layers),
         ``optics_set`` (when one is given) and ``generator_parameters`` (JSON of every
@@ -336,6 +373,8 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     J. Atmos. Sci. 51, 1823-1842.
     Brenguier, J.-L. et al. (2000), Radiative properties of boundary layer clouds:
     droplet effective radius versus number concentration, J. Atmos. Sci. 57, 803-821.
+    Manabe, S. and R. T. Wetherald (1967), Thermal equilibrium of the atmosphere with a
+    given distribution of relative humidity, J. Atmos. Sci. 24, 241-259.
 
     Examples
     --------
@@ -352,6 +391,11 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         top = reg.top
     edges = vertical_grid(nz, top, z_edge)
     surface_pressure = check_number("surface_pressure", surface_pressure, 10000.0, 120000.0)
+    if surface_temperature is None:
+        surface_temperature = float(standard_temperature(0.0))
+    surface_temperature = check_number("surface_temperature", surface_temperature, *SURFACE_TEMPERATURE_RANGE)
+    emissivity = longwave_emissivity(surface_longwave_emissivity)
+    surface_relative_humidity = check_number("surface_relative_humidity", surface_relative_humidity, 0.0, 1.0)
     if optics_set is not None:
         if bands is not None or gas_absorption is not None:
             raise ParameterError(f"optics_set={optics_set!r} sets bands and gas_absorption; give either "
@@ -365,6 +409,8 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     if surface_pattern is not None:
         pattern = surface_pattern_from_dict(surface_pattern)
         contrast = _per_band("surface_pattern contrast_albedo", pattern.contrast_albedo, band_names, 0.0, 1.0)
+        contrast_emissivity = emissivity if pattern.contrast_emissivity is None else \
+            longwave_emissivity(pattern.contrast_emissivity, "surface_pattern contrast_emissivity")
     gas_tau, gas_used = _gas_profiles(gas_absorption, band_names, edges)
     for i, layer in enumerate(reg.layers):
         if layer.cloud_fraction > 0 and layer.base_height >= edges[-1]:
@@ -398,6 +444,7 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         r_eff = np.where(lwc > 0, lwc / inverse_radius_weight, 0.0)
 
     temperature, pressure = standard_profile(edges, surface_pressure)
+    humidity = _humidity(edges, temperature, lwc > 0, surface_pressure, surface_relative_humidity)
     dz = np.diff(edges)
     cloud_ext = optics.cloud_extinction(lwc, np.where(lwc > 0, r_eff, 1.0))
     cloudy = lwc > 0
@@ -414,12 +461,15 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         ext[b], ssa[b], asym[b] = optics.mix_optics(cloud_ext, omega_c, g_c, rayleigh, gas)
 
     surface = albedo
+    surface_emissivity = emissivity
     surface_record = None
     if pattern is not None:
-        surface, drawn_surface = albedo_map(albedo, contrast, pattern, shape, dx,
-                                            random_generator(seed, key, _SURFACE_STREAM))
+        # The emissivity rides along as one more band, so it shares the albedo's pattern.
+        both, drawn_surface = albedo_map(np.append(albedo, emissivity), np.append(contrast, contrast_emissivity),
+                                         pattern, shape, dx, random_generator(seed, key, _SURFACE_STREAM))
+        surface, surface_emissivity = both[:-1], both[-1]
         surface_record = {"kind": pattern.kind, "contrast_albedo": contrast.tolist(), "scale": pattern.scale,
-                          "fraction": pattern.fraction, **drawn_surface}
+                          "fraction": pattern.fraction, "contrast_emissivity": contrast_emissivity, **drawn_surface}
 
     main = reg.layers[0] if reg.layers else None
     parameters = {
@@ -428,6 +478,8 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
         "gas_absorption": gas_used, "adiabatic_lwc_lapse_rate": ADIABATIC_LWC_LAPSE_RATE,
         "adiabatic_fraction": [f for _, f in sorted(fractions)],
         "drawn": [draws[i] for i in sorted(draws)], "optics_set": optics_set, "surface_pattern": surface_record,
+        "surface_temperature": surface_temperature, "surface_longwave_emissivity": emissivity,
+        "surface_relative_humidity": surface_relative_humidity,
     }
     attrs = {
         "regime": reg.name,
@@ -445,4 +497,5 @@ def generate_scene(regime, seed, *, nx=DEFAULT_GRID["nx"], ny=DEFAULT_GRID["ny"]
     return make_scene(ext, ssa, asym, edges, dx, dx, surface_albedo=surface,
                       solar_weight=optics.solar_weights(band_names), band=band_names,
                       liquid_water_content=lwc, effective_radius=r_eff, air_temperature=temperature,
-                      air_pressure=pressure, attrs=attrs, validate=validate)
+                      air_pressure=pressure, specific_humidity=humidity, surface_temperature=surface_temperature,
+                      surface_longwave_emissivity=surface_emissivity, attrs=attrs, validate=validate)

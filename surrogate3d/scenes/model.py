@@ -36,10 +36,22 @@ def _as_band_array(name, value, nband, spatial_shape):
     return np.ascontiguousarray(arr)
 
 
+def _as_field(name, value, shape, profile=False):
+    """Return ``value`` as float64 of ``shape``: a scalar, a profile of the layers (with
+    ``profile``, broadcast to every column) or the full array."""
+    arr = np.asarray(value, dtype=np.float64)
+    if arr.ndim == 0 or (profile and arr.shape == shape[:1]):
+        arr = np.broadcast_to(arr.reshape(arr.shape + (1,) * (len(shape) - arr.ndim)), shape)
+    if arr.shape != shape:
+        forms = f"({shape[0]},) or {shape}" if profile else str(shape)
+        raise ValidationError(f"{name} has shape {arr.shape}; expected a number, {forms}")
+    return np.ascontiguousarray(arr)
+
+
 def make_scene(extinction, single_scattering_albedo, asymmetry_parameter, z_edge, dx, dy,
                surface_albedo=0.0, solar_weight=None, band=None, liquid_water_content=None,
-               effective_radius=None, air_temperature=None, air_pressure=None, attrs=None,
-               validate=True):
+               effective_radius=None, air_temperature=None, air_pressure=None, specific_humidity=None,
+               surface_temperature=None, surface_longwave_emissivity=None, attrs=None, validate=True):
     """Build a scene Dataset from arrays.
 
     Parameters
@@ -64,10 +76,22 @@ def make_scene(extinction, single_scattering_albedo, asymmetry_parameter, z_edge
         Cloud liquid water content [kg m-3].
     effective_radius : array_like (nz, ny, nx), optional
         Droplet effective radius [m].
-    air_temperature : array_like (nz,), optional
-        Layer temperature [K].
+    air_temperature : array_like (nz, ny, nx) or (nz,), optional
+        Air temperature of every cell [K], > 0; a profile of the layers is used in every
+        column.
     air_pressure : array_like (nz + 1,), optional
         Pressure at the layer edges [Pa], decreasing with height.
+    specific_humidity : array_like (nz, ny, nx) or (nz,), optional
+        Water vapour per mass of moist air [kg kg-1], in [0, 1).
+    surface_temperature : float or array_like (ny, nx), optional
+        Radiative (skin) temperature of the surface [K], > 0.
+    surface_longwave_emissivity : float or array_like (ny, nx), optional
+        Broadband longwave emissivity of the surface [1], in [0, 1].
+
+    With ``air_temperature``, ``air_pressure``, ``specific_humidity``,
+    ``surface_temperature``, ``surface_longwave_emissivity``, ``liquid_water_content``
+    and ``effective_radius`` the scene can be used for longwave radiation
+    (:func:`surrogate3d.scenes.longwave_fields.longwave_fields`).
     attrs : dict, optional
         Extra global attributes (for example ``regime`` and ``seed``).
     validate : bool
@@ -113,10 +137,16 @@ def make_scene(extinction, single_scattering_albedo, asymmetry_parameter, z_edge
         "solar_weight": solar_weight,
     }
     optional = {"liquid_water_content": liquid_water_content, "effective_radius": effective_radius,
-                "air_temperature": air_temperature, "air_pressure": air_pressure}
+                "air_pressure": air_pressure}
     for name, value in optional.items():
         if value is not None:
             data[name] = np.asarray(value, dtype=np.float64)
+    fields = {"air_temperature": (air_temperature, cell, True), "specific_humidity": (specific_humidity, cell, True),
+              "surface_temperature": (surface_temperature, (ny, nx), False),
+              "surface_longwave_emissivity": (surface_longwave_emissivity, (ny, nx), False)}
+    for name, (value, shape, profile) in fields.items():
+        if value is not None:
+            data[name] = _as_field(name, value, shape, profile)
 
     coords = {
         "band": ("band", np.array(band, dtype=object)),

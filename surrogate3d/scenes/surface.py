@@ -5,7 +5,9 @@ The scene's ``surface_albedo`` may vary from column to column.  A
 domain with the first (the scene's ``surface_albedo``): as smooth random patches that
 blend one into the other, or as a strip of the second surface between two coastlines
 (sharp edges, wiggled by a power-law random field, as coastlines are fractal:
-Mandelbrot 1967).  Both are periodic, like the scene.
+Mandelbrot 1967).  Both are periodic, like the scene.  The surface's broadband longwave
+emissivity shares the pattern: a number, or the value of a kind of surface
+(:data:`SURFACE_LONGWAVE_EMISSIVITY`).
 """
 
 import math
@@ -22,6 +24,11 @@ SURFACE_PATTERNS = ("uniform", "patches", "coastline")
 #: Directions of a coastline strip, as (m, n) of the stripes ``m x / Lx + n y / Ly``:
 #: along y, along x and the two diagonals, the directions that stay periodic.
 COAST_DIRECTIONS = ((1, 0), (0, 1), (1, 1), (1, -1))
+#: Broadband longwave (thermal infrared) emissivity [1] of kinds of surface, from memory,
+#: of the order of the broadband values of Wilber et al. (1999): water 0.99 (a little
+#: less at grazing angles), green vegetation 0.98, sand desert about 0.90 (quartz has a
+#: reststrahlen band at 8-10 um), fresh snow 0.99.
+SURFACE_LONGWAVE_EMISSIVITY = {"ocean": 0.99, "vegetation": 0.98, "desert": 0.90, "snow": 0.99}
 
 
 @dataclass(frozen=True)
@@ -39,6 +46,9 @@ class SurfacePattern:
         standard deviation, normal to the coast, is ``scale / 4``).
     fraction : float
         Share of the domain covered by the second surface in a coastline [1], in [0, 1].
+    contrast_emissivity : float, str or None
+        Broadband longwave emissivity of the second surface [1], in [0, 1], or a kind of
+        surface of :data:`SURFACE_LONGWAVE_EMISSIVITY`; None: that of the first surface.
 
     Examples
     --------
@@ -50,13 +60,50 @@ class SurfacePattern:
     contrast_albedo: object = 0.0
     scale: float = 4000.0
     fraction: float = 0.5
+    contrast_emissivity: object = None
 
     def validate(self, label="surface_pattern"):
         """Raise ParameterError naming the first parameter outside its range; return self."""
         check_option(f"{label} kind", self.kind, SURFACE_PATTERNS)
         check_number(f"{label} scale", self.scale, 0.0, 1e7, low_open=True)
         check_number(f"{label} fraction", self.fraction, 0.0, 1.0)
+        if self.contrast_emissivity is not None:
+            longwave_emissivity(self.contrast_emissivity, f"{label} contrast_emissivity")
         return self
+
+
+def longwave_emissivity(value, label="surface_longwave_emissivity"):
+    """A broadband longwave emissivity [1] given as a number or as a kind of surface.
+
+    Parameters
+    ----------
+    value : float or str
+        A number in [0, 1] or a key of :data:`SURFACE_LONGWAVE_EMISSIVITY`.
+    label : str
+        Its name in messages.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        Naming ``label``, the value and what is allowed.
+
+    References
+    ----------
+    Wilber, A. C., D. P. Kratz and S. K. Gupta, 1999: Surface emissivity maps for use in
+    satellite retrievals of longwave radiation. NASA Technical Publication 1999-209362.
+
+    Examples
+    --------
+    >>> longwave_emissivity("desert"), longwave_emissivity(0.95)
+    (0.9, 0.95)
+    """
+    if isinstance(value, str):
+        return SURFACE_LONGWAVE_EMISSIVITY[check_option(label, value, SURFACE_LONGWAVE_EMISSIVITY)]
+    return check_number(label, value, 0.0, 1.0)
 
 
 def surface_pattern_from_dict(table, label="surface_pattern"):
@@ -85,6 +132,9 @@ def surface_pattern_from_dict(table, label="surface_pattern"):
 
 def albedo_map(albedo, contrast, pattern, shape, dx, rng):
     """Per-band surface albedo of every column.
+
+    Any property of the surfaces that shares their pattern (the longwave emissivity) may
+    be added as one more "band": the draws do not depend on the number of bands.
 
     Parameters
     ----------

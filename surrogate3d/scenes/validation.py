@@ -4,7 +4,7 @@ import numpy as np
 
 from ..core.validation import first_true, message
 from ..errors import ValidationError
-from .variables import REQUIRED_VARIABLES, VARIABLE_SPEC
+from .variables import LEGACY_DIMS, REQUIRED_VARIABLES, VARIABLE_SPEC
 
 #: Tolerance on the sum of band solar weights.
 WEIGHT_SUM_TOLERANCE = 1e-6
@@ -59,7 +59,9 @@ def validate_scene(ds, label="scene"):
     layer edges not strictly increasing or not starting at the surface (0 m); band
     solar weights that are negative or do not sum to 1; non-positive horizontal
     spacing; non-physical optional fields (negative water content, non-positive
-    radius, temperature or pressure, pressure not decreasing with height).
+    radius, temperature or pressure, pressure not decreasing with height, specific
+    humidity outside [0, 1), surface temperature <= 0, surface longwave emissivity
+    outside [0, 1]).
 
     Parameters
     ----------
@@ -100,7 +102,7 @@ def validate_scene(ds, label="scene"):
         if name not in ds.variables:
             continue
         da = ds[name]
-        if da.dims != dims:
+        if da.dims != dims and da.dims not in LEGACY_DIMS.get(name, ()):
             p.add(f"{name} has dimensions {da.dims}; expected {dims}")
             continue
         if not np.issubdtype(da.dtype, np.number):
@@ -149,6 +151,14 @@ def validate_scene(ds, label="scene"):
         p.check("effective_radius", bad, "> 0 in a cloudy cell")
     if "air_temperature" in ds:
         p.check("air_temperature", ds["air_temperature"].values <= 0, "> 0")
+    if "surface_temperature" in ds:
+        p.check("surface_temperature", ds["surface_temperature"].values <= 0, "> 0")
+    if "surface_longwave_emissivity" in ds:
+        eps = ds["surface_longwave_emissivity"].values
+        p.check("surface_longwave_emissivity", (eps < 0) | (eps > 1), "in [0, 1]")
+    if "specific_humidity" in ds:
+        q = ds["specific_humidity"].values
+        p.check("specific_humidity", (q < 0) | (q >= 1), "in [0, 1)")
     if "air_pressure" in ds:
         pres = ds["air_pressure"].values
         p.check("air_pressure", pres <= 0, "> 0")

@@ -19,7 +19,9 @@ def _scene(nband=2, nz=3, ny=2, nx=4, seed=0):
                       liquid_water_content=rng.uniform(0, 1e-3, (nz, ny, nx)),
                       effective_radius=rng.uniform(5e-6, 15e-6, (nz, ny, nx)),
                       air_temperature=np.linspace(288.0, 280.0, nz),
-                      air_pressure=np.linspace(101325.0, 90000.0, nz + 1))
+                      air_pressure=np.linspace(101325.0, 90000.0, nz + 1),
+                      specific_humidity=np.linspace(8e-3, 5e-3, nz), surface_temperature=rng.uniform(280, 300, (ny, nx)),
+                      surface_longwave_emissivity=0.98)
 
 
 def _message(ds):
@@ -38,7 +40,15 @@ def _message(ds):
     ("asymmetry_parameter", (1, 2, 1, 3), -1.5, "in (-1, 1)"),
     ("surface_albedo", (1, 1, 2), 1.2, "in [0, 1]"),
     ("liquid_water_content", (2, 1, 0), -1e-4, ">= 0"),
-    ("air_temperature", (1,), -5.0, "> 0"),
+    ("air_temperature", (1, 0, 2), -5.0, "> 0"),
+    ("air_temperature", (2, 1, 3), 0.0, "> 0"),
+    ("air_temperature", (0, 1, 0), np.nan, "finite"),
+    ("surface_temperature", (1, 3), 0.0, "> 0"),
+    ("surface_temperature", (0, 2), np.inf, "finite"),
+    ("surface_longwave_emissivity", (1, 1), 1.2, "in [0, 1]"),
+    ("surface_longwave_emissivity", (0, 3), -0.01, "in [0, 1]"),
+    ("specific_humidity", (2, 0, 1), -1e-3, "in [0, 1)"),
+    ("specific_humidity", (1, 1, 1), 1.0, "in [0, 1)"),
 ])
 def test_bad_cell_is_reported_with_variable_and_index(name, index, value, rule):
     ds = _scene()
