@@ -90,20 +90,27 @@ band_sum : float64 (nband, nt)
     Sum over every band's intervals of the radiance [W m-2 sr-1].
 """
 
-Sources = namedtuple("Sources", ["cdf", "gas_cdf", "planck_cdf", "t_max", "band_lo", "band_hi"])
+Sources = namedtuple("Sources", ["cdf", "cell_cdf", "cloud_max", "chord", "planck_cdf", "t_max", "band_lo",
+                                 "band_hi"])
 Sources.__doc__ = """Where photons start and in which interval.
 
 cdf : float64 (nz ny nx + 2 ny nx,)
-    Cumulative emitted power [W m-2 of one column] of the cells (C order), the surface
-    columns, then the columns of the top (space).
-gas_cdf : float64 (nz, ninterval)
-    Per layer, cumulative gas absorption times radiance at the layer's warmest temperature:
-    the proposal of the gas emission's interval, accepted with probability ``B(T) / B(T_max)``.
-planck_cdf : float64 (nz + 2, ninterval)
-    Cumulative radiance at the warmest temperature of every layer, of the surface and of
-    the top: the proposal of the interval of cloud, surface and top emission.
+    Cumulative sampling power [W m-2 of one column] of the cells (C order; their escaping
+    emission as :func:`escape_power` approximates it), the surface columns (emission),
+    then the columns of the top (what space sends in).
+cell_cdf : float64 (nz, ninterval)
+    Per layer, the cumulative :func:`escape_power` of every interval at the layer's warmest
+    temperature and largest cloud absorption: the proposal of a cell photon's interval.
+cloud_max : float64 (nband, nz)
+    Largest cloud absorption coefficient of every band and layer [m-1].
+chord : float64 (nz,)
+    Mean chord length of a cell of every layer [m] (``4 V / S``; ``2 dz`` for the
+    infinite slabs of independent columns).
+planck_cdf : float64 (2, ninterval)
+    Cumulative radiance at the warmest surface temperature and at the top temperature:
+    the proposal of the interval of surface and top photons.
 t_max : float64 (nz + 2,)
-    Those warmest temperatures [K].
+    The warmest temperature of every layer, of the surface, and the top's [K].
 band_lo, band_hi : int64 (nband,)
     The intervals ``band_lo[b] .. band_hi[b] - 1`` belong to band ``b``.
 """
@@ -160,35 +167,207 @@ def _interval(state, row, lo, hi, radiance, t0, inv_dt, temperature, t_max):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def escape_power(k_abs, chord):
+    """``(1 - exp(-k_abs L)) / L``: the absorption coefficient ``k_abs`` [m-1] times the
+    escape probability ``(1 - exp(-x)) / x`` of a path of the mean chord ``L`` [m]; per
+    unit radiance and volume, and over 4 pi, the power a cell sends out of itself (about)."""
+    x = k_abs * chord
+    if x < 1e-12:
+        return k_abs
+    return -math.expm1(-x) / chord
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def _cell_interval(state, medium, planck, sources, iz, iy, ix, temperature):
-    """Interval (and radiance) of a photon emitted by cell (iz, iy, ix): gas or cloud
-    emission in proportion to their power, then the interval."""
+    """Interval of a photon of cell (iz, iy, ix), drawn in proportion to :func:`escape_power`
+    times radiance: proposed from the layer's ``cell_cdf`` (warmest temperature, largest
+    cloud absorption), accepted with the ratio of the cell's value to the proposal's, at
+    most 1 because both factors rise with temperature and absorption.  Returns the
+    interval, the cell's radiance and absorption coefficient in it."""
     t0, inv_dt = planck.t0, planck.inv_dt
-    cloud = medium.cloud
-    nb = cloud.shape[0]
-    gas = table_radiance(planck.layer_gas[iz], t0, inv_dt, temperature)
-    total = gas
-    for b in range(nb):
-        total += cloud[b, iz, iy, ix, 0] * table_radiance(planck.band_sum[b], t0, inv_dt, temperature)
-    u = uniform(state) * total
+    row = sources.cell_cdf[iz]
+    nint = row.shape[0]
+    chord = sources.chord[iz]
     t_max = sources.t_max[iz]
-    if u < gas:
-        return _interval(state, sources.gas_cdf[iz], 0, medium.gas.shape[0], planck.radiance, t0, inv_dt,
-                         temperature, t_max)
-    u -= gas
-    chosen = -1
-    for b in range(nb):
-        e = cloud[b, iz, iy, ix, 0] * table_radiance(planck.band_sum[b], t0, inv_dt, temperature)
-        if e > 0.0:
-            chosen = b
-            if u < e:
-                break
-            u -= e
-    if chosen < 0:  # only round-off can bring a cell without cloud emission here
-        return _interval(state, sources.gas_cdf[iz], 0, medium.gas.shape[0], planck.radiance, t0, inv_dt,
-                         temperature, t_max)
-    return _interval(state, sources.planck_cdf[iz], sources.band_lo[chosen], sources.band_hi[chosen],
-                     planck.radiance, t0, inv_dt, temperature, t_max)
+    while True:
+        n = _search(row, 0, nint, uniform(state) * row[nint - 1])
+        band = medium.band_of[n]
+        gas = medium.gas[n, iz]
+        k_abs = gas + medium.cloud[band, iz, iy, ix, 0]
+        b_here = table_radiance(planck.radiance[n], t0, inv_dt, temperature)
+        proposal = table_radiance(planck.radiance[n], t0, inv_dt, t_max) \
+            * escape_power(gas + sources.cloud_max[band, iz], chord)
+        if uniform(state) * proposal < b_here * escape_power(k_abs, chord):
+            return n, b_here, k_abs
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _selection_ratio(k_abs, chord):
+    # Emitted over sampling power of a cell: k_abs / escape_power(k_abs, chord).
+    x = k_abs * chord
+    return x / -math.expm1(-x) if x >= 1e-12 else 1.0
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _depth_density(k_abs, depth, size):
+    # Density of a depth drawn from k_abs exp(-k_abs d) truncated to [0, size].
+    if k_abs * size < 1e-12:
+        return 1.0 / size
+    return k_abs * math.exp(-k_abs * depth) / -math.expm1(-k_abs * size)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _face_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
+    """Start of a photon emitted by a scattering box cell (an infinite slab for independent
+    columns), and its weight relative to the batch weight.
+
+    A face in proportion to its area, a depth below it drawn from ``k_abs exp(-k_abs d)``
+    truncated to the cell, uniform along the face, an isotropic direction.  The sampling
+    density of the point is the mixture over all faces ``q(r) = sum_f k_abs exp(-k_abs d_f) /
+    (S (1 - exp(-k_abs h_f)))`` (``d_f`` the distance to face f, ``h_f`` the cell's size across
+    it, ``S`` its surface), and the weight ``r = 1 / (V q(r))`` relative to the power
+    :func:`escape_power` the cell was drawn with.  ``q`` is at least its term of the nearest
+    face, so ``r`` grows at most like ``exp(k_abs d)`` with the distance ``d`` to the
+    nearest face, and every way out, scattered or not, is at least that long: no photon
+    leaves the cell with a weight above about 4.  Returns ``(x, y, z, ux, uy, uz, r)``.
+    """
+    if full_3d:
+        area_x, area_y = dy * dz, dx * dz
+    else:
+        area_x = area_y = 0.0
+    area_z = dx * dy
+    half_surface = area_x + area_y + area_z
+    x0, y0 = ix * dx, iy * dy
+    x = x0 + uniform(state) * dx
+    y = y0 + uniform(state) * dy
+    z = z_lo + uniform(state) * dz
+    pick = uniform(state) * half_surface
+    far = uniform(state) < 0.5
+    if pick < area_x:
+        d = -math.log1p(uniform(state) * math.expm1(-k_abs * dx)) / k_abs if k_abs * dx >= 1e-12 \
+            else uniform(state) * dx
+        x = x0 + dx - d if far else x0 + d
+    elif pick < area_x + area_y:
+        d = -math.log1p(uniform(state) * math.expm1(-k_abs * dy)) / k_abs if k_abs * dy >= 1e-12 \
+            else uniform(state) * dy
+        y = y0 + dy - d if far else y0 + d
+    else:
+        d = -math.log1p(uniform(state) * math.expm1(-k_abs * dz)) / k_abs if k_abs * dz >= 1e-12 \
+            else uniform(state) * dz
+        z = z_lo + dz - d if far else z_lo + d
+    x = min(max(x, x0), x0 + dx)
+    y = min(max(y, y0), y0 + dy)
+    z = min(max(z, z_lo), z_lo + dz)
+    # q(r) S: a face f is drawn with probability A_f / S, then the point with density
+    # (depth density) / A_f.
+    depths = _depth_density(k_abs, z - z_lo, dz) + _depth_density(k_abs, z_lo + dz - z, dz)
+    if full_3d:
+        depths += _depth_density(k_abs, x - x0, dx) + _depth_density(k_abs, x0 + dx - x, dx)
+        depths += _depth_density(k_abs, y - y0, dy) + _depth_density(k_abs, y0 + dy - y, dy)
+    r = 2.0 * half_surface / (dx * dy * dz * depths)
+    uz = 2.0 * uniform(state) - 1.0
+    cp, sp = random_azimuth(state)
+    sint = math.sqrt(max(0.0, 1.0 - uz * uz))
+    return x, y, z, sint * cp, sint * sp, uz, r * _selection_ratio(k_abs, chord)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _emission_direction(state, full_3d, isotropic, area_x, area_y, area_z):
+    """A direction drawn from the mixture of the isotropic distribution (probability
+    ``isotropic``) and the one proportional to the cell's projected area ``A(u) = |ux| area_x
+    + |uy| area_y + |uz| area_z`` (face areas; ``area_z`` alone for independent columns): a
+    face pair in proportion to its area, then a cosine-weighted direction about its normal
+    with a random sign.  Returns ``(ux, uy, uz, A(u), ratio)``, ``ratio`` the isotropic
+    density over the mixture's."""
+    if not full_3d:
+        area_x = area_y = 0.0
+    half_surface = area_x + area_y + area_z
+    if uniform(state) < isotropic:
+        uz = 2.0 * uniform(state) - 1.0
+        cp, sp = random_azimuth(state)
+        sint = math.sqrt(max(0.0, 1.0 - uz * uz))
+        ux, uy = sint * cp, sint * sp
+    else:
+        pick = uniform(state) * half_surface
+        mu = math.sqrt(uniform(state))
+        if uniform(state) < 0.5:
+            mu = -mu
+        cp, sp = random_azimuth(state)
+        sint = math.sqrt(max(0.0, 1.0 - mu * mu))
+        if pick < area_x:
+            ux, uy, uz = mu, sint * cp, sint * sp
+        elif pick < area_x + area_y:
+            ux, uy, uz = sint * sp, mu, sint * cp
+        else:
+            ux, uy, uz = sint * cp, sint * sp, mu
+    if uz == 0.0:
+        uz = 1e-12
+    area = abs(ux) * area_x + abs(uy) * area_y + abs(uz) * area_z
+    return ux, uy, uz, area, 1.0 / (isotropic + (1.0 - isotropic) * 2.0 * area / half_surface)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _chord_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
+    """Start of a photon emitted by a box cell (an infinite slab for independent columns)
+    of absorption coefficient ``k_abs`` and mean chord ``chord``, and its weight relative to
+    the batch weight, sampled so that the photons leaving the cell carry nearly equal
+    weights however opaque it is.
+
+    * A direction ``u`` from :func:`_emission_direction`, isotropic with probability
+      ``1 / (1 + k_abs chord)``, else in proportion to the projected area ``A(u)`` (the
+      directions in which an opaque cell's faces send radiation out).
+    * The point where the line along ``u`` leaves the cell, uniform over ``A(u)``.
+    * The start at distance ``s`` back along the line's chord ``l`` in the cell, drawn from
+      ``k_abs exp(-k_abs s)`` truncated to ``[0, l]``: emission near the exit, which
+      escapes, is drawn more often.
+
+    The weight is the emitted density over the sampling density, relative to the power
+    :func:`escape_power` the cell was drawn with,
+
+        r = ratio(u) A(u) (1 - exp(-k_abs l)) exp(k_abs s) / k_abs / V * k_abs chord / (1 - exp(-k_abs chord)),
+
+    ``ratio(u)`` the isotropic density over the sampled one.  A photon leaves the cell
+    unscattered with a weight of about 1 however opaque the cell; but one scattered on the
+    way may leave through a nearer face with its raised weight, so scattering cells use
+    :func:`_face_emission`.  Returns ``(x, y, z, ux, uy, uz, r)``.
+    """
+    isotropic = 1.0 / (1.0 + k_abs * chord)
+    ux, uy, uz, area, ratio = _emission_direction(state, full_3d, isotropic, dy * dz, dx * dz, dx * dy)
+    x0, y0 = ix * dx, iy * dy
+    if full_3d:
+        # The exit point: on the face crossed (chosen by its share of A(u)), uniform on it.
+        pick = uniform(state) * area
+        px = x0 + uniform(state) * dx
+        py = y0 + uniform(state) * dy
+        pz = z_lo + uniform(state) * dz
+        if pick < abs(ux) * dy * dz:
+            px = x0 + dx if ux > 0.0 else x0
+        elif pick < abs(ux) * dy * dz + abs(uy) * dx * dz:
+            py = y0 + dy if uy > 0.0 else y0
+        else:
+            pz = z_lo + dz if uz > 0.0 else z_lo
+        # The chord back from it to where the line enters the cell.
+        length = ((pz - z_lo) if uz > 0.0 else (pz - z_lo - dz)) / uz
+        if ux != 0.0:
+            length = min(length, ((px - x0) if ux > 0.0 else (px - x0 - dx)) / ux)
+        if uy != 0.0:
+            length = min(length, ((py - y0) if uy > 0.0 else (py - y0 - dy)) / uy)
+        length = max(length, 0.0)
+    else:
+        px, py = x0 + 0.5 * dx, y0 + 0.5 * dy
+        pz = z_lo + dz if uz > 0.0 else z_lo
+        length = dz / abs(uz)
+    if k_abs * length < 1e-12:  # uniform along the chord
+        s = uniform(state) * length
+        along = length
+    else:
+        s = min(-math.log1p(uniform(state) * math.expm1(-k_abs * length)) / k_abs, length)
+        along = -math.expm1(-k_abs * length) * math.exp(k_abs * s) / k_abs
+    r = ratio * area * along / (dx * dy * dz) * _selection_ratio(k_abs, chord)
+    z = min(max(pz - s * uz, z_lo), z_lo + dz)
+    if full_3d:
+        return px - s * ux, py - s * uy, z, ux, uy, uz, r
+    return px, py, z, ux, uy, uz, r
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -373,14 +552,15 @@ def _run_batch(state, batch, run, medium, boundaries, planck, sources, tallies):
             iz = k // ncol
             iy = (k - iz * ncol) // nx
             ix = k - iz * ncol - iy * nx
-            n, b_emit = _cell_interval(state, medium, planck, sources, iz, iy, ix, temperature[iz, iy, ix])
-            x = (ix + uniform(state)) * dx
-            y = (iy + uniform(state)) * dy
-            z = z_edge[iz] + uniform(state) * (z_edge[iz + 1] - z_edge[iz])
-            uz = 2.0 * uniform(state) - 1.0
-            cp, sp = random_azimuth(state)
-            sint = math.sqrt(max(0.0, 1.0 - uz * uz))
-            ux, uy = sint * cp, sint * sp
+            n, b_emit, k_abs = _cell_interval(state, medium, planck, sources, iz, iy, ix, temperature[iz, iy, ix])
+            scatters = medium.cloud[medium.band_of[n], iz, iy, ix, 1] > 0.0
+            dz = z_edge[iz + 1] - z_edge[iz]
+            if scatters:
+                x, y, z, ux, uy, uz, r = _face_emission(state, run.full_3d, ix, iy, z_edge[iz], dx, dy, dz, k_abs,
+                                                        sources.chord[iz])
+            else:
+                x, y, z, ux, uy, uz, r = _chord_emission(state, run.full_3d, ix, iy, z_edge[iz], dx, dy, dz, k_abs,
+                                                         sources.chord[iz])
         else:
             surface = k < ncell + ncol
             c = k - ncell if surface else k - ncell - ncol
@@ -391,14 +571,15 @@ def _run_batch(state, batch, run, medium, boundaries, planck, sources, tallies):
             ux, uy, uz = lambertian_up(state)
             if surface:
                 kind, iz, z = SURFACE, 0, z_edge[0]
-                row, temp = nz, boundaries.surface_temperature[iy, ix]
+                row, temp = 0, boundaries.surface_temperature[iy, ix]
             else:
                 # Isotropic radiance from above: the Lambertian distribution, downward.
                 kind, iz, z, uz = SPACE, nz - 1, z_edge[nz], -uz
-                row, temp = nz + 1, boundaries.top_temperature
+                row, temp = 1, boundaries.top_temperature
             n, b_emit = _interval(state, sources.planck_cdf[row], 0, nint, planck.radiance, t0, inv_dt, temp,
-                                  sources.t_max[row])
-        events += trace(state, n, w, x, y, z, ux, uy, uz, ix, iy, iz, kind, iz, iy, ix, b_emit, threshold, run,
+                                  sources.t_max[nz + row])
+            r = 1.0
+        events += trace(state, n, w * r, x, y, z, ux, uy, uz, ix, iy, iz, kind, iz, iy, ix, b_emit, threshold, run,
                         medium, boundaries, planck, tallies)
     return events
 

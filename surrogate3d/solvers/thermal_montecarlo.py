@@ -125,21 +125,38 @@ def _pressure_thickness(air_pressure_edges, nz, ny, nx):
     return dp
 
 
-def _sources(gas, cloud, band_lo, band_hi, temperature, t_surface, emissivity, t_top, z_edge, table):
-    """The emitted powers and the proposals of the spectral sampling (:class:`~._thermal_kernel.Sources`)
-    and the tables of gas and band radiance sums (:class:`~._thermal_kernel.PlanckTable`)."""
+def _escape_power(k_abs, chord):
+    """:func:`surrogate3d.solvers._thermal_kernel.escape_power` of arrays."""
+    x = k_abs * chord
+    return np.where(x < 1e-12, k_abs, -np.expm1(-x) / chord)
+
+
+def mean_chord(z_edge, dx, dy, full_3d):
+    """Mean chord length of the cells of every layer [m]: ``4 V / S`` of a box (Cauchy's
+    formula for convex bodies), ``2 dz`` of an infinite slab (independent columns)."""
+    dz = np.diff(z_edge)
+    if not full_3d:
+        return 2.0 * dz
+    return 2.0 * dx * dy * dz / (dx * dy + dx * dz + dy * dz)
+
+
+def _sources(gas, cloud, band_of, band_lo, band_hi, temperature, t_surface, emissivity, t_top, z_edge, chord, table):
+    """The sampling powers and the proposals of the spectral sampling (:class:`~._thermal_kernel.Sources`)
+    and the Planck table (:class:`~._thermal_kernel.PlanckTable`)."""
     t0, inv_dt, radiance = table
-    nz = gas.shape[1]
+    nint, nz = gas.shape
     nband = cloud.shape[0]
-    layer_gas = np.ascontiguousarray(gas.T @ radiance)
-    band_sum = np.zeros((nband, radiance.shape[1]))
-    for b in range(nband):
-        band_sum[b] = radiance[band_lo[b]:band_hi[b]].sum(axis=0)
-    dz = np.diff(z_edge)[:, None, None]
-    # Emitted power per unit column area: 4 pi k_a B dz (cells), eps pi B (surface), pi B (top).
-    gas_part = np.stack([_table_radiance(layer_gas[k:k + 1], t0, inv_dt, temperature[k])[0] for k in range(nz)])
-    cloud_part = (cloud[..., 0] * _table_radiance(band_sum, t0, inv_dt, temperature)).sum(axis=0)
-    cell_power = 4.0 * np.pi * dz * (gas_part + cloud_part)
+    # Cells are sampled in proportion to escape_power times radiance (their escaping
+    # emission, about): 4 pi dz sum_n B_n(T) (1 - exp(-k_n L)) / L per unit column area.
+    u = (temperature - t0) * inv_dt
+    index = np.minimum(np.where(u > 0.0, u, 0.0).astype(np.int64), radiance.shape[1] - 2)
+    frac = u - index
+    cell_power = np.zeros(temperature.shape)
+    for n in range(nint):
+        b = radiance[n, index] + frac * (radiance[n, index + 1] - radiance[n, index])
+        k_abs = gas[n][:, None, None] + cloud[band_of[n], ..., 0]
+        cell_power += b * _escape_power(k_abs, chord[:, None, None])
+    cell_power *= 4.0 * np.pi * np.diff(z_edge)[:, None, None]
     surface_power = emissivity * np.pi * _table_radiance(radiance, t0, inv_dt, t_surface).sum(axis=0)
     top_power = np.zeros_like(surface_power)
     if t_top > 0.0:
@@ -148,10 +165,16 @@ def _sources(gas, cloud, band_lo, band_hi, temperature, t_surface, emissivity, t
 
     t_max = np.concatenate([temperature.reshape(nz, -1).max(axis=1), [t_surface.max(), max(t_top, t0)]])
     at_max = _table_radiance(radiance, t0, inv_dt, t_max)  # (ninterval, nz + 2)
-    gas_cdf = np.cumsum(gas.T * at_max[:, :nz].T, axis=1)
-    planck_cdf = np.cumsum(at_max.T, axis=1)
-    sources = kernel.Sources(cdf, np.ascontiguousarray(gas_cdf), np.ascontiguousarray(planck_cdf), t_max,
-                             band_lo, band_hi)
+    cloud_max = np.ascontiguousarray(cloud[..., 0].reshape(nband, nz, -1).max(axis=2))
+    proposal = at_max[:, :nz] * _escape_power(gas + cloud_max[band_of], chord[None, :])
+    cell_cdf = np.ascontiguousarray(np.cumsum(proposal.T, axis=1))
+    planck_cdf = np.ascontiguousarray(np.cumsum(at_max[:, nz:].T, axis=1))
+    sources = kernel.Sources(cdf, cell_cdf, cloud_max, np.ascontiguousarray(chord, dtype=np.float64), planck_cdf,
+                             t_max, band_lo, band_hi)
+    layer_gas = np.ascontiguousarray(gas.T @ radiance)
+    band_sum = np.zeros((nband, radiance.shape[1]))
+    for b in range(nband):
+        band_sum[b] = radiance[band_lo[b]:band_hi[b]].sum(axis=0)
     return sources, kernel.PlanckTable(t0, inv_dt, radiance, layer_gas, band_sum)
 
 
@@ -326,7 +349,9 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
     cloud = np.ascontiguousarray(np.stack([ext * (1.0 - ssa), ext * ssa, asym], axis=-1))
     t_air = np.ascontiguousarray(t_air)
     gas = np.ascontiguousarray(gas)
-    sources, planck = _sources(gas, cloud, band_lo, band_hi, t_air, t_surface, emissivity, t_top, z, table)
+    chord = mean_chord(z, dx, dy, mode == "full_3d")
+    sources, planck = _sources(gas, cloud, band_of, band_lo, band_hi, t_air, t_surface, emissivity, t_top, z, chord,
+                               table)
     medium = kernel.Medium(gas, cloud, band_of, t_air, np.ascontiguousarray(z), dx, dy)
     boundaries = kernel.Boundaries(t_surface, emissivity, t_top)
     n_batches = max(2, -(-photons // batch_size))
