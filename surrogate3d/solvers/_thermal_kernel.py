@@ -125,7 +125,7 @@ Tallies.__doc__ = """One batch's tallies: ``cell`` (nz, ny, nx) net absorption, 
 in the order :data:`COLUMN_TALLIES`; W m-2 of one column's area."""
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def table_radiance(values, t0, inv_dt, temperature):
     """Radiance at ``temperature`` from one interval's row ``values`` of the table (linear)."""
     u = (temperature - t0) * inv_dt
@@ -137,7 +137,7 @@ def table_radiance(values, t0, inv_dt, temperature):
     return values[i] + f * (values[i + 1] - values[i])
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _search(cdf, lo, hi, u):
     # The first index of lo .. hi - 1 whose cumulative value exceeds u (hi - 1 if none).
     a, b = lo, hi - 1
@@ -150,7 +150,7 @@ def _search(cdf, lo, hi, u):
     return a
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _interval(state, row, lo, hi, radiance, t0, inv_dt, temperature, t_max):
     """An interval of ``lo .. hi - 1`` drawn in proportion to the weights of the cumulative
     ``row`` (made at ``t_max``) times ``B(temperature) / B(t_max)``, by rejection; returns it
@@ -166,7 +166,7 @@ def _interval(state, row, lo, hi, radiance, t0, inv_dt, temperature, t_max):
             return n, b_here
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def escape_power(k_abs, chord):
     """``(1 - exp(-k_abs L)) / L``: the absorption coefficient ``k_abs`` [m-1] times the
     escape probability ``(1 - exp(-x)) / x`` of a path of the mean chord ``L`` [m]; per
@@ -174,10 +174,12 @@ def escape_power(k_abs, chord):
     x = k_abs * chord
     if x < 1e-12:
         return k_abs
+    if x > 40.0:  # exp(-40) is below the rounding of 1
+        return 1.0 / chord
     return -math.expm1(-x) / chord
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _cell_interval(state, medium, planck, sources, iz, iy, ix, temperature):
     """Interval of a photon of cell (iz, iy, ix), drawn in proportion to :func:`escape_power`
     times radiance: proposed from the layer's ``cell_cdf`` (warmest temperature, largest
@@ -201,14 +203,14 @@ def _cell_interval(state, medium, planck, sources, iz, iy, ix, temperature):
             return n, b_here, k_abs
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _selection_ratio(k_abs, chord):
     # Emitted over sampling power of a cell: k_abs / escape_power(k_abs, chord).
     x = k_abs * chord
     return x / -math.expm1(-x) if x >= 1e-12 else 1.0
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _depth_density(k_abs, depth, size):
     # Density of a depth drawn from k_abs exp(-k_abs d) truncated to [0, size].
     if k_abs * size < 1e-12:
@@ -216,7 +218,7 @@ def _depth_density(k_abs, depth, size):
     return k_abs * math.exp(-k_abs * depth) / -math.expm1(-k_abs * size)
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _face_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
     """Start of a photon emitted by a scattering box cell (an infinite slab for independent
     columns), and its weight relative to the batch weight.
@@ -271,7 +273,7 @@ def _face_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
     return x, y, z, sint * cp, sint * sp, uz, r * _selection_ratio(k_abs, chord)
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _emission_direction(state, full_3d, isotropic, area_x, area_y, area_z):
     """A direction drawn from the mixture of the isotropic distribution (probability
     ``isotropic``) and the one proportional to the cell's projected area ``A(u) = |ux| area_x
@@ -306,7 +308,7 @@ def _emission_direction(state, full_3d, isotropic, area_x, area_y, area_z):
     return ux, uy, uz, area, 1.0 / (isotropic + (1.0 - isotropic) * 2.0 * area / half_surface)
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _chord_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
     """Start of a photon emitted by a box cell (an infinite slab for independent columns)
     of absorption coefficient ``k_abs`` and mean chord ``chord``, and its weight relative to
@@ -370,7 +372,7 @@ def _chord_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
     return px, py, z, ux, uy, uz, r
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _credit(tallies, kind, iz, iy, ix, x):
     # Add x to the net absorption of an emitter or absorber.
     if kind == CELL:
@@ -382,7 +384,7 @@ def _credit(tallies, kind, iz, iy, ix, x):
         tallies.col[SPACE_NET, iy, ix] += x
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(**KERNEL)
 def _exchange(tallies, a, b_sink, kind, iz, iy, ix, b_emit, ekind, ez, ey, ex):
     """Tally the deposit ``a`` of a photon of emitter (ekind, ez, ey, ex), radiance ``b_emit``,
     in the absorber (kind, iz, iy, ix) of radiance ``b_sink``: net exchange weighted by the
@@ -584,7 +586,29 @@ def _run_batch(state, batch, run, medium, boundaries, planck, sources, tallies):
     return events
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
+def cell_sampling_power(gas, cloud, band_of, temperature, z_edge, chord, t0, inv_dt, radiance):
+    """The power every cell is drawn with [W m-2 of one column]: ``4 pi dz sum_n B_n(T)
+    escape_power(k_n, chord)`` over the intervals ``n`` (:func:`escape_power`, :func:`table_radiance`),
+    (nz, ny, nx)."""
+    nz, ny, nx = temperature.shape
+    nint = gas.shape[0]
+    power = np.zeros((nz, ny, nx))
+    for k in range(nz):
+        scale = 4.0 * math.pi * (z_edge[k + 1] - z_edge[k])
+        for j in range(ny):
+            for i in range(nx):
+                t = temperature[k, j, i]
+                total = 0.0
+                for n in range(nint):
+                    k_abs = gas[n, k] + cloud[band_of[n], k, j, i, 0]
+                    if k_abs > 0.0:
+                        total += table_radiance(radiance[n], t0, inv_dt, t) * escape_power(k_abs, chord[k])
+                power[k, j, i] = scale * total
+    return power
+
+
+@njit(**KERNEL)
 def _add_deviation(sums, sumsq, pivot, first, m, v):
     # Sums of a batch value's deviation from the first batch's, and of its square: the
     # variance from them does not lose the digits that sums of raw squares would.

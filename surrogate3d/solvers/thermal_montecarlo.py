@@ -128,7 +128,7 @@ def _pressure_thickness(air_pressure_edges, nz, ny, nx):
 def _escape_power(k_abs, chord):
     """:func:`surrogate3d.solvers._thermal_kernel.escape_power` of arrays."""
     x = k_abs * chord
-    return np.where(x < 1e-12, k_abs, -np.expm1(-x) / chord)
+    return np.where(x < 1e-12, k_abs, np.where(x > 40.0, 1.0 / chord, -np.expm1(-x) / chord))
 
 
 def mean_chord(z_edge, dx, dy, full_3d):
@@ -146,17 +146,8 @@ def _sources(gas, cloud, band_of, band_lo, band_hi, temperature, t_surface, emis
     t0, inv_dt, radiance = table
     nint, nz = gas.shape
     nband = cloud.shape[0]
-    # Cells are sampled in proportion to escape_power times radiance (their escaping
-    # emission, about): 4 pi dz sum_n B_n(T) (1 - exp(-k_n L)) / L per unit column area.
-    u = (temperature - t0) * inv_dt
-    index = np.minimum(np.where(u > 0.0, u, 0.0).astype(np.int64), radiance.shape[1] - 2)
-    frac = u - index
-    cell_power = np.zeros(temperature.shape)
-    for n in range(nint):
-        b = radiance[n, index] + frac * (radiance[n, index + 1] - radiance[n, index])
-        k_abs = gas[n][:, None, None] + cloud[band_of[n], ..., 0]
-        cell_power += b * _escape_power(k_abs, chord[:, None, None])
-    cell_power *= 4.0 * np.pi * np.diff(z_edge)[:, None, None]
+    # Cells are drawn in proportion to their escaping emission, about.
+    cell_power = kernel.cell_sampling_power(gas, cloud, band_of, temperature, z_edge, chord, t0, inv_dt, radiance)
     surface_power = emissivity * np.pi * _table_radiance(radiance, t0, inv_dt, t_surface).sum(axis=0)
     top_power = np.zeros_like(surface_power)
     if t_top > 0.0:
@@ -252,7 +243,8 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
         ``cell_net_absorption`` [W m-2 of column area] and ``cell_net_absorption_se``, and
         with ``air_pressure_edges`` ``heating_rate`` [K day-1] and ``heating_rate_se``.
         ``toa_downward_flux`` [W m-2] (exact), ``photons``, ``batch_count``, ``seed``,
-        ``mode``, ``scattering_events``, ``wall_time`` and ``cpu_time`` [s].  Standard
+        ``mode``, ``scattering_events``, ``wall_time``, ``cpu_time`` (all threads) and
+        ``setup_cpu_time`` (before the first photon) [s].  Standard
         errors come from the spread between independent batches.
 
     Raises
@@ -358,6 +350,7 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
     run = kernel.ThermalRun(mode == "full_3d", seed, batch_size, roulette, max_events)
     cell_spread = np.zeros((3, nz * ny * nx))
     col_values = np.zeros((n_batches, len(kernel.COLUMN_TALLIES), ny, nx))
+    setup_cpu = time.process_time() - cpu_started
     chunk = MONTE_CARLO_WAVE * max(1, PROGRESS_PHOTONS // (MONTE_CARLO_WAVE * batch_size))
     events = 0
     with _numba_threads(threads):
@@ -399,5 +392,5 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
         out["heating_rate_se"] = out["cell_net_absorption_se"] * per_watt
     out.update(batches=per_batch, toa_downward_flux=top_down, photons=n_batches * batch_size, batch_count=n_batches,
                seed=seed, mode=mode, scattering_events=int(events), wall_time=time.perf_counter() - started,
-               cpu_time=time.process_time() - cpu_started)
+               cpu_time=time.process_time() - cpu_started, setup_cpu_time=setup_cpu)
     return out
