@@ -113,8 +113,9 @@ def main():
               f"surface down "
               f"{out['surface_downward_flux_domain_mean']:.2f} +- {out['surface_downward_flux_domain_mean_se']:.2f}, "
               f"up {out['surface_upward_flux_domain_mean']:.2f}, TOA up {out['toa_upward_flux_domain_mean']:.2f} +- "
-              f"{out['toa_upward_flux_domain_mean_se']:.2f}, atmosphere net {out['atmosphere_net_absorption_domain_mean']:.2f}"
-              f" +- {out['atmosphere_net_absorption_domain_mean_se']:.2f} W m-2")
+              f"{out['toa_upward_flux_domain_mean_se']:.2f}, atmosphere net "
+              f"{out['atmosphere_net_absorption_domain_mean']:.2f} +- "
+              f"{out['atmosphere_net_absorption_domain_mean_se']:.2f} W m-2")
         print(f"  1 km host columns: surface down relative s.e. median {np.median(se / mean):.4f}, largest "
               f"{np.max(se / mean):.4f}; CPU s for 1 % s.e.: median {np.median(cpu_1pc):.2f}, largest "
               f"{np.max(cpu_1pc):.2f}")

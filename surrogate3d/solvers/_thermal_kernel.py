@@ -1,8 +1,10 @@
 """Thermal (longwave) Monte Carlo kernels: a net-exchange estimator on the cell grid (numba).
 
 Photons (energy bundles) start where the atmosphere, the surface or, when the top is lit,
-space emits: the pair (source, spectral interval) is drawn in proportion to its emitted
-power.  A photon flies cell by cell (periodic sides in 3D; confined to its column for
+space emits: the pair (source, spectral interval) is drawn in proportion to the power it
+sends out (about, for cells: :func:`escape_power`), the point and direction of a cell's
+emission towards where it escapes (:func:`_chord_emission`, :func:`_face_emission`), and
+every photon carries the emitted over the sampling density.  A photon flies cell by cell (periodic sides in 3D; confined to its column for
 independent columns).  Scattering distances are sampled (Henyey-Greenstein phase function,
 Lambertian surface reflection); absorption is taken continuously: a flight of length ``s``
 through a cell of absorption coefficient ``k_a`` deposits ``w (1 - exp(-k_a s))`` of the
@@ -20,7 +22,7 @@ added to the net absorption of ``i`` and subtracted from that of ``j``.  The pat
 ``i`` to ``j`` and those from ``j`` to ``i`` both estimate the net exchange of the pair
 ``K_ij (B_j - B_i)`` (``K_ij = K_ji``, reciprocity); the factor ``1 / (B_i + B_j)`` weights
 the two estimates in proportion to how often each is sampled (the balance heuristic of
-Veach and Guibas 1995), so each is unbiased together, ``|X| <= a``, and the tally is 0
+Veach and Guibas 1995), so that together they are unbiased, ``|X| <= a``, and the tally is 0
 wherever ``B_i = B_j``.  When ``j`` never emits (``B_j = 0``: cold space) ``X = -a``, the
 plain loss.  Every run conserves energy to round-off: each ``X`` is added once and
 subtracted once.  ``docs/methods/longwave.md`` explains the choice.
@@ -77,21 +79,16 @@ top_temperature : float
     [K] of the black body that lights the top isotropically; 0 for none (cold space).
 """
 
-PlanckTable = namedtuple("PlanckTable", ["t0", "inv_dt", "radiance", "layer_gas", "band_sum"])
+PlanckTable = namedtuple("PlanckTable", ["t0", "inv_dt", "radiance"])
 PlanckTable.__doc__ = """Planck radiances tabulated in temperature (linear interpolation).
 
 t0, inv_dt : float
     First temperature of the table [K] and the inverse of its step [K-1].
 radiance : float64 (ninterval, nt)
     Band radiance of every interval [W m-2 sr-1].
-layer_gas : float64 (nz, nt)
-    Sum over intervals of gas absorption times radiance, per layer [W m-3 sr-1].
-band_sum : float64 (nband, nt)
-    Sum over every band's intervals of the radiance [W m-2 sr-1].
 """
 
-Sources = namedtuple("Sources", ["cdf", "cell_cdf", "cloud_max", "chord", "planck_cdf", "t_max", "band_lo",
-                                 "band_hi"])
+Sources = namedtuple("Sources", ["cdf", "cell_cdf", "cloud_max", "chord", "planck_cdf", "t_max"])
 Sources.__doc__ = """Where photons start and in which interval.
 
 cdf : float64 (nz ny nx + 2 ny nx,)
@@ -111,8 +108,6 @@ planck_cdf : float64 (2, ninterval)
     the proposal of the interval of surface and top photons.
 t_max : float64 (nz + 2,)
     The warmest temperature of every layer, of the surface, and the top's [K].
-band_lo, band_hi : int64 (nband,)
-    The intervals ``band_lo[b] .. band_hi[b] - 1`` belong to band ``b``.
 """
 
 ThermalRun = namedtuple("ThermalRun", ["full_3d", "seed", "batch_size", "roulette", "max_events"])
@@ -138,9 +133,9 @@ def table_radiance(values, t0, inv_dt, temperature):
 
 
 @njit(**KERNEL)
-def _search(cdf, lo, hi, u):
-    # The first index of lo .. hi - 1 whose cumulative value exceeds u (hi - 1 if none).
-    a, b = lo, hi - 1
+def _search(cdf, u):
+    # The first index whose cumulative value exceeds u (the last if none).
+    a, b = 0, cdf.shape[0] - 1
     while a < b:
         m = (a + b) >> 1
         if cdf[m] > u:
@@ -151,15 +146,12 @@ def _search(cdf, lo, hi, u):
 
 
 @njit(**KERNEL)
-def _interval(state, row, lo, hi, radiance, t0, inv_dt, temperature, t_max):
-    """An interval of ``lo .. hi - 1`` drawn in proportion to the weights of the cumulative
-    ``row`` (made at ``t_max``) times ``B(temperature) / B(t_max)``, by rejection; returns it
-    and its radiance at ``temperature``.  The radiance rises with temperature, so the ratio
-    is at most 1."""
-    base = row[lo - 1] if lo > 0 else 0.0
-    span = row[hi - 1] - base
+def _interval(state, row, radiance, t0, inv_dt, temperature, t_max):
+    """An interval drawn in proportion to the weights of the cumulative ``row`` (made at
+    ``t_max``) times ``B(temperature) / B(t_max)``, by rejection; returns it and its radiance
+    at ``temperature``.  The radiance rises with temperature, so the ratio is at most 1."""
     while True:
-        n = _search(row, lo, hi, base + uniform(state) * span)
+        n = _search(row, uniform(state) * row[-1])
         b_here = table_radiance(radiance[n], t0, inv_dt, temperature)
         b_max = table_radiance(radiance[n], t0, inv_dt, t_max)
         if uniform(state) * b_max < b_here:
@@ -188,11 +180,10 @@ def _cell_interval(state, medium, planck, sources, iz, iy, ix, temperature):
     interval, the cell's radiance and absorption coefficient in it."""
     t0, inv_dt = planck.t0, planck.inv_dt
     row = sources.cell_cdf[iz]
-    nint = row.shape[0]
     chord = sources.chord[iz]
     t_max = sources.t_max[iz]
     while True:
-        n = _search(row, 0, nint, uniform(state) * row[nint - 1])
+        n = _search(row, uniform(state) * row[-1])
         band = medium.band_of[n]
         gas = medium.gas[n, iz]
         k_abs = gas + medium.cloud[band, iz, iy, ix, 0]
@@ -231,7 +222,7 @@ def _face_emission(state, full_3d, ix, iy, z_lo, dx, dy, dz, k_abs, chord):
     :func:`escape_power` the cell was drawn with.  ``q`` is at least its term of the nearest
     face, so ``r`` grows at most like ``exp(k_abs d)`` with the distance ``d`` to the
     nearest face, and every way out, scattered or not, is at least that long: no photon
-    leaves the cell with a weight above about 4.  Returns ``(x, y, z, ux, uy, uz, r)``.
+    leaves the cell with more than a few times the batch weight.  Returns ``(x, y, z, ux, uy, uz, r)``.
     """
     if full_3d:
         area_x, area_y = dy * dz, dx * dz
@@ -525,8 +516,9 @@ def _run_batch(state, batch, run, medium, boundaries, planck, sources, tallies):
     (seeded here from the run's seed and the batch number); returns the scattering events.
 
     Photon ``i`` of ``n`` draws its source from the ``i``-th of ``n`` equal slices of the
-    cumulative emitted power (stratified: unbiased, less noisy, and consecutive photons
-    start in neighbouring cells).  Every photon carries the batch's total power over ``n``.
+    cumulative sampling power (stratified: unbiased, less noisy, and consecutive photons
+    start in neighbouring cells).  Every photon carries the batch's total sampling power
+    over ``n``, times the ratio of emitted to sampling density of its start.
     """
     seed_stream(state, run.seed, batch)
     cdf = sources.cdf
@@ -537,7 +529,6 @@ def _run_batch(state, batch, run, medium, boundaries, planck, sources, tallies):
     nz, ny, nx = temperature.shape
     ncol = ny * nx
     ncell = nz * ncol
-    nint = medium.gas.shape[0]
     t0, inv_dt = planck.t0, planck.inv_dt
     count = run.batch_size
     w = total / count
@@ -578,7 +569,7 @@ def _run_batch(state, batch, run, medium, boundaries, planck, sources, tallies):
                 # Isotropic radiance from above: the Lambertian distribution, downward.
                 kind, iz, z, uz = SPACE, nz - 1, z_edge[nz], -uz
                 row, temp = 1, boundaries.top_temperature
-            n, b_emit = _interval(state, sources.planck_cdf[row], 0, nint, planck.radiance, t0, inv_dt, temp,
+            n, b_emit = _interval(state, sources.planck_cdf[row], planck.radiance, t0, inv_dt, temp,
                                   sources.t_max[nz + row])
             r = 1.0
         events += trace(state, n, w * r, x, y, z, ux, uy, uz, ix, iy, iz, kind, iz, iy, ix, b_emit, threshold, run,

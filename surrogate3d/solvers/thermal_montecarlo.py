@@ -1,8 +1,8 @@
 """Thermal (longwave) Monte Carlo for cell grids: 3D and independent-column modes of one kernel.
 
 Sources are the air cells, the surface and (optionally) a black body lighting the top;
-photons are drawn in proportion to emitted power over (source, spectral interval), so one
-run gives the broadband answer.  Tallies are net exchanges weighted by the balance
+photons are drawn over (source, spectral interval) in proportion to the power each sends
+out, so one run gives the broadband answer.  Tallies are net exchanges weighted by the balance
 heuristic (:mod:`surrogate3d.solvers._thermal_kernel`): no noise where emitter and
 absorber have the same Planck radiance, energy conserved to round-off in every run.
 ``docs/methods/longwave.md`` ("Thermal Monte Carlo") describes the estimator and its checks.
@@ -97,10 +97,6 @@ def _checked_intervals(intervals):
     if empty.any():
         i = int(np.argmax(empty))
         fail("intervals.wavenumber_high", "greater than wavenumber_low", high[i], i)
-    falls = np.flatnonzero(np.diff(band) < 0)
-    if falls.size:
-        fail("intervals.band", "non-decreasing (every band's intervals together)", band[falls[0] + 1],
-             int(falls[0] + 1))
     return low, high, band.astype(np.int64)
 
 
@@ -141,11 +137,11 @@ def mean_chord(z_edge, dx, dy, full_3d):
     return 2.0 * dx * dy * dz / (dx * dy + dx * dz + dy * dz)
 
 
-def _sources(gas, cloud, band_of, band_lo, band_hi, temperature, t_surface, emissivity, t_top, z_edge, chord, table):
+def _sources(gas, cloud, band_of, temperature, t_surface, emissivity, t_top, z_edge, chord, table):
     """The sampling powers and the proposals of the spectral sampling (:class:`~._thermal_kernel.Sources`)
     and the Planck table (:class:`~._thermal_kernel.PlanckTable`)."""
     t0, inv_dt, radiance = table
-    nint, nz = gas.shape
+    nz = gas.shape[1]
     nband = cloud.shape[0]
     # Cells are drawn in proportion to their escaping emission, about.
     cell_power = kernel.cell_sampling_power(gas, cloud, band_of, temperature, z_edge, chord, t0, inv_dt, radiance)
@@ -162,12 +158,8 @@ def _sources(gas, cloud, band_of, band_lo, band_hi, temperature, t_surface, emis
     cell_cdf = np.ascontiguousarray(np.cumsum(proposal.T, axis=1))
     planck_cdf = np.ascontiguousarray(np.cumsum(at_max[:, nz:].T, axis=1))
     sources = kernel.Sources(cdf, cell_cdf, cloud_max, np.ascontiguousarray(chord, dtype=np.float64), planck_cdf,
-                             t_max, band_lo, band_hi)
-    layer_gas = np.ascontiguousarray(gas.T @ radiance)
-    band_sum = np.zeros((nband, radiance.shape[1]))
-    for b in range(nband):
-        band_sum[b] = radiance[band_lo[b]:band_hi[b]].sum(axis=0)
-    return sources, kernel.PlanckTable(t0, inv_dt, radiance, layer_gas, band_sum)
+                             t_max)
+    return sources, kernel.PlanckTable(t0, inv_dt, radiance)
 
 
 def _statistics(values):
@@ -193,7 +185,7 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
         horizontally uniform (for example :func:`surrogate3d.scenes.longwave_optics.gas_absorption_coefficient`
         of every layer's mean temperature, pressure and humidity).  Layer 0 is the bottom.
     intervals : surrogate3d.scenes.longwave_optics.SpectralIntervals
-        The intervals: limits [m-1] and band index, bands in non-decreasing order
+        The intervals: limits [m-1] and band index
         (:func:`~surrogate3d.scenes.longwave_optics.spectral_intervals`).
     cloud_extinction, cloud_single_scattering_albedo, cloud_asymmetry_parameter : array_like
         Cloud optics per band and cell, broadcastable to (nband, nz, ny, nx) with nband above
@@ -331,20 +323,13 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
     roulette = check_number("roulette_weight", roulette_weight, 0.0, 1.0, low_open=True)
     max_events = check_integer("max_scattering_events", max_scattering_events, 1)
 
-    band_lo = np.zeros(nband, np.int64)
-    band_hi = np.zeros(nband, np.int64)
-    for b in range(nband):
-        members = np.flatnonzero(band_of == b)
-        if members.size:
-            band_lo[b], band_hi[b] = members[0], members[-1] + 1
     temperatures = np.concatenate([t_air.ravel(), t_surface.ravel(), [t_top] if t_top > 0.0 else []])
     table = planck_table(low, high, float(temperatures.min()), float(temperatures.max()))
     cloud = np.ascontiguousarray(np.stack([ext * (1.0 - ssa), ext * ssa, asym], axis=-1))
     t_air = np.ascontiguousarray(t_air)
     gas = np.ascontiguousarray(gas)
     chord = mean_chord(z, dx, dy, mode == "full_3d")
-    sources, planck = _sources(gas, cloud, band_of, band_lo, band_hi, t_air, t_surface, emissivity, t_top, z, chord,
-                               table)
+    sources, planck = _sources(gas, cloud, band_of, t_air, t_surface, emissivity, t_top, z, chord, table)
     medium = kernel.Medium(gas, cloud, band_of, t_air, np.ascontiguousarray(z), dx, dy)
     boundaries = kernel.Boundaries(t_surface, emissivity, t_top)
     n_batches = max(2, -(-photons // batch_size))
