@@ -29,11 +29,13 @@ periodic domain, exactly as :func:`~surrogate3d.runtime.halo.subdomain_features`
 (stencils wrap around the block), and keep the own columns.  With a halo at least
 ``NAME_halo_needed`` wide no stencil of an own column wraps, so a whole periodic domain
 whose halo the host fills by periodic copy gives the features of ``compute_features``,
-and a sub-domain those of the whole domain.  Neighbour windows are direct sums where
-numpy takes differences of cumulative sums, and ``ln(1 + tau)`` comes from Goldberg's
-formula (Fortran 2008 has no ``log1p``): these agree with numpy to rounding; the other
-features repeat numpy's arithmetic operation by operation
-(``tests/export/test_fortran_features.py``).
+and a sub-domain those of the whole domain.  ``ln(1 + tau)`` comes from Goldberg's
+formula (Fortran 2008 has no ``log1p``) and agrees with numpy to rounding; the other
+features repeat numpy's arithmetic operation by operation, the neighbour windows
+included (differences of running sums over the block extended periodically, as numpy's
+``_box_sum``), so that on a sub-domain they equal ``subdomain_features`` bit for bit
+(``tests/export/test_fortran_features.py``).  Each neighbourhood mean is computed once
+however many columns read it.
 
 Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is wrong,
 ``features`` is NaN on failure):
@@ -205,15 +207,19 @@ _HELPERS = {
 """, ()),
     "window_mean": ("""\
   ! Mean of values over the window reaching radius [m] beyond each side of the column, partial
-  ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean):
-  ! a sum along x, then along y, over the periodic block.
+  ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean): a sum
+  ! along x, then along y, over the periodic block.  Each sum over the 2 m + 1 whole columns is a
+  ! difference of running sums over the block extended periodically by m + 1 columns before it and m
+  ! after, as numpy's _box_sum forms it (so that a sub-domain's means are numpy's bit for bit), then
+  ! the partial columns are added; the cost is a few additions per column whatever the radius.
   pure subroutine {p}_window_mean(values, nx, ny, hx, hy, radius, dx, dy, mean)
     integer, intent(in) :: nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), radius, dx, dy
     real(real64), intent(out) :: mean(nx, ny)
-    real(real64), allocatable :: along_x(:, :)
-    real(real64) :: half_x, half_y, part_x, part_y, total
-    integer :: mx, my, ix, iy, o, nbx, nby
+    real(real64), allocatable :: along_x(:, :), running(:), running_rows(:, :)
+    integer, allocatable :: source(:)
+    real(real64) :: half_x, half_y, part_x, part_y
+    integer :: mx, my, ix, iy, j, nbx, nby
     half_x = radius / dx
     half_y = radius / dy
     mx = floor(half_x)
@@ -223,28 +229,48 @@ _HELPERS = {
     nbx = nx + 2 * hx
     nby = ny + 2 * hy
     allocate (along_x(nx, 1-hy:ny+hy))
+    ! Along x: running(j) sums the extended row up to its j-th column, block column source(j); the sum over
+    ! the whole columns of own column ix is running(ix + hx + 2 mx) - running(ix + hx - 1).
+    allocate (running(0:hx + nx + 2 * mx), source(0:hx + nx + 2 * mx))
+    source = {p}_wrap([(j - hx - mx, j = 0, hx + nx + 2 * mx)], 1 - hx, nbx)
     do iy = 1 - hy, ny + hy
-      do ix = 1, nx
-        total = 0.0_real64
-        do o = -mx, mx
-          total = total + values({p}_wrap(ix + o, 1 - hx, nbx), iy)
+      if (mx == 0) then
+        along_x(:, iy) = values(1:nx, iy)
+      else
+        running(0) = values(source(0), iy)
+        do j = 1, hx + nx + 2 * mx
+          running(j) = running(j - 1) + values(source(j), iy)
         end do
-        if (part_x > 0.0_real64) total = total + part_x * (values({p}_wrap(ix - mx - 1, 1 - hx, nbx), iy) &
-            + values({p}_wrap(ix + mx + 1, 1 - hx, nbx), iy))
-        along_x(ix, iy) = total
-      end do
-    end do
-    do iy = 1, ny
-      do ix = 1, nx
-        total = 0.0_real64
-        do o = -my, my
-          total = total + along_x(ix, {p}_wrap(iy + o, 1 - hy, nby))
+        along_x(:, iy) = running(hx + 2 * mx + 1:hx + nx + 2 * mx) - running(hx:hx + nx - 1)
+      end if
+      if (part_x > 0.0_real64) then
+        do ix = 1, nx
+          along_x(ix, iy) = along_x(ix, iy) + part_x * (values({p}_wrap(ix - mx - 1, 1 - hx, nbx), iy) &
+              + values({p}_wrap(ix + mx + 1, 1 - hx, nbx), iy))
         end do
-        if (part_y > 0.0_real64) total = total + part_y * (along_x(ix, {p}_wrap(iy - my - 1, 1 - hy, nby)) &
-            + along_x(ix, {p}_wrap(iy + my + 1, 1 - hy, nby)))
-        mean(ix, iy) = total / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
-      end do
+      end if
     end do
+    ! Along y, all own columns at once, as along x.
+    if (my == 0) then
+      mean = along_x(:, 1:ny)
+    else
+      allocate (running_rows(nx, 0:hy + ny + 2 * my))
+      deallocate (source)
+      allocate (source(0:hy + ny + 2 * my))
+      source = {p}_wrap([(j - hy - my, j = 0, hy + ny + 2 * my)], 1 - hy, nby)
+      running_rows(:, 0) = along_x(:, source(0))
+      do j = 1, hy + ny + 2 * my
+        running_rows(:, j) = running_rows(:, j - 1) + along_x(:, source(j))
+      end do
+      mean = running_rows(:, hy + 2 * my + 1:hy + ny + 2 * my) - running_rows(:, hy:hy + ny - 1)
+    end if
+    if (part_y > 0.0_real64) then
+      do iy = 1, ny
+        mean(:, iy) = mean(:, iy) + part_y * (along_x(:, {p}_wrap(iy - my - 1, 1 - hy, nby)) &
+            + along_x(:, {p}_wrap(iy + my + 1, 1 - hy, nby)))
+      end do
+    end if
+    mean = mean / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
   end subroutine {p}_window_mean
 """, ("wrap",)),
     "edge_distance": ("""\
@@ -402,6 +428,8 @@ _HELPERS = {
     character(len=400) :: text
     integer :: ix, iy, k, pass
     if (status /= 0) return
+    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both).
+    if (count(.not. (values >= low .and. values <= high)) == 0) return
     do pass = 2, 3
       do k = 1, nz
         do iy = 1 - hy, ny + hy
@@ -436,6 +464,8 @@ _HELPERS = {
     character(len=40) :: index
     integer :: ix, iy, pass
     if (status /= 0) return
+    ! One pass when all is well, as in {p}_check_layers.
+    if (count(.not. (values >= low .and. values <= high)) == 0) return
     do pass = 2, 3
       do iy = 1 - hy, ny + hy
         do ix = 1 - hx, nx + hx
@@ -795,8 +825,29 @@ def _flux_slot(flux):
     return TARGETS.index(flux) + 1
 
 
-def _column_statements(prefix, recipe, feature, radius, slant):
-    """Fortran statements filling ``column(nx, ny)`` with one feature column of the own columns."""
+def _window_field(feature):
+    """The block array (Fortran expression) whose neighbourhood mean a per-radius feature reads."""
+    field = {"neighbour_mean_cloud_fraction": "total_cloud_fraction",
+             "neighbour_contrast_cloud_fraction": "total_cloud_fraction",
+             "neighbour_mean_log_optical_depth": "log_tau",
+             "neighbour_contrast_log_optical_depth": "log_tau"}.get(feature)
+    if field is None:   # neighbour_excess_independent_column_<flux>
+        field = f"independent_column_fluxes(:, :, {_flux_slot(feature[len('neighbour_excess_independent_column_'):])})"
+    return field
+
+
+def _windows(columns):
+    """``{(field, radius): plane}``: the neighbourhood means the columns read, each once (planes from 1)."""
+    windows = {}
+    for _, feature, radius in columns:
+        if FEATURES[feature].per_radius:
+            windows.setdefault((_window_field(feature), radius), len(windows) + 1)
+    return windows
+
+
+def _column_statements(prefix, recipe, feature, radius, slant, windows):
+    """Fortran statements filling ``column(nx, ny)`` with one feature column of the own columns, the
+    neighbourhood means taken from the planes of ``windows(nx, ny, :)`` (``windows``: which plane holds what)."""
     p, own = prefix, "(1:nx, 1:ny)"
     parameters = recipe.parameters
     if feature.startswith("independent_column_"):
@@ -822,18 +873,13 @@ def _column_statements(prefix, recipe, feature, radius, slant):
                 f"  column = column_optical_depth_std{own} / column_optical_depth_mean{own}",
                 "elsewhere", "  column = 0.0_real64", "end where"]
     if FEATURES[feature].per_radius:
-        field = {"neighbour_mean_cloud_fraction": "total_cloud_fraction",
-                 "neighbour_contrast_cloud_fraction": "total_cloud_fraction",
-                 "neighbour_mean_log_optical_depth": "log_tau",
-                 "neighbour_contrast_log_optical_depth": "log_tau"}.get(feature)
-        if field is None:   # neighbour_excess_independent_column_<flux>
-            field = f"independent_column_fluxes(:, :, {_flux_slot(feature[len('neighbour_excess_independent_column_'):])})"
-        mean = f"call {p}_window_mean({field}, nx, ny, hx, hy, {_real(radius)}, dx, dy, column)"
+        field = _window_field(feature)
+        mean = f"windows(:, :, {windows[(field, radius)]})"
         if "_mean_" in feature:
-            return [mean]
+            return [f"column = {mean}"]
         if "_contrast_" in feature:
-            return [mean, f"column = {field}{own} - column"]
-        return [mean, f"column = column - {field.replace('(:, :, ', '(1:nx, 1:ny, ')}"]
+            return [f"column = {field}{own} - {mean}"]
+        return [f"column = {mean} - {field.replace('(:, :, ', '(1:nx, 1:ny, ')}"]
     if feature == "cloud_edge_distance":
         return [f"call {p}_edge_distance(total_cloud_fraction, nx, ny, hx, hy, dx, dy, "
                 f"{_real(parameters['edge_cloud_fraction'])}, {_real(parameters['edge_distance_cap'])}, column)"]
@@ -891,10 +937,17 @@ def _host_features(prefix, recipe, columns, slant):
         derived += ["    allocate (top(1-hx:nx+hx, 1-hy:ny+hy), base(1-hx:nx+hx, 1-hy:ny+hy))",
                     f"    call {p}_cloud_extent(layer_cloud_fraction, z_edge, nx, ny, nz, hx, hy, "
                     f"{_real(recipe.parameters['layer_cloud_fraction_threshold'])}, top, base)"]
+    windows = _windows(columns)
+    if windows:
+        # Every neighbourhood mean once, however many columns read it.
+        declarations.append("    real(real64), allocatable :: windows(:, :, :)")
+        derived.append(f"    allocate (windows(nx, ny, {len(windows)}))")
+        derived += [f"    call {p}_window_mean({field}, nx, ny, hx, hy, {_real(radius)}, dx, dy, windows(:, :, {w}))"
+                    for (field, radius), w in windows.items()]
     statements = []
     for j, (name, feature, radius) in enumerate(columns, start=1):
         statements.append(f"    ! {name}")
-        statements += [f"    {s}" for s in _column_statements(prefix, recipe, feature, radius, slant)]
+        statements += [f"    {s}" for s in _column_statements(prefix, recipe, feature, radius, slant, windows)]
         statements.append(f"    features({j}, :) = reshape(column, [nx * ny])")
     return f"""\
   ! Features of the nx x ny own columns from fields on the own columns and a halo of hx, hy
