@@ -11,7 +11,7 @@ Public interface of the generated module (``docs/host-model-guide.md``):
 
 ``NAME_n_host_features``
     Number of feature columns (rows of ``features``), in the model's column order.
-``NAME_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, hx_needed, hy_needed)``
+``NAME_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, hx_needed, hy_needed[, ...])``
     Pure: the halo (columns along x and along y) the features need for this geometry,
     the largest reach over the feature columns, as
     :func:`surrogate3d.runtime.halo.halo_width`; -1 for a geometry
@@ -24,6 +24,12 @@ Public interface of the generated module (``docs/host-model-guide.md``):
     order of :data:`surrogate3d.core.data_model.TARGETS`.  ``features(j, i)`` is feature
     column ``j`` of own column ``i = ix + (iy - 1) nx`` (numpy's row-major order).
 
+Both take an optional last argument ``slant_path_reach`` (real64, m), the host's cap on
+the slant paths' horizontal travel (host field ``slant_path_reach`` of
+:mod:`surrogate3d.pairs.features`; :func:`surrogate3d.core.slant_path.path_weights`):
+beyond it the paths rise vertically, which bounds the halo at a low sun.  Absent, there
+is no cap; both procedures must be given the same.
+
 Layout and periodicity: the features treat the block of own columns plus halo as a
 periodic domain, exactly as :func:`~surrogate3d.runtime.halo.subdomain_features` does
 (stencils wrap around the block), and keep the own columns.  With a halo at least
@@ -35,7 +41,8 @@ features repeat numpy's arithmetic operation by operation, the neighbour windows
 included (differences of running sums over the block extended periodically, as numpy's
 ``_box_sum``), so that on a sub-domain they equal ``subdomain_features`` bit for bit
 (``tests/export/test_fortran_features.py``).  Each neighbourhood mean is computed once
-however many columns read it.
+however many columns read it, and the direct-beam priors in one pass
+(:func:`surrogate3d.export.fortran_slant.slant_priors_call`).
 
 Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is wrong,
 ``features`` is NaN on failure):
@@ -46,7 +53,8 @@ Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is w
    ``dx``, ``dy`` or in ``z_edge`` (the field and its ``(ix, iy[, k])`` index);
 3. a value outside its allowed range (``_ALLOWED_RANGE`` of
    :mod:`surrogate3d.pairs.features`), ``dx`` or ``dy`` not positive, ``z_edge`` not
-   strictly increasing, or a dimension below 1 (a halo below 0);
+   strictly increasing, a dimension below 1 (a halo below 0), or ``slant_path_reach``
+   negative or not finite;
 4. an impossible sun angle: the zenith angle outside [0, 90) degree, or either angle
    not finite.
 
@@ -112,6 +120,8 @@ _HEADER = """\
 ! {p}_host_features: the features of the nx x ny own columns from fields dimensioned
 ! (1-hx:nx+hx, 1-hy:ny+hy[, nz]), layer 1 the lowest, treating the block of own columns and
 ! halo as periodic (a host fills the halo of a periodic domain by periodic copy).
+! Both take an optional last argument slant_path_reach [m], the host's cap on the slant
+! paths' horizontal travel (absent: no cap); give both the same.
 ! features(j, ix + (iy - 1) * nx) is feature column j (the order of {p}_column_names)
 ! of own column (ix, iy).
 !
@@ -120,7 +130,7 @@ _HEADER = """\
 !   1  halo narrower than a feature column reads (the column, its reach and the halo named)
 !   2  a non-finite value in a field the recipe reads, in dx, dy or in z_edge (field and index)
 !   3  a value outside its allowed range, dx or dy not positive, z_edge not strictly
-!      increasing, or nx, ny, nz < 1 or hx, hy < 0
+!      increasing, nx, ny, nz < 1 or hx, hy < 0, or slant_path_reach negative or not finite
 !   4  impossible sun angle: zenith outside [0, 90) degree, or an angle not finite
 ! Fields the recipe does not read are neither read nor checked.
 module {p}_features
@@ -681,16 +691,18 @@ def _real(value):
 def _halo_needed(prefix):
     """``NAME_halo_needed``: the largest reach over the feature columns."""
     return f"""\
-  ! The halo (columns along x and along y) the features need for this geometry, -1 for a
+  ! The halo (columns along x and along y) the features need for this geometry (and cap), -1 for a
   ! geometry {prefix}_host_features refuses (status 2, 3 or 4).
   pure subroutine {prefix}_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        hx_needed, hy_needed)
+        hx_needed, hy_needed, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: hx_needed, hy_needed
+    ! The host's cap [m] on the slant paths' horizontal travel, as in {prefix}_host_features.
+    real(real64), intent(in), optional :: slant_path_reach
     integer :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
     call {prefix}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     hx_needed = maxval(reach_x)
     hy_needed = maxval(reach_y)
   end subroutine {prefix}_halo_needed
@@ -715,7 +727,8 @@ def _reach_statements(prefix, recipe, feature, radius, slant):
         return [f"reach_x(j) = floor(min(abs({d} * cos(solar_beam_azimuth * {prefix}_degree)) / dx, 1.0e9_real64)) + 1",
                 f"reach_y(j) = floor(min(abs({d} * sin(solar_beam_azimuth * {prefix}_degree)) / dy, 1.0e9_real64)) + 1"]
     if feature not in IMPLEMENTED_FEATURES:
-        return [*_indented(slant.slant_reach_call(prefix, feature, "rx", "ry"), ""), "reach_x(j) = rx",
+        return [*_indented(slant.slant_reach_call(prefix, feature, "rx", "ry", reach="slant_path_reach"), ""),
+                "reach_x(j) = rx",
                 "reach_y(j) = ry"]
     return []
 
@@ -735,16 +748,18 @@ def _feature_reach(prefix, recipe, columns, slant):
     if uses_slant:
         declarations.append("    integer :: rx, ry")
     return f"""\
-  ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach);
-  ! -1 everywhere for a geometry {prefix}_host_features refuses.
+  ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach, the
+  ! slant paths capped at slant_path_reach [m] if present); -1 everywhere for a geometry
+  ! {prefix}_host_features refuses.
   pure subroutine {prefix}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
+    real(real64), intent(in), optional :: slant_path_reach
 {_text(declarations)}    status = 0
     call {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     if (status /= 0) then
       reach_x = -1
       reach_y = -1
@@ -760,14 +775,16 @@ def _check_geometry(prefix, keys):
     """``NAME_check_geometry``: column sizes, sun angles and (when the recipe reads them) the layer edges."""
     reads_z_edge = "z_edge" in keys or any(k in keys for k in _LAYERS)
     return f"""\
-  ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 2 or 3
-  ! for layer edges not finite or not strictly increasing (when the recipe reads them).
+  ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 3 for a
+  ! cap slant_path_reach (if present) negative or not finite, 2 or 3 for layer edges not finite or
+  ! not strictly increasing (when the recipe reads them).
   pure subroutine {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
+    real(real64), intent(in), optional :: slant_path_reach
     logical, parameter :: reads_z_edge = {'.true.' if reads_z_edge else '.false.'}
     character(len=400) :: text
     integer :: k
@@ -788,6 +805,10 @@ def _check_geometry(prefix, keys):
     else if (.not. ieee_is_finite(solar_beam_azimuth)) then
       status = 4
       text = 'solar_beam_azimuth = ' // trim({prefix}_number_text(solar_beam_azimuth)) // ' degree: must be finite'
+    else if ({prefix}_bad_cap(slant_path_reach)) then
+      status = 3
+      text = 'slant_path_reach = ' // trim({prefix}_number_text(slant_path_reach)) // &
+          ' m: must be finite and >= 0 (or absent: no cap)'
     else if (reads_z_edge) then
       do k = 1, nz + 1
         if (.not. ieee_is_finite(z_edge(k))) then
@@ -807,6 +828,14 @@ def _check_geometry(prefix, keys):
     end if
     if (status /= 0) message = text
   end subroutine {prefix}_check_geometry
+
+  ! Whether a cap is present and negative or not finite.
+  pure logical function {prefix}_bad_cap(slant_path_reach)
+    real(real64), intent(in), optional :: slant_path_reach
+    {prefix}_bad_cap = .false.
+    if (present(slant_path_reach)) {prefix}_bad_cap = .not. (ieee_is_finite(slant_path_reach) &
+        .and. slant_path_reach >= 0.0_real64)
+  end function {prefix}_bad_cap
 """
 
 
@@ -845,9 +874,10 @@ def _windows(columns):
     return windows
 
 
-def _column_statements(prefix, recipe, feature, radius, slant, windows):
+def _column_statements(prefix, recipe, feature, radius, slant, windows, priors):
     """Fortran statements filling ``column(nx, ny)`` with one feature column of the own columns, the
-    neighbourhood means taken from the planes of ``windows(nx, ny, :)`` (``windows``: which plane holds what)."""
+    neighbourhood means and direct-beam priors taken from the planes of ``windows(nx, ny, :)`` and
+    ``priors(nx, ny, :)`` (``windows``, ``priors``: which plane holds what)."""
     p, own = prefix, "(1:nx, 1:ny)"
     parameters = recipe.parameters
     if feature.startswith("independent_column_"):
@@ -880,6 +910,8 @@ def _column_statements(prefix, recipe, feature, radius, slant, windows):
         if "_contrast_" in feature:
             return [f"column = {field}{own} - {mean}"]
         return [f"column = {mean} - {field.replace('(:, :, ', '(1:nx, 1:ny, ')}"]
+    if feature in priors:
+        return [f"column = priors(:, :, {priors[feature]})"]
     if feature == "cloud_edge_distance":
         return [f"call {p}_edge_distance(total_cloud_fraction, nx, ny, hx, hy, dx, dy, "
                 f"{_real(parameters['edge_cloud_fraction'])}, {_real(parameters['edge_distance_cap'])}, column)"]
@@ -889,7 +921,7 @@ def _column_statements(prefix, recipe, feature, radius, slant, windows):
     if feature == "cloud_top_height_upsun_minus_downsun":
         return [f"call {p}_cloud_top_sides(top, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, "
                 f"{_real(parameters['cloud_side_distance'])}, column)"]
-    return _indented(slant.slant_call(prefix, feature, "column"), "")
+    return _indented(slant.slant_call(prefix, feature, "column", reach="slant_path_reach"), "")
 
 
 def _field_checks(prefix, keys):
@@ -944,10 +976,18 @@ def _host_features(prefix, recipe, columns, slant):
         derived.append(f"    allocate (windows(nx, ny, {len(windows)}))")
         derived += [f"    call {p}_window_mean({field}, nx, ny, hx, hy, {_real(radius)}, dx, dy, windows(:, :, {w}))"
                     for (field, radius), w in windows.items()]
+    prior_features = [feature for feature in slant.PRIOR_FEATURES if feature in features] if slant else []
+    priors = {feature: j for j, feature in enumerate(sorted(prior_features), start=1)}
+    if priors:
+        # The direct-beam priors in one pass: the prior along the paths is computed once for all of them.
+        declarations.append("    real(real64), allocatable :: priors(:, :, :)")
+        derived.append(f"    allocate (priors(nx, ny, {len(priors)}))")
+        derived += _indented(slant.slant_priors_call(prefix, {f: f"priors(:, :, {j})" for f, j in priors.items()},
+                                                     reach="slant_path_reach"), "    ")
     statements = []
     for j, (name, feature, radius) in enumerate(columns, start=1):
         statements.append(f"    ! {name}")
-        statements += [f"    {s}" for s in _column_statements(prefix, recipe, feature, radius, slant, windows)]
+        statements += [f"    {s}" for s in _column_statements(prefix, recipe, feature, radius, slant, windows, priors)]
         statements.append(f"    features({j}, :) = reshape(column, [nx * ny])")
     return f"""\
   ! Features of the nx x ny own columns from fields on the own columns and a halo of hx, hy
@@ -955,7 +995,8 @@ def _host_features(prefix, recipe, columns, slant):
   {purity}subroutine {p}_host_features(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, &
       solar_beam_azimuth, z_edge, layer_cloud_fraction, layer_optical_depth, &
       layer_clear_sky_optical_depth, surface_albedo, total_cloud_fraction, column_optical_depth_mean, &
-      column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message)
+      column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message, &
+      slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth
     real(real64), intent(in) :: z_edge(nz + 1)
@@ -967,6 +1008,8 @@ def _host_features(prefix, recipe, columns, slant):
     real(real64), intent(out) :: features({p}_n_host_features, nx * ny)
     integer, intent(out) :: status
     character(len=*), intent(out) :: message
+    ! The host's cap [m] on the slant paths' horizontal travel (surrogate3d.core.slant_path); absent: none.
+    real(real64), intent(in), optional :: slant_path_reach
     ! The fields the recipe's features read: only these are checked and read.
 {flags}
     integer :: reach_x({p}_n_host_features), reach_y({p}_n_host_features), j, worst, short
@@ -983,11 +1026,11 @@ def _host_features(prefix, recipe, columns, slant):
       return
     end if
     call {p}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     if (status /= 0) return
     ! The halo: the first of the columns with the largest reach beyond it is named.
     call {p}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     worst = 0
     short = 0
     do j = 1, {p}_n_host_features
