@@ -35,13 +35,16 @@ periodic domain, exactly as :func:`~surrogate3d.runtime.halo.subdomain_features`
 (stencils wrap around the block), and keep the own columns.  With a halo at least
 ``NAME_halo_needed`` wide no stencil of an own column wraps, so a whole periodic domain
 whose halo the host fills by periodic copy gives the features of ``compute_features``,
-and a sub-domain those of the whole domain.  ``ln(1 + tau)`` comes from Goldberg's
-formula (Fortran 2008 has no ``log1p``) and agrees with numpy to rounding; the other
-features repeat numpy's arithmetic operation by operation, the neighbour windows
-included (differences of running sums over the block extended periodically, as numpy's
-``_box_sum``), so that on a sub-domain they equal ``subdomain_features`` bit for bit
-(``tests/export/test_fortran_features.py``).  Each neighbourhood mean is computed once
-however many columns read it, and the direct-beam priors in one pass
+and a sub-domain those of the whole domain.  Neighbour windows are sums over the
+window's columns in order where numpy takes differences of cumulative sums, and
+``ln(1 + tau)`` comes from Goldberg's formula (Fortran 2008 has no ``log1p``): these
+agree with numpy to rounding; the other features repeat numpy's arithmetic operation by
+operation (``tests/export/test_fortran_features.py``).  With such a halo every
+feature of a column depends on the values it reads only, not on the block: a sub-domain
+gives the whole domain's features bit for bit, so that no tree split of a model falls
+differently in another decomposition (numpy's cumulative sums, which depend on where
+the block starts, would not).  Each neighbourhood mean is computed once however many
+columns read it, and the direct-beam priors in one pass
 (:func:`surrogate3d.export.fortran_slant.slant_priors_call`).
 
 Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is wrong,
@@ -218,69 +221,51 @@ _HELPERS = {
     "window_mean": ("""\
   ! Mean of values over the window reaching radius [m] beyond each side of the column, partial
   ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean): a sum
-  ! along x, then along y, over the periodic block.  Each sum over the 2 m + 1 whole columns is a
-  ! difference of running sums over the block extended periodically by m + 1 columns before it and m
-  ! after, as numpy's _box_sum forms it (so that a sub-domain's means are numpy's bit for bit), then
-  ! the partial columns are added; the cost is a few additions per column whatever the radius.
+  ! along x, then along y, over the periodic block.  Each sum runs over the window's columns in
+  ! order, so that it depends on the window's values only: a column's mean is the same bit for bit
+  ! whatever the block (a sub-domain's and the whole domain's agree; numpy's differences of
+  ! cumulative sums agree with it to rounding).
   pure subroutine {p}_window_mean(values, nx, ny, hx, hy, radius, dx, dy, mean)
     integer, intent(in) :: nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), radius, dx, dy
     real(real64), intent(out) :: mean(nx, ny)
-    real(real64), allocatable :: along_x(:, :), running(:), running_rows(:, :)
-    integer, allocatable :: source(:)
-    real(real64) :: half_x, half_y, part_x, part_y
-    integer :: mx, my, ix, iy, j, nbx, nby
+    real(real64), allocatable :: along_x(:, :)
+    integer, allocatable :: column(:), row(:)
+    real(real64) :: half_x, half_y, part_x, part_y, total
+    integer :: mx, my, ix, iy, j, o
     half_x = radius / dx
     half_y = radius / dy
     mx = floor(half_x)
     my = floor(half_y)
     part_x = half_x - real(mx, real64)
     part_y = half_y - real(my, real64)
-    nbx = nx + 2 * hx
-    nby = ny + 2 * hy
-    allocate (along_x(nx, 1-hy:ny+hy))
-    ! Along x: running(j) sums the extended row up to its j-th column, block column source(j); the sum over
-    ! the whole columns of own column ix is running(ix + hx + 2 mx) - running(ix + hx - 1).
-    allocate (running(0:hx + nx + 2 * mx), source(0:hx + nx + 2 * mx))
-    source = {p}_wrap([(j - hx - mx, j = 0, hx + nx + 2 * mx)], 1 - hx, nbx)
-    do iy = 1 - hy, ny + hy
-      if (mx == 0) then
-        along_x(:, iy) = values(1:nx, iy)
-      else
-        running(0) = values(source(0), iy)
-        do j = 1, hx + nx + 2 * mx
-          running(j) = running(j - 1) + values(source(j), iy)
+    ! The block column of own column ix (ix = -mx - 1 .. nx + mx + 1) and the block row of own row iy,
+    ! wrapped around the periodic block.
+    allocate (column(-mx - 1:nx + mx + 1), row(-my - 1:ny + my + 1), along_x(nx, -my - 1:ny + my + 1))
+    column = {p}_wrap([(j, j = -mx - 1, nx + mx + 1)], 1 - hx, nx + 2 * hx)
+    row = {p}_wrap([(j, j = -my - 1, ny + my + 1)], 1 - hy, ny + 2 * hy)
+    ! Along x, in the rows the windows of the own rows reach.
+    do j = -my - 1, ny + my + 1
+      iy = row(j)
+      do ix = 1, nx
+        total = 0.0_real64
+        do o = ix - mx, ix + mx
+          total = total + values(column(o), iy)
         end do
-        along_x(:, iy) = running(hx + 2 * mx + 1:hx + nx + 2 * mx) - running(hx:hx + nx - 1)
-      end if
-      if (part_x > 0.0_real64) then
-        do ix = 1, nx
-          along_x(ix, iy) = along_x(ix, iy) + part_x * (values({p}_wrap(ix - mx - 1, 1 - hx, nbx), iy) &
-              + values({p}_wrap(ix + mx + 1, 1 - hx, nbx), iy))
-        end do
-      end if
+        if (part_x > 0.0_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
+            + values(column(ix + mx + 1), iy))
+        along_x(ix, j) = total
+      end do
     end do
-    ! Along y, all own columns at once, as along x.
-    if (my == 0) then
-      mean = along_x(:, 1:ny)
-    else
-      allocate (running_rows(nx, 0:hy + ny + 2 * my))
-      deallocate (source)
-      allocate (source(0:hy + ny + 2 * my))
-      source = {p}_wrap([(j - hy - my, j = 0, hy + ny + 2 * my)], 1 - hy, nby)
-      running_rows(:, 0) = along_x(:, source(0))
-      do j = 1, hy + ny + 2 * my
-        running_rows(:, j) = running_rows(:, j - 1) + along_x(:, source(j))
+    ! Along y, a row of own columns at a time.
+    do iy = 1, ny
+      mean(:, iy) = 0.0_real64
+      do o = iy - my, iy + my
+        mean(:, iy) = mean(:, iy) + along_x(:, o)
       end do
-      mean = running_rows(:, hy + 2 * my + 1:hy + ny + 2 * my) - running_rows(:, hy:hy + ny - 1)
-    end if
-    if (part_y > 0.0_real64) then
-      do iy = 1, ny
-        mean(:, iy) = mean(:, iy) + part_y * (along_x(:, {p}_wrap(iy - my - 1, 1 - hy, nby)) &
-            + along_x(:, {p}_wrap(iy + my + 1, 1 - hy, nby)))
-      end do
-    end if
-    mean = mean / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
+      if (part_y > 0.0_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + along_x(:, iy + my + 1))
+      mean(:, iy) = mean(:, iy) / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
+    end do
   end subroutine {p}_window_mean
 """, ("wrap",)),
     "edge_distance": ("""\
