@@ -263,7 +263,7 @@ def feature_groups(recipe, names):
             "other features": rest}
 
 
-def time_features(model_path, fields, halo, work, min_seconds, repeats, flags=FLAGS):
+def time_features(model_path, fields, halo, work, min_seconds, repeats, flags=FLAGS, reach=None):
     """Microseconds per own column of the generated host features, all columns and by group.
 
     Parameters
@@ -282,6 +282,8 @@ def time_features(model_path, fields, halo, work, min_seconds, repeats, flags=FL
         Timed runs; the best is kept.
     flags : sequence of str
         gfortran flags.
+    reach : float, optional
+        The host's cap of the slant paths' horizontal travel [m] (``slant_path_reach``); default none.
 
     Returns
     -------
@@ -304,7 +306,7 @@ def time_features(model_path, fields, halo, work, min_seconds, repeats, flags=FL
         folder.mkdir()
         (folder / "bench_features.f90").write_text(features_module_text("bench", model.recipe, names))
         rows[group] = time_program([folder / "bench_features.f90", FORTRAN / "time_host_features.f90"],
-                                   [path, min_seconds, repeats], folder, flags)
+                                   [path, min_seconds, repeats] + ([] if reach is None else [reach]), folder, flags)
     return rows
 
 
@@ -317,15 +319,18 @@ def features_main(args, flags):
     fields = feature_fields(args.regime, args.seed, args.side, args.layers, args.host_resolution, args.zenith,
                             args.azimuth, args.tile)
     model = load_coefficients(args.model)
-    halo = halo_width(model.recipe, fields["z_edge"], fields["dx"], fields["dy"], args.zenith, args.azimuth)
+    halo = halo_width(model.recipe, fields["z_edge"], fields["dx"], fields["dy"], args.zenith, args.azimuth,
+                      slant_path_reach=args.reach)
     ny, nx = fields["surface_albedo"].shape
     print(f"{args.regime} scene (seed {args.seed}) of {args.side} x {args.side} x {args.layers} cells of 100 m as "
           f"{args.host_resolution:g} m host columns, tiled {args.tile} x {args.tile}: {nx} x {ny} own columns, halo "
-          f"{halo[0]} x {halo[1]}; sun at {args.zenith:g} degrees toward {args.azimuth:g}; model {args.model} "
+          f"{halo[0]} x {halo[1]}; sun at {args.zenith:g} degrees toward {args.azimuth:g}"
+          f"{'' if args.reach is None else f', slant paths capped at {args.reach:g} m'}; model {args.model} "
           f"({len(model.column_feature_names)} feature columns) ({time.perf_counter() - start:.1f} s)")
     figures = {"regime": args.regime, "seed": args.seed, "side": args.side, "layers": args.layers,
                "host_resolution_m": args.host_resolution, "tile": args.tile, "own_columns": [nx, ny],
                "halo": list(halo), "solar_zenith_angle": args.zenith, "solar_beam_azimuth": args.azimuth,
+               "slant_path_reach": args.reach,
                "model": str(args.model), "flags": list(flags),
                "gfortran": subprocess.run(["gfortran", "--version"], capture_output=True,
                                           text=True).stdout.splitlines()[0],
@@ -333,7 +338,7 @@ def features_main(args, flags):
     print(f"load average (1, 5, 15 min) before: {', '.join(f'{v:.2f}' for v in figures['load_average_before'])} "
           f"on {os.cpu_count()} cores")
     with tempfile.TemporaryDirectory(prefix="bench_host_features_") as work:
-        rows = time_features(args.model, fields, halo, work, args.min_seconds, args.repeat, flags)
+        rows = time_features(args.model, fields, halo, work, args.min_seconds, args.repeat, flags, args.reach)
     figures["load_average_after"] = os.getloadavg()
     figures["timings"] = rows
     print_table(rows, "all features")
@@ -377,6 +382,8 @@ def main(argv=None):
     parser.add_argument("--layers", type=int, default=20, help="with --features-only: scene layers (default 20)")
     parser.add_argument("--azimuth", type=float, default=30.0,
                         help="with --features-only: direction the beam travels [degree] (default 30)")
+    parser.add_argument("--reach", type=float, metavar="M",
+                        help="with --features-only: the host's cap of the slant paths' reach [m] (default none)")
     parser.add_argument("--min-seconds", type=float, default=1.0, help="least duration of one timed run (default 1)")
     parser.add_argument("--repeat", type=int, default=5, help="timed runs, the best is kept (default 5)")
     parser.add_argument("--extra-flags", default="", metavar="FLAGS",

@@ -1,11 +1,12 @@
 ! Times bench_host_features of a generated features module (module bench_features, written by
 ! benchmarks/bench_host_fortran.py --features-only) on host fields with a halo.
 !
-!   time_host_features FIELDS MIN_SECONDS REPEATS
+!   time_host_features FIELDS MIN_SECONDS REPEATS [SLANT_PATH_REACH]
 !
 ! FIELDS is stream-unformatted: int32 nx, ny, nz, hx, hy; real64 dx, dy, solar_zenith_angle,
 ! solar_beam_azimuth; z_edge(nz + 1); the three layer fields, the five planes and the five
-! independent-column fluxes, each (1-hx:nx+hx, 1-hy:ny+hy[, nz]) in Fortran order. Each timed run
+! independent-column fluxes, each (1-hx:nx+hx, 1-hy:ny+hy[, nz]) in Fortran order. The cap of the
+! slant paths' reach [m] is passed when given. Each timed run
 ! repeats the call until MIN_SECONDS have passed; the best of REPEATS runs is printed as
 ! "key value" lines.
 program time_host_features
@@ -19,11 +20,18 @@ program time_host_features
   integer(int64) :: start, finish, rate
   real(real64) :: scalars(4), min_seconds, seconds, best, worst, checksum
   real(real64), allocatable :: z_edge(:), layers(:, :, :, :), planes(:, :, :), fluxes(:, :, :), features(:, :)
+  ! Not allocated (an absent optional argument) without a cap.
+  real(real64), allocatable :: cap
   call get_command_argument(1, path)
   call get_command_argument(2, text)
   read (text, *) min_seconds
   call get_command_argument(3, text)
   read (text, *) repeats
+  if (command_argument_count() >= 4) then
+    call get_command_argument(4, text)
+    allocate (cap)
+    read (text, *) cap
+  end if
   open (newunit=unit, file=trim(path), access='stream', form='unformatted', status='old', action='read')
   read (unit) header
   nx = header(1)
@@ -46,7 +54,7 @@ program time_host_features
     do
       call bench_host_features(nx, ny, nz, hx, hy, scalars(1), scalars(2), scalars(3), scalars(4), z_edge, &
           layers(:, :, :, 1), layers(:, :, :, 2), layers(:, :, :, 3), planes(:, :, 1), planes(:, :, 2), &
-          planes(:, :, 3), planes(:, :, 4), planes(:, :, 5), fluxes, features, status, message)
+          planes(:, :, 3), planes(:, :, 4), planes(:, :, 5), fluxes, features, status, message, cap)
       if (status /= 0) then
         write (*, '(a)') trim(message)
         error stop 1
