@@ -19,7 +19,20 @@ program with the house flags, run it, read its ``key value`` lines, of which
 returns the scene's host fields (:func:`surrogate3d.pairs.coarsen.scene_host_fields`)
 for timings that start from them.  ``--json FILE`` also writes the figures.
 
+``--features-only`` times the host features of the generated Fortran instead
+(``NAME_host_features`` of :mod:`surrogate3d.export.fortran_features`, timed by
+``benchmarks/fortran/time_host_features.f90``): the features of the shipped boosted
+model (``--model``) on the host fields of the host-model guide's scene (an
+``open_cells`` scene of 120 x 120 x 20 cells of 100 m, 1 km host columns, the host's
+independent-column fluxes from delta-Eddington, sun at 50 degrees toward 30 degrees)
+tiled ``--tile`` times along x and y (default 8: 96 x 96 own columns) with a periodic
+halo of the width the model needs, so that the halo adds little.  Besides all the
+feature columns, the module is timed with the direct-beam-prior columns only, the
+neighbour-window columns only and the other columns only (each including the checks of
+the fields it reads).
+
     .venv/bin/python benchmarks/bench_host_fortran.py [--columns N] [--regime NAME] [--json FILE]
+    .venv/bin/python benchmarks/bench_host_fortran.py --features-only [--tile N] [--json FILE]
 """
 
 import argparse
@@ -39,11 +52,14 @@ for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 import numpy as np  # noqa: E402
 
 from surrogate3d._atomic import write_text_atomic  # noqa: E402
+from surrogate3d.core.data_model import TARGETS  # noqa: E402
 from surrogate3d.pairs.coarsen import block_mean, host_factors, scene_host_fields  # noqa: E402
+from surrogate3d.pairs.features import FEATURES, column_name  # noqa: E402
 from surrogate3d.scenes import REGIMES, generate_scene, layer_thickness  # noqa: E402
 from surrogate3d.solvers.two_stream import delta_eddington  # noqa: E402
 
 FORTRAN = Path(__file__).resolve().parent / "fortran"
+MODEL = Path(__file__).resolve().parents[1] / "models" / "default" / "boosted.coefficients.json"
 #: The flags generated Fortran must compile cleanly with; -O2 is also the optimisation the figures are quoted at.
 FLAGS = ("-std=f2008", "-Wall", "-Werror", "-O2")
 
@@ -168,6 +184,173 @@ def time_numpy(columns, repeats):
     return {"columns": ncol, "microseconds_per_column": 1e6 * best / ncol, "columns_per_second": ncol / best}
 
 
+def feature_fields(regime, seed, side, layers, host_resolution, zenith, azimuth, tile):
+    """Host fields with the host's independent-column fluxes, tiled ``tile`` times along x and y.
+
+    Parameters
+    ----------
+    regime : str
+        A name of :data:`surrogate3d.scenes.REGIMES`.
+    seed : int
+        Scene seed.
+    side : int
+        Scene size in 100 m cells along x and y.
+    layers : int
+        Scene layers.
+    host_resolution : float
+        Host column size [m].
+    zenith, azimuth : float
+        Solar zenith angle and the direction the beam travels [degree].
+    tile : int
+        Copies of the host grid along x and along y (the periodic domain repeated).
+
+    Returns
+    -------
+    dict
+        Host fields (:mod:`surrogate3d.pairs.features`) of ``tile * side * 100 / host_resolution``
+        columns along x and y.
+    """
+    from surrogate3d.pairs.host_fields import host_two_stream_fluxes
+
+    scene = generate_scene(regime, seed, nx=side, ny=side, nz=layers)
+    fields = scene_host_fields(scene, host_resolution)
+    fields["solar_zenith_angle"], fields["solar_beam_azimuth"] = float(zenith), float(azimuth)
+    for flux, value in host_two_stream_fluxes(scene, host_resolution, zenith).items():
+        fields[f"independent_column_{flux}"] = value
+    return {key: (np.tile(value, (1,) * (np.ndim(value) - 2) + (tile, tile))
+                  if np.ndim(value) >= 2 and key != "z_edge" else value) for key, value in fields.items()}
+
+
+def write_feature_fields(path, fields, halo):
+    """The input of time_host_features.f90: the fields with a periodic halo of ``halo = (hx, hy)`` columns."""
+    hx, hy = halo
+    nz = len(fields["z_edge"]) - 1
+    ny, nx = fields["surface_albedo"].shape
+
+    def padded(value):
+        return np.pad(value, [(0, 0)] * (np.ndim(value) - 2) + [(hy, hy), (hx, hx)], mode="wrap")
+
+    with open(path, "wb") as f:
+        np.array([nx, ny, nz, hx, hy], dtype="<i4").tofile(f)
+        np.array([fields[k] for k in ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")], "<f8").tofile(f)
+        np.asarray(fields["z_edge"], "<f8").tofile(f)
+        for key in ("layer_cloud_fraction", "layer_optical_depth", "layer_clear_sky_optical_depth",
+                    "surface_albedo", "total_cloud_fraction", "column_optical_depth_mean", "column_optical_depth_std",
+                    "cloud_edge_length"):
+            padded(np.asarray(fields[key], "<f8")).tofile(f)
+        np.stack([padded(fields[f"independent_column_{flux}"]) if f"independent_column_{flux}" in fields
+                  else padded(fields["independent_column_surface_downward_direct_flux"]
+                              + fields["independent_column_surface_downward_diffuse_flux"])
+                  for flux in TARGETS]).astype("<f8").tofile(f)
+
+
+#: Features whose columns are timed as "priors": the direct-beam prior family.
+PRIOR_FEATURES = ("direct_beam_prior", "direct_beam_prior_minus_independent_column",
+                  "direct_beam_prior_slant_minus_vertical")
+
+
+def feature_groups(recipe, names):
+    """The model's feature columns, and those of the priors, the neighbour windows and the rest (in order)."""
+    feature_of = {}
+    for feature in recipe.features:
+        radii = recipe.parameters["neighbour_radii"] if FEATURES[feature].per_radius else [None]
+        for radius in radii:
+            feature_of[column_name(feature, radius)] = feature
+    priors = [n for n in names if feature_of[n] in PRIOR_FEATURES]
+    windows = [n for n in names if FEATURES[feature_of[n]].per_radius]
+    rest = [n for n in names if n not in priors and n not in windows]
+    return {"all features": list(names), "direct-beam priors": priors, "neighbour windows": windows,
+            "other features": rest}
+
+
+def time_features(model_path, fields, halo, work, min_seconds, repeats, flags=FLAGS, reach=None):
+    """Microseconds per own column of the generated host features, all columns and by group.
+
+    Parameters
+    ----------
+    model_path : path
+        A column model's coefficient file (its recipe and feature columns).
+    fields : dict
+        Host fields (:func:`feature_fields`).
+    halo : (int, int)
+        Halo along x and y [columns], at least what the features need.
+    work : path
+        Scratch directory.
+    min_seconds : float
+        Least duration of one timed run.
+    repeats : int
+        Timed runs; the best is kept.
+    flags : sequence of str
+        gfortran flags.
+    reach : float, optional
+        The host's cap of the slant paths' horizontal travel [m] (``slant_path_reach``); default none.
+
+    Returns
+    -------
+    dict
+        Group name (:func:`feature_groups`) -> figures of time_host_features.f90 (``columns``,
+        ``microseconds_per_column``, ...), groups without columns left out.
+    """
+    from surrogate3d.export.fortran_features import features_module_text
+    from surrogate3d.runtime import load_coefficients
+
+    model = load_coefficients(model_path)
+    work = Path(work)
+    path = work / "fields.bin"
+    write_feature_fields(path, fields, halo)
+    rows = {}
+    for n, (group, names) in enumerate(feature_groups(model.recipe, model.column_feature_names).items()):
+        if not names:
+            continue
+        folder = work / f"group_{n}"
+        folder.mkdir()
+        (folder / "bench_features.f90").write_text(features_module_text("bench", model.recipe, names))
+        rows[group] = time_program([folder / "bench_features.f90", FORTRAN / "time_host_features.f90"],
+                                   [path, min_seconds, repeats] + ([] if reach is None else [reach]), folder, flags)
+    return rows
+
+
+def features_main(args, flags):
+    """--features-only: the table of :func:`time_features` on the guide's scene tiled ``--tile`` times."""
+    from surrogate3d.runtime import load_coefficients
+    from surrogate3d.runtime.halo import halo_width
+
+    start = time.perf_counter()
+    fields = feature_fields(args.regime, args.seed, args.side, args.layers, args.host_resolution, args.zenith,
+                            args.azimuth, args.tile)
+    model = load_coefficients(args.model)
+    halo = halo_width(model.recipe, fields["z_edge"], fields["dx"], fields["dy"], args.zenith, args.azimuth,
+                      slant_path_reach=args.reach)
+    ny, nx = fields["surface_albedo"].shape
+    print(f"{args.regime} scene (seed {args.seed}) of {args.side} x {args.side} x {args.layers} cells of 100 m as "
+          f"{args.host_resolution:g} m host columns, tiled {args.tile} x {args.tile}: {nx} x {ny} own columns, halo "
+          f"{halo[0]} x {halo[1]}; sun at {args.zenith:g} degrees toward {args.azimuth:g}"
+          f"{'' if args.reach is None else f', slant paths capped at {args.reach:g} m'}; model {args.model} "
+          f"({len(model.column_feature_names)} feature columns) ({time.perf_counter() - start:.1f} s)")
+    figures = {"regime": args.regime, "seed": args.seed, "side": args.side, "layers": args.layers,
+               "host_resolution_m": args.host_resolution, "tile": args.tile, "own_columns": [nx, ny],
+               "halo": list(halo), "solar_zenith_angle": args.zenith, "solar_beam_azimuth": args.azimuth,
+               "slant_path_reach": args.reach,
+               "model": str(args.model), "flags": list(flags),
+               "gfortran": subprocess.run(["gfortran", "--version"], capture_output=True,
+                                          text=True).stdout.splitlines()[0],
+               "machine": platform.processor() or platform.machine(), "load_average_before": os.getloadavg()}
+    print(f"load average (1, 5, 15 min) before: {', '.join(f'{v:.2f}' for v in figures['load_average_before'])} "
+          f"on {os.cpu_count()} cores")
+    with tempfile.TemporaryDirectory(prefix="bench_host_features_") as work:
+        rows = time_features(args.model, fields, halo, work, args.min_seconds, args.repeat, flags, args.reach)
+    figures["load_average_after"] = os.getloadavg()
+    figures["timings"] = rows
+    print_table(rows, "all features")
+    print(f"Fortran: best of {args.repeat} runs of at least {args.min_seconds:g} s each; the groups are the model's "
+          f"columns of the direct-beam priors, of the neighbour windows and the others, each module checking the "
+          f"fields it reads; gfortran {' '.join(flags)}")
+    print(f"load average after: {', '.join(f'{v:.2f}' for v in figures['load_average_after'])}")
+    if args.json:
+        write_text_atomic(args.json, json.dumps(figures, indent=2) + "\n")
+    return figures
+
+
 def print_table(rows, reference):
     """One line per timing: microseconds and columns per second, and the time over that of ``reference``."""
     scale = rows[reference]["microseconds_per_column"]
@@ -182,23 +365,44 @@ def print_table(rows, reference):
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--columns", type=int, default=20000, help="band columns per sweep (default 20000)")
-    parser.add_argument("--regime", default="scattered_cumulus", choices=sorted(REGIMES),
-                        help="scene regime (default scattered_cumulus)")
+    parser.add_argument("--regime", choices=sorted(REGIMES),
+                        help="scene regime (default scattered_cumulus; open_cells with --features-only)")
     parser.add_argument("--seed", type=int, default=0, help="scene seed (default 0)")
-    parser.add_argument("--side", type=int, default=256, help="scene side in 100 m cells (default 256)")
-    parser.add_argument("--host-resolution", type=float, default=800.0, help="host column size [m] (default 800)")
-    parser.add_argument("--zenith", type=float, default=45.0, help="solar zenith angle [degree] (default 45)")
+    parser.add_argument("--side", type=int, help="scene side in 100 m cells (default 256; 120 with --features-only)")
+    parser.add_argument("--host-resolution", type=float,
+                        help="host column size [m] (default 800; 1000 with --features-only)")
+    parser.add_argument("--zenith", type=float, help="solar zenith angle [degree] (default 45; 50 with --features-only)")
+    parser.add_argument("--features-only", action="store_true",
+                        help="time the generated host features (NAME_host_features) instead of the band solve")
+    parser.add_argument("--model", type=Path, default=MODEL,
+                        help="with --features-only: the column model whose features are timed (default the shipped "
+                             "boosted model)")
+    parser.add_argument("--tile", type=int, default=8,
+                        help="with --features-only: copies of the host grid along x and y (default 8)")
+    parser.add_argument("--layers", type=int, default=20, help="with --features-only: scene layers (default 20)")
+    parser.add_argument("--azimuth", type=float, default=30.0,
+                        help="with --features-only: direction the beam travels [degree] (default 30)")
+    parser.add_argument("--reach", type=float, metavar="M",
+                        help="with --features-only: the host's cap of the slant paths' reach [m] (default none)")
     parser.add_argument("--min-seconds", type=float, default=1.0, help="least duration of one timed run (default 1)")
     parser.add_argument("--repeat", type=int, default=5, help="timed runs, the best is kept (default 5)")
     parser.add_argument("--extra-flags", default="", metavar="FLAGS",
                         help="gfortran flags after the house ones, e.g. '-O3 -march=native' (default none)")
     parser.add_argument("--json", metavar="FILE", help="also write the figures as JSON")
     args = parser.parse_args(argv)
+    defaults = (("open_cells", 120, 1000.0, 50.0) if args.features_only else ("scattered_cumulus", 256, 800.0, 45.0))
+    for name, value in zip(("regime", "side", "host_resolution", "zenith"), defaults):
+        if getattr(args, name) is None:
+            setattr(args, name, value)
     flags = FLAGS + tuple(args.extra_flags.split())
     if args.columns < 1:
         parser.error(f"--columns must be >= 1; got {args.columns}")
+    if args.tile < 1:
+        parser.error(f"--tile must be >= 1; got {args.tile}")
     if shutil.which("gfortran") is None:
         parser.error("gfortran is not installed (Debian: apt-get install gfortran)")
+    if args.features_only:
+        return features_main(args, flags)
 
     start = time.perf_counter()
     host = host_columns(args.regime, args.seed, args.side, args.host_resolution, args.zenith)

@@ -11,7 +11,7 @@ Public interface of the generated module (``docs/host-model-guide.md``):
 
 ``NAME_n_host_features``
     Number of feature columns (rows of ``features``), in the model's column order.
-``NAME_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, hx_needed, hy_needed)``
+``NAME_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, hx_needed, hy_needed[, ...])``
     Pure: the halo (columns along x and along y) the features need for this geometry,
     the largest reach over the feature columns, as
     :func:`surrogate3d.runtime.halo.halo_width`; -1 for a geometry
@@ -24,16 +24,28 @@ Public interface of the generated module (``docs/host-model-guide.md``):
     order of :data:`surrogate3d.core.data_model.TARGETS`.  ``features(j, i)`` is feature
     column ``j`` of own column ``i = ix + (iy - 1) nx`` (numpy's row-major order).
 
+Both take an optional last argument ``slant_path_reach`` (real64, m), the host's cap on
+the slant paths' horizontal travel (host field ``slant_path_reach`` of
+:mod:`surrogate3d.pairs.features`; :func:`surrogate3d.core.slant_path.path_weights`):
+beyond it the paths rise vertically, which bounds the halo at a low sun.  Absent, there
+is no cap; both procedures must be given the same.
+
 Layout and periodicity: the features treat the block of own columns plus halo as a
 periodic domain, exactly as :func:`~surrogate3d.runtime.halo.subdomain_features` does
 (stencils wrap around the block), and keep the own columns.  With a halo at least
 ``NAME_halo_needed`` wide no stencil of an own column wraps, so a whole periodic domain
 whose halo the host fills by periodic copy gives the features of ``compute_features``,
-and a sub-domain those of the whole domain.  Neighbour windows are direct sums where
-numpy takes differences of cumulative sums, and ``ln(1 + tau)`` comes from Goldberg's
-formula (Fortran 2008 has no ``log1p``): these agree with numpy to rounding; the other
-features repeat numpy's arithmetic operation by operation
-(``tests/export/test_fortran_features.py``).
+and a sub-domain those of the whole domain.  Neighbour windows are sums over the
+window's columns in order where numpy takes differences of cumulative sums, and
+``ln(1 + tau)`` comes from Goldberg's formula (Fortran 2008 has no ``log1p``): these
+agree with numpy to rounding; the other features repeat numpy's arithmetic operation by
+operation (``tests/export/test_fortran_features.py``).  With such a halo every
+feature of a column depends on the values it reads only, not on the block: a sub-domain
+gives the whole domain's features bit for bit, so that no tree split of a model falls
+differently in another decomposition (numpy's cumulative sums, which depend on where
+the block starts, would not).  Each neighbourhood mean is computed once however many
+columns read it, and the direct-beam priors in one pass
+(:func:`surrogate3d.export.fortran_slant.slant_priors_call`).
 
 Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is wrong,
 ``features`` is NaN on failure):
@@ -44,7 +56,8 @@ Status codes of ``NAME_host_features`` (0 is success; ``message`` says what is w
    ``dx``, ``dy`` or in ``z_edge`` (the field and its ``(ix, iy[, k])`` index);
 3. a value outside its allowed range (``_ALLOWED_RANGE`` of
    :mod:`surrogate3d.pairs.features`), ``dx`` or ``dy`` not positive, ``z_edge`` not
-   strictly increasing, or a dimension below 1 (a halo below 0);
+   strictly increasing, a dimension below 1 (a halo below 0), or ``slant_path_reach``
+   negative or not finite;
 4. an impossible sun angle: the zenith angle outside [0, 90) degree, or either angle
    not finite.
 
@@ -110,6 +123,8 @@ _HEADER = """\
 ! {p}_host_features: the features of the nx x ny own columns from fields dimensioned
 ! (1-hx:nx+hx, 1-hy:ny+hy[, nz]), layer 1 the lowest, treating the block of own columns and
 ! halo as periodic (a host fills the halo of a periodic domain by periodic copy).
+! Both take an optional last argument slant_path_reach [m], the host's cap on the slant
+! paths' horizontal travel (absent: no cap); give both the same.
 ! features(j, ix + (iy - 1) * nx) is feature column j (the order of {p}_column_names)
 ! of own column (ix, iy).
 !
@@ -118,7 +133,7 @@ _HEADER = """\
 !   1  halo narrower than a feature column reads (the column, its reach and the halo named)
 !   2  a non-finite value in a field the recipe reads, in dx, dy or in z_edge (field and index)
 !   3  a value outside its allowed range, dx or dy not positive, z_edge not strictly
-!      increasing, or nx, ny, nz < 1 or hx, hy < 0
+!      increasing, nx, ny, nz < 1 or hx, hy < 0, or slant_path_reach negative or not finite
 !   4  impossible sun angle: zenith outside [0, 90) degree, or an angle not finite
 ! Fields the recipe does not read are neither read nor checked.
 module {p}_features
@@ -205,45 +220,51 @@ _HELPERS = {
 """, ()),
     "window_mean": ("""\
   ! Mean of values over the window reaching radius [m] beyond each side of the column, partial
-  ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean):
-  ! a sum along x, then along y, over the periodic block.
+  ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean): a sum
+  ! along x, then along y, over the periodic block.  Each sum runs over the window's columns in
+  ! order, so that it depends on the window's values only: a column's mean is the same bit for bit
+  ! whatever the block (a sub-domain's and the whole domain's agree; numpy's differences of
+  ! cumulative sums agree with it to rounding).
   pure subroutine {p}_window_mean(values, nx, ny, hx, hy, radius, dx, dy, mean)
     integer, intent(in) :: nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), radius, dx, dy
     real(real64), intent(out) :: mean(nx, ny)
     real(real64), allocatable :: along_x(:, :)
+    integer, allocatable :: column(:), row(:)
     real(real64) :: half_x, half_y, part_x, part_y, total
-    integer :: mx, my, ix, iy, o, nbx, nby
+    integer :: mx, my, ix, iy, j, o
     half_x = radius / dx
     half_y = radius / dy
     mx = floor(half_x)
     my = floor(half_y)
     part_x = half_x - real(mx, real64)
     part_y = half_y - real(my, real64)
-    nbx = nx + 2 * hx
-    nby = ny + 2 * hy
-    allocate (along_x(nx, 1-hy:ny+hy))
-    do iy = 1 - hy, ny + hy
+    ! The block column of own column ix (ix = -mx - 1 .. nx + mx + 1) and the block row of own row iy,
+    ! wrapped around the periodic block.
+    allocate (column(-mx - 1:nx + mx + 1), row(-my - 1:ny + my + 1), along_x(nx, -my - 1:ny + my + 1))
+    column = {p}_wrap([(j, j = -mx - 1, nx + mx + 1)], 1 - hx, nx + 2 * hx)
+    row = {p}_wrap([(j, j = -my - 1, ny + my + 1)], 1 - hy, ny + 2 * hy)
+    ! Along x, in the rows the windows of the own rows reach.
+    do j = -my - 1, ny + my + 1
+      iy = row(j)
       do ix = 1, nx
         total = 0.0_real64
-        do o = -mx, mx
-          total = total + values({p}_wrap(ix + o, 1 - hx, nbx), iy)
+        do o = ix - mx, ix + mx
+          total = total + values(column(o), iy)
         end do
-        if (part_x > 0.0_real64) total = total + part_x * (values({p}_wrap(ix - mx - 1, 1 - hx, nbx), iy) &
-            + values({p}_wrap(ix + mx + 1, 1 - hx, nbx), iy))
-        along_x(ix, iy) = total
+        if (part_x > 0.0_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
+            + values(column(ix + mx + 1), iy))
+        along_x(ix, j) = total
       end do
     end do
+    ! Along y, a row of own columns at a time.
     do iy = 1, ny
-      do ix = 1, nx
-        total = 0.0_real64
-        do o = -my, my
-          total = total + along_x(ix, {p}_wrap(iy + o, 1 - hy, nby))
-        end do
-        if (part_y > 0.0_real64) total = total + part_y * (along_x(ix, {p}_wrap(iy - my - 1, 1 - hy, nby)) &
-            + along_x(ix, {p}_wrap(iy + my + 1, 1 - hy, nby)))
-        mean(ix, iy) = total / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
+      mean(:, iy) = 0.0_real64
+      do o = iy - my, iy + my
+        mean(:, iy) = mean(:, iy) + along_x(:, o)
       end do
+      if (part_y > 0.0_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + along_x(:, iy + my + 1))
+      mean(:, iy) = mean(:, iy) / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
     end do
   end subroutine {p}_window_mean
 """, ("wrap",)),
@@ -402,6 +423,8 @@ _HELPERS = {
     character(len=400) :: text
     integer :: ix, iy, k, pass
     if (status /= 0) return
+    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both).
+    if (count(.not. (values >= low .and. values <= high)) == 0) return
     do pass = 2, 3
       do k = 1, nz
         do iy = 1 - hy, ny + hy
@@ -436,6 +459,8 @@ _HELPERS = {
     character(len=40) :: index
     integer :: ix, iy, pass
     if (status /= 0) return
+    ! One pass when all is well, as in {p}_check_layers.
+    if (count(.not. (values >= low .and. values <= high)) == 0) return
     do pass = 2, 3
       do iy = 1 - hy, ny + hy
         do ix = 1 - hx, nx + hx
@@ -651,16 +676,18 @@ def _real(value):
 def _halo_needed(prefix):
     """``NAME_halo_needed``: the largest reach over the feature columns."""
     return f"""\
-  ! The halo (columns along x and along y) the features need for this geometry, -1 for a
+  ! The halo (columns along x and along y) the features need for this geometry (and cap), -1 for a
   ! geometry {prefix}_host_features refuses (status 2, 3 or 4).
   pure subroutine {prefix}_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        hx_needed, hy_needed)
+        hx_needed, hy_needed, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: hx_needed, hy_needed
+    ! The host's cap [m] on the slant paths' horizontal travel, as in {prefix}_host_features.
+    real(real64), intent(in), optional :: slant_path_reach
     integer :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
     call {prefix}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     hx_needed = maxval(reach_x)
     hy_needed = maxval(reach_y)
   end subroutine {prefix}_halo_needed
@@ -685,7 +712,8 @@ def _reach_statements(prefix, recipe, feature, radius, slant):
         return [f"reach_x(j) = floor(min(abs({d} * cos(solar_beam_azimuth * {prefix}_degree)) / dx, 1.0e9_real64)) + 1",
                 f"reach_y(j) = floor(min(abs({d} * sin(solar_beam_azimuth * {prefix}_degree)) / dy, 1.0e9_real64)) + 1"]
     if feature not in IMPLEMENTED_FEATURES:
-        return [*_indented(slant.slant_reach_call(prefix, feature, "rx", "ry"), ""), "reach_x(j) = rx",
+        return [*_indented(slant.slant_reach_call(prefix, feature, "rx", "ry", reach="slant_path_reach"), ""),
+                "reach_x(j) = rx",
                 "reach_y(j) = ry"]
     return []
 
@@ -705,16 +733,18 @@ def _feature_reach(prefix, recipe, columns, slant):
     if uses_slant:
         declarations.append("    integer :: rx, ry")
     return f"""\
-  ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach);
-  ! -1 everywhere for a geometry {prefix}_host_features refuses.
+  ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach, the
+  ! slant paths capped at slant_path_reach [m] if present); -1 everywhere for a geometry
+  ! {prefix}_host_features refuses.
   pure subroutine {prefix}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: reach_x({prefix}_n_host_features), reach_y({prefix}_n_host_features)
+    real(real64), intent(in), optional :: slant_path_reach
 {_text(declarations)}    status = 0
     call {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     if (status /= 0) then
       reach_x = -1
       reach_y = -1
@@ -730,14 +760,16 @@ def _check_geometry(prefix, keys):
     """``NAME_check_geometry``: column sizes, sun angles and (when the recipe reads them) the layer edges."""
     reads_z_edge = "z_edge" in keys or any(k in keys for k in _LAYERS)
     return f"""\
-  ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 2 or 3
-  ! for layer edges not finite or not strictly increasing (when the recipe reads them).
+  ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 3 for a
+  ! cap slant_path_reach (if present) negative or not finite, 2 or 3 for layer edges not finite or
+  ! not strictly increasing (when the recipe reads them).
   pure subroutine {prefix}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
+    real(real64), intent(in), optional :: slant_path_reach
     logical, parameter :: reads_z_edge = {'.true.' if reads_z_edge else '.false.'}
     character(len=400) :: text
     integer :: k
@@ -758,6 +790,10 @@ def _check_geometry(prefix, keys):
     else if (.not. ieee_is_finite(solar_beam_azimuth)) then
       status = 4
       text = 'solar_beam_azimuth = ' // trim({prefix}_number_text(solar_beam_azimuth)) // ' degree: must be finite'
+    else if ({prefix}_bad_cap(slant_path_reach)) then
+      status = 3
+      text = 'slant_path_reach = ' // trim({prefix}_number_text(slant_path_reach)) // &
+          ' m: must be finite and >= 0 (or absent: no cap)'
     else if (reads_z_edge) then
       do k = 1, nz + 1
         if (.not. ieee_is_finite(z_edge(k))) then
@@ -777,6 +813,14 @@ def _check_geometry(prefix, keys):
     end if
     if (status /= 0) message = text
   end subroutine {prefix}_check_geometry
+
+  ! Whether a cap is present and negative or not finite.
+  pure logical function {prefix}_bad_cap(slant_path_reach)
+    real(real64), intent(in), optional :: slant_path_reach
+    {prefix}_bad_cap = .false.
+    if (present(slant_path_reach)) {prefix}_bad_cap = .not. (ieee_is_finite(slant_path_reach) &
+        .and. slant_path_reach >= 0.0_real64)
+  end function {prefix}_bad_cap
 """
 
 
@@ -795,8 +839,30 @@ def _flux_slot(flux):
     return TARGETS.index(flux) + 1
 
 
-def _column_statements(prefix, recipe, feature, radius, slant):
-    """Fortran statements filling ``column(nx, ny)`` with one feature column of the own columns."""
+def _window_field(feature):
+    """The block array (Fortran expression) whose neighbourhood mean a per-radius feature reads."""
+    field = {"neighbour_mean_cloud_fraction": "total_cloud_fraction",
+             "neighbour_contrast_cloud_fraction": "total_cloud_fraction",
+             "neighbour_mean_log_optical_depth": "log_tau",
+             "neighbour_contrast_log_optical_depth": "log_tau"}.get(feature)
+    if field is None:   # neighbour_excess_independent_column_<flux>
+        field = f"independent_column_fluxes(:, :, {_flux_slot(feature[len('neighbour_excess_independent_column_'):])})"
+    return field
+
+
+def _windows(columns):
+    """``{(field, radius): plane}``: the neighbourhood means the columns read, each once (planes from 1)."""
+    windows = {}
+    for _, feature, radius in columns:
+        if FEATURES[feature].per_radius:
+            windows.setdefault((_window_field(feature), radius), len(windows) + 1)
+    return windows
+
+
+def _column_statements(prefix, recipe, feature, radius, slant, windows, priors):
+    """Fortran statements filling ``column(nx, ny)`` with one feature column of the own columns, the
+    neighbourhood means and direct-beam priors taken from the planes of ``windows(nx, ny, :)`` and
+    ``priors(nx, ny, :)`` (``windows``, ``priors``: which plane holds what)."""
     p, own = prefix, "(1:nx, 1:ny)"
     parameters = recipe.parameters
     if feature.startswith("independent_column_"):
@@ -822,18 +888,15 @@ def _column_statements(prefix, recipe, feature, radius, slant):
                 f"  column = column_optical_depth_std{own} / column_optical_depth_mean{own}",
                 "elsewhere", "  column = 0.0_real64", "end where"]
     if FEATURES[feature].per_radius:
-        field = {"neighbour_mean_cloud_fraction": "total_cloud_fraction",
-                 "neighbour_contrast_cloud_fraction": "total_cloud_fraction",
-                 "neighbour_mean_log_optical_depth": "log_tau",
-                 "neighbour_contrast_log_optical_depth": "log_tau"}.get(feature)
-        if field is None:   # neighbour_excess_independent_column_<flux>
-            field = f"independent_column_fluxes(:, :, {_flux_slot(feature[len('neighbour_excess_independent_column_'):])})"
-        mean = f"call {p}_window_mean({field}, nx, ny, hx, hy, {_real(radius)}, dx, dy, column)"
+        field = _window_field(feature)
+        mean = f"windows(:, :, {windows[(field, radius)]})"
         if "_mean_" in feature:
-            return [mean]
+            return [f"column = {mean}"]
         if "_contrast_" in feature:
-            return [mean, f"column = {field}{own} - column"]
-        return [mean, f"column = column - {field.replace('(:, :, ', '(1:nx, 1:ny, ')}"]
+            return [f"column = {field}{own} - {mean}"]
+        return [f"column = {mean} - {field.replace('(:, :, ', '(1:nx, 1:ny, ')}"]
+    if feature in priors:
+        return [f"column = priors(:, :, {priors[feature]})"]
     if feature == "cloud_edge_distance":
         return [f"call {p}_edge_distance(total_cloud_fraction, nx, ny, hx, hy, dx, dy, "
                 f"{_real(parameters['edge_cloud_fraction'])}, {_real(parameters['edge_distance_cap'])}, column)"]
@@ -843,7 +906,7 @@ def _column_statements(prefix, recipe, feature, radius, slant):
     if feature == "cloud_top_height_upsun_minus_downsun":
         return [f"call {p}_cloud_top_sides(top, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, "
                 f"{_real(parameters['cloud_side_distance'])}, column)"]
-    return _indented(slant.slant_call(prefix, feature, "column"), "")
+    return _indented(slant.slant_call(prefix, feature, "column", reach="slant_path_reach"), "")
 
 
 def _field_checks(prefix, keys):
@@ -891,10 +954,25 @@ def _host_features(prefix, recipe, columns, slant):
         derived += ["    allocate (top(1-hx:nx+hx, 1-hy:ny+hy), base(1-hx:nx+hx, 1-hy:ny+hy))",
                     f"    call {p}_cloud_extent(layer_cloud_fraction, z_edge, nx, ny, nz, hx, hy, "
                     f"{_real(recipe.parameters['layer_cloud_fraction_threshold'])}, top, base)"]
+    windows = _windows(columns)
+    if windows:
+        # Every neighbourhood mean once, however many columns read it.
+        declarations.append("    real(real64), allocatable :: windows(:, :, :)")
+        derived.append(f"    allocate (windows(nx, ny, {len(windows)}))")
+        derived += [f"    call {p}_window_mean({field}, nx, ny, hx, hy, {_real(radius)}, dx, dy, windows(:, :, {w}))"
+                    for (field, radius), w in windows.items()]
+    prior_features = [feature for feature in slant.PRIOR_FEATURES if feature in features] if slant else []
+    priors = {feature: j for j, feature in enumerate(sorted(prior_features), start=1)}
+    if priors:
+        # The direct-beam priors in one pass: the prior along the paths is computed once for all of them.
+        declarations.append("    real(real64), allocatable :: priors(:, :, :)")
+        derived.append(f"    allocate (priors(nx, ny, {len(priors)}))")
+        derived += _indented(slant.slant_priors_call(prefix, {f: f"priors(:, :, {j})" for f, j in priors.items()},
+                                                     reach="slant_path_reach"), "    ")
     statements = []
     for j, (name, feature, radius) in enumerate(columns, start=1):
         statements.append(f"    ! {name}")
-        statements += [f"    {s}" for s in _column_statements(prefix, recipe, feature, radius, slant)]
+        statements += [f"    {s}" for s in _column_statements(prefix, recipe, feature, radius, slant, windows, priors)]
         statements.append(f"    features({j}, :) = reshape(column, [nx * ny])")
     return f"""\
   ! Features of the nx x ny own columns from fields on the own columns and a halo of hx, hy
@@ -902,7 +980,8 @@ def _host_features(prefix, recipe, columns, slant):
   {purity}subroutine {p}_host_features(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, &
       solar_beam_azimuth, z_edge, layer_cloud_fraction, layer_optical_depth, &
       layer_clear_sky_optical_depth, surface_albedo, total_cloud_fraction, column_optical_depth_mean, &
-      column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message)
+      column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message, &
+      slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth
     real(real64), intent(in) :: z_edge(nz + 1)
@@ -914,6 +993,8 @@ def _host_features(prefix, recipe, columns, slant):
     real(real64), intent(out) :: features({p}_n_host_features, nx * ny)
     integer, intent(out) :: status
     character(len=*), intent(out) :: message
+    ! The host's cap [m] on the slant paths' horizontal travel (surrogate3d.core.slant_path); absent: none.
+    real(real64), intent(in), optional :: slant_path_reach
     ! The fields the recipe's features read: only these are checked and read.
 {flags}
     integer :: reach_x({p}_n_host_features), reach_y({p}_n_host_features), j, worst, short
@@ -930,11 +1011,11 @@ def _host_features(prefix, recipe, columns, slant):
       return
     end if
     call {p}_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     if (status /= 0) return
     ! The halo: the first of the columns with the largest reach beyond it is named.
     call {p}_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     worst = 0
     short = 0
     do j = 1, {p}_n_host_features

@@ -16,6 +16,14 @@ offsets: the caller checks that the halo covers the feature's reach
 path weights are computed once per call; the work of one column is ``pure`` and
 writes no module variable, so the column loops may run under OpenMP.  The text needs
 ``real64`` of ``iso_fortran_env`` in the enclosing module.
+
+Every procedure that follows the paths, and every reach procedure, takes an optional
+last argument ``slant_path_reach`` [m], the host's cap on the paths' horizontal travel
+(:func:`surrogate3d.core.slant_path.path_weights` with ``reach``): above the height
+where the travel reaches it the paths rise vertically.  Absent, there is no cap; a cap
+negative or not finite makes the reach ``huge()`` (no halo suffices).  The statements of
+:func:`slant_call`, :func:`slant_priors_call` and :func:`slant_reach_call` pass it when
+given the Fortran expression of the cap.
 """
 
 import inspect
@@ -31,6 +39,14 @@ SLANT_FEATURES = frozenset({
     "direct_beam_interception_tilted", "direct_beam_interception_tilted_minus_vertical",
     "direct_beam_interception_relative_change",
 })
+
+#: The direct-beam priors, which :func:`slant_priors_call` computes together, and the keyword of each in the call.
+_PRIOR_KEYWORD = {"direct_beam_prior": "prior",
+                  "direct_beam_prior_minus_independent_column": "minus_independent_column",
+                  "direct_beam_prior_slant_minus_vertical": "slant_minus_vertical"}
+
+#: Features of :data:`SLANT_FEATURES` that :func:`slant_priors_call` computes in one pass.
+PRIOR_FEATURES = frozenset(_PRIOR_KEYWORD)
 
 #: Name of the per-layer optical depth above (not a column feature) in ``needed`` and :func:`slant_reach_call`.
 SLANT_DEPTH_ABOVE = "slant_optical_depth_above"
@@ -165,16 +181,27 @@ def _common_procedures(p):
     ry = max(0, maxval(abs(paths%oy)))
   end subroutine {p}_slant_largest_offsets
 
-  !> Whether the geometry has a finite reach: the sun above the horizon and the paths crossing fewer than
-  !> 1e6 columns (a lower sun needs a halo no host has; the weights would not fit in memory).
-  pure logical function {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
+  !> Whether the geometry has a finite reach: the sun above the horizon, a cap of the paths' horizontal
+  !> travel (slant_path_reach [m], if present) finite and >= 0, and the paths crossing fewer than 1e6 columns
+  !> (a lower sun needs a halo no host has; the weights would not fit in memory).
+  pure logical function {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle
+    real(real64), intent(in), optional :: slant_path_reach
 {_DEGREE}
+    real(real64) :: travel
     {p}_slant_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
-    if ({p}_slant_reachable) then
-      {p}_slant_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
+    if (.not. {p}_slant_reachable) return
+    travel = z_edge(nz + 1) * tan(solar_zenith_angle * degree)
+    if (present(slant_path_reach)) then
+      ! Not (>= 0 and <= huge) is also true for NaN.
+      if (.not. (slant_path_reach >= 0.0_real64 .and. slant_path_reach <= huge(slant_path_reach))) then
+        {p}_slant_reachable = .false.
+        return
+      end if
+      travel = min(travel, slant_path_reach)
     end if
+    {p}_slant_reachable = travel < 1.0e6_real64 * min(dx, dy)
   end function {p}_slant_reachable
 """
 
@@ -204,10 +231,10 @@ def _group_procedure(p):
       group(e) = g
       n_terms(g) = n_terms(g) + 1
     end do
-    allocate (paths%group_first(n_group + 1), paths%term_layer(size(paths%ox)), &
-              paths%term_weight(size(paths%ox)))
-    paths%group_oy = group_oy(1:n_group)
-    paths%group_ox = group_ox(1:n_group)
+    allocate (paths%group_first(n_group + 1), paths%group_oy(n_group), paths%group_ox(n_group), &
+              paths%term_layer(size(paths%ox)), paths%term_weight(size(paths%ox)))
+    paths%group_oy(:) = group_oy(1:n_group)
+    paths%group_ox(:) = group_ox(1:n_group)
     paths%group_first(1) = 1
     do g = 1, n_group
       paths%group_first(g + 1) = paths%group_first(g) + n_terms(g)
@@ -344,24 +371,133 @@ def _path_procedures(p):
           ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
-    paths%oy = oy(1:n_entry)
-    paths%ox = ox(1:n_entry)
-    paths%weight = weight(1:n_entry)
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
   end subroutine {p}_path_weights
 
-  !> Columns along x (rx) and y (ry) the path toward the sun reads (runtime.halo._path); huge() for a sun
-  !> at or below the horizon or a path across 1e6 columns or more.
-  pure subroutine {p}_path_reach({_GEOMETRY_ARGS}, rx, ry)
+  !> Columns along x (rx) and y (ry) the path toward the sun reads (runtime.halo._path), its horizontal
+  !> travel capped at slant_path_reach [m] if present; huge() for a sun at or below the horizon, a cap
+  !> negative or not finite, or a path across 1e6 columns or more.
+  pure subroutine {p}_path_reach({_GEOMETRY_ARGS}, rx, ry, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: rx, ry
+    real(real64), intent(in), optional :: slant_path_reach
     type({p}_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
-    call {p}_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    if (.not. {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)) return
+    call {p}_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call {p}_slant_largest_offsets(paths, rx, ry)
   end subroutine {p}_path_reach
+"""
+
+
+def _capped_procedure(p, base):
+    """The weights of ``PREFIX_{base}_weights`` with the host's cap on the horizontal travel (slant_path._capped)."""
+    return f"""
+  !> The weights of {p}_{base}_weights with the paths' horizontal travel capped at slant_path_reach [m]
+  !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
+  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
+  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
+  !> slant_path_reach must be finite and >= 0 ({p}_slant_reachable).
+  pure subroutine {p}_capped_{base}_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
+      paths, slant_path_reach)
+    integer, intent(in) :: n_layer
+    real(real64), intent(in) :: edges(n_layer + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
+    type({p}_slant_weights), intent(out) :: paths
+    real(real64), intent(in), optional :: slant_path_reach
+{_DEGREE}
+    type({p}_slant_weights) :: low, top
+    real(real64) :: tan0, z_cap, share, low_edges(n_layer + 1)
+    real(real64), allocatable :: weight(:)
+    integer, allocatable :: oy(:), ox(:)
+    integer :: n_below, k, a, b, n_low, n_top, n_entry, capacity
+    logical :: take_low, take_top
+    tan0 = tan(solar_zenith_angle * degree)
+    z_cap = huge(z_cap)
+    if (present(slant_path_reach) .and. tan0 > 0.0_real64) z_cap = slant_path_reach / tan0
+    if (z_cap >= edges(n_layer + 1)) then
+      call {p}_{base}_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+      return
+    end if
+    ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
+    n_below = count(edges < z_cap)
+    call {p}_{base}_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
+        solar_beam_azimuth, top)
+    n_top = size(top%ox)
+    if (n_below > 0) then
+      low_edges(1:n_below) = edges(1:n_below)
+      low_edges(n_below + 1) = z_cap
+      call {p}_{base}_weights(n_below, low_edges(1:n_below + 1), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, low)
+      n_low = size(low%ox)
+    else
+      n_low = 0
+    end if
+    capacity = n_low + n_top * (n_layer - n_below + 1)
+    allocate (paths%first(n_layer + 1), oy(capacity), ox(capacity), weight(capacity))
+    n_entry = 0
+    do k = 1, n_layer
+      paths%first(k) = n_entry + 1
+      if (k < n_below) then
+        do a = low%first(k), low%first(k + 1) - 1
+          n_entry = n_entry + 1
+          oy(n_entry) = low%oy(a)
+          ox(n_entry) = low%ox(a)
+          weight(n_entry) = low%weight(a)
+        end do
+      else if (k > n_below) then
+        oy(n_entry + 1:n_entry + n_top) = top%oy
+        ox(n_entry + 1:n_entry + n_top) = top%ox
+        weight(n_entry + 1:n_entry + n_top) = top%weight
+        n_entry = n_entry + n_top
+      else
+        ! The layer cut by z_cap: both lists (each in (oy, ox) order) merged, a column in both summed as
+        ! numpy's bincount sums it, the part below first; columns of weight 0 dropped.
+        share = (z_cap - edges(k)) / (edges(k + 1) - edges(k))
+        a = low%first(k)
+        b = 1
+        do while (a < low%first(k + 1) .or. b <= n_top)
+          take_low = a < low%first(k + 1)
+          take_top = b <= n_top
+          if (take_low .and. take_top) then
+            if (low%oy(a) /= top%oy(b)) then
+              take_low = low%oy(a) < top%oy(b)
+              take_top = .not. take_low
+            else if (low%ox(a) /= top%ox(b)) then
+              take_low = low%ox(a) < top%ox(b)
+              take_top = .not. take_low
+            end if
+          end if
+          n_entry = n_entry + 1
+          weight(n_entry) = 0.0_real64
+          if (take_low) then
+            oy(n_entry) = low%oy(a)
+            ox(n_entry) = low%ox(a)
+            weight(n_entry) = weight(n_entry) + low%weight(a) * share
+            a = a + 1
+          end if
+          if (take_top) then
+            oy(n_entry) = top%oy(b)
+            ox(n_entry) = top%ox(b)
+            weight(n_entry) = weight(n_entry) + top%weight(b) * (1.0_real64 - share)
+            b = b + 1
+          end if
+          if (.not. (weight(n_entry) > 0.0_real64)) n_entry = n_entry - 1
+        end do
+      end if
+    end do
+    paths%first(n_layer + 1) = n_entry + 1
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
+  end subroutine {p}_capped_{base}_weights
 """
 
 
@@ -369,20 +505,23 @@ def _slant_depth_procedure(p):
     return f"""
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
-  !> column's own tau / mu0. The halo must cover {p}_path_reach.
+  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. The halo must
+  !> cover {p}_path_reach.
   pure subroutine {p}_slant_depth({_CALL_HEAD}, &
-      layer_optical_depth, feature, out)
+      layer_optical_depth, feature, out, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
+    real(real64), intent(in), optional :: slant_path_reach
 {_DEGREE}
     type({p}_slant_weights) :: paths
     real(real64) :: mu0, total, plane, column
     integer :: ix, iy, g, t, k
     mu0 = cos(solar_zenith_angle * degree)
-    call {p}_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    call {p}_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call {p}_slant_group_offsets(nz, paths)
     do iy = 1, ny
       do ix = 1, nx
@@ -417,15 +556,17 @@ def slant_depth_above_procedure(prefix):
     fields with a halo::
 
         PREFIX_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                 z_edge, layer_optical_depth, slant)
+                                 z_edge, layer_optical_depth, slant[, slant_path_reach])
 
-    with ``slant(nz, nx * ny)`` [1], layer ``k`` of own column ``i = ix + (iy - 1) * nx``.
+    with ``slant(nz, nx * ny)`` [1], layer ``k`` of own column ``i = ix + (iy - 1) * nx``,
+    and the optional cap ``slant_path_reach`` [m] (finite, >= 0; the ``reach`` of
+    ``slant_optical_depth_above``).
     It uses the path-weight procedures that :func:`slant_procedures` emits with it: put
     ``"slant_optical_depth_above"`` in ``needed`` of :func:`slant_procedures` (which
     includes this text) and of :func:`slant_declarations` (which makes it and its reach
     public); its reach is ``slant_reach_call(prefix, "slant_optical_depth_above", rx, ry)``,
     a call of ``PREFIX_path_reach(nz, z_edge, dx, dy, solar_zenith_angle,
-    solar_beam_azimuth, rx, ry)``.
+    solar_beam_azimuth, rx, ry[, slant_path_reach])`` (give it the same cap).
 
     Parameters
     ----------
@@ -447,13 +588,16 @@ def slant_depth_above_procedure(prefix):
   !> Optical depth [1] along the straight path from the middle of every layer toward the sun
   !> (surrogate3d.pairs.profiles.slant_optical_depth_above): through the upper half of the layer and every
   !> layer above, crossing neighbouring columns; Beer-Lambert along the path, sum w tau / mu0.
-  !> slant(k, i) for layer k of own column i = ix + (iy - 1) * nx. The halo must cover {p}_path_reach.
+  !> slant(k, i) for layer k of own column i = ix + (iy - 1) * nx. With slant_path_reach [m] (finite, >= 0)
+  !> the paths' horizontal travel is capped there (slant_path.path_weights). The halo must cover
+  !> {p}_path_reach of the same cap.
   pure subroutine {p}_slant_depth_above({_CALL_HEAD}, &
-      layer_optical_depth, slant)
+      layer_optical_depth, slant, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     real(real64), intent(out) :: slant(nz, nx * ny)
+    real(real64), intent(in), optional :: slant_path_reach
 {_DEGREE}
     type({p}_slant_weights) :: paths(nz)
     real(real64) :: edges(nz + 1), mu0, middle, total, plane, value
@@ -464,8 +608,8 @@ def slant_depth_above_procedure(prefix):
       middle = 0.5_real64 * (z_edge(k) + z_edge(k + 1))
       edges(1) = 0.0_real64
       edges(2:nz - k + 2) = z_edge(k + 1:nz + 1) - middle
-      call {p}_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-          paths(k))
+      call {p}_capped_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, paths(k), slant_path_reach)
       call {p}_slant_group_offsets(nz - k + 1, paths(k))
     end do
     do iy = 1, ny
@@ -577,22 +721,25 @@ def _area_procedures(p):
           ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
-    paths%oy = oy(1:n_entry)
-    paths%ox = ox(1:n_entry)
-    paths%weight = weight(1:n_entry)
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
   end subroutine {p}_area_weights
 
   !> Columns along x (rx) and y (ry) the paths from a column's whole surface toward the sun read
-  !> (runtime.halo._area); huge() for a sun at or below the horizon or paths across 1e6 columns or more.
-  pure subroutine {p}_area_reach({_GEOMETRY_ARGS}, rx, ry)
+  !> (runtime.halo._area), capped at slant_path_reach [m] if present; huge() as {p}_path_reach.
+  pure subroutine {p}_area_reach({_GEOMETRY_ARGS}, rx, ry, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: rx, ry
+    real(real64), intent(in), optional :: slant_path_reach
     type({p}_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
-    call {p}_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    if (.not. {p}_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)) return
+    call {p}_capped_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call {p}_slant_largest_offsets(paths, rx, ry)
   end subroutine {p}_area_reach
 """
@@ -617,41 +764,42 @@ def _prior_procedures(p):
 
   !> Blocks of adjacent cloudy layers of one path, top down (features._scan_blocks): each block's cover
   !> (maximum-random overlap within it, Geleyn and Hollingsworth 1979), cloud optical depth [1] and cloud
-  !> volume per area sum c dz [m]; loose, the cloud optical depth of layers without cloud fraction.
+  !> volume per area sum c dz [m]; loose, the cloud optical depth of layers without cloud fraction. The
+  !> cloud fraction is clipped to [0, 1] (c below).
   pure subroutine {p}_prior_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
     integer, intent(in) :: nz
     real(real64), intent(in) :: fraction(nz), cloud(nz), dz(nz)
     integer, intent(out) :: n_block
     real(real64), intent(out), dimension(nz) :: cover, depth, volume
     real(real64), intent(out) :: loose
-    real(real64) :: c(nz), run_clear, run_depth, run_volume
-    logical :: cloudy_above, ends
+    real(real64) :: c, c_above, run_clear, run_depth, run_volume
+    logical :: ends
     integer :: k
-    c = min(max(fraction, 0.0_real64), 1.0_real64)
     n_block = 0
     loose = 0.0_real64
     run_clear = 1.0_real64
     run_depth = 0.0_real64
     run_volume = 0.0_real64
-    cloudy_above = .false.
+    c_above = 0.0_real64
     do k = nz, 1, -1
-      if (c(k) > 0.0_real64) then
-        if (cloudy_above) then
+      c = min(max(fraction(k), 0.0_real64), 1.0_real64)
+      if (c > 0.0_real64) then
+        if (c_above > 0.0_real64) then
           ! (1 - max(c_k, c_k+1)) / (1 - c_k+1), 0 below an overcast layer (features._overlap_ratio)
-          if (1.0_real64 - c(k + 1) > 0.0_real64) then
-            run_clear = run_clear * ((1.0_real64 - max(c(k), c(k + 1))) / (1.0_real64 - c(k + 1)))
+          if (1.0_real64 - c_above > 0.0_real64) then
+            run_clear = run_clear * ((1.0_real64 - max(c, c_above)) / (1.0_real64 - c_above))
           else
             run_clear = 0.0_real64
           end if
           run_depth = run_depth + cloud(k)
-          run_volume = run_volume + c(k) * dz(k)
+          run_volume = run_volume + c * dz(k)
         else
-          run_clear = 1.0_real64 - c(k)
+          run_clear = 1.0_real64 - c
           run_depth = cloud(k)
-          run_volume = c(k) * dz(k)
+          run_volume = c * dz(k)
         end if
         ends = k == 1
-        if (.not. ends) ends = c(k - 1) <= 0.0_real64
+        if (.not. ends) ends = min(max(fraction(k - 1), 0.0_real64), 1.0_real64) <= 0.0_real64
         if (ends) then
           n_block = n_block + 1
           cover(n_block) = 1.0_real64 - run_clear
@@ -661,21 +809,20 @@ def _prior_procedures(p):
       else
         loose = loose + cloud(k)
       end if
-      cloudy_above = c(k) > 0.0_real64
+      c_above = c
     end do
   end subroutine {p}_prior_cloud_blocks
 
   !> The host column's overlap exponent gamma (features.overlap_exponent) and in-cloud relative variance v
-  !> (features._relative_variance_of_blocks with gamma) from its own layers, its total cloud fraction and
-  !> its sub-grid standard deviation of optical depth.
-  pure subroutine {p}_overlap_statistics(nz, fraction, cloud, total_cloud_fraction, column_std, v, gamma)
-    integer, intent(in) :: nz
-    real(real64), intent(in) :: fraction(nz), cloud(nz), total_cloud_fraction, column_std
+  !> (features._relative_variance_of_blocks with gamma) from the blocks of its own layers (cover and cloud
+  !> optical depth of {p}_prior_cloud_blocks), its total cloud fraction and its sub-grid standard deviation of
+  !> optical depth.
+  pure subroutine {p}_overlap_statistics(n_block, cover, depth, total_cloud_fraction, column_std, v, gamma)
+    integer, intent(in) :: n_block
+    real(real64), intent(in) :: cover(n_block), depth(n_block), total_cloud_fraction, column_std
     real(real64), intent(out) :: v, gamma
-    real(real64), dimension(nz) :: cover, depth, volume
-    real(real64) :: loose, clear, c, adjusted, squared, between, within
-    integer :: n_block, j
-    call {p}_prior_cloud_blocks(nz, fraction, cloud, spread(0.0_real64, 1, nz), n_block, cover, depth, volume, loose)
+    real(real64) :: clear, c, adjusted, squared, between, within
+    integer :: j
     clear = 1.0_real64
     do j = 1, n_block
       clear = clear * (1.0_real64 - cover(j))
@@ -716,14 +863,15 @@ def _prior_procedures(p):
   !> Mean direct transmittance [1] of a path through partly cloudy layers (features.direct_transmittance_prior):
   !> blocks of cloudy layers overlapped at random, their covers made consistent by gamma, seen slanted as
   !> 1 - (1 - C)^(1 + rho H tan(theta0)), the cloud optical depth gamma-distributed with relative variance v
-  !> (mean transmittance (1 + m v / mu0)^(-1 / v)), Beer-Lambert for the clear sky and loose cloud.
-  pure real(real64) function {p}_prior_transmittance(nz, fraction, cloud, dz, clear_depth, v, mu0, rho, gamma)
-    integer, intent(in) :: nz
-    real(real64), intent(in) :: fraction(nz), cloud(nz), dz(nz), clear_depth, v, mu0, rho, gamma
-    real(real64), dimension(nz) :: cover, depth, volume
-    real(real64) :: loose, tan0, adjusted, thickness, seen, mean, exponent
-    integer :: n_block, j
-    call {p}_prior_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
+  !> (mean transmittance (1 + m v / mu0)^(-1 / v)), Beer-Lambert for the clear sky and loose cloud; the blocks
+  !> and loose as {p}_prior_cloud_blocks gives them.
+  pure real(real64) function {p}_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v, mu0, &
+      rho, gamma)
+    integer, intent(in) :: n_block
+    real(real64), intent(in), dimension(n_block) :: cover, depth, volume
+    real(real64), intent(in) :: loose, clear_depth, v, mu0, rho, gamma
+    real(real64) :: tan0, adjusted, thickness, seen, mean, exponent
+    integer :: j
     tan0 = sqrt(max(1.0_real64 - mu0 * mu0, 0.0_real64)) / mu0
     {p}_prior_transmittance = exp(-(clear_depth + loose) / mu0)
     do j = 1, n_block
@@ -744,125 +892,144 @@ def _prior_procedures(p):
     end do
   end function {p}_prior_transmittance
 
-  !> The direct-beam prior of own column (ix, iy) along the paths toward the sun (features._direct_prior,
-  !> slanted): the layers' cloud fraction and cloud optical depth gathered along the area weights, the
-  !> clear-sky optical depth summed along them, and the crossed columns' v (weighted by the cloud optical
-  !> depth met in each), rho and gamma (weighted by the cloud fraction met), each summed as slant_sum does.
-  pure real(real64) function {p}_slanted_prior(nx, ny, nz, hx, hy, rx, ry, ix, iy, paths, fraction, tau, clear, &
-      v, rho, gamma, dz, mu0)
-    integer, intent(in) :: nx, ny, nz, hx, hy, rx, ry, ix, iy
-    type({p}_slant_weights), intent(in) :: paths
-    real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy, nz) :: fraction, tau, clear
-    real(real64), intent(in), dimension(1-rx:nx+rx, 1-ry:ny+ry) :: v, rho, gamma
-    real(real64), intent(in) :: dz(nz), mu0
-    real(real64) :: path_fraction(nz), path_cloud(nz), cloud, w
-    real(real64) :: clear_path, v_sum, rho_sum, gamma_sum, plane_clear, plane_v, plane_rho, plane_gamma
-    real(real64) :: cloud_total, fraction_total, v_path, rho_path, gamma_path
-    integer :: k, e, g, t, jx, jy
-    cloud_total = 0.0_real64
-    fraction_total = 0.0_real64
-    do k = 1, nz
-      path_fraction(k) = 0.0_real64
-      path_cloud(k) = 0.0_real64
-      do e = paths%first(k), paths%first(k + 1) - 1
-        jx = ix + paths%ox(e)
-        jy = iy + paths%oy(e)
-        path_cloud(k) = path_cloud(k) + paths%weight(e) * max(tau(jx, jy, k) - clear(jx, jy, k), 0.0_real64)
-        path_fraction(k) = path_fraction(k) + paths%weight(e) * fraction(jx, jy, k)
-      end do
-      cloud_total = cloud_total + path_cloud(k)
-      fraction_total = fraction_total + path_fraction(k)
-    end do
-    clear_path = 0.0_real64
-    v_sum = 0.0_real64
-    rho_sum = 0.0_real64
-    gamma_sum = 0.0_real64
-    do g = 1, size(paths%group_ox)
-      jx = ix + paths%group_ox(g)
-      jy = iy + paths%group_oy(g)
-      plane_clear = 0.0_real64
-      plane_v = 0.0_real64
-      plane_rho = 0.0_real64
-      plane_gamma = 0.0_real64
-      do t = paths%group_first(g), paths%group_first(g + 1) - 1
-        k = paths%term_layer(t)
-        w = paths%term_weight(t)
-        cloud = max(tau(jx, jy, k) - clear(jx, jy, k), 0.0_real64)
-        plane_clear = plane_clear + clear(jx, jy, k) * w
-        plane_v = plane_v + (cloud * v(jx, jy)) * w
-        plane_rho = plane_rho + (fraction(jx, jy, k) * rho(jx, jy)) * w
-        plane_gamma = plane_gamma + (fraction(jx, jy, k) * gamma(jx, jy)) * w
-      end do
-      clear_path = clear_path + plane_clear
-      v_sum = v_sum + plane_v
-      rho_sum = rho_sum + plane_rho
-      gamma_sum = gamma_sum + plane_gamma
-    end do
-    v_path = 0.0_real64
-    if (cloud_total > 0.0_real64) v_path = v_sum / cloud_total
-    rho_path = 0.0_real64
-    gamma_path = 0.0_real64
-    if (fraction_total > 0.0_real64) then
-      rho_path = rho_sum / fraction_total
-      gamma_path = gamma_sum / fraction_total
-    end if
-    {p}_slanted_prior = {p}_prior_transmittance(nz, path_fraction, path_cloud, dz, clear_path, v_path, mu0, rho_path, &
-        gamma_path)
-  end function {p}_slanted_prior
-
-  !> direct_beam_prior [1] of the own columns (feature 'direct_beam_prior'), minus the host's
-  !> independent-column direct flux ica_direct ('direct_beam_prior_minus_independent_column') or minus
-  !> the same formula along the vertical ('direct_beam_prior_slant_minus_vertical'). The halo must cover
-  !> {p}_area_reach.
-  pure subroutine {p}_direct_prior({_CALL_HEAD}, &
+  !> The direct-beam priors [1] of the own columns, all in one pass over the columns (the weights and the
+  !> column statistics computed once): prior, along the paths toward the sun (feature 'direct_beam_prior');
+  !> minus_independent_column, that minus the host's independent-column direct flux ica_direct
+  !> ('direct_beam_prior_minus_independent_column'); slant_minus_vertical, that minus the same formula along
+  !> the vertical ('direct_beam_prior_slant_minus_vertical'). Only those present are computed (ica_direct is
+  !> read for minus_independent_column only). The paths' travel is capped at slant_path_reach [m] if present.
+  !> The halo must cover {p}_area_reach.
+  !>
+  !> As features._direct_prior: the layers' cloud fraction and cloud optical depth gathered along the area
+  !> weights (slant_path.gather_layers), the clear-sky optical depth summed along them, and the crossed
+  !> columns' v (weighted by the cloud optical depth met in each), rho and gamma (weighted by the cloud
+  !> fraction met), each summed as slant_path.slant_sum sums it.
+  pure subroutine {p}_direct_priors({_CALL_HEAD}, &
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, total_cloud_fraction, &
-      column_optical_depth_std, cloud_edge_length, ica_direct, feature, out)
+      column_optical_depth_std, cloud_edge_length, ica_direct, prior, minus_independent_column, &
+      slant_minus_vertical, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy, nz) :: layer_cloud_fraction, &
         layer_optical_depth, layer_clear_sky_optical_depth
     real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy) :: total_cloud_fraction, &
         column_optical_depth_std, cloud_edge_length, ica_direct
-    character(len=*), intent(in) :: feature
-    real(real64), intent(out) :: out(nx, ny)
+    real(real64), intent(out), dimension(nx, ny), optional :: prior, minus_independent_column, &
+        slant_minus_vertical
+    real(real64), intent(in), optional :: slant_path_reach
 {_DEGREE}
     type({p}_slant_weights) :: paths
-    real(real64), allocatable, dimension(:, :) :: v, rho, gamma
-    real(real64) :: mu0, dz(nz), cloud(nz), clear_depth
-    integer :: ix, iy, k, rx, ry
+    real(real64), allocatable :: cloud(:, :, :)
+    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud
+    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
+    real(real64), allocatable :: vertical(:, :)
+    real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
+        plane_clear, plane_v, plane_rho, plane_gamma
+    ! A column's layers in contiguous memory (a strided section passed on would be copied to the heap).
+    real(real64), dimension(nz) :: dz, zeros, fraction, cloud_of_column, cover, depth, volume
+    integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
     mu0 = cos(solar_zenith_angle * degree)
     dz = z_edge(2:nz + 1) - z_edge(1:nz)
-    call {p}_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    zeros = 0.0_real64
+    call {p}_capped_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call {p}_slant_group_offsets(nz, paths)
     call {p}_slant_largest_offsets(paths, rx, ry)
-    ! The column statistics of every column the own columns' paths meet.
-    allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry))
+    ! The cloud optical depth (features._cloud_layers) and the column statistics of every column the own
+    ! columns' paths meet, from the blocks of their own layers; with these blocks, the prior along the
+    ! vertical of the own columns (features._direct_prior, not slanted).
+    allocate (cloud(1-rx:nx+rx, 1-ry:ny+ry, nz), v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), &
+              gamma(1-rx:nx+rx, 1-ry:ny+ry), vertical(nx, ny))
+    cloud = max(layer_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :) &
+                - layer_clear_sky_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :), 0.0_real64)
     do iy = 1 - ry, ny + ry
       do ix = 1 - rx, nx + rx
-        cloud = max(layer_optical_depth(ix, iy, :) - layer_clear_sky_optical_depth(ix, iy, :), 0.0_real64)
-        call {p}_overlap_statistics(nz, layer_cloud_fraction(ix, iy, :), cloud, total_cloud_fraction(ix, iy), &
+        fraction = layer_cloud_fraction(ix, iy, :)
+        cloud_of_column = cloud(ix, iy, :)
+        call {p}_prior_cloud_blocks(nz, fraction, cloud_of_column, zeros, n_block, cover, depth, volume, loose)
+        call {p}_overlap_statistics(n_block, cover, depth, total_cloud_fraction(ix, iy), &
             column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
         rho(ix, iy) = {p}_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
+        if (.not. present(slant_minus_vertical)) cycle
+        if (ix < 1 .or. ix > nx .or. iy < 1 .or. iy > ny) cycle
+        clear_depth = 0.0_real64
+        do k = 1, nz
+          clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
+        end do
+        vertical(ix, iy) = {p}_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v(ix, iy), &
+            mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
+    allocate (path_fraction(nx, nz), path_cloud(nx, nz), cloud_total(nx), fraction_total(nx), clear_path(nx), &
+              v_sum(nx), rho_sum(nx), gamma_sum(nx))
     do iy = 1, ny
-      do ix = 1, nx
-        out(ix, iy) = {p}_slanted_prior(nx, ny, nz, hx, hy, rx, ry, ix, iy, paths, layer_cloud_fraction, &
-            layer_optical_depth, layer_clear_sky_optical_depth, v, rho, gamma, dz, mu0)
-        if (feature == 'direct_beam_prior_minus_independent_column') then
-          out(ix, iy) = out(ix, iy) - ica_direct(ix, iy)
-        else if (feature == 'direct_beam_prior_slant_minus_vertical') then
-          clear_depth = 0.0_real64
-          do k = 1, nz
-            clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
+      ! The sums of one own column in registers, the own columns of the row in turn: each term of a sum
+      ! reads the next element of a row of the fields.
+      cloud_total = 0.0_real64
+      fraction_total = 0.0_real64
+      do k = 1, nz
+        do ix = 1, nx
+          sum_cloud = 0.0_real64
+          sum_fraction = 0.0_real64
+          do e = paths%first(k), paths%first(k + 1) - 1
+            jx = ix + paths%ox(e)
+            jy = iy + paths%oy(e)
+            w = paths%weight(e)
+            sum_cloud = sum_cloud + w * cloud(jx, jy, k)
+            sum_fraction = sum_fraction + w * layer_cloud_fraction(jx, jy, k)
           end do
-          cloud = max(layer_optical_depth(ix, iy, :) - layer_clear_sky_optical_depth(ix, iy, :), 0.0_real64)
-          out(ix, iy) = out(ix, iy) - {p}_prior_transmittance(nz, layer_cloud_fraction(ix, iy, :), cloud, &
-              spread(0.0_real64, 1, nz), clear_depth, v(ix, iy), mu0, 0.0_real64, gamma(ix, iy))
+          path_cloud(ix, k) = sum_cloud
+          path_fraction(ix, k) = sum_fraction
+        end do
+        cloud_total = cloud_total + path_cloud(:, k)
+        fraction_total = fraction_total + path_fraction(:, k)
+      end do
+      clear_path = 0.0_real64
+      v_sum = 0.0_real64
+      rho_sum = 0.0_real64
+      gamma_sum = 0.0_real64
+      do g = 1, size(paths%group_ox)
+        jy = iy + paths%group_oy(g)
+        do ix = 1, nx
+          jx = ix + paths%group_ox(g)
+          plane_clear = 0.0_real64
+          plane_v = 0.0_real64
+          plane_rho = 0.0_real64
+          plane_gamma = 0.0_real64
+          do t = paths%group_first(g), paths%group_first(g + 1) - 1
+            k = paths%term_layer(t)
+            w = paths%term_weight(t)
+            plane_clear = plane_clear + layer_clear_sky_optical_depth(jx, jy, k) * w
+            plane_v = plane_v + (cloud(jx, jy, k) * v(jx, jy)) * w
+            plane_rho = plane_rho + (layer_cloud_fraction(jx, jy, k) * rho(jx, jy)) * w
+            plane_gamma = plane_gamma + (layer_cloud_fraction(jx, jy, k) * gamma(jx, jy)) * w
+          end do
+          clear_path(ix) = clear_path(ix) + plane_clear
+          v_sum(ix) = v_sum(ix) + plane_v
+          rho_sum(ix) = rho_sum(ix) + plane_rho
+          gamma_sum(ix) = gamma_sum(ix) + plane_gamma
+        end do
+      end do
+      do ix = 1, nx
+        v_path = 0.0_real64
+        if (cloud_total(ix) > 0.0_real64) v_path = v_sum(ix) / cloud_total(ix)
+        rho_path = 0.0_real64
+        gamma_path = 0.0_real64
+        if (fraction_total(ix) > 0.0_real64) then
+          rho_path = rho_sum(ix) / fraction_total(ix)
+          gamma_path = gamma_sum(ix) / fraction_total(ix)
         end if
+        fraction = path_fraction(ix, :)
+        cloud_of_column = path_cloud(ix, :)
+        call {p}_prior_cloud_blocks(nz, fraction, cloud_of_column, dz, n_block, cover, depth, volume, loose)
+        slanted = {p}_prior_transmittance(n_block, cover, depth, volume, loose, clear_path(ix), v_path, mu0, &
+            rho_path, gamma_path)
+        if (present(prior)) prior(ix, iy) = slanted
+        if (present(minus_independent_column)) minus_independent_column(ix, iy) = slanted - ica_direct(ix, iy)
+        if (present(slant_minus_vertical)) slant_minus_vertical(ix, iy) = slanted - vertical(ix, iy)
       end do
     end do
-  end subroutine {p}_direct_prior
+  end subroutine {p}_direct_priors
 """
 
 
@@ -903,11 +1070,12 @@ def _interception_procedures(p):
 
   !> Columns along x (rx) and y (ry) the tilted interception reads (runtime.halo._area_twice): twice the
   !> swept area's, out along the paths and back; huge() as {p}_area_reach.
-  pure subroutine {p}_area_twice_reach({_GEOMETRY_ARGS}, rx, ry)
+  pure subroutine {p}_area_twice_reach({_GEOMETRY_ARGS}, rx, ry, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: rx, ry
-    call {p}_area_reach({_GEOMETRY_ARGS}, rx, ry)
+    real(real64), intent(in), optional :: slant_path_reach
+    call {p}_area_reach({_GEOMETRY_ARGS}, rx, ry, slant_path_reach)
     if (rx < huge(rx)) rx = 2 * rx
     if (ry < huge(ry)) ry = 2 * ry
   end subroutine {p}_area_twice_reach
@@ -917,21 +1085,24 @@ def _interception_procedures(p):
   !> to the cells the paths cross in proportion to the optical depth met in each (slant_path.scatter_layers)
   !> and summed over the column's layers; for 'direct_beam_interception_tilted_minus_vertical' minus the
   !> vertical column's share, for 'direct_beam_interception_relative_change' that difference over
-  !> max(vertical, 0.01). The halo must cover {p}_area_twice_reach.
+  !> max(vertical, 0.01). The paths' travel is capped at slant_path_reach [m] if present. The halo must cover
+  !> {p}_area_twice_reach.
   pure subroutine {p}_interception({_CALL_HEAD}, &
-      layer_optical_depth, feature, out)
+      layer_optical_depth, feature, out, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
+    real(real64), intent(in), optional :: slant_path_reach
 {_DEGREE}
     type({p}_slant_weights) :: paths
     real(real64), allocatable :: per_tau(:, :, :)
     real(real64) :: mu0, path_tau(nz), share(nz), scattered, tilted, vertical
     integer :: ix, iy, k, e, rx, ry
     mu0 = cos(solar_zenith_angle * degree)
-    call {p}_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    call {p}_capped_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call {p}_slant_largest_offsets(paths, rx, ry)
     ! The tilted columns through every cell the own columns' paths meet: what each removes per unit of
     ! optical depth met, layer by layer.
@@ -1043,7 +1214,7 @@ def slant_procedures(prefix, needed):
     Examples
     --------
     >>> text = slant_procedures("boosted", ["direct_beam_prior"])
-    >>> "subroutine boosted_direct_prior(" in text, "subroutine boosted_slant_depth(" in text
+    >>> "subroutine boosted_direct_priors(" in text, "subroutine boosted_slant_depth(" in text
     (True, False)
     """
     families = _families(needed)
@@ -1055,12 +1226,14 @@ def slant_procedures(prefix, needed):
         parts.append(_group_procedure(p))
     if families & {"path", "depth_above"}:
         parts.append(_path_procedures(p))
+        parts.append(_capped_procedure(p, "path"))
     if "path" in families:
         parts.append(_slant_depth_procedure(p))
     if "depth_above" in families:
         parts.append(slant_depth_above_procedure(p))
     if families & {"prior", "interception"}:
         parts.append(_area_procedures(p))
+        parts.append(_capped_procedure(p, "area"))
     if "prior" in families:
         parts.append(_prior_procedures(p))
     if "interception" in families:
@@ -1068,11 +1241,18 @@ def slant_procedures(prefix, needed):
     return _wrapped("".join(parts))
 
 
-def slant_call(prefix, feature, out):
+def _reach_argument(reach):
+    """The trailing actual argument passing the host's cap (a Fortran expression), or nothing."""
+    return "" if reach is None else f", slant_path_reach={reach}"
+
+
+def slant_call(prefix, feature, out, reach=None):
     """One Fortran statement computing a slant-path feature of every own column into ``out``.
 
     The statement uses the dummy-argument names of ``NAME_host_features`` (the contract
-    of ``fortran_features.py``) and the procedures of :func:`slant_procedures`.
+    of ``fortran_features.py``) and the procedures of :func:`slant_procedures`.  The
+    direct-beam priors of a recipe are best computed together by
+    :func:`slant_priors_call`; this statement computes one of them alone.
 
     Parameters
     ----------
@@ -1082,6 +1262,10 @@ def slant_call(prefix, feature, out):
         A name of :data:`SLANT_FEATURES`.
     out : str
         A Fortran array expression of shape ``(nx, ny)`` that receives the feature.
+    reach : str, optional
+        A Fortran real64 expression (e.g. ``"slant_path_reach"``, an optional dummy
+        argument, which may be absent) passed as the cap of the paths' horizontal travel
+        [m]; default none (no cap).
 
     Returns
     -------
@@ -1100,27 +1284,70 @@ def slant_call(prefix, feature, out):
         layer_optical_depth, 'slant_optical_depth', work)
     """
     family = _family(feature, SLANT_FEATURES)
-    head = f"call {prefix}_"
-    if family == "path":
-        text = f"{head}slant_depth({_CALL_HEAD}, &\n    layer_optical_depth, '{feature}', {out})"
-    elif family == "interception":
-        text = f"{head}interception({_CALL_HEAD}, &\n    layer_optical_depth, '{feature}', {out})"
-    else:
-        text = (f"{head}direct_prior({_CALL_HEAD}, &\n"
-                "    layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &\n"
-                "    total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &\n"
-                f"    independent_column_fluxes(:, :, 2), '{feature}', {out})")
-    return _wrapped(text)
+    if family == "prior":
+        return slant_priors_call(prefix, {feature: out}, reach)
+    name = "slant_depth" if family == "path" else "interception"
+    return _wrapped(f"call {prefix}_{name}({_CALL_HEAD}, &\n"
+                    f"    layer_optical_depth, '{feature}', {out}{_reach_argument(reach)})")
 
 
-def slant_reach_call(prefix, feature, rx, ry):
+def slant_priors_call(prefix, outs, reach=None):
+    """One Fortran statement computing several direct-beam priors of every own column in one pass.
+
+    The weights along the paths toward the sun, the crossed columns' statistics and the
+    prior along the paths are computed once for all the features asked for (what
+    :func:`slant_call` would do once per feature).
+
+    Parameters
+    ----------
+    prefix : str
+        The Fortran model name.
+    outs : mapping of str to str
+        Feature of :data:`PRIOR_FEATURES` -> a Fortran array expression of shape
+        ``(nx, ny)`` that receives it.
+    reach : str, optional
+        The cap of the paths' horizontal travel, as in :func:`slant_call`.
+
+    Returns
+    -------
+    str
+        The statement (continued over lines with ``&``), without a trailing newline;
+        it uses the dummy-argument names of ``NAME_host_features``.
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        No feature, or one that is not in :data:`PRIOR_FEATURES`.
+
+    Examples
+    --------
+    >>> print(slant_priors_call("boosted", {"direct_beam_prior": "a", "direct_beam_prior_slant_minus_vertical": "b"}))
+    call boosted_direct_priors(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+        layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &
+        total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
+        independent_column_fluxes(:, :, 2), prior=a, slant_minus_vertical=b)
+    """
+    if not outs:
+        raise ParameterError("outs names no direct-beam prior feature: give at least one of "
+                             f"{sorted(PRIOR_FEATURES)}")
+    for feature in outs:
+        _family(feature, PRIOR_FEATURES)
+    keywords = ", ".join(f"{_PRIOR_KEYWORD[feature]}={outs[feature]}" for feature in _PRIOR_KEYWORD
+                         if feature in outs)
+    return _wrapped(f"call {prefix}_direct_priors({_CALL_HEAD}, &\n"
+                    "    layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &\n"
+                    "    total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &\n"
+                    f"    independent_column_fluxes(:, :, 2), {keywords}{_reach_argument(reach)})")
+
+
+def slant_reach_call(prefix, feature, rx, ry, reach=None):
     """One Fortran statement setting the integers ``rx``, ``ry`` to the reach of a slant-path feature.
 
     The reach (columns along x and y the feature reads) equals
     :data:`surrogate3d.runtime.halo.REACH` for the geometry, whose dummy names the
     statement uses (``nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth``); it
-    is ``huge()`` for a sun at or below the horizon (no halo suffices).  The called
-    procedure is ``pure``.
+    is ``huge()`` for a sun at or below the horizon or a cap that is negative or not
+    finite (no halo suffices).  The called procedure is ``pure``.
 
     Parameters
     ----------
@@ -1130,6 +1357,9 @@ def slant_reach_call(prefix, feature, rx, ry):
         A name of :data:`SLANT_FEATURES` or ``"slant_optical_depth_above"``.
     rx, ry : str
         Names of integer variables.
+    reach : str, optional
+        The cap of the paths' horizontal travel, as in :func:`slant_call`
+        (:func:`surrogate3d.runtime.halo.feature_reach` with ``slant_path_reach``).
 
     Returns
     -------
@@ -1147,4 +1377,4 @@ def slant_reach_call(prefix, feature, rx, ry):
     call boosted_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
     """
     family = _family(feature, SLANT_FEATURES | {SLANT_DEPTH_ABOVE})
-    return _wrapped(f"call {prefix}_{_REACH[family]}({_GEOMETRY_ARGS}, {rx}, {ry})")
+    return _wrapped(f"call {prefix}_{_REACH[family]}({_GEOMETRY_ARGS}, {rx}, {ry}{_reach_argument(reach)})")

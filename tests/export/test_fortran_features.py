@@ -6,9 +6,12 @@ the domain with a halo filled by periodic copy) and
 the Fortran to 1e-10 relative (1e-12 absolute near zero), for every feature the module
 writes (all but the slant-path family), on random fields with exact zeros and ones and
 on a scene of smooth round clouds, sun zenith angles 0-80 degrees and beam azimuths all
-around; bad input gives the documented status and a message naming what is wrong.
-The modules are compiled once (``gfortran -std=f2008 -Wall -Werror -O2``); fields go to
-the test program as stream-binary doubles, which read back exactly.
+around; bad input gives the documented status and a message naming what is wrong.  The
+shipped recipe with the slant-path family of :mod:`surrogate3d.export.fortran_slant`
+(the direct-beam priors computed in one pass) is checked the same way with and without
+the host's cap on the slant paths' reach (``slant_path_reach``).  The modules are
+compiled once (``gfortran -std=f2008 -Wall -Werror -O2``); fields go to the test program
+as stream-binary doubles, which read back exactly.
 """
 
 import shutil
@@ -85,10 +88,11 @@ def slant_stub():
 """
     return types.SimpleNamespace(
         SLANT_FEATURES=frozenset({"slant_optical_depth"}),
+        PRIOR_FEATURES=frozenset(),
         slant_procedures=procedures,
-        slant_call=lambda prefix, feature, out: (f"call {prefix}_stub_slant(nx, ny, nz, hx, hy, layer_optical_depth, "
-                                                 f"solar_zenith_angle, {out})"),
-        slant_reach_call=lambda prefix, feature, rx, ry: f"{rx} = 2; {ry} = 3",
+        slant_call=lambda prefix, feature, out, reach=None: (f"call {prefix}_stub_slant(nx, ny, nz, hx, hy, "
+                                                             f"layer_optical_depth, solar_zenith_angle, {out})"),
+        slant_reach_call=lambda prefix, feature, rx, ry, reach=None: f"{rx} = 2; {ry} = 3",
         slant_declarations=lambda prefix, needed: f"  real(real64), parameter :: {prefix}_stub_one = 1.0_real64\n")
 
 
@@ -109,9 +113,17 @@ def sun_recipe():
     return FeatureRecipe(["cos_solar_zenith"], name="sun")
 
 
-#: Test modules: (prefix, recipe).
+def full_recipe():
+    """training/features.toml as it is (the slant-path features and priors included) and the tilted
+    interceptions: every family of fortran_slant.py beside the windows."""
+    data = tomllib.loads((ROOT / "training" / "features.toml").read_text())
+    features = data["features"] + ["direct_beam_interception_tilted", "direct_beam_interception_relative_change"]
+    return FeatureRecipe(features, data["parameters"], name="full")
+
+
+#: Test modules: (prefix, recipe); "stub" with the stand-in of slant_stub, the others with fortran_slant.py.
 MODULES = {"shipped": ("shipped", shipped_recipe), "every": (LONG_PREFIX, every_recipe), "stub": ("stub", stub_recipe),
-           "sun": ("sun", sun_recipe)}
+           "sun": ("sun", sun_recipe), "full": ("full", full_recipe)}
 
 
 def _program():
@@ -122,10 +134,10 @@ def _program():
     n_features = {prefix}_n_host_features
     allocate (features(n_features, nx * ny))
     call {prefix}_halo_needed(nz, z_edge, scalars(1), scalars(2), scalars(3), scalars(4), &
-        hx_needed, hy_needed)
+        hx_needed, hy_needed, cap)
     call {prefix}_host_features(nx, ny, nz, hx, hy, scalars(1), scalars(2), scalars(3), &
         scalars(4), z_edge, layers(:, :, :, 1), layers(:, :, :, 2), layers(:, :, :, 3), planes(:, :, 1), planes(:, :, 2), &
-        planes(:, :, 3), planes(:, :, 4), planes(:, :, 5), fluxes, features, status, message)""")
+        planes(:, :, 3), planes(:, :, 4), planes(:, :, 5), fluxes, features, status, message, cap)""")
     uses = "\n".join(f"  use {prefix}_features" for prefix, _ in MODULES.values())
     return f"""\
 program features_check
@@ -134,10 +146,12 @@ program features_check
   implicit none
   character(len=512) :: which, input, output
   character(len=400) :: message
-  integer(int32) :: header(5)
+  integer(int32) :: header(6)
   integer :: unit, nx, ny, nz, hx, hy, hx_needed, hy_needed, status, n_features
-  real(real64) :: scalars(4)
+  real(real64) :: scalars(5)
   real(real64), allocatable :: z_edge(:), layers(:, :, :, :), planes(:, :, :), fluxes(:, :, :), features(:, :)
+  ! The cap slant_path_reach: passed unallocated (an absent optional argument) unless header(6) says there is one.
+  real(real64), allocatable :: cap
   call get_command_argument(1, which)
   call get_command_argument(2, input)
   call get_command_argument(3, output)
@@ -152,6 +166,7 @@ program features_check
             fluxes(1-hx:nx+hx, 1-hy:ny+hy, 5))
   read (unit) scalars, z_edge, layers, planes, fluxes
   close (unit)
+  if (header(6) /= 0) cap = scalars(5)
   select case (trim(which))
 {chr(10).join(cases)}
   case default
@@ -172,13 +187,15 @@ def program(tmp_path_factory):
         pytest.skip("gfortran is not installed")
     folder = tmp_path_factory.mktemp("fortran_features")
     sources = []
-    with pytest.MonkeyPatch.context() as patch:
-        _use_slant(patch, slant_stub())
-        for prefix, recipe in MODULES.values():
-            recipe = recipe()
-            path = folder / f"{prefix}_features.f90"
-            path.write_text(features_module_text(prefix, recipe, recipe.column_names()))
-            sources.append(path.name)
+    for key, (prefix, recipe) in MODULES.items():
+        recipe = recipe()
+        with pytest.MonkeyPatch.context() as patch:
+            if key == "stub":
+                _use_slant(patch, slant_stub())
+            text = features_module_text(prefix, recipe, recipe.column_names())
+        path = folder / f"{prefix}_features.f90"
+        path.write_text(text)
+        sources.append(path.name)
     (folder / "check.f90").write_text(_program())
     done = subprocess.run([GFORTRAN, *FLAGS, *sources, "check.f90", "-o", "check"], cwd=folder,
                           capture_output=True, text=True)
@@ -196,8 +213,9 @@ def run(program, which, fields, halo):
     input_path, output_path = folder / f"{which}.in", folder / f"{which}.out"
     absent = np.zeros((nyb, nxb))
     with open(input_path, "wb") as stream:
-        np.array([nxb - 2 * hx, nyb - 2 * hy, nz, hx, hy], dtype="<i4").tofile(stream)
-        np.array([fields[k] for k in ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")], "<f8").tofile(stream)
+        np.array([nxb - 2 * hx, nyb - 2 * hy, nz, hx, hy, "slant_path_reach" in fields], dtype="<i4").tofile(stream)
+        np.array([fields[k] for k in ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")]
+                 + [fields.get("slant_path_reach", 0.0)], "<f8").tofile(stream)
         np.asarray(fields["z_edge"], "<f8").tofile(stream)
         np.stack([fields.get(k, np.zeros((nz, nyb, nxb))) for k in _LAYERS]).astype("<f8").tofile(stream)
         np.stack([fields.get(k, absent) for k in _PLANES]).astype("<f8").tofile(stream)
@@ -342,24 +360,95 @@ def test_columns_of_unequal_size(program):
 
 
 @needs_gfortran
-@pytest.mark.parametrize("key, geometry", [("shipped", (30.0, 37.0)), ("shipped", (80.0, 315.0)),
-                                           ("every", (60.0, 200.0))])
-def test_subdomains_equal_numpy(program, key, geometry):
-    # A 12 x 14 domain in 4 sub-domains of 6 x 7 own columns, each with the halo the recipe needs.
+@pytest.mark.parametrize("key, geometry, cap", [("shipped", (30.0, 37.0), None), ("shipped", (80.0, 315.0), None),
+                                                ("every", (60.0, 200.0), None), ("full", (50.0, 30.0), None),
+                                                ("full", (80.0, 315.0), 2500.0), ("full", (65.0, 130.0), 0.0)])
+def test_subdomains_equal_numpy(program, key, geometry, cap):
+    # A 12 x 14 domain in 4 sub-domains of 6 x 7 own columns, each with the halo the recipe needs (for the cap).
     recipe = MODULES[key][1]()
     zenith, azimuth = geometry
     fields = random_fields(50, 12, 14, zenith=zenith, azimuth=azimuth)
-    hx, hy = halo_width(recipe, fields["z_edge"], 1000.0, 1000.0, zenith, azimuth)
+    if cap is not None:
+        fields["slant_path_reach"] = cap
+    hx, hy = halo_width(recipe, fields["z_edge"], 1000.0, 1000.0, zenith, azimuth, slant_path_reach=cap)
     padded = with_halo(fields, hx, hy)
     whole = compute_features(fields, recipe).reshape(14, 12, -1)
+    names = recipe.column_names()
+    # The Fortran of the whole domain: every feature of a column depends on the values it reads only, not on
+    # the block, so that the sub-domains give it bit for bit (a tree's split cannot fall otherwise in another
+    # decomposition).
+    status, _, message, fortran_whole = run(program, key, padded, (hx, hy))
+    assert (status, message) == (0, "")
+    fortran_whole = fortran_whole.reshape(14, 12, -1)
     for y0 in (0, 7):
         for x0 in (0, 6):
             block = sub_block(padded, x0, y0, 6 + 2 * hx, 7 + 2 * hy)
             status, _, message, features = run(program, key, block, (hx, hy))
             assert (status, message) == (0, "")
-            names = recipe.column_names()
             assert_equal_features(features, subdomain_features(block, recipe, (hx, hy)), names)
             assert_equal_features(features, whole[y0:y0 + 7, x0:x0 + 6].reshape(42, -1), names)
+            np.testing.assert_array_equal(features, fortran_whole[y0:y0 + 7, x0:x0 + 6].reshape(42, -1))
+
+
+#: Caps of the slant paths' horizontal travel [m]: none in effect (0), within the lowest layers, across a few
+#: columns, and beyond any travel of these fields (the same as no cap).
+CAPS = [0.0, 1200.0, 2500.0, 5000.0, 1.0e7]
+
+
+@needs_gfortran
+@pytest.mark.parametrize("cap", [None] + CAPS)
+def test_slant_family_with_a_cap_equals_numpy(program, cap):
+    # The shipped recipe with its slant-path features and priors (and the tilted interceptions), zenith 0-80
+    # degrees, azimuths all around; the halo is what numpy's halo_width gives for the cap.
+    recipe = full_recipe()
+    names = recipe.column_names()
+    # Every third geometry (zenith angles and azimuths mixed), from a different one for each cap.
+    first = 0 if cap is None else CAPS.index(cap) + 1
+    for i, (zenith, azimuth) in enumerate(GEOMETRIES[first::3]):
+        fields = random_fields(100 + i, 12, 14, zenith=zenith, azimuth=azimuth)
+        if cap is not None:
+            fields["slant_path_reach"] = cap
+        halo = halo_width(recipe, fields["z_edge"], 1000.0, 1000.0, zenith, azimuth, slant_path_reach=cap)
+        status, needed, message, features = run(program, "full", with_halo(fields, *halo), halo)
+        assert (status, message, needed) == (0, "", halo)
+        assert_equal_features(features, compute_features(fields, recipe), names)
+
+
+def test_priors_and_neighbourhood_means_are_computed_once():
+    # The three direct-beam priors in one call; one neighbourhood mean per field and radius (mean, contrast and
+    # excess of the same field and radius share it): 3 radii x (cloud fraction, ln(1 + tau), 3 fluxes).
+    recipe = full_recipe()
+    text = features_module_text("full", recipe, recipe.column_names())
+    assert text.count("call full_direct_priors(") == 1
+    assert text.count("call full_window_mean(") == 15
+
+
+@needs_gfortran
+@pytest.mark.parametrize("cap", [-1.0, float("nan"), float("inf")])
+def test_a_bad_cap_is_refused(program, cap):
+    fields = dict(random_fields(110, 12, 14, zenith=60.0), slant_path_reach=cap)
+    status, needed, message, features = run(program, "full", with_halo(fields, 5, 5), (5, 5))
+    assert status == 3 and needed == (-1, -1)
+    assert message.startswith("slant_path_reach = ") and message.endswith("must be finite and >= 0 (or absent: no cap)")
+    assert np.all(np.isnan(features))
+
+
+@needs_gfortran
+def test_the_halo_check_uses_the_capped_reach(program):
+    # At 85 degrees the paths cross ~60 columns; capped at 2500 m the tilted interception (out along the paths
+    # and back) reads 6: that halo is enough with the cap and too narrow without it (the interception named:
+    # the first column reading furthest).
+    recipe = full_recipe()
+    fields = random_fields(120, 12, 14, zenith=85.0, azimuth=250.0)
+    capped = dict(fields, slant_path_reach=2500.0)
+    halo = halo_width(recipe, fields["z_edge"], 1000.0, 1000.0, 85.0, 250.0, slant_path_reach=2500.0)
+    assert halo == (5, 6)
+    status, needed, message, features = run(program, "full", with_halo(capped, *halo), halo)
+    assert (status, message, needed) == (0, "", halo)
+    assert_equal_features(features, compute_features(capped, recipe), recipe.column_names())
+    status, needed, message, _ = run(program, "full", with_halo(fields, *halo), halo)
+    assert status == 1 and needed == halo_width(recipe, fields["z_edge"], 1000.0, 1000.0, 85.0, 250.0) == (18, 48)
+    assert message.startswith("feature direct_beam_interception_tilted reads 18 columns along x and 48 along y")
 
 
 @needs_gfortran

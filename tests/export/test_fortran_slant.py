@@ -1,13 +1,15 @@
 """The slant-path features in generated Fortran against the project's numpy reference.
 
 A test module ``t_features`` holds the procedures of :mod:`surrogate3d.export.fortran_slant`;
-a test program reads host fields with a halo (written from numpy), evaluates every feature
-with :func:`slant_call`, every reach with :func:`slant_reach_call` and the optical depth
-above every layer, and writes them back.  They must equal
-:func:`surrogate3d.pairs.features.compute_features` on periodic domains (halo filled by
-periodic copy), :func:`surrogate3d.runtime.halo.subdomain_features` on sub-domains,
-:func:`surrogate3d.pairs.profiles.slant_optical_depth_above` and the reach of
-:data:`surrogate3d.runtime.halo.REACH`, to 1e-10 relative (1e-12 absolute near zero).
+a test program reads host fields with a halo (written from numpy) and, optionally, the host's
+cap on the paths' horizontal travel (``slant_path_reach``), evaluates every feature with
+:func:`slant_call`, the three direct-beam priors together with :func:`slant_priors_call`,
+every reach with :func:`slant_reach_call` and the optical depth above every layer, and writes
+them back.  They must equal :func:`surrogate3d.pairs.features.compute_features` on periodic
+domains (halo filled by periodic copy), :func:`surrogate3d.runtime.halo.subdomain_features` on
+sub-domains, :func:`surrogate3d.pairs.profiles.slant_optical_depth_above` and the reach of
+:data:`surrogate3d.runtime.halo.REACH`, to 1e-10 relative (1e-12 absolute near zero), with
+and without a cap.
 """
 
 import re
@@ -18,8 +20,9 @@ import numpy as np
 import pytest
 
 from surrogate3d.errors import ParameterError
-from surrogate3d.export.fortran_slant import (SLANT_DEPTH_ABOVE, SLANT_FEATURES, slant_call, slant_declarations,
-                                              slant_depth_above_procedure, slant_procedures, slant_reach_call)
+from surrogate3d.export.fortran_slant import (PRIOR_FEATURES, SLANT_DEPTH_ABOVE, SLANT_FEATURES, slant_call,
+                                              slant_declarations, slant_depth_above_procedure, slant_priors_call,
+                                              slant_procedures, slant_reach_call)
 from surrogate3d.pairs.features import compute_features
 from surrogate3d.pairs.profiles import slant_optical_depth_above
 from surrogate3d.pairs.recipe import FeatureRecipe
@@ -35,6 +38,8 @@ FEATURES = ["slant_optical_depth", "slant_minus_vertical_optical_depth", "direct
             "direct_beam_prior_minus_independent_column", "direct_beam_prior_slant_minus_vertical",
             "direct_beam_interception_tilted", "direct_beam_interception_tilted_minus_vertical",
             "direct_beam_interception_relative_change"]
+#: The priors as slant_priors_call computes them together (written after the features).
+PRIORS = [name for name in FEATURES if name in PRIOR_FEATURES]
 RECIPE = FeatureRecipe(FEATURES)
 ICA = ("surface_downward_flux", "surface_downward_direct_flux", "surface_downward_diffuse_flux", "toa_upward_flux",
        "atmosphere_absorption")
@@ -50,13 +55,16 @@ def module_text(prefix, needed, public=None):
 
 
 def program_text():
-    """The test program: reaches first; the features only when the halo covers every reach."""
+    """The test program: reaches first; the features only when the halo covers every reach. The cap is an
+    allocatable scalar, absent from the calls (an optional argument not present) unless allocated."""
     reaches, calls = [], []
     for name in FEATURES + [SLANT_DEPTH_ABOVE]:
-        reaches += [f"  {slant_reach_call('t', name, 'rx', 'ry')}", "  write (unit) rx, ry",
+        reaches += [f"  {slant_reach_call('t', name, 'rx', 'ry', reach='cap')}", "  write (unit) rx, ry",
                     "  fits = fits .and. rx <= hx .and. ry <= hy"]
     for name in FEATURES:
-        calls += [f"  {slant_call('t', name, 'out')}", "  write (unit) out"]
+        calls += [f"  {slant_call('t', name, 'out', reach='cap')}", "  write (unit) out"]
+    calls += [f"  {slant_priors_call('t', {name: f'priors(:, :, {j})' for j, name in enumerate(PRIORS, 1)}, 'cap')}",
+              "  write (unit) priors"]
     newline = "\n"
     return f"""\
 program slant_check
@@ -64,10 +72,10 @@ program slant_check
   use t_features
   implicit none
   character(len=1024) :: input, output
-  integer :: unit, nx, ny, nz, hx, hy, rx, ry
+  integer :: unit, nx, ny, nz, hx, hy, rx, ry, has_cap
   logical :: fits
-  real(real64) :: dx, dy, solar_zenith_angle, solar_beam_azimuth
-  real(real64), allocatable :: z_edge(:), out(:, :), slant(:, :)
+  real(real64) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, cap_value
+  real(real64), allocatable :: z_edge(:), out(:, :), slant(:, :), priors(:, :, :), cap
   real(real64), allocatable, dimension(:, :, :) :: layer_cloud_fraction, layer_optical_depth, &
       layer_clear_sky_optical_depth, independent_column_fluxes
   real(real64), allocatable, dimension(:, :) :: total_cloud_fraction, column_optical_depth_std, cloud_edge_length
@@ -76,7 +84,9 @@ program slant_check
   open (newunit=unit, file=trim(input), access='stream', form='unformatted', status='old', action='read')
   read (unit) nx, ny, nz, hx, hy
   read (unit) dx, dy, solar_zenith_angle, solar_beam_azimuth
-  allocate (z_edge(nz + 1), out(nx, ny), slant(nz, nx * ny))
+  read (unit) has_cap, cap_value
+  if (has_cap /= 0) cap = cap_value
+  allocate (z_edge(nz + 1), out(nx, ny), slant(nz, nx * ny), priors(nx, ny, {len(PRIORS)}))
   allocate (layer_cloud_fraction(1-hx:nx+hx, 1-hy:ny+hy, nz), layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz), &
             layer_clear_sky_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz), total_cloud_fraction(1-hx:nx+hx, 1-hy:ny+hy), &
             column_optical_depth_std(1-hx:nx+hx, 1-hy:ny+hy), cloud_edge_length(1-hx:nx+hx, 1-hy:ny+hy), &
@@ -90,7 +100,7 @@ program slant_check
   if (fits) then
 {newline.join(calls)}
     call t_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-                             layer_optical_depth, slant)
+                             layer_optical_depth, slant, cap)
     write (unit) slant
   end if
   close (unit)
@@ -159,7 +169,9 @@ def with_halo(fields, hx, hy):
 
 
 def run(program, tmp_path, padded, hx, hy):
-    """Run the program on fields with a halo; the reaches and, if the halo covers them, the features."""
+    """Run the program on fields with a halo (and the cap ``slant_path_reach`` if they hold one): the reaches
+    and, if the halo covers them, the features (the priors of slant_priors_call as "NAME together") and the
+    optical depths above."""
     ny, nx = padded["total_cloud_fraction"].shape[0] - 2 * hy, padded["total_cloud_fraction"].shape[1] - 2 * hx
     nz = padded["layer_optical_depth"].shape[0]
     source, target = tmp_path / "fields.bin", tmp_path / "features.bin"
@@ -167,6 +179,8 @@ def run(program, tmp_path, padded, hx, hy):
         np.array([nx, ny, nz, hx, hy], dtype=np.int32).tofile(f)
         np.array([padded[k] for k in ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")],
                  dtype=np.float64).tofile(f)
+        np.array(["slant_path_reach" in padded], dtype=np.int32).tofile(f)
+        np.array([padded.get("slant_path_reach", 0.0)], dtype=np.float64).tofile(f)
         for key in ("z_edge", "layer_cloud_fraction", "layer_optical_depth", "layer_clear_sky_optical_depth",
                     "total_cloud_fraction", "column_optical_depth_std", "cloud_edge_length"):
             np.ascontiguousarray(padded[key], dtype=np.float64).tofile(f)
@@ -180,9 +194,10 @@ def run(program, tmp_path, padded, hx, hy):
         return reaches, None, None
     values = np.frombuffer(data[8 * n_reach:], dtype=np.float64)
     n = nx * ny
-    features = values[:len(FEATURES) * n].reshape(len(FEATURES), ny, nx)
-    slant = values[len(FEATURES) * n:].reshape(ny, nx, nz)
-    return reaches, dict(zip(FEATURES, features)), slant
+    columns = FEATURES + [f"{name} together" for name in PRIORS]
+    features = values[:len(columns) * n].reshape(len(columns), ny, nx)
+    slant = values[len(columns) * n:].reshape(ny, nx, nz)
+    return reaches, dict(zip(columns, features)), slant
 
 
 def assert_close(fortran, numpy, name):
@@ -192,7 +207,17 @@ def assert_close(fortran, numpy, name):
 
 
 def geometry(fields):
-    return (fields["z_edge"], fields["dx"], fields["dy"], fields["solar_zenith_angle"], fields["solar_beam_azimuth"])
+    """Layer edges, column size and sun angles, and the cap (None without one): halo.py's arguments."""
+    return (fields["z_edge"], fields["dx"], fields["dy"], fields["solar_zenith_angle"], fields["solar_beam_azimuth"],
+            fields.get("slant_path_reach"))
+
+
+def assert_features_close(features, expected, where=""):
+    """Every feature, and the priors computed together, equal numpy's (expected: (ny, nx, feature))."""
+    for j, name in enumerate(FEATURES):
+        assert_close(features[name], expected[..., j], name + where)
+        if name in PRIORS:
+            assert_close(features[f"{name} together"], expected[..., j], f"{name} together{where}")
 
 
 def check_periodic(program, tmp_path, fields):
@@ -203,10 +228,9 @@ def check_periodic(program, tmp_path, fields):
     reach = feature_reach(RECIPE, *geometry(fields))
     # The optical depth above reads as far as the path from the surface (halo.py's _path of all of z_edge).
     assert reaches == {**reach, SLANT_DEPTH_ABOVE: reach["slant_optical_depth"]}
-    expected = compute_features(fields, RECIPE).reshape(ny, nx, -1)
-    for j, name in enumerate(FEATURES):
-        assert_close(features[name], expected[..., j], name)
-    above = slant_optical_depth_above(fields["layer_optical_depth"], *geometry(fields))
+    assert_features_close(features, compute_features(fields, RECIPE).reshape(ny, nx, -1))
+    *path, cap = geometry(fields)
+    above = slant_optical_depth_above(fields["layer_optical_depth"], *path, reach=cap)
     assert_close(slant, above.transpose(1, 2, 0), SLANT_DEPTH_ABOVE)
 
 
@@ -232,6 +256,54 @@ def test_paths_through_column_faces_and_corners_equal_numpy(program, tmp_path, a
     check_periodic(program, tmp_path, fields)
 
 
+#: Caps of the paths' horizontal travel [m]: none at all (0), within the first layers, across a few columns,
+#: and beyond any travel of these fields (no cap in effect).
+CAPS = [0.0, 1200.0, 2500.0, 5000.0, 1.0e7]
+
+
+@needs_gfortran
+@pytest.mark.parametrize("cap", CAPS)
+@pytest.mark.parametrize("zenith", [0.0, 30.0, 60.0, 80.0])
+def test_capped_paths_equal_numpy(program, tmp_path, cap, zenith):
+    # Azimuths all around, one per (cap, zenith); columns of unequal sides at 37 degrees.
+    azimuth = (0.0, 37.0, 90.0, 200.0, 315.0, 142.0)[(CAPS.index(cap) + int(zenith) // 10) % 6]
+    dy = 700.0 if azimuth == 37.0 else 1000.0
+    fields = dict(random_fields(int(zenith + cap) % 1000, dy=dy), solar_zenith_angle=zenith,
+                  solar_beam_azimuth=azimuth, slant_path_reach=cap)
+    check_periodic(program, tmp_path, fields)
+
+
+@needs_gfortran
+@pytest.mark.parametrize("cap", [500.0, 1000.0, 1500.0])
+@pytest.mark.parametrize("azimuth", [45.0, 180.0])
+def test_cap_on_column_faces_and_layer_edges_equals_numpy(program, tmp_path, cap, azimuth):
+    # At 45 degrees over layers of 500 m the cap's height z_cap = cap / tan(45 deg) falls on a layer edge (up to
+    # the rounding of tan) and the path on column faces there: the cut layer gets a share of 0 or 1 of a part.
+    fields = dict(random_fields(13, dx=500.0, dy=500.0), solar_zenith_angle=45.0, solar_beam_azimuth=azimuth,
+                  slant_path_reach=cap)
+    fields["z_edge"] = 500.0 * np.arange(fields["layer_optical_depth"].shape[0] + 1)
+    check_periodic(program, tmp_path, fields)
+
+
+@needs_gfortran
+def test_cap_bounds_the_reach_of_a_low_sun(program, tmp_path):
+    # At 89 degrees the paths cross more than 100 columns; a cap of 2500 m keeps them within 3 (and 6 for the
+    # interception, out and back).
+    fields = dict(random_fields(17), solar_zenith_angle=89.0, solar_beam_azimuth=120.0, slant_path_reach=2500.0)
+    assert halo_width(RECIPE, *geometry(fields)[:-1])[0] > 100
+    assert max(halo_width(RECIPE, *geometry(fields))) <= 6
+    check_periodic(program, tmp_path, fields)
+
+
+@needs_gfortran
+@pytest.mark.parametrize("cap", [-1.0, float("nan"), float("inf")])
+def test_a_cap_neither_finite_nor_positive_has_no_reach(program, tmp_path, cap):
+    # The reach procedures refuse it: huge() (the halo check fails), and nothing is computed.
+    fields = dict(random_fields(5), solar_zenith_angle=30.0, solar_beam_azimuth=10.0, slant_path_reach=cap)
+    reaches, features, _ = run(program, tmp_path, with_halo(fields, 3, 3), 3, 3)
+    assert set(reaches.values()) == {(2 ** 31 - 1, 2 ** 31 - 1)} and features is None
+
+
 def cut(fields, y0, y1, x0, x1, hx, hy):
     """Sub-domain rows y0:y1, columns x0:x1 with a halo taken from the periodic domain."""
     ny, nx = fields["total_cloud_fraction"].shape
@@ -248,18 +320,20 @@ def cut(fields, y0, y1, x0, x1, hx, hy):
 
 
 @needs_gfortran
-@pytest.mark.parametrize("zenith, azimuth, dy", [(60.0, 200.0, 800.0), (30.0, 315.0, 1000.0)])
-def test_sub_domains_equal_numpy(program, tmp_path, zenith, azimuth, dy):
-    # Four sub-domains of unequal size, each with the halo the recipe needs.
+@pytest.mark.parametrize("zenith, azimuth, dy, cap", [(60.0, 200.0, 800.0, None), (30.0, 315.0, 1000.0, None),
+                                                      (80.0, 60.0, 800.0, 2500.0), (70.0, 250.0, 1000.0, 1200.0)])
+def test_sub_domains_equal_numpy(program, tmp_path, zenith, azimuth, dy, cap):
+    # Four sub-domains of unequal size, each with the halo the recipe needs (with the cap, if any).
     fields = dict(random_fields(7, dy=dy), solar_zenith_angle=zenith, solar_beam_azimuth=azimuth)
+    if cap is not None:
+        fields["slant_path_reach"] = cap
     hx, hy = halo_width(RECIPE, *geometry(fields))
     for y0, y1 in ((0, 5), (5, 12)):
         for x0, x1 in ((0, 6), (6, 10)):
             part = cut(fields, y0, y1, x0, x1, hx, hy)
             _, features, _ = run(program, tmp_path, part, hx, hy)
             expected = subdomain_features(part, RECIPE, (hx, hy)).reshape(y1 - y0, x1 - x0, -1)
-            for j, name in enumerate(FEATURES):
-                assert_close(features[name], expected[..., j], f"{name} of sub-domain ({y0}:{y1}, {x0}:{x1})")
+            assert_features_close(features, expected, f" of sub-domain ({y0}:{y1}, {x0}:{x1})")
 
 
 @needs_gfortran

@@ -247,16 +247,27 @@ contains
     ry = max(0, maxval(abs(paths%oy)))
   end subroutine boosted_host_slant_largest_offsets
 
-  !> Whether the geometry has a finite reach: the sun above the horizon and the paths crossing fewer than
-  !> 1e6 columns (a lower sun needs a halo no host has; the weights would not fit in memory).
-  pure logical function boosted_host_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
+  !> Whether the geometry has a finite reach: the sun above the horizon, a cap of the paths' horizontal
+  !> travel (slant_path_reach [m], if present) finite and >= 0, and the paths crossing fewer than 1e6 columns
+  !> (a lower sun needs a halo no host has; the weights would not fit in memory).
+  pure logical function boosted_host_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    real(real64) :: travel
     boosted_host_slant_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
-    if (boosted_host_slant_reachable) then
-      boosted_host_slant_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
+    if (.not. boosted_host_slant_reachable) return
+    travel = z_edge(nz + 1) * tan(solar_zenith_angle * degree)
+    if (present(slant_path_reach)) then
+      ! Not (>= 0 and <= huge) is also true for NaN.
+      if (.not. (slant_path_reach >= 0.0_real64 .and. slant_path_reach <= huge(slant_path_reach))) then
+        boosted_host_slant_reachable = .false.
+        return
+      end if
+      travel = min(travel, slant_path_reach)
     end if
+    boosted_host_slant_reachable = travel < 1.0e6_real64 * min(dx, dy)
   end function boosted_host_slant_reachable
 
   !> The weights regrouped by column offset as slant_path.gather_offsets groups them, so that the sums of
@@ -281,10 +292,10 @@ contains
       group(e) = g
       n_terms(g) = n_terms(g) + 1
     end do
-    allocate (paths%group_first(n_group + 1), paths%term_layer(size(paths%ox)), &
-              paths%term_weight(size(paths%ox)))
-    paths%group_oy = group_oy(1:n_group)
-    paths%group_ox = group_ox(1:n_group)
+    allocate (paths%group_first(n_group + 1), paths%group_oy(n_group), paths%group_ox(n_group), &
+              paths%term_layer(size(paths%ox)), paths%term_weight(size(paths%ox)))
+    paths%group_oy(:) = group_oy(1:n_group)
+    paths%group_ox(:) = group_ox(1:n_group)
     paths%group_first(1) = 1
     do g = 1, n_group
       paths%group_first(g + 1) = paths%group_first(g) + n_terms(g)
@@ -418,36 +429,144 @@ contains
           ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
-    paths%oy = oy(1:n_entry)
-    paths%ox = ox(1:n_entry)
-    paths%weight = weight(1:n_entry)
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
   end subroutine boosted_host_path_weights
 
-  !> Columns along x (rx) and y (ry) the path toward the sun reads (runtime.halo._path); huge() for a sun
-  !> at or below the horizon or a path across 1e6 columns or more.
-  pure subroutine boosted_host_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+  !> Columns along x (rx) and y (ry) the path toward the sun reads (runtime.halo._path), its horizontal
+  !> travel capped at slant_path_reach [m] if present; huge() for a sun at or below the horizon, a cap
+  !> negative or not finite, or a path across 1e6 columns or more.
+  pure subroutine boosted_host_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+      slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: rx, ry
+    real(real64), intent(in), optional :: slant_path_reach
     type(boosted_host_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. boosted_host_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
-    call boosted_host_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    if (.not. boosted_host_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)) return
+    call boosted_host_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call boosted_host_slant_largest_offsets(paths, rx, ry)
   end subroutine boosted_host_path_reach
+
+  !> The weights of boosted_host_path_weights with the paths' horizontal travel capped at slant_path_reach [m]
+  !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
+  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
+  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
+  !> slant_path_reach must be finite and >= 0 (boosted_host_slant_reachable).
+  pure subroutine boosted_host_capped_path_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
+      paths, slant_path_reach)
+    integer, intent(in) :: n_layer
+    real(real64), intent(in) :: edges(n_layer + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
+    type(boosted_host_slant_weights), intent(out) :: paths
+    real(real64), intent(in), optional :: slant_path_reach
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    type(boosted_host_slant_weights) :: low, top
+    real(real64) :: tan0, z_cap, share, low_edges(n_layer + 1)
+    real(real64), allocatable :: weight(:)
+    integer, allocatable :: oy(:), ox(:)
+    integer :: n_below, k, a, b, n_low, n_top, n_entry, capacity
+    logical :: take_low, take_top
+    tan0 = tan(solar_zenith_angle * degree)
+    z_cap = huge(z_cap)
+    if (present(slant_path_reach) .and. tan0 > 0.0_real64) z_cap = slant_path_reach / tan0
+    if (z_cap >= edges(n_layer + 1)) then
+      call boosted_host_path_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+      return
+    end if
+    ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
+    n_below = count(edges < z_cap)
+    call boosted_host_path_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
+        solar_beam_azimuth, top)
+    n_top = size(top%ox)
+    if (n_below > 0) then
+      low_edges(1:n_below) = edges(1:n_below)
+      low_edges(n_below + 1) = z_cap
+      call boosted_host_path_weights(n_below, low_edges(1:n_below + 1), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, low)
+      n_low = size(low%ox)
+    else
+      n_low = 0
+    end if
+    capacity = n_low + n_top * (n_layer - n_below + 1)
+    allocate (paths%first(n_layer + 1), oy(capacity), ox(capacity), weight(capacity))
+    n_entry = 0
+    do k = 1, n_layer
+      paths%first(k) = n_entry + 1
+      if (k < n_below) then
+        do a = low%first(k), low%first(k + 1) - 1
+          n_entry = n_entry + 1
+          oy(n_entry) = low%oy(a)
+          ox(n_entry) = low%ox(a)
+          weight(n_entry) = low%weight(a)
+        end do
+      else if (k > n_below) then
+        oy(n_entry + 1:n_entry + n_top) = top%oy
+        ox(n_entry + 1:n_entry + n_top) = top%ox
+        weight(n_entry + 1:n_entry + n_top) = top%weight
+        n_entry = n_entry + n_top
+      else
+        ! The layer cut by z_cap: both lists (each in (oy, ox) order) merged, a column in both summed as
+        ! numpy's bincount sums it, the part below first; columns of weight 0 dropped.
+        share = (z_cap - edges(k)) / (edges(k + 1) - edges(k))
+        a = low%first(k)
+        b = 1
+        do while (a < low%first(k + 1) .or. b <= n_top)
+          take_low = a < low%first(k + 1)
+          take_top = b <= n_top
+          if (take_low .and. take_top) then
+            if (low%oy(a) /= top%oy(b)) then
+              take_low = low%oy(a) < top%oy(b)
+              take_top = .not. take_low
+            else if (low%ox(a) /= top%ox(b)) then
+              take_low = low%ox(a) < top%ox(b)
+              take_top = .not. take_low
+            end if
+          end if
+          n_entry = n_entry + 1
+          weight(n_entry) = 0.0_real64
+          if (take_low) then
+            oy(n_entry) = low%oy(a)
+            ox(n_entry) = low%ox(a)
+            weight(n_entry) = weight(n_entry) + low%weight(a) * share
+            a = a + 1
+          end if
+          if (take_top) then
+            oy(n_entry) = top%oy(b)
+            ox(n_entry) = top%ox(b)
+            weight(n_entry) = weight(n_entry) + top%weight(b) * (1.0_real64 - share)
+            b = b + 1
+          end if
+          if (.not. (weight(n_entry) > 0.0_real64)) n_entry = n_entry - 1
+        end do
+      end if
+    end do
+    paths%first(n_layer + 1) = n_entry + 1
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
+  end subroutine boosted_host_capped_path_weights
 
   !> Optical depth [1] along the straight path from the middle of every layer toward the sun
   !> (surrogate3d.pairs.profiles.slant_optical_depth_above): through the upper half of the layer and every
   !> layer above, crossing neighbouring columns; Beer-Lambert along the path, sum w tau / mu0.
-  !> slant(k, i) for layer k of own column i = ix + (iy - 1) * nx. The halo must cover boosted_host_path_reach.
+  !> slant(k, i) for layer k of own column i = ix + (iy - 1) * nx. With slant_path_reach [m] (finite, >= 0)
+  !> the paths' horizontal travel is capped there (slant_path.path_weights). The halo must cover
+  !> boosted_host_path_reach of the same cap.
   pure subroutine boosted_host_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
       z_edge, &
-      layer_optical_depth, slant)
+      layer_optical_depth, slant, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     real(real64), intent(out) :: slant(nz, nx * ny)
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(boosted_host_slant_weights) :: paths(nz)
     real(real64) :: edges(nz + 1), mu0, middle, total, plane, value
@@ -458,8 +577,8 @@ contains
       middle = 0.5_real64 * (z_edge(k) + z_edge(k + 1))
       edges(1) = 0.0_real64
       edges(2:nz - k + 2) = z_edge(k + 1:nz + 1) - middle
-      call boosted_host_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-          paths(k))
+      call boosted_host_capped_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, paths(k), slant_path_reach)
       call boosted_host_slant_group_offsets(nz - k + 1, paths(k))
     end do
     do iy = 1, ny

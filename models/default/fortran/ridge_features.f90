@@ -6,6 +6,8 @@
 ! ridge_host_features: the features of the nx x ny own columns from fields dimensioned
 ! (1-hx:nx+hx, 1-hy:ny+hy[, nz]), layer 1 the lowest, treating the block of own columns and
 ! halo as periodic (a host fills the halo of a periodic domain by periodic copy).
+! Both take an optional last argument slant_path_reach [m], the host's cap on the slant
+! paths' horizontal travel (absent: no cap); give both the same.
 ! features(j, ix + (iy - 1) * nx) is feature column j (the order of ridge_column_names)
 ! of own column (ix, iy).
 !
@@ -14,7 +16,7 @@
 !   1  halo narrower than a feature column reads (the column, its reach and the halo named)
 !   2  a non-finite value in a field the recipe reads, in dx, dy or in z_edge (field and index)
 !   3  a value outside its allowed range, dx or dy not positive, z_edge not strictly
-!      increasing, or nx, ny, nz < 1 or hx, hy < 0
+!      increasing, nx, ny, nz < 1 or hx, hy < 0, or slant_path_reach negative or not finite
 !   4  impossible sun angle: zenith outside [0, 90) degree, or an angle not finite
 ! Fields the recipe does not read are neither read nor checked.
 module ridge_features
@@ -86,34 +88,38 @@ module ridge_features
 
 contains
 
-  ! The halo (columns along x and along y) the features need for this geometry, -1 for a
+  ! The halo (columns along x and along y) the features need for this geometry (and cap), -1 for a
   ! geometry ridge_host_features refuses (status 2, 3 or 4).
   pure subroutine ridge_halo_needed(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        hx_needed, hy_needed)
+        hx_needed, hy_needed, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: hx_needed, hy_needed
+    ! The host's cap [m] on the slant paths' horizontal travel, as in ridge_host_features.
+    real(real64), intent(in), optional :: slant_path_reach
     integer :: reach_x(ridge_n_host_features), reach_y(ridge_n_host_features)
     call ridge_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     hx_needed = maxval(reach_x)
     hy_needed = maxval(reach_y)
   end subroutine ridge_halo_needed
 
-  ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach);
-  ! -1 everywhere for a geometry ridge_host_features refuses.
+  ! Columns each feature column reads along x and y (surrogate3d.runtime.halo.feature_reach, the
+  ! slant paths capped at slant_path_reach [m] if present); -1 everywhere for a geometry
+  ! ridge_host_features refuses.
   pure subroutine ridge_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: reach_x(ridge_n_host_features), reach_y(ridge_n_host_features)
+    real(real64), intent(in), optional :: slant_path_reach
     integer :: status
     character(len=1) :: message
     integer :: j
     integer :: rx, ry
     status = 0
     call ridge_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     if (status /= 0) then
       reach_x = -1
       reach_y = -1
@@ -183,12 +189,14 @@ contains
     reach_y(j) = 1
     ! slant_optical_depth
     j = 30
-    call ridge_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+    call ridge_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+        slant_path_reach=slant_path_reach)
     reach_x(j) = rx
     reach_y(j) = ry
     ! slant_minus_vertical_optical_depth
     j = 31
-    call ridge_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+    call ridge_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+        slant_path_reach=slant_path_reach)
     reach_x(j) = rx
     reach_y(j) = ry
     ! cloud_top_height_upsun_minus_downsun
@@ -233,29 +241,34 @@ contains
     reach_y(j) = ridge_cells(5000.0_real64, dy)
     ! direct_beam_prior
     j = 42
-    call ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+    call ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+        slant_path_reach=slant_path_reach)
     reach_x(j) = rx
     reach_y(j) = ry
     ! direct_beam_prior_minus_independent_column
     j = 43
-    call ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+    call ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+        slant_path_reach=slant_path_reach)
     reach_x(j) = rx
     reach_y(j) = ry
     ! direct_beam_prior_slant_minus_vertical
     j = 44
-    call ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+    call ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+        slant_path_reach=slant_path_reach)
     reach_x(j) = rx
     reach_y(j) = ry
   end subroutine ridge_feature_reach
 
-  ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 2 or 3
-  ! for layer edges not finite or not strictly increasing (when the recipe reads them).
+  ! Status 2 or 3 for dx, dy not finite or not positive, 4 for an impossible sun angle, 3 for a
+  ! cap slant_path_reach (if present) negative or not finite, 2 or 3 for layer edges not finite or
+  ! not strictly increasing (when the recipe reads them).
   pure subroutine ridge_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
+    real(real64), intent(in), optional :: slant_path_reach
     logical, parameter :: reads_z_edge = .true.
     character(len=400) :: text
     integer :: k
@@ -276,6 +289,10 @@ contains
     else if (.not. ieee_is_finite(solar_beam_azimuth)) then
       status = 4
       text = 'solar_beam_azimuth = ' // trim(ridge_number_text(solar_beam_azimuth)) // ' degree: must be finite'
+    else if (ridge_bad_cap(slant_path_reach)) then
+      status = 3
+      text = 'slant_path_reach = ' // trim(ridge_number_text(slant_path_reach)) // &
+          ' m: must be finite and >= 0 (or absent: no cap)'
     else if (reads_z_edge) then
       do k = 1, nz + 1
         if (.not. ieee_is_finite(z_edge(k))) then
@@ -296,12 +313,21 @@ contains
     if (status /= 0) message = text
   end subroutine ridge_check_geometry
 
+  ! Whether a cap is present and negative or not finite.
+  pure logical function ridge_bad_cap(slant_path_reach)
+    real(real64), intent(in), optional :: slant_path_reach
+    ridge_bad_cap = .false.
+    if (present(slant_path_reach)) ridge_bad_cap = .not. (ieee_is_finite(slant_path_reach) &
+        .and. slant_path_reach >= 0.0_real64)
+  end function ridge_bad_cap
+
   ! Features of the nx x ny own columns from fields on the own columns and a halo of hx, hy
   ! columns (the block periodic); status and message as in the module's header.
   subroutine ridge_host_features(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, &
       solar_beam_azimuth, z_edge, layer_cloud_fraction, layer_optical_depth, &
       layer_clear_sky_optical_depth, surface_albedo, total_cloud_fraction, column_optical_depth_mean, &
-      column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message)
+      column_optical_depth_std, cloud_edge_length, independent_column_fluxes, features, status, message, &
+      slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth
     real(real64), intent(in) :: z_edge(nz + 1)
@@ -313,6 +339,8 @@ contains
     real(real64), intent(out) :: features(ridge_n_host_features, nx * ny)
     integer, intent(out) :: status
     character(len=*), intent(out) :: message
+    ! The host's cap [m] on the slant paths' horizontal travel (surrogate3d.core.slant_path); absent: none.
+    real(real64), intent(in), optional :: slant_path_reach
     ! The fields the recipe's features read: only these are checked and read.
     logical, parameter :: reads_layer_cloud_fraction = .true.
     logical, parameter :: reads_layer_optical_depth = .true.
@@ -333,6 +361,8 @@ contains
     real(real64), allocatable :: column(:, :)
     real(real64), allocatable :: log_tau(:, :)
     real(real64), allocatable :: top(:, :), base(:, :)
+    real(real64), allocatable :: windows(:, :, :)
+    real(real64), allocatable :: priors(:, :, :)
     character(len=400) :: text
     features = ieee_value(0.0_real64, ieee_quiet_nan)
     status = 0
@@ -345,11 +375,11 @@ contains
       return
     end if
     call ridge_check_geometry(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        status, message)
+        status, message, slant_path_reach)
     if (status /= 0) return
     ! The halo: the first of the columns with the largest reach beyond it is named.
     call ridge_feature_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-        reach_x, reach_y)
+        reach_x, reach_y, slant_path_reach)
     worst = 0
     short = 0
     do j = 1, ridge_n_host_features
@@ -412,6 +442,28 @@ contains
     call ridge_log_tau(layer_optical_depth, nx, ny, nz, hx, hy, log_tau)
     allocate (top(1-hx:nx+hx, 1-hy:ny+hy), base(1-hx:nx+hx, 1-hy:ny+hy))
     call ridge_cloud_extent(layer_cloud_fraction, z_edge, nx, ny, nz, hx, hy, 0.0_real64, top, base)
+    allocate (windows(nx, ny, 15))
+    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 1000.0_real64, dx, dy, windows(:, :, 1))
+    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 3000.0_real64, dx, dy, windows(:, :, 2))
+    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 5000.0_real64, dx, dy, windows(:, :, 3))
+    call ridge_window_mean(log_tau, nx, ny, hx, hy, 1000.0_real64, dx, dy, windows(:, :, 4))
+    call ridge_window_mean(log_tau, nx, ny, hx, hy, 3000.0_real64, dx, dy, windows(:, :, 5))
+    call ridge_window_mean(log_tau, nx, ny, hx, hy, 5000.0_real64, dx, dy, windows(:, :, 6))
+    call ridge_window_mean(independent_column_fluxes(:, :, 2), nx, ny, hx, hy, 1000.0_real64, dx, dy, windows(:, :, 7))
+    call ridge_window_mean(independent_column_fluxes(:, :, 2), nx, ny, hx, hy, 3000.0_real64, dx, dy, windows(:, :, 8))
+    call ridge_window_mean(independent_column_fluxes(:, :, 2), nx, ny, hx, hy, 5000.0_real64, dx, dy, windows(:, :, 9))
+    call ridge_window_mean(independent_column_fluxes(:, :, 3), nx, ny, hx, hy, 1000.0_real64, dx, dy, windows(:, :, 10))
+    call ridge_window_mean(independent_column_fluxes(:, :, 3), nx, ny, hx, hy, 3000.0_real64, dx, dy, windows(:, :, 11))
+    call ridge_window_mean(independent_column_fluxes(:, :, 3), nx, ny, hx, hy, 5000.0_real64, dx, dy, windows(:, :, 12))
+    call ridge_window_mean(independent_column_fluxes(:, :, 4), nx, ny, hx, hy, 1000.0_real64, dx, dy, windows(:, :, 13))
+    call ridge_window_mean(independent_column_fluxes(:, :, 4), nx, ny, hx, hy, 3000.0_real64, dx, dy, windows(:, :, 14))
+    call ridge_window_mean(independent_column_fluxes(:, :, 4), nx, ny, hx, hy, 5000.0_real64, dx, dy, windows(:, :, 15))
+    allocate (priors(nx, ny, 3))
+    call ridge_direct_priors(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+        layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &
+        total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
+        independent_column_fluxes(:, :, 2), prior=priors(:, :, 1), minus_independent_column=priors(:, :, 2), &
+            slant_minus_vertical=priors(:, :, 3), slant_path_reach=slant_path_reach)
     allocate (column(nx, ny))
     ! cos_solar_zenith
     column = cos(solar_zenith_angle * ridge_degree)
@@ -461,46 +513,40 @@ contains
     column = independent_column_fluxes(1:nx, 1:ny, 5)
     features(14, :) = reshape(column, [nx * ny])
     ! neighbour_mean_cloud_fraction_1000m
-    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
+    column = windows(:, :, 1)
     features(15, :) = reshape(column, [nx * ny])
     ! neighbour_mean_cloud_fraction_3000m
-    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
+    column = windows(:, :, 2)
     features(16, :) = reshape(column, [nx * ny])
     ! neighbour_mean_cloud_fraction_5000m
-    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
+    column = windows(:, :, 3)
     features(17, :) = reshape(column, [nx * ny])
     ! neighbour_contrast_cloud_fraction_1000m
-    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
-    column = total_cloud_fraction(1:nx, 1:ny) - column
+    column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 1)
     features(18, :) = reshape(column, [nx * ny])
     ! neighbour_contrast_cloud_fraction_3000m
-    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
-    column = total_cloud_fraction(1:nx, 1:ny) - column
+    column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 2)
     features(19, :) = reshape(column, [nx * ny])
     ! neighbour_contrast_cloud_fraction_5000m
-    call ridge_window_mean(total_cloud_fraction, nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
-    column = total_cloud_fraction(1:nx, 1:ny) - column
+    column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 3)
     features(20, :) = reshape(column, [nx * ny])
     ! neighbour_mean_log_optical_depth_1000m
-    call ridge_window_mean(log_tau, nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
+    column = windows(:, :, 4)
     features(21, :) = reshape(column, [nx * ny])
     ! neighbour_mean_log_optical_depth_3000m
-    call ridge_window_mean(log_tau, nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
+    column = windows(:, :, 5)
     features(22, :) = reshape(column, [nx * ny])
     ! neighbour_mean_log_optical_depth_5000m
-    call ridge_window_mean(log_tau, nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
+    column = windows(:, :, 6)
     features(23, :) = reshape(column, [nx * ny])
     ! neighbour_contrast_log_optical_depth_1000m
-    call ridge_window_mean(log_tau, nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
-    column = log_tau(1:nx, 1:ny) - column
+    column = log_tau(1:nx, 1:ny) - windows(:, :, 4)
     features(24, :) = reshape(column, [nx * ny])
     ! neighbour_contrast_log_optical_depth_3000m
-    call ridge_window_mean(log_tau, nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
-    column = log_tau(1:nx, 1:ny) - column
+    column = log_tau(1:nx, 1:ny) - windows(:, :, 5)
     features(25, :) = reshape(column, [nx * ny])
     ! neighbour_contrast_log_optical_depth_5000m
-    call ridge_window_mean(log_tau, nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
-    column = log_tau(1:nx, 1:ny) - column
+    column = log_tau(1:nx, 1:ny) - windows(:, :, 6)
     features(26, :) = reshape(column, [nx * ny])
     ! cloud_edge_distance
     call ridge_edge_distance(total_cloud_fraction, nx, ny, hx, hy, dx, dy, 0.5_real64, 5000.0_real64, column)
@@ -513,68 +559,50 @@ contains
     features(29, :) = reshape(column, [nx * ny])
     ! slant_optical_depth
     call ridge_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_optical_depth, 'slant_optical_depth', column)
+        layer_optical_depth, 'slant_optical_depth', column, slant_path_reach=slant_path_reach)
     features(30, :) = reshape(column, [nx * ny])
     ! slant_minus_vertical_optical_depth
     call ridge_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_optical_depth, 'slant_minus_vertical_optical_depth', column)
+        layer_optical_depth, 'slant_minus_vertical_optical_depth', column, slant_path_reach=slant_path_reach)
     features(31, :) = reshape(column, [nx * ny])
     ! cloud_top_height_upsun_minus_downsun
     call ridge_cloud_top_sides(top, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, 2000.0_real64, column)
     features(32, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_surface_downward_direct_flux_1000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 2), nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 2)
+    column = windows(:, :, 7) - independent_column_fluxes(1:nx, 1:ny, 2)
     features(33, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_surface_downward_direct_flux_3000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 2), nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 2)
+    column = windows(:, :, 8) - independent_column_fluxes(1:nx, 1:ny, 2)
     features(34, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_surface_downward_direct_flux_5000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 2), nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 2)
+    column = windows(:, :, 9) - independent_column_fluxes(1:nx, 1:ny, 2)
     features(35, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_1000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 3), nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 3)
+    column = windows(:, :, 10) - independent_column_fluxes(1:nx, 1:ny, 3)
     features(36, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_3000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 3), nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 3)
+    column = windows(:, :, 11) - independent_column_fluxes(1:nx, 1:ny, 3)
     features(37, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_5000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 3), nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 3)
+    column = windows(:, :, 12) - independent_column_fluxes(1:nx, 1:ny, 3)
     features(38, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_toa_upward_flux_1000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 4), nx, ny, hx, hy, 1000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 4)
+    column = windows(:, :, 13) - independent_column_fluxes(1:nx, 1:ny, 4)
     features(39, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_toa_upward_flux_3000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 4), nx, ny, hx, hy, 3000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 4)
+    column = windows(:, :, 14) - independent_column_fluxes(1:nx, 1:ny, 4)
     features(40, :) = reshape(column, [nx * ny])
     ! neighbour_excess_independent_column_toa_upward_flux_5000m
-    call ridge_window_mean(independent_column_fluxes(:, :, 4), nx, ny, hx, hy, 5000.0_real64, dx, dy, column)
-    column = column - independent_column_fluxes(1:nx, 1:ny, 4)
+    column = windows(:, :, 15) - independent_column_fluxes(1:nx, 1:ny, 4)
     features(41, :) = reshape(column, [nx * ny])
     ! direct_beam_prior
-    call ridge_direct_prior(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &
-        total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
-        independent_column_fluxes(:, :, 2), 'direct_beam_prior', column)
+    column = priors(:, :, 1)
     features(42, :) = reshape(column, [nx * ny])
     ! direct_beam_prior_minus_independent_column
-    call ridge_direct_prior(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &
-        total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
-        independent_column_fluxes(:, :, 2), 'direct_beam_prior_minus_independent_column', column)
+    column = priors(:, :, 2)
     features(43, :) = reshape(column, [nx * ny])
     ! direct_beam_prior_slant_minus_vertical
-    call ridge_direct_prior(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, &
-        total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
-        independent_column_fluxes(:, :, 2), 'direct_beam_prior_slant_minus_vertical', column)
+    column = priors(:, :, 3)
     features(44, :) = reshape(column, [nx * ny])
   end subroutine ridge_host_features
 
@@ -640,45 +668,51 @@ contains
   end subroutine ridge_cloud_extent
 
   ! Mean of values over the window reaching radius [m] beyond each side of the column, partial
-  ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean):
-  ! a sum along x, then along y, over the periodic block.
+  ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean): a sum
+  ! along x, then along y, over the periodic block.  Each sum runs over the window's columns in
+  ! order, so that it depends on the window's values only: a column's mean is the same bit for bit
+  ! whatever the block (a sub-domain's and the whole domain's agree; numpy's differences of
+  ! cumulative sums agree with it to rounding).
   pure subroutine ridge_window_mean(values, nx, ny, hx, hy, radius, dx, dy, mean)
     integer, intent(in) :: nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), radius, dx, dy
     real(real64), intent(out) :: mean(nx, ny)
     real(real64), allocatable :: along_x(:, :)
+    integer, allocatable :: column(:), row(:)
     real(real64) :: half_x, half_y, part_x, part_y, total
-    integer :: mx, my, ix, iy, o, nbx, nby
+    integer :: mx, my, ix, iy, j, o
     half_x = radius / dx
     half_y = radius / dy
     mx = floor(half_x)
     my = floor(half_y)
     part_x = half_x - real(mx, real64)
     part_y = half_y - real(my, real64)
-    nbx = nx + 2 * hx
-    nby = ny + 2 * hy
-    allocate (along_x(nx, 1-hy:ny+hy))
-    do iy = 1 - hy, ny + hy
+    ! The block column of own column ix (ix = -mx - 1 .. nx + mx + 1) and the block row of own row iy,
+    ! wrapped around the periodic block.
+    allocate (column(-mx - 1:nx + mx + 1), row(-my - 1:ny + my + 1), along_x(nx, -my - 1:ny + my + 1))
+    column = ridge_wrap([(j, j = -mx - 1, nx + mx + 1)], 1 - hx, nx + 2 * hx)
+    row = ridge_wrap([(j, j = -my - 1, ny + my + 1)], 1 - hy, ny + 2 * hy)
+    ! Along x, in the rows the windows of the own rows reach.
+    do j = -my - 1, ny + my + 1
+      iy = row(j)
       do ix = 1, nx
         total = 0.0_real64
-        do o = -mx, mx
-          total = total + values(ridge_wrap(ix + o, 1 - hx, nbx), iy)
+        do o = ix - mx, ix + mx
+          total = total + values(column(o), iy)
         end do
-        if (part_x > 0.0_real64) total = total + part_x * (values(ridge_wrap(ix - mx - 1, 1 - hx, nbx), iy) &
-            + values(ridge_wrap(ix + mx + 1, 1 - hx, nbx), iy))
-        along_x(ix, iy) = total
+        if (part_x > 0.0_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
+            + values(column(ix + mx + 1), iy))
+        along_x(ix, j) = total
       end do
     end do
+    ! Along y, a row of own columns at a time.
     do iy = 1, ny
-      do ix = 1, nx
-        total = 0.0_real64
-        do o = -my, my
-          total = total + along_x(ix, ridge_wrap(iy + o, 1 - hy, nby))
-        end do
-        if (part_y > 0.0_real64) total = total + part_y * (along_x(ix, ridge_wrap(iy - my - 1, 1 - hy, nby)) &
-            + along_x(ix, ridge_wrap(iy + my + 1, 1 - hy, nby)))
-        mean(ix, iy) = total / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
+      mean(:, iy) = 0.0_real64
+      do o = iy - my, iy + my
+        mean(:, iy) = mean(:, iy) + along_x(:, o)
       end do
+      if (part_y > 0.0_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + along_x(:, iy + my + 1))
+      mean(:, iy) = mean(:, iy) / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
     end do
   end subroutine ridge_window_mean
 
@@ -831,6 +865,8 @@ contains
     character(len=400) :: text
     integer :: ix, iy, k, pass
     if (status /= 0) return
+    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both).
+    if (count(.not. (values >= low .and. values <= high)) == 0) return
     do pass = 2, 3
       do k = 1, nz
         do iy = 1 - hy, ny + hy
@@ -864,6 +900,8 @@ contains
     character(len=40) :: index
     integer :: ix, iy, pass
     if (status /= 0) return
+    ! One pass when all is well, as in ridge_check_layers.
+    if (count(.not. (values >= low .and. values <= high)) == 0) return
     do pass = 2, 3
       do iy = 1 - hy, ny + hy
         do ix = 1 - hx, nx + hx
@@ -923,16 +961,27 @@ contains
     ry = max(0, maxval(abs(paths%oy)))
   end subroutine ridge_slant_largest_offsets
 
-  !> Whether the geometry has a finite reach: the sun above the horizon and the paths crossing fewer than
-  !> 1e6 columns (a lower sun needs a halo no host has; the weights would not fit in memory).
-  pure logical function ridge_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)
+  !> Whether the geometry has a finite reach: the sun above the horizon, a cap of the paths' horizontal
+  !> travel (slant_path_reach [m], if present) finite and >= 0, and the paths crossing fewer than 1e6 columns
+  !> (a lower sun needs a halo no host has; the weights would not fit in memory).
+  pure logical function ridge_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    real(real64) :: travel
     ridge_slant_reachable = solar_zenith_angle >= 0.0_real64 .and. solar_zenith_angle < 90.0_real64
-    if (ridge_slant_reachable) then
-      ridge_slant_reachable = z_edge(nz + 1) * tan(solar_zenith_angle * degree) < 1.0e6_real64 * min(dx, dy)
+    if (.not. ridge_slant_reachable) return
+    travel = z_edge(nz + 1) * tan(solar_zenith_angle * degree)
+    if (present(slant_path_reach)) then
+      ! Not (>= 0 and <= huge) is also true for NaN.
+      if (.not. (slant_path_reach >= 0.0_real64 .and. slant_path_reach <= huge(slant_path_reach))) then
+        ridge_slant_reachable = .false.
+        return
+      end if
+      travel = min(travel, slant_path_reach)
     end if
+    ridge_slant_reachable = travel < 1.0e6_real64 * min(dx, dy)
   end function ridge_slant_reachable
 
   !> The weights regrouped by column offset as slant_path.gather_offsets groups them, so that the sums of
@@ -957,10 +1006,10 @@ contains
       group(e) = g
       n_terms(g) = n_terms(g) + 1
     end do
-    allocate (paths%group_first(n_group + 1), paths%term_layer(size(paths%ox)), &
-              paths%term_weight(size(paths%ox)))
-    paths%group_oy = group_oy(1:n_group)
-    paths%group_ox = group_ox(1:n_group)
+    allocate (paths%group_first(n_group + 1), paths%group_oy(n_group), paths%group_ox(n_group), &
+              paths%term_layer(size(paths%ox)), paths%term_weight(size(paths%ox)))
+    paths%group_oy(:) = group_oy(1:n_group)
+    paths%group_ox(:) = group_ox(1:n_group)
     paths%group_first(1) = 1
     do g = 1, n_group
       paths%group_first(g + 1) = paths%group_first(g) + n_terms(g)
@@ -1094,41 +1143,148 @@ contains
           ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
-    paths%oy = oy(1:n_entry)
-    paths%ox = ox(1:n_entry)
-    paths%weight = weight(1:n_entry)
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
   end subroutine ridge_path_weights
 
-  !> Columns along x (rx) and y (ry) the path toward the sun reads (runtime.halo._path); huge() for a sun
-  !> at or below the horizon or a path across 1e6 columns or more.
-  pure subroutine ridge_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+  !> Columns along x (rx) and y (ry) the path toward the sun reads (runtime.halo._path), its horizontal
+  !> travel capped at slant_path_reach [m] if present; huge() for a sun at or below the horizon, a cap
+  !> negative or not finite, or a path across 1e6 columns or more.
+  pure subroutine ridge_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: rx, ry
+    real(real64), intent(in), optional :: slant_path_reach
     type(ridge_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. ridge_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
-    call ridge_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    if (.not. ridge_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)) return
+    call ridge_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call ridge_slant_largest_offsets(paths, rx, ry)
   end subroutine ridge_path_reach
 
+  !> The weights of ridge_path_weights with the paths' horizontal travel capped at slant_path_reach [m]
+  !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
+  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
+  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
+  !> slant_path_reach must be finite and >= 0 (ridge_slant_reachable).
+  pure subroutine ridge_capped_path_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
+      paths, slant_path_reach)
+    integer, intent(in) :: n_layer
+    real(real64), intent(in) :: edges(n_layer + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
+    type(ridge_slant_weights), intent(out) :: paths
+    real(real64), intent(in), optional :: slant_path_reach
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    type(ridge_slant_weights) :: low, top
+    real(real64) :: tan0, z_cap, share, low_edges(n_layer + 1)
+    real(real64), allocatable :: weight(:)
+    integer, allocatable :: oy(:), ox(:)
+    integer :: n_below, k, a, b, n_low, n_top, n_entry, capacity
+    logical :: take_low, take_top
+    tan0 = tan(solar_zenith_angle * degree)
+    z_cap = huge(z_cap)
+    if (present(slant_path_reach) .and. tan0 > 0.0_real64) z_cap = slant_path_reach / tan0
+    if (z_cap >= edges(n_layer + 1)) then
+      call ridge_path_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+      return
+    end if
+    ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
+    n_below = count(edges < z_cap)
+    call ridge_path_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
+        solar_beam_azimuth, top)
+    n_top = size(top%ox)
+    if (n_below > 0) then
+      low_edges(1:n_below) = edges(1:n_below)
+      low_edges(n_below + 1) = z_cap
+      call ridge_path_weights(n_below, low_edges(1:n_below + 1), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, low)
+      n_low = size(low%ox)
+    else
+      n_low = 0
+    end if
+    capacity = n_low + n_top * (n_layer - n_below + 1)
+    allocate (paths%first(n_layer + 1), oy(capacity), ox(capacity), weight(capacity))
+    n_entry = 0
+    do k = 1, n_layer
+      paths%first(k) = n_entry + 1
+      if (k < n_below) then
+        do a = low%first(k), low%first(k + 1) - 1
+          n_entry = n_entry + 1
+          oy(n_entry) = low%oy(a)
+          ox(n_entry) = low%ox(a)
+          weight(n_entry) = low%weight(a)
+        end do
+      else if (k > n_below) then
+        oy(n_entry + 1:n_entry + n_top) = top%oy
+        ox(n_entry + 1:n_entry + n_top) = top%ox
+        weight(n_entry + 1:n_entry + n_top) = top%weight
+        n_entry = n_entry + n_top
+      else
+        ! The layer cut by z_cap: both lists (each in (oy, ox) order) merged, a column in both summed as
+        ! numpy's bincount sums it, the part below first; columns of weight 0 dropped.
+        share = (z_cap - edges(k)) / (edges(k + 1) - edges(k))
+        a = low%first(k)
+        b = 1
+        do while (a < low%first(k + 1) .or. b <= n_top)
+          take_low = a < low%first(k + 1)
+          take_top = b <= n_top
+          if (take_low .and. take_top) then
+            if (low%oy(a) /= top%oy(b)) then
+              take_low = low%oy(a) < top%oy(b)
+              take_top = .not. take_low
+            else if (low%ox(a) /= top%ox(b)) then
+              take_low = low%ox(a) < top%ox(b)
+              take_top = .not. take_low
+            end if
+          end if
+          n_entry = n_entry + 1
+          weight(n_entry) = 0.0_real64
+          if (take_low) then
+            oy(n_entry) = low%oy(a)
+            ox(n_entry) = low%ox(a)
+            weight(n_entry) = weight(n_entry) + low%weight(a) * share
+            a = a + 1
+          end if
+          if (take_top) then
+            oy(n_entry) = top%oy(b)
+            ox(n_entry) = top%ox(b)
+            weight(n_entry) = weight(n_entry) + top%weight(b) * (1.0_real64 - share)
+            b = b + 1
+          end if
+          if (.not. (weight(n_entry) > 0.0_real64)) n_entry = n_entry - 1
+        end do
+      end if
+    end do
+    paths%first(n_layer + 1) = n_entry + 1
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
+  end subroutine ridge_capped_path_weights
+
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
-  !> column's own tau / mu0. The halo must cover ridge_path_reach.
+  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. The halo must
+  !> cover ridge_path_reach.
   pure subroutine ridge_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-      layer_optical_depth, feature, out)
+      layer_optical_depth, feature, out, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(ridge_slant_weights) :: paths
     real(real64) :: mu0, total, plane, column
     integer :: ix, iy, g, t, k
     mu0 = cos(solar_zenith_angle * degree)
-    call ridge_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    call ridge_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call ridge_slant_group_offsets(nz, paths)
     do iy = 1, ny
       do ix = 1, nx
@@ -1233,24 +1389,127 @@ contains
           ox(paths%first(k):n_entry), weight(paths%first(k):n_entry))
     end do
     paths%first(n_layer + 1) = n_entry + 1
-    paths%oy = oy(1:n_entry)
-    paths%ox = ox(1:n_entry)
-    paths%weight = weight(1:n_entry)
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
   end subroutine ridge_area_weights
 
   !> Columns along x (rx) and y (ry) the paths from a column's whole surface toward the sun read
-  !> (runtime.halo._area); huge() for a sun at or below the horizon or paths across 1e6 columns or more.
-  pure subroutine ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+  !> (runtime.halo._area), capped at slant_path_reach [m] if present; huge() as ridge_path_reach.
+  pure subroutine ridge_area_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, slant_path_reach)
     integer, intent(in) :: nz
     real(real64), intent(in) :: z_edge(nz + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
     integer, intent(out) :: rx, ry
+    real(real64), intent(in), optional :: slant_path_reach
     type(ridge_slant_weights) :: paths
     rx = huge(rx)
     ry = huge(ry)
-    if (.not. ridge_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle)) return
-    call ridge_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    if (.not. ridge_slant_reachable(nz, z_edge, dx, dy, solar_zenith_angle, slant_path_reach)) return
+    call ridge_capped_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call ridge_slant_largest_offsets(paths, rx, ry)
   end subroutine ridge_area_reach
+
+  !> The weights of ridge_area_weights with the paths' horizontal travel capped at slant_path_reach [m]
+  !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
+  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
+  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
+  !> slant_path_reach must be finite and >= 0 (ridge_slant_reachable).
+  pure subroutine ridge_capped_area_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
+      paths, slant_path_reach)
+    integer, intent(in) :: n_layer
+    real(real64), intent(in) :: edges(n_layer + 1), dx, dy, solar_zenith_angle, solar_beam_azimuth
+    type(ridge_slant_weights), intent(out) :: paths
+    real(real64), intent(in), optional :: slant_path_reach
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    type(ridge_slant_weights) :: low, top
+    real(real64) :: tan0, z_cap, share, low_edges(n_layer + 1)
+    real(real64), allocatable :: weight(:)
+    integer, allocatable :: oy(:), ox(:)
+    integer :: n_below, k, a, b, n_low, n_top, n_entry, capacity
+    logical :: take_low, take_top
+    tan0 = tan(solar_zenith_angle * degree)
+    z_cap = huge(z_cap)
+    if (present(slant_path_reach) .and. tan0 > 0.0_real64) z_cap = slant_path_reach / tan0
+    if (z_cap >= edges(n_layer + 1)) then
+      call ridge_area_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+      return
+    end if
+    ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
+    n_below = count(edges < z_cap)
+    call ridge_area_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
+        solar_beam_azimuth, top)
+    n_top = size(top%ox)
+    if (n_below > 0) then
+      low_edges(1:n_below) = edges(1:n_below)
+      low_edges(n_below + 1) = z_cap
+      call ridge_area_weights(n_below, low_edges(1:n_below + 1), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, low)
+      n_low = size(low%ox)
+    else
+      n_low = 0
+    end if
+    capacity = n_low + n_top * (n_layer - n_below + 1)
+    allocate (paths%first(n_layer + 1), oy(capacity), ox(capacity), weight(capacity))
+    n_entry = 0
+    do k = 1, n_layer
+      paths%first(k) = n_entry + 1
+      if (k < n_below) then
+        do a = low%first(k), low%first(k + 1) - 1
+          n_entry = n_entry + 1
+          oy(n_entry) = low%oy(a)
+          ox(n_entry) = low%ox(a)
+          weight(n_entry) = low%weight(a)
+        end do
+      else if (k > n_below) then
+        oy(n_entry + 1:n_entry + n_top) = top%oy
+        ox(n_entry + 1:n_entry + n_top) = top%ox
+        weight(n_entry + 1:n_entry + n_top) = top%weight
+        n_entry = n_entry + n_top
+      else
+        ! The layer cut by z_cap: both lists (each in (oy, ox) order) merged, a column in both summed as
+        ! numpy's bincount sums it, the part below first; columns of weight 0 dropped.
+        share = (z_cap - edges(k)) / (edges(k + 1) - edges(k))
+        a = low%first(k)
+        b = 1
+        do while (a < low%first(k + 1) .or. b <= n_top)
+          take_low = a < low%first(k + 1)
+          take_top = b <= n_top
+          if (take_low .and. take_top) then
+            if (low%oy(a) /= top%oy(b)) then
+              take_low = low%oy(a) < top%oy(b)
+              take_top = .not. take_low
+            else if (low%ox(a) /= top%ox(b)) then
+              take_low = low%ox(a) < top%ox(b)
+              take_top = .not. take_low
+            end if
+          end if
+          n_entry = n_entry + 1
+          weight(n_entry) = 0.0_real64
+          if (take_low) then
+            oy(n_entry) = low%oy(a)
+            ox(n_entry) = low%ox(a)
+            weight(n_entry) = weight(n_entry) + low%weight(a) * share
+            a = a + 1
+          end if
+          if (take_top) then
+            oy(n_entry) = top%oy(b)
+            ox(n_entry) = top%ox(b)
+            weight(n_entry) = weight(n_entry) + top%weight(b) * (1.0_real64 - share)
+            b = b + 1
+          end if
+          if (.not. (weight(n_entry) > 0.0_real64)) n_entry = n_entry - 1
+        end do
+      end if
+    end do
+    paths%first(n_layer + 1) = n_entry + 1
+    allocate (paths%oy(n_entry), paths%ox(n_entry), paths%weight(n_entry))
+    paths%oy(:) = oy(1:n_entry)
+    paths%ox(:) = ox(1:n_entry)
+    paths%weight(:) = weight(1:n_entry)
+  end subroutine ridge_capped_area_weights
 
   !> log(1 + x) accurate for small x (Fortran 2008 has no log1p): x log(u) / (u - 1) with u = 1 + x, whose
   !> rounding errors cancel (Goldberg 1991, What every computer scientist should know about
@@ -1268,41 +1527,42 @@ contains
 
   !> Blocks of adjacent cloudy layers of one path, top down (features._scan_blocks): each block's cover
   !> (maximum-random overlap within it, Geleyn and Hollingsworth 1979), cloud optical depth [1] and cloud
-  !> volume per area sum c dz [m]; loose, the cloud optical depth of layers without cloud fraction.
+  !> volume per area sum c dz [m]; loose, the cloud optical depth of layers without cloud fraction. The
+  !> cloud fraction is clipped to [0, 1] (c below).
   pure subroutine ridge_prior_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
     integer, intent(in) :: nz
     real(real64), intent(in) :: fraction(nz), cloud(nz), dz(nz)
     integer, intent(out) :: n_block
     real(real64), intent(out), dimension(nz) :: cover, depth, volume
     real(real64), intent(out) :: loose
-    real(real64) :: c(nz), run_clear, run_depth, run_volume
-    logical :: cloudy_above, ends
+    real(real64) :: c, c_above, run_clear, run_depth, run_volume
+    logical :: ends
     integer :: k
-    c = min(max(fraction, 0.0_real64), 1.0_real64)
     n_block = 0
     loose = 0.0_real64
     run_clear = 1.0_real64
     run_depth = 0.0_real64
     run_volume = 0.0_real64
-    cloudy_above = .false.
+    c_above = 0.0_real64
     do k = nz, 1, -1
-      if (c(k) > 0.0_real64) then
-        if (cloudy_above) then
+      c = min(max(fraction(k), 0.0_real64), 1.0_real64)
+      if (c > 0.0_real64) then
+        if (c_above > 0.0_real64) then
           ! (1 - max(c_k, c_k+1)) / (1 - c_k+1), 0 below an overcast layer (features._overlap_ratio)
-          if (1.0_real64 - c(k + 1) > 0.0_real64) then
-            run_clear = run_clear * ((1.0_real64 - max(c(k), c(k + 1))) / (1.0_real64 - c(k + 1)))
+          if (1.0_real64 - c_above > 0.0_real64) then
+            run_clear = run_clear * ((1.0_real64 - max(c, c_above)) / (1.0_real64 - c_above))
           else
             run_clear = 0.0_real64
           end if
           run_depth = run_depth + cloud(k)
-          run_volume = run_volume + c(k) * dz(k)
+          run_volume = run_volume + c * dz(k)
         else
-          run_clear = 1.0_real64 - c(k)
+          run_clear = 1.0_real64 - c
           run_depth = cloud(k)
-          run_volume = c(k) * dz(k)
+          run_volume = c * dz(k)
         end if
         ends = k == 1
-        if (.not. ends) ends = c(k - 1) <= 0.0_real64
+        if (.not. ends) ends = min(max(fraction(k - 1), 0.0_real64), 1.0_real64) <= 0.0_real64
         if (ends) then
           n_block = n_block + 1
           cover(n_block) = 1.0_real64 - run_clear
@@ -1312,21 +1572,20 @@ contains
       else
         loose = loose + cloud(k)
       end if
-      cloudy_above = c(k) > 0.0_real64
+      c_above = c
     end do
   end subroutine ridge_prior_cloud_blocks
 
   !> The host column's overlap exponent gamma (features.overlap_exponent) and in-cloud relative variance v
-  !> (features._relative_variance_of_blocks with gamma) from its own layers, its total cloud fraction and
-  !> its sub-grid standard deviation of optical depth.
-  pure subroutine ridge_overlap_statistics(nz, fraction, cloud, total_cloud_fraction, column_std, v, gamma)
-    integer, intent(in) :: nz
-    real(real64), intent(in) :: fraction(nz), cloud(nz), total_cloud_fraction, column_std
+  !> (features._relative_variance_of_blocks with gamma) from the blocks of its own layers (cover and cloud
+  !> optical depth of ridge_prior_cloud_blocks), its total cloud fraction and its sub-grid standard deviation of
+  !> optical depth.
+  pure subroutine ridge_overlap_statistics(n_block, cover, depth, total_cloud_fraction, column_std, v, gamma)
+    integer, intent(in) :: n_block
+    real(real64), intent(in) :: cover(n_block), depth(n_block), total_cloud_fraction, column_std
     real(real64), intent(out) :: v, gamma
-    real(real64), dimension(nz) :: cover, depth, volume
-    real(real64) :: loose, clear, c, adjusted, squared, between, within
-    integer :: n_block, j
-    call ridge_prior_cloud_blocks(nz, fraction, cloud, spread(0.0_real64, 1, nz), n_block, cover, depth, volume, loose)
+    real(real64) :: clear, c, adjusted, squared, between, within
+    integer :: j
     clear = 1.0_real64
     do j = 1, n_block
       clear = clear * (1.0_real64 - cover(j))
@@ -1367,14 +1626,15 @@ contains
   !> Mean direct transmittance [1] of a path through partly cloudy layers (features.direct_transmittance_prior):
   !> blocks of cloudy layers overlapped at random, their covers made consistent by gamma, seen slanted as
   !> 1 - (1 - C)^(1 + rho H tan(theta0)), the cloud optical depth gamma-distributed with relative variance v
-  !> (mean transmittance (1 + m v / mu0)^(-1 / v)), Beer-Lambert for the clear sky and loose cloud.
-  pure real(real64) function ridge_prior_transmittance(nz, fraction, cloud, dz, clear_depth, v, mu0, rho, gamma)
-    integer, intent(in) :: nz
-    real(real64), intent(in) :: fraction(nz), cloud(nz), dz(nz), clear_depth, v, mu0, rho, gamma
-    real(real64), dimension(nz) :: cover, depth, volume
-    real(real64) :: loose, tan0, adjusted, thickness, seen, mean, exponent
-    integer :: n_block, j
-    call ridge_prior_cloud_blocks(nz, fraction, cloud, dz, n_block, cover, depth, volume, loose)
+  !> (mean transmittance (1 + m v / mu0)^(-1 / v)), Beer-Lambert for the clear sky and loose cloud; the blocks
+  !> and loose as ridge_prior_cloud_blocks gives them.
+  pure real(real64) function ridge_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v, mu0, &
+      rho, gamma)
+    integer, intent(in) :: n_block
+    real(real64), intent(in), dimension(n_block) :: cover, depth, volume
+    real(real64), intent(in) :: loose, clear_depth, v, mu0, rho, gamma
+    real(real64) :: tan0, adjusted, thickness, seen, mean, exponent
+    integer :: j
     tan0 = sqrt(max(1.0_real64 - mu0 * mu0, 0.0_real64)) / mu0
     ridge_prior_transmittance = exp(-(clear_depth + loose) / mu0)
     do j = 1, n_block
@@ -1395,124 +1655,142 @@ contains
     end do
   end function ridge_prior_transmittance
 
-  !> The direct-beam prior of own column (ix, iy) along the paths toward the sun (features._direct_prior,
-  !> slanted): the layers' cloud fraction and cloud optical depth gathered along the area weights, the
-  !> clear-sky optical depth summed along them, and the crossed columns' v (weighted by the cloud optical
-  !> depth met in each), rho and gamma (weighted by the cloud fraction met), each summed as slant_sum does.
-  pure real(real64) function ridge_slanted_prior(nx, ny, nz, hx, hy, rx, ry, ix, iy, paths, fraction, tau, clear, &
-      v, rho, gamma, dz, mu0)
-    integer, intent(in) :: nx, ny, nz, hx, hy, rx, ry, ix, iy
-    type(ridge_slant_weights), intent(in) :: paths
-    real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy, nz) :: fraction, tau, clear
-    real(real64), intent(in), dimension(1-rx:nx+rx, 1-ry:ny+ry) :: v, rho, gamma
-    real(real64), intent(in) :: dz(nz), mu0
-    real(real64) :: path_fraction(nz), path_cloud(nz), cloud, w
-    real(real64) :: clear_path, v_sum, rho_sum, gamma_sum, plane_clear, plane_v, plane_rho, plane_gamma
-    real(real64) :: cloud_total, fraction_total, v_path, rho_path, gamma_path
-    integer :: k, e, g, t, jx, jy
-    cloud_total = 0.0_real64
-    fraction_total = 0.0_real64
-    do k = 1, nz
-      path_fraction(k) = 0.0_real64
-      path_cloud(k) = 0.0_real64
-      do e = paths%first(k), paths%first(k + 1) - 1
-        jx = ix + paths%ox(e)
-        jy = iy + paths%oy(e)
-        path_cloud(k) = path_cloud(k) + paths%weight(e) * max(tau(jx, jy, k) - clear(jx, jy, k), 0.0_real64)
-        path_fraction(k) = path_fraction(k) + paths%weight(e) * fraction(jx, jy, k)
-      end do
-      cloud_total = cloud_total + path_cloud(k)
-      fraction_total = fraction_total + path_fraction(k)
-    end do
-    clear_path = 0.0_real64
-    v_sum = 0.0_real64
-    rho_sum = 0.0_real64
-    gamma_sum = 0.0_real64
-    do g = 1, size(paths%group_ox)
-      jx = ix + paths%group_ox(g)
-      jy = iy + paths%group_oy(g)
-      plane_clear = 0.0_real64
-      plane_v = 0.0_real64
-      plane_rho = 0.0_real64
-      plane_gamma = 0.0_real64
-      do t = paths%group_first(g), paths%group_first(g + 1) - 1
-        k = paths%term_layer(t)
-        w = paths%term_weight(t)
-        cloud = max(tau(jx, jy, k) - clear(jx, jy, k), 0.0_real64)
-        plane_clear = plane_clear + clear(jx, jy, k) * w
-        plane_v = plane_v + (cloud * v(jx, jy)) * w
-        plane_rho = plane_rho + (fraction(jx, jy, k) * rho(jx, jy)) * w
-        plane_gamma = plane_gamma + (fraction(jx, jy, k) * gamma(jx, jy)) * w
-      end do
-      clear_path = clear_path + plane_clear
-      v_sum = v_sum + plane_v
-      rho_sum = rho_sum + plane_rho
-      gamma_sum = gamma_sum + plane_gamma
-    end do
-    v_path = 0.0_real64
-    if (cloud_total > 0.0_real64) v_path = v_sum / cloud_total
-    rho_path = 0.0_real64
-    gamma_path = 0.0_real64
-    if (fraction_total > 0.0_real64) then
-      rho_path = rho_sum / fraction_total
-      gamma_path = gamma_sum / fraction_total
-    end if
-    ridge_slanted_prior = ridge_prior_transmittance(nz, path_fraction, path_cloud, dz, clear_path, v_path, mu0, &
-        rho_path, &
-        gamma_path)
-  end function ridge_slanted_prior
-
-  !> direct_beam_prior [1] of the own columns (feature 'direct_beam_prior'), minus the host's
-  !> independent-column direct flux ica_direct ('direct_beam_prior_minus_independent_column') or minus
-  !> the same formula along the vertical ('direct_beam_prior_slant_minus_vertical'). The halo must cover
-  !> ridge_area_reach.
-  pure subroutine ridge_direct_prior(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+  !> The direct-beam priors [1] of the own columns, all in one pass over the columns (the weights and the
+  !> column statistics computed once): prior, along the paths toward the sun (feature 'direct_beam_prior');
+  !> minus_independent_column, that minus the host's independent-column direct flux ica_direct
+  !> ('direct_beam_prior_minus_independent_column'); slant_minus_vertical, that minus the same formula along
+  !> the vertical ('direct_beam_prior_slant_minus_vertical'). Only those present are computed (ica_direct is
+  !> read for minus_independent_column only). The paths' travel is capped at slant_path_reach [m] if present.
+  !> The halo must cover ridge_area_reach.
+  !>
+  !> As features._direct_prior: the layers' cloud fraction and cloud optical depth gathered along the area
+  !> weights (slant_path.gather_layers), the clear-sky optical depth summed along them, and the crossed
+  !> columns' v (weighted by the cloud optical depth met in each), rho and gamma (weighted by the cloud
+  !> fraction met), each summed as slant_path.slant_sum sums it.
+  pure subroutine ridge_direct_priors(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, total_cloud_fraction, &
-      column_optical_depth_std, cloud_edge_length, ica_direct, feature, out)
+      column_optical_depth_std, cloud_edge_length, ica_direct, prior, minus_independent_column, &
+      slant_minus_vertical, slant_path_reach)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy, nz) :: layer_cloud_fraction, &
         layer_optical_depth, layer_clear_sky_optical_depth
     real(real64), intent(in), dimension(1-hx:nx+hx, 1-hy:ny+hy) :: total_cloud_fraction, &
         column_optical_depth_std, cloud_edge_length, ica_direct
-    character(len=*), intent(in) :: feature
-    real(real64), intent(out) :: out(nx, ny)
+    real(real64), intent(out), dimension(nx, ny), optional :: prior, minus_independent_column, &
+        slant_minus_vertical
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(ridge_slant_weights) :: paths
-    real(real64), allocatable, dimension(:, :) :: v, rho, gamma
-    real(real64) :: mu0, dz(nz), cloud(nz), clear_depth
-    integer :: ix, iy, k, rx, ry
+    real(real64), allocatable :: cloud(:, :, :)
+    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud
+    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
+    real(real64), allocatable :: vertical(:, :)
+    real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
+        plane_clear, plane_v, plane_rho, plane_gamma
+    ! A column's layers in contiguous memory (a strided section passed on would be copied to the heap).
+    real(real64), dimension(nz) :: dz, zeros, fraction, cloud_of_column, cover, depth, volume
+    integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
     mu0 = cos(solar_zenith_angle * degree)
     dz = z_edge(2:nz + 1) - z_edge(1:nz)
-    call ridge_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths)
+    zeros = 0.0_real64
+    call ridge_capped_area_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
+        slant_path_reach)
     call ridge_slant_group_offsets(nz, paths)
     call ridge_slant_largest_offsets(paths, rx, ry)
-    ! The column statistics of every column the own columns' paths meet.
-    allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry))
+    ! The cloud optical depth (features._cloud_layers) and the column statistics of every column the own
+    ! columns' paths meet, from the blocks of their own layers; with these blocks, the prior along the
+    ! vertical of the own columns (features._direct_prior, not slanted).
+    allocate (cloud(1-rx:nx+rx, 1-ry:ny+ry, nz), v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), &
+              gamma(1-rx:nx+rx, 1-ry:ny+ry), vertical(nx, ny))
+    cloud = max(layer_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :) &
+                - layer_clear_sky_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :), 0.0_real64)
     do iy = 1 - ry, ny + ry
       do ix = 1 - rx, nx + rx
-        cloud = max(layer_optical_depth(ix, iy, :) - layer_clear_sky_optical_depth(ix, iy, :), 0.0_real64)
-        call ridge_overlap_statistics(nz, layer_cloud_fraction(ix, iy, :), cloud, total_cloud_fraction(ix, iy), &
+        fraction = layer_cloud_fraction(ix, iy, :)
+        cloud_of_column = cloud(ix, iy, :)
+        call ridge_prior_cloud_blocks(nz, fraction, cloud_of_column, zeros, n_block, cover, depth, volume, loose)
+        call ridge_overlap_statistics(n_block, cover, depth, total_cloud_fraction(ix, iy), &
             column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
         rho(ix, iy) = ridge_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
+        if (.not. present(slant_minus_vertical)) cycle
+        if (ix < 1 .or. ix > nx .or. iy < 1 .or. iy > ny) cycle
+        clear_depth = 0.0_real64
+        do k = 1, nz
+          clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
+        end do
+        vertical(ix, iy) = ridge_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v(ix, iy), &
+            mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
+    allocate (path_fraction(nx, nz), path_cloud(nx, nz), cloud_total(nx), fraction_total(nx), clear_path(nx), &
+              v_sum(nx), rho_sum(nx), gamma_sum(nx))
     do iy = 1, ny
-      do ix = 1, nx
-        out(ix, iy) = ridge_slanted_prior(nx, ny, nz, hx, hy, rx, ry, ix, iy, paths, layer_cloud_fraction, &
-            layer_optical_depth, layer_clear_sky_optical_depth, v, rho, gamma, dz, mu0)
-        if (feature == 'direct_beam_prior_minus_independent_column') then
-          out(ix, iy) = out(ix, iy) - ica_direct(ix, iy)
-        else if (feature == 'direct_beam_prior_slant_minus_vertical') then
-          clear_depth = 0.0_real64
-          do k = 1, nz
-            clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
+      ! The sums of one own column in registers, the own columns of the row in turn: each term of a sum
+      ! reads the next element of a row of the fields.
+      cloud_total = 0.0_real64
+      fraction_total = 0.0_real64
+      do k = 1, nz
+        do ix = 1, nx
+          sum_cloud = 0.0_real64
+          sum_fraction = 0.0_real64
+          do e = paths%first(k), paths%first(k + 1) - 1
+            jx = ix + paths%ox(e)
+            jy = iy + paths%oy(e)
+            w = paths%weight(e)
+            sum_cloud = sum_cloud + w * cloud(jx, jy, k)
+            sum_fraction = sum_fraction + w * layer_cloud_fraction(jx, jy, k)
           end do
-          cloud = max(layer_optical_depth(ix, iy, :) - layer_clear_sky_optical_depth(ix, iy, :), 0.0_real64)
-          out(ix, iy) = out(ix, iy) - ridge_prior_transmittance(nz, layer_cloud_fraction(ix, iy, :), cloud, &
-              spread(0.0_real64, 1, nz), clear_depth, v(ix, iy), mu0, 0.0_real64, gamma(ix, iy))
+          path_cloud(ix, k) = sum_cloud
+          path_fraction(ix, k) = sum_fraction
+        end do
+        cloud_total = cloud_total + path_cloud(:, k)
+        fraction_total = fraction_total + path_fraction(:, k)
+      end do
+      clear_path = 0.0_real64
+      v_sum = 0.0_real64
+      rho_sum = 0.0_real64
+      gamma_sum = 0.0_real64
+      do g = 1, size(paths%group_ox)
+        jy = iy + paths%group_oy(g)
+        do ix = 1, nx
+          jx = ix + paths%group_ox(g)
+          plane_clear = 0.0_real64
+          plane_v = 0.0_real64
+          plane_rho = 0.0_real64
+          plane_gamma = 0.0_real64
+          do t = paths%group_first(g), paths%group_first(g + 1) - 1
+            k = paths%term_layer(t)
+            w = paths%term_weight(t)
+            plane_clear = plane_clear + layer_clear_sky_optical_depth(jx, jy, k) * w
+            plane_v = plane_v + (cloud(jx, jy, k) * v(jx, jy)) * w
+            plane_rho = plane_rho + (layer_cloud_fraction(jx, jy, k) * rho(jx, jy)) * w
+            plane_gamma = plane_gamma + (layer_cloud_fraction(jx, jy, k) * gamma(jx, jy)) * w
+          end do
+          clear_path(ix) = clear_path(ix) + plane_clear
+          v_sum(ix) = v_sum(ix) + plane_v
+          rho_sum(ix) = rho_sum(ix) + plane_rho
+          gamma_sum(ix) = gamma_sum(ix) + plane_gamma
+        end do
+      end do
+      do ix = 1, nx
+        v_path = 0.0_real64
+        if (cloud_total(ix) > 0.0_real64) v_path = v_sum(ix) / cloud_total(ix)
+        rho_path = 0.0_real64
+        gamma_path = 0.0_real64
+        if (fraction_total(ix) > 0.0_real64) then
+          rho_path = rho_sum(ix) / fraction_total(ix)
+          gamma_path = gamma_sum(ix) / fraction_total(ix)
         end if
+        fraction = path_fraction(ix, :)
+        cloud_of_column = path_cloud(ix, :)
+        call ridge_prior_cloud_blocks(nz, fraction, cloud_of_column, dz, n_block, cover, depth, volume, loose)
+        slanted = ridge_prior_transmittance(n_block, cover, depth, volume, loose, clear_path(ix), v_path, mu0, &
+            rho_path, gamma_path)
+        if (present(prior)) prior(ix, iy) = slanted
+        if (present(minus_independent_column)) minus_independent_column(ix, iy) = slanted - ica_direct(ix, iy)
+        if (present(slant_minus_vertical)) slant_minus_vertical(ix, iy) = slanted - vertical(ix, iy)
       end do
     end do
-  end subroutine ridge_direct_prior
+  end subroutine ridge_direct_priors
 end module ridge_features
