@@ -44,13 +44,34 @@ def _checked_reach(reach):
     return value
 
 
-def _capped(weights_of, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth, *args):
+def _reached(s, dx, dy, solar_beam_azimuth, area):
+    """Weights of the point a path reaches after travelling ``s`` [m] toward the sun: the column whose
+    centre is nearest (one path), or the bilinear shares of the displaced column (the paths from a
+    column's whole surface), in (oy, ox) order, without zero weights."""
+    phi = math.radians(float(solar_beam_azimuth))
+    ux, uy = -math.cos(phi), -math.sin(phi)
+    ux = ux if abs(ux) >= _DIRECTION_EPS else 0.0
+    uy = uy if abs(uy) >= _DIRECTION_EPS else 0.0
+    sx, sy = s * ux / dx, s * uy / dy
+    if not area:
+        return (np.array([math.floor(sy + 0.5)], dtype=np.int64), np.array([math.floor(sx + 0.5)], dtype=np.int64),
+                np.ones(1))
+    ix, iy = math.floor(sx), math.floor(sy)
+    fx, fy = sx - ix, sy - iy
+    oy = np.array([iy, iy, iy + 1, iy + 1], dtype=np.int64)
+    ox = np.array([ix, ix + 1, ix, ix + 1], dtype=np.int64)
+    w = np.array([(1 - fx) * (1 - fy), fx * (1 - fy), (1 - fx) * fy, fx * fy])
+    keep = w > 0.0
+    return oy[keep], ox[keep], w[keep]
+
+
+def _capped(weights_of, area, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth, *args):
     """Path weights with the horizontal travel capped at ``reach`` [m].
 
     Up to the height ``z_cap = reach / tan(theta0)`` the path is the uncapped one; above
-    it the path rises vertically through the column it has reached, i.e. the uncapped
-    path of the height ``z_cap`` (a layer cut by ``z_cap`` gets both parts, weighted by
-    their share of its height).
+    it the path rises vertically through the column it has reached after travelling
+    ``reach`` (:func:`_reached`); a layer cut by ``z_cap`` gets both parts, weighted by
+    their share of its height.
     """
     cap = _checked_reach(reach)
     z_cap = cap / tan0 if tan0 > 0.0 else math.inf
@@ -59,9 +80,7 @@ def _capped(weights_of, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_b
     below = z_edge[z_edge < z_cap]
     edges = np.append(below, z_cap)
     low = weights_of(edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, *args) if edges.size > 1 else []
-    # The vertical part: the single path point at z_cap (a zero-thickness slab there).
-    top = weights_of(np.array([z_cap, np.nextafter(z_cap, math.inf)]), dx, dy, solar_zenith_angle,
-                     solar_beam_azimuth, *args)[0]
+    top = _reached(cap, dx, dy, solar_beam_azimuth, area)
     out = list(low[:-1]) if below.size else []
     for k in range(below.size - 1 if below.size else 0, z_edge.size - 1):
         z0, z1 = z_edge[k], z_edge[k + 1]
@@ -152,7 +171,7 @@ def path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, reach=N
     # Toward the sun: opposite to the direction in which the beam travels.
     ux, uy = -math.cos(phi), -math.sin(phi)
     if reach is not None:
-        return _capped(path_weights, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth)
+        return _capped(path_weights, False, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth)
     s = z_edge * tan0
     s0, s1 = s[:-1], s[1:]
     n_layer = s0.size
@@ -246,7 +265,7 @@ def area_path_weights(z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, ma
     step = max_step * min(dx, dy)
     out = []
     if reach is not None:
-        return _capped(area_path_weights, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth,
+        return _capped(area_path_weights, True, z_edge, tan0, reach, dx, dy, solar_zenith_angle, solar_beam_azimuth,
                        max_step)
     for z0, z1 in zip(z_edge[:-1], z_edge[1:]):
         shift = (z1 - z0) * tan0

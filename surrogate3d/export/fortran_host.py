@@ -25,6 +25,7 @@ host field files (:mod:`surrogate3d.runtime.host_field_file`, written by
 
 from ..core.coefficient_format import PROFILE_FIELD
 from ..core.data_model import TARGETS
+from ..errors import ValidationError
 
 #: Dummy arguments shared with ``NAME_host_features`` (the host fields of a sub-domain with a halo).
 FIELD_ARGUMENTS = ("nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, layer_cloud_fraction, "
@@ -93,14 +94,15 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
     p = profile_prefix
     uses = ""
     optional_args, optional_decl, profile_steps, finish_profile = "", "", "", ""
-    reach_call = slant_reach_call(f"{prefix}_host", SLANT_DEPTH_ABOVE, "rx", "ry") if profile else ""
+    reach_call = (slant_reach_call(f"{prefix}_host", SLANT_DEPTH_ABOVE, "rx", "ry", reach="slant_path_reach")
+                  .replace("\n", "\n      ") if profile else "")
     declarations = slant_declarations(f"{prefix}_host", {SLANT_DEPTH_ABOVE}) if profile else ""
     if profile:
         uses = (f"\n  use {p}_correction, only: {p}_coefficients, {p}_correct_profiles, {p}_match_column_integral, "
                 f"&\n    {p}_n_column_features")
         if not shared:
             uses += f"\n  use {p}_features, only: {p}_host_features"
-        optional_args = ", profile_model, independent_column_layer_absorption, layers"
+        optional_args = ", &\n      profile_model, independent_column_layer_absorption, layers"
         optional_decl = f"""
     type({p}_coefficients), intent(in), optional :: profile_model
     real(real64), intent(in), optional :: independent_column_layer_absorption(1 - hx:nx + hx, 1 - hy:ny + hy, nz)
@@ -108,7 +110,7 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
         own_features = "features" if shared else "profile_features"
         profile_features_call = "" if shared else f"""
       call {p}_host_features({_wrapped(FIELD_ARGUMENTS, "        ")}, &
-        profile_features, status, message)
+        profile_features, status, message, slant_path_reach)
       if (status /= 0) return"""
         profile_steps = f"""
     if (present(profile_model) .and. present(independent_column_layer_absorption) .and. present(layers)) then
@@ -126,7 +128,7 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
       call layer_fields(nx, ny, nz, hx, hy, z_edge, layer_cloud_fraction, layer_optical_depth, &
                         independent_column_layer_absorption, bottom, top, depth, cover, absorption)
       call {prefix}_host_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                           z_edge, layer_optical_depth, slant)
+                                           z_edge, layer_optical_depth, slant, slant_path_reach)
       ! numpy.radians multiplies by pi / 180: the same rounding, so the layer features agree bit for bit.
       cos_zenith = cos(solar_zenith_angle * (acos(-1.0_real64) / 180.0_real64))
       call {p}_correct_profiles(profile_model, nx * ny, nz, {own_features}(1:{p}_n_column_features, :), cos_zenith, &
@@ -237,7 +239,7 @@ contains
   !> training envelope, n_outside counts them. On a decomposed domain, sum_over_processes adds the energy sums
   !> over the processes. status /= 0 and message say what is wrong with the input (nothing else is set).{profile_doc}
   subroutine {prefix}_correct_host(model, {args}, &
-      fluxes, outside, n_outside, status, message, sum_over_processes{optional_args})
+      fluxes, outside, n_outside, status, message, sum_over_processes{optional_args}, slant_path_reach)
     type({prefix}_coefficients), intent(in) :: model
 {fields}
     real(real64), intent(out) :: fluxes({prefix}_n_targets, nx * ny)
@@ -245,11 +247,12 @@ contains
     integer, intent(out) :: n_outside, status
     character(len=*), intent(out) :: message
     procedure({prefix}_sum_over_processes), optional :: sum_over_processes{optional_decl}
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64) :: corrections({prefix}_n_targets, nx * ny), ica({prefix}_n_targets, nx * ny), albedo(nx * ny)
     real(real64) :: sums(2)
     logical :: gated(nx * ny)
     call {prefix}_host_corrections(model, {args}, &
-      corrections, gated, outside, n_outside, status, message{optional_args})
+      corrections, gated, outside, n_outside, status, message{optional_args}, slant_path_reach)
     if (status /= 0) return
     call {prefix}_own_columns(nx, ny, hx, hy, independent_column_fluxes, surface_albedo, ica, albedo)
     sums = 0.0_real64
@@ -261,18 +264,19 @@ contains
   !> Step 1 of {prefix}_correct_host: the raw corrections of the own columns (gate and, with a heating-rate model,
   !> its layers applied), the gate's columns and the envelope flags.
   subroutine {prefix}_host_corrections(model, {args}, &
-      corrections, gated, outside, n_outside, status, message{optional_args})
+      corrections, gated, outside, n_outside, status, message{optional_args}, slant_path_reach)
     type({prefix}_coefficients), intent(in) :: model
 {fields}
     real(real64), intent(out) :: corrections({prefix}_n_targets, nx * ny)
     logical, intent(out) :: gated(nx * ny), outside(nx * ny)
     integer, intent(out) :: n_outside, status
     character(len=*), intent(out) :: message{optional_decl}
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), allocatable :: features(:, :){profile_locals}
     integer :: i
     allocate (features({prefix}_n_host_features, nx * ny))
     call {prefix}_host_features({_wrapped(FIELD_ARGUMENTS, "      ")}, &
-      features, status, message)
+      features, status, message, slant_path_reach)
     if (status /= 0) return
     call {prefix}_correct_columns(model, nx * ny, features, corrections, outside, n_outside)
     do i = 1, nx * ny
@@ -341,12 +345,14 @@ def host_driver_text(prefix, profile_prefix=None):
 d%azimuth, d%z_edge, &
   d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, d%edge_length, &
   d%ica, d%fluxes, d%outside, n_outside, status, message""", """, layers=d%layers, profile_model=profile_model, &
-  independent_column_layer_absorption=d%layer_absorption)""", "      ")
+  independent_column_layer_absorption=d%layer_absorption, slant_path_reach=d%reach)""", "      ",
+                       close=", slant_path_reach=d%reach)")
     corrections_call = _either(profile, f"""call {prefix}_host_corrections(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, \
 d%zenith, d%azimuth, &
   d%z_edge, d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, &
   d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message""", """, &
-  profile_model, d%layer_absorption, d%layers)""", "        ")
+  profile_model, d%layer_absorption, d%layers, slant_path_reach=d%reach)""", "        ",
+                               close=", &\n  slant_path_reach=d%reach)")
     layers_alloc_time = "\n    allocate (d%layers(d%nz, d%nx * d%ny))" if profile else ""
     corrections_call_time = "\n".join("  " + line for line in corrections_call.splitlines())
     balance = (f"call {prefix}_balance_columns(d%nx * d%ny, d%ica_own, d%corrections, d%gated, sums(1), sums(2), "
@@ -370,9 +376,10 @@ d%zenith, d%azimuth, &
 ! whole periodic domain, corrected in one call. Several: the sub-domains of one domain, run as the processes
 ! of a decomposed host (step 1 and the energy sums on each, the sums added as an all-reduce would, the last
 ! step on each). Prints per own column: ix iy (1-based, whole domain), the corrected fluxes [1]{
-        " and the layer corrections [1], bottom first" if profile else ""}.
+        chr(10) + "! and the layer corrections [1], bottom first" if profile else ""}.
 program {prefix}_host_driver
   use, intrinsic :: iso_fortran_env, only: real64, int64, error_unit
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite
   use {prefix}_correction
   use {prefix}_host{uses}
   implicit none
@@ -381,6 +388,7 @@ program {prefix}_host_driver
   type :: subdomain
     integer :: nx, ny, nz, hx, hy, ix0, iy0
     real(real64) :: dx, dy, zenith, azimuth
+    real(real64), allocatable :: reach     ! the cap on the slant paths' reach [m]; unallocated: none
     real(real64), allocatable :: z_edge(:), cloud_fraction(:, :, :), optical_depth(:, :, :), clear_sky(:, :, :)
     real(real64), allocatable :: albedo(:, :), cover(:, :), depth_mean(:, :), depth_std(:, :), edge_length(:, :)
     real(real64), allocatable :: ica(:, :, :), layer_absorption(:, :, :)
@@ -468,8 +476,9 @@ program {prefix}_host_driver
 contains
 
   !> With --repeat N: the features and the prediction (step 1, {prefix}_host_corrections{
-        ", with the heating-rate layers if --profile" if profile else ""}) of the first file's columns, N sweeps
-  !> timed, best of three; prints key value lines (the checksum keeps the compiler from skipping sweeps).
+        ", with the heating-rate layers if --profile" if profile else ""})
+  !> of the first file's columns, N sweeps timed, best of three; prints key value lines (the checksum keeps
+  !> the compiler from skipping sweeps).
   subroutine time_corrections(d)
     type(subdomain), intent(inout) :: d
     integer(int64) :: start, finish, rate
@@ -509,12 +518,13 @@ contains
     character(len=*), intent(in) :: path
     type(subdomain), intent(out) :: d
     integer :: unit, ios, count
+    real(real64) :: cap
     character(len=64) :: key
     character(len=256) :: line
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) call stop_on(1, 'cannot open host field file ' // path)
     read (unit, '(a)') line
-    if (trim(line) /= 'surrogate3d host fields 1') call stop_on(1, path // ' is not a host field file of version 1')
+    if (trim(line) /= 'surrogate3d host fields 2') call stop_on(1, path // ' is not a host field file of version 2')
     read (unit, *) key, d%nx, d%ny, d%nz, d%hx, d%hy
     read (unit, *) key, d%ix0, d%iy0
     read (unit, *) key
@@ -522,6 +532,8 @@ contains
     read (unit, *) key, d%dy
     read (unit, *) key, d%zenith
     read (unit, *) key, d%azimuth
+    read (unit, *) key, cap
+    if (ieee_is_finite(cap)) d%reach = cap
     associate (nx => d%nx, ny => d%ny, nz => d%nz, hx => d%hx, hy => d%hy)
       allocate (d%z_edge(nz + 1))
       allocate (d%cloud_fraction(1 - hx:nx + hx, 1 - hy:ny + hy, nz), d%optical_depth(1 - hx:nx + hx, 1 - hy:ny + hy, nz))
@@ -593,4 +605,8 @@ def host_files(document, profile_document=None):
     files[f"{prefix}_host.f90"] = host_module_text(prefix, document, profile_prefix, profile_document)
     files[f"{prefix}_host_driver.f90"] = host_driver_text(prefix, profile_prefix)
     files[f"{prefix}_halo.md"] = halo_statement(model.name, model.recipe, model.column_feature_names)
+    for name, text in files.items():
+        long = [i + 1 for i, line in enumerate(text.splitlines()) if len(line) > 132 and name.endswith(".f90")]
+        if long:
+            raise ValidationError(f"generated {name} has lines longer than 132 characters at {long[:5]}")
     return files

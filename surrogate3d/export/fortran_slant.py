@@ -396,13 +396,57 @@ def _path_procedures(p):
 """
 
 
+def _reached_procedure(p, base):
+    """The weights of the point a path reaches after a horizontal travel s toward the sun (slant_path._reached)."""
+    if base == "path":
+        body = """    allocate (top%first(2), top%oy(1), top%ox(1), top%weight(1))
+    top%first = [1, 2]
+    top%oy(1) = floor(s * uy / dy + 0.5_real64)
+    top%ox(1) = floor(s * ux / dx + 0.5_real64)
+    top%weight(1) = 1.0_real64"""
+        names = "ux, uy"
+        extra = ""
+    else:
+        body = """    sx = s * ux / dx
+    sy = s * uy / dy
+    ix = floor(sx)
+    iy = floor(sy)
+    fx = sx - ix
+    fy = sy - iy
+    w = [(1.0_real64 - fx) * (1.0_real64 - fy), fx * (1.0_real64 - fy), (1.0_real64 - fx) * fy, fx * fy]
+    n = count(w > 0.0_real64)
+    allocate (top%first(2), top%oy(n), top%ox(n), top%weight(n))
+    top%first = [1, n + 1]
+    top%oy = pack([iy, iy, iy + 1, iy + 1], w > 0.0_real64)
+    top%ox = pack([ix, ix + 1, ix, ix + 1], w > 0.0_real64)
+    top%weight = pack(w, w > 0.0_real64)"""
+        names = "ux, uy, sx, sy, fx, fy, w(4)"
+        extra = "\n    integer :: ix, iy, n"
+    return f"""
+  !> The weights of the point reached after a horizontal travel s [m] toward the sun (slant_path._reached):
+  !> {"the column whose centre is nearest" if base == "path" else "the bilinear shares of the displaced column"}.
+  pure subroutine {p}_reached_{base}(s, dx, dy, solar_beam_azimuth, top)
+    real(real64), intent(in) :: s, dx, dy, solar_beam_azimuth
+    type({p}_slant_weights), intent(out) :: top
+{_DEGREE}
+{_DIRECTION}
+    real(real64) :: {names}{extra}
+    ux = -cos(solar_beam_azimuth * degree)
+    uy = -sin(solar_beam_azimuth * degree)
+    if (abs(ux) < direction_eps) ux = 0.0_real64
+    if (abs(uy) < direction_eps) uy = 0.0_real64
+{body}
+  end subroutine {p}_reached_{base}
+"""
+
+
 def _capped_procedure(p, base):
     """The weights of ``PREFIX_{base}_weights`` with the host's cap on the horizontal travel (slant_path._capped)."""
-    return f"""
+    return _reached_procedure(p, base) + f"""
   !> The weights of {p}_{base}_weights with the paths' horizontal travel capped at slant_path_reach [m]
   !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
-  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
-  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> uncapped weights, above it those of the point the path reaches at z_cap ({p}_reached_{base}), i.e. a
+  !> vertical path through the column reached; the layer cut by z_cap
   !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
   !> slant_path_reach must be finite and >= 0 ({p}_slant_reachable).
   pure subroutine {p}_capped_{base}_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
@@ -427,8 +471,7 @@ def _capped_procedure(p, base):
     end if
     ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
     n_below = count(edges < z_cap)
-    call {p}_{base}_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
-        solar_beam_azimuth, top)
+    call {p}_reached_{base}(slant_path_reach, dx, dy, solar_beam_azimuth, top)
     n_top = size(top%ox)
     if (n_below > 0) then
       low_edges(1:n_below) = edges(1:n_below)

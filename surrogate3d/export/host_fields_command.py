@@ -19,6 +19,9 @@ def register(sub):
                    help="direction the beam travels in degrees, counterclockwise from +x (default 0)")
     p.add_argument("--host-resolution", type=float, default=1000.0, metavar="M",
                    help="host column size in m, a whole multiple of the scene cell size (default 1000)")
+    p.add_argument("--slant-path-reach", type=float, default=None, metavar="M",
+                   help="the host's cap on the slant paths' horizontal travel in m (beyond it they rise vertically), "
+                        "which bounds the halo at low sun (default: no cap)")
     p.add_argument("--split", type=int, nargs=2, default=[2, 2], metavar=("PX", "PY"),
                    help="sub-domains along x and y; each must divide the host grid (default 2 2)")
     p.add_argument("--quiet", action="store_true", help="print nothing on success")
@@ -41,6 +44,8 @@ def run(args):
     zenith = check_solar_zenith_angle(args.zenith, "--zenith")
     check_number("--azimuth", args.azimuth)
     check_number("--host-resolution", args.host_resolution, 0.0, None, low_open=True)
+    if args.slant_path_reach is not None:
+        check_number("--slant-path-reach", args.slant_path_reach, 0.0, None)
     models = [load_coefficients(path) for path in args.model]
     out = check_output_directory(args.out, "--out")
     scene = read_scene(args.scene, results=False)
@@ -51,7 +56,10 @@ def run(args):
         if flux != "layer_absorption":
             fields[f"independent_column_{flux}"] = value
     fields = stacked_fields(fields, solved["layer_absorption"])
-    geometry = (fields["z_edge"], fields["dx"], fields["dy"], zenith, fields["solar_beam_azimuth"])
+    if args.slant_path_reach is not None:
+        fields["slant_path_reach"] = args.slant_path_reach
+    geometry = (fields["z_edge"], fields["dx"], fields["dy"], zenith, fields["solar_beam_azimuth"],
+                args.slant_path_reach)
     widths = [halo_width(model.recipe, *geometry) for model in models]
     if any(model.layer_feature_names for model in models):
         widths.append(path_reach(*geometry))

@@ -9,7 +9,7 @@ the memory order of numpy's ``(nz, ny, nx)`` arrays.
 
 Layout (one item per line unless said)::
 
-    surrogate3d host fields 1
+    surrogate3d host fields 2
     grid NX NY NZ HX HY          own columns along x and y, layers, halo along x and y
     origin IX0 IY0               0-based index of the first own column in the whole domain
     domain NX_ALL NY_ALL         size of the whole (periodic) domain
@@ -17,6 +17,7 @@ Layout (one item per line unless said)::
     dy DY                        column size along y [m]
     solar_zenith_angle VALUE     [degree]
     solar_beam_azimuth VALUE     [degree], the direction the beam travels, counterclockwise from +x
+    slant_path_reach VALUE       [m], the host's cap on the slant paths' reach, or inf (none)
     NAME COUNT                   then COUNT numbers, six per line, for each array of ARRAYS in order
 
 The arrays (:data:`ARRAYS`) are those of :mod:`surrogate3d.pairs.features` plus the
@@ -32,7 +33,7 @@ from ..core.data_model import TARGETS
 from ..errors import FormatError, ValidationError
 
 FORMAT_NAME = "surrogate3d host fields"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 
 #: The arrays of a host field file, in order: name -> kind ("edges", "layers", "plane", "fluxes").
 ARRAYS = {
@@ -49,7 +50,7 @@ ARRAYS = {
     "independent_column_layer_absorption": "layers",
 }
 
-_SCALARS = ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth")
+_SCALARS = ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth", "slant_path_reach")
 _PER_LINE = 6
 
 
@@ -92,7 +93,8 @@ def host_field_text(fields, halo, origin, domain):
     fields : dict
         The arrays of :data:`ARRAYS` (numpy order: ``(nz, ny, nx)``, ``(ny, nx)``,
         ``(5, ny, nx)``) on the sub-domain with its halo, and the scalars ``dx``, ``dy``
-        [m], ``solar_zenith_angle``, ``solar_beam_azimuth`` [degree].
+        [m], ``solar_zenith_angle``, ``solar_beam_azimuth`` [degree] and, optionally,
+        ``slant_path_reach`` [m] (written as ``inf`` when absent: no cap).
     halo : (int, int)
         Halo ``(hx, hy)`` in columns.
     origin : (int, int)
@@ -112,7 +114,7 @@ def host_field_text(fields, halo, origin, domain):
         raise ValidationError(f"a halo of ({hx}, {hy}) leaves no own column in fields of {nx_h} x {ny_h} columns")
     lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"grid {nx} {ny} {nz} {hx} {hy}",
              f"origin {int(origin[0])} {int(origin[1])}", f"domain {int(domain[0])} {int(domain[1])}"]
-    lines += [f"{key} {float(fields[key])!r}" for key in _SCALARS]
+    lines += [f"{key} {float(fields.get(key, float('inf')))!r}" for key in _SCALARS]
     for name, kind in ARRAYS.items():
         value = np.asarray(fields[name], dtype=np.float64)
         expected = _shape(kind, nz, ny_h, nx_h)
@@ -165,6 +167,8 @@ def read_host_field_file(path):
     nx, ny, nz, hx, hy = header(1, "grid", 5, int)
     origin, domain = header(2, "origin", 2, int), header(3, "domain", 2, int)
     fields = {key: header(4 + i, key, 1, float)[0] for i, key in enumerate(_SCALARS)}
+    if fields["slant_path_reach"] == float("inf"):
+        del fields["slant_path_reach"]
     index = 4 + len(_SCALARS)
     for name, kind in ARRAYS.items():
         expected = _shape(kind, nz, ny + 2 * hy, nx + 2 * hx)

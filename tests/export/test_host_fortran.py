@@ -82,7 +82,8 @@ def _numpy_reference(whole_file):
     nz, ny, nx = inner["layer_optical_depth"].shape
     z = inner["z_edge"]
     slant = slant_optical_depth_above(inner["layer_optical_depth"], z, inner["dx"], inner["dy"],
-                                      inner["solar_zenith_angle"], inner["solar_beam_azimuth"])
+                                      inner["solar_zenith_angle"], inner["solar_beam_azimuth"],
+                                      reach=inner.get("slant_path_reach"))
 
     def per_column(a):
         return np.moveaxis(a, 0, -1).reshape(ny * nx, nz)
@@ -126,15 +127,19 @@ def _run_driver(guide_run, files):
     return rows[np.lexsort((rows[:, 0], rows[:, 1])), 2:]
 
 
-@pytest.mark.parametrize("zenith, azimuth", [(20.0, 200.0), (75.0, 123.0)])
-def test_other_suns_whole_and_split_equal_numpy(guide_run, tmp_path, zenith, azimuth):
+@pytest.mark.parametrize("zenith, azimuth, cap", [(20.0, 200.0, None), (75.0, 123.0, None), (80.0, 250.0, 2500.0)])
+def test_other_suns_whole_and_split_equal_numpy(guide_run, tmp_path, zenith, azimuth, cap):
     # High and low sun, beams all around: the halo grows with the slant paths (75 degrees:
-    # the largest the 4 km scene needs), and the four sub-domains still give the whole domain.
+    # the largest the 4 km scene needs) unless the host caps their reach (80 degrees, 2.5 km:
+    # a halo of 5 instead of 23), and four sub-domains still give the whole domain.
     scene = guide_run / "host-demo" / "scenes" / "open_cells_00000.nc"
     out = tmp_path / "fields"
     assert main(["host-fields", str(scene), "--model", str(SHIPPED / "boosted.coefficients.json"),
                  str(SHIPPED / "profile.coefficients.json"), "--zenith", str(zenith), "--azimuth", str(azimuth),
-                 "--split", "2", "2", "--out", str(out), "--quiet"]) == 0
+                 "--split", "2", "2", "--out", str(out), "--quiet"]
+                + ([] if cap is None else ["--slant-path-reach", str(cap)])) == 0
+    fields, layout = read_host_field_file(out / "whole.txt")
+    assert fields.get("slant_path_reach") == cap and (cap is None or max(layout["halo"]) <= 5)
     whole = _run_driver(guide_run, [out / "whole.txt"])
     split = _run_driver(guide_run, sorted(out.glob("subdomain_*.txt")))
     np.testing.assert_allclose(split, whole, rtol=1e-10, atol=1e-12)
@@ -151,7 +156,7 @@ def test_narrow_halo_is_refused_naming_the_feature(guide_run, tmp_path):
     hx, hy = layout["halo"]
     cut = {k: (v[..., 1:v.shape[-2] - 1, 1:v.shape[-1] - 1] if np.ndim(v) >= 2 else v) for k, v in data.items()}
     write_host_field_file(narrow, cut, (hx - 1, hy - 1), layout["origin"], layout["domain"])
-    assert text[0] == "surrogate3d host fields 1"
+    assert text[0] == "surrogate3d host fields 2"
     driver = guide_run / "host-demo" / "host_driver"
     done = subprocess.run([str(driver), str(SHIPPED / "fortran" / "boosted.coefficients.txt"), str(narrow)],
                           capture_output=True, text=True)

@@ -153,3 +153,14 @@ def test_capped_path_is_exact_under_a_horizontally_uniform_sky():
         path_weights(fields["z_edge"], 1000.0, 1000.0, 70.0, 37.0, reach=-1.0)
     with pytest.raises(ValidationError, match="slant_path_reach"):
         compute_features(dict(fields, slant_path_reach=float("nan")), FeatureRecipe(["slant_optical_depth"]))
+
+
+def test_capped_path_above_the_cap_is_the_column_reached():
+    # Beyond the cap the path rises through the column it reached after travelling the cap
+    # (2.5 km toward the sun, -x: the column 2 to the west, whose centre is nearest), not
+    # its own: geometry, for every sun (a zero-thickness slab there once rounded to "vertical").
+    from surrogate3d.core.slant_path import path_weights
+
+    for zenith in (60.0, 75.0, 85.0, 89.0):
+        weights = path_weights([0.0, 500.0, 1000.0, 2000.0, 4000.0], 1000.0, 1000.0, zenith, 0.0, reach=2500.0)
+        assert [(oy.tolist(), ox.tolist()) for oy, ox, _ in weights[-1:]] == [([0], [-2])]

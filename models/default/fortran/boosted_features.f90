@@ -1167,10 +1167,30 @@ contains
     call boosted_slant_largest_offsets(paths, rx, ry)
   end subroutine boosted_path_reach
 
+  !> The weights of the point reached after a horizontal travel s [m] toward the sun (slant_path._reached):
+  !> the column whose centre is nearest.
+  pure subroutine boosted_reached_path(s, dx, dy, solar_beam_azimuth, top)
+    real(real64), intent(in) :: s, dx, dy, solar_beam_azimuth
+    type(boosted_slant_weights), intent(out) :: top
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    ! Below this a direction component is taken as exactly zero (cos(90 deg) is 6e-17, not 0).
+    real(real64), parameter :: direction_eps = 1e-12_real64
+    real(real64) :: ux, uy
+    ux = -cos(solar_beam_azimuth * degree)
+    uy = -sin(solar_beam_azimuth * degree)
+    if (abs(ux) < direction_eps) ux = 0.0_real64
+    if (abs(uy) < direction_eps) uy = 0.0_real64
+    allocate (top%first(2), top%oy(1), top%ox(1), top%weight(1))
+    top%first = [1, 2]
+    top%oy(1) = floor(s * uy / dy + 0.5_real64)
+    top%ox(1) = floor(s * ux / dx + 0.5_real64)
+    top%weight(1) = 1.0_real64
+  end subroutine boosted_reached_path
+
   !> The weights of boosted_path_weights with the paths' horizontal travel capped at slant_path_reach [m]
   !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
-  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
-  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> uncapped weights, above it those of the point the path reaches at z_cap (boosted_reached_path), i.e. a
+  !> vertical path through the column reached; the layer cut by z_cap
   !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
   !> slant_path_reach must be finite and >= 0 (boosted_slant_reachable).
   pure subroutine boosted_capped_path_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
@@ -1195,8 +1215,7 @@ contains
     end if
     ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
     n_below = count(edges < z_cap)
-    call boosted_path_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
-        solar_beam_azimuth, top)
+    call boosted_reached_path(slant_path_reach, dx, dy, solar_beam_azimuth, top)
     n_top = size(top%ox)
     if (n_below > 0) then
       low_edges(1:n_below) = edges(1:n_below)
@@ -1413,10 +1432,39 @@ contains
     call boosted_slant_largest_offsets(paths, rx, ry)
   end subroutine boosted_area_reach
 
+  !> The weights of the point reached after a horizontal travel s [m] toward the sun (slant_path._reached):
+  !> the bilinear shares of the displaced column.
+  pure subroutine boosted_reached_area(s, dx, dy, solar_beam_azimuth, top)
+    real(real64), intent(in) :: s, dx, dy, solar_beam_azimuth
+    type(boosted_slant_weights), intent(out) :: top
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    ! Below this a direction component is taken as exactly zero (cos(90 deg) is 6e-17, not 0).
+    real(real64), parameter :: direction_eps = 1e-12_real64
+    real(real64) :: ux, uy, sx, sy, fx, fy, w(4)
+    integer :: ix, iy, n
+    ux = -cos(solar_beam_azimuth * degree)
+    uy = -sin(solar_beam_azimuth * degree)
+    if (abs(ux) < direction_eps) ux = 0.0_real64
+    if (abs(uy) < direction_eps) uy = 0.0_real64
+    sx = s * ux / dx
+    sy = s * uy / dy
+    ix = floor(sx)
+    iy = floor(sy)
+    fx = sx - ix
+    fy = sy - iy
+    w = [(1.0_real64 - fx) * (1.0_real64 - fy), fx * (1.0_real64 - fy), (1.0_real64 - fx) * fy, fx * fy]
+    n = count(w > 0.0_real64)
+    allocate (top%first(2), top%oy(n), top%ox(n), top%weight(n))
+    top%first = [1, n + 1]
+    top%oy = pack([iy, iy, iy + 1, iy + 1], w > 0.0_real64)
+    top%ox = pack([ix, ix + 1, ix, ix + 1], w > 0.0_real64)
+    top%weight = pack(w, w > 0.0_real64)
+  end subroutine boosted_reached_area
+
   !> The weights of boosted_area_weights with the paths' horizontal travel capped at slant_path_reach [m]
   !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
-  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
-  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> uncapped weights, above it those of the point the path reaches at z_cap (boosted_reached_area), i.e. a
+  !> vertical path through the column reached; the layer cut by z_cap
   !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
   !> slant_path_reach must be finite and >= 0 (boosted_slant_reachable).
   pure subroutine boosted_capped_area_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
@@ -1441,8 +1489,7 @@ contains
     end if
     ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
     n_below = count(edges < z_cap)
-    call boosted_area_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
-        solar_beam_azimuth, top)
+    call boosted_reached_area(slant_path_reach, dx, dy, solar_beam_azimuth, top)
     n_top = size(top%ox)
     if (n_below > 0) then
       low_edges(1:n_below) = edges(1:n_below)

@@ -3,9 +3,11 @@
 ! The host field files are written by 'surrogate3d host-fields' (docs/host-model-guide.md). One file: the
 ! whole periodic domain, corrected in one call. Several: the sub-domains of one domain, run as the processes
 ! of a decomposed host (step 1 and the energy sums on each, the sums added as an all-reduce would, the last
-! step on each). Prints per own column: ix iy (1-based, whole domain), the corrected fluxes [1] and the layer corrections [1], bottom first.
+! step on each). Prints per own column: ix iy (1-based, whole domain), the corrected fluxes [1]
+! and the layer corrections [1], bottom first.
 program boosted_host_driver
   use, intrinsic :: iso_fortran_env, only: real64, int64, error_unit
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite
   use boosted_correction
   use boosted_host
   use profile_correction, only: profile_coefficients, profile_read_coefficients
@@ -15,6 +17,7 @@ program boosted_host_driver
   type :: subdomain
     integer :: nx, ny, nz, hx, hy, ix0, iy0
     real(real64) :: dx, dy, zenith, azimuth
+    real(real64), allocatable :: reach     ! the cap on the slant paths' reach [m]; unallocated: none
     real(real64), allocatable :: z_edge(:), cloud_fraction(:, :, :), optical_depth(:, :, :), clear_sky(:, :, :)
     real(real64), allocatable :: albedo(:, :), cover(:, :), depth_mean(:, :), depth_std(:, :), edge_length(:, :)
     real(real64), allocatable :: ica(:, :, :), layer_absorption(:, :, :)
@@ -77,11 +80,11 @@ program boosted_host_driver
         call boosted_correct_host(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, d%zenith, d%azimuth, d%z_edge, &
             d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, d%edge_length, &
             d%ica, d%fluxes, d%outside, n_outside, status, message, layers=d%layers, profile_model=profile_model, &
-            independent_column_layer_absorption=d%layer_absorption)
+            independent_column_layer_absorption=d%layer_absorption, slant_path_reach=d%reach)
       else
         call boosted_correct_host(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, d%zenith, d%azimuth, d%z_edge, &
             d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, d%edge_length, &
-            d%ica, d%fluxes, d%outside, n_outside, status, message)
+            d%ica, d%fluxes, d%outside, n_outside, status, message, slant_path_reach=d%reach)
       end if
       call stop_on(status, message)
     end associate
@@ -97,11 +100,12 @@ program boosted_host_driver
           call boosted_host_corrections(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, d%zenith, d%azimuth, &
               d%z_edge, d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, &
               d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message, &
-              profile_model, d%layer_absorption, d%layers)
+              profile_model, d%layer_absorption, d%layers, slant_path_reach=d%reach)
         else
           call boosted_host_corrections(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, d%zenith, d%azimuth, &
               d%z_edge, d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, &
-              d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message)
+              d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message, &
+              slant_path_reach=d%reach)
         end if
         call stop_on(status, message)
         call boosted_own_columns(d%nx, d%ny, d%hx, d%hy, d%ica, d%albedo, d%ica_own, d%albedo_own)
@@ -137,8 +141,9 @@ program boosted_host_driver
 
 contains
 
-  !> With --repeat N: the features and the prediction (step 1, boosted_host_corrections, with the heating-rate layers if --profile) of the first file's columns, N sweeps
-  !> timed, best of three; prints key value lines (the checksum keeps the compiler from skipping sweeps).
+  !> With --repeat N: the features and the prediction (step 1, boosted_host_corrections, with the heating-rate layers if --profile)
+  !> of the first file's columns, N sweeps timed, best of three; prints key value lines (the checksum keeps
+  !> the compiler from skipping sweeps).
   subroutine time_corrections(d)
     type(subdomain), intent(inout) :: d
     integer(int64) :: start, finish, rate
@@ -155,11 +160,12 @@ contains
             call boosted_host_corrections(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, d%zenith, d%azimuth, &
                 d%z_edge, d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, &
                 d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message, &
-                profile_model, d%layer_absorption, d%layers)
+                profile_model, d%layer_absorption, d%layers, slant_path_reach=d%reach)
           else
             call boosted_host_corrections(model, d%nx, d%ny, d%nz, d%hx, d%hy, d%dx, d%dy, d%zenith, d%azimuth, &
                 d%z_edge, d%cloud_fraction, d%optical_depth, d%clear_sky, d%albedo, d%cover, d%depth_mean, d%depth_std, &
-                d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message)
+                d%edge_length, d%ica, d%corrections, d%gated, d%outside, n_outside, status, message, &
+                slant_path_reach=d%reach)
           end if
         call stop_on(status, message)
         checksum = checksum + d%corrections(1, 1 + mod(sweep, d%nx * d%ny))
@@ -187,12 +193,13 @@ contains
     character(len=*), intent(in) :: path
     type(subdomain), intent(out) :: d
     integer :: unit, ios, count
+    real(real64) :: cap
     character(len=64) :: key
     character(len=256) :: line
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) call stop_on(1, 'cannot open host field file ' // path)
     read (unit, '(a)') line
-    if (trim(line) /= 'surrogate3d host fields 1') call stop_on(1, path // ' is not a host field file of version 1')
+    if (trim(line) /= 'surrogate3d host fields 2') call stop_on(1, path // ' is not a host field file of version 2')
     read (unit, *) key, d%nx, d%ny, d%nz, d%hx, d%hy
     read (unit, *) key, d%ix0, d%iy0
     read (unit, *) key
@@ -200,6 +207,8 @@ contains
     read (unit, *) key, d%dy
     read (unit, *) key, d%zenith
     read (unit, *) key, d%azimuth
+    read (unit, *) key, cap
+    if (ieee_is_finite(cap)) d%reach = cap
     associate (nx => d%nx, ny => d%ny, nz => d%nz, hx => d%hx, hy => d%hy)
       allocate (d%z_edge(nz + 1))
       allocate (d%cloud_fraction(1 - hx:nx + hx, 1 - hy:ny + hy, nz), d%optical_depth(1 - hx:nx + hx, 1 - hy:ny + hy, nz))

@@ -48,7 +48,8 @@ contains
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, surface_albedo, &
       total_cloud_fraction, column_optical_depth_mean, column_optical_depth_std, cloud_edge_length, &
       independent_column_fluxes, &
-      fluxes, outside, n_outside, status, message, sum_over_processes, profile_model, independent_column_layer_absorption, layers)
+      fluxes, outside, n_outside, status, message, sum_over_processes, &
+      profile_model, independent_column_layer_absorption, layers, slant_path_reach)
     type(ridge_coefficients), intent(in) :: model
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
@@ -65,6 +66,7 @@ contains
     type(profile_coefficients), intent(in), optional :: profile_model
     real(real64), intent(in), optional :: independent_column_layer_absorption(1 - hx:nx + hx, 1 - hy:ny + hy, nz)
     real(real64), intent(out), optional :: layers(nz, nx * ny)
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64) :: corrections(ridge_n_targets, nx * ny), ica(ridge_n_targets, nx * ny), albedo(nx * ny)
     real(real64) :: sums(2)
     logical :: gated(nx * ny)
@@ -72,7 +74,8 @@ contains
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, surface_albedo, &
       total_cloud_fraction, column_optical_depth_mean, column_optical_depth_std, cloud_edge_length, &
       independent_column_fluxes, &
-      corrections, gated, outside, n_outside, status, message, profile_model, independent_column_layer_absorption, layers)
+      corrections, gated, outside, n_outside, status, message, &
+      profile_model, independent_column_layer_absorption, layers, slant_path_reach)
     if (status /= 0) return
     call ridge_own_columns(nx, ny, hx, hy, independent_column_fluxes, surface_albedo, ica, albedo)
     sums = 0.0_real64
@@ -88,7 +91,8 @@ contains
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, surface_albedo, &
       total_cloud_fraction, column_optical_depth_mean, column_optical_depth_std, cloud_edge_length, &
       independent_column_fluxes, &
-      corrections, gated, outside, n_outside, status, message, profile_model, independent_column_layer_absorption, layers)
+      corrections, gated, outside, n_outside, status, message, &
+      profile_model, independent_column_layer_absorption, layers, slant_path_reach)
     type(ridge_coefficients), intent(in) :: model
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
@@ -104,6 +108,7 @@ contains
     type(profile_coefficients), intent(in), optional :: profile_model
     real(real64), intent(in), optional :: independent_column_layer_absorption(1 - hx:nx + hx, 1 - hy:ny + hy, nz)
     real(real64), intent(out), optional :: layers(nz, nx * ny)
+    real(real64), intent(in), optional :: slant_path_reach
     real(real64), allocatable :: features(:, :)
     real(real64), allocatable :: bottom(:, :), top(:, :), depth(:, :), cover(:, :), absorption(:, :), slant(:, :)
     real(real64), allocatable :: cos_zenith(:)
@@ -115,14 +120,15 @@ contains
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, surface_albedo, &
       total_cloud_fraction, column_optical_depth_mean, column_optical_depth_std, cloud_edge_length, &
       independent_column_fluxes, &
-      features, status, message)
+      features, status, message, slant_path_reach)
     if (status /= 0) return
     call ridge_correct_columns(model, nx * ny, features, corrections, outside, n_outside)
     do i = 1, nx * ny
       gated(i) = ridge_clear_sky_column(model, features(:, i))
     end do
     if (present(profile_model) .and. present(independent_column_layer_absorption) .and. present(layers)) then
-      call ridge_host_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry)
+      call ridge_host_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
+          slant_path_reach=slant_path_reach)
       if (rx > hx .or. ry > hy) then
         status = 1
         write (message, '(a, 2(i0, a), 2(i0, a))') 'feature slant_optical_depth_above (heating-rate layers) reads ', &
@@ -134,7 +140,7 @@ contains
       call layer_fields(nx, ny, nz, hx, hy, z_edge, layer_cloud_fraction, layer_optical_depth, &
                         independent_column_layer_absorption, bottom, top, depth, cover, absorption)
       call ridge_host_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                           z_edge, layer_optical_depth, slant)
+                                           z_edge, layer_optical_depth, slant, slant_path_reach)
       ! numpy.radians multiplies by pi / 180: the same rounding, so the layer features agree bit for bit.
       cos_zenith = cos(solar_zenith_angle * (acos(-1.0_real64) / 180.0_real64))
       call profile_correct_profiles(profile_model, nx * ny, nz, features(1:profile_n_column_features, :), cos_zenith, &
@@ -453,10 +459,30 @@ contains
     call ridge_host_slant_largest_offsets(paths, rx, ry)
   end subroutine ridge_host_path_reach
 
+  !> The weights of the point reached after a horizontal travel s [m] toward the sun (slant_path._reached):
+  !> the column whose centre is nearest.
+  pure subroutine ridge_host_reached_path(s, dx, dy, solar_beam_azimuth, top)
+    real(real64), intent(in) :: s, dx, dy, solar_beam_azimuth
+    type(ridge_host_slant_weights), intent(out) :: top
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    ! Below this a direction component is taken as exactly zero (cos(90 deg) is 6e-17, not 0).
+    real(real64), parameter :: direction_eps = 1e-12_real64
+    real(real64) :: ux, uy
+    ux = -cos(solar_beam_azimuth * degree)
+    uy = -sin(solar_beam_azimuth * degree)
+    if (abs(ux) < direction_eps) ux = 0.0_real64
+    if (abs(uy) < direction_eps) uy = 0.0_real64
+    allocate (top%first(2), top%oy(1), top%ox(1), top%weight(1))
+    top%first = [1, 2]
+    top%oy(1) = floor(s * uy / dy + 0.5_real64)
+    top%ox(1) = floor(s * ux / dx + 0.5_real64)
+    top%weight(1) = 1.0_real64
+  end subroutine ridge_host_reached_path
+
   !> The weights of ridge_host_path_weights with the paths' horizontal travel capped at slant_path_reach [m]
   !> (slant_path._capped; uncapped when it is absent): below z_cap = slant_path_reach / tan(theta0) the
-  !> uncapped weights, above it those of the point the path reaches at z_cap (the weights of the slab from
-  !> z_cap to the next double), i.e. a vertical path through the column reached; the layer cut by z_cap
+  !> uncapped weights, above it those of the point the path reaches at z_cap (ridge_host_reached_path), i.e. a
+  !> vertical path through the column reached; the layer cut by z_cap
   !> gets both, weighted by the shares of its height below and above z_cap and merged in (oy, ox) order.
   !> slant_path_reach must be finite and >= 0 (ridge_host_slant_reachable).
   pure subroutine ridge_host_capped_path_weights(n_layer, edges, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
@@ -481,8 +507,7 @@ contains
     end if
     ! Edges below z_cap (the layers 1 .. n_below - 1 whole, layer n_below up to z_cap), the rest above.
     n_below = count(edges < z_cap)
-    call ridge_host_path_weights(1, [z_cap, nearest(z_cap, 1.0_real64)], dx, dy, solar_zenith_angle, &
-        solar_beam_azimuth, top)
+    call ridge_host_reached_path(slant_path_reach, dx, dy, solar_beam_azimuth, top)
     n_top = size(top%ox)
     if (n_below > 0) then
       low_edges(1:n_below) = edges(1:n_below)
