@@ -10,6 +10,7 @@ from .locking import archive_in_use
 from .netcdf import read_result_flags, read_scene, scene_files
 from .pending import pending_keys
 from ..scenes.variables import missing_longwave_variables
+from .longwave_results import completed_longwave
 from .results import completed
 
 COLUMNS = ["file", "regime", "seed", "nx", "ny", "nz", "dx_m", "bands", "longwave", "results", "pending", "status"]
@@ -23,8 +24,9 @@ def list_archive(archive_dir):
     pandas.DataFrame
         Columns: file, regime, seed, nx, ny, nz, dx_m, bands, longwave ("yes" when the scene
         has the fields of longwave radiation: temperatures, humidity, surface emissivity; "no"
-        for files written before longwave support), results (solver@zenith/azimuth entries,
-        comma separated), pending (results of an interrupted run not yet merged:
+        for files written before longwave support), results (shortwave solver@zenith/azimuth
+        entries, then the longwave solver kinds stored, e.g. ``longwave_full_3d``, comma
+        separated), pending (results of an interrupted run not yet merged:
         run ``surrogate3d simulate`` again to merge them), status ("ok", or "unreadable: ..."
         or "invalid: ..." with the first problem).
     """
@@ -37,8 +39,9 @@ def list_archive(archive_dir):
                        nx=scene.sizes.get("x"), ny=scene.sizes.get("y"), nz=scene.sizes.get("z"),
                        dx_m=scene.attrs.get("dx_m"), bands=scene.sizes.get("band"),
                        longwave="no" if missing_longwave_variables(scene) else "yes")
-            done = completed(read_result_flags(path))
-            row.update(results=", ".join(f"{s}@{z:g}/{a:g}" for s, z, a in done), pending=len(pending_keys(path)))
+            flags = read_result_flags(path)
+            entries = [f"{s}@{z:g}/{a:g}" for s, z, a in completed(flags)] + completed_longwave(flags)
+            row.update(results=", ".join(entries), pending=len(pending_keys(path)))
         except (FormatError, OSError, ValueError, KeyError) as exc:
             row["status"] = f"unreadable: {exc}"
             rows.append(row)

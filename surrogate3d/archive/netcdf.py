@@ -16,6 +16,7 @@ from ..core.netcdf import check_format_version, open_dataset, write_dataset
 from ..errors import FormatError
 from ..scenes.model import annotate
 from ..scenes.validation import validate_scene
+from .longwave_results import LONGWAVE_FLAG
 from .results import strip_results
 
 SCENE_SUFFIX = ".nc"
@@ -82,13 +83,18 @@ def read_scene(path, validate=True, results=True):
 
 
 def read_result_flags(path):
-    """Only the stored-result flags of a scene file (``result_complete`` with its coordinates).
+    """Only the stored-result flags of a scene file (``result_complete`` and
+    ``longwave_result_complete`` with their coordinates).
 
-    Enough for :func:`surrogate3d.archive.results.completed` and ``has_result`` without reading
-    the result fields; an empty Dataset when the file holds no results.
+    Enough for :func:`surrogate3d.archive.results.completed`, ``has_result`` and their
+    longwave counterparts without reading the result fields; an empty Dataset when the
+    file holds no results.
     """
-    return open_dataset(path, what="scene file",
-                        keep=lambda ds: ds[["result_complete"]] if "result_complete" in ds else xr.Dataset())
+    def flags(ds):
+        names = [n for n in ("result_complete", LONGWAVE_FLAG) if n in ds]
+        return ds[names] if names else xr.Dataset()
+
+    return open_dataset(path, what="scene file", keep=flags)
 
 
 def scene_files(archive_dir):

@@ -13,7 +13,10 @@ write or merge its pending results.
 import contextlib
 from pathlib import Path
 
+from ..core.data_model import LONGWAVE_SOLVERS
+from ..core.longwave_result import is_longwave_result
 from ..core.netcdf import open_dataset, write_dataset
+from .longwave_results import insert_longwave_results
 from .netcdf import read_scene, write_scene
 from .results import insert_results, run_key
 
@@ -25,12 +28,17 @@ def pending_dir(scene_path):
 
 
 def write_pending(scene_path, result):
-    """Store one finished run result beside its scene file (atomically)."""
-    solver, zenith, azimuth = run_key(result)
+    """Store one finished run result beside its scene file (atomically): ``<solver>_<zenith>_<azimuth>.nc``
+    for a shortwave result, ``<longwave solver>.nc`` for a longwave one."""
+    if is_longwave_result(result):
+        name = f"{result.attrs['solver']}.nc"
+    else:
+        solver, zenith, azimuth = run_key(result)
+        name = f"{solver}_{zenith:.6f}_{azimuth:.6f}.nc"
     directory = pending_dir(scene_path)
     directory.mkdir(exist_ok=True)
     try:
-        return write_dataset(result, directory / f"{solver}_{zenith:.6f}_{azimuth:.6f}.nc")
+        return write_dataset(result, directory / name)
     except BaseException:
         with contextlib.suppress(OSError):  # not empty: it holds earlier results
             directory.rmdir()
@@ -46,9 +54,13 @@ def pending_files(scene_path):
 
 
 def pending_keys(scene_path):
-    """``(solver, zenith, azimuth)`` of every pending result of a scene."""
+    """``(solver, zenith, azimuth)`` of every pending result of a scene; zenith and azimuth
+    are None for a longwave result (it has no sun geometry)."""
     keys = []
     for path in pending_files(scene_path):
+        if path.stem in LONGWAVE_SOLVERS:
+            keys.append((path.stem, None, None))
+            continue
         solver, zenith, azimuth = path.stem.rsplit("_", 2)
         keys.append((solver, float(zenith), float(azimuth)))
     return keys
@@ -63,7 +75,13 @@ def merge_pending(scene_path):
     if files:
         results = [open_dataset(p, what="pending result") for p in files]
         scene = read_scene(scene_path)
-        write_scene(insert_results(scene, results), scene_path, validate=False)
+        longwave = [r for r in results if is_longwave_result(r)]
+        shortwave = [r for r in results if not is_longwave_result(r)]
+        if shortwave:
+            scene = insert_results(scene, shortwave)
+        if longwave:
+            scene = insert_longwave_results(scene, longwave)
+        write_scene(scene, scene_path, validate=False)
         for path in files:
             path.unlink(missing_ok=True)
     with contextlib.suppress(OSError):  # missing, or holding files of another run

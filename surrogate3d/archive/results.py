@@ -1,8 +1,9 @@
 """Run results inside scene files: one slot per (solver kind, sun geometry).
 
-In a scene file the results of all runs (:mod:`surrogate3d.core.run_result`) are stacked
-along two extra dimensions, ``solver`` and ``sun``, so that a result is found by label;
-see ``docs/archive-format.md``.
+In a scene file the results of all shortwave runs (:mod:`surrogate3d.core.run_result`)
+are stacked along two extra dimensions, ``solver`` and ``sun``, so that a result is found
+by label; see ``docs/archive-format.md``.  Longwave results have a stack of their own
+(:mod:`.longwave_results`), left unchanged here.
 """
 
 import numpy as np
@@ -11,6 +12,7 @@ import xarray as xr
 from ..core.data_model import COLUMN_FLUXES, OPTIONAL_COLUMN_FLUXES, SOLVERS
 from ..core.run_result import CELL_FIELDS, RUN_METADATA, domain_stderr_name, per_band_name, run_key, stderr_name
 from ..errors import FormatError, ValidationError
+from .longwave_results import strip_longwave_results
 
 STACK_DIMS = ("solver", "sun")
 SUN_TOLERANCE_DEG = 1e-6
@@ -25,7 +27,11 @@ def _result_variables(scene):
 
 
 def strip_results(scene):
-    """The scene without any stored results."""
+    """The scene without any stored results, shortwave or longwave."""
+    return strip_longwave_results(_strip_shortwave_results(scene))
+
+
+def _strip_shortwave_results(scene):
     out = scene.drop_vars(_result_variables(scene))
     return out.drop_vars([c for c in ("solver", "sun", "solar_zenith_angle", "solar_beam_azimuth")
                           if c in out.variables])
@@ -122,7 +128,7 @@ def insert_results(scene, results):
                                   f"(z={nz}, y={ny}, x={nx})")
         key = run_key(result)
         runs = [r for r in runs if not _same_slot(run_key(r), key)] + [result]
-    return _stack(strip_results(scene), runs)
+    return _stack(_strip_shortwave_results(scene), runs)
 
 
 def insert_result(scene, result):

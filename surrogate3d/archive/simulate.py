@@ -1,12 +1,15 @@
 """Build a benchmark archive: run every scene x sun geometry x solver kind, resumably.
 
-Work is split into tasks (one scene, one sun geometry, one solver kind).  Workers only
+Work is split into tasks (one scene, one sun geometry, one solver kind; a longwave task
+is one scene and one longwave solver kind, with no sun geometry).  Workers only
 compute; the calling process stores every finished result at once (atomically) beside
 its scene file and merges a scene's results into the scene file when its last task is
 done (:mod:`surrogate3d.archive.pending`), so a run that is killed loses at most the
 tasks in flight and the next run continues where it stopped.  Each task's seed is
 derived from the run seed and the task's identity, never from the order of execution,
-so 1 or N workers give the same numbers.
+so 1 or N workers give the same numbers.  Longwave tasks are added with
+``spectrum="longwave"`` or ``"both"``; the shortwave tasks and their seeds are the same
+whatever the spectrum.
 
 Runs started on one archive at the same time share the work
 (:mod:`surrogate3d.archive.locking`): a run claims each task before computing it, puts
@@ -30,12 +33,15 @@ from tqdm.auto import tqdm
 
 from .._workers import WorkerPool
 from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
-from ..core.data_model import SOLVERS
-from ..core.validation import check_bool, check_integer
+from ..core.data_model import LONGWAVE_SOLVERS, SOLVERS, SPECTRA
+from ..core.validation import check_bool, check_integer, check_number, check_option
 from ..errors import OutputError, ParameterError, Surrogate3DError
 from ..solvers.montecarlo import check_monte_carlo_options, solve_monte_carlo
+from ..scenes.longwave_fields import check_longwave_scene
+from ..scenes.longwave_optics import DEFAULT_RESOLUTION
 from ..solvers.sun import check_sun
 from .leftovers import remove_leftovers
+from .longwave_results import has_longwave_result
 from .locking import ArchiveLock
 from .netcdf import read_result_flags, read_scene, scene_files
 from .pending import merge_pending, pending_keys, write_pending
@@ -44,7 +50,7 @@ from .results import SUN_TOLERANCE_DEG, has_result
 
 @dataclass(frozen=True)
 class Task:
-    """One unit of work: a solver run for one scene at one sun geometry."""
+    """One unit of work: a solver run for one scene at one sun geometry (None for longwave solvers)."""
 
     path: str
     solver: str
@@ -53,12 +59,28 @@ class Task:
     seed: int
 
     @property
+    def longwave(self):
+        """True for a longwave solver kind (no sun geometry)."""
+        return self.solver in LONGWAVE_SOLVERS
+
+    @property
     def key(self):
         """The task's identity in the archive (what concurrent runs claim)."""
+        if self.longwave:
+            return f"{Path(self.path).name}|{self.solver}"
         return (f"{Path(self.path).name}|{self.solver}|{self.solar_zenith_angle:.6f}|"
                 f"{self.solar_beam_azimuth:.6f}")
 
+    @property
+    def label(self):
+        """Short description for the progress bar."""
+        if self.longwave:
+            return f"{Path(self.path).stem} {self.solver}"
+        return f"{Path(self.path).stem} {self.solver} {self.solar_zenith_angle:g} deg"
+
     def __str__(self):
+        if self.longwave:
+            return f"{Path(self.path).name} {self.solver}"
         return (f"{Path(self.path).name} {self.solver} at solar zenith {self.solar_zenith_angle:g} deg, "
                 f"beam azimuth {self.solar_beam_azimuth:g} deg")
 
@@ -73,6 +95,7 @@ class RunOptions:
     per_band: bool = False
     solar_constant: float = SOLAR_CONSTANT
     threads: int = None
+    longwave_resolution: float = DEFAULT_RESOLUTION
     extra: dict = field(default_factory=dict)
 
 
@@ -106,6 +129,8 @@ def check_run_options(photons, n_jobs, solver_options):
     for name, value in checked.items():
         setattr(options, name, value)
     options.per_band = check_bool("per_band", options.per_band)
+    options.longwave_resolution = check_number("longwave_resolution", options.longwave_resolution, 0.0, None,
+                                               low_open=True)
     return options, n_jobs
 
 
@@ -139,6 +164,14 @@ def task_seed(seed, path, zenith, azimuth):
     return int.from_bytes(hashlib.sha256(text.encode()).digest()[:7], "little")
 
 
+def longwave_task_seed(seed, path):
+    """Seed of a scene's longwave tasks from the run seed and the scene file's name (stable across
+    runs and machines); the longwave solver kinds of a scene share it, as the shortwave ones
+    share a sun geometry's seed."""
+    text = f"{seed}|{Path(path).name}|longwave"
+    return int.from_bytes(hashlib.sha256(text.encode()).digest()[:7], "little")
+
+
 def drawn_azimuth(seed, path, zenith):
     """A beam azimuth [degree, 0-360, 3 decimals] drawn from the run seed, the scene file's
     name and the zenith angle: each scene and zenith gets its own direction, the same in
@@ -151,6 +184,12 @@ def drawn_azimuth(seed, path, zenith):
 def run_task(task, options):
     """Compute one task; returns the run result (an xarray Dataset).  Runs in workers."""
     scene = read_scene(task.path, results=False)
+    if task.longwave:
+        from ..solvers.longwave_scene import solve_longwave_scene
+
+        return solve_longwave_scene(scene, task.solver, photons=options.photons, seed=task.seed,
+                                    resolution=options.longwave_resolution, batch_size=options.batch_size,
+                                    threads=options.threads, label=task.path)
     if task.solver == "two_stream":
         from ..solvers.two_stream import solve_scene
 
@@ -186,14 +225,19 @@ def _check_replaceable(path):
                           "(chattr -i) or move the file out of the archive")
 
 
-def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, lock=None):
+def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, lock=None, spectrum="shortwave"):
     """Validate the archive and the sun geometries; list the tasks still to do.
 
     Results an interrupted run left pending are merged first, and the temporary files of
-    killed runs are removed.
+    killed runs are removed.  With a longwave spectrum every scene must hold the longwave
+    fields; the first that does not stops the planning, before any work.
 
     Parameters
     ----------
+    spectrum : {"shortwave", "longwave", "both"}
+        Which tasks: those of ``solvers`` at every sun geometry, those of their longwave
+        counterparts (``longwave_<solver>``, one per scene; the sun geometries are then not
+        needed), or both.
     lock : surrogate3d.archive.locking.ArchiveLock, optional
         The archive's locks, the archive lock held by the caller (default: held here, shared,
         for the planning).
@@ -211,22 +255,28 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, l
     unknown = [s for s in solvers if s not in SOLVERS]
     if unknown or not solvers:
         raise ParameterError(f"solvers must be a non-empty selection of {', '.join(SOLVERS)}; got {list(solvers)}")
+    spectrum = check_option("spectrum", spectrum, SPECTRA, ParameterError)
     drawn = isinstance(azimuths, str)
-    if drawn and azimuths != "random":
-        raise ParameterError(f"azimuths must be a sequence of angles or 'random'; got {azimuths!r}")
-    if not zeniths or not azimuths:
-        raise ParameterError("at least one solar zenith angle and one beam azimuth are needed")
-    suns = [check_sun(z, 0.0 if drawn else a) for z in zeniths for a in ([0.0] if drawn else azimuths)]
+    suns = []
+    if spectrum != "longwave":
+        if drawn and azimuths != "random":
+            raise ParameterError(f"azimuths must be a sequence of angles or 'random'; got {azimuths!r}")
+        if not zeniths or not azimuths:
+            raise ParameterError("at least one solar zenith angle and one beam azimuth are needed")
+        suns = [check_sun(z, 0.0 if drawn else a) for z in zeniths for a in ([0.0] if drawn else azimuths)]
+    longwave_solvers = [f"longwave_{s}" for s in solvers] if spectrum != "shortwave" else []
     if lock is None:
         with ArchiveLock(archive_dir) as own:
             own.hold_archive(exclusive=False, what="planning")
-            return plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite, own)
+            return plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite, own, spectrum)
     remove_leftovers(archive_dir, lock)
     todo, done = [], 0
     for path in files:
         with lock.scene(path):
             merge_pending(path)  # results an interrupted run left behind
-        read_scene(path, results=False)  # every scene is validated before any work starts
+        scene = read_scene(path, results=False)  # every scene is validated before any work starts
+        if longwave_solvers:
+            check_longwave_scene(scene, label=str(path))
         stored = read_result_flags(path)
         tasks = []
         for zenith, azimuth in suns:
@@ -238,6 +288,11 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, l
                     done += 1
                     continue
                 tasks.append(Task(str(path), solver, zenith, azimuth, tseed))
+        for solver in longwave_solvers:
+            if not overwrite and has_longwave_result(stored, solver):
+                done += 1
+                continue
+            tasks.append(Task(str(path), solver, None, None, longwave_task_seed(seed, path)))
         if tasks:
             _check_replaceable(path)
         todo += tasks
@@ -246,9 +301,13 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, l
 
 def _is_done(task, lock):
     """True if the task's result is stored or pending (another run computed it)."""
+    if task.longwave:
+        with lock.scene(task.path):
+            return (any(solver == task.solver for solver, _, _ in pending_keys(task.path))
+                    or has_longwave_result(read_result_flags(task.path), task.solver))
     slot = (task.solar_zenith_angle, task.solar_beam_azimuth)
     with lock.scene(task.path):
-        if any(solver == task.solver and abs(z - slot[0]) < SUN_TOLERANCE_DEG and abs(a - slot[1]) < SUN_TOLERANCE_DEG
+        if any(solver == task.solver and z is not None and abs(z - slot[0]) < SUN_TOLERANCE_DEG and abs(a - slot[1]) < SUN_TOLERANCE_DEG
                for solver, z, a in pending_keys(task.path)):
             return True
         return has_result(read_result_flags(task.path), task.solver, *slot)
@@ -372,8 +431,9 @@ def _workers(options, n_jobs, scheduler, n_tasks):
     return WorkerPool(min(n_jobs, n_tasks), partial(run_task, options=options), describe=str)
 
 
-def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, photons=SIMULATE_PHOTONS, seed=0,
-                     n_jobs=1, scheduler=None, overwrite=False, quiet=False, **solver_options):
+def simulate_archive(archive_dir, zeniths=None, azimuths=(0.0,), *, solvers=SOLVERS, spectrum="shortwave",
+                     photons=SIMULATE_PHOTONS, seed=0, n_jobs=1, scheduler=None, overwrite=False, quiet=False,
+                     **solver_options):
     """Run the benchmark solvers on every scene of an archive and store the results.
 
     Several runs may fill one archive at the same time: they share the work (see the
@@ -384,13 +444,20 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
     archive_dir : str or Path
         Directory of scene files; each result is written into its scene file.
     zeniths, azimuths : sequence of float
-        Solar zenith angles [degree, 0-90) and beam azimuths [degree]; every combination runs.
+        Solar zenith angles [degree, 0-90) and beam azimuths [degree]; every combination runs
+        (shortwave only: not needed with ``spectrum="longwave"``).
         ``azimuths="random"`` gives every scene and zenith one beam azimuth of its own
         (:func:`drawn_azimuth`), so that a scene set meets the sun from all sides.
     solvers : sequence of str
-        Solver kinds among ``full_3d``, ``independent_column``, ``two_stream``.
+        Solver kinds among ``full_3d``, ``independent_column``, ``two_stream``; a longwave
+        spectrum runs their longwave counterparts ``longwave_<solver>``.
+    spectrum : {"shortwave", "longwave", "both"}
+        Shortwave results (one per solver and sun geometry), longwave results (one per
+        longwave solver kind and scene; every scene needs the longwave fields, else a
+        one-line error names the scene and the missing variable before anything is
+        computed), or both.  The shortwave results are the same whatever the spectrum.
     photons : int
-        Photons per Monte Carlo run.
+        Photons per Monte Carlo run, shortwave and longwave.
     seed : int
         Run seed; each task derives its own seed from it and its identity.
     n_jobs : int
@@ -405,8 +472,11 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
         No progress bar.
     **solver_options
         ``batch_size``, ``rays_per_column``, ``per_band``, ``solar_constant``, ``threads``
-        (per worker with ``n_jobs > 1`` or a scheduler, default 1 there) and any further
-        keyword of :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.
+        (per worker with ``n_jobs > 1`` or a scheduler, default 1 there),
+        ``longwave_resolution`` (widest spectral interval of the longwave gas absorption
+        [m-1], default 1000 = 10 cm-1) and any further keyword of
+        :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.  ``batch_size`` and
+        ``threads`` apply to the longwave Monte Carlo too; the others are shortwave only.
 
     Returns
     -------
@@ -422,7 +492,7 @@ def simulate_archive(archive_dir, zeniths, azimuths=(0.0,), *, solvers=SOLVERS, 
     archive_dir = _check_archive_dir(archive_dir)
     with ArchiveLock(archive_dir) as lock:
         lock.hold_archive(exclusive=overwrite, what="simulate --overwrite" if overwrite else "simulate")
-        todo, done = plan_tasks(archive_dir, zeniths, azimuths, list(solvers), seed, overwrite, lock)
+        todo, done = plan_tasks(archive_dir, zeniths, azimuths, list(solvers), seed, overwrite, lock, spectrum)
         counts = {"computed": 0, "skipped": done, "by_other_runs": 0, "scenes": len({t.path for t in todo})}
         if todo:
             _run(todo, _workers(options, n_jobs, scheduler, len(todo)), lock, overwrite, quiet, counts)
@@ -460,7 +530,7 @@ def _run(todo, workers, lock, overwrite, quiet, counts):
                 write_pending(task.path, result)
             lock.release(task.key)
             counts["computed"] += 1
-            bar.set_postfix_str(f"{Path(task.path).stem} {task.solver} {task.solar_zenith_angle:g} deg")
+            bar.set_postfix_str(task.label)
             settled(task)
     except BaseException:
         workers.close(kill=True)

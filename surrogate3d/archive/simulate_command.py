@@ -1,13 +1,14 @@
-"""``surrogate3d simulate``: fill an archive with 3D, independent-column and two-stream results."""
+"""``surrogate3d simulate``: fill an archive with 3D, independent-column and two-stream results,
+shortwave, longwave or both."""
 
 from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
-from ..core.data_model import SOLVERS
+from ..core.data_model import SOLVERS, SPECTRA
 
 #: Parameters of simulate_archive as the options that set them, for messages.
 FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_size": "--batch-size",
          "rays_per_column": "--rays-per-column", "threads": "--threads", "solar_constant": "--solar-constant",
          "solar_zenith_angle": "--zenith", "solar_beam_azimuth": "--azimuth", "scheduler": "--scheduler",
-         "solvers": "--solvers"}
+         "solvers": "--solvers", "spectrum": "--spectrum", "longwave_resolution": "--longwave-resolution"}
 
 
 def register(sub):
@@ -17,8 +18,11 @@ def register(sub):
                     "files. Finished results are kept: a run that is stopped continues where it stopped. "
                     "Runs started on one archive at the same time share the work.")
     p.add_argument("archive_dir", help="archive directory of scene files (*.nc)")
+    p.add_argument("--spectrum", choices=SPECTRA, default="shortwave",
+                   help="shortwave results (one per solver and sun geometry), longwave results (one per "
+                        "solver and scene, no sun; needs scenes with temperatures) or both (default: shortwave)")
     p.add_argument("--zenith", type=float, nargs="+", default=[30.0], metavar="DEG",
-                   help="solar zenith angles in degrees, 0 <= zenith < 90 (default: 30)")
+                   help="solar zenith angles in degrees, 0 <= zenith < 90 (default: 30; shortwave only)")
     p.add_argument("--azimuth", type=float, nargs="+", default=[0.0], metavar="DEG",
                    help="directions of travel of the direct beam in degrees, counterclockwise from +x, "
                         "0 <= azimuth < 360 (default: 0)")
@@ -26,7 +30,10 @@ def register(sub):
                    help="instead of --azimuth, one beam azimuth per scene and zenith, drawn from the run seed "
                         "and the scene's file name")
     p.add_argument("--photons", type=int, default=SIMULATE_PHOTONS,
-                   help=f"photons per Monte Carlo run (default: {SIMULATE_PHOTONS})")
+                   help=f"photons per Monte Carlo run, shortwave and longwave (default: {SIMULATE_PHOTONS})")
+    p.add_argument("--longwave-resolution", type=float, metavar="CM-1",
+                   help="widest spectral interval of the longwave gas absorption in cm-1 (default: 10, "
+                        "299 intervals)")
     p.add_argument("--seed", type=int, default=0, help="run seed (default: 0)")
     p.add_argument("--solvers", nargs="+", choices=SOLVERS, default=list(SOLVERS), help="solver kinds to run")
     p.add_argument("--jobs", type=int, default=1, help="local worker processes (default: 1)")
@@ -59,15 +66,18 @@ def _check_azimuths(azimuths):
 
 
 def run(args):
+    from ..scenes.longwave_optics import DEFAULT_RESOLUTION, PER_CM
     from .simulate import simulate_archive
 
     _check_azimuths(args.azimuth)
     summary = simulate_archive(
         args.archive_dir, args.zenith, "random" if args.random_azimuth else args.azimuth, solvers=args.solvers,
-        photons=args.photons, seed=args.seed,
+        spectrum=args.spectrum, photons=args.photons, seed=args.seed,
         n_jobs=args.jobs, scheduler=args.scheduler, overwrite=args.overwrite, quiet=args.quiet,
         batch_size=args.batch_size, rays_per_column=args.rays_per_column, threads=args.threads,
-        per_band=args.per_band, solar_constant=args.solar_constant)
+        per_band=args.per_band, solar_constant=args.solar_constant,
+        longwave_resolution=DEFAULT_RESOLUTION if args.longwave_resolution is None
+        else args.longwave_resolution * PER_CM)
     shared = (f", {summary['by_other_runs']} computed meanwhile by another run on the archive"
               if summary["by_other_runs"] else "")
     print(f"simulate: {summary['computed']} runs computed, {summary['skipped']} already stored{shared}, "

@@ -18,6 +18,12 @@ from collections import namedtuple
 #: The solver kinds, in the order results are stored.
 SOLVERS = ("full_3d", "independent_column", "two_stream")
 
+#: The longwave (thermal) solver kinds, in the order results are stored: the longwave
+#: counterpart of each of :data:`SOLVERS` (``docs/archive-format.md``).
+LONGWAVE_SOLVERS = tuple(f"longwave_{solver}" for solver in SOLVERS)
+#: What ``simulate`` runs: the solar spectrum, the thermal one, or both.
+SPECTRA = ("shortwave", "longwave", "both")
+
 #: Column fluxes every run result holds (positive magnitudes) and their long names.
 COLUMN_FLUXES = {
     "toa_upward_flux": "upward shortwave flux at the top of the domain",
@@ -49,7 +55,8 @@ BASELINES = {
 #: Scene files (``docs/archive-format.md``).  1.2 added the optional longwave fields
 #: (``specific_humidity``, ``surface_temperature``, ``surface_longwave_emissivity``) and
 #: ``air_temperature`` per cell; a 1.1 file's layer profile of ``air_temperature`` still reads.
-SCENE_FORMAT_VERSION = "1.2"
+#: 1.3 added the optional longwave results (``longwave_*`` on ``longwave_solver``).
+SCENE_FORMAT_VERSION = "1.3"
 #: Pair tables (``docs/pairs-format.md``).
 PAIRS_FORMAT_VERSION = "1.1"
 #: Feature recipes (and the feature definitions they name).

@@ -112,13 +112,15 @@ def _scene_set(args):
 
 def _stored_results(path):
     """Results a scene file holds (stored and pending), or None if it cannot be read."""
+    from ..archive.longwave_results import completed_longwave
     from ..archive.netcdf import read_result_flags
     from ..archive.pending import pending_keys
     from ..archive.results import completed
     from ..errors import FormatError
 
     try:
-        return len(completed(read_result_flags(path))) + len(pending_keys(path))
+        flags = read_result_flags(path)
+        return len(completed(flags)) + len(completed_longwave(flags)) + len(pending_keys(path))
     except FormatError:
         return None
 

@@ -36,7 +36,7 @@ def test_longwave_fields_are_stored_and_read_back(tmp_path, scene):
     path = write_scene(scene, tmp_path / "s.nc")
     back = read_scene(path)
     xr.testing.assert_identical(back, scene.assign_attrs(format_version=SCENE_FORMAT_VERSION))
-    assert back.attrs["format_version"] == "1.2"
+    assert back.attrs["format_version"] == "1.3"
     for name in NEW_FIELDS + ("air_temperature",):
         assert back[name].attrs["units"] and back[name].attrs["standard_name"] == name
     assert set(np.unique(back["surface_longwave_emissivity"].values)) == {0.98, 0.99}
