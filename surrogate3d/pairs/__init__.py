@@ -11,7 +11,7 @@ from .recipe import RECIPE_VERSION, FeatureRecipe, default_recipe
 _LAZY = {
     "build_pairs": "build", "TARGETS": "build", "FORMAT_VERSION": "build",
     "assemble_host_fields": "host_fields", "scene_host_fields": "coarsen", "coarsen_result": "coarsen",
-    "host_factors": "coarsen", "allowed_host_resolutions": "coarsen",
+    "host_factors": "coarsen", "allowed_host_resolutions": "coarsen", "build_longwave_pairs": "longwave_pairs",
 }
 
 __all__ = ["FEATURES", "RECIPE_VERSION", "FeatureRecipe", "compute_features", "default_recipe",

@@ -19,10 +19,14 @@ def register(sub):
     p.add_argument("--host-layer-edges", type=float, nargs="+", default=None, metavar="M",
                    help="the host model's layer edges in m, increasing from the surface to at least the scene top, "
                         "for the per-layer (heating-rate) targets (default: every scene's own layers)")
+    p.add_argument("--spectrum", default="shortwave", metavar="{shortwave,longwave}",
+                   help="shortwave: the table above (default); longwave: one row per scene and host column with "
+                        "both longwave_full_3d and longwave_independent_column results, targets in W m-2 "
+                        "(docs/pairs-format.md, 'Longwave pairs'); takes only --host-resolution and --quiet")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no notices")
     p.set_defaults(func=run, interrupted="nothing was written",
                    parameter_flags={"host_resolutions": "--host-resolution", "host_resolution": "--host-resolution",
-                                    "host_layer_edges": "--host-layer-edges"})
+                                    "host_layer_edges": "--host-layer-edges", "spectrum": "--spectrum"})
 
 
 def run(args):
@@ -31,6 +35,10 @@ def run(args):
     from .build import build_pairs
     from .recipe import FeatureRecipe
 
+    from .longwave_pairs import check_spectrum
+
+    if check_spectrum(args.spectrum) == "longwave":
+        return _run_longwave(args)
     out = check_output_file(args.out, "--out")
     recipe = FeatureRecipe.read(args.recipe) if args.recipe else None
     pairs = build_pairs(args.archive_dir, args.host_resolution, recipe=recipe, quiet=args.quiet,
@@ -47,3 +55,30 @@ def run(args):
               f"scene(s) at host resolution(s) {', '.join(f'{r:g}' for r in args.host_resolution)} m to {out}"
               + (f"; skipped {len(skipped)} scene/sun geometr{'y' if len(skipped) == 1 else 'ies'} "
                  "without both full_3d and independent_column results" if skipped else ""))
+
+
+def _run_longwave(args):
+    from .._outputs import check_output_file, staged_file
+    from ..core.netcdf import write_dataset
+    from ..errors import ParameterError
+    from .longwave_pairs import build_longwave_pairs
+
+    given = [flag for flag, value in (("--recipe", args.recipe), ("--host-fluxes", args.host_fluxes),
+                                      ("--host-layer-edges", args.host_layer_edges)) if value is not None]
+    if given:
+        raise ParameterError(f"{', '.join(given)} apply to shortwave pairs only; --spectrum longwave has a fixed "
+                             "feature set, host fluxes from the longwave_two_stream result and no per-layer "
+                             "variables")
+    out = check_output_file(args.out, "--out")
+    pairs = build_longwave_pairs(args.archive_dir, args.host_resolution, quiet=args.quiet)
+    with staged_file(out) as staging:
+        write_dataset(pairs, staging)
+    if not args.quiet:
+        import json
+
+        skipped = json.loads(pairs.attrs["skipped"])
+        scenes = len(set(pairs["scene"].values.tolist()))
+        print(f"wrote {pairs.sizes['sample']} longwave samples x {pairs.sizes['feature']} features from {scenes} "
+              f"scene(s) at host resolution(s) {', '.join(f'{r:g}' for r in args.host_resolution)} m to {out}"
+              + (f"; skipped {len(skipped)} scene(s) without both longwave_full_3d and longwave_independent_column "
+                 "results" if skipped else ""))

@@ -1,0 +1,368 @@
+"""The longwave pair table: one row per scene, host resolution and host column (no sun).
+
+See ``docs/pairs-format.md``, "Longwave pairs".  :func:`build_longwave_pairs` reads an
+archive directory, and for every scene holding both a ``longwave_full_3d`` and a
+``longwave_independent_column`` result coarse-grains the two to host columns; the
+targets are 3D minus independent column of the longwave column fields in W m-2, and
+:func:`longwave_host_features` computes what a host can know about its column.
+
+The longwave features need host fields the shortwave feature library
+(:mod:`surrogate3d.pairs.features`) does not have (air temperature per layer, surface
+temperature and emissivity, the host's longwave fluxes), so they live here instead of
+its registry; the cloud geometry and the neighbourhood windows are the library's own
+functions.
+"""
+
+import hashlib
+import json
+import sys
+
+import numpy as np
+import xarray as xr
+from tqdm import tqdm
+
+from .. import __version__
+from ..archive.longwave_results import completed_longwave, select_longwave_result
+from ..archive.netcdf import read_scene, scene_files
+from ..core.longwave_result import LONGWAVE_COLUMN_FLUXES, longwave_stderr_name
+from ..core.validation import check_option
+from ..errors import FormatError, ParameterError
+from ..scenes.model import layer_thickness
+from ..scenes.planck import STEFAN_BOLTZMANN
+from . import features as library
+from .coarsen import block_mean, block_standard_error, host_factors, scene_host_fields
+from .recipe import DEFAULT_PARAMETERS
+
+#: Format version of the longwave pair table.
+LONGWAVE_PAIRS_FORMAT_VERSION = "1.0"
+
+#: Targets of the longwave table: the longwave column fields [W m-2].
+LONGWAVE_TARGETS = tuple(LONGWAVE_COLUMN_FLUXES)
+
+#: Spectra ``surrogate3d pairs --spectrum`` accepts.
+SPECTRA = ("shortwave", "longwave")
+
+#: Neighbourhood radii [m] of the neighbour cloud fraction: the shortwave recipe's defaults.
+NEIGHBOUR_RADII = tuple(DEFAULT_PARAMETERS["neighbour_radii"])
+
+#: Host feature name -> (units, meaning), in column order (per-radius ones expanded).
+LONGWAVE_FEATURES = {
+    "cloud_fraction": ("1", "vertically projected cloud fraction of the host column"),
+    "cloud_base_height": ("m", "bottom edge of the lowest cloudy host layer; 0 in clear columns"),
+    "cloud_top_height": ("m", "top edge of the highest cloudy host layer; 0 in clear columns"),
+    "cloud_base_air_temperature": ("K", "air temperature at cloud_base_height (layer temperatures interpolated "
+                                        "linearly in height)"),
+    "cloud_top_air_temperature": ("K", "air temperature at cloud_top_height"),
+    "cloud_side_area_per_area": ("1", "cloud_edge_length times (cloud_top_height - cloud_base_height): area of "
+                                      "cloud sides per unit horizontal area"),
+    **{library.column_name("neighbour_mean_cloud_fraction", r): (
+        "1", f"mean cloud fraction over the window reaching {r:g} m beyond the column") for r in NEIGHBOUR_RADII},
+    "liquid_water_path": ("g m-2", "column liquid water path, host-column mean"),
+    **{f"host_{flux}": ("W m-2", f"the host's independent-column {flux.removeprefix('longwave_').replace('_', ' ')}"
+                                 " (longwave_two_stream result, host-column mean)") for flux in LONGWAVE_TARGETS},
+    "surface_temperature": ("K", "surface (skin) temperature, host-column mean"),
+    "surface_longwave_emissivity": ("1", "broadband longwave surface emissivity, host-column mean"),
+}
+
+_TARGET_VARS = {
+    "target_value": "3D minus independent-column longwave field, host-column mean",
+    "target_standard_error": "Monte Carlo standard error of target_value",
+    "independent_column_flux": "independent-column longwave field, host-column mean",
+    "independent_column_flux_standard_error": "Monte Carlo standard error of independent_column_flux",
+    "full_3d_flux": "3D longwave field, host-column mean",
+    "full_3d_flux_standard_error": "Monte Carlo standard error of full_3d_flux",
+}
+_SAMPLE_META = {
+    "scene": ("-", "scene identifier (scene file stem)"),
+    "regime": ("-", "cloud regime of the scene"),
+    "seed": ("1", "random seed of the scene"),
+    "host_resolution": ("m", "host column size (dx = dy)"),
+    "host_ix": ("1", "host column index along x"),
+    "host_iy": ("1", "host column index along y"),
+    "host_nx": ("1", "host grid size along x of this scene at this resolution"),
+    "host_ny": ("1", "host grid size along y of this scene at this resolution"),
+    "cloud_fraction": ("1", "total (vertically projected) cloud fraction of the host column"),
+    "surface_temperature": ("K", "surface temperature of the host column (host-column mean)"),
+    "reference_flux": ("W m-2", "sigma T_s^4 of the host column's surface temperature, for normalising"),
+}
+
+
+def check_spectrum(spectrum):
+    """``spectrum`` if it is ``"shortwave"`` or ``"longwave"``; ParameterError otherwise."""
+    return check_option("spectrum", spectrum, SPECTRA)
+
+
+def air_temperature_at(z_edge, layer_temperature, height):
+    """Air temperature [K] at ``height``, interpolated linearly in height between layer centres.
+
+    Beyond the lowest and highest layer centre the line through the two nearest centres
+    is extended (a lapse rate holds to the surface); one layer gives its own temperature.
+
+    Parameters
+    ----------
+    z_edge : ndarray (nz + 1,)
+        Layer edge heights [m].
+    layer_temperature : ndarray (nz, ny, nx)
+        Air temperature of each host layer [K].
+    height : ndarray (ny, nx)
+        Height in each column [m].
+
+    Returns
+    -------
+    ndarray (ny, nx)
+
+    Examples
+    --------
+    >>> t = np.array([285.0, 275.0])[:, None, None] * np.ones((2, 1, 1))
+    >>> float(air_temperature_at(np.array([0.0, 1000.0, 2000.0]), t, np.array([[0.0]]))[0, 0])
+    290.0
+    """
+    centre = 0.5 * (z_edge[1:] + z_edge[:-1])
+    t = np.asarray(layer_temperature, dtype=np.float64)
+    if centre.size == 1:
+        return np.broadcast_to(t[0], np.shape(height)).copy()
+    # Index k of the lower centre of the bracketing pair, clamped so the ends extrapolate.
+    k = np.clip(np.searchsorted(centre, height) - 1, 0, centre.size - 2)
+    lower = np.take_along_axis(t, k[None], axis=0)[0]
+    upper = np.take_along_axis(t, k[None] + 1, axis=0)[0]
+    weight = (height - centre[k]) / (centre[k + 1] - centre[k])
+    return lower + weight * (upper - lower)
+
+
+def longwave_host_fields(scene, host_resolution):
+    """Host fields of a scene for the longwave features.
+
+    Parameters
+    ----------
+    scene : xarray.Dataset
+        A scene with the longwave fields (``docs/scene-generator.md``).
+    host_resolution : float
+        Host column size [m].
+
+    Returns
+    -------
+    dict
+        The keys of :func:`surrogate3d.pairs.coarsen.scene_host_fields` plus, host-column
+        means, ``layer_air_temperature`` (nz, Ny, Nx) [K], ``surface_temperature`` [K],
+        ``surface_longwave_emissivity`` [1] and ``liquid_water_path`` [g m-2] (Ny, Nx).
+    """
+    fy, fx = host_factors(scene, host_resolution)
+    fields = scene_host_fields(scene, host_resolution)
+    dz = layer_thickness(scene)
+    lwp = np.einsum("zyx,z->yx", scene["liquid_water_content"].values, dz) * 1000.0  # kg m-2 -> g m-2
+    fields.update({
+        "layer_air_temperature": block_mean(scene["air_temperature"].values, fy, fx),
+        "surface_temperature": block_mean(scene["surface_temperature"].values, fy, fx),
+        "surface_longwave_emissivity": block_mean(scene["surface_longwave_emissivity"].values, fy, fx),
+        "liquid_water_path": block_mean(lwp, fy, fx),
+    })
+    return fields
+
+
+def longwave_host_features(fields, host_fluxes):
+    """The longwave features of :data:`LONGWAVE_FEATURES` from host fields.
+
+    Parameters
+    ----------
+    fields : dict
+        :func:`longwave_host_fields`.
+    host_fluxes : dict of str -> ndarray (Ny, Nx)
+        The host's independent-column longwave fields [W m-2], keys :data:`LONGWAVE_TARGETS`.
+
+    Returns
+    -------
+    dict of str -> ndarray (Ny, Nx)
+        Keys in the order of :data:`LONGWAVE_FEATURES`.
+    """
+    base = library.cloud_base_height(fields)
+    top = library.cloud_top_height(fields)
+    z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
+    out = {
+        "cloud_fraction": library.cloud_fraction(fields),
+        "cloud_base_height": base,
+        "cloud_top_height": top,
+        "cloud_base_air_temperature": air_temperature_at(z_edge, fields["layer_air_temperature"], base),
+        "cloud_top_air_temperature": air_temperature_at(z_edge, fields["layer_air_temperature"], top),
+        # Edge length per area times the cloud's depth: the sides of a column of cloud
+        # (gaps between separate layers count as cloud; the host knows no better).
+        "cloud_side_area_per_area": library.cloud_edge_length(fields) * (top - base),
+    }
+    for radius in NEIGHBOUR_RADII:
+        out[library.column_name("neighbour_mean_cloud_fraction", radius)] = \
+            library.neighbour_mean_cloud_fraction(fields, float(radius))
+    out["liquid_water_path"] = np.asarray(fields["liquid_water_path"], dtype=np.float64)
+    out.update({f"host_{flux}": np.asarray(host_fluxes[flux], dtype=np.float64) for flux in LONGWAVE_TARGETS})
+    out["surface_temperature"] = np.asarray(fields["surface_temperature"], dtype=np.float64)
+    out["surface_longwave_emissivity"] = np.asarray(fields["surface_longwave_emissivity"], dtype=np.float64)
+    return out
+
+
+def coarsen_longwave_result(result, fy, fx):
+    """Host-column means of a longwave result's column fields and their standard errors [W m-2].
+
+    The standard error of a block mean is ``sqrt(sum se^2) / n``, as if the columns'
+    Monte Carlo errors were independent (the results hold no batch values to do better).
+    """
+    out = {}
+    for flux in LONGWAVE_TARGETS:
+        out[flux] = block_mean(result[flux].values, fy, fx)
+        out[longwave_stderr_name(flux)] = block_standard_error(result[longwave_stderr_name(flux)].values, fy, fx)
+    return out
+
+
+def _two_stream(scene, full):
+    """The scene's longwave_two_stream result, computed (at the 3D run's spectral resolution) when not stored."""
+    if "longwave_two_stream" in completed_longwave(scene):
+        return select_longwave_result(scene, "longwave_two_stream")
+    from ..solvers.longwave_scene import solve_longwave_scene
+
+    return solve_longwave_scene(scene, "longwave_two_stream",
+                                resolution=float(full["longwave_run_spectral_resolution"]))
+
+
+def _block(scene, name, resolution, full, ica, two_stream):
+    fy, fx = host_factors(scene, resolution)
+    fields = longwave_host_fields(scene, resolution)
+    c3d, cica, host = (coarsen_longwave_result(r, fy, fx) for r in (full, ica, two_stream))
+    ny, nx = fields["total_cloud_fraction"].shape
+    n = ny * nx
+    features = longwave_host_features(fields, host)
+
+    def stack(get):
+        return np.stack([np.asarray(get(t)).reshape(n) for t in LONGWAVE_TARGETS], axis=1)
+
+    se = longwave_stderr_name
+    return {
+        "features": np.stack([features[f].reshape(n) for f in LONGWAVE_FEATURES], axis=1),
+        "target_value": stack(lambda t: c3d[t] - cica[t]),
+        "target_standard_error": stack(lambda t: np.hypot(c3d[se(t)], cica[se(t)])),
+        "independent_column_flux": stack(lambda t: cica[t]),
+        "independent_column_flux_standard_error": stack(lambda t: cica[se(t)]),
+        "full_3d_flux": stack(lambda t: c3d[t]),
+        "full_3d_flux_standard_error": stack(lambda t: c3d[se(t)]),
+        "scene": np.full(n, name, dtype=object),
+        "regime": np.full(n, str(scene.attrs.get("regime", "")), dtype=object),
+        "seed": np.full(n, int(scene.attrs.get("seed", -1)), dtype=np.int64),
+        "host_resolution": np.full(n, float(resolution)),
+        "host_ix": np.tile(np.arange(nx, dtype=np.int32), ny),
+        "host_iy": np.repeat(np.arange(ny, dtype=np.int32), nx),
+        "host_nx": np.full(n, nx, dtype=np.int32),
+        "host_ny": np.full(n, ny, dtype=np.int32),
+        "cloud_fraction": features["cloud_fraction"].reshape(n),
+        "surface_temperature": features["surface_temperature"].reshape(n),
+        "reference_flux": STEFAN_BOLTZMANN * features["surface_temperature"].reshape(n) ** 4,
+    }
+
+
+def _fingerprint(digest, name, scene):
+    digest.update(name.encode())
+    for solver in completed_longwave(scene):
+        result = select_longwave_result(scene, solver)
+        digest.update(solver.encode())
+        for flux in LONGWAVE_TARGETS:
+            for var in (flux, longwave_stderr_name(flux)):
+                digest.update(np.ascontiguousarray(result[var].values, dtype=np.float64).tobytes())
+
+
+def build_longwave_pairs(archive_dir, host_resolutions, quiet=False):
+    """Build the longwave pair table of an archive directory.
+
+    Parameters
+    ----------
+    archive_dir : str or Path
+        Directory of scene files with stored longwave results.
+    host_resolutions : float or sequence of float
+        Host column sizes [m], whole multiples of each scene's cell size that divide its
+        domain.
+    quiet : bool
+        No progress bar and no notices of skipped scenes on stderr.
+
+    Returns
+    -------
+    xarray.Dataset
+        The table of ``docs/pairs-format.md``, "Longwave pairs"; ``attrs["skipped"]``
+        lists (JSON) the scene files left out for lack of a ``longwave_full_3d`` or
+        ``longwave_independent_column`` result.
+
+    Raises
+    ------
+    surrogate3d.errors.FormatError
+        The directory is missing or holds no scene files, or no scene has both results.
+    surrogate3d.errors.ParameterError
+        Bad host resolutions (the message lists the allowed values).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from surrogate3d.archive import insert_longwave_results, write_scene
+    >>> from surrogate3d.scenes.generator import generate_scene
+    >>> from surrogate3d.solvers.longwave_scene import solve_longwave_scene
+    >>> scene = generate_scene("scattered_cumulus", 1, nx=4, ny=4, nz=3)
+    >>> runs = [solve_longwave_scene(scene, kind, photons=200, resolution=50000.0)
+    ...         for kind in ("longwave_full_3d", "longwave_independent_column")]
+    >>> archive = Path(tempfile.mkdtemp())
+    >>> _ = write_scene(insert_longwave_results(scene, runs), archive / "s.nc")
+    >>> pairs = build_longwave_pairs(archive, [2.0 * scene.attrs["dx_m"]], quiet=True)
+    >>> pairs.sizes["sample"], pairs.sizes["target"], str(pairs["target_value"].attrs["units"])
+    (4, 5, 'W m-2')
+    """
+    from .build import _check_resolutions
+
+    resolutions = _check_resolutions(host_resolutions)
+    files = scene_files(archive_dir)
+    if not files:
+        raise FormatError(f"archive directory {str(archive_dir)!r} holds no scene files (*.nc)")
+    digest = hashlib.sha256()
+    blocks, skipped = [], []
+    for path in tqdm(files, desc="longwave pairs", unit="scene", disable=quiet, file=sys.stderr):
+        scene = read_scene(path)
+        _fingerprint(digest, path.name, scene)
+        missing = [s for s in ("longwave_full_3d", "longwave_independent_column")
+                   if s not in completed_longwave(scene)]
+        if missing:
+            skipped.append(f"{path.name}: lacks {' and '.join(missing)} result(s)")
+            if not quiet:
+                tqdm.write(f"skipped {skipped[-1]}", file=sys.stderr)
+            continue
+        for resolution in resolutions:
+            try:
+                host_factors(scene, resolution)
+            except ParameterError as exc:
+                raise ParameterError(f"scene {path.stem!r}: {exc}") from None
+        full = select_longwave_result(scene, "longwave_full_3d")
+        ica = select_longwave_result(scene, "longwave_independent_column")
+        two_stream = _two_stream(scene, full)
+        for resolution in resolutions:
+            blocks.append(_block(scene, path.stem, resolution, full, ica, two_stream))
+    if not blocks:
+        raise FormatError(f"archive directory {str(archive_dir)!r} has no scene with both longwave_full_3d and "
+                          f"longwave_independent_column results; " + "; ".join(skipped))
+    return _assemble(blocks, digest.hexdigest(), skipped, resolutions)
+
+
+def _assemble(blocks, fingerprint, skipped, resolutions):
+    data = {key: np.concatenate([b[key] for b in blocks]) for key in blocks[0]}
+    ds = xr.Dataset(coords={"feature": ("feature", np.array(list(LONGWAVE_FEATURES), dtype=object),
+                                        {"long_name": "longwave feature name (docs/pairs-format.md)"}),
+                            "target": ("target", np.array(LONGWAVE_TARGETS, dtype=object),
+                                       {"long_name": "longwave correction target"})})
+    ds["features"] = (("sample", "feature"), data.pop("features"),
+                      {"units": json.dumps([u for u, _ in LONGWAVE_FEATURES.values()]),
+                       "long_name": "longwave feature matrix"})
+    for name, long_name in _TARGET_VARS.items():
+        ds[name] = (("sample", "target"), data.pop(name), {"units": "W m-2", "long_name": long_name})
+    for name, (units, long_name) in _SAMPLE_META.items():
+        attrs = {"long_name": long_name} if units == "-" else {"units": units, "long_name": long_name}
+        ds[name] = (("sample",), data.pop(name), attrs)
+    ds.attrs.update({
+        "format_version": LONGWAVE_PAIRS_FORMAT_VERSION,
+        "Conventions": "CF-1.10",
+        "spectrum": "longwave",
+        "archive_fingerprint": fingerprint,
+        "host_resolutions": json.dumps(resolutions),
+        "host_fluxes": "longwave_two_stream",
+        "skipped": json.dumps(skipped),
+        "source": f"surrogate3d {__version__} pairs --spectrum longwave",
+    })
+    return ds
