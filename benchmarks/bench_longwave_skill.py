@@ -28,7 +28,9 @@ floor ``sqrt(mean(se^2))`` and the best reachable skill ``1 - floor / RMSE(no co
 the skill against the noise-free target estimated by removing the noise variance from both
 mean squares (held-out noise is independent of the predictions of models trained on other
 scenes); the domain-mean 3D-minus-independent-column signal per regime; the permutation
-importances of the boosted model on the held-out scenes (top 8).
+importances of the boosted model on the held-out scenes (top 8); the held-out RMSE per
+regime; and, harder, the boosted model trained without each regime in turn and scored on
+all scenes of that regime.
 
 With ``--workdir`` the simulated scenes are kept: a second run reuses them (``simulate`` keeps finished
 results), so the learning step can be repeated alone.
@@ -128,6 +130,12 @@ def rmse(values):
     return float(np.sqrt(np.mean(np.square(values))))
 
 
+def boosted_model(args):
+    """The boosted-trees regressor with the fixed setting of ``args``."""
+    return HistGradientBoostingRegressor(max_iter=args.max_iter, max_leaf_nodes=args.max_leaf_nodes,
+                                         learning_rate=args.learning_rate, random_state=0)
+
+
 def learn(pairs, args):
     """Fit ridge and boosted trees on the training scenes; figures on the held-out scenes."""
     split = split_scenes(pairs, args.held_out_fraction, seed=args.split_seed)
@@ -140,8 +148,7 @@ def learn(pairs, args):
     x_train, y_train, x_test, y_test = features[~held], target[~held], features[held], target[held]
 
     ridge = make_pipeline(StandardScaler(), Ridge(alpha=args.ridge_alpha)).fit(x_train, y_train)
-    boosted = HistGradientBoostingRegressor(max_iter=args.max_iter, max_leaf_nodes=args.max_leaf_nodes,
-                                            learning_rate=args.learning_rate, random_state=0).fit(x_train, y_train)
+    boosted = boosted_model(args).fit(x_train, y_train)
     floor = rmse(error[held])
     none = rmse(y_test)
     results = {"no_correction": none, "training_mean": rmse(y_test - y_train.mean()),
@@ -155,12 +162,33 @@ def learn(pairs, args):
     importance = permutation_importance(boosted, x_test, y_test, scoring="neg_root_mean_squared_error",
                                         n_repeats=args.permutation_repeats, random_state=0)
     order = np.argsort(importance.importances_mean)[::-1][:8]
-    return {"training_scenes": len(split.training_scenes), "held_out_scenes": split.held_out_scenes,
+    regime = pairs["regime"].values.astype(str)[held]
+    residual = y_test - boosted.predict(x_test)
+    per_regime = {name: {"no_correction": rmse(y_test[regime == name]), "boosted": rmse(residual[regime == name]),
+                         "noise_floor": rmse(error[held][regime == name])} for name in sorted(set(regime))}
+    return {"per_regime": per_regime, "training_scenes": len(split.training_scenes), "held_out_scenes": split.held_out_scenes,
             "training_samples": int((~held).sum()), "held_out_samples": int(held.sum()), "features": names,
             "rmse": results, "skill": skill, "noise_floor": floor, "best_reachable_skill": 1.0 - floor / none,
             "noise_free_rmse_no_correction": float(true_none), "noise_free_skill": noise_free_skill,
             "permutation_importance_top8": [{"feature": names[i], "rmse_increase": float(importance.importances_mean[i]),
                                              "std": float(importance.importances_std[i])} for i in order]}
+
+
+def leave_one_regime_out(pairs, args):
+    """Boosted model trained without each regime in turn and scored on that regime (all its scenes)."""
+    regime = pairs["regime"].values.astype(str)
+    features = pairs["features"].values.astype(np.float64)
+    target = pairs["target_value"].sel(target=TARGET).values.astype(np.float64)
+    error = pairs["target_standard_error"].sel(target=TARGET).values.astype(np.float64)
+    out = {}
+    for name in sorted(set(regime)):
+        test = regime == name
+        model = boosted_model(args).fit(features[~test], target[~test])
+        none = rmse(target[test])
+        boosted = rmse(target[test] - model.predict(features[test]))
+        out[name] = {"no_correction": none, "boosted": boosted, "skill": 1.0 - boosted / none,
+                     "noise_floor": rmse(error[test])}
+    return out
 
 
 def domain_means(pairs):
@@ -247,6 +275,7 @@ def run(args, work):
     figures["domain_mean_signal"] = domain_means(pairs)
     skill = learn(pairs, args)
     figures["held_out"] = skill
+    figures["leave_one_regime_out"] = leave_one_regime_out(pairs, args)
     figures["seconds"]["learn"] = {"wall": time.perf_counter() - start}
 
     n = figures["noise"]
@@ -265,6 +294,13 @@ def run(args, work):
           f"(scene-to-scene std {d['scene_std']:.2f})")
     for name, v in d["per_regime"].items():
         print(f"     {name:<28} {v['mean']:7.2f} ({v['scenes']} scenes)")
+    print("   per regime of the held-out scenes, RMSE W m-2 (no correction / boosted / noise floor):")
+    for name, v in skill["per_regime"].items():
+        print(f"     {name:<28} {v['no_correction']:6.2f} {v['boosted']:6.2f} {v['noise_floor']:6.2f}")
+    print("   boosted model trained without a regime, scored on all its scenes, RMSE W m-2 "
+          "(no correction / boosted / skill / noise floor):")
+    for name, v in figures["leave_one_regime_out"].items():
+        print(f"     {name:<28} {v['no_correction']:6.2f} {v['boosted']:6.2f} {v['skill']:7.3f} {v['noise_floor']:6.2f}")
     print("   permutation importance of the boosted model on held-out scenes (RMSE increase, W m-2):")
     for item in skill["permutation_importance_top8"]:
         print(f"     {item['feature']:<42} {item['rmse_increase']:6.2f} +- {item['std']:.2f}")
