@@ -16,7 +16,9 @@ features from host fields, :mod:`surrogate3d.export.fortran_features`):
     is matched to the absorption that comes out (as ``surrogate3d evaluate`` scores it).
 ``NAME_host_corrections``, ``NAME_own_columns``, ``NAME_finish_host``
     The same in three steps, for a host that reduces the energy sums itself (the
-    example driver runs four sub-domains in one program this way).
+    example driver runs four sub-domains in one program this way); ``NAME_finish_host``
+    (balance and layers matched) exists with a heating-rate model, and without one the
+    last step is ``NAME_balance_columns`` of ``NAME_correction``.
 
 :func:`host_driver_text` writes ``NAME_host_driver.f90``, an example program that reads
 host field files (:mod:`surrogate3d.runtime.host_field_file`, written by
@@ -57,6 +59,16 @@ _FIELD_DECLARATIONS = """\
     real(real64), intent(in) :: independent_column_fluxes(1 - hx:nx + hx, 1 - hy:ny + hy, {n_targets})"""
 
 
+def shares_features(document, profile_document):
+    """Whether a heating-rate model's column features are the column model's: the same columns of the same
+    recipe (parameters included), so the host interface computes them once."""
+    from ..runtime.model import CorrectionModel
+
+    model, profile = CorrectionModel.from_document(document), CorrectionModel.from_document(profile_document)
+    return (profile.column_feature_names == model.column_feature_names
+            and profile.recipe.parameters == model.recipe.parameters)
+
+
 def has_host_interface(document):
     """Whether a document gets a ``NAME_host`` module: a column model of all five column targets."""
     return (not (document.get(PROFILE_FIELD) or {}).get("layer_features")
@@ -88,12 +100,18 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
     fields = _FIELD_DECLARATIONS.format(n_targets=n)
     args = _wrapped(FIELD_ARGUMENTS, "      ")
     profile = profile_prefix is not None
-    shared = profile and list(profile_document["features"]["names"][:len(document["features"]["names"])]) == list(
-        document["features"]["names"]) and len(profile_document["features"]["names"]) - len(
-        profile_document[PROFILE_FIELD]["layer_features"]) == len(document["features"]["names"])
+    shared = profile and shares_features(document, profile_document)
     p = profile_prefix
     uses = ""
     optional_args, optional_decl, profile_steps, finish_profile = "", "", "", ""
+    partial_check = """\
+    if ((present(profile_model) .neqv. present(layers)) .or. &
+        (present(layers) .neqv. present(independent_column_layer_absorption))) then
+      status = 3
+      message = 'profile_model, independent_column_layer_absorption and layers go together: give all three or none'
+      return
+    end if
+""" if profile else ""
     reach_call = (slant_reach_call(f"{prefix}_host", SLANT_DEPTH_ABOVE, "rx", "ry", reach="slant_path_reach")
                   .replace("\n", "\n      ") if profile else "")
     declarations = slant_declarations(f"{prefix}_host", {SLANT_DEPTH_ABOVE}) if profile else ""
@@ -113,7 +131,7 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
         profile_features, status, message, slant_path_reach)
       if (status /= 0) return"""
         profile_steps = f"""
-    if (present(profile_model) .and. present(independent_column_layer_absorption) .and. present(layers)) then
+    if (present(profile_model)) then
       {reach_call}
       if (rx > hx .or. ry > hy) then
         status = 1
@@ -274,7 +292,7 @@ contains
     real(real64), intent(in), optional :: slant_path_reach
     real(real64), allocatable :: features(:, :){profile_locals}
     integer :: i
-    allocate (features({prefix}_n_host_features, nx * ny))
+{partial_check}    allocate (features({prefix}_n_host_features, nx * ny))
     call {prefix}_host_features({_wrapped(FIELD_ARGUMENTS, "      ")}, &
       features, status, message, slant_path_reach)
     if (status /= 0) return
@@ -379,14 +397,14 @@ d%zenith, d%azimuth, &
         chr(10) + "! and the layer corrections [1], bottom first" if profile else ""}.
 program {prefix}_host_driver
   use, intrinsic :: iso_fortran_env, only: real64, int64, error_unit
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   use {prefix}_correction
   use {prefix}_host{uses}
   implicit none
 
   !> One sub-domain's host fields (with their halo) and results.
   type :: subdomain
-    integer :: nx, ny, nz, hx, hy, ix0, iy0
+    integer :: nx, ny, nz, hx, hy, ix0, iy0, nx_domain, ny_domain
     real(real64) :: dx, dy, zenith, azimuth
     real(real64), allocatable :: reach     ! the cap on the slant paths' reach [m]; unallocated: none
     real(real64), allocatable :: z_edge(:), cloud_fraction(:, :, :), optical_depth(:, :, :), clear_sky(:, :, :)
@@ -432,6 +450,7 @@ program {prefix}_host_driver
     call get_command_argument(first + j - 1, argument)
     call read_host_fields(trim(argument), parts(j))
   end do
+  call check_cover(parts)
 
   if (n_repeat > 0) then
     call time_corrections(parts(1))
@@ -504,6 +523,34 @@ contains
     write (*, '(a, 1x, es15.8)') 'checksum', checksum
   end subroutine time_corrections
 
+  !> Stop unless the files' own columns cover their whole domain once each (one energy balance per domain).
+  subroutine check_cover(parts)
+    type(subdomain), intent(in) :: parts(:)
+    integer, allocatable :: seen(:, :)
+    integer :: j, ix, iy
+    character(len=160) :: text
+    allocate (seen(parts(1)%nx_domain, parts(1)%ny_domain))
+    seen = 0
+    do j = 1, size(parts)
+      associate (d => parts(j))
+        if (d%nx_domain /= size(seen, 1) .or. d%ny_domain /= size(seen, 2) .or. d%ix0 < 0 .or. d%iy0 < 0 .or. &
+            d%ix0 + d%nx > size(seen, 1) .or. d%iy0 + d%ny > size(seen, 2)) then
+          call stop_on(1, 'the host field files are not sub-domains of one domain')
+        end if
+        seen(d%ix0 + 1:d%ix0 + d%nx, d%iy0 + 1:d%iy0 + d%ny) = seen(d%ix0 + 1:d%ix0 + d%nx, d%iy0 + 1:d%iy0 + d%ny) + 1
+      end associate
+    end do
+    do iy = 1, size(seen, 2)
+      do ix = 1, size(seen, 1)
+        if (seen(ix, iy) /= 1) then
+          write (text, '(a, i0, a, i0, a, i0, a)') 'column (', ix, ', ', iy, ') of the domain is in ', seen(ix, iy), &
+            ' of the host field files; each must be in exactly one'
+          call stop_on(1, trim(text))
+        end if
+      end do
+    end do
+  end subroutine check_cover
+
   !> Stop with the message on a non-zero status.
   subroutine stop_on(status, message)
     integer, intent(in) :: status
@@ -527,13 +574,17 @@ contains
     if (trim(line) /= 'surrogate3d host fields 2') call stop_on(1, path // ' is not a host field file of version 2')
     read (unit, *) key, d%nx, d%ny, d%nz, d%hx, d%hy
     read (unit, *) key, d%ix0, d%iy0
-    read (unit, *) key
+    read (unit, *) key, d%nx_domain, d%ny_domain
     read (unit, *) key, d%dx
     read (unit, *) key, d%dy
     read (unit, *) key, d%zenith
     read (unit, *) key, d%azimuth
     read (unit, *) key, cap
-    if (ieee_is_finite(cap)) d%reach = cap
+    if (ieee_is_finite(cap)) then
+      d%reach = cap
+    else if (ieee_is_nan(cap) .or. cap < 0.0_real64) then
+      call stop_on(1, path // ': slant_path_reach must be a distance >= 0 in m or inf (no cap)')
+    end if
     associate (nx => d%nx, ny => d%ny, nz => d%nz, hx => d%hx, hy => d%hy)
       allocate (d%z_edge(nz + 1))
       allocate (d%cloud_fraction(1 - hx:nx + hx, 1 - hy:ny + hy, nz), d%optical_depth(1 - hx:nx + hx, 1 - hy:ny + hy, nz))
@@ -599,7 +650,7 @@ def host_files(document, profile_document=None):
     if profile_document is not None:
         profile_prefix = fortran_name(profile_document["model"]["name"])
         profile = CorrectionModel.from_document(profile_document)
-        if profile.column_feature_names != model.column_feature_names:
+        if not shares_features(document, profile_document):
             files[f"{profile_prefix}_features.f90"] = features_module_text(profile_prefix, profile.recipe,
                                                                            profile.column_feature_names)
     files[f"{prefix}_host.f90"] = host_module_text(prefix, document, profile_prefix, profile_document)

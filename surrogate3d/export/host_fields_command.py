@@ -11,7 +11,8 @@ def register(sub):
                     "periodic domain and of its sub-domains, each with the halo the models need, as plain-text host "
                     "field files (surrogate3d.runtime.host_field_file) that the exported Fortran driver reads.")
     p.add_argument("scene", metavar="SCENE_FILE", help="scene file (NetCDF) written by 'surrogate3d scenes'")
-    p.add_argument("--out", required=True, metavar="DIR", help="directory to write whole.txt and subdomain_N.txt to")
+    p.add_argument("--out", required=True, metavar="DIR",
+                   help="directory to write whole.txt and subdomain_N.txt to (its old content is replaced)")
     p.add_argument("--model", nargs="+", required=True, metavar="COEFFICIENTS",
                    help="exported coefficient file(s) (.coefficients.json or .nc): the halo is the widest they need")
     p.add_argument("--zenith", type=float, required=True, metavar="DEG", help="solar zenith angle in degrees, [0, 90)")
@@ -65,7 +66,9 @@ def run(args):
         widths.append(path_reach(*geometry))
     halo = (max(w[0] for w in widths), max(w[1] for w in widths))
     ny, nx = fields["surface_albedo"].shape
-    with staged_directory(out) as staging:
+    # The directory holds exactly these files: sub-domains of an earlier, finer split would
+    # otherwise be read as part of this domain by a driver globbing subdomain_*.txt.
+    with staged_directory(out, replace=True) as staging:
         (whole, origin), = split_periodic(fields, (1, 1), halo)
         write_host_field_file(staging / "whole.txt", whole, halo, origin, (nx, ny))
         parts = split_periodic(fields, args.split, halo)

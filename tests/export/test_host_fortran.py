@@ -164,6 +164,63 @@ def test_narrow_halo_is_refused_naming_the_feature(guide_run, tmp_path):
     assert "halo" in done.stderr and "feature" in done.stderr, done.stderr
 
 
+def test_driver_refuses_files_that_do_not_cover_the_domain_once(guide_run, tmp_path):
+    # One energy balance per domain: a sub-domain read twice, or one missing, would close
+    # the wrong budget; the driver stops naming the column.
+    fields = guide_run / "host-demo" / "fields"
+    driver = guide_run / "host-demo" / "host_driver"
+    coefficients = str(SHIPPED / "fortran" / "boosted.coefficients.txt")
+    for files, count in (([fields / "subdomain_1.txt", fields / "subdomain_1.txt"], "in 2 of"),
+                         ([fields / "subdomain_1.txt", fields / "subdomain_2.txt"], "in 0 of")):
+        done = subprocess.run([str(driver), coefficients, *map(str, files)], capture_output=True, text=True)
+        assert done.returncode != 0 and count in done.stderr, done.stderr
+
+
+PARTIAL = """\
+program partial
+  use, intrinsic :: iso_fortran_env, only: real64
+  use boosted_correction
+  use boosted_host
+  implicit none
+  type(boosted_coefficients) :: model
+  real(real64) :: one(1, 1, 1), plane(1, 1), ica(1, 1, 5), fluxes(5, 1), layers(1, 1)
+  logical :: outside(1)
+  integer :: n_outside, status
+  character(len=256) :: message
+  one = 0.0_real64
+  plane = 0.0_real64
+  ica = 0.0_real64
+  call boosted_correct_host(model, 1, 1, 1, 0, 0, 1000.0_real64, 1000.0_real64, 30.0_real64, 0.0_real64, &
+    [0.0_real64, 1000.0_real64], one, one, one, plane, plane, plane, plane, plane, ica, fluxes, outside, n_outside, &
+    status, message, layers=layers, independent_column_layer_absorption=one)
+  print '(i0, 1x, a)', status, trim(message)
+end program partial
+"""
+
+
+def test_heating_rate_arguments_go_together(tmp_path):
+    # The layers without the heating-rate model would come back unset: refused (status 3).
+    fortran = SHIPPED / "fortran"
+    (tmp_path / "partial.f90").write_text(PARTIAL)
+    sources = [fortran / f"{name}.f90" for name in ("boosted_correction", "profile_correction", "boosted_features",
+                                                    "boosted_host")] + [tmp_path / "partial.f90"]
+    built = subprocess.run(["gfortran", "-std=f2008", "-Wall", "-Werror", "-O2", *map(str, sources), "-o", "partial"],
+                           cwd=tmp_path, capture_output=True, text=True)
+    assert built.returncode == 0, built.stderr
+    done = subprocess.run([str(tmp_path / "partial")], capture_output=True, text=True)
+    assert done.stdout.startswith("3 profile_model, independent_column_layer_absorption and layers go together")
+
+
+def test_host_fields_command_replaces_an_earlier_split(guide_run, tmp_path):
+    scene = guide_run / "host-demo" / "scenes" / "open_cells_00000.nc"
+    out = tmp_path / "fields"
+    for split in (["3", "2"], ["2", "2"]):
+        assert main(["host-fields", str(scene), "--model", str(SHIPPED / "boosted.coefficients.json"), "--zenith",
+                     "30", "--split", *split, "--out", str(out), "--quiet"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["subdomain_1.txt", "subdomain_2.txt", "subdomain_3.txt",
+                                                      "subdomain_4.txt", "whole.txt"]
+
+
 def test_host_fields_command_refuses_bad_split(tmp_path, capsys):
     scene = tmp_path / "scenes"
     assert main(["scenes", "--regime", "scattered_cumulus", "--count", "1", "--nx", "100", "--ny", "100",

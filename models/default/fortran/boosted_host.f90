@@ -115,6 +115,12 @@ contains
     real(real64) :: total
     integer :: k, rx, ry
     integer :: i
+    if ((present(profile_model) .neqv. present(layers)) .or. &
+        (present(layers) .neqv. present(independent_column_layer_absorption))) then
+      status = 3
+      message = 'profile_model, independent_column_layer_absorption and layers go together: give all three or none'
+      return
+    end if
     allocate (features(boosted_n_host_features, nx * ny))
     call boosted_host_features(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
       layer_cloud_fraction, layer_optical_depth, layer_clear_sky_optical_depth, surface_albedo, &
@@ -126,7 +132,7 @@ contains
     do i = 1, nx * ny
       gated(i) = boosted_clear_sky_column(model, features(:, i))
     end do
-    if (present(profile_model) .and. present(independent_column_layer_absorption) .and. present(layers)) then
+    if (present(profile_model)) then
       call boosted_host_path_reach(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, rx, ry, &
           slant_path_reach=slant_path_reach)
       if (rx > hx .or. ry > hy) then

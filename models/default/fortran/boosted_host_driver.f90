@@ -7,7 +7,7 @@
 ! and the layer corrections [1], bottom first.
 program boosted_host_driver
   use, intrinsic :: iso_fortran_env, only: real64, int64, error_unit
-  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite
+  use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   use boosted_correction
   use boosted_host
   use profile_correction, only: profile_coefficients, profile_read_coefficients
@@ -15,7 +15,7 @@ program boosted_host_driver
 
   !> One sub-domain's host fields (with their halo) and results.
   type :: subdomain
-    integer :: nx, ny, nz, hx, hy, ix0, iy0
+    integer :: nx, ny, nz, hx, hy, ix0, iy0, nx_domain, ny_domain
     real(real64) :: dx, dy, zenith, azimuth
     real(real64), allocatable :: reach     ! the cap on the slant paths' reach [m]; unallocated: none
     real(real64), allocatable :: z_edge(:), cloud_fraction(:, :, :), optical_depth(:, :, :), clear_sky(:, :, :)
@@ -66,6 +66,7 @@ program boosted_host_driver
     call get_command_argument(first + j - 1, argument)
     call read_host_fields(trim(argument), parts(j))
   end do
+  call check_cover(parts)
 
   if (n_repeat > 0) then
     call time_corrections(parts(1))
@@ -179,6 +180,34 @@ contains
     write (*, '(a, 1x, es15.8)') 'checksum', checksum
   end subroutine time_corrections
 
+  !> Stop unless the files' own columns cover their whole domain once each (one energy balance per domain).
+  subroutine check_cover(parts)
+    type(subdomain), intent(in) :: parts(:)
+    integer, allocatable :: seen(:, :)
+    integer :: j, ix, iy
+    character(len=160) :: text
+    allocate (seen(parts(1)%nx_domain, parts(1)%ny_domain))
+    seen = 0
+    do j = 1, size(parts)
+      associate (d => parts(j))
+        if (d%nx_domain /= size(seen, 1) .or. d%ny_domain /= size(seen, 2) .or. d%ix0 < 0 .or. d%iy0 < 0 .or. &
+            d%ix0 + d%nx > size(seen, 1) .or. d%iy0 + d%ny > size(seen, 2)) then
+          call stop_on(1, 'the host field files are not sub-domains of one domain')
+        end if
+        seen(d%ix0 + 1:d%ix0 + d%nx, d%iy0 + 1:d%iy0 + d%ny) = seen(d%ix0 + 1:d%ix0 + d%nx, d%iy0 + 1:d%iy0 + d%ny) + 1
+      end associate
+    end do
+    do iy = 1, size(seen, 2)
+      do ix = 1, size(seen, 1)
+        if (seen(ix, iy) /= 1) then
+          write (text, '(a, i0, a, i0, a, i0, a)') 'column (', ix, ', ', iy, ') of the domain is in ', seen(ix, iy), &
+            ' of the host field files; each must be in exactly one'
+          call stop_on(1, trim(text))
+        end if
+      end do
+    end do
+  end subroutine check_cover
+
   !> Stop with the message on a non-zero status.
   subroutine stop_on(status, message)
     integer, intent(in) :: status
@@ -202,13 +231,17 @@ contains
     if (trim(line) /= 'surrogate3d host fields 2') call stop_on(1, path // ' is not a host field file of version 2')
     read (unit, *) key, d%nx, d%ny, d%nz, d%hx, d%hy
     read (unit, *) key, d%ix0, d%iy0
-    read (unit, *) key
+    read (unit, *) key, d%nx_domain, d%ny_domain
     read (unit, *) key, d%dx
     read (unit, *) key, d%dy
     read (unit, *) key, d%zenith
     read (unit, *) key, d%azimuth
     read (unit, *) key, cap
-    if (ieee_is_finite(cap)) d%reach = cap
+    if (ieee_is_finite(cap)) then
+      d%reach = cap
+    else if (ieee_is_nan(cap) .or. cap < 0.0_real64) then
+      call stop_on(1, path // ': slant_path_reach must be a distance >= 0 in m or inf (no cap)')
+    end if
     associate (nx => d%nx, ny => d%ny, nz => d%nz, hx => d%hx, hy => d%hy)
       allocate (d%z_edge(nz + 1))
       allocate (d%cloud_fraction(1 - hx:nx + hx, 1 - hy:ny + hy, nz), d%optical_depth(1 - hx:nx + hx, 1 - hy:ny + hy, nz))
