@@ -489,7 +489,7 @@ _HELPERS = {
 }
 
 
-def features_module_text(prefix, recipe, column_names):
+def features_module_text(prefix, recipe, column_names, layer_paths=False):
     """Fortran 2008 source of module ``NAME_features``: the host features of a model.
 
     Parameters
@@ -503,6 +503,11 @@ def features_module_text(prefix, recipe, column_names):
     column_names : sequence of str
         The model's feature columns in order (names of ``recipe.column_names()``): the
         rows of the generated ``features`` array.
+    layer_paths : bool
+        Also make public ``NAME_slant_depth_above`` and its reach ``NAME_path_reach``
+        (:mod:`surrogate3d.export.fortran_slant`): the optical depth along the path from
+        every layer's middle toward the sun, which the heating-rate layers of the host
+        interface need.
 
     Returns
     -------
@@ -532,7 +537,11 @@ def features_module_text(prefix, recipe, column_names):
     features = {feature for _, feature, _ in columns}
     slant = _slant_generator(features)
     slant_needed = features - IMPLEMENTED_FEATURES
-    declarations = slant.slant_declarations(prefix, slant_needed) if slant_needed else ""
+    generator = slant
+    if layer_paths:
+        from . import fortran_slant as generator
+        slant_needed = slant_needed | {generator.SLANT_DEPTH_ABOVE}
+    declarations = generator.slant_declarations(prefix, slant_needed) if slant_needed else ""
     helpers = {"number_text", "check_layers", "check_plane"} | _helpers_of(features)
     body = [_HEADER.format(p=prefix, recipe=" ".join(str(recipe.name).split())[:60], n=len(columns),
                            names=_names_parameter(f"{prefix}_column_names", [name for name, _, _ in columns]),
@@ -543,7 +552,7 @@ def features_module_text(prefix, recipe, column_names):
             _host_features(prefix, recipe, columns, slant)]
     body += [_HELPERS[name][0].format(p=prefix) for name in _with_dependencies(helpers)]
     if slant_needed:
-        body.append(slant.slant_procedures(prefix, slant_needed).rstrip("\n") + "\n")
+        body.append(generator.slant_procedures(prefix, slant_needed).rstrip("\n") + "\n")
     text = "\n".join(body) + f"end module {prefix}_features\n"
     text = "".join(_fit(line) + "\n" for line in text.splitlines())
     long = [line for line in text.splitlines() if len(line) >= _LINE_LIMIT]

@@ -93,7 +93,7 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
     -------
     str
     """
-    from .fortran_slant import SLANT_DEPTH_ABOVE, slant_declarations, slant_procedures, slant_reach_call
+    from .fortran_slant import SLANT_DEPTH_ABOVE, slant_reach_call
 
     n = len(TARGETS)
     absorbed = TARGETS.index("atmosphere_absorption") + 1
@@ -112,9 +112,9 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
       return
     end if
 """ if profile else ""
-    reach_call = (slant_reach_call(f"{prefix}_host", SLANT_DEPTH_ABOVE, "rx", "ry", reach="slant_path_reach")
+    layer_path_uses = f", &\n    {prefix}_slant_depth_above, {prefix}_path_reach" if profile else ""
+    reach_call = (slant_reach_call(prefix, SLANT_DEPTH_ABOVE, "rx", "ry", reach="slant_path_reach")
                   .replace("\n", "\n      ") if profile else "")
-    declarations = slant_declarations(f"{prefix}_host", {SLANT_DEPTH_ABOVE}) if profile else ""
     if profile:
         uses = (f"\n  use {p}_correction, only: {p}_coefficients, {p}_correct_profiles, {p}_match_column_integral, "
                 f"&\n    {p}_n_column_features")
@@ -145,8 +145,8 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
       allocate (slant(nz, nx * ny), cos_zenith(nx * ny))
       call layer_fields(nx, ny, nz, hx, hy, z_edge, layer_cloud_fraction, layer_optical_depth, &
                         independent_column_layer_absorption, bottom, top, depth, cover, absorption)
-      call {prefix}_host_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
-                                           z_edge, layer_optical_depth, slant, slant_path_reach)
+      call {prefix}_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
+                                      z_edge, layer_optical_depth, slant, slant_path_reach)
       ! numpy.radians multiplies by pi / 180: the same rounding, so the layer features agree bit for bit.
       cos_zenith = cos(solar_zenith_angle * (acos(-1.0_real64) / 180.0_real64))
       call {p}_correct_profiles(profile_model, nx * ny, nz, {own_features}(1:{p}_n_column_features, :), cos_zenith, &
@@ -198,7 +198,7 @@ def host_module_text(prefix, document, profile_prefix=None, profile_document=Non
       end do
     end do
   end subroutine layer_fields
-""" + slant_procedures(f"{prefix}_host", {SLANT_DEPTH_ABOVE})
+"""
     if profile:
         finish_call = (f"call {prefix}_finish_host(nx, ny, nz, hx, hy, ica, corrections, gated, sums(1), sums(2), "
                        "fluxes, &\n      independent_column_layer_absorption, layers)")
@@ -234,7 +234,7 @@ module {prefix}_host
   use, intrinsic :: iso_fortran_env, only: real64
   use, intrinsic :: ieee_arithmetic, only: ieee_is_finite, ieee_is_nan
   use {prefix}_correction
-  use {prefix}_features, only: {prefix}_host_features, {prefix}_n_host_features{uses}
+  use {prefix}_features, only: {prefix}_host_features, {prefix}_n_host_features{layer_path_uses}{uses}
   implicit none
   private
   public :: {prefix}_correct_host, {prefix}_host_corrections, {prefix}_own_columns{
@@ -248,7 +248,7 @@ module {prefix}_host
     end subroutine {prefix}_sum_over_processes
   end interface
   public :: {prefix}_sum_over_processes
-{declarations}
+
 contains
 
   !> Corrected fluxes [1] (fractions of the incident flux on the horizontal, targets as {prefix}_target_names) of
@@ -645,7 +645,9 @@ def host_files(document, profile_document=None):
 
     prefix = fortran_name(document["model"]["name"])
     model = CorrectionModel.from_document(document)
-    files = {f"{prefix}_features.f90": features_module_text(prefix, model.recipe, model.column_feature_names)}
+    # With a heating-rate model the column model's features module also gives the layers' slant paths.
+    files = {f"{prefix}_features.f90": features_module_text(prefix, model.recipe, model.column_feature_names,
+                                                          layer_paths=profile_document is not None)}
     profile_prefix = None
     if profile_document is not None:
         profile_prefix = fortran_name(profile_document["model"]["name"])

@@ -85,6 +85,7 @@ module boosted_features
     real(real64), allocatable :: term_weight(:)
   end type boosted_slant_weights
   private :: boosted_slant_weights
+  public :: boosted_slant_depth_above, boosted_path_reach
 
 contains
 
@@ -1328,6 +1329,59 @@ contains
       end do
     end do
   end subroutine boosted_slant_depth
+
+  !> Optical depth [1] along the straight path from the middle of every layer toward the sun
+  !> (surrogate3d.pairs.profiles.slant_optical_depth_above): through the upper half of the layer and every
+  !> layer above, crossing neighbouring columns; Beer-Lambert along the path, sum w tau / mu0.
+  !> slant(k, i) for layer k of own column i = ix + (iy - 1) * nx. With slant_path_reach [m] (finite, >= 0)
+  !> the paths' horizontal travel is capped there (slant_path.path_weights). The halo must cover
+  !> boosted_path_reach of the same cap.
+  pure subroutine boosted_slant_depth_above(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, &
+      z_edge, &
+      layer_optical_depth, slant, slant_path_reach)
+    integer, intent(in) :: nx, ny, nz, hx, hy
+    real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
+    real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
+    real(real64), intent(out) :: slant(nz, nx * ny)
+    real(real64), intent(in), optional :: slant_path_reach
+    real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
+    type(boosted_slant_weights) :: paths(nz)
+    real(real64) :: edges(nz + 1), mu0, middle, total, plane, value
+    integer :: ix, iy, k, g, t, j, jx, jy
+    mu0 = cos(solar_zenith_angle * degree)
+    ! The path from layer k's middle meets nz - k + 1 layers: the upper half of its own, then those above.
+    do k = 1, nz
+      middle = 0.5_real64 * (z_edge(k) + z_edge(k + 1))
+      edges(1) = 0.0_real64
+      edges(2:nz - k + 2) = z_edge(k + 1:nz + 1) - middle
+      call boosted_capped_path_weights(nz - k + 1, edges(1:nz - k + 2), dx, dy, solar_zenith_angle, &
+          solar_beam_azimuth, paths(k), slant_path_reach)
+      call boosted_slant_group_offsets(nz - k + 1, paths(k))
+    end do
+    do iy = 1, ny
+      do ix = 1, nx
+        do k = 1, nz
+          total = 0.0_real64
+          do g = 1, size(paths(k)%group_ox)
+            jx = ix + paths(k)%group_ox(g)
+            jy = iy + paths(k)%group_oy(g)
+            plane = 0.0_real64
+            do t = paths(k)%group_first(g), paths(k)%group_first(g + 1) - 1
+              j = paths(k)%term_layer(t)
+              if (j == 1) then
+                value = 0.5_real64 * layer_optical_depth(jx, jy, k)
+              else
+                value = layer_optical_depth(jx, jy, k + j - 1)
+              end if
+              plane = plane + value * paths(k)%term_weight(t)
+            end do
+            total = total + plane
+          end do
+          slant(k, ix + (iy - 1) * nx) = total / mu0
+        end do
+      end do
+    end do
+  end subroutine boosted_slant_depth_above
 
   !> Area weights of slant_path.area_path_weights for the n_layer layers between edges(k) and
   !> edges(k + 1) [m]: the share of each column in the copy of a column displaced toward the sun by
