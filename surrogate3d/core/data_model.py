@@ -21,6 +21,14 @@ SOLVERS = ("full_3d", "independent_column", "two_stream")
 #: The longwave (thermal) solver kinds, in the order results are stored: the longwave
 #: counterpart of each of :data:`SOLVERS` (``docs/archive-format.md``).
 LONGWAVE_SOLVERS = tuple(f"longwave_{solver}" for solver in SOLVERS)
+#: Column fields of every longwave run result [W m-2] and their long names.
+LONGWAVE_COLUMN_FLUXES = {
+    "longwave_surface_downward_flux": "downward longwave flux at the surface",
+    "longwave_surface_upward_flux": "upward longwave flux at the surface (emitted and reflected)",
+    "longwave_toa_upward_flux": "upward longwave flux at the top of the domain",
+    "longwave_atmosphere_net_absorption": "longwave flux absorbed minus emitted by the air of the column",
+    "longwave_surface_net_absorption": "longwave flux absorbed minus emitted by the surface",
+}
 #: What ``simulate`` runs: the solar spectrum, the thermal one, or both.
 SPECTRA = ("shortwave", "longwave", "both")
 
@@ -59,6 +67,9 @@ BASELINES = {
 SCENE_FORMAT_VERSION = "1.3"
 #: Pair tables (``docs/pairs-format.md``).
 PAIRS_FORMAT_VERSION = "1.1"
+#: Longwave pair tables (``docs/pairs-format.md``, "Longwave pairs"; attribute
+#: ``spectrum = "longwave"``).  1.1 added the ``feature_recipe`` attribute.
+LONGWAVE_PAIRS_FORMAT_VERSION = "1.1"
 #: Feature recipes (and the feature definitions they name).
 RECIPE_VERSION = 1
 #: Model directories and their ``model.json``.

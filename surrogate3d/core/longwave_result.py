@@ -14,17 +14,9 @@ import numpy as np
 import xarray as xr
 
 from ..errors import ValidationError
-from .data_model import LONGWAVE_SOLVERS
+from .data_model import LONGWAVE_COLUMN_FLUXES, LONGWAVE_SOLVERS
 from .validation import check_option
 
-#: Column fields of every longwave run result [W m-2] and their long names.
-LONGWAVE_COLUMN_FLUXES = {
-    "longwave_surface_downward_flux": "downward longwave flux at the surface",
-    "longwave_surface_upward_flux": "upward longwave flux at the surface (emitted and reflected)",
-    "longwave_toa_upward_flux": "upward longwave flux at the top of the domain",
-    "longwave_atmosphere_net_absorption": "longwave flux absorbed minus emitted by the air of the column",
-    "longwave_surface_net_absorption": "longwave flux absorbed minus emitted by the surface",
-}
 #: Per-cell fields: name -> (units, long_name); the heating rate is optional.
 LONGWAVE_CELL_FIELDS = {
     "longwave_net_absorption": ("W m-2", "longwave flux absorbed minus emitted in the cell, per unit column area"),

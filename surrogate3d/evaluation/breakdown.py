@@ -20,6 +20,9 @@ CLOUD_FRACTION_BINS = (0.0, 0.01, 0.25, 0.5, 0.75, 0.99, 1.0)
 BREAKDOWNS = ("all", "regime", "solar_zenith", "cloud_fraction", "host_resolution")
 #: Breakdowns of the left-out families: each family, each sun, each family under each sun.
 FAMILY_BREAKDOWNS = ("all", "regime", "solar_zenith", "regime_solar_zenith")
+#: Breakdowns of a longwave metric table (no sun) and of its left-out families.
+LONGWAVE_BREAKDOWNS = ("all", "regime", "cloud_fraction", "host_resolution")
+LONGWAVE_FAMILY_BREAKDOWNS = ("all", "regime")
 #: Units of the metric rows: normalized (fraction of the incident flux) and W m-2.
 UNITS = ("1", "W m-2")
 
@@ -94,11 +97,13 @@ def metric_table(pairs, predictions, targets, evaluation_set, breakdowns=BREAKDO
     pandas.DataFrame
         Columns :data:`TABLE_COLUMNS`; ``group_value`` is the mean over the group of the
         binned variable (solar zenith angle [degree], cloud fraction [1], host resolution
-        [m]), NaN for the other breakdowns.
+        [m]), NaN for the other breakdowns.  A longwave table (no ``incident_flux``:
+        targets in W m-2 already) has the W m-2 rows only.
     """
     true = target_matrix(pairs, targets)
     se = target_matrix(pairs, targets, "target_standard_error")
-    flux = np.asarray(pairs["incident_flux"].values, dtype=np.float64)
+    flux = np.asarray(pairs["incident_flux"].values, dtype=np.float64) if "incident_flux" in pairs else None
+    units_of_rows = UNITS if flux is not None else ("W m-2",)
     rows = []
     for breakdown in breakdowns:
         labels, order = group_labels(pairs, breakdown)
@@ -108,8 +113,8 @@ def metric_table(pairs, predictions, targets, evaluation_set, breakdowns=BREAKDO
             value = float(np.mean(pairs[binned].values[members])) if binned else float("nan")
             for name, predicted in predictions.items():
                 for m, target in enumerate(targets):
-                    for units in UNITS:
-                        scale = flux[members] if units == "W m-2" else None
+                    for units in units_of_rows:
+                        scale = flux[members] if units == "W m-2" and flux is not None else None
                         metrics = error_metrics(predicted[members, m], true[members, m], se[members, m], scale)
                         rows.append({"evaluation_set": evaluation_set, "breakdown": breakdown, "group": key[1],
                                      "group_order": key[0], "group_value": value, "predictor": name,

@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 from ..learn.pairs_table import target_matrix
-from .metrics import error_metrics
+from .metrics import error_metrics, watts_scale
 
 #: Columns of the table.
 ENVELOPE_COLUMNS = ("evaluation_set", "predictor", "group", "target", "n", "outside_range", "beyond_distance",
@@ -38,7 +38,7 @@ def envelope_table(label, pairs, predictions, checks, targets, by_regime=False):
         Columns :data:`ENVELOPE_COLUMNS`; RMSEs in W m-2, skills of the W m-2 errors.
     """
     true = target_matrix(pairs, targets)
-    flux = np.asarray(pairs["incident_flux"].values, dtype=np.float64)
+    flux = watts_scale(pairs)
     groups = [("all", np.ones(pairs.sizes["sample"], dtype=bool))]
     if by_regime:
         regime = np.asarray(pairs["regime"].values).astype(str)
@@ -54,7 +54,7 @@ def envelope_table(label, pairs, predictions, checks, targets, by_regime=False):
                     continue
                 outside = check.outside & members
                 inside = ~check.outside & members
-                metrics = {part: error_metrics(predictions[name][mask, m], true[mask, m], scale=flux[mask])
+                metrics = {part: error_metrics(predictions[name][mask, m], true[mask, m], scale=None if flux is None else flux[mask])
                            for part, mask in (("inside", inside), ("outside", outside))}
                 row.update(outside_range=int((check.outside_range & members).sum()),
                            beyond_distance=int((check.beyond_distance & members).sum()),

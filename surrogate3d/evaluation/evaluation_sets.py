@@ -83,6 +83,8 @@ class Evaluation:
         ``training.json`` of the evaluated run (None when scoring a coefficient file).
     profile : surrogate3d.evaluation.profile_skill.ProfileEvaluation or None
         The heating-rate (profile) model's skill on the held-out scenes, if the run has one.
+    spectrum : str
+        ``"shortwave"`` or ``"longwave"`` (targets and errors in W m-2, no sun, no baselines).
     """
 
     title: str
@@ -102,6 +104,7 @@ class Evaluation:
     family_runs: pd.DataFrame | None = None
     record: dict | None = None
     profile: object = None
+    spectrum: str = "shortwave"
 
 
 def score_set(label, pairs, models, targets, consistency, breakdowns=BREAKDOWNS):

@@ -12,10 +12,12 @@ import pandas as pd
 
 from ..learn.cv import correction_skill
 from ..learn.pairs_table import scene_labels, target_matrix
+from .metrics import watts_scale
 
 
 def _scene_skill(predicted, true, flux, members):
-    return np.array([np.nanmean(correction_skill(predicted[idx], true[idx], flux[idx])) for idx in members])
+    return np.array([np.nanmean(correction_skill(predicted[idx], true[idx], None if flux is None else flux[idx]))
+                     for idx in members])
 
 
 def permutation_importance(model, pairs, targets, n_repeats=3, seed=0):
@@ -51,7 +53,7 @@ def permutation_importance(model, pairs, targets, n_repeats=3, seed=0):
     names = list(model.feature_names)
     X = model.features(pairs)
     true = target_matrix(pairs, targets)
-    flux = np.asarray(pairs["incident_flux"].values, dtype=np.float64)
+    flux = watts_scale(pairs)
     order = [model.target_names.index(t) for t in targets]
     scenes = scene_labels(pairs)
     members = [np.flatnonzero(scenes == s) for s in np.unique(scenes)]

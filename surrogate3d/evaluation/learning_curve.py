@@ -12,7 +12,7 @@ from tqdm import tqdm
 
 from ..learn.models import make_estimator
 from ..learn.pairs_table import scene_table, select_scenes, target_matrix
-from .metrics import error_metrics
+from .metrics import error_metrics, watts_scale
 from .predictions import model_correction
 from .scored_model import ScoredModel
 
@@ -71,7 +71,7 @@ def learning_curve(kind, params, pairs, training_scenes, evaluation, features, t
     """
     order = scene_order(pairs, training_scenes, seed)
     true = target_matrix(evaluation, targets)
-    flux = evaluation["incident_flux"].values
+    flux = watts_scale(evaluation)
     rows = []
     for size in tqdm(subset_sizes(len(order), points), desc="learning curve", unit="fit",
                      disable=True if quiet else None, leave=False):

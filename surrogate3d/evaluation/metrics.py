@@ -52,6 +52,17 @@ NOTHING_TO_CORRECT = 1e-6
 UNRESOLVED = 2.0
 
 
+def watts_scale(pairs):
+    """Per-sample factor that turns a table's target units into W m-2.
+
+    The incident flux on the horizontal S0 cos(theta0) [W m-2] of a shortwave table (targets
+    in fractions of it); None for a longwave table, whose targets are in W m-2 already.
+    """
+    if "incident_flux" not in pairs:
+        return None
+    return np.asarray(pairs["incident_flux"].values, dtype=np.float64)
+
+
 def _ratio(numerator, denominator):
     with np.errstate(divide="ignore", invalid="ignore"):
         return float(numerator / denominator) if denominator > NOTHING_TO_CORRECT else float("nan")

@@ -23,11 +23,13 @@ def reference_predictions(pairs, targets):
     Returns
     -------
     dict of str -> ndarray
-        ``"no correction"`` (zeros), ``"tilted independent column"``, ``"non-local independent pixel"``.
+        ``"no correction"`` (zeros), ``"tilted independent column"``, ``"non-local independent pixel"``;
+        a longwave table has no baselines (``docs/methods/longwave.md``), only no correction.
     """
     out = {NO_CORRECTION: np.zeros((pairs.sizes["sample"], len(targets)))}
     for baseline in BASELINES.values():
-        out[baseline.label] = target_matrix(pairs, targets, baseline.variable)
+        if baseline.variable in pairs:
+            out[baseline.label] = target_matrix(pairs, targets, baseline.variable)
     return out
 
 

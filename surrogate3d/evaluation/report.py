@@ -16,10 +16,10 @@ from tqdm import tqdm
 
 from ..errors import ValidationError
 from ..learn.model_directory import file_sha256, load_training_run
-from ..core.pairs_table import read_pairs_table
+from ..core.pairs_table import read_pairs_table, table_spectrum
 from ..learn.pairs_table import scene_table, select_scenes
 from ..pairs.layer_features import layer_sum
-from .breakdown import FAMILY_BREAKDOWNS
+from .breakdown import BREAKDOWNS, FAMILY_BREAKDOWNS, LONGWAVE_BREAKDOWNS, LONGWAVE_FAMILY_BREAKDOWNS
 from .evaluation_sets import Evaluation, EvaluationSet, score_set, set_tables
 from .family_transfer import LEFT_OUT, leave_one_family_out
 from .importance import permutation_importance
@@ -97,6 +97,16 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
     run = load_training_run(model_dir)
     pairs = read_pairs_table(pairs_path)
     record, targets = run.record, list(run.record["targets"])
+    spectrum = record.get("spectrum", "shortwave")
+    if table_spectrum(pairs) != spectrum:
+        raise ValidationError(f"the models of {str(model_dir)!r} are {spectrum} corrections; the pairs table "
+                              f"{str(pairs_path)!r} is a {table_spectrum(pairs)} table")
+    longwave = spectrum == "longwave"
+    # The consistency step closes the solar budget; its longwave counterpart (surface net =
+    # down - up, and the domain's net absorption balancing the outgoing flux) is not built yet.
+    consistency = consistency and not longwave
+    breakdowns, family_breakdowns = (LONGWAVE_BREAKDOWNS, LONGWAVE_FAMILY_BREAKDOWNS) if longwave \
+        else (BREAKDOWNS, FAMILY_BREAKDOWNS)
     split = record["split"]
     if not split["held_out_scenes"]:
         raise ValidationError(f"model directory {str(model_dir)!r} held out no scenes "
@@ -110,7 +120,7 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
     models = {name: ScoredModel.from_estimator(name, model.kind, model.estimator) for name, model in run.models.items()}
     steps = tqdm(total=4, desc="evaluate", unit="step", disable=True if quiet else None)
     held = select_scenes(pairs, split["held_out_scenes"])
-    sets = [score_set(HELD_OUT, held, models, targets, consistency)]
+    sets = [score_set(HELD_OUT, held, models, targets, consistency, breakdowns)]
     notes += [f"Model {name}: {check.note}." for name, check in sets[0].envelope.items() if not check.available]
     steps.update()
 
@@ -119,7 +129,7 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
     if families:
         transfer = leave_one_family_out(run, pairs, families, targets, consistency, quiet)
         sets.append(EvaluationSet(LEFT_OUT, transfer.pairs, transfer.predictions, transfer.outcomes, transfer.raw,
-                                  transfer.envelope, FAMILY_BREAKDOWNS))
+                                  transfer.envelope, family_breakdowns))
         family_runs = transfer.runs
     table, envelope = set_tables(sets, targets, by_regime=(LEFT_OUT,))
     steps.update()
@@ -152,23 +162,29 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
              f"held-out scenes of unseen seeds ({held.sizes['sample']} samples)"
              + (f" and, trained without each in turn, on the families {', '.join(families)}" if family_runs is not None
                 else "")
-             + f", against no correction and the two published baselines on the same samples. Pairs file "
+             + (", against no correction (the independent column; no published simple longwave correction is "
+                "implemented as a baseline yet, docs/methods/longwave.md)" if longwave
+                else ", against no correction and the two published baselines on the same samples")
+             + ". Pairs file "
              f"<code>{html.escape(str(pairs_path))}</code>"
              f"{' (the training file)' if matches else ' (not the training file)'}. "
-             + ("Learned corrections are scored after the consistency step (non-negative fluxes, direct + diffuse = "
+             + ("Longwave corrections are scored as predicted (the consistency step is shortwave only); targets and "
+                "errors are in W m-2." if longwave
+                else "Learned corrections are scored after the consistency step (non-negative fluxes, direct + diffuse = "
                 "total, energy balance per domain)." if consistency
                 else "Learned corrections are scored as predicted (no consistency step).")
              + " Skill is that of the errors in W m-2 throughout.</p>")
     provenance = [(k, v) for k, v in record["provenance"].items() if k != "recipe_text"]
     provenance += [("training scenes", ", ".join(split["training_scenes"])),
                    ("held-out scenes", ", ".join(split["held_out_scenes"]))]
-    return Evaluation(title="Held-out skill of the 3D corrections", intro=intro, targets=targets, sets=sets,
+    title = "Held-out skill of the longwave 3D corrections" if longwave else "Held-out skill of the 3D corrections"
+    return Evaluation(title=title, intro=intro, targets=targets, sets=sets,
                       table=table, envelope=envelope, consistency=consistency, notes=notes, provenance=provenance,
                       recipe_text=record["provenance"].get("recipe_text", ""),
                       summary={"model_dir": str(model_dir), "pairs_file": str(pairs_path),
                                "pairs_matches_training": matches},
                       importance=importance, curve=curve, curve_model=curve_model, family_runs=family_runs,
-                      record=record, profile=profile)
+                      record=record, profile=profile, spectrum=spectrum)
 
 
 def _profile_skill(run, held, targets, notes):

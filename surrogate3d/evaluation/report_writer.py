@@ -347,6 +347,9 @@ def write_report(evaluation, out_dir, map_scenes=2):
     computed, ``importance.csv``, ``learning_curve.csv``, ``left_out_family_fits.csv`` and, with a
     profile model, ``profile_metrics.csv``, ``profile_by_height.csv`` and ``figures/profiles.png``.
 
+    A longwave evaluation gets the longwave page
+    (:func:`surrogate3d.evaluation.longwave_report.write_longwave_report`).
+
     Parameters
     ----------
     evaluation : surrogate3d.evaluation.evaluation_sets.Evaluation
@@ -360,6 +363,10 @@ def write_report(evaluation, out_dir, map_scenes=2):
     Path
         The HTML report.
     """
+    if evaluation.spectrum == "longwave":
+        from .longwave_report import write_longwave_report
+
+        return write_longwave_report(evaluation, out_dir, map_scenes)
     out_dir = Path(out_dir)
     (out_dir / "figures").mkdir(parents=True, exist_ok=True)
     table = evaluation.table

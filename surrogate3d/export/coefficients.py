@@ -25,7 +25,7 @@ from ..errors import FormatError, ParameterError, ValidationError
 from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.layer_features import LAYER_FEATURES
-from ..pairs.recipe import FeatureRecipe
+from ..pairs.longwave_features import feature_recipe_from_dict, recipe_spectrum
 from .flatten import clear_sky_gate, flatten, target_transforms, training_envelope
 
 #: Suffixes of the two files of one model.
@@ -35,6 +35,9 @@ JSON_SUFFIX = ".coefficients.json"
 #: Definition of the targets, stored with their names.
 TARGET_DEFINITION = ("3D minus independent-column flux, host-column mean, as a fraction of the incident flux on "
                      "the horizontal (S0 cos(theta0))")
+
+#: Definition of the targets of a longwave model.
+LONGWAVE_TARGET_DEFINITION = "3D minus independent-column longwave field, host-column mean, in W m-2"
 
 #: Definition of a profile model's target.
 PROFILE_DEFINITION = ("3D minus independent-column absorption of a host layer per km of its thickness, as a fraction "
@@ -88,7 +91,7 @@ def build_document(trained, report_dir=None):
     if kind != trained.kind and not profile:
         raise ValidationError(f"model {trained.name!r}: model.json says kind {trained.kind!r}; the estimator is {kind}")
     try:
-        recipe = FeatureRecipe.from_dict(card["feature_recipe"])
+        recipe = feature_recipe_from_dict(card["feature_recipe"])
     except (ParameterError, FormatError, TypeError, ValueError) as exc:
         raise FormatError(f"model {trained.name!r}: the feature recipe in model.json is not a valid feature "
                           f"recipe: {exc}") from None
@@ -116,7 +119,9 @@ def build_document(trained, report_dir=None):
         "features": {"names": names, "units": [units[n] for n in names],
                      "normalization": "standardize" if kind == "ridge" else "none"},
         "feature_recipe": recipe.to_dict(),
-        "targets": {"names": list(card["targets"]), "units": "1", "definition": TARGET_DEFINITION},
+        "targets": ({"names": list(card["targets"]), "units": "W m-2", "definition": LONGWAVE_TARGET_DEFINITION}
+                    if recipe_spectrum(recipe) == "longwave" else
+                    {"names": list(card["targets"]), "units": "1", "definition": TARGET_DEFINITION}),
         kind: arrays,
         GATE_FIELD: clear_sky_gate(estimator),
         "provenance": provenance,

@@ -5,7 +5,9 @@ any training starts, and a wrong one is named in the error with the allowed valu
 
     name = "default"                       # optional, free text
     description = "..."                    # optional
-    targets = ["surface_downward_flux", ...]  # default: all five, in the documented order
+    spectrum = "shortwave"                 # or "longwave": a longwave pair table and its targets
+    targets = ["surface_downward_flux", ...]  # default: all five (longwave: all five longwave
+                                           # fields), in the documented order
     features = "all"                       # or a list of feature names of the pairs table
 
     [split]
@@ -47,11 +49,13 @@ from pathlib import Path
 from ..errors import FormatError, ParameterError, ValidationError
 from .models import MODEL_KINDS, make_estimator
 from ..core.data_model import TARGETS
+from ..core.data_model import LONGWAVE_COLUMN_FLUXES
+from ..core.pairs_table import table_spectrum
 from .pairs_table import check_has_features, feature_names
 from .profile_model import LAYER_FIELDS, ProfileCorrection
 from .transforms import check_transform, transform_features
 
-_TOP_KEYS = {"name", "description", "targets", "features", "split", "cross_validation", "models",
+_TOP_KEYS = {"name", "description", "spectrum", "targets", "features", "split", "cross_validation", "models",
              "target_transforms", "profile"}
 _SPLIT_KEYS = {"held_out_scene_fraction", "left_out_families", "held_out_regime", "seed"}
 _CV_KEYS = {"folds", "grouping"}
@@ -105,6 +109,7 @@ class TrainingRecipe:
     target_transforms: tuple = None
     grouping: str = "scene"
     profile: dict = None
+    spectrum: str = "shortwave"
 
     def model_parameters(self, params=None):
         """Constructor parameters of a model: ``params`` plus the recipe's target transforms."""
@@ -172,10 +177,14 @@ def parse_recipe(text, source="<recipe>"):
     except tomllib.TOMLDecodeError as exc:
         raise FormatError(f"training recipe {source!r} is not valid TOML: {exc}") from None
     _check_keys(source, "the top level", raw, _TOP_KEYS)
-    targets = raw.get("targets", list(TARGETS))
-    if not isinstance(targets, list) or not targets or any(t not in TARGETS for t in targets) \
+    spectrum = raw.get("spectrum", "shortwave")
+    if spectrum not in ("shortwave", "longwave"):
+        _fail(source, "spectrum", f"must be 'shortwave' or 'longwave'; got {spectrum!r}")
+    known = list(LONGWAVE_COLUMN_FLUXES) if spectrum == "longwave" else list(TARGETS)
+    targets = raw.get("targets", known)
+    if not isinstance(targets, list) or not targets or any(t not in known for t in targets) \
             or len(set(targets)) != len(targets):
-        _fail(source, "targets", f"must be a non-empty list of distinct names from {list(TARGETS)}; got {targets!r}")
+        _fail(source, "targets", f"must be a non-empty list of distinct names from {known}; got {targets!r}")
     features = raw.get("features", "all")
     if features == "all":
         features = None
@@ -206,12 +215,15 @@ def parse_recipe(text, source="<recipe>"):
     for label in ("name", "description"):
         if not isinstance(raw.get(label, ""), str):
             _fail(source, label, f"must be a string; got {raw[label]!r}")
-    return TrainingRecipe(name=raw.get("name", Path(source).stem), description=raw.get("description", ""),
-                          targets=tuple(targets), features=None if features is None else tuple(features),
-                          held_out_scene_fraction=float(fraction), left_out_families=families,
-                          split_seed=split_seed, folds=folds, models=specs, text=text, source=source,
-                          target_transforms=_transforms(source, raw.get("target_transforms"), targets),
-                          grouping=grouping, profile=_profile(source, raw.get("profile")))
+    recipe = TrainingRecipe(name=raw.get("name", Path(source).stem), description=raw.get("description", ""),
+                            targets=tuple(targets), features=None if features is None else tuple(features),
+                            held_out_scene_fraction=float(fraction), left_out_families=families,
+                            split_seed=split_seed, folds=folds, models=specs, text=text, source=source,
+                            target_transforms=_transforms(source, raw.get("target_transforms"), targets),
+                            grouping=grouping, profile=_profile(source, raw.get("profile")), spectrum=spectrum)
+    if spectrum == "longwave" and (recipe.profile is not None or recipe.target_transforms is not None):
+        _fail(source, "[profile] and [target_transforms]", "are for shortwave recipes only")
+    return recipe
 
 
 def _profile(source, table):
@@ -301,6 +313,10 @@ def check_recipe_against_pairs(recipe, pairs):
     surrogate3d.errors.ValidationError
         Naming the missing features or targets, or the unknown regime.
     """
+    if table_spectrum(pairs) != recipe.spectrum:
+        raise ValidationError(f"training recipe {recipe.source!r} is for the {recipe.spectrum}; the pairs table is "
+                              f"a {table_spectrum(pairs)} table (set spectrum = \"{table_spectrum(pairs)}\" in the "
+                              "recipe, or give the other table)")
     features = recipe.feature_list(pairs)
     check_has_features(pairs, features, needed_by=f"training recipe {recipe.source!r}")
     for target, spec in zip(recipe.targets, recipe.target_transforms or ()):

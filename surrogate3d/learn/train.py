@@ -80,7 +80,7 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
         search = grid_search(make_estimator(spec.kind, recipe.model_parameters()), spec.candidates(), X, Y, groups,
                              recipe.folds, quiet=quiet,
                              label=f"search {spec.name}", feature_names=features,
-                             incident_flux=np.asarray(training["incident_flux"].values, dtype=np.float64))
+                             incident_flux=_incident_flux(training))
         searches[spec.name] = search
         estimator = make_estimator(spec.kind, recipe.model_parameters(search.best_params)).fit_pairs(
             training, features, targets)
@@ -105,6 +105,7 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
     record = {
         "format_version": MODEL_FORMAT_VERSION,
         "recipe_name": recipe.name,
+        "spectrum": recipe.spectrum,
         "models": [spec.name for spec in recipe.models],
         "profile_model": PROFILE_MODEL if recipe.profile is not None else None,
         "kinds": {spec.name: spec.kind for spec in recipe.models},
@@ -119,3 +120,11 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
     }
     write_training_record(out_dir, record)
     return record
+
+
+def _incident_flux(pairs):
+    """S0 cos(theta0) of every sample [W m-2], for the search's skill in W m-2; None for a
+    longwave table, whose targets are in W m-2 already."""
+    if "incident_flux" not in pairs:
+        return None
+    return np.asarray(pairs["incident_flux"].values, dtype=np.float64)

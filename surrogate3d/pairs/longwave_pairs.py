@@ -24,45 +24,17 @@ from tqdm import tqdm
 from .. import __version__
 from ..archive.longwave_results import completed_longwave, select_longwave_result
 from ..archive.netcdf import read_scene, scene_files
-from ..core.longwave_result import LONGWAVE_COLUMN_FLUXES, longwave_stderr_name
+from ..core.data_model import LONGWAVE_PAIRS_FORMAT_VERSION
+from ..core.longwave_result import longwave_stderr_name
 from ..core.validation import check_option
 from ..errors import FormatError, ParameterError
 from ..scenes.model import layer_thickness
 from ..scenes.planck import STEFAN_BOLTZMANN
-from . import features as library
 from .coarsen import block_mean, block_standard_error, host_factors, scene_host_fields
-from .recipe import DEFAULT_PARAMETERS
-
-#: Format version of the longwave pair table.
-LONGWAVE_PAIRS_FORMAT_VERSION = "1.0"
-
-#: Targets of the longwave table: the longwave column fields [W m-2].
-LONGWAVE_TARGETS = tuple(LONGWAVE_COLUMN_FLUXES)
+from .longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, LongwaveFeatureRecipe, longwave_host_features
 
 #: Spectra ``surrogate3d pairs --spectrum`` accepts.
 SPECTRA = ("shortwave", "longwave")
-
-#: Neighbourhood radii [m] of the neighbour cloud fraction: the shortwave recipe's defaults.
-NEIGHBOUR_RADII = tuple(DEFAULT_PARAMETERS["neighbour_radii"])
-
-#: Host feature name -> (units, meaning), in column order (per-radius ones expanded).
-LONGWAVE_FEATURES = {
-    "cloud_fraction": ("1", "vertically projected cloud fraction of the host column"),
-    "cloud_base_height": ("m", "bottom edge of the lowest cloudy host layer; 0 in clear columns"),
-    "cloud_top_height": ("m", "top edge of the highest cloudy host layer; 0 in clear columns"),
-    "cloud_base_air_temperature": ("K", "air temperature at cloud_base_height (layer temperatures interpolated "
-                                        "linearly in height)"),
-    "cloud_top_air_temperature": ("K", "air temperature at cloud_top_height"),
-    "cloud_side_area_per_area": ("1", "cloud_edge_length times (cloud_top_height - cloud_base_height): area of "
-                                      "cloud sides per unit horizontal area"),
-    **{library.column_name("neighbour_mean_cloud_fraction", r): (
-        "1", f"mean cloud fraction over the window reaching {r:g} m beyond the column") for r in NEIGHBOUR_RADII},
-    "liquid_water_path": ("g m-2", "column liquid water path, host-column mean"),
-    **{f"host_{flux}": ("W m-2", f"the host's independent-column {flux.removeprefix('longwave_').replace('_', ' ')}"
-                                 " (longwave_two_stream result, host-column mean)") for flux in LONGWAVE_TARGETS},
-    "surface_temperature": ("K", "surface (skin) temperature, host-column mean"),
-    "surface_longwave_emissivity": ("1", "broadband longwave surface emissivity, host-column mean"),
-}
 
 _TARGET_VARS = {
     "target_value": "3D minus independent-column longwave field, host-column mean",
@@ -90,43 +62,6 @@ _SAMPLE_META = {
 def check_spectrum(spectrum):
     """``spectrum`` if it is ``"shortwave"`` or ``"longwave"``; ParameterError otherwise."""
     return check_option("spectrum", spectrum, SPECTRA)
-
-
-def air_temperature_at(z_edge, layer_temperature, height):
-    """Air temperature [K] at ``height``, interpolated linearly in height between layer centres.
-
-    Beyond the lowest and highest layer centre the line through the two nearest centres
-    is extended (a lapse rate holds to the surface); one layer gives its own temperature.
-
-    Parameters
-    ----------
-    z_edge : ndarray (nz + 1,)
-        Layer edge heights [m].
-    layer_temperature : ndarray (nz, ny, nx)
-        Air temperature of each host layer [K].
-    height : ndarray (ny, nx)
-        Height in each column [m].
-
-    Returns
-    -------
-    ndarray (ny, nx)
-
-    Examples
-    --------
-    >>> t = np.array([285.0, 275.0])[:, None, None] * np.ones((2, 1, 1))
-    >>> float(air_temperature_at(np.array([0.0, 1000.0, 2000.0]), t, np.array([[0.0]]))[0, 0])
-    290.0
-    """
-    centre = 0.5 * (z_edge[1:] + z_edge[:-1])
-    t = np.asarray(layer_temperature, dtype=np.float64)
-    if centre.size == 1:
-        return np.broadcast_to(t[0], np.shape(height)).copy()
-    # Index k of the lower centre of the bracketing pair, clamped so the ends extrapolate.
-    k = np.clip(np.searchsorted(centre, height) - 1, 0, centre.size - 2)
-    lower = np.take_along_axis(t, k[None], axis=0)[0]
-    upper = np.take_along_axis(t, k[None] + 1, axis=0)[0]
-    weight = (height - centre[k]) / (centre[k + 1] - centre[k])
-    return lower + weight * (upper - lower)
 
 
 def longwave_host_fields(scene, host_resolution):
@@ -157,44 +92,6 @@ def longwave_host_fields(scene, host_resolution):
         "liquid_water_path": block_mean(lwp, fy, fx),
     })
     return fields
-
-
-def longwave_host_features(fields, host_fluxes):
-    """The longwave features of :data:`LONGWAVE_FEATURES` from host fields.
-
-    Parameters
-    ----------
-    fields : dict
-        :func:`longwave_host_fields`.
-    host_fluxes : dict of str -> ndarray (Ny, Nx)
-        The host's independent-column longwave fields [W m-2], keys :data:`LONGWAVE_TARGETS`.
-
-    Returns
-    -------
-    dict of str -> ndarray (Ny, Nx)
-        Keys in the order of :data:`LONGWAVE_FEATURES`.
-    """
-    base = library.cloud_base_height(fields)
-    top = library.cloud_top_height(fields)
-    z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
-    out = {
-        "cloud_fraction": library.cloud_fraction(fields),
-        "cloud_base_height": base,
-        "cloud_top_height": top,
-        "cloud_base_air_temperature": air_temperature_at(z_edge, fields["layer_air_temperature"], base),
-        "cloud_top_air_temperature": air_temperature_at(z_edge, fields["layer_air_temperature"], top),
-        # Edge length per area times the cloud's depth: the sides of a column of cloud
-        # (gaps between separate layers count as cloud; the host knows no better).
-        "cloud_side_area_per_area": library.cloud_edge_length(fields) * (top - base),
-    }
-    for radius in NEIGHBOUR_RADII:
-        out[library.column_name("neighbour_mean_cloud_fraction", radius)] = \
-            library.neighbour_mean_cloud_fraction(fields, float(radius))
-    out["liquid_water_path"] = np.asarray(fields["liquid_water_path"], dtype=np.float64)
-    out.update({f"host_{flux}": np.asarray(host_fluxes[flux], dtype=np.float64) for flux in LONGWAVE_TARGETS})
-    out["surface_temperature"] = np.asarray(fields["surface_temperature"], dtype=np.float64)
-    out["surface_longwave_emissivity"] = np.asarray(fields["surface_longwave_emissivity"], dtype=np.float64)
-    return out
 
 
 def coarsen_longwave_result(result, fy, fx):
@@ -362,6 +259,7 @@ def _assemble(blocks, fingerprint, skipped, resolutions):
         "archive_fingerprint": fingerprint,
         "host_resolutions": json.dumps(resolutions),
         "host_fluxes": "longwave_two_stream",
+        "feature_recipe": LongwaveFeatureRecipe().to_json(),
         "skipped": json.dumps(skipped),
         "source": f"surrogate3d {__version__} pairs --spectrum longwave",
     })

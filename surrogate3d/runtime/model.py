@@ -14,6 +14,8 @@ import numpy as np
 
 from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
+from ..pairs.longwave_features import LONGWAVE_TARGETS, feature_recipe_from_dict, longwave_host_features, \
+    recipe_spectrum
 from ..pairs.recipe import FeatureRecipe
 from ..core.coefficient_format import (PROFILE_FIELD, check_document, clear_sky_gate, document_from_json,
                                        target_transforms)
@@ -41,9 +43,12 @@ class CorrectionModel:
         The model's input columns, in order, and their units.
     target_names : list of str
         The predicted corrections, in order: 3D minus independent-column flux as a
-        fraction of the incident flux on the horizontal [1].
-    recipe : surrogate3d.pairs.recipe.FeatureRecipe
+        fraction of the incident flux on the horizontal [1]; for a longwave model 3D
+        minus independent column of the longwave fields [W m-2].
+    recipe : surrogate3d.pairs.recipe.FeatureRecipe or surrogate3d.pairs.longwave_features.LongwaveFeatureRecipe
         The feature recipe of the training pairs (names, parameters).
+    spectrum : str
+        ``"shortwave"`` or ``"longwave"`` (the recipe's).
     clear_sky_features : list of str
         The clear-sky gate: where every one of these features has
         ``|x| <= clear_sky_tolerance``, the correction is exactly 0 (empty: no gate).
@@ -82,13 +87,19 @@ class CorrectionModel:
         self.layer_feature_names = list((document.get(PROFILE_FIELD) or {}).get("layer_features", []))
         n_column = len(self.feature_names) - len(self.layer_feature_names)
         self.column_feature_names = self.feature_names[:n_column]
-        unknown = [t for t in self.target_names if t not in TARGETS]
+        self.recipe = _recipe(document, self.column_feature_names, self.feature_units[:n_column], source)
+        self.spectrum = recipe_spectrum(self.recipe)
+        known = LONGWAVE_TARGETS if self.spectrum == "longwave" else TARGETS
+        unknown = [t for t in self.target_names if t not in known]
         if unknown and not self.layer_feature_names:
             raise FormatError(f"coefficient file {source!r}: targets.names has unknown targets {unknown}; "
-                              f"known: {list(TARGETS)}")
-        self.recipe = _recipe(document, self.column_feature_names, self.feature_units[:n_column], source)
-        producer = _column_producers(self.recipe)
-        self._needed = [f for f in self.recipe.features if any(producer[c] == f for c in self.column_feature_names)]
+                              f"known: {list(known)}")
+        if self.spectrum == "longwave":
+            self._needed = list(self.column_feature_names)
+        else:
+            producer = _column_producers(self.recipe)
+            self._needed = [f for f in self.recipe.features
+                            if any(producer[c] == f for c in self.column_feature_names)]
         self._gate, self.clear_sky_tolerance = clear_sky_gate(document)
         self.clear_sky_features = [self.feature_names[k] for k in self._gate]
         self.envelope = training_envelope(document)
@@ -245,13 +256,17 @@ class CorrectionModel:
         host_fields : dict of ndarray
             Host fields on a periodic ``(ny, nx)`` grid (see
             :mod:`surrogate3d.pairs.features`), or on a sub-domain with a halo; only those
-            the model's features use are needed.
+            the model's features use are needed.  A longwave model reads the fields of
+            :func:`surrogate3d.pairs.longwave_features.longwave_host_features` and the
+            host's own independent-column longwave fields under their target names
+            (``longwave_surface_downward_flux`` ... [W m-2]).
         halo : int or (int, int), optional
             The fields are those of a sub-domain with a halo this wide (columns, or
             ``(hx, hy)``), at least what the features read
             (:func:`surrogate3d.runtime.halo.halo_width`); the features are those of the
             sub-domain's own columns, equal to the whole periodic domain's
-            (:func:`~surrogate3d.runtime.halo.subdomain_features`).  Default: periodic.
+            (:func:`~surrogate3d.runtime.halo.subdomain_features`).  Default: periodic
+            (the only mode of a longwave model).
 
         Returns
         -------
@@ -263,6 +278,8 @@ class CorrectionModel:
         surrogate3d.errors.ValidationError
             Missing or malformed host fields.
         """
+        if self.spectrum == "longwave":
+            return self._longwave_features(host_fields, halo)
         recipe = FeatureRecipe(self._needed, self.recipe.parameters, name=self.recipe.name)
         columns = recipe.column_names()
         matrix = compute_features(host_fields, recipe) if halo is None else subdomain_features(host_fields, recipe,
@@ -270,6 +287,15 @@ class CorrectionModel:
         if columns == self.column_feature_names:
             return matrix
         return matrix[:, [columns.index(name) for name in self.column_feature_names]]
+
+    def _longwave_features(self, host_fields, halo):
+        if halo is not None:
+            raise ParameterError(f"model {self.name!r} is a longwave model: its features are computed on periodic "
+                                 "host grids only (no halo mode yet)")
+        fluxes = {flux: host_fields[flux] for flux in LONGWAVE_TARGETS if flux in host_fields}
+        values = longwave_host_features(host_fields, fluxes)
+        return np.stack([np.asarray(values[name], dtype=np.float64).ravel() for name in self.column_feature_names],
+                        axis=1)
 
     def predict_profile(self, column_features, layer_fields, column_correction=None, check_envelope=True):
         """The heating-rate model's absorption correction of every host layer.
@@ -353,7 +379,7 @@ def _column_producers(recipe):
 
 def _recipe(document, names, units, source):
     try:
-        recipe = FeatureRecipe.from_dict(document["feature_recipe"])
+        recipe = feature_recipe_from_dict(document["feature_recipe"])
     except (ParameterError, FormatError, TypeError, ValueError) as exc:
         raise FormatError(f"coefficient file {source!r}: feature_recipe is not a valid feature recipe: {exc}") from None
     columns = dict(zip(recipe.column_names(), recipe.column_units()))

@@ -175,3 +175,21 @@ def test_archive_without_longwave_results_is_refused(tmp_path):
     write_scene(scene(4), tmp_path / "s_00004.nc")
     with pytest.raises(FormatError, match="no scene with both longwave_full_3d and longwave_independent_column"):
         build_longwave_pairs(tmp_path, [HOST], quiet=True)
+
+
+def test_table_names_its_longwave_feature_recipe(pairs):
+    from surrogate3d.pairs.longwave_features import LongwaveFeatureRecipe, feature_recipe_from_dict
+    from surrogate3d.pairs.recipe import FeatureRecipe
+
+    recipe = feature_recipe_from_dict(json.loads(pairs.attrs["feature_recipe"]))
+    assert recipe == LongwaveFeatureRecipe()
+    assert recipe.column_names() == list(pairs["feature"].values)
+    assert recipe.column_units() == json.loads(pairs["features"].attrs["units"])
+    # A shortwave recipe reads as before, with or without the spectrum key.
+    shortwave = FeatureRecipe(["cloud_fraction"])
+    assert feature_recipe_from_dict(shortwave.to_dict()) == shortwave
+    assert feature_recipe_from_dict({**shortwave.to_dict(), "spectrum": "shortwave"}) == shortwave
+    with pytest.raises(ParameterError, match="unknown longwave feature name"):
+        LongwaveFeatureRecipe(["cloud_fraction", "cos_solar_zenith"])
+    with pytest.raises(ParameterError, match="spectrum must be 'shortwave' or 'longwave'"):
+        feature_recipe_from_dict({"spectrum": "thermal", "features": []})

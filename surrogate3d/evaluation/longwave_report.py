@@ -1,0 +1,283 @@
+"""The report files of a longwave evaluation (``surrogate3d evaluate`` on longwave models).
+
+The longwave targets are in W m-2 and have no sun, no consistency step and no published
+baseline (``docs/methods/longwave.md``), so the page is the shortwave report's shape cut
+to what applies: the skill of every model next to no correction (the share of the
+independent column's RMSE each removes), broken down by regime, cloud fraction and host
+resolution, the leave-one-family-out set, maps, scatter, error histograms, importance,
+learning curve and the training envelope.
+"""
+
+import html
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .. import __version__
+from .._atomic import write_bytes_atomic, write_text_atomic
+from ..learn.pairs_table import scene_table, target_matrix
+from . import figures
+from .breakdown import LONGWAVE_BREAKDOWNS
+from .family_transfer import LEFT_OUT
+from .html_page import render_page
+from .predictions import NO_CORRECTION
+from .tables import breakdown_pivot, to_html, to_markdown
+
+#: The flux the summary, the maps and the family figure show.
+HEADLINE_TARGET = "longwave_surface_downward_flux"
+
+#: Metric columns of the headline table and their titles (all of the W m-2 errors).
+_HEADLINE = {"n": "n", "skill": "skill (share of the ICA RMSE removed)", "noise_floor_skill": "noise floor",
+             "noise_corrected_skill": "noise-corrected skill", "rmse": "RMSE [W m-2]",
+             "rmse_no_correction": "RMSE no correction [W m-2]", "mae": "MAE [W m-2]", "bias": "bias [W m-2]",
+             "r2": "R2"}
+
+_DEFINITIONS = """
+<p>A correction <i>p</i> of a target with benchmark value <i>t</i> (3D minus independent column of a longwave
+field, host-column mean, W m-2) gives the corrected field ICA + <i>p</i>, whose error against the 3D benchmark is
+<i>e</i> = <i>p</i> &minus; <i>t</i>; <i>s</i> is the Monte Carlo standard error of <i>t</i>.</p>
+<ul>
+<li>RMSE = sqrt(mean(<i>e</i>&sup2;)), MAE = mean(|<i>e</i>|), bias = mean(<i>e</i>),
+R2 = 1 &minus; &Sigma;<i>e</i>&sup2; / &Sigma;(<i>t</i> &minus; mean <i>t</i>)&sup2;.</li>
+<li>skill = 1 &minus; RMSE / RMSE(no correction), with RMSE(no correction) = sqrt(mean(<i>t</i>&sup2;)): the
+share of the independent column's RMSE the correction removes; 1 is perfect, 0 no better than the independent
+column, below 0 worse.</li>
+<li>noise floor = 1 &minus; sqrt(mean(<i>s</i>&sup2;)) / RMSE(no correction): the skill of a perfect model scored
+against noisy benchmarks; the noise-corrected skill removes the benchmark noise from both mean squares.</li>
+<li>Training envelope: a column is flagged when a feature lies outside its training range or its Mahalanobis
+distance from the model's training columns exceeds the distance 99 % of them stay within.</li>
+</ul>
+<p>Details and references: docs/methods/models-and-metrics.md and docs/methods/longwave.md.</p>
+"""
+
+
+def _headline_target(targets):
+    return HEADLINE_TARGET if HEADLINE_TARGET in targets else targets[0]
+
+
+def _rows(table, label, breakdown="all"):
+    return table[(table["evaluation_set"] == label) & (table["breakdown"] == breakdown)]
+
+
+def headline_table(table, label):
+    """One row per (target, predictor) of an evaluation set with the metrics of :data:`_HEADLINE`."""
+    rows = _rows(table, label)
+    return rows[["target", "predictor", *_HEADLINE]].rename(columns=_HEADLINE).reset_index(drop=True)
+
+
+def _image(png, caption):
+    import base64
+
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<figure><img alt="{html.escape(caption[:80])}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{html.escape(caption)}</figcaption></figure>")
+
+
+def _map_domains(eval_set, targets, model, n_scenes):
+    """Up to ``n_scenes`` domains of the set (one per regime first, the cloudiest scene of each), finest resolution."""
+    pairs = eval_set.pairs
+    m = targets.index(HEADLINE_TARGET)
+    scene_of = np.asarray(pairs["scene"].values).astype(str)
+    resolution = np.asarray(pairs["host_resolution"].values)
+    cloud = np.asarray(pairs["cloud_fraction"].values)
+    by_regime = {}
+    for scene, (regime, _) in scene_table(pairs).items():
+        by_regime.setdefault(regime, []).append(scene)
+    ranked = sorted((sorted(scenes, key=lambda s: -cloud[scene_of == s].mean()) for scenes in by_regime.values()),
+                    key=lambda scenes: -cloud[scene_of == scenes[0]].mean())
+    chosen = [scenes[0] for scenes in ranked if cloud[scene_of == scenes[0]].mean() > 0][:n_scenes]
+    ica = target_matrix(pairs, targets, "independent_column_flux")[:, m]
+    full = target_matrix(pairs, targets, "full_3d_flux")[:, m]
+    domains = []
+    for scene in chosen:
+        here = scene_of == scene
+        finest = resolution[here].min()
+        idx = np.flatnonzero(here & (resolution == finest))
+        sub = pairs.isel(sample=idx)
+        domains.append({"title": f"{scene}: longwave, {finest / 1000:g} km host columns", "resolution": float(finest),
+                        "ica": figures.host_map(sub, ica[idx]), "full_3d": figures.host_map(sub, full[idx]),
+                        "corrected": figures.host_map(sub, ica[idx] + eval_set.predictions[model][idx, m])})
+    return domains
+
+
+def _figures(evaluation, map_scenes):
+    """All figures as (file stem, caption, PNG bytes), in report order."""
+    out = []
+    targets = evaluation.targets
+    table = evaluation.table
+    target = _headline_target(targets)
+    for k, eval_set in enumerate(evaluation.sets):
+        stem = "main" if k == 0 else "left_out_families"
+        predictors = list(eval_set.predictions)
+        out.append((f"{stem}_skill", f"Skill (share of the independent column's RMSE removed) of every predictor on the "
+                    f"{eval_set.label}, per longwave target; dotted: the noise floor.",
+                    figures.to_png(figures.skill_bars(_rows(table, eval_set.label), targets, predictors,
+                                                      f"Longwave skill on the {eval_set.label}"))))
+        if eval_set.label == LEFT_OUT:
+            rows = _rows(table, LEFT_OUT, "regime")
+            rows = rows[rows["target"] == target]
+            families = list(dict.fromkeys(rows.sort_values("group_order")["group"]))
+            out.append(("left_out_families_by_family", f"Skill for {target.replace('_', ' ')} on each family, "
+                        "scored with the models trained without it.",
+                        figures.to_png(figures.group_skill_bars(rows, families, predictors,
+                                                                f"{target}: skill on each left-out family",
+                                                                "left-out family"))))
+        if k > 0:
+            continue
+        overall = _rows(table, eval_set.label)
+        best_rows = overall[overall["predictor"].isin(eval_set.models) & (overall["target"] == target)]
+        best = str(best_rows.sort_values("skill", ascending=False)["predictor"].iloc[0])
+        domains = _map_domains(eval_set, targets, best, map_scenes) if HEADLINE_TARGET in targets else []
+        if domains:
+            out.append(("maps", f"Surface downward longwave flux of the cloudiest held-out scenes: independent column, "
+                        f"3D benchmark, corrected by {best}, and the errors of the corrected and uncorrected fluxes.",
+                        figures.to_png(figures.flux_maps(domains, best))))
+        true = target_matrix(eval_set.pairs, targets)
+        out.append(("scatter", f"Predicted against true (3D minus independent column) longwave correction on the "
+                    f"{eval_set.label} [W m-2]; the true values carry Monte Carlo noise.",
+                    figures.to_png(figures.correction_scatter(true, {n: eval_set.predictions[n]
+                                                                     for n in eval_set.models}, targets))))
+        errors = {name: p - true for name, p in eval_set.predictions.items()}
+        out.append(("error_histograms", f"Distribution of the corrected minus 3D longwave field on the "
+                    f"{eval_set.label} [W m-2] (logarithmic counts); '{NO_CORRECTION}' is the independent-column "
+                    "error.", figures.to_png(figures.error_histograms(errors, targets))))
+        if evaluation.importance:
+            out.append(("importance", f"Permutation importance on the {eval_set.label}: the drop in target-averaged "
+                        "skill when a feature is shuffled among the samples of each scene.",
+                        figures.to_png(figures.importance_bars(evaluation.importance))))
+        if evaluation.curve is not None:
+            full = overall[overall["predictor"] == evaluation.curve_model]["skill"].mean()
+            out.append(("learning_curve", f"Held-out skill of {evaluation.curve_model} refitted on growing subsets "
+                        "of the training scenes, per target and averaged over targets.",
+                        figures.to_png(figures.learning_curve_plot(evaluation.curve, evaluation.curve_model,
+                                                                   full_skill=float(full)))))
+    return out
+
+
+def _write_tables(evaluation, out_dir):
+    table = evaluation.table
+    write_text_atomic(out_dir / "metrics.csv", table[table["breakdown"] == "all"].to_csv(index=False))
+    md = ["# Longwave skill on held-out data\n\nskill = share of the independent column's RMSE removed "
+          "(errors in W m-2)\n"]
+    for eval_set in evaluation.sets:
+        md += [f"\n## {eval_set.label}\n\n", to_markdown(headline_table(table, eval_set.label))]
+    write_text_atomic(out_dir / "metrics.md", "".join(md))
+    for breakdown in LONGWAVE_BREAKDOWNS[1:]:
+        rows = table[table["breakdown"] == breakdown]
+        if rows.empty:
+            continue
+        write_text_atomic(out_dir / f"breakdown_{breakdown}.csv", rows.to_csv(index=False))
+        md = [f"# Longwave skill by {breakdown.replace('_', ' ')}\n"]
+        for eval_set in evaluation.sets:
+            if breakdown in eval_set.breakdowns:
+                md += [f"\n## {eval_set.label}: skill\n\n", to_markdown(breakdown_pivot(table, eval_set.label,
+                                                                                         breakdown)),
+                       f"\n## {eval_set.label}: RMSE [W m-2]\n\n",
+                       to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse"))]
+        write_text_atomic(out_dir / f"breakdown_{breakdown}.md", "".join(md))
+    if evaluation.importance:
+        importance = pd.concat([t.assign(model=name) for name, t in evaluation.importance.items()], ignore_index=True)
+        write_text_atomic(out_dir / "importance.csv", importance.to_csv(index=False))
+    if evaluation.curve is not None:
+        write_text_atomic(out_dir / "learning_curve.csv",
+                          evaluation.curve.assign(model=evaluation.curve_model).to_csv(index=False))
+    if evaluation.family_runs is not None:
+        write_text_atomic(out_dir / "left_out_family_fits.csv", evaluation.family_runs.to_csv(index=False))
+    write_text_atomic(out_dir / "envelope.csv", evaluation.envelope.to_csv(index=False))
+
+
+def _summary(evaluation):
+    table = evaluation.table
+    envelope = evaluation.envelope[(evaluation.envelope["group"] == "all")
+                                   & (evaluation.envelope["target"] == evaluation.targets[0])]
+    return {
+        "package_version": __version__, **evaluation.summary, "spectrum": "longwave", "consistency": False,
+        "evaluation_sets": {s.label: int(s.pairs.sizes["sample"]) for s in evaluation.sets},
+        "skill_units": "W m-2",
+        "skill": {s.label: {f"{r.predictor} | {r.target}": r.skill for r in _rows(table, s.label).itertuples()}
+                  for s in evaluation.sets},
+        "share_outside_envelope": {s.label: {r.predictor: (None if pd.isna(r.share_outside) else r.share_outside)
+                                             for r in envelope[envelope["evaluation_set"] == s.label].itertuples()}
+                                   for s in evaluation.sets},
+        "notes": evaluation.notes,
+    }
+
+
+def _envelope_view(evaluation, target):
+    rows = evaluation.envelope[evaluation.envelope["target"] == target]
+    if rows.empty:
+        return rows
+    view = rows[["evaluation_set", "predictor", "group", "n", "outside"]].copy()
+    view["outside [%]"] = 100.0 * rows["share_outside"]
+    view["skill inside"] = rows["skill_inside"]
+    view["skill outside"] = rows["skill_outside"]
+    return view.rename(columns={"evaluation_set": "evaluation set", "outside": "flagged"})
+
+
+def write_longwave_report(evaluation, out_dir, map_scenes=2):
+    """Write the report files of a longwave evaluation.
+
+    Files (each written atomically): ``report.html`` (self-contained), ``metrics.csv``
+    and ``metrics.md`` (whole evaluation sets, W m-2 rows only), ``breakdown_<name>.csv``
+    and ``.md`` (regime, cloud fraction, host resolution), ``envelope.csv``,
+    ``summary.json``, ``figures/*.png`` and, when computed, ``importance.csv``,
+    ``learning_curve.csv`` and ``left_out_family_fits.csv``.
+
+    Parameters
+    ----------
+    evaluation : surrogate3d.evaluation.evaluation_sets.Evaluation
+        From :func:`surrogate3d.evaluation.report.evaluate` on a longwave model directory.
+    out_dir : str or Path
+        Created if missing.
+    map_scenes : int
+        Held-out scenes shown as maps.
+
+    Returns
+    -------
+    Path
+        The HTML report.
+    """
+    out_dir = Path(out_dir)
+    (out_dir / "figures").mkdir(parents=True, exist_ok=True)
+    table = evaluation.table
+    _write_tables(evaluation, out_dir)
+    write_text_atomic(out_dir / "summary.json", json.dumps(_summary(evaluation), indent=2) + "\n")
+    figure_set = _figures(evaluation, map_scenes)
+    for stem, _, png in figure_set:
+        write_bytes_atomic(out_dir / "figures" / f"{stem}.png", png)
+    images = {stem: _image(png, caption) for stem, caption, png in figure_set}
+    first = evaluation.sets[0]
+    target = _headline_target(evaluation.targets)
+    intro = evaluation.intro + "".join(f"<p class='note'>{html.escape(n)}</p>" for n in evaluation.notes)
+    sections = [("Summary", intro + images["main_skill"] + to_html(headline_table(table, first.label)))]
+    for stem, title in (("maps", f"Maps of sample scenes ({first.label})"),
+                        ("scatter", "Predicted against true correction"), ("error_histograms", "Error distributions"),
+                        ("importance", "Feature importance"), ("learning_curve", "Learning curve")):
+        if stem in images:
+            sections.append((title, images[stem]))
+    for breakdown in LONGWAVE_BREAKDOWNS[1:]:
+        sections.append((f"Skill by {breakdown.replace('_', ' ')}",
+                         to_html(breakdown_pivot(table, first.label, breakdown))
+                         + "<h3>RMSE [W m-2]</h3>" + to_html(breakdown_pivot(table, first.label, breakdown, "rmse"))))
+    for eval_set in evaluation.sets[1:]:
+        runs = evaluation.family_runs
+        text = (f"<p>Every model refitted without each family (regime) with the hyperparameters the training run "
+                f"chose, and scored on every scene of that family ({eval_set.pairs.sizes['sample']} samples; "
+                f"{len(runs)} fits, {runs['fit_cpu_seconds'].sum():.0f} s of CPU).</p>")
+        sections.append(("Leave-one-family-out", text + images["left_out_families_skill"]
+                         + to_html(headline_table(table, LEFT_OUT)) + images["left_out_families_by_family"]
+                         + "<h3>Skill on each left-out family</h3>" + to_html(breakdown_pivot(table, LEFT_OUT,
+                                                                                              "regime"))))
+    sections.append(("Training envelope", "<p>Columns outside each model's training envelope and the skill for "
+                     f"{html.escape(target)} on the flagged and the other columns.</p>"
+                     + to_html(_envelope_view(evaluation, target))))
+    sections.append(("Definitions", _DEFINITIONS))
+    provenance = to_html(pd.DataFrame([{"item": k, "value": v} for k, v in evaluation.provenance]))
+    if evaluation.recipe_text:
+        provenance += f"<h3>Training recipe</h3><pre>{html.escape(evaluation.recipe_text)}</pre>"
+    sections.append(("Provenance", provenance))
+    write_text_atomic(out_dir / "report.html", render_page(evaluation.title, sections,
+                                                           footer=f"surrogate3d {__version__}"))
+    return out_dir / "report.html"
