@@ -1,4 +1,5 @@
-"""The embedded default run: synthetic scenes -> benchmarks -> pairs -> models -> report -> export.
+"""The embedded default run: synthetic scenes -> benchmarks -> pairs -> models -> report -> export,
+for the shortwave and then the longwave correction.
 
 Every stage writes into one output directory and is skipped on a second run when its
 output is already there and up to date, so an interrupted demo continues where it stopped.
@@ -19,7 +20,7 @@ from ._outputs import staged_directory
 from .core.validation import check_integer
 from .errors import Surrogate3DError
 
-STAGES = ("scenes", "simulate", "pairs", "train", "evaluate", "export")
+STAGES = ("scenes", "simulate", "pairs", "train", "evaluate", "export", "longwave")
 
 
 @dataclass
@@ -56,6 +57,10 @@ class DemoPaths:
     def summary(self):
         return self.root / "summary.md"
 
+    def longwave(self, name):
+        """The longwave counterpart of a stage's output: ``longwave/<name>``."""
+        return self.root / "longwave" / name
+
 
 def _data(name):
     return resources.files("surrogate3d").joinpath("data", name).read_text(encoding="utf-8")
@@ -77,9 +82,13 @@ def demo_settings(quick=False):
         settings["simulate"].update(zeniths=q["zeniths"], photons=q["photons"])
         settings["pairs"]["host_resolutions"] = q["host_resolutions"]
         settings["evaluate"].update({k: q[k] for k in ("learning_curve_points", "importance_repeats", "map_scenes")})
+        settings["longwave"].update(photons=q["longwave_photons"],
+                                    spectral_resolution=q["longwave_spectral_resolution"],
+                                    host_resolutions=q["host_resolutions"])
     settings["scenes"] = parse_config(scenes, source="demo-scenes.toml")
     settings["feature_recipe"] = FeatureRecipe.from_dict(tomllib.loads(_data("demo-features.toml")))
     settings["recipe"] = recipe
+    settings["longwave_recipe"] = _data("demo-longwave-recipe.toml")
     return settings
 
 
@@ -130,32 +139,29 @@ def _warm_up_compiled_kernels():
     solve_monte_carlo(scene, 30.0, photons=200, threads=1, independent_columns=True)
 
 
-def _pairs_up_to_date(paths, feature_recipe):
+def _pairs_up_to_date(pairs, fingerprint, feature_recipe):
     from .core.netcdf import open_dataset
-    from .pairs.build import archive_fingerprint
 
-    if not paths.pairs.is_file():
+    if not pairs.is_file():
         return False
     try:
-        attrs = open_dataset(paths.pairs).attrs
+        attrs = open_dataset(pairs).attrs
     except Surrogate3DError:
         return False
-    return (attrs.get("archive_fingerprint") == archive_fingerprint(paths.archive)
-            and attrs.get("feature_recipe") == feature_recipe.to_json())
+    return attrs.get("archive_fingerprint") == fingerprint and attrs.get("feature_recipe") == feature_recipe.to_json()
 
 
-def _training_up_to_date(paths):
+def _training_up_to_date(models, pairs, recipe):
     from .learn.model_directory import file_sha256
 
-    record = paths.models / "training.json"
+    record = models / "training.json"
     if not record.is_file():
         return False
     try:
         provenance = json.loads(record.read_text())["provenance"]
     except (OSError, ValueError, KeyError):
         return False
-    return provenance.get("pairs_sha256") == file_sha256(paths.pairs) and provenance.get("recipe_text") == \
-        paths.recipe.read_text()
+    return provenance.get("pairs_sha256") == file_sha256(pairs) and provenance.get("recipe_text") == recipe.read_text()
 
 
 def _newer(target, source):
@@ -208,7 +214,9 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
 
     resolutions = settings["pairs"]["host_resolutions"]
     stages.begin(3, "pairs", f"training pairs at host resolution {', '.join(f'{r:g}' for r in resolutions)} m")
-    if _pairs_up_to_date(paths, settings["feature_recipe"]):
+    from .pairs.build import archive_fingerprint
+
+    if _pairs_up_to_date(paths.pairs, archive_fingerprint(paths.archive), settings["feature_recipe"]):
         stages.end(f"reused {paths.pairs}")
     else:
         from .core.netcdf import write_dataset
@@ -220,7 +228,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     stages.begin(4, "train", "ridge and gradient-boosted corrections, scene-grouped cross-validation")
     if not (paths.recipe.is_file() and paths.recipe.read_text() == settings["recipe"]):
         write_text_atomic(paths.recipe, settings["recipe"])
-    if _training_up_to_date(paths):
+    if _training_up_to_date(paths.models, paths.pairs, paths.recipe):
         stages.end(f"reused {paths.models}")
     else:
         with staged_directory(paths.models, replace=True, marker="training.json") as staging:
@@ -250,7 +258,9 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
                               f"Exported from {paths.models} with the skill table of {paths.report}.\n")
         stages.end(f"wrote {paths.export}")
 
-    summary = summarize(paths, Path(page))
+    longwave_page = _longwave_stages(paths, settings, jobs, quiet, stages)
+
+    summary = summarize(paths, Path(page), longwave_page)
     write_text_atomic(paths.summary, summary["markdown"])
     if not quiet:
         print(summary["markdown"])
@@ -258,8 +268,94 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     return summary
 
 
-def summarize(paths, page):
-    """The summary table (held-out skill of every model and baseline) and the output paths."""
+def _warm_up_thermal_kernels():
+    # As _warm_up_compiled_kernels, for the thermal Monte Carlo.
+    from .scenes.generator import generate_scene
+    from .solvers.longwave_scene import solve_longwave_scene
+
+    scene = generate_scene("scattered_cumulus", 0, nx=2, ny=2, nz=2)
+    for kind in ("longwave_full_3d", "longwave_independent_column"):
+        solve_longwave_scene(scene, kind, photons=200, resolution=50000.0)
+
+
+def _longwave_stages(paths, settings, jobs, quiet, stages):
+    """The longwave part of the demo: benchmarks, pairs, models, report and export; returns the report page."""
+    from .archive.simulate import simulate_archive
+    from .core.netcdf import write_dataset
+    from .evaluation.report import evaluate, write_report
+    from .export.exporter import export_training_run
+    from .learn.train import train_models
+    from .pairs.longwave_features import LongwaveFeatureRecipe
+    from .pairs.longwave_pairs import build_longwave_pairs, longwave_fingerprint
+
+    lw = settings["longwave"]
+    stages.begin(7, "longwave", f"thermal benchmarks ({lw['photons']} photons, {lw['spectral_resolution']:g} cm-1 "
+                                f"intervals), pairs, models, report and export in {paths.longwave('')}")
+    paths.longwave("").mkdir(parents=True, exist_ok=True)
+    _warm_up_thermal_kernels()
+    done = simulate_archive(paths.archive, spectrum="longwave", photons=lw["photons"], seed=settings["simulate"]["seed"],
+                            n_jobs=jobs, quiet=quiet, longwave_resolution=lw["spectral_resolution"])
+    pairs, models, report, export = (paths.longwave(n) for n in ("pairs.nc", "models", "report", "export"))
+    recipe = paths.longwave("recipe.toml")
+    steps = [f"{done['computed']} runs computed, {done['skipped']} reused"]
+    if _pairs_up_to_date(pairs, longwave_fingerprint(paths.archive), LongwaveFeatureRecipe()):
+        steps.append("pairs reused")
+    else:
+        write_dataset(build_longwave_pairs(paths.archive, lw["host_resolutions"], quiet=quiet), pairs)
+        steps.append("pairs written")
+    if not (recipe.is_file() and recipe.read_text() == settings["longwave_recipe"]):
+        write_text_atomic(recipe, settings["longwave_recipe"])
+    if _training_up_to_date(models, pairs, recipe):
+        steps.append("models reused")
+    else:
+        with staged_directory(models, replace=True, marker="training.json") as staging:
+            train_models(pairs, recipe, staging, quiet=quiet)
+        steps.append("models trained")
+    page = report / "report.html"
+    if _newer(page, models / "training.json"):
+        steps.append("report reused")
+    else:
+        ev = settings["evaluate"]
+        evaluation = evaluate(models, pairs, learning_curve_points=ev["learning_curve_points"],
+                              importance_repeats=ev["importance_repeats"], quiet=quiet)
+        with staged_directory(report, marker="report.html") as staging:
+            write_report(evaluation, staging, map_scenes=ev["map_scenes"])
+        steps.append("report written")
+    marker = export / "README.txt"
+    if _newer(marker, page):
+        steps.append("export reused")
+    else:
+        with staged_directory(export, marker=marker.name) as staging:
+            export_training_run(models, staging, report_dir=report, fortran=True, pairs_path=pairs)
+            write_text_atomic(staging / marker.name, f"Exported from {models} with the skill table of {report}.\n")
+        steps.append("export written")
+    stages.end(", ".join(steps))
+    return page
+
+
+def _skill_table(table, lines):
+    """Markdown lines of the held-out and left-out skill tables (headline units) of a metric table."""
+    from .evaluation.metrics import HEADLINE_UNITS
+
+    held = table[(table["breakdown"] == "all") & (table["units"] == HEADLINE_UNITS)]
+    for name in dict.fromkeys(held["evaluation_set"]):
+        part = held[held["evaluation_set"] == name]
+        targets = list(dict.fromkeys(part["target"]))
+        lines.append(f"### {name}")
+        lines.append("")
+        lines.append("| predictor | " + " | ".join(targets) + " |")
+        lines.append("|---|" + "---|" * len(targets))
+        for predictor in dict.fromkeys(part["predictor"]):
+            rows = part[part["predictor"] == predictor].set_index("target")
+            cells = [f"{rows.loc[t, 'skill']:.2f} ({rows.loc[t, 'rmse']:.1f})" if t in rows.index else "-"
+                     for t in targets]
+            lines.append(f"| {predictor} | " + " | ".join(cells) + " |")
+        lines.append("")
+    return held
+
+
+def summarize(paths, page, longwave_page=None):
+    """The summary tables (held-out skill of every model and baseline, shortwave and longwave) and the output paths."""
     import pandas as pd
 
     from .evaluation.metrics import HEADLINE_UNITS
@@ -290,12 +386,18 @@ def summarize(paths, page):
         lines += [f"| {r.predictor} | {r.quantity} | {r.units} | {r.rmse_reduction:.2f} ({r.rmse:.3g}) |"
                   for r in rows.itertuples()]
         lines.append("")
+    if longwave_page is not None:
+        lines += ["## longwave", "", "skill = 1 - RMSE(corrected) / RMSE(independent column) of the longwave fields "
+                  "in W m-2, the share of the independent column's RMSE removed; RMSE in W m-2 in brackets", ""]
+        _skill_table(pd.read_csv(longwave_page.parent / "metrics.csv"), lines)
     lines += ["## outputs", "",
               f"- archive (scenes and benchmark results): `{paths.archive}`",
               f"- training pairs: `{paths.pairs}`",
               f"- trained models: `{paths.models}`",
               f"- report: `{page}`",
               f"- coefficient files and Fortran module: `{paths.export}`",
+              *([f"- longwave pairs, models, report and export: `{longwave_page.parents[1]}`"]
+                if longwave_page is not None else []),
               ""]
     return {"markdown": "\n".join(lines), "table": held}
 
@@ -306,8 +408,8 @@ def register(sub):
         description="Generates synthetic scenes of our own regimes, runs the 3D, independent-column and "
                     "two-stream benchmarks, builds training pairs at 1 km host columns, trains ridge and "
                     "gradient-boosted corrections, evaluates them on held-out scenes against the published "
-                    "baselines, writes the HTML report and exports the coefficients and a Fortran module. "
-                    "A second run reuses finished work.")
+                    "baselines, writes the HTML report and exports the coefficients and a Fortran module; "
+                    "then the same for the longwave (thermal) correction. A second run reuses finished work.")
     p.add_argument("--out", required=True, metavar="DIR", help="output directory")
     p.add_argument("--quick", action="store_true", help="a tiny version of the same pipeline (about a minute)")
     p.add_argument("--jobs", type=int, metavar="N", help="worker processes for the benchmarks (default: all cores)")

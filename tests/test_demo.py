@@ -26,6 +26,18 @@ def test_every_stage_writes_its_output(demo_dir):
     assert any(p.suffix == ".json" for p in exported) and any(p.suffix == ".f90" for p in exported)
 
 
+def test_longwave_part_writes_pairs_models_report_and_export(demo_dir):
+    longwave = demo_dir / "longwave"
+    training = json.loads((longwave / "models" / "training.json").read_text())
+    assert training["spectrum"] == "longwave" and set(training["models"]) == {"ridge", "boosted"}
+    assert "longwave 3D corrections" in (longwave / "report" / "report.html").read_text()
+    coefficients = json.loads((longwave / "export" / "boosted.coefficients.json").read_text())
+    assert coefficients["targets"]["units"] == "W m-2"
+    assert (longwave / "export" / "fortran" / "boosted_correction.f90").is_file()
+    summary = (demo_dir / "summary.md").read_text()
+    assert "## longwave" in summary and "longwave_surface_downward_flux" in summary
+
+
 def test_summary_compares_models_with_every_baseline(demo_dir):
     summary = (demo_dir / "summary.md").read_text()
     for name in ("no correction", "tilted independent column", "non-local independent pixel", "ridge", "boosted",
@@ -40,6 +52,7 @@ def test_second_run_reuses_finished_work(demo_dir, capsys):
     assert "0 generated" in err and "0 runs computed" in err
     for stage in ("pairs", "models", "report", "export"):
         assert f"reused {demo_dir / stage}" in err or f"reused {demo_dir / (stage + '.nc')}" in err
+    assert "0 runs computed, 18 reused, pairs reused, models reused, report reused, export reused" in err
     after = {p: p.stat().st_mtime_ns for p in before}
     assert after == before
 

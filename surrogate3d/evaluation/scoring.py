@@ -14,13 +14,14 @@ import json
 from pathlib import Path
 
 from ..core.coefficient_file import read_coefficients
-from ..core.pairs_table import read_pairs_table
+from ..core.pairs_table import read_pairs_table, table_spectrum
 from ..errors import FormatError, ParameterError, ValidationError
 from ..learn.model_directory import MODEL_CARD, TRAINING_FILE, file_sha256, load_model, load_training_run
 from ..learn.pairs_table import feature_names, scene_table, target_names
 from ..pairs.features import FEATURES
 from ..pairs.recipe import FeatureRecipe
 from ..runtime.model import CorrectionModel
+from .breakdown import BREAKDOWNS, LONGWAVE_BREAKDOWNS
 from .evaluation_sets import Evaluation, score_set, set_tables
 from .importance import permutation_importance
 from .scored_model import ScoredModel
@@ -179,10 +180,17 @@ def score(source, pairs_path, *, consistency=True, importance_repeats=3, seed=0,
     """
     models, recipes, provenance = load_scored_models(source)
     pairs = read_pairs_table(pairs_path)
+    spectrum = table_spectrum(pairs)
     for name, model in models.items():
+        theirs = recipes[name].get("spectrum", "shortwave") if isinstance(recipes[name], dict) else "shortwave"
+        if theirs != spectrum:
+            raise ValidationError(f"model {name!r} is a {theirs} correction; pairs table {str(pairs_path)!r} is a "
+                                  f"{spectrum} table")
         check_pairs_match(model, recipes[name], pairs, label=f"pairs table {str(pairs_path)!r}")
+    longwave = spectrum == "longwave"
+    consistency = consistency and not longwave
     targets = list(next(iter(models.values())).target_names)
-    scored = score_set(SCORED, pairs, models, targets, consistency)
+    scored = score_set(SCORED, pairs, models, targets, consistency, LONGWAVE_BREAKDOWNS if longwave else BREAKDOWNS)
     table, envelope = set_tables([scored], targets, by_regime=(SCORED,))
 
     notes = []
@@ -201,17 +209,22 @@ def score(source, pairs_path, *, consistency=True, importance_repeats=3, seed=0,
 
     flagged = "; ".join(f"{name}: {check.n_outside} of {check.outside.size} columns outside its training envelope"
                         for name, check in scored.envelope.items() if check.available)
+    if longwave:
+        compared = "against no correction (longwave: targets and errors in W m-2, scored as predicted). "
+    else:
+        compared = ("against no correction and the two published baselines on the same samples. "
+                    + ("Learned corrections are scored after the consistency step (non-negative fluxes, direct + "
+                       "diffuse = total, energy balance per domain). " if consistency
+                       else "Learned corrections are scored as predicted (no consistency step). "))
     intro = (f"<p>{html.escape(', '.join(models))} of <code>{html.escape(str(source))}</code> scored on every sample "
              f"of <code>{html.escape(str(pairs_path))}</code> ({len(scenes)} scenes, {pairs.sizes['sample']} "
-             "samples), against no correction and the two published baselines on the same samples. "
-             + ("Learned corrections are scored after the consistency step (non-negative fluxes, direct + diffuse = "
-                "total, energy balance per domain). " if consistency
-                else "Learned corrections are scored as predicted (no consistency step). ")
+             f"samples), {compared}"
              + "Skill is that of the errors in W m-2 throughout." + (f" {html.escape(flagged)}." if flagged else "")
              + "</p>")
-    return Evaluation(title="Skill of the 3D corrections on a pairs table", intro=intro, targets=targets,
+    title = f"Skill of the {'longwave ' if longwave else ''}3D corrections on a pairs table"
+    return Evaluation(title=title, intro=intro, targets=targets,
                       sets=[scored], table=table, envelope=envelope, consistency=consistency, notes=notes,
                       provenance=[(k, v) for k, v in provenance.items() if k != "recipe_text"],
                       recipe_text=provenance.get("recipe_text") or "",
                       summary={"scored": str(source), "pairs_file": str(pairs_path), "pairs_matches_training": matches},
-                      importance=importance)
+                      importance=importance, spectrum=spectrum)

@@ -161,6 +161,24 @@ def _fingerprint(digest, name, scene):
                 digest.update(np.ascontiguousarray(result[var].values, dtype=np.float64).tobytes())
 
 
+def longwave_fingerprint(archive_dir):
+    """The ``archive_fingerprint`` a longwave pair table built now from ``archive_dir`` would carry.
+
+    Parameters
+    ----------
+    archive_dir : str or Path
+
+    Returns
+    -------
+    str
+        SHA-256 (hex) of every scene file's name and stored longwave results.
+    """
+    digest = hashlib.sha256()
+    for path in scene_files(archive_dir):
+        _fingerprint(digest, path.name, read_scene(path))
+    return digest.hexdigest()
+
+
 def build_longwave_pairs(archive_dir, host_resolutions, quiet=False):
     """Build the longwave pair table of an archive directory.
 

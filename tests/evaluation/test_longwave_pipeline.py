@@ -172,3 +172,15 @@ def test_fortran_module_reproduces_the_longwave_models(chain, tmp_path, name):
     assert got.shape == expected.shape == (features.shape[0], len(LONGWAVE_TARGETS))
     assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
     assert "longwave fields in W m-2" in (fortran / f"{name}_correction.f90").read_text()
+
+
+def test_score_gives_the_longwave_report_and_refuses_a_shortwave_model(chain, tmp_path, capsys):
+    pairs = str(chain["root"] / "pairs.nc")
+    out = tmp_path / "scored"
+    assert main(["score", str(chain["root"] / "export" / "boosted.coefficients.json"), pairs, "--out", str(out),
+                 "--quiet"]) == 0
+    assert set(pd.read_csv(out / "metrics.csv")["units"]) == {"W m-2"}
+    assert "Skill of the longwave 3D corrections" in (out / "report.html").read_text()
+    assert main(["score", "models/default/boosted.coefficients.json", pairs, "--out", str(tmp_path / "x")]) == 1
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and "is a shortwave correction" in err and "is a longwave table" in err
