@@ -2,8 +2,9 @@
 
 Builds a small world of our own scenes, simulates it in the longwave and fits two off-the-shelf
 regressors to the 1 km surface downward longwave target (3D minus independent column, W m-2),
-scoring them on whole held-out scenes. No model of the package learns longwave pairs yet;
-this measures whether the issue's target (">= 50 % of the independent-column RMSE of the surface
+scoring them on whole held-out scenes. It was written before `surrogate3d train` took longwave
+pairs (recipe `spectrum = "longwave"`, training/longwave.toml, which `surrogate3d demo` runs);
+it measures, independently of the package's models, whether the issue's target (">= 50 % of the independent-column RMSE of the surface
 downward longwave flux removed at 1 km on held-out scenes") is within reach, and what the Monte
 Carlo noise of the targets allows.
 

@@ -287,6 +287,7 @@ def _longwave_stages(paths, settings, jobs, quiet, stages):
     from .learn.train import train_models
     from .pairs.longwave_features import LongwaveFeatureRecipe
     from .pairs.longwave_pairs import build_longwave_pairs, longwave_fingerprint
+    from .scenes.longwave_optics import PER_CM
 
     lw = settings["longwave"]
     stages.begin(7, "longwave", f"thermal benchmarks ({lw['photons']} photons, {lw['spectral_resolution']:g} cm-1 "
@@ -294,7 +295,7 @@ def _longwave_stages(paths, settings, jobs, quiet, stages):
     paths.longwave("").mkdir(parents=True, exist_ok=True)
     _warm_up_thermal_kernels()
     done = simulate_archive(paths.archive, spectrum="longwave", photons=lw["photons"], seed=settings["simulate"]["seed"],
-                            n_jobs=jobs, quiet=quiet, longwave_resolution=lw["spectral_resolution"])
+                            n_jobs=jobs, quiet=quiet, longwave_resolution=lw["spectral_resolution"] * PER_CM)
     pairs, models, report, export = (paths.longwave(n) for n in ("pairs.nc", "models", "report", "export"))
     recipe = paths.longwave("recipe.toml")
     steps = [f"{done['computed']} runs computed, {done['skipped']} reused"]
