@@ -13,6 +13,7 @@ model card or a coefficient file.
 """
 
 import json
+import math
 
 import numpy as np
 
@@ -132,6 +133,33 @@ def longwave_host_features(fields, host_fluxes):
 #: :func:`surrogate3d.pairs.coarsen.scene_host_fields`.
 LONGWAVE_HOST_FIELDS = ("layer_air_temperature", "liquid_water_path", "surface_temperature",
                         "surface_longwave_emissivity")
+
+
+def longwave_halo_width(recipe, dx, dy):
+    """The halo ``(columns along x, columns along y)`` the features of a longwave recipe read.
+
+    Only the neighbour windows reach beyond a column (every other longwave feature is the
+    column's own); a window reaching ``r`` beyond the column reads ``ceil(r / dx)`` columns
+    along x, as the shortwave windows do (:func:`surrogate3d.runtime.halo.halo_width`).
+
+    Parameters
+    ----------
+    recipe : LongwaveFeatureRecipe
+    dx, dy : float
+        Host column size [m].
+
+    Returns
+    -------
+    (int, int)
+
+    Examples
+    --------
+    >>> longwave_halo_width(LongwaveFeatureRecipe(), 1000.0, 1000.0)
+    (10, 10)
+    """
+    windows = {library.column_name("neighbour_mean_cloud_fraction", r): r for r in NEIGHBOUR_RADII}
+    radius = max((windows[f] for f in recipe.features if f in windows), default=0.0)
+    return tuple(int(math.ceil(radius / size - 1e-9)) if radius > 0.0 else 0 for size in (float(dx), float(dy)))
 
 
 class LongwaveFeatureRecipe:

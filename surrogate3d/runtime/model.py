@@ -14,8 +14,8 @@ import numpy as np
 
 from ..errors import FormatError, ParameterError, ValidationError
 from ..pairs.features import FEATURES, column_name, compute_features
-from ..pairs.longwave_features import LONGWAVE_TARGETS, feature_recipe_from_dict, longwave_host_features, \
-    recipe_spectrum
+from ..pairs.longwave_features import LONGWAVE_TARGETS, LongwaveFeatureRecipe, feature_recipe_from_dict, \
+    longwave_halo_width, longwave_host_features, recipe_spectrum
 from ..pairs.recipe import FeatureRecipe
 from ..core.coefficient_format import (PROFILE_FIELD, check_document, clear_sky_gate, document_from_json,
                                        target_transforms)
@@ -265,8 +265,9 @@ class CorrectionModel:
             ``(hx, hy)``), at least what the features read
             (:func:`surrogate3d.runtime.halo.halo_width`); the features are those of the
             sub-domain's own columns, equal to the whole periodic domain's
-            (:func:`~surrogate3d.runtime.halo.subdomain_features`).  Default: periodic
-            (the only mode of a longwave model).
+            (:func:`~surrogate3d.runtime.halo.subdomain_features`; a longwave model's
+            halo must hold its widest neighbour window,
+            :func:`~surrogate3d.pairs.longwave_features.longwave_halo_width`).  Default: periodic.
 
         Returns
         -------
@@ -289,13 +290,29 @@ class CorrectionModel:
         return matrix[:, [columns.index(name) for name in self.column_feature_names]]
 
     def _longwave_features(self, host_fields, halo):
-        if halo is not None:
-            raise ParameterError(f"model {self.name!r} is a longwave model: its features are computed on periodic "
-                                 "host grids only (no halo mode yet)")
         fluxes = {flux: host_fields[flux] for flux in LONGWAVE_TARGETS if flux in host_fields}
+        if halo is None:
+            values = longwave_host_features(host_fields, fluxes)
+            return np.stack([np.asarray(values[name], dtype=np.float64).ravel() for name in self.column_feature_names],
+                            axis=1)
+        hx, hy = (halo, halo) if np.isscalar(halo) else tuple(halo)
+        if not all(isinstance(h, (int, np.integer)) and not isinstance(h, bool) and h >= 0 for h in (hx, hy)):
+            raise ParameterError(f"halo must be an integer >= 0 or a pair (hx, hy) of them; got {halo!r}")
+        for key in ("dx", "dy", "total_cloud_fraction"):
+            if key not in host_fields:
+                raise ValidationError(f"longwave host fields lack {key!r}")
+        ny, nx = np.shape(host_fields["total_cloud_fraction"])
+        if ny <= 2 * hy or nx <= 2 * hx:
+            raise ParameterError(f"a halo of ({hx}, {hy}) columns leaves no own column in host fields of {nx} x {ny} "
+                                 "columns (x, y)")
+        rx, ry = longwave_halo_width(LongwaveFeatureRecipe(self.column_feature_names), host_fields["dx"],
+                                     host_fields["dy"])
+        if rx > hx or ry > hy:
+            raise ValidationError(f"the longwave neighbour windows read {rx} columns along x and {ry} along y; the "
+                                  f"halo has {hx} and {hy}")
         values = longwave_host_features(host_fields, fluxes)
-        return np.stack([np.asarray(values[name], dtype=np.float64).ravel() for name in self.column_feature_names],
-                        axis=1)
+        return np.stack([np.asarray(values[name], dtype=np.float64)[hy:ny - hy, hx:nx - hx].ravel()
+                         for name in self.column_feature_names], axis=1)
 
     def predict_profile(self, column_features, layer_fields, column_correction=None, check_envelope=True):
         """The heating-rate model's absorption correction of every host layer.

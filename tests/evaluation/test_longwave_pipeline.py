@@ -27,7 +27,7 @@ from surrogate3d.learn.model_directory import load_training_run
 from surrogate3d.learn.recipe import parse_recipe
 from surrogate3d.learn.train import train_models
 from surrogate3d.pairs.coarsen import host_factors
-from surrogate3d.pairs.longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS
+from surrogate3d.pairs.longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, longwave_halo_width
 from surrogate3d.pairs.longwave_pairs import build_longwave_pairs, coarsen_longwave_result, longwave_host_fields
 from surrogate3d.runtime import load_coefficients
 from surrogate3d.scenes.generator import generate_scene
@@ -146,8 +146,20 @@ def test_runtime_computes_the_longwave_features_from_host_fields(chain):
         np.testing.assert_array_equal(model.host_features(fields), mine["features"].values)
         np.testing.assert_array_equal(model.predict_host(fields, check_envelope=False),
                                       run.models[model_name].estimator.predict_pairs(mine))
-        with pytest.raises(ParameterError, match="longwave model: its features are computed on periodic"):
-            model.host_features(fields, halo=2)
+    # A sub-domain with a halo (wrapped from the periodic domain) gives the whole domain's
+    # features of its own columns once the halo holds the widest window: 10 km on 300 m
+    # columns is 34 columns (it wraps the 4 x 4 host grid many times, as the periodic windows do).
+    hx, hy = longwave_halo_width(model.recipe, HOST, HOST)
+    assert (hx, hy) == (34, 34)
+    ny, nx = fields["total_cloud_fraction"].shape
+    rows, cols = np.arange(-hy, ny + hy) % ny, np.arange(-hx, nx + hx) % nx
+    padded = {k: (np.asarray(v)[..., rows, :][..., cols] if np.ndim(v) >= 2 else v) for k, v in fields.items()}
+    np.testing.assert_allclose(model.host_features(padded, halo=(hx, hy)), model.host_features(fields),
+                               rtol=1e-12, atol=1e-12)
+    with pytest.raises(ValidationError, match="neighbour windows read 34 columns along x and 34 along y; the halo "
+                                              "has 33 and 34"):
+        model.host_features({k: (v[..., :, 1:] if np.ndim(v) >= 2 else v) for k, v in padded.items()},
+                            halo=(33, 34))
     del fields["surface_temperature"]
     with pytest.raises(ValidationError, match=r"longwave host fields lack \['surface_temperature'\]"):
         model.host_features(fields)
