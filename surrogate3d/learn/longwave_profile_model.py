@@ -88,9 +88,11 @@ class LongwaveProfileCorrection(BaseEstimator):
     >>> fields = {"bottom": np.tile([0.0, 500.0, 1000.0], (n, 1)), "top": np.tile([500.0, 1000.0, 1500.0], (n, 1)),
     ...           "cloud_fraction": rng.uniform(0, 1, (n, L)), "liquid_water_path": rng.uniform(0, 50, (n, L)),
     ...           "air_temperature": rng.uniform(270, 290, (n, L)),
-    ...           "two_stream_net_absorption": rng.uniform(-20, 5, (n, L)), "surface_temperature": rng.uniform(285, 295, n)}
+    ...           "two_stream_net_absorption": rng.uniform(-20, 5, (n, L)),
+    ...           "surface_temperature": rng.uniform(285, 295, n)}
     >>> X = rng.uniform(size=(n, 2))
-    >>> model = LongwaveProfileCorrection(max_iter=20, min_samples_leaf=5).fit(X, ["a", "b"], fields, X[:, :1] * [[1, 2, 3]])
+    >>> model = LongwaveProfileCorrection(max_iter=20, min_samples_leaf=5)
+    >>> model = model.fit(X, ["a", "b"], fields, X[:, :1] * [[1.0, 2.0, 3.0]])
     >>> model.predict(X, fields).shape
     (60, 3)
     """

@@ -22,7 +22,8 @@ def register(sub):
     p.add_argument("--spectrum", default="shortwave", metavar="{shortwave,longwave}",
                    help="shortwave: the table above (default); longwave: one row per scene and host column with "
                         "both longwave_full_3d and longwave_independent_column results, targets in W m-2 "
-                        "(docs/pairs-format.md, 'Longwave pairs'); takes only --host-resolution and --quiet")
+                        "(docs/pairs-format.md, 'Longwave pairs'); takes only --host-resolution, "
+                        "--host-layer-edges and --quiet")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no notices")
     p.set_defaults(func=run, interrupted="nothing was written",
                    parameter_flags={"host_resolutions": "--host-resolution", "host_resolution": "--host-resolution",

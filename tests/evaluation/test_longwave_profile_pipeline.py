@@ -209,3 +209,14 @@ def test_fortran_module_evaluates_the_profile_rows(chain, tmp_path):
     assert got.shape == (rows.shape[0], 1) and rows.shape[0] > 1
     assert np.abs(got[:, 0] - expected).max() <= 1e-10 * np.abs(expected).max()
     assert "W m-2 km-1" in (fortran / "profile_correction.f90").read_text()
+
+
+def test_pairs_command_takes_host_layer_edges(chain, tmp_path):
+    out = tmp_path / "pairs.nc"
+    assert main(["pairs", str(chain["archive"]), "--spectrum", "longwave", "--host-resolution", str(HOST),
+                 "--host-layer-edges", "0", "1000", "4000", "--out", str(out), "--quiet"]) == 0
+    pairs = read_pairs_table(out)
+    assert pairs.sizes["host_layer"] == 2
+    np.testing.assert_allclose(pairs["layer_net_absorption_target"].values.sum(axis=1),
+                               pairs["target_value"].sel(target=COLUMN).values, rtol=0,
+                               atol=1e-12 * np.abs(pairs["target_value"].sel(target=COLUMN).values).max())
