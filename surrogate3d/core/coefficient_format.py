@@ -72,6 +72,8 @@ _TRANSFORM_KEYS = {"scale_feature", "scale_floor", "offset_features", "offset_co
 PROFILE_FIELD = "profile"
 #: The target of a profile model.
 PROFILE_TARGET = "layer_absorption_density"
+#: The target of a longwave profile model: the layer's net-absorption change per km [W m-2 km-1].
+LONGWAVE_PROFILE_TARGET = "longwave_layer_net_absorption_density"
 
 #: Arrays of the training envelope: name -> dimension names.
 ENVELOPE_ARRAYS = {"feature_min": ("feature",), "feature_max": ("feature",), "center": ("feature",),
@@ -338,9 +340,9 @@ def _check_profile(field, feature_names, target_names, source):
             or feature_names[-len(layer):] != layer or len(layer) >= len(feature_names):
         raise FormatError(f"coefficient file {source!r}: field {PROFILE_FIELD}.layer_features must list the last "
                           f"features.names (after at least one column feature); got {_short(layer)}")
-    if target_names != [PROFILE_TARGET]:
-        raise FormatError(f"coefficient file {source!r}: a profile model has the single target {PROFILE_TARGET!r}; "
-                          f"targets.names is {target_names}")
+    if target_names not in ([PROFILE_TARGET], [LONGWAVE_PROFILE_TARGET]):
+        raise FormatError(f"coefficient file {source!r}: a profile model has the single target {PROFILE_TARGET!r} "
+                          f"(longwave: {LONGWAVE_PROFILE_TARGET!r}); targets.names is {target_names}")
 
 
 def clear_sky_gate(document):

@@ -5,7 +5,8 @@ baseline (``docs/methods/longwave.md``), so the page is the shortwave report's s
 to what applies: the skill of every model next to no correction (the share of the
 independent column's RMSE each removes), broken down by regime, cloud fraction and host
 resolution, the leave-one-family-out set, maps, scatter, error histograms, importance,
-learning curve and the training envelope.
+learning curve, the training envelope and, with a longwave profile model, its heating-rate
+skill (:mod:`surrogate3d.evaluation.longwave_profile_skill`).
 """
 
 import html
@@ -22,6 +23,7 @@ from . import figures
 from .breakdown import LONGWAVE_BREAKDOWNS
 from .family_transfer import LEFT_OUT
 from .html_page import render_page
+from .longwave_profile_skill import longwave_profile_panels
 from .predictions import NO_CORRECTION
 from .tables import breakdown_pivot, to_html, to_markdown
 
@@ -186,13 +188,16 @@ def _write_tables(evaluation, out_dir):
     if evaluation.family_runs is not None:
         write_text_atomic(out_dir / "left_out_family_fits.csv", evaluation.family_runs.to_csv(index=False))
     write_text_atomic(out_dir / "envelope.csv", evaluation.envelope.to_csv(index=False))
+    if evaluation.profile is not None:
+        write_text_atomic(out_dir / "profile_metrics.csv", evaluation.profile.table.to_csv(index=False))
+        write_text_atomic(out_dir / "profile_by_height.csv", evaluation.profile.by_height.to_csv(index=False))
 
 
 def _summary(evaluation):
     table = evaluation.table
     envelope = evaluation.envelope[(evaluation.envelope["group"] == "all")
                                    & (evaluation.envelope["target"] == evaluation.targets[0])]
-    return {
+    summary = {
         "package_version": __version__, **evaluation.summary, "spectrum": "longwave", "consistency": False,
         "evaluation_sets": {s.label: int(s.pairs.sizes["sample"]) for s in evaluation.sets},
         "skill_units": "W m-2",
@@ -203,6 +208,40 @@ def _summary(evaluation):
                                    for s in evaluation.sets},
         "notes": evaluation.notes,
     }
+    if evaluation.profile is not None:
+        profile = evaluation.profile
+        summary["profile"] = {
+            "model": profile.model, "matched_to": profile.column_model,
+            "skill": {f"{r.quantity} [{r.units}]": r.rmse_reduction
+                      for r in profile.table[profile.table["predictor"] == profile.model].itertuples()},
+            "noise_floor": {f"{r.quantity} [{r.units}]": r.noise_floor
+                            for r in profile.table[profile.table["predictor"] == profile.model].itertuples()},
+            "column_integral": profile.column_integral}
+    return summary
+
+
+def _profile_section(profile, out_dir):
+    """The heating-rate section: the skill table, the figure (written to ``figures/profiles.png``) and the
+    table by height."""
+    png = figures.to_png(longwave_profile_panels(profile.mean_profiles, profile.by_height, profile.model))
+    write_bytes_atomic(out_dir / "figures" / "profiles.png", png)
+    integral = profile.column_integral
+    matched = (f"matched to the longwave_atmosphere_net_absorption correction of {html.escape(profile.column_model)}"
+               if profile.column_model else "left with their own column sum")
+    text = (f"<p>The profile model {html.escape(profile.model)} predicts the 3D change of the net absorption of "
+            f"every host layer (W m-2 per km of the layer); the layers are {matched}, the residual shared in "
+            "proportion to each layer's own predicted change, so they sum to it (largest mismatch "
+            f"{integral['largest_mismatch']:.1e} W m-2). Scored in the cloudy host columns, pooled over their "
+            "layers, against no correction; skill is the share of the independent column's RMSE removed, and the "
+            "noise floor the skill a perfect model would show against the Monte Carlo noise of the per-layer "
+            f"targets. The profile's own column sum removes {integral['rmse_reduction']:.1%} of the column net "
+            f"absorption's RMSE in these columns; the column correction it is matched to "
+            f"{integral['rmse_reduction_matched']:.1%}.</p>")
+    caption = ("Domain-mean longwave net-absorption profiles of the held-out scenes of largest 3D change: 3D, "
+               "independent column, and the independent column corrected by the profile model; and the RMSE by "
+               "height above the cloud top in the cloudy columns.")
+    return (text + to_html(profile.table) + _image(png, caption) + "<h3>By height above the cloud top</h3>"
+            + to_html(profile.by_height))
 
 
 def _envelope_view(evaluation, target):
@@ -223,7 +262,8 @@ def write_longwave_report(evaluation, out_dir, map_scenes=2):
     and ``metrics.md`` (whole evaluation sets, W m-2 rows only), ``breakdown_<name>.csv``
     and ``.md`` (regime, cloud fraction, host resolution), ``envelope.csv``,
     ``summary.json``, ``figures/*.png`` and, when computed, ``importance.csv``,
-    ``learning_curve.csv`` and ``left_out_family_fits.csv``.
+    ``learning_curve.csv`` and ``left_out_family_fits.csv``; with a profile model,
+    ``profile_metrics.csv``, ``profile_by_height.csv`` and ``figures/profiles.png``.
 
     Parameters
     ----------
@@ -270,6 +310,8 @@ def write_longwave_report(evaluation, out_dir, map_scenes=2):
                          + to_html(headline_table(table, LEFT_OUT)) + images["left_out_families_by_family"]
                          + "<h3>Skill on each left-out family</h3>" + to_html(breakdown_pivot(table, LEFT_OUT,
                                                                                               "regime"))))
+    if evaluation.profile is not None:
+        sections.append(("Heating-rate profiles", _profile_section(evaluation.profile, out_dir)))
     sections.append(("Training envelope", "<p>Columns outside each model's training envelope and the skill for "
                      f"{html.escape(target)} on the flagged and the other columns.</p>"
                      + to_html(_envelope_view(evaluation, target))))

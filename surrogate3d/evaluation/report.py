@@ -25,6 +25,7 @@ from .family_transfer import LEFT_OUT, leave_one_family_out
 from .importance import permutation_importance
 from .learning_curve import learning_curve
 from .predictions import consistent_correction, raw_correction
+from .longwave_profile_skill import longwave_profile_skill
 from .profile_skill import score_profiles
 from .report_writer import write_report
 from .scored_model import ScoredModel
@@ -155,7 +156,7 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
             notes.append("The learning curve is left out: the pairs file lacks some training scenes.")
     steps.update()
     steps.close()
-    profile = _profile_skill(run, held, targets, notes)
+    profile = (longwave_profile_skill if longwave else _profile_skill)(run, held, targets, notes)
 
     intro = (f"<p>Models of <code>{html.escape(str(model_dir))}</code> (recipe "
              f"<code>{html.escape(str(record.get('recipe_name')))}</code>) scored on {len(split['held_out_scenes'])} "

@@ -69,7 +69,7 @@ def load_scored_models(source):
         provenance = dict(run.record["provenance"], training_scenes=run.record["split"]["training_scenes"])
     elif (path / MODEL_CARD).is_file():
         one = load_model(path)
-        if one.kind == "profile":
+        if one.kind in ("profile", "longwave_profile"):
             _refuse_profile(path)
         trained = {one.name: one}
         provenance = dict(one.card["provenance"])

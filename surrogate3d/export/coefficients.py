@@ -18,13 +18,14 @@ from pathlib import Path
 from .. import __version__
 from .._atomic import atomic_path, write_text_atomic
 from ..core.coefficient_file import NETCDF_FORMAT, document_to_dataset
-from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, PROFILE_FIELD, \
-    PROFILE_TARGET, TRANSFORM_FIELD, check_document, document_to_json
+from ..core.coefficient_format import ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, GATE_FIELD, \
+    LONGWAVE_PROFILE_TARGET, PROFILE_FIELD, PROFILE_TARGET, TRANSFORM_FIELD, check_document, document_to_json
 from ..core.netcdf import ENGINE
 from ..errors import FormatError, ParameterError, ValidationError
 from ..evaluation.metrics import HEADLINE_UNITS
 from ..learn.model_directory import ESTIMATOR_FILE, file_sha256
 from ..pairs.layer_features import LAYER_FEATURES
+from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
 from ..pairs.longwave_features import feature_recipe_from_dict, recipe_spectrum
 from .flatten import clear_sky_gate, flatten, target_transforms, training_envelope
 
@@ -42,6 +43,13 @@ LONGWAVE_TARGET_DEFINITION = "3D minus independent-column longwave field, host-c
 #: Definition of a profile model's target.
 PROFILE_DEFINITION = ("3D minus independent-column absorption of a host layer per km of its thickness, as a fraction "
                       "of the incident flux on the horizontal")
+
+#: Definition of a longwave profile model's target.
+LONGWAVE_PROFILE_DEFINITION = ("3D minus independent-column longwave net absorption of a host layer per km of its "
+                               "thickness, in W m-2 km-1")
+
+#: Model-card kinds of profile models.
+_PROFILE_KINDS = ("profile", "longwave_profile")
 
 #: Provenance keys copied from the model card.
 _CARD_PROVENANCE = ("archive_fingerprint", "pairs_file", "pairs_sha256", "recipe_file", "recipe_text",
@@ -84,7 +92,7 @@ def build_document(trained, report_dir=None):
         The estimator cannot be exported, or the report has no rows of this model.
     """
     card = trained.card
-    profile = trained.kind == "profile"
+    profile = trained.kind in _PROFILE_KINDS
     # A profile model is evaluated by its boosted ensemble on (column, layer) rows.
     estimator = trained.estimator.boosted_ if profile else trained.estimator
     kind, arrays = flatten(estimator)
@@ -128,7 +136,13 @@ def build_document(trained, report_dir=None):
         "skill": None if report_dir is None else (profile_skill_table if profile else skill_table)(report_dir,
                                                                                                   trained.name),
     }
-    if profile:
+    if trained.kind == "longwave_profile":
+        document["features"]["names"] = names + list(LONGWAVE_LAYER_FEATURES)
+        document["features"]["units"] += [units for units, _ in LONGWAVE_LAYER_FEATURES.values()]
+        document["targets"] = {"names": [LONGWAVE_PROFILE_TARGET], "units": "W m-2 km-1",
+                               "definition": LONGWAVE_PROFILE_DEFINITION}
+        document[PROFILE_FIELD] = {"layer_features": list(LONGWAVE_LAYER_FEATURES), "target_units": "W m-2 km-1"}
+    elif profile:
         document["features"]["names"] = names + list(LAYER_FEATURES)
         document["features"]["units"] += [units for units, _ in LAYER_FEATURES.values()]
         document["targets"] = {"names": [PROFILE_TARGET], "units": "km-1", "definition": PROFILE_DEFINITION}

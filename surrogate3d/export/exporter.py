@@ -15,7 +15,9 @@ from ..core.validation import check_integer
 from ..errors import FormatError, ValidationError
 from ..learn.model_directory import load_training_run
 from ..learn.pairs_table import feature_matrix, select_scenes
+from ..learn.longwave_profile_model import longwave_layer_fields
 from ..learn.profile_model import layer_fields
+from ..runtime.longwave_profile import longwave_layer_rows
 from ..runtime.model import CorrectionModel
 from ..runtime.profile import layer_rows
 from .coefficients import build_document, write_coefficients
@@ -58,6 +60,9 @@ def sample_features(trained, pairs_path=None, n_columns=64):
     X = feature_matrix(training, trained.card["feature_names"], needed_by=f"model {trained.name!r}")
     if trained.kind == "profile":
         X, valid = layer_rows(X, layer_fields(training))
+        X = X[valid]
+    elif trained.kind == "longwave_profile":
+        X, valid = longwave_layer_rows(X, longwave_layer_fields(training))
         X = X[valid]
     rows = np.unique(np.linspace(0, X.shape[0] - 1, min(n_columns, X.shape[0])).round().astype(int))
     return X[rows]

@@ -44,6 +44,7 @@ from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSI
                                        target_transforms)
 from ..core.data_model import TARGETS
 from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES, SAME_PATH_TOLERANCE
+from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
 
 #: Numbers per line in the data files.
 _PER_LINE = 6
@@ -472,6 +473,9 @@ def _module_header(prefix, document):
     corrections = ("! Corrections are 3D minus independent-column longwave fields in W m-2, for the targets\n"
                    f"! in {prefix}_target_names; features are in the order and\n"
                    if document["targets"]["units"] == "W m-2" else
+                   "! Corrections are 3D minus independent-column longwave net absorption of a host layer per km\n"
+                   "! [W m-2 km-1], one per (column, layer) row of features; features are in the order and\n"
+                   if document["targets"]["units"] == "W m-2 km-1" else
                    "! Corrections are 3D minus independent-column fluxes as fractions of the incident flux on\n"
                    f"! the horizontal, for the targets in {prefix}_target_names; features are in the order and\n")
     return f"""\
@@ -619,8 +623,13 @@ _LAYER_FEATURE_CODE = {
 
 
 def _profile_layer_features(document):
-    """The layer features of a profile document (empty for a column model), checked against the generator's."""
+    """The layer features of a profile document (empty for a column model), checked against the generator's.
+
+    A longwave profile model gets no profile procedure (empty too): its module evaluates
+    (column, layer) feature rows the host builds, through ``PREFIX_correct_column``."""
     layer = list((document.get(PROFILE_FIELD) or {}).get("layer_features", []))
+    if layer == list(LONGWAVE_LAYER_FEATURES):
+        return []
     if layer and layer != list(_LAYER_FEATURE_CODE):
         raise ValidationError(f"profile model {document['model']['name']!r} has layer features {layer}; this "
                               f"version generates Fortran for {list(_LAYER_FEATURE_CODE)}")

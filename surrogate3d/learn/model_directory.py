@@ -7,7 +7,8 @@ Layout (``docs/methods/models-and-metrics.md``)::
       <model>/model.json            model card: kind, hyperparameters, targets, features, CV scores
       <model>/estimator.joblib      the fitted estimator
       profile/                      the heating-rate (profile) model, when the recipe has one:
-                                    model.json (kind "profile") and estimator.joblib
+                                    model.json (kind "profile", longwave "longwave_profile")
+                                    and estimator.joblib
 
 ``estimator.joblib`` is a pickle: load model directories only from sources you trust.
 """
@@ -23,14 +24,17 @@ from .._atomic import atomic_path, write_text_atomic
 from ..core.data_model import MODEL_FORMAT_VERSION
 from ..errors import FormatError
 from .models import MODEL_KINDS
+from .longwave_profile_model import LongwaveProfileCorrection
 from .profile_model import ProfileCorrection
 
 MODEL_CARD = "model.json"
 ESTIMATOR_FILE = "estimator.joblib"
 #: Subdirectory of the profile model (``training.json`` names it as ``profile_model``).
 PROFILE_MODEL = "profile"
+#: The model-card kind of the profile model of each spectrum.
+PROFILE_KINDS = {"shortwave": "profile", "longwave": "longwave_profile"}
 #: Every estimator class a model card's ``kind`` may name.
-_KINDS = {**MODEL_KINDS, "profile": ProfileCorrection}
+_KINDS = {**MODEL_KINDS, "profile": ProfileCorrection, "longwave_profile": LongwaveProfileCorrection}
 TRAINING_FILE = "training.json"
 
 _CARD_KEYS = ("format_version", "name", "kind", "hyperparameters", "targets", "feature_names", "feature_recipe",

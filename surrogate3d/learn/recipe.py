@@ -35,9 +35,10 @@ any training starts, and a wrong one is named in the error with the allowed valu
     interaction_features = ["a", "b", ...] # list-valued parameter: one value; a list of lists is a grid
     clear_sky_features = ["a", ...]        # list-valued too: the clear-sky gate (models.py)
 
-    [profile]                              # optional: the heating-rate correction (profile_model.py),
-    max_iter = 200                         # fitted on the per-layer variables of the pairs table;
-    min_samples_leaf = 50                  # its parameters (single values, no search)
+    [profile]                              # optional: the heating-rate correction (profile_model.py;
+    max_iter = 200                         # longwave: longwave_profile_model.py), fitted on the
+    min_samples_leaf = 50                  # per-layer variables of the pairs table; its parameters
+                                           # (single values, no search)
 """
 
 import itertools
@@ -52,7 +53,9 @@ from ..core.data_model import TARGETS
 from ..core.data_model import LONGWAVE_COLUMN_FLUXES
 from ..core.pairs_table import table_spectrum
 from .pairs_table import check_has_features, feature_names
+from .longwave_profile_model import LONGWAVE_LAYER_TARGET, LongwaveProfileCorrection
 from .profile_model import LAYER_FIELDS, ProfileCorrection
+from ..runtime.longwave_profile import LONGWAVE_LAYER_FIELDS
 from .transforms import check_transform, transform_features
 
 _TOP_KEYS = {"name", "description", "spectrum", "targets", "features", "split", "cross_validation", "models",
@@ -220,22 +223,30 @@ def parse_recipe(text, source="<recipe>"):
                             held_out_scene_fraction=float(fraction), left_out_families=families,
                             split_seed=split_seed, folds=folds, models=specs, text=text, source=source,
                             target_transforms=_transforms(source, raw.get("target_transforms"), targets),
-                            grouping=grouping, profile=_profile(source, raw.get("profile")), spectrum=spectrum)
-    if spectrum == "longwave" and (recipe.profile is not None or recipe.target_transforms is not None):
-        _fail(source, "[profile] and [target_transforms]", "are for shortwave recipes only")
+                            grouping=grouping, profile=_profile(source, raw.get("profile"), spectrum),
+                            spectrum=spectrum)
+    if spectrum == "longwave" and recipe.target_transforms is not None:
+        _fail(source, "[target_transforms]", "is for shortwave recipes only")
     return recipe
 
 
-def _profile(source, table):
+def profile_class(spectrum):
+    """The profile model class of a spectrum: :class:`ProfileCorrection` or :class:`LongwaveProfileCorrection`."""
+    return LongwaveProfileCorrection if spectrum == "longwave" else ProfileCorrection
+
+
+def _profile(source, table, spectrum="shortwave"):
     """``[profile]``: the profile model's parameters, checked (None without the table)."""
     if table is None:
         return None
-    _check_keys(source, "[profile]", table, set(ProfileCorrection().get_params()))
+    cls = profile_class(spectrum)
+    _check_keys(source, "[profile]" + (" of a longwave recipe" if spectrum == "longwave" else ""), table,
+                set(cls().get_params()))
     for key, value in table.items():
         if isinstance(value, list):
             _fail(source, f"[profile] {key}", f"takes one value (the profile model has no search); got {value!r}")
     try:
-        ProfileCorrection(**table)._boosted()
+        cls(**table)._boosted()
     except ParameterError as exc:
         _fail(source, "[profile]", str(exc))
     return dict(table)
@@ -336,7 +347,9 @@ def check_recipe_against_pairs(recipe, pairs):
     if missing:
         raise ValidationError(f"pairs table lacks targets {missing} named by training recipe {recipe.source!r}")
     if recipe.profile is not None:
-        lacking = [v for v in list(LAYER_FIELDS.values()) + ["layer_absorption_target"] if v not in pairs]
+        needed = list(LONGWAVE_LAYER_FIELDS.values()) + [LONGWAVE_LAYER_TARGET] if recipe.spectrum == "longwave" \
+            else list(LAYER_FIELDS.values()) + ["layer_absorption_target"]
+        lacking = [v for v in needed if v not in pairs]
         if lacking:
             raise ValidationError(f"training recipe {recipe.source!r} has a [profile] model but the pairs table has "
                                   f"no per-layer variables ({', '.join(lacking)}); build it from results with "

@@ -15,12 +15,12 @@ from tqdm import tqdm
 
 from .. import __version__
 from .cv import grid_search, split_scenes
-from .model_directory import MODEL_FORMAT_VERSION, PROFILE_MODEL, file_sha256, write_model, write_training_record
+from .model_directory import MODEL_FORMAT_VERSION, PROFILE_KINDS, PROFILE_MODEL, file_sha256, write_model, \
+    write_training_record
 from .models import make_estimator
-from .profile_model import ProfileCorrection
 from ..core.pairs_table import feature_recipe, read_pairs_table
 from .pairs_table import feature_matrix, scene_labels, select_scenes, target_matrix
-from .recipe import check_recipe_against_pairs, read_recipe
+from .recipe import check_recipe_against_pairs, profile_class, read_recipe
 
 
 def train_models(pairs_path, recipe_path, out_dir, quiet=False):
@@ -94,9 +94,9 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
         if not quiet:
             print(f"profile model on {training.sizes['sample']} columns x {training.sizes['host_layer']} layers",
                   flush=True)
-        profile = ProfileCorrection(**recipe.profile).fit_pairs(training, features)
+        profile = profile_class(recipe.spectrum)(**recipe.profile).fit_pairs(training, features)
         write_model(out_dir / PROFILE_MODEL, profile, dict(
-            format_version=MODEL_FORMAT_VERSION, name=PROFILE_MODEL, kind="profile",
+            format_version=MODEL_FORMAT_VERSION, name=PROFILE_MODEL, kind=PROFILE_KINDS[recipe.spectrum],
             hyperparameters=profile.get_params(), targets=profile.target_names_, feature_names=features,
             feature_recipe=shared["feature_recipe"], cross_validation=None,
             provenance={**provenance, "training_scenes": list(split.training_scenes),

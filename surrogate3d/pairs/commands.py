@@ -22,7 +22,8 @@ def register(sub):
     p.add_argument("--spectrum", default="shortwave", metavar="{shortwave,longwave}",
                    help="shortwave: the table above (default); longwave: one row per scene and host column with "
                         "both longwave_full_3d and longwave_independent_column results, targets in W m-2 "
-                        "(docs/pairs-format.md, 'Longwave pairs'); takes only --host-resolution and --quiet")
+                        "(docs/pairs-format.md, 'Longwave pairs'); takes only --host-resolution, "
+                        "--host-layer-edges and --quiet")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no notices")
     p.set_defaults(func=run, interrupted="nothing was written",
                    parameter_flags={"host_resolutions": "--host-resolution", "host_resolution": "--host-resolution",
@@ -63,14 +64,14 @@ def _run_longwave(args):
     from ..errors import ParameterError
     from .longwave_pairs import build_longwave_pairs
 
-    given = [flag for flag, value in (("--recipe", args.recipe), ("--host-fluxes", args.host_fluxes),
-                                      ("--host-layer-edges", args.host_layer_edges)) if value is not None]
+    given = [flag for flag, value in (("--recipe", args.recipe), ("--host-fluxes", args.host_fluxes))
+             if value is not None]
     if given:
         raise ParameterError(f"{', '.join(given)} apply to shortwave pairs only; --spectrum longwave has a fixed "
-                             "feature set, host fluxes from the longwave_two_stream result and no per-layer "
-                             "variables")
+                             "feature set and host fluxes from the longwave_two_stream result")
     out = check_output_file(args.out, "--out")
-    pairs = build_longwave_pairs(args.archive_dir, args.host_resolution, quiet=args.quiet)
+    pairs = build_longwave_pairs(args.archive_dir, args.host_resolution, quiet=args.quiet,
+                                 host_layer_edges=args.host_layer_edges)
     with staged_file(out) as staging:
         write_dataset(pairs, staging)
     if not args.quiet:

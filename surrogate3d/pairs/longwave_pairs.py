@@ -4,7 +4,9 @@ See ``docs/pairs-format.md``, "Longwave pairs".  :func:`build_longwave_pairs` re
 archive directory, and for every scene holding both a ``longwave_full_3d`` and a
 ``longwave_independent_column`` result coarse-grains the two to host columns; the
 targets are 3D minus independent column of the longwave column fields in W m-2, and
-:func:`longwave_host_features` computes what a host can know about its column.
+:func:`longwave_host_features` computes what a host can know about its column.  The
+per-layer variables of the heating-rate correction come from
+:mod:`surrogate3d.pairs.longwave_profiles`.
 
 The longwave features need host fields the shortwave feature library
 (:mod:`surrogate3d.pairs.features`) does not have (air temperature per layer, surface
@@ -32,6 +34,7 @@ from ..scenes.model import layer_thickness
 from ..scenes.planck import STEFAN_BOLTZMANN
 from .coarsen import block_mean, block_standard_error, host_factors, scene_host_fields
 from .longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, LongwaveFeatureRecipe, longwave_host_features
+from .longwave_profiles import LONGWAVE_PROFILE_VARIABLES, longwave_host_profiles
 
 #: Spectra ``surrogate3d pairs --spectrum`` accepts.
 SPECTRA = ("shortwave", "longwave")
@@ -117,7 +120,7 @@ def _two_stream(scene, full):
                                 resolution=float(full["longwave_run_spectral_resolution"]))
 
 
-def _block(scene, name, resolution, full, ica, two_stream):
+def _block(scene, name, resolution, full, ica, two_stream, host_layer_edges=None):
     fy, fx = host_factors(scene, resolution)
     fields = longwave_host_fields(scene, resolution)
     c3d, cica, host = (coarsen_longwave_result(r, fy, fx) for r in (full, ica, two_stream))
@@ -130,6 +133,7 @@ def _block(scene, name, resolution, full, ica, two_stream):
 
     se = longwave_stderr_name
     return {
+        **longwave_host_profiles(scene, full, ica, two_stream, fy, fx, host_layer_edges),
         "features": np.stack([features[f].reshape(n) for f in LONGWAVE_FEATURES], axis=1),
         "target_value": stack(lambda t: c3d[t] - cica[t]),
         "target_standard_error": stack(lambda t: np.hypot(c3d[se(t)], cica[se(t)])),
@@ -179,7 +183,7 @@ def longwave_fingerprint(archive_dir):
     return digest.hexdigest()
 
 
-def build_longwave_pairs(archive_dir, host_resolutions, quiet=False):
+def build_longwave_pairs(archive_dir, host_resolutions, quiet=False, host_layer_edges=None):
     """Build the longwave pair table of an archive directory.
 
     Parameters
@@ -191,11 +195,17 @@ def build_longwave_pairs(archive_dir, host_resolutions, quiet=False):
         domain.
     quiet : bool
         No progress bar and no notices of skipped scenes on stderr.
+    host_layer_edges : array_like, optional
+        The host grid's layer edges [m] of the per-layer variables
+        (:func:`surrogate3d.pairs.profiles.check_host_layer_edges`); default every scene's
+        own layers.
 
     Returns
     -------
     xarray.Dataset
-        The table of ``docs/pairs-format.md``, "Longwave pairs"; ``attrs["skipped"]``
+        The table of ``docs/pairs-format.md``, "Longwave pairs", with the per-layer variables
+        of :data:`~surrogate3d.pairs.longwave_profiles.LONGWAVE_PROFILE_VARIABLES` on
+        ``(sample, host_layer)`` (NaN beyond a scene's host layers); ``attrs["skipped"]``
         lists (JSON) the scene files left out for lack of a ``longwave_full_3d`` or
         ``longwave_independent_column`` result.
 
@@ -219,8 +229,10 @@ def build_longwave_pairs(archive_dir, host_resolutions, quiet=False):
     >>> archive = Path(tempfile.mkdtemp())
     >>> _ = write_scene(insert_longwave_results(scene, runs), archive / "s.nc")
     >>> pairs = build_longwave_pairs(archive, [2.0 * scene.attrs["dx_m"]], quiet=True)
-    >>> pairs.sizes["sample"], pairs.sizes["target"], str(pairs["target_value"].attrs["units"])
-    (4, 5, 'W m-2')
+    >>> pairs.sizes["sample"], pairs.sizes["target"], pairs.sizes["host_layer"]
+    (4, 5, 3)
+    >>> str(pairs["target_value"].attrs["units"])
+    'W m-2'
     """
     from .build import _check_resolutions
 
@@ -249,15 +261,25 @@ def build_longwave_pairs(archive_dir, host_resolutions, quiet=False):
         ica = select_longwave_result(scene, "longwave_independent_column")
         two_stream = _two_stream(scene, full)
         for resolution in resolutions:
-            blocks.append(_block(scene, path.stem, resolution, full, ica, two_stream))
+            try:
+                blocks.append(_block(scene, path.stem, resolution, full, ica, two_stream, host_layer_edges))
+            except ParameterError as exc:
+                raise ParameterError(f"scene {path.stem!r}: {exc}") from None
     if not blocks:
         raise FormatError(f"archive directory {str(archive_dir)!r} has no scene with both longwave_full_3d and "
                           f"longwave_independent_column results; " + "; ".join(skipped))
     return _assemble(blocks, digest.hexdigest(), skipped, resolutions)
 
 
+def _padded(arrays):
+    # Per-layer arrays of blocks with different host layer counts, NaN beyond each one's.
+    width = max(a.shape[1] for a in arrays)
+    return np.concatenate([np.pad(a, ((0, 0), (0, width - a.shape[1])), constant_values=np.nan) for a in arrays])
+
+
 def _assemble(blocks, fingerprint, skipped, resolutions):
-    data = {key: np.concatenate([b[key] for b in blocks]) for key in blocks[0]}
+    data = {key: (_padded if key in LONGWAVE_PROFILE_VARIABLES else np.concatenate)([b[key] for b in blocks])
+            for key in blocks[0]}
     ds = xr.Dataset(coords={"feature": ("feature", np.array(list(LONGWAVE_FEATURES), dtype=object),
                                         {"long_name": "longwave feature name (docs/pairs-format.md)"}),
                             "target": ("target", np.array(LONGWAVE_TARGETS, dtype=object),
@@ -270,6 +292,8 @@ def _assemble(blocks, fingerprint, skipped, resolutions):
     for name, (units, long_name) in _SAMPLE_META.items():
         attrs = {"long_name": long_name} if units == "-" else {"units": units, "long_name": long_name}
         ds[name] = (("sample",), data.pop(name), attrs)
+    for name, (units, long_name) in LONGWAVE_PROFILE_VARIABLES.items():
+        ds[name] = (("sample", "host_layer"), data.pop(name), {"units": units, "long_name": long_name})
     ds.attrs.update({
         "format_version": LONGWAVE_PAIRS_FORMAT_VERSION,
         "Conventions": "CF-1.10",

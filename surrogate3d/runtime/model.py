@@ -23,6 +23,7 @@ from ..core.data_model import TARGETS
 from ..core.validation import fail, first_nonfinite
 from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
 from .halo import subdomain_features
+from .longwave_profile import longwave_density_to_layers, longwave_layer_rows, match_longwave_column
 from .profile import density_to_layers, layer_rows, match_column_integral
 from .ridge import RidgeModel
 from .trees import TreeEnsemble
@@ -328,10 +329,17 @@ class CorrectionModel:
             incident flux), ``slant_optical_depth_above`` [1]
             (:func:`surrogate3d.pairs.profiles.slant_optical_depth_above`); and
             ``cos_solar_zenith`` (n_column,).  NaN edges mark layers a column does not have.
+            A longwave model reads instead ``bottom``, ``top`` [m], ``cloud_fraction`` [1],
+            ``liquid_water_path`` [g m-2], ``air_temperature`` [K] and
+            ``two_stream_net_absorption`` [W m-2] (the host's own independent-column net
+            absorption of the layer) per layer, and ``surface_temperature`` (n_column,) [K]
+            (:data:`surrogate3d.runtime.longwave_profile.LONGWAVE_LAYER_FIELDS`).
         column_correction : array_like (n_column,), optional
             The column absorption correction [1] (a column model's, after the consistency
             step) that the layers are made to sum to
             (:func:`~surrogate3d.runtime.profile.match_column_integral`); default none.
+            Longwave: the column's ``longwave_atmosphere_net_absorption`` correction
+            [W m-2] (:func:`~surrogate3d.runtime.longwave_profile.match_longwave_column`).
         check_envelope : bool
             As for :meth:`predict`.
 
@@ -339,7 +347,8 @@ class CorrectionModel:
         -------
         ndarray (n_column, n_layer)
             Absorption correction of every layer [1], fractions of the incident flux on
-            the horizontal; NaN in padding layers.
+            the horizontal (longwave: net-absorption correction [W m-2]); NaN in padding
+            layers.
 
         Raises
         ------
@@ -355,10 +364,14 @@ class CorrectionModel:
         if X.ndim != 2 or X.shape[1] != len(self.column_feature_names):
             raise ValidationError(f"column_features must have shape (n_column, {len(self.column_feature_names)}) "
                                   f"for model {self.name!r}; got {X.shape}")
-        rows, valid = layer_rows(X, layer_fields)
+        longwave = self.spectrum == "longwave"
+        rows, valid = (longwave_layer_rows if longwave else layer_rows)(X, layer_fields)
         density = np.full(rows.shape[0], np.nan)
         if valid.any():
             density[valid] = self.predict(rows[valid], check_envelope)[:, 0]
+        if longwave:
+            layers = longwave_density_to_layers(density, layer_fields)
+            return layers if column_correction is None else match_longwave_column(layers, column_correction)
         layers = density_to_layers(density, layer_fields)
         if column_correction is None:
             return layers

@@ -96,8 +96,8 @@ def test_recipe_and_table_of_different_spectra_are_refused(chain, tmp_path):
     with pytest.raises(ParameterError, match="targets must be a non-empty list of distinct names from "
                                              r"\['longwave_surface_downward_flux'"):
         parse_recipe(RECIPE.replace('spectrum = "longwave"', 'spectrum = "longwave"\ntargets = ["toa_upward_flux"]'))
-    with pytest.raises(ParameterError, match=r"\[profile\] and \[target_transforms\] are for shortwave"):
-        parse_recipe(RECIPE + "[profile]\nmax_iter = 10\n")
+    with pytest.raises(ParameterError, match=r"\[target_transforms\] is for shortwave recipes only"):
+        parse_recipe(RECIPE + "[target_transforms.longwave_toa_upward_flux]\nscale_feature = \"cloud_fraction\"\n")
     with pytest.raises(ParameterError, match="spectrum must be 'shortwave' or 'longwave'"):
         parse_recipe('spectrum = "thermal"\n' + RECIPE.replace('spectrum = "longwave"', ""))
 

@@ -48,7 +48,7 @@ def pairs(archive):
 
 
 def test_targets_are_3d_minus_independent_column_block_means_by_hand(archive, pairs):
-    assert pairs.sizes == {"sample": 8, "feature": len(LONGWAVE_FEATURES), "target": 5}
+    assert pairs.sizes == {"sample": 8, "feature": len(LONGWAVE_FEATURES), "target": 5, "host_layer": 6}
     assert list(pairs["target"].values) == list(LONGWAVE_TARGETS)
     stored = read_scene(archive / "s_00002.nc")
     full = select_longwave_result(stored, "longwave_full_3d")
