@@ -355,6 +355,21 @@ def _skill_table(table, lines):
     return held
 
 
+def _profile_table(path, lines, level="## "):
+    """Markdown lines of a report's heating-rate table (``profile_metrics.csv``), if it has one."""
+    import pandas as pd
+
+    if not path.is_file():
+        return
+    rows = pd.read_csv(path)
+    lines += [f"{level}heating-rate profiles (held-out scenes, cloudy columns, pooled over layers)", "",
+              "share of the independent column's RMSE removed (RMSE in brackets)", "",
+              "| predictor | quantity | units | skill (RMSE) |", "|---|---|---|---|"]
+    lines += [f"| {r.predictor} | {r.quantity} | {r.units} | {r.rmse_reduction:.2f} ({r.rmse:.3g}) |"
+              for r in rows.itertuples()]
+    lines.append("")
+
+
 def summarize(paths, page, longwave_page=None):
     """The summary tables (held-out skill of every model and baseline, shortwave and longwave) and the output paths."""
     import pandas as pd
@@ -378,19 +393,12 @@ def summarize(paths, page, longwave_page=None):
                      for t in targets]
             lines.append(f"| {predictor} | " + " | ".join(cells) + " |")
         lines.append("")
-    profile = paths.report / "profile_metrics.csv"
-    if profile.is_file():
-        rows = pd.read_csv(profile)
-        lines += ["## heating-rate profiles (held-out scenes, cloudy columns, pooled over layers)", "",
-                  "share of the independent column's RMSE removed (RMSE in brackets)", "",
-                  "| predictor | quantity | units | skill (RMSE) |", "|---|---|---|---|"]
-        lines += [f"| {r.predictor} | {r.quantity} | {r.units} | {r.rmse_reduction:.2f} ({r.rmse:.3g}) |"
-                  for r in rows.itertuples()]
-        lines.append("")
+    _profile_table(paths.report / "profile_metrics.csv", lines)
     if longwave_page is not None:
         lines += ["## longwave", "", "skill = 1 - RMSE(corrected) / RMSE(independent column) of the longwave fields "
                   "in W m-2, the share of the independent column's RMSE removed; RMSE in W m-2 in brackets", ""]
         _skill_table(pd.read_csv(longwave_page.parent / "metrics.csv"), lines)
+        _profile_table(longwave_page.parent / "profile_metrics.csv", lines, "### ")
     lines += ["## outputs", "",
               f"- archive (scenes and benchmark results): `{paths.archive}`",
               f"- training pairs: `{paths.pairs}`",

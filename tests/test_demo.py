@@ -36,6 +36,7 @@ def test_longwave_part_writes_pairs_models_report_and_export(demo_dir):
     assert (longwave / "export" / "fortran" / "boosted_correction.f90").is_file()
     summary = (demo_dir / "summary.md").read_text()
     assert "## longwave" in summary and "longwave_surface_downward_flux" in summary
+    assert "### heating-rate profiles" in summary and training["profile_model"] == "profile"
 
 
 def test_summary_compares_models_with_every_baseline(demo_dir):
