@@ -784,7 +784,12 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, su
     cdfs = np.empty((nthreads, nb * nray))
     xys = np.empty((nthreads, nray, 2))
     directs = np.empty((nthreads, 3, nb, ny, nx))
-    works = np.empty((nthreads, 2 * nb + 16))
+    families = beam.tile_x * beam.tile_y * beam.nsub * beam.nsub if full_3d else 1
+    segments = beam.max_segments if full_3d else 1
+    landings = np.empty((nthreads, families, 2))
+    seg_cells = np.empty((nthreads, segments, 4), dtype=np.int32)
+    seg_lengths = np.empty((nthreads, segments))
+    sweeps = np.empty((nthreads, 3, ncol if full_3d else 1))
     nsum = len(SUM_NAMES)
     total_events = 0
     csum = col_sum.reshape(nb, ncol * nsum)
@@ -798,7 +803,8 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, su
             col_slots[i, :, :] = 0.0
             tables = BeamTables(xys[thread], sources[thread], cums[thread], transs[thread],
                                 cdfs[thread] if full_3d else beam.column_cdf,
-                                directs[thread] if full_3d else beam.column_direct, works[thread])
+                                directs[thread] if full_3d else beam.column_direct, landings[thread],
+                                seg_cells[thread], seg_lengths[thread], sweeps[thread])
             if full_3d:
                 tables.direct[:] = 0.0
             slot_events[i] = _run_batch(states[i], start + i, run, optics, grid, beam, slabs, tables,

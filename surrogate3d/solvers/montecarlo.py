@@ -13,7 +13,8 @@ import numba
 import numpy as np
 
 from .. import __version__
-from ..core.config import (BATCHES, CLEAR_CELL_OPTICAL_THICKNESS, CLEAR_CUBE, MAJORANT_BLOCK, MAX_BATCH_SIZE,
+from ..core.config import (BATCHES, CLEAR_CELL_OPTICAL_THICKNESS, CLEAR_CUBE, DIRECT_BEAM_TILE, MAJORANT_BLOCK,
+                           MAX_BATCH_SIZE,
                            MAX_SCATTERING_EVENTS, MIN_BATCH_SIZE, MONTE_CARLO_PHOTONS, MONTE_CARLO_WAVE,
                            PROGRESS_PHOTONS, RAY_TABLE_LAYERS, ROULETTE_WEIGHT, SOLAR_CONSTANT)
 from ..core.run_result import make_run_result
@@ -404,6 +405,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             czi = np.zeros(2, np.int64)
             nsub, reach = 1, (0.0, 0.0)
             slabs = _geometry.uniform_slabs(np.zeros((nb, nz, 1)), np.ones((nb, nz, 1)), z_edge, mu0)  # unused
+            segments, tiles, signed = 1, (1, 1), np.zeros((nb, 1, 1, 1, 1, 1), np.float32)
             # Run-level scale: the whole photon weight of all batches maps to 2**61 units.
             energy = cdf[-1] if cdf.size and cdf[-1] > 0.0 else 1.0
         else:
@@ -415,6 +417,10 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             path = (z_edge[-1] - z_edge[0]) / mu0
             reach = (path * ux, path * uy)
             slabs = _geometry.uniform_slabs(kext, ssa_g[..., 0], z_edge, mu0)
+            segments = _geometry.max_segments(slabs.top - slabs.bottom, z_edge[slabs.top] - z_edge[slabs.bottom], ux,
+                                              uy, uz, dx, dy)
+            tiles = _geometry.tile_sides(nx, ny, DIRECT_BEAM_TILE)
+            signed = _geometry.signed_extinction(kext, ssa_g[..., 0], slabs.bottom, slabs.top, *tiles)
             # A batch's whole beam, direct and scattered, is at most one column's flux per column.
             energy = float(nx * ny)
         del ext, ssa  # traced from the single-precision copies
@@ -429,7 +435,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         scale = 2.0**61 / (n_batches * energy)
         cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
         optics = Optics(kext, ssa_g, column_props, alb, weights)
-        beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, kept, czi, cdf, column_direct)
+        beam = Beam(ux, uy, uz, nsub, *tiles, segments, signed, *reach, edge_slot, kept, czi, cdf, column_direct)
         run = Run(not independent_columns, seed, batch_size, roulette, max_events)
         sums = RunSums(col_sum, spread, cell_fixed, scale)
         chunk = MONTE_CARLO_WAVE * max(1, PROGRESS_PHOTONS // (MONTE_CARLO_WAVE * batch_size))

@@ -5,6 +5,7 @@ import math
 import numpy as np
 import pytest
 
+from surrogate3d.core.config import DIRECT_BEAM_TILE
 from surrogate3d.solvers import _geometry, _rng, _transport
 from surrogate3d.solvers._records import Beam, BeamTables, Grid, Optics, Photon, Slabs, Survival, Tallies
 
@@ -109,12 +110,14 @@ def _single(ext):
     return np.asarray(ext, dtype=np.float32).astype(np.float64)
 
 
-def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, weights=None, slabs=True):
+def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, weights=None, slabs=True,
+                tile=DIRECT_BEAM_TILE, families=False):
     """One batch's direct beam (:func:`_geometry.direct_beam_batch`) with fresh scratch.
 
     Returns ``(absorbed, direct, source, cum, trans, ray_xy)``: absorbed per cell (band-summed,
     solar-weighted), the (3, nband, ny, nx) surface, column-absorbed and surface-absorbed
-    direct flux, and the per-ray tables.
+    direct flux, and the per-ray tables; with ``families``, also the families' landing
+    points and segment lists ``(landing, cells, lengths, count)``.
     """
     nb, nz, ny, nx = ext.shape
     weights = np.full(nb, 1.0) if weights is None else np.asarray(weights, dtype=np.float64)
@@ -135,15 +138,22 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     if not slabs:  # walk every layer: no slab on top, none below
         uniform = Slabs(nz, 0, np.ones((nb, nz + 1)), np.zeros((nb, nz + 1)), np.ones((nb, nz + 1)),
                         np.zeros((nb, nz)))
-    records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1])
-    tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, np.empty(2 * nb + 16))
+    records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1],
+                            tile=tile, slabs=uniform)
+    beam = records[2]
+    landing = np.empty((beam.tile_x * beam.tile_y * nsub * nsub, 2))
+    tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, landing,
+                        np.empty((beam.max_segments, 4), np.int32), np.empty(beam.max_segments), np.empty((3, ny * nx)))
     _geometry.direct_beam_batch(state, *records, uniform, tables, Tallies(np.empty((nb, 0)), cell, scale))
-    return cell / scale, direct, source, cum, trans, ray_xy
+    out = (cell / scale, direct, source, cum, trans, ray_xy)
+    return out + (landing,) if families else out
 
 
-def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach_x=0.0, reach_y=0.0):
-    """The optics, grid (cells only) and beam records of the direct-beam kernels."""
-    nz = kext.shape[1]
+def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach_x=0.0, reach_y=0.0,
+                  tile=DIRECT_BEAM_TILE, slabs=None):
+    """The optics, grid (cells only) and beam records of the direct-beam kernels (the beam's
+    walk tables only with ``slabs``)."""
+    nb, nz, ny, nx = kext.shape
     edge_slot = np.full(nz + 1, -1, dtype=np.int64)
     edge_slot[czi[::-1]] = np.arange(czi.size)
     z_edge = np.asarray(z_edge, dtype=np.float64)
@@ -153,7 +163,13 @@ def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach
     grid = Grid(z_edge, float(dx), float(dy), 1, 1, np.array([0, nz]), z_edge[[0, nz]], kext[:, :1, :1, :1],
                 np.zeros((1, 1, 1, 1), np.uint8), unused, unused.astype(np.int64), unused.astype(np.int64))
     kept = np.column_stack([np.arange(czi.size), czi[::-1]]).astype(np.int64)
-    beam = Beam(*(float(c) for c in u), int(nsub), float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
+    gx, gy, segments, signed = 1, 1, 1, np.zeros((nb, 1, 1, 1, 1, 1), np.float32)
+    if slabs is not None:
+        gx, gy = _geometry.tile_sides(nx, ny, tile)
+        segments = _geometry.max_segments(slabs.top - slabs.bottom, z_edge[slabs.top] - z_edge[slabs.bottom], *u, dx,
+                                          dy)
+        signed = _geometry.signed_extinction(kext, ssa_g[..., 0], slabs.bottom, slabs.top, gx, gy)
+    beam = Beam(*(float(c) for c in u), int(nsub), gx, gy, segments, signed, float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
                 unused, np.zeros((3, 1, 1, 1)))
     return optics, grid, beam
 
