@@ -39,7 +39,7 @@ RAY_TABLE_LAYERS = 4
 #: columns of a tile land at independent random points, and the tile repeats.  16 keeps
 #: the columns of host columns up to 16 cells wide independent (their means as noisy as
 #: with a random point per column), and the domain mean nearly so.
-DIRECT_BEAM_TILE = 16
+DIRECT_BEAM_TILE = 4
 #: Optical thickness across a cell below which a cell counts as clear air for cube steps.
 CLEAR_CELL_OPTICAL_THICKNESS = 0.01
 #: Photon weight, relative to the starting weight, below which Russian roulette decides

@@ -32,6 +32,9 @@ from ._records import Slabs
 from ._rng import uniform
 
 INF = math.inf
+#: Rays per stratum of a column: a random point and its mirror image through the stratum's
+#: centre (antithetic variates).
+RAYS_PER_STRATUM = 2
 
 
 @njit(cache=True, inline="always")
@@ -189,36 +192,48 @@ def tile_sides(nx, ny, tile):
             max(d for d in range(1, min(tile, ny) + 1) if ny % d == 0))
 
 
-def signed_extinction(kext, ssa, bottom, top, gx, gy):
-    """The extinction the direct beam sweeps, per tile place: ``(nband, top - bottom, gy, gx,
-    ny // gy, nx // gx)`` float32, ``[b, iz - bottom, iy % gy, ix % gx, iy // gy, ix // gx]``.
+def sweep_tables(kext, ssa, bottom, top, gx, gy):
+    """The cells the direct beam sweeps (the layers between the uniform slabs), by place in the tiles.
 
-    The columns at one place of their tiles are contiguous, so a family of rays reads its
-    cells in order; an absorbing cell (single-scattering albedo below 1) holds its extinction
-    negated, so the sweep tells it apart without reading the albedo.
+    Parameters
+    ----------
+    kext, ssa : ndarray (nband, nz, ny, nx)
+        Extinction [m-1] and single-scattering albedo, as the kernels trace them.
+    bottom, top : int
+        The swept layers are ``bottom <= iz < top``.
+    gx, gy : int
+        Tile sides (:func:`tile_sides`).
+
+    Returns
+    -------
+    conservative : float32 (nband, top - bottom, gy, gx, ny // gy, nx // gx)
+        ``[b, iz - bottom, iy % gy, ix % gx, iy // gy, ix // gx]``: the extinction of the
+        conservative cells, 0 in absorbing ones.  The columns at one place of their tiles
+        are contiguous, so a family of rays reads its cells in order.
+    absorbing_start : int64 (nband * (top - bottom) * gy * gx + 1,)
+        Where the absorbing cells of every (band, layer, place in the tiles), in that order,
+        start in the next two arrays.
+    absorbing_cell : int32 (n, 2)
+        Their ``(iy // gy, ix // gx)``.
+    absorbing_optics : float64 (n, 2)
+        Their extinction [m-1] and single-scattering albedo.
     """
     nb, nz, ny, nx = kext.shape
-    k = np.where(ssa[:, bottom:top] < 1.0, -kext[:, bottom:top], kext[:, bottom:top]).astype(np.float32)
-    k = k.reshape(nb, top - bottom, ny // gy, gy, nx // gx, gx).transpose(0, 1, 3, 5, 2, 4)
-    return np.ascontiguousarray(k)
+    nw = top - bottom
 
+    def by_place(a):
+        return np.ascontiguousarray(a[:, bottom:top].reshape(nb, nw, ny // gy, gy, nx // gx, gx)
+                                    .transpose(0, 1, 3, 5, 2, 4))
 
-@njit(cache=True, inline="always")
-def _absorbing_cell(b, iz, iy, ix, k, length, weights, ssa_g, state, c, cell, scale, direct, jy, jx):
-    # An absorbing cell: apply the conservative run before it, then split what the cell
-    # removes into absorption (tallied in the cell and the ray's column) and source.
-    pend, trans, src = state[0], state[1], state[2]
-    t_in = trans[c] * math.exp(-pend[c])
-    src[c] += trans[c] - t_in
-    pend[c] = 0.0
-    t_out = t_in * math.exp(-k * length)
-    removed = t_in - t_out
-    w = float(ssa_g[b, iz, iy, ix, 0])
-    a = weights[b] * (1.0 - w) * removed
-    cell[iz, iy, ix] += np.int64(a * scale + 0.5)
-    direct[1, b, jy, jx] += a
-    src[c] += w * removed
-    trans[c] = t_out
+    k, w = by_place(np.asarray(kext, dtype=np.float32)), by_place(np.asarray(ssa, dtype=np.float32))
+    absorbing = (w < 1.0) & (k > 0.0)
+    conservative = np.where(absorbing, np.float32(0.0), k)
+    counts = absorbing.reshape(nb * nw * gy * gx, (ny // gy) * (nx // gx)).sum(axis=1)
+    start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    where = np.nonzero(absorbing)  # row-major: grouped by (band, layer, place), as start says
+    cells = np.column_stack([where[4], where[5]]).astype(np.int32)
+    optics = np.column_stack([k[where], w[where]]).astype(np.float64)
+    return conservative, start, cells.reshape(-1, 2), optics.reshape(-1, 2)
 
 
 @njit(**KERNEL)
@@ -229,8 +244,10 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
     of one place in the tiles: the batch draws one landing point uniformly in the family's
     stratum, the same for all its columns, traces it once (:func:`trace_segments`), and then
     sweeps the family's columns segment by segment (the same cells shifted, contiguous in
-    ``beam.signed_ext``), keeping every ray's transmission, source and the optical depth of
-    conservative cells not yet applied.
+    ``beam.sweep_ext``), keeping every ray's transmission, source and the optical depth of
+    conservative cells not yet applied; the family's absorbing cells are visited from the
+    lists of absorbing cells (``beam.absorbing_*``), so the sweep of the conservative
+    ones has no branch.
 
     Parameters
     ----------
@@ -243,7 +260,7 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
         ``z_edge``, ``dx`` and ``dy`` are read.
     beam : surrogate3d.solvers._records.Beam
         Direction, rays per column and axis, tile sides, reach, ``edge_slot``, ``kept`` and
-        ``signed_ext`` are read.
+        the sweep tables (:func:`sweep_tables`) are read.
     slabs : surrogate3d.solvers._records.Slabs
         The horizontally uniform layers from ``top`` up and below ``bottom`` (those also
         conservative), which rays cross without walking their cells (:func:`uniform_slabs`).
@@ -259,14 +276,14 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
     ssa_g, alb, weights = optics.ssa_g, optics.albedo, optics.band_weight
     z_edge, dx, dy = grid.z_edge, grid.dx, grid.dy
     ux, uy, uz, nsub, edge_slot, kept = beam.ux, beam.uy, beam.uz, beam.nsub, beam.edge_slot, beam.kept
-    ksub = beam.signed_ext
+    ksub, a_start, a_cell, a_optics = beam.sweep_ext, beam.absorbing_start, beam.absorbing_cell, beam.absorbing_optics
     ray_xy, source, ray_cum, ray_trans = tables.ray_xy, tables.source, tables.ray_cum, tables.ray_trans
     landing, cells, lengths = tables.landing, tables.seg_cells, tables.seg_lengths
     direct, cell, scale = tables.direct, tallies.cell, tallies.scale
     nb, nz, ny, nx = optics.kext.shape
     gx, gy = beam.tile_x, beam.tile_y
     nqx, nqy = nx // gx, ny // gy
-    per_column = nsub * nsub
+    per_column = RAYS_PER_STRATUM * nsub * nsub
     wray = 1.0 / per_column
     top, bottom = slabs.top, slabs.bottom
     top_t, top_s, bottom_t = slabs.top_transmission, slabs.top_source, slabs.bottom_transmission
@@ -284,7 +301,11 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
     for m in range(gy * gx * per_column):
         s = m % per_column
         fx, fy = (m // per_column) % gx, (m // per_column) // gx
-        ox, oy = (s % nsub + uniform(state)) / nsub, (s // nsub + uniform(state)) / nsub
+        if s % 2 == 0:
+            u, v = uniform(state), uniform(state)
+        else:
+            u, v = 1.0 - u, 1.0 - v  # the antithetic partner: the stratum's point mirrored through its centre
+        ox, oy = ((s // 2) % nsub + u) / nsub, ((s // 2) // nsub + v) / nsub
         landing[m, 0], landing[m, 1] = ox, oy
         nseg = trace_segments(ox, oy, ux, uy, uz, dx, dy, nx, ny, z_edge, top, bottom, edge_slot, cells, lengths)
         # Ray of the family's column number c = qy nqx + qx, (jy, jx) = (qy gy + fy, qx gx + fx):
@@ -318,25 +339,42 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
                 iz, length = cells[q, 0], lengths[q]
                 py, px = (fy + cells[q, 1]) % gy, (fx + cells[q, 2]) % gx
                 sy, sx = ((fy + cells[q, 1]) // gy) % nqy, ((fx + cells[q, 2]) // gx) % nqx
+                place = ((b * (top - bottom) + iz - bottom) * gy + py) * gx + px
+                for e in range(a_start[place], a_start[place + 1]):
+                    # An absorbing cell: apply the conservative run before it, then split what
+                    # the cell removes into absorption (in the cell and the ray's column) and source.
+                    qy2, qx2 = a_cell[e, 0], a_cell[e, 1]
+                    qy, qx = qy2 - sy, qx2 - sx
+                    if qy < 0:
+                        qy += nqy
+                    if qx < 0:
+                        qx += nqx
+                    c = qy * nqx + qx
+                    t_in = trans[c]
+                    if pend[c] > 0.0:
+                        t_in *= math.exp(-pend[c])
+                        src[c] += trans[c] - t_in
+                        pend[c] = 0.0
+                    t_out = t_in * math.exp(-a_optics[e, 0] * length)
+                    removed = t_in - t_out
+                    w = a_optics[e, 1]
+                    a = weights[b] * (1.0 - w) * removed
+                    cell[iz, qy2 * gy + py, qx2 * gx + px] += np.int64(a * scale + 0.5)
+                    direct[1, b, qy * gy + fy, qx * gx + fx] += a
+                    src[c] += w * removed
+                    trans[c] = t_out
                 plane = ksub[b, iz - bottom, py, px]
                 for qy in range(nqy):
+                    # A conservative cell absorbs nothing and scatters all it removes, so its
+                    # source only telescopes: one exponential for a run of such cells.
                     qy2 = qy + sy
                     if qy2 >= nqy:
                         qy2 -= nqy
-                    row = plane[qy2]
-                    base = qy * nqx
-                    for qx in range(nqx):
-                        qx2 = qx + sx
-                        if qx2 >= nqx:
-                            qx2 -= nqx
-                        k = float(row[qx2])
-                        if k >= 0.0:
-                            # A conservative cell absorbs nothing and scatters all it removes, so
-                            # its source only telescopes: one exponential for a run of such cells.
-                            pend[base + qx] += k * length
-                        else:
-                            _absorbing_cell(b, iz, qy2 * gy + py, qx2 * gx + px, -k, length, weights, ssa_g, sweep,
-                                            base + qx, cell, scale, direct, qy * gy + fy, qx * gx + fx)
+                    row, acc = plane[qy2], pend[qy * nqx:(qy + 1) * nqx]
+                    for qx in range(nqx - sx):
+                        acc[qx] += length * row[qx + sx]
+                    for qx in range(nqx - sx, nqx):
+                        acc[qx] += length * row[qx + sx - nqx]
                 j = cells[q, 3]
                 if j >= 0:
                     for qy in range(nqy):

@@ -67,7 +67,9 @@ clear_below, clear_above : int64 (nband,)
     Block rows below ``clear_below`` and from ``clear_above`` up are clear in every column.
 """
 
-Beam = namedtuple("Beam", ["ux", "uy", "uz", "nsub", "tile_x", "tile_y", "max_segments", "signed_ext", "reach_x", "reach_y", "edge_slot", "kept", "table_edges",
+Beam = namedtuple("Beam", ["ux", "uy", "uz", "nsub", "tile_x", "tile_y", "max_segments", "sweep_ext",
+                           "absorbing_start", "absorbing_cell", "absorbing_optics", "reach_x", "reach_y", "edge_slot",
+                           "kept", "table_edges",
                            "column_cdf", "column_direct"])
 Beam.__doc__ = """The direct solar beam.
 
@@ -81,10 +83,18 @@ tile_x, tile_y : int
     (3D mode; :func:`surrogate3d.solvers._geometry.direct_beam_batch`).
 max_segments : int
     Most segments a direct-beam ray can have (:func:`surrogate3d.solvers._geometry.max_segments`).
-signed_ext : float32 (nband, nwalk, tile_y, tile_x, ny / tile_y, nx / tile_x)
-    Extinction [m-1] of the layers the direct beam walks (between the uniform slabs),
-    grouped by place in the tiles, negated in absorbing cells
-    (:func:`surrogate3d.solvers._geometry.signed_extinction`; 3D mode).
+sweep_ext : float32 (nband, nwalk, tile_y, tile_x, ny / tile_y, nx / tile_x)
+    Extinction [m-1] of the conservative cells of the layers the direct beam walks
+    (between the uniform slabs), grouped by place in the tiles, 0 in absorbing cells;
+    3D mode.
+absorbing_start : int64 (nband nwalk tile_y tile_x + 1,)
+    Where the absorbing cells of every (band, layer, place in the tiles) start in the
+    next two arrays.
+absorbing_cell : int32 (n, 2)
+    Their ``(iy // tile_y, ix // tile_x)``.
+absorbing_optics : float64 (n, 2)
+    Their extinction [m-1] and single-scattering albedo
+    (:func:`surrogate3d.solvers._geometry.sweep_tables`).
 reach_x, reach_y : float
     Horizontal travel [m] of the beam from the top of the domain to the surface (a record
     field may not be a tuple: a parallel loop cannot take nested tuples).

@@ -405,7 +405,9 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             czi = np.zeros(2, np.int64)
             nsub, reach = 1, (0.0, 0.0)
             slabs = _geometry.uniform_slabs(np.zeros((nb, nz, 1)), np.ones((nb, nz, 1)), z_edge, mu0)  # unused
-            segments, tiles, signed = 1, (1, 1), np.zeros((nb, 1, 1, 1, 1, 1), np.float32)
+            segments, tiles = 1, (1, 1)
+            sweep = (np.zeros((nb, 1, 1, 1, 1, 1), np.float32), np.zeros(2, np.int64), np.zeros((0, 2), np.int32),
+                     np.zeros((0, 2)))
             # Run-level scale: the whole photon weight of all batches maps to 2**61 units.
             energy = cdf[-1] if cdf.size and cdf[-1] > 0.0 else 1.0
         else:
@@ -420,7 +422,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             segments = _geometry.max_segments(slabs.top - slabs.bottom, z_edge[slabs.top] - z_edge[slabs.bottom], ux,
                                               uy, uz, dx, dy)
             tiles = _geometry.tile_sides(nx, ny, DIRECT_BEAM_TILE)
-            signed = _geometry.signed_extinction(kext, ssa_g[..., 0], slabs.bottom, slabs.top, *tiles)
+            sweep = _geometry.sweep_tables(kext, ssa_g[..., 0], slabs.bottom, slabs.top, *tiles)
             # A batch's whole beam, direct and scattered, is at most one column's flux per column.
             energy = float(nx * ny)
         del ext, ssa  # traced from the single-precision copies
@@ -435,7 +437,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         scale = 2.0**61 / (n_batches * energy)
         cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
         optics = Optics(kext, ssa_g, column_props, alb, weights)
-        beam = Beam(ux, uy, uz, nsub, *tiles, segments, signed, *reach, edge_slot, kept, czi, cdf, column_direct)
+        beam = Beam(ux, uy, uz, nsub, *tiles, segments, *sweep, *reach, edge_slot, kept, czi, cdf, column_direct)
         run = Run(not independent_columns, seed, batch_size, roulette, max_events)
         sums = RunSums(col_sum, spread, cell_fixed, scale)
         chunk = MONTE_CARLO_WAVE * max(1, PROGRESS_PHOTONS // (MONTE_CARLO_WAVE * batch_size))

@@ -124,7 +124,7 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     optics = np.zeros(ext.shape + (3,), np.float32)
     optics[..., 0], optics[..., 1] = ext, ssa
     kext, ssa_g = optics[..., 0], optics[..., 1:3]
-    nray = nx * ny * nsub * nsub
+    nray = nx * ny * _geometry.RAYS_PER_STRATUM * nsub * nsub
     ncz = czi.size - 1
     source, ray_xy = np.empty((nb, nray)), np.empty((nray, 2))
     cum, trans = np.empty((nb, nray, ncz + 1)), np.empty((nb, nray, ncz + 1))
@@ -141,7 +141,7 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1],
                             tile=tile, slabs=uniform)
     beam = records[2]
-    landing = np.empty((beam.tile_x * beam.tile_y * nsub * nsub, 2))
+    landing = np.empty((beam.tile_x * beam.tile_y * _geometry.RAYS_PER_STRATUM * nsub * nsub, 2))
     tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, landing,
                         np.empty((beam.max_segments, 4), np.int32), np.empty(beam.max_segments), np.empty((3, ny * nx)))
     _geometry.direct_beam_batch(state, *records, uniform, tables, Tallies(np.empty((nb, 0)), cell, scale))
@@ -163,13 +163,15 @@ def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach
     grid = Grid(z_edge, float(dx), float(dy), 1, 1, np.array([0, nz]), z_edge[[0, nz]], kext[:, :1, :1, :1],
                 np.zeros((1, 1, 1, 1), np.uint8), unused, unused.astype(np.int64), unused.astype(np.int64))
     kept = np.column_stack([np.arange(czi.size), czi[::-1]]).astype(np.int64)
-    gx, gy, segments, signed = 1, 1, 1, np.zeros((nb, 1, 1, 1, 1, 1), np.float32)
+    gx, gy, segments = 1, 1, 1
+    sweep = (np.zeros((nb, 1, 1, 1, 1, 1), np.float32), np.zeros(2, np.int64), np.zeros((0, 2), np.int32),
+             np.zeros((0, 2)))
     if slabs is not None:
         gx, gy = _geometry.tile_sides(nx, ny, tile)
         segments = _geometry.max_segments(slabs.top - slabs.bottom, z_edge[slabs.top] - z_edge[slabs.bottom], *u, dx,
                                           dy)
-        signed = _geometry.signed_extinction(kext, ssa_g[..., 0], slabs.bottom, slabs.top, gx, gy)
-    beam = Beam(*(float(c) for c in u), int(nsub), gx, gy, segments, signed, float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
+        sweep = _geometry.sweep_tables(kext, ssa_g[..., 0], slabs.bottom, slabs.top, gx, gy)
+    beam = Beam(*(float(c) for c in u), int(nsub), gx, gy, segments, *sweep, float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
                 unused, np.zeros((3, 1, 1, 1)))
     return optics, grid, beam
 
@@ -218,7 +220,7 @@ def test_direct_beam_mixing_conservative_and_absorbing_layers_follows_beer_lambe
     t_surface = math.exp(-tau.sum())
     np.testing.assert_allclose(direct[0], t_surface, rtol=1e-13)
     np.testing.assert_allclose(absorbed[:, 1, 2], (1 - ssa[0, :, 0, 0]) * removed, rtol=1e-9, atol=1e-14)
-    per_ray = ((ssa[0, :, 0, 0] * removed).sum() + 0.25 * t_surface) / 4
+    per_ray = ((ssa[0, :, 0, 0] * removed).sum() + 0.25 * t_surface) / 8  # 2 x 2 strata, 2 rays each
     np.testing.assert_allclose(source[0], per_ray, rtol=1e-12)
 
 
@@ -272,14 +274,14 @@ def test_direct_beam_transmission_equals_beer_lambert_per_ray():
     u = _direction(40, 200)
     _, direct, source, _, _, ray_xy = direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 2, np.array([0, 4]))
     landed = np.zeros((3, 3))
-    for r in range(36):
+    for r in range(72):
         x0, y0 = ray_xy[r]
         tau = _brute_force_tau(ext, z_edge, 100.0, 100.0, x0, y0, u, n=400000)[0]
-        # Conservative scattering over a black surface: source = 1/4 (1 - exp(-tau)) for that ray.
-        assert abs(4 * source[0, r] - (1 - math.exp(-tau))) < 2e-5
+        # Conservative scattering over a black surface: source = 1/8 (1 - exp(-tau)) for that ray.
+        assert abs(8 * source[0, r] - (1 - math.exp(-tau))) < 2e-5
         lx, ly = _brute_force_landing(x0, y0, u, z_edge[-1], 100.0, 100.0, 3, 3)
-        assert (ly * 3 + lx) == r // 4
-        landed[ly, lx] += 0.25 * math.exp(-tau)
+        assert (ly * 3 + lx) == r // 8
+        landed[ly, lx] += math.exp(-tau) / 8
     np.testing.assert_allclose(direct[0, 0], landed, atol=1e-5)
 
 
