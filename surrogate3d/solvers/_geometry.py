@@ -342,7 +342,7 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
                 place = ((b * (top - bottom) + iz - bottom) * gy + py) * gx + px
                 for e in range(a_start[place], a_start[place + 1]):
                     # An absorbing cell: apply the conservative run before it, then split what
-                    # the cell removes into absorption (in the cell and the ray's column) and source.
+                    # the cell removes into absorption (in the cell and its column) and source.
                     qy2, qx2 = a_cell[e, 0], a_cell[e, 1]
                     qy, qx = qy2 - sy, qx2 - sx
                     if qy < 0:
@@ -359,8 +359,9 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
                     removed = t_in - t_out
                     w = a_optics[e, 1]
                     a = weights[b] * (1.0 - w) * removed
-                    cell[iz, qy2 * gy + py, qx2 * gx + px] += np.int64(a * scale + 0.5)
-                    direct[1, b, qy * gy + fy, qx * gx + fx] += a
+                    iy, ix = qy2 * gy + py, qx2 * gx + px
+                    cell[iz, iy, ix] += np.int64(a * scale + 0.5)
+                    direct[1, b, iy, ix] += a  # the column the absorbing cell is in
                     src[c] += w * removed
                     trans[c] = t_out
                 plane = ksub[b, iz - bottom, py, px]

@@ -1,7 +1,7 @@
 """Solar Monte Carlo solver for scenes: 3D and independent-column modes of one kernel.
 
-The direct beam is computed deterministically (Beer-Lambert along exact slant paths);
-Monte Carlo photons carry only the scattered light.  Both modes share the physics and
+The direct beam follows Beer-Lambert along exact slant paths (in 3D sampled by every
+batch's random rays); Monte Carlo photons carry only the scattered light.  Both modes share the physics and
 the noise model, so "3D minus independent column" isolates the 3D effect.
 """
 
@@ -309,10 +309,11 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         every batch in proportion to their solar weight times scattered fraction, so the
         batch size does not depend on the number of bands.
     rays_per_column : int
-        Direct-beam rays per column and horizontal axis that every batch traces (3D mode),
-        in [1, 16]: each lands at a uniformly random point of its stratum of the column.
-        A ray costs about a third of a photon; one per column and batch keeps the direct
-        beam's noise below the photons' in host-column means (``docs/methods/monte-carlo.md``).
+        Strata per column and horizontal axis of the direct beam every batch traces (3D
+        mode), in [1, 16]: each stratum gets a ray at a uniformly random point of it and
+        one at the mirror image of that point through its centre (antithetic pair).  The
+        pair of the default keeps the direct beam's noise at a tenth of the photons' in
+        800 m host-column means of the shared benchmark scene (``docs/methods/monte-carlo.md``).
     threads : int, optional
         Numba threads (default: numba's setting).
     per_band : bool

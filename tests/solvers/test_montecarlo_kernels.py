@@ -515,3 +515,117 @@ def test_galloping_source_search_matches_a_binary_search():
             continue
         expected = min(int(np.searchsorted(cdf, u, side="right")), last)
         assert _transport._next_above(cdf, k, last, u) == expected
+
+
+def _plain_segments(ox, oy, u, dx, dy, nx, ny, z_edge, top, bottom, n=200000):
+    """Length of the ray landing at (ox dx, oy dy) of column (0, 0) in every cell (iz, iy, ix)
+    between edges ``top`` and ``bottom``, by fine midpoint sampling (plain numpy)."""
+    length = (z_edge[top] - z_edge[bottom]) / -u[2]
+    s = (np.arange(n) + 0.5) / n * length
+    back = (z_edge[bottom] - z_edge[0]) / -u[2] + length - s  # distance back up from the landing point
+    x, y = ox * dx - back * u[0], oy * dy - back * u[1]
+    z = z_edge[top] + s * u[2]
+    iz = np.searchsorted(z_edge, z, side="right") - 1
+    keys = np.stack([iz, np.floor(y / dy).astype(int) % ny, np.floor(x / dx).astype(int) % nx], axis=1)
+    cells, counts = np.unique(keys, axis=0, return_counts=True)
+    return {tuple(c): k * length / n for c, k in zip(cells, counts)}
+
+
+def test_segment_list_matches_a_plain_trace():
+    # The cells a family's ray crosses, relative to its column, and the length in each (geometry),
+    # against fine sampling along the same straight line, for several directions and points.
+    z_edge = np.array([0.0, 100.0, 250.0, 300.0, 600.0, 1000.0])
+    edge_slot = np.full(6, -1, dtype=np.int64)
+    edge_slot[[5, 3, 0]] = [0, 1, 2]
+    cells, lengths = np.empty((64, 4), np.int32), np.empty(64)
+    for zenith, azimuth, ox, oy in [(50, 35, 0.3, 0.8), (20, 200, 0.9, 0.1), (70, 300, 0.5, 0.5), (0, 0, 0.2, 0.7)]:
+        u = _direction(zenith, azimuth)
+        n = _geometry.trace_segments(ox, oy, *u, 100.0, 80.0, 6, 4, z_edge, 5, 1, edge_slot, cells, lengths)
+        assert n <= _geometry.max_segments(4, 900.0, *u, 100.0, 80.0)
+        got = {}
+        for q in range(n):
+            key = tuple(int(v) for v in cells[q, :3])
+            got[key] = got.get(key, 0.0) + lengths[q]
+        plain = _plain_segments(ox, oy, u, 100.0, 80.0, 6, 4, z_edge, 5, 1)
+        big = {key for key, value in plain.items() if value > 0.05}
+        assert big <= set(got)
+        for key, value in got.items():
+            assert abs(value - plain.get(key, 0.0)) < 0.05, (key, value, plain.get(key))
+        np.testing.assert_allclose(lengths[:n].sum(), 900.0 / -u[2], rtol=1e-12)
+        # The table slots are where the ray crosses the kept edges 3 and 0 (slot 2 lies below edge 1).
+        assert [int(j) for j in cells[:n, 3] if j >= 0] == [1]
+
+
+def test_rays_share_landing_points_by_tile_place_in_antithetic_pairs():
+    # Columns at the same place of their tiles share every landing point; the columns of a tile
+    # do not; the two rays of a stratum are mirror images through its centre, each inside it.
+    nz, ny, nx = 3, 4, 6
+    ext = np.full((1, nz, ny, nx), 1e-4)
+    ext[0, 1, 1:3, 2:4] = 0.01
+    ssa = np.where(ext > 1e-3, 0.9, 1.0)
+    z_edge = np.array([0.0, 100.0, 200.0, 300.0])
+    u = _direction(40, 60)
+    *_, ray_xy, landing = direct_beam(ext, ssa, np.zeros((1, ny, nx)), z_edge, 100.0, 100.0, u, 2, np.array([0, 3]),
+                                      tile=2, families=True)
+    path = 300.0 / -u[2]
+    frac = ((ray_xy + path * np.array(u[:2])) / 100.0) % 1.0  # landing point in the column
+    frac = frac.reshape(ny, nx, 8, 2)
+    np.testing.assert_allclose(frac[:, 2:], frac[:, :-2], atol=1e-9)
+    np.testing.assert_allclose(frac[2:], frac[:-2], atol=1e-9)
+    assert not np.allclose(frac[0, 0], frac[0, 1]) and not np.allclose(frac[0, 0], frac[1, 0])
+    stratum = np.stack([np.arange(4) % 2, np.arange(4) // 2], axis=1)[:, None, :]
+    pairs = frac.reshape(ny, nx, 4, 2, 2) * 2 - stratum  # in the stratum, [0, 1)
+    assert (pairs >= -1e-9).all() and (pairs <= 1 + 1e-9).all()
+    np.testing.assert_allclose(pairs[..., 0, :] + pairs[..., 1, :], 1.0, atol=1e-9)
+    assert landing.shape == (2 * 2 * 8, 2)
+
+
+def _plain_ray(ext, ssa, z_edge, dx, dy, x0, y0, u, n=100000):
+    """Transmission, absorbed and scattered energy of a unit ray from (x0, y0) at the top to
+    the surface, and its absorption per cell, by fine midpoint sampling (plain numpy;
+    Beer-Lambert law)."""
+    nb, nz, ny, nx = ext.shape
+    length = (z_edge[-1] - z_edge[0]) / -u[2]
+    ds = length / n
+    s = (np.arange(n) + 0.5) * ds
+    ix = np.floor((x0 + s * u[0]) / dx).astype(int) % nx
+    iy = np.floor((y0 + s * u[1]) / dy).astype(int) % ny
+    iz = np.clip(np.searchsorted(z_edge, z_edge[-1] + s * u[2], side="right") - 1, 0, nz - 1)
+    k, w = ext[:, iz, iy, ix], ssa[:, iz, iy, ix]
+    tau = np.cumsum(k * ds, axis=1)
+    removed = np.exp(-(tau - k * ds)) * -np.expm1(-k * ds)
+    cell = np.zeros((nb, nz, ny, nx))
+    for b in range(nb):
+        np.add.at(cell[b], (iz, iy, ix), (1 - w[b]) * removed[b])
+    return np.exp(-tau[:, -1]), ((1 - w) * removed).sum(axis=1), (w * removed).sum(axis=1), cell
+
+
+def test_every_ray_of_a_swept_family_follows_beer_lambert_with_absorbing_cells():
+    # Two bands, absorbing clouds and absorbing clear air between uniform layers, tiles of
+    # 2 x 2 columns (families shared by three columns along x and two along y): every ray's
+    # transmission and scattered source, and the absorption of every cell and column,
+    # against fine sampling along the same ray (Beer-Lambert law).
+    rng = np.random.default_rng(8)
+    nz, ny, nx = 6, 4, 6
+    ext = _single(np.where(rng.random((2, nz, ny, nx)) < 0.3, rng.uniform(0.003, 0.01, (2, nz, ny, nx)), 2e-4))
+    ssa = _single(np.where(ext > 1e-3, rng.uniform(0.8, 1.0, ext.shape), 1.0))
+    ssa[1, 2] = np.where(ext[1, 2] > 1e-3, ssa[1, 2], 0.95)
+    ext[:, 5], ssa[:, 5] = 1e-4, 1.0  # a uniform layer on top
+    alb = np.full((2, ny, nx), 0.25)
+    z_edge = np.linspace(0.0, 1200.0, nz + 1)
+    u = _direction(55, 160)
+    czi = np.array([0, 2, 4, 6])
+    absorbed, direct, source, cum, trans, ray_xy = direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 1, czi,
+                                                               weights=[0.7, 0.3], tile=2)
+    per_ray = 2
+    cells = np.zeros((2, nz, ny, nx))
+    for r in range(ray_xy.shape[0]):
+        t, _, scattered, cell = _plain_ray(ext, ssa, z_edge, 100.0, 100.0, *ray_xy[r], u)
+        np.testing.assert_allclose(per_ray * source[:, r], scattered + 0.25 * t, rtol=2e-3, atol=1e-5)
+        np.testing.assert_allclose(per_ray * trans[:, r, -1], t, rtol=2e-3, atol=1e-6)  # slot -1: the surface
+        cells += cell / per_ray
+    weighted = np.array([0.7, 0.3])[:, None, None, None] * cells
+    np.testing.assert_allclose(absorbed, weighted.sum(axis=0), rtol=3e-3, atol=1e-7)
+    # A column's absorption is that of its cells, wherever the rays absorbed in them land.
+    np.testing.assert_allclose(direct[1], weighted.sum(axis=1), rtol=3e-3, atol=1e-7)
+    np.testing.assert_allclose(direct[1].sum(axis=0), absorbed.sum(axis=0), rtol=1e-9, atol=1e-15)
