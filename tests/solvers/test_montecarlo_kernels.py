@@ -308,10 +308,11 @@ def _exact_column_transmittance(ext, z_edge, dx, dy, u, points=120):
 
 def test_direct_beam_of_every_batch_is_unbiased_in_every_column():
     # A cloud block with sharp edges seen at 60 deg along a diagonal: a column in its
-    # penumbra is partly shaded.  The mean over batches of the one-ray-per-column direct
-    # flux equals the column's area-averaged transmittance (computed independently by
-    # fine quadrature), within the batch-to-batch standard error, in every column
-    # (stratified random sampling is unbiased; e.g. Owen 2013, ch. 10).
+    # penumbra is partly shaded.  The mean over batches of the direct flux of one
+    # antithetic pair of rays per column equals the column's area-averaged transmittance
+    # (computed independently by fine quadrature), within the batch-to-batch standard
+    # error, in every column (stratified and antithetic sampling are unbiased; e.g. Owen
+    # 2013, ch. 8 and 10).
     nx = ny = 6
     ext = np.zeros((1, 4, ny, nx))
     ext[0, 2:, 2:4, 1:4] = 0.01
@@ -320,8 +321,9 @@ def test_direct_beam_of_every_batch_is_unbiased_in_every_column():
     z_edge = np.array([0.0, 100.0, 200.0, 300.0, 400.0])
     u = _direction(60, 30)
     exact = _exact_column_transmittance(ext, z_edge, 100.0, 100.0, u)
+    # Tiles of 3 x 3: every column shares its rays with the column 3 away (ray families).
     batches = np.array([direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 1, np.array([0, 4]), seed=3,
-                                    batch=b)[1][0, 0] for b in range(800)])
+                                    batch=b, tile=3)[1][0, 0] for b in range(800)])
     mean, se = batches.mean(axis=0), batches.std(axis=0, ddof=1) / math.sqrt(len(batches))
     partly = se > 0
     assert partly.sum() >= 8  # the penumbra is there
