@@ -4,15 +4,22 @@ The direct solar beam is attenuated along exact slant paths (Beer-Lambert law) t
 the cells, with periodic horizontal wrap.  Every batch of photons traces its own direct
 beam: ``nsub x nsub`` parallel rays land in every surface column, one at a uniformly
 random point of each of the column's ``nsub x nsub`` equal strata (stratified random
-sampling).  Every batch's direct flux is then an unbiased estimate for every column,
-whatever the cloud edges do inside it, a column under a horizontally uniform sky still
-receives exactly ``exp(-tau/mu0)``, and the errors of different columns are independent.
-Energy removed from the beam in a cell is split into absorption, ``(1 - omega) dE``, and
-a scattering source, ``omega dE``, from which the batch's Monte Carlo photons start; the
-direct beam reaching the surface is absorbed, ``(1 - A) T``, or reflected into a
-Lambertian source, ``A T``.  Horizontally uniform layers above the clouds (and uniform
-conservative layers below them) are crossed without walking their cells
-(:func:`uniform_slabs`).
+sampling).  The random points are drawn per *tile* position, not per column: the columns
+form a periodic pattern of ``tile x tile`` tiles, and all columns at the same place in
+their tile (``ix % tile``, ``iy % tile``) have their rays at the same points of their
+strata.  Parallel rays at the same place in their columns cross the same sequence of
+cell faces, so each such family is traced once per batch, as a list of segments (layer,
+column offset, length; :func:`trace_segments`), and every column's ray is read off the
+list.  Every column still sees a ray at a uniformly random point of each stratum, so
+every batch's direct flux is an unbiased estimate for every column, whatever the cloud
+edges do inside it, and the columns of one tile (an 800 m host column of 100 m cells, for
+instance) have independent errors; a column under a horizontally uniform sky still
+receives exactly ``exp(-tau/mu0)``.  Energy removed from the beam in a cell is split into
+absorption, ``(1 - omega) dE``, and a scattering source, ``omega dE``, from which the
+batch's Monte Carlo photons start; the direct beam reaching the surface is absorbed,
+``(1 - A) T``, or reflected into a Lambertian source, ``A T``.  Horizontally uniform
+layers above the clouds (and uniform conservative layers below them) are crossed without
+walking their cells (:func:`uniform_slabs`).
 """
 
 import math
@@ -25,6 +32,9 @@ from ._records import Slabs
 from ._rng import uniform
 
 INF = math.inf
+#: Rays per stratum of a column: a random point and its mirror image through the stratum's
+#: centre (antithetic variates).
+RAYS_PER_STRATUM = 2
 
 
 @njit(cache=True, inline="always")
@@ -86,66 +96,75 @@ def wrap_into(pos, length):
     return pos if pos < length else 0.0
 
 
-@njit(cache=True, inline="always")
-def ray_entry(r, nx, ny, nsub, dx, dy, offset, reach):
-    """Top-of-domain entry point (x, y) [m] of direct-beam ray ``r``.
+def max_segments(nz_walked, height, ux, uy, uz, dx, dy):
+    """Most segments a ray can have across ``nz_walked`` layers of total ``height`` [m]:
+    one per layer, plus one per x or y face crossed along its horizontal travel (at most
+    ``floor(travel / d) + 1`` on each axis), plus a margin for ties at cell corners."""
+    path = height / -uz
+    return int(nz_walked + math.floor(path * abs(ux) / dx) + math.floor(path * abs(uy) / dy) + 4)
 
-    Ray ``r`` lands in column ``r // nsub**2`` (``iy * nx + ix``), in its stratum
-    ``((r // nsub) % nsub, r % nsub)`` along (y, x), at ``offset`` (x, y), in [0, 1) of
-    the stratum's sides.  ``reach`` (x, y) is the horizontal distance [m] the beam travels
-    from the top of the domain to the surface; the entry point lies that far upsun,
-    wrapped into the periodic domain.
+
+@njit(cache=True)
+def trace_segments(ox, oy, ux, uy, uz, dx, dy, nx, ny, z_edge, top, bottom, edge_slot, cells, lengths):
+    """The cells a direct-beam ray crosses between edges ``top`` and ``bottom``, relative to its column.
+
+    The ray lands on the surface at the point ``(ox dx, oy dy)`` of column (0, 0), ``ox``
+    and ``oy`` in [0, 1).  Every parallel ray landing at the same point of its own column
+    (iy0, ix0) crosses the same cells shifted by (iy0, ix0) with periodic wrap, along the
+    same lengths, so this one list serves them all.  The walk is incremental (Amanatides
+    and Woo 1987), the same walk as :func:`locate_source_3d`'s.
+
+    Parameters
+    ----------
+    ox, oy : float
+        Landing point in the column, fractions of its sides.
+    ux, uy, uz : float
+        Direction of travel (``uz < 0``).
+    dx, dy : float
+        Cell size [m].
+    nx, ny : int
+        Columns along x and y.
+    z_edge : float64 (nz + 1,)
+        Layer edges [m].
+    top, bottom : int
+        The ray is walked from edge ``top`` down to edge ``bottom`` (the layers in between).
+    edge_slot : int64 (nz + 1,)
+        Slot of the per-ray tables at every layer edge (-1 where none is kept).
+    cells : int32 (>= n, 4)
+        Written: per segment the layer, the column offsets along y and x (in ``[0, ny)``
+        and ``[0, nx)``, to add to the landing column's indices modulo ``ny`` and ``nx``)
+        and the table slot of the layer edge the segment ends on (-1: none, or not on an edge).
+    lengths : float64 (>= n,)
+        Written: the length of every segment [m].
+
+    Returns
+    -------
+    int
+        ``n``, the number of segments.
     """
-    c = r % nsub
-    a = (r // nsub) % nsub
-    col = r // (nsub * nsub)
-    x = (col % nx + (c + offset[0]) / nsub) * dx - reach[0]
-    y = (col // nx + (a + offset[1]) / nsub) * dy - reach[1]
-    return wrap_into(x, nx * dx), wrap_into(y, ny * dy)
-
-
-@njit(cache=True, inline="always")
-def _apply_pending(trans, pending, source, b, r):
-    # Attenuate band b of the beam by the optical depth of the conservative cells crossed
-    # since the last update; all it removed is scattered (the source of ray r).
-    if pending[b] > 0.0:
-        t_out = trans[b] * math.exp(-pending[b])
-        source[b, r] += trans[b] - t_out
-        trans[b] = t_out
-        pending[b] = 0.0
-
-
-@njit(cache=True, inline="always")
-def _enter_top_slab(trans, pending, source, r, ray_cum, ray_trans, kept, slabs, wray):
-    """Ray ``r`` through the uniform layers on top: every path through them crosses the same
-    optical depth, so their transmission and scattered source are the slab's precomputed
-    ones (:func:`uniform_slabs`), read at the kept layer edges ``kept`` (slot, edge index)."""
-    top, top_t, top_s = slabs.top, slabs.top_transmission, slabs.top_source
-    for b in range(trans.shape[0]):
-        trans[b] = wray * top_t[b, top]
-        source[b, r] = wray * top_s[b, top]
-        pending[b] = 0.0
-        for j in range(kept.shape[0]):
-            edge = kept[j, 1]
-            if edge >= top:
-                ray_cum[b, r, kept[j, 0]] = wray * top_s[b, edge]
-                ray_trans[b, r, kept[j, 0]] = wray * top_t[b, edge]
-
-
-@njit(cache=True, inline="always")
-def _cross_bottom_slab(trans, source, r, ray_cum, ray_trans, kept, slabs):
-    """Ray ``r`` through the uniform conservative layers below ``bottom``: the beam falls by the
-    slab's precomputed transmission and all it loses is scattered (:func:`uniform_slabs`)."""
-    bottom, bottom_t = slabs.bottom, slabs.bottom_transmission
-    for b in range(trans.shape[0]):
-        for j in range(kept.shape[0]):
-            edge = kept[j, 1]
-            if edge < bottom:
-                ray_cum[b, r, kept[j, 0]] = source[b, r] + trans[b] * (1.0 - bottom_t[b, edge])
-                ray_trans[b, r, kept[j, 0]] = trans[b] * bottom_t[b, edge]
-        t_out = trans[b] * bottom_t[b, 0]
-        source[b, r] += trans[b] - t_out
-        trans[b] = t_out
+    lx, ly = nx * dx, ny * dy
+    iz = top - 1
+    if iz < bottom:
+        return 0
+    z0 = z_edge[top]
+    path = (z0 - z_edge[0]) / -uz
+    x0, y0 = wrap_into(ox * dx - path * ux, lx), wrap_into(oy * dy - path * uy, ly)
+    ix, iy = min(int(x0 / dx), nx - 1), min(int(y0 / dy), ny - 1)
+    sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x0, y0, z0, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
+    t = 0.0
+    n = 0
+    while True:
+        tn = min(tmx, tmy, tmz)
+        cells[n, 0], cells[n, 1], cells[n, 2], cells[n, 3] = iz, iy, ix, -1
+        lengths[n] = tn - t
+        t = tn
+        ix, iy, iz, tmx, tmy, tmz, axis = descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny, z0, uz,
+                                                        z_edge)
+        if axis == 2:
+            cells[n, 3] = edge_slot[iz + 1]
+        n += 1
+        if iz < bottom or n == cells.shape[0]:
+            return n
 
 
 @njit(cache=True, inline="always")
@@ -166,21 +185,82 @@ def _uniform_layer_absorption(weights, slabs, direct, cell, scale):
                         direct[1, b, iy, ix] += a
 
 
+def tile_sides(nx, ny, tile):
+    """Columns per side ``(gx, gy)`` of the tiles of the direct beam's ray families: the
+    largest divisors of ``nx`` and ``ny`` not above ``tile`` (the tiles fill the domain)."""
+    return (max(d for d in range(1, min(tile, nx) + 1) if nx % d == 0),
+            max(d for d in range(1, min(tile, ny) + 1) if ny % d == 0))
+
+
+def sweep_tables(kext, ssa, bottom, top, gx, gy):
+    """The cells the direct beam sweeps (the layers between the uniform slabs), by place in the tiles.
+
+    Parameters
+    ----------
+    kext, ssa : ndarray (nband, nz, ny, nx)
+        Extinction [m-1] and single-scattering albedo, as the kernels trace them.
+    bottom, top : int
+        The swept layers are ``bottom <= iz < top``.
+    gx, gy : int
+        Tile sides (:func:`tile_sides`).
+
+    Returns
+    -------
+    conservative : float32 (nband, top - bottom, gy, gx, ny // gy, nx // gx)
+        ``[b, iz - bottom, iy % gy, ix % gx, iy // gy, ix // gx]``: the extinction of the
+        conservative cells, 0 in absorbing ones.  The columns at one place of their tiles
+        are contiguous, so a family of rays reads its cells in order.
+    absorbing_start : int64 (nband * (top - bottom) * gy * gx + 1,)
+        Where the absorbing cells of every (band, layer, place in the tiles), in that order,
+        start in the next two arrays.
+    absorbing_cell : int32 (n, 2)
+        Their ``(iy // gy, ix // gx)``.
+    absorbing_optics : float64 (n, 2)
+        Their extinction [m-1] and single-scattering albedo.
+    """
+    nb, nz, ny, nx = kext.shape
+    nw = top - bottom
+
+    def by_place(a):
+        return np.ascontiguousarray(a[:, bottom:top].reshape(nb, nw, ny // gy, gy, nx // gx, gx)
+                                    .transpose(0, 1, 3, 5, 2, 4))
+
+    k, w = by_place(np.asarray(kext, dtype=np.float32)), by_place(np.asarray(ssa, dtype=np.float32))
+    absorbing = (w < 1.0) & (k > 0.0)
+    conservative = np.where(absorbing, np.float32(0.0), k)
+    counts = absorbing.reshape(nb * nw * gy * gx, (ny // gy) * (nx // gx)).sum(axis=1)
+    start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    where = np.nonzero(absorbing)  # row-major: grouped by (band, layer, place), as start says
+    cells = np.column_stack([where[4], where[5]]).astype(np.int32)
+    optics = np.column_stack([k[where], w[where]]).astype(np.float64)
+    return conservative, start, cells.reshape(-1, 2), optics.reshape(-1, 2)
+
+
 @njit(**KERNEL)
 def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
     """Trace one batch's direct beam along slant paths with periodic wrap.
 
+    The columns form tiles of ``gy x gx`` (:func:`tile_sides`).  A *family* is one stratum
+    of one place in the tiles: the batch draws one landing point uniformly in the family's
+    stratum, the same for all its columns, traces it once (:func:`trace_segments`), and then
+    sweeps the family's columns segment by segment (the same cells shifted, contiguous in
+    ``beam.sweep_ext``), keeping every ray's transmission, source and the optical depth of
+    conservative cells not yet applied; the family's absorbing cells are visited from the
+    lists of absorbing cells (``beam.absorbing_*``), so the sweep of the conservative
+    ones has no branch.
+
     Parameters
     ----------
     state : uint64 (4,)
-        The batch's random stream: every ray lands at a point drawn uniformly from its
-        stratum with two uniforms.
+        The batch's random stream: every family's landing point is drawn with two uniforms
+        (x, then y), family by family.
     optics : surrogate3d.solvers._records.Optics
-        ``kext``, ``ssa_g``, ``albedo`` and ``band_weight`` are read.
+        ``ssa_g``, ``albedo`` and ``band_weight`` are read (``kext`` for its shape).
     grid : surrogate3d.solvers._records.Grid
         ``z_edge``, ``dx`` and ``dy`` are read.
     beam : surrogate3d.solvers._records.Beam
-        Direction, rays per column and axis, reach, ``edge_slot`` and ``kept`` are read.
+        Direction, rays per column and axis, tile sides, reach, ``edge_slot``, ``kept`` and
+        the sweep tables (:func:`sweep_tables`) are read.
     slabs : surrogate3d.solvers._records.Slabs
         The horizontally uniform layers from ``top`` up and below ``bottom`` (those also
         conservative), which rays cross without walking their cells (:func:`uniform_slabs`).
@@ -188,81 +268,142 @@ def direct_beam_batch(state, optics, grid, beam, slabs, tables, tallies):
         ``ray_xy``, ``source``, ``ray_cum`` and ``ray_trans`` are written: the ray tables let
         a photon find its starting block without re-tracing the ray (sources in units of
         one column's incident flux in the band); ``direct`` is added to, per column;
-        ``work`` is scratch (the beam left and the optical depth of conservative cells
-        not yet applied).
+        ``landing``, ``seg_cells`` and ``seg_lengths`` receive the families; ``sweep`` is
+        scratch.
     tallies : surrogate3d.solvers._records.Tallies
         The solar-weighted absorbed direct flux of every cell is added to ``cell``.
     """
-    kext, ssa_g, alb, weights = optics.kext, optics.ssa_g, optics.albedo, optics.band_weight
+    ssa_g, alb, weights = optics.ssa_g, optics.albedo, optics.band_weight
     z_edge, dx, dy = grid.z_edge, grid.dx, grid.dy
     ux, uy, uz, nsub, edge_slot, kept = beam.ux, beam.uy, beam.uz, beam.nsub, beam.edge_slot, beam.kept
-    reach = (beam.reach_x, beam.reach_y)
+    ksub, a_start, a_cell, a_optics = beam.sweep_ext, beam.absorbing_start, beam.absorbing_cell, beam.absorbing_optics
     ray_xy, source, ray_cum, ray_trans = tables.ray_xy, tables.source, tables.ray_cum, tables.ray_trans
-    direct, work, cell, scale = tables.direct, tables.work, tallies.cell, tallies.scale
-    nb, nz, ny, nx = kext.shape
-    nray = nx * ny * nsub * nsub
-    wray = 1.0 / (nsub * nsub)
-    mu0 = -uz
+    landing, cells, lengths = tables.landing, tables.seg_cells, tables.seg_lengths
+    direct, cell, scale = tables.direct, tallies.cell, tallies.scale
+    nb, nz, ny, nx = optics.kext.shape
+    gx, gy = beam.tile_x, beam.tile_y
+    nqx, nqy = nx // gx, ny // gy
+    per_column = RAYS_PER_STRATUM * nsub * nsub
+    wray = 1.0 / per_column
     top, bottom = slabs.top, slabs.bottom
+    top_t, top_s, bottom_t = slabs.top_transmission, slabs.top_source, slabs.bottom_transmission
     lx, ly = nx * dx, ny * dy
-    above = (z_edge[nz] - z_edge[top]) / mu0  # path length through the uniform layers on top
-    trans, pending = work[:nb], work[nb:2 * nb]
+    sweep = tables.sweep[:, :nqy * nqx]
+    pend, trans, src = sweep[0], sweep[1], sweep[2]
+    # The kept edges run down from the top (slot 0): slots before ``above`` lie in the top
+    # slab, slots from ``below`` on in the bottom one.
+    above, below = 0, kept.shape[0]
+    while above < kept.shape[0] and kept[above, 1] >= top:
+        above += 1
+    while below > 0 and kept[below - 1, 1] < bottom:
+        below -= 1
     _uniform_layer_absorption(weights, slabs, direct, cell, scale)
-    for r in range(nray):
-        x, y = ray_entry(r, nx, ny, nsub, dx, dy, (uniform(state), uniform(state)), reach)
-        ray_xy[r, 0], ray_xy[r, 1] = x, y
-        _enter_top_slab(trans, pending, source, r, ray_cum, ray_trans, kept, slabs, wray)
-        iz = top - 1
-        if iz >= bottom:
-            # --- walk the cells of the layers between the uniform slabs
-            x0, y0, z0 = wrap_into(x + above * ux, lx), wrap_into(y + above * uy, ly), z_edge[top]
-            ix, iy = min(int(x0 / dx), nx - 1), min(int(y0 / dy), ny - 1)
-            sx, dtx, tmx, sy, dty, tmy, tmz = descent_start(x0, y0, z0, ix, iy, iz, ux, uy, uz, dx, dy, z_edge)
-            t = 0.0
-            while True:
-                tn = min(tmx, tmy, tmz)
-                for b in range(nb):
-                    k = float(kext[b, iz, iy, ix])
-                    if k > 0.0:
-                        w = float(ssa_g[b, iz, iy, ix, 0])
-                        if w == 1.0:
-                            # A conservative cell absorbs nothing and scatters all it removes, so
-                            # its source only telescopes: one exponential for a run of such cells.
-                            pending[b] += k * (tn - t)
-                            continue
-                        _apply_pending(trans, pending, source, b, r)
-                        t_out = trans[b] * math.exp(-k * (tn - t))
-                        removed = trans[b] - t_out
-                        a = weights[b] * (1.0 - w) * removed
-                        cell[iz, iy, ix] += np.int64(a * scale + 0.5)
-                        direct[1, b, iy, ix] += a
-                        source[b, r] += w * removed
-                        trans[b] = t_out
-                t = tn
-                ix, iy, iz, tmx, tmy, tmz, axis = descent_cross(ix, iy, iz, sx, sy, dtx, dty, tmx, tmy, tmz, nx, ny,
-                                                                z0, uz, z_edge)
-                if axis == 2:
-                    j = edge_slot[iz + 1]
-                    if j >= 0:
-                        for b in range(nb):
-                            _apply_pending(trans, pending, source, b, r)
-                            ray_cum[b, r, j] = source[b, r]
-                            ray_trans[b, r, j] = trans[b]
-                    if iz < bottom:
-                        break
+    for m in range(gy * gx * per_column):
+        s = m % per_column
+        fx, fy = (m // per_column) % gx, (m // per_column) // gx
+        if s % 2 == 0:
+            u, v = uniform(state), uniform(state)
+        else:
+            u, v = 1.0 - u, 1.0 - v  # the antithetic partner: the stratum's point mirrored through its centre
+        ox, oy = ((s // 2) % nsub + u) / nsub, ((s // 2) // nsub + v) / nsub
+        landing[m, 0], landing[m, 1] = ox, oy
+        nseg = trace_segments(ox, oy, ux, uy, uz, dx, dy, nx, ny, z_edge, top, bottom, edge_slot, cells, lengths)
+        # Ray of the family's column number c = qy nqx + qx, (jy, jx) = (qy gy + fy, qx gx + fx):
+        # r = r0 + qy row_step + qx col_step.
+        r0, row_step, col_step = (fy * nx + fx) * per_column + s, gy * nx * per_column, gx * per_column
+        x0 = wrap_into((fx + ox) * dx - beam.reach_x, lx)
+        y = wrap_into((fy + oy) * dy - beam.reach_y, ly)
+        for qy in range(nqy):
+            x = x0
+            for qx in range(nqx):
+                r = r0 + qy * row_step + qx * col_step
+                ray_xy[r, 0], ray_xy[r, 1] = x, y
+                x += gx * dx
+                if x >= lx:
+                    x -= lx
+            y += gy * dy
+            if y >= ly:
+                y -= ly
         for b in range(nb):
-            _apply_pending(trans, pending, source, b, r)
-        _cross_bottom_slab(trans, source, r, ray_cum, ray_trans, kept, slabs)
-        if bottom > 0 or top == 0:
-            # Where it lands: the column it was aimed at, up to round-off.
-            ix = min(int(wrap_into(x + reach[0], lx) / dx), nx - 1)
-            iy = min(int(wrap_into(y + reach[1], ly) / dy), ny - 1)
-        for b in range(nb):
-            _apply_pending(trans, pending, source, b, r)
-            albedo = alb[b, iy, ix]
-            source[b, r] += albedo * trans[b]
-            direct[0, b, iy, ix] += weights[b] * trans[b]
-            direct[2, b, iy, ix] += weights[b] * (1.0 - albedo) * trans[b]
+            t_top, s_top = wray * top_t[b, top], wray * top_s[b, top]
+            for qy in range(nqy):
+                for qx in range(nqx):
+                    c = qy * nqx + qx
+                    pend[c], trans[c], src[c] = 0.0, t_top, s_top
+                    r = r0 + qy * row_step + qx * col_step
+                    for j in range(above):
+                        ray_cum[b, r, kept[j, 0]] = wray * top_s[b, kept[j, 1]]
+                        ray_trans[b, r, kept[j, 0]] = wray * top_t[b, kept[j, 1]]
+            for q in range(nseg):
+                # --- segment q of every ray of the family: the same cells, shifted
+                iz, length = cells[q, 0], lengths[q]
+                py, px = (fy + cells[q, 1]) % gy, (fx + cells[q, 2]) % gx
+                sy, sx = ((fy + cells[q, 1]) // gy) % nqy, ((fx + cells[q, 2]) // gx) % nqx
+                place = ((b * (top - bottom) + iz - bottom) * gy + py) * gx + px
+                for e in range(a_start[place], a_start[place + 1]):
+                    # An absorbing cell: apply the conservative run before it, then split what
+                    # the cell removes into absorption (in the cell and its column) and source.
+                    qy2, qx2 = a_cell[e, 0], a_cell[e, 1]
+                    qy, qx = qy2 - sy, qx2 - sx
+                    if qy < 0:
+                        qy += nqy
+                    if qx < 0:
+                        qx += nqx
+                    c = qy * nqx + qx
+                    t_in = trans[c]
+                    if pend[c] > 0.0:
+                        t_in *= math.exp(-pend[c])
+                        src[c] += trans[c] - t_in
+                        pend[c] = 0.0
+                    t_out = t_in * math.exp(-a_optics[e, 0] * length)
+                    removed = t_in - t_out
+                    w = a_optics[e, 1]
+                    a = weights[b] * (1.0 - w) * removed
+                    iy, ix = qy2 * gy + py, qx2 * gx + px
+                    cell[iz, iy, ix] += np.int64(a * scale + 0.5)
+                    direct[1, b, iy, ix] += a  # the column the absorbing cell is in
+                    src[c] += w * removed
+                    trans[c] = t_out
+                plane = ksub[b, iz - bottom, py, px]
+                for qy in range(nqy):
+                    # A conservative cell absorbs nothing and scatters all it removes, so its
+                    # source only telescopes: one exponential for a run of such cells.
+                    qy2 = qy + sy
+                    if qy2 >= nqy:
+                        qy2 -= nqy
+                    row, acc = plane[qy2], pend[qy * nqx:(qy + 1) * nqx]
+                    for qx in range(nqx - sx):
+                        acc[qx] += length * row[qx + sx]
+                    for qx in range(nqx - sx, nqx):
+                        acc[qx] += length * row[qx + sx - nqx]
+                j = cells[q, 3]
+                if j >= 0:
+                    for qy in range(nqy):
+                        for qx in range(nqx):
+                            c = qy * nqx + qx
+                            t_out = trans[c] * math.exp(-pend[c])
+                            src[c] += trans[c] - t_out
+                            trans[c], pend[c] = t_out, 0.0
+                            r = r0 + qy * row_step + qx * col_step
+                            ray_cum[b, r, j] = src[c]
+                            ray_trans[b, r, j] = t_out
+            for qy in range(nqy):
+                jy = qy * gy + fy
+                for qx in range(nqx):
+                    c = qy * nqx + qx
+                    jx = qx * gx + fx
+                    r = r0 + qy * row_step + qx * col_step
+                    t_in = trans[c] * math.exp(-pend[c])
+                    cum = src[c] + trans[c] - t_in
+                    # --- the uniform conservative layers below: all they remove is scattered
+                    for j in range(below, kept.shape[0]):
+                        ray_cum[b, r, kept[j, 0]] = cum + t_in * (1.0 - bottom_t[b, kept[j, 1]])
+                        ray_trans[b, r, kept[j, 0]] = t_in * bottom_t[b, kept[j, 1]]
+                    t_sfc = t_in * bottom_t[b, 0]
+                    albedo = alb[b, jy, jx]
+                    source[b, r] = cum + t_in - t_sfc + albedo * t_sfc
+                    direct[0, b, jy, jx] += weights[b] * t_sfc
+                    direct[2, b, jy, jx] += weights[b] * (1.0 - albedo) * t_sfc
 
 
 @njit(cache=True, inline="always")

@@ -67,7 +67,9 @@ clear_below, clear_above : int64 (nband,)
     Block rows below ``clear_below`` and from ``clear_above`` up are clear in every column.
 """
 
-Beam = namedtuple("Beam", ["ux", "uy", "uz", "nsub", "reach_x", "reach_y", "edge_slot", "kept", "table_edges",
+Beam = namedtuple("Beam", ["ux", "uy", "uz", "nsub", "tile_x", "tile_y", "max_segments", "sweep_ext",
+                           "absorbing_start", "absorbing_cell", "absorbing_optics", "reach_x", "reach_y", "edge_slot",
+                           "kept", "table_edges",
                            "column_cdf", "column_direct"])
 Beam.__doc__ = """The direct solar beam.
 
@@ -75,6 +77,24 @@ ux, uy, uz : float
     Its direction of travel (``uz < 0``).
 nsub : int
     Rays per column and horizontal axis that every batch traces (3D mode).
+tile_x, tile_y : int
+    Columns along x and y of the tiles of the direct beam's ray families: the rays of
+    columns at the same place of their tiles land at the same points of their columns
+    (3D mode; :func:`surrogate3d.solvers._geometry.direct_beam_batch`).
+max_segments : int
+    Most segments a direct-beam ray can have (:func:`surrogate3d.solvers._geometry.max_segments`).
+sweep_ext : float32 (nband, nwalk, tile_y, tile_x, ny / tile_y, nx / tile_x)
+    Extinction [m-1] of the conservative cells of the layers the direct beam walks
+    (between the uniform slabs), grouped by place in the tiles, 0 in absorbing cells;
+    3D mode.
+absorbing_start : int64 (nband nwalk tile_y tile_x + 1,)
+    Where the absorbing cells of every (band, layer, place in the tiles) start in the
+    next two arrays.
+absorbing_cell : int32 (n, 2)
+    Their ``(iy // tile_y, ix // tile_x)``.
+absorbing_optics : float64 (n, 2)
+    Their extinction [m-1] and single-scattering albedo
+    (:func:`surrogate3d.solvers._geometry.sweep_tables`).
 reach_x, reach_y : float
     Horizontal travel [m] of the beam from the top of the domain to the surface (a record
     field may not be a tuple: a parallel loop cannot take nested tuples).
@@ -144,7 +164,8 @@ max_events : int
     Scattering events after which a photon is absorbed where it is.
 """
 
-BeamTables = namedtuple("BeamTables", ["ray_xy", "source", "ray_cum", "ray_trans", "cdf", "direct", "work"])
+BeamTables = namedtuple("BeamTables", ["ray_xy", "source", "ray_cum", "ray_trans", "cdf", "direct", "landing",
+                                       "seg_cells", "seg_lengths", "sweep"])
 BeamTables.__doc__ = """One batch's direct beam (3D mode; scratch of the thread that runs the batch).
 
 ray_xy : float64 (nray, 2)
@@ -158,8 +179,17 @@ cdf : float64 (nband * nray,)
 direct : float64 (3, nband, ny, nx)
     Solar-weighted direct flux reaching the surface, absorbed in the column and absorbed by
     the surface.
-work : float64 (>= 2 nband,)
-    Scratch of the ray walk.
+landing : float64 (nfamily, 2)
+    Where the rays of every family land in their columns, (x, y) as fractions of the
+    column's sides (:func:`surrogate3d.solvers._geometry.direct_beam_batch`).
+seg_cells : int32 (max_segments, 4)
+    The segments of the family being swept: layer, column offsets along y and x, table
+    slot of the edge it ends on (:func:`surrogate3d.solvers._geometry.trace_segments`).
+seg_lengths : float64 (max_segments,)
+    Their lengths [m].
+sweep : float64 (3, ny nx)
+    Scratch of the sweep: per ray of a family, the optical depth of conservative cells not
+    yet applied, the beam left and the source so far.
 """
 
 Photon = namedtuple("Photon", ["band", "weight", "x", "y", "z", "ux", "uy", "uz", "ix", "iy", "iz"])

@@ -37,7 +37,7 @@ from collections import namedtuple
 import numpy as np
 from numba import get_thread_id, njit, prange
 
-from ._geometry import axis_start, direct_beam_batch, locate_source_3d, locate_source_column
+from ._geometry import RAYS_PER_STRATUM, axis_start, direct_beam_batch, locate_source_3d, locate_source_column
 from ._kernel import KERNEL
 from ._records import BeamTables, Photon, Survival, Tallies
 from ._rng import seed_stream, uniform, uniform_open
@@ -776,7 +776,7 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, su
     # shares a cache line with another thread's.
     states = np.zeros((wave, 16), dtype=np.uint64)
     # Per thread, the scratch of the batch it runs: its direct beam's per-ray tables.
-    nray = ncol * beam.nsub * beam.nsub if full_3d else 1
+    nray = ncol * RAYS_PER_STRATUM * beam.nsub * beam.nsub if full_3d else 1
     ncz = beam.table_edges.shape[0] - 1
     sources = np.empty((nthreads, nb, nray))
     cums = np.empty((nthreads, nb, nray, ncz + 1))
@@ -784,7 +784,12 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, su
     cdfs = np.empty((nthreads, nb * nray))
     xys = np.empty((nthreads, nray, 2))
     directs = np.empty((nthreads, 3, nb, ny, nx))
-    works = np.empty((nthreads, 2 * nb + 16))
+    families = beam.tile_x * beam.tile_y * RAYS_PER_STRATUM * beam.nsub * beam.nsub if full_3d else 1
+    segments = beam.max_segments if full_3d else 1
+    landings = np.empty((nthreads, families, 2))
+    seg_cells = np.empty((nthreads, segments, 4), dtype=np.int32)
+    seg_lengths = np.empty((nthreads, segments))
+    sweeps = np.empty((nthreads, 3, ncol if full_3d else 1))
     nsum = len(SUM_NAMES)
     total_events = 0
     csum = col_sum.reshape(nb, ncol * nsum)
@@ -798,7 +803,8 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, su
             col_slots[i, :, :] = 0.0
             tables = BeamTables(xys[thread], sources[thread], cums[thread], transs[thread],
                                 cdfs[thread] if full_3d else beam.column_cdf,
-                                directs[thread] if full_3d else beam.column_direct, works[thread])
+                                directs[thread] if full_3d else beam.column_direct, landings[thread],
+                                seg_cells[thread], seg_lengths[thread], sweeps[thread])
             if full_3d:
                 tables.direct[:] = 0.0
             slot_events[i] = _run_batch(states[i], start + i, run, optics, grid, beam, slabs, tables,
@@ -806,9 +812,13 @@ def run_batches(first_batch, n_batches, wave, run, optics, grid, beam, slabs, su
         for i in range(n):
             cs = col_slots[i]
             first = start + i == 0
-            domain[:] = 0.0
+            for q in range(nsum):
+                domain[q] = 0.0
             for j in range(ncol):
-                values[:] = 0.0
+                # Element by element: in this parallel function a slice assignment would
+                # become a parallel loop of its own, launched for every column of every batch.
+                for q in range(nsum):
+                    values[q] = 0.0
                 for b in range(nb):
                     v0, v1 = cs[b, slot_index(TOA_UP, j, ncol)], cs[b, slot_index(SFC_DIR, j, ncol)]
                     v2, v5 = cs[b, slot_index(SFC_DOWN, j, ncol)], cs[b, slot_index(SFC_ABS, j, ncol)]

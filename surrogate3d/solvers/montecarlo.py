@@ -1,7 +1,7 @@
 """Solar Monte Carlo solver for scenes: 3D and independent-column modes of one kernel.
 
-The direct beam is computed deterministically (Beer-Lambert along exact slant paths);
-Monte Carlo photons carry only the scattered light.  Both modes share the physics and
+The direct beam follows Beer-Lambert along exact slant paths (in 3D sampled by every
+batch's random rays); Monte Carlo photons carry only the scattered light.  Both modes share the physics and
 the noise model, so "3D minus independent column" isolates the 3D effect.
 """
 
@@ -13,7 +13,8 @@ import numba
 import numpy as np
 
 from .. import __version__
-from ..core.config import (BATCHES, CLEAR_CELL_OPTICAL_THICKNESS, CLEAR_CUBE, MAJORANT_BLOCK, MAX_BATCH_SIZE,
+from ..core.config import (BATCHES, CLEAR_CELL_OPTICAL_THICKNESS, CLEAR_CUBE, DIRECT_BEAM_TILE, MAJORANT_BLOCK,
+                           MAX_BATCH_SIZE,
                            MAX_SCATTERING_EVENTS, MIN_BATCH_SIZE, MONTE_CARLO_PHOTONS, MONTE_CARLO_WAVE,
                            PROGRESS_PHOTONS, RAY_TABLE_LAYERS, ROULETTE_WEIGHT, SOLAR_CONSTANT)
 from ..core.run_result import make_run_result
@@ -308,10 +309,11 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         every batch in proportion to their solar weight times scattered fraction, so the
         batch size does not depend on the number of bands.
     rays_per_column : int
-        Direct-beam rays per column and horizontal axis that every batch traces (3D mode),
-        in [1, 16]: each lands at a uniformly random point of its stratum of the column.
-        A ray costs about a third of a photon; one per column and batch keeps the direct
-        beam's noise below the photons' in host-column means (``docs/methods/monte-carlo.md``).
+        Strata per column and horizontal axis of the direct beam every batch traces (3D
+        mode), in [1, 16]: each stratum gets a ray at a uniformly random point of it and
+        one at the mirror image of that point through its centre (antithetic pair).  The
+        pair of the default keeps the direct beam's noise at a tenth of the photons' in
+        800 m host-column means of the shared benchmark scene (``docs/methods/monte-carlo.md``).
     threads : int, optional
         Numba threads (default: numba's setting).
     per_band : bool
@@ -404,6 +406,9 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             czi = np.zeros(2, np.int64)
             nsub, reach = 1, (0.0, 0.0)
             slabs = _geometry.uniform_slabs(np.zeros((nb, nz, 1)), np.ones((nb, nz, 1)), z_edge, mu0)  # unused
+            segments, tiles = 1, (1, 1)
+            sweep = (np.zeros((nb, 1, 1, 1, 1, 1), np.float32), np.zeros(2, np.int64), np.zeros((0, 2), np.int32),
+                     np.zeros((0, 2)))
             # Run-level scale: the whole photon weight of all batches maps to 2**61 units.
             energy = cdf[-1] if cdf.size and cdf[-1] > 0.0 else 1.0
         else:
@@ -415,6 +420,10 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
             path = (z_edge[-1] - z_edge[0]) / mu0
             reach = (path * ux, path * uy)
             slabs = _geometry.uniform_slabs(kext, ssa_g[..., 0], z_edge, mu0)
+            segments = _geometry.max_segments(slabs.top - slabs.bottom, z_edge[slabs.top] - z_edge[slabs.bottom], ux,
+                                              uy, uz, dx, dy)
+            tiles = _geometry.tile_sides(nx, ny, DIRECT_BEAM_TILE)
+            sweep = _geometry.sweep_tables(kext, ssa_g[..., 0], slabs.bottom, slabs.top, *tiles)
             # A batch's whole beam, direct and scattered, is at most one column's flux per column.
             energy = float(nx * ny)
         del ext, ssa  # traced from the single-precision copies
@@ -429,7 +438,7 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         scale = 2.0**61 / (n_batches * energy)
         cell_fixed = np.zeros((numba.get_num_threads(), nz, ny, nx), dtype=np.int64)
         optics = Optics(kext, ssa_g, column_props, alb, weights)
-        beam = Beam(ux, uy, uz, nsub, *reach, edge_slot, kept, czi, cdf, column_direct)
+        beam = Beam(ux, uy, uz, nsub, *tiles, segments, *sweep, *reach, edge_slot, kept, czi, cdf, column_direct)
         run = Run(not independent_columns, seed, batch_size, roulette, max_events)
         sums = RunSums(col_sum, spread, cell_fixed, scale)
         chunk = MONTE_CARLO_WAVE * max(1, PROGRESS_PHOTONS // (MONTE_CARLO_WAVE * batch_size))

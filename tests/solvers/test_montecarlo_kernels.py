@@ -5,6 +5,7 @@ import math
 import numpy as np
 import pytest
 
+from surrogate3d.core.config import DIRECT_BEAM_TILE
 from surrogate3d.solvers import _geometry, _rng, _transport
 from surrogate3d.solvers._records import Beam, BeamTables, Grid, Optics, Photon, Slabs, Survival, Tallies
 
@@ -109,19 +110,21 @@ def _single(ext):
     return np.asarray(ext, dtype=np.float32).astype(np.float64)
 
 
-def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, weights=None, slabs=True):
+def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, weights=None, slabs=True,
+                tile=DIRECT_BEAM_TILE, families=False):
     """One batch's direct beam (:func:`_geometry.direct_beam_batch`) with fresh scratch.
 
     Returns ``(absorbed, direct, source, cum, trans, ray_xy)``: absorbed per cell (band-summed,
     solar-weighted), the (3, nband, ny, nx) surface, column-absorbed and surface-absorbed
-    direct flux, and the per-ray tables.
+    direct flux, and the per-ray tables; with ``families``, also the families' landing
+    points and segment lists ``(landing, cells, lengths, count)``.
     """
     nb, nz, ny, nx = ext.shape
     weights = np.full(nb, 1.0) if weights is None else np.asarray(weights, dtype=np.float64)
     optics = np.zeros(ext.shape + (3,), np.float32)
     optics[..., 0], optics[..., 1] = ext, ssa
     kext, ssa_g = optics[..., 0], optics[..., 1:3]
-    nray = nx * ny * nsub * nsub
+    nray = nx * ny * _geometry.RAYS_PER_STRATUM * nsub * nsub
     ncz = czi.size - 1
     source, ray_xy = np.empty((nb, nray)), np.empty((nray, 2))
     cum, trans = np.empty((nb, nray, ncz + 1)), np.empty((nb, nray, ncz + 1))
@@ -135,15 +138,22 @@ def direct_beam(ext, ssa, alb, z_edge, dx, dy, u, nsub, czi, seed=0, batch=0, we
     if not slabs:  # walk every layer: no slab on top, none below
         uniform = Slabs(nz, 0, np.ones((nb, nz + 1)), np.zeros((nb, nz + 1)), np.ones((nb, nz + 1)),
                         np.zeros((nb, nz)))
-    records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1])
-    tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, np.empty(2 * nb + 16))
+    records = _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, path * u[0], path * u[1],
+                            tile=tile, slabs=uniform)
+    beam = records[2]
+    landing = np.empty((beam.tile_x * beam.tile_y * _geometry.RAYS_PER_STRATUM * nsub * nsub, 2))
+    tables = BeamTables(ray_xy, source, cum, trans, np.empty(nb * nray), direct, landing,
+                        np.empty((beam.max_segments, 4), np.int32), np.empty(beam.max_segments), np.empty((3, ny * nx)))
     _geometry.direct_beam_batch(state, *records, uniform, tables, Tallies(np.empty((nb, 0)), cell, scale))
-    return cell / scale, direct, source, cum, trans, ray_xy
+    out = (cell / scale, direct, source, cum, trans, ray_xy)
+    return out + (landing,) if families else out
 
 
-def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach_x=0.0, reach_y=0.0):
-    """The optics, grid (cells only) and beam records of the direct-beam kernels."""
-    nz = kext.shape[1]
+def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach_x=0.0, reach_y=0.0,
+                  tile=DIRECT_BEAM_TILE, slabs=None):
+    """The optics, grid (cells only) and beam records of the direct-beam kernels (the beam's
+    walk tables only with ``slabs``)."""
+    nb, nz, ny, nx = kext.shape
     edge_slot = np.full(nz + 1, -1, dtype=np.int64)
     edge_slot[czi[::-1]] = np.arange(czi.size)
     z_edge = np.asarray(z_edge, dtype=np.float64)
@@ -153,7 +163,15 @@ def _beam_records(kext, ssa_g, alb, weights, z_edge, dx, dy, u, nsub, czi, reach
     grid = Grid(z_edge, float(dx), float(dy), 1, 1, np.array([0, nz]), z_edge[[0, nz]], kext[:, :1, :1, :1],
                 np.zeros((1, 1, 1, 1), np.uint8), unused, unused.astype(np.int64), unused.astype(np.int64))
     kept = np.column_stack([np.arange(czi.size), czi[::-1]]).astype(np.int64)
-    beam = Beam(*(float(c) for c in u), int(nsub), float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
+    gx, gy, segments = 1, 1, 1
+    sweep = (np.zeros((nb, 1, 1, 1, 1, 1), np.float32), np.zeros(2, np.int64), np.zeros((0, 2), np.int32),
+             np.zeros((0, 2)))
+    if slabs is not None:
+        gx, gy = _geometry.tile_sides(nx, ny, tile)
+        segments = _geometry.max_segments(slabs.top - slabs.bottom, z_edge[slabs.top] - z_edge[slabs.bottom], *u, dx,
+                                          dy)
+        sweep = _geometry.sweep_tables(kext, ssa_g[..., 0], slabs.bottom, slabs.top, gx, gy)
+    beam = Beam(*(float(c) for c in u), int(nsub), gx, gy, segments, *sweep, float(reach_x), float(reach_y), edge_slot, kept, np.asarray(czi),
                 unused, np.zeros((3, 1, 1, 1)))
     return optics, grid, beam
 
@@ -202,7 +220,7 @@ def test_direct_beam_mixing_conservative_and_absorbing_layers_follows_beer_lambe
     t_surface = math.exp(-tau.sum())
     np.testing.assert_allclose(direct[0], t_surface, rtol=1e-13)
     np.testing.assert_allclose(absorbed[:, 1, 2], (1 - ssa[0, :, 0, 0]) * removed, rtol=1e-9, atol=1e-14)
-    per_ray = ((ssa[0, :, 0, 0] * removed).sum() + 0.25 * t_surface) / 4
+    per_ray = ((ssa[0, :, 0, 0] * removed).sum() + 0.25 * t_surface) / 8  # 2 x 2 strata, 2 rays each
     np.testing.assert_allclose(source[0], per_ray, rtol=1e-12)
 
 
@@ -256,14 +274,14 @@ def test_direct_beam_transmission_equals_beer_lambert_per_ray():
     u = _direction(40, 200)
     _, direct, source, _, _, ray_xy = direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 2, np.array([0, 4]))
     landed = np.zeros((3, 3))
-    for r in range(36):
+    for r in range(72):
         x0, y0 = ray_xy[r]
         tau = _brute_force_tau(ext, z_edge, 100.0, 100.0, x0, y0, u, n=400000)[0]
-        # Conservative scattering over a black surface: source = 1/4 (1 - exp(-tau)) for that ray.
-        assert abs(4 * source[0, r] - (1 - math.exp(-tau))) < 2e-5
+        # Conservative scattering over a black surface: source = 1/8 (1 - exp(-tau)) for that ray.
+        assert abs(8 * source[0, r] - (1 - math.exp(-tau))) < 2e-5
         lx, ly = _brute_force_landing(x0, y0, u, z_edge[-1], 100.0, 100.0, 3, 3)
-        assert (ly * 3 + lx) == r // 4
-        landed[ly, lx] += 0.25 * math.exp(-tau)
+        assert (ly * 3 + lx) == r // 8
+        landed[ly, lx] += math.exp(-tau) / 8
     np.testing.assert_allclose(direct[0, 0], landed, atol=1e-5)
 
 
@@ -290,10 +308,11 @@ def _exact_column_transmittance(ext, z_edge, dx, dy, u, points=120):
 
 def test_direct_beam_of_every_batch_is_unbiased_in_every_column():
     # A cloud block with sharp edges seen at 60 deg along a diagonal: a column in its
-    # penumbra is partly shaded.  The mean over batches of the one-ray-per-column direct
-    # flux equals the column's area-averaged transmittance (computed independently by
-    # fine quadrature), within the batch-to-batch standard error, in every column
-    # (stratified random sampling is unbiased; e.g. Owen 2013, ch. 10).
+    # penumbra is partly shaded.  The mean over batches of the direct flux of one
+    # antithetic pair of rays per column equals the column's area-averaged transmittance
+    # (computed independently by fine quadrature), within the batch-to-batch standard
+    # error, in every column (stratified and antithetic sampling are unbiased; e.g. Owen
+    # 2013, ch. 8 and 10).
     nx = ny = 6
     ext = np.zeros((1, 4, ny, nx))
     ext[0, 2:, 2:4, 1:4] = 0.01
@@ -302,8 +321,9 @@ def test_direct_beam_of_every_batch_is_unbiased_in_every_column():
     z_edge = np.array([0.0, 100.0, 200.0, 300.0, 400.0])
     u = _direction(60, 30)
     exact = _exact_column_transmittance(ext, z_edge, 100.0, 100.0, u)
+    # Tiles of 3 x 3: every column shares its rays with the column 3 away (ray families).
     batches = np.array([direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 1, np.array([0, 4]), seed=3,
-                                    batch=b)[1][0, 0] for b in range(800)])
+                                    batch=b, tile=3)[1][0, 0] for b in range(800)])
     mean, se = batches.mean(axis=0), batches.std(axis=0, ddof=1) / math.sqrt(len(batches))
     partly = se > 0
     assert partly.sum() >= 8  # the penumbra is there
@@ -497,3 +517,117 @@ def test_galloping_source_search_matches_a_binary_search():
             continue
         expected = min(int(np.searchsorted(cdf, u, side="right")), last)
         assert _transport._next_above(cdf, k, last, u) == expected
+
+
+def _plain_segments(ox, oy, u, dx, dy, nx, ny, z_edge, top, bottom, n=200000):
+    """Length of the ray landing at (ox dx, oy dy) of column (0, 0) in every cell (iz, iy, ix)
+    between edges ``top`` and ``bottom``, by fine midpoint sampling (plain numpy)."""
+    length = (z_edge[top] - z_edge[bottom]) / -u[2]
+    s = (np.arange(n) + 0.5) / n * length
+    back = (z_edge[bottom] - z_edge[0]) / -u[2] + length - s  # distance back up from the landing point
+    x, y = ox * dx - back * u[0], oy * dy - back * u[1]
+    z = z_edge[top] + s * u[2]
+    iz = np.searchsorted(z_edge, z, side="right") - 1
+    keys = np.stack([iz, np.floor(y / dy).astype(int) % ny, np.floor(x / dx).astype(int) % nx], axis=1)
+    cells, counts = np.unique(keys, axis=0, return_counts=True)
+    return {tuple(c): k * length / n for c, k in zip(cells, counts)}
+
+
+def test_segment_list_matches_a_plain_trace():
+    # The cells a family's ray crosses, relative to its column, and the length in each (geometry),
+    # against fine sampling along the same straight line, for several directions and points.
+    z_edge = np.array([0.0, 100.0, 250.0, 300.0, 600.0, 1000.0])
+    edge_slot = np.full(6, -1, dtype=np.int64)
+    edge_slot[[5, 3, 0]] = [0, 1, 2]
+    cells, lengths = np.empty((64, 4), np.int32), np.empty(64)
+    for zenith, azimuth, ox, oy in [(50, 35, 0.3, 0.8), (20, 200, 0.9, 0.1), (70, 300, 0.5, 0.5), (0, 0, 0.2, 0.7)]:
+        u = _direction(zenith, azimuth)
+        n = _geometry.trace_segments(ox, oy, *u, 100.0, 80.0, 6, 4, z_edge, 5, 1, edge_slot, cells, lengths)
+        assert n <= _geometry.max_segments(4, 900.0, *u, 100.0, 80.0)
+        got = {}
+        for q in range(n):
+            key = tuple(int(v) for v in cells[q, :3])
+            got[key] = got.get(key, 0.0) + lengths[q]
+        plain = _plain_segments(ox, oy, u, 100.0, 80.0, 6, 4, z_edge, 5, 1)
+        big = {key for key, value in plain.items() if value > 0.05}
+        assert big <= set(got)
+        for key, value in got.items():
+            assert abs(value - plain.get(key, 0.0)) < 0.05, (key, value, plain.get(key))
+        np.testing.assert_allclose(lengths[:n].sum(), 900.0 / -u[2], rtol=1e-12)
+        # The table slots are where the ray crosses the kept edges 3 and 0 (slot 2 lies below edge 1).
+        assert [int(j) for j in cells[:n, 3] if j >= 0] == [1]
+
+
+def test_rays_share_landing_points_by_tile_place_in_antithetic_pairs():
+    # Columns at the same place of their tiles share every landing point; the columns of a tile
+    # do not; the two rays of a stratum are mirror images through its centre, each inside it.
+    nz, ny, nx = 3, 4, 6
+    ext = np.full((1, nz, ny, nx), 1e-4)
+    ext[0, 1, 1:3, 2:4] = 0.01
+    ssa = np.where(ext > 1e-3, 0.9, 1.0)
+    z_edge = np.array([0.0, 100.0, 200.0, 300.0])
+    u = _direction(40, 60)
+    *_, ray_xy, landing = direct_beam(ext, ssa, np.zeros((1, ny, nx)), z_edge, 100.0, 100.0, u, 2, np.array([0, 3]),
+                                      tile=2, families=True)
+    path = 300.0 / -u[2]
+    frac = ((ray_xy + path * np.array(u[:2])) / 100.0) % 1.0  # landing point in the column
+    frac = frac.reshape(ny, nx, 8, 2)
+    np.testing.assert_allclose(frac[:, 2:], frac[:, :-2], atol=1e-9)
+    np.testing.assert_allclose(frac[2:], frac[:-2], atol=1e-9)
+    assert not np.allclose(frac[0, 0], frac[0, 1]) and not np.allclose(frac[0, 0], frac[1, 0])
+    stratum = np.stack([np.arange(4) % 2, np.arange(4) // 2], axis=1)[:, None, :]
+    pairs = frac.reshape(ny, nx, 4, 2, 2) * 2 - stratum  # in the stratum, [0, 1)
+    assert (pairs >= -1e-9).all() and (pairs <= 1 + 1e-9).all()
+    np.testing.assert_allclose(pairs[..., 0, :] + pairs[..., 1, :], 1.0, atol=1e-9)
+    assert landing.shape == (2 * 2 * 8, 2)
+
+
+def _plain_ray(ext, ssa, z_edge, dx, dy, x0, y0, u, n=100000):
+    """Transmission, absorbed and scattered energy of a unit ray from (x0, y0) at the top to
+    the surface, and its absorption per cell, by fine midpoint sampling (plain numpy;
+    Beer-Lambert law)."""
+    nb, nz, ny, nx = ext.shape
+    length = (z_edge[-1] - z_edge[0]) / -u[2]
+    ds = length / n
+    s = (np.arange(n) + 0.5) * ds
+    ix = np.floor((x0 + s * u[0]) / dx).astype(int) % nx
+    iy = np.floor((y0 + s * u[1]) / dy).astype(int) % ny
+    iz = np.clip(np.searchsorted(z_edge, z_edge[-1] + s * u[2], side="right") - 1, 0, nz - 1)
+    k, w = ext[:, iz, iy, ix], ssa[:, iz, iy, ix]
+    tau = np.cumsum(k * ds, axis=1)
+    removed = np.exp(-(tau - k * ds)) * -np.expm1(-k * ds)
+    cell = np.zeros((nb, nz, ny, nx))
+    for b in range(nb):
+        np.add.at(cell[b], (iz, iy, ix), (1 - w[b]) * removed[b])
+    return np.exp(-tau[:, -1]), ((1 - w) * removed).sum(axis=1), (w * removed).sum(axis=1), cell
+
+
+def test_every_ray_of_a_swept_family_follows_beer_lambert_with_absorbing_cells():
+    # Two bands, absorbing clouds and absorbing clear air between uniform layers, tiles of
+    # 2 x 2 columns (families shared by three columns along x and two along y): every ray's
+    # transmission and scattered source, and the absorption of every cell and column,
+    # against fine sampling along the same ray (Beer-Lambert law).
+    rng = np.random.default_rng(8)
+    nz, ny, nx = 6, 4, 6
+    ext = _single(np.where(rng.random((2, nz, ny, nx)) < 0.3, rng.uniform(0.003, 0.01, (2, nz, ny, nx)), 2e-4))
+    ssa = _single(np.where(ext > 1e-3, rng.uniform(0.8, 1.0, ext.shape), 1.0))
+    ssa[1, 2] = np.where(ext[1, 2] > 1e-3, ssa[1, 2], 0.95)
+    ext[:, 5], ssa[:, 5] = 1e-4, 1.0  # a uniform layer on top
+    alb = np.full((2, ny, nx), 0.25)
+    z_edge = np.linspace(0.0, 1200.0, nz + 1)
+    u = _direction(55, 160)
+    czi = np.array([0, 2, 4, 6])
+    absorbed, direct, source, cum, trans, ray_xy = direct_beam(ext, ssa, alb, z_edge, 100.0, 100.0, u, 1, czi,
+                                                               weights=[0.7, 0.3], tile=2)
+    per_ray = 2
+    cells = np.zeros((2, nz, ny, nx))
+    for r in range(ray_xy.shape[0]):
+        t, _, scattered, cell = _plain_ray(ext, ssa, z_edge, 100.0, 100.0, *ray_xy[r], u)
+        np.testing.assert_allclose(per_ray * source[:, r], scattered + 0.25 * t, rtol=2e-3, atol=1e-5)
+        np.testing.assert_allclose(per_ray * trans[:, r, -1], t, rtol=2e-3, atol=1e-6)  # slot -1: the surface
+        cells += cell / per_ray
+    weighted = np.array([0.7, 0.3])[:, None, None, None] * cells
+    np.testing.assert_allclose(absorbed, weighted.sum(axis=0), rtol=3e-3, atol=1e-7)
+    # A column's absorption is that of its cells, wherever the rays absorbed in them land.
+    np.testing.assert_allclose(direct[1], weighted.sum(axis=1), rtol=3e-3, atol=1e-7)
+    np.testing.assert_allclose(direct[1].sum(axis=0), absorbed.sum(axis=0), rtol=1e-9, atol=1e-15)
