@@ -40,7 +40,7 @@ def register(sub):
     p.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask distributed scheduler at ADDRESS")
     p.add_argument("--batch-size", type=int, help="photons per batch (default: automatic)")
     p.add_argument("--rays-per-column", type=int, default=1,
-                   help="direct-beam rays per column and axis in every photon batch (default: 1)")
+                   help="direct-beam strata per column side in every photon batch, two mirrored rays in each (default: 1)")
     p.add_argument("--threads", type=int,
                    help="compiled threads per run (default: all cores; 1 per worker with --jobs or --scheduler)")
     p.add_argument("--per-band", action="store_true", help="also store per-band column fluxes")
