@@ -60,6 +60,12 @@ BASELINES = {
     "nonlocal_independent_pixel": Baseline("non-local independent pixel", "baseline_nonlocal_independent_pixel"),
 }
 
+#: The published simple longwave corrections the longwave pair table carries, by name
+#: (:mod:`surrogate3d.baselines.effective_cloud_fraction`).
+LONGWAVE_BASELINES = {
+    "effective_cloud_fraction": Baseline("effective cloud fraction", "baseline_effective_cloud_fraction"),
+}
+
 #: Scene files (``docs/archive-format.md``).  1.2 added the optional longwave fields
 #: (``specific_humidity``, ``surface_temperature``, ``surface_longwave_emissivity``) and
 #: ``air_temperature`` per cell; a 1.1 file's layer profile of ``air_temperature`` still reads.

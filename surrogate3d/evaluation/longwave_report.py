@@ -1,9 +1,10 @@
 """The report files of a longwave evaluation (``surrogate3d evaluate`` on longwave models).
 
-The longwave targets are in W m-2 and have no sun, no consistency step and no published
-baseline (``docs/methods/longwave.md``), so the page is the shortwave report's shape cut
-to what applies: the skill of every model next to no correction (the share of the
-independent column's RMSE each removes), broken down by regime, cloud fraction and host
+The longwave targets are in W m-2 and have no sun, no consistency step and one published
+baseline, the effective cloud fraction of broken clouds (``docs/methods/longwave.md``), so
+the page is the shortwave report's shape cut to what applies: the skill of every model
+next to no correction and that baseline (the share of the independent column's RMSE each
+removes), broken down by regime, cloud fraction and host
 resolution, the leave-one-family-out set, maps, scatter, error histograms, importance,
 learning curve, the training envelope and, with a longwave profile model, its heating-rate
 skill (:mod:`surrogate3d.evaluation.longwave_profile_skill`).

@@ -10,7 +10,7 @@ import numpy as np
 
 from ..errors import ValidationError
 from ..learn.consistency import apply_correction
-from ..core.data_model import BASELINES
+from ..core.data_model import BASELINES, LONGWAVE_BASELINES
 from ..learn.pairs_table import domain_groups, target_matrix
 
 NO_CORRECTION = "no correction"
@@ -24,10 +24,11 @@ def reference_predictions(pairs, targets):
     -------
     dict of str -> ndarray
         ``"no correction"`` (zeros), ``"tilted independent column"``, ``"non-local independent pixel"``;
-        a longwave table has no baselines (``docs/methods/longwave.md``), only no correction.
+        for a longwave table ``"effective cloud fraction"`` (:mod:`surrogate3d.baselines.effective_cloud_fraction`)
+        when the table has it.
     """
     out = {NO_CORRECTION: np.zeros((pairs.sizes["sample"], len(targets)))}
-    for baseline in BASELINES.values():
+    for baseline in (*BASELINES.values(), *LONGWAVE_BASELINES.values()):
         if baseline.variable in pairs:
             out[baseline.label] = target_matrix(pairs, targets, baseline.variable)
     return out

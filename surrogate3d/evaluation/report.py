@@ -163,8 +163,8 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
              f"held-out scenes of unseen seeds ({held.sizes['sample']} samples)"
              + (f" and, trained without each in turn, on the families {', '.join(families)}" if family_runs is not None
                 else "")
-             + (", against no correction (the independent column; no published simple longwave correction is "
-                "implemented as a baseline yet, docs/methods/longwave.md)" if longwave
+             + (", against no correction (the independent column) and the effective cloud fraction of broken clouds "
+                "(after Killen and Ellingson 1994, docs/methods/longwave.md) on the same samples" if longwave
                 else ", against no correction and the two published baselines on the same samples")
              + ". Pairs file "
              f"<code>{html.escape(str(pairs_path))}</code>"

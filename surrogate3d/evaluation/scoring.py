@@ -210,7 +210,8 @@ def score(source, pairs_path, *, consistency=True, importance_repeats=3, seed=0,
     flagged = "; ".join(f"{name}: {check.n_outside} of {check.outside.size} columns outside its training envelope"
                         for name, check in scored.envelope.items() if check.available)
     if longwave:
-        compared = "against no correction (longwave: targets and errors in W m-2, scored as predicted). "
+        compared = ("against no correction and the effective cloud fraction of broken clouds (longwave: targets and "
+                    "errors in W m-2, scored as predicted). ")
     else:
         compared = ("against no correction and the two published baselines on the same samples. "
                     + ("Learned corrections are scored after the consistency step (non-negative fluxes, direct + "

@@ -26,11 +26,12 @@ from tqdm import tqdm
 from .. import __version__
 from ..archive.longwave_results import completed_longwave, select_longwave_result
 from ..archive.netcdf import read_scene, scene_files
-from ..core.data_model import LONGWAVE_PAIRS_FORMAT_VERSION
+from ..baselines.effective_cloud_fraction import effective_cloud_fraction_corrections
+from ..core.data_model import LONGWAVE_BASELINES, LONGWAVE_PAIRS_FORMAT_VERSION
 from ..core.longwave_result import longwave_stderr_name
 from ..core.validation import check_option
 from ..errors import FormatError, ParameterError
-from ..scenes.model import layer_thickness
+from ..scenes.model import cloud_mask, layer_thickness
 from ..scenes.planck import STEFAN_BOLTZMANN
 from .coarsen import block_mean, block_standard_error, host_factors, scene_host_fields
 from .longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, LongwaveFeatureRecipe, longwave_host_features
@@ -46,6 +47,8 @@ _TARGET_VARS = {
     "independent_column_flux_standard_error": "Monte Carlo standard error of independent_column_flux",
     "full_3d_flux": "3D longwave field, host-column mean",
     "full_3d_flux_standard_error": "Monte Carlo standard error of full_3d_flux",
+    **{b.variable: f"correction of the published simple longwave correction '{b.label}' "
+                   "(surrogate3d.baselines.effective_cloud_fraction)" for b in LONGWAVE_BASELINES.values()},
 }
 _SAMPLE_META = {
     "scene": ("-", "scene identifier (scene file stem)"),
@@ -132,8 +135,10 @@ def _block(scene, name, resolution, full, ica, two_stream, host_layer_edges=None
         return np.stack([np.asarray(get(t)).reshape(n) for t in LONGWAVE_TARGETS], axis=1)
 
     se = longwave_stderr_name
+    baseline = _effective_cloud_fraction(scene, ica, fields, features, fy, fx)
     return {
         **longwave_host_profiles(scene, full, ica, two_stream, fy, fx, host_layer_edges),
+        LONGWAVE_BASELINES["effective_cloud_fraction"].variable: stack(lambda t: baseline[t]),
         "features": np.stack([features[f].reshape(n) for f in LONGWAVE_FEATURES], axis=1),
         "target_value": stack(lambda t: c3d[t] - cica[t]),
         "target_standard_error": stack(lambda t: np.hypot(c3d[se(t)], cica[se(t)])),
@@ -153,6 +158,18 @@ def _block(scene, name, resolution, full, ica, two_stream, host_layer_edges=None
         "surface_temperature": features["surface_temperature"].reshape(n),
         "reference_flux": STEFAN_BOLTZMANN * features["surface_temperature"].reshape(n) ** 4,
     }
+
+
+def _effective_cloud_fraction(scene, ica, fields, features, fy, fx):
+    """The effective-cloud-fraction baseline's corrections per host column (W m-2, by target)."""
+    projected = cloud_mask(scene).any(axis=0)
+    down = np.asarray(ica["longwave_surface_downward_flux"].values, dtype=np.float64)
+    share = block_mean(projected.astype(np.float64), fy, fx)
+    cloudy = block_mean(np.where(projected, down, 0.0), fy, fx) / np.where(share > 0.0, share, 1.0)
+    clear = block_mean(np.where(projected, 0.0, down), fy, fx) / np.where(share < 1.0, 1.0 - share, 1.0)
+    return effective_cloud_fraction_corrections(share, cloudy, clear, fields["cloud_edge_length"],
+                                                features["cloud_top_height"] - features["cloud_base_height"],
+                                                features["surface_longwave_emissivity"])
 
 
 def _fingerprint(digest, name, scene):

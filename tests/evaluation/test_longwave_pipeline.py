@@ -108,7 +108,7 @@ def test_report_scores_against_no_correction_in_w_m2(chain):
     assert set(table["units"]) == {"W m-2"}
     assert set(table["evaluation_set"]) == {"held-out scenes", "left-out families"}
     held = table[(table["evaluation_set"] == "held-out scenes") & (table["breakdown"] == "all")]
-    assert set(held["predictor"]) == {"no correction", "ridge", "boosted"}
+    assert set(held["predictor"]) == {"no correction", "effective cloud fraction", "ridge", "boosted"}
     # Skill is the share of the no-correction RMSE removed (Wilks 2011): check one row by hand.
     pairs = evaluation.sets[0].pairs
     m = evaluation.targets.index("longwave_surface_downward_flux")

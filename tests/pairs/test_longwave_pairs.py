@@ -193,3 +193,32 @@ def test_table_names_its_longwave_feature_recipe(pairs):
         LongwaveFeatureRecipe(["cloud_fraction", "cos_solar_zenith"])
     with pytest.raises(ParameterError, match="spectrum must be 'shortwave' or 'longwave'"):
         feature_recipe_from_dict({"spectrum": "thermal", "features": []})
+
+
+def test_table_carries_the_effective_cloud_fraction_baseline(archive, pairs):
+    """The baseline of the pair table is the module's formula on the host column's own cover,
+    edge length, depth and the mean independent-column flux of its cloudy and clear columns."""
+    from surrogate3d.baselines.effective_cloud_fraction import effective_cloud_fraction_corrections
+    from surrogate3d.pairs.coarsen import edge_length_density
+    from surrogate3d.scenes.model import cloud_mask
+
+    baseline = pairs["baseline_effective_cloud_fraction"].values
+    assert baseline.shape == (pairs.sizes["sample"], 5) and np.isfinite(baseline).all()
+    stored = read_scene(archive / "s_00002.nc")
+    ica = select_longwave_result(stored, "longwave_independent_column")
+    row = int(np.flatnonzero((pairs["scene"].values == "s_00002") & (pairs["host_iy"].values == 1)
+                             & (pairs["host_ix"].values == 0))[0])
+    mask = cloud_mask(stored).any(axis=0)[4:8, 0:4]
+    down = ica["longwave_surface_downward_flux"].values[4:8, 0:4]
+    edge = edge_length_density(cloud_mask(stored).any(axis=0), 100.0, 100.0)[4:8, 0:4].mean()
+    names = list(pairs["feature"].values)
+    depth = pairs["features"].values[row, names.index("cloud_top_height")] - \
+        pairs["features"].values[row, names.index("cloud_base_height")]
+    emissivity = pairs["features"].values[row, names.index("surface_longwave_emissivity")]
+    cover = mask.mean()
+    cloudy = down[mask].mean() if mask.any() else 0.0
+    clear = down[~mask].mean() if (~mask).any() else 0.0
+    by_hand = effective_cloud_fraction_corrections(np.array([[cover]]), np.array([[cloudy]]), np.array([[clear]]),
+                                                   np.array([[edge]]), np.array([[depth]]), np.array([[emissivity]]))
+    for k, name in enumerate(LONGWAVE_TARGETS):
+        np.testing.assert_allclose(baseline[row, k], by_hand[name][0, 0], rtol=1e-12, atol=1e-12)
