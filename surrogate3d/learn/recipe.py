@@ -225,8 +225,6 @@ def parse_recipe(text, source="<recipe>"):
                             target_transforms=_transforms(source, raw.get("target_transforms"), targets),
                             grouping=grouping, profile=_profile(source, raw.get("profile"), spectrum),
                             spectrum=spectrum)
-    if spectrum == "longwave" and recipe.target_transforms is not None:
-        _fail(source, "[target_transforms]", "is for shortwave recipes only")
     return recipe
 
 

@@ -17,6 +17,7 @@ import math
 
 import numpy as np
 
+from ..baselines.effective_cloud_fraction import effective_cloud_fraction_corrections
 from ..core.data_model import LONGWAVE_COLUMN_FLUXES, RECIPE_VERSION
 from ..errors import ParameterError, ValidationError
 from . import features as library
@@ -46,6 +47,11 @@ LONGWAVE_FEATURES = {
                                  " (longwave_two_stream result, host-column mean)") for flux in LONGWAVE_TARGETS},
     "surface_temperature": ("K", "surface (skin) temperature, host-column mean"),
     "surface_longwave_emissivity": ("1", "broadband longwave surface emissivity, host-column mean"),
+    "host_longwave_clear_sky_surface_downward_flux": ("W m-2", "the host's clear-sky surface downward longwave flux "
+                                                               "(its column solver without cloud water)"),
+    "effective_cloud_fraction_prior": ("W m-2", "(N_e - N) (F - F_clear) / N: the surface downward change of the "
+                                                "effective cloud fraction of random cylinders (Killen and Ellingson "
+                                                "1994) from the host's cover, edge length, cloud depth and fluxes"),
 }
 
 
@@ -126,13 +132,60 @@ def longwave_host_features(fields, host_fluxes):
     out.update({f"host_{flux}": np.asarray(host_fluxes[flux], dtype=np.float64) for flux in LONGWAVE_TARGETS})
     out["surface_temperature"] = np.asarray(fields["surface_temperature"], dtype=np.float64)
     out["surface_longwave_emissivity"] = np.asarray(fields["surface_longwave_emissivity"], dtype=np.float64)
+    clear = np.asarray(fields["longwave_clear_sky_surface_downward_flux"], dtype=np.float64)
+    out["host_longwave_clear_sky_surface_downward_flux"] = clear
+    out["effective_cloud_fraction_prior"] = effective_cloud_fraction_prior(
+        out["cloud_fraction"], fields["cloud_edge_length"], top - base,
+        out["host_longwave_surface_downward_flux"], clear)
     return out
+
+
+def effective_cloud_fraction_prior(cloud_fraction, edge_length, cloud_depth, host_down, clear_down):
+    """The effective-cloud-fraction change of the surface downward longwave flux a host can compute [W m-2].
+
+    The host's column flux is the flat-plate mixture ``F = F_clear + N (F_cloudy - F_clear)``, so
+    ``F_cloudy - F_clear = (F - F_clear) / N``; with the effective cloud fraction ``N_e`` of
+    randomly placed cylinders of the host column's cover, depth and edge length
+    (:mod:`surrogate3d.baselines.effective_cloud_fraction`) the change is
+    ``(N_e - N) (F - F_clear) / N``; zero in clear and overcast columns.
+
+    Parameters
+    ----------
+    cloud_fraction : ndarray
+        Vertically projected cover [1].
+    edge_length : ndarray
+        Cloud-edge length per unit area [m-1].
+    cloud_depth : ndarray
+        Cloud top minus cloud base height [m].
+    host_down, clear_down : ndarray
+        The host's surface downward longwave flux, all-sky and clear-sky [W m-2].
+
+    Returns
+    -------
+    ndarray
+
+    References
+    ----------
+    Killen, R. M., and R. G. Ellingson, 1994: The effect of shape and spatial distribution of
+    cumulus clouds on longwave irradiance. J. Atmos. Sci., 51, 2123-2136.
+
+    Examples
+    --------
+    >>> one = np.ones(1)
+    >>> bool(effective_cloud_fraction_prior(0.3 * one, 1e-3 * one, 1000.0 * one, 345.0 * one, 330.0 * one)[0] > 0)
+    True
+    """
+    n = np.asarray(cloud_fraction, dtype=np.float64)
+    cloudy_minus_clear = (np.asarray(host_down, dtype=np.float64) - np.asarray(clear_down, dtype=np.float64)) \
+        / np.where(n > 0.0, n, 1.0)
+    return effective_cloud_fraction_corrections(n, cloudy_minus_clear, np.zeros_like(n), edge_length, cloud_depth,
+                                                np.ones_like(n))["longwave_surface_downward_flux"]
 
 
 #: Host fields :func:`longwave_host_features` reads besides the cloud geometry of
 #: :func:`surrogate3d.pairs.coarsen.scene_host_fields`.
 LONGWAVE_HOST_FIELDS = ("layer_air_temperature", "liquid_water_path", "surface_temperature",
-                        "surface_longwave_emissivity")
+                        "surface_longwave_emissivity", "cloud_edge_length", "longwave_clear_sky_surface_downward_flux")
 
 
 def longwave_halo_width(recipe, dx, dy):

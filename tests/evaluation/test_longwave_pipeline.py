@@ -28,7 +28,8 @@ from surrogate3d.learn.recipe import parse_recipe
 from surrogate3d.learn.train import train_models
 from surrogate3d.pairs.coarsen import host_factors
 from surrogate3d.pairs.longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, longwave_halo_width
-from surrogate3d.pairs.longwave_pairs import build_longwave_pairs, coarsen_longwave_result, longwave_host_fields
+from surrogate3d.pairs.longwave_pairs import (build_longwave_pairs, coarsen_longwave_result,
+                                              host_clear_sky_downward, longwave_host_fields)
 from surrogate3d.runtime import load_coefficients
 from surrogate3d.scenes.generator import generate_scene
 
@@ -96,8 +97,11 @@ def test_recipe_and_table_of_different_spectra_are_refused(chain, tmp_path):
     with pytest.raises(ParameterError, match="targets must be a non-empty list of distinct names from "
                                              r"\['longwave_surface_downward_flux'"):
         parse_recipe(RECIPE.replace('spectrum = "longwave"', 'spectrum = "longwave"\ntargets = ["toa_upward_flux"]'))
-    with pytest.raises(ParameterError, match=r"\[target_transforms\] is for shortwave recipes only"):
-        parse_recipe(RECIPE + "[target_transforms.longwave_toa_upward_flux]\nscale_feature = \"cloud_fraction\"\n")
+    # A longwave recipe takes target transforms of its own targets (the prior as offset), not the shortwave's.
+    offset = "offset_features = {effective_cloud_fraction_prior = 1.0}\n"
+    assert parse_recipe(RECIPE + "[target_transforms.longwave_surface_downward_flux]\n" + offset).target_transforms
+    with pytest.raises(ParameterError, match=r"\[target_transforms\] has unknown keys \['surface_downward_flux'\]"):
+        parse_recipe(RECIPE + "[target_transforms.surface_downward_flux]\n" + offset)
     with pytest.raises(ParameterError, match="spectrum must be 'shortwave' or 'longwave'"):
         parse_recipe('spectrum = "thermal"\n' + RECIPE.replace('spectrum = "longwave"', ""))
 
@@ -135,6 +139,7 @@ def test_runtime_computes_the_longwave_features_from_host_fields(chain):
     name = "broken_stratocumulus_00001"
     scene = read_scene(chain["archive"] / f"{name}.nc")
     fields = longwave_host_fields(scene, HOST)
+    fields["longwave_clear_sky_surface_downward_flux"] = host_clear_sky_downward(scene, HOST, 10000.0)
     fy, fx = host_factors(scene, HOST)
     host_fluxes = coarsen_longwave_result(select_longwave_result(scene, "longwave_two_stream"), fy, fx)
     fields.update({flux: host_fluxes[flux] for flux in LONGWAVE_TARGETS})

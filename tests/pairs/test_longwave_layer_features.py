@@ -122,6 +122,6 @@ def test_longwave_recipe_profile_table():
         parse_recipe(LONGWAVE_RECIPE + "[profile]\nmax_iter = [10, 20]\n")
     with pytest.raises(ParameterError, match=r"\[profile\] max_iter must be"):
         parse_recipe(LONGWAVE_RECIPE + "[profile]\nmax_iter = 0\n")
-    with pytest.raises(ParameterError, match=r"\[target_transforms\] is for shortwave recipes only"):
-        parse_recipe(LONGWAVE_RECIPE + "[target_transforms.longwave_toa_upward_flux]\nscale_floor = 1.0\n"
+    with pytest.raises(ParameterError, match=r"\[target_transforms\] has unknown keys \['toa_upward_flux'\]"):
+        parse_recipe(LONGWAVE_RECIPE + "[target_transforms.toa_upward_flux]\nscale_floor = 1.0\n"
                      'scale_feature = "cloud_fraction"\n')

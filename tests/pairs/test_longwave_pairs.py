@@ -111,7 +111,10 @@ def test_features_of_a_single_cloud_layer_by_hand():
     constructed["liquid_water_content"].values[...] = lwc
     fields = longwave_host_fields(constructed, HOST)
     zero = np.zeros((2, 2))
-    values = longwave_host_features(fields, dict.fromkeys(LONGWAVE_TARGETS, zero))
+    fields["longwave_clear_sky_surface_downward_flux"] = np.full((2, 2), 290.0)
+    host = dict.fromkeys(LONGWAVE_TARGETS, zero)
+    host["longwave_surface_downward_flux"] = np.array([[300.0, 290.0], [290.0, 290.0]])
+    values = longwave_host_features(fields, host)
     assert list(values) == list(LONGWAVE_FEATURES)
     base, top = 4000.0 / 6 * 2, 4000.0 / 6 * 3
 
@@ -134,6 +137,19 @@ def test_features_of_a_single_cloud_layer_by_hand():
     # Liquid water path: 0.3 g m-3 over 666.7 m on a quarter of the column.
     np.testing.assert_allclose(values["liquid_water_path"], [[0.3 * (top - base) / 4, 0.0], [0.0, 0.0]],
                                rtol=1e-12)
+    # The effective-cloud-fraction prior: cover 1/4, one 200 m square (edge 800 m per 160 000 m2,
+    # no staircase: D = 4 (1 - N)(-ln(1 - N)) / (L / (4/pi))), depth 666.7 m, cloudy minus clear
+    # (300 - 290) / N; N_e by quadrature of the cosine-weighted gap probability of random
+    # cylinders (Killen and Ellingson 1994; Stoyan et al. 1995).
+    from scipy.integrate import quad
+
+    n, edge = 0.25, 800.0 / 400.0 ** 2
+    aspect = (top - base) / (4.0 * (1 - n) * -np.log(1 - n) / (edge * np.pi / 4.0))
+    gap = quad(lambda mu: (1 - n) ** (1 + 4 / np.pi * aspect * np.sqrt(1 - mu**2) / mu) * mu, 0.0, 1.0)[0]
+    # (32-point Gauss-Legendre in the package: 1e-4 relative)
+    np.testing.assert_allclose(values["effective_cloud_fraction_prior"][0, 0], (1 - 2 * gap - n) * 10.0 / n,
+                               rtol=1e-4)
+    np.testing.assert_array_equal(values["effective_cloud_fraction_prior"].ravel()[1:], 0.0)
     np.testing.assert_allclose(values["surface_temperature"], 288.15)
     np.testing.assert_allclose(values["surface_longwave_emissivity"], 0.99)
     # The neighbour cloud fraction is the shortwave window feature; it conserves the
