@@ -16,25 +16,20 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from surrogate3d.archive import read_scene, select_longwave_result, write_scene
-from surrogate3d.archive.simulate import simulate_archive
+from surrogate3d.archive import read_scene, select_longwave_result
 from surrogate3d.cli import main
-from surrogate3d.core.netcdf import write_dataset
 from surrogate3d.core.pairs_table import read_pairs_table
 from surrogate3d.errors import ParameterError, ValidationError
-from surrogate3d.evaluation.report import evaluate, write_report
 from surrogate3d.learn.model_directory import load_training_run
 from surrogate3d.learn.recipe import parse_recipe
 from surrogate3d.learn.train import train_models
 from surrogate3d.pairs.coarsen import host_factors
 from surrogate3d.pairs.longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, longwave_halo_width
-from surrogate3d.pairs.longwave_pairs import (build_longwave_pairs, coarsen_longwave_result,
-                                              host_clear_sky_downward, longwave_host_fields)
+from surrogate3d.pairs.longwave_pairs import coarsen_longwave_result, host_clear_sky_downward, longwave_host_fields
 from surrogate3d.runtime import load_coefficients
-from surrogate3d.scenes.generator import generate_scene
 
-HOST = 300.0  # 3 x 3 cells of 100 m: a 4 x 4 host grid
-REGIMES = ("scattered_cumulus", "broken_stratocumulus")
+from longwave_chain import HOST, build_longwave_chain
+
 GFORTRAN = shutil.which("gfortran")
 
 RECIPE = """
@@ -61,22 +56,7 @@ def chain(tmp_path_factory):
     """Eight small scenes of two regimes with longwave results, their pairs, a trained run,
     its report and its export."""
     root = tmp_path_factory.mktemp("longwave")
-    archive = root / "archive"
-    archive.mkdir()
-    for regime in REGIMES:
-        for seed in range(4):
-            write_scene(generate_scene(regime, seed, nx=12, ny=12, nz=6), archive / f"{regime}_{seed:05d}.nc")
-    simulate_archive(archive, solvers=["full_3d", "independent_column", "two_stream"], spectrum="longwave",
-                     photons=20000, seed=3, quiet=True, longwave_resolution=10000.0, n_jobs=1)
-    write_dataset(build_longwave_pairs(archive, [HOST], quiet=True), root / "pairs.nc")
-    (root / "recipe.toml").write_text(RECIPE)
-    train_models(root / "pairs.nc", root / "recipe.toml", root / "models", quiet=True)
-    evaluation = evaluate(root / "models", root / "pairs.nc", learning_curve_points=2, importance_repeats=1,
-                          quiet=True)
-    write_report(evaluation, root / "report", map_scenes=1)
-    assert main(["export", str(root / "models"), "--out", str(root / "export"), "--report", str(root / "report"),
-                 "--fortran", "--quiet"]) == 0
-    return {"root": root, "archive": archive, "evaluation": evaluation}
+    return {**build_longwave_chain(root, RECIPE, learning_curve_points=2, importance_repeats=1)}
 
 
 def test_training_learns_the_five_longwave_targets(chain):
