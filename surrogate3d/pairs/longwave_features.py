@@ -52,6 +52,12 @@ LONGWAVE_FEATURES = {
     "effective_cloud_fraction_prior": ("W m-2", "(N_e - N) (F - F_clear) / N: the surface downward change of the "
                                                 "effective cloud fraction of random cylinders (Killen and Ellingson "
                                                 "1994) from the host's cover, edge length, cloud depth and fluxes"),
+    "host_longwave_clear_sky_toa_upward_flux": ("W m-2", "the host's clear-sky top-of-domain upward longwave flux"),
+    "effective_cloud_fraction_toa_prior": ("W m-2", "(N_e - N) (F - F_clear) / N of the top-of-domain upward flux: "
+                                                    "the cylinders seen from above"),
+    "effective_cloud_fraction_atmosphere_prior": ("W m-2", "minus the top-of-domain prior minus emissivity times the "
+                                                           "surface prior: the atmosphere's share of a change that "
+                                                           "conserves energy"),
 }
 
 
@@ -137,6 +143,16 @@ def longwave_host_features(fields, host_fluxes):
     out["effective_cloud_fraction_prior"] = effective_cloud_fraction_prior(
         out["cloud_fraction"], fields["cloud_edge_length"], top - base,
         out["host_longwave_surface_downward_flux"], clear)
+    clear_toa = np.asarray(fields["longwave_clear_sky_toa_upward_flux"], dtype=np.float64)
+    out["host_longwave_clear_sky_toa_upward_flux"] = clear_toa
+    # Random cylinders hide as much of the ground from space as of the sky from the ground.
+    out["effective_cloud_fraction_toa_prior"] = effective_cloud_fraction_prior(
+        out["cloud_fraction"], fields["cloud_edge_length"], top - base, out["host_longwave_toa_upward_flux"],
+        clear_toa)
+    # The domain's net absorption balances what leaves it: atmosphere + surface net = -(TOA upward).
+    out["effective_cloud_fraction_atmosphere_prior"] = -(out["effective_cloud_fraction_toa_prior"]
+                                                         + out["surface_longwave_emissivity"]
+                                                         * out["effective_cloud_fraction_prior"])
     return out
 
 
@@ -185,7 +201,8 @@ def effective_cloud_fraction_prior(cloud_fraction, edge_length, cloud_depth, hos
 #: Host fields :func:`longwave_host_features` reads besides the cloud geometry of
 #: :func:`surrogate3d.pairs.coarsen.scene_host_fields`.
 LONGWAVE_HOST_FIELDS = ("layer_air_temperature", "liquid_water_path", "surface_temperature",
-                        "surface_longwave_emissivity", "cloud_edge_length", "longwave_clear_sky_surface_downward_flux")
+                        "surface_longwave_emissivity", "cloud_edge_length", "longwave_clear_sky_surface_downward_flux",
+                        "longwave_clear_sky_toa_upward_flux")
 
 
 def longwave_halo_width(recipe, dx, dy):

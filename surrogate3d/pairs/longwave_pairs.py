@@ -123,8 +123,8 @@ def _two_stream(scene, full):
                                 resolution=float(full["longwave_run_spectral_resolution"]))
 
 
-def host_clear_sky_downward(scene, host_resolution, spectral_resolution):
-    """The host's clear-sky surface downward longwave flux [W m-2] on its own columns.
+def host_clear_sky_fluxes(scene, host_resolution, spectral_resolution):
+    """The host's clear-sky surface downward and top-of-domain upward longwave fluxes [W m-2] on its own columns.
 
     The scene is averaged to host columns (as a host sees it), its cloud water removed, and
     the longwave two-stream solver run on it: what a host's radiation scheme reports as its
@@ -141,7 +141,8 @@ def host_clear_sky_downward(scene, host_resolution, spectral_resolution):
 
     Returns
     -------
-    ndarray (Ny, Nx)
+    dict of str -> ndarray (Ny, Nx)
+        ``longwave_clear_sky_surface_downward_flux`` and ``longwave_clear_sky_toa_upward_flux``.
     """
     from ..solvers.longwave_scene import solve_longwave_scene
 
@@ -150,14 +151,14 @@ def host_clear_sky_downward(scene, host_resolution, spectral_resolution):
     coarse.attrs.update(dx_m=float(scene.attrs["dx_m"]) * fx, dy_m=float(scene.attrs["dy_m"]) * fy)
     coarse = coarse.assign(liquid_water_content=coarse["liquid_water_content"] * 0.0)
     result = solve_longwave_scene(coarse, "longwave_two_stream", resolution=spectral_resolution)
-    return np.asarray(result["longwave_surface_downward_flux"].values, dtype=np.float64)
+    return {f"longwave_clear_sky_{flux}": np.asarray(result[f"longwave_{flux}"].values, dtype=np.float64)
+            for flux in ("surface_downward_flux", "toa_upward_flux")}
 
 
 def _block(scene, name, resolution, full, ica, two_stream, host_layer_edges=None):
     fy, fx = host_factors(scene, resolution)
     fields = longwave_host_fields(scene, resolution)
-    fields["longwave_clear_sky_surface_downward_flux"] = host_clear_sky_downward(
-        scene, resolution, float(full["longwave_run_spectral_resolution"]))
+    fields.update(host_clear_sky_fluxes(scene, resolution, float(full["longwave_run_spectral_resolution"])))
     c3d, cica, host = (coarsen_longwave_result(r, fy, fx) for r in (full, ica, two_stream))
     ny, nx = fields["total_cloud_fraction"].shape
     n = ny * nx

@@ -25,7 +25,7 @@ from surrogate3d.learn.recipe import parse_recipe
 from surrogate3d.learn.train import train_models
 from surrogate3d.pairs.coarsen import host_factors
 from surrogate3d.pairs.longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, longwave_halo_width
-from surrogate3d.pairs.longwave_pairs import coarsen_longwave_result, host_clear_sky_downward, longwave_host_fields
+from surrogate3d.pairs.longwave_pairs import coarsen_longwave_result, host_clear_sky_fluxes, longwave_host_fields
 from surrogate3d.runtime import load_coefficients
 
 from longwave_chain import HOST, build_longwave_chain
@@ -119,7 +119,7 @@ def test_runtime_computes_the_longwave_features_from_host_fields(chain):
     name = "broken_stratocumulus_00001"
     scene = read_scene(chain["archive"] / f"{name}.nc")
     fields = longwave_host_fields(scene, HOST)
-    fields["longwave_clear_sky_surface_downward_flux"] = host_clear_sky_downward(scene, HOST, 10000.0)
+    fields.update(host_clear_sky_fluxes(scene, HOST, 10000.0))
     fy, fx = host_factors(scene, HOST)
     host_fluxes = coarsen_longwave_result(select_longwave_result(scene, "longwave_two_stream"), fy, fx)
     fields.update({flux: host_fluxes[flux] for flux in LONGWAVE_TARGETS})

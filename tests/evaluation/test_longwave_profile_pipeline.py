@@ -24,7 +24,7 @@ from surrogate3d.learn.longwave_profile_model import LongwaveProfileCorrection, 
 from surrogate3d.learn.model_directory import load_training_run
 from surrogate3d.pairs.coarsen import block_mean, host_factors
 from surrogate3d.pairs.longwave_features import LONGWAVE_TARGETS
-from surrogate3d.pairs.longwave_pairs import coarsen_longwave_result, host_clear_sky_downward, longwave_host_fields
+from surrogate3d.pairs.longwave_pairs import coarsen_longwave_result, host_clear_sky_fluxes, longwave_host_fields
 from surrogate3d.pairs.longwave_profiles import LONGWAVE_PROFILE_VARIABLES, longwave_host_profiles
 from surrogate3d.runtime import load_coefficients
 from surrogate3d.scenes.model import layer_thickness
@@ -139,7 +139,7 @@ def test_exported_profile_model_reproduces_the_estimator_from_host_fields(chain)
     mine = pairs.isel(sample=np.flatnonzero(pairs["scene"].values == name))
     # Everything from the host's fields: column features and layer fields of its 4 x 4 columns.
     fields = longwave_host_fields(scene, HOST)
-    fields["longwave_clear_sky_surface_downward_flux"] = host_clear_sky_downward(scene, HOST, 10000.0)
+    fields.update(host_clear_sky_fluxes(scene, HOST, 10000.0))
     fy, fx = host_factors(scene, HOST)
     two = select_longwave_result(scene, "longwave_two_stream")
     fields.update({flux: value for flux, value in coarsen_longwave_result(two, fy, fx).items()

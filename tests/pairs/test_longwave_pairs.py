@@ -112,6 +112,7 @@ def test_features_of_a_single_cloud_layer_by_hand():
     fields = longwave_host_fields(constructed, HOST)
     zero = np.zeros((2, 2))
     fields["longwave_clear_sky_surface_downward_flux"] = np.full((2, 2), 290.0)
+    fields["longwave_clear_sky_toa_upward_flux"] = np.full((2, 2), 260.0)
     host = dict.fromkeys(LONGWAVE_TARGETS, zero)
     host["longwave_surface_downward_flux"] = np.array([[300.0, 290.0], [290.0, 290.0]])
     values = longwave_host_features(fields, host)
