@@ -334,16 +334,18 @@ def _longwave_stages(paths, settings, jobs, quiet, stages):
     return page
 
 
-def _skill_table(table, lines):
-    """Markdown lines of the held-out and left-out skill tables (headline units) of a metric table."""
+def _skill_table(table, lines, level="## ", note=()):
+    """Markdown lines of the skill table (headline units) of every evaluation set of a metric table.
+
+    Returns the rows of the table in the headline units.
+    """
     from .evaluation.metrics import HEADLINE_UNITS
 
     held = table[(table["breakdown"] == "all") & (table["units"] == HEADLINE_UNITS)]
     for name in dict.fromkeys(held["evaluation_set"]):
         part = held[held["evaluation_set"] == name]
         targets = list(dict.fromkeys(part["target"]))
-        lines.append(f"### {name}")
-        lines.append("")
+        lines += [f"{level}{name}", "", *note]
         lines.append("| predictor | " + " | ".join(targets) + " |")
         lines.append("|---|" + "---|" * len(targets))
         for predictor in dict.fromkeys(part["predictor"]):
@@ -374,30 +376,15 @@ def summarize(paths, page, longwave_page=None):
     """The summary tables (held-out skill of every model and baseline, shortwave and longwave) and the output paths."""
     import pandas as pd
 
-    from .evaluation.metrics import HEADLINE_UNITS
-
-    table = pd.read_csv(paths.report / "metrics.csv")
-    held = table[(table["breakdown"] == "all") & (table["units"] == HEADLINE_UNITS)]
-    sets = list(dict.fromkeys(held["evaluation_set"]))
     lines = ["# surrogate3d demo summary", ""]
-    for name in sets:
-        part = held[held["evaluation_set"] == name]
-        lines += [f"## {name}", "", "skill = 1 - RMSE(corrected) / RMSE(independent column) of the errors in W m-2 "
-                  "(the headline skill of the report, the model card and the README); RMSE in W m-2 in brackets", ""]
-        targets = list(dict.fromkeys(part["target"]))
-        lines.append("| predictor | " + " | ".join(targets) + " |")
-        lines.append("|---|" + "---|" * len(targets))
-        for predictor in dict.fromkeys(part["predictor"]):
-            rows = part[part["predictor"] == predictor].set_index("target")
-            cells = [f"{rows.loc[t, 'skill']:.2f} ({rows.loc[t, 'rmse']:.1f})" if t in rows.index else "-"
-                     for t in targets]
-            lines.append(f"| {predictor} | " + " | ".join(cells) + " |")
-        lines.append("")
+    held = _skill_table(pd.read_csv(paths.report / "metrics.csv"), lines, note=(
+        "skill = 1 - RMSE(corrected) / RMSE(independent column) of the errors in W m-2 (the headline skill of the "
+        "report, the model card and the README); RMSE in W m-2 in brackets", ""))
     _profile_table(paths.report / "profile_metrics.csv", lines)
     if longwave_page is not None:
         lines += ["## longwave", "", "skill = 1 - RMSE(corrected) / RMSE(independent column) of the longwave fields "
                   "in W m-2, the share of the independent column's RMSE removed; RMSE in W m-2 in brackets", ""]
-        _skill_table(pd.read_csv(longwave_page.parent / "metrics.csv"), lines)
+        _skill_table(pd.read_csv(longwave_page.parent / "metrics.csv"), lines, level="### ")
         _profile_table(longwave_page.parent / "profile_metrics.csv", lines, "### ")
     lines += ["## outputs", "",
               f"- archive (scenes and benchmark results): `{paths.archive}`",

@@ -26,6 +26,7 @@ from .family_transfer import LEFT_OUT
 from .html_page import render_page
 from .longwave_profile_skill import longwave_profile_panels
 from .predictions import NO_CORRECTION
+from .report_writer import write_analysis_tables
 from .tables import breakdown_pivot, to_html, to_markdown
 
 #: The flux the summary, the maps and the family figure show.
@@ -180,18 +181,7 @@ def _write_tables(evaluation, out_dir):
                        f"\n## {eval_set.label}: RMSE [W m-2]\n\n",
                        to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse"))]
         write_text_atomic(out_dir / f"breakdown_{breakdown}.md", "".join(md))
-    if evaluation.importance:
-        importance = pd.concat([t.assign(model=name) for name, t in evaluation.importance.items()], ignore_index=True)
-        write_text_atomic(out_dir / "importance.csv", importance.to_csv(index=False))
-    if evaluation.curve is not None:
-        write_text_atomic(out_dir / "learning_curve.csv",
-                          evaluation.curve.assign(model=evaluation.curve_model).to_csv(index=False))
-    if evaluation.family_runs is not None:
-        write_text_atomic(out_dir / "left_out_family_fits.csv", evaluation.family_runs.to_csv(index=False))
-    write_text_atomic(out_dir / "envelope.csv", evaluation.envelope.to_csv(index=False))
-    if evaluation.profile is not None:
-        write_text_atomic(out_dir / "profile_metrics.csv", evaluation.profile.table.to_csv(index=False))
-        write_text_atomic(out_dir / "profile_by_height.csv", evaluation.profile.by_height.to_csv(index=False))
+    write_analysis_tables(evaluation, out_dir)
 
 
 def _summary(evaluation):

@@ -245,6 +245,12 @@ def _write_tables(evaluation, out_dir):
                    f"\n## {eval_set.label}: RMSE [W m-2]\n\n",
                    to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse", "W m-2"))]
         write_text_atomic(out_dir / f"breakdown_{breakdown}.md", "".join(md))
+    write_analysis_tables(evaluation, out_dir)
+
+
+def write_analysis_tables(evaluation, out_dir):
+    """The CSV files of an evaluation besides its metric tables: importance, learning curve, left-out-family
+    fits, envelope and heating-rate tables (those the evaluation has); shared by the shortwave and longwave pages."""
     if evaluation.importance:
         importance = pd.concat([t.assign(model=name) for name, t in evaluation.importance.items()], ignore_index=True)
         write_text_atomic(out_dir / "importance.csv", importance.to_csv(index=False))
