@@ -23,10 +23,10 @@ from ..learn.pairs_table import scene_table, target_matrix
 from . import figures
 from .breakdown import LONGWAVE_BREAKDOWNS
 from .family_transfer import LEFT_OUT
+from .analysis_tables import write_analysis_tables
 from .html_page import render_page
 from .longwave_profile_skill import longwave_profile_panels
 from .predictions import NO_CORRECTION
-from .report_writer import write_analysis_tables
 from .tables import breakdown_pivot, to_html, to_markdown
 
 #: The flux the summary, the maps and the family figure show.

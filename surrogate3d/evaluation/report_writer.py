@@ -23,6 +23,7 @@ from .family_transfer import LEFT_OUT
 from .html_page import render_page
 from .metrics import HEADLINE_UNITS, error_metrics
 from .predictions import NO_CORRECTION
+from .analysis_tables import write_analysis_tables
 from .tables import breakdown_pivot, headline_table, to_html, to_markdown
 
 _SURFACE = "surface_downward_flux"
@@ -246,23 +247,6 @@ def _write_tables(evaluation, out_dir):
                    to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse", "W m-2"))]
         write_text_atomic(out_dir / f"breakdown_{breakdown}.md", "".join(md))
     write_analysis_tables(evaluation, out_dir)
-
-
-def write_analysis_tables(evaluation, out_dir):
-    """The CSV files of an evaluation besides its metric tables: importance, learning curve, left-out-family
-    fits, envelope and heating-rate tables (those the evaluation has); shared by the shortwave and longwave pages."""
-    if evaluation.importance:
-        importance = pd.concat([t.assign(model=name) for name, t in evaluation.importance.items()], ignore_index=True)
-        write_text_atomic(out_dir / "importance.csv", importance.to_csv(index=False))
-    if evaluation.curve is not None:
-        write_text_atomic(out_dir / "learning_curve.csv",
-                          evaluation.curve.assign(model=evaluation.curve_model).to_csv(index=False))
-    if evaluation.family_runs is not None:
-        write_text_atomic(out_dir / "left_out_family_fits.csv", evaluation.family_runs.to_csv(index=False))
-    write_text_atomic(out_dir / "envelope.csv", evaluation.envelope.to_csv(index=False))
-    if evaluation.profile is not None:
-        write_text_atomic(out_dir / "profile_metrics.csv", evaluation.profile.table.to_csv(index=False))
-        write_text_atomic(out_dir / "profile_by_height.csv", evaluation.profile.by_height.to_csv(index=False))
 
 
 def _summary(evaluation):
