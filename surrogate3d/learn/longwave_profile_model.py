@@ -11,14 +11,13 @@ profile sum to the column's ``longwave_atmosphere_net_absorption`` correction.
 """
 
 import numpy as np
-from sklearn.base import BaseEstimator
 
 from ..core.coefficient_format import LONGWAVE_PROFILE_TARGET
-from ..errors import ParameterError, ValidationError
+from ..errors import ValidationError
 from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
 from ..runtime.longwave_profile import LONGWAVE_LAYER_FIELDS, longwave_density_to_layers, longwave_layer_rows
 from .models import BoostedCorrection
-from .pairs_table import feature_matrix
+from .profile_model import LayerDensityModel
 
 #: The pair-table variable a longwave profile model learns [W m-2].
 LONGWAVE_LAYER_TARGET = "layer_net_absorption_target"
@@ -50,7 +49,7 @@ def longwave_layer_fields(pairs):
     return fields
 
 
-class LongwaveProfileCorrection(BaseEstimator):
+class LongwaveProfileCorrection(LayerDensityModel):
     """Gradient-boosted 3D correction of the longwave net absorption of every host layer.
 
     Rows are (host column, host layer) pairs with the column's longwave features followed
@@ -97,6 +96,14 @@ class LongwaveProfileCorrection(BaseEstimator):
     (60, 3)
     """
 
+    _layer_features = LONGWAVE_LAYER_FEATURES
+    _layer_rows = staticmethod(longwave_layer_rows)
+    _density_to_layers = staticmethod(longwave_density_to_layers)
+    _pair_layer_fields = staticmethod(longwave_layer_fields)
+    _pair_target = LONGWAVE_LAYER_TARGET
+    _target_name = LONGWAVE_PROFILE_TARGET
+    _label = "longwave profile model"
+
     def __init__(self, max_iter=200, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=50,
                  l2_regularization=0.0, random_state=0):
         self.max_iter = max_iter
@@ -112,46 +119,3 @@ class LongwaveProfileCorrection(BaseEstimator):
                                     l2_regularization=self.l2_regularization, random_state=self.random_state)
         boosted._check_parameters()
         return boosted
-
-    def fit(self, X, feature_names, fields, target):
-        """Fit on column features ``X`` (n_column, n_feature), their names, the layer fields
-        (:data:`LONGWAVE_LAYER_FIELDS` keys and ``surface_temperature``) and the net-absorption
-        correction of every layer ``target`` (n_column, n_layer) [W m-2]."""
-        boosted = self._boosted()
-        names = list(feature_names)
-        rows, valid = longwave_layer_rows(X, fields)
-        if len(names) + len(LONGWAVE_LAYER_FEATURES) != rows.shape[1]:
-            raise ParameterError(f"feature_names has {len(names)} names for "
-                                 f"{rows.shape[1] - len(LONGWAVE_LAYER_FEATURES)} feature columns")
-        thickness = np.asarray(fields["top"], dtype=np.float64) - np.asarray(fields["bottom"], dtype=np.float64)
-        density = (1000.0 * np.asarray(target, dtype=np.float64) / thickness).reshape(-1)
-        keep = valid & np.isfinite(density)
-        if not keep.any():
-            raise ValidationError("no layer with a finite target to fit the longwave profile correction on")
-        self.boosted_ = boosted.fit(rows[keep], density[keep], feature_names=names + list(LONGWAVE_LAYER_FEATURES))
-        self.feature_names_ = names
-        self.target_names_ = [LONGWAVE_PROFILE_TARGET]
-        self.n_features_in_ = len(names)
-        return self
-
-    def predict(self, X, fields):
-        """Net-absorption correction of every layer [W m-2], (n_column, n_layer); NaN for padding layers."""
-        if not hasattr(self, "boosted_"):
-            raise ValidationError("this LongwaveProfileCorrection is not fitted yet; call fit first")
-        X = np.asarray(X, dtype=np.float64)
-        if X.ndim != 2 or X.shape[1] != self.n_features_in_:
-            raise ParameterError(f"X must have shape (n_column, {self.n_features_in_}); got {X.shape}")
-        rows, valid = longwave_layer_rows(X, fields)
-        density = np.full(rows.shape[0], np.nan)
-        density[valid] = self.boosted_.predict(rows[valid])
-        return longwave_density_to_layers(density, fields)
-
-    def fit_pairs(self, pairs, features):
-        """Fit on a longwave pair table's columns (features ``features``) and per-layer variables."""
-        return self.fit(feature_matrix(pairs, features, "the longwave profile model"), features,
-                        longwave_layer_fields(pairs), pairs[LONGWAVE_LAYER_TARGET].values)
-
-    def predict_pairs(self, pairs):
-        """:meth:`predict` on a longwave pair table."""
-        return self.predict(feature_matrix(pairs, self.feature_names_, "the longwave profile model"),
-                            longwave_layer_fields(pairs))

@@ -45,7 +45,67 @@ def layer_fields(pairs):
     return fields
 
 
-class ProfileCorrection(BaseEstimator):
+class LayerDensityModel(BaseEstimator):
+    """What the shortwave and longwave heating-rate models share: a boosted ensemble on
+    (column, layer) rows learning the per-km density of a layer target.
+
+    A subclass names its layer features, layer rows, density-to-layer conversion, layer
+    fields of a pair table, target variable and target name as class attributes, and
+    builds its ensemble in ``_boosted``.
+    """
+
+    _layer_features = None
+    _layer_rows = None
+    _density_to_layers = None
+    _pair_layer_fields = None
+    _pair_target = None
+    _target_name = None
+    _label = None
+
+    def fit(self, X, feature_names, fields, target):
+        """Fit on column features ``X`` (n_column, n_feature), their names, the layer fields
+        and the correction of every layer ``target`` (n_column, n_layer) (see the subclass)."""
+        boosted = self._boosted()
+        names = list(feature_names)
+        rows, valid = self._layer_rows(X, fields)
+        if len(names) + len(self._layer_features) != rows.shape[1]:
+            raise ParameterError(f"feature_names has {len(names)} names for "
+                                 f"{rows.shape[1] - len(self._layer_features)} feature columns")
+        thickness = np.asarray(fields["top"], dtype=np.float64) - np.asarray(fields["bottom"], dtype=np.float64)
+        density = (1000.0 * np.asarray(target, dtype=np.float64) / thickness).reshape(-1)
+        keep = valid & np.isfinite(density)
+        if not keep.any():
+            raise ValidationError(f"no layer with a finite target to fit the {self._label} on")
+        self.boosted_ = boosted.fit(rows[keep], density[keep], feature_names=names + list(self._layer_features))
+        self.feature_names_ = names
+        self.target_names_ = [self._target_name]
+        self.n_features_in_ = len(names)
+        return self
+
+    def predict(self, X, fields):
+        """Correction of every layer, (n_column, n_layer); NaN for padding layers (units: see the subclass)."""
+        if not hasattr(self, "boosted_"):
+            raise ValidationError(f"this {type(self).__name__} is not fitted yet; call fit first")
+        X = np.asarray(X, dtype=np.float64)
+        if X.ndim != 2 or X.shape[1] != self.n_features_in_:
+            raise ParameterError(f"X must have shape (n_column, {self.n_features_in_}); got {X.shape}")
+        rows, valid = self._layer_rows(X, fields)
+        density = np.full(rows.shape[0], np.nan)
+        density[valid] = self.boosted_.predict(rows[valid])
+        return self._density_to_layers(density, fields)
+
+    def fit_pairs(self, pairs, features):
+        """Fit on a pair table's columns (features ``features``) and per-layer variables."""
+        return self.fit(feature_matrix(pairs, features, f"the {self._label}"), features,
+                        self._pair_layer_fields(pairs), pairs[self._pair_target].values)
+
+    def predict_pairs(self, pairs):
+        """:meth:`predict` on a pair table."""
+        return self.predict(feature_matrix(pairs, self.feature_names_, f"the {self._label}"),
+                            self._pair_layer_fields(pairs))
+
+
+class ProfileCorrection(LayerDensityModel):
     """Gradient-boosted 3D correction of the absorption of every host layer.
 
     Rows are (host column, host layer) pairs with the column's features followed by
@@ -94,6 +154,14 @@ class ProfileCorrection(BaseEstimator):
     (50, 3)
     """
 
+    _layer_features = LAYER_FEATURES
+    _layer_rows = staticmethod(layer_rows)
+    _density_to_layers = staticmethod(density_to_layers)
+    _pair_layer_fields = staticmethod(layer_fields)
+    _pair_target = "layer_absorption_target"
+    _target_name = PROFILE_TARGET
+    _label = "profile model"
+
     def __init__(self, max_iter=200, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=50,
                  l2_regularization=0.0, scale_floor=1e-4, random_state=0):
         self.max_iter = max_iter
@@ -113,45 +181,3 @@ class ProfileCorrection(BaseEstimator):
                                                         "scale_floor": float(self.scale_floor)}])
         boosted._check_parameters()
         return boosted
-
-    def fit(self, X, feature_names, fields, target):
-        """Fit on column features ``X`` (n_column, n_feature), their names, the layer fields
-        (:data:`LAYER_FIELDS` keys and ``cos_solar_zenith``) and the absorption correction
-        of every layer ``target`` (n_column, n_layer) [1]."""
-        boosted = self._boosted()
-        names = list(feature_names)
-        rows, valid = layer_rows(X, fields)
-        if len(names) + len(LAYER_FEATURES) != rows.shape[1]:
-            raise ParameterError(f"feature_names has {len(names)} names for {rows.shape[1] - len(LAYER_FEATURES)} "
-                                 "feature columns")
-        thickness = np.asarray(fields["top"], dtype=np.float64) - np.asarray(fields["bottom"], dtype=np.float64)
-        density = (1000.0 * np.asarray(target, dtype=np.float64) / thickness).reshape(-1)
-        keep = valid & np.isfinite(density)
-        if not keep.any():
-            raise ValidationError("no layer with a finite target to fit the profile correction on")
-        self.boosted_ = boosted.fit(rows[keep], density[keep], feature_names=names + list(LAYER_FEATURES))
-        self.feature_names_ = names
-        self.target_names_ = [PROFILE_TARGET]
-        self.n_features_in_ = len(names)
-        return self
-
-    def predict(self, X, fields):
-        """Absorption correction of every layer [1], (n_column, n_layer); NaN for padding layers."""
-        if not hasattr(self, "boosted_"):
-            raise ValidationError("this ProfileCorrection is not fitted yet; call fit first")
-        X = np.asarray(X, dtype=np.float64)
-        if X.ndim != 2 or X.shape[1] != self.n_features_in_:
-            raise ParameterError(f"X must have shape (n_column, {self.n_features_in_}); got {X.shape}")
-        rows, valid = layer_rows(X, fields)
-        density = np.full(rows.shape[0], np.nan)
-        density[valid] = self.boosted_.predict(rows[valid])
-        return density_to_layers(density, fields)
-
-    def fit_pairs(self, pairs, features):
-        """Fit on a pair table's columns (features ``features``) and per-layer variables."""
-        return self.fit(feature_matrix(pairs, features, "the profile model"), features, layer_fields(pairs),
-                        pairs["layer_absorption_target"].values)
-
-    def predict_pairs(self, pairs):
-        """:meth:`predict` on a pair table."""
-        return self.predict(feature_matrix(pairs, self.feature_names_, "the profile model"), layer_fields(pairs))

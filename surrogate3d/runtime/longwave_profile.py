@@ -16,7 +16,7 @@ import numpy as np
 
 from ..errors import ParameterError
 from ..pairs.longwave_layer_features import LONGWAVE_LAYER_INPUTS, longwave_layer_features
-from .profile import match_column_integral
+from .profile import check_layer_shapes, match_column_integral, stack_layer_rows
 
 #: The layer fields a longwave profile model reads (arrays (n_column, n_layer)) and the
 #: pair-table variables holding them; with them ``surface_temperature`` (n_column,) [K].
@@ -52,22 +52,11 @@ def check_longwave_layer_fields(fields, n_column=None):
                              f"{list(LONGWAVE_LAYER_FIELDS)} and surface_temperature")
     out = {key: np.asarray(fields[key], dtype=np.float64) for key in LONGWAVE_LAYER_FIELDS}
     out["surface_temperature"] = np.asarray(fields["surface_temperature"], dtype=np.float64).reshape(-1)
-    shape = out["bottom"].shape
-    if len(shape) != 2 or (n_column is not None and shape[0] != n_column):
-        raise ParameterError(f"layer field bottom must have shape (n_column, n_layer) with n_column = {n_column}; "
-                             f"got {shape}")
-    for key in LONGWAVE_LAYER_FIELDS:
-        if out[key].shape != shape:
-            raise ParameterError(f"layer field {key} has shape {out[key].shape}; bottom has {shape}")
-    if out["surface_temperature"].shape != (shape[0],):
-        raise ParameterError(f"surface_temperature must have one value per column ({shape[0]}); got "
+    check_layer_shapes(out, LONGWAVE_LAYER_FIELDS, n_column)
+    n = out["bottom"].shape[0]
+    if out["surface_temperature"].shape != (n,):
+        raise ParameterError(f"surface_temperature must have one value per column ({n}); got "
                              f"{out['surface_temperature'].shape}")
-    thickness = out["top"] - out["bottom"]
-    bad = ~(thickness > 0.0) & np.isfinite(out["bottom"])
-    if bad.any():
-        i, k = np.argwhere(bad)[0]
-        raise ParameterError(f"layer field top must exceed bottom in every layer; column {i}, layer {k}: bottom "
-                             f"{out['bottom'][i, k]!r}, top {out['top'][i, k]!r}")
     return out
 
 
@@ -90,9 +79,7 @@ def longwave_layer_rows(X, fields):
     X = np.asarray(X, dtype=np.float64)
     fields = check_longwave_layer_fields(fields, X.shape[0])
     local = longwave_layer_features(*(fields[key] for key in LONGWAVE_LAYER_FIELDS), fields["surface_temperature"])
-    n, n_layer = local.shape[:2]
-    rows = np.concatenate([np.broadcast_to(X[:, None, :], (n, n_layer, X.shape[1])), local], axis=2)
-    return rows.reshape(n * n_layer, -1), np.isfinite(local[..., 0]).reshape(-1)
+    return stack_layer_rows(X, local)
 
 
 def longwave_density_to_layers(density, fields):

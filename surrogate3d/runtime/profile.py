@@ -42,20 +42,27 @@ def check_layer_fields(fields, n_column=None):
                              "cos_solar_zenith")
     out = {key: np.asarray(fields[key], dtype=np.float64) for key in LAYER_FIELDS}
     out["cos_solar_zenith"] = np.asarray(fields["cos_solar_zenith"], dtype=np.float64).reshape(-1)
-    shape = out["bottom"].shape
+    check_layer_shapes(out, LAYER_FIELDS, n_column)
+    return out
+
+
+def check_layer_shapes(fields, keys, n_column=None):
+    """ParameterError unless the layer fields ``keys`` all have bottom's shape (n_column, n_layer) and
+    ``top > bottom`` in every layer a column has (not NaN padding); shared by the shortwave and
+    longwave heating-rate models."""
+    shape = fields["bottom"].shape
     if len(shape) != 2 or (n_column is not None and shape[0] != n_column):
         raise ParameterError(f"layer field bottom must have shape (n_column, n_layer) with n_column = {n_column}; "
                              f"got {shape}")
-    for key in LAYER_FIELDS:
-        if out[key].shape != shape:
-            raise ParameterError(f"layer field {key} has shape {out[key].shape}; bottom has {shape}")
-    thickness = out["top"] - out["bottom"]
-    bad = ~(thickness > 0.0) & np.isfinite(out["bottom"])
+    for key in keys:
+        if fields[key].shape != shape:
+            raise ParameterError(f"layer field {key} has shape {fields[key].shape}; bottom has {shape}")
+    thickness = fields["top"] - fields["bottom"]
+    bad = ~(thickness > 0.0) & np.isfinite(fields["bottom"])
     if bad.any():
         i, k = np.argwhere(bad)[0]
         raise ParameterError(f"layer field top must exceed bottom in every layer; column {i}, layer {k}: bottom "
-                             f"{out['bottom'][i, k]!r}, top {out['top'][i, k]!r}")
-    return out
+                             f"{fields['bottom'][i, k]!r}, top {fields['top'][i, k]!r}")
 
 
 def layer_rows(X, fields):
@@ -72,6 +79,13 @@ def layer_rows(X, fields):
     local = layer_features(fields["bottom"], fields["top"], fields["optical_depth"], fields["cloud_fraction"],
                            fields["independent_column_absorption"], fields["cos_solar_zenith"],
                            fields["slant_optical_depth_above"])
+    return stack_layer_rows(X, local)
+
+
+def stack_layer_rows(X, local):
+    """Rows (n_column * n_layer, n_feature + n_local) of the column features ``X`` (n_column, n_feature)
+    beside the layer features ``local`` (n_column, n_layer, n_local), and which rows are layers a
+    column has (finite layer features)."""
     n, n_layer = local.shape[:2]
     rows = np.concatenate([np.broadcast_to(X[:, None, :], (n, n_layer, X.shape[1])), local], axis=2)
     return rows.reshape(n * n_layer, -1), np.isfinite(local[..., 0]).reshape(-1)
