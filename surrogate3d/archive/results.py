@@ -10,7 +10,8 @@ import numpy as np
 import xarray as xr
 
 from ..core.data_model import COLUMN_FLUXES, OPTIONAL_COLUMN_FLUXES, SOLVERS
-from ..core.run_result import CELL_FIELDS, RUN_METADATA, domain_stderr_name, per_band_name, run_key, stderr_name
+from ..core.run_result import (CELL_FIELDS, OPTIONAL_RUN_METADATA, RUN_METADATA, domain_stderr_name, per_band_name,
+                               run_key, stderr_name)
 from ..errors import FormatError, ValidationError
 from .longwave_results import strip_longwave_results
 
@@ -21,7 +22,7 @@ SUN_TOLERANCE_DEG = 1e-6
 def _result_variables(scene):
     fluxes = set(COLUMN_FLUXES) | set(OPTIONAL_COLUMN_FLUXES)
     names = fluxes | {stderr_name(f) for f in fluxes} | {domain_stderr_name(f) for f in fluxes} | set(CELL_FIELDS)
-    names |= {per_band_name(f) for f in fluxes} | set(RUN_METADATA)
+    names |= {per_band_name(f) for f in fluxes} | set(RUN_METADATA) | set(OPTIONAL_RUN_METADATA)
     names |= {"result_complete", "incident_flux"}
     return [n for n in scene.data_vars if n in names]
 

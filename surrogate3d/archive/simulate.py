@@ -36,7 +36,7 @@ from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
 from ..core.data_model import LONGWAVE_SOLVERS, SOLVERS, SPECTRA
 from ..core.validation import check_bool, check_integer, check_number, check_option
 from ..errors import OutputError, ParameterError, Surrogate3DError
-from ..solvers.montecarlo import check_monte_carlo_options, solve_monte_carlo
+from ..solvers.montecarlo import check_monte_carlo_options, default_batch_size, solve_monte_carlo
 from ..scenes.longwave_fields import check_longwave_scene
 from ..scenes.longwave_optics import DEFAULT_RESOLUTION
 from ..solvers.sun import check_sun
@@ -91,6 +91,7 @@ class RunOptions:
 
     photons: int = SIMULATE_PHOTONS
     batch_size: int = None
+    batches: int = None
     rays_per_column: int = 1
     per_band: bool = False
     solar_constant: float = SOLAR_CONSTANT
@@ -124,10 +125,13 @@ def check_run_options(photons, n_jobs, solver_options):
                              f"{sorted(set(RunOptions.__dataclass_fields__) - {'extra'}) + _PASSED_THROUGH}")
     options = RunOptions(photons=photons, extra=solver_options, **known)
     checked = check_monte_carlo_options(photons=options.photons, batch_size=options.batch_size,
-                                        rays_per_column=options.rays_per_column, threads=options.threads,
-                                        solar_constant=options.solar_constant)
+                                        batches=options.batches, rays_per_column=options.rays_per_column,
+                                        threads=options.threads, solar_constant=options.solar_constant)
     for name, value in checked.items():
         setattr(options, name, value)
+    if options.batches is not None:
+        # Shortwave and longwave runs alike: a batch count is a batch size for the photons of a run.
+        options.batch_size = default_batch_size(options.photons, options.batches)
     options.per_band = check_bool("per_band", options.per_band)
     options.longwave_resolution = check_number("longwave_resolution", options.longwave_resolution, 0.0, None,
                                                low_open=True)
@@ -471,12 +475,13 @@ def simulate_archive(archive_dir, zeniths=None, azimuths=(0.0,), *, solvers=SOLV
     quiet : bool
         No progress bar.
     **solver_options
-        ``batch_size``, ``rays_per_column``, ``per_band``, ``solar_constant``, ``threads``
-        (per worker with ``n_jobs > 1`` or a scheduler, default 1 there),
+        ``batch_size`` or ``batches`` (photons per batch, or batches per run: 200 give
+        standard errors precise to about 5 %), ``rays_per_column``, ``per_band``,
+        ``solar_constant``, ``threads`` (per worker with ``n_jobs > 1`` or a scheduler, default 1 there),
         ``longwave_resolution`` (widest spectral interval of the longwave gas absorption
         [m-1], default 1000 = 10 cm-1) and any further keyword of
-        :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.  ``batch_size`` and
-        ``threads`` apply to the longwave Monte Carlo too; the others are shortwave only.
+        :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.  ``batch_size``,
+        ``batches`` and ``threads`` apply to the longwave Monte Carlo too; the others are shortwave only.
 
     Returns
     -------

@@ -6,7 +6,7 @@ from ..core.data_model import SOLVERS, SPECTRA
 
 #: Parameters of simulate_archive as the options that set them, for messages.
 FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_size": "--batch-size",
-         "rays_per_column": "--rays-per-column", "threads": "--threads", "solar_constant": "--solar-constant",
+         "batches": "--batches", "rays_per_column": "--rays-per-column", "threads": "--threads", "solar_constant": "--solar-constant",
          "solar_zenith_angle": "--zenith", "solar_beam_azimuth": "--azimuth", "scheduler": "--scheduler",
          "solvers": "--solvers", "spectrum": "--spectrum", "longwave_resolution": "--longwave-resolution"}
 
@@ -38,7 +38,11 @@ def register(sub):
     p.add_argument("--solvers", nargs="+", choices=SOLVERS, default=list(SOLVERS), help="solver kinds to run")
     p.add_argument("--jobs", type=int, default=1, help="local worker processes (default: 1)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask distributed scheduler at ADDRESS")
-    p.add_argument("--batch-size", type=int, help="photons per batch (default: automatic)")
+    batching = p.add_mutually_exclusive_group()
+    batching.add_argument("--batch-size", type=int, help="photons per batch (default: automatic, at least 32 batches)")
+    batching.add_argument("--batches", type=int,
+                          help="batches per run instead: standard errors from N batches are precise to about "
+                               "1/sqrt(2(N-1)), 5 %% for 200, at about 6 CPU ms per extra batch per 16 000 columns")
     p.add_argument("--rays-per-column", type=int, default=1,
                    help="direct-beam strata per column side in every photon batch, two mirrored rays in each (default: 1)")
     p.add_argument("--threads", type=int,
@@ -74,7 +78,7 @@ def run(args):
         args.archive_dir, args.zenith, "random" if args.random_azimuth else args.azimuth, solvers=args.solvers,
         spectrum=args.spectrum, photons=args.photons, seed=args.seed,
         n_jobs=args.jobs, scheduler=args.scheduler, overwrite=args.overwrite, quiet=args.quiet,
-        batch_size=args.batch_size, rays_per_column=args.rays_per_column, threads=args.threads,
+        batch_size=args.batch_size, batches=args.batches, rays_per_column=args.rays_per_column, threads=args.threads,
         per_band=args.per_band, solar_constant=args.solar_constant,
         longwave_resolution=DEFAULT_RESOLUTION if args.longwave_resolution is None
         else args.longwave_resolution * PER_CM)

@@ -30,6 +30,11 @@ RUN_METADATA = {
     "run_solar_constant": (np.float64, "W m-2", "solar constant used for the W m-2 fields"),
     "run_package_version": (object, "", "surrogate3d version that computed the result"),
 }
+#: Metadata a run result may leave out (its default then): name -> (dtype, units, long_name, default).
+OPTIONAL_RUN_METADATA = {
+    "run_batches": (np.int64, "1", "independent batches the standard errors come from (0: no standard errors "
+                                   "from batches)", 0),
+}
 
 
 def stderr_name(flux):
@@ -66,7 +71,7 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
     solar_beam_azimuth : float
         Horizontal direction of travel of the direct beam [degree], counterclockwise from +x.
     metadata : dict
-        Keys of :data:`RUN_METADATA`.
+        Keys of :data:`RUN_METADATA`, optionally of :data:`OPTIONAL_RUN_METADATA`.
     per_band : dict of str -> ndarray (nband, ny, nx), optional
     heating_rate : ndarray (nz, ny, nx), optional
         [K day-1].
@@ -104,8 +109,9 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
                                         "incident flux in the band"})
         if band is not None:
             ds = ds.assign_coords(band=list(band))
-    for key, (dtype, units, long_name) in RUN_METADATA.items():
-        value = metadata[key]
+    specs = {**{key: (*spec, None) for key, spec in RUN_METADATA.items()}, **OPTIONAL_RUN_METADATA}
+    for key, (dtype, units, long_name, default) in specs.items():
+        value = metadata[key] if key in metadata or default is None else default
         ds[key] = ((), np.array(value, dtype=dtype), {"units": units, "long_name": long_name} if units
                    else {"long_name": long_name})
     ds.attrs.update(solver=solver, solar_zenith_angle=float(solar_zenith_angle),

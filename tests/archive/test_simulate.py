@@ -48,6 +48,14 @@ def test_runs_every_scene_sun_and_solver(archive):
     assert again["computed"] == 0 and again["skipped"] == 12
 
 
+def test_batches_option_sets_the_batches_every_stored_run_records(archive):
+    assert main(["simulate", str(archive), "--zenith", "30", "--photons", "2000", "--batches", "8",
+                 "--solvers", "full_3d", "two_stream", "--quiet"]) == 0
+    scene = read_scene(archive / "test_00001.nc")
+    assert int(select_result(scene, "full_3d", 30.0, 0.0).run_batches) == 8
+    assert int(select_result(scene, "two_stream", 30.0, 0.0).run_batches) == 0
+
+
 def test_killed_run_continues_where_it_stopped(archive, monkeypatch):
     calls = []
     real = simulate_module.run_task

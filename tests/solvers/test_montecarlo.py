@@ -252,3 +252,28 @@ def test_independent_column_shadow_under_cloud_and_3d_shadow_displaced():
     assert abs(x[lo] - centre) <= 200.0
     shift = (x[shifted] - x[lo]) % (x.size * 100.0)  # periodic domain
     assert abs(shift - 700.0 * math.tan(math.radians(60.0))) <= 200.0
+
+
+@pytest.mark.parametrize("batches", [32, 200])
+def test_standard_errors_are_as_precise_as_their_batch_count_says(batches):
+    # The sample variance of n normal batch means follows a chi-square law with n - 1
+    # degrees of freedom, so a standard error is uncertain by about 1 / sqrt(2 (n - 1))
+    # (from memory; any statistics text): two independent runs then differ by sqrt(2) of
+    # that in ln(se).  Many photons per column and batch keep the batch means near normal.
+    scene = layer_scene(4.0, ssa=0.99, g=0.85, albedo=0.2, n=8)
+    se = [solve_monte_carlo(scene, 30.0, photons=batches * 1500, batches=batches, seed=seed)
+          ["surface_downward_diffuse_flux_standard_error"].values.ravel() for seed in (3, 4)]
+    measured = float(np.std(np.log(se[0] / se[1])) / math.sqrt(2.0))
+    expected = 1.0 / math.sqrt(2.0 * (batches - 1))
+    # 64 columns estimate the spread to about 1 / sqrt(128) = 9 %, relative.
+    assert measured == pytest.approx(expected, rel=0.3)
+
+
+def test_batches_and_batch_size_exclude_each_other_and_runs_record_their_batches():
+    scene = layer_scene(1.0)
+    out = solve_monte_carlo(scene, 30.0, photons=3000, batches=7, seed=1)
+    assert int(out.run_batches) == 7 and int(out.run_photons) == 3003
+    with pytest.raises(ParameterError, match="batch_size or batches"):
+        solve_monte_carlo(scene, 30.0, photons=3000, batches=7, batch_size=100)
+    with pytest.raises(ParameterError, match="batches must be an integer >= 2"):
+        solve_monte_carlo(scene, 30.0, photons=3000, batches=1)
