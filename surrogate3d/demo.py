@@ -17,6 +17,7 @@ from pathlib import Path
 
 from ._atomic import write_text_atomic
 from ._outputs import staged_directory
+from .core.data_model import LONGWAVE_PAIRS_FORMAT_VERSION, PAIRS_FORMAT_VERSION
 from .core.validation import check_integer
 from .errors import Surrogate3DError
 
@@ -139,7 +140,12 @@ def _warm_up_compiled_kernels():
     solve_monte_carlo(scene, 30.0, photons=200, threads=1, independent_columns=True)
 
 
-def _pairs_up_to_date(pairs, fingerprint, feature_recipe):
+def _pairs_up_to_date(pairs, fingerprint, feature_recipe, format_version, resolutions):
+    """Whether the stored pairs table is what building it again would give: the same
+    archive, feature recipe, host resolutions and table format (a table written by an
+    older format lacks variables that later stages read)."""
+    import numpy as np
+
     from .core.netcdf import open_dataset
 
     if not pairs.is_file():
@@ -148,7 +154,15 @@ def _pairs_up_to_date(pairs, fingerprint, feature_recipe):
         attrs = open_dataset(pairs).attrs
     except Surrogate3DError:
         return False
-    return attrs.get("archive_fingerprint") == fingerprint and attrs.get("feature_recipe") == feature_recipe.to_json()
+    stored = attrs.get("host_resolutions", [])
+    try:
+        # Shortwave tables store the resolutions as numbers, longwave ones as JSON text.
+        stored = np.atleast_1d(np.asarray(json.loads(stored) if isinstance(stored, str) else stored, dtype=float))
+    except (TypeError, ValueError):
+        return False
+    return (attrs.get("archive_fingerprint") == fingerprint and attrs.get("feature_recipe") == feature_recipe.to_json()
+            and str(attrs.get("format_version")) == format_version
+            and stored.shape == (len(resolutions),) and np.allclose(stored, resolutions, rtol=0.0, atol=1e-9))
 
 
 def _training_up_to_date(models, pairs, recipe):
@@ -216,7 +230,8 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     stages.begin(3, "pairs", f"training pairs at host resolution {', '.join(f'{r:g}' for r in resolutions)} m")
     from .pairs.build import archive_fingerprint
 
-    if _pairs_up_to_date(paths.pairs, archive_fingerprint(paths.archive), settings["feature_recipe"]):
+    if _pairs_up_to_date(paths.pairs, archive_fingerprint(paths.archive), settings["feature_recipe"],
+                         PAIRS_FORMAT_VERSION, resolutions):
         stages.end(f"reused {paths.pairs}")
     else:
         from .core.netcdf import write_dataset
@@ -299,7 +314,8 @@ def _longwave_stages(paths, settings, jobs, quiet, stages):
     pairs, models, report, export = (paths.longwave(n) for n in ("pairs.nc", "models", "report", "export"))
     recipe = paths.longwave("recipe.toml")
     steps = [f"{done['computed']} runs computed, {done['skipped']} reused"]
-    if _pairs_up_to_date(pairs, longwave_fingerprint(paths.archive), LongwaveFeatureRecipe()):
+    if _pairs_up_to_date(pairs, longwave_fingerprint(paths.archive), LongwaveFeatureRecipe(),
+                         LONGWAVE_PAIRS_FORMAT_VERSION, lw["host_resolutions"]):
         steps.append("pairs reused")
     else:
         write_dataset(build_longwave_pairs(paths.archive, lw["host_resolutions"], quiet=quiet), pairs)

@@ -61,3 +61,26 @@ def test_second_run_reuses_finished_work(demo_dir, capsys):
 def test_bad_jobs_option_is_one_line_error(tmp_path, capsys):
     assert main(["demo", "--out", str(tmp_path), "--jobs", "0", "--quick"]) == 1
     assert capsys.readouterr().err.strip().count("\n") == 0
+
+
+def test_pairs_of_another_format_or_resolution_are_rebuilt(tmp_path):
+    import xarray as xr
+
+    from surrogate3d.core.data_model import PAIRS_FORMAT_VERSION
+    from surrogate3d.core.netcdf import write_dataset
+    from surrogate3d.demo import _pairs_up_to_date
+    from surrogate3d.pairs.recipe import default_recipe
+
+    recipe = default_recipe()
+    path = tmp_path / "pairs.nc"
+
+    def stored(version, resolutions):  # written as numbers (shortwave) or JSON text (longwave)
+        write_dataset(xr.Dataset(attrs={"archive_fingerprint": "abc", "feature_recipe": recipe.to_json(),
+                                        "format_version": version, "host_resolutions": resolutions}), path)
+        return _pairs_up_to_date(path, "abc", recipe, PAIRS_FORMAT_VERSION, [1000.0, 2000.0])
+
+    assert stored(PAIRS_FORMAT_VERSION, [1000.0, 2000.0])
+    assert not stored("0.9", [1000.0, 2000.0])
+    assert not stored(PAIRS_FORMAT_VERSION, [1000.0])
+    assert stored(PAIRS_FORMAT_VERSION, "[1000.0, 2000.0]") and not stored(PAIRS_FORMAT_VERSION, "not json")
+    assert not _pairs_up_to_date(tmp_path / "missing.nc", "abc", recipe, PAIRS_FORMAT_VERSION, [1000.0])
