@@ -31,6 +31,11 @@ LONGWAVE_RUN_METADATA = {
     "longwave_run_spectral_resolution": (np.float64, "m-1", "widest spectral interval of the gas absorption"),
     "longwave_run_package_version": (object, "", "surrogate3d version that computed the result"),
 }
+#: Metadata a longwave run result may leave out (its default then): name -> (dtype, units, long_name, default).
+LONGWAVE_OPTIONAL_RUN_METADATA = {
+    "longwave_run_batches": (np.int64, "1", "independent batches the standard errors come from (0: no standard "
+                                            "errors from batches)", 0),
+}
 
 
 def longwave_stderr_name(name):
@@ -50,7 +55,7 @@ def longwave_result_variables():
         names += [name, longwave_stderr_name(name), longwave_domain_stderr_name(name)]
     for name in LONGWAVE_CELL_FIELDS:
         names += [name, longwave_stderr_name(name)]
-    return names + list(LONGWAVE_RUN_METADATA)
+    return names + list(LONGWAVE_RUN_METADATA) + list(LONGWAVE_OPTIONAL_RUN_METADATA)
 
 
 def is_longwave_result(result):
@@ -75,7 +80,7 @@ def make_longwave_result(fluxes, standard_errors, domain_standard_errors, net_ab
     solver : str
         One of :data:`~surrogate3d.core.data_model.LONGWAVE_SOLVERS`.
     metadata : dict
-        Keys of :data:`LONGWAVE_RUN_METADATA`.
+        Keys of :data:`LONGWAVE_RUN_METADATA`, optionally of :data:`LONGWAVE_OPTIONAL_RUN_METADATA`.
     net_absorption_standard_error : ndarray (nz, ny, nx), optional
         [W m-2]; default zeros.
     heating_rate, heating_rate_standard_error : ndarray (nz, ny, nx), optional
@@ -126,8 +131,10 @@ def make_longwave_result(fluxes, standard_errors, domain_standard_errors, net_ab
         ds[longwave_stderr_name(name)] = (("z", "y", "x"),
                                           np.zeros_like(value) if error is None else np.asarray(error, np.float64),
                                           {"units": units, "long_name": "Monte Carlo standard error of " + name})
-    for key, (dtype, units, long_name) in LONGWAVE_RUN_METADATA.items():
-        ds[key] = ((), np.array(metadata[key], dtype=dtype),
+    specs = {**{key: (*spec, None) for key, spec in LONGWAVE_RUN_METADATA.items()}, **LONGWAVE_OPTIONAL_RUN_METADATA}
+    for key, (dtype, units, long_name, default) in specs.items():
+        value = metadata[key] if key in metadata or default is None else default
+        ds[key] = ((), np.array(value, dtype=dtype),
                    {"units": units, "long_name": long_name} if units else {"long_name": long_name})
     ds.attrs.update(solver=solver)
     return ds

@@ -94,8 +94,8 @@ def solve_longwave_scene(scene, solver, *, photons=MONTE_CARLO_PHOTONS, seed=0, 
         {k: out[v + "_domain_mean_se"] for k, v in names.items()}, out["cell_net_absorption"], solver=solver,
         net_absorption_standard_error=out["cell_net_absorption_se"], heating_rate=out["heating_rate"],
         heating_rate_standard_error=out["heating_rate_se"],
-        metadata=_metadata(out["photons"], out["seed"], out["scattering_events"], time.perf_counter() - started,
-                           resolution))
+        metadata={**_metadata(out["photons"], out["seed"], out["scattering_events"], time.perf_counter() - started,
+                              resolution), "longwave_run_batches": out["batch_count"]})
 
 
 def _metadata(photons, seed, events, wall_time, resolution):

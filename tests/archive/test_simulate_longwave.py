@@ -77,7 +77,8 @@ def test_longwave_then_both_store_every_kind_once_and_resume(archive):
         result = select_longwave_result(stored, "longwave_full_3d")
         assert result["longwave_surface_downward_flux"].attrs["units"] == "W m-2"
         assert result["longwave_heating_rate"].dims == ("z", "y", "x")
-        assert int(result["longwave_run_photons"]) >= 2000
+        assert int(result["longwave_run_photons"]) >= 2000 and int(result["longwave_run_batches"]) >= 2
+        assert int(select_longwave_result(stored, "longwave_two_stream")["longwave_run_batches"]) == 0
         assert float(result["longwave_run_spectral_resolution"]) == RESOLUTION
         two_stream = select_longwave_result(stored, "longwave_two_stream")
         assert int(two_stream["longwave_run_photons"]) == 0
