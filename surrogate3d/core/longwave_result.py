@@ -15,6 +15,7 @@ import xarray as xr
 
 from ..errors import ValidationError
 from .data_model import LONGWAVE_COLUMN_FLUXES, LONGWAVE_SOLVERS
+from .run_result import add_run_metadata
 from .validation import check_option
 
 #: Per-cell fields: name -> (units, long_name); the heating rate is optional.
@@ -131,10 +132,6 @@ def make_longwave_result(fluxes, standard_errors, domain_standard_errors, net_ab
         ds[longwave_stderr_name(name)] = (("z", "y", "x"),
                                           np.zeros_like(value) if error is None else np.asarray(error, np.float64),
                                           {"units": units, "long_name": "Monte Carlo standard error of " + name})
-    specs = {**{key: (*spec, None) for key, spec in LONGWAVE_RUN_METADATA.items()}, **LONGWAVE_OPTIONAL_RUN_METADATA}
-    for key, (dtype, units, long_name, default) in specs.items():
-        value = metadata[key] if key in metadata or default is None else default
-        ds[key] = ((), np.array(value, dtype=dtype),
-                   {"units": units, "long_name": long_name} if units else {"long_name": long_name})
+    add_run_metadata(ds, metadata, LONGWAVE_RUN_METADATA, LONGWAVE_OPTIONAL_RUN_METADATA)
     ds.attrs.update(solver=solver)
     return ds

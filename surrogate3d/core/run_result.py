@@ -37,6 +37,20 @@ OPTIONAL_RUN_METADATA = {
 }
 
 
+def add_run_metadata(ds, metadata, required, optional):
+    """Store a run's scalar metadata in ``ds`` as 0-d variables with units and long names.
+
+    ``required``: name -> (dtype, units, long_name), every name a key of ``metadata``;
+    ``optional``: name -> (dtype, units, long_name, default), ``default`` where
+    ``metadata`` lacks the name.
+    """
+    specs = {**{key: (*spec, None) for key, spec in required.items()}, **optional}
+    for key, (dtype, units, long_name, default) in specs.items():
+        value = metadata[key] if key in metadata or default is None else default
+        ds[key] = ((), np.array(value, dtype=dtype), {"units": units, "long_name": long_name} if units
+                   else {"long_name": long_name})
+
+
 def stderr_name(flux):
     """Name of the standard-error variable of a column flux."""
     return f"{flux}_standard_error"
@@ -109,11 +123,7 @@ def make_run_result(fluxes, standard_errors, absorption, *, solver, solar_zenith
                                         "incident flux in the band"})
         if band is not None:
             ds = ds.assign_coords(band=list(band))
-    specs = {**{key: (*spec, None) for key, spec in RUN_METADATA.items()}, **OPTIONAL_RUN_METADATA}
-    for key, (dtype, units, long_name, default) in specs.items():
-        value = metadata[key] if key in metadata or default is None else default
-        ds[key] = ((), np.array(value, dtype=dtype), {"units": units, "long_name": long_name} if units
-                   else {"long_name": long_name})
+    add_run_metadata(ds, metadata, RUN_METADATA, OPTIONAL_RUN_METADATA)
     ds.attrs.update(solver=solver, solar_zenith_angle=float(solar_zenith_angle),
                     solar_beam_azimuth=float(solar_beam_azimuth) % 360.0)
     return ds
