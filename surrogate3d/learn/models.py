@@ -462,7 +462,23 @@ def _ridge_solve(T, Y, alpha, weights=None):
     return coef, target_mean - coef @ term_mean
 
 
-class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
+class BoostingParameters:
+    """The parameters of the boosted ensembles: those of :class:`BoostedCorrection`, which the
+    heating-rate models (:mod:`surrogate3d.learn.profile_model`) take too, with their own
+    defaults, and pass on to the ensemble they build."""
+
+    def _keep_boosting_parameters(self, max_iter, learning_rate, max_leaf_nodes, min_samples_leaf, l2_regularization,
+                                  random_state):
+        # Kept as given, unchecked: scikit-learn's get_params and clone read them back by name.
+        self.max_iter = max_iter
+        self.learning_rate = learning_rate
+        self.max_leaf_nodes = max_leaf_nodes
+        self.min_samples_leaf = min_samples_leaf
+        self.l2_regularization = l2_regularization
+        self.random_state = random_state
+
+
+class BoostedCorrection(_PairsTableMixin, BoostingParameters, RegressorMixin, BaseEstimator):
     """Gradient-boosted regression trees, one histogram-based ensemble per target.
 
     Each target gets its own :class:`sklearn.ensemble.HistGradientBoostingRegressor`
@@ -535,12 +551,8 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
 
     def __init__(self, max_iter=300, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=20,
                  l2_regularization=0.0, random_state=0, clear_sky_features=None, target_transforms=None):
-        self.max_iter = max_iter
-        self.learning_rate = learning_rate
-        self.max_leaf_nodes = max_leaf_nodes
-        self.min_samples_leaf = min_samples_leaf
-        self.l2_regularization = l2_regularization
-        self.random_state = random_state
+        self._keep_boosting_parameters(max_iter, learning_rate, max_leaf_nodes, min_samples_leaf, l2_regularization,
+                                       random_state)
         self.clear_sky_features = clear_sky_features
         self.target_transforms = target_transforms
 
