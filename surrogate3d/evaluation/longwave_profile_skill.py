@@ -22,20 +22,11 @@ from ..runtime.longwave_profile import LONGWAVE_LAYER_FIELDS, match_longwave_col
 from ..solvers.heating import DRY_AIR_SPECIFIC_HEAT, SECONDS_PER_DAY, STANDARD_GRAVITY
 from . import figures
 from .predictions import NO_CORRECTION, raw_correction
-from .profile_skill import HEIGHT_BINS, ProfileEvaluation
+from .profile_skill import ProfileEvaluation, column_integral, height_rows, masked_rmse, rmse_reduction
 from .scored_model import ScoredModel
 
 #: The column target the layers are matched to.
 COLUMN_TARGET = "longwave_atmosphere_net_absorption"
-
-
-def _rmse(values, mask):
-    return float(np.sqrt(np.mean(values[mask] ** 2))) if mask.any() else float("nan")
-
-
-def _reduction(error, truth, mask):
-    base = _rmse(truth, mask)
-    return 1.0 - _rmse(error, mask) / base if base > 0 else float("nan")
 
 
 def heating_rate_per_flux(pressure_thickness):
@@ -114,25 +105,17 @@ def score_longwave_profiles(name, estimator, pairs, column_correction=None, colu
         if not mask.any():
             continue
         guess = predicted * factor
-        floor = 1.0 - _rmse(error, mask) / _rmse(truth, mask) if _rmse(truth, mask) > 0 else float("nan")
+        # The noise floor is the share a perfect model would remove, its error the targets' noise.
+        floor = rmse_reduction(error, truth, mask)
         for predictor, values in ((NO_CORRECTION, np.zeros_like(truth)), (name, guess),
                                   (f"{name} (own column sum)", raw * factor)):
             rows.append({"quantity": quantity, "units": units, "predictor": predictor,
-                         "rmse": _rmse(values - truth, mask), "rmse_reduction": _reduction(values - truth, truth, mask),
-                         "noise_floor": floor, "n": int(mask.sum())})
-        for lo, hi in zip(HEIGHT_BINS[:-1], HEIGHT_BINS[1:]):
-            inside = mask & (height >= lo) & (height < hi)
-            by_height.append({"quantity": quantity, "units": units, "height_above_cloud_top": f"[{lo:g}, {hi:g}) m",
-                              "n": int(inside.sum()), "rmse_no_correction": _rmse(truth, inside),
-                              "rmse_model": _rmse(guess - truth, inside),
-                              "rmse_reduction": _reduction(guess - truth, truth, inside)})
+                         "rmse": masked_rmse(values - truth, mask),
+                         "rmse_reduction": rmse_reduction(values - truth, truth, mask), "noise_floor": floor,
+                         "n": int(mask.sum())})
+        by_height += height_rows(quantity, units, truth, guess, mask, height)
     column_target = pairs["target_value"].sel(target=COLUMN_TARGET).values
-    clouds = cloudy.any(axis=1)
-    integral = {"rmse_reduction": _reduction(own_sum - column_target, column_target, clouds),
-                "rmse_reduction_matched": _reduction(column - column_target, column_target, clouds),
-                "rmse_reduction_matched_all_columns_w_m2": _reduction(column - column_target, column_target,
-                                                                      np.ones(column.size, dtype=bool)),
-                "largest_mismatch": float(np.max(np.abs(layer_sum(predicted) - column)))}
+    integral = column_integral(own_sum, column, column_target, cloudy.any(axis=1), predicted)
     return ProfileEvaluation(model=name, column_model=column_model, table=pd.DataFrame(rows),
                              by_height=pd.DataFrame(by_height), column_integral=integral,
                              mean_profiles=_mean_profiles(pairs, predicted, sample_scenes))
