@@ -11,7 +11,6 @@ overall and by height relative to the column's cloud top, with the noise floor o
 per-layer Monte Carlo targets.
 """
 
-import matplotlib
 import numpy as np
 import pandas as pd
 
@@ -204,48 +203,4 @@ def longwave_profile_panels(mean_profiles, by_height, model_name):
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib.pyplot as plt
-
-    with matplotlib.rc_context(figures.STYLE):
-        n = max(len(mean_profiles), 1)
-        fig = plt.figure(figsize=(2.7 * n + 4.2, 7.2), layout="tight")
-        grid = fig.add_gridspec(2, n + 1, width_ratios=[1.0] * n + [1.5])
-        model_colour, ica_colour = "#c23b32", "#8a8a8a"
-        for j, profile in enumerate(mean_profiles):
-            per_km = 1000.0 / profile["thickness"]
-            height = profile["height"] / 1000.0
-            top, bottom = fig.add_subplot(grid[0, j]), fig.add_subplot(grid[1, j])
-            top.plot(profile["full_3d"] * per_km, height, color="black", lw=1.8, label="3D")
-            top.plot(profile["independent_column"] * per_km, height, color=ica_colour, lw=1.4,
-                     label="independent column")
-            top.plot(profile["corrected"] * per_km, height, color=model_colour, lw=1.4, ls="--",
-                     label=f"corrected ({model_name})")
-            top.set_title(profile["scene"], fontsize=8)
-            top.set_xlabel("net absorbed [W m-2 km-1]")
-            bottom.axvline(0.0, color="0.75", lw=0.8)
-            bottom.plot((profile["full_3d"] - profile["independent_column"]) * per_km, height, color="black", lw=1.8,
-                        label="3D minus independent column")
-            bottom.plot((profile["corrected"] - profile["independent_column"]) * per_km, height, color=model_colour,
-                        lw=1.4, ls="--", label=model_name)
-            bottom.set_xlabel("3D change [W m-2 km-1]")
-            for ax in (top, bottom):
-                ax.set_ylabel("height [km]" if j == 0 else "")
-            if j == 0:
-                top.legend(loc="upper right", fontsize=7)
-                bottom.legend(loc="upper right", fontsize=7)
-        for row, units in enumerate(("K day-1", "W m-2")):
-            ax = fig.add_subplot(grid[row, n])
-            part = by_height[by_height["units"] == units] if len(by_height) else by_height
-            labels = list(part["height_above_cloud_top"]) if len(part) else []
-            y = np.arange(len(labels))
-            if labels:
-                ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=ica_colour, label=NO_CORRECTION)
-                ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=model_colour, label=model_name)
-                ax.set_yticks(y, labels, fontsize=7)
-            ax.set_xlabel(f"RMSE [{units}]")
-            ax.set_title(("heating rate" if row == 0 else "layer net absorption") + ", cloudy columns", fontsize=8)
-            if row == 0:
-                ax.set_ylabel("height above cloud top")
-                if labels:
-                    ax.legend(loc="upper right", fontsize=7)
-        return fig
+    return figures.profile_panels(mean_profiles, by_height, model_name, longwave=True)
