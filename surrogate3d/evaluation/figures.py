@@ -355,7 +355,7 @@ def skill_bars(table, targets, predictors, title):
         return fig
 
 
-def profile_panels(mean_profiles, by_height, model_name):
+def profile_panels(mean_profiles, by_height, model_name, longwave=False):
     """Domain-mean absorption profiles of sample scenes and their 3D change, and RMSE by height.
 
     Top row: 3D, independent-column and corrected absorption per km of every layer; bottom
@@ -369,9 +369,18 @@ def profile_panels(mean_profiles, by_height, model_name):
     by_height : pandas.DataFrame
         :attr:`~surrogate3d.evaluation.profile_skill.ProfileEvaluation.by_height`.
     model_name : str
+    longwave : bool
+        The longwave page's figure (:mod:`surrogate3d.evaluation.longwave_profile_skill`):
+        net absorption, scenes without a sun, and a panel without rows (no profile, or no
+        heating rate without air pressure) left empty, without bars or legend.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
     """
+    absorbed, absorption = ("net absorbed", "net absorption") if longwave else ("absorbed", "absorption")
     with matplotlib.rc_context(STYLE):
-        n = len(mean_profiles)
+        n = max(len(mean_profiles), 1) if longwave else len(mean_profiles)
         fig = _figure(2.7 * n + 4.2, 7.2)
         grid = fig.add_gridspec(2, n + 1, width_ratios=[1.0] * n + [1.5])
         model_colour, ica_colour = _MODEL_COLOURS[2], _FIXED_COLOURS[NO_CORRECTION]
@@ -385,8 +394,9 @@ def profile_panels(mean_profiles, by_height, model_name):
                      label="independent column")
             top.plot(profile["corrected"] * per_km, height, color=model_colour, lw=1.4, ls="--",
                      label=f"corrected ({model_name})")
-            top.set_title(f"{profile['scene']}, sun {profile['solar_zenith_angle']:g} deg", fontsize=8)
-            top.set_xlabel("absorbed [W m-2 km-1]")
+            sun = "" if longwave else f", sun {profile['solar_zenith_angle']:g} deg"
+            top.set_title(f"{profile['scene']}{sun}", fontsize=8)
+            top.set_xlabel(f"{absorbed} [W m-2 km-1]")
             bottom.axvline(0.0, color="0.75", lw=0.8)
             bottom.plot((profile["full_3d"] - profile["independent_column"]) * per_km, height, color="black", lw=1.8,
                         label="3D minus independent column")
@@ -400,15 +410,20 @@ def profile_panels(mean_profiles, by_height, model_name):
                 bottom.legend(loc="upper right", fontsize=7)
         for row, units in enumerate(("K day-1", "W m-2")):
             ax = fig.add_subplot(grid[row, n])
-            part = by_height[by_height["units"] == units]
-            labels = list(part["height_above_cloud_top"])
+            part = by_height[by_height["units"] == units] if len(by_height) else by_height
+            labels = list(part["height_above_cloud_top"]) if len(part) else []
             y = np.arange(len(labels))
-            ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=ica_colour, label=NO_CORRECTION)
-            ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=model_colour, label=model_name)
-            ax.set_yticks(y, labels, fontsize=7)
+            # The shortwave figure keeps the legend of an empty heating-rate panel: it names the
+            # bars of the panel below too.
+            bars = bool(labels) or not longwave
+            if bars:
+                ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=ica_colour, label=NO_CORRECTION)
+                ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=model_colour, label=model_name)
+                ax.set_yticks(y, labels, fontsize=7)
             ax.set_xlabel(f"RMSE [{units}]")
-            ax.set_title(("heating rate" if row == 0 else "layer absorption") + ", cloudy columns", fontsize=8)
+            ax.set_title(("heating rate" if row == 0 else f"layer {absorption}") + ", cloudy columns", fontsize=8)
             if row == 0:
                 ax.set_ylabel("height above cloud top")
-                ax.legend(loc="upper right", fontsize=7)
+                if bars:
+                    ax.legend(loc="upper right", fontsize=7)
         return fig

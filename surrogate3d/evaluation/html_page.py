@@ -1,5 +1,6 @@
 """One self-contained HTML page: inline style, figures as data URIs, no external files."""
 
+import base64
 import html
 
 _STYLE = """
@@ -23,6 +24,24 @@ footer { margin-top: 3em; font-size: .8em; color: #777; }
 
 def _anchor(title):
     return "".join(c if c.isalnum() else "-" for c in title.lower()).strip("-")
+
+
+def figure_html(png, caption):
+    """A figure of the page: the PNG embedded as a data URI, with its caption.
+
+    Parameters
+    ----------
+    png : bytes
+    caption : str
+        Plain text; its first 80 characters are the image's alt text.
+
+    Returns
+    -------
+    str
+    """
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<figure><img alt="{html.escape(caption[:80])}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{html.escape(caption)}</figcaption></figure>")
 
 
 def render_page(title, sections, footer=""):

@@ -11,7 +11,6 @@ overall and by height relative to the column's cloud top, with the noise floor o
 per-layer Monte Carlo targets.
 """
 
-import matplotlib
 import numpy as np
 import pandas as pd
 
@@ -22,20 +21,11 @@ from ..runtime.longwave_profile import LONGWAVE_LAYER_FIELDS, match_longwave_col
 from ..solvers.heating import DRY_AIR_SPECIFIC_HEAT, SECONDS_PER_DAY, STANDARD_GRAVITY
 from . import figures
 from .predictions import NO_CORRECTION, raw_correction
-from .profile_skill import HEIGHT_BINS, ProfileEvaluation
+from .profile_skill import ProfileEvaluation, column_integral, height_rows, masked_rmse, rmse_reduction
 from .scored_model import ScoredModel
 
 #: The column target the layers are matched to.
 COLUMN_TARGET = "longwave_atmosphere_net_absorption"
-
-
-def _rmse(values, mask):
-    return float(np.sqrt(np.mean(values[mask] ** 2))) if mask.any() else float("nan")
-
-
-def _reduction(error, truth, mask):
-    base = _rmse(truth, mask)
-    return 1.0 - _rmse(error, mask) / base if base > 0 else float("nan")
 
 
 def heating_rate_per_flux(pressure_thickness):
@@ -114,25 +104,17 @@ def score_longwave_profiles(name, estimator, pairs, column_correction=None, colu
         if not mask.any():
             continue
         guess = predicted * factor
-        floor = 1.0 - _rmse(error, mask) / _rmse(truth, mask) if _rmse(truth, mask) > 0 else float("nan")
+        # The noise floor is the share a perfect model would remove, its error the targets' noise.
+        floor = rmse_reduction(error, truth, mask)
         for predictor, values in ((NO_CORRECTION, np.zeros_like(truth)), (name, guess),
                                   (f"{name} (own column sum)", raw * factor)):
             rows.append({"quantity": quantity, "units": units, "predictor": predictor,
-                         "rmse": _rmse(values - truth, mask), "rmse_reduction": _reduction(values - truth, truth, mask),
-                         "noise_floor": floor, "n": int(mask.sum())})
-        for lo, hi in zip(HEIGHT_BINS[:-1], HEIGHT_BINS[1:]):
-            inside = mask & (height >= lo) & (height < hi)
-            by_height.append({"quantity": quantity, "units": units, "height_above_cloud_top": f"[{lo:g}, {hi:g}) m",
-                              "n": int(inside.sum()), "rmse_no_correction": _rmse(truth, inside),
-                              "rmse_model": _rmse(guess - truth, inside),
-                              "rmse_reduction": _reduction(guess - truth, truth, inside)})
+                         "rmse": masked_rmse(values - truth, mask),
+                         "rmse_reduction": rmse_reduction(values - truth, truth, mask), "noise_floor": floor,
+                         "n": int(mask.sum())})
+        by_height += height_rows(quantity, units, truth, guess, mask, height)
     column_target = pairs["target_value"].sel(target=COLUMN_TARGET).values
-    clouds = cloudy.any(axis=1)
-    integral = {"rmse_reduction": _reduction(own_sum - column_target, column_target, clouds),
-                "rmse_reduction_matched": _reduction(column - column_target, column_target, clouds),
-                "rmse_reduction_matched_all_columns_w_m2": _reduction(column - column_target, column_target,
-                                                                      np.ones(column.size, dtype=bool)),
-                "largest_mismatch": float(np.max(np.abs(layer_sum(predicted) - column)))}
+    integral = column_integral(own_sum, column, column_target, cloudy.any(axis=1), predicted)
     return ProfileEvaluation(model=name, column_model=column_model, table=pd.DataFrame(rows),
                              by_height=pd.DataFrame(by_height), column_integral=integral,
                              mean_profiles=_mean_profiles(pairs, predicted, sample_scenes))
@@ -221,48 +203,4 @@ def longwave_profile_panels(mean_profiles, by_height, model_name):
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib.pyplot as plt
-
-    with matplotlib.rc_context(figures.STYLE):
-        n = max(len(mean_profiles), 1)
-        fig = plt.figure(figsize=(2.7 * n + 4.2, 7.2), layout="tight")
-        grid = fig.add_gridspec(2, n + 1, width_ratios=[1.0] * n + [1.5])
-        model_colour, ica_colour = "#c23b32", "#8a8a8a"
-        for j, profile in enumerate(mean_profiles):
-            per_km = 1000.0 / profile["thickness"]
-            height = profile["height"] / 1000.0
-            top, bottom = fig.add_subplot(grid[0, j]), fig.add_subplot(grid[1, j])
-            top.plot(profile["full_3d"] * per_km, height, color="black", lw=1.8, label="3D")
-            top.plot(profile["independent_column"] * per_km, height, color=ica_colour, lw=1.4,
-                     label="independent column")
-            top.plot(profile["corrected"] * per_km, height, color=model_colour, lw=1.4, ls="--",
-                     label=f"corrected ({model_name})")
-            top.set_title(profile["scene"], fontsize=8)
-            top.set_xlabel("net absorbed [W m-2 km-1]")
-            bottom.axvline(0.0, color="0.75", lw=0.8)
-            bottom.plot((profile["full_3d"] - profile["independent_column"]) * per_km, height, color="black", lw=1.8,
-                        label="3D minus independent column")
-            bottom.plot((profile["corrected"] - profile["independent_column"]) * per_km, height, color=model_colour,
-                        lw=1.4, ls="--", label=model_name)
-            bottom.set_xlabel("3D change [W m-2 km-1]")
-            for ax in (top, bottom):
-                ax.set_ylabel("height [km]" if j == 0 else "")
-            if j == 0:
-                top.legend(loc="upper right", fontsize=7)
-                bottom.legend(loc="upper right", fontsize=7)
-        for row, units in enumerate(("K day-1", "W m-2")):
-            ax = fig.add_subplot(grid[row, n])
-            part = by_height[by_height["units"] == units] if len(by_height) else by_height
-            labels = list(part["height_above_cloud_top"]) if len(part) else []
-            y = np.arange(len(labels))
-            if labels:
-                ax.barh(y - 0.2, part["rmse_no_correction"], height=0.4, color=ica_colour, label=NO_CORRECTION)
-                ax.barh(y + 0.2, part["rmse_model"], height=0.4, color=model_colour, label=model_name)
-                ax.set_yticks(y, labels, fontsize=7)
-            ax.set_xlabel(f"RMSE [{units}]")
-            ax.set_title(("heating rate" if row == 0 else "layer net absorption") + ", cloudy columns", fontsize=8)
-            if row == 0:
-                ax.set_ylabel("height above cloud top")
-                if labels:
-                    ax.legend(loc="upper right", fontsize=7)
-        return fig
+    return figures.profile_panels(mean_profiles, by_height, model_name, longwave=True)

@@ -15,19 +15,17 @@ import json
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
-from .. import __version__
-from .._atomic import write_bytes_atomic, write_text_atomic
+from .._atomic import write_text_atomic
 from ..learn.pairs_table import scene_table, target_matrix
 from . import figures
 from .breakdown import LONGWAVE_BREAKDOWNS
 from .family_transfer import LEFT_OUT
-from .analysis_tables import write_analysis_tables
-from .html_page import render_page
 from .longwave_profile_skill import longwave_profile_panels
 from .predictions import NO_CORRECTION
-from .tables import breakdown_pivot, to_html, to_markdown
+from .report_parts import (analysis_figures, family_figure, figure_sections, profile_section, report_summary,
+                           summary_section, write_figures, write_metric_tables, write_page)
+from .tables import breakdown_pivot, to_html
 
 #: The flux the summary, the maps and the family figure show.
 HEADLINE_TARGET = "longwave_surface_downward_flux"
@@ -71,14 +69,6 @@ def headline_table(table, label):
     return rows[["target", "predictor", *_HEADLINE]].rename(columns=_HEADLINE).reset_index(drop=True)
 
 
-def _image(png, caption):
-    import base64
-
-    data = base64.b64encode(png).decode("ascii")
-    return (f'<figure><img alt="{html.escape(caption[:80])}" src="data:image/png;base64,{data}">'
-            f"<figcaption>{html.escape(caption)}</figcaption></figure>")
-
-
 def _map_domains(eval_set, targets, model, n_scenes):
     """Up to ``n_scenes`` domains of the set (one per regime first, the cloudiest scene of each), finest resolution."""
     pairs = eval_set.pairs
@@ -120,14 +110,7 @@ def _figures(evaluation, map_scenes):
                     figures.to_png(figures.skill_bars(_rows(table, eval_set.label), targets, predictors,
                                                       f"Longwave skill on the {eval_set.label}"))))
         if eval_set.label == LEFT_OUT:
-            rows = _rows(table, LEFT_OUT, "regime")
-            rows = rows[rows["target"] == target]
-            families = list(dict.fromkeys(rows.sort_values("group_order")["group"]))
-            out.append(("left_out_families_by_family", f"Skill for {target.replace('_', ' ')} on each family, "
-                        "scored with the models trained without it.",
-                        figures.to_png(figures.group_skill_bars(rows, families, predictors,
-                                                                f"{target}: skill on each left-out family",
-                                                                "left-out family"))))
+            out.append(family_figure(_rows(table, LEFT_OUT, "regime"), target, predictors, caption_end="."))
         if k > 0:
             continue
         overall = _rows(table, eval_set.label)
@@ -147,75 +130,20 @@ def _figures(evaluation, map_scenes):
         out.append(("error_histograms", f"Distribution of the corrected minus 3D longwave field on the "
                     f"{eval_set.label} [W m-2] (logarithmic counts); '{NO_CORRECTION}' is the independent-column "
                     "error.", figures.to_png(figures.error_histograms(errors, targets))))
-        if evaluation.importance:
-            out.append(("importance", f"Permutation importance on the {eval_set.label}: the drop in target-averaged "
-                        "skill when a feature is shuffled among the samples of each scene.",
-                        figures.to_png(figures.importance_bars(evaluation.importance))))
-        if evaluation.curve is not None:
-            full = overall[overall["predictor"] == evaluation.curve_model]["skill"].mean()
-            out.append(("learning_curve", f"Held-out skill of {evaluation.curve_model} refitted on growing subsets "
-                        "of the training scenes, per target and averaged over targets.",
-                        figures.to_png(figures.learning_curve_plot(evaluation.curve, evaluation.curve_model,
-                                                                   full_skill=float(full)))))
+        out += analysis_figures(evaluation, eval_set.label, overall)
     return out
 
 
-def _write_tables(evaluation, out_dir):
-    table = evaluation.table
-    write_text_atomic(out_dir / "metrics.csv", table[table["breakdown"] == "all"].to_csv(index=False))
-    md = ["# Longwave skill on held-out data\n\nskill = share of the independent column's RMSE removed "
-          "(errors in W m-2)\n"]
-    for eval_set in evaluation.sets:
-        md += [f"\n## {eval_set.label}\n\n", to_markdown(headline_table(table, eval_set.label))]
-    write_text_atomic(out_dir / "metrics.md", "".join(md))
-    for breakdown in LONGWAVE_BREAKDOWNS[1:]:
-        rows = table[table["breakdown"] == breakdown]
-        if rows.empty:
-            continue
-        write_text_atomic(out_dir / f"breakdown_{breakdown}.csv", rows.to_csv(index=False))
-        md = [f"# Longwave skill by {breakdown.replace('_', ' ')}\n"]
-        for eval_set in evaluation.sets:
-            if breakdown in eval_set.breakdowns:
-                md += [f"\n## {eval_set.label}: skill\n\n", to_markdown(breakdown_pivot(table, eval_set.label,
-                                                                                         breakdown)),
-                       f"\n## {eval_set.label}: RMSE [W m-2]\n\n",
-                       to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse"))]
-        write_text_atomic(out_dir / f"breakdown_{breakdown}.md", "".join(md))
-    write_analysis_tables(evaluation, out_dir)
-
-
 def _summary(evaluation):
-    table = evaluation.table
-    envelope = evaluation.envelope[(evaluation.envelope["group"] == "all")
-                                   & (evaluation.envelope["target"] == evaluation.targets[0])]
-    summary = {
-        "package_version": __version__, **evaluation.summary, "spectrum": "longwave", "consistency": False,
-        "evaluation_sets": {s.label: int(s.pairs.sizes["sample"]) for s in evaluation.sets},
-        "skill_units": "W m-2",
-        "skill": {s.label: {f"{r.predictor} | {r.target}": r.skill for r in _rows(table, s.label).itertuples()}
-                  for s in evaluation.sets},
-        "share_outside_envelope": {s.label: {r.predictor: (None if pd.isna(r.share_outside) else r.share_outside)
-                                             for r in envelope[envelope["evaluation_set"] == s.label].itertuples()}
-                                   for s in evaluation.sets},
-        "notes": evaluation.notes,
-    }
-    if evaluation.profile is not None:
-        profile = evaluation.profile
-        summary["profile"] = {
-            "model": profile.model, "matched_to": profile.column_model,
-            "skill": {f"{r.quantity} [{r.units}]": r.rmse_reduction
-                      for r in profile.table[profile.table["predictor"] == profile.model].itertuples()},
-            "noise_floor": {f"{r.quantity} [{r.units}]": r.noise_floor
-                            for r in profile.table[profile.table["predictor"] == profile.model].itertuples()},
-            "column_integral": profile.column_integral}
-    return summary
+    return report_summary(evaluation, skill_rows=lambda label: _rows(evaluation.table, label),
+                          spectrum={"spectrum": "longwave", "consistency": False},
+                          profile_columns={"skill": "rmse_reduction", "noise_floor": "noise_floor"})
 
 
 def _profile_section(profile, out_dir):
     """The heating-rate section: the skill table, the figure (written to ``figures/profiles.png``) and the
     table by height."""
-    png = figures.to_png(longwave_profile_panels(profile.mean_profiles, profile.by_height, profile.model))
-    write_bytes_atomic(out_dir / "figures" / "profiles.png", png)
+    figure = longwave_profile_panels(profile.mean_profiles, profile.by_height, profile.model)
     integral = profile.column_integral
     matched = (f"matched to the longwave_atmosphere_net_absorption correction of {html.escape(profile.column_model)}"
                if profile.column_model else "left with their own column sum")
@@ -231,8 +159,7 @@ def _profile_section(profile, out_dir):
     caption = ("Domain-mean longwave net-absorption profiles of the held-out scenes of largest 3D change: 3D, "
                "independent column, and the independent column corrected by the profile model; and the RMSE by "
                "height above the cloud top in the cloudy columns.")
-    return (text + to_html(profile.table) + _image(png, caption) + "<h3>By height above the cloud top</h3>"
-            + to_html(profile.by_height))
+    return profile_section(profile, out_dir, figure, text, caption)
 
 
 def _envelope_view(evaluation, target):
@@ -273,21 +200,15 @@ def write_longwave_report(evaluation, out_dir, map_scenes=2):
     out_dir = Path(out_dir)
     (out_dir / "figures").mkdir(parents=True, exist_ok=True)
     table = evaluation.table
-    _write_tables(evaluation, out_dir)
+    write_metric_tables(evaluation, out_dir, headline_table, LONGWAVE_BREAKDOWNS[1:], title="Longwave skill",
+                        skill_heading="skill",
+                        note="\nskill = share of the independent column's RMSE removed (errors in W m-2)\n")
     write_text_atomic(out_dir / "summary.json", json.dumps(_summary(evaluation), indent=2) + "\n")
-    figure_set = _figures(evaluation, map_scenes)
-    for stem, _, png in figure_set:
-        write_bytes_atomic(out_dir / "figures" / f"{stem}.png", png)
-    images = {stem: _image(png, caption) for stem, caption, png in figure_set}
+    images = write_figures(_figures(evaluation, map_scenes), out_dir)
     first = evaluation.sets[0]
     target = _headline_target(evaluation.targets)
-    intro = evaluation.intro + "".join(f"<p class='note'>{html.escape(n)}</p>" for n in evaluation.notes)
-    sections = [("Summary", intro + images["main_skill"] + to_html(headline_table(table, first.label)))]
-    for stem, title in (("maps", f"Maps of sample scenes ({first.label})"),
-                        ("scatter", "Predicted against true correction"), ("error_histograms", "Error distributions"),
-                        ("importance", "Feature importance"), ("learning_curve", "Learning curve")):
-        if stem in images:
-            sections.append((title, images[stem]))
+    sections = [summary_section(evaluation, images, to_html(headline_table(table, first.label))),
+                *figure_sections(images, first.label)]
     for breakdown in LONGWAVE_BREAKDOWNS[1:]:
         sections.append((f"Skill by {breakdown.replace('_', ' ')}",
                          to_html(breakdown_pivot(table, first.label, breakdown))
@@ -306,11 +227,4 @@ def write_longwave_report(evaluation, out_dir, map_scenes=2):
     sections.append(("Training envelope", "<p>Columns outside each model's training envelope and the skill for "
                      f"{html.escape(target)} on the flagged and the other columns.</p>"
                      + to_html(_envelope_view(evaluation, target))))
-    sections.append(("Definitions", _DEFINITIONS))
-    provenance = to_html(pd.DataFrame([{"item": k, "value": v} for k, v in evaluation.provenance]))
-    if evaluation.recipe_text:
-        provenance += f"<h3>Training recipe</h3><pre>{html.escape(evaluation.recipe_text)}</pre>"
-    sections.append(("Provenance", provenance))
-    write_text_atomic(out_dir / "report.html", render_page(evaluation.title, sections,
-                                                           footer=f"surrogate3d {__version__}"))
-    return out_dir / "report.html"
+    return write_page(evaluation, sections, _DEFINITIONS, out_dir)

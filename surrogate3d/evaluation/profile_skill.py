@@ -60,13 +60,101 @@ class ProfileEvaluation:
     mean_profiles: list
 
 
-def _rmse(values, mask):
+def masked_rmse(values, mask):
+    """Root-mean-square of ``values`` where ``mask`` holds.
+
+    Parameters
+    ----------
+    values : ndarray
+    mask : ndarray of bool
+        Of the shape of ``values``.
+
+    Returns
+    -------
+    float
+        NaN where ``mask`` holds nowhere.
+    """
     return float(np.sqrt(np.mean(values[mask] ** 2))) if mask.any() else float("nan")
 
 
-def _reduction(error, truth, mask):
-    base = _rmse(truth, mask)
-    return 1.0 - _rmse(error, mask) / base if base > 0 else float("nan")
+def rmse_reduction(error, truth, mask):
+    """Share of the RMSE of no correction that a correction removes, where ``mask`` holds.
+
+    ``1 - RMSE(error) / RMSE(truth)``, the error of no correction being the 3D change
+    ``truth`` itself.
+
+    Parameters
+    ----------
+    error, truth : ndarray
+        Corrected minus 3D, and 3D minus independent column, in the same units.
+    mask : ndarray of bool
+        Of the shape of ``error``.
+
+    Returns
+    -------
+    float
+        NaN where the RMSE of ``truth`` is 0 or ``mask`` holds nowhere.
+    """
+    base = masked_rmse(truth, mask)
+    return 1.0 - masked_rmse(error, mask) / base if base > 0 else float("nan")
+
+
+def height_rows(quantity, units, truth, guess, mask, height):
+    """The rows of :attr:`ProfileEvaluation.by_height` of one quantity: the RMSE of no
+    correction and of the model in every bin of :data:`HEIGHT_BINS`.
+
+    Parameters
+    ----------
+    quantity, units : str
+    truth, guess : ndarray (n_sample, n_layer)
+        The 3D change of every layer and the model's, in ``units``.
+    mask : ndarray of bool (n_sample, n_layer)
+        The layers scored.
+    height : ndarray (n_sample, n_layer)
+        Height of every layer above its column's cloud top [m].
+
+    Returns
+    -------
+    list of dict
+    """
+    rows = []
+    for lo, hi in zip(HEIGHT_BINS[:-1], HEIGHT_BINS[1:]):
+        inside = mask & (height >= lo) & (height < hi)
+        rows.append({"quantity": quantity, "units": units, "height_above_cloud_top": f"[{lo:g}, {hi:g}) m",
+                     "n": int(inside.sum()), "rmse_no_correction": masked_rmse(truth, inside),
+                     "rmse_model": masked_rmse(guess - truth, inside),
+                     "rmse_reduction": rmse_reduction(guess - truth, truth, inside)})
+    return rows
+
+
+def column_integral(own_sum, column, column_target, clouds, matched, scale=1.0):
+    """:attr:`ProfileEvaluation.column_integral`: how much of the column target's RMSE the
+    profile's own sum and the column correction it is matched to remove, and how closely
+    the matched layers sum to that correction.
+
+    Parameters
+    ----------
+    own_sum, column, column_target : ndarray (n_sample,)
+        The profile's own column sum, the column correction its layers are matched to, and
+        the 3D change of the column target.
+    clouds : ndarray of bool (n_sample,)
+        The cloudy columns.
+    matched : ndarray (n_sample, n_layer)
+        The matched layer corrections.
+    scale : float or ndarray (n_sample,)
+        Turns the column values into W m-2 for ``rmse_reduction_matched_all_columns_w_m2``
+        (the incident flux [W m-2] for fractions of it).
+
+    Returns
+    -------
+    dict
+    """
+    return {"rmse_reduction": rmse_reduction(own_sum - column_target, column_target, clouds),
+            "rmse_reduction_matched": rmse_reduction(column - column_target, column_target, clouds),
+            "rmse_reduction_matched_all_columns_w_m2": rmse_reduction((column - column_target) * scale,
+                                                                      column_target * scale,
+                                                                      np.ones(column.size, dtype=bool)),
+            "largest_mismatch": float(np.max(np.abs(layer_sum(matched) - column)))}
 
 
 def score_profiles(name, estimator, pairs, column_correction=None, column_model=None, sample_scenes=3, layers=None):
@@ -117,23 +205,12 @@ def score_profiles(name, estimator, pairs, column_correction=None, column_model=
             continue
         for predictor, values in ((NO_CORRECTION, np.zeros_like(truth)), (name, guess)):
             rows.append({"quantity": quantity, "units": units, "predictor": predictor,
-                         "rmse": _rmse(values - truth, mask), "rmse_reduction": _reduction(values - truth, truth, mask),
-                         "n": int(mask.sum())})
-        for lo, hi in zip(HEIGHT_BINS[:-1], HEIGHT_BINS[1:]):
-            inside = mask & (height >= lo) & (height < hi)
-            by_height.append({"quantity": quantity, "units": units, "height_above_cloud_top": f"[{lo:g}, {hi:g}) m",
-                              "n": int(inside.sum()), "rmse_no_correction": _rmse(truth, inside),
-                              "rmse_model": _rmse(guess - truth, inside),
-                              "rmse_reduction": _reduction(guess - truth, truth, inside)})
+                         "rmse": masked_rmse(values - truth, mask),
+                         "rmse_reduction": rmse_reduction(values - truth, truth, mask), "n": int(mask.sum())})
+        by_height += height_rows(quantity, units, truth, guess, mask, height)
     column_target = pairs["target_value"].sel(target="atmosphere_absorption").values
-    clouds = cloudy.any(axis=1)
-    watts = pairs["incident_flux"].values
-    integral = {"rmse_reduction": _reduction(own_sum - column_target, column_target, clouds),
-                "rmse_reduction_matched": _reduction(column - column_target, column_target, clouds),
-                "rmse_reduction_matched_all_columns_w_m2": _reduction((column - column_target) * watts,
-                                                                      column_target * watts,
-                                                                      np.ones(column.size, dtype=bool)),
-                "largest_mismatch": float(np.max(np.abs(layer_sum(predicted) - column)))}
+    integral = column_integral(own_sum, column, column_target, cloudy.any(axis=1), predicted,
+                               pairs["incident_flux"].values)
     return ProfileEvaluation(model=name, column_model=column_model, table=pd.DataFrame(rows),
                              by_height=pd.DataFrame(by_height), column_integral=integral,
                              mean_profiles=_mean_profiles(pairs, predicted, sample_scenes))

@@ -6,7 +6,6 @@ from ``surrogate3d evaluate`` (held-out scenes, left-out families) or ``surrogat
 (:data:`surrogate3d.evaluation.metrics.HEADLINE_UNITS`).
 """
 
-import base64
 import html
 import json
 from pathlib import Path
@@ -14,17 +13,16 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .. import __version__
-from .._atomic import write_bytes_atomic, write_text_atomic
+from .._atomic import write_text_atomic
 from ..learn.pairs_table import scene_table, target_matrix
 from . import figures
 from .breakdown import BREAKDOWNS, FAMILY_BREAKDOWNS
 from .family_transfer import LEFT_OUT
-from .html_page import render_page
 from .metrics import HEADLINE_UNITS, error_metrics
 from .predictions import NO_CORRECTION
-from .analysis_tables import write_analysis_tables
-from .tables import breakdown_pivot, headline_table, to_html, to_markdown
+from .report_parts import (analysis_figures, family_figure, figure_sections, profile_section, report_summary,
+                           summary_section, write_figures, write_metric_tables, write_page)
+from .tables import breakdown_pivot, headline_table, to_html
 
 _SURFACE = "surface_downward_flux"
 
@@ -106,15 +104,8 @@ def _figure_set(evaluation, map_scenes):
                         _rows(evaluation, eval_set.label, "solar_zenith"), targets, predictors,
                         f"Skill against solar zenith angle, {eval_set.label}"))))
         if eval_set.label == LEFT_OUT:
-            target = _headline_target(targets)
-            rows = _rows(evaluation, LEFT_OUT, "regime")
-            rows = rows[rows["target"] == target]
-            families = list(dict.fromkeys(rows.sort_values("group_order")["group"]))
-            out.append(("left_out_families_by_family", f"Skill for {target.replace('_', ' ')} on each family, "
-                        "scored with the models trained without it, next to the published baselines.",
-                        figures.to_png(figures.group_skill_bars(rows, families, predictors,
-                                                                f"{target}: skill on each left-out family",
-                                                                "left-out family"))))
+            out.append(family_figure(_rows(evaluation, LEFT_OUT, "regime"), _headline_target(targets), predictors,
+                                     caption_end=", next to the published baselines."))
         if k > 0:
             continue
         best = _best_model(evaluation, eval_set)
@@ -134,17 +125,9 @@ def _figure_set(evaluation, map_scenes):
         out.append(("error_histograms", f"Distribution of the corrected minus 3D flux on the {eval_set.label} "
                     f"(logarithmic counts); '{NO_CORRECTION}' is the independent-column error.",
                     figures.to_png(figures.error_histograms(errors, targets))))
-        if evaluation.importance:
-            out.append(("importance", f"Permutation importance on the {eval_set.label}: the drop in "
-                        "target-averaged skill when a feature is shuffled among the samples of each scene; bars: "
-                        "mean over scenes, whiskers: standard error over scenes.",
-                        figures.to_png(figures.importance_bars(evaluation.importance))))
-        if evaluation.curve is not None:
-            full = overall[overall["predictor"] == evaluation.curve_model]["skill"].mean()
-            out.append(("learning_curve", f"Held-out skill of {evaluation.curve_model} refitted on growing subsets "
-                        "of the training scenes (regimes interleaved), per target and averaged over targets.",
-                        figures.to_png(figures.learning_curve_plot(evaluation.curve, evaluation.curve_model,
-                                                                   full_skill=float(full)))))
+        out += analysis_figures(evaluation, eval_set.label, overall,
+                                importance_note="; bars: mean over scenes, whiskers: standard error over scenes",
+                                curve_note=" (regimes interleaved)")
     return out
 
 
@@ -219,59 +202,10 @@ clear-sky gate selects never is. Flagged columns are corrected like the others.<
 """
 
 
-def _image(png, caption):
-    data = base64.b64encode(png).decode("ascii")
-    return (f'<figure><img alt="{html.escape(caption[:80])}" src="data:image/png;base64,{data}">'
-            f"<figcaption>{html.escape(caption)}</figcaption></figure>")
-
-
-def _write_tables(evaluation, out_dir):
-    table = evaluation.table
-    write_text_atomic(out_dir / "metrics.csv", table[table["breakdown"] == "all"].to_csv(index=False))
-    md = ["# Skill on held-out data\n"]
-    for eval_set in evaluation.sets:
-        md += [f"\n## {eval_set.label}\n\n", to_markdown(headline_table(table, eval_set.label))]
-    write_text_atomic(out_dir / "metrics.md", "".join(md))
-    for breakdown in _BREAKDOWN_FILES:
-        rows = table[table["breakdown"] == breakdown]
-        if rows.empty:
-            continue
-        write_text_atomic(out_dir / f"breakdown_{breakdown}.csv", rows.to_csv(index=False))
-        md = [f"# Skill by {breakdown.replace('_', ' ')}\n"]
-        for eval_set in evaluation.sets:
-            if breakdown not in eval_set.breakdowns:
-                continue
-            md += [f"\n## {eval_set.label}: skill (errors in W m-2)\n\n",
-                   to_markdown(breakdown_pivot(table, eval_set.label, breakdown)),
-                   f"\n## {eval_set.label}: RMSE [W m-2]\n\n",
-                   to_markdown(breakdown_pivot(table, eval_set.label, breakdown, "rmse", "W m-2"))]
-        write_text_atomic(out_dir / f"breakdown_{breakdown}.md", "".join(md))
-    write_analysis_tables(evaluation, out_dir)
-
-
 def _summary(evaluation):
-    table = evaluation.table
-    envelope = evaluation.envelope[(evaluation.envelope["group"] == "all")
-                                   & (evaluation.envelope["target"] == evaluation.targets[0])]
-    summary = {
-        "package_version": __version__, **evaluation.summary, "consistency": evaluation.consistency,
-        "evaluation_sets": {s.label: int(s.pairs.sizes["sample"]) for s in evaluation.sets},
-        "skill_units": HEADLINE_UNITS,
-        "skill": {s.label: {f"{r.predictor} | {r.target}": r.skill for r in
-                            table[(table["evaluation_set"] == s.label) & (table["breakdown"] == "all")
-                                  & (table["units"] == HEADLINE_UNITS)].itertuples()} for s in evaluation.sets},
-        "share_outside_envelope": {s.label: {r.predictor: (None if pd.isna(r.share_outside) else r.share_outside)
-                                             for r in envelope[envelope["evaluation_set"] == s.label].itertuples()}
-                                   for s in evaluation.sets},
-        "notes": evaluation.notes,
-    }
-    if evaluation.profile is not None:
-        profile = evaluation.profile
-        summary["profile"] = {
-            "model": profile.model, "matched_to": profile.column_model,
-            "rmse_reduction": {f"{r.quantity} [{r.units}]": r.rmse_reduction
-                               for r in profile.table[profile.table["predictor"] == profile.model].itertuples()},
-            "column_integral": profile.column_integral}
+    summary = report_summary(evaluation, skill_rows=lambda label: _rows(evaluation, label),
+                             spectrum={"consistency": evaluation.consistency},
+                             profile_columns={"rmse_reduction": "rmse_reduction"})
     if evaluation.family_runs is not None:
         runs = evaluation.family_runs
         summary["left_out_families"] = {"families": list(dict.fromkeys(runs["family"])), "fits": len(runs),
@@ -300,8 +234,7 @@ def _family_section(evaluation, eval_set, images):
 
 
 def _profile_section(profile, out_dir):
-    png = figures.to_png(figures.profile_panels(profile.mean_profiles, profile.by_height, profile.model))
-    write_bytes_atomic(out_dir / "figures" / "profiles.png", png)
+    figure = figures.profile_panels(profile.mean_profiles, profile.by_height, profile.model)
     integral = profile.column_integral
     if profile.column_model:
         matched = (f"matched to the column absorption that the consistency step gives when the profile's column sum "
@@ -320,8 +253,7 @@ def _profile_section(profile, out_dir):
     caption = ("Domain-mean absorption profiles of the cloudiest held-out scenes: 3D, independent column, and the "
                "independent column corrected by the profile model; and the RMSE by height above the cloud top in the "
                "cloudy columns.")
-    return (text + to_html(profile.table) + _image(png, caption) + "<h3>By height above the cloud top</h3>"
-            + to_html(profile.by_height))
+    return profile_section(profile, out_dir, figure, text, caption)
 
 
 def write_report(evaluation, out_dir, map_scenes=2):
@@ -360,27 +292,20 @@ def write_report(evaluation, out_dir, map_scenes=2):
     out_dir = Path(out_dir)
     (out_dir / "figures").mkdir(parents=True, exist_ok=True)
     table = evaluation.table
-    _write_tables(evaluation, out_dir)
+    write_metric_tables(evaluation, out_dir, headline_table, _BREAKDOWN_FILES, title="Skill",
+                        skill_heading="skill (errors in W m-2)")
     consistency = _consistency_table(evaluation)
     effect = _consistency_effect(evaluation)
     write_text_atomic(out_dir / "consistency.csv", consistency.to_csv(index=False))
     write_text_atomic(out_dir / "consistency_skill.csv", effect.to_csv(index=False))
     write_text_atomic(out_dir / "summary.json", json.dumps(_summary(evaluation), indent=2) + "\n")
 
-    figure_set = _figure_set(evaluation, map_scenes)
-    for stem, _, png in figure_set:
-        write_bytes_atomic(out_dir / "figures" / f"{stem}.png", png)
-    images = {stem: _image(png, caption) for stem, caption, png in figure_set}
+    images = write_figures(_figure_set(evaluation, map_scenes), out_dir)
 
     first = evaluation.sets[0]
-    intro = evaluation.intro + "".join(f"<p class='note'>{html.escape(n)}</p>" for n in evaluation.notes)
-    sections = [("Summary", intro + images["main_skill"] + to_html(headline_table(table, first.label))),
-                ("Skill against solar zenith angle", images["main_skill_vs_zenith"])]
-    for stem, title in (("maps", f"Maps of sample scenes ({first.label})"),
-                        ("scatter", "Predicted against true correction"), ("error_histograms", "Error distributions"),
-                        ("importance", "Feature importance"), ("learning_curve", "Learning curve")):
-        if stem in images:
-            sections.append((title, images[stem]))
+    sections = [summary_section(evaluation, images, to_html(headline_table(table, first.label))),
+                ("Skill against solar zenith angle", images["main_skill_vs_zenith"]),
+                *figure_sections(images, first.label)]
     for breakdown in BREAKDOWNS[1:]:
         sections.append((f"Skill by {breakdown.replace('_', ' ')}",
                          to_html(breakdown_pivot(table, first.label, breakdown))))
@@ -398,11 +323,4 @@ def write_report(evaluation, out_dir, map_scenes=2):
     sections.append(("Physical consistency", "<p>How often the consistency step had to clip a negative corrected "
                      "flux, and the domain-mean shift of the absorption correction that closed the energy "
                      "budget, and what the step does to the skill.</p>" + to_html(consistency) + to_html(effect)))
-    sections.append(("Definitions", _DEFINITIONS))
-    provenance = to_html(pd.DataFrame([{"item": k, "value": v} for k, v in evaluation.provenance]))
-    if evaluation.recipe_text:
-        provenance += f"<h3>Training recipe</h3><pre>{html.escape(evaluation.recipe_text)}</pre>"
-    sections.append(("Provenance", provenance))
-    page = render_page(evaluation.title, sections, footer=f"surrogate3d {__version__}")
-    write_text_atomic(out_dir / "report.html", page)
-    return out_dir / "report.html"
+    return write_page(evaluation, sections, _DEFINITIONS, out_dir)

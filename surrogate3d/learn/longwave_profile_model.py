@@ -16,7 +16,6 @@ from ..core.coefficient_format import LONGWAVE_PROFILE_TARGET
 from ..errors import ValidationError
 from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
 from ..runtime.longwave_profile import LONGWAVE_LAYER_FIELDS, longwave_density_to_layers, longwave_layer_rows
-from .models import BoostedCorrection
 from .profile_model import LayerDensityModel
 
 #: The pair-table variable a longwave profile model learns [W m-2].
@@ -103,19 +102,3 @@ class LongwaveProfileCorrection(LayerDensityModel):
     _pair_target = LONGWAVE_LAYER_TARGET
     _target_name = LONGWAVE_PROFILE_TARGET
     _label = "longwave profile model"
-
-    def __init__(self, max_iter=200, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=50,
-                 l2_regularization=0.0, random_state=0):
-        self.max_iter = max_iter
-        self.learning_rate = learning_rate
-        self.max_leaf_nodes = max_leaf_nodes
-        self.min_samples_leaf = min_samples_leaf
-        self.l2_regularization = l2_regularization
-        self.random_state = random_state
-
-    def _boosted(self):
-        boosted = BoostedCorrection(max_iter=self.max_iter, learning_rate=self.learning_rate,
-                                    max_leaf_nodes=self.max_leaf_nodes, min_samples_leaf=self.min_samples_leaf,
-                                    l2_regularization=self.l2_regularization, random_state=self.random_state)
-        boosted._check_parameters()
-        return boosted

@@ -107,7 +107,12 @@ def _check_fit_input(estimator, X, Y):
 
 
 class _PairsTableMixin:
-    """Fit from and predict on training-pair tables, remembering feature and target names."""
+    """Fit from and predict on training-pair tables, remembering feature and target names; the
+    checks, clear-sky gate, training envelope and target transforms both estimators share.
+
+    An estimator provides ``_check_parameters`` and ``_learned(X)``, its prediction before the
+    target transforms and the gate.
+    """
 
     def fit_pairs(self, pairs, features=None, targets=None):
         """Fit on a training-pair table.
@@ -190,8 +195,30 @@ class _PairsTableMixin:
             gated &= np.abs(X[:, k]) <= self.clear_sky_tolerance_
         return gated
 
-    def _fit_clear_sky_gate(self, X, Y):
-        """Resolve the gate features and return the training samples the gate leaves (at least two)."""
+    def predict(self, X):
+        """Predicted corrections, 0 where the clear-sky gate holds.
+
+        Parameters
+        ----------
+        X : array_like (n_sample, n_feature)
+
+        Returns
+        -------
+        ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
+        """
+        X = self._check_predict_input(X)
+        return self._transformed(X, self._learned(X))
+
+    def _start_fit(self, X, Y, feature_names):
+        """Check the parameters and the data and remember the feature names: ``(X, Y, one_column)``."""
+        self._check_parameters()
+        X, Y, one_column = _check_fit_input(self, X, Y)
+        self._set_names(feature_names, X.shape[1])
+        return X, Y, one_column
+
+    def _fit_gate_and_envelope(self, X, Y):
+        """Resolve the gate features, keep the training envelope of the samples the gate leaves
+        (at least two) and return those samples."""
         self.clear_sky_indices_ = _feature_indices("clear_sky_features", self.clear_sky_features or [],
                                                    self.feature_names_, X.shape[1])
         self.clear_sky_tolerance_ = CLEAR_SKY_TOLERANCE
@@ -200,7 +227,9 @@ class _PairsTableMixin:
             raise ValidationError(f"clear_sky_features {list(self.clear_sky_features)} gate "
                                   f"{X.shape[0] - np.count_nonzero(keep)} of the {X.shape[0]} samples; at least 2 "
                                   "ungated samples are needed to fit")
-        return X[keep], Y[keep]
+        X, Y = X[keep], Y[keep]
+        self.envelope_ = TrainingEnvelope.fit(X)
+        return X, Y
 
     def _fit_transforms(self, X, Y):
         """Resolve ``target_transforms`` and return ``(residual targets, sample weights)``.
@@ -377,13 +406,10 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         -------
         self
         """
-        self._check_parameters()
-        X, Y, one_column = _check_fit_input(self, X, Y)
+        X, Y, one_column = self._start_fit(X, Y, feature_names)
         n_feature = X.shape[1]
-        self._set_names(feature_names, n_feature)
         pairs = self._pairs(n_feature, self.feature_names_)
-        X, Y = self._fit_clear_sky_gate(X, Y)
-        self.envelope_ = TrainingEnvelope.fit(X)
+        X, Y = self._fit_gate_and_envelope(X, Y)
         mean = X.mean(axis=0)
         scale = X.std(axis=0)
         # Standardizing the round-off spread of a constant feature would turn any other
@@ -414,19 +440,8 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         products = [Z[:, i] * Z[:, j] for i, j in self.interaction_pairs_]
         return np.column_stack([Z] + products)
 
-    def predict(self, X):
-        """Predicted corrections, ``intercept_ + terms(X) @ coef_.T``, and 0 where the clear-sky gate holds.
-
-        Parameters
-        ----------
-        X : array_like (n_sample, n_feature)
-
-        Returns
-        -------
-        ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
-        """
-        X = self._check_predict_input(X)
-        return self._transformed(X, self.intercept_ + self._terms(X) @ self.coef_.T)
+    def _learned(self, X):
+        return self.intercept_ + self._terms(X) @ self.coef_.T
 
 
 def _ridge_solve(T, Y, alpha, weights=None):
@@ -447,7 +462,23 @@ def _ridge_solve(T, Y, alpha, weights=None):
     return coef, target_mean - coef @ term_mean
 
 
-class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
+class BoostingParameters:
+    """The parameters of the boosted ensembles: those of :class:`BoostedCorrection`, which the
+    heating-rate models (:mod:`surrogate3d.learn.profile_model`) take too, with their own
+    defaults, and pass on to the ensemble they build."""
+
+    def _keep_boosting_parameters(self, max_iter, learning_rate, max_leaf_nodes, min_samples_leaf, l2_regularization,
+                                  random_state):
+        # Kept as given, unchecked: scikit-learn's get_params and clone read them back by name.
+        self.max_iter = max_iter
+        self.learning_rate = learning_rate
+        self.max_leaf_nodes = max_leaf_nodes
+        self.min_samples_leaf = min_samples_leaf
+        self.l2_regularization = l2_regularization
+        self.random_state = random_state
+
+
+class BoostedCorrection(_PairsTableMixin, BoostingParameters, RegressorMixin, BaseEstimator):
     """Gradient-boosted regression trees, one histogram-based ensemble per target.
 
     Each target gets its own :class:`sklearn.ensemble.HistGradientBoostingRegressor`
@@ -520,12 +551,8 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
 
     def __init__(self, max_iter=300, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=20,
                  l2_regularization=0.0, random_state=0, clear_sky_features=None, target_transforms=None):
-        self.max_iter = max_iter
-        self.learning_rate = learning_rate
-        self.max_leaf_nodes = max_leaf_nodes
-        self.min_samples_leaf = min_samples_leaf
-        self.l2_regularization = l2_regularization
-        self.random_state = random_state
+        self._keep_boosting_parameters(max_iter, learning_rate, max_leaf_nodes, min_samples_leaf, l2_regularization,
+                                       random_state)
         self.clear_sky_features = clear_sky_features
         self.target_transforms = target_transforms
 
@@ -555,12 +582,8 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         -------
         self
         """
-        self._check_parameters()
-        X, Y, one_column = _check_fit_input(self, X, Y)
-        n_feature = X.shape[1]
-        self._set_names(feature_names, n_feature)
-        X, Y = self._fit_clear_sky_gate(X, Y)
-        self.envelope_ = TrainingEnvelope.fit(X)
+        X, Y, one_column = self._start_fit(X, Y, feature_names)
+        X, Y = self._fit_gate_and_envelope(X, Y)
         Y, weights = self._fit_transforms(X, Y)
         scaled = self.target_transform_[0] >= 0
         self.estimators_ = [
@@ -571,23 +594,12 @@ class BoostedCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
                 random_state=int(self.random_state)).fit(X, Y[:, m], sample_weight=weights[:, m] if scaled[m] else None)
             for m in range(Y.shape[1])]
         self.n_iter_ = [int(estimator.n_iter_) for estimator in self.estimators_]
-        self.n_features_in_ = n_feature
+        self.n_features_in_ = X.shape[1]
         self._one_column = one_column
         return self
 
-    def predict(self, X):
-        """Predicted corrections, 0 where the clear-sky gate holds.
-
-        Parameters
-        ----------
-        X : array_like (n_sample, n_feature)
-
-        Returns
-        -------
-        ndarray (n_sample, n_target), or (n_sample,) when fitted on a 1-D ``Y``
-        """
-        X = self._check_predict_input(X)
-        return self._transformed(X, np.column_stack([estimator.predict(X) for estimator in self.estimators_]))
+    def _learned(self, X):
+        return np.column_stack([estimator.predict(X) for estimator in self.estimators_])
 
 
 #: Model kinds a training recipe may name -> estimator class.

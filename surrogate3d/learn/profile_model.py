@@ -21,7 +21,7 @@ from ..core.validation import check_number
 from ..errors import ParameterError, ValidationError
 from ..pairs.layer_features import LAYER_FEATURES
 from ..runtime.profile import LAYER_FIELDS, density_to_layers, layer_rows
-from .models import BoostedCorrection
+from .models import BoostedCorrection, BoostingParameters
 from .pairs_table import feature_matrix
 
 #: The scale of the learned density: the column's independent-column absorption.
@@ -45,13 +45,15 @@ def layer_fields(pairs):
     return fields
 
 
-class LayerDensityModel(BaseEstimator):
+class LayerDensityModel(BoostingParameters, BaseEstimator):
     """What the shortwave and longwave heating-rate models share: a boosted ensemble on
-    (column, layer) rows learning the per-km density of a layer target.
+    (column, layer) rows learning the per-km density of a layer target, its parameters
+    (:class:`~surrogate3d.learn.models.BoostedCorrection`'s, with the defaults of both
+    heating-rate models) and its fit and prediction.
 
     A subclass names its layer features, layer rows, density-to-layer conversion, layer
-    fields of a pair table, target variable and target name as class attributes, and
-    builds its ensemble in ``_boosted``.
+    fields of a pair table, target variable and target name as class attributes, and may
+    give its ensemble target transforms in ``_target_transforms``.
     """
 
     _layer_features = None
@@ -61,6 +63,22 @@ class LayerDensityModel(BaseEstimator):
     _pair_target = None
     _target_name = None
     _label = None
+
+    def __init__(self, max_iter=200, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=50,
+                 l2_regularization=0.0, random_state=0):
+        self._keep_boosting_parameters(max_iter, learning_rate, max_leaf_nodes, min_samples_leaf, l2_regularization,
+                                       random_state)
+
+    def _target_transforms(self):
+        return None
+
+    def _boosted(self):
+        boosted = BoostedCorrection(max_iter=self.max_iter, learning_rate=self.learning_rate,
+                                    max_leaf_nodes=self.max_leaf_nodes, min_samples_leaf=self.min_samples_leaf,
+                                    l2_regularization=self.l2_regularization, random_state=self.random_state,
+                                    target_transforms=self._target_transforms())
+        boosted._check_parameters()
+        return boosted
 
     def fit(self, X, feature_names, fields, target):
         """Fit on column features ``X`` (n_column, n_feature), their names, the layer fields
@@ -164,20 +182,9 @@ class ProfileCorrection(LayerDensityModel):
 
     def __init__(self, max_iter=200, learning_rate=0.1, max_leaf_nodes=31, min_samples_leaf=50,
                  l2_regularization=0.0, scale_floor=1e-4, random_state=0):
-        self.max_iter = max_iter
-        self.learning_rate = learning_rate
-        self.max_leaf_nodes = max_leaf_nodes
-        self.min_samples_leaf = min_samples_leaf
-        self.l2_regularization = l2_regularization
+        super().__init__(max_iter, learning_rate, max_leaf_nodes, min_samples_leaf, l2_regularization, random_state)
         self.scale_floor = scale_floor
-        self.random_state = random_state
 
-    def _boosted(self):
+    def _target_transforms(self):
         check_number("scale_floor", self.scale_floor, 0.0, None, low_open=True)
-        boosted = BoostedCorrection(max_iter=self.max_iter, learning_rate=self.learning_rate,
-                                    max_leaf_nodes=self.max_leaf_nodes, min_samples_leaf=self.min_samples_leaf,
-                                    l2_regularization=self.l2_regularization, random_state=self.random_state,
-                                    target_transforms=[{"scale_feature": SCALE_FEATURE,
-                                                        "scale_floor": float(self.scale_floor)}])
-        boosted._check_parameters()
-        return boosted
+        return [{"scale_feature": SCALE_FEATURE, "scale_floor": float(self.scale_floor)}]
