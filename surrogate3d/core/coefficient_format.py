@@ -61,6 +61,33 @@ GATE_FIELD = "clear_sky_gate"
 #: Optional top-level field: the training envelope (absent before format 1.2: nothing flagged).
 ENVELOPE_FIELD = "training_envelope"
 
+#: First format whose ridge clips every feature to the training envelope's range before it
+#: standardizes it (files of 1.2 to 1.4 have the envelope but extrapolate linearly).
+RIDGE_CLIPPING_VERSION = (1, 5)
+
+
+def ridge_clips_features(document):
+    """Whether a coefficient document's ridge clips its features to the envelope's ranges.
+
+    Parameters
+    ----------
+    document : dict
+        A coefficient document (:func:`check_document` passed).
+
+    Returns
+    -------
+    bool
+        True for format 1.5 and later with a training envelope.
+
+    Examples
+    --------
+    >>> ridge_clips_features({"format_version": "1.4", "training_envelope": {}})
+    False
+    """
+    version = tuple(int(part) for part in str(document["format_version"]).split(".")[:2])
+    return version >= RIDGE_CLIPPING_VERSION and document.get(ENVELOPE_FIELD) is not None
+
+
 #: Optional top-level field: per target, the offset and scale that turn the model's output
 #: into the correction (absent before format 1.3: none).
 TRANSFORM_FIELD = "target_transforms"

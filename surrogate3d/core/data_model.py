@@ -89,4 +89,4 @@ COEFFICIENT_FORMAT_NAME = "surrogate3d-correction-coefficients"
 #: :mod:`surrogate3d.runtime.ridge`); 1.3 added the optional ``target_transforms`` (an
 #: older file has none: the model predicts corrections); 1.4 added the optional
 #: ``profile`` (a heating-rate model's layer features; an older file is a column model).
-COEFFICIENT_FORMAT_VERSION = "1.4"
+COEFFICIENT_FORMAT_VERSION = "1.5"

@@ -41,7 +41,7 @@ from .._atomic import write_text_atomic
 from ..errors import FormatError, ValidationError
 from ..core.config import NEAR_CONSTANT
 from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD, clear_sky_gate,
-                                       target_transforms)
+                                       ridge_clips_features, target_transforms)
 from ..core.data_model import TARGETS
 from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES, SAME_PATH_TOLERANCE
 from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
@@ -75,7 +75,8 @@ def _lines(values, integer=False):
 
 
 def data_file_text(document):
-    """Text of the Fortran data file (``NAME.coefficients.txt``) of a document."""
+    """Text of the Fortran data file (``NAME.coefficients.txt``) of a document, headed by the
+    document's own format version (the module generated from it evaluates that version)."""
     kind = document["model"]["kind"]
     arrays = document[kind]
     features, targets = document["features"]["names"], document["targets"]["names"]
@@ -86,7 +87,7 @@ def data_file_text(document):
                   for spec in target_transforms(document)]
     offsets = [(m, k, c) for m, spec in enumerate(transforms)
                for k, c in zip(spec["offset_features"], spec["offset_coefficients"])]
-    lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"kind {kind}", f"model {document['model']['name']}",
+    lines = [f"{FORMAT_NAME} {document['format_version']}", f"kind {kind}", f"model {document['model']['name']}",
              f"n_features {len(features)}", f"n_targets {len(targets)}", f"n_clear_sky_features {len(gate)}",
              f"n_envelope_components {n_components}", f"n_offset_terms {len(offsets)}"]
     if kind == "ridge":
@@ -773,6 +774,22 @@ def _profile_procedure(prefix, document):
 """
 
 
+def _ridge_standardization(document):
+    """The Fortran that standardizes the features: held within the training envelope's range
+    first when the file's format says so (:func:`ridge_clips_features`)."""
+    if not ridge_clips_features(document):
+        return "    z = (features - model%feature_mean) / model%feature_scale"
+    return """\
+    ! Within the training range: a fitted quadratic runs away beyond its data (the envelope
+    ! check still flags the column).  A NaN stays NaN, as in numpy's clip.
+    if (model%n_envelope > 0) then
+      z = (merge(features, min(max(features, model%envelope_min), model%envelope_max), ieee_is_nan(features)) &
+          - model%feature_mean) / model%feature_scale
+    else
+      z = (features - model%feature_mean) / model%feature_scale
+    end if"""
+
+
 def _ridge_module(prefix, document):
     return _module_header(prefix, document) + f"""\
   real(real64), parameter :: near_constant_fraction = {_number(NEAR_CONSTANT)}_real64
@@ -801,7 +818,7 @@ contains
     real(real64) :: z({prefix}_n_features)
     integer :: k, p
 {_GATE_TEST}
-    z = (features - model%feature_mean) / model%feature_scale
+{_ridge_standardization(document)}
     ! Only values training saw for a feature that was constant in it: a file's round-off scale
     ! must not turn another value into a term of order 1e13.
     do k = 1, size(model%near_constant)

@@ -278,9 +278,14 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
 
     The prediction is simple enough to be reproduced in any language::
 
-        z[k]   = (x[k] - feature_mean_[k]) / feature_scale_[k]          k = 0 .. n_feature-1
+        c[k]   = min(max(x[k], envelope_.feature_min[k]), envelope_.feature_max[k])
+        z[k]   = (c[k] - feature_mean_[k]) / feature_scale_[k]          k = 0 .. n_feature-1
         t      = [z[0], ..., z[n_feature-1]] + [z[i] * z[j] for (i, j) in interaction_pairs_]
         y[m]   = intercept_[m] + sum_l coef_[m, l] * t[l]               m = 0 .. n_target-1
+
+    Each feature is held within the range the training samples spanned (the training
+    envelope's, :class:`~surrogate3d.runtime.envelope.TrainingEnvelope`): a fitted
+    quadratic runs away beyond its data, while the envelope check still flags the column.
 
     ``feature_scale_`` is the population standard deviation (ddof = 0) of the training
     features, replaced by 1 for a feature constant up to round-off (a standard deviation
@@ -441,7 +446,16 @@ class RidgeCorrection(_PairsTableMixin, RegressorMixin, BaseEstimator):
         return np.column_stack([Z] + products)
 
     def _learned(self, X):
-        return self.intercept_ + self._terms(X) @ self.coef_.T
+        return self.intercept_ + self._terms(self._within_training_range(X)) @ self.coef_.T
+
+    def _within_training_range(self, X):
+        # A quadratic in the features runs away outside the data it was fitted on (on longwave
+        # families left out of training: 4 times worse than no correction); held at the edge of
+        # the training envelope, a feature keeps the value whose effect the fit has seen.
+        envelope = getattr(self, "envelope_", None)   # none on estimators pickled before the envelope
+        if envelope is None:
+            return X
+        return np.clip(X, envelope.feature_min, envelope.feature_max)
 
 
 def _ridge_solve(T, Y, alpha, weights=None):

@@ -18,7 +18,7 @@ from ..pairs.longwave_features import LONGWAVE_TARGETS, LongwaveFeatureRecipe, f
     longwave_halo_width, longwave_host_features, recipe_spectrum
 from ..pairs.recipe import FeatureRecipe
 from ..core.coefficient_format import (PROFILE_FIELD, check_document, clear_sky_gate, document_from_json,
-                                       target_transforms)
+                                       ridge_clips_features, target_transforms)
 from ..core.data_model import TARGETS
 from ..core.validation import fail, first_nonfinite
 from .envelope import EnvelopeCheck, EnvelopeWarning, training_envelope
@@ -107,7 +107,9 @@ class CorrectionModel:
         self.target_transforms = target_transforms(document)
         arrays = document[self.kind]
         if self.kind == "ridge":
-            self._evaluator = RidgeModel(**arrays)
+            clip = ({"clip_min": self.envelope.feature_min, "clip_max": self.envelope.feature_max}
+                    if ridge_clips_features(document) else {})
+            self._evaluator = RidgeModel(**arrays, **clip)
         else:
             self._evaluator = TreeEnsemble(len(self.feature_names), **arrays)
 

@@ -1,6 +1,8 @@
 """Evaluation of the standardized ridge regression with pairwise products (numpy only).
 
-With ``z = (x - feature_mean) / feature_scale``, the prediction of target ``m`` is::
+With ``z = (x - feature_mean) / feature_scale``, ``x`` held within the training range where
+the file gives one (format 1.5 on: the training envelope's ``feature_min`` and
+``feature_max``), the prediction of target ``m`` is::
 
     y[m] = intercept[m] + sum_k coef[m, k] z[k] + sum_p coef[m, n_feature + p] z[i_p] z[j_p]
 
@@ -56,6 +58,9 @@ class RidgeModel:
     interaction_pairs : ndarray (n_pair, 2) of int
     coef : ndarray (n_target, n_feature + n_pair)
     intercept : ndarray (n_target,)
+    clip_min, clip_max : ndarray (n_feature,), optional
+        The range every feature is held within before it is standardized (the training
+        envelope's, in the feature's units); None: no clipping.
 
     Examples
     --------
@@ -65,8 +70,10 @@ class RidgeModel:
     [[27.0]]
     """
 
-    def __init__(self, feature_mean, feature_scale, interaction_pairs, coef, intercept):
+    def __init__(self, feature_mean, feature_scale, interaction_pairs, coef, intercept, clip_min=None, clip_max=None):
         self.feature_mean = np.asarray(feature_mean, dtype=np.float64)
+        self.clip = None if clip_min is None else (np.asarray(clip_min, dtype=np.float64),
+                                                    np.asarray(clip_max, dtype=np.float64))
         self.feature_scale = np.asarray(feature_scale, dtype=np.float64)
         self.intercept = np.asarray(intercept, dtype=np.float64)
         self.near_constant = np.flatnonzero(near_constant(self.feature_mean, self.feature_scale))
@@ -92,6 +99,8 @@ class RidgeModel:
         return out
 
     def _predict_block(self, X):
+        if self.clip is not None:
+            X = np.clip(X, *self.clip)
         Z = (X - self.feature_mean) / self.feature_scale
         if self.near_constant.size:
             Z[:, self.near_constant] = np.clip(Z[:, self.near_constant], -1.0, 1.0)

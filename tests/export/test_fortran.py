@@ -119,6 +119,31 @@ def test_fortran_clips_a_round_off_scale_like_python(built, helpers, drivers, tm
 
 
 @needs_gfortran
+def test_ridge_holds_features_beyond_the_training_range_at_its_edge_like_python(built, run, helpers, drivers,
+                                                                                 tmp_path):
+    # Beyond the training envelope's range a feature is held at the range's edge before the
+    # ridge standardizes it (format 1.5, docs/export-format.md), in Fortran as in numpy and
+    # in the estimator: far beyond the range the correction is that at the edge.
+    fortran = built["export_dir"] / "fortran"
+    model = load_coefficients(built["export_dir"] / "ridge.coefficients.json")
+    features = np.loadtxt(fortran / "ridge_sample_features.txt", skiprows=1)
+    k = next(i for i, name in enumerate(model.feature_names) if name not in helpers.GATE)
+    low, high = model.envelope.feature_min[k], model.envelope.feature_max[k]
+    far = features.copy()
+    far[::2, k] = high + 100.0 * (high - low + 1.0)
+    far[1::2, k] = low - 100.0 * (high - low + 1.0)
+    edge = far.copy()
+    edge[::2, k], edge[1::2, k] = high, low
+    (tmp_path / "far.txt").write_text(features_file_text(far))
+    got = _run(drivers["ridge"], fortran / "ridge.coefficients.txt", tmp_path / "far.txt")
+    expected = model.predict(edge, check_envelope=False)
+    scale = np.abs(expected).max(axis=0)
+    assert (np.abs(got - expected) / scale).max() <= 1e-10
+    assert (np.abs(run.models["ridge"].estimator.predict(far) - expected) / scale).max() <= 1e-12
+    np.testing.assert_array_equal(model.predict(far, check_envelope=False), expected)
+
+
+@needs_gfortran
 @pytest.mark.parametrize("name", ["ridge", "boosted"])
 def test_fortran_flags_the_columns_python_flags(built, helpers, drivers, tmp_path, name):
     # The training envelope (ranges and Mahalanobis distance, docs/export-format.md) gives
