@@ -49,7 +49,8 @@ def run(args):
     print(f"trained {', '.join(record['models'])} on {len(split['training_scenes'])} scenes "
           f"({split['n_training_samples']} samples); {len(split['held_out_scenes'])} scenes held out")
     for name, cv in record["cross_validation"].items():
-        print(f"  {name}: cross-validated skill {cv['best_score']:.3f} ({cv['folds']} scene-grouped folds), "
+        print(f"  {name}: cross-validated skill {cv['best_score']:.3f} ({cv['folds']} folds by "
+              f"{cv.get('grouping', 'scene')}), "
               f"parameters {cv['best_params']}")
     if split["left_out_families"]:
         print(f"  'surrogate3d evaluate' leaves out in turn: {', '.join(split['left_out_families'])}")

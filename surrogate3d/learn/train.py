@@ -114,8 +114,8 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
         "split": {**split.as_dict(), "left_out_families": recipe.family_list(pairs),
                   "held_out_scene_fraction": recipe.held_out_scene_fraction,
                   "seed": recipe.split_seed, "n_training_samples": int(training.sizes["sample"])},
-        "cross_validation": {name: {"best_params": s.best_params, "best_score": s.best_score, "folds": s.folds}
-                             for name, s in searches.items()},
+        "cross_validation": {name: {"best_params": s.best_params, "best_score": s.best_score, "folds": s.folds,
+                                    "grouping": recipe.grouping} for name, s in searches.items()},
         "provenance": provenance,
     }
     write_training_record(out_dir, record)
