@@ -107,7 +107,14 @@ contains
       corrections = 0.0_real64
       return
     end if
-    z = (features - model%feature_mean) / model%feature_scale
+    ! Within the training range: a fitted quadratic runs away beyond its data (the envelope
+    ! check still flags the column).  A NaN stays NaN, as in numpy's clip.
+    if (model%n_envelope > 0) then
+      z = (merge(features, min(max(features, model%envelope_min), model%envelope_max), ieee_is_nan(features)) &
+          - model%feature_mean) / model%feature_scale
+    else
+      z = (features - model%feature_mean) / model%feature_scale
+    end if
     ! Only values training saw for a feature that was constant in it: a file's round-off scale
     ! must not turn another value into a term of order 1e13.
     do k = 1, size(model%near_constant)
