@@ -85,3 +85,30 @@ def test_model_card_states_what_a_user_must_know():
     for needed in ("Training scenes", "Regimes", "Resolution", "Solar zenith", "Held-out skill", "Limits of validity",
                    "validated for the host model"):
         assert needed in card, needed
+
+
+LONGWAVE = SHIPPED.parent / "longwave"
+LONGWAVE_TARGETS = ["longwave_surface_downward_flux", "longwave_surface_upward_flux",
+                    "longwave_surface_net_absorption"]
+
+
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_shipped_longwave_model_reproduces_its_sample_and_fits_its_limits(name):
+    model = load_coefficients(LONGWAVE / f"{name}.coefficients.json")
+    assert model.spectrum == "longwave" and list(model.target_names) == LONGWAVE_TARGETS
+    features = _matrix(LONGWAVE / "fortran" / f"{name}_sample_features.txt", skip_header=True)
+    expected = _matrix(LONGWAVE / "fortran" / f"{name}_sample_corrections.txt", skip_header=False)
+    np.testing.assert_allclose(model.predict(features, check_envelope=False), expected, rtol=1e-12, atol=1e-12)
+    for suffix in (".json", ".nc"):
+        assert (LONGWAVE / f"{name}.coefficients{suffix}").stat().st_size <= LIMITS[name]
+    for key, (file_name, text) in regenerated_fortran(LONGWAVE / f"{name}.coefficients.json",
+                                                      LONGWAVE / "fortran").items():
+        assert (LONGWAVE / "fortran" / file_name).read_text() == text, (
+            f"models/longwave/fortran/{file_name} ({key}) differs from the generator's (models/README.md)")
+
+
+def test_longwave_model_card_states_what_a_user_must_know():
+    card = (LONGWAVE / "MODEL_CARD.md").read_text()
+    for needed in ("Training scenes", "Resolution", "Held-out skill", "Families never seen", "Limits of validity",
+                   "validated for the host", "Not included"):
+        assert needed in card, needed
