@@ -6,7 +6,8 @@ from ..core.data_model import SOLVERS, SPECTRA
 
 #: Parameters of simulate_archive as the options that set them, for messages.
 FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_size": "--batch-size",
-         "batches": "--batches", "rays_per_column": "--rays-per-column", "threads": "--threads", "solar_constant": "--solar-constant",
+         "batches": "--batches", "rays_per_column": "--rays-per-column", "threads": "--threads",
+         "solar_constant": "--solar-constant",
          "solar_zenith_angle": "--zenith", "solar_beam_azimuth": "--azimuth", "scheduler": "--scheduler",
          "solvers": "--solvers", "spectrum": "--spectrum", "longwave_resolution": "--longwave-resolution"}
 
