@@ -17,7 +17,8 @@ from pathlib import Path
 
 from ._atomic import write_text_atomic
 from ._outputs import staged_directory
-from .core.data_model import LONGWAVE_PAIRS_FORMAT_VERSION, PAIRS_FORMAT_VERSION
+from .core.data_model import (COEFFICIENT_FORMAT_VERSION, LONGWAVE_PAIRS_FORMAT_VERSION, MODEL_FORMAT_VERSION,
+                              PAIRS_FORMAT_VERSION)
 from .core.validation import check_integer
 from .errors import Surrogate3DError
 
@@ -49,6 +50,10 @@ class DemoPaths:
     @property
     def export(self):
         return self.root / "export"
+
+    @property
+    def formats(self):
+        return self.root / "formats.txt"
 
     @property
     def recipe(self):
@@ -156,7 +161,7 @@ def _pairs_up_to_date(pairs, fingerprint, feature_recipe, format_version, resolu
         return False
     stored = attrs.get("host_resolutions", [])
     try:
-        # Shortwave tables store the resolutions as numbers, longwave ones as JSON text.
+        # Tables store the resolutions as JSON text; a number or a list of numbers is read too.
         stored = np.atleast_1d(np.asarray(json.loads(stored) if isinstance(stored, str) else stored, dtype=float))
     except (TypeError, ValueError):
         return False
@@ -176,6 +181,16 @@ def _training_up_to_date(models, pairs, recipe):
     except (OSError, ValueError, KeyError):
         return False
     return provenance.get("pairs_sha256") == file_sha256(pairs) and provenance.get("recipe_text") == recipe.read_text()
+
+
+#: The file formats of this version, written beside a finished demo: reports and exports made
+#: under other formats (an older ridge evaluation, say) are made again instead of reused.
+FORMATS = (f"pairs {PAIRS_FORMAT_VERSION}, longwave pairs {LONGWAVE_PAIRS_FORMAT_VERSION}, "
+           f"models {MODEL_FORMAT_VERSION}, coefficients {COEFFICIENT_FORMAT_VERSION}\n")
+
+
+def _same_formats(paths):
+    return paths.formats.is_file() and paths.formats.read_text() == FORMATS
 
 
 def _newer(target, source):
@@ -253,7 +268,8 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
     ev = settings["evaluate"]
     stages.begin(5, "evaluate", "skill on held-out scenes and on every family left out of training")
     page = paths.report / "report.html"
-    if _newer(page, paths.models / "training.json"):
+    same_formats = _same_formats(paths)
+    if same_formats and _newer(page, paths.models / "training.json"):
         stages.end(f"reused {paths.report}")
     else:
         evaluation = evaluate(paths.models, paths.pairs, learning_curve_points=ev["learning_curve_points"],
@@ -264,7 +280,7 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
 
     stages.begin(6, "export", "coefficient files and the Fortran module")
     marker = paths.export / "README.txt"
-    if _newer(marker, page):
+    if same_formats and _newer(marker, page):
         stages.end(f"reused {paths.export}")
     else:
         with staged_directory(paths.export, marker=marker.name) as staging:
@@ -273,10 +289,12 @@ def run_demo(out, quick=False, jobs=None, quiet=False):
                               f"Exported from {paths.models} with the skill table of {paths.report}.\n")
         stages.end(f"wrote {paths.export}")
 
-    longwave_page = _longwave_stages(paths, settings, jobs, quiet, stages)
+    longwave_page = _longwave_stages(paths, settings, jobs, quiet, stages, same_formats)
 
     summary = summarize(paths, Path(page), longwave_page)
     write_text_atomic(paths.summary, summary["markdown"])
+    if not same_formats:
+        write_text_atomic(paths.formats, FORMATS)
     if not quiet:
         print(summary["markdown"])
         print(f"demo finished in {time.perf_counter() - stages.started:.0f} s", file=sys.stderr)
@@ -293,7 +311,7 @@ def _warm_up_thermal_kernels():
         solve_longwave_scene(scene, kind, photons=200, resolution=50000.0)
 
 
-def _longwave_stages(paths, settings, jobs, quiet, stages):
+def _longwave_stages(paths, settings, jobs, quiet, stages, same_formats):
     """The longwave part of the demo: benchmarks, pairs, models, report and export; returns the report page."""
     from .archive.simulate import simulate_archive
     from .core.netcdf import write_dataset
@@ -329,7 +347,7 @@ def _longwave_stages(paths, settings, jobs, quiet, stages):
             train_models(pairs, recipe, staging, quiet=quiet)
         steps.append("models trained")
     page = report / "report.html"
-    if _newer(page, models / "training.json"):
+    if same_formats and _newer(page, models / "training.json"):
         steps.append("report reused")
     else:
         ev = settings["evaluate"]
@@ -339,7 +357,7 @@ def _longwave_stages(paths, settings, jobs, quiet, stages):
             write_report(evaluation, staging, map_scenes=ev["map_scenes"])
         steps.append("report written")
     marker = export / "README.txt"
-    if _newer(marker, page):
+    if same_formats and _newer(marker, page):
         steps.append("export reused")
     else:
         with staged_directory(export, marker=marker.name) as staging:

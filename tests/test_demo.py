@@ -84,3 +84,16 @@ def test_pairs_of_another_format_or_resolution_are_rebuilt(tmp_path):
     assert not stored(PAIRS_FORMAT_VERSION, [1000.0])
     assert stored(PAIRS_FORMAT_VERSION, "[1000.0, 2000.0]") and not stored(PAIRS_FORMAT_VERSION, "not json")
     assert not _pairs_up_to_date(tmp_path / "missing.nc", "abc", recipe, PAIRS_FORMAT_VERSION, [1000.0])
+
+
+def test_reports_and_exports_of_other_formats_are_made_again(demo_dir, capsys):
+    # A demo directory written by a version with other file formats (say, a ridge evaluated
+    # without its training-range clipping) gets its reports and exports made again.
+    (demo_dir / "formats.txt").write_text("pairs 0.9, longwave pairs 0.9, models 0.9, coefficients 1.4\n")
+    assert main(["demo", "--out", str(demo_dir), "--quick"]) == 0
+    err = capsys.readouterr().err
+    assert f"wrote {demo_dir / 'report' / 'report.html'}" in err and f"wrote {demo_dir / 'export'}" in err
+    assert "report written" in err and "models reused" in err
+    from surrogate3d.demo import FORMATS
+
+    assert (demo_dir / "formats.txt").read_text() == FORMATS

@@ -40,10 +40,11 @@ def register(sub):
     p.add_argument("--jobs", type=int, default=1, help="local worker processes (default: 1)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask distributed scheduler at ADDRESS")
     batching = p.add_mutually_exclusive_group()
-    batching.add_argument("--batch-size", type=int, help="photons per batch (default: automatic, at least 32 batches)")
+    batching.add_argument("--batch-size", type=int, help="photons per batch (default: automatic, 32 batches or more "
+                          "of 1000 to 50000 photons)")
     batching.add_argument("--batches", type=int,
                           help="batches per run instead: standard errors from N batches are precise to about "
-                               "1/sqrt(2(N-1)), 5 %% for 200, at about 6 CPU ms per extra batch per 16 000 columns")
+                               "1/sqrt(2(N-1)), 5 %% for 200, at 6-9 CPU ms per extra batch per 16 000 columns")
     p.add_argument("--rays-per-column", type=int, default=1,
                    help="direct-beam strata per column side in every photon batch, two mirrored rays in each (default: 1)")
     p.add_argument("--threads", type=int,

@@ -13,6 +13,7 @@ coefficient files with it, and the export stage writes them.
 import base64
 import binascii
 import math
+import re
 import zlib
 
 import numpy as np
@@ -84,7 +85,7 @@ def ridge_clips_features(document):
     >>> ridge_clips_features({"format_version": "1.4", "training_envelope": {}})
     False
     """
-    version = tuple(int(part) for part in str(document["format_version"]).split(".")[:2])
+    version = tuple(int(part) for part in document["format_version"].split("."))
     return version >= RIDGE_CLIPPING_VERSION and document.get(ENVELOPE_FIELD) is not None
 
 
@@ -278,9 +279,10 @@ def check_header(content, source):
         raise FormatError(f"{source!r} is not a surrogate3d coefficient file: field format is {_short(found)}; "
                           f"expected {FORMAT_NAME!r}")
     version = content.get("format_version")
-    if not isinstance(version, str) or version.split(".")[0] != FORMAT_VERSION.split(".")[0]:
+    if (not isinstance(version, str) or re.fullmatch(r"\d+\.\d+", version) is None
+            or version.split(".")[0] != FORMAT_VERSION.split(".")[0]):
         raise FormatError(f"coefficient file {source!r} has format_version {_short(version)}; this version "
-                          f"reads {FORMAT_VERSION} (same major version)")
+                          f"reads {FORMAT_VERSION} (MAJOR.MINOR, the same major version)")
     for key, kind in TOP_LEVEL.items():
         if key not in content:
             raise FormatError(f"coefficient file {source!r} lacks field {key!r}")

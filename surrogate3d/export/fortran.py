@@ -40,8 +40,8 @@ import numpy as np
 from .._atomic import write_text_atomic
 from ..errors import FormatError, ValidationError
 from ..core.config import NEAR_CONSTANT
-from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD, clear_sky_gate,
-                                       ridge_clips_features, target_transforms)
+from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD,
+                                       RIDGE_CLIPPING_VERSION, clear_sky_gate, target_transforms)
 from ..core.data_model import TARGETS
 from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES, SAME_PATH_TOLERANCE
 from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
@@ -248,15 +248,17 @@ _COMMON_READERS = """\
     end if
   end subroutine read_integers
 
-  subroutine open_coefficients(path, kind, unit, status, message)
+  subroutine open_coefficients(path, kind, unit, minor, status, message)
     character(len=*), intent(in) :: path, kind
     integer, intent(out) :: unit
-    integer, intent(inout) :: status
+    integer, intent(out) :: minor   ! the file's minor format version (what it asks of the evaluation)
     character(len=*), intent(inout) :: message
+    integer, intent(inout) :: status
     character(len=line_length) :: line
     integer :: ios, dot
     ! -1 is never a NEWUNIT= value: it marks a file that could not be opened.
     unit = -1
+    minor = 0
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) then
       unit = -1
@@ -275,6 +277,12 @@ _COMMON_READERS = """\
       status = 1
       message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // &
           '; this module reads major version ' // format_major
+    else
+      read (line(dot + 1:), *, iostat=ios) minor
+      if (ios /= 0) then
+        status = 1
+        message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // '; expected MAJOR.MINOR'
+      end if
     end if
     call expect_line(unit, 'kind ' // kind, status, message)
     call next_line(unit, line, status, message)   ! the model name, for people reading the file
@@ -774,22 +782,6 @@ def _profile_procedure(prefix, document):
 """
 
 
-def _ridge_standardization(document):
-    """The Fortran that standardizes the features: held within the training envelope's range
-    first when the file's format says so (:func:`ridge_clips_features`)."""
-    if not ridge_clips_features(document):
-        return "    z = (features - model%feature_mean) / model%feature_scale"
-    return """\
-    ! Within the training range: a fitted quadratic runs away beyond its data (the envelope
-    ! check still flags the column).  A NaN stays NaN, as in numpy's clip.
-    if (model%n_envelope > 0) then
-      z = (merge(features, min(max(features, model%envelope_min), model%envelope_max), ieee_is_nan(features)) &
-          - model%feature_mean) / model%feature_scale
-    else
-      z = (features - model%feature_mean) / model%feature_scale
-    end if"""
-
-
 def _ridge_module(prefix, document):
     return _module_header(prefix, document) + f"""\
   real(real64), parameter :: near_constant_fraction = {_number(NEAR_CONSTANT)}_real64
@@ -802,6 +794,7 @@ def _ridge_module(prefix, document):
     real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
     real(real64), allocatable :: intercept(:)
     integer(int32), allocatable :: near_constant(:)     ! features constant up to round-off (see the reader)
+    logical :: clip_features = .false.                  ! hold features within the envelope's ranges
 {_GATE_COMPONENTS}
   end type {prefix}_coefficients
 
@@ -818,7 +811,14 @@ contains
     real(real64) :: z({prefix}_n_features)
     integer :: k, p
 {_GATE_TEST}
-{_ridge_standardization(document)}
+    ! Within the training range (files of format 1.{RIDGE_CLIPPING_VERSION[1]} on): a fitted quadratic runs
+    ! away beyond its data; the envelope check still flags the column.  A NaN stays NaN, as in numpy's clip.
+    if (model%clip_features .and. model%n_envelope > 0) then
+      z = (merge(features, min(max(features, model%envelope_min), model%envelope_max), ieee_is_nan(features)) &
+          - model%feature_mean) / model%feature_scale
+    else
+      z = (features - model%feature_mean) / model%feature_scale
+    end if
     ! Only values training saw for a feature that was constant in it: a file's round-off scale
     ! must not turn another value into a term of order 1e13.
     do k = 1, size(model%near_constant)
@@ -847,11 +847,12 @@ contains
     integer(int32), allocatable :: pair_list(:)
     real(real64) :: tolerance(1)
     real(real64), allocatable :: envelope_list(:)
-    integer :: unit, p, n_terms
+    integer :: unit, minor, p, n_terms
     status = 0
     message = ''
     n_terms = 0
-    call open_coefficients(path, 'ridge', unit, status, message)
+    call open_coefficients(path, 'ridge', unit, minor, status, message)
+    model%clip_features = minor >= {RIDGE_CLIPPING_VERSION[1]}
     call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
@@ -967,12 +968,12 @@ contains
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
     real(real64) :: tolerance(1)
     real(real64), allocatable :: envelope_list(:)
-    integer :: unit, n_leaves, n_thresholds, t, node, first, last, leaf
+    integer :: unit, minor, n_leaves, n_thresholds, t, node, first, last, leaf
     status = 0
     message = ''
     n_leaves = 0
     n_thresholds = 0
-    call open_coefficients(path, 'boosted', unit, status, message)
+    call open_coefficients(path, 'boosted', unit, minor, status, message)
     call expect_count(unit, 'n_features', {prefix}_n_features, status, message)
     call expect_count(unit, 'n_targets', {prefix}_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)

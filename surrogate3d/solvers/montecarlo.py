@@ -321,13 +321,13 @@ def solve_monte_carlo(scene, solar_zenith_angle, solar_beam_azimuth=0.0, *, phot
         every batch in proportion to their solar weight times scattered fraction, so the
         batch size does not depend on the number of bands.
     batches : int, optional
-        Instead of ``batch_size``: split the photons into this many batches (>= 2; fewer
-        when there are fewer photons than that, as batches are whole).  Standard errors
-        from ``n`` batches are themselves uncertain by about ``1 / sqrt(2 (n - 1))``: 13 % for
-        the default 32, 5 % for 200.  Every batch traces its own direct beam, so many
-        batches cost more: on the shared benchmark scene (128 x 128 x 40 cells) about 6
-        CPU ms per batch, 1.4 times the CPU of 50 batches at 2.5 million photons for 200
-        (``docs/methods/monte-carlo.md``, "Standard errors").
+        Instead of ``batch_size``: at most this many batches (>= 2) of
+        ``ceil(photons / batches)`` photons each (whole batches: 1 000 photons and 300
+        batches give 250).  Standard errors from ``n`` batches are themselves uncertain by
+        about ``1 / sqrt(2 (n - 1))``: 13 % for 32, 5 % for 200.  Every batch traces its own
+        direct beam, so many batches cost more: on the shared benchmark scene (128 x 128 x 40
+        cells) 6-9 CPU ms per batch, 1.29 times the CPU of the default 50 batches at 2.5
+        million photons for 200 (``docs/methods/monte-carlo.md``, "Tallies and their errors").
     rays_per_column : int
         Strata per column and horizontal axis of the direct beam every batch traces (3D
         mode), in [1, 16]: each stratum gets a ray at a uniformly random point of it and

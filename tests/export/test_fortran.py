@@ -141,6 +141,14 @@ def test_ridge_holds_features_beyond_the_training_range_at_its_edge_like_python(
     assert (np.abs(got - expected) / scale).max() <= 1e-10
     assert (np.abs(run.models["ridge"].estimator.predict(far) - expected) / scale).max() <= 1e-12
     np.testing.assert_array_equal(model.predict(far, check_envelope=False), expected)
+    # The module follows the data file's own version: a file of format 1.4 is not clipped.
+    document = read_coefficients(built["export_dir"] / "ridge.coefficients.json")
+    document["format_version"] = "1.4"
+    (tmp_path / "old.txt").write_text(data_file_text(document))
+    got = _run(drivers["ridge"], tmp_path / "old.txt", tmp_path / "far.txt")
+    unclipped = CorrectionModel.from_document(document).predict(far, check_envelope=False)
+    assert np.abs(unclipped - expected).max() > 1e-3 * scale.max()
+    assert (np.abs(got - unclipped) / np.abs(unclipped).max(axis=0)).max() <= 1e-10
 
 
 @needs_gfortran

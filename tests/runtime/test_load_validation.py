@@ -47,6 +47,7 @@ def test_unchanged_files_load(tmp_path, contents):
 
 @pytest.mark.parametrize("change, message", [
     (lambda c: c.update(format_version="2.0"), f"format_version '2.0'; this version reads {FORMAT_VERSION}"),
+    (lambda c: c.update(format_version="1.5b"), r"format_version '1.5b'; this version reads .* \(MAJOR.MINOR"),
     (lambda c: c.update(format="something-else"), "not a surrogate3d coefficient file"),
     (lambda c: c.pop("provenance"), "lacks field 'provenance'"),
     (lambda c: c["model"].update(kind="forest"), "model.kind is 'forest'"),
@@ -62,7 +63,7 @@ def test_unchanged_files_load(tmp_path, contents):
      "feature_recipe is not a valid feature recipe"),
     (lambda c: c["ridge"]["coef"].update(shape=[5, 3]), "'data' has \\d+ values|unpacks to"),
     (lambda c: c["ridge"]["feature_scale"].update(dtype="float16"), "dtype 'float16'"),
-], ids=["version", "format", "missing-section", "kind", "missing-array", "names-vs-arrays", "units-count",
+], ids=["version", "minor-version", "format", "missing-section", "kind", "missing-array", "names-vs-arrays", "units-count",
         "target", "feature-not-in-recipe", "units", "recipe", "shape", "dtype"])
 def test_ridge_file_errors(tmp_path, contents, change, message):
     content = copy.deepcopy(contents["ridge"])

@@ -297,12 +297,12 @@ contains
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
     real(real64) :: tolerance(1)
     real(real64), allocatable :: envelope_list(:)
-    integer :: unit, n_leaves, n_thresholds, t, node, first, last, leaf
+    integer :: unit, minor, n_leaves, n_thresholds, t, node, first, last, leaf
     status = 0
     message = ''
     n_leaves = 0
     n_thresholds = 0
-    call open_coefficients(path, 'boosted', unit, status, message)
+    call open_coefficients(path, 'boosted', unit, minor, status, message)
     call expect_count(unit, 'n_features', boosted_n_features, status, message)
     call expect_count(unit, 'n_targets', boosted_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
@@ -581,15 +581,17 @@ contains
     end if
   end subroutine read_integers
 
-  subroutine open_coefficients(path, kind, unit, status, message)
+  subroutine open_coefficients(path, kind, unit, minor, status, message)
     character(len=*), intent(in) :: path, kind
     integer, intent(out) :: unit
-    integer, intent(inout) :: status
+    integer, intent(out) :: minor   ! the file's minor format version (what it asks of the evaluation)
     character(len=*), intent(inout) :: message
+    integer, intent(inout) :: status
     character(len=line_length) :: line
     integer :: ios, dot
     ! -1 is never a NEWUNIT= value: it marks a file that could not be opened.
     unit = -1
+    minor = 0
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) then
       unit = -1
@@ -608,6 +610,12 @@ contains
       status = 1
       message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // &
           '; this module reads major version ' // format_major
+    else
+      read (line(dot + 1:), *, iostat=ios) minor
+      if (ios /= 0) then
+        status = 1
+        message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // '; expected MAJOR.MINOR'
+      end if
     end if
     call expect_line(unit, 'kind ' // kind, status, message)
     call next_line(unit, line, status, message)   ! the model name, for people reading the file

@@ -75,6 +75,7 @@ module ridge_correction
     real(real64), allocatable :: coef(:, :)             ! (n_targets, n_features + n_pairs)
     real(real64), allocatable :: intercept(:)
     integer(int32), allocatable :: near_constant(:)     ! features constant up to round-off (see the reader)
+    logical :: clip_features = .false.                  ! hold features within the envelope's ranges
     integer :: n_clear_sky = 0                             ! clear-sky gate: no gate when 0
     integer(int32), allocatable :: clear_sky_features(:)   ! (n_clear_sky), 1-based feature indices
     real(real64) :: clear_sky_tolerance = 0.0_real64
@@ -107,9 +108,9 @@ contains
       corrections = 0.0_real64
       return
     end if
-    ! Within the training range: a fitted quadratic runs away beyond its data (the envelope
-    ! check still flags the column).  A NaN stays NaN, as in numpy's clip.
-    if (model%n_envelope > 0) then
+    ! Within the training range (files of format 1.5 on): a fitted quadratic runs
+    ! away beyond its data; the envelope check still flags the column.  A NaN stays NaN, as in numpy's clip.
+    if (model%clip_features .and. model%n_envelope > 0) then
       z = (merge(features, min(max(features, model%envelope_min), model%envelope_max), ieee_is_nan(features)) &
           - model%feature_mean) / model%feature_scale
     else
@@ -304,11 +305,12 @@ contains
     integer(int32), allocatable :: pair_list(:)
     real(real64) :: tolerance(1)
     real(real64), allocatable :: envelope_list(:)
-    integer :: unit, p, n_terms
+    integer :: unit, minor, p, n_terms
     status = 0
     message = ''
     n_terms = 0
-    call open_coefficients(path, 'ridge', unit, status, message)
+    call open_coefficients(path, 'ridge', unit, minor, status, message)
+    model%clip_features = minor >= 5
     call expect_count(unit, 'n_features', ridge_n_features, status, message)
     call expect_count(unit, 'n_targets', ridge_n_targets, status, message)
     call read_count(unit, 'n_clear_sky_features', model%n_clear_sky, status, message)
@@ -551,15 +553,17 @@ contains
     end if
   end subroutine read_integers
 
-  subroutine open_coefficients(path, kind, unit, status, message)
+  subroutine open_coefficients(path, kind, unit, minor, status, message)
     character(len=*), intent(in) :: path, kind
     integer, intent(out) :: unit
-    integer, intent(inout) :: status
+    integer, intent(out) :: minor   ! the file's minor format version (what it asks of the evaluation)
     character(len=*), intent(inout) :: message
+    integer, intent(inout) :: status
     character(len=line_length) :: line
     integer :: ios, dot
     ! -1 is never a NEWUNIT= value: it marks a file that could not be opened.
     unit = -1
+    minor = 0
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) then
       unit = -1
@@ -578,6 +582,12 @@ contains
       status = 1
       message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // &
           '; this module reads major version ' // format_major
+    else
+      read (line(dot + 1:), *, iostat=ios) minor
+      if (ios /= 0) then
+        status = 1
+        message = path // ' has format version ' // trim(line(len(format_name) + 2:)) // '; expected MAJOR.MINOR'
+      end if
     end if
     call expect_line(unit, 'kind ' // kind, status, message)
     call next_line(unit, line, status, message)   ! the model name, for people reading the file
