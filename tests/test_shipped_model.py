@@ -59,7 +59,7 @@ def test_shipped_host_interface_is_what_the_generator_makes(name):
 @pytest.mark.skipif(shutil.which("gfortran") is None, reason="gfortran is not installed (make test installs it)")
 @pytest.mark.parametrize("name", sorted(LIMITS))
 def test_shipped_fortran_builds_and_reproduces_its_sample(name, tmp_path):
-    # The shipped files predate the training envelope (format 1.1): the module must read them.
+    # The module built from the shipped files reads them and reproduces what Python computes.
     fortran = SHIPPED / "fortran"
     built = subprocess.run(["gfortran", "-std=f2008", "-Wall", "-Werror", "-O2", str(fortran / f"{name}_correction.f90"),
                             str(fortran / f"{name}_correction_driver.f90"), "-o", "driver"], cwd=tmp_path,
