@@ -22,7 +22,7 @@ from ..solvers.heating import DRY_AIR_SPECIFIC_HEAT, SECONDS_PER_DAY, STANDARD_G
 from . import figures
 from .predictions import NO_CORRECTION, raw_correction
 from .profile_skill import ProfileEvaluation, column_integral, height_rows, masked_rmse, rmse_reduction
-from .scored_model import ScoredModel
+from .scored_model import profile_column_model
 
 #: The column target the layers are matched to.
 COLUMN_TARGET = "longwave_atmosphere_net_absorption"
@@ -174,13 +174,11 @@ def longwave_profile_skill(run, held, targets, notes):
     layers = estimator.predict_pairs(held)
     if COLUMN_TARGET not in targets:
         return score_longwave_profiles(run.profile.name, estimator, held, layers=layers)
-    kinds = {name: model.kind for name, model in run.models.items()}
-    name = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
-    model = ScoredModel.from_estimator(name, kinds[name], run.models[name].estimator)
+    model = profile_column_model(run)
     correction, gated, _ = raw_correction(model, held, targets)
     layers = np.where(gated[:, None] & np.isfinite(layers), 0.0, layers)
     return score_longwave_profiles(run.profile.name, estimator, held, correction[:, targets.index(COLUMN_TARGET)],
-                                   name, layers=layers)
+                                   model.name, layers=layers)
 
 
 def longwave_profile_panels(mean_profiles, by_height, model_name):

@@ -28,7 +28,7 @@ from .predictions import consistent_correction, raw_correction
 from .longwave_profile_skill import longwave_profile_skill
 from .profile_skill import score_profiles
 from .report_writer import write_report
-from .scored_model import ScoredModel
+from .scored_model import ScoredModel, profile_column_model
 
 __all__ = ["HELD_OUT", "LEFT_OUT", "evaluate", "write_report"]
 
@@ -206,12 +206,10 @@ def _profile_skill(run, held, targets, notes):
     layers = estimator.predict_pairs(held)
     if "atmosphere_absorption" not in targets:
         return score_profiles(run.profile.name, estimator, held, layers=layers)
-    kinds = {name: model.kind for name, model in run.models.items()}
-    name = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
-    model = ScoredModel.from_estimator(name, kinds[name], run.models[name].estimator)
+    model = profile_column_model(run)
     correction, gated, _ = raw_correction(model, held, targets)
     layers = np.where(gated[:, None] & np.isfinite(layers), 0.0, layers)
     m = targets.index("atmosphere_absorption")
     correction[:, m] = layer_sum(layers)
     column = consistent_correction(held, targets, correction, gated).correction[:, m]
-    return score_profiles(run.profile.name, estimator, held, column, name, layers=layers)
+    return score_profiles(run.profile.name, estimator, held, column, model.name, layers=layers)

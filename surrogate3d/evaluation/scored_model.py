@@ -67,3 +67,11 @@ class ScoredModel:
     def envelope_check(self, X):
         """:class:`~surrogate3d.runtime.envelope.EnvelopeCheck` of the samples."""
         return self.model.envelope_check(X)
+
+
+def profile_column_model(run):
+    """The column model of a training run whose correction a heating-rate model's layers are
+    matched to (the boosted one, else the first), as a :class:`ScoredModel`."""
+    kinds = {name: model.kind for name, model in run.models.items()}
+    name = next((n for n, k in kinds.items() if k == "boosted"), next(iter(kinds)))
+    return ScoredModel.from_estimator(name, kinds[name], run.models[name].estimator)
