@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from surrogate3d.core.coefficient_file import read_coefficients
-from surrogate3d.export import host_files, regenerated_fortran
+from surrogate3d.export import host_files, longwave_host_files, regenerated_fortran
 from surrogate3d.runtime import load_coefficients
 
 SHIPPED = Path(__file__).resolve().parents[1] / "models" / "default"
@@ -105,6 +105,15 @@ def test_shipped_longwave_model_reproduces_its_sample_and_fits_its_limits(name):
                                                       LONGWAVE / "fortran").items():
         assert (LONGWAVE / "fortran" / file_name).read_text() == text, (
             f"models/longwave/fortran/{file_name} ({key}) differs from the generator's (models/README.md)")
+
+
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_shipped_longwave_host_interface_is_what_the_generator_makes(name):
+    # The longwave features module, the one-call host module and the halo statement.
+    for file_name, text in longwave_host_files(read_coefficients(LONGWAVE / f"{name}.coefficients.json")).items():
+        assert (LONGWAVE / "fortran" / file_name).read_text() == text, (
+            f"models/longwave/fortran/{file_name} differs from the generator's; refresh it with "
+            f"surrogate3d.export.refresh_host_fortran (models/README.md)")
 
 
 def test_longwave_model_card_states_what_a_user_must_know():

@@ -23,6 +23,7 @@ from ..runtime.profile import layer_rows
 from .coefficients import build_document, write_coefficients
 from .fortran import fortran_files, fortran_name, read_features_file, write_fortran
 from .fortran_host import has_host_interface, host_files
+from .fortran_longwave import has_longwave_host_interface, longwave_host_files
 from .._atomic import write_text_atomic
 
 #: Subdirectory of the export directory that holds the Fortran files.
@@ -184,7 +185,7 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
         profile_document = read_coefficients(exported[profile]["json"]) if profile else None
         for paths in exported.values():
             document = read_coefficients(paths["json"])
-            if has_host_interface(document):
+            if has_host_interface(document) or has_longwave_host_interface(document):
                 paths.update(write_host_fortran(document, Path(out_dir) / FORTRAN_DIR, profile_document))
     return exported
 
@@ -192,8 +193,9 @@ def export_training_run(model_dir, out_dir, model=None, report_dir=None, fortran
 def refresh_host_fortran(coefficients_path, fortran_dir, profile_coefficients_path=None):
     """Rewrite the host interface of an exported column model with this version's generator.
 
-    ``models/default/fortran`` is refreshed this way (with the heating-rate model beside
-    it) whenever the generator changes; ``tests/test_shipped_model.py`` checks that it is.
+    ``models/default/fortran`` (with the heating-rate model beside it) and
+    ``models/longwave/fortran`` are refreshed this way whenever the generator changes;
+    ``tests/test_shipped_model.py`` checks that they are.
 
     Parameters
     ----------
@@ -213,7 +215,8 @@ def refresh_host_fortran(coefficients_path, fortran_dir, profile_coefficients_pa
 
 
 def write_host_fortran(document, fortran_dir, profile_document=None):
-    """Write the host interface of a column model (:func:`surrogate3d.export.fortran_host.host_files`).
+    """Write the host interface of a column model (:func:`surrogate3d.export.fortran_host.host_files`, or for a
+    longwave model :func:`surrogate3d.export.fortran_longwave.longwave_host_files`).
 
     Parameters
     ----------
@@ -221,18 +224,21 @@ def write_host_fortran(document, fortran_dir, profile_document=None):
         A column model's checked coefficient document.
     fortran_dir : str or Path
     profile_document : dict, optional
-        A heating-rate model's document, exported beside it.
+        A (shortwave) heating-rate model's document, exported beside it.
 
     Returns
     -------
     dict of str -> Path
-        ``host_module``, ``host_driver``, ``features_module``, ``halo`` (and ``profile_features_module``).
+        ``host_module``, ``features_module``, ``halo`` (and for a shortwave model ``host_driver`` and
+        ``profile_features_module``).
     """
     prefix = fortran_name(document["model"]["name"])
     keys = {f"{prefix}_host.f90": "host_module", f"{prefix}_host_driver.f90": "host_driver",
             f"{prefix}_features.f90": "features_module", f"{prefix}_halo.md": "halo"}
+    files = (longwave_host_files(document) if has_longwave_host_interface(document)
+             else host_files(document, profile_document))
     paths = {}
-    for name, text in host_files(document, profile_document).items():
+    for name, text in files.items():
         write_text_atomic(Path(fortran_dir) / name, text)
         paths[keys.get(name, "profile_features_module")] = Path(fortran_dir) / name
     return paths

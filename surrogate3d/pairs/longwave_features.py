@@ -19,6 +19,7 @@ import numpy as np
 
 from ..baselines.effective_cloud_fraction import effective_cloud_fraction_corrections
 from ..core.data_model import LONGWAVE_COLUMN_FLUXES, RECIPE_VERSION
+from ..core.validation import check_array
 from ..errors import ParameterError, ValidationError
 from . import features as library
 from .recipe import DEFAULT_PARAMETERS, FeatureRecipe
@@ -114,10 +115,12 @@ def longwave_host_features(fields, host_fluxes):
     dict of str -> ndarray (Ny, Nx)
         Keys in the order of :data:`LONGWAVE_FEATURES`.
     """
-    missing = [k for k in LONGWAVE_HOST_FIELDS if k not in fields]
+    missing = [k for k in ("z_edge", "dx", "dy", "layer_cloud_fraction", "total_cloud_fraction", *LONGWAVE_HOST_FIELDS)
+               if k not in fields]
     missing += [flux for flux in LONGWAVE_TARGETS if flux not in host_fluxes]
     if missing:
         raise ValidationError(f"longwave host fields lack {missing}")
+    check_longwave_host_fields(fields, host_fluxes)
     base = library.cloud_base_height(fields)
     top = library.cloud_top_height(fields)
     z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
@@ -154,6 +157,43 @@ def longwave_host_features(fields, host_fluxes):
                                                          + out["surface_longwave_emissivity"]
                                                          * out["effective_cloud_fraction_prior"])
     return out
+
+
+#: Allowed values of the longwave host fields: name -> (low, high, low open); the host's
+#: net absorptions may have either sign.  The generated Fortran checks the same.
+LONGWAVE_FIELD_RANGES = {
+    "layer_cloud_fraction": (0.0, 1.0, False), "layer_air_temperature": (0.0, None, True),
+    "total_cloud_fraction": (0.0, 1.0, False), "cloud_edge_length": (0.0, None, False),
+    "liquid_water_path": (0.0, None, False), "surface_temperature": (0.0, None, True),
+    "surface_longwave_emissivity": (0.0, 1.0, False),
+    "longwave_clear_sky_surface_downward_flux": (0.0, None, False),
+    "longwave_clear_sky_toa_upward_flux": (0.0, None, False),
+    **{flux: ((None, None, False) if "net_absorption" in flux else (0.0, None, False)) for flux in LONGWAVE_TARGETS},
+}
+
+
+def check_longwave_host_fields(fields, host_fluxes):
+    """Raise ValidationError at the first value of a longwave host field that is not finite or not allowed.
+
+    Parameters
+    ----------
+    fields : dict
+        The host fields of :func:`longwave_host_features`.
+    host_fluxes : dict of str -> ndarray
+        The host's independent-column longwave fields [W m-2].
+
+    Raises
+    ------
+    surrogate3d.errors.ValidationError
+        Naming the field, the index and the allowed interval
+        (:data:`LONGWAVE_FIELD_RANGES`), or a ``z_edge`` that is not strictly increasing.
+    """
+    z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
+    if z_edge.ndim != 1 or z_edge.size < 2 or not np.all(np.isfinite(z_edge)) or np.any(np.diff(z_edge) <= 0):
+        raise ValidationError(f"host_fields['z_edge'] must be strictly increasing layer edge heights [m]; got {z_edge!r}")
+    for name, (low, high, low_open) in LONGWAVE_FIELD_RANGES.items():
+        value = host_fluxes[name] if name in host_fluxes else fields[name]
+        check_array(f"host_fields[{name!r}]", value, low, high, low_open=low_open, error=ValidationError)
 
 
 def effective_cloud_fraction_prior(cloud_fraction, edge_length, cloud_depth, host_down, clear_down):
