@@ -105,18 +105,28 @@ def _mu0(fields):
 # --- periodic stencils ------------------------------------------------------------------
 
 def _box_sum(a, m, axis):
-    """Periodic sum over the ``2 m + 1`` cells centred on each cell along ``axis`` (cumulative sum)."""
-    if m == 0:
-        return np.array(a, dtype=np.float64, copy=True)
+    """Periodic sum over the ``2 m + 1`` cells centred on each cell along ``axis``.
+
+    The terms are added in order from the lowest offset, so that a cell's sum depends only
+    on the values in its window, not on where the domain starts: a sub-domain with a halo
+    gives the whole domain's sums bit for bit, and so does the generated Fortran (which adds
+    the same terms in the same order).  A difference of cumulative sums would be cheaper but
+    carries the rounding of everything before the window, and a window mean that falls on a
+    tree threshold (cloud fractions come in steps) would then branch differently in another
+    decomposition.
+    """
+    a = np.asarray(a, dtype=np.float64)
     n = a.shape[axis]
-    # The array extended periodically by m + 1 cells before and m after (slices while the
-    # window fits in the domain, an index list when it wraps more than once).
-    if m + 1 <= n:
-        ext = np.concatenate([_along(a, axis, slice(n - m - 1, n)), a, _along(a, axis, slice(0, m))], axis=axis)
-    else:
-        ext = np.take(a, np.arange(-m - 1, n + m) % n, axis=axis)
-    c = np.cumsum(ext, axis=axis, dtype=np.float64)
-    return _along(c, axis, slice(2 * m + 1, 2 * m + 1 + n)) - _along(c, axis, slice(0, n))
+    out = np.zeros_like(a)
+    # One pass per offset: slices of the periodically extended array while the window fits
+    # in the domain, an index list when it wraps more than once.
+    ext = None
+    if m <= n:
+        ext = np.concatenate([_along(a, axis, slice(n - m, n)), a, _along(a, axis, slice(0, m))], axis=axis)
+    for o in range(-m, m + 1):
+        out += (_along(ext, axis, slice(m + o, m + o + n)) if ext is not None
+                else np.take(a, (np.arange(n) + o) % n, axis=axis))
+    return out
 
 
 def _along(a, axis, index):

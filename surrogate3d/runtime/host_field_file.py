@@ -24,6 +24,14 @@ The arrays (:data:`ARRAYS`) are those of :mod:`surrogate3d.pairs.features` plus 
 host's independent-column fluxes stacked in the order of
 :data:`surrogate3d.core.data_model.TARGETS` and its independent-column absorption of every
 layer (for the heating-rate model), all on the sub-domain *with* its halo.
+
+The longwave host field file (first line ``surrogate3d longwave host fields 1``, for the
+longwave host interface of :mod:`surrogate3d.export.fortran_longwave`) has the same layout
+with the scalars ``dx`` and ``dy`` only and the arrays of :data:`LONGWAVE_ARRAYS`: those of
+:func:`surrogate3d.pairs.longwave_features.longwave_host_features`, the host's clear-sky
+surface downward and top-of-domain upward fluxes stacked as ``clear_sky_fluxes`` and its
+own independent-column longwave fields stacked as ``longwave_fluxes`` (the order of
+:data:`surrogate3d.pairs.longwave_features.LONGWAVE_TARGETS`) [W m-2].
 """
 
 import numpy as np
@@ -34,6 +42,8 @@ from ..errors import FormatError, ValidationError
 
 FORMAT_NAME = "surrogate3d host fields"
 FORMAT_VERSION = 2
+LONGWAVE_FORMAT_NAME = "surrogate3d longwave host fields"
+LONGWAVE_FORMAT_VERSION = 1
 
 #: The arrays of a host field file, in order: name -> kind ("edges", "layers", "plane", "fluxes").
 ARRAYS = {
@@ -50,12 +60,42 @@ ARRAYS = {
     "independent_column_layer_absorption": "layers",
 }
 
+#: The arrays of a longwave host field file, in order: name -> kind.
+LONGWAVE_ARRAYS = {
+    "z_edge": "edges",
+    "layer_cloud_fraction": "layers",
+    "layer_air_temperature": "layers",
+    "total_cloud_fraction": "plane",
+    "cloud_edge_length": "plane",
+    "liquid_water_path": "plane",
+    "surface_temperature": "plane",
+    "surface_longwave_emissivity": "plane",
+    "clear_sky_fluxes": "clear_sky",
+    "longwave_fluxes": "fluxes",
+}
+
+#: The clear-sky fields of ``clear_sky_fluxes``, in order.
+CLEAR_SKY_FIELDS = ("longwave_clear_sky_surface_downward_flux", "longwave_clear_sky_toa_upward_flux")
+
 _SCALARS = ("dx", "dy", "solar_zenith_angle", "solar_beam_azimuth", "slant_path_reach")
+_LONGWAVE_SCALARS = ("dx", "dy")
 _PER_LINE = 6
 
 
 def _shape(kind, nz, ny, nx):
-    return {"edges": (nz + 1,), "layers": (nz, ny, nx), "plane": (ny, nx), "fluxes": (len(TARGETS), ny, nx)}[kind]
+    return {"edges": (nz + 1,), "layers": (nz, ny, nx), "plane": (ny, nx), "fluxes": (len(TARGETS), ny, nx),
+            "clear_sky": (len(CLEAR_SKY_FIELDS), ny, nx)}[kind]
+
+
+def _layout(longwave):
+    """(first line, scalars, arrays) of either kind of file."""
+    if longwave:
+        return f"{LONGWAVE_FORMAT_NAME} {LONGWAVE_FORMAT_VERSION}", _LONGWAVE_SCALARS, LONGWAVE_ARRAYS
+    return f"{FORMAT_NAME} {FORMAT_VERSION}", _SCALARS, ARRAYS
+
+
+def _grid_shape(fields):
+    return np.shape(fields["total_cloud_fraction"])
 
 
 def stacked_fields(host_fields, layer_absorption):
@@ -85,7 +125,34 @@ def stacked_fields(host_fields, layer_absorption):
     return out
 
 
-def host_field_text(fields, halo, origin, domain):
+def stacked_longwave_fields(fields, host_fluxes):
+    """The arrays of a longwave host field file from longwave host fields.
+
+    Parameters
+    ----------
+    fields : dict
+        The host fields of :func:`surrogate3d.pairs.longwave_features.longwave_host_features`.
+    host_fluxes : dict of str -> ndarray (ny, nx)
+        The host's independent-column longwave fields [W m-2], keys
+        :data:`~surrogate3d.pairs.longwave_features.LONGWAVE_TARGETS`.
+
+    Returns
+    -------
+    dict
+        ``fields`` with ``clear_sky_fluxes`` (2, ny, nx) and ``longwave_fluxes`` (5, ny, nx).
+    """
+    from ..pairs.longwave_features import LONGWAVE_TARGETS
+
+    missing = [k for k in CLEAR_SKY_FIELDS if k not in fields] + [k for k in LONGWAVE_TARGETS if k not in host_fluxes]
+    if missing:
+        raise ValidationError("longwave host fields lack " + ", ".join(missing))
+    out = dict(fields)
+    out["clear_sky_fluxes"] = np.stack([np.asarray(fields[k], dtype=np.float64) for k in CLEAR_SKY_FIELDS])
+    out["longwave_fluxes"] = np.stack([np.asarray(host_fluxes[k], dtype=np.float64) for k in LONGWAVE_TARGETS])
+    return out
+
+
+def host_field_text(fields, halo, origin, domain, longwave=False):
     """Text of a host field file.
 
     Parameters
@@ -94,28 +161,32 @@ def host_field_text(fields, halo, origin, domain):
         The arrays of :data:`ARRAYS` (numpy order: ``(nz, ny, nx)``, ``(ny, nx)``,
         ``(5, ny, nx)``) on the sub-domain with its halo, and the scalars ``dx``, ``dy``
         [m], ``solar_zenith_angle``, ``solar_beam_azimuth`` [degree] and, optionally,
-        ``slant_path_reach`` [m] (written as ``inf`` when absent: no cap).
+        ``slant_path_reach`` [m] (written as ``inf`` when absent: no cap); for a
+        longwave file those of :data:`LONGWAVE_ARRAYS` and ``dx``, ``dy``.
     halo : (int, int)
         Halo ``(hx, hy)`` in columns.
     origin : (int, int)
         0-based ``(ix0, iy0)`` of the first own column in the whole domain.
     domain : (int, int)
         ``(nx, ny)`` of the whole domain.
+    longwave : bool
+        Write a longwave host field file.
 
     Returns
     -------
     str
     """
+    first, scalars, arrays = _layout(longwave)
     hx, hy = (int(h) for h in halo)
     nz = np.asarray(fields["z_edge"]).size - 1
-    ny_h, nx_h = np.shape(fields["surface_albedo"])
+    ny_h, nx_h = _grid_shape(fields)
     nx, ny = nx_h - 2 * hx, ny_h - 2 * hy
     if nx < 1 or ny < 1:
         raise ValidationError(f"a halo of ({hx}, {hy}) leaves no own column in fields of {nx_h} x {ny_h} columns")
-    lines = [f"{FORMAT_NAME} {FORMAT_VERSION}", f"grid {nx} {ny} {nz} {hx} {hy}",
+    lines = [first, f"grid {nx} {ny} {nz} {hx} {hy}",
              f"origin {int(origin[0])} {int(origin[1])}", f"domain {int(domain[0])} {int(domain[1])}"]
-    lines += [f"{key} {float(fields.get(key, float('inf')))!r}" for key in _SCALARS]
-    for name, kind in ARRAYS.items():
+    lines += [f"{key} {float(fields.get(key, float('inf')))!r}" for key in scalars]
+    for name, kind in arrays.items():
         value = np.asarray(fields[name], dtype=np.float64)
         expected = _shape(kind, nz, ny_h, nx_h)
         if value.shape != expected:
@@ -129,9 +200,9 @@ def host_field_text(fields, halo, origin, domain):
     return "\n".join(lines) + "\n"
 
 
-def write_host_field_file(path, fields, halo, origin, domain):
+def write_host_field_file(path, fields, halo, origin, domain, longwave=False):
     """Write a host field file atomically (:func:`host_field_text`)."""
-    write_text_atomic(path, host_field_text(fields, halo, origin, domain))
+    write_text_atomic(path, host_field_text(fields, halo, origin, domain, longwave))
 
 
 def read_host_field_file(path):
@@ -146,7 +217,8 @@ def read_host_field_file(path):
     fields : dict
         Arrays in numpy order and the scalars, as :func:`host_field_text` takes them.
     layout : dict
-        ``halo`` (hx, hy), ``origin`` (ix0, iy0), ``domain`` (nx, ny), ``own`` (nx, ny).
+        ``halo`` (hx, hy), ``origin`` (ix0, iy0), ``domain`` (nx, ny), ``own`` (nx, ny),
+        ``longwave`` (whether it is a longwave host field file).
 
     Raises
     ------
@@ -155,8 +227,11 @@ def read_host_field_file(path):
     """
     lines = open(path).read().splitlines()
     where = f"host field file {str(path)!r}"
-    if not lines or lines[0] != f"{FORMAT_NAME} {FORMAT_VERSION}":
-        raise FormatError(f"{where} does not start with {FORMAT_NAME!r} {FORMAT_VERSION}")
+    longwave = bool(lines) and lines[0] == _layout(True)[0]
+    first, scalars, arrays = _layout(longwave)
+    if not lines or lines[0] != first:
+        raise FormatError(f"{where} does not start with {FORMAT_NAME!r} {FORMAT_VERSION} or "
+                          f"{LONGWAVE_FORMAT_NAME!r} {LONGWAVE_FORMAT_VERSION}")
 
     def header(index, key, count, kind):
         parts = lines[index].split() if index < len(lines) else []
@@ -166,11 +241,11 @@ def read_host_field_file(path):
 
     nx, ny, nz, hx, hy = header(1, "grid", 5, int)
     origin, domain = header(2, "origin", 2, int), header(3, "domain", 2, int)
-    fields = {key: header(4 + i, key, 1, float)[0] for i, key in enumerate(_SCALARS)}
-    if fields["slant_path_reach"] == float("inf"):
+    fields = {key: header(4 + i, key, 1, float)[0] for i, key in enumerate(scalars)}
+    if fields.get("slant_path_reach") == float("inf"):
         del fields["slant_path_reach"]
-    index = 4 + len(_SCALARS)
-    for name, kind in ARRAYS.items():
+    index = 4 + len(scalars)
+    for name, kind in arrays.items():
         expected = _shape(kind, nz, ny + 2 * hy, nx + 2 * hx)
         (count,) = header(index, name, 1, int)
         if count != int(np.prod(expected)):
@@ -181,7 +256,8 @@ def read_host_field_file(path):
             raise FormatError(f"{where}: {name} is truncated ({values.size} of {count} values)")
         fields[name] = values.reshape(expected)
         index += 1 + n_lines
-    return fields, {"halo": (hx, hy), "origin": tuple(origin), "domain": tuple(domain), "own": (nx, ny)}
+    return fields, {"halo": (hx, hy), "origin": tuple(origin), "domain": tuple(domain), "own": (nx, ny),
+                    "longwave": longwave}
 
 
 def split_periodic(fields, parts, halo):
@@ -205,13 +281,13 @@ def split_periodic(fields, parts, halo):
 
     Examples
     --------
-    >>> f = {"surface_albedo": np.arange(16.0).reshape(4, 4)}
-    >>> [(origin, sub["surface_albedo"].shape) for sub, origin in split_periodic(f, (2, 1), (1, 0))]
+    >>> f = {"total_cloud_fraction": np.arange(16.0).reshape(4, 4)}
+    >>> [(origin, sub["total_cloud_fraction"].shape) for sub, origin in split_periodic(f, (2, 1), (1, 0))]
     [((0, 0), (4, 4)), ((2, 0), (4, 4))]
     """
     px, py = (int(p) for p in parts)
     hx, hy = (int(h) for h in halo)
-    ny, nx = np.shape(fields["surface_albedo"])
+    ny, nx = _grid_shape(fields)
     if px < 1 or py < 1 or nx % px or ny % py:
         raise ValidationError(f"parts {parts} must divide the {nx} x {ny} host domain into equal sub-domains")
     sx, sy = nx // px, ny // py

@@ -8,13 +8,17 @@ scene; the four sub-domains of a split give the whole domain's Fortran features 
 bit; ``NAME_correct_host`` of the shipped ``models/longwave`` models returns the numpy
 runtime's corrections (to 1e-9 W m-2), envelope flags and the host's fields plus the
 corrections; bad input gives the documented status and a message naming the field and
-the index, and the numpy runtime refuses the same input in one line.  The modules are
+the index, and the numpy runtime refuses the same input in one line; the host-model
+guide's commands (a scene written as longwave host field files, whole and split, the
+generated example driver) give the numpy runtime's corrections.  The modules are
 compiled with ``gfortran -std=f2008 -Wall -Werror -O2``; fields go to the test program as
 stream-binary doubles, which read back exactly.
 """
 
+import re
 import shutil
 import subprocess
+import sys
 from pathlib import Path
 
 import numpy as np
@@ -27,6 +31,7 @@ from surrogate3d.core.coefficient_file import read_coefficients
 from surrogate3d.pairs.longwave_features import (LONGWAVE_FEATURES, LONGWAVE_TARGETS, LongwaveFeatureRecipe,
                                                  longwave_halo_width, longwave_host_features)
 from surrogate3d.runtime import load_coefficients
+from surrogate3d.runtime.host_field_file import CLEAR_SKY_FIELDS, read_host_field_file
 
 ROOT = Path(__file__).resolve().parents[2]
 GFORTRAN = shutil.which("gfortran")
@@ -321,3 +326,60 @@ def test_correct_host_of_the_shipped_longwave_models_equals_the_numpy_runtime(tm
     status, part, _ = program.run(padded(fields, fluxes, hx, hy, 2, 1, 5, 4), hx, hy)
     assert status == 0
     np.testing.assert_array_equal(part.reshape(4, 5, -1), got.reshape(6, 8, -1)[1:5, 2:7])
+
+
+def _guide_commands():
+    """The shell block of the guide's section on the decomposed longwave Fortran host."""
+    text = (ROOT / "docs" / "host-model-guide.md").read_text()
+    section = text[text.index("### Longwave corrected fields in a decomposed Fortran host"):]
+    return re.search(r"```sh\n(.*?)```", section, re.S).group(1)
+
+
+def _driver_rows(path):
+    rows = np.loadtxt(path, ndmin=2)
+    return rows[np.lexsort((rows[:, 0], rows[:, 1]))]          # row-major (iy, ix)
+
+
+@needs_gfortran
+def test_guide_commands_give_the_numpy_corrections_whole_and_split(tmp_path):
+    (tmp_path / "models").symlink_to(ROOT / "models")
+    env = {"PATH": f"{Path(sys.executable).parent}:/usr/bin:/bin", "HOME": str(tmp_path)}
+    done = subprocess.run(["bash", "-e", "-c", _guide_commands()], cwd=tmp_path, env=env, capture_output=True,
+                          text=True, timeout=600)
+    assert done.returncode == 0, done.stderr[-2000:]
+    whole = _driver_rows(tmp_path / "lw-demo" / "whole.out")
+    split = _driver_rows(tmp_path / "lw-demo" / "split.out")
+    np.testing.assert_array_equal(split, whole)
+    # The numpy runtime on the periodic domain (the whole file without its halo).
+    fields, layout = read_host_field_file(tmp_path / "lw-demo" / "fields" / "whole.txt")
+    assert layout["longwave"] and layout["halo"] == (3, 3)
+    inner = {k: (v[..., 3:-3, 3:-3] if np.ndim(v) >= 2 else v) for k, v in fields.items()}
+    inner.update(zip(CLEAR_SKY_FIELDS, inner.pop("clear_sky_fluxes")))
+    inner.update(zip(LONGWAVE_TARGETS, inner.pop("longwave_fluxes")))
+    model = load_coefficients(ROOT / "models" / "longwave" / "boosted.coefficients.json")
+    features = model.host_features(inner)
+    corrections = model.predict(features, check_envelope=False)
+    n = model.n_targets
+    own = np.stack([inner[t].ravel() for t in model.target_names], axis=1)
+    assert whole.shape == (144, 2 + 2 * n + 1)
+    np.testing.assert_allclose(whole[:, 2 + n:2 + 2 * n], corrections, rtol=1e-10, atol=1e-9)
+    np.testing.assert_allclose(whole[:, 2:2 + n], own + corrections, rtol=1e-12, atol=1e-9)
+    np.testing.assert_array_equal(whole[:, -1] == 1.0, model.envelope_check(features).outside)
+    # Broken clouds warm the surface: the corrections are not all zero.
+    assert np.abs(corrections[:, 0]).max() > 1.0
+
+
+def test_host_fields_refuses_mixed_spectra_and_a_missing_zenith_in_one_line(tmp_path, capsys):
+    from surrogate3d.archive import write_scene
+    from surrogate3d.cli import main
+    from surrogate3d.scenes.generator import generate_scene
+
+    write_scene(generate_scene("scattered_cumulus", 0, nx=20, ny=20, nz=6), tmp_path / "scene.nc")
+    shortwave, longwave = (str(ROOT / "models" / d / "boosted.coefficients.json") for d in ("default", "longwave"))
+    for models, extra, text in (([shortwave, longwave], ["--zenith", "30"], "mixes shortwave and longwave models"),
+                                ([shortwave], [], "--zenith is required for shortwave models")):
+        assert main(["host-fields", str(tmp_path / "scene.nc"), "--model", *models, "--out", str(tmp_path / "out"),
+                     "--host-resolution", "1000", *extra]) != 0
+        err = capsys.readouterr().err.strip()
+        assert text in err and "\n" not in err
+        assert not (tmp_path / "out").exists()

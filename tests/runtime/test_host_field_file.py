@@ -5,7 +5,9 @@ import pytest
 
 from surrogate3d.core.data_model import TARGETS
 from surrogate3d.errors import FormatError, ValidationError
-from surrogate3d.runtime.host_field_file import (ARRAYS, read_host_field_file, split_periodic, stacked_fields,
+from surrogate3d.pairs.longwave_features import LONGWAVE_TARGETS
+from surrogate3d.runtime.host_field_file import (ARRAYS, CLEAR_SKY_FIELDS, LONGWAVE_ARRAYS, read_host_field_file,
+                                                 split_periodic, stacked_fields, stacked_longwave_fields,
                                                  write_host_field_file)
 
 
@@ -29,10 +31,33 @@ def test_round_trip_is_exact(tmp_path):
     (sub, origin), = split_periodic(fields, (1, 1), (2, 1))
     write_host_field_file(tmp_path / "f.txt", sub, (2, 1), origin, (8, 6))
     back, layout = read_host_field_file(tmp_path / "f.txt")
-    assert layout == {"halo": (2, 1), "origin": (0, 0), "domain": (8, 6), "own": (8, 6)}
+    assert layout == {"halo": (2, 1), "origin": (0, 0), "domain": (8, 6), "own": (8, 6), "longwave": False}
     for name in ARRAYS:
         np.testing.assert_array_equal(back[name], sub[name])
     assert back["solar_zenith_angle"] == fields["solar_zenith_angle"] and back["dy"] == 750.0
+
+
+def test_longwave_round_trip_is_exact(tmp_path):
+    rng = np.random.default_rng(3)
+    fields = {"z_edge": np.array([0.0, 333.3, 1000.0 + 1e-9]), "dx": 1000.0, "dy": 750.0}
+    for name, kind in LONGWAVE_ARRAYS.items():
+        if kind in ("layers", "plane"):
+            fields[name] = rng.uniform(200.0, 300.0, (2, 6, 8) if kind == "layers" else (6, 8)) / 7.0
+    fields.update({name: rng.uniform(200.0, 400.0, (6, 8)) for name in CLEAR_SKY_FIELDS})
+    fluxes = {name: rng.normal(0.0, 100.0, (6, 8)) for name in LONGWAVE_TARGETS}
+    stacked = stacked_longwave_fields(fields, fluxes)
+    np.testing.assert_array_equal(stacked["longwave_fluxes"][2], fluxes[LONGWAVE_TARGETS[2]])
+    parts = split_periodic(stacked, (2, 1), (1, 1))
+    sub, origin = parts[1]
+    write_host_field_file(tmp_path / "lw.txt", sub, (1, 1), origin, (8, 6), longwave=True)
+    assert (tmp_path / "lw.txt").read_text().startswith("surrogate3d longwave host fields 1\n")
+    back, layout = read_host_field_file(tmp_path / "lw.txt")
+    assert layout == {"halo": (1, 1), "origin": (4, 0), "domain": (8, 6), "own": (4, 6), "longwave": True}
+    for name in LONGWAVE_ARRAYS:
+        np.testing.assert_array_equal(back[name], sub[name])
+    assert "solar_zenith_angle" not in back and back["dy"] == 750.0
+    with pytest.raises(ValidationError, match="longwave host fields lack longwave_toa_upward_flux"):
+        stacked_longwave_fields(fields, {k: v for k, v in fluxes.items() if k != "longwave_toa_upward_flux"})
 
 
 def test_split_fills_halos_from_the_periodic_neighbours():
