@@ -16,5 +16,6 @@ from .flatten import flatten, ridge_arrays, tree_arrays
 from .fortran import fortran_name, fortran_sources, write_fortran
 
 __all__ = ["build_document", "export_model", "export_training_run", "flatten", "fortran_name", "fortran_sources",
-           "host_files", "longwave_host_files", "read_coefficients", "refresh_fortran", "refresh_host_fortran", "regenerated_fortran",
-           "ridge_arrays", "sample_features", "tree_arrays", "write_coefficients", "write_fortran"]
+           "host_files", "longwave_host_files", "read_coefficients", "refresh_fortran", "refresh_host_fortran",
+           "regenerated_fortran", "ridge_arrays", "sample_features", "tree_arrays", "write_coefficients",
+           "write_fortran"]

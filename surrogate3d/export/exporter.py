@@ -229,8 +229,8 @@ def write_host_fortran(document, fortran_dir, profile_document=None):
     Returns
     -------
     dict of str -> Path
-        ``host_module``, ``features_module``, ``halo`` (and for a shortwave model ``host_driver`` and
-        ``profile_features_module``).
+        ``host_module``, ``host_driver``, ``features_module``, ``halo`` (and, with a shortwave heating-rate
+        model of other features, ``profile_features_module``).
     """
     prefix = fortran_name(document["model"]["name"])
     keys = {f"{prefix}_host.f90": "host_module", f"{prefix}_host_driver.f90": "host_driver",

@@ -43,9 +43,12 @@ value in a field the recipe reads (own columns and halo), in ``dx``, ``dy`` or
 ``z_edge``; 3 a value outside its allowed range
 (:data:`surrogate3d.pairs.longwave_features.LONGWAVE_FIELD_RANGES`), ``dx`` or ``dy`` not
 positive, ``z_edge`` not strictly increasing, or a dimension below 1 (a halo below 0).
-The arithmetic repeats numpy's operation by operation except ``ln(1 + x)`` (Goldberg's
-formula) and the window sums (in order): they agree to rounding
-(``tests/export/test_fortran_longwave.py``).  The procedures are ``pure`` (OpenMP-safe)
+The arithmetic repeats numpy's operation by operation (the window sums too: both add the
+window's terms in order), so every feature but the three effective-cloud-fraction priors
+equals numpy's bit for bit; the priors use Goldberg's ``ln(1 + x)`` and the compiler's
+``exp`` and agree to rounding (``tests/export/test_fortran_longwave.py``).  This holds for
+gfortran on x86-64 at ``-O2``; where the compiler fuses multiply-adds (e.g. aarch64, or
+``-march=native``), add ``-ffp-contract=off`` to keep it.  The procedures are ``pure`` (OpenMP-safe)
 and use the intrinsic modules only.
 """
 
@@ -475,8 +478,8 @@ def longwave_features_module_text(prefix, recipe, column_names):
                     f"windows(:, :, {w}))" for r, w in windows.items()]
     if temperature:
         declarations.append("    real(real64) :: temperature(nz)")
-    if surface_prior or toa_prior:
-        declarations.append("    real(real64) :: surface_prior, toa_prior")
+    declarations += [f"    real(real64) :: {name}" for flag, name in ((surface_prior, "surface_prior"),
+                                                                (toa_prior, "toa_prior")) if flag]
     if extent:
         declarations.append("    real(real64) :: depth")
     per_column = []
@@ -494,7 +497,9 @@ def longwave_features_module_text(prefix, recipe, column_names):
     for j, name in enumerate(columns, start=1):
         per_column += [f"        ! {name}", f"        features({j}, i) = {_expression(p, name, windows)}"]
     halo = ([f"    hx_needed = max(hx_needed, {p}_cells({_real(r)}, dx))" for r in radii]
-            + [f"    hy_needed = max(hy_needed, {p}_cells({_real(r)}, dy))" for r in radii])
+            + [f"    hy_needed = max(hy_needed, {p}_cells({_real(r)}, dy))" for r in radii]
+            or ["    ! No feature reads beyond its column: no halo at any column size (dx, dy referenced for the",
+                "    ! interface's sake).", "    if (.not. (dx > 0.0_real64 .and. dy > 0.0_real64)) return"])
     widest = next((name for name in columns if name in _WINDOWS and _WINDOWS[name] == radii[-1]), None) \
         if radii else None
     body = [_HEADER.format(p=p, recipe=" ".join(str(recipe.name).split())[:60], n=len(columns),
@@ -606,6 +611,7 @@ def longwave_host_module_text(prefix, document):
 ! {p}_host_features), corrected longwave fields [W m-2] out.
 module {p}_host
   use, intrinsic :: iso_fortran_env, only: real64
+  use, intrinsic :: ieee_arithmetic, only: ieee_value, ieee_quiet_nan
   use {p}_correction
   use {p}_features, only: {p}_host_features, {p}_n_host_features
   implicit none
@@ -622,7 +628,8 @@ contains
   !> i = ix + (iy - 1) * nx and fluxes(m, i) the host's own field plus it; outside(i) flags a column
   !> outside the training envelope, n_outside counts them. No clear-sky gate and no consistency step:
   !> every column stands alone, so a decomposed host needs no sum over processes. status /= 0 and
-  !> message say what is wrong with the input (nothing else is set).
+  !> message say what is wrong with the input (then fluxes and corrections are NaN and every column is
+  !> flagged).
   pure subroutine {p}_correct_host(model, {FIELD_ARGUMENTS}, &
       fluxes, corrections, outside, n_outside, status, message)
     type({p}_coefficients), intent(in) :: model
@@ -636,7 +643,14 @@ contains
     allocate (features({p}_n_host_features, nx * ny))
     call {p}_host_features({FIELD_ARGUMENTS}, &
       features, status, message)
-    if (status /= 0) return
+    if (status /= 0) then
+      ! Nothing usable: NaN fields and corrections, every column flagged.
+      fluxes = ieee_value(0.0_real64, ieee_quiet_nan)
+      corrections = fluxes
+      outside = .true.
+      n_outside = nx * ny
+      return
+    end if
     call {p}_correct_columns(model, nx * ny, features, corrections, outside, n_outside)
     do iy = 1, ny
       do ix = 1, nx
@@ -651,7 +665,17 @@ end module {p}_host
 
 
 def has_longwave_host_interface(document):
-    """Whether a document gets the longwave host interface: a longwave column model."""
+    """Whether a document gets the longwave host interface: a longwave column model.
+
+    Parameters
+    ----------
+    document : dict
+        A checked coefficient document.
+
+    Returns
+    -------
+    bool
+    """
     from ..core.coefficient_format import PROFILE_FIELD
     from ..pairs.longwave_features import feature_recipe_from_dict, recipe_spectrum
 
@@ -714,7 +738,6 @@ def longwave_halo_statement(name, column_names):
     return "\n".join(lines) + "\n"
 
 
-
 def longwave_host_driver_text(prefix):
     """Text of the example program ``PREFIX_host_driver`` of a longwave model.
 
@@ -728,7 +751,7 @@ def longwave_host_driver_text(prefix):
     of the first file's columns instead (best of three; ``key value`` lines).
     """
     p = prefix
-    return f"""\
+    text = f"""\
 ! Generated by surrogate3d export: example driver of the longwave host interface {p}_host.
 ! Usage: {p}_host_driver COEFFICIENTS [--repeat N] HOST_FIELD_FILE...
 ! The longwave host field files are written by 'surrogate3d host-fields' with longwave models
@@ -843,6 +866,23 @@ contains
     stop 1
   end subroutine stop_on
 
+  !> Stop unless a read worked (ios 0), gave the expected key and, if given, the expected count.
+  subroutine expect(ios, key, expected, path, count, wanted)
+    integer, intent(in) :: ios
+    character(len=*), intent(in) :: key, expected, path
+    integer, intent(in), optional :: count, wanted
+    character(len=200) :: text
+    if (ios /= 0) call stop_on(1, 'host field file ' // path // ': cannot read ' // expected // ' (truncated?)')
+    if (trim(key) /= expected) call stop_on(1, 'host field file ' // path // ': expected ' // expected // &
+                                                ', found ' // trim(key))
+    if (present(count) .and. present(wanted)) then
+      if (count /= wanted) then
+        write (text, '(a, 1x, i0, a, i0)') expected, count, ' values; expected ', wanted
+        call stop_on(1, 'host field file ' // path // ': ' // trim(text))
+      end if
+    end if
+  end subroutine expect
+
   !> Read one longwave host field file (surrogate3d.runtime.host_field_file) into d, arrays with their halo.
   subroutine read_host_fields(path, d)
     character(len=*), intent(in) :: path
@@ -852,15 +892,20 @@ contains
     character(len=256) :: line
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) call stop_on(1, 'cannot open host field file ' // path)
-    read (unit, '(a)') line
-    if (trim(line) /= 'surrogate3d longwave host fields 1') then
+    read (unit, '(a)', iostat=ios) line
+    if (ios /= 0 .or. trim(line) /= 'surrogate3d longwave host fields 1') then
       call stop_on(1, path // ' is not a longwave host field file of version 1')
     end if
-    read (unit, *) key, d%nx, d%ny, d%nz, d%hx, d%hy
-    read (unit, *) key, d%ix0, d%iy0
-    read (unit, *) key, d%nx_domain, d%ny_domain
-    read (unit, *) key, d%dx
-    read (unit, *) key, d%dy
+    read (unit, *, iostat=ios) key, d%nx, d%ny, d%nz, d%hx, d%hy
+    call expect(ios, key, 'grid', path)
+    read (unit, *, iostat=ios) key, d%ix0, d%iy0
+    call expect(ios, key, 'origin', path)
+    read (unit, *, iostat=ios) key, d%nx_domain, d%ny_domain
+    call expect(ios, key, 'domain', path)
+    read (unit, *, iostat=ios) key, d%dx
+    call expect(ios, key, 'dx', path)
+    read (unit, *, iostat=ios) key, d%dy
+    call expect(ios, key, 'dy', path)
     associate (nx => d%nx, ny => d%ny, nz => d%nz, hx => d%hx, hy => d%hy)
       allocate (d%z_edge(nz + 1), d%cloud_fraction(1 - hx:nx + hx, 1 - hy:ny + hy, nz))
       allocate (d%air_temperature(1 - hx:nx + hx, 1 - hy:ny + hy, nz), d%cover(1 - hx:nx + hx, 1 - hy:ny + hy))
@@ -868,28 +913,48 @@ contains
       allocate (d%surface_temperature(1 - hx:nx + hx, 1 - hy:ny + hy), d%emissivity(1 - hx:nx + hx, 1 - hy:ny + hy))
       allocate (d%clear_sky(1 - hx:nx + hx, 1 - hy:ny + hy, 2), d%own_fluxes(1 - hx:nx + hx, 1 - hy:ny + hy, 5))
     end associate
-    read (unit, *) key, count
-    read (unit, *) d%z_edge
-    read (unit, *) key, count
-    read (unit, *) d%cloud_fraction
-    read (unit, *) key, count
-    read (unit, *) d%air_temperature
-    read (unit, *) key, count
-    read (unit, *) d%cover
-    read (unit, *) key, count
-    read (unit, *) d%edge_length
-    read (unit, *) key, count
-    read (unit, *) d%water_path
-    read (unit, *) key, count
-    read (unit, *) d%surface_temperature
-    read (unit, *) key, count
-    read (unit, *) d%emissivity
-    read (unit, *) key, count
-    read (unit, *) d%clear_sky
-    read (unit, *) key, count
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'z_edge', path, count, size(d%z_edge))
+    read (unit, *, iostat=ios) d%z_edge
+    call expect(ios, 'z_edge', 'z_edge', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'layer_cloud_fraction', path, count, size(d%cloud_fraction))
+    read (unit, *, iostat=ios) d%cloud_fraction
+    call expect(ios, 'layer_cloud_fraction', 'layer_cloud_fraction', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'layer_air_temperature', path, count, size(d%air_temperature))
+    read (unit, *, iostat=ios) d%air_temperature
+    call expect(ios, 'layer_air_temperature', 'layer_air_temperature', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'total_cloud_fraction', path, count, size(d%cover))
+    read (unit, *, iostat=ios) d%cover
+    call expect(ios, 'total_cloud_fraction', 'total_cloud_fraction', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'cloud_edge_length', path, count, size(d%edge_length))
+    read (unit, *, iostat=ios) d%edge_length
+    call expect(ios, 'cloud_edge_length', 'cloud_edge_length', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'liquid_water_path', path, count, size(d%water_path))
+    read (unit, *, iostat=ios) d%water_path
+    call expect(ios, 'liquid_water_path', 'liquid_water_path', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'surface_temperature', path, count, size(d%surface_temperature))
+    read (unit, *, iostat=ios) d%surface_temperature
+    call expect(ios, 'surface_temperature', 'surface_temperature', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'surface_longwave_emissivity', path, count, size(d%emissivity))
+    read (unit, *, iostat=ios) d%emissivity
+    call expect(ios, 'surface_longwave_emissivity', 'surface_longwave_emissivity', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'clear_sky_fluxes', path, count, size(d%clear_sky))
+    read (unit, *, iostat=ios) d%clear_sky
+    call expect(ios, 'clear_sky_fluxes', 'clear_sky_fluxes', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'longwave_fluxes', path, count, size(d%own_fluxes))
     read (unit, *, iostat=ios) d%own_fluxes
-    if (ios /= 0) call stop_on(1, 'host field file ' // path // ' is truncated')
+    call expect(ios, 'longwave_fluxes', 'longwave_fluxes', path)
     close (unit)
   end subroutine read_host_fields
 end program {p}_host_driver
 """
+    return "".join(_fit(line) + "\n" for line in text.splitlines())

@@ -26,8 +26,8 @@ def register(sub):
                    help="exported coefficient file(s) (.coefficients.json or .nc): the halo is the widest they need")
     p.add_argument("--zenith", type=float, metavar="DEG",
                    help="solar zenith angle in degrees, [0, 90) (required for shortwave models)")
-    p.add_argument("--azimuth", type=float, default=0.0, metavar="DEG",
-                   help="direction the beam travels in degrees, counterclockwise from +x (default 0)")
+    p.add_argument("--azimuth", type=float, default=None, metavar="DEG",
+                   help="shortwave models: direction the beam travels in degrees, counterclockwise from +x (default 0)")
     p.add_argument("--host-resolution", type=float, default=1000.0, metavar="M",
                    help="host column size in m, a whole multiple of the scene cell size (default 1000)")
     p.add_argument("--slant-path-reach", type=float, default=None, metavar="M",
@@ -61,18 +61,26 @@ def run(args):
     spectra = sorted({model.spectrum for model in models})
     if len(spectra) > 1:
         raise ParameterError("--model mixes shortwave and longwave models; give models of one spectrum")
-    out = check_output_directory(args.out, "--out")
+    solar = {"--zenith": args.zenith, "--azimuth": args.azimuth, "--slant-path-reach": args.slant_path_reach}
     if spectra == ["longwave"]:
+        given = [flag for flag, value in solar.items() if value is not None]
+        if given:
+            raise ParameterError(f"{', '.join(given)} apply to shortwave models only; the models given are longwave")
+        out = check_output_directory(args.out, "--out")
         return _run_longwave(args, models, out)
+    if args.longwave_resolution is not None:
+        raise ParameterError("--longwave-resolution applies to longwave models only; the models given are shortwave")
     if args.zenith is None:
         raise ParameterError("--zenith is required for shortwave models")
     zenith = check_solar_zenith_angle(args.zenith, "--zenith")
-    check_number("--azimuth", args.azimuth)
+    azimuth = 0.0 if args.azimuth is None else check_number("--azimuth", args.azimuth)
     if args.slant_path_reach is not None:
         check_number("--slant-path-reach", args.slant_path_reach, 0.0, None)
+    out = check_output_directory(args.out, "--out")
     scene = read_scene(args.scene, results=False)
+    _check_split(scene, args.host_resolution, args.split)
     fields = scene_host_fields(scene, args.host_resolution)
-    fields["solar_zenith_angle"], fields["solar_beam_azimuth"] = zenith, math.fmod(args.azimuth, 360.0)
+    fields["solar_zenith_angle"], fields["solar_beam_azimuth"] = zenith, math.fmod(azimuth, 360.0)
     solved = host_two_stream_fluxes(scene, args.host_resolution, zenith, layers=True)
     for flux, value in solved.items():
         if flux != "layer_absorption":
@@ -92,6 +100,19 @@ def run(args):
         print(f"wrote the {nx} x {ny} host columns of {args.scene} (sun {zenith:g} degrees from the zenith, beam "
               f"toward {fields['solar_beam_azimuth']:g} degrees) as whole.txt and {len(parts)} sub-domains with a "
               f"halo of {halo[0]} x {halo[1]} columns to {out}")
+
+
+def _check_split(scene, host_resolution, split):
+    """ParameterError naming --split unless it divides the host grid into equal sub-domains (checked before
+    the host's own columns are solved)."""
+    from ..errors import ParameterError
+    from ..pairs.coarsen import host_factors
+
+    fy, fx = host_factors(scene, host_resolution)
+    nx, ny = scene.sizes["x"] // fx, scene.sizes["y"] // fy
+    px, py = split
+    if px < 1 or py < 1 or nx % px or ny % py:
+        raise ParameterError(f"--split {px} {py} must divide the {nx} x {ny} host columns into equal sub-domains")
 
 
 def _write_files(out, fields, split, halo, longwave):
@@ -125,6 +146,7 @@ def _run_longwave(args, models, out):
     if args.longwave_resolution is not None:
         resolution = check_number("--longwave-resolution", args.longwave_resolution, 0.0, None, low_open=True) * PER_CM
     scene = read_scene(args.scene, results=False)
+    _check_split(scene, args.host_resolution, args.split)
     fields = longwave_host_fields(scene, args.host_resolution)
     fields.update(host_clear_sky_fluxes(scene, args.host_resolution, resolution))
     own = coarsen_longwave_result(solve_longwave_scene(scene, "longwave_two_stream", resolution=resolution,

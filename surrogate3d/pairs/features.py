@@ -113,7 +113,8 @@ def _box_sum(a, m, axis):
     the same terms in the same order).  A difference of cumulative sums would be cheaper but
     carries the rounding of everything before the window, and a window mean that falls on a
     tree threshold (cloud fractions come in steps) would then branch differently in another
-    decomposition.
+    decomposition.  The cost grows with the window: ``2 m + 1`` passes over the array
+    (measured: 6 ms for a 200 x 200 grid and m = 100, 0.2 s for 1000 x 1000 and m = 100).
     """
     a = np.asarray(a, dtype=np.float64)
     n = a.shape[axis]

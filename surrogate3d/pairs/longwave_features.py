@@ -19,7 +19,7 @@ import numpy as np
 
 from ..baselines.effective_cloud_fraction import effective_cloud_fraction_corrections
 from ..core.data_model import LONGWAVE_COLUMN_FLUXES, RECIPE_VERSION
-from ..core.validation import check_array
+from ..core.validation import check_array, check_number
 from ..errors import ParameterError, ValidationError
 from . import features as library
 from .recipe import DEFAULT_PARAMETERS, FeatureRecipe
@@ -97,7 +97,6 @@ def air_temperature_at(z_edge, layer_temperature, height):
     upper = np.take_along_axis(t, k[None] + 1, axis=0)[0]
     weight = (height - centre[k]) / (centre[k + 1] - centre[k])
     return lower + weight * (upper - lower)
-
 
 
 def longwave_host_features(fields, host_fluxes):
@@ -186,13 +185,24 @@ def check_longwave_host_fields(fields, host_fluxes):
     ------
     surrogate3d.errors.ValidationError
         Naming the field, the index and the allowed interval
-        (:data:`LONGWAVE_FIELD_RANGES`), or a ``z_edge`` that is not strictly increasing.
+        (:data:`LONGWAVE_FIELD_RANGES`); a ``dx`` or ``dy`` that is not a positive number,
+        a ``z_edge`` that is not strictly increasing, or a field of the wrong shape.
     """
+    for key in ("dx", "dy"):
+        check_number(f"host_fields[{key!r}]", fields[key], 0.0, None, low_open=True, error=ValidationError)
     z_edge = np.asarray(fields["z_edge"], dtype=np.float64)
     if z_edge.ndim != 1 or z_edge.size < 2 or not np.all(np.isfinite(z_edge)) or np.any(np.diff(z_edge) <= 0):
         raise ValidationError(f"host_fields['z_edge'] must be strictly increasing layer edge heights [m]; got {z_edge!r}")
+    plane = np.shape(fields["total_cloud_fraction"])
+    if len(plane) != 2:
+        raise ValidationError(f"host_fields['total_cloud_fraction'] must have dimensions (ny, nx); got shape {plane}")
     for name, (low, high, low_open) in LONGWAVE_FIELD_RANGES.items():
         value = host_fluxes[name] if name in host_fluxes else fields[name]
+        expected = (z_edge.size - 1, *plane) if name.startswith("layer_") else plane
+        if np.shape(value) != expected:
+            raise ValidationError(f"host_fields[{name!r}] has shape {np.shape(value)}; expected {expected} "
+                                  + ("(nz, ny, nx) for the layers of z_edge" if name.startswith("layer_") else
+                                     "(ny, nx), as total_cloud_fraction"))
         check_array(f"host_fields[{name!r}]", value, low, high, low_open=low_open, error=ValidationError)
 
 

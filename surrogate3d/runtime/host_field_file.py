@@ -185,6 +185,9 @@ def host_field_text(fields, halo, origin, domain, longwave=False):
         raise ValidationError(f"a halo of ({hx}, {hy}) leaves no own column in fields of {nx_h} x {ny_h} columns")
     lines = [first, f"grid {nx} {ny} {nz} {hx} {hy}",
              f"origin {int(origin[0])} {int(origin[1])}", f"domain {int(domain[0])} {int(domain[1])}"]
+    missing = [key for key in scalars if key != "slant_path_reach" and key not in fields]
+    if missing:
+        raise ValidationError(f"host fields lack the scalar(s) {', '.join(missing)}")
     lines += [f"{key} {float(fields.get(key, float('inf')))!r}" for key in scalars]
     for name, kind in arrays.items():
         value = np.asarray(fields[name], dtype=np.float64)
@@ -201,7 +204,14 @@ def host_field_text(fields, halo, origin, domain, longwave=False):
 
 
 def write_host_field_file(path, fields, halo, origin, domain, longwave=False):
-    """Write a host field file atomically (:func:`host_field_text`)."""
+    """Write a host field file atomically.
+
+    Parameters
+    ----------
+    path : str or Path
+    fields, halo, origin, domain, longwave
+        As for :func:`host_field_text`.
+    """
     write_text_atomic(path, host_field_text(fields, halo, origin, domain, longwave))
 
 

@@ -203,8 +203,8 @@ def test_every_longwave_feature_equals_numpy_on_a_periodic_domain(every_feature,
     assert status == 0, message
     want = numpy_features(fields, fluxes, names)
     np.testing.assert_allclose(got, want, rtol=1e-10, atol=1e-12)
-    # Most of it is the same arithmetic: the column copies, extents and temperatures bit for bit.
-    exact = [j for j, n in enumerate(names) if not n.startswith(("neighbour_", "effective_"))]
+    # The same arithmetic: every feature but the priors (log1p, exp) bit for bit, the windows too.
+    exact = [j for j, n in enumerate(names) if not n.startswith("effective_")]
     np.testing.assert_array_equal(got[:, exact], want[:, exact])
     # The priors are not trivial here: broken columns with cloud sides change the flux.
     assert np.count_nonzero(np.abs(want[:, names.index("effective_cloud_fraction_prior")]) > 0.1) > 10
@@ -237,7 +237,12 @@ def test_sub_domains_give_the_whole_domains_features_bit_for_bit(every_feature):
     (lambda f: f["longwave_clear_sky_toa_upward_flux"].__setitem__((0, 1), np.inf), 2,
      "clear_sky_fluxes(-8, -6, 2) (longwave_clear_sky_toa_upward_flux) = Inf: not finite"),
     (lambda f: f["z_edge"].__setitem__(3, f["z_edge"][2]), 3, "z_edge(4) ="),
+    (lambda f: f["z_edge"].__setitem__(0, np.nan), 2, "z_edge(1) = NaN m: not finite"),
     (lambda f: f.__setitem__("dx", 0.0), 3, "dx = 0"),
+    (lambda f: f.__setitem__("dy", np.nan), 2, "dy = NaN m: must be finite"),
+    (lambda f: f["layer_cloud_fraction"].__setitem__((1, 0, 0), 1.25), 3,
+     "layer_cloud_fraction(-9, -6, 2) = 1.2500000000000000: outside [0, 1]"),
+    (lambda f: f["cloud_edge_length"].__setitem__((0, 0), -1e-3), 3, "cloud_edge_length(-9, -6) = -0.1"),
 ])
 def test_bad_input_gives_a_status_and_names_the_field_and_index(every_feature, change, status, text):
     names, program = every_feature
@@ -258,6 +263,47 @@ def test_a_narrow_halo_gives_status_1_naming_the_widest_window(every_feature):
     assert status == 1
     assert message == ("feature neighbour_mean_cloud_fraction_10000m reads 10 columns along x and 7 along y; the halo "
                        "has 9 and 7")
+
+
+@needs_gfortran
+def test_no_own_column_or_a_negative_halo_gives_status_3(every_feature):
+    names, program = every_feature
+    fields, fluxes = random_fields(3, nx=9, ny=7)
+    status, _, message = program.run(padded(fields, fluxes, 10, 7), 10, -1)
+    assert status == 3 and "hx, hy = 10, -1 >= 0" in message
+
+
+@needs_gfortran
+@pytest.mark.parametrize("names", [["cloud_fraction"], ["effective_cloud_fraction_prior"],
+                                   ["effective_cloud_fraction_toa_prior", "surface_temperature"],
+                                   ["effective_cloud_fraction_atmosphere_prior"],
+                                   ["cloud_top_air_temperature", "neighbour_mean_cloud_fraction_3000m"]])
+def test_every_recipe_compiles_cleanly_and_equals_numpy(tmp_path, names):
+    # Each recipe's module compiles with -Wall -Werror (no unused argument or variable whatever it reads).
+    program = compile_program(tmp_path, [("f.f90", longwave_features_module_text("one", LongwaveFeatureRecipe(names),
+                                                                                   names))], "one", len(names))
+    fields, fluxes = random_fields(8)
+    hx, hy = longwave_halo_width(LongwaveFeatureRecipe(names), DX, DY)
+    status, got, message = program.run(padded(fields, fluxes, hx, hy), hx, hy)
+    assert status == 0, message
+    np.testing.assert_allclose(got, numpy_features(fields, fluxes, names), rtol=1e-10, atol=1e-12)
+
+
+@pytest.mark.parametrize("change, text", [
+    (lambda f, q: f.__setitem__("dx", 0.0), r"host_fields\['dx'\]"),
+    (lambda f, q: f.__setitem__("dy", np.nan), r"host_fields\['dy'\]"),
+    (lambda f, q: f.__setitem__("layer_air_temperature", f["layer_air_temperature"][1:]),
+     r"host_fields\['layer_air_temperature'\] has shape \(5, 7, 9\); expected \(6, 7, 9\)"),
+    (lambda f, q: q.__setitem__("longwave_surface_net_absorption", q["longwave_surface_net_absorption"][:, 1:]),
+     r"host_fields\['longwave_surface_net_absorption'\] has shape \(7, 8\); expected \(7, 9\)"),
+    (lambda f, q: f["layer_air_temperature"].__setitem__((0, 0, 0), 0.0), r"layer_air_temperature"),
+])
+def test_the_numpy_runtime_refuses_bad_geometry_and_shapes_in_one_line(change, text):
+    fields, fluxes = random_fields(5)
+    change(fields, fluxes)
+    with pytest.raises(ValidationError, match=text) as raised:
+        longwave_host_features(fields, fluxes)
+    assert "\n" not in str(raised.value)
 
 
 def test_the_numpy_runtime_refuses_the_same_input_in_one_line():
@@ -377,7 +423,12 @@ def test_host_fields_refuses_mixed_spectra_and_a_missing_zenith_in_one_line(tmp_
     write_scene(generate_scene("scattered_cumulus", 0, nx=20, ny=20, nz=6), tmp_path / "scene.nc")
     shortwave, longwave = (str(ROOT / "models" / d / "boosted.coefficients.json") for d in ("default", "longwave"))
     for models, extra, text in (([shortwave, longwave], ["--zenith", "30"], "mixes shortwave and longwave models"),
-                                ([shortwave], [], "--zenith is required for shortwave models")):
+                                ([shortwave], [], "--zenith is required for shortwave models"),
+                                ([longwave], ["--zenith", "95"], "--zenith apply to shortwave models only"),
+                                ([shortwave], ["--zenith", "30", "--longwave-resolution", "50"],
+                                 "--longwave-resolution applies to longwave models only"),
+                                ([longwave], ["--split", "3", "2"],
+                                 "--split 3 2 must divide the 2 x 2 host columns into equal sub-domains")):
         assert main(["host-fields", str(tmp_path / "scene.nc"), "--model", *models, "--out", str(tmp_path / "out"),
                      "--host-resolution", "1000", *extra]) != 0
         err = capsys.readouterr().err.strip()

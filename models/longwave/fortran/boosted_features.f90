@@ -128,7 +128,8 @@ contains
     real(real64), allocatable :: top(:, :), base(:, :)
     real(real64), allocatable :: windows(:, :, :)
     real(real64) :: temperature(nz)
-    real(real64) :: surface_prior, toa_prior
+    real(real64) :: surface_prior
+    real(real64) :: toa_prior
     real(real64) :: depth
     character(len=400) :: text
     integer :: ix, iy, i, k, rx, ry

@@ -112,6 +112,23 @@ contains
     stop 1
   end subroutine stop_on
 
+  !> Stop unless a read worked (ios 0), gave the expected key and, if given, the expected count.
+  subroutine expect(ios, key, expected, path, count, wanted)
+    integer, intent(in) :: ios
+    character(len=*), intent(in) :: key, expected, path
+    integer, intent(in), optional :: count, wanted
+    character(len=200) :: text
+    if (ios /= 0) call stop_on(1, 'host field file ' // path // ': cannot read ' // expected // ' (truncated?)')
+    if (trim(key) /= expected) call stop_on(1, 'host field file ' // path // ': expected ' // expected // &
+                                                ', found ' // trim(key))
+    if (present(count) .and. present(wanted)) then
+      if (count /= wanted) then
+        write (text, '(a, 1x, i0, a, i0)') expected, count, ' values; expected ', wanted
+        call stop_on(1, 'host field file ' // path // ': ' // trim(text))
+      end if
+    end if
+  end subroutine expect
+
   !> Read one longwave host field file (surrogate3d.runtime.host_field_file) into d, arrays with their halo.
   subroutine read_host_fields(path, d)
     character(len=*), intent(in) :: path
@@ -121,15 +138,20 @@ contains
     character(len=256) :: line
     open (newunit=unit, file=path, status='old', action='read', iostat=ios)
     if (ios /= 0) call stop_on(1, 'cannot open host field file ' // path)
-    read (unit, '(a)') line
-    if (trim(line) /= 'surrogate3d longwave host fields 1') then
+    read (unit, '(a)', iostat=ios) line
+    if (ios /= 0 .or. trim(line) /= 'surrogate3d longwave host fields 1') then
       call stop_on(1, path // ' is not a longwave host field file of version 1')
     end if
-    read (unit, *) key, d%nx, d%ny, d%nz, d%hx, d%hy
-    read (unit, *) key, d%ix0, d%iy0
-    read (unit, *) key, d%nx_domain, d%ny_domain
-    read (unit, *) key, d%dx
-    read (unit, *) key, d%dy
+    read (unit, *, iostat=ios) key, d%nx, d%ny, d%nz, d%hx, d%hy
+    call expect(ios, key, 'grid', path)
+    read (unit, *, iostat=ios) key, d%ix0, d%iy0
+    call expect(ios, key, 'origin', path)
+    read (unit, *, iostat=ios) key, d%nx_domain, d%ny_domain
+    call expect(ios, key, 'domain', path)
+    read (unit, *, iostat=ios) key, d%dx
+    call expect(ios, key, 'dx', path)
+    read (unit, *, iostat=ios) key, d%dy
+    call expect(ios, key, 'dy', path)
     associate (nx => d%nx, ny => d%ny, nz => d%nz, hx => d%hx, hy => d%hy)
       allocate (d%z_edge(nz + 1), d%cloud_fraction(1 - hx:nx + hx, 1 - hy:ny + hy, nz))
       allocate (d%air_temperature(1 - hx:nx + hx, 1 - hy:ny + hy, nz), d%cover(1 - hx:nx + hx, 1 - hy:ny + hy))
@@ -137,27 +159,46 @@ contains
       allocate (d%surface_temperature(1 - hx:nx + hx, 1 - hy:ny + hy), d%emissivity(1 - hx:nx + hx, 1 - hy:ny + hy))
       allocate (d%clear_sky(1 - hx:nx + hx, 1 - hy:ny + hy, 2), d%own_fluxes(1 - hx:nx + hx, 1 - hy:ny + hy, 5))
     end associate
-    read (unit, *) key, count
-    read (unit, *) d%z_edge
-    read (unit, *) key, count
-    read (unit, *) d%cloud_fraction
-    read (unit, *) key, count
-    read (unit, *) d%air_temperature
-    read (unit, *) key, count
-    read (unit, *) d%cover
-    read (unit, *) key, count
-    read (unit, *) d%edge_length
-    read (unit, *) key, count
-    read (unit, *) d%water_path
-    read (unit, *) key, count
-    read (unit, *) d%surface_temperature
-    read (unit, *) key, count
-    read (unit, *) d%emissivity
-    read (unit, *) key, count
-    read (unit, *) d%clear_sky
-    read (unit, *) key, count
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'z_edge', path, count, size(d%z_edge))
+    read (unit, *, iostat=ios) d%z_edge
+    call expect(ios, 'z_edge', 'z_edge', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'layer_cloud_fraction', path, count, size(d%cloud_fraction))
+    read (unit, *, iostat=ios) d%cloud_fraction
+    call expect(ios, 'layer_cloud_fraction', 'layer_cloud_fraction', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'layer_air_temperature', path, count, size(d%air_temperature))
+    read (unit, *, iostat=ios) d%air_temperature
+    call expect(ios, 'layer_air_temperature', 'layer_air_temperature', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'total_cloud_fraction', path, count, size(d%cover))
+    read (unit, *, iostat=ios) d%cover
+    call expect(ios, 'total_cloud_fraction', 'total_cloud_fraction', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'cloud_edge_length', path, count, size(d%edge_length))
+    read (unit, *, iostat=ios) d%edge_length
+    call expect(ios, 'cloud_edge_length', 'cloud_edge_length', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'liquid_water_path', path, count, size(d%water_path))
+    read (unit, *, iostat=ios) d%water_path
+    call expect(ios, 'liquid_water_path', 'liquid_water_path', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'surface_temperature', path, count, size(d%surface_temperature))
+    read (unit, *, iostat=ios) d%surface_temperature
+    call expect(ios, 'surface_temperature', 'surface_temperature', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'surface_longwave_emissivity', path, count, size(d%emissivity))
+    read (unit, *, iostat=ios) d%emissivity
+    call expect(ios, 'surface_longwave_emissivity', 'surface_longwave_emissivity', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'clear_sky_fluxes', path, count, size(d%clear_sky))
+    read (unit, *, iostat=ios) d%clear_sky
+    call expect(ios, 'clear_sky_fluxes', 'clear_sky_fluxes', path)
+    read (unit, *, iostat=ios) key, count
+    call expect(ios, key, 'longwave_fluxes', path, count, size(d%own_fluxes))
     read (unit, *, iostat=ios) d%own_fluxes
-    if (ios /= 0) call stop_on(1, 'host field file ' // path // ' is truncated')
+    call expect(ios, 'longwave_fluxes', 'longwave_fluxes', path)
     close (unit)
   end subroutine read_host_fields
 end program boosted_host_driver

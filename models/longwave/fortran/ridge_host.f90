@@ -3,6 +3,7 @@
 ! ridge_host_features), corrected longwave fields [W m-2] out.
 module ridge_host
   use, intrinsic :: iso_fortran_env, only: real64
+  use, intrinsic :: ieee_arithmetic, only: ieee_value, ieee_quiet_nan
   use ridge_correction
   use ridge_features, only: ridge_host_features, ridge_n_host_features
   implicit none
@@ -19,7 +20,8 @@ contains
   !> i = ix + (iy - 1) * nx and fluxes(m, i) the host's own field plus it; outside(i) flags a column
   !> outside the training envelope, n_outside counts them. No clear-sky gate and no consistency step:
   !> every column stands alone, so a decomposed host needs no sum over processes. status /= 0 and
-  !> message say what is wrong with the input (nothing else is set).
+  !> message say what is wrong with the input (then fluxes and corrections are NaN and every column is
+  !> flagged).
   pure subroutine ridge_correct_host(model, nx, ny, nz, hx, hy, dx, dy, z_edge, layer_cloud_fraction, layer_air_temperature, &
       total_cloud_fraction, cloud_edge_length, liquid_water_path, surface_temperature, surface_longwave_emissivity, &
           clear_sky_fluxes, longwave_fluxes, &
@@ -43,7 +45,14 @@ contains
         total_cloud_fraction, cloud_edge_length, liquid_water_path, surface_temperature, surface_longwave_emissivity, &
             clear_sky_fluxes, longwave_fluxes, &
       features, status, message)
-    if (status /= 0) return
+    if (status /= 0) then
+      ! Nothing usable: NaN fields and corrections, every column flagged.
+      fluxes = ieee_value(0.0_real64, ieee_quiet_nan)
+      corrections = fluxes
+      outside = .true.
+      n_outside = nx * ny
+      return
+    end if
     call ridge_correct_columns(model, nx * ny, features, corrections, outside, n_outside)
     do iy = 1, ny
       do ix = 1, nx
