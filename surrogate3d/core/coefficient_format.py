@@ -93,6 +93,9 @@ def ridge_clips_features(document):
 #: into the correction (absent before format 1.3: none).
 TRANSFORM_FIELD = "target_transforms"
 _TRANSFORM_KEYS = {"scale_feature", "scale_floor", "offset_features", "offset_coefficients"}
+#: Optional key of a target transform (format 1.6): ``"offset"`` when a column outside the
+#: training envelope gets the offset alone.
+_TRANSFORM_OPTIONAL = {"outside_envelope"}
 
 #: Optional top-level field of a heating-rate (profile) model (absent before format 1.4:
 #: a column model): ``layer_features``, the names of the last features, which describe one
@@ -421,8 +424,10 @@ def target_transforms(document):
 
     The correction of target ``m`` is ``offset + scale * y[m]``, where ``y`` is the model's
     output, ``offset = sum_k offset_coefficients[k] * x[offset_features[k]]`` and ``scale =
-    max(x[scale_feature], scale_floor)`` (1 when ``scale_feature`` is -1).  A document
-    without the field (before format 1.3) has none: a list of None.
+    max(x[scale_feature], scale_floor)`` (1 when ``scale_feature`` is -1); with
+    ``outside_envelope = "offset"`` (format 1.6) a column outside the training envelope
+    gets the offset alone.  A document without the field (before format 1.3) has none: a
+    list of None.
     """
     field = document.get(TRANSFORM_FIELD)
     return list(field) if field is not None else [None] * len(document["targets"]["names"])
@@ -439,9 +444,13 @@ def _check_transforms(document, n_feature, n_target, source):
         label = f"{TRANSFORM_FIELD}[{m}]"
         if spec is None:
             continue
-        if not isinstance(spec, dict) or set(spec) != _TRANSFORM_KEYS:
+        if not isinstance(spec, dict) or not _TRANSFORM_KEYS <= set(spec) <= _TRANSFORM_KEYS | _TRANSFORM_OPTIONAL:
             raise FormatError(f"coefficient file {source!r}: field {label} must be null or an object with exactly "
-                              f"{sorted(_TRANSFORM_KEYS)}; got {_short(spec)}")
+                              f"{sorted(_TRANSFORM_KEYS)} (and optionally {sorted(_TRANSFORM_OPTIONAL)}); got "
+                              f"{_short(spec)}")
+        if spec.get("outside_envelope", "offset") != "offset":
+            raise FormatError(f"coefficient file {source!r}: field {label}.outside_envelope must be 'offset' when "
+                              f"given; got {_short(spec['outside_envelope'])}")
         scale, offsets, coefficients = spec["scale_feature"], spec["offset_features"], spec["offset_coefficients"]
         if isinstance(scale, bool) or not isinstance(scale, int) or not -1 <= scale < n_feature:
             raise FormatError(f"coefficient file {source!r}: field {label}.scale_feature must be a feature index "

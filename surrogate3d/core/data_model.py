@@ -88,5 +88,8 @@ COEFFICIENT_FORMAT_NAME = "surrogate3d-correction-coefficients"
 #: clip the standardized value of such a feature in older files,
 #: :mod:`surrogate3d.runtime.ridge`); 1.3 added the optional ``target_transforms`` (an
 #: older file has none: the model predicts corrections); 1.4 added the optional
-#: ``profile`` (a heating-rate model's layer features; an older file is a column model).
-COEFFICIENT_FORMAT_VERSION = "1.5"
+#: ``profile`` (a heating-rate model's layer features; an older file is a column model);
+#: from 1.5 a ridge clips its features to the envelope's ranges; 1.6 added the optional
+#: ``outside_envelope`` of a target transform (an older file has none: every column gets
+#: the learned correction).
+COEFFICIENT_FORMAT_VERSION = "1.6"

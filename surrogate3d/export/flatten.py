@@ -141,17 +141,20 @@ def target_transforms(estimator):
     -------
     list or None
         Per target, None or ``scale_feature`` (index, -1 for none), ``scale_floor``,
-        ``offset_features`` (indices) and ``offset_coefficients``; None when no target
-        has a transform (the field is then left out).
+        ``offset_features`` (indices) and ``offset_coefficients`` (and ``outside_envelope``:
+        ``"offset"`` when the target falls back to its offset outside the training
+        envelope); None when no target has a transform (the field is then left out).
     """
     resolved = getattr(estimator, "target_transform_", None)  # none on estimators fitted before transforms
     if resolved is None:
         return None
     scale_index, scale_floor, offset_index, offset_coef = resolved[:4]
+    offset_outside = resolved[5] if len(resolved) > 5 else np.zeros(scale_index.size, dtype=bool)
     field = [None if scale_index[m] < 0 and not offset_index[m].size else
              {"scale_feature": int(scale_index[m]), "scale_floor": float(scale_floor[m]),
               "offset_features": [int(k) for k in offset_index[m]],
-              "offset_coefficients": [float(c) for c in offset_coef[m]]}
+              "offset_coefficients": [float(c) for c in offset_coef[m]],
+              **({"outside_envelope": "offset"} if offset_outside[m] else {})}
              for m in range(scale_index.size)]
     return field if any(spec is not None for spec in field) else None
 

@@ -245,10 +245,14 @@ class _PairsTableMixin:
         return (Y - offset) / scale, weights
 
     def _transformed(self, X, F):
-        """Corrections from learned residuals ``F``: ``offset + scale * F``, 0 where the gate holds."""
+        """Corrections from learned residuals ``F``: ``offset + scale * F`` (the offset alone outside the
+        training envelope for targets that say so), 0 where the gate holds."""
         resolved = getattr(self, "target_transform_", None)  # none on estimators pickled before transforms
         if resolved is not None:
-            apply_transforms(resolved, X, F)
+            outside = None
+            if len(resolved) > 5 and resolved[5].any() and getattr(self, "envelope_", None) is not None:
+                outside = self.envelope_.check(X, self._gated(X)).outside
+            apply_transforms(resolved, X, F, outside)
         F[self._gated(X)] = 0.0
         return F[:, 0] if self._one_column else F
 

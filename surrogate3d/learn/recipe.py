@@ -28,6 +28,7 @@ any training starts, and a wrong one is named in the error with the allowed valu
     scale_feature = "independent_column_atmosphere_absorption"
     scale_floor = 1e-4
     offset_features = {feature = 1.0, ...}
+    outside_envelope = "learned" | "offset"  # "offset": outside the training envelope, the offset alone
 
     [models.NAME]                          # NAME: letters, digits, _ and -
     kind = "ridge" | "boosted"

@@ -19,6 +19,10 @@ weight ``scale(x)**2``, so a residual of a column that barely absorbs counts as 
 the error it makes in watts.  With ``fit_errors = "relative"`` every sample counts the
 same in relative terms (weight 1), so that a few columns of large corrections do not
 decide the fit for all the others.
+
+With ``outside_envelope = "offset"`` a column outside the training envelope
+(:mod:`surrogate3d.runtime.envelope`) gets the offset alone: where the learned residual
+would extrapolate, the correction falls back to the physical prior.
 """
 
 import math
@@ -29,10 +33,14 @@ import numpy as np
 from ..core.validation import check_number, check_option
 from ..errors import ParameterError, ValidationError
 
-_KEYS = {"scale_feature", "scale_floor", "offset_features", "fit_errors"}
+_KEYS = {"scale_feature", "scale_floor", "offset_features", "fit_errors", "outside_envelope"}
 #: What the fit of a scaled target minimises: the errors of the correction (weights
 #: ``scale**2``) or of the residual, relative errors of the correction (weights 1).
 FIT_ERRORS = ("absolute", "relative")
+#: The correction of a column outside the training envelope: the learned one, or the
+#: offset (the physical prior) alone, the learned residual left out where it would
+#: extrapolate.
+OUTSIDE_ENVELOPE = ("learned", "offset")
 
 
 def check_transforms(value, name="target_transforms"):
@@ -72,6 +80,7 @@ def check_transform(spec, where):
         raise ParameterError(f"{where}['offset_features'] must be a dict of feature name -> finite number; "
                              f"got {offsets!r}")
     check_option(f"{where}['fit_errors']", spec.get("fit_errors", "absolute"), FIT_ERRORS)
+    check_option(f"{where}['outside_envelope']", spec.get("outside_envelope", "learned"), OUTSIDE_ENVELOPE)
 
 
 def resolve_transforms(transforms, n_target, feature_names):
@@ -93,14 +102,17 @@ def resolve_transforms(transforms, n_target, feature_names):
         Smallest scale used [units of that feature].
     offset_index, offset_coef : list (n_target) of ndarray
         Features and coefficients of each target's offset (empty for none).
+    offset_outside : ndarray of bool (n_target,)
+        Whether a column outside the training envelope gets the offset alone.
     """
     scale_index = np.full(n_target, -1, dtype=np.int64)
     scale_floor = np.zeros(n_target)
     relative = np.zeros(n_target, dtype=bool)
     offset_index = [np.zeros(0, dtype=np.int64) for _ in range(n_target)]
     offset_coef = [np.zeros(0) for _ in range(n_target)]
+    offset_outside = np.zeros(n_target, dtype=bool)
     if not transforms:
-        return scale_index, scale_floor, offset_index, offset_coef, relative
+        return scale_index, scale_floor, offset_index, offset_coef, relative, offset_outside
     if len(transforms) != n_target:
         raise ValidationError(f"target_transforms has {len(transforms)} entries; Y has {n_target} targets")
 
@@ -122,7 +134,8 @@ def resolve_transforms(transforms, n_target, feature_names):
         offsets = spec.get("offset_features", {})
         offset_index[m] = np.array([index(f, where) for f in offsets], dtype=np.int64)
         offset_coef[m] = np.array([float(c) for c in offsets.values()])
-    return scale_index, scale_floor, offset_index, offset_coef, relative
+        offset_outside[m] = spec.get("outside_envelope", "learned") == "offset"
+    return scale_index, scale_floor, offset_index, offset_coef, relative, offset_outside
 
 
 def offsets_and_scales(resolved, X):
@@ -138,11 +151,16 @@ def offsets_and_scales(resolved, X):
     return offset, scale
 
 
-def apply_transforms(resolved, X, F):
+def apply_transforms(resolved, X, F, outside=None):
     """Corrections from learned residuals ``F`` (n_sample, n_target), in place: ``F * scale``,
     then each offset term added in turn (the order the runtime and Fortran module use, so
-    that all three agree to the last bit)."""
+    that all three agree to the last bit).  ``outside`` (bool, n_sample) marks the samples
+    outside the training envelope: targets whose transform says ``outside_envelope =
+    "offset"`` get the offset alone there."""
     scale_index, scale_floor, offset_index, offset_coef = resolved[:4]
+    offset_outside = resolved[5] if len(resolved) > 5 else np.zeros(scale_index.size, dtype=bool)
+    if outside is not None and offset_outside.any():
+        F[np.ix_(np.asarray(outside, dtype=bool), offset_outside)] = 0.0
     for m in range(scale_index.size):
         if scale_index[m] >= 0:
             F[:, m] *= np.maximum(X[:, scale_index[m]], scale_floor[m])

@@ -141,14 +141,18 @@ class CorrectionModel:
         check_envelope : bool
             Warn (:class:`~surrogate3d.runtime.envelope.EnvelopeWarning`, with the count)
             when columns lie outside the training envelope; :meth:`envelope_check` says
-            which.  False skips the test (a host that calls :meth:`envelope_check` itself).
+            which.  False skips the warning (a host that calls :meth:`envelope_check`
+            itself); the test still runs for a model whose targets fall back to their
+            offset outside the envelope.
 
         Returns
         -------
         ndarray (n_column, n_target)
             Corrections [1] (fractions of the incident flux on the horizontal), columns
             in the order of :attr:`target_names`; exactly 0 in the columns the
-            clear-sky gate selects (:meth:`clear_sky_mask`).
+            clear-sky gate selects (:meth:`clear_sky_mask`); for a target whose transform
+            says ``outside_envelope = "offset"``, the offset alone (the physical prior) in
+            the columns outside the training envelope.
 
         Raises
         ------
@@ -156,23 +160,30 @@ class CorrectionModel:
             Wrong shape, or a value that is not finite (sample and feature named).
         """
         X = self._checked(features)
-        corrections = self._transformed(X, self._evaluator.predict(X))
         gated = self._gated_rows(X)
+        fallback = self.envelope is not None and any(
+            spec is not None and spec.get("outside_envelope") == "offset" for spec in self.target_transforms)
+        check = self._envelope_check(X, gated) if fallback or (check_envelope and self.envelope is not None) else None
+        corrections = self._transformed(X, self._evaluator.predict(X), check.outside if fallback else None)
         corrections[gated] = 0.0
-        if check_envelope and self.envelope is not None:
-            check = self._envelope_check(X, gated)
+        if check_envelope and check is not None:
             if check.n_outside:
                 warnings.warn(EnvelopeWarning(
                     f"{check.n_outside} of {X.shape[0]} columns lie outside the training envelope of model "
-                    f"{self.name!r}: their corrections extrapolate (see envelope_check)"), stacklevel=2)
+                    f"{self.name!r}: " + ("targets with a physical prior fall back to it there, the others "
+                                          "extrapolate" if fallback else "their corrections extrapolate")
+                    + " (see envelope_check)"), stacklevel=2)
         return corrections
 
-    def _transformed(self, X, output):
+    def _transformed(self, X, output, outside=None):
         """Corrections from the model's output: ``offset + scale * output`` per target with a
-        transform (:func:`surrogate3d.core.coefficient_format.target_transforms`)."""
+        transform (:func:`surrogate3d.core.coefficient_format.target_transforms`); the offset
+        alone in the ``outside`` columns (bool) for targets whose transform says so."""
         for m, spec in enumerate(self.target_transforms):
             if spec is None:
                 continue
+            if outside is not None and spec.get("outside_envelope") == "offset":
+                output[outside, m] = 0.0
             if spec["scale_feature"] >= 0:
                 output[:, m] *= np.maximum(X[:, spec["scale_feature"]], spec["scale_floor"])
             # Term by term, in the file's order: the Fortran module adds them the same way.

@@ -38,6 +38,24 @@ def test_scaled_target_vanishes_without_absorption_and_offset_keeps_the_prior(cl
     np.testing.assert_allclose(strong.predict(X)[:, 1], X[:, 1] + Y[:, 1].mean() - X[:, 1].mean(), atol=2e-3)
 
 
+@pytest.mark.parametrize("cls, params", [(RidgeCorrection, {"alpha": 1e-3}), (BoostedCorrection, {"max_iter": 50})])
+def test_outside_the_envelope_a_target_can_fall_back_to_its_offset(cls, params):
+    # Where the learned residual would extrapolate (a column outside the training envelope),
+    # a target whose transform says outside_envelope = "offset" gets its physical prior alone;
+    # inside the envelope, and for the other targets, nothing changes.
+    X, Y = data()
+    fallback = [TRANSFORMS[0], {**TRANSFORMS[1], "outside_envelope": "offset"}]
+    plain = cls(target_transforms=TRANSFORMS, **params).fit(X, Y, feature_names=NAMES)
+    model = cls(target_transforms=fallback, **params).fit(X, Y, feature_names=NAMES)
+    far = X[:20].copy()
+    far[:, 2] = 50.0                                        # far beyond the training range of x
+    np.testing.assert_array_equal(model.envelope_check(far).outside, True)
+    np.testing.assert_array_equal(model.predict(far)[:, 1], far[:, 1])          # the prior, exactly
+    np.testing.assert_array_equal(model.predict(far)[:, 0], plain.predict(far)[:, 0])
+    inside = ~model.envelope_check(X).outside
+    np.testing.assert_array_equal(model.predict(X)[inside], plain.predict(X)[inside])
+
+
 def test_relative_fit_weighs_every_sample_alike():
     # Two groups whose relative corrections differ: fitting the errors of the correction
     # (weights scale**2) follows the large-scale group, fitting relative errors (weights 1)
@@ -71,6 +89,7 @@ def test_weighted_ridge_recovers_an_exact_linear_residual():
     ([{"scale_feature": "x", "scale_floor": -1.0}], ["scale_floor", "in [0, inf)", "-1.0"]),
     ([{"offset_features": {"x": "one"}}], ["offset_features", "finite number"]),
     ([{"scale_feature": "x", "fit_errors": "squared"}], ["fit_errors", "relative", "'squared'"]),
+    ([{"offset_features": {"x": 1.0}, "outside_envelope": "zero"}], ["outside_envelope", "learned, offset", "'zero'"]),
 ])
 def test_bad_transforms_are_refused_with_the_entry_named(transforms, words):
     with pytest.raises(ParameterError) as info:

@@ -176,3 +176,34 @@ def test_malformed_envelope_is_refused(built, tmp_path, change, message):
     path.write_text(json.dumps(changed))
     with pytest.raises(FormatError, match=message):
         load_coefficients(path)
+
+
+def test_a_target_falls_back_to_its_offset_outside_the_envelope_in_the_runtime():
+    # The shipped longwave model with the fallback switched on for its first target (its
+    # offset: the effective-cloud-fraction prior): columns outside the envelope get the
+    # prior alone, the others keep the learned correction; other targets do not change.
+    from pathlib import Path
+
+    from surrogate3d.core.coefficient_file import read_coefficients
+    from surrogate3d.runtime.model import CorrectionModel
+
+    path = Path(__file__).resolve().parents[2] / "models" / "longwave" / "boosted.coefficients.json"
+    document = read_coefficients(path)
+    plain = CorrectionModel.from_document(copy.deepcopy(document))
+    document["target_transforms"][0]["outside_envelope"] = "offset"
+    model = CorrectionModel.from_document(document)
+    X = np.loadtxt(path.parent / "fortran" / "boosted_sample_features.txt", skiprows=1, ndmin=2)
+    far = X.copy()
+    far[:, model.feature_names.index("liquid_water_path")] = 1e5       # far beyond the training range
+    prior = model.feature_names.index("effective_cloud_fraction_prior")
+    assert model.envelope_check(far).outside.all()
+    got = model.predict(far, check_envelope=False)
+    np.testing.assert_array_equal(got[:, 0], far[:, prior])
+    np.testing.assert_array_equal(got[:, 1:], plain.predict(far, check_envelope=False)[:, 1:])
+    inside = ~model.envelope_check(X).outside
+    assert inside.any()
+    np.testing.assert_array_equal(model.predict(X, check_envelope=False)[inside],
+                                  plain.predict(X, check_envelope=False)[inside])
+    document["target_transforms"][0]["outside_envelope"] = "learned"
+    with pytest.raises(FormatError, match=r"target_transforms\[0\]\.outside_envelope must be 'offset'"):
+        CorrectionModel.from_document(document)
