@@ -182,10 +182,23 @@ emissivity (ny, nx); layer edges (nz + 1,); cell size; mode; top temperature, 0 
 def checked_scene(gas_absorption, intervals, cloud_extinction, cloud_single_scattering_albedo,
                   cloud_asymmetry_parameter, air_temperature, surface_temperature, surface_emissivity, z_edge, dx,
                   dy, mode, top_temperature):
-    """The scene arguments of :func:`solve_thermal_monte_carlo`, checked: a :class:`CheckedScene`.
+    """The scene arguments of a thermal solver, checked.
 
-    Raises :class:`~surrogate3d.errors.ParameterError` in one line naming the variable and
-    the index of the first bad value.
+    Parameters
+    ----------
+    gas_absorption, intervals, cloud_extinction, cloud_single_scattering_albedo, cloud_asymmetry_parameter
+        As for :func:`solve_thermal_monte_carlo` (same units and shapes).
+    air_temperature, surface_temperature, surface_emissivity, z_edge, dx, dy, mode, top_temperature
+        As for :func:`solve_thermal_monte_carlo` (same units and shapes).
+
+    Returns
+    -------
+    CheckedScene
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        In one line naming the variable and the index of the first bad value.
     """
     low, high, band_of = _checked_intervals(intervals)
     nint = low.size
