@@ -89,6 +89,7 @@ def spectral_proposal(gas, cloud_absorption, band_of, layer_temperature, surface
     >>> bool(np.allclose(cdf[:, 0], radiance[0, 0] / radiance[:, 0].sum()))    # isothermal and black: Planck
     True
     """
+    planck_share = check_number("planck_share", planck_share, 0.0, 1.0, low_open=True)
     t0, inv_dt, radiance = table
     mu, weight = np.polynomial.legendre.leggauss(PROPOSAL_COSINES)
     mu, weight = 0.5 * (mu + 1.0), 0.5 * weight
