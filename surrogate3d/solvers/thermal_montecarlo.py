@@ -10,6 +10,7 @@ absorber have the same Planck radiance, energy conserved to round-off in every r
 
 import math
 import time
+from collections import namedtuple
 
 import numpy as np
 
@@ -170,6 +171,74 @@ def _statistics(values):
             float(domain.std(ddof=1) / math.sqrt(n)))
 
 
+CheckedScene = namedtuple("CheckedScene", ["low", "high", "band_of", "gas", "ext", "ssa", "asym", "t_air",
+                                           "t_surface", "emissivity", "z", "dx", "dy", "mode", "t_top"])
+CheckedScene.__doc__ = """The inputs of a thermal solver, checked, as float64 arrays of full shape (the
+interval limits [m-1] and bands; gas absorption (ninterval, nz); cloud extinction, single-scattering
+albedo and asymmetry (nband, nz, ny, nx); air temperature (nz, ny, nx); surface temperature and
+emissivity (ny, nx); layer edges (nz + 1,); cell size; mode; top temperature, 0 for none)."""
+
+
+def checked_scene(gas_absorption, intervals, cloud_extinction, cloud_single_scattering_albedo,
+                  cloud_asymmetry_parameter, air_temperature, surface_temperature, surface_emissivity, z_edge, dx,
+                  dy, mode, top_temperature):
+    """The scene arguments of a thermal solver, checked.
+
+    Parameters
+    ----------
+    gas_absorption, intervals, cloud_extinction, cloud_single_scattering_albedo, cloud_asymmetry_parameter
+        As for :func:`solve_thermal_monte_carlo` (same units and shapes).
+    air_temperature, surface_temperature, surface_emissivity, z_edge, dx, dy, mode, top_temperature
+        As for :func:`solve_thermal_monte_carlo` (same units and shapes).
+
+    Returns
+    -------
+    CheckedScene
+
+    Raises
+    ------
+    surrogate3d.errors.ParameterError
+        In one line naming the variable and the index of the first bad value.
+    """
+    low, high, band_of = _checked_intervals(intervals)
+    nint = low.size
+    t_air = as_float_array("air_temperature", air_temperature)
+    check_array("air_temperature", t_air, 0.0, None, low_open=True)
+    if t_air.ndim != 3:
+        raise ParameterError(f"air_temperature must have shape (nz, ny, nx); got {t_air.shape}")
+    nz, ny, nx = t_air.shape
+    gas = as_float_array("gas_absorption", gas_absorption)
+    check_array("gas_absorption", gas, 0.0, None)
+    if gas.shape != (nint, nz):
+        raise ParameterError(f"gas_absorption must have shape (ninterval, nz) = ({nint}, {nz}); got {gas.shape}")
+    ext = as_float_array("cloud_extinction", cloud_extinction)
+    nband = ext.shape[0] if ext.ndim == 4 else int(band_of.max()) + 1
+    if nband <= band_of.max():
+        raise ParameterError(f"cloud_extinction has {nband} bands; intervals.band reaches {int(band_of.max())}")
+    shape = (nband, nz, ny, nx)
+    what = "(nband, nz, ny, nx)"
+    ext = _field("cloud_extinction", ext, shape, what, 0.0)
+    ssa = _field("cloud_single_scattering_albedo", cloud_single_scattering_albedo, shape, what, 0.0, 1.0)
+    asym = _field("cloud_asymmetry_parameter", cloud_asymmetry_parameter, shape, what, -1.0, 1.0, True, True)
+    t_surface = _field("surface_temperature", surface_temperature, (ny, nx), "(ny, nx)", 0.0, None, True)
+    emissivity = _field("surface_emissivity", surface_emissivity, (ny, nx), "(ny, nx)", 0.0, 1.0)
+    z = as_float_array("z_edge", z_edge)
+    check_array("z_edge", z)
+    if z.shape != (nz + 1,):
+        raise ParameterError(f"z_edge must have shape ({nz + 1},); got {z.shape}")
+    rises = np.diff(z) > 0.0
+    if not rises.all():
+        i = int(np.argmin(rises)) + 1
+        fail("z_edge", "strictly rising", z[i], i)
+    dx = check_number("dx", dx, 0.0, None, low_open=True)
+    dy = check_number("dy", dy, 0.0, None, low_open=True)
+    mode = check_option("mode", mode, MODES)
+    t_top = 0.0 if top_temperature is None else check_number("top_temperature", top_temperature, 0.0, None,
+                                                             low_open=True)
+    return CheckedScene(low, high, band_of, gas, ext, ssa, asym, t_air, t_surface, emissivity, z, dx, dy, mode,
+                        t_top)
+
+
 def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud_single_scattering_albedo,
                               cloud_asymmetry_parameter, air_temperature, surface_temperature, surface_emissivity,
                               z_edge, dx, dy, *, mode="full_3d", top_temperature=None, air_pressure_edges=None,
@@ -277,41 +346,11 @@ def solve_thermal_monte_carlo(gas_absorption, intervals, cloud_extinction, cloud
     95.675
     """
     started, cpu_started = time.perf_counter(), time.process_time()
-    low, high, band_of = _checked_intervals(intervals)
-    nint = low.size
-    t_air = as_float_array("air_temperature", air_temperature)
-    check_array("air_temperature", t_air, 0.0, None, low_open=True)
-    if t_air.ndim != 3:
-        raise ParameterError(f"air_temperature must have shape (nz, ny, nx); got {t_air.shape}")
+    scene = checked_scene(gas_absorption, intervals, cloud_extinction, cloud_single_scattering_albedo,
+                          cloud_asymmetry_parameter, air_temperature, surface_temperature, surface_emissivity,
+                          z_edge, dx, dy, mode, top_temperature)
+    low, high, band_of, gas, ext, ssa, asym, t_air, t_surface, emissivity, z, dx, dy, mode, t_top = scene
     nz, ny, nx = t_air.shape
-    gas = as_float_array("gas_absorption", gas_absorption)
-    check_array("gas_absorption", gas, 0.0, None)
-    if gas.shape != (nint, nz):
-        raise ParameterError(f"gas_absorption must have shape (ninterval, nz) = ({nint}, {nz}); got {gas.shape}")
-    ext = as_float_array("cloud_extinction", cloud_extinction)
-    nband = ext.shape[0] if ext.ndim == 4 else int(band_of.max()) + 1
-    if nband <= band_of.max():
-        raise ParameterError(f"cloud_extinction has {nband} bands; intervals.band reaches {int(band_of.max())}")
-    shape = (nband, nz, ny, nx)
-    what = "(nband, nz, ny, nx)"
-    ext = _field("cloud_extinction", ext, shape, what, 0.0)
-    ssa = _field("cloud_single_scattering_albedo", cloud_single_scattering_albedo, shape, what, 0.0, 1.0)
-    asym = _field("cloud_asymmetry_parameter", cloud_asymmetry_parameter, shape, what, -1.0, 1.0, True, True)
-    t_surface = _field("surface_temperature", surface_temperature, (ny, nx), "(ny, nx)", 0.0, None, True)
-    emissivity = _field("surface_emissivity", surface_emissivity, (ny, nx), "(ny, nx)", 0.0, 1.0)
-    z = as_float_array("z_edge", z_edge)
-    check_array("z_edge", z)
-    if z.shape != (nz + 1,):
-        raise ParameterError(f"z_edge must have shape ({nz + 1},); got {z.shape}")
-    rises = np.diff(z) > 0.0
-    if not rises.all():
-        i = int(np.argmin(rises)) + 1
-        fail("z_edge", "strictly rising", z[i], i)
-    dx = check_number("dx", dx, 0.0, None, low_open=True)
-    dy = check_number("dy", dy, 0.0, None, low_open=True)
-    mode = check_option("mode", mode, MODES)
-    t_top = 0.0 if top_temperature is None else check_number("top_temperature", top_temperature, 0.0, None,
-                                                             low_open=True)
     dp = None if air_pressure_edges is None else _pressure_thickness(air_pressure_edges, nz, ny, nx)
     photons = check_integer("photons", photons, 1)
     seed = check_integer("seed", seed, 0, 2**63 - 1)
