@@ -32,7 +32,7 @@ from pathlib import Path
 from tqdm.auto import tqdm
 
 from .._workers import WorkerPool
-from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
+from ..core.config import LONGWAVE_BOUNDARY_RAYS, SIMULATE_PHOTONS, SOLAR_CONSTANT
 from ..core.data_model import LONGWAVE_SOLVERS, SOLVERS, SPECTRA
 from ..core.validation import check_bool, check_integer, check_number, check_option
 from ..errors import OutputError, ParameterError, Surrogate3DError
@@ -97,6 +97,7 @@ class RunOptions:
     solar_constant: float = SOLAR_CONSTANT
     threads: int = None
     longwave_resolution: float = DEFAULT_RESOLUTION
+    longwave_boundary_rays: int = LONGWAVE_BOUNDARY_RAYS
     extra: dict = field(default_factory=dict)
 
 
@@ -135,6 +136,7 @@ def check_run_options(photons, n_jobs, solver_options):
     options.per_band = check_bool("per_band", options.per_band)
     options.longwave_resolution = check_number("longwave_resolution", options.longwave_resolution, 0.0, None,
                                                low_open=True)
+    options.longwave_boundary_rays = check_integer("longwave_boundary_rays", options.longwave_boundary_rays, 0)
     return options, n_jobs
 
 
@@ -193,7 +195,9 @@ def run_task(task, options):
 
         return solve_longwave_scene(scene, task.solver, photons=options.photons, seed=task.seed,
                                     resolution=options.longwave_resolution, batch_size=options.batch_size,
-                                    threads=options.threads, label=task.path)
+                                    threads=options.threads, label=task.path,
+                                    boundary_rays=0 if task.solver == "longwave_two_stream"
+                                    else options.longwave_boundary_rays)
     if task.solver == "two_stream":
         from ..solvers.two_stream import solve_scene
 
@@ -479,7 +483,10 @@ def simulate_archive(archive_dir, zeniths=None, azimuths=(0.0,), *, solvers=SOLV
         standard errors precise to about 5 %), ``rays_per_column``, ``per_band``,
         ``solar_constant``, ``threads`` (per worker with ``n_jobs > 1`` or a scheduler, default 1 there),
         ``longwave_resolution`` (widest spectral interval of the longwave gas absorption
-        [m-1], default 1000 = 10 cm-1) and any further keyword of
+        [m-1], default 1000 = 10 cm-1), ``longwave_boundary_rays`` (rays per cell column of
+        the backward estimate of the longwave surface fields and top upward flux of the
+        Monte Carlo runs, :func:`surrogate3d.solvers.longwave_scene.solve_longwave_scene`;
+        default :data:`LONGWAVE_BOUNDARY_RAYS`; 0: the forward tallies) and any further keyword of
         :func:`surrogate3d.solvers.montecarlo.solve_monte_carlo`.  ``batch_size``,
         ``batches`` and ``threads`` apply to the longwave Monte Carlo too; the others are shortwave only.
 

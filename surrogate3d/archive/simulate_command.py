@@ -1,7 +1,7 @@
 """``surrogate3d simulate``: fill an archive with 3D, independent-column and two-stream results,
 shortwave, longwave or both."""
 
-from ..core.config import SIMULATE_PHOTONS, SOLAR_CONSTANT
+from ..core.config import LONGWAVE_BOUNDARY_RAYS, SIMULATE_PHOTONS, SOLAR_CONSTANT
 from ..core.data_model import SOLVERS, SPECTRA
 
 #: Parameters of simulate_archive as the options that set them, for messages.
@@ -9,7 +9,8 @@ FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_si
          "batches": "--batches", "rays_per_column": "--rays-per-column", "threads": "--threads",
          "solar_constant": "--solar-constant",
          "solar_zenith_angle": "--zenith", "solar_beam_azimuth": "--azimuth", "scheduler": "--scheduler",
-         "solvers": "--solvers", "spectrum": "--spectrum", "longwave_resolution": "--longwave-resolution"}
+         "solvers": "--solvers", "spectrum": "--spectrum", "longwave_resolution": "--longwave-resolution",
+         "longwave_boundary_rays": "--longwave-boundary-rays"}
 
 
 def register(sub):
@@ -35,6 +36,10 @@ def register(sub):
     p.add_argument("--longwave-resolution", type=float, metavar="CM-1",
                    help="widest spectral interval of the longwave gas absorption in cm-1 (default: 10, "
                         "299 intervals)")
+    p.add_argument("--longwave-boundary-rays", type=int, default=LONGWAVE_BOUNDARY_RAYS, metavar="N",
+                   help="rays per cell column of a backward Monte Carlo estimate of the longwave surface fields and "
+                        "top upward flux, far less noisy per column than the forward tallies at the same cost "
+                        f"(default: {LONGWAVE_BOUNDARY_RAYS}; 0: the forward tallies)")
     p.add_argument("--seed", type=int, default=0, help="run seed (default: 0)")
     p.add_argument("--solvers", nargs="+", choices=SOLVERS, default=list(SOLVERS), help="solver kinds to run")
     p.add_argument("--jobs", type=int, default=1, help="local worker processes (default: 1)")
@@ -83,7 +88,7 @@ def run(args):
         batch_size=args.batch_size, batches=args.batches, rays_per_column=args.rays_per_column, threads=args.threads,
         per_band=args.per_band, solar_constant=args.solar_constant,
         longwave_resolution=DEFAULT_RESOLUTION if args.longwave_resolution is None
-        else args.longwave_resolution * PER_CM)
+        else args.longwave_resolution * PER_CM, longwave_boundary_rays=args.longwave_boundary_rays)
     shared = (f", {summary['by_other_runs']} computed meanwhile by another run on the archive"
               if summary["by_other_runs"] else "")
     print(f"simulate: {summary['computed']} runs computed, {summary['skipped']} already stored{shared}, "

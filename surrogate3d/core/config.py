@@ -21,6 +21,12 @@ SOLAR_CONSTANT = 1361.0
 MONTE_CARLO_PHOTONS = 1_000_000
 #: Photons of every Monte Carlo run of ``surrogate3d simulate``.
 SIMULATE_PHOTONS = 200_000
+#: Default rays per cell column of the backward estimate of the longwave boundary fluxes of
+#: ``surrogate3d simulate``: on 200 x 200 columns of 100 m, 16 rays bring the 1 km block
+#: noise of the surface downward flux from 16 to 1.9 W m-2 and that of the top upward flux
+#: from 40 to 0.49 W m-2 for 4.4 s of CPU per 3D run (benchmarks/bench_thermal_backward.py);
+#: 32 rays take about 1 / sqrt(2) of that noise for twice the CPU.
+LONGWAVE_BOUNDARY_RAYS = 32
 #: Batches the default batch size aims at (for the standard errors), and its bounds.
 BATCHES = 32
 MIN_BATCH_SIZE = 1_000

@@ -36,6 +36,8 @@ LONGWAVE_RUN_METADATA = {
 LONGWAVE_OPTIONAL_RUN_METADATA = {
     "longwave_run_batches": (np.int64, "1", "independent batches the standard errors come from (0: no standard "
                                             "errors from batches)", 0),
+    "longwave_run_boundary_rays": (np.int64, "1", "rays per cell column of the backward estimate of the surface "
+                                                  "fields and the top upward flux (0: forward tallies)", 0),
 }
 
 
