@@ -811,6 +811,24 @@ def _profile_procedure(prefix, document):
 """
 
 
+def _target_sums(document):
+    """The ridge evaluation's scalar sums, one per target: ``sum_1, sum_2, ...``."""
+    return ", ".join(f"sum_{m}" for m in range(1, len(document["targets"]["names"]) + 1))
+
+
+def _ridge_sums(prefix, document):
+    """Statements of the ridge sums (intercept, linear terms, then pairs, in that order per target) into
+    ``corrections``."""
+    targets = range(1, len(document["targets"]["names"]) + 1)
+    lines = [f"    sum_{m} = model%intercept({m})" for m in targets]
+    lines += [f"    do k = 1, {prefix}_n_features"]
+    lines += [f"      sum_{m} = sum_{m} + model%coef({m}, k) * z(k)" for m in targets]
+    lines += ["    end do", "    do p = 1, model%n_pairs", "      product = z(model%pairs(1, p)) * z(model%pairs(2, p))"]
+    lines += [f"      sum_{m} = sum_{m} + model%coef({m}, {prefix}_n_features + p) * product" for m in targets]
+    lines += ["    end do", f"    corrections = [{_target_sums(document)}]"]
+    return "\n".join(lines)
+
+
 def _ridge_module(prefix, document):
     return _module_header(prefix, document) + f"""\
   real(real64), parameter :: near_constant_fraction = {_number(NEAR_CONSTANT)}_real64
@@ -837,7 +855,7 @@ contains
     type({prefix}_coefficients), intent(in) :: model
     real(real64), intent(in) :: features({prefix}_n_features)
     real(real64), intent(out) :: corrections({prefix}_n_targets)
-    real(real64) :: z({prefix}_n_features)
+    real(real64) :: z({prefix}_n_features), product, {_target_sums(document)}
     integer :: k, p
 {_GATE_TEST}
     ! Within the training range (files of format 1.{RIDGE_CLIPPING_VERSION[1]} on): a fitted quadratic runs
@@ -853,14 +871,9 @@ contains
     do k = 1, size(model%near_constant)
       z(model%near_constant(k)) = max(-1.0_real64, min(1.0_real64, z(model%near_constant(k))))
     end do
-    ! All targets advance together: independent sums, so additions overlap in the CPU.
-    corrections = model%intercept
-    do k = 1, {prefix}_n_features
-      corrections = corrections + model%coef(:, k) * z(k)
-    end do
-    do p = 1, model%n_pairs
-      corrections = corrections + model%coef(:, {prefix}_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
-    end do
+    ! One scalar sum per target, all advancing together: independent additions overlap in the CPU (an
+    ! array of sums would be stored and loaded again at every term).
+{_ridge_sums(prefix, document)}
     call apply_transforms(model, features, corrections)
   end subroutine {prefix}_correct_column
 
