@@ -1785,14 +1785,12 @@ contains
     real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(boosted_slant_weights) :: paths
-    real(real64), allocatable :: cloud(:, :, :)
-    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud
+    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud, row_fraction, row_cloud
     real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
     real(real64), allocatable :: vertical(:, :)
     real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
         plane_clear, plane_v, plane_rho, plane_gamma
-    ! A column's layers in contiguous memory (a strided section passed on would be copied to the heap).
-    real(real64), dimension(nz) :: dz, zeros, fraction, cloud_of_column, cover, depth, volume
+    real(real64), dimension(nz) :: dz, zeros, cover, depth, volume
     integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
     mu0 = cos(solar_zenith_angle * degree)
     dz = z_edge(2:nz + 1) - z_edge(1:nz)
@@ -1804,15 +1802,22 @@ contains
     ! The cloud optical depth (features._cloud_layers) and the column statistics of every column the own
     ! columns' paths meet, from the blocks of their own layers; with these blocks, the prior along the
     ! vertical of the own columns (features._direct_prior, not slanted).
-    allocate (cloud(1-rx:nx+rx, 1-ry:ny+ry, nz), v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), &
-              gamma(1-rx:nx+rx, 1-ry:ny+ry), vertical(nx, ny))
-    cloud = max(layer_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :) &
-                - layer_clear_sky_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :), 0.0_real64)
+    ! The cloud optical depth is max(tau - clear-sky tau, 0) wherever it is read: no block-sized array of it.
+    allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry), &
+              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx))
     do iy = 1 - ry, ny + ry
+      ! The row's columns with their layers in contiguous memory, the fields read along x (a column's
+      ! layers are a field plane apart).
+      do k = 1, nz
+        do ix = 1 - rx, nx + rx
+          row_fraction(k, ix) = layer_cloud_fraction(ix, iy, k)
+          row_cloud(k, ix) = max(layer_optical_depth(ix, iy, k) - layer_clear_sky_optical_depth(ix, iy, k), 0.0_real64)
+        end do
+      end do
       do ix = 1 - rx, nx + rx
-        fraction = layer_cloud_fraction(ix, iy, :)
-        cloud_of_column = cloud(ix, iy, :)
-        call boosted_prior_cloud_blocks(nz, fraction, cloud_of_column, zeros, n_block, cover, depth, volume, loose)
+        call boosted_prior_cloud_blocks(nz, row_fraction(:, ix), row_cloud(:, ix), zeros, n_block, cover, depth, &
+            volume, &
+            loose)
         call boosted_overlap_statistics(n_block, cover, depth, total_cloud_fraction(ix, iy), &
             column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
         rho(ix, iy) = boosted_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
@@ -1826,7 +1831,8 @@ contains
             mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
-    allocate (path_fraction(nx, nz), path_cloud(nx, nz), cloud_total(nx), fraction_total(nx), clear_path(nx), &
+    ! path_fraction(:, ix), path_cloud(:, ix): the layers along own column ix's path, contiguous.
+    allocate (path_fraction(nz, nx), path_cloud(nz, nx), cloud_total(nx), fraction_total(nx), clear_path(nx), &
               v_sum(nx), rho_sum(nx), gamma_sum(nx))
     do iy = 1, ny
       ! The sums of one own column in registers, the own columns of the row in turn: each term of a sum
@@ -1841,14 +1847,15 @@ contains
             jx = ix + paths%ox(e)
             jy = iy + paths%oy(e)
             w = paths%weight(e)
-            sum_cloud = sum_cloud + w * cloud(jx, jy, k)
+            sum_cloud = sum_cloud + w * max(layer_optical_depth(jx, jy, k) - layer_clear_sky_optical_depth(jx, jy, k), &
+                                            0.0_real64)
             sum_fraction = sum_fraction + w * layer_cloud_fraction(jx, jy, k)
           end do
-          path_cloud(ix, k) = sum_cloud
-          path_fraction(ix, k) = sum_fraction
+          path_cloud(k, ix) = sum_cloud
+          path_fraction(k, ix) = sum_fraction
+          cloud_total(ix) = cloud_total(ix) + sum_cloud
+          fraction_total(ix) = fraction_total(ix) + sum_fraction
         end do
-        cloud_total = cloud_total + path_cloud(:, k)
-        fraction_total = fraction_total + path_fraction(:, k)
       end do
       clear_path = 0.0_real64
       v_sum = 0.0_real64
@@ -1866,7 +1873,8 @@ contains
             k = paths%term_layer(t)
             w = paths%term_weight(t)
             plane_clear = plane_clear + layer_clear_sky_optical_depth(jx, jy, k) * w
-            plane_v = plane_v + (cloud(jx, jy, k) * v(jx, jy)) * w
+            plane_v = plane_v + (max(layer_optical_depth(jx, jy, k) - layer_clear_sky_optical_depth(jx, jy, k), &
+                                     0.0_real64) * v(jx, jy)) * w
             plane_rho = plane_rho + (layer_cloud_fraction(jx, jy, k) * rho(jx, jy)) * w
             plane_gamma = plane_gamma + (layer_cloud_fraction(jx, jy, k) * gamma(jx, jy)) * w
           end do
@@ -1885,9 +1893,9 @@ contains
           rho_path = rho_sum(ix) / fraction_total(ix)
           gamma_path = gamma_sum(ix) / fraction_total(ix)
         end if
-        fraction = path_fraction(ix, :)
-        cloud_of_column = path_cloud(ix, :)
-        call boosted_prior_cloud_blocks(nz, fraction, cloud_of_column, dz, n_block, cover, depth, volume, loose)
+        call boosted_prior_cloud_blocks(nz, path_fraction(:, ix), path_cloud(:, ix), dz, n_block, cover, depth, &
+            volume, &
+            loose)
         slanted = boosted_prior_transmittance(n_block, cover, depth, volume, loose, clear_path(ix), v_path, mu0, &
             rho_path, gamma_path)
         if (present(prior)) prior(ix, iy) = slanted
