@@ -548,16 +548,18 @@ def _slant_depth_procedure(p):
     return f"""
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
-  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. The halo must
-  !> cover {p}_path_reach.
+  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. With
+  !> minus_vertical (feature 'slant_optical_depth'), that difference goes there too: both features from one
+  !> pass over the paths. The halo must cover {p}_path_reach.
   pure subroutine {p}_slant_depth({_CALL_HEAD}, &
-      layer_optical_depth, feature, out, slant_path_reach)
+      layer_optical_depth, feature, out, slant_path_reach, minus_vertical)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
     real(real64), intent(in), optional :: slant_path_reach
+    real(real64), intent(out), optional :: minus_vertical(nx, ny)
 {_DEGREE}
     type({p}_slant_weights) :: paths
     real(real64) :: mu0, total, plane, column
@@ -578,12 +580,16 @@ def _slant_depth_procedure(p):
           total = total + plane
         end do
         out(ix, iy) = total / mu0
-        if (feature == 'slant_minus_vertical_optical_depth') then
+        if (feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)) then
           column = 0.0_real64
           do k = 1, nz
             column = column + layer_optical_depth(ix, iy, k)
           end do
-          out(ix, iy) = out(ix, iy) - column / mu0
+          if (present(minus_vertical)) then
+            minus_vertical(ix, iy) = out(ix, iy) - column / mu0
+          else
+            out(ix, iy) = out(ix, iy) - column / mu0
+          end if
         end if
       end do
     end do
@@ -1338,6 +1344,39 @@ def slant_call(prefix, feature, out, reach=None):
     name = "slant_depth" if family == "path" else "interception"
     return _wrapped(f"call {prefix}_{name}({_CALL_HEAD}, &\n"
                     f"    layer_optical_depth, '{feature}', {out}{_reach_argument(reach)})")
+
+
+def slant_depth_pair_call(prefix, out, minus_vertical, reach=None):
+    """One Fortran statement computing ``slant_optical_depth`` and ``slant_minus_vertical_optical_depth`` together.
+
+    The paths' sums are taken once for both features (two :func:`slant_call` statements
+    would take them twice); the values are those of the two statements bit for bit.
+
+    Parameters
+    ----------
+    prefix : str
+        The Fortran model name.
+    out, minus_vertical : str
+        Fortran array expressions of shape ``(nx, ny)`` that receive ``slant_optical_depth``
+        and ``slant_minus_vertical_optical_depth`` [1].
+    reach : str, optional
+        The cap of the paths' horizontal travel, as in :func:`slant_call`.
+
+    Returns
+    -------
+    str
+        The statement (continued over lines with ``&``), without a trailing newline;
+        it uses the dummy-argument names of ``NAME_host_features``.
+
+    Examples
+    --------
+    >>> print(slant_depth_pair_call("boosted", "a", "b"))
+    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+        layer_optical_depth, 'slant_optical_depth', a, minus_vertical=b)
+    """
+    return _wrapped(f"call {prefix}_slant_depth({_CALL_HEAD}, &\n"
+                    f"    layer_optical_depth, 'slant_optical_depth', {out}{_reach_argument(reach)}, "
+                    f"minus_vertical={minus_vertical})")
 
 
 def slant_priors_call(prefix, outs, reach=None):
