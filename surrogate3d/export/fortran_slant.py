@@ -562,12 +562,23 @@ def _slant_depth_procedure(p):
     real(real64), intent(out), optional :: minus_vertical(nx, ny)
 {_DEGREE}
     type({p}_slant_weights) :: paths
-    real(real64) :: mu0, total, plane, column
+    real(real64) :: mu0, total, plane
+    real(real64), allocatable :: column(:, :)
     integer :: ix, iy, g, t, k
+    logical :: vertical
     mu0 = cos(solar_zenith_angle * degree)
     call {p}_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
         slant_path_reach)
     call {p}_slant_group_offsets(nz, paths)
+    vertical = feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)
+    if (vertical) then
+      ! The own columns' optical depths, a layer plane at a time (a column's layers are a plane apart).
+      allocate (column(nx, ny))
+      column = 0.0_real64
+      do k = 1, nz
+        column = column + layer_optical_depth(1:nx, 1:ny, k)
+      end do
+    end if
     do iy = 1, ny
       do ix = 1, nx
         total = 0.0_real64
@@ -580,16 +591,11 @@ def _slant_depth_procedure(p):
           total = total + plane
         end do
         out(ix, iy) = total / mu0
-        if (feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)) then
-          column = 0.0_real64
-          do k = 1, nz
-            column = column + layer_optical_depth(ix, iy, k)
-          end do
-          if (present(minus_vertical)) then
-            minus_vertical(ix, iy) = out(ix, iy) - column / mu0
-          else
-            out(ix, iy) = out(ix, iy) - column / mu0
-          end if
+        if (.not. vertical) cycle
+        if (present(minus_vertical)) then
+          minus_vertical(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
+        else
+          out(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
         end if
       end do
     end do
@@ -969,9 +975,10 @@ def _prior_procedures(p):
 {_DEGREE}
     type({p}_slant_weights) :: paths
     real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud, row_fraction, row_cloud
-    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
+    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum, &
+        row_clear
     real(real64), allocatable :: vertical(:, :)
-    real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
+    real(real64) :: mu0, w, v_path, rho_path, gamma_path, slanted, loose, sum_cloud, sum_fraction, &
         plane_clear, plane_v, plane_rho, plane_gamma
     real(real64), dimension(nz) :: dz, zeros, cover, depth, volume
     integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
@@ -987,14 +994,16 @@ def _prior_procedures(p):
     ! vertical of the own columns (features._direct_prior, not slanted).
     ! The cloud optical depth is max(tau - clear-sky tau, 0) wherever it is read: no block-sized array of it.
     allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry), &
-              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx))
+              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx), row_clear(1-rx:nx+rx))
     do iy = 1 - ry, ny + ry
       ! The row's columns with their layers in contiguous memory, the fields read along x (a column's
-      ! layers are a field plane apart).
+      ! layers are a field plane apart); with them each column's clear-sky optical depth, summed up.
+      row_clear = 0.0_real64
       do k = 1, nz
         do ix = 1 - rx, nx + rx
           row_fraction(k, ix) = layer_cloud_fraction(ix, iy, k)
           row_cloud(k, ix) = max(layer_optical_depth(ix, iy, k) - layer_clear_sky_optical_depth(ix, iy, k), 0.0_real64)
+          row_clear(ix) = row_clear(ix) + layer_clear_sky_optical_depth(ix, iy, k)
         end do
       end do
       do ix = 1 - rx, nx + rx
@@ -1005,11 +1014,7 @@ def _prior_procedures(p):
         rho(ix, iy) = {p}_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
         if (.not. present(slant_minus_vertical)) cycle
         if (ix < 1 .or. ix > nx .or. iy < 1 .or. iy > ny) cycle
-        clear_depth = 0.0_real64
-        do k = 1, nz
-          clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
-        end do
-        vertical(ix, iy) = {p}_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v(ix, iy), &
+        vertical(ix, iy) = {p}_prior_transmittance(n_block, cover, depth, volume, loose, row_clear(ix), v(ix, iy), &
             mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
