@@ -364,6 +364,7 @@ contains
     real(real64), allocatable :: top(:, :), base(:, :)
     real(real64), allocatable :: windows(:, :, :)
     real(real64), allocatable :: priors(:, :, :)
+    real(real64), allocatable :: slant_depths(:, :, :)
     character(len=400) :: text
     features = ieee_value(0.0_real64, ieee_quiet_nan)
     status = 0
@@ -465,146 +466,148 @@ contains
         total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
         independent_column_fluxes(:, :, 2), prior=priors(:, :, 1), minus_independent_column=priors(:, :, 2), &
             slant_minus_vertical=priors(:, :, 3), slant_path_reach=slant_path_reach)
+    allocate (slant_depths(nx, ny, 2))
+    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+        layer_optical_depth, 'slant_optical_depth', slant_depths(:, :, 1), slant_path_reach=slant_path_reach, &
+            minus_vertical=slant_depths(:, :, 2))
     allocate (column(nx, ny))
     ! cos_solar_zenith
     column = cos(solar_zenith_angle * boosted_degree)
-    features(1, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 1, nx * ny, column)
     ! surface_albedo
     column = surface_albedo(1:nx, 1:ny)
-    features(2, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 2, nx * ny, column)
     ! log_column_optical_depth
     column = log_tau(1:nx, 1:ny)
-    features(3, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 3, nx * ny, column)
     ! cloud_fraction
     column = total_cloud_fraction(1:nx, 1:ny)
-    features(4, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 4, nx * ny, column)
     ! column_optical_depth_relative_std
     where (column_optical_depth_mean(1:nx, 1:ny) > 0.0_real64)
       column = column_optical_depth_std(1:nx, 1:ny) / column_optical_depth_mean(1:nx, 1:ny)
     elsewhere
       column = 0.0_real64
     end where
-    features(5, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 5, nx * ny, column)
     ! cloud_top_height
     column = top(1:nx, 1:ny)
-    features(6, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 6, nx * ny, column)
     ! cloud_base_height
     column = base(1:nx, 1:ny)
-    features(7, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 7, nx * ny, column)
     ! cloud_top_shadow_length
     column = top(1:nx, 1:ny) * tan(solar_zenith_angle * boosted_degree)
-    features(8, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 8, nx * ny, column)
     ! cloud_edge_length
     column = cloud_edge_length(1:nx, 1:ny)
-    features(9, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 9, nx * ny, column)
     ! independent_column_surface_downward_flux
     column = independent_column_fluxes(1:nx, 1:ny, 2) &
         + independent_column_fluxes(1:nx, 1:ny, 3)
-    features(10, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 10, nx * ny, column)
     ! independent_column_surface_downward_direct_flux
     column = independent_column_fluxes(1:nx, 1:ny, 2)
-    features(11, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 11, nx * ny, column)
     ! independent_column_surface_downward_diffuse_flux
     column = independent_column_fluxes(1:nx, 1:ny, 3)
-    features(12, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 12, nx * ny, column)
     ! independent_column_toa_upward_flux
     column = independent_column_fluxes(1:nx, 1:ny, 4)
-    features(13, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 13, nx * ny, column)
     ! independent_column_atmosphere_absorption
     column = independent_column_fluxes(1:nx, 1:ny, 5)
-    features(14, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 14, nx * ny, column)
     ! neighbour_mean_cloud_fraction_1000m
     column = windows(:, :, 1)
-    features(15, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 15, nx * ny, column)
     ! neighbour_mean_cloud_fraction_3000m
     column = windows(:, :, 2)
-    features(16, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 16, nx * ny, column)
     ! neighbour_mean_cloud_fraction_5000m
     column = windows(:, :, 3)
-    features(17, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 17, nx * ny, column)
     ! neighbour_contrast_cloud_fraction_1000m
     column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 1)
-    features(18, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 18, nx * ny, column)
     ! neighbour_contrast_cloud_fraction_3000m
     column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 2)
-    features(19, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 19, nx * ny, column)
     ! neighbour_contrast_cloud_fraction_5000m
     column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 3)
-    features(20, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 20, nx * ny, column)
     ! neighbour_mean_log_optical_depth_1000m
     column = windows(:, :, 4)
-    features(21, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 21, nx * ny, column)
     ! neighbour_mean_log_optical_depth_3000m
     column = windows(:, :, 5)
-    features(22, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 22, nx * ny, column)
     ! neighbour_mean_log_optical_depth_5000m
     column = windows(:, :, 6)
-    features(23, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 23, nx * ny, column)
     ! neighbour_contrast_log_optical_depth_1000m
     column = log_tau(1:nx, 1:ny) - windows(:, :, 4)
-    features(24, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 24, nx * ny, column)
     ! neighbour_contrast_log_optical_depth_3000m
     column = log_tau(1:nx, 1:ny) - windows(:, :, 5)
-    features(25, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 25, nx * ny, column)
     ! neighbour_contrast_log_optical_depth_5000m
     column = log_tau(1:nx, 1:ny) - windows(:, :, 6)
-    features(26, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 26, nx * ny, column)
     ! cloud_edge_distance
     call boosted_edge_distance(total_cloud_fraction, nx, ny, hx, hy, dx, dy, 0.5_real64, 5000.0_real64, column)
-    features(27, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 27, nx * ny, column)
     ! log_optical_depth_gradient_along_beam
     call boosted_gradient(log_tau, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, .false., column)
-    features(28, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 28, nx * ny, column)
     ! log_optical_depth_gradient_across_beam
     call boosted_gradient(log_tau, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, .true., column)
-    features(29, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 29, nx * ny, column)
     ! slant_optical_depth
-    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_optical_depth, 'slant_optical_depth', column, slant_path_reach=slant_path_reach)
-    features(30, :) = reshape(column, [nx * ny])
+    column = slant_depths(:, :, 1)
+    call boosted_set_feature(features, 30, nx * ny, column)
     ! slant_minus_vertical_optical_depth
-    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_optical_depth, 'slant_minus_vertical_optical_depth', column, slant_path_reach=slant_path_reach)
-    features(31, :) = reshape(column, [nx * ny])
+    column = slant_depths(:, :, 2)
+    call boosted_set_feature(features, 31, nx * ny, column)
     ! cloud_top_height_upsun_minus_downsun
     call boosted_cloud_top_sides(top, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, 2000.0_real64, column)
-    features(32, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 32, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_direct_flux_1000m
     column = windows(:, :, 7) - independent_column_fluxes(1:nx, 1:ny, 2)
-    features(33, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 33, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_direct_flux_3000m
     column = windows(:, :, 8) - independent_column_fluxes(1:nx, 1:ny, 2)
-    features(34, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 34, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_direct_flux_5000m
     column = windows(:, :, 9) - independent_column_fluxes(1:nx, 1:ny, 2)
-    features(35, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 35, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_1000m
     column = windows(:, :, 10) - independent_column_fluxes(1:nx, 1:ny, 3)
-    features(36, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 36, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_3000m
     column = windows(:, :, 11) - independent_column_fluxes(1:nx, 1:ny, 3)
-    features(37, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 37, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_5000m
     column = windows(:, :, 12) - independent_column_fluxes(1:nx, 1:ny, 3)
-    features(38, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 38, nx * ny, column)
     ! neighbour_excess_independent_column_toa_upward_flux_1000m
     column = windows(:, :, 13) - independent_column_fluxes(1:nx, 1:ny, 4)
-    features(39, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 39, nx * ny, column)
     ! neighbour_excess_independent_column_toa_upward_flux_3000m
     column = windows(:, :, 14) - independent_column_fluxes(1:nx, 1:ny, 4)
-    features(40, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 40, nx * ny, column)
     ! neighbour_excess_independent_column_toa_upward_flux_5000m
     column = windows(:, :, 15) - independent_column_fluxes(1:nx, 1:ny, 4)
-    features(41, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 41, nx * ny, column)
     ! direct_beam_prior
     column = priors(:, :, 1)
-    features(42, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 42, nx * ny, column)
     ! direct_beam_prior_minus_independent_column
     column = priors(:, :, 2)
-    features(43, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 43, nx * ny, column)
     ! direct_beam_prior_slant_minus_vertical
     column = priors(:, :, 3)
-    features(44, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 44, nx * ny, column)
   end subroutine boosted_host_features
 
   ! Index i of a periodic axis of n points starting at first (the block of own columns and halo).
@@ -846,6 +849,15 @@ contains
     call boosted_bilinear_sample(top, nx, ny, hx, hy, -sx, -sy, downsun)
     difference = difference - downsun
   end subroutine boosted_cloud_top_sides
+
+  ! Feature column j of the own columns from a plane of them (column(i), i = ix + (iy - 1) * nx),
+  ! copied straight in (reshape would make a temporary copy first).
+  pure subroutine boosted_set_feature(features, j, n, column)
+    integer, intent(in) :: j, n
+    real(real64), intent(inout) :: features(boosted_n_host_features, n)
+    real(real64), intent(in) :: column(n)
+    features(j, :) = column
+  end subroutine boosted_set_feature
 
   ! A number as short text (g0: every digit a double needs; NaN, Inf and -Inf by name).
   pure function boosted_number_text(value) result(text)
@@ -1289,24 +1301,37 @@ contains
 
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
-  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. The halo must
-  !> cover boosted_path_reach.
+  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. With
+  !> minus_vertical (feature 'slant_optical_depth'), that difference goes there too: both features from one
+  !> pass over the paths. The halo must cover boosted_path_reach.
   pure subroutine boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-      layer_optical_depth, feature, out, slant_path_reach)
+      layer_optical_depth, feature, out, slant_path_reach, minus_vertical)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
     real(real64), intent(in), optional :: slant_path_reach
+    real(real64), intent(out), optional :: minus_vertical(nx, ny)
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(boosted_slant_weights) :: paths
-    real(real64) :: mu0, total, plane, column
+    real(real64) :: mu0, total, plane
+    real(real64), allocatable :: column(:, :)
     integer :: ix, iy, g, t, k
+    logical :: vertical
     mu0 = cos(solar_zenith_angle * degree)
     call boosted_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
         slant_path_reach)
     call boosted_slant_group_offsets(nz, paths)
+    vertical = feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)
+    if (vertical) then
+      ! The own columns' optical depths, a layer plane at a time (a column's layers are a plane apart).
+      allocate (column(nx, ny))
+      column = 0.0_real64
+      do k = 1, nz
+        column = column + layer_optical_depth(1:nx, 1:ny, k)
+      end do
+    end if
     do iy = 1, ny
       do ix = 1, nx
         total = 0.0_real64
@@ -1319,12 +1344,11 @@ contains
           total = total + plane
         end do
         out(ix, iy) = total / mu0
-        if (feature == 'slant_minus_vertical_optical_depth') then
-          column = 0.0_real64
-          do k = 1, nz
-            column = column + layer_optical_depth(ix, iy, k)
-          end do
-          out(ix, iy) = out(ix, iy) - column / mu0
+        if (.not. vertical) cycle
+        if (present(minus_vertical)) then
+          minus_vertical(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
+        else
+          out(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
         end if
       end do
     end do
@@ -1786,9 +1810,10 @@ contains
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(boosted_slant_weights) :: paths
     real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud, row_fraction, row_cloud
-    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
+    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum, &
+        row_clear
     real(real64), allocatable :: vertical(:, :)
-    real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
+    real(real64) :: mu0, w, v_path, rho_path, gamma_path, slanted, loose, sum_cloud, sum_fraction, &
         plane_clear, plane_v, plane_rho, plane_gamma
     real(real64), dimension(nz) :: dz, zeros, cover, depth, volume
     integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
@@ -1804,14 +1829,16 @@ contains
     ! vertical of the own columns (features._direct_prior, not slanted).
     ! The cloud optical depth is max(tau - clear-sky tau, 0) wherever it is read: no block-sized array of it.
     allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry), &
-              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx))
+              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx), row_clear(1-rx:nx+rx))
     do iy = 1 - ry, ny + ry
       ! The row's columns with their layers in contiguous memory, the fields read along x (a column's
-      ! layers are a field plane apart).
+      ! layers are a field plane apart); with them each column's clear-sky optical depth, summed up.
+      row_clear = 0.0_real64
       do k = 1, nz
         do ix = 1 - rx, nx + rx
           row_fraction(k, ix) = layer_cloud_fraction(ix, iy, k)
           row_cloud(k, ix) = max(layer_optical_depth(ix, iy, k) - layer_clear_sky_optical_depth(ix, iy, k), 0.0_real64)
+          row_clear(ix) = row_clear(ix) + layer_clear_sky_optical_depth(ix, iy, k)
         end do
       end do
       do ix = 1 - rx, nx + rx
@@ -1823,11 +1850,7 @@ contains
         rho(ix, iy) = boosted_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
         if (.not. present(slant_minus_vertical)) cycle
         if (ix < 1 .or. ix > nx .or. iy < 1 .or. iy > ny) cycle
-        clear_depth = 0.0_real64
-        do k = 1, nz
-          clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
-        end do
-        vertical(ix, iy) = boosted_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v(ix, iy), &
+        vertical(ix, iy) = boosted_prior_transmittance(n_block, cover, depth, volume, loose, row_clear(ix), v(ix, iy), &
             mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
