@@ -1323,9 +1323,9 @@ contains
         slant_path_reach)
     call ridge_slant_group_offsets(nz, paths)
     vertical = feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)
+    allocate (column(nx, ny))
     if (vertical) then
       ! The own columns' optical depths, a layer plane at a time (a column's layers are a plane apart).
-      allocate (column(nx, ny))
       column = 0.0_real64
       do k = 1, nz
         column = column + layer_optical_depth(1:nx, 1:ny, k)
