@@ -302,7 +302,7 @@ _GATE_COMPONENTS = """\
     integer :: n_envelope = 0                              ! training envelope: none when 0
     real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
-    real(real64), allocatable :: envelope_rows(:, :)       ! (n_envelope rounded up to 4, n_features): by feature
+    real(real64), allocatable :: envelope_rows(:, :)       ! (n_envelope rounded up, n_features): by feature
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
     real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
     integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
@@ -317,6 +317,25 @@ _GATE_TEST = """\
       corrections = 0.0_real64
       return
     end if"""
+
+
+#: Envelope projections summed together in the envelope check (scalars p1, p2, ...: one pass over the
+#: features per so many components).
+_PROJECTIONS = 8
+
+
+def _projection_names():
+    """The envelope check's projection sums: ``p1, p2, ...``."""
+    return ", ".join(f"p{i}" for i in range(1, _PROJECTIONS + 1))
+
+
+def _projection_sums(prefix):
+    """Statements of the envelope check summing the projections j .. j + _PROJECTIONS - 1 into ``projection``."""
+    sums = range(1, _PROJECTIONS + 1)
+    lines = [f"      p{i} = 0.0_real64" for i in sums] + [f"      do k = 1, {prefix}_n_features"]
+    lines += [f"        p{i} = p{i} + model%envelope_rows(j{f' + {i - 1}' if i > 1 else ''}, k) * z(k)" for i in sums]
+    lines += ["      end do", f"      projection(j:j + {_PROJECTIONS - 1}) = [{_projection_names()}]"]
+    return "\n".join(lines)
 
 
 def _batched_procedure(prefix):
@@ -354,26 +373,17 @@ def _batched_procedure(prefix):
     real(real64), intent(in) :: features({prefix}_n_features)
     logical, intent(out) :: outside
     real(real64), intent(out) :: distance
-    real(real64) :: z({prefix}_n_features), projection({prefix}_n_features + 3), residual, squares, p1, p2, p3, p4
+    real(real64) :: z({prefix}_n_features), projection({prefix}_n_features + {_PROJECTIONS - 1}), residual, squares, &
+        {_projection_names()}
     integer :: j, k
     outside = .false.
     distance = 0.0_real64
     if (model%n_envelope == 0) return
     z = (features - model%envelope_center) / model%envelope_scale
-    ! Four projections at a time, each summed in feature order as a dot product: four independent
+    ! Projections {_PROJECTIONS} at a time, each summed in feature order as a dot product: independent
     ! additions in flight instead of one (the rows past n_envelope are zeros, their projections unused).
-    do j = 1, model%n_envelope, 4
-      p1 = 0.0_real64
-      p2 = 0.0_real64
-      p3 = 0.0_real64
-      p4 = 0.0_real64
-      do k = 1, {prefix}_n_features
-        p1 = p1 + model%envelope_rows(j, k) * z(k)
-        p2 = p2 + model%envelope_rows(j + 1, k) * z(k)
-        p3 = p3 + model%envelope_rows(j + 2, k) * z(k)
-        p4 = p4 + model%envelope_rows(j + 3, k) * z(k)
-      end do
-      projection(j:j + 3) = [p1, p2, p3, p4]
+    do j = 1, model%n_envelope, {_PROJECTIONS}
+{_projection_sums(prefix)}
     end do
     do j = 1, model%n_envelope
       distance = distance + projection(j) * projection(j) / model%envelope_variance(j)
@@ -466,7 +476,8 @@ def _gate_reader(prefix):
       model%envelope_threshold = tolerance(1)
       if (status == 0) then
         model%envelope_components = reshape(envelope_list, [{prefix}_n_features, model%n_envelope])
-        allocate (model%envelope_rows(4 * ((model%n_envelope + 3) / 4), {prefix}_n_features))
+        allocate (model%envelope_rows({_PROJECTIONS} * ((model%n_envelope + {_PROJECTIONS - 1}) / {_PROJECTIONS}), &
+                                      {prefix}_n_features))
         model%envelope_rows = 0.0_real64
         model%envelope_rows(1:model%n_envelope, :) = transpose(model%envelope_components)
         if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
