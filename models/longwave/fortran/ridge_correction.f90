@@ -57,7 +57,7 @@ module ridge_correction
     integer :: n_envelope = 0                              ! training envelope: none when 0
     real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
-    real(real64), allocatable :: envelope_rows(:, :)       ! (n_envelope rounded up to 4, n_features): by feature
+    real(real64), allocatable :: envelope_rows(:, :)       ! (n_envelope rounded up, n_features): by feature
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
     real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
     integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
@@ -148,26 +148,35 @@ contains
     real(real64), intent(in) :: features(ridge_n_features)
     logical, intent(out) :: outside
     real(real64), intent(out) :: distance
-    real(real64) :: z(ridge_n_features), projection(ridge_n_features + 3), residual, squares, p1, p2, p3, p4
+    real(real64) :: z(ridge_n_features), projection(ridge_n_features + 7), residual, squares, &
+        p1, p2, p3, p4, p5, p6, p7, p8
     integer :: j, k
     outside = .false.
     distance = 0.0_real64
     if (model%n_envelope == 0) return
     z = (features - model%envelope_center) / model%envelope_scale
-    ! Four projections at a time, each summed in feature order as a dot product: four independent
+    ! Projections 8 at a time, each summed in feature order as a dot product: independent
     ! additions in flight instead of one (the rows past n_envelope are zeros, their projections unused).
-    do j = 1, model%n_envelope, 4
+    do j = 1, model%n_envelope, 8
       p1 = 0.0_real64
       p2 = 0.0_real64
       p3 = 0.0_real64
       p4 = 0.0_real64
+      p5 = 0.0_real64
+      p6 = 0.0_real64
+      p7 = 0.0_real64
+      p8 = 0.0_real64
       do k = 1, ridge_n_features
         p1 = p1 + model%envelope_rows(j, k) * z(k)
         p2 = p2 + model%envelope_rows(j + 1, k) * z(k)
         p3 = p3 + model%envelope_rows(j + 2, k) * z(k)
         p4 = p4 + model%envelope_rows(j + 3, k) * z(k)
+        p5 = p5 + model%envelope_rows(j + 4, k) * z(k)
+        p6 = p6 + model%envelope_rows(j + 5, k) * z(k)
+        p7 = p7 + model%envelope_rows(j + 6, k) * z(k)
+        p8 = p8 + model%envelope_rows(j + 7, k) * z(k)
       end do
-      projection(j:j + 3) = [p1, p2, p3, p4]
+      projection(j:j + 7) = [p1, p2, p3, p4, p5, p6, p7, p8]
     end do
     do j = 1, model%n_envelope
       distance = distance + projection(j) * projection(j) / model%envelope_variance(j)
@@ -301,7 +310,8 @@ contains
       model%envelope_threshold = tolerance(1)
       if (status == 0) then
         model%envelope_components = reshape(envelope_list, [ridge_n_features, model%n_envelope])
-        allocate (model%envelope_rows(4 * ((model%n_envelope + 3) / 4), ridge_n_features))
+        allocate (model%envelope_rows(8 * ((model%n_envelope + 7) / 8), &
+                                      ridge_n_features))
         model%envelope_rows = 0.0_real64
         model%envelope_rows(1:model%n_envelope, :) = transpose(model%envelope_components)
         if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
