@@ -731,9 +731,9 @@ contains
     real(real64), intent(in) :: fraction(1-hx:nx+hx, 1-hy:ny+hy), dx, dy, edge_fraction, cap
     real(real64), intent(out) :: distance(nx, ny)
     ! Offset along x of the nearest cloudy (kind 1) and clear (kind 2) column in each row, -1 if none.
-    integer, allocatable :: nearest(:, :, :)
-    real(real64) :: half, reach, squared, best
-    integer :: kx, ky, ix, iy, o, kind, nbx, nby, row
+    integer, allocatable :: nearest(:, :, :), columns(:), rows(:)
+    real(real64) :: half, reach, squared, best, left, right
+    integer :: kx, ky, ix, iy, o, kind, nbx, nby, row, j
     logical :: cloudy, found
     half = 0.5_real64 * min(dx, dy)
     reach = cap + half
@@ -741,15 +741,19 @@ contains
     nby = ny + 2 * hy
     kx = ceiling(min(reach / dx, real(nbx / 2, real64)))
     ky = ceiling(min(reach / dy, real(nby / 2, real64)))
-    allocate (nearest(nx, 1-hy:ny+hy, 2))
+    allocate (nearest(nx, 1-hy:ny+hy, 2), columns(1-kx:nx+kx), rows(1-ky:ny+ky))
+    ! The block column of own column ix + o and the block row of own row iy + o, wrapped around the
+    ! periodic block once for all.
+    columns = ridge_wrap([(j, j = 1 - kx, nx + kx)], 1 - hx, nbx)
+    rows = ridge_wrap([(j, j = 1 - ky, ny + ky)], 1 - hy, nby)
     nearest = -1
     do iy = 1 - hy, ny + hy
       do ix = 1, nx
         do o = kx, 0, -1
-          if (fraction(ridge_wrap(ix - o, 1 - hx, nbx), iy) >= edge_fraction .or. &
-              fraction(ridge_wrap(ix + o, 1 - hx, nbx), iy) >= edge_fraction) nearest(ix, iy, 1) = o
-          if (fraction(ridge_wrap(ix - o, 1 - hx, nbx), iy) < edge_fraction .or. &
-              fraction(ridge_wrap(ix + o, 1 - hx, nbx), iy) < edge_fraction) nearest(ix, iy, 2) = o
+          left = fraction(columns(ix - o), iy)
+          right = fraction(columns(ix + o), iy)
+          if (left >= edge_fraction .or. right >= edge_fraction) nearest(ix, iy, 1) = o
+          if (left < edge_fraction .or. right < edge_fraction) nearest(ix, iy, 2) = o
         end do
       end do
     end do
@@ -761,7 +765,7 @@ contains
         found = .false.
         best = 0.0_real64
         do o = -ky, ky
-          row = ridge_wrap(iy + o, 1 - hy, nby)
+          row = rows(iy + o)
           if (nearest(ix, row, kind) < 0) cycle
           squared = (nearest(ix, row, kind) * dx)**2 + (o * dy)**2
           if (.not. found .or. squared < best) best = squared
@@ -784,9 +788,11 @@ contains
     real(real64), intent(in) :: log_tau(1-hx:nx+hx, 1-hy:ny+hy), dx, dy, azimuth
     logical, intent(in) :: across
     real(real64), intent(out) :: gradient(nx, ny)
-    real(real64) :: phi, gx, gy
+    real(real64) :: phi, gx, gy, sin_phi, cos_phi
     integer :: ix, iy, nbx, nby
     phi = azimuth * ridge_degree
+    sin_phi = sin(phi)
+    cos_phi = cos(phi)
     nbx = nx + 2 * hx
     nby = ny + 2 * hy
     do iy = 1, ny
@@ -796,9 +802,9 @@ contains
         gy = (log_tau(ix, ridge_wrap(iy + 1, 1 - hy, nby)) - log_tau(ix, ridge_wrap(iy - 1, 1 - hy, nby))) &
             / (2.0_real64 * dy)
         if (across) then
-          gradient(ix, iy) = abs(-gx * sin(phi) + gy * cos(phi))
+          gradient(ix, iy) = abs(-gx * sin_phi + gy * cos_phi)
         else
-          gradient(ix, iy) = gx * cos(phi) + gy * sin(phi)
+          gradient(ix, iy) = gx * cos_phi + gy * sin_phi
         end if
       end do
     end do
