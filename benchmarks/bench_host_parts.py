@@ -101,7 +101,22 @@ _TIMING = """\
 
 
 def timing_driver(driver, prefix):
-    """The example driver's text with its ``--repeat`` timing replaced by :data:`_TIMING`'s parts."""
+    """The example driver's text with its ``--repeat`` timing replaced by the timing of the parts.
+
+    Parameters
+    ----------
+    driver : str
+        Text of a generated ``NAME_host_driver.f90``.
+    prefix : str
+        The Fortran model name ``NAME``.
+
+    Returns
+    -------
+    str
+        A program that, run with ``--repeat N``, prints one ``key value`` line per name of
+        :data:`PARTS` (microseconds of processor time per own column), ``columns`` and
+        ``checksum``.
+    """
     start = driver.index("  !> With --repeat N:")
     end = driver.index("end subroutine time_corrections", start) + len("end subroutine time_corrections\n")
     names = ", ".join(f"'{name}'" for name in PARTS)
@@ -113,7 +128,27 @@ def timing_driver(driver, prefix):
 
 
 def time_parts(fortran, name, field_file, work, sweeps):
-    """:data:`PARTS` figures of one model (microseconds per own column) from the Fortran in ``fortran``."""
+    """The :data:`PARTS` figures of one model, compiled with the house flags and run.
+
+    Parameters
+    ----------
+    fortran : pathlib.Path
+        Folder of the generated Fortran and coefficient files.
+    name : str
+        The model's Fortran name (``ridge``, ``boosted``).
+    field_file : path
+        A host field file (:func:`bench_host_interface.host_field_file`).
+    work : path
+        Scratch directory.
+    sweeps : int
+        Sweeps over the columns per timed run.
+
+    Returns
+    -------
+    dict
+        Name of :data:`PARTS` -> microseconds of processor time per own column, and
+        ``columns``, ``checksum``.
+    """
     folder = Path(work) / name
     folder.mkdir()
     program = folder / f"{name}_host_parts.f90"
