@@ -72,13 +72,14 @@ module profile_correction
   character(len=*), parameter :: format_major = '1'
   integer, parameter :: line_length = 1024
 
-  !> Trees with global, 1-based node indices; feature 0 marks a leaf.
+  !> Trees with global, 1-based node indices, each tree in preorder (the reader renumbers its nodes): the
+  !> left child of internal node n is n + 1; feature 0 marks a leaf.
   type, public :: profile_coefficients
     integer :: n_trees = 0, n_nodes = 0
     real(real64), allocatable :: baseline(:)            ! (n_targets)
     integer(int32), allocatable :: tree_target(:)       ! (n_trees), 1-based target
     integer(int32), allocatable :: tree_root(:)         ! (n_trees)
-    integer(int32), allocatable :: feature(:), left(:), right(:)
+    integer(int32), allocatable :: feature(:), right(:)
     logical, allocatable :: missing_go_left(:)
     real(real64), allocatable :: threshold(:), value(:)
     integer :: n_clear_sky = 0                             ! clear-sky gate: no gate when 0
@@ -259,7 +260,7 @@ contains
           x = features(model%feature(node))
           ! NaN compares false, so it goes left only where missing_go_left says so.
           go_left = x <= model%threshold(node) .or. (model%missing_go_left(node) .and. ieee_is_nan(x))
-          node = merge(model%left(node), model%right(node), go_left)
+          node = merge(node + 1, model%right(node), go_left)
         end do
         m = model%tree_target(t)
         corrections(m) = corrections(m) + model%value(node)
@@ -269,7 +270,7 @@ contains
       do t = 1, model%n_trees
         node = model%tree_root(t)
         do while (model%feature(node) > 0)
-          node = merge(model%left(node), model%right(node), features(model%feature(node)) <= model%threshold(node))
+          node = merge(node + 1, model%right(node), features(model%feature(node)) <= model%threshold(node))
         end do
         m = model%tree_target(t)
         corrections(m) = corrections(m) + model%value(node)
@@ -402,7 +403,8 @@ contains
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
     real(real64) :: tolerance(1)
     real(real64), allocatable :: envelope_list(:)
-    integer :: unit, minor, n_leaves, n_thresholds, t, node, first, last, leaf
+    integer(int32), allocatable :: left(:), order(:), position(:), stack(:), renumbered(:)
+    integer :: unit, minor, n_leaves, n_thresholds, t, node, first, last, leaf, n_order, n_stack
     status = 0
     message = ''
     n_leaves = 0
@@ -420,7 +422,7 @@ contains
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%baseline(profile_n_targets), model%tree_target(model%n_trees), offset(model%n_trees + 1))
-      allocate (model%feature(model%n_nodes), threshold_index(model%n_nodes), model%left(model%n_nodes))
+      allocate (model%feature(model%n_nodes), threshold_index(model%n_nodes), left(model%n_nodes))
       allocate (model%right(model%n_nodes), missing(model%n_nodes), model%value(model%n_nodes))
       allocate (threshold_values(n_thresholds), leaf_value(n_leaves))
     end if
@@ -431,7 +433,7 @@ contains
     if (status == 0) call read_integers(unit, 'tree_offset', offset, status, message)
     if (status == 0) call read_integers(unit, 'feature', model%feature, status, message)
     if (status == 0) call read_integers(unit, 'threshold_index', threshold_index, status, message)
-    if (status == 0) call read_integers(unit, 'left', model%left, status, message)
+    if (status == 0) call read_integers(unit, 'left', left, status, message)
     if (status == 0) call read_integers(unit, 'right', model%right, status, message)
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
@@ -551,11 +553,11 @@ contains
           cycle
         end if
         ! Children come after their parent in the same tree, so every path ends at a leaf.
-        model%left(node) = model%left(node) + first
+        left(node) = left(node) + first
         model%right(node) = model%right(node) + first
         if (model%feature(node) >= profile_n_features .or. threshold_index(node) < 0 .or. &
-            threshold_index(node) >= n_thresholds .or. model%left(node) <= node .or. &
-            model%right(node) <= node .or. model%left(node) > last .or. model%right(node) > last) then
+            threshold_index(node) >= n_thresholds .or. left(node) <= node .or. &
+            model%right(node) <= node .or. left(node) > last .or. model%right(node) > last) then
           status = 1
           write (message, '(a, i0, a)') 'coefficient file: node ', node, ' has an index out of range'
           return
@@ -567,7 +569,47 @@ contains
     if (leaf /= n_leaves) then
       status = 1
       message = 'coefficient file: n_leaves differs from the number of leaves the nodes mark'
+      return
     end if
+    ! Every tree in preorder, each left child right after its parent, so that a walk finds it without a
+    ! load: a depth-first pass from each root, which also finds a node that two parents share or none reaches.
+    allocate (order(model%n_nodes), position(model%n_nodes), stack(2 * model%n_nodes + 1), renumbered(model%n_nodes))
+    position = 0
+    n_order = 0
+    do t = 1, model%n_trees
+      n_stack = 1
+      stack(1) = model%tree_root(t)
+      do while (n_stack > 0)
+        node = stack(n_stack)
+        n_stack = n_stack - 1
+        if (position(node) /= 0) then
+          n_order = -1
+          exit
+        end if
+        n_order = n_order + 1
+        order(n_order) = node
+        position(node) = n_order
+        if (model%feature(node) > 0) then
+          stack(n_stack + 1) = model%right(node)
+          stack(n_stack + 2) = left(node)
+          n_stack = n_stack + 2
+        end if
+      end do
+      if (n_order /= offset(t + 1)) then
+        status = 1
+        write (message, '(a, i0, a)') 'coefficient file: tree ', t, ' has a node with two parents or none'
+        return
+      end if
+    end do
+    do node = 1, model%n_nodes
+      renumbered(node) = 0
+      if (model%feature(order(node)) > 0) renumbered(node) = position(model%right(order(node)))
+    end do
+    model%right = renumbered
+    model%feature = model%feature(order)
+    model%threshold = model%threshold(order)
+    model%missing_go_left = model%missing_go_left(order)
+    model%value = model%value(order)
   end subroutine profile_read_coefficients
 
   subroutine next_line(unit, line, status, message)
