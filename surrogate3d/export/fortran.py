@@ -302,6 +302,7 @@ _GATE_COMPONENTS = """\
     integer :: n_envelope = 0                              ! training envelope: none when 0
     real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
+    real(real64), allocatable :: envelope_rows(:, :)       ! (n_envelope rounded up, n_features): by feature
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
     real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
     integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
@@ -316,6 +317,25 @@ _GATE_TEST = """\
       corrections = 0.0_real64
       return
     end if"""
+
+
+#: Envelope projections summed together in the envelope check (scalars p1, p2, ...: one pass over the
+#: features per so many components).
+_PROJECTIONS = 8
+
+
+def _projection_names():
+    """The envelope check's projection sums: ``p1, p2, ...``."""
+    return ", ".join(f"p{i}" for i in range(1, _PROJECTIONS + 1))
+
+
+def _projection_sums(prefix):
+    """Statements of the envelope check summing the projections j .. j + _PROJECTIONS - 1 into ``projection``."""
+    sums = range(1, _PROJECTIONS + 1)
+    lines = [f"      p{i} = 0.0_real64" for i in sums] + [f"      do k = 1, {prefix}_n_features"]
+    lines += [f"        p{i} = p{i} + model%envelope_rows(j{f' + {i - 1}' if i > 1 else ''}, k) * z(k)" for i in sums]
+    lines += ["      end do", f"      projection(j:j + {_PROJECTIONS - 1}) = [{_projection_names()}]"]
+    return "\n".join(lines)
 
 
 def _batched_procedure(prefix):
@@ -353,19 +373,31 @@ def _batched_procedure(prefix):
     real(real64), intent(in) :: features({prefix}_n_features)
     logical, intent(out) :: outside
     real(real64), intent(out) :: distance
-    real(real64) :: z({prefix}_n_features), residual({prefix}_n_features), projection
-    integer :: j
+    real(real64) :: z({prefix}_n_features), projection({prefix}_n_features + {_PROJECTIONS - 1}), residual, squares, &
+        {_projection_names()}
+    integer :: j, k
     outside = .false.
     distance = 0.0_real64
     if (model%n_envelope == 0) return
     z = (features - model%envelope_center) / model%envelope_scale
-    residual = z
-    do j = 1, model%n_envelope
-      projection = dot_product(model%envelope_components(:, j), z)
-      residual = residual - projection * model%envelope_components(:, j)
-      distance = distance + projection * projection / model%envelope_variance(j)
+    ! Projections {_PROJECTIONS} at a time, each summed in feature order as a dot product: independent
+    ! additions in flight instead of one (the rows past n_envelope are zeros, their projections unused).
+    do j = 1, model%n_envelope, {_PROJECTIONS}
+{_projection_sums(prefix)}
     end do
-    distance = sqrt(distance + sum(residual * residual) / model%envelope_residual_variance)
+    do j = 1, model%n_envelope
+      distance = distance + projection(j) * projection(j) / model%envelope_variance(j)
+    end do
+    ! The residual z minus its projections, feature by feature, the components taken off in order.
+    squares = 0.0_real64
+    do k = 1, {prefix}_n_features
+      residual = z(k)
+      do j = 1, model%n_envelope
+        residual = residual - projection(j) * model%envelope_rows(j, k)
+      end do
+      squares = squares + residual * residual
+    end do
+    distance = sqrt(distance + squares / model%envelope_residual_variance)
     if (clear_sky(model, features)) return
     ! Written as "not inside" so that NaN, which compares false, is outside.
     outside = .not. (all(features >= model%envelope_min .and. features <= model%envelope_max) .and. &
@@ -423,6 +455,10 @@ def _gate_reader(prefix):
         model%clear_sky_tolerance = tolerance(1)
       end if
     end if
+    if (status == 0 .and. model%n_envelope > {prefix}_n_features) then
+      status = 1
+      message = 'coefficient file: the training envelope has more components than the model has features'
+    end if
     if (status == 0 .and. model%n_envelope > 0) then
       allocate (model%envelope_min({prefix}_n_features), model%envelope_max({prefix}_n_features))
       allocate (model%envelope_center({prefix}_n_features), model%envelope_scale({prefix}_n_features))
@@ -440,6 +476,10 @@ def _gate_reader(prefix):
       model%envelope_threshold = tolerance(1)
       if (status == 0) then
         model%envelope_components = reshape(envelope_list, [{prefix}_n_features, model%n_envelope])
+        allocate (model%envelope_rows({_PROJECTIONS} * ((model%n_envelope + {_PROJECTIONS - 1}) / {_PROJECTIONS}), &
+                                      {prefix}_n_features))
+        model%envelope_rows = 0.0_real64
+        model%envelope_rows(1:model%n_envelope, :) = transpose(model%envelope_components)
         if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
             .or. .not. (model%envelope_residual_variance > 0.0_real64) .or. &
             .not. (model%envelope_threshold >= 0.0_real64) .or. any(model%envelope_max < model%envelope_min)) then
@@ -782,6 +822,24 @@ def _profile_procedure(prefix, document):
 """
 
 
+def _target_sums(document):
+    """The ridge evaluation's scalar sums, one per target: ``sum_1, sum_2, ...``."""
+    return ", ".join(f"sum_{m}" for m in range(1, len(document["targets"]["names"]) + 1))
+
+
+def _ridge_sums(prefix, document):
+    """Statements of the ridge sums (intercept, linear terms, then pairs, in that order per target) into
+    ``corrections``."""
+    targets = range(1, len(document["targets"]["names"]) + 1)
+    lines = [f"    sum_{m} = model%intercept({m})" for m in targets]
+    lines += [f"    do k = 1, {prefix}_n_features"]
+    lines += [f"      sum_{m} = sum_{m} + model%coef({m}, k) * z(k)" for m in targets]
+    lines += ["    end do", "    do p = 1, model%n_pairs", "      product = z(model%pairs(1, p)) * z(model%pairs(2, p))"]
+    lines += [f"      sum_{m} = sum_{m} + model%coef({m}, {prefix}_n_features + p) * product" for m in targets]
+    lines += ["    end do", f"    corrections = [{_target_sums(document)}]"]
+    return "\n".join(lines)
+
+
 def _ridge_module(prefix, document):
     return _module_header(prefix, document) + f"""\
   real(real64), parameter :: near_constant_fraction = {_number(NEAR_CONSTANT)}_real64
@@ -808,7 +866,7 @@ contains
     type({prefix}_coefficients), intent(in) :: model
     real(real64), intent(in) :: features({prefix}_n_features)
     real(real64), intent(out) :: corrections({prefix}_n_targets)
-    real(real64) :: z({prefix}_n_features)
+    real(real64) :: z({prefix}_n_features), product, {_target_sums(document)}
     integer :: k, p
 {_GATE_TEST}
     ! Within the training range (files of format 1.{RIDGE_CLIPPING_VERSION[1]} on): a fitted quadratic runs
@@ -824,14 +882,9 @@ contains
     do k = 1, size(model%near_constant)
       z(model%near_constant(k)) = max(-1.0_real64, min(1.0_real64, z(model%near_constant(k))))
     end do
-    ! All targets advance together: independent sums, so additions overlap in the CPU.
-    corrections = model%intercept
-    do k = 1, {prefix}_n_features
-      corrections = corrections + model%coef(:, k) * z(k)
-    end do
-    do p = 1, model%n_pairs
-      corrections = corrections + model%coef(:, {prefix}_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
-    end do
+    ! One scalar sum per target, all advancing together: independent additions overlap in the CPU (an
+    ! array of sums would be stored and loaded again at every term).
+{_ridge_sums(prefix, document)}
     call apply_transforms(model, features, corrections)
   end subroutine {prefix}_correct_column
 
@@ -914,13 +967,14 @@ end module {prefix}_correction
 
 def _boosted_module(prefix, document):
     return _module_header(prefix, document) + f"""
-  !> Trees with global, 1-based node indices; feature 0 marks a leaf.
+  !> Trees with global, 1-based node indices, each tree in preorder (the reader renumbers its nodes): the
+  !> left child of internal node n is n + 1; feature 0 marks a leaf.
   type, public :: {prefix}_coefficients
     integer :: n_trees = 0, n_nodes = 0
     real(real64), allocatable :: baseline(:)            ! (n_targets)
     integer(int32), allocatable :: tree_target(:)       ! (n_trees), 1-based target
     integer(int32), allocatable :: tree_root(:)         ! (n_trees)
-    integer(int32), allocatable :: feature(:), left(:), right(:)
+    integer(int32), allocatable :: feature(:), right(:)
     logical, allocatable :: missing_go_left(:)
     real(real64), allocatable :: threshold(:), value(:)
 {_GATE_COMPONENTS}
@@ -942,17 +996,29 @@ contains
     logical :: go_left
 {_GATE_TEST}
     corrections = model%baseline
-    do t = 1, model%n_trees
-      node = model%tree_root(t)
-      do while (model%feature(node) > 0)
-        x = features(model%feature(node))
-        ! NaN compares false, so it goes left only where missing_go_left says so.
-        go_left = x <= model%threshold(node) .or. (model%missing_go_left(node) .and. ieee_is_nan(x))
-        node = merge(model%left(node), model%right(node), go_left)
+    if (any(ieee_is_nan(features))) then
+      do t = 1, model%n_trees
+        node = model%tree_root(t)
+        do while (model%feature(node) > 0)
+          x = features(model%feature(node))
+          ! NaN compares false, so it goes left only where missing_go_left says so.
+          go_left = x <= model%threshold(node) .or. (model%missing_go_left(node) .and. ieee_is_nan(x))
+          node = merge(node + 1, model%right(node), go_left)
+        end do
+        m = model%tree_target(t)
+        corrections(m) = corrections(m) + model%value(node)
       end do
-      m = model%tree_target(t)
-      corrections(m) = corrections(m) + model%value(node)
-    end do
+    else
+      ! No missing feature (the usual column): the comparison alone decides, the same walk with fewer loads.
+      do t = 1, model%n_trees
+        node = model%tree_root(t)
+        do while (model%feature(node) > 0)
+          node = merge(node + 1, model%right(node), features(model%feature(node)) <= model%threshold(node))
+        end do
+        m = model%tree_target(t)
+        corrections(m) = corrections(m) + model%value(node)
+      end do
+    end if
     call apply_transforms(model, features, corrections)
   end subroutine {prefix}_correct_column
 
@@ -968,7 +1034,8 @@ contains
     real(real64), allocatable :: threshold_values(:), leaf_value(:)
     real(real64) :: tolerance(1)
     real(real64), allocatable :: envelope_list(:)
-    integer :: unit, minor, n_leaves, n_thresholds, t, node, first, last, leaf
+    integer(int32), allocatable :: left(:), order(:), position(:), stack(:), renumbered(:)
+    integer :: unit, minor, n_leaves, n_thresholds, t, node, first, last, leaf, n_order, n_stack
     status = 0
     message = ''
     n_leaves = 0
@@ -986,7 +1053,7 @@ contains
     if (status == 0) then
       allocate (model%clear_sky_features(model%n_clear_sky))
       allocate (model%baseline({prefix}_n_targets), model%tree_target(model%n_trees), offset(model%n_trees + 1))
-      allocate (model%feature(model%n_nodes), threshold_index(model%n_nodes), model%left(model%n_nodes))
+      allocate (model%feature(model%n_nodes), threshold_index(model%n_nodes), left(model%n_nodes))
       allocate (model%right(model%n_nodes), missing(model%n_nodes), model%value(model%n_nodes))
       allocate (threshold_values(n_thresholds), leaf_value(n_leaves))
     end if
@@ -997,7 +1064,7 @@ contains
     if (status == 0) call read_integers(unit, 'tree_offset', offset, status, message)
     if (status == 0) call read_integers(unit, 'feature', model%feature, status, message)
     if (status == 0) call read_integers(unit, 'threshold_index', threshold_index, status, message)
-    if (status == 0) call read_integers(unit, 'left', model%left, status, message)
+    if (status == 0) call read_integers(unit, 'left', left, status, message)
     if (status == 0) call read_integers(unit, 'right', model%right, status, message)
     if (status == 0) call read_integers(unit, 'missing_go_left', missing, status, message)
     if (status == 0) call read_reals(unit, 'leaf_value', leaf_value, status, message)
@@ -1045,11 +1112,11 @@ contains
           cycle
         end if
         ! Children come after their parent in the same tree, so every path ends at a leaf.
-        model%left(node) = model%left(node) + first
+        left(node) = left(node) + first
         model%right(node) = model%right(node) + first
         if (model%feature(node) >= {prefix}_n_features .or. threshold_index(node) < 0 .or. &
-            threshold_index(node) >= n_thresholds .or. model%left(node) <= node .or. &
-            model%right(node) <= node .or. model%left(node) > last .or. model%right(node) > last) then
+            threshold_index(node) >= n_thresholds .or. left(node) <= node .or. &
+            model%right(node) <= node .or. left(node) > last .or. model%right(node) > last) then
           status = 1
           write (message, '(a, i0, a)') 'coefficient file: node ', node, ' has an index out of range'
           return
@@ -1061,7 +1128,47 @@ contains
     if (leaf /= n_leaves) then
       status = 1
       message = 'coefficient file: n_leaves differs from the number of leaves the nodes mark'
+      return
     end if
+    ! Every tree in preorder, each left child right after its parent, so that a walk finds it without a
+    ! load: a depth-first pass from each root, which also finds a node that two parents share or none reaches.
+    allocate (order(model%n_nodes), position(model%n_nodes), stack(2 * model%n_nodes + 1), renumbered(model%n_nodes))
+    position = 0
+    n_order = 0
+    do t = 1, model%n_trees
+      n_stack = 1
+      stack(1) = model%tree_root(t)
+      do while (n_stack > 0)
+        node = stack(n_stack)
+        n_stack = n_stack - 1
+        if (position(node) /= 0) then
+          n_order = -1
+          exit
+        end if
+        n_order = n_order + 1
+        order(n_order) = node
+        position(node) = n_order
+        if (model%feature(node) > 0) then
+          stack(n_stack + 1) = model%right(node)
+          stack(n_stack + 2) = left(node)
+          n_stack = n_stack + 2
+        end if
+      end do
+      if (n_order /= offset(t + 1)) then
+        status = 1
+        write (message, '(a, i0, a)') 'coefficient file: tree ', t, ' has a node with two parents or none'
+        return
+      end if
+    end do
+    do node = 1, model%n_nodes
+      renumbered(node) = 0
+      if (model%feature(order(node)) > 0) renumbered(node) = position(model%right(order(node)))
+    end do
+    model%right = renumbered
+    model%feature = model%feature(order)
+    model%threshold = model%threshold(order)
+    model%missing_go_left = model%missing_go_left(order)
+    model%value = model%value(order)
   end subroutine {prefix}_read_coefficients
 
 {_COMMON_READERS}

@@ -548,24 +548,37 @@ def _slant_depth_procedure(p):
     return f"""
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
-  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. The halo must
-  !> cover {p}_path_reach.
+  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. With
+  !> minus_vertical (feature 'slant_optical_depth'), that difference goes there too: both features from one
+  !> pass over the paths. The halo must cover {p}_path_reach.
   pure subroutine {p}_slant_depth({_CALL_HEAD}, &
-      layer_optical_depth, feature, out, slant_path_reach)
+      layer_optical_depth, feature, out, slant_path_reach, minus_vertical)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
     real(real64), intent(in), optional :: slant_path_reach
+    real(real64), intent(out), optional :: minus_vertical(nx, ny)
 {_DEGREE}
     type({p}_slant_weights) :: paths
-    real(real64) :: mu0, total, plane, column
+    real(real64) :: mu0, total, plane
+    real(real64), allocatable :: column(:, :)
     integer :: ix, iy, g, t, k
+    logical :: vertical
     mu0 = cos(solar_zenith_angle * degree)
     call {p}_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
         slant_path_reach)
     call {p}_slant_group_offsets(nz, paths)
+    vertical = feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)
+    allocate (column(nx, ny))
+    if (vertical) then
+      ! The own columns' optical depths, a layer plane at a time (a column's layers are a plane apart).
+      column = 0.0_real64
+      do k = 1, nz
+        column = column + layer_optical_depth(1:nx, 1:ny, k)
+      end do
+    end if
     do iy = 1, ny
       do ix = 1, nx
         total = 0.0_real64
@@ -578,12 +591,11 @@ def _slant_depth_procedure(p):
           total = total + plane
         end do
         out(ix, iy) = total / mu0
-        if (feature == 'slant_minus_vertical_optical_depth') then
-          column = 0.0_real64
-          do k = 1, nz
-            column = column + layer_optical_depth(ix, iy, k)
-          end do
-          out(ix, iy) = out(ix, iy) - column / mu0
+        if (.not. vertical) cycle
+        if (present(minus_vertical)) then
+          minus_vertical(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
+        else
+          out(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
         end if
       end do
     end do
@@ -962,14 +974,13 @@ def _prior_procedures(p):
     real(real64), intent(in), optional :: slant_path_reach
 {_DEGREE}
     type({p}_slant_weights) :: paths
-    real(real64), allocatable :: cloud(:, :, :)
-    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud
-    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
+    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud, row_fraction, row_cloud
+    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum, &
+        row_clear
     real(real64), allocatable :: vertical(:, :)
-    real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
+    real(real64) :: mu0, w, v_path, rho_path, gamma_path, slanted, loose, sum_cloud, sum_fraction, &
         plane_clear, plane_v, plane_rho, plane_gamma
-    ! A column's layers in contiguous memory (a strided section passed on would be copied to the heap).
-    real(real64), dimension(nz) :: dz, zeros, fraction, cloud_of_column, cover, depth, volume
+    real(real64), dimension(nz) :: dz, zeros, cover, depth, volume
     integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
     mu0 = cos(solar_zenith_angle * degree)
     dz = z_edge(2:nz + 1) - z_edge(1:nz)
@@ -981,29 +992,34 @@ def _prior_procedures(p):
     ! The cloud optical depth (features._cloud_layers) and the column statistics of every column the own
     ! columns' paths meet, from the blocks of their own layers; with these blocks, the prior along the
     ! vertical of the own columns (features._direct_prior, not slanted).
-    allocate (cloud(1-rx:nx+rx, 1-ry:ny+ry, nz), v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), &
-              gamma(1-rx:nx+rx, 1-ry:ny+ry), vertical(nx, ny))
-    cloud = max(layer_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :) &
-                - layer_clear_sky_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :), 0.0_real64)
+    ! The cloud optical depth is max(tau - clear-sky tau, 0) wherever it is read: no block-sized array of it.
+    allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry), &
+              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx), row_clear(1-rx:nx+rx))
     do iy = 1 - ry, ny + ry
+      ! The row's columns with their layers in contiguous memory, the fields read along x (a column's
+      ! layers are a field plane apart); with them each column's clear-sky optical depth, summed up.
+      row_clear = 0.0_real64
+      do k = 1, nz
+        do ix = 1 - rx, nx + rx
+          row_fraction(k, ix) = layer_cloud_fraction(ix, iy, k)
+          row_cloud(k, ix) = max(layer_optical_depth(ix, iy, k) - layer_clear_sky_optical_depth(ix, iy, k), 0.0_real64)
+          row_clear(ix) = row_clear(ix) + layer_clear_sky_optical_depth(ix, iy, k)
+        end do
+      end do
       do ix = 1 - rx, nx + rx
-        fraction = layer_cloud_fraction(ix, iy, :)
-        cloud_of_column = cloud(ix, iy, :)
-        call {p}_prior_cloud_blocks(nz, fraction, cloud_of_column, zeros, n_block, cover, depth, volume, loose)
+        call {p}_prior_cloud_blocks(nz, row_fraction(:, ix), row_cloud(:, ix), zeros, n_block, cover, depth, volume, &
+            loose)
         call {p}_overlap_statistics(n_block, cover, depth, total_cloud_fraction(ix, iy), &
             column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
         rho(ix, iy) = {p}_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
         if (.not. present(slant_minus_vertical)) cycle
         if (ix < 1 .or. ix > nx .or. iy < 1 .or. iy > ny) cycle
-        clear_depth = 0.0_real64
-        do k = 1, nz
-          clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
-        end do
-        vertical(ix, iy) = {p}_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v(ix, iy), &
+        vertical(ix, iy) = {p}_prior_transmittance(n_block, cover, depth, volume, loose, row_clear(ix), v(ix, iy), &
             mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
-    allocate (path_fraction(nx, nz), path_cloud(nx, nz), cloud_total(nx), fraction_total(nx), clear_path(nx), &
+    ! path_fraction(:, ix), path_cloud(:, ix): the layers along own column ix's path, contiguous.
+    allocate (path_fraction(nz, nx), path_cloud(nz, nx), cloud_total(nx), fraction_total(nx), clear_path(nx), &
               v_sum(nx), rho_sum(nx), gamma_sum(nx))
     do iy = 1, ny
       ! The sums of one own column in registers, the own columns of the row in turn: each term of a sum
@@ -1018,14 +1034,15 @@ def _prior_procedures(p):
             jx = ix + paths%ox(e)
             jy = iy + paths%oy(e)
             w = paths%weight(e)
-            sum_cloud = sum_cloud + w * cloud(jx, jy, k)
+            sum_cloud = sum_cloud + w * max(layer_optical_depth(jx, jy, k) - layer_clear_sky_optical_depth(jx, jy, k), &
+                                            0.0_real64)
             sum_fraction = sum_fraction + w * layer_cloud_fraction(jx, jy, k)
           end do
-          path_cloud(ix, k) = sum_cloud
-          path_fraction(ix, k) = sum_fraction
+          path_cloud(k, ix) = sum_cloud
+          path_fraction(k, ix) = sum_fraction
+          cloud_total(ix) = cloud_total(ix) + sum_cloud
+          fraction_total(ix) = fraction_total(ix) + sum_fraction
         end do
-        cloud_total = cloud_total + path_cloud(:, k)
-        fraction_total = fraction_total + path_fraction(:, k)
       end do
       clear_path = 0.0_real64
       v_sum = 0.0_real64
@@ -1043,7 +1060,8 @@ def _prior_procedures(p):
             k = paths%term_layer(t)
             w = paths%term_weight(t)
             plane_clear = plane_clear + layer_clear_sky_optical_depth(jx, jy, k) * w
-            plane_v = plane_v + (cloud(jx, jy, k) * v(jx, jy)) * w
+            plane_v = plane_v + (max(layer_optical_depth(jx, jy, k) - layer_clear_sky_optical_depth(jx, jy, k), &
+                                     0.0_real64) * v(jx, jy)) * w
             plane_rho = plane_rho + (layer_cloud_fraction(jx, jy, k) * rho(jx, jy)) * w
             plane_gamma = plane_gamma + (layer_cloud_fraction(jx, jy, k) * gamma(jx, jy)) * w
           end do
@@ -1062,9 +1080,8 @@ def _prior_procedures(p):
           rho_path = rho_sum(ix) / fraction_total(ix)
           gamma_path = gamma_sum(ix) / fraction_total(ix)
         end if
-        fraction = path_fraction(ix, :)
-        cloud_of_column = path_cloud(ix, :)
-        call {p}_prior_cloud_blocks(nz, fraction, cloud_of_column, dz, n_block, cover, depth, volume, loose)
+        call {p}_prior_cloud_blocks(nz, path_fraction(:, ix), path_cloud(:, ix), dz, n_block, cover, depth, volume, &
+            loose)
         slanted = {p}_prior_transmittance(n_block, cover, depth, volume, loose, clear_path(ix), v_path, mu0, &
             rho_path, gamma_path)
         if (present(prior)) prior(ix, iy) = slanted
@@ -1332,6 +1349,39 @@ def slant_call(prefix, feature, out, reach=None):
     name = "slant_depth" if family == "path" else "interception"
     return _wrapped(f"call {prefix}_{name}({_CALL_HEAD}, &\n"
                     f"    layer_optical_depth, '{feature}', {out}{_reach_argument(reach)})")
+
+
+def slant_depth_pair_call(prefix, out, minus_vertical, reach=None):
+    """One Fortran statement computing ``slant_optical_depth`` and ``slant_minus_vertical_optical_depth`` together.
+
+    The paths' sums are taken once for both features (two :func:`slant_call` statements
+    would take them twice); the values are those of the two statements bit for bit.
+
+    Parameters
+    ----------
+    prefix : str
+        The Fortran model name.
+    out, minus_vertical : str
+        Fortran array expressions of shape ``(nx, ny)`` that receive ``slant_optical_depth``
+        and ``slant_minus_vertical_optical_depth`` [1].
+    reach : str, optional
+        The cap of the paths' horizontal travel, as in :func:`slant_call`.
+
+    Returns
+    -------
+    str
+        The statement (continued over lines with ``&``), without a trailing newline;
+        it uses the dummy-argument names of ``NAME_host_features``.
+
+    Examples
+    --------
+    >>> print(slant_depth_pair_call("boosted", "a", "b"))
+    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+        layer_optical_depth, 'slant_optical_depth', a, minus_vertical=b)
+    """
+    return _wrapped(f"call {prefix}_slant_depth({_CALL_HEAD}, &\n"
+                    f"    layer_optical_depth, 'slant_optical_depth', {out}{_reach_argument(reach)}, "
+                    f"minus_vertical={minus_vertical})")
 
 
 def slant_priors_call(prefix, outs, reach=None):

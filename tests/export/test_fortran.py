@@ -6,6 +6,7 @@ digits read back to the same double (IEEE 754-2008, section 5.12.2), so the Fort
 coefficients equal the Python ones exactly.
 """
 
+import copy
 import shutil
 import subprocess
 
@@ -222,6 +223,65 @@ def test_fortran_reports_bad_data_files(built, drivers, tmp_path):
     result = subprocess.run([str(drivers["boosted"]), str(tmp_path / "gate.txt"), str(features)],
                             capture_output=True, text=True)
     assert result.returncode != 0 and "clear_sky_features index is out of range" in result.stderr
+
+
+def _breadth_first(document):
+    """A copy of a boosted document with every tree's nodes in breadth-first order (children still after
+    their parent, as the format asks, but a left child no longer right after its parent)."""
+    document = copy.deepcopy(document)
+    trees = document["boosted"]
+    offset, feature, left, right = (np.asarray(trees[k], dtype=np.int64) for k in ("tree_offset", "feature", "left",
+                                                                                   "right"))
+    leaves = np.flatnonzero(feature < 0)
+    leaf_value = dict(zip(leaves, np.asarray(trees["leaf_value"])))
+    order = []
+    for first, last in zip(offset[:-1], offset[1:]):
+        queue = [0]
+        for node in queue:
+            if feature[first + node] >= 0:
+                queue += [left[first + node], right[first + node]]
+        assert len(queue) == last - first
+        order.append((first, queue))
+    new = {k: [] for k in ("feature", "threshold_index", "left", "right", "missing_go_left", "leaf_value")}
+    for first, queue in order:
+        position = {node: i for i, node in enumerate(queue)}
+        for node in queue:
+            g = first + node
+            for k in ("feature", "threshold_index", "missing_go_left"):
+                new[k].append(trees[k][g])
+            new["left"].append(position[left[g]] if feature[g] >= 0 else -1)
+            new["right"].append(position[right[g]] if feature[g] >= 0 else -1)
+            if feature[g] < 0:
+                new["leaf_value"].append(leaf_value[g])
+    for k, values in new.items():
+        trees[k] = np.asarray(values, dtype=np.asarray(trees[k]).dtype if k != "left" else np.int16)
+    trees["right"] = trees["right"].astype(np.int16)
+    return document
+
+
+@needs_gfortran
+def test_fortran_reads_trees_in_any_node_order(built, drivers, tmp_path):
+    # The format asks only that children come after their parent (docs/export-format.md); the reader puts
+    # every tree in preorder for its walk. The same trees breadth first give the same corrections, bit for
+    # bit, equal to Python's to 1e-10; a node with two parents is refused.
+    fortran = built["export_dir"] / "fortran"
+    samples = fortran / "boosted_sample_features.txt"
+    reordered = _breadth_first(read_coefficients(built["export_dir"] / "boosted.coefficients.json"))
+    first_tree = slice(0, int(reordered["boosted"]["tree_offset"][1]))
+    assert np.any(reordered["boosted"]["left"][first_tree][reordered["boosted"]["feature"][first_tree] >= 0]
+                  != np.flatnonzero(reordered["boosted"]["feature"][first_tree] >= 0) + 1)
+    (tmp_path / "breadth_first.txt").write_text(data_file_text(reordered))
+    got = _run(drivers["boosted"], tmp_path / "breadth_first.txt", samples)
+    np.testing.assert_array_equal(got, _run(drivers["boosted"], fortran / "boosted.coefficients.txt", samples))
+    expected = CorrectionModel.from_document(reordered).predict(np.loadtxt(samples, skiprows=1),
+                                                                check_envelope=False)
+    assert (np.abs(got - expected) / np.abs(expected).max(axis=0)).max() <= 1e-10
+    shared = copy.deepcopy(reordered)
+    shared["boosted"]["right"][0] = shared["boosted"]["left"][0]
+    (tmp_path / "shared.txt").write_text(data_file_text(shared))
+    result = subprocess.run([str(drivers["boosted"]), str(tmp_path / "shared.txt"), str(samples)],
+                            capture_output=True, text=True)
+    assert result.returncode != 0 and "tree 1 has a node with two parents or none" in result.stderr
 
 
 @needs_gfortran

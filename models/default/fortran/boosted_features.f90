@@ -364,6 +364,7 @@ contains
     real(real64), allocatable :: top(:, :), base(:, :)
     real(real64), allocatable :: windows(:, :, :)
     real(real64), allocatable :: priors(:, :, :)
+    real(real64), allocatable :: slant_depths(:, :, :)
     character(len=400) :: text
     features = ieee_value(0.0_real64, ieee_quiet_nan)
     status = 0
@@ -465,146 +466,148 @@ contains
         total_cloud_fraction, column_optical_depth_std, cloud_edge_length, &
         independent_column_fluxes(:, :, 2), prior=priors(:, :, 1), minus_independent_column=priors(:, :, 2), &
             slant_minus_vertical=priors(:, :, 3), slant_path_reach=slant_path_reach)
+    allocate (slant_depths(nx, ny, 2))
+    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
+        layer_optical_depth, 'slant_optical_depth', slant_depths(:, :, 1), slant_path_reach=slant_path_reach, &
+            minus_vertical=slant_depths(:, :, 2))
     allocate (column(nx, ny))
     ! cos_solar_zenith
     column = cos(solar_zenith_angle * boosted_degree)
-    features(1, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 1, nx * ny, column)
     ! surface_albedo
     column = surface_albedo(1:nx, 1:ny)
-    features(2, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 2, nx * ny, column)
     ! log_column_optical_depth
     column = log_tau(1:nx, 1:ny)
-    features(3, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 3, nx * ny, column)
     ! cloud_fraction
     column = total_cloud_fraction(1:nx, 1:ny)
-    features(4, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 4, nx * ny, column)
     ! column_optical_depth_relative_std
     where (column_optical_depth_mean(1:nx, 1:ny) > 0.0_real64)
       column = column_optical_depth_std(1:nx, 1:ny) / column_optical_depth_mean(1:nx, 1:ny)
     elsewhere
       column = 0.0_real64
     end where
-    features(5, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 5, nx * ny, column)
     ! cloud_top_height
     column = top(1:nx, 1:ny)
-    features(6, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 6, nx * ny, column)
     ! cloud_base_height
     column = base(1:nx, 1:ny)
-    features(7, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 7, nx * ny, column)
     ! cloud_top_shadow_length
     column = top(1:nx, 1:ny) * tan(solar_zenith_angle * boosted_degree)
-    features(8, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 8, nx * ny, column)
     ! cloud_edge_length
     column = cloud_edge_length(1:nx, 1:ny)
-    features(9, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 9, nx * ny, column)
     ! independent_column_surface_downward_flux
     column = independent_column_fluxes(1:nx, 1:ny, 2) &
         + independent_column_fluxes(1:nx, 1:ny, 3)
-    features(10, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 10, nx * ny, column)
     ! independent_column_surface_downward_direct_flux
     column = independent_column_fluxes(1:nx, 1:ny, 2)
-    features(11, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 11, nx * ny, column)
     ! independent_column_surface_downward_diffuse_flux
     column = independent_column_fluxes(1:nx, 1:ny, 3)
-    features(12, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 12, nx * ny, column)
     ! independent_column_toa_upward_flux
     column = independent_column_fluxes(1:nx, 1:ny, 4)
-    features(13, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 13, nx * ny, column)
     ! independent_column_atmosphere_absorption
     column = independent_column_fluxes(1:nx, 1:ny, 5)
-    features(14, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 14, nx * ny, column)
     ! neighbour_mean_cloud_fraction_1000m
     column = windows(:, :, 1)
-    features(15, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 15, nx * ny, column)
     ! neighbour_mean_cloud_fraction_3000m
     column = windows(:, :, 2)
-    features(16, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 16, nx * ny, column)
     ! neighbour_mean_cloud_fraction_5000m
     column = windows(:, :, 3)
-    features(17, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 17, nx * ny, column)
     ! neighbour_contrast_cloud_fraction_1000m
     column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 1)
-    features(18, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 18, nx * ny, column)
     ! neighbour_contrast_cloud_fraction_3000m
     column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 2)
-    features(19, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 19, nx * ny, column)
     ! neighbour_contrast_cloud_fraction_5000m
     column = total_cloud_fraction(1:nx, 1:ny) - windows(:, :, 3)
-    features(20, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 20, nx * ny, column)
     ! neighbour_mean_log_optical_depth_1000m
     column = windows(:, :, 4)
-    features(21, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 21, nx * ny, column)
     ! neighbour_mean_log_optical_depth_3000m
     column = windows(:, :, 5)
-    features(22, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 22, nx * ny, column)
     ! neighbour_mean_log_optical_depth_5000m
     column = windows(:, :, 6)
-    features(23, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 23, nx * ny, column)
     ! neighbour_contrast_log_optical_depth_1000m
     column = log_tau(1:nx, 1:ny) - windows(:, :, 4)
-    features(24, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 24, nx * ny, column)
     ! neighbour_contrast_log_optical_depth_3000m
     column = log_tau(1:nx, 1:ny) - windows(:, :, 5)
-    features(25, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 25, nx * ny, column)
     ! neighbour_contrast_log_optical_depth_5000m
     column = log_tau(1:nx, 1:ny) - windows(:, :, 6)
-    features(26, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 26, nx * ny, column)
     ! cloud_edge_distance
     call boosted_edge_distance(total_cloud_fraction, nx, ny, hx, hy, dx, dy, 0.5_real64, 5000.0_real64, column)
-    features(27, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 27, nx * ny, column)
     ! log_optical_depth_gradient_along_beam
     call boosted_gradient(log_tau, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, .false., column)
-    features(28, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 28, nx * ny, column)
     ! log_optical_depth_gradient_across_beam
     call boosted_gradient(log_tau, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, .true., column)
-    features(29, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 29, nx * ny, column)
     ! slant_optical_depth
-    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_optical_depth, 'slant_optical_depth', column, slant_path_reach=slant_path_reach)
-    features(30, :) = reshape(column, [nx * ny])
+    column = slant_depths(:, :, 1)
+    call boosted_set_feature(features, 30, nx * ny, column)
     ! slant_minus_vertical_optical_depth
-    call boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-        layer_optical_depth, 'slant_minus_vertical_optical_depth', column, slant_path_reach=slant_path_reach)
-    features(31, :) = reshape(column, [nx * ny])
+    column = slant_depths(:, :, 2)
+    call boosted_set_feature(features, 31, nx * ny, column)
     ! cloud_top_height_upsun_minus_downsun
     call boosted_cloud_top_sides(top, nx, ny, hx, hy, dx, dy, solar_beam_azimuth, 2000.0_real64, column)
-    features(32, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 32, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_direct_flux_1000m
     column = windows(:, :, 7) - independent_column_fluxes(1:nx, 1:ny, 2)
-    features(33, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 33, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_direct_flux_3000m
     column = windows(:, :, 8) - independent_column_fluxes(1:nx, 1:ny, 2)
-    features(34, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 34, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_direct_flux_5000m
     column = windows(:, :, 9) - independent_column_fluxes(1:nx, 1:ny, 2)
-    features(35, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 35, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_1000m
     column = windows(:, :, 10) - independent_column_fluxes(1:nx, 1:ny, 3)
-    features(36, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 36, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_3000m
     column = windows(:, :, 11) - independent_column_fluxes(1:nx, 1:ny, 3)
-    features(37, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 37, nx * ny, column)
     ! neighbour_excess_independent_column_surface_downward_diffuse_flux_5000m
     column = windows(:, :, 12) - independent_column_fluxes(1:nx, 1:ny, 3)
-    features(38, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 38, nx * ny, column)
     ! neighbour_excess_independent_column_toa_upward_flux_1000m
     column = windows(:, :, 13) - independent_column_fluxes(1:nx, 1:ny, 4)
-    features(39, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 39, nx * ny, column)
     ! neighbour_excess_independent_column_toa_upward_flux_3000m
     column = windows(:, :, 14) - independent_column_fluxes(1:nx, 1:ny, 4)
-    features(40, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 40, nx * ny, column)
     ! neighbour_excess_independent_column_toa_upward_flux_5000m
     column = windows(:, :, 15) - independent_column_fluxes(1:nx, 1:ny, 4)
-    features(41, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 41, nx * ny, column)
     ! direct_beam_prior
     column = priors(:, :, 1)
-    features(42, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 42, nx * ny, column)
     ! direct_beam_prior_minus_independent_column
     column = priors(:, :, 2)
-    features(43, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 43, nx * ny, column)
     ! direct_beam_prior_slant_minus_vertical
     column = priors(:, :, 3)
-    features(44, :) = reshape(column, [nx * ny])
+    call boosted_set_feature(features, 44, nx * ny, column)
   end subroutine boosted_host_features
 
   ! Index i of a periodic axis of n points starting at first (the block of own columns and halo).
@@ -728,9 +731,9 @@ contains
     real(real64), intent(in) :: fraction(1-hx:nx+hx, 1-hy:ny+hy), dx, dy, edge_fraction, cap
     real(real64), intent(out) :: distance(nx, ny)
     ! Offset along x of the nearest cloudy (kind 1) and clear (kind 2) column in each row, -1 if none.
-    integer, allocatable :: nearest(:, :, :)
-    real(real64) :: half, reach, squared, best
-    integer :: kx, ky, ix, iy, o, kind, nbx, nby, row
+    integer, allocatable :: nearest(:, :, :), columns(:), rows(:)
+    real(real64) :: half, reach, squared, best, left, right
+    integer :: kx, ky, ix, iy, o, kind, nbx, nby, row, j
     logical :: cloudy, found
     half = 0.5_real64 * min(dx, dy)
     reach = cap + half
@@ -738,15 +741,19 @@ contains
     nby = ny + 2 * hy
     kx = ceiling(min(reach / dx, real(nbx / 2, real64)))
     ky = ceiling(min(reach / dy, real(nby / 2, real64)))
-    allocate (nearest(nx, 1-hy:ny+hy, 2))
+    allocate (nearest(nx, 1-hy:ny+hy, 2), columns(1-kx:nx+kx), rows(1-ky:ny+ky))
+    ! The block column of own column ix + o and the block row of own row iy + o, wrapped around the
+    ! periodic block once for all.
+    columns = boosted_wrap([(j, j = 1 - kx, nx + kx)], 1 - hx, nbx)
+    rows = boosted_wrap([(j, j = 1 - ky, ny + ky)], 1 - hy, nby)
     nearest = -1
     do iy = 1 - hy, ny + hy
       do ix = 1, nx
         do o = kx, 0, -1
-          if (fraction(boosted_wrap(ix - o, 1 - hx, nbx), iy) >= edge_fraction .or. &
-              fraction(boosted_wrap(ix + o, 1 - hx, nbx), iy) >= edge_fraction) nearest(ix, iy, 1) = o
-          if (fraction(boosted_wrap(ix - o, 1 - hx, nbx), iy) < edge_fraction .or. &
-              fraction(boosted_wrap(ix + o, 1 - hx, nbx), iy) < edge_fraction) nearest(ix, iy, 2) = o
+          left = fraction(columns(ix - o), iy)
+          right = fraction(columns(ix + o), iy)
+          if (left >= edge_fraction .or. right >= edge_fraction) nearest(ix, iy, 1) = o
+          if (left < edge_fraction .or. right < edge_fraction) nearest(ix, iy, 2) = o
         end do
       end do
     end do
@@ -758,7 +765,7 @@ contains
         found = .false.
         best = 0.0_real64
         do o = -ky, ky
-          row = boosted_wrap(iy + o, 1 - hy, nby)
+          row = rows(iy + o)
           if (nearest(ix, row, kind) < 0) cycle
           squared = (nearest(ix, row, kind) * dx)**2 + (o * dy)**2
           if (.not. found .or. squared < best) best = squared
@@ -781,9 +788,11 @@ contains
     real(real64), intent(in) :: log_tau(1-hx:nx+hx, 1-hy:ny+hy), dx, dy, azimuth
     logical, intent(in) :: across
     real(real64), intent(out) :: gradient(nx, ny)
-    real(real64) :: phi, gx, gy
+    real(real64) :: phi, gx, gy, sin_phi, cos_phi
     integer :: ix, iy, nbx, nby
     phi = azimuth * boosted_degree
+    sin_phi = sin(phi)
+    cos_phi = cos(phi)
     nbx = nx + 2 * hx
     nby = ny + 2 * hy
     do iy = 1, ny
@@ -793,9 +802,9 @@ contains
         gy = (log_tau(ix, boosted_wrap(iy + 1, 1 - hy, nby)) - log_tau(ix, boosted_wrap(iy - 1, 1 - hy, nby))) &
             / (2.0_real64 * dy)
         if (across) then
-          gradient(ix, iy) = abs(-gx * sin(phi) + gy * cos(phi))
+          gradient(ix, iy) = abs(-gx * sin_phi + gy * cos_phi)
         else
-          gradient(ix, iy) = gx * cos(phi) + gy * sin(phi)
+          gradient(ix, iy) = gx * cos_phi + gy * sin_phi
         end if
       end do
     end do
@@ -846,6 +855,15 @@ contains
     call boosted_bilinear_sample(top, nx, ny, hx, hy, -sx, -sy, downsun)
     difference = difference - downsun
   end subroutine boosted_cloud_top_sides
+
+  ! Feature column j of the own columns from a plane of them (column(i), i = ix + (iy - 1) * nx),
+  ! copied straight in (reshape would make a temporary copy first).
+  pure subroutine boosted_set_feature(features, j, n, column)
+    integer, intent(in) :: j, n
+    real(real64), intent(inout) :: features(boosted_n_host_features, n)
+    real(real64), intent(in) :: column(n)
+    features(j, :) = column
+  end subroutine boosted_set_feature
 
   ! A number as short text (g0: every digit a double needs; NaN, Inf and -Inf by name).
   pure function boosted_number_text(value) result(text)
@@ -1289,24 +1307,37 @@ contains
 
   !> slant_optical_depth [1] of the own columns: the path's weighted sum of the layer optical depths over
   !> mu0 (Beer-Lambert along the slant path); for feature 'slant_minus_vertical_optical_depth', minus the
-  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. The halo must
-  !> cover boosted_path_reach.
+  !> column's own tau / mu0; the path's travel capped at slant_path_reach [m] if present. With
+  !> minus_vertical (feature 'slant_optical_depth'), that difference goes there too: both features from one
+  !> pass over the paths. The halo must cover boosted_path_reach.
   pure subroutine boosted_slant_depth(nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge, &
-      layer_optical_depth, feature, out, slant_path_reach)
+      layer_optical_depth, feature, out, slant_path_reach, minus_vertical)
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: dx, dy, solar_zenith_angle, solar_beam_azimuth, z_edge(nz + 1)
     real(real64), intent(in) :: layer_optical_depth(1-hx:nx+hx, 1-hy:ny+hy, nz)
     character(len=*), intent(in) :: feature
     real(real64), intent(out) :: out(nx, ny)
     real(real64), intent(in), optional :: slant_path_reach
+    real(real64), intent(out), optional :: minus_vertical(nx, ny)
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(boosted_slant_weights) :: paths
-    real(real64) :: mu0, total, plane, column
+    real(real64) :: mu0, total, plane
+    real(real64), allocatable :: column(:, :)
     integer :: ix, iy, g, t, k
+    logical :: vertical
     mu0 = cos(solar_zenith_angle * degree)
     call boosted_capped_path_weights(nz, z_edge, dx, dy, solar_zenith_angle, solar_beam_azimuth, paths, &
         slant_path_reach)
     call boosted_slant_group_offsets(nz, paths)
+    vertical = feature == 'slant_minus_vertical_optical_depth' .or. present(minus_vertical)
+    allocate (column(nx, ny))
+    if (vertical) then
+      ! The own columns' optical depths, a layer plane at a time (a column's layers are a plane apart).
+      column = 0.0_real64
+      do k = 1, nz
+        column = column + layer_optical_depth(1:nx, 1:ny, k)
+      end do
+    end if
     do iy = 1, ny
       do ix = 1, nx
         total = 0.0_real64
@@ -1319,12 +1350,11 @@ contains
           total = total + plane
         end do
         out(ix, iy) = total / mu0
-        if (feature == 'slant_minus_vertical_optical_depth') then
-          column = 0.0_real64
-          do k = 1, nz
-            column = column + layer_optical_depth(ix, iy, k)
-          end do
-          out(ix, iy) = out(ix, iy) - column / mu0
+        if (.not. vertical) cycle
+        if (present(minus_vertical)) then
+          minus_vertical(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
+        else
+          out(ix, iy) = out(ix, iy) - column(ix, iy) / mu0
         end if
       end do
     end do
@@ -1785,14 +1815,13 @@ contains
     real(real64), intent(in), optional :: slant_path_reach
     real(real64), parameter :: degree = 3.141592653589793_real64 / 180.0_real64
     type(boosted_slant_weights) :: paths
-    real(real64), allocatable :: cloud(:, :, :)
-    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud
-    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum
+    real(real64), allocatable, dimension(:, :) :: v, rho, gamma, path_fraction, path_cloud, row_fraction, row_cloud
+    real(real64), allocatable, dimension(:) :: cloud_total, fraction_total, clear_path, v_sum, rho_sum, gamma_sum, &
+        row_clear
     real(real64), allocatable :: vertical(:, :)
-    real(real64) :: mu0, w, v_path, rho_path, gamma_path, clear_depth, slanted, loose, sum_cloud, sum_fraction, &
+    real(real64) :: mu0, w, v_path, rho_path, gamma_path, slanted, loose, sum_cloud, sum_fraction, &
         plane_clear, plane_v, plane_rho, plane_gamma
-    ! A column's layers in contiguous memory (a strided section passed on would be copied to the heap).
-    real(real64), dimension(nz) :: dz, zeros, fraction, cloud_of_column, cover, depth, volume
+    real(real64), dimension(nz) :: dz, zeros, cover, depth, volume
     integer :: ix, iy, k, e, g, t, rx, ry, jx, jy, n_block
     mu0 = cos(solar_zenith_angle * degree)
     dz = z_edge(2:nz + 1) - z_edge(1:nz)
@@ -1804,29 +1833,35 @@ contains
     ! The cloud optical depth (features._cloud_layers) and the column statistics of every column the own
     ! columns' paths meet, from the blocks of their own layers; with these blocks, the prior along the
     ! vertical of the own columns (features._direct_prior, not slanted).
-    allocate (cloud(1-rx:nx+rx, 1-ry:ny+ry, nz), v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), &
-              gamma(1-rx:nx+rx, 1-ry:ny+ry), vertical(nx, ny))
-    cloud = max(layer_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :) &
-                - layer_clear_sky_optical_depth(1-rx:nx+rx, 1-ry:ny+ry, :), 0.0_real64)
+    ! The cloud optical depth is max(tau - clear-sky tau, 0) wherever it is read: no block-sized array of it.
+    allocate (v(1-rx:nx+rx, 1-ry:ny+ry), rho(1-rx:nx+rx, 1-ry:ny+ry), gamma(1-rx:nx+rx, 1-ry:ny+ry), &
+              vertical(nx, ny), row_fraction(nz, 1-rx:nx+rx), row_cloud(nz, 1-rx:nx+rx), row_clear(1-rx:nx+rx))
     do iy = 1 - ry, ny + ry
+      ! The row's columns with their layers in contiguous memory, the fields read along x (a column's
+      ! layers are a field plane apart); with them each column's clear-sky optical depth, summed up.
+      row_clear = 0.0_real64
+      do k = 1, nz
+        do ix = 1 - rx, nx + rx
+          row_fraction(k, ix) = layer_cloud_fraction(ix, iy, k)
+          row_cloud(k, ix) = max(layer_optical_depth(ix, iy, k) - layer_clear_sky_optical_depth(ix, iy, k), 0.0_real64)
+          row_clear(ix) = row_clear(ix) + layer_clear_sky_optical_depth(ix, iy, k)
+        end do
+      end do
       do ix = 1 - rx, nx + rx
-        fraction = layer_cloud_fraction(ix, iy, :)
-        cloud_of_column = cloud(ix, iy, :)
-        call boosted_prior_cloud_blocks(nz, fraction, cloud_of_column, zeros, n_block, cover, depth, volume, loose)
+        call boosted_prior_cloud_blocks(nz, row_fraction(:, ix), row_cloud(:, ix), zeros, n_block, cover, depth, &
+            volume, &
+            loose)
         call boosted_overlap_statistics(n_block, cover, depth, total_cloud_fraction(ix, iy), &
             column_optical_depth_std(ix, iy), v(ix, iy), gamma(ix, iy))
         rho(ix, iy) = boosted_width_per_area(total_cloud_fraction(ix, iy), cloud_edge_length(ix, iy))
         if (.not. present(slant_minus_vertical)) cycle
         if (ix < 1 .or. ix > nx .or. iy < 1 .or. iy > ny) cycle
-        clear_depth = 0.0_real64
-        do k = 1, nz
-          clear_depth = clear_depth + layer_clear_sky_optical_depth(ix, iy, k)
-        end do
-        vertical(ix, iy) = boosted_prior_transmittance(n_block, cover, depth, volume, loose, clear_depth, v(ix, iy), &
+        vertical(ix, iy) = boosted_prior_transmittance(n_block, cover, depth, volume, loose, row_clear(ix), v(ix, iy), &
             mu0, 0.0_real64, gamma(ix, iy))
       end do
     end do
-    allocate (path_fraction(nx, nz), path_cloud(nx, nz), cloud_total(nx), fraction_total(nx), clear_path(nx), &
+    ! path_fraction(:, ix), path_cloud(:, ix): the layers along own column ix's path, contiguous.
+    allocate (path_fraction(nz, nx), path_cloud(nz, nx), cloud_total(nx), fraction_total(nx), clear_path(nx), &
               v_sum(nx), rho_sum(nx), gamma_sum(nx))
     do iy = 1, ny
       ! The sums of one own column in registers, the own columns of the row in turn: each term of a sum
@@ -1841,14 +1876,15 @@ contains
             jx = ix + paths%ox(e)
             jy = iy + paths%oy(e)
             w = paths%weight(e)
-            sum_cloud = sum_cloud + w * cloud(jx, jy, k)
+            sum_cloud = sum_cloud + w * max(layer_optical_depth(jx, jy, k) - layer_clear_sky_optical_depth(jx, jy, k), &
+                                            0.0_real64)
             sum_fraction = sum_fraction + w * layer_cloud_fraction(jx, jy, k)
           end do
-          path_cloud(ix, k) = sum_cloud
-          path_fraction(ix, k) = sum_fraction
+          path_cloud(k, ix) = sum_cloud
+          path_fraction(k, ix) = sum_fraction
+          cloud_total(ix) = cloud_total(ix) + sum_cloud
+          fraction_total(ix) = fraction_total(ix) + sum_fraction
         end do
-        cloud_total = cloud_total + path_cloud(:, k)
-        fraction_total = fraction_total + path_fraction(:, k)
       end do
       clear_path = 0.0_real64
       v_sum = 0.0_real64
@@ -1866,7 +1902,8 @@ contains
             k = paths%term_layer(t)
             w = paths%term_weight(t)
             plane_clear = plane_clear + layer_clear_sky_optical_depth(jx, jy, k) * w
-            plane_v = plane_v + (cloud(jx, jy, k) * v(jx, jy)) * w
+            plane_v = plane_v + (max(layer_optical_depth(jx, jy, k) - layer_clear_sky_optical_depth(jx, jy, k), &
+                                     0.0_real64) * v(jx, jy)) * w
             plane_rho = plane_rho + (layer_cloud_fraction(jx, jy, k) * rho(jx, jy)) * w
             plane_gamma = plane_gamma + (layer_cloud_fraction(jx, jy, k) * gamma(jx, jy)) * w
           end do
@@ -1885,9 +1922,9 @@ contains
           rho_path = rho_sum(ix) / fraction_total(ix)
           gamma_path = gamma_sum(ix) / fraction_total(ix)
         end if
-        fraction = path_fraction(ix, :)
-        cloud_of_column = path_cloud(ix, :)
-        call boosted_prior_cloud_blocks(nz, fraction, cloud_of_column, dz, n_block, cover, depth, volume, loose)
+        call boosted_prior_cloud_blocks(nz, path_fraction(:, ix), path_cloud(:, ix), dz, n_block, cover, depth, &
+            volume, &
+            loose)
         slanted = boosted_prior_transmittance(n_block, cover, depth, volume, loose, clear_path(ix), v_path, mu0, &
             rho_path, gamma_path)
         if (present(prior)) prior(ix, iy) = slanted

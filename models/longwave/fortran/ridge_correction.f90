@@ -57,6 +57,7 @@ module ridge_correction
     integer :: n_envelope = 0                              ! training envelope: none when 0
     real(real64), allocatable :: envelope_min(:), envelope_max(:), envelope_center(:), envelope_scale(:)
     real(real64), allocatable :: envelope_components(:, :) ! (n_features, n_envelope)
+    real(real64), allocatable :: envelope_rows(:, :)       ! (n_envelope rounded up, n_features): by feature
     real(real64), allocatable :: envelope_variance(:)      ! (n_envelope)
     real(real64) :: envelope_residual_variance = 1.0_real64, envelope_threshold = 0.0_real64
     integer(int32), allocatable :: target_scale_feature(:)  ! (n_targets), 1-based; 0: the output is not scaled
@@ -76,7 +77,7 @@ contains
     type(ridge_coefficients), intent(in) :: model
     real(real64), intent(in) :: features(ridge_n_features)
     real(real64), intent(out) :: corrections(ridge_n_targets)
-    real(real64) :: z(ridge_n_features)
+    real(real64) :: z(ridge_n_features), product, sum_1, sum_2, sum_3
     integer :: k, p
     if (clear_sky(model, features)) then
       corrections = 0.0_real64
@@ -95,14 +96,23 @@ contains
     do k = 1, size(model%near_constant)
       z(model%near_constant(k)) = max(-1.0_real64, min(1.0_real64, z(model%near_constant(k))))
     end do
-    ! All targets advance together: independent sums, so additions overlap in the CPU.
-    corrections = model%intercept
+    ! One scalar sum per target, all advancing together: independent additions overlap in the CPU (an
+    ! array of sums would be stored and loaded again at every term).
+    sum_1 = model%intercept(1)
+    sum_2 = model%intercept(2)
+    sum_3 = model%intercept(3)
     do k = 1, ridge_n_features
-      corrections = corrections + model%coef(:, k) * z(k)
+      sum_1 = sum_1 + model%coef(1, k) * z(k)
+      sum_2 = sum_2 + model%coef(2, k) * z(k)
+      sum_3 = sum_3 + model%coef(3, k) * z(k)
     end do
     do p = 1, model%n_pairs
-      corrections = corrections + model%coef(:, ridge_n_features + p) * (z(model%pairs(1, p)) * z(model%pairs(2, p)))
+      product = z(model%pairs(1, p)) * z(model%pairs(2, p))
+      sum_1 = sum_1 + model%coef(1, ridge_n_features + p) * product
+      sum_2 = sum_2 + model%coef(2, ridge_n_features + p) * product
+      sum_3 = sum_3 + model%coef(3, ridge_n_features + p) * product
     end do
+    corrections = [sum_1, sum_2, sum_3]
     call apply_transforms(model, features, corrections)
   end subroutine ridge_correct_column
 
@@ -138,19 +148,49 @@ contains
     real(real64), intent(in) :: features(ridge_n_features)
     logical, intent(out) :: outside
     real(real64), intent(out) :: distance
-    real(real64) :: z(ridge_n_features), residual(ridge_n_features), projection
-    integer :: j
+    real(real64) :: z(ridge_n_features), projection(ridge_n_features + 7), residual, squares, &
+        p1, p2, p3, p4, p5, p6, p7, p8
+    integer :: j, k
     outside = .false.
     distance = 0.0_real64
     if (model%n_envelope == 0) return
     z = (features - model%envelope_center) / model%envelope_scale
-    residual = z
-    do j = 1, model%n_envelope
-      projection = dot_product(model%envelope_components(:, j), z)
-      residual = residual - projection * model%envelope_components(:, j)
-      distance = distance + projection * projection / model%envelope_variance(j)
+    ! Projections 8 at a time, each summed in feature order as a dot product: independent
+    ! additions in flight instead of one (the rows past n_envelope are zeros, their projections unused).
+    do j = 1, model%n_envelope, 8
+      p1 = 0.0_real64
+      p2 = 0.0_real64
+      p3 = 0.0_real64
+      p4 = 0.0_real64
+      p5 = 0.0_real64
+      p6 = 0.0_real64
+      p7 = 0.0_real64
+      p8 = 0.0_real64
+      do k = 1, ridge_n_features
+        p1 = p1 + model%envelope_rows(j, k) * z(k)
+        p2 = p2 + model%envelope_rows(j + 1, k) * z(k)
+        p3 = p3 + model%envelope_rows(j + 2, k) * z(k)
+        p4 = p4 + model%envelope_rows(j + 3, k) * z(k)
+        p5 = p5 + model%envelope_rows(j + 4, k) * z(k)
+        p6 = p6 + model%envelope_rows(j + 5, k) * z(k)
+        p7 = p7 + model%envelope_rows(j + 6, k) * z(k)
+        p8 = p8 + model%envelope_rows(j + 7, k) * z(k)
+      end do
+      projection(j:j + 7) = [p1, p2, p3, p4, p5, p6, p7, p8]
     end do
-    distance = sqrt(distance + sum(residual * residual) / model%envelope_residual_variance)
+    do j = 1, model%n_envelope
+      distance = distance + projection(j) * projection(j) / model%envelope_variance(j)
+    end do
+    ! The residual z minus its projections, feature by feature, the components taken off in order.
+    squares = 0.0_real64
+    do k = 1, ridge_n_features
+      residual = z(k)
+      do j = 1, model%n_envelope
+        residual = residual - projection(j) * model%envelope_rows(j, k)
+      end do
+      squares = squares + residual * residual
+    end do
+    distance = sqrt(distance + squares / model%envelope_residual_variance)
     if (clear_sky(model, features)) return
     ! Written as "not inside" so that NaN, which compares false, is outside.
     outside = .not. (all(features >= model%envelope_min .and. features <= model%envelope_max) .and. &
@@ -249,6 +289,10 @@ contains
         model%clear_sky_tolerance = tolerance(1)
       end if
     end if
+    if (status == 0 .and. model%n_envelope > ridge_n_features) then
+      status = 1
+      message = 'coefficient file: the training envelope has more components than the model has features'
+    end if
     if (status == 0 .and. model%n_envelope > 0) then
       allocate (model%envelope_min(ridge_n_features), model%envelope_max(ridge_n_features))
       allocate (model%envelope_center(ridge_n_features), model%envelope_scale(ridge_n_features))
@@ -266,6 +310,10 @@ contains
       model%envelope_threshold = tolerance(1)
       if (status == 0) then
         model%envelope_components = reshape(envelope_list, [ridge_n_features, model%n_envelope])
+        allocate (model%envelope_rows(8 * ((model%n_envelope + 7) / 8), &
+                                      ridge_n_features))
+        model%envelope_rows = 0.0_real64
+        model%envelope_rows(1:model%n_envelope, :) = transpose(model%envelope_components)
         if (any(.not. (model%envelope_scale > 0.0_real64)) .or. any(.not. (model%envelope_variance > 0.0_real64)) &
             .or. .not. (model%envelope_residual_variance > 0.0_real64) .or. &
             .not. (model%envelope_threshold >= 0.0_real64) .or. any(model%envelope_max < model%envelope_min)) then
