@@ -66,6 +66,10 @@ ENVELOPE_FIELD = "training_envelope"
 #: standardizes it (files of 1.2 to 1.4 have the envelope but extrapolate linearly).
 RIDGE_CLIPPING_VERSION = (1, 5)
 
+#: First format whose target transforms may say ``outside_envelope`` (the Fortran data file
+#: then carries ``target_offset_outside``).
+OUTSIDE_ENVELOPE_VERSION = (1, 6)
+
 
 def ridge_clips_features(document):
     """Whether a coefficient document's ridge clips its features to the envelope's ranges.

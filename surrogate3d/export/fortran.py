@@ -40,8 +40,8 @@ import numpy as np
 from .._atomic import write_text_atomic
 from ..errors import FormatError, ValidationError
 from ..core.config import NEAR_CONSTANT
-from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, PROFILE_FIELD,
-                                       RIDGE_CLIPPING_VERSION, clear_sky_gate, target_transforms)
+from ..core.coefficient_format import (ENVELOPE_FIELD, FORMAT_NAME, FORMAT_VERSION, OUTSIDE_ENVELOPE_VERSION,
+                                       PROFILE_FIELD, RIDGE_CLIPPING_VERSION, clear_sky_gate, target_transforms)
 from ..core.data_model import TARGETS
 from ..pairs.layer_features import EXTINCTION_FLOOR, LAYER_FEATURES, SAME_PATH_TOLERANCE
 from ..pairs.longwave_layer_features import LONGWAVE_LAYER_FEATURES
@@ -112,6 +112,9 @@ def data_file_text(document):
               "offset_target", *_lines([o[0] for o in offsets], integer=True),
               "offset_feature", *_lines([o[1] for o in offsets], integer=True),
               "offset_coefficient", *_lines([o[2] for o in offsets])]
+    if tuple(int(v) for v in document["format_version"].split(".")) >= OUTSIDE_ENVELOPE_VERSION:
+        lines += ["target_offset_outside", *_lines([int(t.get("outside_envelope") == "offset") for t in transforms],
+                                                   integer=True)]
     return "\n".join(lines) + "\n"
 
 
@@ -309,7 +312,9 @@ _GATE_COMPONENTS = """\
     real(real64), allocatable :: target_scale_floor(:)       ! (n_targets)
     integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
     integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
-    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)"""
+    real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)
+    integer(int32), allocatable :: target_offset_outside(:)  ! (n_targets), 1: the offset alone outside the envelope
+    logical :: offset_fallback = .false.                     ! some target falls back to its offset (format 1.6)"""
 
 #: Start of the pure column procedures: zero correction where the clear-sky gate holds.
 _GATE_TEST = """\
@@ -343,6 +348,7 @@ def _batched_procedure(prefix):
     return f"""\
   !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
   !> also which columns lie outside the training envelope and how many (see {prefix}_check_column).
+  !> A target whose transform says so (format 1.6) gets its offset alone in a column outside the envelope.
   pure subroutine {prefix}_correct_columns(model, n_columns, features, corrections, outside, n_outside)
     type({prefix}_coefficients), intent(in) :: model
     integer, intent(in) :: n_columns
@@ -351,15 +357,21 @@ def _batched_procedure(prefix):
     logical, intent(out), optional :: outside(n_columns)
     integer, intent(out), optional :: n_outside
     logical :: flag
-    real(real64) :: distance
+    real(real64) :: distance, offset_only({prefix}_n_targets)
     integer :: i
     if (present(n_outside)) n_outside = 0
     do i = 1, n_columns
       call {prefix}_correct_column(model, features(:, i), corrections(:, i))
-      if (present(outside) .or. present(n_outside)) then
+      if (present(outside) .or. present(n_outside) .or. model%offset_fallback) then
         call {prefix}_check_column(model, features(:, i), flag, distance)
         if (present(outside)) outside(i) = flag
         if (present(n_outside) .and. flag) n_outside = n_outside + 1
+        if (flag .and. model%offset_fallback) then
+          ! The model's output taken as 0 and transformed: the offset terms alone, in numpy's order.
+          offset_only = 0.0_real64
+          call apply_transforms(model, features(:, i), offset_only)
+          where (model%target_offset_outside == 1) corrections(:, i) = offset_only
+        end if
       end if
     end do
   end subroutine {prefix}_correct_columns
@@ -498,15 +510,23 @@ def _gate_reader(prefix):
       if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
       if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
       if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      allocate (model%target_offset_outside({prefix}_n_targets))
+      model%target_offset_outside = 0
+      ! Files of format 1.{OUTSIDE_ENVELOPE_VERSION[1]} on say which targets take the offset alone outside the envelope.
+      if (status == 0 .and. minor >= {OUTSIDE_ENVELOPE_VERSION[1]}) then
+        call read_integers(unit, 'target_offset_outside', model%target_offset_outside, status, message)
+      end if
+      model%offset_fallback = any(model%target_offset_outside == 1) .and. model%n_envelope > 0
       if (status == 0) then
         if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= {prefix}_n_features) .or. &
             any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
             any(model%offset_target < 0 .or. model%offset_target >= {prefix}_n_targets) .or. &
             any(model%offset_feature < 0 .or. model%offset_feature >= {prefix}_n_features) .or. &
-            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64))) .or. &
+            any(model%target_offset_outside < 0 .or. model%target_offset_outside > 1)) then
           status = 1
-          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
-              'coefficient that is not finite'
+          message = 'coefficient file: a target transform has an index out of range, a negative floor, a '// &
+              'coefficient that is not finite or an outside-envelope flag other than 0 or 1'
         else
           model%target_scale_feature = model%target_scale_feature + 1
           model%offset_target = model%offset_target + 1

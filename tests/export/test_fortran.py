@@ -9,12 +9,13 @@ coefficients equal the Python ones exactly.
 import copy
 import shutil
 import subprocess
+from pathlib import Path
 
 import numpy as np
 import pytest
 
 from surrogate3d.errors import ValidationError
-from surrogate3d.export.fortran import data_file_text, features_file_text, fortran_name, fortran_sources
+from surrogate3d.export.fortran import data_file_text, features_file_text, fortran_files, fortran_name, fortran_sources
 from surrogate3d.export import read_coefficients
 from surrogate3d.learn.transforms import apply_transforms
 from surrogate3d.runtime import FORMAT_VERSION, CorrectionModel, load_coefficients
@@ -303,3 +304,42 @@ def test_generated_names_and_layout(built):
     document["features"]["names"][0] = "x" * 140
     with pytest.raises(ValidationError, match="longer than 132 characters"):
         fortran_sources(document)
+
+
+@needs_gfortran
+@pytest.mark.parametrize("name", ["ridge", "boosted"])
+def test_fortran_falls_back_to_the_offset_outside_the_envelope_like_python(tmp_path, name):
+    # A target whose transform says outside_envelope = "offset" (format 1.6) gets its offset
+    # alone in the columns outside the training envelope, in Fortran as in numpy; a 1.5 data
+    # file of the same model says nothing of it and gets the learned correction everywhere.
+    shipped = Path(__file__).resolve().parents[2] / "models" / "longwave"
+    document = read_coefficients(shipped / f"{name}.coefficients.json")
+    for spec in document["target_transforms"]:
+        if spec is not None:
+            spec["outside_envelope"] = "offset"
+    document["format_version"] = FORMAT_VERSION
+    model = CorrectionModel.from_document(document)
+    files = fortran_files(document, np.zeros((1, model.n_features)), np.zeros((1, model.n_targets)))
+    for key in ("module", "driver", "coefficients"):
+        (tmp_path / files[key][0]).write_text(files[key][1])
+    built = subprocess.run([GFORTRAN, *FLAGS, files["module"][0], files["driver"][0], "-o", "driver"], cwd=tmp_path,
+                           capture_output=True, text=True)
+    assert built.returncode == 0, built.stderr
+    features = np.loadtxt(shipped / "fortran" / f"{name}_sample_features.txt", skiprows=1)
+    far = features.copy()
+    far[::2, model.feature_names.index("liquid_water_path")] = 1e5
+    (tmp_path / "far.txt").write_text(features_file_text(far))
+    got = _run(tmp_path / "driver", tmp_path / files["coefficients"][0], tmp_path / "far.txt")
+    expected = model.predict(far, check_envelope=False)
+    outside = model.envelope_check(far).outside
+    assert outside[::2].all() and not outside.all()
+    np.testing.assert_allclose(got, expected, rtol=1e-10, atol=1e-9)
+    prior = far[:, model.feature_names.index("effective_cloud_fraction_prior")]
+    m = model.target_names.index("longwave_surface_downward_flux")
+    np.testing.assert_array_equal(expected[outside, m], prior[outside])
+    document["format_version"] = "1.5"
+    (tmp_path / "old.txt").write_text(data_file_text(document))
+    assert "target_offset_outside" not in (tmp_path / "old.txt").read_text()
+    learned = CorrectionModel.from_document(read_coefficients(shipped / f"{name}.coefficients.json"))
+    np.testing.assert_allclose(_run(tmp_path / "driver", tmp_path / "old.txt", tmp_path / "far.txt"),
+                               learned.predict(far, check_envelope=False), rtol=1e-10, atol=1e-9)

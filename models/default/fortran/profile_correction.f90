@@ -96,6 +96,8 @@ module profile_correction
     integer :: n_offsets = 0                                 ! prior terms added to the output: none when 0
     integer(int32), allocatable :: offset_target(:), offset_feature(:)  ! (n_offsets), 1-based
     real(real64), allocatable :: offset_coefficient(:)       ! (n_offsets)
+    integer(int32), allocatable :: target_offset_outside(:)  ! (n_targets), 1: the offset alone outside the envelope
+    logical :: offset_fallback = .false.                     ! some target falls back to its offset (format 1.6)
   end type profile_coefficients
 
   public :: profile_read_coefficients, profile_correct_column, profile_correct_columns, profile_check_column
@@ -281,6 +283,7 @@ contains
 
   !> Corrections of many columns: features(:, i) -> corrections(:, i); with outside and n_outside,
   !> also which columns lie outside the training envelope and how many (see profile_check_column).
+  !> A target whose transform says so (format 1.6) gets its offset alone in a column outside the envelope.
   pure subroutine profile_correct_columns(model, n_columns, features, corrections, outside, n_outside)
     type(profile_coefficients), intent(in) :: model
     integer, intent(in) :: n_columns
@@ -289,15 +292,21 @@ contains
     logical, intent(out), optional :: outside(n_columns)
     integer, intent(out), optional :: n_outside
     logical :: flag
-    real(real64) :: distance
+    real(real64) :: distance, offset_only(profile_n_targets)
     integer :: i
     if (present(n_outside)) n_outside = 0
     do i = 1, n_columns
       call profile_correct_column(model, features(:, i), corrections(:, i))
-      if (present(outside) .or. present(n_outside)) then
+      if (present(outside) .or. present(n_outside) .or. model%offset_fallback) then
         call profile_check_column(model, features(:, i), flag, distance)
         if (present(outside)) outside(i) = flag
         if (present(n_outside) .and. flag) n_outside = n_outside + 1
+        if (flag .and. model%offset_fallback) then
+          ! The model's output taken as 0 and transformed: the offset terms alone, in numpy's order.
+          offset_only = 0.0_real64
+          call apply_transforms(model, features(:, i), offset_only)
+          where (model%target_offset_outside == 1) corrections(:, i) = offset_only
+        end if
       end if
     end do
   end subroutine profile_correct_columns
@@ -505,15 +514,23 @@ contains
       if (status == 0) call read_integers(unit, 'offset_target', model%offset_target, status, message)
       if (status == 0) call read_integers(unit, 'offset_feature', model%offset_feature, status, message)
       if (status == 0) call read_reals(unit, 'offset_coefficient', model%offset_coefficient, status, message)
+      allocate (model%target_offset_outside(profile_n_targets))
+      model%target_offset_outside = 0
+      ! Files of format 1.6 on say which targets take the offset alone outside the envelope.
+      if (status == 0 .and. minor >= 6) then
+        call read_integers(unit, 'target_offset_outside', model%target_offset_outside, status, message)
+      end if
+      model%offset_fallback = any(model%target_offset_outside == 1) .and. model%n_envelope > 0
       if (status == 0) then
         if (any(model%target_scale_feature < -1 .or. model%target_scale_feature >= profile_n_features) .or. &
             any(.not. (model%target_scale_floor >= 0.0_real64)) .or. &
             any(model%offset_target < 0 .or. model%offset_target >= profile_n_targets) .or. &
             any(model%offset_feature < 0 .or. model%offset_feature >= profile_n_features) .or. &
-            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64)))) then
+            any(.not. (abs(model%offset_coefficient) <= huge(1.0_real64))) .or. &
+            any(model%target_offset_outside < 0 .or. model%target_offset_outside > 1)) then
           status = 1
-          message = 'coefficient file: a target transform has an index out of range, a negative floor or a '// &
-              'coefficient that is not finite'
+          message = 'coefficient file: a target transform has an index out of range, a negative floor, a '// &
+              'coefficient that is not finite or an outside-envelope flag other than 0 or 1'
         else
           model%target_scale_feature = model%target_scale_feature + 1
           model%offset_target = model%offset_target + 1
