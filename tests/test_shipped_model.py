@@ -88,7 +88,7 @@ def test_model_card_states_what_a_user_must_know():
 
 
 LONGWAVE = SHIPPED.parent / "longwave"
-LONGWAVE_TARGETS = ["longwave_surface_downward_flux", "longwave_surface_upward_flux",
+LONGWAVE_TARGETS = ["longwave_surface_downward_flux", "longwave_surface_upward_flux", "longwave_toa_upward_flux",
                     "longwave_surface_net_absorption"]
 
 

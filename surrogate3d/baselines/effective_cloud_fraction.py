@@ -83,7 +83,9 @@ def effective_cloud_fraction(cloud_fraction, aspect_ratio):
     with np.errstate(divide="ignore"):
         log_clear = np.log1p(-n)[..., None]
     gap = np.where(n[..., None] < 1.0, np.exp(exponent * np.where(n[..., None] < 1.0, log_clear, 0.0)), 0.0)
-    return 1.0 - 2.0 * np.sum(gap * _MU * _MU_WEIGHTS, axis=-1)
+    # Flat clouds (no depth): N exactly, not N plus the quadrature's rounding, so that a
+    # prior of flat clouds is exactly 0 wherever it is evaluated.
+    return np.where(beta > 0.0, 1.0 - 2.0 * np.sum(gap * _MU * _MU_WEIGHTS, axis=-1), n)
 
 
 def cylinder_diameter(cloud_fraction, edge_length):

@@ -195,6 +195,8 @@ _LONGWAVE_HELPERS = {
     diameter = 4.0_real64 * (1.0_real64 - cover) * (-{p}_log1p(-cover)) / edge
     if (.not. ieee_is_finite(diameter)) return
     beta = max(depth / diameter, 0.0_real64)
+    ! Flat clouds: N_e = N exactly (as in numpy), no rounding of the quadrature.
+    if (.not. (beta > 0.0_real64)) return
     log_clear = {p}_log1p(-cover)
     scaled = {p}_four_over_pi * beta
     do k = 1, 32

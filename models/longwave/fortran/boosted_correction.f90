@@ -9,7 +9,7 @@ module boosted_correction
   private
 
   integer, parameter, public :: boosted_n_features = 21
-  integer, parameter, public :: boosted_n_targets = 3
+  integer, parameter, public :: boosted_n_targets = 4
   character(len=45), parameter, public :: boosted_feature_names(boosted_n_features) = [character(len=45) :: &
        "cloud_fraction", &
        "cloud_base_height", &
@@ -35,6 +35,7 @@ module boosted_correction
   character(len=31), parameter, public :: boosted_target_names(boosted_n_targets) = [character(len=31) :: &
        "longwave_surface_downward_flux", &
        "longwave_surface_upward_flux", &
+       "longwave_toa_upward_flux", &
        "longwave_surface_net_absorption"]
 
   character(len=*), parameter :: format_name = 'surrogate3d-correction-coefficients'

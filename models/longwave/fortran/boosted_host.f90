@@ -11,7 +11,7 @@ module boosted_host
   public :: boosted_correct_host
 
   !> The plane of longwave_fluxes holding each of the model's targets (boosted_target_names).
-  integer, parameter :: flux_slot(boosted_n_targets) = [1, 2, 5]
+  integer, parameter :: flux_slot(boosted_n_targets) = [1, 2, 3, 5]
 
 contains
 

@@ -9,7 +9,7 @@ module ridge_correction
   private
 
   integer, parameter, public :: ridge_n_features = 21
-  integer, parameter, public :: ridge_n_targets = 3
+  integer, parameter, public :: ridge_n_targets = 4
   character(len=45), parameter, public :: ridge_feature_names(ridge_n_features) = [character(len=45) :: &
        "cloud_fraction", &
        "cloud_base_height", &
@@ -35,6 +35,7 @@ module ridge_correction
   character(len=31), parameter, public :: ridge_target_names(ridge_n_targets) = [character(len=31) :: &
        "longwave_surface_downward_flux", &
        "longwave_surface_upward_flux", &
+       "longwave_toa_upward_flux", &
        "longwave_surface_net_absorption"]
 
   character(len=*), parameter :: format_name = 'surrogate3d-correction-coefficients'
@@ -79,7 +80,7 @@ contains
     type(ridge_coefficients), intent(in) :: model
     real(real64), intent(in) :: features(ridge_n_features)
     real(real64), intent(out) :: corrections(ridge_n_targets)
-    real(real64) :: z(ridge_n_features), product, sum_1, sum_2, sum_3
+    real(real64) :: z(ridge_n_features), product, sum_1, sum_2, sum_3, sum_4
     integer :: k, p
     if (clear_sky(model, features)) then
       corrections = 0.0_real64
@@ -103,18 +104,21 @@ contains
     sum_1 = model%intercept(1)
     sum_2 = model%intercept(2)
     sum_3 = model%intercept(3)
+    sum_4 = model%intercept(4)
     do k = 1, ridge_n_features
       sum_1 = sum_1 + model%coef(1, k) * z(k)
       sum_2 = sum_2 + model%coef(2, k) * z(k)
       sum_3 = sum_3 + model%coef(3, k) * z(k)
+      sum_4 = sum_4 + model%coef(4, k) * z(k)
     end do
     do p = 1, model%n_pairs
       product = z(model%pairs(1, p)) * z(model%pairs(2, p))
       sum_1 = sum_1 + model%coef(1, ridge_n_features + p) * product
       sum_2 = sum_2 + model%coef(2, ridge_n_features + p) * product
       sum_3 = sum_3 + model%coef(3, ridge_n_features + p) * product
+      sum_4 = sum_4 + model%coef(4, ridge_n_features + p) * product
     end do
-    corrections = [sum_1, sum_2, sum_3]
+    corrections = [sum_1, sum_2, sum_3, sum_4]
     call apply_transforms(model, features, corrections)
   end subroutine ridge_correct_column
 

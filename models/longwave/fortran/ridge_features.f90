@@ -438,6 +438,8 @@ contains
     diameter = 4.0_real64 * (1.0_real64 - cover) * (-ridge_log1p(-cover)) / edge
     if (.not. ieee_is_finite(diameter)) return
     beta = max(depth / diameter, 0.0_real64)
+    ! Flat clouds: N_e = N exactly (as in numpy), no rounding of the quadrature.
+    if (.not. (beta > 0.0_real64)) return
     log_clear = ridge_log1p(-cover)
     scaled = ridge_four_over_pi * beta
     do k = 1, 32

@@ -11,7 +11,7 @@ module ridge_host
   public :: ridge_correct_host
 
   !> The plane of longwave_fluxes holding each of the model's targets (ridge_target_names).
-  integer, parameter :: flux_slot(ridge_n_targets) = [1, 2, 5]
+  integer, parameter :: flux_slot(ridge_n_targets) = [1, 2, 3, 5]
 
 contains
 
