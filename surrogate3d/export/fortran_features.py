@@ -36,14 +36,14 @@ periodic domain, exactly as :func:`~surrogate3d.runtime.halo.subdomain_features`
 ``NAME_halo_needed`` wide no stencil of an own column wraps, so a whole periodic domain
 whose halo the host fills by periodic copy gives the features of ``compute_features``,
 and a sub-domain those of the whole domain.  Neighbour windows are sums over the
-window's columns in order where numpy takes differences of cumulative sums, and
-``ln(1 + tau)`` comes from Goldberg's formula (Fortran 2008 has no ``log1p``): these
-agree with numpy to rounding; the other features repeat numpy's arithmetic operation by
-operation (``tests/export/test_fortran_features.py``).  With such a halo every
-feature of a column depends on the values it reads only, not on the block: a sub-domain
-gives the whole domain's features bit for bit, so that no tree split of a model falls
-differently in another decomposition (numpy's cumulative sums, which depend on where
-the block starts, would not).  Each neighbourhood mean is computed once however many
+window's columns in order, as numpy's (bit for bit); ``ln(1 + tau)`` comes from
+Goldberg's formula (Fortran 2008 has no ``log1p``) and agrees with numpy to rounding; the
+other features repeat numpy's arithmetic operation by operation
+(``tests/export/test_fortran_features.py``).  With such a halo every feature of a column
+depends on the values it reads only, not on the block: a sub-domain gives the whole
+domain's features bit for bit, so that no tree split of a model falls differently in
+another decomposition.  A fraction of a column of at most 1e-9 at a window's edges is left
+out, in numpy too, as the halo rule ``ceiling(radius / dx - 1e-9)`` leaves it out.  Each neighbourhood mean is computed once however many
 columns read it, and the direct-beam priors in one pass
 (:func:`surrogate3d.export.fortran_slant.slant_priors_call`).
 
@@ -226,8 +226,9 @@ _HELPERS = {
   ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean): a sum
   ! along x, then along y, over the periodic block.  Each sum runs over the window's columns in
   ! order, so that it depends on the window's values only: a column's mean is the same bit for bit
-  ! whatever the block (a sub-domain's and the whole domain's agree; numpy's differences of
-  ! cumulative sums agree with it to rounding).
+  ! whatever the block (a sub-domain's and the whole domain's agree, and numpy's, which adds the
+  ! same terms in the same order).  A sliver of at most 1e-9 of a column at the edges is left out,
+  ! as the halo rule (ceiling(radius / dx - 1e-9)) does not count it.
   pure subroutine {p}_window_mean(values, nx, ny, hx, hy, radius, dx, dy, mean)
     integer, intent(in) :: nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), radius, dx, dy
@@ -255,7 +256,7 @@ _HELPERS = {
         do o = ix - mx, ix + mx
           total = total + values(column(o), iy)
         end do
-        if (part_x > 0.0_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
+        if (part_x > 1.0e-9_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
             + values(column(ix + mx + 1), iy))
         along_x(ix, j) = total
       end do
@@ -266,7 +267,8 @@ _HELPERS = {
       do o = iy - my, iy + my
         mean(:, iy) = mean(:, iy) + along_x(:, o)
       end do
-      if (part_y > 0.0_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + along_x(:, iy + my + 1))
+      if (part_y > 1.0e-9_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + &
+          along_x(:, iy + my + 1))
       mean(:, iy) = mean(:, iy) / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
     end do
   end subroutine {p}_window_mean

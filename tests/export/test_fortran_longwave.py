@@ -434,3 +434,23 @@ def test_host_fields_refuses_mixed_spectra_and_a_missing_zenith_in_one_line(tmp_
         err = capsys.readouterr().err.strip()
         assert text in err and "\n" not in err
         assert not (tmp_path / "out").exists()
+
+
+@needs_gfortran
+def test_a_window_reaching_a_sliver_past_a_column_does_not_wrap_a_sub_domain(tmp_path):
+    # 20 km / 380 columns: 3 km / dx = 57.00000000000001, a sliver the halo rule does not
+    # count; the window leaves it out (numpy and Fortran alike), so a sub-domain with the
+    # halo the rule gives equals the whole domain bit for bit, and numpy's features.
+    names = ["neighbour_mean_cloud_fraction_3000m", "neighbour_mean_cloud_fraction_1000m"]
+    program = compile_program(tmp_path, [("f.f90", longwave_features_module_text("sliver", LongwaveFeatureRecipe(names),
+                                                                                   names))], "sliver", len(names))
+    fields, fluxes = random_fields(9, nx=12, ny=8)
+    fields["dx"] = fields["dy"] = 20000.0 / 380.0
+    hx, hy = longwave_halo_width(LongwaveFeatureRecipe(names), fields["dx"], fields["dy"])
+    assert hx == hy == 57
+    status, whole, message = program.run(padded(fields, fluxes, hx, hy), hx, hy)
+    assert status == 0, message
+    status, part, _ = program.run(padded(fields, fluxes, hx, hy, 3, 2, 5, 4), hx, hy)
+    assert status == 0
+    np.testing.assert_array_equal(part.reshape(4, 5, -1), whole.reshape(8, 12, -1)[2:6, 3:8])
+    np.testing.assert_array_equal(whole, numpy_features(fields, fluxes, names))

@@ -675,8 +675,9 @@ contains
   ! columns weighted by the fraction inside (surrogate3d.pairs.features.neighbourhood_mean): a sum
   ! along x, then along y, over the periodic block.  Each sum runs over the window's columns in
   ! order, so that it depends on the window's values only: a column's mean is the same bit for bit
-  ! whatever the block (a sub-domain's and the whole domain's agree; numpy's differences of
-  ! cumulative sums agree with it to rounding).
+  ! whatever the block (a sub-domain's and the whole domain's agree, and numpy's, which adds the
+  ! same terms in the same order).  A sliver of at most 1e-9 of a column at the edges is left out,
+  ! as the halo rule (ceiling(radius / dx - 1e-9)) does not count it.
   pure subroutine boosted_window_mean(values, nx, ny, hx, hy, radius, dx, dy, mean)
     integer, intent(in) :: nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), radius, dx, dy
@@ -704,7 +705,7 @@ contains
         do o = ix - mx, ix + mx
           total = total + values(column(o), iy)
         end do
-        if (part_x > 0.0_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
+        if (part_x > 1.0e-9_real64) total = total + part_x * (values(column(ix - mx - 1), iy) &
             + values(column(ix + mx + 1), iy))
         along_x(ix, j) = total
       end do
@@ -715,7 +716,8 @@ contains
       do o = iy - my, iy + my
         mean(:, iy) = mean(:, iy) + along_x(:, o)
       end do
-      if (part_y > 0.0_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + along_x(:, iy + my + 1))
+      if (part_y > 1.0e-9_real64) mean(:, iy) = mean(:, iy) + part_y * (along_x(:, iy - my - 1) + &
+          along_x(:, iy + my + 1))
       mean(:, iy) = mean(:, iy) / ((2.0_real64 * half_x + 1.0_real64) * (2.0_real64 * half_y + 1.0_real64))
     end do
   end subroutine boosted_window_mean
