@@ -434,24 +434,31 @@ _HELPERS = {
 """, ()),
     "check_layers": ("""\
   ! Status 2 at the first non-finite value of a layer field (own columns and halo), else 3 at the
-  ! first outside [low, high]; nothing when status is already set.
-  pure subroutine {p}_check_layers(name, values, nx, ny, nz, hx, hy, low, high, interval, status, message)
+  ! first outside [low, high] ((low, high] when low_open); nothing when status is already set.
+  pure subroutine {p}_check_layers(name, values, nx, ny, nz, hx, hy, low, high, low_open, interval, status, &
+      message)
     character(len=*), intent(in) :: name, interval
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy, nz), low, high
+    logical, intent(in) :: low_open
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
     character(len=400) :: text
     integer :: ix, iy, k, pass
     if (status /= 0) return
-    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both).
-    if (count(.not. (values >= low .and. values <= high)) == 0) return
+    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both);
+    ! an open lower bound costs a second pass only where it is asked for.
+    if (count(.not. (values >= low .and. values <= high)) == 0) then
+      if (.not. low_open) return
+      if (count(values == low) == 0) return
+    end if
     do pass = 2, 3
       do k = 1, nz
         do iy = 1 - hy, ny + hy
           do ix = 1 - hx, nx + hx
             if (pass == 2 .and. ieee_is_finite(values(ix, iy, k))) cycle
-            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high) cycle
+            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high &
+                .and. .not. (low_open .and. values(ix, iy, k) == low)) cycle
             status = pass
             write (text, '(a, "(", i0, ", ", i0, ", ", i0, ") = ", a)') name, ix, iy, k, &
                 trim({p}_number_text(values(ix, iy, k)))
@@ -469,11 +476,14 @@ _HELPERS = {
 """, ("number_text",)),
     "check_plane": ("""\
   ! Status 2 at the first non-finite value of a plane (own columns and halo), else 3 at the first
-  ! outside [low, high]; slot > 0 names a plane of independent_column_fluxes, flux its name.
-  pure subroutine {p}_check_plane(name, slot, values, nx, ny, hx, hy, low, high, interval, status, message)
-    character(len=*), intent(in) :: name, interval
+  ! outside [low, high] ((low, high] when low_open); slot > 0 names plane slot of the stacked argument
+  ! (field: what that plane holds), slot 0 the plane argument itself.
+  pure subroutine {p}_check_plane(argument, slot, field, values, nx, ny, hx, hy, low, high, low_open, interval, &
+      status, message)
+    character(len=*), intent(in) :: argument, field, interval
     integer, intent(in) :: slot, nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), low, high
+    logical, intent(in) :: low_open
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
     character(len=400) :: text
@@ -481,25 +491,29 @@ _HELPERS = {
     integer :: ix, iy, pass
     if (status /= 0) return
     ! One pass when all is well, as in {p}_check_layers.
-    if (count(.not. (values >= low .and. values <= high)) == 0) return
+    if (count(.not. (values >= low .and. values <= high)) == 0) then
+      if (.not. low_open) return
+      if (count(values == low) == 0) return
+    end if
     do pass = 2, 3
       do iy = 1 - hy, ny + hy
         do ix = 1 - hx, nx + hx
           if (pass == 2 .and. ieee_is_finite(values(ix, iy))) cycle
-          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high) cycle
+          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high &
+              .and. .not. (low_open .and. values(ix, iy) == low)) cycle
           status = pass
           if (slot > 0) then
             write (index, '("(", i0, ", ", i0, ", ", i0, ")")') ix, iy, slot
-            text = 'independent_column_fluxes' // trim(index) // ' (' // name // ')'
+            text = argument // trim(index) // ' (' // field // ')'
           else
             write (index, '("(", i0, ", ", i0, ")")') ix, iy
-            text = name // trim(index)
+            text = argument // trim(index)
           end if
           text = trim(text) // ' = ' // trim({p}_number_text(values(ix, iy)))
           if (pass == 2) then
             message = trim(text) // ': not finite'
           else
-            message = trim(text) // ': outside ' // interval
+            message = trim(text) // ': outside ' // trim(interval)
           end if
           return
         end do
@@ -949,18 +963,21 @@ def _field_checks(prefix, keys):
     for name, (high, interval) in _LAYERS.items():
         flags.append(f"    logical, parameter :: reads_{name} = {'.true.' if name in keys else '.false.'}")
         calls.append(f"    if (reads_{name}) then\n      call {prefix}_check_layers('{name}', {name}, &\n"
-                     f"          nx, ny, nz, hx, hy, 0.0_real64, {high}, '{interval}', status, message)\n    end if")
+                     f"          nx, ny, nz, hx, hy, 0.0_real64, {high}, .false., '{interval}', status, message)\n"
+                     "    end if")
     for name, (high, interval) in _PLANES.items():
         flags.append(f"    logical, parameter :: reads_{name} = {'.true.' if name in keys else '.false.'}")
-        calls.append(f"    if (reads_{name}) then\n      call {prefix}_check_plane('{name}', 0, {name}, &\n"
-                     f"          nx, ny, hx, hy, 0.0_real64, {high}, '{interval}', status, message)\n    end if")
+        calls.append(f"    if (reads_{name}) then\n      call {prefix}_check_plane('{name}', 0, '', {name}, &\n"
+                     f"          nx, ny, hx, hy, 0.0_real64, {high}, .false., '{interval}', status, message)\n"
+                     "    end if")
     reads_flux = ", ".join(".true." if f"independent_column_{flux}" in keys else ".false." for flux in TARGETS)
     flags.append(f"    logical, parameter :: reads_flux({len(TARGETS)}) = [{reads_flux}]")
     calls.append(f"""\
     do j = 1, {len(TARGETS)}
       if (reads_flux(j)) then
-        call {prefix}_check_plane(trim(flux_names(j)), j, independent_column_fluxes(:, :, j), &
-            nx, ny, hx, hy, -huge(1.0_real64), huge(1.0_real64), '(-inf, inf)', status, message)
+        call {prefix}_check_plane('independent_column_fluxes', j, trim(flux_names(j)), &
+            independent_column_fluxes(:, :, j), nx, ny, hx, hy, -huge(1.0_real64), huge(1.0_real64), .false., &
+            '(-inf, inf)', status, message)
       end if
     end do""")
     width = max(len(f) for f in TARGETS)

@@ -35,6 +35,31 @@ FIELD_ARGUMENTS = ("nx, ny, nz, hx, hy, dx, dy, solar_zenith_angle, solar_beam_a
                    "column_optical_depth_mean, column_optical_depth_std, cloud_edge_length, independent_column_fluxes")
 
 
+#: The example drivers' stop on a non-zero status (shared by the longwave driver).
+STOP_ON = """\
+  !> Stop with the message on a non-zero status.
+  subroutine stop_on(status, message)
+    integer, intent(in) :: status
+    character(len=*), intent(in) :: message
+    if (status == 0) return
+    write (error_unit, '(a)') trim(message)
+    stop 1
+  end subroutine stop_on
+"""
+
+#: The example drivers' optional ``--repeat N`` after the coefficient file(s), at argument ``first``.
+REPEAT_ARGUMENT = """\
+  n_repeat = 0
+  call get_command_argument(first, argument)
+  if (trim(argument) == '--repeat') then
+    call get_command_argument(first + 1, argument)
+    read (argument, *, iostat=status) n_repeat
+    if (status /= 0 .or. n_repeat < 1) call stop_on(1, '--repeat needs a count >= 1')
+    first = first + 2
+  end if
+"""
+
+
 def _wrapped(text, indent):
     """A comma-separated argument list broken into Fortran continuation lines."""
     lines, line = [], ""
@@ -433,15 +458,7 @@ program {prefix}_host_driver
     call get_command_argument(3, profile_path)
     first = 4
   end if{no_profile_guard}
-  n_repeat = 0
-  call get_command_argument(first, argument)
-  if (trim(argument) == '--repeat') then
-    call get_command_argument(first + 1, argument)
-    read (argument, *, iostat=status) n_repeat
-    if (status /= 0 .or. n_repeat < 1) call stop_on(1, '--repeat needs a count >= 1')
-    first = first + 2
-  end if
-  n_parts = n_args - first + 1
+{REPEAT_ARGUMENT}  n_parts = n_args - first + 1
   if (n_parts < 1) call stop_on(1, 'no host field file given')
   call {prefix}_read_coefficients(trim(coefficients_path), model, status, message)
   call stop_on(status, message){read_profile}
@@ -551,15 +568,7 @@ contains
     end do
   end subroutine check_cover
 
-  !> Stop with the message on a non-zero status.
-  subroutine stop_on(status, message)
-    integer, intent(in) :: status
-    character(len=*), intent(in) :: message
-    if (status == 0) return
-    write (error_unit, '(a)') trim(message)
-    stop 1
-  end subroutine stop_on
-
+{STOP_ON}
   !> Read one host field file (surrogate3d.runtime.host_field_file) into d, arrays indexed with their halo.
   subroutine read_host_fields(path, d)
     character(len=*), intent(in) :: path

@@ -224,91 +224,10 @@ _LONGWAVE_HELPERS = {
     character(len=*), intent(inout) :: message
     real(real64) :: floor
     floor = merge(low, -huge(1.0_real64), bounded)
-    call {p}_check_values(argument, slot, field, values, nx, ny, hx, hy, floor, huge(1.0_real64), .false., &
+    call {p}_check_plane(argument, slot, field, values, nx, ny, hx, hy, floor, huge(1.0_real64), .false., &
         merge('[0, inf)   ', '(-inf, inf)', bounded), status, message)
   end subroutine {p}_check_flux
-""", ("check_values",)),
-    "check_values": ("""\
-  ! Status 2 at the first non-finite value of a plane (own columns and halo), else 3 at the first
-  ! outside [low, high] ((low, high] when low_open); slot > 0 names plane slot of a stacked argument.
-  pure subroutine {p}_check_values(argument, slot, field, values, nx, ny, hx, hy, low, high, low_open, interval, &
-      status, message)
-    character(len=*), intent(in) :: argument, field, interval
-    integer, intent(in) :: slot, nx, ny, hx, hy
-    real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), low, high
-    logical, intent(in) :: low_open
-    integer, intent(inout) :: status
-    character(len=*), intent(inout) :: message
-    character(len=400) :: text
-    character(len=40) :: index
-    integer :: ix, iy, pass
-    if (status /= 0) return
-    if (count(.not. (values >= low .and. values <= high)) == 0 .and. &
-        (.not. low_open .or. count(values == low) == 0)) return
-    do pass = 2, 3
-      do iy = 1 - hy, ny + hy
-        do ix = 1 - hx, nx + hx
-          if (pass == 2 .and. ieee_is_finite(values(ix, iy))) cycle
-          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high &
-              .and. .not. (low_open .and. values(ix, iy) == low)) cycle
-          status = pass
-          if (slot > 0) then
-            write (index, '("(", i0, ", ", i0, ", ", i0, ")")') ix, iy, slot
-            text = argument // trim(index) // ' (' // field // ')'
-          else
-            write (index, '("(", i0, ", ", i0, ")")') ix, iy
-            text = argument // trim(index)
-          end if
-          text = trim(text) // ' = ' // trim({p}_number_text(values(ix, iy)))
-          if (pass == 2) then
-            message = trim(text) // ': not finite'
-          else
-            message = trim(text) // ': outside ' // trim(interval)
-          end if
-          return
-        end do
-      end do
-    end do
-  end subroutine {p}_check_values
-""", ("number_text",)),
-    "check_layer_values": ("""\
-  ! Status 2 at the first non-finite value of a layer field (own columns and halo), else 3 at the
-  ! first outside [low, high] ((low, high] when low_open).
-  pure subroutine {p}_check_layer_values(name, values, nx, ny, nz, hx, hy, low, high, low_open, interval, &
-      status, message)
-    character(len=*), intent(in) :: name, interval
-    integer, intent(in) :: nx, ny, nz, hx, hy
-    real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy, nz), low, high
-    logical, intent(in) :: low_open
-    integer, intent(inout) :: status
-    character(len=*), intent(inout) :: message
-    character(len=400) :: text
-    integer :: ix, iy, k, pass
-    if (status /= 0) return
-    if (count(.not. (values >= low .and. values <= high)) == 0 .and. &
-        (.not. low_open .or. count(values == low) == 0)) return
-    do pass = 2, 3
-      do k = 1, nz
-        do iy = 1 - hy, ny + hy
-          do ix = 1 - hx, nx + hx
-            if (pass == 2 .and. ieee_is_finite(values(ix, iy, k))) cycle
-            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high &
-                .and. .not. (low_open .and. values(ix, iy, k) == low)) cycle
-            status = pass
-            write (text, '(a, "(", i0, ", ", i0, ", ", i0, ") = ", a)') name, ix, iy, k, &
-                trim({p}_number_text(values(ix, iy, k)))
-            if (pass == 2) then
-              message = trim(text) // ': not finite'
-            else
-              message = trim(text) // ': outside ' // interval
-            end if
-            return
-          end do
-        end do
-      end do
-    end do
-  end subroutine {p}_check_layer_values
-""", ("number_text",)),
+""", ("check_plane",)),
 }
 
 
@@ -377,12 +296,12 @@ def _checks(prefix, reads):
     for name, (low, high, interval, low_open) in _LAYER_ARGUMENTS.items():
         flag(name, name in reads)
         calls += [f"    if (reads_{name}) then",
-                  f"      call {prefix}_check_layer_values('{name}', {name}, nx, ny, nz, hx, hy, "
+                  f"      call {prefix}_check_layers('{name}', {name}, nx, ny, nz, hx, hy, "
                   f"{low}, {high}, {'.true.' if low_open else '.false.'}, '{interval}', status, message)", "    end if"]
     for name, (low, high, interval, low_open) in _PLANE_ARGUMENTS.items():
         flag(name, name in reads)
         calls += [f"    if (reads_{name}) then",
-                  f"      call {prefix}_check_values('{name}', 0, '', {name}, nx, ny, hx, hy, "
+                  f"      call {prefix}_check_plane('{name}', 0, '', {name}, nx, ny, hx, hy, "
                   f"{low}, {high}, {'.true.' if low_open else '.false.'}, '{interval}', status, message)", "    end if"]
     for argument, slot, field, low in _FLUX_PLANES:
         flag(f"{argument}_{slot}", (argument, slot) in reads)
@@ -451,7 +370,7 @@ def longwave_features_module_text(prefix, recipe, column_names):
     flags, checks = _checks(p, _reads(columns))
     radii = sorted({_WINDOWS[name] for name in columns if name in _WINDOWS})
     windows = {radius: w for w, radius in enumerate(radii, start=1)}
-    helpers = {"check_layer_values", "check_values", "check_flux"}
+    helpers = {"check_layers", "check_plane", "check_flux"}
     extent = any(name in columns for name in ("cloud_base_height", "cloud_top_height", "cloud_base_air_temperature",
                                               "cloud_top_air_temperature", "cloud_side_area_per_area",
                                               *_PRIORS, "effective_cloud_fraction_atmosphere_prior"))
@@ -752,6 +671,8 @@ def longwave_host_driver_text(prefix):
     1 or 0 for outside the training envelope or not.  With ``--repeat N`` it times N sweeps
     of the first file's columns instead (best of three; ``key value`` lines).
     """
+    from .fortran_host import REPEAT_ARGUMENT, STOP_ON
+
     p = prefix
     text = f"""\
 ! Generated by surrogate3d export: example driver of the longwave host interface {p}_host.
@@ -787,15 +708,7 @@ program {p}_host_driver
   if (n_args < 2) call stop_on(1, 'usage: {p}_host_driver COEFFICIENTS [--repeat N] FILE...')
   call get_command_argument(1, coefficients_path)
   first = 2
-  n_repeat = 0
-  call get_command_argument(first, argument)
-  if (trim(argument) == '--repeat') then
-    call get_command_argument(first + 1, argument)
-    read (argument, *, iostat=status) n_repeat
-    if (status /= 0 .or. n_repeat < 1) call stop_on(1, '--repeat needs a count >= 1')
-    first = first + 2
-  end if
-  n_parts = n_args - first + 1
+{REPEAT_ARGUMENT}  n_parts = n_args - first + 1
   if (n_parts < 1) call stop_on(1, 'no host field file given')
   call {p}_read_coefficients(trim(coefficients_path), model, status, message)
   call stop_on(status, message)
@@ -859,15 +772,7 @@ contains
     write (*, '(a, 1x, es15.8)') 'checksum', checksum
   end subroutine time_corrections
 
-  !> Stop with the message on a non-zero status.
-  subroutine stop_on(status, message)
-    integer, intent(in) :: status
-    character(len=*), intent(in) :: message
-    if (status == 0) return
-    write (error_unit, '(a)') trim(message)
-    stop 1
-  end subroutine stop_on
-
+{STOP_ON}
   !> Stop unless a read worked (ios 0), gave the expected key and, if given, the expected count.
   subroutine expect(ios, key, expected, path, count, wanted)
     integer, intent(in) :: ios

@@ -44,7 +44,7 @@ from numba import njit, prange
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 from ._thermal_kernel import _search, table_radiance
-from ._transport import hg_cosine, lambertian_up, random_azimuth, rotate
+from ._transport import cross_side, hg_cosine, lambertian_up, random_azimuth, rotate
 
 #: The fluxes a batch estimates per column, in order.
 TARGETS = ("surface_downward_flux", "toa_upward_flux")
@@ -119,34 +119,8 @@ def ray_radiance(state, n, x, y, z, ux, uy, uz, ix, iy, iz, b_ref, full_3d, roul
             tau = -math.log(uniform_open(state))
         else:
             tau -= k_sca * t
-            if axis == 0:
-                y += t * uy
-                z += t * uz
-                if ux > 0.0:
-                    ix += 1
-                    if ix == nx:
-                        ix = 0
-                    x = ix * dx
-                else:
-                    x = ix * dx
-                    ix -= 1
-                    if ix < 0:
-                        ix = nx - 1
-                        x = nx * dx
-            elif axis == 1:
-                x += t * ux
-                z += t * uz
-                if uy > 0.0:
-                    iy += 1
-                    if iy == ny:
-                        iy = 0
-                    y = iy * dy
-                else:
-                    y = iy * dy
-                    iy -= 1
-                    if iy < 0:
-                        iy = ny - 1
-                        y = ny * dy
+            if axis < 2:
+                x, y, z, ix, iy = cross_side(axis, t, x, y, z, ux, uy, uz, ix, iy, nx, ny, dx, dy)
             else:
                 x += t * ux
                 y += t * uy

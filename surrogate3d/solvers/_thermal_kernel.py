@@ -45,7 +45,7 @@ from numba import njit, prange
 
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
-from ._transport import _next_above, hg_cosine, lambertian_up, random_azimuth, rotate
+from ._transport import _next_above, cross_side, hg_cosine, lambertian_up, random_azimuth, rotate
 
 ARRIVAL, LEAVING, SURFACE_NET, SPACE_NET, ATMOSPHERE_NET = range(5)
 #: The column tallies of a batch, in order.
@@ -448,34 +448,8 @@ def trace(state, n, w, x, y, z, ux, uy, uz, ix, iy, iz, ekind, ez, ey, ex, b_emi
             tau = -math.log(uniform_open(state))
         else:
             tau -= k_sca * t
-            if axis == 0:
-                y += t * uy
-                z += t * uz
-                if ux > 0.0:
-                    ix += 1
-                    if ix == nx:
-                        ix = 0
-                    x = ix * dx
-                else:
-                    x = ix * dx
-                    ix -= 1
-                    if ix < 0:
-                        ix = nx - 1
-                        x = nx * dx
-            elif axis == 1:
-                x += t * ux
-                z += t * uz
-                if uy > 0.0:
-                    iy += 1
-                    if iy == ny:
-                        iy = 0
-                    y = iy * dy
-                else:
-                    y = iy * dy
-                    iy -= 1
-                    if iy < 0:
-                        iy = ny - 1
-                        y = ny * dy
+            if axis < 2:
+                x, y, z, ix, iy = cross_side(axis, t, x, y, z, ux, uy, uz, ix, iy, nx, ny, dx, dy)
             else:
                 x += t * ux
                 y += t * uy

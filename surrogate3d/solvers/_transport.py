@@ -188,6 +188,42 @@ def _surface(state, w, b, iy, ix, thresh, alb, col):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def cross_side(axis, t, x, y, z, ux, uy, uz, ix, iy, nx, ny, dx, dy):
+    """Fly ``t`` [m] to the x (``axis`` 0) or y (1) face of the cell and into the next column of
+    the periodic grid: ``(x, y, z, ix, iy)`` after the crossing, the position set exactly on
+    the face (the cell-by-cell walks of the thermal kernels)."""
+    if axis == 0:
+        y += t * uy
+        z += t * uz
+        if ux > 0.0:
+            ix += 1
+            if ix == nx:
+                ix = 0
+            x = ix * dx
+        else:
+            x = ix * dx
+            ix -= 1
+            if ix < 0:
+                ix = nx - 1
+                x = nx * dx
+    else:
+        x += t * ux
+        z += t * uz
+        if uy > 0.0:
+            iy += 1
+            if iy == ny:
+                iy = 0
+            y = iy * dy
+        else:
+            y = iy * dy
+            iy -= 1
+            if iy < 0:
+                iy = ny - 1
+                y = ny * dy
+    return x, y, z, ix, iy
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def _wrap(pos, length):
     # A loop, not %, which is slow and rarely needed: flights seldom cross the domain.
     while pos >= length:

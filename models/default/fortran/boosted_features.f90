@@ -403,40 +403,41 @@ contains
     end if
     if (reads_layer_cloud_fraction) then
       call boosted_check_layers('layer_cloud_fraction', layer_cloud_fraction, &
-          nx, ny, nz, hx, hy, 0.0_real64, 1.0_real64, '[0, 1]', status, message)
+          nx, ny, nz, hx, hy, 0.0_real64, 1.0_real64, .false., '[0, 1]', status, message)
     end if
     if (reads_layer_optical_depth) then
       call boosted_check_layers('layer_optical_depth', layer_optical_depth, &
-          nx, ny, nz, hx, hy, 0.0_real64, huge(1.0_real64), '[0, inf)', status, message)
+          nx, ny, nz, hx, hy, 0.0_real64, huge(1.0_real64), .false., '[0, inf)', status, message)
     end if
     if (reads_layer_clear_sky_optical_depth) then
       call boosted_check_layers('layer_clear_sky_optical_depth', layer_clear_sky_optical_depth, &
-          nx, ny, nz, hx, hy, 0.0_real64, huge(1.0_real64), '[0, inf)', status, message)
+          nx, ny, nz, hx, hy, 0.0_real64, huge(1.0_real64), .false., '[0, inf)', status, message)
     end if
     if (reads_surface_albedo) then
-      call boosted_check_plane('surface_albedo', 0, surface_albedo, &
-          nx, ny, hx, hy, 0.0_real64, 1.0_real64, '[0, 1]', status, message)
+      call boosted_check_plane('surface_albedo', 0, '', surface_albedo, &
+          nx, ny, hx, hy, 0.0_real64, 1.0_real64, .false., '[0, 1]', status, message)
     end if
     if (reads_total_cloud_fraction) then
-      call boosted_check_plane('total_cloud_fraction', 0, total_cloud_fraction, &
-          nx, ny, hx, hy, 0.0_real64, 1.0_real64, '[0, 1]', status, message)
+      call boosted_check_plane('total_cloud_fraction', 0, '', total_cloud_fraction, &
+          nx, ny, hx, hy, 0.0_real64, 1.0_real64, .false., '[0, 1]', status, message)
     end if
     if (reads_column_optical_depth_mean) then
-      call boosted_check_plane('column_optical_depth_mean', 0, column_optical_depth_mean, &
-          nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), '[0, inf)', status, message)
+      call boosted_check_plane('column_optical_depth_mean', 0, '', column_optical_depth_mean, &
+          nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), .false., '[0, inf)', status, message)
     end if
     if (reads_column_optical_depth_std) then
-      call boosted_check_plane('column_optical_depth_std', 0, column_optical_depth_std, &
-          nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), '[0, inf)', status, message)
+      call boosted_check_plane('column_optical_depth_std', 0, '', column_optical_depth_std, &
+          nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), .false., '[0, inf)', status, message)
     end if
     if (reads_cloud_edge_length) then
-      call boosted_check_plane('cloud_edge_length', 0, cloud_edge_length, &
-          nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), '[0, inf)', status, message)
+      call boosted_check_plane('cloud_edge_length', 0, '', cloud_edge_length, &
+          nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), .false., '[0, inf)', status, message)
     end if
     do j = 1, 5
       if (reads_flux(j)) then
-        call boosted_check_plane(trim(flux_names(j)), j, independent_column_fluxes(:, :, j), &
-            nx, ny, hx, hy, -huge(1.0_real64), huge(1.0_real64), '(-inf, inf)', status, message)
+        call boosted_check_plane('independent_column_fluxes', j, trim(flux_names(j)), &
+            independent_column_fluxes(:, :, j), nx, ny, hx, hy, -huge(1.0_real64), huge(1.0_real64), .false., &
+            '(-inf, inf)', status, message)
       end if
     end do
     if (status /= 0) return
@@ -876,24 +877,31 @@ contains
   end function boosted_number_text
 
   ! Status 2 at the first non-finite value of a layer field (own columns and halo), else 3 at the
-  ! first outside [low, high]; nothing when status is already set.
-  pure subroutine boosted_check_layers(name, values, nx, ny, nz, hx, hy, low, high, interval, status, message)
+  ! first outside [low, high] ((low, high] when low_open); nothing when status is already set.
+  pure subroutine boosted_check_layers(name, values, nx, ny, nz, hx, hy, low, high, low_open, interval, status, &
+      message)
     character(len=*), intent(in) :: name, interval
     integer, intent(in) :: nx, ny, nz, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy, nz), low, high
+    logical, intent(in) :: low_open
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
     character(len=400) :: text
     integer :: ix, iy, k, pass
     if (status /= 0) return
-    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both).
-    if (count(.not. (values >= low .and. values <= high)) == 0) return
+    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both);
+    ! an open lower bound costs a second pass only where it is asked for.
+    if (count(.not. (values >= low .and. values <= high)) == 0) then
+      if (.not. low_open) return
+      if (count(values == low) == 0) return
+    end if
     do pass = 2, 3
       do k = 1, nz
         do iy = 1 - hy, ny + hy
           do ix = 1 - hx, nx + hx
             if (pass == 2 .and. ieee_is_finite(values(ix, iy, k))) cycle
-            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high) cycle
+            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high &
+                .and. .not. (low_open .and. values(ix, iy, k) == low)) cycle
             status = pass
             write (text, '(a, "(", i0, ", ", i0, ", ", i0, ") = ", a)') name, ix, iy, k, &
                 trim(boosted_number_text(values(ix, iy, k)))
@@ -910,11 +918,14 @@ contains
   end subroutine boosted_check_layers
 
   ! Status 2 at the first non-finite value of a plane (own columns and halo), else 3 at the first
-  ! outside [low, high]; slot > 0 names a plane of independent_column_fluxes, flux its name.
-  pure subroutine boosted_check_plane(name, slot, values, nx, ny, hx, hy, low, high, interval, status, message)
-    character(len=*), intent(in) :: name, interval
+  ! outside [low, high] ((low, high] when low_open); slot > 0 names plane slot of the stacked argument
+  ! (field: what that plane holds), slot 0 the plane argument itself.
+  pure subroutine boosted_check_plane(argument, slot, field, values, nx, ny, hx, hy, low, high, low_open, interval, &
+      status, message)
+    character(len=*), intent(in) :: argument, field, interval
     integer, intent(in) :: slot, nx, ny, hx, hy
     real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), low, high
+    logical, intent(in) :: low_open
     integer, intent(inout) :: status
     character(len=*), intent(inout) :: message
     character(len=400) :: text
@@ -922,25 +933,29 @@ contains
     integer :: ix, iy, pass
     if (status /= 0) return
     ! One pass when all is well, as in boosted_check_layers.
-    if (count(.not. (values >= low .and. values <= high)) == 0) return
+    if (count(.not. (values >= low .and. values <= high)) == 0) then
+      if (.not. low_open) return
+      if (count(values == low) == 0) return
+    end if
     do pass = 2, 3
       do iy = 1 - hy, ny + hy
         do ix = 1 - hx, nx + hx
           if (pass == 2 .and. ieee_is_finite(values(ix, iy))) cycle
-          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high) cycle
+          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high &
+              .and. .not. (low_open .and. values(ix, iy) == low)) cycle
           status = pass
           if (slot > 0) then
             write (index, '("(", i0, ", ", i0, ", ", i0, ")")') ix, iy, slot
-            text = 'independent_column_fluxes' // trim(index) // ' (' // name // ')'
+            text = argument // trim(index) // ' (' // field // ')'
           else
             write (index, '("(", i0, ", ", i0, ")")') ix, iy
-            text = name // trim(index)
+            text = argument // trim(index)
           end if
           text = trim(text) // ' = ' // trim(boosted_number_text(values(ix, iy)))
           if (pass == 2) then
             message = trim(text) // ': not finite'
           else
-            message = trim(text) // ': outside ' // interval
+            message = trim(text) // ': outside ' // trim(interval)
           end if
           return
         end do

@@ -178,31 +178,31 @@ contains
       return
     end if
     if (reads_layer_cloud_fraction) then
-      call boosted_check_layer_values('layer_cloud_fraction', layer_cloud_fraction, nx, ny, nz, hx, hy, 0.0_real64, 1.0_real64, &
+      call boosted_check_layers('layer_cloud_fraction', layer_cloud_fraction, nx, ny, nz, hx, hy, 0.0_real64, 1.0_real64, &
           .false., '[0, 1]', status, message)
     end if
     if (reads_layer_air_temperature) then
-      call boosted_check_layer_values('layer_air_temperature', layer_air_temperature, nx, ny, nz, hx, hy, 0.0_real64, &
-          huge(1.0_real64), .true., '(0, inf)', status, message)
+      call boosted_check_layers('layer_air_temperature', layer_air_temperature, nx, ny, nz, hx, hy, 0.0_real64, huge(1.0_real64), &
+          .true., '(0, inf)', status, message)
     end if
     if (reads_total_cloud_fraction) then
-      call boosted_check_values('total_cloud_fraction', 0, '', total_cloud_fraction, nx, ny, hx, hy, 0.0_real64, 1.0_real64, &
+      call boosted_check_plane('total_cloud_fraction', 0, '', total_cloud_fraction, nx, ny, hx, hy, 0.0_real64, 1.0_real64, &
           .false., '[0, 1]', status, message)
     end if
     if (reads_cloud_edge_length) then
-      call boosted_check_values('cloud_edge_length', 0, '', cloud_edge_length, nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), &
+      call boosted_check_plane('cloud_edge_length', 0, '', cloud_edge_length, nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), &
           .false., '[0, inf)', status, message)
     end if
     if (reads_liquid_water_path) then
-      call boosted_check_values('liquid_water_path', 0, '', liquid_water_path, nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), &
+      call boosted_check_plane('liquid_water_path', 0, '', liquid_water_path, nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), &
           .false., '[0, inf)', status, message)
     end if
     if (reads_surface_temperature) then
-      call boosted_check_values('surface_temperature', 0, '', surface_temperature, nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), &
+      call boosted_check_plane('surface_temperature', 0, '', surface_temperature, nx, ny, hx, hy, 0.0_real64, huge(1.0_real64), &
           .true., '(0, inf)', status, message)
     end if
     if (reads_surface_longwave_emissivity) then
-      call boosted_check_values('surface_longwave_emissivity', 0, '', surface_longwave_emissivity, nx, ny, hx, hy, 0.0_real64, &
+      call boosted_check_plane('surface_longwave_emissivity', 0, '', surface_longwave_emissivity, nx, ny, hx, hy, 0.0_real64, &
           1.0_real64, .false., '[0, 1]', status, message)
     end if
     if (reads_clear_sky_fluxes_1) then
@@ -401,6 +401,93 @@ contains
     text = adjustl(text)
   end function boosted_number_text
 
+  ! Status 2 at the first non-finite value of a layer field (own columns and halo), else 3 at the
+  ! first outside [low, high] ((low, high] when low_open); nothing when status is already set.
+  pure subroutine boosted_check_layers(name, values, nx, ny, nz, hx, hy, low, high, low_open, interval, status, &
+      message)
+    character(len=*), intent(in) :: name, interval
+    integer, intent(in) :: nx, ny, nz, hx, hy
+    real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy, nz), low, high
+    logical, intent(in) :: low_open
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    character(len=400) :: text
+    integer :: ix, iy, k, pass
+    if (status /= 0) return
+    ! One pass when all is well: with finite bounds, a value inside them is finite too (NaN fails both);
+    ! an open lower bound costs a second pass only where it is asked for.
+    if (count(.not. (values >= low .and. values <= high)) == 0) then
+      if (.not. low_open) return
+      if (count(values == low) == 0) return
+    end if
+    do pass = 2, 3
+      do k = 1, nz
+        do iy = 1 - hy, ny + hy
+          do ix = 1 - hx, nx + hx
+            if (pass == 2 .and. ieee_is_finite(values(ix, iy, k))) cycle
+            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high &
+                .and. .not. (low_open .and. values(ix, iy, k) == low)) cycle
+            status = pass
+            write (text, '(a, "(", i0, ", ", i0, ", ", i0, ") = ", a)') name, ix, iy, k, &
+                trim(boosted_number_text(values(ix, iy, k)))
+            if (pass == 2) then
+              message = trim(text) // ': not finite'
+            else
+              message = trim(text) // ': outside ' // interval
+            end if
+            return
+          end do
+        end do
+      end do
+    end do
+  end subroutine boosted_check_layers
+
+  ! Status 2 at the first non-finite value of a plane (own columns and halo), else 3 at the first
+  ! outside [low, high] ((low, high] when low_open); slot > 0 names plane slot of the stacked argument
+  ! (field: what that plane holds), slot 0 the plane argument itself.
+  pure subroutine boosted_check_plane(argument, slot, field, values, nx, ny, hx, hy, low, high, low_open, interval, &
+      status, message)
+    character(len=*), intent(in) :: argument, field, interval
+    integer, intent(in) :: slot, nx, ny, hx, hy
+    real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), low, high
+    logical, intent(in) :: low_open
+    integer, intent(inout) :: status
+    character(len=*), intent(inout) :: message
+    character(len=400) :: text
+    character(len=40) :: index
+    integer :: ix, iy, pass
+    if (status /= 0) return
+    ! One pass when all is well, as in boosted_check_layers.
+    if (count(.not. (values >= low .and. values <= high)) == 0) then
+      if (.not. low_open) return
+      if (count(values == low) == 0) return
+    end if
+    do pass = 2, 3
+      do iy = 1 - hy, ny + hy
+        do ix = 1 - hx, nx + hx
+          if (pass == 2 .and. ieee_is_finite(values(ix, iy))) cycle
+          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high &
+              .and. .not. (low_open .and. values(ix, iy) == low)) cycle
+          status = pass
+          if (slot > 0) then
+            write (index, '("(", i0, ", ", i0, ", ", i0, ")")') ix, iy, slot
+            text = argument // trim(index) // ' (' // field // ')'
+          else
+            write (index, '("(", i0, ", ", i0, ")")') ix, iy
+            text = argument // trim(index)
+          end if
+          text = trim(text) // ' = ' // trim(boosted_number_text(values(ix, iy)))
+          if (pass == 2) then
+            message = trim(text) // ': not finite'
+          else
+            message = trim(text) // ': outside ' // trim(interval)
+          end if
+          return
+        end do
+      end do
+    end do
+  end subroutine boosted_check_plane
+
   ! Air temperature [K] at height [m] of one column, linear in height between layer centres and
   ! extended beyond the lowest and highest centre; one layer gives its own temperature
   ! (surrogate3d.pairs.longwave_features.air_temperature_at).
@@ -468,86 +555,7 @@ contains
     character(len=*), intent(inout) :: message
     real(real64) :: floor
     floor = merge(low, -huge(1.0_real64), bounded)
-    call boosted_check_values(argument, slot, field, values, nx, ny, hx, hy, floor, huge(1.0_real64), .false., &
+    call boosted_check_plane(argument, slot, field, values, nx, ny, hx, hy, floor, huge(1.0_real64), .false., &
         merge('[0, inf)   ', '(-inf, inf)', bounded), status, message)
   end subroutine boosted_check_flux
-
-  ! Status 2 at the first non-finite value of a plane (own columns and halo), else 3 at the first
-  ! outside [low, high] ((low, high] when low_open); slot > 0 names plane slot of a stacked argument.
-  pure subroutine boosted_check_values(argument, slot, field, values, nx, ny, hx, hy, low, high, low_open, interval, &
-      status, message)
-    character(len=*), intent(in) :: argument, field, interval
-    integer, intent(in) :: slot, nx, ny, hx, hy
-    real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy), low, high
-    logical, intent(in) :: low_open
-    integer, intent(inout) :: status
-    character(len=*), intent(inout) :: message
-    character(len=400) :: text
-    character(len=40) :: index
-    integer :: ix, iy, pass
-    if (status /= 0) return
-    if (count(.not. (values >= low .and. values <= high)) == 0 .and. &
-        (.not. low_open .or. count(values == low) == 0)) return
-    do pass = 2, 3
-      do iy = 1 - hy, ny + hy
-        do ix = 1 - hx, nx + hx
-          if (pass == 2 .and. ieee_is_finite(values(ix, iy))) cycle
-          if (pass == 3 .and. values(ix, iy) >= low .and. values(ix, iy) <= high &
-              .and. .not. (low_open .and. values(ix, iy) == low)) cycle
-          status = pass
-          if (slot > 0) then
-            write (index, '("(", i0, ", ", i0, ", ", i0, ")")') ix, iy, slot
-            text = argument // trim(index) // ' (' // field // ')'
-          else
-            write (index, '("(", i0, ", ", i0, ")")') ix, iy
-            text = argument // trim(index)
-          end if
-          text = trim(text) // ' = ' // trim(boosted_number_text(values(ix, iy)))
-          if (pass == 2) then
-            message = trim(text) // ': not finite'
-          else
-            message = trim(text) // ': outside ' // trim(interval)
-          end if
-          return
-        end do
-      end do
-    end do
-  end subroutine boosted_check_values
-
-  ! Status 2 at the first non-finite value of a layer field (own columns and halo), else 3 at the
-  ! first outside [low, high] ((low, high] when low_open).
-  pure subroutine boosted_check_layer_values(name, values, nx, ny, nz, hx, hy, low, high, low_open, interval, &
-      status, message)
-    character(len=*), intent(in) :: name, interval
-    integer, intent(in) :: nx, ny, nz, hx, hy
-    real(real64), intent(in) :: values(1-hx:nx+hx, 1-hy:ny+hy, nz), low, high
-    logical, intent(in) :: low_open
-    integer, intent(inout) :: status
-    character(len=*), intent(inout) :: message
-    character(len=400) :: text
-    integer :: ix, iy, k, pass
-    if (status /= 0) return
-    if (count(.not. (values >= low .and. values <= high)) == 0 .and. &
-        (.not. low_open .or. count(values == low) == 0)) return
-    do pass = 2, 3
-      do k = 1, nz
-        do iy = 1 - hy, ny + hy
-          do ix = 1 - hx, nx + hx
-            if (pass == 2 .and. ieee_is_finite(values(ix, iy, k))) cycle
-            if (pass == 3 .and. values(ix, iy, k) >= low .and. values(ix, iy, k) <= high &
-                .and. .not. (low_open .and. values(ix, iy, k) == low)) cycle
-            status = pass
-            write (text, '(a, "(", i0, ", ", i0, ", ", i0, ") = ", a)') name, ix, iy, k, &
-                trim(boosted_number_text(values(ix, iy, k)))
-            if (pass == 2) then
-              message = trim(text) // ': not finite'
-            else
-              message = trim(text) // ': outside ' // interval
-            end if
-            return
-          end do
-        end do
-      end do
-    end do
-  end subroutine boosted_check_layer_values
 end module boosted_features
