@@ -178,6 +178,21 @@ def longwave_task_seed(seed, path):
     return int.from_bytes(hashlib.sha256(text.encode()).digest()[:7], "little")
 
 
+#: Largest solar zenith angle [degree] a jittered sun takes (the sun stays above the horizon).
+JITTERED_ZENITH_MAX = 89.0
+
+
+def jittered_zenith(seed, path, zenith, jitter):
+    """A solar zenith angle [degree, 3 decimals] drawn uniformly from the part of [zenith - jitter,
+    zenith + jitter] in [0, 89], by the run seed, the scene file's name and the nominal zenith:
+    each scene meets its own sun near every nominal one, the same in every run, on any number
+    of workers, so that a scene set covers the angles between the nominal ones."""
+    text = f"{seed}|{Path(path).name}|{zenith:.6f}|zenith"
+    fraction = int.from_bytes(hashlib.sha256(text.encode()).digest()[:7], "little") / 2.0**56
+    low, high = max(zenith - jitter, 0.0), min(zenith + jitter, JITTERED_ZENITH_MAX)
+    return round(low + (high - low) * fraction, 3)
+
+
 def drawn_azimuth(seed, path, zenith):
     """A beam azimuth [degree, 0-360, 3 decimals] drawn from the run seed, the scene file's
     name and the zenith angle: each scene and zenith gets its own direction, the same in
@@ -233,7 +248,8 @@ def _check_replaceable(path):
                           "(chattr -i) or move the file out of the archive")
 
 
-def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, lock=None, spectrum="shortwave"):
+def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, lock=None, spectrum="shortwave",
+               zenith_jitter=0.0):
     """Validate the archive and the sun geometries; list the tasks still to do.
 
     Results an interrupted run left pending are merged first, and the temporary files of
@@ -249,6 +265,9 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, l
     lock : surrogate3d.archive.locking.ArchiveLock, optional
         The archive's locks, the archive lock held by the caller (default: held here, shared,
         for the planning).
+    zenith_jitter : float
+        Each scene's sun near every nominal zenith at :func:`jittered_zenith` [degree]; 0: the
+        nominal zeniths.
 
     Returns
     -------
@@ -276,7 +295,7 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, l
     if lock is None:
         with ArchiveLock(archive_dir) as own:
             own.hold_archive(exclusive=False, what="planning")
-            return plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite, own, spectrum)
+            return plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite, own, spectrum, zenith_jitter)
     remove_leftovers(archive_dir, lock)
     todo, done = [], 0
     for path in files:
@@ -288,6 +307,8 @@ def plan_tasks(archive_dir, zeniths, azimuths, solvers, seed, overwrite=False, l
         stored = read_result_flags(path)
         tasks = []
         for zenith, azimuth in suns:
+            if zenith_jitter > 0.0:
+                zenith = jittered_zenith(seed, path, zenith, zenith_jitter)
             if drawn:
                 azimuth = drawn_azimuth(seed, path, zenith)
             tseed = task_seed(seed, path, zenith, azimuth)
@@ -441,7 +462,7 @@ def _workers(options, n_jobs, scheduler, n_tasks):
 
 def simulate_archive(archive_dir, zeniths=None, azimuths=(0.0,), *, solvers=SOLVERS, spectrum="shortwave",
                      photons=SIMULATE_PHOTONS, seed=0, n_jobs=1, scheduler=None, overwrite=False, quiet=False,
-                     **solver_options):
+                     zenith_jitter=0.0, **solver_options):
     """Run the benchmark solvers on every scene of an archive and store the results.
 
     Several runs may fill one archive at the same time: they share the work (see the
@@ -456,6 +477,10 @@ def simulate_archive(archive_dir, zeniths=None, azimuths=(0.0,), *, solvers=SOLV
         (shortwave only: not needed with ``spectrum="longwave"``).
         ``azimuths="random"`` gives every scene and zenith one beam azimuth of its own
         (:func:`drawn_azimuth`), so that a scene set meets the sun from all sides.
+    zenith_jitter : float
+        [degree, 0-45]: every scene's sun near each zenith at its own angle within this of it
+        (:func:`jittered_zenith`), so that a scene set covers the angles between the given
+        ones; 0 (default): the given zeniths.
     solvers : sequence of str
         Solver kinds among ``full_3d``, ``independent_column``, ``two_stream``; a longwave
         spectrum runs their longwave counterparts ``longwave_<solver>``.
@@ -499,12 +524,14 @@ def simulate_archive(archive_dir, zeniths=None, azimuths=(0.0,), *, solvers=SOLV
     """
     options, n_jobs = check_run_options(photons, n_jobs, solver_options)
     seed = check_monte_carlo_options(seed=seed)["seed"]
+    zenith_jitter = check_number("zenith_jitter", zenith_jitter, 0.0, 45.0)
     if scheduler:
         scheduler = check_scheduler(scheduler)
     archive_dir = _check_archive_dir(archive_dir)
     with ArchiveLock(archive_dir) as lock:
         lock.hold_archive(exclusive=overwrite, what="simulate --overwrite" if overwrite else "simulate")
-        todo, done = plan_tasks(archive_dir, zeniths, azimuths, list(solvers), seed, overwrite, lock, spectrum)
+        todo, done = plan_tasks(archive_dir, zeniths, azimuths, list(solvers), seed, overwrite, lock, spectrum,
+                                zenith_jitter)
         counts = {"computed": 0, "skipped": done, "by_other_runs": 0, "scenes": len({t.path for t in todo})}
         if todo:
             _run(todo, _workers(options, n_jobs, scheduler, len(todo)), lock, overwrite, quiet, counts)

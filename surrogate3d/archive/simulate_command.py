@@ -10,7 +10,7 @@ FLAGS = {"photons": "--photons", "seed": "--seed", "n_jobs": "--jobs", "batch_si
          "solar_constant": "--solar-constant",
          "solar_zenith_angle": "--zenith", "solar_beam_azimuth": "--azimuth", "scheduler": "--scheduler",
          "solvers": "--solvers", "spectrum": "--spectrum", "longwave_resolution": "--longwave-resolution",
-         "longwave_boundary_rays": "--longwave-boundary-rays"}
+         "longwave_boundary_rays": "--longwave-boundary-rays", "zenith_jitter": "--zenith-jitter"}
 
 
 def register(sub):
@@ -28,6 +28,10 @@ def register(sub):
     p.add_argument("--azimuth", type=float, nargs="+", default=[0.0], metavar="DEG",
                    help="directions of travel of the direct beam in degrees, counterclockwise from +x, "
                         "0 <= azimuth < 360 (default: 0)")
+    p.add_argument("--zenith-jitter", type=float, default=0.0, metavar="DEG",
+                   help="every scene's sun near each --zenith at its own angle within DEG of it (0-45), drawn "
+                        "from the run seed and the scene's file name, so that a scene set covers the angles "
+                        "between the given ones (default: 0, the given angles)")
     p.add_argument("--random-azimuth", action="store_true",
                    help="instead of --azimuth, one beam azimuth per scene and zenith, drawn from the run seed "
                         "and the scene's file name")
@@ -83,6 +87,7 @@ def run(args):
     _check_azimuths(args.azimuth)
     summary = simulate_archive(
         args.archive_dir, args.zenith, "random" if args.random_azimuth else args.azimuth, solvers=args.solvers,
+        zenith_jitter=args.zenith_jitter,
         spectrum=args.spectrum, photons=args.photons, seed=args.seed,
         n_jobs=args.jobs, scheduler=args.scheduler, overwrite=args.overwrite, quiet=args.quiet,
         batch_size=args.batch_size, batches=args.batches, rays_per_column=args.rays_per_column, threads=args.threads,

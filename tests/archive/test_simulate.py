@@ -166,6 +166,32 @@ def test_console_script_exit_status(archive):
     assert proc.stderr.count("\n") == 1 and "does not exist" in proc.stderr
 
 
+def test_jittered_zeniths_cover_the_angles_between_the_given_ones_and_resume(tmp_path):
+    from surrogate3d.archive.simulate import jittered_zenith, plan_tasks
+
+    for k in range(6):
+        write_scene(generate_scene("scattered_cumulus", k, nx=6, ny=6, nz=4), tmp_path / f"s{k}.nc")
+    todo, _ = plan_tasks(tmp_path, [10.0, 80.0], "random", ["two_stream"], seed=4, zenith_jitter=15.0)
+    zeniths = {(Path(t.path).name, round(t.solar_zenith_angle)): t.solar_zenith_angle for t in todo}
+    # Every scene has its own angle near each given one, within the jitter and above the horizon,
+    # the same when planned again; the azimuth is drawn for the jittered angle.
+    assert len(todo) == 12 and len(set(zeniths.values())) == 12
+    assert all(0.0 <= z <= 25.0 or 65.0 <= z <= 89.0 for z in zeniths.values())
+    assert jittered_zenith(4, "s0.nc", 10.0, 15.0) == next(t.solar_zenith_angle for t in todo
+                                                          if t.path.endswith("s0.nc") and t.solar_zenith_angle < 45)
+    assert jittered_zenith(4, "s0.nc", 80.0, 45.0) <= 89.0 and jittered_zenith(4, "s0.nc", 1.0, 45.0) >= 0.0
+    again, _ = plan_tasks(tmp_path, [10.0, 80.0], "random", ["two_stream"], seed=4, zenith_jitter=15.0)
+    assert [(t.solar_zenith_angle, t.solar_beam_azimuth) for t in again] == \
+        [(t.solar_zenith_angle, t.solar_beam_azimuth) for t in todo]
+    # Stored results at the jittered angles are found again: a second run computes nothing.
+    assert simulate_archive(tmp_path, [10.0, 80.0], "random", solvers=["two_stream"], seed=4, zenith_jitter=15.0,
+                            quiet=True)["computed"] == 12
+    assert simulate_archive(tmp_path, [10.0, 80.0], "random", solvers=["two_stream"], seed=4, zenith_jitter=15.0,
+                            quiet=True)["skipped"] == 12
+    with pytest.raises(ParameterError, match="zenith_jitter"):
+        simulate_archive(tmp_path, [10.0], solvers=["two_stream"], zenith_jitter=50.0, quiet=True)
+
+
 def test_random_azimuths_are_drawn_per_scene_and_zenith_and_stable(tmp_path):
     from surrogate3d.archive.simulate import drawn_azimuth, plan_tasks
 
