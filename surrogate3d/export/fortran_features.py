@@ -633,17 +633,23 @@ def _columns(recipe, column_names):
         radii = recipe.parameters["neighbour_radii"] if FEATURES[feature].per_radius else [None]
         for radius in radii:
             made[column_name(feature, radius)] = (feature, None if radius is None else float(radius))
+    names = _checked_column_names(column_names, made, f"which recipe {recipe.name!r} does not make; its columns")
+    return [(name, *made[name]) for name in names]
+
+
+def _checked_column_names(column_names, known, unknown_text):
+    """The requested feature columns as a list: ValidationError if there are none, if one is not in
+    ``known`` (``unknown_text`` says why, the known ones follow) or if one is listed twice."""
     names = list(column_names)
     if not names:
         raise ValidationError("column_names is empty: a features module needs at least one feature column")
-    unknown = [name for name in names if name not in made]
+    unknown = [name for name in names if name not in known]
     if unknown:
-        raise ValidationError(f"column_names has {unknown}, which recipe {recipe.name!r} does not make; its columns: "
-                              f"{', '.join(made)}")
+        raise ValidationError(f"column_names has {unknown}, {unknown_text}: {', '.join(known)}")
     twice = sorted({name for name in names if names.count(name) > 1})
     if twice:
         raise ValidationError(f"column_names lists {twice} more than once")
-    return [(name, *made[name]) for name in names]
+    return names
 
 
 def _slant_generator(features):
@@ -691,15 +697,17 @@ def _helpers_of(features):
     return needed
 
 
-def _with_dependencies(names):
-    """The helpers and those they call, in the order of :data:`_HELPERS`."""
+def _with_dependencies(names, helpers=None):
+    """The helpers and those they call, in the order of ``helpers`` (name -> (text, helpers it
+    calls); default :data:`_HELPERS`)."""
+    helpers = _HELPERS if helpers is None else helpers
     closed, pending = set(), list(names)
     while pending:
         name = pending.pop()
         if name not in closed:
             closed.add(name)
-            pending.extend(_HELPERS[name][1])
-    return [name for name in _HELPERS if name in closed]
+            pending.extend(helpers[name][1])
+    return [name for name in helpers if name in closed]
 
 
 def _names_parameter(name, values):

@@ -58,7 +58,8 @@ from ..baselines.effective_cloud_fraction import _MU, _MU_WEIGHTS, STAIRCASE_FAC
 from ..errors import ValidationError
 from ..pairs import features as library
 from ..pairs.longwave_features import LONGWAVE_FEATURES, LONGWAVE_TARGETS, NEIGHBOUR_RADII
-from .fortran_features import _HELPERS, _LINE_LIMIT, _check_prefix, _fit, _names_parameter, _real, _text
+from .fortran_features import (_HELPERS, _LINE_LIMIT, _check_prefix, _checked_column_names, _fit, _names_parameter,
+                               _real, _text, _with_dependencies)
 
 #: Window column name -> radius [m].
 _WINDOWS = {library.column_name("neighbour_mean_cloud_fraction", r): float(r) for r in NEIGHBOUR_RADII}
@@ -231,32 +232,12 @@ _LONGWAVE_HELPERS = {
 }
 
 
-def _helper(name):
-    return (_LONGWAVE_HELPERS.get(name) or _HELPERS[name])
-
-
-def _with_dependencies(names):
-    closed, pending = set(), list(names)
-    while pending:
-        name = pending.pop()
-        if name not in closed:
-            closed.add(name)
-            pending.extend(_helper(name)[1])
-    return [name for name in (*_HELPERS, *_LONGWAVE_HELPERS) if name in closed]
+#: Every procedure a longwave features module may use: the shared ones, then its own.
+_ALL_HELPERS = {**_HELPERS, **_LONGWAVE_HELPERS}
 
 
 def _columns(column_names):
-    names = list(column_names)
-    if not names:
-        raise ValidationError("column_names is empty: a features module needs at least one feature column")
-    unknown = [name for name in names if name not in LONGWAVE_FEATURES]
-    if unknown:
-        raise ValidationError(f"column_names has {unknown}, which are no longwave features; known: "
-                              f"{', '.join(LONGWAVE_FEATURES)}")
-    twice = sorted({name for name in names if names.count(name) > 1})
-    if twice:
-        raise ValidationError(f"column_names lists {twice} more than once")
-    return names
+    return _checked_column_names(column_names, LONGWAVE_FEATURES, "which are no longwave features; known")
 
 
 def _reals(name, values):
@@ -499,7 +480,7 @@ def longwave_features_module_text(prefix, recipe, column_names):
     end do
   end subroutine {p}_host_features
 """]
-    body += [_helper(name)[0].format(p=p) for name in _with_dependencies(helpers)]
+    body += [_ALL_HELPERS[name][0].format(p=p) for name in _with_dependencies(helpers, _ALL_HELPERS)]
     text = "\n".join(body) + f"end module {p}_features\n"
     text = "".join(_fit(line) + "\n" for line in text.splitlines())
     long = [line for line in text.splitlines() if len(line) >= _LINE_LIMIT]

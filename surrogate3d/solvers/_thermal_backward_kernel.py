@@ -44,7 +44,7 @@ from numba import njit, prange
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
 from ._thermal_kernel import _search, table_radiance
-from ._transport import cross_side, hg_cosine, lambertian_up, random_azimuth, rotate
+from ._transport import cross_side, hg_cosine, lambertian_up, next_face, random_azimuth, rotate
 
 #: The fluxes a batch estimates per column, in order.
 TARGETS = ("surface_downward_flux", "toa_upward_flux")
@@ -83,18 +83,7 @@ def ray_radiance(state, n, x, y, z, ux, uy, uz, ix, iy, iz, b_ref, full_3d, roul
     tau = -math.log(uniform_open(state))
     events = 0
     while True:
-        tz = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) / uz
-        t, axis = tz, 2
-        if full_3d:
-            if ux != 0.0:
-                tx = ((ix + 1) * dx - x if ux > 0.0 else ix * dx - x) / ux
-                if tx < t:
-                    t, axis = tx, 0
-            if uy != 0.0:
-                ty = ((iy + 1) * dy - y if uy > 0.0 else iy * dy - y) / uy
-                if ty < t:
-                    t, axis = ty, 1
-        t = max(t, 0.0)
+        t, axis = next_face(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge, full_3d)
         props = cloud[iz, iy, ix]
         k_abs = gas[iz] + props[0]
         k_sca = props[1]

@@ -45,7 +45,7 @@ from numba import njit, prange
 
 from ._kernel import KERNEL
 from ._rng import seed_stream, uniform, uniform_open
-from ._transport import _next_above, cross_side, hg_cosine, lambertian_up, random_azimuth, rotate
+from ._transport import _next_above, cross_side, hg_cosine, lambertian_up, next_face, random_azimuth, rotate
 
 ARRIVAL, LEAVING, SURFACE_NET, SPACE_NET, ATMOSPHERE_NET = range(5)
 #: The column tallies of a batch, in order.
@@ -409,18 +409,7 @@ def trace(state, n, w, x, y, z, ux, uy, uz, ix, iy, iz, ekind, ez, ey, ex, b_emi
     tau = -math.log(uniform_open(state))
     events = 0
     while True:
-        tz = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) / uz
-        t, axis = tz, 2
-        if full_3d:
-            if ux != 0.0:
-                tx = ((ix + 1) * dx - x if ux > 0.0 else ix * dx - x) / ux
-                if tx < t:
-                    t, axis = tx, 0
-            if uy != 0.0:
-                ty = ((iy + 1) * dy - y if uy > 0.0 else iy * dy - y) / uy
-                if ty < t:
-                    t, axis = ty, 1
-        t = max(t, 0.0)
+        t, axis = next_face(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge, full_3d)
         props = cloud[iz, iy, ix]
         k_abs = gas[iz] + props[0]
         k_sca = props[1]

@@ -188,6 +188,25 @@ def _surface(state, w, b, iy, ix, thresh, alb, col):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def next_face(x, y, z, ux, uy, uz, ix, iy, iz, dx, dy, z_edge, full_3d):
+    """Distance [m] to the face of cell ``(iz, iy, ix)`` a flight in direction ``u`` reaches first,
+    and its axis (0: x, 1: y, 2: z; only z when not ``full_3d``), at least 0 (the cell-by-cell
+    walks of the thermal kernels)."""
+    t = ((z_edge[iz + 1] if uz > 0.0 else z_edge[iz]) - z) / uz
+    axis = 2
+    if full_3d:
+        if ux != 0.0:
+            tx = ((ix + 1) * dx - x if ux > 0.0 else ix * dx - x) / ux
+            if tx < t:
+                t, axis = tx, 0
+        if uy != 0.0:
+            ty = ((iy + 1) * dy - y if uy > 0.0 else iy * dy - y) / uy
+            if ty < t:
+                t, axis = ty, 1
+    return max(t, 0.0), axis
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def cross_side(axis, t, x, y, z, ux, uy, uz, ix, iy, nx, ny, dx, dy):
     """Fly ``t`` [m] to the x (``axis`` 0) or y (1) face of the cell and into the next column of
     the periodic grid: ``(x, y, z, ix, iy)`` after the crossing, the position set exactly on
