@@ -12,7 +12,7 @@ import matplotlib
 import numpy as np
 from matplotlib.figure import Figure
 
-from .predictions import NO_CORRECTION
+from .predictions import DIRECT_BEAM_PRIOR, NO_CORRECTION
 
 #: Our plain style: light grid, no top/right frame, small type.
 STYLE = {
@@ -31,12 +31,12 @@ TARGET_LABELS = {
     "atmosphere_absorption": "atmospheric absorption",
 }
 _FIXED_COLOURS = {NO_CORRECTION: "#8a8a8a", "tilted independent column": "#d98b2b",
-                  "non-local independent pixel": "#8c62b8"}
+                  "non-local independent pixel": "#8c62b8", DIRECT_BEAM_PRIOR: "#d66fa0"}
 _MODEL_COLOURS = ("#1d5fa6", "#2a9a5a", "#c23b32", "#1a9bb0", "#9b7b12")
 
 
 def predictor_colours(names):
-    """A fixed colour for every predictor name (references grey/orange/purple, models distinct)."""
+    """A fixed colour for every predictor name (references grey/orange/purple/pink, models distinct)."""
     colours, k = {}, 0
     for name in names:
         if name in _FIXED_COLOURS:

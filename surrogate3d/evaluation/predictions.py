@@ -1,7 +1,8 @@
 """The corrections every predictor makes on an evaluation set.
 
-The reference predictors are no correction (the independent column itself) and the two
-published simple corrections stored in the pairs table; learned models predict from
+The reference predictors are no correction (the independent column itself), the two
+published simple corrections stored in the pairs table and, where the table has it as a
+feature, the host's own direct-beam prior; learned models predict from
 the table's features and, by default, go through
 :func:`surrogate3d.learn.consistency.apply_correction` as they would in a host model.
 """
@@ -14,6 +15,10 @@ from ..core.data_model import BASELINES, LONGWAVE_BASELINES
 from ..learn.pairs_table import domain_groups, target_matrix
 
 NO_CORRECTION = "no correction"
+#: The direct-beam prior as a predictor (``docs/features.md``, "The direct-beam prior").
+DIRECT_BEAM_PRIOR = "direct-beam prior"
+_PRIOR_FEATURE = "direct_beam_prior_slant_minus_vertical"
+_PRIOR_TARGETS = ("surface_downward_flux", "surface_downward_direct_flux")
 _BALANCE_TARGETS = ("surface_downward_flux", "toa_upward_flux", "atmosphere_absorption")
 
 
@@ -25,12 +30,19 @@ def reference_predictions(pairs, targets):
     dict of str -> ndarray
         ``"no correction"`` (zeros), ``"tilted independent column"``, ``"non-local independent pixel"``;
         for a longwave table ``"effective cloud fraction"`` (:mod:`surrogate3d.baselines.effective_cloud_fraction`)
-        when the table has it.
+        when the table has it; ``"direct-beam prior"`` when the table has the feature
+        ``direct_beam_prior_slant_minus_vertical``: that prior direct correction for the
+        direct and the total surface flux, nothing for the other targets (what a host gets
+        by using the prior alone, the diffuse flux unchanged).
     """
     out = {NO_CORRECTION: np.zeros((pairs.sizes["sample"], len(targets)))}
     for baseline in (*BASELINES.values(), *LONGWAVE_BASELINES.values()):
         if baseline.variable in pairs:
             out[baseline.label] = target_matrix(pairs, targets, baseline.variable)
+    if "feature" in pairs.coords and _PRIOR_FEATURE in pairs["feature"].values:
+        prior = np.asarray(pairs["features"].sel(feature=_PRIOR_FEATURE).values, dtype=np.float64)
+        out[DIRECT_BEAM_PRIOR] = np.column_stack([prior if t in _PRIOR_TARGETS else np.zeros_like(prior)
+                                                  for t in targets]).reshape(prior.size, len(targets))
     return out
 
 

@@ -165,7 +165,8 @@ def evaluate(model_dir, pairs_path, *, consistency=True, learning_curve_points=4
                 else "")
              + (", against no correction (the independent column) and the effective cloud fraction of broken clouds "
                 "(after Killen and Ellingson 1994, docs/methods/longwave.md) on the same samples" if longwave
-                else ", against no correction and the two published baselines on the same samples")
+                else ", against no correction, the two published baselines and the direct-beam prior (where the "
+                "pairs have it) on the same samples")
              + ". Pairs file "
              f"<code>{html.escape(str(pairs_path))}</code>"
              f"{' (the training file)' if matches else ' (not the training file)'}. "

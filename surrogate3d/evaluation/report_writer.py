@@ -194,6 +194,9 @@ noise-free 3D flux, for errors independent of the benchmark noise (held-out scen
 uses it with sqrt(max(mean(<i>t</i>&sup2;) &minus; mean(<i>s</i>&sup2;), 0)) as reference.</li>
 <li>W m-2 values multiply <i>e</i>, <i>t</i> and <i>s</i> sample by sample by the incident flux
 S0 cos(&theta;0).</li>
+<li>direct-beam prior: the host's slant-path direct transmittance minus the same formula along the vertical
+(feature <code>direct_beam_prior_slant_minus_vertical</code>, docs/features.md) used as the correction of the
+direct and total surface flux, the other targets uncorrected.</li>
 <li>Training envelope: a column is flagged when a feature lies outside its training range or its Mahalanobis
 distance from the model's training columns exceeds the distance 99 % of them stay within; a column the
 clear-sky gate selects never is. Flagged columns are corrected like the others.</li>

@@ -213,7 +213,8 @@ def score(source, pairs_path, *, consistency=True, importance_repeats=3, seed=0,
         compared = ("against no correction and the effective cloud fraction of broken clouds (longwave: targets and "
                     "errors in W m-2, scored as predicted). ")
     else:
-        compared = ("against no correction and the two published baselines on the same samples. "
+        compared = ("against no correction, the two published baselines and the direct-beam prior (where the pairs "
+                    "have it) on the same samples. "
                     + ("Learned corrections are scored after the consistency step (non-negative fluxes, direct + "
                        "diffuse = total, energy balance per domain). " if consistency
                        else "Learned corrections are scored as predicted (no consistency step). "))

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from surrogate3d.evaluation.predictions import model_correction
+from surrogate3d.evaluation.predictions import DIRECT_BEAM_PRIOR, model_correction, reference_predictions
 from surrogate3d.evaluation.scored_model import ScoredModel
 from surrogate3d.learn.consistency import energy_residual
 from surrogate3d.learn.models import RidgeCorrection
@@ -22,3 +22,21 @@ def test_gated_columns_stay_zero_after_the_consistency_step(synthetic_pairs):
     groups = domain_groups(synthetic_pairs)
     residual = energy_residual(correction, synthetic_pairs["surface_albedo"].values)
     assert np.abs(np.bincount(groups, weights=residual) / np.bincount(groups)).max() < 1e-15
+
+
+def test_the_direct_beam_prior_corrects_the_direct_and_total_flux_alone(synthetic_pairs):
+    # A host using the prior alone replaces its direct flux by the prior's and keeps its
+    # diffuse flux (direct + diffuse = total, common practice), so the prior's row moves the
+    # direct and the total surface flux by the same amount and nothing else.
+    assert DIRECT_BEAM_PRIOR not in reference_predictions(synthetic_pairs, TARGETS)
+    n = synthetic_pairs.sizes["sample"]
+    prior = np.linspace(-0.3, 0.2, n)
+    features = np.column_stack([synthetic_pairs["features"].values, prior])
+    names = [*synthetic_pairs["feature"].values, "direct_beam_prior_slant_minus_vertical"]
+    pairs = synthetic_pairs.drop_vars(["features", "feature"]).assign(
+        features=(("sample", "feature"), features)).assign_coords(feature=names)
+    row = reference_predictions(pairs, TARGETS)[DIRECT_BEAM_PRIOR]
+    assert row.shape == (n, len(TARGETS))
+    for k, target in enumerate(TARGETS):
+        expected = prior if target in ("surface_downward_flux", "surface_downward_direct_flux") else 0.0
+        assert np.array_equal(row[:, k], np.broadcast_to(expected, n)), target
