@@ -8,7 +8,7 @@ module boosted_correction
   implicit none
   private
 
-  integer, parameter, public :: boosted_n_features = 21
+  integer, parameter, public :: boosted_n_features = 20
   integer, parameter, public :: boosted_n_targets = 4
   character(len=45), parameter, public :: boosted_feature_names(boosted_n_features) = [character(len=45) :: &
        "cloud_fraction", &
@@ -25,7 +25,6 @@ module boosted_correction
        "host_longwave_toa_upward_flux", &
        "host_longwave_atmosphere_net_absorption", &
        "host_longwave_surface_net_absorption", &
-       "surface_temperature", &
        "surface_longwave_emissivity", &
        "host_longwave_clear_sky_surface_downward_flux", &
        "effective_cloud_fraction_prior", &

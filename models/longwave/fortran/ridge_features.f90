@@ -26,7 +26,7 @@ module ridge_features
   private
   public :: ridge_n_host_features, ridge_column_names, ridge_halo_needed, ridge_host_features
 
-  integer, parameter :: ridge_n_host_features = 21
+  integer, parameter :: ridge_n_host_features = 20
   character(len=45), parameter :: ridge_column_names(*) = [character(len=45) :: &
        "cloud_fraction", &
        "cloud_base_height", &
@@ -42,7 +42,6 @@ module ridge_features
        "host_longwave_toa_upward_flux", &
        "host_longwave_atmosphere_net_absorption", &
        "host_longwave_surface_net_absorption", &
-       "surface_temperature", &
        "surface_longwave_emissivity", &
        "host_longwave_clear_sky_surface_downward_flux", &
        "effective_cloud_fraction_prior", &
@@ -116,7 +115,7 @@ contains
     logical, parameter :: reads_total_cloud_fraction = .true.
     logical, parameter :: reads_cloud_edge_length = .true.
     logical, parameter :: reads_liquid_water_path = .true.
-    logical, parameter :: reads_surface_temperature = .true.
+    logical, parameter :: reads_surface_temperature = .false.
     logical, parameter :: reads_surface_longwave_emissivity = .true.
     logical, parameter :: reads_clear_sky_fluxes_1 = .true.
     logical, parameter :: reads_clear_sky_fluxes_2 = .true.
@@ -276,20 +275,18 @@ contains
         features(13, i) = longwave_fluxes(ix, iy, 4)
         ! host_longwave_surface_net_absorption
         features(14, i) = longwave_fluxes(ix, iy, 5)
-        ! surface_temperature
-        features(15, i) = surface_temperature(ix, iy)
         ! surface_longwave_emissivity
-        features(16, i) = surface_longwave_emissivity(ix, iy)
+        features(15, i) = surface_longwave_emissivity(ix, iy)
         ! host_longwave_clear_sky_surface_downward_flux
-        features(17, i) = clear_sky_fluxes(ix, iy, 1)
+        features(16, i) = clear_sky_fluxes(ix, iy, 1)
         ! effective_cloud_fraction_prior
-        features(18, i) = surface_prior
+        features(17, i) = surface_prior
         ! host_longwave_clear_sky_toa_upward_flux
-        features(19, i) = clear_sky_fluxes(ix, iy, 2)
+        features(18, i) = clear_sky_fluxes(ix, iy, 2)
         ! effective_cloud_fraction_toa_prior
-        features(20, i) = toa_prior
+        features(19, i) = toa_prior
         ! effective_cloud_fraction_atmosphere_prior
-        features(21, i) = -(toa_prior + surface_longwave_emissivity(ix, iy) * surface_prior)
+        features(20, i) = -(toa_prior + surface_longwave_emissivity(ix, iy) * surface_prior)
       end do
     end do
   end subroutine ridge_host_features
