@@ -41,8 +41,11 @@ def reference_predictions(pairs, targets):
             out[baseline.label] = target_matrix(pairs, targets, baseline.variable)
     if "feature" in pairs.coords and _PRIOR_FEATURE in pairs["feature"].values:
         prior = np.asarray(pairs["features"].sel(feature=_PRIOR_FEATURE).values, dtype=np.float64)
-        out[DIRECT_BEAM_PRIOR] = np.column_stack([prior if t in _PRIOR_TARGETS else np.zeros_like(prior)
-                                                  for t in targets]).reshape(prior.size, len(targets))
+        row = np.zeros((prior.size, len(targets)))
+        for k, target in enumerate(targets):
+            if target in _PRIOR_TARGETS:
+                row[:, k] = prior
+        out[DIRECT_BEAM_PRIOR] = row
     return out
 
 
