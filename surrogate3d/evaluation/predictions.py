@@ -49,6 +49,12 @@ def reference_predictions(pairs, targets):
     return out
 
 
+def corrects(predictor, target):
+    """Whether a reference predictor corrects a target at all (the direct-beam prior leaves
+    all but the direct and total surface flux alone; their rows equal no correction)."""
+    return predictor != DIRECT_BEAM_PRIOR or target in _PRIOR_TARGETS
+
+
 def raw_correction(model, pairs, targets):
     """A learned model's correction as predicted, and its clear-sky gate, on every sample.
 

@@ -25,6 +25,7 @@ def register(sub):
 def run(args):
     from ..core.validation import check_integer
     from .metrics import HEADLINE_UNITS
+    from .predictions import corrects
     from .report_writer import write_report
     from .scoring import SCORED, score
 
@@ -39,7 +40,8 @@ def run(args):
     rows = table[(table["breakdown"] == "all") & (table["units"] == HEADLINE_UNITS)]
     print(f"skill on the {SCORED} (RMSE in W m-2):")
     for target, part in rows.groupby("target", sort=False):
-        cells = ", ".join(f"{r.predictor} {r.skill:.2f} ({r.rmse:.1f})" for r in part.itertuples())
+        cells = ", ".join(f"{r.predictor} {r.skill:.2f} ({r.rmse:.1f})" for r in part.itertuples()
+                          if corrects(r.predictor, target))
         print(f"  {target}: {cells}")
     for name, check in evaluation.sets[0].envelope.items():
         if check.available:

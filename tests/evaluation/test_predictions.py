@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from surrogate3d.evaluation.predictions import DIRECT_BEAM_PRIOR, model_correction, reference_predictions
+from surrogate3d.evaluation.predictions import DIRECT_BEAM_PRIOR, corrects, model_correction, reference_predictions
 from surrogate3d.evaluation.scored_model import ScoredModel
 from surrogate3d.learn.consistency import energy_residual
 from surrogate3d.learn.models import RidgeCorrection
@@ -40,3 +40,10 @@ def test_the_direct_beam_prior_corrects_the_direct_and_total_flux_alone(syntheti
     for k, target in enumerate(TARGETS):
         expected = prior if target in ("surface_downward_flux", "surface_downward_direct_flux") else 0.0
         assert np.array_equal(row[:, k], np.broadcast_to(expected, n)), target
+
+
+def test_only_the_direct_beam_prior_skips_the_targets_it_leaves_alone():
+    assert corrects(DIRECT_BEAM_PRIOR, "surface_downward_direct_flux")
+    assert corrects(DIRECT_BEAM_PRIOR, "surface_downward_flux")
+    assert not corrects(DIRECT_BEAM_PRIOR, "toa_upward_flux")
+    assert all(corrects("tilted independent column", t) for t in TARGETS)
