@@ -29,7 +29,7 @@ def register(sub):
 def run(args):
     from .._outputs import check_output_directory, staged_directory
     from ..core.validation import check_integer
-    from .predictions import corrects
+    from .predictions import skill_lines
     from .report import HELD_OUT, evaluate, write_report
 
     for name in ("learning_curve_points", "importance_repeats", "map_scenes", "seed"):
@@ -45,8 +45,5 @@ def run(args):
     table = evaluation.table
     rows = table[(table["evaluation_set"] == HELD_OUT) & (table["breakdown"] == "all") & (table["units"] == "W m-2")]
     print(f"skill on {HELD_OUT} (RMSE in W m-2):")
-    for target, part in rows.groupby("target", sort=False):
-        cells = ", ".join(f"{r.predictor} {r.skill:.2f} ({r.rmse:.1f})" for r in part.itertuples()
-                          if corrects(r.predictor, target))
-        print(f"  {target}: {cells}")
+    print("\n".join(skill_lines(rows)))
     print(f"wrote {page}")

@@ -55,6 +55,17 @@ def corrects(predictor, target):
     return predictor != DIRECT_BEAM_PRIOR or target in _PRIOR_TARGETS
 
 
+def skill_lines(rows):
+    """Console lines ``  target: predictor skill (rmse), ...`` of a metric table's rows, leaving out
+    reference predictors where they correct nothing (:func:`corrects`)."""
+    lines = []
+    for target, part in rows.groupby("target", sort=False):
+        cells = ", ".join(f"{r.predictor} {r.skill:.2f} ({r.rmse:.1f})" for r in part.itertuples()
+                          if corrects(r.predictor, target))
+        lines.append(f"  {target}: {cells}")
+    return lines
+
+
 def raw_correction(model, pairs, targets):
     """A learned model's correction as predicted, and its clear-sky gate, on every sample.
 

@@ -25,7 +25,7 @@ def register(sub):
 def run(args):
     from ..core.validation import check_integer
     from .metrics import HEADLINE_UNITS
-    from .predictions import corrects
+    from .predictions import skill_lines
     from .report_writer import write_report
     from .scoring import SCORED, score
 
@@ -39,10 +39,7 @@ def run(args):
     table = evaluation.table
     rows = table[(table["breakdown"] == "all") & (table["units"] == HEADLINE_UNITS)]
     print(f"skill on the {SCORED} (RMSE in W m-2):")
-    for target, part in rows.groupby("target", sort=False):
-        cells = ", ".join(f"{r.predictor} {r.skill:.2f} ({r.rmse:.1f})" for r in part.itertuples()
-                          if corrects(r.predictor, target))
-        print(f"  {target}: {cells}")
+    print("\n".join(skill_lines(rows)))
     for name, check in evaluation.sets[0].envelope.items():
         if check.available:
             print(f"  {name}: {check.n_outside} of {check.outside.size} columns outside the training envelope")
