@@ -25,6 +25,20 @@ def _matrix(path, skip_header):
     return np.array([[float(v) for v in row.split()] for row in rows if row.strip()])
 
 
+def _same_as_generated(path, key, text):
+    """Whether a committed file equals what the generator makes now.
+
+    The sample corrections are computed by the numpy runtime, whose exp, log and power may
+    change in their last bit between numpy releases (seen with numpy 2.4): those files are
+    compared as numbers to 1e-12, everything else as text.
+    """
+    if key != "sample_corrections":
+        return path.read_text() == text
+    committed = _matrix(path, skip_header=False)
+    regenerated = np.array([[float(v) for v in row.split()] for row in text.splitlines() if row.strip()])
+    return committed.shape == regenerated.shape and np.allclose(committed, regenerated, rtol=1e-12, atol=1e-15)
+
+
 @pytest.mark.parametrize("name", sorted(LIMITS))
 def test_shipped_model_reproduces_its_sample_corrections(name):
     model = load_coefficients(SHIPPED / f"{name}.coefficients.json")
@@ -40,7 +54,7 @@ def test_shipped_fortran_is_what_the_generator_makes(name):
     # host model building them would run code the tests no longer check.
     for key, (file_name, text) in regenerated_fortran(SHIPPED / f"{name}.coefficients.json",
                                                       SHIPPED / "fortran").items():
-        assert (SHIPPED / "fortran" / file_name).read_text() == text, (
+        assert _same_as_generated(SHIPPED / "fortran" / file_name, key, text), (
             f"models/default/fortran/{file_name} ({key}) differs from the generator's; refresh it with "
             f"surrogate3d.export.refresh_fortran (models/README.md)")
 
@@ -103,7 +117,7 @@ def test_shipped_longwave_model_reproduces_its_sample_and_fits_its_limits(name):
         assert (LONGWAVE / f"{name}.coefficients{suffix}").stat().st_size <= LIMITS[name]
     for key, (file_name, text) in regenerated_fortran(LONGWAVE / f"{name}.coefficients.json",
                                                       LONGWAVE / "fortran").items():
-        assert (LONGWAVE / "fortran" / file_name).read_text() == text, (
+        assert _same_as_generated(LONGWAVE / "fortran" / file_name, key, text), (
             f"models/longwave/fortran/{file_name} ({key}) differs from the generator's (models/README.md)")
 
 
