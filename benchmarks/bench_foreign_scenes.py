@@ -60,7 +60,10 @@ DOMAIN = 20000.0
 CELL, QUICK_CELL = 100.0, 250.0
 QUICK_PHOTONS = 20000
 ZENITHS = ("10", "35", "55", "75")
-DEFAULT_MODELS = ("models/default/boosted.coefficients.json", "models/default/ridge.coefficients.json")
+REPOSITORY = Path(__file__).resolve().parents[1]
+RECIPE = REPOSITORY / "training" / "features.toml"
+DEFAULT_MODELS = tuple(str(REPOSITORY / "models" / "default" / f"{name}.coefficients.json")
+                       for name in ("boosted", "ridge"))
 BASELINES = ("tilted independent column", "non-local independent pixel", "direct-beam prior")
 TARGET_LABELS = {"surface_downward_flux": "sfc total", "surface_downward_direct_flux": "sfc direct",
                  "surface_downward_diffuse_flux": "sfc diffuse", "toa_upward_flux": "TOA up",
@@ -119,6 +122,12 @@ class Environment:
 def draw_environment(rng):
     """Draw optics, surface and droplet number of one scene.
 
+    Two bands (visible and near infrared) in 70 % of the scenes, else the visible band
+    alone; a near-infrared vapour absorber of column optical depth 0.02-0.4 and scale
+    height 1.5-2.5 km; a surface kind of :data:`SURFACES` with its albedo per band drawn
+    from its ranges; a droplet number of 25-250 cm-3 (log-uniform); a surface air
+    temperature of 283-302 K.
+
     Parameters
     ----------
     rng : numpy.random.Generator
@@ -130,8 +139,8 @@ def draw_environment(rng):
     bands = ("visible", "near_infrared") if rng.random() < 0.7 else ("visible",)
     surface = str(rng.choice(list(SURFACES)))
     albedo = np.array([rng.uniform(*SURFACES[surface][b]) for b in range(len(bands))])
-    # Droplet number from clean maritime (25 cm-3) to continental (250 cm-3), log-uniform:
-    # effective radii of about 6-15 um at 0.1-1 g m-3 of liquid water follow from it.
+    # From clean maritime to continental droplet numbers: effective radii of about 6-15 um
+    # at 0.1-1 g m-3 of liquid water follow from them.
     number = float(np.exp(rng.uniform(np.log(25e6), np.log(250e6))))
     return Environment(bands, float(rng.uniform(0.02, 0.4)), float(rng.uniform(1500.0, 2500.0)), surface,
                        albedo, number, float(rng.uniform(283.0, 302.0)))
@@ -153,6 +162,12 @@ def stretched_edges(top, layers, bottom):
     -------
     numpy.ndarray, shape (layers + 1,)
         Edges [m], from 0 to ``top``.
+
+    Examples
+    --------
+    >>> edges = stretched_edges(4000.0, 30, 50.0)
+    >>> round(float(edges[1]), 1), float(edges[-1]), bool(np.all(np.diff(edges, 2) > 0))
+    (50.0, 4000.0, True)
     """
     low, high = 1.0 + 1e-9, 2.0
     for _ in range(100):  # bisection on the growth ratio r of bottom * (r**n - 1) / (r - 1) = top
@@ -239,7 +254,13 @@ def spectral_field(rng, n, cell, slope, outer_scale, stretch=1.0, angle=0.0):
 
 
 def periodic_offset(a, b, period):
-    """Shortest signed distance ``a - b`` on a circle of length ``period`` (same units)."""
+    """Shortest signed distance ``a - b`` on a circle of length ``period`` (same units).
+
+    Examples
+    --------
+    >>> float(periodic_offset(19500.0, 500.0, 20000.0))
+    -1000.0
+    """
     return (a - b + 0.5 * period) % period - 0.5 * period
 
 
@@ -285,6 +306,13 @@ def effective_radius(lwc, droplet_number):
     -------
     numpy.ndarray
         [m]; 0 where there is no liquid water.
+
+    Examples
+    --------
+    0.3 g m-3 of liquid water in 100 droplets per cm3:
+
+    >>> round(float(effective_radius(np.array(0.3e-3), 100e6)) * 1e6, 1)
+    9.8
 
     References
     ----------
@@ -444,10 +472,11 @@ def sheared_band(rng, n, cell):
     800-1500 m and top 5-9 km; each leans across the band by 0.15-0.5 m per m of height,
     its radius rounding off near the top, its liquid water rising at 8-20 % of the
     adiabatic rate and falling off as ``exp(-1.5 (r/R)**2)`` from its axis.  On the side
-    the cores lean to, a stratiform layer 4-7 km wide (e-folding of its liquid water of
-    0.05-0.3 g m-3 with the distance), broken where a random field is low, spans from
-    3.5-4.5 km (descending by 1 km over its width) to 1-2 km under the cores' mean top.
-    The scene is then turned by a multiple of 90 degrees and maybe mirrored.
+    the cores lean to, a stratiform layer trails behind the band: its liquid water, 0.05-0.3
+    g m-3 at the axis, falls off exponentially over 4-7 km; it is broken where a random
+    field (elongated along the band) is low, and spans from a base of 3.5-4.5 km, sinking
+    by 1 km over those 4-7 km, to 1-2 km under the cores' mean top.  The scene is then
+    turned by a multiple of 90 degrees and mirrored in half the cases.
 
     Parameters
     ----------
@@ -615,7 +644,7 @@ def write_scenes(archive, pictures, per_generator, seed, n, cell):
     Returns
     -------
     list of str
-        One line per scene: regime, seed, layers, cloud cover, mean optical depth, bands.
+        One line per scene written: file, layers, cloud cover, optical depth, bands, surface.
     """
     archive.mkdir(parents=True, exist_ok=True)
     pictures.mkdir(parents=True, exist_ok=True)
@@ -623,13 +652,15 @@ def write_scenes(archive, pictures, per_generator, seed, n, cell):
     for j, regime in enumerate(GENERATORS):
         for i in range(per_generator):
             scene_seed = seed * 10000 + 1000 * j + i
-            path = archive / f"{regime}_{scene_seed:08d}.nc"
-            if path.exists():
+            path, picture = archive / f"{regime}_{scene_seed:08d}.nc", pictures / f"{regime}.png"
+            if path.exists() and (i > 0 or picture.exists()):
                 continue
             scene = build_scene(regime, scene_seed, n, cell)
+            if i == 0 and not picture.exists():
+                save_picture(scene, picture)
+            if path.exists():
+                continue
             write_scene(scene, path)
-            if i == 0:
-                save_picture(scene, pictures / f"{regime}.png")
             dz = np.diff(scene["z_edge"].values)
             tau = np.einsum("b,bzyx,z->yx", scene["solar_weight"].values, scene["extinction"].values, dz)
             cover = float((scene["liquid_water_content"].values > 0).any(axis=0).mean())
@@ -660,10 +691,16 @@ def _report_rows(report):
     return rows.assign(regime=np.where(rows["breakdown"] == "all", "all", rows["group"].astype(str)))
 
 
-def _cells(rows, column, digits=2):
-    """One row's values per target of :data:`TARGET_LABELS`, as text ("-" where undefined)."""
-    values = rows.set_index("target")[column]
-    return [f"{values[t]:.{digits}f}" if t in values and np.isfinite(values[t]) else "-" for t in TARGET_LABELS]
+def _cells(rows):
+    """A predictor's cells per target of :data:`TARGET_LABELS`: the skill and the RMSE in
+    brackets ("-" where the skill is undefined)."""
+    rows = rows.set_index("target")
+    cells = []
+    for target in TARGET_LABELS:
+        value = rows.at[target, "skill"] if target in rows.index else np.nan
+        rmse = rows.at[target, "rmse"] if target in rows.index else np.nan
+        cells.append(f"{value:.2f} ({rmse:.1f})" if np.isfinite(value) else f"- ({rmse:.1f})")
+    return cells
 
 
 def markdown_table(header, rows):
@@ -683,9 +720,10 @@ def skill_table(reports):
     Returns
     -------
     str
-        A Markdown table: per regime (``all`` first), the RMSE of no correction [W m-2],
-        the noise floor (best reachable skill), the baselines and every model (skill of the
-        W m-2 errors), with the share of columns flagged outside each model's envelope.
+        A Markdown table: per regime (``all`` first), no correction, the baselines and every
+        model, each as the skill of the W m-2 errors with their RMSE [W m-2] in brackets,
+        then the noise floor (the skill of a perfect model against the noisy benchmarks);
+        the models with the share of columns flagged outside their training envelope.
     """
     rows = {name: _report_rows(report) for name, report in reports.items()}
     envelopes = {name: pd.read_csv(report / "envelope.csv") for name, report in reports.items()}
@@ -696,10 +734,9 @@ def skill_table(reports):
         here = first[first["regime"] == regime]
         reference = here[here["predictor"] == "no correction"]
         n = int(reference["n"].iloc[0])
-        body.append([f"{regime} ({n} columns)", "no correction: RMSE [W m-2]", *_cells(reference, "rmse", 1), ""])
-        body.append(["", "noise floor (perfect model)", *_cells(reference, "noise_floor_skill"), ""])
+        body.append([f"{regime} ({n} columns)", "no correction", *_cells(reference), ""])
         for baseline in BASELINES:
-            body.append(["", baseline, *_cells(here[here["predictor"] == baseline], "skill"), ""])
+            body.append(["", baseline, *_cells(here[here["predictor"] == baseline]), ""])
         for name, model_rows in rows.items():
             mine = model_rows[(model_rows["regime"] == regime) & ~model_rows["predictor"].isin(
                 ("no correction", *BASELINES))]
@@ -708,7 +745,10 @@ def skill_table(reports):
                                  & (envelope["target"] == "surface_downward_flux"), "share_outside"]
             flagged = f"{share.iloc[0]:.0%}" if len(share) else "-"
             for predictor, one in mine.groupby("predictor", sort=False):
-                body.append(["", predictor, *_cells(one, "skill"), flagged])
+                body.append(["", predictor, *_cells(one), flagged])
+        floor = reference.set_index("target")["noise_floor_skill"]
+        body.append(["", "noise floor", *(f"{floor[t]:.2f}" if np.isfinite(floor.get(t, np.nan)) else "-"
+                                          for t in TARGET_LABELS), ""])
     return markdown_table(["scenes", "predictor", *TARGET_LABELS.values(), "flagged"], body)
 
 
@@ -765,7 +805,8 @@ def main(argv=None):
     parser.add_argument("--quick", action="store_true",
                         help=f"smoke test: {int(DOMAIN / QUICK_CELL)}^2 columns of {QUICK_CELL:g} m, "
                              f"at most {QUICK_PHOTONS} photons, one scene per generator")
-    parser.add_argument("--models", nargs="+", default=list(DEFAULT_MODELS), help="coefficient files to score")
+    parser.add_argument("--models", nargs="+", default=list(DEFAULT_MODELS),
+                        help="coefficient files to score (default: the shipped boosted and ridge models)")
     args = parser.parse_args(argv)
 
     out = Path(args.out)
@@ -779,21 +820,23 @@ def main(argv=None):
     wall["simulate"] = run_cli("simulate", out / "archive", "--zenith", *ZENITHS, "--random-azimuth", "--photons",
                                photons, "--jobs", args.jobs, "--seed", args.seed)
     wall["pairs"] = run_cli("pairs", out / "archive", "--out", out / "pairs.nc", "--host-resolution", 1000,
-                            "--recipe", "training/features.toml")
+                            "--recipe", RECIPE)
     reports = {}
     for model in args.models:
         name = Path(model).name.split(".")[0]
         reports[name] = out / f"score-{name}"
         wall[f"score {name}"] = run_cli("score", model, out / "pairs.nc", "--out", reports[name])
     text = "\n".join([
-        f"# Shipped models on foreign scenes", "",
+        "# Shipped models on foreign scenes", "",
         f"{per_generator} scene(s) per generator, {int(DOMAIN / cell)}^2 columns of {cell:g} m, suns at "
         f"{', '.join(ZENITHS)} degrees, {photons} photons per run, seed {args.seed}.  Skill = 1 - RMSE / "
-        "RMSE(no correction) of the W m-2 errors after the consistency step (surrogate3d score); "
-        "'-' where the benchmarks do not resolve a 3D effect.  flagged: share of columns outside the "
-        "model's training envelope.", "",
+        "RMSE(no correction) of the W m-2 errors after the consistency step (surrogate3d score), RMSE "
+        "[W m-2] in brackets; '-' where the benchmarks do not resolve a 3D effect.  flagged: share of "
+        "columns outside the model's training envelope.  noise floor: skill of a perfect model against "
+        "the Monte Carlo noise of the benchmarks.", "",
         skill_table(reports), "",
-        f"Features outside the training ranges of {args.models[0]}:", "",
+        f"Features outside the training ranges of {Path(args.models[0]).name} (the share of columns, the "
+        "scenes' range of the feature and the training range):", "",
         *envelope_features(out / "pairs.nc", args.models[0]), "",
         "Wall time: " + ", ".join(f"{k} {v:.0f} s" for k, v in wall.items())
         + f"; total {time.perf_counter() - start:.0f} s", ""])
