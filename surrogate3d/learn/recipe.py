@@ -35,6 +35,8 @@ any training starts, and a wrong one is named in the error with the allowed valu
     PARAMETER = value | [values]           # a list is a grid dimension
     interaction_features = ["a", "b", ...] # list-valued parameter: one value; a list of lists is a grid
     clear_sky_features = ["a", ...]        # list-valued too: the clear-sky gate (models.py)
+    [models.NAME.target_transforms.TARGET] # optional: this model's own transforms, in place of
+                                           # the recipe's [target_transforms] as a whole
 
     [profile]                              # optional: the heating-rate correction (profile_model.py;
     max_iter = 200                         # longwave: longwave_profile_model.py), fitted on the
@@ -83,11 +85,15 @@ class ModelSpec:
         Key of :data:`surrogate3d.learn.models.MODEL_KINDS`.
     grid : dict of str -> list
         Every parameter with its candidate values (one value for a fixed parameter).
+    target_transforms : tuple or None
+        The model's own target transforms in target order (``[models.NAME.target_transforms]``),
+        or None for the recipe's.
     """
 
     name: str
     kind: str
     grid: dict
+    target_transforms: tuple = None
 
     def candidates(self):
         """Every parameter combination of the grid, as dicts, in a fixed order."""
@@ -115,11 +121,14 @@ class TrainingRecipe:
     profile: dict = None
     spectrum: str = "shortwave"
 
-    def model_parameters(self, params=None):
-        """Constructor parameters of a model: ``params`` plus the recipe's target transforms."""
+    def model_parameters(self, params=None, spec=None):
+        """Constructor parameters of a model: ``params`` plus its target transforms (those of the
+        model ``spec`` when it has its own, else the recipe's)."""
         params = dict(params or {})
-        if self.target_transforms is not None:
-            params["target_transforms"] = list(self.target_transforms)
+        transforms = spec.target_transforms if spec is not None and spec.target_transforms is not None \
+            else self.target_transforms
+        if transforms is not None:
+            params["target_transforms"] = list(transforms)
         return params
 
     def feature_list(self, pairs):
@@ -215,7 +224,7 @@ def parse_recipe(text, source="<recipe>"):
     models = raw.get("models")
     if not isinstance(models, dict) or not models:
         _fail(source, "[models]", "must define at least one model table, e.g. [models.ridge] with kind = \"ridge\"")
-    specs = tuple(_model_spec(source, name, table) for name, table in models.items())
+    specs = tuple(_model_spec(source, name, table, targets) for name, table in models.items())
     for label in ("name", "description"):
         if not isinstance(raw.get(label, ""), str):
             _fail(source, label, f"must be a string; got {raw[label]!r}")
@@ -251,15 +260,17 @@ def _profile(source, table, spectrum="shortwave"):
     return dict(table)
 
 
-def _transforms(source, table, targets):
-    """``[target_transforms.TARGET]`` tables as a tuple in target order (None where a target has
-    none), or None without any."""
+def _transforms(source, table, targets, where="target_transforms"):
+    """``[target_transforms.TARGET]`` tables (or those at ``where``) as a tuple in target order
+    (None where a target has none), or None without any."""
     if table is None:
         return None
-    _check_keys(source, "[target_transforms]", table, set(targets))
+    if not isinstance(table, dict):
+        _fail(source, f"[{where}]", f"must be a table of target names; got {table!r}")
+    _check_keys(source, f"[{where}]", table, set(targets))
     for target, spec in table.items():
         try:
-            check_transform(spec, f"[target_transforms.{target}]")
+            check_transform(spec, f"[{where}.{target}]")
         except ParameterError as exc:
             raise ParameterError(f"training recipe {source!r}: {exc}") from None
     return tuple(table.get(target) for target in targets)
@@ -285,12 +296,15 @@ def _families(source, split):
     return tuple(families)
 
 
-def _model_spec(source, name, table):
+def _model_spec(source, name, table, targets):
     where = f"[models.{name}]"
     if not _MODEL_NAME.match(name):
         _fail(source, where, "name must start with a letter or digit and hold only letters, digits, _ and -")
     if not isinstance(table, dict):
         _fail(source, where, f"must be a table; got {table!r}")
+    table = dict(table)
+    transforms = _transforms(source, table.pop("target_transforms", None), targets,
+                             f"models.{name}.target_transforms")
     kind = table.get("kind")
     if kind not in MODEL_KINDS:
         _fail(source, f"{where} kind", f"must be one of {sorted(MODEL_KINDS)}; got {kind!r}")
@@ -306,7 +320,7 @@ def _model_spec(source, name, table):
         if not values:
             _fail(source, f"{where} {key}", "is an empty list; give at least one value")
         grid[key] = values
-    spec = ModelSpec(name=name, kind=kind, grid=grid)
+    spec = ModelSpec(name=name, kind=kind, grid=grid, target_transforms=transforms)
     for params in spec.candidates():
         try:
             make_estimator(kind, params)
@@ -329,11 +343,14 @@ def check_recipe_against_pairs(recipe, pairs):
                               "recipe, or give the other table)")
     features = recipe.feature_list(pairs)
     check_has_features(pairs, features, needed_by=f"training recipe {recipe.source!r}")
-    for target, spec in zip(recipe.targets, recipe.target_transforms or ()):
-        unused = [f for f in transform_features(spec or {}) if f not in features]
-        if unused:
-            raise ValidationError(f"training recipe {recipe.source!r}: [target_transforms.{target}] reads {unused}, "
-                                  "which are not among the recipe's features")
+    owners = [("target_transforms", recipe.target_transforms)] + [
+        (f"models.{m.name}.target_transforms", m.target_transforms) for m in recipe.models]
+    for where, transforms in owners:
+        for target, spec in zip(recipe.targets, transforms or ()):
+            unused = [f for f in transform_features(spec or {}) if f not in features]
+            if unused:
+                raise ValidationError(f"training recipe {recipe.source!r}: [{where}.{target}] reads {unused}, "
+                                      "which are not among the recipe's features")
     for spec in recipe.models:
         for parameter in sorted(_LIST_PARAMETERS):
             for chosen in spec.grid.get(parameter, []):

@@ -77,12 +77,11 @@ def train_models(pairs_path, recipe_path, out_dir, quiet=False):
     groups = scene_labels(training) if recipe.grouping == "scene" else np.asarray(training["regime"].values).astype(str)
     searches = {}
     for spec in tqdm(recipe.models, desc="train", unit="model", disable=True if quiet else None):
-        search = grid_search(make_estimator(spec.kind, recipe.model_parameters()), spec.candidates(), X, Y, groups,
-                             recipe.folds, quiet=quiet,
-                             label=f"search {spec.name}", feature_names=features,
+        search = grid_search(make_estimator(spec.kind, recipe.model_parameters(spec=spec)), spec.candidates(), X, Y,
+                             groups, recipe.folds, quiet=quiet, label=f"search {spec.name}", feature_names=features,
                              incident_flux=_incident_flux(training))
         searches[spec.name] = search
-        estimator = make_estimator(spec.kind, recipe.model_parameters(search.best_params)).fit_pairs(
+        estimator = make_estimator(spec.kind, recipe.model_parameters(search.best_params, spec)).fit_pairs(
             training, features, targets)
         card = dict(format_version=MODEL_FORMAT_VERSION, name=spec.name, kind=spec.kind,
                     hyperparameters=estimator.get_params(), **shared,

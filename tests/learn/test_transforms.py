@@ -129,3 +129,37 @@ alpha = [1.0, 10.0]
         parse_recipe(text.replace("1e-4", "-1.0"))
     with pytest.raises(ParameterError, match="unknown keys"):
         parse_recipe(text.replace("[target_transforms.atmosphere_absorption]", "[target_transforms.toa_upward_flux]"))
+
+
+def test_a_model_of_a_recipe_may_have_its_own_target_transforms():
+    # The ridge alone falls back to the offset outside its envelope; the boosted model keeps
+    # the recipe's transforms (docs/methods/models-and-metrics.md, "Target transforms").
+    from surrogate3d.learn.recipe import parse_recipe
+
+    text = """
+targets = ["surface_downward_direct_flux", "atmosphere_absorption"]
+[target_transforms.atmosphere_absorption]
+scale_feature = "independent_column_atmosphere_absorption"
+scale_floor = 1e-4
+[models.ridge]
+kind = "ridge"
+alpha = [1.0, 10.0]
+[models.ridge.target_transforms.atmosphere_absorption]
+scale_feature = "independent_column_atmosphere_absorption"
+scale_floor = 1e-4
+outside_envelope = "offset"
+[models.boosted]
+kind = "boosted"
+"""
+    recipe = parse_recipe(text)
+    ridge, boosted = recipe.models
+    assert ridge.grid == {"alpha": [1.0, 10.0]}
+    assert recipe.model_parameters({"alpha": 1.0}, ridge)["target_transforms"][1]["outside_envelope"] == "offset"
+    assert "outside_envelope" not in recipe.model_parameters({}, boosted)["target_transforms"][1]
+    assert "outside_envelope" not in recipe.model_parameters({})["target_transforms"][1]
+    with pytest.raises(ParameterError, match=r"\[models.ridge.target_transforms.atmosphere_absorption\]"
+                                             r"\['outside_envelope'\]"):
+        parse_recipe(text.replace('"offset"', '"zero"'))
+    with pytest.raises(ParameterError, match=r"\[models.ridge.target_transforms\].*unknown keys"):
+        parse_recipe(text.replace("[models.ridge.target_transforms.atmosphere_absorption]",
+                                  "[models.ridge.target_transforms.toa_upward_flux]"))
