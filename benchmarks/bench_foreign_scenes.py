@@ -23,15 +23,26 @@ Every scene has a random optics choice (two bands with a near-infrared vapour ab
 random strength, or the visible band alone), a surface of a random kind, a droplet number
 that sets the effective radius from the liquid water, and a stretched vertical grid.
 
+Every scene also carries what a longwave run needs, drawn from a second random stream of
+its seed (so the shortwave scene is the same with or without them): a constant-lapse-rate
+air temperature, a relative humidity falling from a surface value to a free-tropospheric
+one (saturated in cloud), and a skin temperature and emissivity by surface kind.  With
+``--longwave`` the shipped longwave models (``models/longwave``) are scored too, through
+the commands of their model card (``simulate --spectrum longwave``, ``pairs --spectrum
+longwave``, ``score``), in a second table.
+
 Usage::
 
     python benchmarks/bench_foreign_scenes.py --out DIR [--scenes-per-generator 4] \
-        [--photons 600000] [--jobs 2] [--seed 11] [--quick] [--models FILE ...]
+        [--photons 600000] [--jobs 2] [--seed 11] [--quick] [--models FILE ...] \
+        [--longwave] [--longwave-photons 1500000] [--longwave-models FILE ...]
 
 Writes ``DIR/archive`` (scenes and their runs), ``DIR/pairs.nc``, ``DIR/score-<model>``
 (the reports of ``surrogate3d score``), ``DIR/pictures`` (one scene per generator) and
-``DIR/summary.md`` (the printed table).  An interrupted run continues where it stopped:
-scene files already written are kept and ``simulate`` keeps its finished runs.
+``DIR/summary.md`` (the printed tables); with ``--longwave`` also
+``DIR/pairs-longwave.nc`` and ``DIR/score-longwave-<model>``.  An interrupted run
+continues where it stopped: scene files already written are kept and ``simulate`` keeps
+its finished runs.
 """
 
 import argparse
@@ -68,6 +79,17 @@ BASELINES = ("tilted independent column", "non-local independent pixel", "direct
 TARGET_LABELS = {"surface_downward_flux": "sfc total", "surface_downward_direct_flux": "sfc direct",
                  "surface_downward_diffuse_flux": "sfc diffuse", "toa_upward_flux": "TOA up",
                  "atmosphere_absorption": "absorption"}
+DEFAULT_LONGWAVE_MODELS = tuple(str(REPOSITORY / "models" / "longwave" / f"{name}.coefficients.json")
+                                for name in ("boosted", "ridge"))
+LONGWAVE_BASELINES = ("effective cloud fraction",)
+#: The four longwave targets the shipped models correct (the air's net absorption is not
+#: among them: its benchmarks are too noisy per host column, models/longwave/MODEL_CARD.md).
+LONGWAVE_TARGET_LABELS = {"longwave_surface_downward_flux": "sfc down", "longwave_surface_upward_flux": "sfc up",
+                          "longwave_toa_upward_flux": "top up", "longwave_surface_net_absorption": "sfc net"}
+#: Options of the model card's ``simulate --spectrum longwave``: spectral intervals of at
+#: most 50 cm-1 and its photons per run (the backward estimate keeps its default rays).
+LONGWAVE_RESOLUTION, LONGWAVE_PHOTONS = 50, 1500000
+QUICK_LONGWAVE_PHOTONS = 50000
 
 #: Adiabatic increase of liquid water with height above cloud base [kg m-3 per m]: about
 #: 2 g m-3 per km in a warm boundary layer, less in colder air aloft (from memory).
@@ -85,6 +107,20 @@ SURFACES = {
     "cropland": ((0.05, 0.10), (0.28, 0.40)),
     "desert": ((0.22, 0.35), (0.35, 0.50)),
     "snow": ((0.60, 0.70), (0.40, 0.55)),
+}
+#: Temperature decrease with height [K m-1] of every scene's air, the standard
+#: atmosphere's tropospheric lapse rate (ICAO 1993), also used for its hydrostatic pressure.
+LAPSE_RATE = 6.5e-3
+#: Surface kinds in the longwave: ranges of the skin minus surface-air temperature [K]
+#: (cool ocean skin; land warmer, desert much warmer in sunshine; snow colder, radiating),
+#: of the broadband emissivity [1] and of the relative humidity of the surface air [1]
+#: (typical values, from memory).
+LONGWAVE_SURFACES = {
+    "ocean": ((-1.5, 1.0), (0.985, 0.995), (0.70, 0.95)),
+    "forest": ((-1.0, 3.0), (0.97, 0.99), (0.60, 0.90)),
+    "cropland": ((-1.0, 5.0), (0.95, 0.98), (0.50, 0.85)),
+    "desert": ((2.0, 10.0), (0.90, 0.94), (0.15, 0.45)),
+    "snow": ((-4.0, -1.0), (0.97, 0.995), (0.70, 0.95)),
 }
 
 
@@ -106,8 +142,9 @@ class Environment:
         Albedo per band [1].
     droplet_number : float
         Cloud droplet number concentration [m-3].
-    surface_temperature : float
-        Air temperature at the surface [K], for the hydrostatic pressure.
+    surface_air_temperature : float
+        Air temperature at the surface [K], for the hydrostatic pressure and the longwave
+        temperature profile.
     """
 
     bands: tuple
@@ -116,7 +153,125 @@ class Environment:
     surface: str
     surface_albedo: np.ndarray
     droplet_number: float
-    surface_temperature: float
+    surface_air_temperature: float
+
+
+@dataclass
+class LongwaveSurface:
+    """What a scene draws for the longwave besides the shortwave :class:`Environment`.
+
+    Attributes
+    ----------
+    skin_temperature : float
+        Radiative temperature of the surface [K].
+    emissivity : float
+        Broadband longwave emissivity of the surface [1].
+    surface_humidity : float
+        Relative humidity of the surface air [1].
+    free_humidity : float
+        Relative humidity the profile tends to aloft [1].
+    moist_scale_height : float
+        Height over which the relative humidity falls toward ``free_humidity`` [m].
+    """
+
+    skin_temperature: float
+    emissivity: float
+    surface_humidity: float
+    free_humidity: float
+    moist_scale_height: float
+
+
+def draw_longwave_surface(rng, env):
+    """Draw the skin temperature, emissivity and humidity profile of one scene.
+
+    The skin temperature is the surface air temperature plus an offset, and the emissivity
+    and surface relative humidity come from the ranges of the surface kind
+    (:data:`LONGWAVE_SURFACES`); the relative humidity aloft is 0.15-0.45, reached over
+    a scale height of 1-3 km.
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+        A stream of its own, so that the shortwave draws stay those of the scene seed.
+    env : Environment
+        The scene's shortwave draws (surface kind and surface air temperature).
+
+    Returns
+    -------
+    LongwaveSurface
+    """
+    offset, emissivity, humidity = LONGWAVE_SURFACES[env.surface]
+    return LongwaveSurface(env.surface_air_temperature + rng.uniform(*offset), float(rng.uniform(*emissivity)),
+                           float(rng.uniform(*humidity)), float(rng.uniform(0.15, 0.45)),
+                           float(rng.uniform(1000.0, 3000.0)))
+
+
+def saturation_specific_humidity(temperature, pressure):
+    """Specific humidity of air saturated over liquid water.
+
+    Parameters
+    ----------
+    temperature : numpy.ndarray
+        Air temperature [K].
+    pressure : numpy.ndarray
+        Air pressure [Pa].
+
+    Returns
+    -------
+    numpy.ndarray
+        [kg kg-1].
+
+    Examples
+    --------
+    At 20 degC and 1000 hPa, about 14.7 g kg-1:
+
+    >>> round(float(saturation_specific_humidity(np.array(293.15), np.array(1e5))) * 1e3, 1)
+    14.7
+
+    References
+    ----------
+    Bolton, D. (1980), The computation of equivalent potential temperature, Mon. Wea. Rev.
+    108, 1046-1053 (saturation vapour pressure, his eq. 10).
+    """
+    celsius = temperature - 273.15
+    vapour = 611.2 * np.exp(17.67 * celsius / (celsius + 243.5))
+    ratio = 0.622  # molar mass of water over that of dry air
+    return ratio * vapour / (pressure - (1.0 - ratio) * vapour)
+
+
+def longwave_state(z_edge, pressure, lwc, env, surface):
+    """Air temperature and specific humidity of a scene.
+
+    The temperature falls at :data:`LAPSE_RATE` from the surface air temperature; the
+    relative humidity is ``RH_free + (RH_sfc - RH_free) exp(-z / H)`` at layer-centre
+    height ``z``, and 1 in cells with liquid water (cloud is saturated air).
+
+    Parameters
+    ----------
+    z_edge : numpy.ndarray, shape (nz + 1,)
+        Layer edges [m].
+    pressure : numpy.ndarray, shape (nz + 1,)
+        Pressure at the edges [Pa].
+    lwc : numpy.ndarray, shape (nz, ny, nx)
+        Liquid water content [kg m-3].
+    env : Environment
+    surface : LongwaveSurface
+
+    Returns
+    -------
+    air_temperature : numpy.ndarray, shape (nz,)
+        [K].
+    specific_humidity : numpy.ndarray, shape (nz, ny, nx)
+        [kg kg-1].
+    """
+    z = 0.5 * (z_edge[1:] + z_edge[:-1])
+    temperature = env.surface_air_temperature - LAPSE_RATE * z
+    layer_pressure = np.sqrt(pressure[1:] * pressure[:-1])  # mean of the logarithm, as in hydrostatic air
+    humidity = surface.free_humidity + (surface.surface_humidity - surface.free_humidity) * np.exp(
+        -z / surface.moist_scale_height)
+    saturated = saturation_specific_humidity(temperature, layer_pressure)[:, None, None]
+    relative = np.where(lwc > 0.0, 1.0, humidity[:, None, None])
+    return temperature, relative * saturated
 
 
 def draw_environment(rng):
@@ -180,7 +335,7 @@ def stretched_edges(top, layers, bottom):
     return edges * (top / edges[-1])
 
 
-def hydrostatic_pressure(z_edge, surface_temperature, lapse_rate=6.5e-3, surface_pressure=101325.0):
+def hydrostatic_pressure(z_edge, surface_temperature, lapse_rate=LAPSE_RATE, surface_pressure=101325.0):
     """Pressure at heights in an atmosphere of constant lapse rate.
 
     Parameters
@@ -540,7 +695,7 @@ GENERATORS = {
 
 
 def build_scene(regime, seed, n, cell):
-    """One scene of a generator, with its band optics and surface.
+    """One scene of a generator, with its band optics, surface and longwave fields.
 
     Parameters
     ----------
@@ -565,7 +720,7 @@ def build_scene(regime, seed, n, cell):
     lwc[lwc < 1e-7] = 0.0  # below 0.1 mg m-3 a cell is clear air
     radius = effective_radius(lwc, env.droplet_number)
     dz = np.diff(z_edge)[:, None, None]
-    pressure = hydrostatic_pressure(z_edge, env.surface_temperature)
+    pressure = hydrostatic_pressure(z_edge, env.surface_air_temperature)
     beta = cloud_extinction(lwc, np.where(lwc > 0.0, radius, 1.0))
     optics = []
     for band in env.bands:
@@ -577,11 +732,18 @@ def build_scene(regime, seed, n, cell):
                                                      env.vapour_scale_height)[:, None, None] / dz
         optics.append(mix_optics(beta, omega, g, rayleigh, gas))
     ext, ssa, asym = (np.stack([o[i] for o in optics]) for i in range(3))
+    # A stream of its own: the shortwave scene stays the one the seed gave before.
+    surface = draw_longwave_surface(np.random.default_rng([seed, 1]), env)
+    temperature, humidity = longwave_state(z_edge, pressure, lwc, env, surface)
     return make_scene(ext, ssa, asym, z_edge, cell, cell, surface_albedo=env.surface_albedo,
                       solar_weight=solar_weights(env.bands), band=list(env.bands), liquid_water_content=lwc,
-                      effective_radius=radius, air_pressure=pressure,
+                      effective_radius=radius, air_pressure=pressure, air_temperature=temperature,
+                      specific_humidity=humidity, surface_temperature=surface.skin_temperature,
+                      surface_longwave_emissivity=surface.emissivity,
                       attrs={"regime": regime, "seed": int(seed), "surface_kind": env.surface,
                              "droplet_number_per_m3": env.droplet_number,
+                             "surface_air_temperature_K": env.surface_air_temperature,
+                             "surface_relative_humidity": surface.surface_humidity,
                              "source": "benchmarks/bench_foreign_scenes.py"})
 
 
@@ -644,7 +806,8 @@ def write_scenes(archive, pictures, per_generator, seed, n, cell):
     Returns
     -------
     list of str
-        One line per scene written: file, layers, cloud cover, optical depth, bands, surface.
+        One line per scene written: file, layers, cloud cover, optical depth, bands, surface
+        (albedo, skin and surface air temperature, emissivity).
     """
     archive.mkdir(parents=True, exist_ok=True)
     pictures.mkdir(parents=True, exist_ok=True)
@@ -667,8 +830,37 @@ def write_scenes(archive, pictures, per_generator, seed, n, cell):
             lines.append(f"{path.name}: {scene.sizes['z']} layers to {scene['z_edge'].values[-1] / 1000:.1f} km, "
                          f"cover {cover:.2f}, mean optical depth {tau.mean():.1f} (max {tau.max():.0f}), "
                          f"{'+'.join(scene['band'].values)}, {scene.attrs['surface_kind']} "
-                         f"(albedo {', '.join(f'{a:.2f}' for a in scene['surface_albedo'].values[:, 0, 0])})")
+                         f"(albedo {', '.join(f'{a:.2f}' for a in scene['surface_albedo'].values[:, 0, 0])}; "
+                         f"skin {float(scene['surface_temperature'].values.mean()):.1f} K under "
+                         f"{scene.attrs['surface_air_temperature_K']:.1f} K air, emissivity "
+                         f"{float(scene['surface_longwave_emissivity'].values.mean()):.3f}, surface relative "
+                         f"humidity {scene.attrs['surface_relative_humidity']:.2f})")
     return lines
+
+
+def scenes_without_longwave(archive):
+    """Scene files of an archive written before this script drew longwave fields.
+
+    Parameters
+    ----------
+    archive : Path
+        Archive directory.
+
+    Returns
+    -------
+    list of str
+        Their file names.
+    """
+    import xarray as xr
+
+    from surrogate3d.scenes.variables import missing_longwave_variables
+
+    names = []
+    for path in sorted(archive.glob("*.nc")):
+        with xr.open_dataset(path) as scene:
+            if missing_longwave_variables(scene):
+                names.append(path.name)
+    return names
 
 
 def run_cli(*arguments):
@@ -691,12 +883,12 @@ def _report_rows(report):
     return rows.assign(regime=np.where(rows["breakdown"] == "all", "all", rows["group"].astype(str)))
 
 
-def _cells(rows):
-    """A predictor's cells per target of :data:`TARGET_LABELS`: the skill and the RMSE in
-    brackets ("-" where the skill is undefined)."""
+def _cells(rows, targets):
+    """A predictor's cells per target of ``targets``: the skill and the RMSE in brackets
+    ("-" where the skill is undefined)."""
     rows = rows.set_index("target")
     cells = []
-    for target in TARGET_LABELS:
+    for target in targets:
         value = rows.at[target, "skill"] if target in rows.index else np.nan
         rmse = rows.at[target, "rmse"] if target in rows.index else np.nan
         cells.append(f"{value:.2f} ({rmse:.1f})" if np.isfinite(value) else f"- ({rmse:.1f})")
@@ -709,13 +901,17 @@ def markdown_table(header, rows):
     return "\n".join(lines + ["| " + " | ".join(row) + " |" for row in rows])
 
 
-def skill_table(reports):
+def skill_table(reports, targets=TARGET_LABELS, baselines=BASELINES):
     """Skill per target and regime of the models and the baselines, from score reports.
 
     Parameters
     ----------
     reports : dict of str -> Path
         Model name -> directory written by ``surrogate3d score`` for it (all on the same pairs).
+    targets : dict of str -> str
+        Target -> column label, in column order; the flagged share is the first target's.
+    baselines : sequence of str
+        Predictor labels of the baselines in the reports.
 
     Returns
     -------
@@ -734,22 +930,22 @@ def skill_table(reports):
         here = first[first["regime"] == regime]
         reference = here[here["predictor"] == "no correction"]
         n = int(reference["n"].iloc[0])
-        body.append([f"{regime} ({n} columns)", "no correction", *_cells(reference), ""])
-        for baseline in BASELINES:
-            body.append(["", baseline, *_cells(here[here["predictor"] == baseline]), ""])
+        body.append([f"{regime} ({n} columns)", "no correction", *_cells(reference, targets), ""])
+        for baseline in baselines:
+            body.append(["", baseline, *_cells(here[here["predictor"] == baseline], targets), ""])
         for name, model_rows in rows.items():
             mine = model_rows[(model_rows["regime"] == regime) & ~model_rows["predictor"].isin(
-                ("no correction", *BASELINES))]
+                ("no correction", *baselines))]
             envelope = envelopes[name]
             share = envelope.loc[(envelope["group"] == regime)
-                                 & (envelope["target"] == "surface_downward_flux"), "share_outside"]
+                                 & (envelope["target"] == next(iter(targets))), "share_outside"]
             flagged = f"{share.iloc[0]:.0%}" if len(share) else "-"
             for predictor, one in mine.groupby("predictor", sort=False):
-                body.append(["", predictor, *_cells(one), flagged])
+                body.append(["", predictor, *_cells(one, targets), flagged])
         floor = reference.set_index("target")["noise_floor_skill"]
         body.append(["", "noise floor", *(f"{floor[t]:.2f}" if np.isfinite(floor.get(t, np.nan)) else "-"
-                                          for t in TARGET_LABELS), ""])
-    return markdown_table(["scenes", "predictor", *TARGET_LABELS.values(), "flagged"], body)
+                                          for t in targets), ""])
+    return markdown_table(["scenes", "predictor", *targets.values(), "flagged"], body)
 
 
 def envelope_features(pairs_path, model_path, top=3):
@@ -795,23 +991,68 @@ def envelope_features(pairs_path, model_path, top=3):
     return lines
 
 
+def score_models(models, pairs, out, spectrum, wall):
+    """Run ``surrogate3d score`` for every model; return model name -> report directory.
+
+    Parameters
+    ----------
+    models : sequence of str
+        Coefficient files.
+    pairs : Path
+        Pairs table.
+    out : Path
+        Directory the reports go in, as ``score-<model name>`` (shortwave) or
+        ``score-longwave-<model name>``.
+    spectrum : str
+        ``"shortwave"`` or ``"longwave"``.
+    wall : dict
+        Wall times [s], updated.
+
+    Returns
+    -------
+    dict of str -> Path
+    """
+    reports = {}
+    for model in models:
+        name = Path(model).name.split(".")[0]
+        label = name if spectrum == "shortwave" else f"longwave-{name}"
+        reports[name] = out / f"score-{label}"
+        wall[f"score {label}"] = run_cli("score", model, pairs, "--out", reports[name])
+    return reports
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--out", required=True, help="directory for the archive, pairs, reports and summary")
     parser.add_argument("--scenes-per-generator", type=int, default=4)
-    parser.add_argument("--photons", type=int, default=600000, help="photons per Monte Carlo run")
+    parser.add_argument("--photons", type=int, default=600000, help="photons per shortwave Monte Carlo run")
     parser.add_argument("--jobs", type=int, default=2, help="worker processes of simulate")
     parser.add_argument("--seed", type=int, default=11, help="seed of the scenes and of simulate")
     parser.add_argument("--quick", action="store_true",
                         help=f"smoke test: {int(DOMAIN / QUICK_CELL)}^2 columns of {QUICK_CELL:g} m, "
-                             f"at most {QUICK_PHOTONS} photons, one scene per generator")
+                             f"at most {QUICK_PHOTONS} shortwave and {QUICK_LONGWAVE_PHOTONS} longwave photons, "
+                             "one scene per generator")
     parser.add_argument("--models", nargs="+", default=list(DEFAULT_MODELS),
                         help="coefficient files to score (default: the shipped boosted and ridge models)")
+    parser.add_argument("--longwave", action="store_true",
+                        help="also run the longwave and score the longwave models (second table)")
+    parser.add_argument("--longwave-photons", type=int, default=LONGWAVE_PHOTONS,
+                        help=f"photons per longwave Monte Carlo run (default: {LONGWAVE_PHOTONS}, the longwave "
+                             "model card's)")
+    parser.add_argument("--longwave-models", nargs="+", default=list(DEFAULT_LONGWAVE_MODELS),
+                        help="longwave coefficient files to score (default: the shipped longwave boosted and "
+                             "ridge models)")
     args = parser.parse_args(argv)
 
     out = Path(args.out)
+    if args.longwave and (out / "archive").is_dir():
+        old = scenes_without_longwave(out / "archive")
+        if old:
+            parser.error(f"--longwave: scene {old[0]} in {out / 'archive'} (and {len(old) - 1} more) was written "
+                         "without longwave fields; give a new --out")
     cell = QUICK_CELL if args.quick else CELL
     photons = min(args.photons, QUICK_PHOTONS) if args.quick else args.photons
+    longwave_photons = min(args.longwave_photons, QUICK_LONGWAVE_PHOTONS) if args.quick else args.longwave_photons
     per_generator = 1 if args.quick else args.scenes_per_generator
     start = time.perf_counter()
     for line in write_scenes(out / "archive", out / "pictures", per_generator, args.seed, int(DOMAIN / cell), cell):
@@ -821,12 +1062,8 @@ def main(argv=None):
                                photons, "--jobs", args.jobs, "--seed", args.seed)
     wall["pairs"] = run_cli("pairs", out / "archive", "--out", out / "pairs.nc", "--host-resolution", 1000,
                             "--recipe", RECIPE)
-    reports = {}
-    for model in args.models:
-        name = Path(model).name.split(".")[0]
-        reports[name] = out / f"score-{name}"
-        wall[f"score {name}"] = run_cli("score", model, out / "pairs.nc", "--out", reports[name])
-    text = "\n".join([
+    reports = score_models(args.models, out / "pairs.nc", out, "shortwave", wall)
+    parts = [
         "# Shipped models on foreign scenes", "",
         f"{per_generator} scene(s) per generator, {int(DOMAIN / cell)}^2 columns of {cell:g} m, suns at "
         f"{', '.join(ZENITHS)} degrees, {photons} photons per run, seed {args.seed}.  Skill = 1 - RMSE / "
@@ -837,9 +1074,45 @@ def main(argv=None):
         skill_table(reports), "",
         f"Features outside the training ranges of {Path(args.models[0]).name} (the share of columns, the "
         "scenes' range of the feature and the training range):", "",
-        *envelope_features(out / "pairs.nc", args.models[0]), "",
-        "Wall time: " + ", ".join(f"{k} {v:.0f} s" for k, v in wall.items())
-        + f"; total {time.perf_counter() - start:.0f} s", ""])
+        *envelope_features(out / "pairs.nc", args.models[0]), ""]
+    write_summary(out, parts, wall, start)
+    if args.longwave:
+        wall["simulate longwave"] = run_cli("simulate", out / "archive", "--spectrum", "longwave", "--photons",
+                                            longwave_photons, "--longwave-resolution", LONGWAVE_RESOLUTION,
+                                            "--jobs", args.jobs, "--seed", args.seed)
+        wall["pairs longwave"] = run_cli("pairs", out / "archive", "--spectrum", "longwave", "--out",
+                                         out / "pairs-longwave.nc", "--host-resolution", 1000)
+        reports = score_models(args.longwave_models, out / "pairs-longwave.nc", out, "longwave", wall)
+        parts += [
+            "## Longwave", "",
+            f"The same scenes, longwave: {longwave_photons} photons per run, spectral intervals of at most "
+            f"{LONGWAVE_RESOLUTION} cm-1, the backward estimate of the surface and top fluxes at its default "
+            f"rays (models/longwave/MODEL_CARD.md, 'How it was made').  Skill and RMSE [W m-2] as above; "
+            "flagged: share of columns outside the model's envelope for the surface downward flux (those get "
+            "the effective-cloud-fraction prior).  The air's net absorption is not corrected by the models "
+            "and left out.", "",
+            skill_table(reports, LONGWAVE_TARGET_LABELS, LONGWAVE_BASELINES), "",
+            f"Features outside the training ranges of {Path(args.longwave_models[0]).name}:", "",
+            *envelope_features(out / "pairs-longwave.nc", args.longwave_models[0]), ""]
+        write_summary(out, parts, wall, start)
+
+
+def write_summary(out, parts, wall, start):
+    """Print the summary and write it to ``out/summary.md``, wall times last.
+
+    Parameters
+    ----------
+    out : Path
+        Output directory.
+    parts : list of str
+        Lines of the summary.
+    wall : dict of str -> float
+        Wall time [s] of every step.
+    start : float
+        ``time.perf_counter()`` at the start of the run.
+    """
+    text = "\n".join(parts + ["Wall time: " + ", ".join(f"{k} {v:.0f} s" for k, v in wall.items())
+                              + f"; total {time.perf_counter() - start:.0f} s", ""])
     print(text)
     write_text_atomic(out / "summary.md", text)
 
