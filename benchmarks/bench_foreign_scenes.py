@@ -575,7 +575,7 @@ def towers_under_deck(rng, n, cell):
     is cloudy above its ``1 - f`` quantile (cover ``f`` of 0.06-0.25); a tower's top rises
     with the square root of the field's excess, up to 0.6-2 km above a base of
     500-1200 m.  Deck: periodic Voronoi cells around Poisson points (mean cell size 1.5-4
-    km), 150-450 m thick (each cell scaled by 0.5-1.2) with its base at 3-5 km, thinning
+    km), 200-600 m thick before each cell's scaling by 0.5-1.2, with its base at 3-5 km, thinning
     toward the cell walls and open within 60-300 m of them.  Liquid water rises at 50-90 %
     of the adiabatic rate in the towers, 30-60 % in the colder deck.
 

@@ -108,10 +108,9 @@ def test_transforms_must_fit_the_features_and_targets():
         RidgeCorrection(target_transforms=[{"scale_feature": "absorption_ica"}, None]).fit(X, Y, feature_names=NAMES)
 
 
-def test_recipe_target_transforms_reach_every_model():
-    from surrogate3d.learn.recipe import parse_recipe
-
-    text = """
+#: A recipe whose absorption target is scaled by the independent-column absorption, with a ridge
+#: model last (so that a test may add tables of that model).
+RECIPE_WITH_TRANSFORM = """
 targets = ["surface_downward_direct_flux", "atmosphere_absorption"]
 [target_transforms.atmosphere_absorption]
 scale_feature = "independent_column_atmosphere_absorption"
@@ -120,6 +119,12 @@ scale_floor = 1e-4
 kind = "ridge"
 alpha = [1.0, 10.0]
 """
+
+
+def test_recipe_target_transforms_reach_every_model():
+    from surrogate3d.learn.recipe import parse_recipe
+
+    text = RECIPE_WITH_TRANSFORM
     recipe = parse_recipe(text)
     assert recipe.target_transforms == (None, {"scale_feature": "independent_column_atmosphere_absorption",
                                                "scale_floor": 1e-4})
@@ -136,15 +141,7 @@ def test_a_model_of_a_recipe_may_have_its_own_target_transforms():
     # the recipe's transforms (docs/methods/models-and-metrics.md, "Target transforms").
     from surrogate3d.learn.recipe import parse_recipe
 
-    text = """
-targets = ["surface_downward_direct_flux", "atmosphere_absorption"]
-[target_transforms.atmosphere_absorption]
-scale_feature = "independent_column_atmosphere_absorption"
-scale_floor = 1e-4
-[models.ridge]
-kind = "ridge"
-alpha = [1.0, 10.0]
-[models.ridge.target_transforms.atmosphere_absorption]
+    text = RECIPE_WITH_TRANSFORM + """[models.ridge.target_transforms.atmosphere_absorption]
 scale_feature = "independent_column_atmosphere_absorption"
 scale_floor = 1e-4
 outside_envelope = "offset"
