@@ -20,22 +20,25 @@ COLUMN_TARGETS = ["surface_downward_flux", "surface_downward_direct_flux", "surf
                   "toa_upward_flux", "atmosphere_absorption"]
 
 
+def _numbers(text):
+    return np.array([[float(v) for v in row.split()] for row in text.splitlines() if row.strip()])
+
+
 def _matrix(path, skip_header):
-    rows = path.read_text().splitlines()[1 if skip_header else 0:]
-    return np.array([[float(v) for v in row.split()] for row in rows if row.strip()])
+    text = path.read_text()
+    return _numbers(text.split("\n", 1)[1] if skip_header else text)
 
 
 def _same_as_generated(path, key, text):
     """Whether a committed file equals what the generator makes now.
 
     The sample corrections are computed by the numpy runtime, whose exp, log and power may
-    change in their last bit between numpy releases (seen with numpy 2.4): those files are
-    compared as numbers to 1e-12, everything else as text.
+    differ in their last bit between processors and numpy releases (seen with numpy 2.4.6 on
+    a new machine): those files are compared as numbers to 1e-12, everything else as text.
     """
     if key != "sample_corrections":
         return path.read_text() == text
-    committed = _matrix(path, skip_header=False)
-    regenerated = np.array([[float(v) for v in row.split()] for row in text.splitlines() if row.strip()])
+    committed, regenerated = _numbers(path.read_text()), _numbers(text)
     return committed.shape == regenerated.shape and np.allclose(committed, regenerated, rtol=1e-12, atol=1e-15)
 
 
